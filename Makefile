@@ -1,0 +1,38 @@
+# speciakin: two commands for a newcomer, `make demo` and `make test`.
+PYTHON ?= python3.11
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed
+export NUMBA_CACHE_DIR ?= $(CURDIR)/.numba_cache
+export MPLBACKEND ?= Agg
+
+.PHONY: demo test test-slow bench example-report install clean
+
+$(PY):
+	@command -v $(PYTHON) >/dev/null 2>&1 || { echo "error: $(PYTHON) not found; install Python 3.11 or run 'make PYTHON=python3 ...'"; exit 2; }
+	$(PYTHON) -m venv $(VENV)
+
+$(STAMP): pyproject.toml | $(PY)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e ".[dev]"
+	@touch $(STAMP)
+
+install: $(STAMP)
+
+demo: $(STAMP)
+	$(VENV)/bin/speciakin demo --out reports/demo
+
+test: $(STAMP)
+	$(PY) -m pytest -q -m "not slow"
+
+test-slow: $(STAMP)
+	$(PY) -m pytest -q -m slow
+
+bench: $(STAMP)
+	$(PY) benchmarks/run_all.py
+
+example-report: $(STAMP)
+	$(VENV)/bin/speciakin demo --out reports/example --seed 20261201
+
+clean:
+	rm -rf $(VENV) .pytest_cache .hypothesis .numba_cache reports/demo

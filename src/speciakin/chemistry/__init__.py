@@ -1,0 +1,1 @@
+"""Chemistry layer: sites, microstates, water, the reaction model and its file."""

@@ -1,0 +1,1 @@
+"""Command-line interface: a thin layer over the library."""

@@ -1,0 +1,194 @@
+"""Error types shared by every layer.
+
+A user mistake raises :class:`InputError` (or a subclass); its message names
+where the bad value came from (file, sheet, row, column or key), the value and
+what was expected.  The CLI turns any :class:`SpeciakinError` into a one-line
+(or one-block) message and a non-zero exit code, never a traceback.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+__all__ = [
+    "Location",
+    "Problem",
+    "SpeciakinError",
+    "InputError",
+    "ModelFileError",
+    "DataError",
+    "SolverError",
+    "ProblemCollector",
+]
+
+
+@dataclass(frozen=True)
+class Location:
+    """Where a value came from.  Every field is optional.
+
+    ``row`` is the row number as the spreadsheet program shows it (1-based,
+    header included); ``line`` is a 1-based text line.
+    """
+
+    file: str | None = None
+    sheet: str | None = None
+    row: int | None = None
+    column: str | None = None
+    key: str | None = None
+    line: int | None = None
+
+    def describe(self) -> str:
+        parts: list[str] = []
+        if self.file:
+            parts.append(str(self.file))
+        if self.sheet:
+            parts.append(f"sheet '{self.sheet}'")
+        if self.line is not None:
+            parts.append(f"line {self.line}")
+        if self.row is not None:
+            parts.append(f"row {self.row}")
+        if self.column:
+            parts.append(f"column '{self.column}'")
+        if self.key:
+            parts.append(f"key '{self.key}'")
+        return ", ".join(parts)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {k: v for k, v in self.__dict__.items() if v is not None}
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One finding: ``severity`` is ``"error"`` or ``"warning"``."""
+
+    message: str
+    location: Location = field(default_factory=Location)
+    value: Any = None
+    expected: str | None = None
+    severity: str = "error"
+    code: str = "invalid"
+
+    def describe(self) -> str:
+        where = self.location.describe()
+        text = f"{where}: {self.message}" if where else self.message
+        if self.value is not None:
+            text += f" (value {self.value!r}"
+            text += f"; expected {self.expected})" if self.expected else ")"
+        elif self.expected:
+            text += f" (expected {self.expected})"
+        return text
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "severity": self.severity,
+            "code": self.code,
+            "message": self.message,
+            "location": self.location.to_dict(),
+            "value": None if self.value is None else str(self.value),
+            "expected": self.expected,
+            "text": self.describe(),
+        }
+
+
+class SpeciakinError(Exception):
+    """Base class of every error the project raises on purpose."""
+
+    exit_code = 1
+
+
+class InputError(SpeciakinError):
+    """A user mistake in a file, a sheet or a command-line option.
+
+    Parameters
+    ----------
+    message
+        What is wrong, in plain words.
+    location
+        Where the value came from.
+    value
+        The offending value, if there is one.
+    expected
+        What would have been accepted.
+    problems
+        Several findings gathered in one pass; the message lists them all.
+    """
+
+    exit_code = 2
+
+    def __init__(
+        self,
+        message: str = "",
+        location: Location | None = None,
+        value: Any = None,
+        expected: str | None = None,
+        problems: list[Problem] | None = None,
+    ) -> None:
+        if problems is None:
+            problems = [Problem(message, location or Location(), value, expected)]
+        self.problems = list(problems)
+        errors = [p for p in self.problems if p.severity == "error"] or self.problems
+        if len(errors) == 1:
+            text = errors[0].describe()
+        else:
+            text = f"{len(errors)} problems:\n" + "\n".join(f"  - {p.describe()}" for p in errors)
+        super().__init__(text)
+
+    @property
+    def location(self) -> Location:
+        return self.problems[0].location
+
+
+class ModelFileError(InputError):
+    """A model, process or run file that does not parse or validate."""
+
+
+class DataError(InputError):
+    """Campaign spreadsheets that do not import or validate."""
+
+    exit_code = 1
+
+
+class SolverError(SpeciakinError):
+    """A numerical method failed; the message carries the solver's own words."""
+
+    exit_code = 3
+
+
+class ProblemCollector:
+    """Gather problems in one pass and raise them together.
+
+    Examples
+    --------
+    >>> c = ProblemCollector()
+    >>> c.error("pKa is not a number", Location(key="molecule.S.site.N1.pka"), "abc", "a number")
+    >>> c.has_errors
+    True
+    """
+
+    def __init__(self) -> None:
+        self.problems: list[Problem] = []
+
+    def error(self, message: str, location: Location | None = None, value: Any = None,
+              expected: str | None = None, code: str = "invalid") -> None:
+        self.problems.append(Problem(message, location or Location(), value, expected, "error", code))
+
+    def warning(self, message: str, location: Location | None = None, value: Any = None,
+                expected: str | None = None, code: str = "suspicious") -> None:
+        self.problems.append(Problem(message, location or Location(), value, expected, "warning", code))
+
+    @property
+    def errors(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "error"]
+
+    @property
+    def warnings(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "warning"]
+
+    @property
+    def has_errors(self) -> bool:
+        return bool(self.errors)
+
+    def raise_if_errors(self, error_type: type[InputError] = InputError) -> None:
+        if self.has_errors:
+            raise error_type(problems=self.errors)
