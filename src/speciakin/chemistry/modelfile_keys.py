@@ -1,0 +1,38 @@
+"""The allowed keys of every table of the model file (one registry).
+
+The unknown-key check of the parser and the reference in docs/model-file.md
+read this table; add a key here and handle it in the parser.
+"""
+
+from __future__ import annotations
+
+from types import MappingProxyType
+from typing import Mapping
+
+__all__ = ["FILE_KEYS"]
+
+#: Allowed keys of every table of the file, by table (drives the unknown-key
+#: check and the reference in docs/model-file.md).
+FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
+    "top": ("model", "ions", "molecule", "step", "hydrolysis", "run", "fit"),
+    "model": ("name", "description", "reference_temperature", "activity"),
+    "molecule": ("label", "role", "molar_mass", "charge", "moieties", "site", "interaction"),
+    "site": ("name", "kind", "pka", "enthalpy"),
+    "interaction": ("sites", "w"),
+    "step": ("label", "reactants", "products", "k", "log10_k", "activation_energy"),
+    "reactant": ("species", "requires", "coefficient"),
+    "hydrolysis": ("products", "water", "hydroxide"),
+    "hydrolysis_path": ("k", "log10_k", "activation_energy"),
+    "run": ("note", "volume", "temperature", "end_time", "charges", "ph", "dose", "withdrawal",
+            "samples", "probe_offset", "amount_factor"),
+    "temperature": ("times", "values"),
+    "ph.held": ("mode", "setpoint", "titrant", "titrant_concentration"),
+    "ph.logged": ("mode", "times", "values", "time_unit", "file"),
+    "ph.free": ("mode",),
+    "dose": ("species", "amount", "start", "end", "volume"),
+    "withdrawal": ("time", "volume"),
+    "samples": ("times", "volume"),
+    "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed"),
+    "fit.nuisance": ("runs", "lower", "upper", "sd"),
+    "fit.error_model": ("absolute", "relative"),
+})

@@ -1,0 +1,153 @@
+"""Typed access to the parsed TOML tables with problems gathered in one pass.
+
+:class:`TableReader` wraps a :class:`speciakin.errors.ProblemCollector`; each
+accessor checks type and range, records a problem naming the file, key path,
+line, value and what was expected, and returns ``None`` so that parsing goes
+on and every mistake of the file is reported at once.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Iterable
+
+from speciakin.chemistry.modelfile_paths import KeyLines, format_path, sub_path
+from speciakin.chemistry.modelfile_units import BARE_NUMBER_UNITS
+from speciakin.errors import Location, ProblemCollector
+from speciakin.units import DIMENSIONS, parse_quantity
+
+__all__ = ["TableReader"]
+
+_TYPE_WORDS = {dict: "a table", list: "an array", str: "a text string", bool: "true or false"}
+
+
+class TableReader:
+    """Read values of one model file; problems go to :attr:`collector`."""
+
+    def __init__(self, source: str, text: str) -> None:
+        self.source = source
+        self._text = text
+        self._key_lines: KeyLines | None = None
+        self.collector = ProblemCollector()
+
+    @property
+    def key_lines(self) -> KeyLines:
+        """Key path -> line index, built on first use (only when there is a problem)."""
+        if self._key_lines is None:
+            self._key_lines = KeyLines(self._text)
+        return self._key_lines
+
+    # -- locations and problems -------------------------------------------
+    def location(self, path: str) -> Location:
+        return Location(file=self.source or None, key=path or None, line=self.key_lines.line(path))
+
+    def error(self, path: str, message: str, value: Any = None, expected: str | None = None,
+              code: str = "invalid") -> None:
+        self.collector.error(message, self.location(path), value, expected, code)
+
+    def warning(self, path: str, message: str, value: Any = None, expected: str | None = None) -> None:
+        self.collector.warning(message, self.location(path), value, expected)
+
+    # -- structure -----------------------------------------------------------
+    def check_keys(self, table: dict, path: str, allowed: Iterable[str],
+                   required: Iterable[str] = ()) -> None:
+        """Record unknown keys (listing the allowed ones) and missing required keys."""
+        allowed = tuple(allowed)
+        for key in table:
+            if key not in allowed:
+                self.error(sub_path(path, key) if path else format_path(key), "unknown key",
+                           key, "one of: " + ", ".join(allowed), code="unknown_key")
+        for key in required:
+            if key not in table:
+                self.error(path, f"missing key '{key}'", expected=f"a value for '{key}'",
+                           code="missing")
+
+    def typed(self, value: Any, path: str, kind: type, what: str | None = None) -> Any:
+        """Return ``value`` if it is of ``kind`` (int/float accepted for float)."""
+        if kind is float:
+            ok = isinstance(value, (int, float)) and not isinstance(value, bool)
+        elif kind is int:
+            ok = isinstance(value, int) and not isinstance(value, bool)
+        else:
+            ok = isinstance(value, kind)
+        if not ok:
+            expected = what or _TYPE_WORDS.get(kind, "a number" if kind is float else "an integer")
+            self.error(path, "wrong type", value, expected, code="type")
+            return None
+        return value
+
+    def table(self, parent: dict, key: str, path: str, required: bool = False) -> dict | None:
+        if key not in parent:
+            if required:
+                self.error(path, f"missing table '{key}'", code="missing")
+            return None
+        return self.typed(parent[key], sub_path(path, key) if path else key, dict)
+
+    def array(self, table: dict, key: str, path: str) -> list:
+        """Items of an array of tables (``[[path.key]]`` sections); [] if absent."""
+        if key not in table:
+            return []
+        value = self.typed(table[key], sub_path(path, key), list,
+                           f"an array of tables ([[...{key}]] sections)")
+        return value or []
+
+    # -- scalar values -------------------------------------------------------
+    def string(self, table: dict, key: str, path: str, default: str | None = None,
+               choices: Iterable[str] | None = None) -> str | None:
+        if key not in table:
+            return default
+        sub = sub_path(path, key)
+        value = self.typed(table[key], sub, str)
+        if value is not None and choices is not None:
+            choices = tuple(choices)
+            if value not in choices:
+                self.error(sub, "unknown value", value, "one of: " + ", ".join(choices))
+                return None
+        return value
+
+    def number(self, value: Any, path: str, minimum: float | None = None,
+               positive: bool = False, what: str = "a number") -> float | None:
+        value = self.typed(value, path, float, what)
+        if value is None:
+            return None
+        value = float(value)
+        if not math.isfinite(value):
+            self.error(path, "not a finite number", value, what)
+            return None
+        if positive and value <= 0.0:
+            self.error(path, "must be positive", value, "a number > 0")
+            return None
+        if minimum is not None and value < minimum:
+            self.error(path, "out of range" if minimum != 0 else "must not be negative",
+                       value, f"a number >= {minimum:g}")
+            return None
+        return value
+
+    def measure(self, value: Any, path: str, dimension: str, minimum: float | None = None,
+                positive: bool = False, default_unit: str | None = None) -> float | None:
+        """A quantity such as ``"30 min"`` or a bare number in the documented default unit."""
+        if default_unit is None:
+            default_unit = BARE_NUMBER_UNITS.get(dimension)
+        units = ", ".join(DIMENSIONS.get(dimension, ()))
+        expected = f"a {dimension.replace('_', ' ')} with a unit ({units})"
+        if default_unit:
+            expected += f" or a bare number in {default_unit}"
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            self.error(path, "wrong type", value, expected, code="type")
+            return None
+        try:
+            internal = parse_quantity(value, dimension, default_unit)
+        except ValueError as exc:
+            self.error(path, str(exc), value, expected, code="unit")
+            return None
+        if not math.isfinite(internal):
+            self.error(path, "not a finite number", value, expected)
+            return None
+        if positive and internal <= 0.0:
+            self.error(path, "must be positive", value, "a value > 0")
+            return None
+        if minimum is not None and internal < minimum:
+            self.error(path, "must not be negative" if minimum == 0 else "out of range", value,
+                       "a value >= 0" if minimum == 0 else f"a value >= {minimum:g} (internal units)")
+            return None
+        return internal
