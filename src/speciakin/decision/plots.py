@@ -1,0 +1,136 @@
+"""Figures of a :class:`~speciakin.decision.result.WindowResult` (matplotlib,
+Agg backend).  Each function takes the result and an output path, writes a
+PNG atomically and returns the path.  The report layer may draw its own
+styled versions from the same arrays.
+
+Colours: the Okabe-Ito colour-blind-safe palette (Okabe, M. and Ito, K.,
+"Color Universal Design", 2002, https://jfly.uni-koeln.de/color/).
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from speciakin.decision.result import WindowResult
+
+__all__ = ["plot_probability", "plot_outcomes", "plot_map", "OKABE_ITO"]
+
+#: Okabe-Ito palette (black first, then the seven colours).
+OKABE_ITO = ("#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00",
+             "#CC79A7")
+
+
+def _figure(width: float = 6.5, height: float = 4.0):
+    import matplotlib
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+    return Figure(figsize=(width, height), dpi=150, layout="constrained")
+
+
+def _save(fig, path: str | os.PathLike) -> Path:
+    """Render to PNG in memory, then write atomically (temp file + rename)."""
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png")
+    target = Path(path)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(buffer.getvalue())
+        os.replace(tmp, target)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    return target
+
+
+def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
+    """Probability of meeting every specification against pH, with the level
+    line, the window (light) and the robust set points (dark) shaded."""
+    fig = _figure()
+    ax = fig.add_subplot()
+    for k, (a, b) in enumerate(result.windows):
+        ax.axvspan(a, b, color=OKABE_ITO[2], alpha=0.25, lw=0,
+                   label="window (p >= level)" if k == 0 else None)
+    for k, (a, b) in enumerate(result.robust_windows):
+        ax.axvspan(a, b, color=OKABE_ITO[5], alpha=0.35, lw=0,
+                   label=f"robust set points (+/- {result.tolerance:g} pH)" if k == 0 else None)
+    se = result.probability_standard_error
+    ax.fill_between(result.ph, np.clip(result.probability - 2 * se, 0, 1),
+                    np.clip(result.probability + 2 * se, 0, 1), color=OKABE_ITO[0], alpha=0.15,
+                    lw=0, label="+/- 2 Monte Carlo s.e.")
+    ax.plot(result.ph, result.probability, color=OKABE_ITO[0], lw=1.8,
+            label="probability, all specifications met")
+    worst = result.worst_case_probability
+    if np.any(np.isfinite(worst)):
+        ax.plot(result.ph, worst, color=OKABE_ITO[6], lw=1.2, ls="--",
+                label=f"lowest within +/- {result.tolerance:g} pH")
+    ax.axhline(result.level, color=OKABE_ITO[1], lw=1.2, ls=":", label=f"level {result.level:g}")
+    if result.best_ph is not None:
+        ax.axvline(result.best_ph, color=OKABE_ITO[7], lw=1.0, label=f"best set point pH {result.best_ph:.2f}")
+    ax.set_xlabel("set-point pH [-]")
+    ax.set_ylabel("probability [-]")
+    ax.set_ylim(-0.02, 1.02)
+    ax.set_xlim(result.ph[0], result.ph[-1])
+    ax.set_title(f"Probability of meeting every specification ({result.n_draws} draws, "
+                 f"{result.uncertainty_source})", fontsize=9)
+    ax.legend(fontsize=7, loc="best")
+    return _save(fig, path)
+
+
+def plot_outcomes(result: WindowResult, path: str | os.PathLike) -> Path:
+    """Median and 5-95 % band of each outcome against pH."""
+    fig = _figure()
+    ax = fig.add_subplot()
+    for k, name in enumerate(result.outcome_names):
+        colour = OKABE_ITO[(k + 1) % len(OKABE_ITO)]
+        ax.fill_between(result.ph, result.outcome_lower[name], result.outcome_upper[name],
+                        color=colour, alpha=0.25, lw=0)
+        ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6, label=name)
+    for a, b in result.windows:
+        ax.axvline(a, color=OKABE_ITO[0], lw=0.8, ls=":")
+        ax.axvline(b, color=OKABE_ITO[0], lw=0.8, ls=":")
+    ax.set_xlabel("set-point pH [-]")
+    ax.set_ylabel("mole % of substrate moiety [%]")
+    ax.set_xlim(result.ph[0], result.ph[-1])
+    ax.set_title("Expected outcome at the end of the process: median and 5-95 % band", fontsize=9)
+    if result.outcome_names:
+        ax.legend(fontsize=7, loc="best")
+    return _save(fig, path)
+
+
+def plot_map(result: WindowResult, path: str | os.PathLike) -> Path:
+    """Probability over pH x second factor, with the level contour.
+
+    Raises
+    ------
+    ValueError
+        If the result has no second factor.
+    """
+    if result.map_probability is None:
+        raise ValueError("this result has no second factor; there is no 2-D map to draw")
+    from matplotlib.colors import LinearSegmentedColormap
+
+    fig = _figure()
+    ax = fig.add_subplot()
+    cmap = LinearSegmentedColormap.from_list("probability", ["#FFFFFF", OKABE_ITO[2], OKABE_ITO[5]])
+    y = np.asarray(result.factor_values, dtype=float)
+    mesh = ax.pcolormesh(result.ph, y, result.map_probability.T, cmap=cmap, vmin=0, vmax=1,
+                         shading="nearest")
+    fig.colorbar(mesh, ax=ax, label="probability [-]")
+    if result.ph.size > 1 and y.size > 1:
+        ax.contour(result.ph, y, result.map_probability.T, levels=[result.level],
+                   colors=[OKABE_ITO[6]], linewidths=1.5)
+    ax.set_xlabel("set-point pH [-]")
+    ax.set_ylabel(f"{result.factor_name} [{result.factor_unit}]")
+    ax.set_title(f"Design space: probability of meeting every specification "
+                 f"(contour at {result.level:g})", fontsize=9)
+    return _save(fig, path)

@@ -1,0 +1,296 @@
+"""The result of a pH-window computation: a dataclass whose fields always
+exist (None where they do not apply), with ``report()``, ``to_dict()`` and
+``from_dict()``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, fields
+from typing import Any, Mapping
+
+import numpy as np
+
+from speciakin.decision.specs import Specification
+
+__all__ = ["WindowResult", "REPORT_HEADINGS"]
+
+#: Headings of :meth:`WindowResult.report`, always present and in this order.
+REPORT_HEADINGS = (
+    "pH window",
+    "Settings",
+    "Specifications",
+    "Decision",
+    "Probability against pH",
+    "Expected outcomes at the end of the process",
+    "Design space map",
+    "Warnings",
+)
+
+
+def _json_number(x: Any) -> Any:
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _json_array(a: Any) -> Any:
+    if a is None:
+        return None
+    arr = np.asarray(a, dtype=float)
+    return np.where(np.isfinite(arr), arr, np.nan).tolist() if arr.ndim else _json_number(arr)
+
+
+def _clean(obj: Any) -> Any:
+    """Replace NaN/inf by None in nested lists."""
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, float):
+        return obj if math.isfinite(obj) else None
+    return obj
+
+
+def _from_json_array(a: Any) -> np.ndarray | None:
+    if a is None:
+        return None
+    return np.asarray(_none_to_nan(a), dtype=float)
+
+
+def _none_to_nan(obj: Any) -> Any:
+    if isinstance(obj, list):
+        return [_none_to_nan(v) for v in obj]
+    return np.nan if obj is None else obj
+
+
+def _intervals(items: Any) -> list[tuple[float, float]]:
+    return [(float(a), float(b)) for a, b in (items or [])]
+
+
+@dataclass
+class WindowResult:
+    """Probability that every specification is met, against pH (and a second factor).
+
+    Attributes
+    ----------
+    level
+        Required probability [-].
+    tolerance
+        Plant pH control half-band [pH units].
+    specifications
+        The specifications evaluated.
+    uncertainty_source
+        ``"posterior"`` or ``"least-squares covariance (multivariate normal)"``.
+    n_draws
+        Number of parameter draws.
+    ph
+        Scanned pH grid (n_ph,) [-].
+    probability, probability_standard_error
+        (n_ph,) [-]; for a 2-D scan, at the factor value ``nominal_factor``.
+    worst_case_probability
+        (n_ph,) lowest probability within +/- tolerance [-]; NaN where the
+        band leaves the grid.
+    robust_probability_per_draw
+        (n_ph,) fraction of draws meeting every specification at every grid
+        pH within +/- tolerance [-].
+    windows
+        Intervals (low, high) [pH] where probability >= level.
+    primary_window
+        The window containing the best point, else the widest; None if none.
+    robust_windows
+        Set-point intervals whose whole drift band keeps probability >= level.
+    robust_windows_per_draw
+        Same with the per-draw robust probability (grid resolution).
+    best_ph, best_probability
+        Set point with the highest worst-case probability over the drift band
+        (highest probability when no band fits in the grid) [pH], [-].
+    outcome_names
+        Molecules (or outcomes) in the bands.
+    outcome_median, outcome_lower, outcome_upper
+        Name -> (n_ph,) median and 5 % / 95 % quantiles over draws [%].
+    factor_name, factor_unit, factor_values
+        Second factor of a 2-D scan (values in ``factor_unit``), else None.
+    nominal_factor
+        Factor value used for the 1-D curves of a 2-D scan, else None.
+    map_probability, map_standard_error
+        (n_ph, n_factor) probability over the 2-D grid, else None.
+    map_windows, map_robust_windows
+        Per factor value, the windows / robust windows [pH], else None.
+    n_failed_draws
+        Draws whose outcomes were not finite at some point (counted as failing).
+    warnings
+        Plain-language findings.
+    """
+
+    level: float
+    tolerance: float
+    specifications: list[Specification]
+    uncertainty_source: str
+    n_draws: int
+    ph: np.ndarray
+    probability: np.ndarray
+    probability_standard_error: np.ndarray
+    worst_case_probability: np.ndarray
+    robust_probability_per_draw: np.ndarray
+    windows: list[tuple[float, float]]
+    primary_window: tuple[float, float] | None
+    robust_windows: list[tuple[float, float]]
+    robust_windows_per_draw: list[tuple[float, float]]
+    best_ph: float | None
+    best_probability: float | None
+    outcome_names: list[str]
+    outcome_median: dict[str, np.ndarray]
+    outcome_lower: dict[str, np.ndarray]
+    outcome_upper: dict[str, np.ndarray]
+    factor_name: str | None = None
+    factor_unit: str | None = None
+    factor_values: np.ndarray | None = None
+    nominal_factor: float | None = None
+    map_probability: np.ndarray | None = None
+    map_standard_error: np.ndarray | None = None
+    map_windows: list[list[tuple[float, float]]] | None = None
+    map_robust_windows: list[list[tuple[float, float]]] | None = None
+    n_failed_draws: int = 0
+    warnings: list[str] = field(default_factory=list)
+
+    # ------------------------------------------------------------------ text
+    def report(self) -> str:
+        """Plain-text report with the fixed headings of :data:`REPORT_HEADINGS`."""
+        h = REPORT_HEADINGS
+        lines = [f"== {h[0]} =="]
+        lines.append(f"[{h[1]}]")
+        lines.append(f"  level                  {self.level:.3g}")
+        lines.append(f"  pH tolerance           +/- {self.tolerance:.3g}")
+        lines.append(f"  pH grid                {self.ph[0]:.3g} to {self.ph[-1]:.3g} "
+                     f"({self.ph.size} points)")
+        lines.append(f"  draws                  {self.n_draws}")
+        lines.append(f"  uncertainty source     {self.uncertainty_source}")
+        if self.factor_name:
+            vals = ", ".join(f"{v:g}" for v in self.factor_values)
+            lines.append(f"  second factor          {self.factor_name} [{self.factor_unit}]: {vals}")
+        lines.append(f"[{h[2]}]")
+        for s in self.specifications:
+            lines.append(f"  - {s.describe()}")
+        if not self.specifications:
+            lines.append("  (none)")
+        lines.append(f"[{h[3]}]")
+        if self.windows:
+            lines.append("  windows (p >= level)   " + _fmt_intervals(self.windows))
+            lines.append("  recommended window     " + _fmt_intervals([self.primary_window]))
+        else:
+            lines.append(f"  no pH meets every specification with probability >= {self.level:g}")
+        lines.append("  robust set points      " + (_fmt_intervals(self.robust_windows)
+                                                   if self.robust_windows else "none"))
+        lines.append("  robust (per draw)      " + (_fmt_intervals(self.robust_windows_per_draw)
+                                                   if self.robust_windows_per_draw else "none"))
+        if self.best_ph is not None:
+            what = "best set point      " if self.windows else "highest probability "
+            lines.append(f"  {what}   pH {self.best_ph:.2f} "
+                         f"(probability {self.best_probability:.3f})")
+        lines.append(f"[{h[4]}]")
+        lines.append("   pH     p      MC s.e.  worst(+/-tol)  per-draw robust")
+        for k, x in enumerate(self.ph):
+            lines.append(f"  {x:5.2f}  {self.probability[k]:.3f}  {self.probability_standard_error[k]:.4f}"
+                         f"   {_fmt(self.worst_case_probability[k])}          "
+                         f"{_fmt(self.robust_probability_per_draw[k])}")
+        lines.append(f"[{h[5]}]")
+        if self.best_ph is not None and self.outcome_names:
+            k = int(np.argmin(np.abs(self.ph - self.best_ph)))
+            lines.append(f"  at pH {self.ph[k]:.2f}: median [5 %, 95 %] mole % of substrate moiety")
+            for n in self.outcome_names:
+                lines.append(f"  {n:<20s} {self.outcome_median[n][k]:7.2f} "
+                             f"[{self.outcome_lower[n][k]:.2f}, {self.outcome_upper[n][k]:.2f}]")
+        else:
+            lines.append("  (no outcomes)")
+        lines.append(f"[{h[6]}]")
+        if self.map_probability is None:
+            lines.append("  not computed (no second factor)")
+        else:
+            for j, v in enumerate(self.factor_values):
+                wins = self.map_windows[j]
+                lines.append(f"  {self.factor_name} = {v:g} {self.factor_unit}: "
+                             + (_fmt_intervals(wins) if wins else "no window"))
+        lines.append(f"[{h[7]}]")
+        lines += [f"  - {w}" for w in self.warnings] or ["  none"]
+        return "\n".join(lines)
+
+    # ------------------------------------------------------------------ JSON
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready dict (NaN and infinity become None)."""
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if f.name == "specifications":
+                out[f.name] = [s.to_dict() for s in value]
+            elif f.name in ("outcome_median", "outcome_lower", "outcome_upper"):
+                out[f.name] = {k: _json_array(v) for k, v in value.items()}
+            elif isinstance(value, np.ndarray):
+                out[f.name] = _json_array(value)
+            elif f.name in ("windows", "robust_windows", "robust_windows_per_draw"):
+                out[f.name] = [[float(a), float(b)] for a, b in value]
+            elif f.name == "primary_window":
+                out[f.name] = None if value is None else [float(value[0]), float(value[1])]
+            elif f.name in ("map_windows", "map_robust_windows"):
+                out[f.name] = None if value is None else [[[float(a), float(b)] for a, b in row]
+                                                          for row in value]
+            elif isinstance(value, float):
+                out[f.name] = _json_number(value)
+            else:
+                out[f.name] = value
+        return _clean(out)
+
+    @classmethod
+    def from_dict(cls, data: Mapping[str, Any]) -> "WindowResult":
+        """Inverse of :meth:`to_dict`."""
+        def arr(name: str) -> np.ndarray | None:
+            return _from_json_array(data.get(name))
+
+        def num(name: str) -> float | None:
+            v = data.get(name)
+            return None if v is None else float(v)
+
+        primary = data.get("primary_window")
+        return cls(
+            level=float(data["level"]),
+            tolerance=float(data["tolerance"]),
+            specifications=[Specification.from_dict(s) for s in data["specifications"]],
+            uncertainty_source=str(data["uncertainty_source"]),
+            n_draws=int(data["n_draws"]),
+            ph=arr("ph"),
+            probability=arr("probability"),
+            probability_standard_error=arr("probability_standard_error"),
+            worst_case_probability=arr("worst_case_probability"),
+            robust_probability_per_draw=arr("robust_probability_per_draw"),
+            windows=_intervals(data["windows"]),
+            primary_window=None if primary is None else (float(primary[0]), float(primary[1])),
+            robust_windows=_intervals(data["robust_windows"]),
+            robust_windows_per_draw=_intervals(data["robust_windows_per_draw"]),
+            best_ph=num("best_ph"),
+            best_probability=num("best_probability"),
+            outcome_names=list(data["outcome_names"]),
+            outcome_median={k: _from_json_array(v) for k, v in data["outcome_median"].items()},
+            outcome_lower={k: _from_json_array(v) for k, v in data["outcome_lower"].items()},
+            outcome_upper={k: _from_json_array(v) for k, v in data["outcome_upper"].items()},
+            factor_name=data.get("factor_name"),
+            factor_unit=data.get("factor_unit"),
+            factor_values=arr("factor_values"),
+            nominal_factor=num("nominal_factor"),
+            map_probability=arr("map_probability"),
+            map_standard_error=arr("map_standard_error"),
+            map_windows=None if data.get("map_windows") is None
+            else [_intervals(row) for row in data["map_windows"]],
+            map_robust_windows=None if data.get("map_robust_windows") is None
+            else [_intervals(row) for row in data["map_robust_windows"]],
+            n_failed_draws=int(data.get("n_failed_draws", 0)),
+            warnings=list(data.get("warnings", [])),
+        )
+
+
+def _fmt(x: float) -> str:
+    return "  -  " if not np.isfinite(x) else f"{x:.3f}"
+
+
+def _fmt_intervals(intervals: list[tuple[float, float]]) -> str:
+    return ", ".join(f"pH {a:.2f} to {b:.2f}" for a, b in intervals)
