@@ -1,0 +1,66 @@
+"""Atomic output for the report layer.
+
+A renderer builds the whole file in memory first, then hands the bytes to
+:func:`atomic_write_bytes`, which writes a temporary file in the target folder
+and renames it over the target.  A failure at any point leaves either the old
+target or no target, never a half-written file, and no temporary file behind.
+
+(The CLI layer has its own copy of this helper; the report layer does not
+import the CLI.)
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+from speciakin.errors import InputError, Location
+
+__all__ = ["atomic_write_bytes", "atomic_write_text"]
+
+
+def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> Path:
+    """Write ``data`` to ``path`` atomically and return the path.
+
+    Parameters
+    ----------
+    path
+        Target file; its folder is created if needed.
+    data
+        The complete file content.
+
+    Raises
+    ------
+    InputError
+        If the folder cannot be created or the file cannot be written; the
+        message names the file and the operating system's reason.
+    """
+    target = Path(path)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    except OSError as exc:
+        raise InputError(f"cannot write the report: {exc.strerror or exc}",
+                         Location(file=str(target)), expected="a writable folder") from None
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, target)
+    except BaseException as exc:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        if isinstance(exc, OSError):
+            raise InputError(f"cannot write the report: {exc.strerror or exc}",
+                             Location(file=str(target)), expected="a writable file") from None
+        raise
+    return target
+
+
+def atomic_write_text(path: str | os.PathLike, text: str) -> Path:
+    """Write ``text`` as UTF-8 to ``path`` atomically (see :func:`atomic_write_bytes`)."""
+    return atomic_write_bytes(path, text.encode("utf-8"))

@@ -1,0 +1,83 @@
+"""Shared figure settings: sizes for A4, resolution, PNG output, input checks.
+
+Figures are made with :class:`matplotlib.figure.Figure` and the Agg canvas
+directly (no ``pyplot`` state), so helpers can run in worker threads and
+never open a window.
+"""
+
+from __future__ import annotations
+
+import io
+from typing import Any
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from speciakin.errors import InputError, Location
+
+__all__ = ["TEXT_WIDTH_IN", "DEFAULT_HEIGHT_IN", "DPI", "RC", "new_figure", "to_png", "as_array",
+           "same_length"]
+
+#: Text width of an A4 page with 25 mm margins: 160 mm [in].
+TEXT_WIDTH_IN = 160.0 / 25.4
+#: Default figure height [in].
+DEFAULT_HEIGHT_IN = 3.4
+#: Resolution of the PNG output [dots per inch].
+DPI = 170
+
+#: Font sizes that stay readable when the figure is printed at text width.
+RC: dict[str, Any] = {
+    "font.size": 9,
+    "axes.titlesize": 10,
+    "axes.labelsize": 9,
+    "legend.fontsize": 8,
+    "xtick.labelsize": 8,
+    "ytick.labelsize": 8,
+    "axes.grid": True,
+    "grid.alpha": 0.3,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+}
+
+
+def new_figure(width_in: float = TEXT_WIDTH_IN, height_in: float = DEFAULT_HEIGHT_IN) -> Figure:
+    """A matplotlib figure of the given size [in], attached to an Agg canvas."""
+    import matplotlib
+
+    with matplotlib.rc_context(RC):
+        fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def to_png(fig: Figure, dpi: int = DPI) -> bytes:
+    """Render ``fig`` to PNG bytes at ``dpi`` [dots per inch]."""
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=dpi, metadata={"Software": "speciakin"})
+    return buffer.getvalue()
+
+
+def as_array(values: Any, name: str, ndim: int = 1, allow_nan: bool = True) -> np.ndarray:
+    """``values`` as a float array of ``ndim`` dimensions, or an InputError naming ``name``."""
+    try:
+        array = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError("values are not numbers", Location(key=name), type(values).__name__,
+                         "an array of numbers") from None
+    if array.ndim != ndim:
+        raise InputError("wrong array shape", Location(key=name), array.shape, f"{ndim}-dimensional array")
+    if not allow_nan and not np.all(np.isfinite(array)):
+        raise InputError("values contain NaN or infinity", Location(key=name),
+                         int(np.count_nonzero(~np.isfinite(array))), "finite numbers only")
+    if np.any(np.isinf(array)):
+        raise InputError("values contain infinity", Location(key=name), None, "finite numbers or NaN")
+    return array
+
+
+def same_length(**arrays: np.ndarray) -> None:
+    """Raise an InputError unless every array has the same length."""
+    lengths = {k: len(v) for k, v in arrays.items()}
+    if len(set(lengths.values())) > 1:
+        raise InputError("arrays differ in length", Location(key=", ".join(lengths)), lengths,
+                         "the same number of points")

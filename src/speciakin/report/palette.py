@@ -1,0 +1,137 @@
+"""Colour-blind-safe colours and a stable species -> colour mapping.
+
+The eight colours are the "Color Universal Design" set of Okabe and Ito,
+distinguishable by readers with the common forms of colour-vision deficiency
+and still apart when printed in grey (with the line styles added below).
+
+References
+----------
+.. [1] Okabe, M. and Ito, K., "Color Universal Design (CUD): How to make
+   figures and presentations that are friendly to colorblind people", 2008,
+   https://jfly.uni-koeln.de/color/ (RGB values from its Fig. 16).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Iterable, Mapping
+
+from speciakin.errors import InputError, Location
+
+__all__ = [
+    "OKABE_ITO",
+    "SPECIES_COLOR_ORDER",
+    "LINE_STYLES",
+    "MARKERS",
+    "NEUTRAL",
+    "Style",
+    "SpeciesColors",
+    "hex_to_rgb",
+]
+
+#: The eight colours of [1]_ by name, as hex RGB.
+OKABE_ITO: Mapping[str, str] = MappingProxyType({
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "bluish green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish purple": "#CC79A7",
+})
+
+#: Order in which species receive colours: strong colours first, yellow (weak
+#: on white paper) late; black is kept for data-independent lines (levels,
+#: thresholds) and comes last.
+SPECIES_COLOR_ORDER: tuple[str, ...] = (
+    "blue", "vermillion", "bluish green", "reddish purple", "orange", "sky blue", "yellow", "black",
+)
+
+#: Line styles used in turn once every colour has been given out.
+LINE_STYLES: tuple[str, ...] = ("-", "--", "-.", ":")
+
+#: Marker shapes for data points, in the same turn as the line styles.
+MARKERS: tuple[str, ...] = ("o", "s", "^", "D")
+
+#: Colour for reference lines (levels, thresholds, zero lines).
+NEUTRAL = "#4D4D4D"
+
+
+def hex_to_rgb(color: str) -> tuple[int, int, int]:
+    """``"#E69F00"`` -> ``(230, 159, 0)``."""
+    text = color.lstrip("#")
+    if len(text) != 6:
+        raise InputError("not a hex colour", Location(key="color"), color, "'#RRGGBB'")
+    try:
+        return int(text[0:2], 16), int(text[2:4], 16), int(text[4:6], 16)
+    except ValueError:
+        raise InputError("not a hex colour", Location(key="color"), color, "'#RRGGBB'") from None
+
+
+@dataclass(frozen=True)
+class Style:
+    """How one species is drawn: colour, line style and data marker."""
+
+    color: str
+    line_style: str
+    marker: str
+
+
+@dataclass
+class SpeciesColors:
+    """Stable species -> :class:`Style` mapping for every figure of a report.
+
+    Build it once from the ordered list of model molecules; the i-th species
+    gets the i-th colour of :data:`SPECIES_COLOR_ORDER`; after eight species
+    the colours repeat with the next line style and marker.  A species not
+    in the list is appended on first use, so it keeps its style afterwards.
+
+    Examples
+    --------
+    >>> colors = SpeciesColors(["S", "P1", "P2"])
+    >>> colors.color("P1") == colors.color("P1")
+    True
+    """
+
+    species: list[str] = field(default_factory=list)
+
+    def __post_init__(self) -> None:
+        names: list[str] = []
+        for i, name in enumerate(self.species):
+            if not isinstance(name, str) or not name:
+                raise InputError("species name must be non-empty text", Location(key=f"species[{i}]"),
+                                 name, "a molecule name")
+            if name not in names:
+                names.append(name)
+        self.species = names
+
+    def _index(self, name: str) -> int:
+        if name not in self.species:
+            self.species.append(name)
+        return self.species.index(name)
+
+    def style(self, name: str) -> Style:
+        """The :class:`Style` of species ``name``."""
+        i = self._index(name)
+        n = len(SPECIES_COLOR_ORDER)
+        turn = i // n
+        return Style(OKABE_ITO[SPECIES_COLOR_ORDER[i % n]], LINE_STYLES[turn % len(LINE_STYLES)],
+                     MARKERS[turn % len(MARKERS)])
+
+    def color(self, name: str) -> str:
+        """Hex colour of species ``name``."""
+        return self.style(name).color
+
+    def line_style(self, name: str) -> str:
+        """Matplotlib line style of species ``name``."""
+        return self.style(name).line_style
+
+    def mapping(self, names: Iterable[str] | None = None) -> dict[str, Style]:
+        """Styles of ``names`` (default: every known species)."""
+        return {n: self.style(n) for n in (list(names) if names is not None else list(self.species))}
+
+    def to_dict(self) -> dict[str, dict[str, str]]:
+        return {n: {"color": s.color, "line_style": s.line_style, "marker": s.marker}
+                for n, s in self.mapping().items()}

@@ -1,0 +1,97 @@
+"""Fixed report texts: cautions, assumptions and limitations.
+
+These words appear in every report the project writes.  Sections built here
+are ordinary :class:`~speciakin.report.document.Section` objects so any
+renderer shows them.
+"""
+
+from __future__ import annotations
+
+from typing import Iterable
+
+from speciakin.report.document import BulletList, Callout, Paragraph, Section
+
+__all__ = [
+    "CAUTIONS_TITLE",
+    "CAUTION_ITEMS",
+    "DECISION_AID_TEXT",
+    "ASSUMPTIONS_TITLE",
+    "ASSUMPTION_ITEMS",
+    "INVENTED_DATA_NOTE",
+    "cautions_section",
+    "assumptions_section",
+]
+
+CAUTIONS_TITLE = "Cautions"
+
+#: Hazards of the chemistry this kind of model describes.
+CAUTION_ITEMS: tuple[str, ...] = (
+    "Acylating agents such as carboxylic anhydrides and acid chlorides are corrosive. They react "
+    "with water and with bases, and these reactions release heat.",
+    "Adding a strong base (for example sodium hydroxide solution) to an aqueous mixture releases "
+    "heat; dosing rate and cooling capacity limit how fast it may be added.",
+    "Some bases release gas when they neutralise acid (carbonates and hydrogen carbonates give "
+    "carbon dioxide); allow for foaming and vessel venting.",
+)
+
+DECISION_AID_TEXT = (
+    "The fitted model and the pH window in this report are a decision aid. They do not replace a "
+    "process-safety assessment (for example reaction calorimetry), a validated analytical method, "
+    "the site's own procedures, or local regulations and licensed professional practice."
+)
+
+ASSUMPTIONS_TITLE = "Assumptions and limitations"
+
+#: Modelling assumptions every report states.
+ASSUMPTION_ITEMS: tuple[str, ...] = (
+    "Proton transfers are treated as instantaneous: at every moment each molecule's protonation "
+    "states are at equilibrium with the current pH, and only the reactions with the reagent and "
+    "with water proceed at a finite rate.",
+    "The vessel is treated as ideally mixed. A fast reaction dosed into a stirred vessel can be "
+    "limited by mixing at the feed point (a local excess of reagent or base); the kinetic model "
+    "does not describe that, so scale-up to a different vessel or feed position needs its own check.",
+    "Activities are approximated by an activity model (Davies equation for ionic strength); in "
+    "water/co-solvent mixtures the electrode pH is an apparent pH and the pKa values fitted here "
+    "hold for that medium only.",
+    "Predictions outside the pH, temperature and dosing range of the lab runs are extrapolations.",
+)
+
+INVENTED_DATA_NOTE = (
+    "The compound, runs and numbers of this demonstration are invented for illustration; they "
+    "describe no real substance or process."
+)
+
+
+def cautions_section(extra_items: Iterable[str] = ()) -> Section:
+    """The "Cautions" section: hazards as a list, then the decision-aid statement.
+
+    Parameters
+    ----------
+    extra_items
+        Further cautions specific to one process (appended to the fixed list).
+    """
+    items = list(CAUTION_ITEMS) + [str(t) for t in extra_items]
+    return Section(CAUTIONS_TITLE, [
+        BulletList(items),
+        Callout("caution", "A decision aid, not a safety assessment", DECISION_AID_TEXT),
+    ], anchor="cautions")
+
+
+def assumptions_section(unconstrained: Iterable[str] = ()) -> Section:
+    """The "Assumptions and limitations" section.
+
+    Parameters
+    ----------
+    unconstrained
+        Warnings from the fit, one sentence each: parameters the data do not
+        pin down (flat or open profile, at a bound), strong correlations.
+        Listed under their own heading; an empty list is said in words.
+    """
+    warnings = [str(t) for t in unconstrained]
+    blocks = [BulletList(list(ASSUMPTION_ITEMS)),
+              Paragraph("What the data do not constrain:")]
+    if warnings:
+        blocks.append(BulletList(warnings))
+    else:
+        blocks.append(Paragraph("The fit raised no warning about parameters the data leave undetermined."))
+    return Section(ASSUMPTIONS_TITLE, blocks, anchor="assumptions")

@@ -1,0 +1,30 @@
+"""Fixed report texts: cautions and assumptions (words from the project's domain notes)."""
+
+from __future__ import annotations
+
+from speciakin.report import assumptions_section, cautions_section
+from speciakin.report.texts import ASSUMPTION_ITEMS, CAUTION_ITEMS
+
+
+def _all_text(section) -> str:
+    parts = []
+    for block in section.blocks:
+        parts += getattr(block, "items", []) + [getattr(block, "text", "")]
+    return " ".join(parts)
+
+
+def test_cautions_cover_the_hazards_and_the_decision_aid_statement():
+    text = _all_text(cautions_section(["Keep the quench vessel below 25 C."]))
+    for phrase in ("anhydrides", "acid chlorides", "corrosive", "heat", "strong base", "gas",
+                   "reaction calorimetry", "validated analytical method", "procedures", "regulations",
+                   "Keep the quench vessel"):
+        assert phrase in text, phrase
+    assert cautions_section().blocks[1].kind == "caution"
+
+
+def test_assumptions_list_fit_warnings_or_say_there_are_none():
+    with_warnings = _all_text(assumptions_section(["pKa2 is not constrained (open profile)."]))
+    assert "pKa2 is not constrained" in with_warnings
+    assert "instantaneous" in with_warnings and "mixing" in with_warnings and "Davies" in with_warnings
+    assert "no warning" in _all_text(assumptions_section())
+    assert len(ASSUMPTION_ITEMS) >= 3 and len(CAUTION_ITEMS) >= 3
