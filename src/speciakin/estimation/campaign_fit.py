@@ -1,0 +1,259 @@
+"""Global least-squares fit of a model to a whole campaign, with profiles.
+
+:func:`fit_campaign` wires :class:`~speciakin.estimation.objective.CampaignObjective`
+into the generic multistart layer (:func:`fit_least_squares`) and the profile
+likelihood (:func:`profile_all`), and translates the result back into the
+model's own parameter names and scales (a fitted pKa shift is also reported
+as the pKa it implies).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+
+from speciakin.estimation.leastsq import fit_least_squares
+from speciakin.estimation.objective import CampaignObjective
+from speciakin.estimation.profile import profile_all
+from speciakin.estimation.results import FitResult, Profile
+
+__all__ = ["CampaignFitResult", "fit_campaign", "MISFIT_RMS"]
+
+#: Per-run RMS of weighted residuals above which a misfit warning is given
+#: (residuals should scatter with unit standard deviation; common practice).
+MISFIT_RMS = 3.0
+
+
+def _rename(text: str, mapping: dict[str, str]) -> str:
+    for key in sorted(mapping, key=len, reverse=True):
+        text = text.replace(key, mapping[key])
+    return text
+
+
+@dataclass
+class CampaignFitResult:
+    """Result of :func:`fit_campaign`.
+
+    Attributes
+    ----------
+    fit
+        The generic :class:`FitResult` (parameter keys are identifiers).
+    names
+        Display name of each fitted parameter, in fit order.
+    keys
+        The identifiers used inside ``fit``.
+    bases
+        Model-file value of each parameter (for shifts: the written pKa).
+    shifts
+        True where the parameter is a shift of ``bases``.
+    profiles
+        Profile likelihood per parameter key (empty when not computed).
+    objective
+        Description of the objective (error model, counts, conversion).
+    warnings
+        Plain-words warnings with display names.
+    elapsed
+        Wall time of the fit and of the profiles [s].
+    model_source, campaign_source
+        Paths of the inputs.
+    """
+
+    fit: FitResult
+    names: list[str]
+    keys: list[str]
+    bases: list[float]
+    shifts: list[bool]
+    units: list[str]
+    profiles: dict[str, Profile] = field(default_factory=dict)
+    objective: dict[str, Any] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    elapsed: dict[str, float] = field(default_factory=dict)
+    model_source: str = ""
+    campaign_source: str = ""
+
+    @property
+    def theta(self) -> np.ndarray:
+        """Best-fit vector on the fitted scale, in fit order."""
+        values = self.fit.values
+        return np.array([values[k] for k in self.keys], float)
+
+    @property
+    def covariance(self) -> np.ndarray:
+        """Covariance of the varying parameters in fit order."""
+        order = [self.fit.varying_names.index(k) for k in self.keys]
+        return self.fit.covariance[np.ix_(order, order)]
+
+    def rows(self) -> list[dict[str, Any]]:
+        """One dict per parameter: name, unit, value, standard error, both 95 % intervals
+        (profile ends None when open), and the implied absolute value for shifts."""
+        out = []
+        for name, key, base, shift, unit in zip(self.names, self.keys, self.bases, self.shifts, self.units):
+            p = self.fit.parameter(key)
+            row = {
+                "name": name, "unit": unit, "value": p.value, "standard_error": p.standard_error,
+                "covariance_interval": list(p.covariance_interval) if p.covariance_interval else None,
+                "profile_interval": [p.profile_lower, p.profile_upper],
+                "profile_open_below": p.profile_open_below, "profile_open_above": p.profile_open_above,
+                "fixed": not p.vary, "at_bound": p.at_bound, "initial_value": p.initial_value,
+                "bounds": [None if math.isinf(p.lower_bound) else p.lower_bound,
+                           None if math.isinf(p.upper_bound) else p.upper_bound],
+                "shift_of": base if shift else None,
+                "implied_value": base + p.value if shift else p.value,
+            }
+            out.append(row)
+        return out
+
+    def report(self) -> str:
+        """Readable report with stable headings."""
+        lines = ["Campaign fit", "============", ""]
+        lines.append(f"model: {self.model_source}")
+        lines.append(f"campaign: {self.campaign_source}")
+        f = self.fit
+        lines += ["", "Fit statistics", "--------------",
+                  f"observations: {f.n_residuals}   fitted parameters: {f.n_varying}   "
+                  f"degrees of freedom: {f.degrees_of_freedom}",
+                  f"chi-square: {f.chisqr:.6g}   reduced chi-square: {f.reduced_chisqr:.4g}",
+                  f"AIC: {f.aic:.6g}   BIC: {f.bic:.6g}   converged: {'yes' if f.success else 'NO'}", "",
+                  "Parameters", "----------",
+                  f"{'parameter':<28} {'value':>10} {'std err':>10} {'95% (covariance)':>24} {'95% (profile)':>24}"]
+
+        def fmt(v):
+            return "open" if v is None else f"{v:.4g}"
+
+        for r in self.rows():
+            ci = r["covariance_interval"]
+            ci_text = f"[{ci[0]:.4g}, {ci[1]:.4g}]" if ci else "-"
+            pl, pu = r["profile_interval"]
+            if self.profiles:
+                pi_text = f"[{fmt(pl)}, {fmt(pu)}]"
+            else:
+                pi_text = "not computed"
+            se = "-" if r["standard_error"] is None else f"{r['standard_error']:.3g}"
+            lines.append(f"{r['name']:<28} {r['value']:>10.4g} {se:>10} {ci_text:>24} {pi_text:>24}")
+            if r["shift_of"] is not None:
+                lines.append(f"{'':<28} (pKa = {r['implied_value']:.3f}; file value {r['shift_of']:.3f})")
+        lines += ["", "Residuals by run and observable", "-------------------------------"]
+        for label, stats in f.group_residual_sd.items():
+            lines.append(f"{label:<40} rms {stats['rms']:.3g}  (n = {int(stats['count'])})")
+        lines += ["", "Warnings", "--------"]
+        lines += [f"- {w}" for w in self.warnings] or ["(none)"]
+        return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (the ``fit.json`` schema, see docs/estimation.md)."""
+        f = self.fit
+        order = [f.varying_names.index(k) for k in self.keys]
+        return {
+            "schema": "speciakin.fit/1",
+            "model": self.model_source, "campaign": self.campaign_source,
+            "parameters": self.rows(),
+            "statistics": {"chi_square": f.chisqr, "reduced_chi_square": f.reduced_chisqr, "aic": f.aic,
+                           "bic": f.bic, "n_observations": f.n_residuals, "n_parameters": f.n_varying,
+                           "degrees_of_freedom": f.degrees_of_freedom,
+                           "residual_standard_deviation": f.residual_standard_deviation,
+                           "converged": f.success, "message": f.message,
+                           "jacobian": f.jacobian_method, "condition_number": f.condition_number},
+            "correlation": {"names": self.names,
+                            "matrix": f.correlation[np.ix_(order, order)].tolist()},
+            "covariance": {"names": self.names, "matrix": self.covariance.tolist()},
+            "residuals_by_group": f.group_residual_sd,
+            "starts": [s.to_dict() for s in f.starts],
+            "warnings": list(self.warnings),
+            "objective": self.objective,
+            "elapsed_s": self.elapsed,
+            "fit_result": f.to_dict(),
+            "profiles": {self.names[self.keys.index(k)]: p.to_dict() for k, p in self.profiles.items()},
+            "keys": self.keys, "bases": self.bases, "shifts": self.shifts, "units": self.units,
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "CampaignFitResult":
+        fit = FitResult.from_dict(data["fit_result"])
+        names = [p["name"] for p in data["parameters"]]
+        profiles = {data["keys"][names.index(n)]: Profile.from_dict(p) for n, p in data.get("profiles", {}).items()}
+        return cls(fit=fit, names=names, keys=list(data["keys"]), bases=list(data["bases"]),
+                   shifts=list(data["shifts"]), units=list(data["units"]), profiles=profiles,
+                   objective=dict(data.get("objective", {})), warnings=list(data.get("warnings", [])),
+                   elapsed=dict(data.get("elapsed_s", {})), model_source=data.get("model", ""),
+                   campaign_source=data.get("campaign", ""))
+
+    def to_json(self) -> str:
+        return json.dumps(self.to_dict(), indent=1, allow_nan=False, default=_json_default)
+
+
+def _json_default(value):
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(type(value))
+
+
+def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = None, seed: int | None = None,
+                 profiles: bool = True, profile_points: int = 12,
+                 progress: Callable[[str, int, int], None] | None = None) -> CampaignFitResult:
+    """Fit every run of a campaign at once.
+
+    Parameters
+    ----------
+    objective
+        Model + campaign objective.
+    starts
+        Number of starting points (model-file values + a Latin hypercube over
+        the bounds); default: the model file's ``[fit] starts`` or 6.
+    seed
+        Seed of the Latin hypercube (default: ``[fit] seed`` or 0).
+    profiles
+        Also compute the profile likelihood of every fitted parameter.
+    profile_points
+        Points per side of each profile.
+    progress
+        ``progress(stage, done, total)`` with stage ``"starts"`` or ``"profiles"``.
+
+    Returns
+    -------
+    CampaignFitResult
+    """
+    settings = dict(objective.model.extra.get("fit", {}) or {})
+    n_starts = starts if starts is not None else int(settings.get("starts", 6))
+    seed = seed if seed is not None else int(settings.get("seed", 0))
+    t0 = time.perf_counter()
+
+    def on_start(done, total, best):
+        if progress is not None:
+            progress("starts", done, total)
+
+    fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=objective.jacobian,
+                            starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups))
+    t_fit = time.perf_counter() - t0
+    mapping = dict(zip(objective.keys, objective.names))
+    warnings = [_rename(w, mapping) for w in fit.warnings]
+    for label, stats in fit.group_residual_sd.items():
+        if stats["count"] >= 3 and stats["rms"] > MISFIT_RMS:
+            warnings.append(f"{label}: residuals are {stats['rms']:.1f} times the stated measurement error; "
+                            "the model (or the error model) does not describe these data well")
+    prof: dict[str, Profile] = {}
+    t1 = time.perf_counter()
+    if profiles and fit.success:
+        def on_profile(done, total, lowest):
+            if progress is not None:
+                progress("profiles", done, total)
+
+        prof = profile_all(objective.residuals, fit, progress=on_profile, points=profile_points,
+                           jacobian=objective.jacobian)
+        fit = fit.with_profiles(prof)
+        warnings += [_rename(w, mapping) for p in prof.values() for w in p.warnings
+                     if _rename(w, mapping) not in warnings]
+    t_prof = time.perf_counter() - t1
+    params = objective.parameters
+    return CampaignFitResult(
+        fit=fit, names=[p.name for p in params], keys=[p.key for p in params],
+        bases=[p.base for p in params], shifts=[p.shift for p in params], units=[p.unit for p in params],
+        profiles=prof, objective=objective.describe(), warnings=warnings,
+        elapsed={"fit": t_fit, "profiles": t_prof},
+        model_source=objective.model.source, campaign_source=objective.campaign.source)
