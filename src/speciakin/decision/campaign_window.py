@@ -1,0 +1,109 @@
+"""The pH window of a planned process under the uncertainty of a campaign fit.
+
+Connects the decision layer's pure functions to the compiled simulator: for
+each parameter draw (posterior samples, or multivariate-normal draws from the
+least-squares covariance) the planned process is simulated at every pH
+set point (and second-factor value) in one batched, multi-core call, and the
+end-of-process outcomes are scored against the specifications.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Callable
+
+import numpy as np
+
+from speciakin.decision.design import process_scan_arguments
+from speciakin.decision.draws import draws_from_covariance
+from speciakin.decision.outcomes import process_outcome_names, process_outcomes
+from speciakin.decision.runs import process_runs
+from speciakin.decision.window import compute_window
+from speciakin.simulation.api import simulate_batch
+from speciakin.simulation.compile import compile_runs
+
+__all__ = ["process_outcome_function", "window_for_campaign", "window_draws", "POSTERIOR", "COVARIANCE"]
+
+POSTERIOR = "posterior"
+COVARIANCE = "least-squares covariance (multivariate normal)"
+
+
+def process_outcome_function(objective, process) -> Callable:
+    """``outcome_fn(draws, ph_grid, factor=None) -> (n_draws, n_ph, n_outcomes)``.
+
+    ``draws`` are fitted-parameter vectors of ``objective`` (run nuisance
+    parameters, if any, do not apply to a planned process: pH offset 0,
+    amount factor 1).  A failed simulation gives NaN outcomes (counted as
+    failing by the window).
+    """
+    model = objective.model
+    compiled = objective.compiled
+    n_mol = compiled.n_molecules
+    names = compiled.species_names[:n_mol]
+
+    def outcome_fn(draws, ph_grid, factor=None):
+        draws = np.atleast_2d(np.asarray(draws, float))
+        runs = process_runs(process, model, list(np.asarray(ph_grid, float)), factor)
+        cruns = compile_runs(compiled, runs, [np.array([0.0, float(r.end_time)]) for r in runs])
+        q, _, _ = objective.kernel_inputs(draws)
+        shape = (draws.shape[0], len(runs))
+        res = simulate_batch(compiled, cruns, q, np.zeros(shape), np.ones(shape), objective.rtol,
+                             objective.atol, objective.parallel)
+        final = res.outputs[:, :, 1, :n_mol].copy()
+        final[res.status != 0] = np.nan
+        amounts = {name: final[:, :, i] for i, name in enumerate(names)}
+        return process_outcomes(amounts, model, process)[1]
+
+    return outcome_fn
+
+
+def window_draws(fit=None, posterior=None, n: int = 500, seed: int | None = None):
+    """Parameter draws for the window and the name of their source.
+
+    The posterior is used when one exists; otherwise draws come from the
+    least-squares covariance (multivariate normal, redrawn inside the bounds).
+
+    Returns
+    -------
+    (draws (n, p), source text, notes list)
+    """
+    notes: list[str] = []
+    if posterior is not None:
+        return np.asarray(posterior.draws(n, seed), float), POSTERIOR, notes
+    if fit is None:
+        raise ValueError("a fit or a posterior is needed for the window")
+    bounds = []
+    for key in fit.keys:
+        p = fit.fit.parameter(key)
+        bounds.append((None if math.isinf(p.lower_bound) else p.lower_bound,
+                       None if math.isinf(p.upper_bound) else p.upper_bound))
+    cov = fit.covariance
+    d = draws_from_covariance(fit.theta, cov, n, seed, bounds=bounds)
+    if d.n_clipped:
+        notes.append(f"{d.n_clipped} covariance draws were clipped to the parameter bounds")
+    return d.draws, COVARIANCE, notes
+
+
+def window_for_campaign(objective, process, draws, source: str, progress=None):
+    """Probability that the planned process meets every specification, against pH.
+
+    Parameters
+    ----------
+    objective
+        :class:`speciakin.estimation.objective.CampaignObjective` (model and
+        the fitted-parameter layout).
+    process
+        Validated process plan (:func:`speciakin.decision.load_process`).
+    draws
+        (n_draws, p) fitted-parameter vectors.
+    source
+        Where the draws came from (:data:`POSTERIOR` or :data:`COVARIANCE`).
+
+    Returns
+    -------
+    WindowResult
+    """
+    names = process_outcome_names(objective.model, process)
+    return compute_window(process_outcome_function(objective, process), np.asarray(draws, float),
+                          outcome_names=names, uncertainty_source=source, progress=progress,
+                          **process_scan_arguments(process))

@@ -1,0 +1,392 @@
+"""Prior distributions for Bayesian sampling: one registry of families.
+
+Each family in :data:`PRIOR_FAMILIES` declares its parameter names, how they
+are validated, its vectorised log-density, how to draw from it and how to
+describe it in a report.  The model file stores a prior as
+``speciakin.chemistry.model.Prior(family, parameters)``; :func:`build_prior`
+turns that into a :class:`PriorDistribution` that the sampler uses.
+
+Defaults used by the project (documented in docs/sampling.md):
+
+* pKa shift: ``normal(mean=0, sd=0.5)`` unless the chemist states the sd;
+* log10 of a rate constant: ``uniform(lower, upper)`` within its bounds;
+* error scales: weakly informative ``halfnormal(scale=...)``.
+
+References
+----------
+Gelman, A. et al., Bayesian Data Analysis, 3rd ed., CRC Press 2013,
+appendix A (densities of the normal, lognormal, uniform and Student-t
+distributions).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable, Mapping
+
+import numpy as np
+from scipy import special
+
+from speciakin.chemistry.model import Prior
+from speciakin.errors import InputError, Location, Problem
+
+__all__ = [
+    "PriorFamily",
+    "PriorDistribution",
+    "PRIOR_FAMILIES",
+    "register_prior_family",
+    "build_prior",
+    "default_pka_shift_prior",
+    "default_log10_rate_prior",
+    "default_error_scale_prior",
+    "joint_log_prior",
+]
+
+_LOG_2PI = math.log(2.0 * math.pi)
+
+
+# --------------------------------------------------------------------------
+# pure array functions: log-densities [log of 1/unit of x]
+# --------------------------------------------------------------------------
+
+def normal_log_density(x, mean, sd):
+    """Log-density of the normal distribution N(mean, sd^2).
+
+    References
+    ----------
+    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
+    """
+    z = (np.asarray(x, dtype=float) - mean) / sd
+    return -0.5 * z * z - math.log(sd) - 0.5 * _LOG_2PI
+
+
+def lognormal_log_density(x, log_mean, log_sd):
+    """Log-density of the lognormal: log(x) ~ N(log_mean, log_sd^2); -inf for x <= 0.
+
+    References
+    ----------
+    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
+    """
+    x = np.asarray(x, dtype=float)
+    out = np.full(x.shape, -np.inf)
+    pos = x > 0
+    lx = np.log(x[pos])
+    z = (lx - log_mean) / log_sd
+    out[pos] = -0.5 * z * z - math.log(log_sd) - 0.5 * _LOG_2PI - lx
+    return out
+
+
+def uniform_log_density(x, lower, upper):
+    """Log-density of the uniform distribution on [lower, upper]; -inf outside."""
+    x = np.asarray(x, dtype=float)
+    inside = (x >= lower) & (x <= upper)
+    return np.where(inside, -math.log(upper - lower), -np.inf)
+
+
+def halfnormal_log_density(x, scale):
+    """Log-density of the half-normal |N(0, scale^2)| on x >= 0; -inf below 0.
+
+    References
+    ----------
+    Gelman, A., "Prior distributions for variance parameters in hierarchical
+    models", Bayesian Analysis 2006, 1, 515 (weakly informative scale priors).
+    """
+    x = np.asarray(x, dtype=float)
+    z = x / scale
+    value = -0.5 * z * z - math.log(scale) + 0.5 * math.log(2.0 / math.pi)
+    return np.where(x >= 0, value, -np.inf)
+
+
+def student_t_log_density(x, degrees_of_freedom, mean, scale):
+    """Log-density of the location-scale Student-t distribution.
+
+    References
+    ----------
+    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
+    """
+    nu = degrees_of_freedom
+    z = (np.asarray(x, dtype=float) - mean) / scale
+    const = (special.gammaln(0.5 * (nu + 1)) - special.gammaln(0.5 * nu)
+             - 0.5 * math.log(nu * math.pi) - math.log(scale))
+    return const - 0.5 * (nu + 1) * np.log1p(z * z / nu)
+
+
+# --------------------------------------------------------------------------
+# registry
+# --------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class PriorFamily:
+    """One family of prior distributions.
+
+    Attributes
+    ----------
+    name
+        Registry key, as written in the model file.
+    parameter_names
+        Names of the family's parameters, in the order the functions take them.
+    constraints
+        For each parameter, a (test, text) pair: ``test(value)`` is True when
+        the value is allowed; ``text`` says what is allowed.
+    log_density
+        ``log_density(x, *parameters)``, vectorised over ``x``.
+    draw
+        ``draw(rng, size, *parameters)`` -> array of draws.
+    support
+        ``support(*parameters)`` -> (lower, upper), possibly infinite.
+    describe
+        ``describe(*parameters)`` -> text for reports.
+    cross_check
+        Optional ``check(parameters) -> message | None`` for conditions that
+        involve several parameters (e.g. lower < upper).
+    """
+
+    name: str
+    parameter_names: tuple[str, ...]
+    constraints: Mapping[str, tuple[Callable[[float], bool], str]]
+    log_density: Callable
+    draw: Callable
+    support: Callable
+    describe: Callable
+    cross_check: Callable | None = None
+
+
+PRIOR_FAMILIES: dict[str, PriorFamily] = {}
+
+
+def register_prior_family(family: PriorFamily) -> PriorFamily:
+    """Add a family to :data:`PRIOR_FAMILIES` (the one list of families)."""
+    if family.name in PRIOR_FAMILIES:
+        raise ValueError(f"prior family {family.name!r} is already registered")
+    PRIOR_FAMILIES[family.name] = family
+    return family
+
+
+def _any_number(v: float) -> bool:
+    return math.isfinite(v)
+
+
+def _positive(v: float) -> bool:
+    return math.isfinite(v) and v > 0
+
+
+_FINITE = (_any_number, "a finite number")
+_POSITIVE = (_positive, "a finite number > 0")
+
+register_prior_family(PriorFamily(
+    name="normal",
+    parameter_names=("mean", "sd"),
+    constraints={"mean": _FINITE, "sd": _POSITIVE},
+    log_density=normal_log_density,
+    draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
+    support=lambda mean, sd: (-np.inf, np.inf),
+    describe=lambda mean, sd: f"normal(mean={mean:g}, sd={sd:g})",
+))
+
+register_prior_family(PriorFamily(
+    name="lognormal",
+    parameter_names=("log_mean", "log_sd"),
+    constraints={"log_mean": _FINITE, "log_sd": _POSITIVE},
+    log_density=lognormal_log_density,
+    draw=lambda rng, size, log_mean, log_sd: rng.lognormal(log_mean, log_sd, size),
+    support=lambda log_mean, log_sd: (0.0, np.inf),
+    describe=lambda log_mean, log_sd: (
+        f"lognormal(log_mean={log_mean:g}, log_sd={log_sd:g}; median {math.exp(log_mean):.4g})"),
+))
+
+register_prior_family(PriorFamily(
+    name="uniform",
+    parameter_names=("lower", "upper"),
+    constraints={"lower": _FINITE, "upper": _FINITE},
+    log_density=uniform_log_density,
+    draw=lambda rng, size, lower, upper: rng.uniform(lower, upper, size),
+    support=lambda lower, upper: (lower, upper),
+    describe=lambda lower, upper: f"uniform(lower={lower:g}, upper={upper:g})",
+    cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'",
+))
+
+register_prior_family(PriorFamily(
+    name="halfnormal",
+    parameter_names=("scale",),
+    constraints={"scale": _POSITIVE},
+    log_density=halfnormal_log_density,
+    draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
+    support=lambda scale: (0.0, np.inf),
+    describe=lambda scale: f"halfnormal(scale={scale:g})",
+))
+
+register_prior_family(PriorFamily(
+    name="student_t",
+    parameter_names=("degrees_of_freedom", "mean", "scale"),
+    constraints={"degrees_of_freedom": _POSITIVE, "mean": _FINITE, "scale": _POSITIVE},
+    log_density=student_t_log_density,
+    draw=lambda rng, size, nu, mean, scale: mean + scale * rng.standard_t(nu, size),
+    support=lambda nu, mean, scale: (-np.inf, np.inf),
+    describe=lambda nu, mean, scale: (
+        f"student_t(degrees_of_freedom={nu:g}, mean={mean:g}, scale={scale:g})"),
+))
+
+
+# --------------------------------------------------------------------------
+# a validated prior
+# --------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class PriorDistribution:
+    """A validated prior: a registered family with its parameter values.
+
+    Build it with :func:`build_prior`.  All methods are vectorised.
+    """
+
+    family: str
+    parameters: Mapping[str, float] = field(default_factory=dict)
+
+    @property
+    def _family(self) -> PriorFamily:
+        return PRIOR_FAMILIES[self.family]
+
+    @property
+    def _values(self) -> tuple[float, ...]:
+        return tuple(self.parameters[n] for n in self._family.parameter_names)
+
+    def log_density(self, x) -> np.ndarray:
+        """Log prior density at ``x`` (array); -inf outside the support."""
+        return np.asarray(self._family.log_density(x, *self._values), dtype=float)
+
+    def draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        """``size`` independent draws, from a numpy Generator."""
+        return np.asarray(self._family.draw(rng, size, *self._values), dtype=float)
+
+    def support(self) -> tuple[float, float]:
+        """(lower, upper) of the support; may be infinite."""
+        lo, hi = self._family.support(*self._values)
+        return float(lo), float(hi)
+
+    def describe(self) -> str:
+        """Text for reports, e.g. ``normal(mean=0, sd=0.5)``."""
+        return self._family.describe(*self._values)
+
+    def to_dict(self) -> dict:
+        return {"family": self.family, "parameters": dict(self.parameters),
+                "text": self.describe()}
+
+
+def _check(prior: Prior, location: Location) -> PriorDistribution:
+    family_name = str(prior.family).strip().lower()
+    if family_name not in PRIOR_FAMILIES:
+        raise InputError("unknown prior family", location, prior.family,
+                         "one of " + ", ".join(sorted(PRIOR_FAMILIES)))
+    family = PRIOR_FAMILIES[family_name]
+    given = dict(prior.parameters or {})
+    problems: list[Problem] = []
+    allowed = ", ".join(family.parameter_names)
+    for key in given:
+        if key not in family.parameter_names:
+            problems.append(Problem(f"unknown parameter '{key}' of prior family '{family_name}'",
+                                    location, given[key], f"parameters {allowed}"))
+    values: dict[str, float] = {}
+    for key in family.parameter_names:
+        if key not in given:
+            problems.append(Problem(f"prior family '{family_name}' needs parameter '{key}'",
+                                    location, None, f"parameters {allowed}"))
+            continue
+        test, text = family.constraints[key]
+        try:
+            value = float(given[key])
+        except (TypeError, ValueError):
+            problems.append(Problem(f"prior parameter '{key}' is not a number", location,
+                                    given[key], text))
+            continue
+        if not test(value):
+            problems.append(Problem(f"prior parameter '{key}' of '{family_name}' is not allowed",
+                                    location, given[key], text))
+            continue
+        values[key] = value
+    if not problems and family.cross_check is not None:
+        message = family.cross_check(values)
+        if message:
+            problems.append(Problem(f"prior '{family_name}': {message}", location,
+                                    dict(given), None))
+    if problems:
+        raise InputError(problems=problems)
+    return PriorDistribution(family_name, values)
+
+
+def build_prior(prior: Prior | PriorDistribution | None, default: Prior | PriorDistribution | None = None,
+                location: Location | None = None) -> PriorDistribution:
+    """Validate a model-file prior (or use ``default`` when it is None).
+
+    Parameters
+    ----------
+    prior
+        ``Prior(family, parameters)`` from the model file, an already built
+        :class:`PriorDistribution`, or None.
+    default
+        Used when ``prior`` is None (e.g. :func:`default_pka_shift_prior`).
+    location
+        Where the prior came from (model-file key), named in error messages.
+
+    Returns
+    -------
+    PriorDistribution
+
+    Raises
+    ------
+    InputError
+        Unknown family, missing or unknown parameter, or a value not allowed;
+        all problems of one prior are listed in one message.
+    """
+    location = location or Location()
+    chosen = prior if prior is not None else default
+    if chosen is None:
+        raise InputError("no prior given and no default", location, None,
+                         "a prior with a family from " + ", ".join(sorted(PRIOR_FAMILIES)))
+    if isinstance(chosen, PriorDistribution):
+        chosen = Prior(chosen.family, dict(chosen.parameters))
+    return _check(chosen, location)
+
+
+def default_pka_shift_prior(sd: float = 0.5) -> PriorDistribution:
+    """Default prior of a pKa shift [pK units]: normal(0, sd), sd stated by the chemist.
+
+    The 0.5 default is common practice for the shift of an aqueous handbook
+    pKa into a partly organic medium (see docs/sampling.md).
+    """
+    return build_prior(Prior("normal", {"mean": 0.0, "sd": sd}))
+
+
+def default_log10_rate_prior(lower: float, upper: float) -> PriorDistribution:
+    """Default prior of log10 of a rate constant: uniform within its bounds."""
+    return build_prior(Prior("uniform", {"lower": lower, "upper": upper}))
+
+
+def default_error_scale_prior(scale: float) -> PriorDistribution:
+    """Default prior of an error scale (e.g. an area% noise sd): halfnormal(scale).
+
+    Weakly informative in the sense of Gelman, Bayesian Analysis 2006, 1, 515:
+    choose ``scale`` a few times the expected noise level.
+    """
+    return build_prior(Prior("halfnormal", {"scale": scale}))
+
+
+def joint_log_prior(priors, theta) -> np.ndarray:
+    """Sum of independent log-priors for each row of ``theta``.
+
+    Parameters
+    ----------
+    priors
+        Sequence of :class:`PriorDistribution`, one per column.
+    theta
+        Array (n_sets, n_params).
+
+    Returns
+    -------
+    numpy.ndarray
+        (n_sets,) log prior density; -inf outside the support.
+    """
+    theta = np.atleast_2d(np.asarray(theta, dtype=float))
+    total = np.zeros(theta.shape[0])
+    for j, prior in enumerate(priors):
+        total += prior.log_density(theta[:, j])
+    return total
