@@ -1,0 +1,215 @@
+"""Public entry points: simulate one run, or many parameter sets x runs at once."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from speciakin.chemistry.model import Model, Run
+from speciakin.errors import InputError, Location, SolverError
+from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, gaussian_loglik
+from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
+from speciakin.simulation.integrator_kernel import STATUS_TEXT, microstate_amounts
+from speciakin.simulation.cache_guard import refresh_kernel_cache
+from speciakin.simulation.results import SimulationResult
+
+_cache = getattr(batch_serial, "_cache", None)
+if _cache is not None and getattr(_cache, "_cache_path", None):
+    refresh_kernel_cache(_cache._cache_path)
+
+__all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times"]
+
+DEFAULT_OUTPUTS = 201
+
+
+def default_times(run: Run, count: int = DEFAULT_OUTPUTS) -> np.ndarray:
+    """Evenly spaced output times over the run [s]."""
+    return np.linspace(0.0, float(run.end_time), count)
+
+
+def _parameter_vector(compiled: CompiledModel, q) -> np.ndarray:
+    if q is None:
+        return compiled.nominal.copy()
+    q = np.asarray(q, dtype=float).ravel()
+    if q.shape != compiled.nominal.shape:
+        raise InputError("parameter vector has the wrong length", Location(key="q"), q.size,
+                         f"{compiled.nominal.size} values ({', '.join(compiled.quantity_names)})")
+    if not np.all(np.isfinite(q)):
+        bad = [n for n, v in zip(compiled.quantity_names, q) if not math.isfinite(v)]
+        raise InputError("parameter vector has non-finite values", Location(key="q"), bad, "finite numbers")
+    return q
+
+
+def _check_tolerances(rtol: float, atol: float) -> None:
+    if not (math.isfinite(rtol) and 0 < rtol < 1 and math.isfinite(atol) and atol > 0):
+        raise InputError("tolerances must be positive (relative below 1)", Location(key="tolerance"),
+                         (rtol, atol), "0 < rtol < 1, atol > 0")
+
+
+def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | None = None, q=None,
+             microstates: bool = False, rtol: float = 1e-6, atol: float = 1e-10) -> SimulationResult:
+    """Simulate one run.
+
+    Parameters
+    ----------
+    model
+        The reaction model (or one already compiled).
+    run
+        The run: charges, volume, temperature, pH control, dosing.
+    times
+        Output times [s] (default: 201 evenly spaced over the run).
+    q
+        Parameter vector in the order of ``compiled.quantity_names``
+        (default: the model's nominal values).
+    microstates
+        Also return the amount of every protonation microstate.
+    rtol, atol
+        Relative and absolute [mol] tolerances of the integrator.
+
+    Returns
+    -------
+    SimulationResult
+
+    Raises
+    ------
+    ModelFileError
+        The model or run does not validate.
+    SolverError
+        The integrator failed; the message names the run and the time.
+    """
+    compiled = model if isinstance(model, CompiledModel) else compile_model(model)
+    _check_tolerances(rtol, atol)
+    t = default_times(run) if times is None else np.asarray(times, dtype=float)
+    cruns = compile_runs(compiled, [run], [t])
+    qv = _parameter_vector(compiled, q)
+    out = np.full((1, 1, cruns.n_times_max, compiled.n_outputs), np.nan)
+    status = np.zeros((1, 1), np.int64)
+    info = np.zeros((1, 1, 3))
+    batch_serial(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :],
+                 cruns.amount_factor[None, :], float(rtol), float(atol), out, status, info)
+    code = int(status[0, 0])
+    if code != 0:
+        raise SolverError(f"run '{run.name}': integration failed at t = {info[0, 0, 0]:.6g} s "
+                          f"({info[0, 0, 0] / 60:.4g} min): {STATUS_TEXT.get(code, 'unknown failure')} "
+                          f"(status {code})")
+    o = out[0, 0, : len(t)]
+    nsp = compiled.n_species
+    amounts = o[:, :nsp].copy()
+    volume = o[:, nsp].copy()
+    ph = o[:, nsp + 1].copy()
+    temperature = o[:, nsp + 3].copy()
+    micro = None
+    if microstates:
+        micro = np.zeros((len(t), len(compiled.microstate_names)))
+        microstate_amounts(compiled.arrays, qv, ph, temperature, amounts, micro)
+    return SimulationResult(
+        run_name=run.name, times=t.copy(), species_names=list(compiled.species_names),
+        molecule_names=list(compiled.species_names[:compiled.n_molecules]), amounts=amounts,
+        concentrations=amounts / volume[:, None], volume=volume, ph=ph, titrant=o[:, nsp + 2].copy(),
+        initial_titrant=float(info[0, 0, 2]) if run.ph.mode == "held" else None,
+        temperature=temperature, ph_mode=run.ph.mode,
+        microstate_names=list(compiled.microstate_names) if microstates else None,
+        microstate_amounts=micro, moiety_names=list(compiled.moiety_names),
+        moiety_matrix=compiled.moiety_matrix.copy(), steps=int(info[0, 0, 1]))
+
+
+@dataclass
+class BatchResult:
+    """Outputs of many parameter sets x runs.
+
+    Attributes
+    ----------
+    outputs
+        (n_sets, n_runs, n_times_max, n_outputs); columns as ``compiled.output_names``
+        (amounts [mol], volume [L], pH, titrant [mol], temperature [K]); rows past
+        a run's own output count are NaN.
+    status
+        (n_sets, n_runs) int: 0 ok, otherwise a code of ``STATUS_TEXT``.
+    failure_time
+        (n_sets, n_runs) [s], NaN where the run succeeded.
+    steps
+        (n_sets, n_runs) accepted integration steps.
+    initial_titrant
+        (n_sets, n_runs) [mol] titrant to reach the held pH at t = 0 (0 unless held).
+    """
+
+    outputs: np.ndarray
+    status: np.ndarray
+    failure_time: np.ndarray
+    steps: np.ndarray
+    initial_titrant: np.ndarray
+
+
+def _batch_inputs(compiled, cruns, q_sets, ph_offset, amount_factor):
+    q_sets = np.atleast_2d(np.asarray(q_sets, dtype=float))
+    if q_sets.shape[1] != compiled.nominal.size:
+        raise InputError("parameter sets have the wrong width", Location(key="Q"), q_sets.shape,
+                         f"(n_sets, {compiled.nominal.size})")
+    n_sets, n_runs = q_sets.shape[0], len(cruns.names)
+    off = np.broadcast_to(cruns.ph_offset[None, :] if ph_offset is None else np.asarray(ph_offset, float),
+                          (n_sets, n_runs)).copy()
+    fac = np.broadcast_to(cruns.amount_factor[None, :] if amount_factor is None else
+                          np.asarray(amount_factor, float), (n_sets, n_runs)).copy()
+    return np.ascontiguousarray(q_sets), off, fac
+
+
+def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,
+                   amount_factor=None, rtol: float = 1e-6, atol: float = 1e-10,
+                   parallel: bool = True) -> BatchResult:
+    """Simulate every parameter set on every run.
+
+    Parameters
+    ----------
+    q_sets
+        (n_sets, n_q) parameter vectors.
+    ph_offset, amount_factor
+        (n_sets, n_runs) or broadcastable; default: each run's own values.
+    parallel
+        Spread the (set, run) pairs over all cores (numba threads).
+
+    Returns
+    -------
+    BatchResult
+        Failures are reported in ``status``, never raised, so that a sampler can reject.
+    """
+    _check_tolerances(rtol, atol)
+    q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
+    n_sets, n_runs = off.shape
+    out = np.full((n_sets, n_runs, compiled_runs.n_times_max, compiled.n_outputs), np.nan)
+    status = np.zeros((n_sets, n_runs), np.int64)
+    info = np.zeros((n_sets, n_runs, 3))
+    kernel = batch_parallel if parallel else batch_serial
+    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
+    failure = np.where(status != 0, info[..., 0], np.nan)
+    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy())
+
+
+def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, data, sigma,
+                         as_concentration: bool = True, ph_offset=None, amount_factor=None,
+                         rtol: float = 1e-6, atol: float = 1e-10, parallel: bool = True):
+    """Gaussian log-likelihood of each parameter set (-inf where a run failed).
+
+    ``data`` and ``sigma`` have shape (n_runs, n_times_max, n_outputs); NaN in
+    ``data`` = not observed.  With ``as_concentration`` the species columns
+    are compared as concentrations [mol/L], otherwise as amounts [mol].
+
+    Returns
+    -------
+    (loglik (n_sets,), BatchResult)
+    """
+    res = simulate_batch(compiled, compiled_runs, q_sets, ph_offset, amount_factor, rtol, atol, parallel)
+    data = np.asarray(data, float)
+    sigma = np.asarray(sigma, float)
+    expected = res.outputs.shape[1:]
+    if data.shape != expected or sigma.shape != expected:
+        raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
+                         (data.shape, sigma.shape), str(expected))
+    observed = np.isfinite(data)
+    if np.any(~(sigma[observed] > 0)):
+        raise InputError("sigma must be positive where data are observed", Location(key="sigma"))
+    loglik = np.zeros(res.outputs.shape[0])
+    gaussian_loglik(res.outputs, res.status, data, sigma, compiled.n_species, bool(as_concentration), loglik)
+    return loglik, res

@@ -1,0 +1,427 @@
+"""Compiled stiff integrator (Rodas4 Rosenbrock method) and the run driver.
+
+Rodas4: 6 stages, order 4 with an embedded order-3 estimate, L-stable and
+stiffly accurate.  The Jacobian is formed by forward differences each step;
+the time derivative (temperature ramps, logged pH) by a forward difference.
+Steps stop exactly at output times and at every discontinuity (dose start or
+end, instant events, knots of the temperature and pH logs).
+
+Status codes (0 = success) are in :data:`STATUS_TEXT`.
+
+References
+----------
+.. [1] Hairer, E. and Wanner, G., "Solving Ordinary Differential Equations II.
+   Stiff and Differential-Algebraic Problems", 2nd ed., Springer 1996,
+   section IV.7 (Rosenbrock methods; RODAS coefficients, Table 7.3 and the
+   transformed form W = I/(h*gamma) - J, eq. 7.25).
+.. [2] Sandu, A. et al., "Benchmarking stiff ODE solvers for atmospheric
+   chemistry problems II: Rosenbrock solvers", Atmos. Environ. 1997, 31, 3459
+   (step-size controller constants).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from speciakin.simulation.rhs_kernel import (
+    MODE_FREE,
+    analytic_jacobian,
+    MODE_HELD,
+    all_populations,
+    charge_imbalance,
+    interpolate,
+    make_workspace,
+    mean_charges,
+    rhs,
+)
+
+STATUS_OK = 0
+STATUS_MAX_STEPS = 1
+STATUS_STEP_UNDERFLOW = 2
+STATUS_NOT_FINITE = 3
+STATUS_SINGULAR = 4
+STATUS_VOLUME = 5
+
+#: Human-readable meaning of each status code.
+STATUS_TEXT = {
+    STATUS_OK: "ok",
+    STATUS_MAX_STEPS: "maximum number of integration steps exceeded",
+    STATUS_STEP_UNDERFLOW: "step size became too small (the equations are too stiff or discontinuous)",
+    STATUS_NOT_FINITE: "the right-hand side is not finite (charge balance has no root or a value overflowed)",
+    STATUS_SINGULAR: "singular iteration matrix",
+    STATUS_VOLUME: "the volume became zero or negative (withdrawals exceed the liquid present)",
+}
+
+# Rodas4 coefficients in the transformed form (Hairer and Wanner [1]).
+_GAMMA = 0.25
+_ALPHA = np.array([0.0, 0.386, 0.21, 0.63, 1.0, 1.0])
+_GAMMAS = np.array([0.25, -0.1043, 0.1035, -0.3620000000000023e-01, 0.0, 0.0])
+_A = np.array([0.1544e+01, 0.9466785280815826, 0.2557011698983284, 0.3314825187068521e+01,
+               0.2896124015972201e+01, 0.9986419139977817, 0.1221224509226641e+01,
+               0.6019134481288629e+01, 0.1253708332932087e+02, -0.6878860361058950,
+               0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
+               -0.6878860361058950, 1.0])
+_C = np.array([-0.56688e+01, -0.2430093356833875e+01, -0.2063599157091915, -0.1073529058151375,
+               -0.9594562251023355e+01, -0.2047028614809616e+02, 0.7496443313967647e+01,
+               -0.1024680431464352e+02, -0.3399990352819905e+02, 0.1170890893206160e+02,
+               0.8083246795921522e+01, -0.7981132988064893e+01, -0.3152159432874371e+02,
+               0.1631930543123136e+02, -0.6058818238834054e+01])
+_M = np.array([0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
+               -0.6878860361058950, 1.0, 1.0])
+MAX_STEPS = 100000
+
+
+@njit(cache=True)
+def lu_factor(a, piv):
+    """In-place LU with partial pivoting; returns False when singular."""
+    n = a.shape[0]
+    for k in range(n):
+        p = k
+        big = abs(a[k, k])
+        for i in range(k + 1, n):
+            if abs(a[i, k]) > big:
+                big = abs(a[i, k])
+                p = i
+        piv[k] = p
+        if big == 0.0 or not math.isfinite(big):
+            return False
+        if p != k:
+            for j in range(n):
+                tmp = a[k, j]
+                a[k, j] = a[p, j]
+                a[p, j] = tmp
+        inv = 1.0 / a[k, k]
+        for i in range(k + 1, n):
+            a[i, k] *= inv
+            f = a[i, k]
+            if f != 0.0:
+                for j in range(k + 1, n):
+                    a[i, j] -= f * a[k, j]
+    return True
+
+
+@njit(cache=True)
+def lu_solve(a, piv, b):
+    """Solve in place with the factors of :func:`lu_factor`."""
+    n = a.shape[0]
+    for k in range(n):
+        p = piv[k]
+        if p != k:
+            tmp = b[k]
+            b[k] = b[p]
+            b[p] = tmp
+    for i in range(n):
+        s = b[i]
+        for j in range(i):
+            s -= a[i, j] * b[j]
+        b[i] = s
+    for i in range(n - 1, -1, -1):
+        s = b[i]
+        for j in range(i + 1, n):
+            s -= a[i, j] * b[j]
+        b[i] = s / a[i, i]
+
+
+@njit(cache=True)
+def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
+                      nonautonomous, rtol, atol, scale, ws, counters):
+    """Advance ``y`` in place from t0 to exactly t1 with Rodas4 [1]_.
+
+    Returns (status, next step size).  ``counters[0]`` counts accepted steps.
+    """
+    n = y.shape[0]
+    nj = n - 1  # the titrant-consumed state never feeds back
+    f0 = np.empty(n)
+    ft = np.empty(n)
+    fy = np.empty(n)
+    ytmp = np.empty(n)
+    ynew = np.empty(n)
+    k = np.empty((6, n))
+    jac = np.zeros((n, n))
+    g = np.empty((n, n))
+    piv = np.empty(n, dtype=np.int64)
+    t = t0
+    span = t1 - t0
+    analytic = ctx[0] != MODE_FREE and temperature_slope == 0.0
+    if span <= 0.0:
+        return 0, h
+    ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+    if math.isnan(ph):
+        return 3, h
+    if h <= 0.0:
+        d0 = 0.0
+        d1 = 0.0
+        for i in range(n):
+            sc = atol + rtol * abs(y[i])
+            d0 += (y[i] / sc) ** 2
+            d1 += (f0[i] / sc) ** 2
+        d0 = math.sqrt(d0 / n)
+        d1 = math.sqrt(d1 / n)
+        if d0 < 1e-5 or d1 < 1e-5:
+            h = 1e-6 * span
+        else:
+            h = 0.01 * d0 / d1
+        # the error test rejects a start that is too bold at the cost of one step;
+        # a timid start costs a dozen steps of growth
+        h = min(max(h, 1e-3 * span), span)
+    need_eval = False
+    while t < t1:
+        if need_eval:
+            ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+            if math.isnan(ph):
+                return 3, h
+        need_eval = True
+        if analytic:
+            analytic_jacobian(y, model, ws, ctx, jac)
+        # forward-difference Jacobian (free pH, temperature ramps)
+        for j in range(nj if not analytic else 0):
+            yj = y[j]
+            delta = 1.5e-8 * max(abs(yj), scale[j])
+            y[j] = yj + delta
+            ph = rhs(t, y, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+            y[j] = yj
+            if math.isnan(ph):
+                return 3, h
+            for i in range(n):
+                jac[i, j] = (fy[i] - f0[i]) / delta
+        if nonautonomous:
+            dt = 1.5e-8 * max(abs(t), span)
+            ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+            if math.isnan(ph):
+                return 3, h
+            for i in range(n):
+                ft[i] = (ft[i] - f0[i]) / dt
+        while True:
+            last = False
+            wanted = h
+            if t + 1.0000001 * h >= t1:
+                h = t1 - t
+                last = True
+            if h < 1e-13 * max(abs(t), span) or h <= 0.0:
+                return 2, h
+            # G = I/(h*gamma) - J
+            diag = 1.0 / (h * _GAMMA)
+            for i in range(n):
+                for j in range(n):
+                    g[i, j] = -jac[i, j]
+                g[i, i] += diag
+            if not lu_factor(g, piv):
+                return 4, h
+            failed = False
+            for st in range(6):
+                if st == 0:
+                    for i in range(n):
+                        fy[i] = f0[i]
+                else:
+                    for i in range(n):
+                        ytmp[i] = y[i]
+                    base = st * (st - 1) // 2
+                    for j in range(st):
+                        a = _A[base + j]
+                        if a != 0.0:
+                            for i in range(n):
+                                ytmp[i] += a * k[j, i]
+                    ph = rhs(t + _ALPHA[st] * h, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate,
+                             temperature_slope, ws)
+                    if math.isnan(ph):
+                        failed = True
+                        break
+                    for j in range(st):
+                        c = _C[base + j] / h
+                        for i in range(n):
+                            fy[i] += c * k[j, i]
+                if nonautonomous and _GAMMAS[st] != 0.0:
+                    for i in range(n):
+                        fy[i] += h * _GAMMAS[st] * ft[i]
+                lu_solve(g, piv, fy)
+                for i in range(n):
+                    k[st, i] = fy[i]
+            err = 0.0
+            if not failed:
+                for i in range(n):
+                    v = y[i]
+                    for st in range(6):
+                        v += _M[st] * k[st, i]
+                    ynew[i] = v
+                    sc = atol + rtol * max(abs(y[i]), abs(v))
+                    err += (k[5, i] / sc) ** 2
+                err = math.sqrt(err / n)
+                if not math.isfinite(err):
+                    failed = True
+            if failed:
+                h *= 0.1
+                continue
+            fac = 0.9 * err ** (-0.25) if err > 0.0 else 6.0
+            if err <= 1.0:
+                for i in range(n):
+                    y[i] = ynew[i]
+                t = t1 if last else t + h
+                counters[0] += 1
+                if counters[0] > MAX_STEPS:
+                    return 1, h
+                h = h * min(6.0, max(0.2, fac))
+                if last:
+                    # a step cut short to land on t1 says nothing against the larger step
+                    h = max(h, wanted)
+                break
+            h = h * min(1.0, max(0.1, fac))
+    return 0, h
+
+
+@njit(cache=True)
+def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
+    """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
+
+    ``out[i, :]`` = amounts of every species [mol], volume [L], pH, titrant
+    consumed [mol], temperature [K] at output time i (state before instant
+    events at that time).  ``info`` = [failure time [s], accepted steps,
+    initial titrant [mol]].  Returns the status code.
+    """
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    (mode_a, setpoint_a, titrant_a, titrant_conc_a, log_t_a, log_v_a, log_n_a, temp_t_a, temp_v_a,
+     temp_n_a, y0_a, feed_t0_a, feed_t1_a, feed_species_a, feed_amount_a, feed_volume_a, n_feed_a,
+     ev_t_a, ev_kind_a, ev_species_a, ev_amount_a, ev_volume_a, n_ev_a, bp_a, n_bp_a, out_t_a,
+     n_out_a, scale_a) = runs
+    n_sites = site_pka_q.shape[0]
+    n_steps = step_logk_q.shape[0]
+    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q])
+    mode = mode_a[r]
+    titrant = titrant_a[r]
+    titrant_conc = titrant_conc_a[r]
+    temp_n = temp_n_a[r]
+    log_n = log_n_a[r]
+    ctx = (mode, setpoint_a[r], ph_offset, max(titrant, 0), titrant_conc, log_t_a[r], log_v_a[r],
+           max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n)
+    ws = make_workspace(n_species, n_sites, micro_charge.shape[0], n_mol, n_steps)
+    n_state = n_species + 2
+    y = y0_a[r].copy()
+    for j in range(n_species):
+        y[j] *= 1.0 + (amount_factor - 1.0) * substrate_mask[j]
+    scale = scale_a[r]
+    dy = np.empty(n_state)
+    feed_rate = np.zeros(n_species)
+    info[0] = math.nan
+    info[1] = 0.0
+    info[2] = 0.0
+    counters = np.zeros(1, dtype=np.int64)
+    zero_feed = np.zeros(n_species)
+    # held mode: the initial mixture is brought to the held pH with titrant
+    if mode == MODE_HELD:
+        ph0 = rhs(0.0, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
+        if math.isnan(ph0):
+            info[0] = 0.0
+            return 3
+        imbalance = charge_imbalance(y, model, ph0, ws)
+        excess = 10.0 ** (-ph0) - 10.0 ** (ph0 - ws[7][1])
+        delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
+        y[titrant] += delta
+        y[n_species] += delta / titrant_conc
+        info[2] = delta
+        if not (y[titrant] >= 0.0):
+            # more counter-titrant than available is still reported; amounts may be negative
+            pass
+    n_out = n_out_a[r]
+    n_ev = n_ev_a[r]
+    n_bp = n_bp_a[r]
+    n_feed = n_feed_a[r]
+    out_t = out_t_a[r]
+    ev_t = ev_t_a[r]
+    bp = bp_a[r]
+    i_out = 0
+    i_ev = 0
+    i_bp = 0
+    t = 0.0
+    h = 0.0
+    while True:
+        while i_out < n_out and out_t[i_out] <= t:
+            ph = rhs(t, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
+            if math.isnan(ph):
+                info[0] = t
+                return 3
+            for j in range(n_state - 1):
+                out[i_out, j] = y[j]
+            out[i_out, n_state - 1] = ph
+            out[i_out, n_state] = y[n_species + 1]
+            out[i_out, n_state + 1] = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
+            i_out += 1
+        if i_out >= n_out:
+            break
+        while i_ev < n_ev and ev_t[i_ev] <= t:
+            if ev_kind_a[r, i_ev] == 0:
+                y[ev_species_a[r, i_ev]] += ev_amount_a[r, i_ev]
+                y[n_species] += ev_volume_a[r, i_ev]
+            else:
+                frac = ev_volume_a[r, i_ev] / y[n_species]
+                if not (frac < 1.0):
+                    info[0] = t
+                    return 5
+                for j in range(n_species + 1):
+                    y[j] *= 1.0 - frac
+            h = 0.0
+            i_ev += 1
+        while i_bp < n_bp and bp[i_bp] <= t:
+            i_bp += 1
+        t_next = out_t[i_out]
+        if i_bp < n_bp and bp[i_bp] < t_next:
+            t_next = bp[i_bp]
+        tm = 0.5 * (t + t_next)
+        feed_volume_rate = 0.0
+        for j in range(n_species):
+            feed_rate[j] = 0.0
+        for f in range(n_feed):
+            f0 = feed_t0_a[r, f]
+            f1 = feed_t1_a[r, f]
+            if f0 < tm < f1:
+                feed_rate[feed_species_a[r, f]] += feed_amount_a[r, f] / (f1 - f0)
+                feed_volume_rate += feed_volume_a[r, f] / (f1 - f0)
+        temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_next)
+                      - interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)) / (t_next - t)
+        nonauto = temp_slope != 0.0
+        if mode == 1:
+            if interpolate(log_t_a[r], log_v_a[r], log_n, t_next) != interpolate(log_t_a[r], log_v_a[r], log_n, t):
+                nonauto = True
+        status, h = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
+                                      temp_slope, nonauto, rtol, atol, scale, ws, counters)
+        info[1] = counters[0]
+        if status != 0:
+            info[0] = t
+            return status
+        t = t_next
+    info[1] = counters[0]
+    for i in range(n_out):
+        for j in range(out.shape[1]):
+            if not math.isfinite(out[i, j]):
+                info[0] = out_t[i]
+                return 3
+    return 0
+
+
+@njit(cache=True)
+def microstate_amounts(model, q, ph, temperature, amounts, out):
+    """Amount [mol] of every microstate for each row (pH, T, amounts)."""
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    from_rhs = make_workspace(n_species, site_pka_q.shape[0], micro_charge.shape[0], n_mol,
+                              step_logk_q.shape[0])
+    pka = from_rhs[0]
+    pops = from_rhs[2]
+    zbar = from_rhs[3]
+    var = from_rhs[4]
+    for row in range(ph.shape[0]):
+        for i in range(site_pka_q.shape[0]):
+            pka[i] = q[site_pka_q[i]] + q[site_dh_q[i]] * 1000.0 / (8.314462618 * math.log(10.0)) * (
+                1.0 / temperature[row] - 1.0 / t_ref)
+        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, q[inter_q],
+                        mol_inter_start, n_mol, ph[row], pops)
+        mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, var)
+        for m in range(n_mol):
+            for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
+                out[row, s] = amounts[row, m] * pops[s]

@@ -1,0 +1,301 @@
+"""Compiled right-hand side of the speciation-kinetics equations.
+
+State vector ``y`` (length n_species + 2): amounts [mol] of every molecule,
+then every strong ion, then the volume [L], then the titrant consumed [mol].
+Acid-base equilibria are algebraic: at every call the pH is fixed (held),
+read from the log (logged) or solved from the charge balance (free), and
+the microstate populations follow from it.
+
+Rate of step s [mol/(L*s)]: r_s = k_s(T) * prod_reactants factor, with
+factor = c_species * (fraction of its microstates meeting every requirement),
+1 for water, [OH-] = Kw/[H+] for hydroxide; d n/dt = V * sum_s nu * r_s + feeds.
+
+Held pH: the titrant rate q [mol/s] keeps the charge balance
+sum_m n_m zbar_m + sum_ions z n + V([H+] - [OH-]) = 0 true at the held pH;
+its time derivative is linear in q and is solved for q, including the drift of
+zbar and Kw with temperature.
+
+References
+----------
+.. [1] Arrhenius, S., Z. Phys. Chem. 1889, 4, 226; k(T) parameterised at a
+   reference temperature as in Schwaab, M. and Pinto, J. C., Chem. Eng. Sci.
+   2007, 62, 2750 ("Optimum reference temperature for reparameterization of
+   the Arrhenius equation").
+.. [2] Borkovec, M. and Koper, G. J. M., J. Phys. Chem. 1992, 96, 6038.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from speciakin.simulation.speciation_kernel import (
+    GAS_CONSTANT,
+    all_populations,
+    mean_charges,
+    site_pka_at,
+    solve_charge_balance,
+)
+from speciakin.simulation.water_kernel import pkw
+
+MODE_HELD = 0
+MODE_LOGGED = 1
+MODE_FREE = 2
+
+
+@njit(cache=True)
+def interpolate(times, values, n, t):
+    """Piecewise-linear interpolation held constant outside the knots."""
+    if n == 1 or t <= times[0]:
+        return values[0]
+    if t >= times[n - 1]:
+        return values[n - 1]
+    lo = 0
+    hi = n - 1
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if times[mid] <= t:
+            lo = mid
+        else:
+            hi = mid
+    w = (t - times[lo]) / (times[hi] - times[lo])
+    return values[lo] + w * (values[hi] - values[lo])
+
+
+@njit(cache=True)
+def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
+    """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
+    rate, cache, pka2, pops2, zbar2)."""
+    cache = np.empty(8)
+    cache[0] = math.nan  # temperature of the cached T-dependent values
+    cache[1] = math.nan  # pKw at that temperature
+    cache[2] = math.nan  # pH of the cached populations
+    cache[3] = 7.0       # last pH (warm start of the charge balance)
+    return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
+            np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
+            np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)),
+            np.empty(max(n_micro, 1)), np.empty(max(n_mol, 1)))
+
+
+@njit(cache=True)
+def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws):
+    """Evaluate dy/dt at (t, y); returns the pH used (NaN on failure, dy = NaN).
+
+    ``model`` and ``par`` are the tuples built by compile.py; ``ctx`` is the
+    run context (mode, pH value, titrant, logs, temperature profile).
+    """
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2) = ws
+    n_sites = pka_ref.shape[0]
+    n_steps = log10_k.shape[0]
+    volume = y[n_species]
+    if not (volume > 0.0):
+        for i in range(dy.shape[0]):
+            dy[i] = math.nan
+        return math.nan
+    temperature = interpolate(temp_t, temp_v, temp_n, t)
+    if temperature != cache[0]:
+        cache[0] = temperature
+        cache[1] = pkw(temperature)
+        for i in range(n_sites):
+            pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
+        for s in range(n_steps):
+            k_of_t[s] = 10.0 ** log10_k[s] * math.exp(
+                -ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
+        cache[2] = math.nan
+    pkw_value = cache[1]
+    for j in range(n_species):
+        conc[j] = y[j] / volume
+    if mode == MODE_FREE:
+        ph = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
+                                  mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
+                                  micro_charge, micro_protons, pkw_value, cache[3], pops, zbar, variance)
+        if math.isnan(ph):
+            for i in range(dy.shape[0]):
+                dy[i] = math.nan
+            cache[2] = math.nan
+            return math.nan
+        cache[3] = ph
+        cache[2] = ph
+    else:
+        if mode == MODE_HELD:
+            ph = ph_value + ph_offset
+        else:
+            ph = interpolate(log_t, log_v, log_n, t) + ph_offset
+        if ph != cache[2]:
+            all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
+                            mol_inter_start, n_mol, ph, pops)
+            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
+            cache[2] = ph
+    hydrogen = 10.0 ** (-ph)
+    hydroxide = 10.0 ** (ph - pkw_value)
+    # reaction rates [mol/(L*s)]
+    for s in range(n_steps):
+        r = k_of_t[s]
+        for k in range(react_start[s], react_start[s + 1]):
+            kind = react_kind[k]
+            if kind == 0:
+                sp = react_species[k]
+                f = conc[sp]
+                if sp < n_mol and react_mask[k] != 0:
+                    frac = 0.0
+                    m0 = mol_micro_start[sp]
+                    for st in range(mol_micro_start[sp + 1] - m0):
+                        if (st & react_mask[k]) == react_value[k]:
+                            frac += pops[m0 + st]
+                    f *= frac
+                r *= f
+            elif kind == 2:
+                r *= hydroxide
+        rate[s] = r
+    for j in range(n_species):
+        dy[j] = feed_rate[j]
+    for s in range(n_steps):
+        vr = volume * rate[s]
+        for k in range(react_start[s], react_start[s + 1]):
+            if react_kind[k] == 0:
+                dy[react_species[k]] -= react_coef[k] * vr
+        for k in range(prod_start[s], prod_start[s + 1]):
+            dy[prod_species[k]] += prod_coef[k] * vr
+    dy[n_species] = feed_volume_rate
+    dy[n_species + 1] = 0.0
+    if mode == MODE_HELD:
+        excess = hydrogen - hydroxide
+        num = excess * dy[n_species]
+        for m in range(n_mol):
+            num += zbar[m] * dy[m]
+        for j in range(n_mol, n_species):
+            num += species_charge[j] * dy[j]
+        if temperature_slope != 0.0:
+            # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH, by a
+            # central difference in T
+            dtemp = 1e-3
+            tp = temperature + dtemp
+            for i in range(n_sites):
+                pka2[i] = site_pka_at(pka_ref[i], enthalpy[i], tp, t_ref)
+            all_populations(pka2, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
+                            mol_inter_start, n_mol, ph, pops2)
+            mean_charges(pops2, micro_charge, micro_protons, mol_micro_start, n_mol, zbar2, variance)
+            dcharge = -volume * (10.0 ** (ph - pkw(tp)) - hydroxide)
+            for m in range(n_mol):
+                dcharge += y[m] * (zbar2[m] - zbar[m])
+            tm = temperature - dtemp
+            for i in range(n_sites):
+                pka2[i] = site_pka_at(pka_ref[i], enthalpy[i], tm, t_ref)
+            all_populations(pka2, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
+                            mol_inter_start, n_mol, ph, pops2)
+            mean_charges(pops2, micro_charge, micro_protons, mol_micro_start, n_mol, zbar2, variance)
+            dcharge += volume * (10.0 ** (ph - pkw(tm)) - hydroxide)
+            for m in range(n_mol):
+                dcharge -= y[m] * (zbar2[m] - zbar[m])
+            # restore variance of the held-pH populations
+            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
+            num += temperature_slope * dcharge / (2.0 * dtemp)
+        denominator = species_charge[titrant] + excess / titrant_conc
+        q = -num / denominator
+        dy[titrant] += q
+        dy[n_species] += q / titrant_conc
+        dy[n_species + 1] = q
+    return ph
+
+
+@njit(cache=True)
+def charge_imbalance(y, model, ph, ws):
+    """sum n zbar + sum z n_ion + V([H+] - [OH-]) [mol] with ``ws`` populations at ``ph``."""
+    n_mol = model[0]
+    n_species = model[1]
+    species_charge = model[2]
+    zbar = ws[3]
+    cache = ws[7]
+    total = y[n_species] * (10.0 ** (-ph) - 10.0 ** (ph - cache[1]))
+    for m in range(n_mol):
+        total += y[m] * zbar[m]
+    for j in range(n_mol, n_species):
+        total += species_charge[j] * y[j]
+    return total
+
+
+@njit(cache=True)
+def analytic_jacobian(y, model, ws, ctx, jac):
+    """d(dy/dt)/dy for held or logged pH at constant temperature.
+
+    Uses the populations and rates left in ``ws`` by the last :func:`rhs`
+    call at the same (t, y): with the pH fixed, every rate is a product of
+    concentrations times constant fractions, so the derivatives are exact.
+    Column of the titrant-consumed state is zero.
+    """
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2) = ws
+    n = y.shape[0]
+    n_steps = step_logk_q.shape[0]
+    volume = y[n_species]
+    ph = cache[2]
+    hydroxide = 10.0 ** (ph - cache[1])
+    for i in range(n):
+        for j in range(n):
+            jac[i, j] = 0.0
+    for s in range(n_steps):
+        n_conc = 0
+        for k in range(react_start[s], react_start[s + 1]):
+            if react_kind[k] == 0:
+                n_conc += 1
+        # d(dn/dt)/dV = sum nu r (1 - m)
+        dv = rate[s] * (1.0 - n_conc)
+        for k in range(react_start[s], react_start[s + 1]):
+            if react_kind[k] == 0:
+                jac[react_species[k], n_species] -= react_coef[k] * dv
+        for k in range(prod_start[s], prod_start[s + 1]):
+            jac[prod_species[k], n_species] += prod_coef[k] * dv
+        # d r / d n_j: product of the other factors times this factor's slope
+        for kk in range(react_start[s], react_start[s + 1]):
+            if react_kind[kk] != 0:
+                continue
+            j = react_species[kk]
+            d = k_of_t[s]
+            for k in range(react_start[s], react_start[s + 1]):
+                kind = react_kind[k]
+                if kind == 0:
+                    sp = react_species[k]
+                    frac = 1.0
+                    if sp < n_mol and react_mask[k] != 0:
+                        frac = 0.0
+                        m0 = mol_micro_start[sp]
+                        for st in range(mol_micro_start[sp + 1] - m0):
+                            if (st & react_mask[k]) == react_value[k]:
+                                frac += pops[m0 + st]
+                    if k == kk:
+                        d *= frac / volume
+                    else:
+                        d *= conc[sp] * frac
+                elif kind == 2:
+                    d *= hydroxide
+            d *= volume
+            for k in range(react_start[s], react_start[s + 1]):
+                if react_kind[k] == 0:
+                    jac[react_species[k], j] -= react_coef[k] * d
+            for k in range(prod_start[s], prod_start[s + 1]):
+                jac[prod_species[k], j] += prod_coef[k] * d
+    if mode == 0:
+        excess = 10.0 ** (-ph) - hydroxide
+        denominator = species_charge[titrant] + excess / titrant_conc
+        for j in range(n_species + 1):
+            num = 0.0
+            for i in range(n_mol):
+                num += zbar[i] * jac[i, j]
+            for i in range(n_mol, n_species):
+                num += species_charge[i] * jac[i, j]
+            dq = -num / denominator
+            jac[titrant, j] += dq
+            jac[n_species, j] += dq / titrant_conc
+            jac[n_species + 1, j] = dq
