@@ -1,0 +1,23 @@
+"""``speciakin new DIR``: start a campaign folder from the templates."""
+
+from __future__ import annotations
+
+NAME = "new"
+HELP = "create a campaign folder: blank workbook, model and process skeletons, README"
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("folder", metavar="DIR", help="folder to create (must not exist or be empty)")
+    parser.epilog = ("example:\n  speciakin new amine-acylation-2026\n"
+                     "then fill in campaign.xlsx and run: speciakin check amine-acylation-2026")
+
+
+def run(args) -> int:
+    from speciakin.data.templates import new_campaign
+
+    written = new_campaign(args.folder)
+    print(f"created {args.folder}:")
+    for path in written:
+        print(f"  {path.name}")
+    print(f"next: fill in the workbook, then  speciakin check {args.folder}")
+    return 0

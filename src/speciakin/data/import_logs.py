@@ -1,0 +1,100 @@
+"""Additions, probe log and titrant log sheets."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from speciakin.chemistry.model import Dose
+from speciakin.data.campaign import TimeSeries, TitrantLog
+from speciakin.data.columns import SheetColumns, column_numbers, column_texts, group_rows, run_column
+from speciakin.errors import Location, ProblemCollector
+
+__all__ = ["read_additions", "read_probe", "read_titrant"]
+
+
+def read_additions(cols: SheetColumns, c: ProblemCollector, known: dict[str, int]) -> dict[str, tuple[Dose, ...]]:
+    t = cols.table
+    runs = run_column(cols, c, known)
+    species = column_texts(cols, "species")
+    amount = column_numbers(cols, "amount", c, "amount", minimum=0.0, blank_ok=False)
+    start = column_numbers(cols, "start", c, "start time", minimum=0.0, blank_ok=False)
+    end = column_numbers(cols, "end", c, "end time", minimum=0.0)
+    volume = column_numbers(cols, "volume", c, "volume", minimum=0.0)
+    out: dict[str, list[Dose]] = {}
+    for k, row in enumerate(t.row_numbers.tolist()):
+        if runs[k] not in known:
+            continue
+        if not species[k]:
+            c.error("species is missing", t.location(row, cols.index("species")), None,
+                    "a molecule or ion name of the model", code="missing_value")
+            continue
+        if not (np.isfinite(amount[k]) and np.isfinite(start[k])):
+            continue
+        e = end[k] if np.isfinite(end[k]) else start[k]
+        if e < start[k]:
+            c.error("addition ends before it starts", t.location(row, cols.index("end")),
+                    t.rows[k][cols.index("end")], "an end time >= the start time", code="out_of_range")
+            continue
+        out.setdefault(runs[k], []).append(Dose(species[k], float(amount[k]), float(start[k]), float(e),
+                                                float(volume[k]) if np.isfinite(volume[k]) else 0.0))
+    return {k: tuple(v) for k, v in out.items()}
+
+
+def read_probe(cols: SheetColumns, c: ProblemCollector, known: dict[str, int]) -> dict[str, dict]:
+    t = cols.table
+    runs = run_column(cols, c, known)
+    time = column_numbers(cols, "time", c, "time", minimum=0.0, blank_ok=False)
+    ph = column_numbers(cols, "ph", c, "pH", minimum=0.0, maximum=14.0)
+    temp = column_numbers(cols, "temperature", c, "temperature")
+    if np.any(temp <= 0):
+        k = int(np.flatnonzero(temp <= 0)[0])
+        c.error("temperature is below absolute zero", t.location(int(t.row_numbers[k]), cols.index("temperature")),
+                t.rows[k][cols.index("temperature")], "a temperature > 0 K", code="out_of_range")
+    out: dict[str, dict] = {}
+    for run, idx in group_rows(runs).items():
+        if run not in known:
+            continue
+        idx = idx[np.isfinite(time[idx])]
+        entry: dict[str, TimeSeries] = {}
+        for key, arr in (("ph", ph), ("temperature", temp)):
+            sel = idx[np.isfinite(arr[idx])]
+            if sel.size:
+                entry[key] = TimeSeries(time[sel], arr[sel], t.row_numbers[sel])
+        out[run] = entry
+    return out
+
+
+def read_titrant(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
+                  concentration: dict[str, float | None]) -> dict[str, TitrantLog]:
+    t = cols.table
+    if cols.index("volume") is None and cols.index("amount") is None:
+        c.error("required column is missing", Location(file=t.file, sheet=t.sheet, row=1,
+                                                       column="titrant volume [mL] or titrant amount [mmol]"),
+                None, "a cumulative titrant volume or amount column", code="missing_column")
+        return {}
+    runs = run_column(cols, c, known)
+    time = column_numbers(cols, "time", c, "time", minimum=0.0, blank_ok=False)
+    volume = column_numbers(cols, "volume", c, "titrant volume", minimum=0.0)
+    amount = column_numbers(cols, "amount", c, "titrant amount", minimum=0.0)
+    out: dict[str, TitrantLog] = {}
+    for run, idx in group_rows(runs).items():
+        if run not in known:
+            continue
+        idx = idx[np.isfinite(time[idx])]
+        vol = volume[idx]
+        amt = amount[idx].copy()
+        need = ~np.isfinite(amt) & np.isfinite(vol)
+        if need.any():
+            conc = concentration.get(run)
+            if conc is None:
+                k = int(idx[np.flatnonzero(need)[0]])
+                c.error("titrant volume given but the run has no titrant concentration",
+                        t.location(int(t.row_numbers[k]), cols.index("volume")), t.rows[k][cols.index("volume")],
+                        "a titrant concentration in the Runs sheet, or a titrant amount column",
+                        code="missing_value")
+                continue
+            amt[need] = vol[need] * conc
+        keep = np.isfinite(amt)
+        out[run] = TitrantLog(time[idx][keep], amt[keep], t.row_numbers[idx][keep],
+                              vol[keep] if np.isfinite(vol).any() else None)
+    return out

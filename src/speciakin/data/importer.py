@@ -1,0 +1,300 @@
+"""Build a :class:`~speciakin.data.campaign.Campaign` from a workbook or CSV folder.
+
+All problems are gathered in one pass (:class:`speciakin.errors.ProblemCollector`);
+:func:`load_campaign` raises :class:`speciakin.errors.DataError` listing every
+error, and keeps warnings in ``Campaign.problems``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+
+from speciakin import units
+from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, Withdrawal
+from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
+from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
+                                    optional_float)
+from speciakin.data.import_hplc import empty_hplc, read_hplc
+from speciakin.data.import_logs import read_additions, read_probe, read_titrant
+from speciakin.data.reader import RawTable, SourceFile, numeric_column, read_csv_folder, read_workbook
+from speciakin.data.sheets import CHARGE_PREFIX, PH_MODE_WORDS, SHEETS, normalise_name, sheet_by_name
+from speciakin.errors import DataError, Location, ProblemCollector
+
+__all__ = ["load_campaign", "import_campaign", "find_sources"]
+
+
+def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile]]:
+    """Read the campaign's tables from a folder (one .xlsx or a csv/ folder), a
+    workbook file, or a folder of CSV files.
+
+    Raises
+    ------
+    DataError
+        When nothing readable is found or the choice is ambiguous.
+    """
+    p = Path(path)
+    if p.is_file():
+        if p.suffix.lower() == ".xlsx":
+            tables, src = read_workbook(p)
+            return tables, [src]
+        if p.suffix.lower() == ".csv":
+            return read_csv_folder(p.parent)
+        raise DataError("not a campaign workbook", Location(file=str(p)), p.suffix,
+                        "an .xlsx workbook, a campaign folder or a folder of CSV files")
+    if not p.is_dir():
+        raise DataError("campaign not found", Location(file=str(p)), expected="an existing folder or .xlsx file")
+    books = sorted(q for q in p.glob("*.xlsx") if not q.name.startswith(("~$", ".")))
+    if len(books) > 1:
+        raise DataError("the campaign folder holds several workbooks", Location(file=str(p)),
+                        ", ".join(q.name for q in books), "exactly one .xlsx workbook (or a csv/ folder)")
+    if books:
+        tables, src = read_workbook(books[0])
+        return tables, [src]
+    for folder in (p / "csv", p):
+        if folder.is_dir() and any(folder.glob("*.csv")):
+            return read_csv_folder(folder)
+    raise DataError("no campaign workbook or CSV files found", Location(file=str(p)),
+                    expected="one .xlsx workbook, or a csv/ folder with one CSV file per sheet")
+
+
+def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign | None:
+    """Import a campaign, recording every problem in ``collector``.
+
+    Returns None when errors prevent building the campaign; warnings and
+    errors are left in ``collector`` either way.
+    """
+    tables, sources = find_sources(path)
+    c = collector
+    found: dict[str, RawTable] = {}
+    for name, table in tables.items():
+        spec = sheet_by_name(name)
+        if spec is None:
+            continue
+        if spec.key in found:
+            c.error("sheet appears twice", Location(file=table.file, sheet=name), name, "each sheet once",
+                    code="duplicate_sheet")
+            continue
+        found[spec.key] = table
+    any_file = sources[0].path if sources else str(path)
+    for spec in SHEETS.values():
+        if spec.required and spec.key not in found:
+            c.error("required sheet is missing", Location(file=any_file, sheet=spec.title), None,
+                    f"a sheet named '{spec.title}'" + (f" (or {spec.csv_name})" if any_file.endswith(".csv")
+                                                     else ""), code="missing_sheet")
+    if c.has_errors:
+        return None
+
+    matched: dict[str, SheetColumns] = {key: match_columns(found[key], SHEETS[key], c, open_extra=key == "hplc")
+                                    for key in found}
+    runs_cols = matched["runs"]
+    run_rows = _read_runs(runs_cols, c)
+    known = {r["name"]: r["row"] for r in run_rows}
+    compounds = _read_compounds(matched["compounds"], c)
+    hplc_cols = matched["hplc"]
+    hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
+    additions = read_additions(matched["additions"], c, known) if "additions" in found else {}
+    probe = read_probe(matched["probe"], c, known) if "probe" in found else {}
+    conc = {r["name"]: r["titrant_concentration"] for r in run_rows}
+    titrant = read_titrant(matched["titrant"], c, known, conc) if "titrant" in found else {}
+
+    runs: list[CampaignRun] = []
+    for r in run_rows:
+        built = _build_run(r, hplc.get(r["name"]), additions.get(r["name"], ()), probe.get(r["name"], {}),
+                           titrant.get(r["name"]), runs_cols, c)
+        if built is not None:
+            runs.append(built)
+    if c.has_errors:
+        return None
+    sheets_info = {key: {"file": t.file, "sheet": t.sheet,
+                         "columns": {k: matched[key].label(k) for k in matched[key].found}}
+                   for key, t in found.items()}
+    all_kinds = np.concatenate([r.hplc.kind for r in runs]) if runs else np.array([], dtype=object)
+    campaign = Campaign(
+        runs=tuple(runs), compounds=tuple(compounds), provenance=tuple(sources), problems=(),
+        source=str(path), basis=basis_of(all_kinds),
+        layout="long" if hplc_cols.index("compound") is not None else "wide",
+        extra={"sheets": sheets_info},
+    )
+    return campaign
+
+
+def load_campaign(path: str | Path) -> Campaign:
+    """Import a campaign folder, workbook or CSV folder.
+
+    Parameters
+    ----------
+    path
+        A campaign folder (holding one .xlsx workbook or a ``csv/`` folder), a
+        workbook file, or a folder of CSV files (one per sheet).
+
+    Returns
+    -------
+    Campaign
+        Runs, HPLC observations and logs in internal units; warnings in
+        ``problems``.
+
+    Raises
+    ------
+    DataError
+        Listing every error found, each with file, sheet, row and column.
+    """
+    from speciakin.data.validate import campaign_warnings
+
+    c = ProblemCollector()
+    campaign = import_campaign(path, c)
+    c.raise_if_errors(DataError)
+    campaign_warnings(campaign, c)
+    return replace(campaign, problems=tuple(c.warnings))
+
+
+# --------------------------------------------------------------------- sheets
+
+def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
+    t = cols.table
+    names = column_texts(cols, "run")
+    modes = column_texts(cols, "ph_mode")
+    titrants = column_texts(cols, "titrant")
+    notes = column_texts(cols, "note")
+    setpoint = column_numbers(cols, "setpoint", c, "pH setpoint", minimum=0.0, maximum=14.0)
+    tconc = column_numbers(cols, "titrant_concentration", c, "titrant concentration", minimum=0.0)
+    temp = column_numbers(cols, "temperature", c, "temperature")
+    volume = column_numbers(cols, "start_volume", c, "start volume", minimum=0.0, blank_ok=False)
+    duration = column_numbers(cols, "duration", c, "duration", minimum=0.0)
+    sample_volume = column_numbers(cols, "sample_volume", c, "sample volume", minimum=0.0)
+    charges: list[tuple[str, np.ndarray]] = []
+    for i, name, unit_text in cols.extra:
+        n = normalise_name(name)
+        if not n.startswith(CHARGE_PREFIX.strip()):
+            continue
+        species = name.strip()[len(CHARGE_PREFIX):].strip()
+        loc = t.location(1, i)
+        if not species:
+            c.error("charge column does not name a species", loc, t.headers[i], "e.g. 'charge S [mmol]'",
+                    code="invalid_header")
+            continue
+        try:
+            u = units.lookup(unit_text or "", "amount")
+        except KeyError:
+            c.error("unknown unit in header" if unit_text else "header has no unit", loc,
+                    unit_text or t.headers[i], "one of: " + ", ".join(units.DIMENSIONS["amount"]),
+                    code="unknown_unit" if unit_text else "missing_unit")
+            continue
+        charges.append((species, numeric_column(t, i, c, what=f"charge of {species}", factor=u.factor,
+                                                minimum=0.0)))
+    out: list[dict] = []
+    first: dict[str, int] = {}
+    temp_col = cols.index("temperature")
+    for k, row in enumerate(t.row_numbers.tolist()):
+        name = names[k]
+        if not name:
+            c.error("run identifier is missing", t.location(row, cols.index("run")), None, "a name such as R01",
+                    code="missing_value")
+            continue
+        if name in first:
+            c.error(f"run identifier used twice (first in row {first[name]})", t.location(row, cols.index("run")),
+                    name, "a unique identifier", code="duplicate_run")
+            continue
+        first[name] = row
+        mode = PH_MODE_WORDS.get(normalise_name(modes[k])) if cols.index("ph_mode") is not None else None
+        if mode is None and cols.index("ph_mode") is not None:
+            c.error("unknown pH mode", t.location(row, cols.index("ph_mode")), modes[k] or None,
+                    "held, logged or free", code="invalid_choice")
+        if mode == "held" and not np.isfinite(setpoint[k]):
+            idx = cols.index("setpoint")
+            c.error("held-pH run without a setpoint", t.location(row, idx if idx is not None else cols.index("ph_mode")),
+                    None, "a pH setpoint between 0 and 14", code="missing_setpoint")
+        if np.isfinite(temp[k]) and temp[k] <= 0:
+            c.error("temperature is below absolute zero", t.location(row, temp_col), temp[k], "a temperature > 0 K",
+                    code="out_of_range")
+        out.append({
+            "name": name, "row": row, "mode": mode, "setpoint": optional_float(setpoint[k]),
+            "titrant": titrants[k] or None, "titrant_concentration": optional_float(tconc[k]),
+            "temperature": optional_float(temp[k]), "volume": optional_float(volume[k]), "duration": optional_float(duration[k]),
+            "sample_volume": optional_float(sample_volume[k]), "note": notes[k],
+            "charges": {sp: float(v[k]) for sp, v in charges if np.isfinite(v[k])},
+        })
+    return out
+
+
+def _read_compounds(cols: SheetColumns, c: ProblemCollector) -> list[Compound]:
+    t = cols.table
+    names = column_texts(cols, "compound")
+    molecules = column_texts(cols, "molecule")
+    rrf = column_numbers(cols, "rrf", c, "RRF", minimum=0.0)
+    mm = column_numbers(cols, "molar_mass", c, "molar mass", minimum=0.0)
+    loq = column_numbers(cols, "loq", c, "LOQ", minimum=0.0)
+    su = column_numbers(cols, "substrate_units", c, "substrate units", minimum=0.0)
+    out: list[Compound] = []
+    first: dict[str, int] = {}
+    for k, row in enumerate(t.row_numbers.tolist()):
+        if not names[k]:
+            c.error("compound name is missing", t.location(row, cols.index("compound")), None, "a compound name",
+                    code="missing_value")
+            continue
+        if names[k] in first:
+            c.error(f"compound listed twice (first in row {first[names[k]]})", t.location(row, cols.index("compound")),
+                    names[k], "each compound once", code="duplicate_compound")
+            continue
+        first[names[k]] = row
+        if not molecules[k] and cols.index("molecule") is not None:
+            c.error("compound is not mapped to a model molecule", t.location(row, cols.index("molecule")), None,
+                    "the name of a molecule of the model file", code="unmapped_compound")
+        if rrf[k] == 0:
+            c.error("RRF must be positive", t.location(row, cols.index("rrf")), 0, "a number > 0", code="out_of_range")
+        out.append(Compound(names[k], molecules[k], float(rrf[k]) if rrf[k] > 0 else 1.0,
+                            optional_float(mm[k]), optional_float(loq[k]), optional_float(su[k]), row))
+    return out
+
+
+def _build_run(r: dict, hplc: HplcData | None, doses: tuple[Dose, ...], probe: dict,
+               titrant: TitrantLog | None, cols: SheetColumns, c: ProblemCollector) -> CampaignRun | None:
+    t = cols.table
+    row = r["row"]
+    hplc = hplc if hplc is not None else empty_hplc()
+    ph_log = probe.get("ph")
+    temp_log = probe.get("temperature")
+    mode = r["mode"]
+    if mode is None:
+        return None
+    if mode == "held":
+        control = PhControl("held", r["setpoint"], r["titrant"], r["titrant_concentration"])
+    elif mode == "logged":
+        if ph_log is None:
+            c.error("logged-pH run has no pH readings in the Probe log", t.location(row, cols.index("ph_mode")),
+                    "logged", "pH readings for this run in the 'Probe log' sheet", code="missing_ph_log")
+            return None
+        order = np.argsort(ph_log.time, kind="stable")
+        control = PhControl("logged", r["setpoint"], log_times=tuple(ph_log.time[order].tolist()),
+                            log_ph=tuple(ph_log.value[order].tolist()))
+    else:
+        control = PhControl("free", r["setpoint"])
+    if temp_log is not None:
+        order = np.argsort(temp_log.time, kind="stable")
+        temperature = TemperatureProfile(tuple(temp_log.time[order].tolist()),
+                                         tuple(temp_log.value[order].tolist()))
+    elif r["temperature"] is not None:
+        temperature = TemperatureProfile((0.0,), (r["temperature"],))
+    else:
+        idx = cols.index("temperature")
+        c.error("run has no temperature", t.location(row, idx) if idx is not None else t.location(row),
+                None, "a temperature in the Runs sheet or temperature readings in the Probe log",
+                code="missing_value")
+        return None
+    if r["volume"] is None:
+        return None
+    if r["duration"] is not None:
+        end = r["duration"]
+    else:
+        candidates = [hplc.time.max()] if len(hplc) else []
+        candidates += [x.time.max() for x in (ph_log, temp_log) if x is not None and len(x)]
+        candidates += [titrant.time.max()] if titrant is not None and titrant.time.size else []
+        end = float(max(candidates)) if candidates else 0.0
+    withdrawals: tuple[Withdrawal, ...] = ()
+    if r["sample_volume"]:
+        withdrawals = tuple(Withdrawal(float(x), r["sample_volume"]) for x in hplc.sample_times)
+    recipe = Run(name=r["name"], charges=dict(r["charges"]), volume=r["volume"], temperature=temperature,
+                 ph=control, end_time=float(end), doses=tuple(doses), withdrawals=withdrawals, note=r["note"])
+    return CampaignRun(recipe, hplc, titrant, ph_log, temp_log, row)

@@ -1,0 +1,370 @@
+"""Checks of an imported campaign: plausibility warnings and model consistency.
+
+Thresholds (documented in docs/data.md; all "common practice" for HPLC
+time-course work, not taken from a standard):
+
+=================================  ============================================
+area% sum of one sample            100 +- :data:`AREA_PERCENT_TOLERANCE` (3)
+mass balance drift                 > :data:`MASS_BALANCE_TOLERANCE` (5 %) of
+                                   the first sample
+gap in the pH log                  longer than :data:`GAP_FACTOR` (10) times
+                                   the median interval and :data:`GAP_MINIMUM`
+                                   (300 s)
+logged pH vs setpoint              > :data:`SETPOINT_TOLERANCE` (0.5 pH units)
+=================================  ============================================
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from speciakin.data.campaign import Campaign, CampaignRun, TimeSeries
+from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector
+
+__all__ = [
+    "AREA_PERCENT_TOLERANCE", "MASS_BALANCE_TOLERANCE", "GAP_FACTOR", "GAP_MINIMUM",
+    "SETPOINT_TOLERANCE", "CheckReport", "campaign_warnings", "model_problems", "check_campaign",
+    "mass_balance",
+]
+
+AREA_PERCENT_TOLERANCE = 3.0   # [area%] common practice
+MASS_BALANCE_TOLERANCE = 0.05  # [-] relative drift, common practice
+GAP_FACTOR = 10.0              # [-] gap / median interval
+GAP_MINIMUM = 300.0            # [s]
+SETPOINT_TOLERANCE = 0.5       # [pH units] common practice for a pH-stat
+
+
+def _loc(campaign: Campaign, sheet: str, row: int | None, column: str | None) -> Location:
+    info = campaign.extra.get("sheets", {}).get(sheet, {})
+    label = info.get("columns", {}).get(column, column) if column else None
+    return Location(file=info.get("file"), sheet=info.get("sheet"), row=row, column=label)
+
+
+def _first_decrease(time: np.ndarray) -> tuple[int, int]:
+    """Index of the first value below the running maximum, and how many there are."""
+    if time.size < 2:
+        return -1, 0
+    running = np.maximum.accumulate(time)
+    bad = np.flatnonzero(time[1:] < running[:-1]) + 1
+    return (int(bad[0]), int(bad.size)) if bad.size else (-1, 0)
+
+
+def _log_order(campaign: Campaign, run: CampaignRun, log: TimeSeries | None, sheet: str, what: str,
+               c: ProblemCollector) -> None:
+    if log is None:
+        return
+    k, n = _first_decrease(log.time)
+    if k >= 0:
+        more = f" ({n} readings in all)" if n > 1 else ""
+        c.warning(f"{what} times of run {run.name} are not increasing{more}",
+                  _loc(campaign, sheet, int(log.rows[k]), "time"), log.time[k] / 60.0,
+                  "times in increasing order [min]", code="time_order")
+
+
+def mass_balance(run: CampaignRun, units_per_molecule: dict[str, float]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Relative mass balance of each HPLC sample of a run.
+
+    Sum over compounds of (substrate units x amount), amount = concentration
+    [mol/L] or peak area / RRF, divided by the same sum at the first sample.
+    Censored values count as 0.  Area% samples are normalised by
+    construction and are skipped.
+
+    Parameters
+    ----------
+    run
+        The imported run.
+    units_per_molecule
+        Substrate cores per model molecule [-].
+
+    Returns
+    -------
+    times, ratios, first_rows
+        Sample times [s], balance relative to the first sample [-], and the
+        spreadsheet row of the first value of each sample.
+
+    References
+    ----------
+    Mass balance as a check of HPLC assay completeness: ICH Q1A(R2) (2003),
+    section 2.2.7 ("mass balance" in stress testing).
+    """
+    h = run.hplc
+    use = (h.kind != "area_percent") & np.array([m in units_per_molecule for m in h.molecule], bool)
+    if not use.any():
+        return np.array([]), np.array([]), np.array([], np.int64)
+    times = np.unique(h.time[use])
+    totals = np.zeros(times.size)
+    rows = np.zeros(times.size, np.int64)
+    for j, t in enumerate(times):
+        idx = np.flatnonzero(use & (h.time == t))
+        v = np.where(h.censored[idx], 0.0, h.value[idx])
+        scale = np.where(h.kind[idx] == "area", h.rrf[idx], 1.0)
+        u = np.array([units_per_molecule[m] for m in h.molecule[idx]])
+        totals[j] = np.sum(u * v / scale)
+        rows[j] = int(h.rows[idx].min())
+    if totals[0] <= 0:
+        return times, np.full(times.size, np.nan), rows
+    return times, totals / totals[0], rows
+
+
+def _substrate_units_from_compounds(campaign: Campaign) -> dict[str, float]:
+    return {c.molecule: c.substrate_units for c in campaign.compounds if c.substrate_units is not None}
+
+
+def campaign_warnings(campaign: Campaign, c: ProblemCollector,
+                      units_per_molecule: dict[str, float] | None = None) -> None:
+    """Add plausibility warnings of ``campaign`` to ``c`` (see module table)."""
+    if units_per_molecule is None:
+        units_per_molecule = _substrate_units_from_compounds(campaign)
+    area_used = set()
+    if not campaign.runs:
+        c.warning("the campaign has no runs yet", _loc(campaign, "runs", None, None), None,
+                  "at least one row in the Runs sheet", code="no_runs")
+    for run in campaign.runs:
+        h = run.hplc
+        area_used |= {str(x) for x, k in zip(h.compound, h.kind) if k != "concentration"}
+        if len(h) == 0:
+            c.warning(f"run {run.name} has no HPLC results", _loc(campaign, "runs", run.row, "run"),
+                      run.name, "HPLC results for the run", code="no_results")
+        k, n = _first_decrease(h.time)
+        if k >= 0:
+            more = f" ({n} values in all)" if n > 1 else ""
+            c.warning(f"HPLC sampling times of run {run.name} are not increasing{more}",
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / 60.0,
+                      "times in increasing order [min]", code="time_order")
+        seen: dict[tuple[float, str], int] = {}
+        repeats: list[tuple[float, str, int, int]] = []
+        for t, comp, row in zip(h.time.tolist(), h.compound.tolist(), h.rows.tolist()):
+            if (t, comp) in seen:
+                repeats.append((t, comp, row, seen[(t, comp)]))
+            else:
+                seen[(t, comp)] = row
+        if repeats:
+            t, comp, row, first = repeats[0]
+            more = f"; {len(repeats)} repeated values in all" if len(repeats) > 1 else ""
+            c.warning(f"duplicate sample time for {comp} in run {run.name} (also row {first}){more}",
+                      _loc(campaign, "hplc", row, "time"), t / 60.0, "one value per compound and time [min]",
+                      code="duplicate_time")
+        late = np.flatnonzero(h.time > run.recipe.end_time)
+        if late.size:
+            k = int(late[0])
+            c.warning(f"sample taken after the run ends ({run.recipe.end_time / 60.0:g} min)"
+                      + (f"; {late.size} values in all" if late.size > 1 else ""),
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / 60.0,
+                      "a time within the run's duration [min]", code="after_end")
+        ap = h.kind == "area_percent"
+        for t in np.unique(h.time[ap]):
+            idx = np.flatnonzero(ap & (h.time == t))
+            total = float(np.sum(np.where(h.censored[idx], 0.0, h.value[idx])))
+            if abs(total - 100.0) > AREA_PERCENT_TOLERANCE:
+                c.warning(f"area% of run {run.name} at {t / 60.0:g} min sum to {total:.4g}",
+                          _loc(campaign, "hplc", int(h.rows[idx].min()),
+                               "value" if campaign.layout == "long" else "time"),
+                          round(total, 4), f"100 +- {AREA_PERCENT_TOLERANCE:g} area%", code="area_sum")
+        cens = np.flatnonzero(h.censored & ~np.isfinite(h.loq))
+        if cens.size:
+            k = int(cens[0])
+            c.warning(f"value below the LOQ but no LOQ is known for {h.compound[k]}"
+                      + (f" ({cens.size} values in all)" if cens.size > 1 else ""),
+                      _loc(campaign, "hplc", int(h.rows[k]), "value" if campaign.layout == "long" else "time"),
+                      None, "an LOQ in the Compounds sheet or '<' followed by the limit", code="loq_unknown")
+        times, ratio, rows = mass_balance(run, units_per_molecule)
+        drift = np.flatnonzero(np.abs(ratio - 1.0) > MASS_BALANCE_TOLERANCE)
+        if drift.size:
+            k = int(drift[0])
+            c.warning(f"mass balance of run {run.name} drifts to {100 * ratio[k]:.1f} % of the first sample "
+                      f"at {times[k] / 60.0:g} min", _loc(campaign, "hplc", int(rows[k]), "time"),
+                      round(100 * float(ratio[k]), 2), f"100 +- {100 * MASS_BALANCE_TOLERANCE:g} %",
+                      code="mass_balance")
+        _log_order(campaign, run, run.ph_log, "probe", "pH log", c)
+        _log_order(campaign, run, run.temperature_log, "probe", "temperature log", c)
+        if run.titrant is not None:
+            _log_order(campaign, run, TimeSeries(run.titrant.time, run.titrant.amount, run.titrant.rows),
+                       "titrant", "titrant log", c)
+        log = run.ph_log
+        if log is not None and len(log) > 2:
+            t = np.sort(log.time)
+            dt = np.diff(t)
+            median = float(np.median(dt[dt > 0])) if np.any(dt > 0) else 0.0
+            gap = np.flatnonzero(dt > max(GAP_FACTOR * median, GAP_MINIMUM))
+            if gap.size:
+                k = int(gap[0])
+                row = int(log.rows[np.flatnonzero(log.time == t[k + 1])[0]])
+                c.warning(f"gap of {dt[k] / 60.0:.3g} min in the pH log of run {run.name}"
+                          + (f" ({gap.size} gaps in all)" if gap.size > 1 else ""),
+                          _loc(campaign, "probe", row, "time"), t[k + 1] / 60.0,
+                          f"readings at most {GAP_FACTOR:g} x the median interval "
+                          f"({median:g} s) apart, or {GAP_MINIMUM / 60:g} min", code="log_gap")
+        sp = run.recipe.ph.setpoint
+        if log is not None and sp is not None and len(log):
+            off = np.flatnonzero(np.abs(log.value - sp) > SETPOINT_TOLERANCE)
+            if off.size:
+                k = int(off[0])
+                c.warning(f"logged pH of run {run.name} is far from the setpoint {sp:g}"
+                          + (f" ({off.size} readings in all)" if off.size > 1 else ""),
+                          _loc(campaign, "probe", int(log.rows[k]), "ph"), float(log.value[k]),
+                          f"within {SETPOINT_TOLERANCE:g} of the setpoint", code="setpoint_deviation")
+        if run.recipe.ph.mode == "held" and not run.recipe.ph.titrant:
+            c.warning(f"held-pH run {run.name} names no titrant ion; titrant use cannot be modelled",
+                      _loc(campaign, "runs", run.row, "titrant"), None, "an ion name such as Na+",
+                      code="missing_titrant")
+    if area_used:
+        sheet = campaign.extra.get("sheets", {}).get("compounds", {})
+        has_rrf = "rrf" in sheet.get("columns", {})
+        if not has_rrf:
+            c.warning("no RRF column: every RRF is taken as 1", _loc(campaign, "compounds", 1, None), None,
+                      "an 'RRF' column for area or area% results", code="rrf_default")
+
+
+def model_problems(campaign: Campaign, model, c: ProblemCollector) -> dict[str, float]:
+    """Errors where the campaign names something the model does not have.
+
+    Returns the substrate units per molecule from the model's moieties (the
+    moiety of the first molecule with role ``substrate``), for the mass balance.
+    """
+    molecules = {m.name for m in model.molecules}
+    ions = {i.name for i in model.ions}
+    known = molecules | ions
+    listing = ", ".join(sorted(molecules))
+    for comp in campaign.compounds:
+        if comp.molecule and comp.molecule not in molecules:
+            c.error(f"compound {comp.name} is mapped to a molecule the model does not have",
+                    _loc(campaign, "compounds", comp.row, "molecule"), comp.molecule, "one of: " + listing,
+                    code="unknown_molecule")
+    for run in campaign.runs:
+        for species in run.recipe.charges:
+            if species not in known:
+                c.error(f"run {run.name} charges a species the model does not have",
+                        _loc(campaign, "runs", run.row, None), f"charge {species}",
+                        "a molecule or ion of the model: " + ", ".join(sorted(known)), code="unknown_species")
+        for dose in run.recipe.doses:
+            if dose.species not in known:
+                c.error(f"run {run.name} adds a species the model does not have",
+                        _loc(campaign, "additions", None, "species"), dose.species,
+                        "a molecule or ion of the model: " + ", ".join(sorted(known)), code="unknown_species")
+        tit = run.recipe.ph.titrant
+        if run.recipe.ph.mode == "held" and tit and tit not in ions:
+            c.error(f"titrant of run {run.name} is not an ion of the model",
+                    _loc(campaign, "runs", run.row, "titrant"), tit, "one of: " + ", ".join(sorted(ions)),
+                    code="unknown_species")
+    substrate = next((m for m in model.molecules if m.role == "substrate" and m.moieties), None)
+    if substrate is None:
+        return _substrate_units_from_compounds(campaign)
+    moiety = next(iter(substrate.moieties))
+    return {m.name: float(m.moieties.get(moiety, 0.0)) for m in model.molecules}
+
+
+@dataclass
+class CheckReport:
+    """Outcome of :func:`check_campaign`.
+
+    Attributes
+    ----------
+    source
+        Campaign path.
+    model
+        Model file path or name, or None.
+    problems
+        Every error and warning, in the order found.
+    runs, hplc_values, log_readings
+        Counts of what was imported (0 when the import failed).
+    """
+
+    source: str
+    model: str | None = None
+    problems: list[Problem] = field(default_factory=list)
+    runs: int = 0
+    hplc_values: int = 0
+    log_readings: int = 0
+
+    @property
+    def errors(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "error"]
+
+    @property
+    def warnings(self) -> list[Problem]:
+        return [p for p in self.problems if p.severity == "warning"]
+
+    @property
+    def ok(self) -> bool:
+        return not self.errors
+
+    @property
+    def exit_code(self) -> int:
+        return 0 if self.ok else DataError.exit_code
+
+    def report(self) -> str:
+        lines = ["Campaign check", "==============", f"Campaign: {self.source}",
+                 f"Model: {self.model or '(none)'}",
+                 f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}",
+                 "", "Errors", "------"]
+        lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
+        lines += ["", "Warnings", "--------"]
+        lines += [f"  - {p.describe()}" for p in self.warnings] or ["  none"]
+        lines += ["", "Result", "------",
+                  "OK: ready to fit" if self.ok and not self.warnings else
+                  "OK with warnings: review them before fitting" if self.ok else
+                  f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"]
+        return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"source": self.source, "model": self.model, "ok": self.ok,
+                "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
+                           "hplc_values": self.hplc_values, "log_readings": self.log_readings},
+                "problems": [p.to_dict() for p in self.problems]}
+
+
+def check_campaign(path: str | Path, model=None) -> CheckReport:
+    """Import and check a campaign; never raises for problems in the data.
+
+    Parameters
+    ----------
+    path
+        Campaign folder, workbook or CSV folder.
+    model
+        None, a :class:`speciakin.chemistry.model.Model`, or the path of a
+        model file (read with ``speciakin.chemistry.modelfile.load_model``).
+
+    Returns
+    -------
+    CheckReport
+        Every error and warning with its location.
+    """
+    from speciakin.data.importer import import_campaign
+
+    c = ProblemCollector()
+    report = CheckReport(source=str(path))
+    model_obj = None
+    if model is not None:
+        if isinstance(model, (str, Path)):
+            report.model = str(model)
+            try:
+                from speciakin.chemistry.modelfile import load_model
+            except ImportError:
+                c.error("model files cannot be read by this installation", Location(file=str(model)),
+                        code="model_unavailable")
+            else:
+                try:
+                    model_obj = load_model(model)
+                except InputError as exc:  # the model reader's own findings, reported with ours
+                    c.problems.extend(exc.problems)
+        else:
+            model_obj = model
+            report.model = getattr(model, "source", "") or getattr(model, "name", "model")
+    try:
+        campaign = import_campaign(path, c)
+    except DataError as exc:
+        c.problems.extend(exc.problems)
+        campaign = None
+    if campaign is not None:
+        units_map = model_problems(campaign, model_obj, c) if model_obj is not None else None
+        campaign_warnings(campaign, c, units_map)
+        report.runs = len(campaign.runs)
+        report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
+        report.log_readings = sum(len(x) for r in campaign.runs for x in (r.ph_log, r.temperature_log)
+                                  if x is not None)
+    report.problems = list(c.problems)
+    return report
