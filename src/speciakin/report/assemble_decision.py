@@ -1,0 +1,223 @@
+"""Report sections "Decision summary" and "pH window", and the window sheet.
+
+The decision is the pH window where the probability that every
+specification is met stays at or above the chosen level, and the robust
+part of it that keeps that level when the plant's pH drifts by its control
+tolerance (Peterson 2008; ICH Q8(R2) design space).
+
+References
+----------
+Peterson, J. J., "A Bayesian approach to the ICH Q8 definition of design
+space", J. Biopharm. Stat. 2008, 18, 959.
+ICH Q8(R2), "Pharmaceutical Development", 2009.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
+from speciakin.report.palette import SpeciesColors
+
+__all__ = ["decision_summary_section", "window_section", "window_table", "window_centre_outcomes",
+           "format_interval", "specification_limits", "process_block"]
+
+
+def format_interval(interval: tuple[float, float] | None) -> str:
+    """``(7.61, 8.42)`` -> ``"pH 7.61 to 8.42"``; None -> ``"none"``."""
+    if interval is None:
+        return "none"
+    return f"pH {interval[0]:.2f} to {interval[1]:.2f}"
+
+
+def _centre(window: Any) -> float | None:
+    if window.primary_window is not None:
+        return 0.5 * (window.primary_window[0] + window.primary_window[1])
+    return window.best_ph
+
+
+def window_centre_outcomes(window: Any) -> tuple[float | None, list[list[Any]]]:
+    """Grid pH nearest the centre of the recommended window and, per outcome,
+    [name, median, 5 %, 95 %] there [mol % of the substrate moiety]."""
+    centre = _centre(window)
+    if centre is None or not window.outcome_names:
+        return None, []
+    k = int(np.argmin(np.abs(np.asarray(window.ph) - centre)))
+    rows = [[n, float(window.outcome_median[n][k]), float(window.outcome_lower[n][k]),
+             float(window.outcome_upper[n][k])] for n in window.outcome_names]
+    return float(window.ph[k]), rows
+
+
+def _robust_for_primary(window: Any) -> tuple[float, float] | None:
+    """The robust set-point interval inside the recommended window (or the first one)."""
+    if not window.robust_windows:
+        return None
+    if window.primary_window is not None:
+        a, b = window.primary_window
+        for lo, hi in window.robust_windows:
+            if lo >= a - 1e-9 and hi <= b + 1e-9:
+                return (lo, hi)
+    return window.robust_windows[0]
+
+
+def _uncertainty_words(source: str) -> str:
+    from speciakin.decision.draws import COVARIANCE_SOURCE, POSTERIOR_SOURCE
+
+    if source == POSTERIOR_SOURCE:
+        return "Uncertainty: parameter draws from the posterior sample"
+    if source == COVARIANCE_SOURCE:
+        return ("Uncertainty: parameter draws from the least-squares estimate and its covariance "
+                "(multivariate normal; no posterior was sampled)")
+    return f"Uncertainty: {source}"
+
+
+def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bool = False) -> Section:
+    """The "Decision summary" section, opened by a decision callout."""
+    blocks: list = []
+    if window is None:
+        text = ("pH window: not run. No process decision can be stated yet; run the window computation "
+                "on the fitted model and a process file.")
+        if fit is None:
+            text += " Least-squares fit: not run."
+        blocks.append(Callout("decision", "pH window not computed", text))
+        return Section("Decision summary", blocks, anchor="decision")
+    robust = _robust_for_primary(window)
+    centre_ph, outcomes = window_centre_outcomes(window)
+    if window.primary_window is not None:
+        title = f"Recommended: {format_interval(window.primary_window)}"
+        text = (f"Every specification is met with probability at least {window.level:g} from "
+                f"{format_interval(window.primary_window)}. ")
+        if robust is not None:
+            text += (f"Set points from {format_interval(robust)} keep that probability when the pH drifts by "
+                     f"+/- {window.tolerance:g}. ")
+        else:
+            text += (f"No set point keeps that probability over a +/- {window.tolerance:g} pH drift; tighter "
+                     "pH control or a new process is needed. ")
+    else:
+        title = "No pH window found"
+        text = (f"No pH in the scanned range meets every specification with probability at least "
+                f"{window.level:g}. ")
+        if window.best_ph is not None:
+            text += (f"The highest probability, {window.best_probability:.3f}, is at pH {window.best_ph:.2f}. ")
+    if outcomes:
+        parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
+        text += f"Expected outcome at pH {centre_ph:.2f}, median (90 % band): " + "; ".join(parts) + ". "
+    text += f"{_uncertainty_words(window.uncertainty_source)}; {window.n_draws} draws."
+    if invented:
+        text += " Based on invented demonstration data."
+    blocks.append(Callout("decision", title, text))
+    rows = [("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),
+            ("Recommended window", format_interval(window.primary_window)),
+            ("Robust set points", format_interval(robust)),
+            ("All windows", ", ".join(format_interval(w) for w in window.windows) or "none"),
+            ("Best set point", None if window.best_ph is None else f"pH {window.best_ph:.2f} "
+             f"(probability {window.best_probability:.3f})"),
+            ("Uncertainty source", window.uncertainty_source), ("Draws", window.n_draws)]
+    blocks.append(KeyValues(rows, number_format=".3g"))
+    if outcomes:
+        blocks.append(Table(f"Expected outcomes at pH {centre_ph:.2f}", ["species", "median", "5 %", "95 %"],
+                            outcomes, units=[None, "mol%", "mol%", "mol%"], formats=[None, ".2f", ".2f", ".2f"],
+                            note="Mole % of the substrate moiety at the end of the process; 5 % and 95 % "
+                                 "quantiles over the parameter draws."))
+    if window.specifications:
+        blocks.append(Paragraph("Specifications (all must be met):"))
+        blocks.append(BulletList([s.describe() for s in window.specifications]))
+    for w in window.warnings:
+        blocks.append(Callout("warning", "pH window", w))
+    return Section("Decision summary", blocks, anchor="decision")
+
+
+def specification_limits(window: Any) -> dict[str, tuple[float | None, float | None]]:
+    """Lower/upper limit per single-species mole % specification, for the outcome plot."""
+    limits: dict[str, list[float | None]] = {}
+    for s in window.specifications:
+        if len(s.species) != 1 or s.per or s.kind != "percent":
+            continue
+        entry = limits.setdefault(s.species[0], [None, None])
+        if s.operator in (">=", ">"):
+            entry[0] = float(s.limit)
+        elif s.operator in ("<=", "<"):
+            entry[1] = float(s.limit)
+    return {k: (v[0], v[1]) for k, v in limits.items()}
+
+
+def window_table(window: Any) -> Table | None:
+    """Sheet "window": pH, probability, MC error, worst case over the drift, robust flag."""
+    if window is None:
+        return None
+    robust = window.robust_windows
+    rows = []
+    for k, x in enumerate(np.asarray(window.ph, float)):
+        in_robust = any(lo - 1e-9 <= x <= hi + 1e-9 for lo, hi in robust)
+        rows.append([float(x), _num(window.probability[k]), _num(window.probability_standard_error[k]),
+                     _num(window.worst_case_probability[k]), _num(window.robust_probability_per_draw[k]),
+                     in_robust])
+    return Table("pH window scan", ["pH", "probability", "MC standard error", "worst case over drift",
+                                    "per-draw robust probability", "robust set point"], rows,
+                 units=["-", "-", "-", "-", "-", None], formats=[".2f", ".3f", ".4f", ".3f", ".3f", None],
+                 sheet_name="window",
+                 note=f"Probability that every specification is met (level {window.level:g}, pH tolerance "
+                      f"+/- {window.tolerance:g}); {window.n_draws} draws from the {window.uncertainty_source}.")
+
+
+def _num(x: Any) -> float | None:
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def process_block(process: Any) -> KeyValues | Paragraph:
+    """The planned process the window was computed for (display units)."""
+    if process is None:
+        return Paragraph("Planned process: no process file was given for this report.")
+    rows = [("Process", process.name), ("Description", process.description or None),
+            ("Substrate", f"{process.substrate}, {process.substrate_amount * 1e3:.4g} mmol"),
+            ("Initial volume [mL]", process.volume * 1e3),
+            ("Reagent", f"{process.reagent}, {process.equivalents:.4g} eq"),
+            ("Dosing time [min]", process.dosing_time / 60.0), ("Hold time [min]", process.hold_time / 60.0),
+            ("Temperature [C]", process.temperature - 273.15),
+            ("pH held with", f"{process.titrant} ({process.titrant_concentration:.4g} mol/L)"),
+            ("pH scan", f"{process.ph_from:g} to {process.ph_to:g} in steps of {process.ph_step:g}"),
+            ("Probability level", process.level), ("pH tolerance (+/-)", process.ph_tolerance),
+            ("Draws", process.n_draws), ("Seed", process.seed)]
+    return KeyValues(rows, number_format=".4g")
+
+
+def window_section(window: Any, colors: SpeciesColors, process: Any = None) -> Section:
+    """The "pH window" section: planned process, probability vs pH, outcomes vs pH, 2-D map, scan table."""
+    if window is None:
+        return Section("pH window", [Paragraph("pH window: not run."), process_block(process)], anchor="window")
+    from speciakin.report.figures import outcomes_vs_ph_figure, probability_map_figure, probability_vs_ph_figure
+
+    ph = np.asarray(window.ph, float)
+    p = np.asarray(window.probability, float)
+    se = np.asarray(window.probability_standard_error, float)
+    blocks: list = [process_block(process), Figure(probability_vs_ph_figure(
+        ph, p, window.level, window=window.primary_window, robust_window=_robust_for_primary(window),
+        probability_low=np.clip(p - 2 * se, 0, 1), probability_high=np.clip(p + 2 * se, 0, 1)),
+        f"Probability that every specification is met against set-point pH (band: +/- 2 Monte Carlo "
+        f"standard errors); line at the level {window.level:g}; light shading: window; dark shading: "
+        f"set points robust to +/- {window.tolerance:g} pH drift.")]
+    if window.outcome_names:
+        blocks.append(Figure(outcomes_vs_ph_figure(
+            ph, window.outcome_median, window.outcome_lower, window.outcome_upper,
+            specification_limits(window), colors, value_label="end of process", value_unit="mol%"),
+            "Expected outcomes against pH: median (line) and 5-95 % band over the parameter draws; "
+            "specification limits as dotted lines."))
+    if window.map_probability is not None and window.factor_values is not None:
+        blocks.append(Figure(probability_map_figure(
+            ph, window.factor_values, np.asarray(window.map_probability, float).T,
+            x_label="pH [-]", y_label=f"{window.factor_name} [{window.factor_unit}]", level=window.level),
+            f"Probability that every specification is met over pH and {window.factor_name}; contour at "
+            f"the level {window.level:g}."))
+        rows = [[float(v), ", ".join(format_interval(w) for w in wins) or "none",
+                 ", ".join(format_interval(w) for w in rob) or "none"]
+                for v, wins, rob in zip(window.factor_values, window.map_windows or [],
+                                        window.map_robust_windows or [])]
+        blocks.append(Table("Windows by second factor", [window.factor_name or "factor", "window", "robust set points"],
+                            rows, units=[window.factor_unit, None, None]))
+    else:
+        blocks.append(Paragraph("Design space map: not computed (no second factor in the process)."))
+    blocks.append(window_table(window))
+    return Section("pH window", blocks, anchor="window")
