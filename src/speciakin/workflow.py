@@ -267,7 +267,8 @@ def report_step(out: Path, *, model, campaign, objective=None, fit=None, posteri
 def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: int = 3000,
             n_walkers=None, jobs: int = 1, scheduler=None, resume: bool = False, profiles: bool = True,
             draws=None, invented: bool = False, say: Callable[[str], None] = lambda s: None,
-            progress_factory: Callable | None = None) -> dict[str, Any]:
+            progress_factory: Callable | None = None, state: dict | None = None,
+            sample_progress=True) -> dict[str, Any]:
     """check -> fit -> sample -> window -> report, each step's output kept in ``out``.
 
     Raises the first step's error (the CLI turns it into a message naming the step).
@@ -277,8 +278,10 @@ def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: i
 
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
+    state = state if state is not None else {}
     timings: dict[str, float] = {}
     t = time.perf_counter()
+    state["step"] = "check"
     check = check_step(inputs)
     write_json(out / "check.json", check.to_dict())
     if check.errors:
@@ -287,6 +290,7 @@ def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: i
     say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
 
     model, campaign, process = load_inputs(inputs)
+    state["step"] = "fit"
     objective = make_objective(model, campaign)
     t = time.perf_counter()
     fit = fit_step(objective, out, starts=starts, seed=seed, profiles=profiles,
@@ -295,15 +299,19 @@ def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: i
     say(f"fit: chi-square {fit.fit.chisqr:.4g}, reduced {fit.fit.reduced_chisqr:.3g} "
         f"({timings['fit']:.1f} s)")
 
+    fit_figures(objective, fit, out)
+    state["step"] = "sample"
     t = time.perf_counter()
     posterior = sample_step(objective, fit, out, n_steps=n_steps, n_walkers=n_walkers, seed=seed,
-                            resume=resume, jobs=jobs, scheduler=scheduler, progress=True)
+                            resume=resume, jobs=jobs, scheduler=scheduler, progress=sample_progress)
+    posterior_figures(posterior, out)
     timings["sample"] = time.perf_counter() - t
     say(f"sample: {posterior.n_walkers} walkers x {posterior.n_steps} steps, "
         f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s)")
 
     window = None
     if process is not None:
+        state["step"] = "window"
         t = time.perf_counter()
         window = window_step(objective, process, out, fit=fit, posterior=posterior, draws=draws, seed=seed)
         timings["window"] = time.perf_counter() - t
@@ -311,6 +319,7 @@ def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: i
     else:
         say("window: skipped (no process file)")
 
+    state["step"] = "report"
     t = time.perf_counter()
     paths = report_step(out, model=model, campaign=campaign, objective=objective, fit=fit, posterior=posterior,
                         window=window, process=process, check=check, inputs=inputs, invented=invented)
@@ -329,3 +338,26 @@ def window_text(window) -> str:
     robust = max(window.robust_windows, key=lambda w: w[1] - w[0]) if window.robust_windows else None
     return (f"recommended {fmt(window.primary_window)} at probability >= {window.level:g}, "
             f"robust to +/- {window.tolerance:g} pH: {fmt(robust)}")
+
+
+# ------------------------------------------------------------------ figures of the steps
+def posterior_figures(posterior, out: Path) -> list[Path]:
+    """Trace and corner plots of a posterior into ``out/figures``."""
+    from speciakin.report.figures import corner_figure, trace_figure
+
+    figures = Path(out) / "figures"
+    burn = min(int(posterior.burn_in), posterior.chain.shape[0] - 1)
+    paths = [write_bytes(figures / "posterior_trace.png",
+                         trace_figure(posterior.chain, posterior.parameter_names, burn_in=burn))]
+    if posterior.samples.shape[0] > 2 * posterior.samples.shape[1]:
+        paths.append(write_bytes(figures / "posterior_corner.png",
+                                 corner_figure(posterior.samples, posterior.parameter_names)))
+    return paths
+
+
+def fit_figures(objective, fit, out: Path) -> list[Path]:
+    """Per-run data-and-model plots, residuals, profiles and correlation into ``out/figures``."""
+    from speciakin.report.assemble_figures import fit_figure_set
+
+    figures = Path(out) / "figures"
+    return [write_bytes(figures / f"{name}.png", png) for name, png in fit_figure_set(objective, fit).items()]

@@ -34,5 +34,5 @@ FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
     "samples": ("times", "volume"),
     "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed"),
     "fit.nuisance": ("runs", "lower", "upper", "sd"),
-    "fit.error_model": ("absolute", "relative"),
+    "fit.error_model": ("absolute", "relative", "titrant_absolute", "titrant_relative"),
 })

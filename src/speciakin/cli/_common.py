@@ -45,3 +45,50 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
 
 def atomic_write_text(path: str | os.PathLike, text: str) -> None:
     atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def add_campaign_arguments(parser, *, process: bool = False, out_default: str | None = None) -> None:
+    """The campaign / model / process / output options shared by the pipeline commands."""
+    parser.add_argument("campaign", help="campaign folder (from 'speciakin new') or workbook (.xlsx)")
+    parser.add_argument("--model", metavar="MODEL.toml",
+                        help="reaction model file (default: model.toml in the campaign folder)")
+    if process:
+        parser.add_argument("--process", metavar="PROCESS.toml",
+                            help="planned process and specifications (default: process.toml in the campaign folder)")
+    parser.add_argument("--out", metavar="DIR", default=out_default,
+                        help="output folder" + (f" (default: {out_default})" if out_default else ""))
+
+
+def default_out(args, name: str) -> Path:
+    """``--out`` or ``<campaign folder>/results``."""
+    if args.out:
+        return output_dir(args.out)
+    c = Path(args.campaign)
+    folder = c if c.is_dir() else c.parent
+    return output_dir(folder / "results")
+
+
+class StageProgress:
+    """A tqdm bar per stage for ``progress(stage, done, total)`` callbacks (stderr)."""
+
+    def __init__(self, enabled: bool = True) -> None:
+        self.enabled = enabled
+        self.bars: dict = {}
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        from tqdm import tqdm
+
+        bar = self.bars.get(stage)
+        if bar is None:
+            labels = {"starts": "fit (starting points)", "profiles": "profile likelihood"}
+            bar = self.bars[stage] = tqdm(total=total, desc=labels.get(stage, stage), unit="step", leave=True)
+        bar.n = done
+        bar.refresh()
+        if done >= total:
+            bar.close()
+
+    def close(self) -> None:
+        for bar in self.bars.values():
+            bar.close()

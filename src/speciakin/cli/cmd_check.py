@@ -10,7 +10,8 @@ def add_arguments(parser) -> None:
     parser.add_argument("campaign", metavar="CAMPAIGN",
                         help="campaign folder, workbook (.xlsx) or folder of CSV files")
     parser.add_argument("--model", metavar="MODEL.toml", default=None,
-                        help="also check compound and species names against this model file")
+                        help="also check compound and species names against this model file "
+                             "(default: model.toml in the campaign folder, when there is one)")
     parser.add_argument("--format", choices=("text", "json"), default="text",
                         help="text for people (default) or json for machines")
     parser.epilog = ("example:\n  speciakin check my-campaign --model my-campaign/model.toml\n"
@@ -22,7 +23,14 @@ def run(args) -> int:
 
     from speciakin.data.validate import check_campaign
 
-    report = check_campaign(args.campaign, model=args.model)
+    model = args.model
+    if model is None:
+        from pathlib import Path
+
+        folder = Path(args.campaign) if Path(args.campaign).is_dir() else Path(args.campaign).parent
+        if (folder / "model.toml").exists():
+            model = str(folder / "model.toml")
+    report = check_campaign(args.campaign, model=model)
     if args.format == "json":
         print(json.dumps(report.to_dict(), indent=2))
     else:

@@ -47,7 +47,7 @@ from typing import Any
 import numpy as np
 from scipy.special import log_ndtr
 
-from speciakin.chemistry.model import Model, Prior, Quantity
+from speciakin.chemistry.model import Model, Prior, Quantity, TemperatureProfile
 from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
@@ -60,6 +60,10 @@ __all__ = ["FittedParameter", "ErrorModel", "CampaignObjective", "Predictions", 
 MAX_PH_LOG_POINTS = 240
 #: Most titrant-log points used per run (explicit resampling).
 MAX_TITRANT_POINTS = 40
+#: A logged temperature that stays within this band [K] over a run is replaced
+#: by its mean (the probe's scatter is not a temperature programme; a constant
+#: temperature also keeps the kernel on its fast analytic-Jacobian path).
+FLAT_TEMPERATURE_BAND = 0.5
 
 
 def identifier(name: str) -> str:
@@ -229,6 +233,11 @@ class CampaignObjective:
 
     def _prepare_run(self, crun):
         recipe = crun.recipe
+        temps = np.asarray(recipe.temperature.temperatures, float)
+        if temps.size > 1 and float(np.ptp(temps)) < FLAT_TEMPERATURE_BAND:
+            flat = TemperatureProfile((0.0,), (float(temps.mean()),))
+            crun = replace(crun, recipe=replace(recipe, temperature=flat))
+            recipe = crun.recipe
         if recipe.ph.mode == "logged" and len(recipe.ph.log_times) > MAX_PH_LOG_POINTS:
             grid = np.linspace(min(recipe.ph.log_times), max(recipe.ph.log_times), MAX_PH_LOG_POINTS)
             crun = crun.with_resampled_ph_log(grid)
@@ -539,4 +548,5 @@ class CampaignObjective:
                            "the sample" if self.campaign.basis in ("area_percent", "area", "mixed")
                            else "concentrations compared as n_i / V"),
             "ph_log_points_max": MAX_PH_LOG_POINTS, "titrant_points_max": MAX_TITRANT_POINTS,
+            "flat_temperature_band_K": FLAT_TEMPERATURE_BAND,
         }

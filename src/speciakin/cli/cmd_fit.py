@@ -1,0 +1,47 @@
+"""``speciakin fit``: global least-squares fit with confidence intervals."""
+
+from __future__ import annotations
+
+NAME = "fit"
+HELP = "fit rate constants and pKa shifts to every run of a campaign at once"
+
+EPILOG = """example:
+  speciakin fit my-campaign --out my-campaign/results
+  speciakin fit runs.xlsx --model model.toml --starts 12 --no-profiles
+
+writes fit.json (schema in docs/workflow.md), fit.txt and figures/ in the output folder."""
+
+
+def add_arguments(parser) -> None:
+    from speciakin.cli._common import add_campaign_arguments
+
+    parser.epilog = EPILOG
+    add_campaign_arguments(parser)
+    parser.add_argument("--starts", type=int, default=None,
+                        help="number of starting points (default: [fit] starts of the model file, or 6)")
+    parser.add_argument("--seed", type=int, default=None, help="seed of the starting points")
+    parser.add_argument("--no-profiles", action="store_true", help="skip the profile-likelihood intervals")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def run(args) -> int:
+    from speciakin import workflow
+    from speciakin.cli._common import StageProgress, default_out
+    from speciakin.errors import InputError, Location
+
+    if args.starts is not None and args.starts < 1:
+        raise InputError("--starts must be at least 1", Location(key="--starts"), args.starts, "an integer >= 1")
+    inputs = workflow.resolve_inputs(args.campaign, args.model)
+    model, campaign, _ = workflow.load_inputs(inputs)
+    objective = workflow.make_objective(model, campaign)
+    out = default_out(args, "fit")
+    progress = StageProgress(not args.quiet)
+    try:
+        result = workflow.fit_step(objective, out, starts=args.starts, seed=args.seed,
+                                   profiles=not args.no_profiles, progress=progress)
+    finally:
+        progress.close()
+    workflow.fit_figures(objective, result, out)
+    print(result.report())
+    print(f"\nwritten: {out / 'fit.json'}, {out / 'fit.txt'}, {out / 'figures'}")
+    return 0

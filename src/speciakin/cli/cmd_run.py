@@ -1,0 +1,70 @@
+"""``speciakin run``: the whole job, check -> fit -> sample -> window -> report."""
+
+from __future__ import annotations
+
+NAME = "run"
+HELP = "the whole job: check, fit, sample, pH window and report, in one command"
+
+EPILOG = """example:
+  speciakin run my-campaign                      # model.toml and process.toml inside the folder
+  speciakin run runs.xlsx --model model.toml --process process.toml --out results --jobs 2
+
+stops with a clear message at the first step that fails; every earlier step's
+output stays in the output folder. Open report.html (or report.pdf) when done."""
+
+
+def add_pipeline_options(parser) -> None:
+    parser.add_argument("--steps", type=int, default=3000, help="posterior steps per walker (default 3000)")
+    parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
+    parser.add_argument("--starts", type=int, default=None, help="least-squares starting points")
+    parser.add_argument("--draws", type=int, default=None, help="parameter draws for the window")
+    parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
+    parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the posterior")
+    parser.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask distributed scheduler")
+    parser.add_argument("--resume", action="store_true", help="continue an interrupted posterior run")
+    parser.add_argument("--no-profiles", action="store_true", help="skip profile-likelihood intervals")
+    parser.add_argument("--quiet", action="store_true", help="no progress bars")
+
+
+def add_arguments(parser) -> None:
+    from speciakin.cli._common import add_campaign_arguments
+
+    parser.epilog = EPILOG
+    add_campaign_arguments(parser, process=True)
+    add_pipeline_options(parser)
+
+
+def execute(inputs, out, args, invented: bool = False) -> int:
+    """Run the pipeline for resolved inputs; shared with ``speciakin demo``."""
+    import sys
+    import time
+
+    from speciakin import workflow
+    from speciakin.cli._common import StageProgress
+    from speciakin.errors import SpeciakinError
+
+    state: dict = {}
+    progress = StageProgress(not args.quiet)
+    t0 = time.perf_counter()
+    try:
+        result = workflow.run_all(
+            inputs, out, starts=args.starts, seed=args.seed, n_steps=args.steps, n_walkers=args.walkers,
+            jobs=args.jobs, scheduler=args.scheduler, resume=args.resume, profiles=not args.no_profiles,
+            draws=args.draws, invented=invented, say=print, progress_factory=lambda stage: progress,
+            state=state, sample_progress=not args.quiet)
+    except SpeciakinError as exc:
+        progress.close()
+        print(f"speciakin: stopped at step '{state.get('step', '?')}': {exc}", file=sys.stderr)
+        print(f"speciakin: the output of earlier steps is kept in {out}", file=sys.stderr)
+        return exc.exit_code
+    progress.close()
+    print(f"\ndone in {time.perf_counter() - t0:.1f} s; open {result['report'].get('html', out)}")
+    return 0
+
+
+def run(args) -> int:
+    from speciakin import workflow
+    from speciakin.cli._common import default_out
+
+    inputs = workflow.resolve_inputs(args.campaign, args.model, args.process)
+    return execute(inputs, default_out(args, "run"), args)

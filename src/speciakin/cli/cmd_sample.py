@@ -1,0 +1,53 @@
+"""``speciakin sample``: Bayesian posterior with emcee, checkpointed."""
+
+from __future__ import annotations
+
+NAME = "sample"
+HELP = "sample the Bayesian posterior of the fitted parameters (emcee), with checkpoints"
+
+EPILOG = """example:
+  speciakin sample my-campaign --steps 4000 --jobs 2
+  speciakin sample my-campaign --resume                 # continue an interrupted run
+  speciakin sample my-campaign --scheduler tcp://10.0.0.5:8786   # an existing Dask cluster
+
+starts from fit.json in the output folder (runs the fit first when there is none);
+writes posterior.h5 (checkpoint), posterior.json, posterior.txt and figures/."""
+
+
+def add_arguments(parser) -> None:
+    from speciakin.cli._common import add_campaign_arguments
+
+    parser.epilog = EPILOG
+    add_campaign_arguments(parser)
+    parser.add_argument("--steps", type=int, default=3000, help="steps per walker (default 3000)")
+    parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
+    parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
+    parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the likelihood")
+    parser.add_argument("--scheduler", metavar="ADDRESS", help="address of an existing Dask distributed scheduler")
+    parser.add_argument("--resume", action="store_true", help="continue from the checkpoint in the output folder")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def run(args) -> int:
+    from speciakin import workflow
+    from speciakin.cli._common import default_out
+    from speciakin.errors import InputError, Location
+
+    for key, value, minimum in (("--steps", args.steps, 10), ("--jobs", args.jobs, 1)):
+        if value < minimum:
+            raise InputError(f"{key} is too small", Location(key=key), value, f"an integer >= {minimum}")
+    inputs = workflow.resolve_inputs(args.campaign, args.model)
+    model, campaign, _ = workflow.load_inputs(inputs)
+    objective = workflow.make_objective(model, campaign)
+    out = default_out(args, "sample")
+    fit = workflow.load_fit(out)
+    if fit is None or fit.names != objective.names:
+        print("no matching fit.json in the output folder: fitting first")
+        fit = workflow.fit_step(objective, out, profiles=False)
+    result = workflow.sample_step(objective, fit, out, n_steps=args.steps, n_walkers=args.walkers,
+                                  seed=args.seed, resume=args.resume, jobs=args.jobs,
+                                  scheduler=args.scheduler, progress=not args.quiet)
+    workflow.posterior_figures(result, out)
+    print(result.report())
+    print(f"\nwritten: {out / 'posterior.json'}, {out / 'posterior.h5'}, {out / 'figures'}")
+    return 0
