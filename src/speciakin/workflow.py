@@ -214,7 +214,7 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
                 seed: int | None = None, progress=None):
     """pH window of the planned process; writes ``window.json``/``window.txt``
     and the window plots; returns WindowResult."""
-    from speciakin.decision import plot_map, plot_outcomes, plot_probability
+    from speciakin.decision.plots import plot_map, plot_outcomes, plot_probability
     from speciakin.decision.campaign_window import window_draws, window_for_campaign
 
     n = int(draws or process.n_draws)

@@ -32,7 +32,7 @@ def reduced_demo(tmp_path_factory):
     process = (demo / "process.toml").read_text()
     process = re.sub(r"ph_step = [0-9.]+", "ph_step = 0.5", process)
     process = re.sub(r"draws = [0-9]+", "draws = 16", process)
-    process = re.sub(r"\[scan.second_factor\][^\[]*", "", process)
+    process = re.sub(r"\[scan\.second_factor\]\n(?:[a-z_]+ = [^\n]*\n)+", "", process)
     (folder / "process.toml").write_text(process)
     return folder
 

@@ -18,7 +18,7 @@ from speciakin.decision.design import process_scan_arguments
 from speciakin.decision.draws import draws_from_covariance
 from speciakin.decision.outcomes import process_outcome_names, process_outcomes
 from speciakin.decision.runs import process_runs
-from speciakin.decision.window import compute_window
+from speciakin.decision.design import compute_window
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_runs
 
