@@ -249,6 +249,9 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         fit = fit.with_profiles(prof)
         warnings += [_rename(w, mapping) for p in prof.values() for w in p.warnings
                      if _rename(w, mapping) not in warnings]
+    elif profiles:
+        warnings.append("profile intervals were not computed because the fit did not converge "
+                        f"({fit.message}); only the covariance intervals are shown, and they are doubtful")
     t_prof = time.perf_counter() - t1
     params = objective.parameters
     return CampaignFitResult(

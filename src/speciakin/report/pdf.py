@@ -109,11 +109,38 @@ def _callout(block: Callout, styles, width: float):
     return table
 
 
-def _column_widths(table: Table, width: float) -> list[float]:
-    texts = [table.headers()] + table.formatted_rows()
-    lengths = [max(4, min(40, max(len(row[i]) for row in texts))) for i in range(len(table.columns))]
-    total = float(sum(lengths))
-    return [width * n / total for n in lengths]
+def _column_widths(table: Table, width: float, cell_font: str = "Helvetica", head_font: str = "Helvetica-Bold",
+                   size: float = 8.5) -> list[float]:
+    """Column widths [pt] from measured text widths.
+
+    Each column wants its widest cell (or header) on one line; it needs at
+    least its longest unbreakable token (a number, a word of the header), so
+    numbers are never broken mid-digit.  Space beyond the minima is shared in
+    proportion to what each column still wants; spare space is shared in
+    proportion to the wanted widths.
+    """
+    from reportlab.pdfbase.pdfmetrics import stringWidth
+
+    pad = 2 * 6 + 1  # reportlab default left/right cell padding [pt], plus a point of slack
+    heads = table.headers()
+    rows = table.formatted_rows()
+    desired, minimum = [], []
+    for i in range(len(table.columns)):
+        cells = [row[i] for row in rows]
+        body = max((stringWidth(c, cell_font, size) for c in cells), default=0.0)
+        head = stringWidth(heads[i], head_font, size)
+        tokens = max((stringWidth(t, cell_font, size) for c in cells for t in c.split()), default=0.0)
+        head_word = max((stringWidth(t, head_font, size) for t in heads[i].split()), default=0.0)
+        minimum.append(max(tokens, head_word, 12.0) + pad)
+        desired.append(min(max(body, head) + pad, 0.6 * width))
+    desired = [max(d, m) for d, m in zip(desired, minimum)]
+    total_desired, total_min = sum(desired), sum(minimum)
+    if total_desired <= width:
+        return [width * d / total_desired for d in desired]
+    if total_min <= width:
+        share = (width - total_min) / (total_desired - total_min)
+        return [m + (d - m) * share for d, m in zip(desired, minimum)]
+    return [width * m / total_min for m in minimum]
 
 
 def _table(block: Table, styles, width: float) -> list:
@@ -122,7 +149,8 @@ def _table(block: Table, styles, width: float) -> list:
     from reportlab.platypus import Table as RLTable
     from reportlab.platypus import TableStyle
 
-    widths = _column_widths(block, width)
+    widths = _column_widths(block, width, styles["cell"].fontName, styles["head"].fontName,
+                            styles["cell"].fontSize)
     numeric_columns = [bool(cells) and all(isinstance(c, (int, float)) for c in cells)
                        for cells in ([row[i] for row in block.rows if row[i] is not None]
                                      for i in range(len(block.columns)))]
