@@ -21,7 +21,6 @@ import json
 import os
 import shlex
 import sys
-import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -30,6 +29,7 @@ from typing import Any, Callable
 import numpy as np
 
 from speciakin import __version__
+from speciakin._io import atomic_write_bytes
 from speciakin.errors import InputError, Location
 
 __all__ = [
@@ -43,21 +43,8 @@ PROCESS_FILE = "process.toml"
 
 # ------------------------------------------------------------------ files
 def write_bytes(path: str | os.PathLike, data: bytes) -> Path:
-    """Write atomically: a temporary file in the same folder, then rename."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    return path
+    """Write atomically (temporary file in the same folder, then rename)."""
+    return atomic_write_bytes(path, data)
 
 
 def write_text(path, text: str) -> Path:

@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import os
-import tempfile
 from pathlib import Path
 
+from speciakin._io import atomic_write_bytes, atomic_write_text  # noqa: F401  (re-exported)
 from speciakin.errors import InputError, Location
 
 
@@ -24,27 +24,6 @@ def existing_file(path: str | os.PathLike, what: str) -> Path:
     if not p.exists():
         raise InputError(f"{what} not found", Location(file=str(p)), expected="an existing file")
     return p
-
-
-def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> None:
-    """Write ``data`` to ``path`` atomically (temp file in the same folder, then rename)."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
-    atomic_write_bytes(path, text.encode("utf-8"))
 
 
 def add_campaign_arguments(parser, *, process: bool = False, out_default: str | None = None) -> None:

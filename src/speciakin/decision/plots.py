@@ -11,11 +11,11 @@ from __future__ import annotations
 
 import io
 import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
+from speciakin._io import atomic_write_bytes
 from speciakin.decision.result import WindowResult
 
 __all__ = ["plot_probability", "plot_outcomes", "plot_map", "OKABE_ITO"]
@@ -36,20 +36,7 @@ def _save(fig, path: str | os.PathLike) -> Path:
     """Render to PNG in memory, then write atomically (temp file + rename)."""
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png")
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(buffer.getvalue())
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    return target
+    return atomic_write_bytes(path, buffer.getvalue())
 
 
 def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:

@@ -228,6 +228,8 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         if progress is not None:
             progress("starts", done, total)
 
+    if progress is not None and isinstance(n_starts, int):
+        progress("starts", 0, n_starts)
     fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=objective.jacobian,
                             starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups))
     t_fit = time.perf_counter() - t0
@@ -244,6 +246,8 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
             if progress is not None:
                 progress("profiles", done, total)
 
+        if progress is not None:
+            progress("profiles", 0, len(fit.varying_names))
         prof = profile_all(objective.residuals, fit, progress=on_profile, points=profile_points,
                            jacobian=objective.jacobian)
         fit = fit.with_profiles(prof)

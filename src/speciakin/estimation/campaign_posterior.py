@@ -9,8 +9,6 @@ where the chemist stated none (see :func:`campaign_priors`).
 from __future__ import annotations
 
 import math
-from typing import Callable
-
 import numpy as np
 
 from speciakin.chemistry.model import Prior

@@ -15,13 +15,14 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
+
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import h5py
 import numpy as np
 
+from speciakin._io import atomic_path
 from speciakin.errors import InputError, Location
 
 __all__ = ["Checkpoint", "write_checkpoint", "read_checkpoint", "CHECKPOINT_FORMAT"]
@@ -60,26 +61,9 @@ class Checkpoint:
         return int(self.chain.shape[0])
 
 
-def _fsync_dir(folder: Path) -> None:
-    try:
-        fd = os.open(folder, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(fd)
-    except OSError:
-        pass
-    finally:
-        os.close(fd)
-
-
 def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
     """Write ``checkpoint`` to ``path`` atomically (temp file, fsync, rename)."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    os.close(fd)
-    try:
+    with atomic_path(path) as tmp:
         name, keys, pos, has_gauss, cached = checkpoint.random_state
         with h5py.File(tmp, "w") as fh:
             fh.attrs["format"] = CHECKPOINT_FORMAT
@@ -94,16 +78,6 @@ def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
             rs.attrs["has_gauss"] = int(has_gauss)
             rs.attrs["cached_gaussian"] = float(cached)
             fh.flush()
-        with open(tmp, "rb+") as raw:
-            os.fsync(raw.fileno())
-        os.replace(tmp, path)
-        _fsync_dir(path.parent)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
 
 
 def read_checkpoint(path: str | os.PathLike) -> Checkpoint:

@@ -22,7 +22,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 import time
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -31,6 +30,7 @@ from typing import Callable, Sequence
 import emcee
 import numpy as np
 
+from speciakin._io import atomic_path
 from speciakin.errors import InputError, Location, SolverError
 from speciakin.estimation.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from speciakin.estimation.diagnostics import (ConvergenceDiagnostics, autocorrelation_time,
@@ -213,24 +213,13 @@ class PosteriorResult:
         """Write the result to an HDF5 file atomically (arrays + JSON metadata)."""
         import h5py
 
-        path = Path(path)
-        path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-        os.close(fd)
-        try:
+        with atomic_path(path) as tmp:
             with h5py.File(tmp, "w") as fh:
                 fh.attrs["format"] = "speciakin-posterior-1"
                 fh.attrs["metadata"] = json.dumps(self._metadata())
                 fh.create_dataset("chain", data=self.chain)
                 fh.create_dataset("log_prob", data=self.log_prob)
                 fh.create_dataset("acceptance_fraction", data=self.acceptance_fraction)
-            os.replace(tmp, path)
-        except BaseException:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
-            raise
 
     @classmethod
     def load(cls, path: str | os.PathLike) -> "PosteriorResult":

@@ -5,16 +5,16 @@ A renderer builds the whole file in memory first, then hands the bytes to
 and renames it over the target.  A failure at any point leaves either the old
 target or no target, never a half-written file, and no temporary file behind.
 
-(The CLI layer has its own copy of this helper; the report layer does not
-import the CLI.)
+(The writing itself is :func:`speciakin._io.atomic_write_bytes`; this wrapper
+turns an operating-system failure into a message naming the file.)
 """
 
 from __future__ import annotations
 
 import os
-import tempfile
 from pathlib import Path
 
+from speciakin._io import atomic_write_bytes as shared_atomic_write_bytes
 from speciakin.errors import InputError, Location
 
 __all__ = ["atomic_write_bytes", "atomic_write_text"]
@@ -38,27 +38,10 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> Path:
     """
     target = Path(path)
     try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+        return shared_atomic_write_bytes(target, data)
     except OSError as exc:
         raise InputError(f"cannot write the report: {exc.strerror or exc}",
-                         Location(file=str(target)), expected="a writable folder") from None
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, target)
-    except BaseException as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise InputError(f"cannot write the report: {exc.strerror or exc}",
-                             Location(file=str(target)), expected="a writable file") from None
-        raise
-    return target
+                         Location(file=str(target)), expected="a writable folder and file") from None
 
 
 def atomic_write_text(path: str | os.PathLike, text: str) -> Path:

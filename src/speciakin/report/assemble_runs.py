@@ -171,7 +171,7 @@ def runs_section(objective: Any, fit: Any, posterior: Any, colors: SpeciesColors
     if objective is None:
         return Section(title, [Paragraph("Run plots: not available (no objective: the model and campaign "
                                          "were not combined for this report).")], anchor="runs")
-    from speciakin.report.figures import residuals_figure, time_course_figure, titrant_figure
+    from speciakin.report.figures import time_course_figure, titrant_figure
 
     theta, what = best_theta(objective, fit, posterior)
     blocks: list = []

@@ -32,7 +32,7 @@ def species_colours(names: Sequence[str]) -> dict[str, tuple[str, str]]:
 def _save(fig, path: Path) -> None:
     import io
 
-    from speciakin.cli._common import atomic_write_bytes
+    from speciakin._io import atomic_write_bytes
 
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=120)

@@ -1,0 +1,75 @@
+"""Time of the demo posterior and of the demo pH window (the decision step).
+
+Targets (project brief): demo posterior with at least 32 walkers, long enough
+for 50 autocorrelation times, in under 5 minutes on this 2-core machine; the
+window with 41 pH values x 500 draws in under 1 minute.  Both are measured in
+one run, after a warm-up call that excludes numba compilation; the script
+prints the figures, the ratios to the targets, the core count and the load
+average (the machine may be shared).
+
+Input: the bundled INVENTED demo campaign (speciakin.demo.demo_dir()).
+
+Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_posterior_window.py [--steps N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import time
+
+import numpy as np
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--steps", type=int, default=2500, help="posterior steps per walker")
+    parser.add_argument("--walkers", type=int, default=32)
+    args = parser.parse_args()
+
+    from speciakin import workflow
+    from speciakin.decision.campaign_window import COVARIANCE, window_for_campaign
+    from speciakin.decision.draws import draws_from_covariance
+    from speciakin.demo import demo_dir
+    from speciakin.estimation.campaign_fit import fit_campaign
+    from speciakin.estimation.campaign_posterior import sample_campaign
+
+    folder = demo_dir()
+    inputs = workflow.resolve_inputs(folder)
+    model, campaign, process = workflow.load_inputs(inputs)
+    objective = workflow.make_objective(model, campaign)
+    print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f}")
+    objective.log_likelihood_batch(np.repeat(objective.start[None, :], 2, axis=0))  # compile / warm up
+
+    t = time.perf_counter()
+    fit = fit_campaign(objective, starts=1, profiles=False)
+    t_fit = time.perf_counter() - t
+    print(f"fit (1 start, no profiles): {t_fit:.1f} s")
+
+    se = np.array([fit.fit.parameter(k).standard_error for k in fit.keys], float)
+    t = time.perf_counter()
+    post = sample_campaign(objective, fit.theta, se, n_walkers=args.walkers, n_steps=args.steps, seed=1,
+                           progress=False)
+    t_post = time.perf_counter() - t
+    tau = np.asarray(post.diagnostics.autocorrelation_time, float)
+    ratio = args.steps / np.nanmax(tau) if np.all(np.isfinite(tau)) else float("nan")
+    per_eval = t_post / max(post.n_likelihood_evaluations, 1) * 1e3
+    print(f"posterior: {args.walkers} walkers x {args.steps} steps in {t_post:.1f} s "
+          f"({per_eval:.2f} ms per likelihood evaluation of 6 runs); chain = {ratio:.0f} x the longest "
+          f"autocorrelation time (50 x needed); target 300 s -> ratio {t_post / 300:.2f}")
+
+    import dataclasses
+
+    draws = draws_from_covariance(fit.theta, fit.covariance, 500, 1).draws
+    plan = dataclasses.replace(process, second_factor=None, ph_from=3.0, ph_to=7.0, ph_step=0.1)
+    t = time.perf_counter()
+    result = window_for_campaign(objective, plan, draws, COVARIANCE)
+    t_win = time.perf_counter() - t
+    print(f"window: {result.ph.size} pH values x {result.n_draws} draws = "
+          f"{result.ph.size * result.n_draws} process simulations in {t_win:.1f} s "
+          f"({t_win / (result.ph.size * result.n_draws) * 1e3:.2f} ms each); target 60 s -> ratio {t_win / 60:.2f}")
+    print(f"load average at the end: {os.getloadavg()[0]:.2f}")
+
+
+if __name__ == "__main__":
+    main()
