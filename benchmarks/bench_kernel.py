@@ -12,6 +12,11 @@ Compared routes (same tolerances rtol 1e-6, atol 1e-10):
   * plain scipy solve_ivp (Radau) with a numpy right-hand side written here.
 Accuracy: outputs against a tight scipy reference (Radau, rtol 1e-11).
 
+Second workload: the campaign objective of the bundled demo
+(data_templates/demo: 4 held runs under a logged temperature profile with
+sampling withdrawals, 1 logged-pH run, 1 free-pH run): one set of weighted
+residuals on one core, and the log-likelihood of 32 sets over all cores.
+
 Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_kernel.py
 """
 
@@ -136,6 +141,44 @@ def scipy_evaluation(compiled, y0s, log10k, rtol, atol, data, sigma):
     return float(np.sum(-0.5 * z * z - np.log(sigma) - 0.5 * math.log(2 * math.pi))), outs
 
 
+def demo_objective() -> None:
+    """Time the campaign objective of the bundled (invented) demo campaign."""
+    from pathlib import Path
+
+    from speciakin.workflow import load_inputs, make_objective, resolve_inputs
+
+    folder = Path(__file__).resolve().parents[1] / "data_templates" / "demo"
+    if not folder.exists():
+        print("demo campaign not found; skipped")
+        return
+    model, campaign, _ = load_inputs(resolve_inputs(folder))
+    objective = make_objective(model, campaign)
+    theta = objective.start
+    objective.parallel = False
+    objective.residuals(theta)
+    reps = 20
+    t0 = time.perf_counter()
+    for _ in range(reps):
+        objective.residuals(theta)
+    one = (time.perf_counter() - t0) / reps
+    q_sets, off, fac = objective.kernel_inputs(theta[None, :])
+    res = simulate_batch(objective.compiled, objective.compiled_runs, q_sets, off, fac, objective.rtol,
+                         objective.atol, parallel=False)
+    rng = np.random.default_rng(7)
+    sets = theta + 0.01 * rng.standard_normal((32, theta.size)) * np.maximum(np.abs(theta), 1e-3)
+    objective.parallel = True
+    objective.log_likelihood_batch(sets)
+    t0 = time.perf_counter()
+    for _ in range(3):
+        ll = objective.log_likelihood_batch(sets)
+    batch = (time.perf_counter() - t0) / 3 / 32
+    print(f"demo campaign objective ({len(objective.compiled_runs.names)} runs, accepted steps "
+          f"{', '.join(str(s) for s in res.steps[0])}):")
+    print(f"  residuals, one set, one core:      {one * 1e3:8.3f} ms per evaluation")
+    print(f"  log-likelihood, 32 sets, all cores:{batch * 1e3:8.3f} ms per evaluation "
+          f"(finite: {int(np.sum(np.isfinite(ll)))}/32)")
+
+
 def main() -> None:
     model = build_model()
     compiled = compile_model(model)
@@ -209,6 +252,8 @@ def main() -> None:
     print(f"max deviation from reference (relative to each series' maximum): kernel {dev_kernel:.2e}, "
           f"scipy rtol 1e-6 {dev_scipy:.2e}  (target <= 1e-5)")
     print(f"log-likelihood: kernel {ll_serial[0]:.6f}, scipy {ll_scipy:.6f}")
+
+    demo_objective()
 
     # fresh process, cache present
     code = ("import time; t=time.perf_counter(); import numpy as np; "

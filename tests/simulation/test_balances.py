@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from sim_models import held, logged_constant, two_site_model, two_site_run
+from sim_models import held, two_site_model, two_site_run
 from speciakin.chemistry.model import Ion, Model, Molecule, PhControl, Run, Site, TemperatureProfile
 from speciakin.simulation import simulate
 

@@ -13,7 +13,8 @@ import hashlib
 import os
 from pathlib import Path
 
-KERNEL_MODULES = ("water_kernel", "speciation_kernel", "rhs_kernel", "integrator_kernel", "batch_kernel")
+KERNEL_MODULES = ("water_kernel", "speciation_kernel", "rhs_kernel", "rodas_tableau", "lu_kernel", "fixed_ph_kernel",
+                  "integrator_kernel", "batch_kernel")
 _STAMP = "speciakin_kernel_sources.sha256"
 
 

@@ -1,10 +1,13 @@
 """Compiled stiff integrator (Rodas4 Rosenbrock method) and the run driver.
 
 Rodas4: 6 stages, order 4 with an embedded order-3 estimate, L-stable and
-stiffly accurate.  The Jacobian is formed by forward differences each step;
-the time derivative (temperature ramps, logged pH) by a forward difference.
-Steps stop exactly at output times and at every discontinuity (dose start or
-end, instant events, knots of the temperature and pH logs).
+stiffly accurate.  The Jacobian is analytic in every pH mode
+(``rhs_kernel.analytic_jacobian``); the time derivative (temperature ramps,
+logged pH) is a forward difference.  Steps stop exactly at every
+discontinuity (dose start or end, instant events, knots of the temperature
+and pH logs); outputs in between come from the cubic Hermite interpolant of
+each step.  Segments at a fixed pH and temperature go to the mass-action
+path of ``fixed_ph_kernel``.
 
 Status codes (0 = success) are in :data:`STATUS_TEXT`.
 
@@ -37,6 +40,9 @@ from speciakin.simulation.rhs_kernel import (
     mean_charges,
     rhs,
 )
+from speciakin.simulation.fixed_ph_kernel import hermite, integrate_fixed
+from speciakin.simulation.lu_kernel import lu_factor, lu_solve
+from speciakin.simulation.rodas_tableau import ALPHA, GAMMA, GAMMAS, STAGE_A, STAGE_C, STAGE_M
 
 STATUS_OK = 0
 STATUS_MAX_STEPS = 1
@@ -55,102 +61,48 @@ STATUS_TEXT = {
     STATUS_VOLUME: "the volume became zero or negative (withdrawals exceed the liquid present)",
 }
 
-# Rodas4 coefficients in the transformed form (Hairer and Wanner [1]).
-_GAMMA = 0.25
-_ALPHA = np.array([0.0, 0.386, 0.21, 0.63, 1.0, 1.0])
-_GAMMAS = np.array([0.25, -0.1043, 0.1035, -0.3620000000000023e-01, 0.0, 0.0])
-_A = np.array([0.1544e+01, 0.9466785280815826, 0.2557011698983284, 0.3314825187068521e+01,
-               0.2896124015972201e+01, 0.9986419139977817, 0.1221224509226641e+01,
-               0.6019134481288629e+01, 0.1253708332932087e+02, -0.6878860361058950,
-               0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
-               -0.6878860361058950, 1.0])
-_C = np.array([-0.56688e+01, -0.2430093356833875e+01, -0.2063599157091915, -0.1073529058151375,
-               -0.9594562251023355e+01, -0.2047028614809616e+02, 0.7496443313967647e+01,
-               -0.1024680431464352e+02, -0.3399990352819905e+02, 0.1170890893206160e+02,
-               0.8083246795921522e+01, -0.7981132988064893e+01, -0.3152159432874371e+02,
-               0.1631930543123136e+02, -0.6058818238834054e+01])
-_M = np.array([0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
-               -0.6878860361058950, 1.0, 1.0])
+_GAMMA = GAMMA
+_ALPHA = ALPHA
+_GAMMAS = GAMMAS
+_A = STAGE_A
+_C = STAGE_C
+_M = STAGE_M
 MAX_STEPS = 100000
 
 
 @njit(cache=True)
-def lu_factor(a, piv):
-    """In-place LU with partial pivoting; returns False when singular."""
-    n = a.shape[0]
-    for k in range(n):
-        p = k
-        big = abs(a[k, k])
-        for i in range(k + 1, n):
-            if abs(a[i, k]) > big:
-                big = abs(a[i, k])
-                p = i
-        piv[k] = p
-        if big == 0.0 or not math.isfinite(big):
-            return False
-        if p != k:
-            for j in range(n):
-                tmp = a[k, j]
-                a[k, j] = a[p, j]
-                a[p, j] = tmp
-        inv = 1.0 / a[k, k]
-        for i in range(k + 1, n):
-            a[i, k] *= inv
-            f = a[i, k]
-            if f != 0.0:
-                for j in range(k + 1, n):
-                    a[i, j] -= f * a[k, j]
-    return True
-
-
-@njit(cache=True)
-def lu_solve(a, piv, b):
-    """Solve in place with the factors of :func:`lu_factor`."""
-    n = a.shape[0]
-    for k in range(n):
-        p = piv[k]
-        if p != k:
-            tmp = b[k]
-            b[k] = b[p]
-            b[p] = tmp
-    for i in range(n):
-        s = b[i]
-        for j in range(i):
-            s -= a[i, j] * b[j]
-        b[i] = s
-    for i in range(n - 1, -1, -1):
-        s = b[i]
-        for j in range(i + 1, n):
-            s -= a[i, j] * b[j]
-        b[i] = s / a[i, i]
-
-
-@njit(cache=True)
 def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
-                      nonautonomous, rtol, atol, scale, ws, counters):
+                      nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out):
     """Advance ``y`` in place from t0 to exactly t1 with Rodas4 [1]_.
 
-    Returns (status, next step size).  ``counters[0]`` counts accepted steps.
+    Outputs at times strictly inside (t0, t1) from index ``i_out`` are written
+    to ``out`` from the cubic Hermite interpolant of each step (pH from the
+    right-hand side at the interpolated state).
+
+    Returns (status, next step size, next output index).  ``counters[0]``
+    counts accepted steps.
     """
     n = y.shape[0]
-    nj = n - 1  # the titrant-consumed state never feeds back
     f0 = np.empty(n)
     ft = np.empty(n)
     fy = np.empty(n)
     ytmp = np.empty(n)
     ynew = np.empty(n)
+    f1 = np.empty(n)
+    temp_t = ctx[8]
+    temp_v = ctx[9]
+    temp_n = ctx[10]
     k = np.empty((6, n))
     jac = np.zeros((n, n))
     g = np.empty((n, n))
     piv = np.empty(n, dtype=np.int64)
     t = t0
     span = t1 - t0
-    analytic = ctx[0] != MODE_FREE and temperature_slope == 0.0
     if span <= 0.0:
-        return 0, h
+        return 0, h, i_out
     ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
-        return 3, h
+        return 3, h, i_out
     if h <= 0.0:
         d0 = 0.0
         d1 = 0.0
@@ -172,26 +124,14 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
         if need_eval:
             ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
             if math.isnan(ph):
-                return 3, h
+                return 3, h, i_out
         need_eval = True
-        if analytic:
-            analytic_jacobian(y, model, ws, ctx, jac)
-        # forward-difference Jacobian (free pH, temperature ramps)
-        for j in range(nj if not analytic else 0):
-            yj = y[j]
-            delta = 1.5e-8 * max(abs(yj), scale[j])
-            y[j] = yj + delta
-            ph = rhs(t, y, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-            y[j] = yj
-            if math.isnan(ph):
-                return 3, h
-            for i in range(n):
-                jac[i, j] = (fy[i] - f0[i]) / delta
+        analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
         if nonautonomous:
             dt = 1.5e-8 * max(abs(t), span)
             ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
             if math.isnan(ph):
-                return 3, h
+                return 3, h, i_out
             for i in range(n):
                 ft[i] = (ft[i] - f0[i]) / dt
         while True:
@@ -201,7 +141,7 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                 h = t1 - t
                 last = True
             if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-                return 2, h
+                return 2, h, i_out
             # G = I/(h*gamma) - J
             diag = 1.0 / (h * _GAMMA)
             for i in range(n):
@@ -209,7 +149,7 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                     g[i, j] = -jac[i, j]
                 g[i, i] += diag
             if not lu_factor(g, piv):
-                return 4, h
+                return 4, h, i_out
             failed = False
             for st in range(6):
                 if st == 0:
@@ -256,19 +196,39 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                 continue
             fac = 0.9 * err ** (-0.25) if err > 0.0 else 6.0
             if err <= 1.0:
+                t_new = t1 if last else t + h
+                if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
+                    # outputs inside this step: Hermite interpolation; t1 itself is left to the caller
+                    ph = rhs(t_new, ynew, f1, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+                    if math.isnan(ph):
+                        return 3, h, i_out
+                    while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
+                        tout = out_t[i_out]
+                        theta = (tout - t) / h
+                        for i in range(n):
+                            ytmp[i] = hermite(y, f0, ynew, f1, h, theta, i)
+                        ph = rhs(tout, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+                        if math.isnan(ph):
+                            return 3, h, i_out
+                        for i in range(n - 1):
+                            out[i_out, i] = ytmp[i]
+                        out[i_out, n - 1] = ph
+                        out[i_out, n] = ytmp[n - 1]
+                        out[i_out, n + 1] = interpolate(temp_t, temp_v, temp_n, tout)
+                        i_out += 1
                 for i in range(n):
                     y[i] = ynew[i]
-                t = t1 if last else t + h
+                t = t_new
                 counters[0] += 1
                 if counters[0] > MAX_STEPS:
-                    return 1, h
+                    return 1, h, i_out
                 h = h * min(6.0, max(0.2, fac))
                 if last:
                     # a step cut short to land on t1 says nothing against the larger step
                     h = max(h, wanted)
                 break
             h = h * min(1.0, max(0.1, fac))
-    return 0, h
+    return 0, h, i_out
 
 
 @njit(cache=True)
@@ -303,7 +263,6 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     y = y0_a[r].copy()
     for j in range(n_species):
         y[j] *= 1.0 + (amount_factor - 1.0) * substrate_mask[j]
-    scale = scale_a[r]
     dy = np.empty(n_state)
     feed_rate = np.zeros(n_species)
     info[0] = math.nan
@@ -367,10 +326,11 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             i_ev += 1
         while i_bp < n_bp and bp[i_bp] <= t:
             i_bp += 1
-        t_next = out_t[i_out]
-        if i_bp < n_bp and bp[i_bp] < t_next:
-            t_next = bp[i_bp]
-        tm = 0.5 * (t + t_next)
+        # a segment runs to the next breakpoint; conditions are constant or linear inside it
+        t_end = out_t[n_out - 1]
+        if i_bp < n_bp and bp[i_bp] < t_end:
+            t_end = bp[i_bp]
+        tm = 0.5 * (t + t_end)
         feed_volume_rate = 0.0
         for j in range(n_species):
             feed_rate[j] = 0.0
@@ -380,14 +340,27 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             if f0 < tm < f1:
                 feed_rate[feed_species_a[r, f]] += feed_amount_a[r, f] / (f1 - f0)
                 feed_volume_rate += feed_volume_a[r, f] / (f1 - f0)
-        temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_next)
-                      - interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)) / (t_next - t)
+        temp_here = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
+        temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_end) - temp_here) / (t_end - t)
         nonauto = temp_slope != 0.0
         if mode == 1:
-            if interpolate(log_t_a[r], log_v_a[r], log_n, t_next) != interpolate(log_t_a[r], log_v_a[r], log_n, t):
+            if interpolate(log_t_a[r], log_v_a[r], log_n, t_end) != interpolate(log_t_a[r], log_v_a[r], log_n, t):
                 nonauto = True
-        status, h = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
-                                      temp_slope, nonauto, rtol, atol, scale, ws, counters)
+        if mode != MODE_FREE and not nonauto:
+            # fixed pH and temperature: mass-action path with dense output
+            ph = rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, 0.0, ws)
+            if math.isnan(ph):
+                info[0] = t
+                return 3
+            status, h, i_out = integrate_fixed(t, t_end, y, h, model, ws, mode == MODE_HELD, ctx[3], titrant_conc,
+                                               feed_rate, feed_volume_rate, rtol, atol, out, out_t, i_out, n_out,
+                                               ph, temp_here, counters)
+            t_next = t_end
+        else:
+            t_next = t_end
+            status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
+                                                 temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
+                                                 i_out, n_out)
         info[1] = counters[0]
         if status != 0:
             info[0] = t

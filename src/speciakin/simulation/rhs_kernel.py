@@ -33,6 +33,7 @@ from numba import njit
 
 from speciakin.simulation.speciation_kernel import (
     GAS_CONSTANT,
+    LN10,
     all_populations,
     mean_charges,
     site_pka_at,
@@ -67,16 +68,50 @@ def interpolate(times, values, n, t):
 @njit(cache=True)
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
-    rate, cache, pka2, pops2, zbar2)."""
+    rate, cache, pka2, pops2, zbar2, dzbar_dT)."""
     cache = np.empty(8)
     cache[0] = math.nan  # temperature of the cached T-dependent values
     cache[1] = math.nan  # pKw at that temperature
     cache[2] = math.nan  # pH of the cached populations
     cache[3] = 7.0       # last pH (warm start of the charge balance)
+    cache[4] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
             np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)),
-            np.empty(max(n_micro, 1)), np.empty(max(n_mol, 1)))
+            np.empty(max(n_micro, 1)), np.empty(max(n_mol, 1)), np.zeros(max(n_mol, 1)))
+
+
+@njit(cache=True)
+def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start, micro_charge,
+                                   n_mol, dpka_dt, dzbar_dt):
+    """d zbar / dT [1/K] of every molecule at fixed pH.
+
+    With log10 w_s = sum_i s_i (pKa_i(T) - pH) - ..., and van 't Hoff
+    d pKa_i/dT = -dH_i / (R ln 10 T^2), the populations move as
+    d p_s/dT = ln 10 p_s (L_s - <L>), L_s = sum_i s_i d pKa_i/dT, so
+    d zbar/dT = ln 10 (<z L> - <z><L>) (Borkovec and Koper [2]_).
+    ``dpka_dt`` is scratch of length n_sites.
+    """
+    for i in range(enthalpy.shape[0]):
+        dpka_dt[i] = -enthalpy[i] * 1000.0 / (GAS_CONSTANT * LN10 * temperature * temperature)
+    for m in range(n_mol):
+        s0 = mol_site_start[m]
+        ns = mol_site_start[m + 1] - s0
+        m0 = mol_micro_start[m]
+        mean_z = 0.0
+        mean_l = 0.0
+        mean_zl = 0.0
+        for st in range(1 << ns):
+            slope = 0.0
+            for i in range(ns):
+                if (st >> i) & 1:
+                    slope += dpka_dt[s0 + i]
+            p = pops[m0 + st]
+            z = micro_charge[m0 + st]
+            mean_z += p * z
+            mean_l += p * slope
+            mean_zl += p * z * slope
+        dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)
 
 
 @njit(cache=True)
@@ -92,7 +127,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (pka_ref, enthalpy, inter_w, log10_k, ea) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
     n_sites = pka_ref.shape[0]
     n_steps = log10_k.shape[0]
     volume = y[n_species]
@@ -174,30 +209,18 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         for j in range(n_mol, n_species):
             num += species_charge[j] * dy[j]
         if temperature_slope != 0.0:
-            # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH, by a
-            # central difference in T
+            # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH: d zbar/dT exactly
+            # (mean_charge_temperature_slopes), d[OH-]/dT by a central difference of pKw
+            mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start,
+                                           micro_charge, n_mol, pka2, dzdt)
             dtemp = 1e-3
-            tp = temperature + dtemp
-            for i in range(n_sites):
-                pka2[i] = site_pka_at(pka_ref[i], enthalpy[i], tp, t_ref)
-            all_populations(pka2, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                            mol_inter_start, n_mol, ph, pops2)
-            mean_charges(pops2, micro_charge, micro_protons, mol_micro_start, n_mol, zbar2, variance)
-            dcharge = -volume * (10.0 ** (ph - pkw(tp)) - hydroxide)
+            # d[OH-]/dT at fixed pH [mol/(L*K)]
+            cache[4] = (10.0 ** (ph - pkw(temperature + dtemp)) - 10.0 ** (ph - pkw(temperature - dtemp))) / (
+                2.0 * dtemp)
+            dcharge = -volume * cache[4]
             for m in range(n_mol):
-                dcharge += y[m] * (zbar2[m] - zbar[m])
-            tm = temperature - dtemp
-            for i in range(n_sites):
-                pka2[i] = site_pka_at(pka_ref[i], enthalpy[i], tm, t_ref)
-            all_populations(pka2, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                            mol_inter_start, n_mol, ph, pops2)
-            mean_charges(pops2, micro_charge, micro_protons, mol_micro_start, n_mol, zbar2, variance)
-            dcharge += volume * (10.0 ** (ph - pkw(tm)) - hydroxide)
-            for m in range(n_mol):
-                dcharge -= y[m] * (zbar2[m] - zbar[m])
-            # restore variance of the held-pH populations
-            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
-            num += temperature_slope * dcharge / (2.0 * dtemp)
+                dcharge += y[m] * dzdt[m]
+            num += temperature_slope * dcharge
         denominator = species_charge[titrant] + excess / titrant_conc
         q = -num / denominator
         dy[titrant] += q
@@ -223,20 +246,29 @@ def charge_imbalance(y, model, ph, ws):
 
 
 @njit(cache=True)
-def analytic_jacobian(y, model, ws, ctx, jac):
-    """d(dy/dt)/dy for held or logged pH at constant temperature.
+def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
+    """d(dy/dt)/dy for held or logged pH (constant or ramped temperature).
 
     Uses the populations and rates left in ``ws`` by the last :func:`rhs`
     call at the same (t, y): with the pH fixed, every rate is a product of
-    concentrations times constant fractions, so the derivatives are exact.
-    Column of the titrant-consumed state is zero.
+    concentrations times fractions that depend on (pH, T) at time t only, so
+    the derivatives in y are exact.  Under a temperature ramp the held-pH
+    titrant rate has the extra term slope * (sum n_m dzbar_m/dT - V d[OH-]/dT),
+    linear in the amounts and the volume (dzbar/dT and d[OH-]/dT left in ``ws``
+    by :func:`rhs`).  Column of the titrant-consumed state is zero.
+
+    Free pH: the pH itself depends on the state through the charge balance
+    g(pH, y) = 0, so J = J_fixed pH + (df/dpH) (dpH/dy) with
+    dpH/dy_j = -(dg/dy_j) / (dg/dpH) (implicit function theorem) and
+    dp_s/dpH = ln 10 * p_s * (<N> - N_s) for a microstate with N_s bound
+    protons (Borkovec and Koper [2]_).
     """
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
@@ -295,7 +327,95 @@ def analytic_jacobian(y, model, ws, ctx, jac):
                 num += zbar[i] * jac[i, j]
             for i in range(n_mol, n_species):
                 num += species_charge[i] * jac[i, j]
+            if temperature_slope != 0.0:
+                if j < n_mol:
+                    num += temperature_slope * dzdt[j]
+                elif j == n_species:
+                    num -= temperature_slope * cache[4]
             dq = -num / denominator
             jac[titrant, j] += dq
             jac[n_species, j] += dq / titrant_conc
             jac[n_species + 1, j] = dq
+    if mode == 2:
+        _free_ph_coupling(y, model, ws, jac, ph, hydroxide)
+
+
+@njit(cache=True)
+def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
+    """Add (df/dpH)(dpH/dy) to ``jac`` for the free-pH mode (see :func:`analytic_jacobian`)."""
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
+    n = y.shape[0]
+    volume = y[n_species]
+    # dg/dpH [mol/L per pH unit]
+    dg = 10.0 ** (-ph) + hydroxide
+    for m in range(n_mol):
+        dg += conc[m] * variance[m]
+    dg *= -LN10
+    dfdph = np.zeros(n)
+    for s in range(step_logk_q.shape[0]):
+        dr = 0.0
+        for kk in range(react_start[s], react_start[s + 1]):
+            kind = react_kind[kk]
+            # derivative of factor kk with respect to pH
+            if kind == 0:
+                sp = react_species[kk]
+                if not (sp < n_mol and react_mask[kk] != 0):
+                    continue
+                m0 = mol_micro_start[sp]
+                mean_n = 0.0
+                for st in range(mol_micro_start[sp + 1] - m0):
+                    mean_n += pops[m0 + st] * micro_protons[m0 + st]
+                dfrac = 0.0
+                for st in range(mol_micro_start[sp + 1] - m0):
+                    if (st & react_mask[kk]) == react_value[kk]:
+                        dfrac += LN10 * pops[m0 + st] * (mean_n - micro_protons[m0 + st])
+                d = conc[sp] * dfrac
+            elif kind == 2:
+                d = LN10 * hydroxide
+            else:
+                continue
+            for k in range(react_start[s], react_start[s + 1]):
+                if k == kk:
+                    continue
+                kind2 = react_kind[k]
+                if kind2 == 0:
+                    sp = react_species[k]
+                    f = conc[sp]
+                    if sp < n_mol and react_mask[k] != 0:
+                        frac = 0.0
+                        m0 = mol_micro_start[sp]
+                        for st in range(mol_micro_start[sp + 1] - m0):
+                            if (st & react_mask[k]) == react_value[k]:
+                                frac += pops[m0 + st]
+                        f *= frac
+                    d *= f
+                elif kind2 == 2:
+                    d *= hydroxide
+            dr += d
+        vdr = volume * k_of_t[s] * dr
+        for k in range(react_start[s], react_start[s + 1]):
+            if react_kind[k] == 0:
+                dfdph[react_species[k]] -= react_coef[k] * vdr
+        for k in range(prod_start[s], prod_start[s + 1]):
+            dfdph[prod_species[k]] += prod_coef[k] * vdr
+    # dg/dy_j: amounts enter as concentrations
+    charge = 0.0
+    for m in range(n_mol):
+        charge += y[m] * zbar[m]
+    for j in range(n_mol, n_species):
+        charge += species_charge[j] * y[j]
+    for j in range(n_species + 1):
+        if j < n_mol:
+            gy = zbar[j] / volume
+        elif j < n_species:
+            gy = species_charge[j] / volume
+        else:
+            gy = -charge / (volume * volume)
+        dpdy = -gy / dg
+        if dpdy != 0.0:
+            for i in range(n):
+                jac[i, j] += dfdph[i] * dpdy

@@ -1,0 +1,64 @@
+"""Dense LU factorisation with partial pivoting for the small iteration matrices.
+
+References
+----------
+.. [1] Golub, G. H. and Van Loan, C. F., "Matrix Computations", 4th ed., Johns
+   Hopkins 2013, section 3.4 (Gaussian elimination with partial pivoting).
+"""
+
+from __future__ import annotations
+
+import math
+
+from numba import njit
+
+
+@njit(cache=True)
+def lu_factor(a, piv):
+    """In-place LU with partial pivoting; returns False when singular."""
+    n = a.shape[0]
+    for k in range(n):
+        p = k
+        big = abs(a[k, k])
+        for i in range(k + 1, n):
+            if abs(a[i, k]) > big:
+                big = abs(a[i, k])
+                p = i
+        piv[k] = p
+        if big == 0.0 or not math.isfinite(big):
+            return False
+        if p != k:
+            for j in range(n):
+                tmp = a[k, j]
+                a[k, j] = a[p, j]
+                a[p, j] = tmp
+        inv = 1.0 / a[k, k]
+        for i in range(k + 1, n):
+            a[i, k] *= inv
+            f = a[i, k]
+            if f != 0.0:
+                for j in range(k + 1, n):
+                    a[i, j] -= f * a[k, j]
+    return True
+
+
+@njit(cache=True)
+def lu_solve(a, piv, b):
+    """Solve in place with the factors of :func:`lu_factor`."""
+    n = a.shape[0]
+    for k in range(n):
+        p = piv[k]
+        if p != k:
+            tmp = b[k]
+            b[k] = b[p]
+            b[p] = tmp
+    for i in range(n):
+        s = b[i]
+        for j in range(i):
+            s -= a[i, j] * b[j]
+        b[i] = s
+    for i in range(n - 1, -1, -1):
+        s = b[i]
+        for j in range(i + 1, n):
+            s -= a[i, j] * b[j]
+        b[i] = s / a[i, i]

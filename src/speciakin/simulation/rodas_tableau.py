@@ -1,0 +1,34 @@
+"""Rodas4 coefficients in the transformed form (shared by both integrator paths).
+
+References
+----------
+.. [1] Hairer, E. and Wanner, G., "Solving Ordinary Differential Equations II.
+   Stiff and Differential-Algebraic Problems", 2nd ed., Springer 1996,
+   section IV.7 (RODAS, Table 7.3; transformed form W = I/(h*gamma) - J,
+   eq. 7.25).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+GAMMA = 0.25
+#: stage times alpha_i
+ALPHA = np.array([0.0, 0.386, 0.21, 0.63, 1.0, 1.0])
+#: gamma_i of the non-autonomous term
+GAMMAS = np.array([0.25, -0.1043, 0.1035, -0.3620000000000023e-01, 0.0, 0.0])
+#: a_ij (lower triangle, row by row) of the stage values
+STAGE_A = np.array([0.1544e+01, 0.9466785280815826, 0.2557011698983284, 0.3314825187068521e+01,
+                    0.2896124015972201e+01, 0.9986419139977817, 0.1221224509226641e+01,
+                    0.6019134481288629e+01, 0.1253708332932087e+02, -0.6878860361058950,
+                    0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
+                    -0.6878860361058950, 1.0])
+#: c_ij (lower triangle, row by row) of the stage right-hand sides
+STAGE_C = np.array([-0.56688e+01, -0.2430093356833875e+01, -0.2063599157091915, -0.1073529058151375,
+                    -0.9594562251023355e+01, -0.2047028614809616e+02, 0.7496443313967647e+01,
+                    -0.1024680431464352e+02, -0.3399990352819905e+02, 0.1170890893206160e+02,
+                    0.8083246795921522e+01, -0.7981132988064893e+01, -0.3152159432874371e+02,
+                    0.1631930543123136e+02, -0.6058818238834054e+01])
+#: weights m_i of the solution
+STAGE_M = np.array([0.1221224509226641e+01, 0.6019134481288629e+01, 0.1253708332932087e+02,
+                    -0.6878860361058950, 1.0, 1.0])
