@@ -32,7 +32,8 @@ bench: $(STAMP)
 	$(PY) benchmarks/run_all.py
 
 example-report: $(STAMP)
-	$(VENV)/bin/speciakin demo --out reports/example --seed 20261201
+	rm -rf reports/example
+	$(VENV)/bin/speciakin demo --out reports/example --seed 20261201 --steps 2000 --quiet
 
 clean:
 	rm -rf $(VENV) .pytest_cache .hypothesis .numba_cache reports/demo

@@ -17,6 +17,13 @@ from typing import Iterator
 __all__ = ["atomic_path", "atomic_write_bytes", "atomic_write_text"]
 
 
+def _default_mode() -> int:
+    """Permissions of a new file under the current umask (mkstemp makes 0600 files)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def _fsync_dir(folder: Path) -> None:
     try:
         fd = os.open(folder, os.O_RDONLY)
@@ -45,6 +52,7 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
         yield Path(tmp)
         with open(tmp, "rb+") as raw:
             os.fsync(raw.fileno())
+        os.chmod(tmp, _default_mode())
         os.replace(tmp, target)
         _fsync_dir(target.parent)
     except BaseException:
@@ -65,6 +73,7 @@ def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> Path:
             handle.write(data)
             handle.flush()
             os.fsync(handle.fileno())
+        os.chmod(tmp, _default_mode())
         os.replace(tmp, target)
     except BaseException:
         try:
