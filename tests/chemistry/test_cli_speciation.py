@@ -103,7 +103,7 @@ def test_titrate_bad_input(args, fragment, capsys):
 
 
 def test_speciate_from_model_file(tmp_path, capsys):
-    modelfile = pytest.importorskip("speciakin.chemistry.modelfile")
+    from speciakin.chemistry import modelfile
     from speciakin.chemistry.model import Model, Molecule, Quantity, Site
 
     model = Model("demo", (Molecule("S", (Site("N1", "base", Quantity(9.3, "", "pKa.S.N1")),

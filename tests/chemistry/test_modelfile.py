@@ -278,7 +278,7 @@ def test_summary_shows_the_scheme():
 
 
 def test_prior_names_agree_with_the_estimation_registry():
-    priors = pytest.importorskip("speciakin.estimation.priors")
+    from speciakin.estimation import priors
     from speciakin.chemistry.modelfile_quantity import PRIOR_PARAMETERS
     for family, names in PRIOR_PARAMETERS.items():
         assert family in priors.PRIOR_FAMILIES
