@@ -44,7 +44,7 @@ import numpy as np
 
 from speciakin.chemistry import microstates as ms
 from speciakin.chemistry import water
-from speciakin.chemistry.model import Model, Molecule
+from speciakin.chemistry.model import ACTIVITY_MODELS, Model, Molecule
 from speciakin.errors import InputError, Location, SolverError
 
 __all__ = [
@@ -56,11 +56,6 @@ __all__ = [
     "solve_model_ph",
 ]
 
-#: Activity options: name -> description (one registry for parsing and docs).
-ACTIVITY_MODELS: Mapping[str, str] = {
-    "ideal": "activity coefficients equal to 1",
-    "davies": "Davies (1962) equation, ionic strength iterated to self-consistency",
-}
 
 _MAX_ITERATIONS = 200
 _MAX_IONIC_STRENGTH_ITERATIONS = 100

@@ -47,6 +47,8 @@ __all__ = [
     "TemperatureProfile",
     "Run",
     "PH_MODES",
+    "ACTIVITY_MODELS",
+    "MOLECULE_ROLES",
 ]
 
 
@@ -77,6 +79,15 @@ PSEUDO_REACTANTS = ("water", "hydroxide")
 #: pH modes of a run.
 PH_MODES = ("held", "logged", "free")
 
+#: Activity options: name -> description (one registry for parsing, solvers and docs).
+ACTIVITY_MODELS: Mapping[str, str] = MappingProxyType({
+    "ideal": "activity coefficients equal to 1",
+    "davies": "Davies (1962) equation, ionic strength iterated to self-consistency",
+})
+
+#: Roles a molecule may have (free-text tags checked by the model-file validator).
+MOLECULE_ROLES = ("substrate", "reagent", "product", "byproduct", "acid", "buffer")
+
 
 @dataclass(frozen=True)
 class Prior:
@@ -102,7 +113,8 @@ class Quantity:
     unit
         Unit text of ``value`` for reports, e.g. ``"log10(L/(mol*s))"``.
     name
-        Unique parameter name, e.g. ``"pKa.S.N_alkyl"`` or ``"log10k.acylation_N1"``.
+        Unique parameter name, e.g. ``"pKa[S.N_alkyl]"`` or ``"log10k[acylation_N1]"``
+        (the model file's naming rule, docs/model-file.md).
     fit
         True when the estimation layer fits it; the simulator ignores this.
     lower, upper

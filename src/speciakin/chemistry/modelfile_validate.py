@@ -13,6 +13,8 @@ from collections import Counter
 from typing import Any
 
 from speciakin.chemistry.model import (
+    ACTIVITY_MODELS,
+    MOLECULE_ROLES,
     PH_MODES,
     PSEUDO_REACTANTS,
     SITE_KINDS,
@@ -28,12 +30,6 @@ from speciakin.errors import Location, Problem, ProblemCollector
 
 __all__ = ["validate_model", "ACTIVITY_MODELS", "MOLECULE_ROLES", "hydrolysis_step_name",
            "PH_RANGE"]
-
-#: Activity corrections a model may name.
-ACTIVITY_MODELS = ("ideal", "davies")
-
-#: Roles a molecule may carry (empty = not stated).
-MOLECULE_ROLES = ("substrate", "reagent", "product", "byproduct", "acid", "buffer")
 
 #: Range of pH values accepted for setpoints and logs.
 PH_RANGE = (0.0, 14.0)
