@@ -19,8 +19,11 @@ $(STAMP): pyproject.toml | $(PY)
 
 install: $(STAMP)
 
-demo: $(STAMP)
-	$(VENV)/bin/speciakin demo --out reports/demo
+demo:
+	@start=$$(date +%s); \
+	$(MAKE) --no-print-directory install && \
+	$(VENV)/bin/speciakin demo --out reports/demo && \
+	echo "make demo: $$(( $$(date +%s) - start )) s in all, install included"
 
 test: $(STAMP)
 	$(PY) -m pytest -q -m "not slow"
