@@ -1,6 +1,6 @@
 """Time of the global campaign fit and of its profile likelihoods.
 
-Targets (from the project brief): the fit of the bundled demo campaign in
+Targets (issue "global least-squares fit"): the fit of the bundled demo campaign in
 under 30 s, fit plus profiles of every fitted parameter in under 3 min.
 
 Input: the INVENTED demo campaign in data_templates/demo (model.toml +

@@ -1,6 +1,6 @@
 """Time of the demo posterior and of the demo pH window (the decision step).
 
-Targets (project brief): demo posterior with at least 32 walkers, long enough
+Targets (issue "posterior and pH window"): demo posterior with at least 32 walkers, long enough
 for 50 autocorrelation times, in under 5 minutes on this 2-core machine; the
 window with 41 pH values x 500 draws in under 1 minute.  Both are measured in
 one run, after a warm-up call that excludes numba compilation; the script
