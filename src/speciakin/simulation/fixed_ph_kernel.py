@@ -36,7 +36,7 @@ import math
 import numpy as np
 from numba import njit
 
-from speciakin.simulation.rodas_tableau import GAMMA, STAGE_A, STAGE_C, STAGE_M
+from speciakin.simulation.rodas_tableau import GAMMA, STAGE_A, STAGE_C, STAGE_M, initial_step
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 
 MAX_STEPS = 100000
@@ -243,20 +243,7 @@ def integrate_fixed(t0, t1, y, h, model, ws, held, titrant, titrant_conc, feed_r
                      titrant, titrant_conc, denominator, vr):
         return 3, h, i_out
     if h <= 0.0:
-        # initial step from the sizes of y and f (Hairer, Norsett and Wanner [2], II.4)
-        d0 = 0.0
-        d1 = 0.0
-        for i in range(n):
-            sc = atol + rtol * abs(y[i])
-            d0 += (y[i] / sc) ** 2
-            d1 += (f0[i] / sc) ** 2
-        d0 = math.sqrt(d0 / n)
-        d1 = math.sqrt(d1 / n)
-        if d0 < 1e-5 or d1 < 1e-5:
-            h = 1e-6 * span
-        else:
-            h = 0.01 * d0 / d1
-        h = min(max(h, 1e-3 * span), span)
+        h = initial_step(y, f0, n, atol, rtol, span)
     t = t0
     jac_fresh = False
     while t < t1:

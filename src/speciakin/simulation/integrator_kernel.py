@@ -42,7 +42,7 @@ from speciakin.simulation.rhs_kernel import (
 )
 from speciakin.simulation.fixed_ph_kernel import hermite, integrate_fixed
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
-from speciakin.simulation.rodas_tableau import ALPHA, GAMMA, GAMMAS, STAGE_A, STAGE_C, STAGE_M
+from speciakin.simulation.rodas_tableau import ALPHA, GAMMA, GAMMAS, STAGE_A, STAGE_C, STAGE_M, initial_step
 
 STATUS_OK = 0
 STATUS_MAX_STEPS = 1
@@ -104,21 +104,7 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     if math.isnan(ph):
         return 3, h, i_out
     if h <= 0.0:
-        d0 = 0.0
-        d1 = 0.0
-        for i in range(n):
-            sc = atol + rtol * abs(y[i])
-            d0 += (y[i] / sc) ** 2
-            d1 += (f0[i] / sc) ** 2
-        d0 = math.sqrt(d0 / n)
-        d1 = math.sqrt(d1 / n)
-        if d0 < 1e-5 or d1 < 1e-5:
-            h = 1e-6 * span
-        else:
-            h = 0.01 * d0 / d1
-        # the error test rejects a start that is too bold at the cost of one step;
-        # a timid start costs a dozen steps of growth
-        h = min(max(h, 1e-3 * span), span)
+        h = initial_step(y, f0, n, atol, rtol, span)
     need_eval = False
     while t < t1:
         if need_eval:

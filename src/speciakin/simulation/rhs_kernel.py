@@ -114,6 +114,29 @@ def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, 
         dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)
 
 
+@njit(cache=True, inline="always")
+def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_mask, react_value,
+                    mol_micro_start, n_mol):
+    """Rate-law factor of reactant ``k``: concentration x fraction of its
+    microstates that meet the site requirements [mol/L]; [OH-] for hydroxide;
+    1 for water."""
+    kind = react_kind[k]
+    if kind == 2:
+        return hydroxide
+    if kind != 0:
+        return 1.0
+    sp = react_species[k]
+    f = conc[sp]
+    if sp < n_mol and react_mask[k] != 0:
+        frac = 0.0
+        m0 = mol_micro_start[sp]
+        for st in range(mol_micro_start[sp + 1] - m0):
+            if (st & react_mask[k]) == react_value[k]:
+                frac += pops[m0 + st]
+        f *= frac
+    return f
+
+
 @njit(cache=True)
 def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws):
     """Evaluate dy/dt at (t, y); returns the pH used (NaN on failure, dy = NaN).
@@ -175,20 +198,8 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     for s in range(n_steps):
         r = k_of_t[s]
         for k in range(react_start[s], react_start[s + 1]):
-            kind = react_kind[k]
-            if kind == 0:
-                sp = react_species[k]
-                f = conc[sp]
-                if sp < n_mol and react_mask[k] != 0:
-                    frac = 0.0
-                    m0 = mol_micro_start[sp]
-                    for st in range(mol_micro_start[sp + 1] - m0):
-                        if (st & react_mask[k]) == react_value[k]:
-                            frac += pops[m0 + st]
-                    f *= frac
-                r *= f
-            elif kind == 2:
-                r *= hydroxide
+            r *= reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_mask, react_value,
+                                 mol_micro_start, n_mol)
         rate[s] = r
     for j in range(n_species):
         dy[j] = feed_rate[j]
@@ -381,20 +392,8 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
             for k in range(react_start[s], react_start[s + 1]):
                 if k == kk:
                     continue
-                kind2 = react_kind[k]
-                if kind2 == 0:
-                    sp = react_species[k]
-                    f = conc[sp]
-                    if sp < n_mol and react_mask[k] != 0:
-                        frac = 0.0
-                        m0 = mol_micro_start[sp]
-                        for st in range(mol_micro_start[sp + 1] - m0):
-                            if (st & react_mask[k]) == react_value[k]:
-                                frac += pops[m0 + st]
-                        f *= frac
-                    d *= f
-                elif kind2 == 2:
-                    d *= hydroxide
+                d *= reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_mask,
+                                     react_value, mol_micro_start, n_mol)
             dr += d
         vdr = volume * k_of_t[s] * dr
         for k in range(react_start[s], react_start[s + 1]):
