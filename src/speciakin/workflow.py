@@ -172,15 +172,33 @@ def load_fit(out: Path):
 
 
 def sample_step(objective, fit, out: Path, *, n_steps: int = 3000, n_walkers: int | None = None,
-                seed: int = 1, resume: bool = False, jobs: int = 1, scheduler=None, progress=True):
+                seed: int = 1, resume: bool = False, jobs: int = 1, scheduler=None, progress=True,
+                proposal: str | None = None):
     """Posterior by emcee from the least-squares optimum; checkpoints to
-    ``posterior.h5``; writes ``posterior.json``; returns PosteriorResult."""
-    from speciakin.estimation.campaign_posterior import sample_campaign
+    ``posterior.h5``; writes ``posterior.json``; returns PosteriorResult.
+
+    The fit's covariance (widened to the profile intervals where they are
+    wider or open) shapes the moves (``proposal`` None or "laplace"); when it
+    is missing or not positive definite the stretch move is used and the
+    result's warnings say why.  ``proposal="stretch"`` forces the stretch
+    move."""
+    from speciakin.estimation.campaign_posterior import proposal_covariance_from_fit, sample_campaign
 
     se = np.array([fit.fit.parameter(k).standard_error or np.nan for k in fit.keys], float)
+    note = None
+    covariance = None
+    if proposal != "stretch":
+        covariance, note = proposal_covariance_from_fit(fit)
+        if covariance is None:
+            if proposal == "laplace":
+                raise InputError("the 'laplace' proposal needs the fit covariance", Location(key="proposal"),
+                                 proposal, "a fit with a positive-definite covariance, or the stretch move")
+            proposal = "stretch"
     result = sample_campaign(objective, fit.theta, se, n_walkers=n_walkers, n_steps=n_steps, seed=seed,
                              checkpoint=out / "posterior.h5", resume=resume, jobs=jobs, scheduler=scheduler,
-                             progress=progress)
+                             progress=progress, covariance=covariance, proposal=proposal)
+    if note:
+        result.warnings.insert(0, note)
     data = result.to_dict()
     data["software_version"] = __version__
     data["command"] = command_line()

@@ -9,6 +9,7 @@ EPILOG = """example:
   speciakin sample my-campaign --steps 4000 --jobs 2
   speciakin sample my-campaign --resume                 # continue an interrupted run
   speciakin sample my-campaign --scheduler tcp://10.0.0.5:8786   # an existing Dask cluster
+  speciakin sample my-campaign --proposal stretch       # the stretch move only (no fit covariance used)
 
 starts from fit.json in the output folder (runs the fit first when there is none);
 writes posterior.h5 (checkpoint), posterior.json, posterior.txt and figures/."""
@@ -25,6 +26,10 @@ def add_arguments(parser) -> None:
     parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the likelihood")
     parser.add_argument("--scheduler", metavar="ADDRESS", help="address of an existing Dask distributed scheduler")
     parser.add_argument("--resume", action="store_true", help="continue from the checkpoint in the output folder")
+    parser.add_argument("--proposal", metavar="NAME", default=None,
+                        help="move choice (default: 'laplace' = independence Student-t from the fit "
+                             "covariance + differential evolution when fit.json has a usable covariance, "
+                             "else 'stretch'); the names are listed in docs/sampling.md")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -36,6 +41,12 @@ def run(args) -> int:
     for key, value, minimum in (("--steps", args.steps, 10), ("--jobs", args.jobs, 1)):
         if value < minimum:
             raise InputError(f"{key} is too small", Location(key=key), value, f"an integer >= {minimum}")
+    if args.proposal is not None:
+        from speciakin.estimation.proposals import PROPOSALS
+
+        if args.proposal not in PROPOSALS:
+            raise InputError("unknown move choice", Location(key="--proposal"), args.proposal,
+                             "one of " + ", ".join(PROPOSALS))
     inputs = workflow.resolve_inputs(args.campaign, args.model)
     model, campaign, _ = workflow.load_inputs(inputs)
     objective = workflow.make_objective(model, campaign)
@@ -46,7 +57,8 @@ def run(args) -> int:
         fit = workflow.fit_step(objective, out, profiles=False)
     result = workflow.sample_step(objective, fit, out, n_steps=args.steps, n_walkers=args.walkers,
                                   seed=args.seed, resume=args.resume, jobs=args.jobs,
-                                  scheduler=args.scheduler, progress=not args.quiet)
+                                  scheduler=args.scheduler, progress=not args.quiet,
+                                  proposal=args.proposal)
     workflow.posterior_figures(result, out)
     print(result.report())
     print(f"\nwritten: {out / 'posterior.json'}, {out / 'posterior.h5'}, {out / 'figures'}")

@@ -1,9 +1,12 @@
 """Posterior of a campaign: priors from the model file, emcee on the campaign objective.
 
 The likelihood is :meth:`CampaignObjective.log_likelihood_batch` (all walkers
-of a stretch-move half-step go to the compiled simulator in one batch, spread
-over the cores); priors come from the model file, with the project defaults
-where the chemist stated none (see :func:`campaign_priors`).
+a move updates at once go to the compiled simulator in one batch, spread over
+the cores); priors come from the model file, with the project defaults where
+the chemist stated none (see :func:`campaign_priors`).  Given the
+least-squares covariance, the sampler mixes an independence Student-t move
+centred at the optimum with differential evolution
+(:mod:`speciakin.estimation.proposals`); without it, the stretch move.
 """
 
 from __future__ import annotations
@@ -15,9 +18,11 @@ from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError, Location
 from speciakin.estimation.objective import CampaignObjective
 from speciakin.estimation.priors import build_prior, default_pka_shift_prior
+from speciakin.estimation.proposals import proposal_cholesky
 from speciakin.estimation.sampling import PosteriorResult, sample_posterior
 
-__all__ = ["campaign_priors", "sample_campaign", "DEFAULT_WALKERS_PER_PARAMETER"]
+__all__ = ["campaign_priors", "sample_campaign", "usable_fit_covariance", "widen_to_intervals",
+           "proposal_covariance_from_fit", "DEFAULT_WALKERS_PER_PARAMETER"]
 
 #: Walkers per fitted parameter (at least 32 walkers in all; common practice for emcee).
 DEFAULT_WALKERS_PER_PARAMETER = 4
@@ -50,10 +55,108 @@ def campaign_priors(objective: CampaignObjective) -> list:
     return priors
 
 
+def usable_fit_covariance(covariance, n_params: int) -> tuple[np.ndarray | None, str | None]:
+    """The least-squares covariance if it can shape a proposal, else None and the reason.
+
+    Parameters
+    ----------
+    covariance
+        (n_params, n_params) covariance in fit order, or None when the fit
+        could not compute one.
+    n_params
+        Number of fitted parameters.
+
+    Returns
+    -------
+    covariance, note
+        ``(matrix, None)`` when the matrix is finite, symmetric and positive
+        definite; ``(None, reason)`` otherwise (the caller then samples with
+        the stretch move and reports the reason).
+    """
+    if covariance is None:
+        return None, "the fit has no covariance matrix: sampled with the stretch move (slower mixing)"
+    try:
+        proposal_cholesky(covariance, n_params, key="fit covariance")
+    except InputError as exc:
+        return None, (f"the fit covariance cannot shape the proposal ({exc.args[0] if exc.args else exc}): "
+                      "sampled with the stretch move (slower mixing)")
+    return np.asarray(covariance, dtype=float), None
+
+
+def widen_to_intervals(covariance: np.ndarray, lower, upper, level: float = 0.95) -> np.ndarray:
+    """Covariance whose standard deviations cover given intervals, correlations kept.
+
+    For each parameter j with a finite interval ``[lower_j, upper_j]`` the
+    standard deviation becomes ``max(sd_j, (upper_j - lower_j) / (2 z))`` with
+    ``z`` the normal quantile of ``level`` (1.96 for 95 %); the correlation
+    matrix is unchanged, so the result stays positive definite.  Used to give
+    the independence proposal room along a parameter whose likelihood profile
+    is much wider (or open) than the curvature at the optimum says.
+
+    Parameters
+    ----------
+    covariance
+        (n, n) symmetric positive-definite covariance.
+    lower, upper
+        (n,) interval ends (NaN = no interval for that parameter).
+    level
+        Probability content of the intervals.
+
+    Returns
+    -------
+    numpy.ndarray
+        (n, n) covariance.
+
+    References
+    ----------
+    Normal quantile: Abramowitz and Stegun, Handbook of Mathematical
+    Functions, 1964, table 26.5 (z = 1.95996 for 0.975).
+    """
+    from scipy.stats import norm
+
+    c = np.asarray(covariance, dtype=float)
+    sd = np.sqrt(np.diag(c))
+    correlation = c / np.outer(sd, sd)
+    z = float(norm.ppf(0.5 + 0.5 * level))
+    width = (np.asarray(upper, dtype=float) - np.asarray(lower, dtype=float)) / (2 * z)
+    new_sd = np.where(np.isfinite(width) & (width > sd), width, sd)
+    return correlation * np.outer(new_sd, new_sd)
+
+
+def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
+    """Covariance for the independence proposal from a campaign fit, or None and the reason.
+
+    The least-squares covariance (fit order), checked by
+    :func:`usable_fit_covariance`, then widened by :func:`widen_to_intervals`
+    to the profile-likelihood intervals where the fit has them; an open
+    profile end is replaced by the parameter's bound (the edge of its uniform
+    prior).  Without profiles the covariance is used as it is.
+    """
+    try:
+        raw = fit.covariance
+    except (ValueError, IndexError, AttributeError, TypeError):  # no covariance for these keys
+        raw = None
+    covariance, note = usable_fit_covariance(raw, len(fit.keys))
+    if covariance is None:
+        return None, note
+    lower, upper = np.full(len(fit.keys), np.nan), np.full(len(fit.keys), np.nan)
+    for j, row in enumerate(fit.rows()):
+        lo, hi = row["profile_interval"]
+        bounds = row["bounds"]
+        if row["profile_open_below"]:
+            lo = bounds[0]
+        if row["profile_open_above"]:
+            hi = bounds[1]
+        lower[j] = np.nan if lo is None else lo
+        upper[j] = np.nan if hi is None else hi
+    return widen_to_intervals(covariance, lower, upper, float(getattr(fit.fit, "level", 0.95) or 0.95)), None
+
+
 def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale: np.ndarray, *,
                     n_walkers: int | None = None, n_steps: int = 3000, seed: int = 1,
                     checkpoint=None, resume: bool = False, jobs: int = 1, scheduler=None,
-                    progress=True, checkpoint_every: float = 30.0) -> PosteriorResult:
+                    progress=True, checkpoint_every: float = 30.0, covariance=None,
+                    proposal: str | None = None) -> PosteriorResult:
     """Sample the posterior of the campaign's fitted parameters.
 
     Parameters
@@ -69,6 +172,12 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
         Steps per walker.
     checkpoint, resume, jobs, scheduler, progress, checkpoint_every
         See :func:`speciakin.estimation.sampling.sample_posterior`.
+    covariance
+        (n_params, n_params) least-squares covariance in fit order (fitted
+        scale), symmetric positive definite; builds the ``"laplace"`` moves.
+    proposal
+        Move choice (``proposals.PROPOSALS``); None = ``"laplace"`` when
+        ``covariance`` is given, else ``"stretch"``.
 
     Returns
     -------
@@ -89,4 +198,5 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
     return sample_posterior(objective, objective.names, campaign_priors(objective), np.asarray(start, float),
                             scale, n_walkers=n_walkers, n_steps=n_steps, seed=seed, checkpoint=checkpoint,
                             resume=resume, jobs=jobs, scheduler=scheduler, progress=progress,
-                            checkpoint_every=checkpoint_every)
+                            checkpoint_every=checkpoint_every, proposal=proposal,
+                            proposal_covariance=covariance)

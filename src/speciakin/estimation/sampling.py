@@ -1,4 +1,4 @@
-"""Posterior sampling with the affine-invariant ensemble sampler (emcee).
+"""Posterior sampling with emcee's ensemble sampler.
 
 :func:`sample_posterior` is generic: it needs a batched log-likelihood
 ``f(theta) -> log L`` with ``theta`` of shape (n_sets, n_params) and a result
@@ -7,7 +7,10 @@ one prior per parameter and a starting point (the least-squares optimum with
 its standard errors).  It adds the log-prior, hands whole half-ensembles to
 the likelihood in one batch (``vectorize=True``), optionally splits each batch
 over local processes or a Dask cluster, checkpoints to disk and resumes, and
-returns a :class:`PosteriorResult`.
+returns a :class:`PosteriorResult`.  The moves are chosen by name from
+:data:`speciakin.estimation.proposals.PROPOSALS`: the stretch move, or (given
+the least-squares covariance) an independence Student-t move mixed with
+differential evolution.
 
 References
 ----------
@@ -37,6 +40,7 @@ from speciakin.estimation.diagnostics import (ConvergenceDiagnostics, autocorrel
                                               choose_burn_in_and_thin, convergence_diagnostics)
 from speciakin.estimation.parallel import make_evaluator
 from speciakin.estimation.priors import PriorDistribution, build_prior, joint_log_prior
+from speciakin.estimation.proposals import PROPOSALS, build_moves, proposal_fingerprint
 
 __all__ = ["sample_posterior", "LogPosterior", "initial_walkers", "PosteriorResult",
            "ParameterSummary", "summarise"]
@@ -128,6 +132,10 @@ class PosteriorResult:
         Counts in this call (a resumed run counts only its own part).
     resumed_from
         Stored steps loaded from a checkpoint, or None for a fresh run.
+    proposal
+        Name of the move choice (a key of ``proposals.PROPOSALS``).
+    moves
+        Plain-words description of the moves and their weights.
     """
 
     parameter_names: list[str]
@@ -150,6 +158,8 @@ class PosteriorResult:
     n_likelihood_evaluations: int = 0
     n_failed_evaluations: int = 0
     resumed_from: int | None = None
+    proposal: str = "stretch"
+    moves: str = PROPOSALS["stretch"].describe
 
     @property
     def converged(self) -> bool:
@@ -183,6 +193,7 @@ class PosteriorResult:
                  f"{self.n_walkers} walkers x {self.n_steps} steps (stored every {self.thin_by}), "
                  f"burn-in {self.burn_in} stored steps, thinned by {self.thin}, "
                  f"{self.samples.shape[0]} samples kept; seed {self.seed}; likelihood: {self.evaluator}",
+                 f"moves ({self.proposal}): {self.moves}",
                  head]
         for s in self.summary:
             lines.append(f"{s.name:<28}{s.mean:>11.4g}{s.sd:>10.3g}{s.median:>11.4g}"
@@ -199,7 +210,8 @@ class PosteriorResult:
                 "n_steps": self.n_steps, "thin_by": self.thin_by, "seed": self.seed,
                 "evaluator": self.evaluator, "elapsed_seconds": self.elapsed_seconds,
                 "n_likelihood_evaluations": self.n_likelihood_evaluations,
-                "n_failed_evaluations": self.n_failed_evaluations, "resumed_from": self.resumed_from}
+                "n_failed_evaluations": self.n_failed_evaluations, "resumed_from": self.resumed_from,
+                "proposal": self.proposal, "moves": self.moves}
 
     def to_dict(self) -> dict:
         """JSON-ready summary (no chain; non-finite numbers become None)."""
@@ -369,16 +381,24 @@ def _check_inputs(parameter_names, priors, start, start_scale, n_walkers, n_step
     return names, built, start, scale, notes
 
 
-def _settings(names, n_walkers, thin_by, seed) -> dict:
+def _settings(names, n_walkers, thin_by, seed, proposal, fingerprint) -> dict:
     return {"parameter_names": names, "n_walkers": int(n_walkers), "thin_by": int(thin_by),
-            "seed": None if seed is None else int(seed)}
+            "seed": None if seed is None else int(seed), "proposal": proposal,
+            "proposal_fingerprint": fingerprint}
 
 
 def _check_resumable(cp: Checkpoint, settings: dict, path: Path) -> None:
-    for key in ("parameter_names", "n_walkers", "thin_by", "seed"):
-        if cp.settings.get(key) != settings[key]:
-            raise InputError(f"checkpoint belongs to a different run: '{key}' differs",
-                             Location(file=str(path), key=key), cp.settings.get(key),
+    saved = dict(cp.settings)
+    if "proposal" not in saved:  # checkpoints written before the move choice existed: stretch move
+        saved["proposal"] = "stretch"
+        saved["proposal_fingerprint"] = proposal_fingerprint("stretch", None, None)
+    for key in ("parameter_names", "n_walkers", "thin_by", "seed", "proposal", "proposal_fingerprint"):
+        if saved.get(key) != settings[key]:
+            extra = {"proposal_fingerprint": " (the start point or covariance the proposal is built from "
+                                             "changed)",
+                     "proposal": f" (to continue it, choose the move choice '{saved.get(key)}')"}.get(key, "")
+            raise InputError(f"checkpoint belongs to a different run: '{key}' differs{extra}",
+                             Location(file=str(path), key=key), saved.get(key),
                              f"{settings[key]!r} as in this run (or start without resume)")
 
 
@@ -407,7 +427,8 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                      checkpoint_every: float = 60.0, checkpoint_every_steps: int | None = None,
                      resume: bool = False, jobs: int = 1, scheduler=None, progress=True,
                      thin_by: int = 1, target_tau_multiple: float = 50.0,
-                     start_ball: float = 0.1) -> PosteriorResult:
+                     start_ball: float = 0.1, proposal: str | None = None,
+                     proposal_covariance=None) -> PosteriorResult:
     """Sample the posterior of a batched log-likelihood with emcee's ensemble sampler.
 
     Parameters
@@ -455,6 +476,16 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         Chain length needed in autocorrelation times (default 50).
     start_ball
         Size of the start ball in units of ``start_scale``.
+    proposal
+        Move choice, a key of :data:`~speciakin.estimation.proposals.PROPOSALS`:
+        ``"stretch"`` (emcee's stretch move) or ``"laplace"`` (independence
+        Student-t centred at ``start`` with ``proposal_covariance``, mixed with
+        differential evolution).  None = ``"laplace"`` when
+        ``proposal_covariance`` is given, else ``"stretch"``.  Recorded in the
+        checkpoint: a resume with another choice is refused.
+    proposal_covariance
+        (n_params, n_params) covariance of the parameters on the fitted scale
+        (the least-squares covariance); must be symmetric positive definite.
 
     Returns
     -------
@@ -472,12 +503,21 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     References
     ----------
     Goodman and Weare, Comm. App. Math. Comp. Sci. 2010, 5, 65;
-    Foreman-Mackey et al., PASP 2013, 125, 306.
+    Foreman-Mackey et al., PASP 2013, 125, 306; Robert and Casella, Monte
+    Carlo Statistical Methods, 2nd ed. 2004, section 7.4; ter Braak, Stat.
+    Comput. 2006, 16, 239.
     """
     names, built, start, scale, notes = _check_inputs(
         parameter_names, priors, start, start_scale, n_walkers, n_steps, thin_by, checkpoint_every,
         checkpoint_every_steps, target_tau_multiple)
     n_params = len(names)
+    if proposal is None:
+        proposal = "stretch" if proposal_covariance is None else "laplace"
+    moves = build_moves(proposal, start, proposal_covariance)  # checks name and covariance
+    covariance = None
+    if PROPOSALS[proposal].needs_covariance:  # already checked by build_moves
+        covariance = np.asarray(proposal_covariance, dtype=float)
+    fingerprint = proposal_fingerprint(proposal, start, covariance)
     n_stored = n_steps // thin_by
     path = Path(checkpoint) if checkpoint is not None else None
     loaded: Checkpoint | None = None
@@ -493,7 +533,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
             notes.append(f"no checkpoint at {path}: started a new run")
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
-    settings = _settings(names, n_walkers, thin_by, seed)
+    settings = _settings(names, n_walkers, thin_by, seed, proposal, fingerprint)
     if loaded is not None:
         _check_resumable(loaded, settings, path)
         if loaded.iteration == 0:
@@ -521,7 +561,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                 int(seeds[1].generate_state(1, np.uint32)[0])).get_state()
             done = 0
         sampler = emcee.EnsembleSampler(n_walkers, n_params, log_posterior, vectorize=True,
-                                        backend=backend)
+                                        backend=backend, moves=moves)
         sampler.random_state = random_state
         last = {"iteration": done, "accepted": backend.accepted.copy(), "random_state": random_state}
 
@@ -589,4 +629,5 @@ def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_
         n_walkers=int(chain.shape[1]), n_steps=int(n_steps), thin_by=int(thin_by),
         seed=settings["seed"], evaluator=evaluator, elapsed_seconds=float(elapsed),
         n_likelihood_evaluations=int(log_posterior.n_evaluations),
-        n_failed_evaluations=int(log_posterior.n_failures), resumed_from=resumed_from)
+        n_failed_evaluations=int(log_posterior.n_failures), resumed_from=resumed_from,
+        proposal=settings["proposal"], moves=PROPOSALS[settings["proposal"]].describe)
