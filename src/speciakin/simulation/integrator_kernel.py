@@ -101,6 +101,9 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     span = t1 - t0
     if span <= 0.0:
         return 0, h, i_out
+    free = ctx[0] == MODE_FREE
+    cache = ws[7]
+    dph_dy = ws[11]
     ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
         return 3, h, i_out
@@ -113,6 +116,7 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
             if math.isnan(ph):
                 return 3, h, i_out
         need_eval = True
+        ph_at_y = ph
         analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
         if nonautonomous:
             dt = 1.5e-8 * max(abs(t), span)
@@ -144,6 +148,13 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                         fy[i] = f0[i]
                 else:
                     stage_point(y, k, st, ytmp)
+                    if free:
+                        # start the charge-balance Newton at the linear prediction pH(y) + dpH/dy (ytmp - y):
+                        # one iteration fewer than starting at the last stage's pH
+                        guess = ph_at_y
+                        for i in range(n - 1):
+                            guess += dph_dy[i] * (ytmp[i] - y[i])
+                        cache[3] = guess
                     ph = rhs(t + _ALPHA[st] * h, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate,
                              temperature_slope, ws)
                     if math.isnan(ph):

@@ -69,7 +69,7 @@ def interpolate(times, values, n, t):
 @njit(cache=True)
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
-    rate, cache, pka2, dzbar_dT, state_scratch)."""
+    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy)."""
     cache = np.empty(8)
     cache[0] = math.nan  # temperature of the cached T-dependent values
     cache[1] = math.nan  # pKw at that temperature
@@ -79,7 +79,7 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
             np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
-            np.empty(n_species + 2))
+            np.empty(n_species + 2), np.zeros(n_species + 2))
 
 
 @leaf_kernel
@@ -179,7 +179,7 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     temperature = interpolate(temp_t, temp_v, temp_n, t)
     set_temperature(temperature, model, par, ws)
     if mode == MODE_HELD:
@@ -214,7 +214,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (pka_ref, enthalpy, inter_w, log10_k, ea) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n_steps = log10_k.shape[0]
     volume = y[n_species]
     if not (volume > 0.0):
@@ -321,7 +321,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
@@ -395,7 +395,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     volume = y[n_species]
     # dg/dpH [mol/L per pH unit]
@@ -454,6 +454,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
         else:
             gy = -charge / (volume * volume)
         dpdy = -gy / dg
+        dph_dy[j] = dpdy
         if dpdy != 0.0:
             for i in range(n):
                 jac[i, j] += dfdph[i] * dpdy
