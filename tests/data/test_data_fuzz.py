@@ -13,7 +13,7 @@ import tempfile
 from pathlib import Path
 
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from data_factory import build_campaign, read_csv, write_csv
@@ -119,6 +119,8 @@ _quick = dict(deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 @settings(max_examples=25, **_quick)
 @given(**csv_args)
+# found by this test: a run name ending in NUL, which numpy's string comparison does not match
+@example(edits=[("runs.csv", 0, 0, ""), ("additions.csv", 1, 0, "\x00")], shape="none", which="runs.csv", index=0)
 def test_csv_cells_never_escape(edits, shape, which, index):
     _csv_case(edits, shape, which, index)
 

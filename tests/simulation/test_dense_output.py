@@ -1,4 +1,4 @@
-"""Outputs between integration steps (Hermite dense output) and the fixed-pH path."""
+"""Outputs between integration steps (Hermite dense output) and the held/logged-pH path."""
 
 from __future__ import annotations
 
@@ -56,7 +56,8 @@ def test_outputs_inside_steps_agree_with_outputs_at_step_ends():
 
 def test_held_ph_under_temperature_ramp_is_consistent_with_constant_temperature_limit():
     # a ramp of 1e-9 K over the run is physically a constant temperature: the ramp path
-    # (analytic Jacobian with the d zbar/dT terms) must reproduce the fixed-pH path
+    # (coefficients as cubics in time, with the d zbar/dT terms) must reproduce the
+    # constant-coefficient path
     model = two_site_model(double=True, hydrolysis=(-4.5, 0.5))
     flat = two_site_run(held(6.5))
     ramp = two_site_run(held(6.5), temperature=TemperatureProfile((0.0, 10800.0), (298.15, 298.15 + 1e-9)))

@@ -121,7 +121,8 @@ def run_column(cols: SheetColumns, c: ProblemCollector, known: dict[str, int]) -
     for name in dict.fromkeys(names.tolist()):
         if name in known:
             continue
-        rows = t.row_numbers[names == name]
+        # compared in Python: numpy would strip a trailing NUL from ``name`` and find no row
+        rows = t.row_numbers[np.array([n == name for n in names.tolist()], dtype=bool)]
         more = f" (and {rows.size - 1} more rows)" if rows.size > 1 else ""
         if name == "":
             c.error(f"run identifier is missing{more}", t.location(int(rows[0]), i), None,

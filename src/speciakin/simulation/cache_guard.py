@@ -13,7 +13,7 @@ import hashlib
 import os
 from pathlib import Path
 
-KERNEL_MODULES = ("water_kernel", "speciation_kernel", "rhs_kernel", "rodas_tableau", "lu_kernel", "fixed_ph_kernel",
+KERNEL_MODULES = ("jit_options", "water_kernel", "speciation_kernel", "rhs_kernel", "rodas_tableau", "lu_kernel", "segment_kernel",
                   "integrator_kernel", "batch_kernel")
 _STAMP = "speciakin_kernel_sources.sha256"
 

@@ -1,13 +1,16 @@
 """Compiled stiff integrator (Rodas4 Rosenbrock method) and the run driver.
 
 Rodas4: 6 stages, order 4 with an embedded order-3 estimate, L-stable and
-stiffly accurate.  The Jacobian is analytic in every pH mode
-(``rhs_kernel.analytic_jacobian``); the time derivative (temperature ramps,
-logged pH) is a forward difference.  Steps stop exactly at every
-discontinuity (dose start or end, instant events, knots of the temperature
-and pH logs); outputs in between come from the cubic Hermite interpolant of
-each step.  Segments at a fixed pH and temperature go to the mass-action
-path of ``fixed_ph_kernel``.
+stiffly accurate.  Steps stop exactly at every discontinuity (dose start or
+end, instant events, knots of the temperature and pH logs); outputs in
+between come from the cubic Hermite interpolant of each step.
+
+Held and logged pH: the acid-base state depends on time only, and every
+segment goes to the mass-action path of ``segment_kernel``.  Free pH: the pH
+follows from the charge balance at every right-hand side call
+(:func:`integrate_segment`), with the analytic Jacobian of
+``rhs_kernel.analytic_jacobian``; the time derivative under a temperature
+ramp is a forward difference.
 
 Status codes (0 = success) are in :data:`STATUS_TEXT`.
 
@@ -40,9 +43,10 @@ from speciakin.simulation.rhs_kernel import (
     mean_charges,
     rhs,
 )
-from speciakin.simulation.fixed_ph_kernel import hermite, integrate_fixed
+from speciakin.simulation.segment_kernel import hermite, integrate_smooth
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
-from speciakin.simulation.rodas_tableau import ALPHA, GAMMA, GAMMAS, STAGE_A, STAGE_C, STAGE_M, initial_step
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
+                                                stage_point, step_factor)
 
 STATUS_OK = 0
 STATUS_MAX_STEPS = 1
@@ -64,9 +68,6 @@ STATUS_TEXT = {
 _GAMMA = GAMMA
 _ALPHA = ALPHA
 _GAMMAS = GAMMAS
-_A = STAGE_A
-_C = STAGE_C
-_M = STAGE_M
 MAX_STEPS = 100000
 
 
@@ -100,6 +101,9 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     span = t1 - t0
     if span <= 0.0:
         return 0, h, i_out
+    free = ctx[0] == MODE_FREE
+    cache = ws[7]
+    dph_dy = ws[11]
     ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
         return 3, h, i_out
@@ -112,6 +116,7 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
             if math.isnan(ph):
                 return 3, h, i_out
         need_eval = True
+        ph_at_y = ph
         analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
         if nonautonomous:
             dt = 1.5e-8 * max(abs(t), span)
@@ -142,23 +147,20 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                     for i in range(n):
                         fy[i] = f0[i]
                 else:
-                    for i in range(n):
-                        ytmp[i] = y[i]
-                    base = st * (st - 1) // 2
-                    for j in range(st):
-                        a = _A[base + j]
-                        if a != 0.0:
-                            for i in range(n):
-                                ytmp[i] += a * k[j, i]
+                    stage_point(y, k, st, ytmp)
+                    if free:
+                        # start the charge-balance Newton at the linear prediction pH(y) + dpH/dy (ytmp - y):
+                        # one iteration fewer than starting at the last stage's pH
+                        guess = ph_at_y
+                        for i in range(n - 1):
+                            guess += dph_dy[i] * (ytmp[i] - y[i])
+                        cache[3] = guess
                     ph = rhs(t + _ALPHA[st] * h, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate,
                              temperature_slope, ws)
                     if math.isnan(ph):
                         failed = True
                         break
-                    for j in range(st):
-                        c = _C[base + j] / h
-                        for i in range(n):
-                            fy[i] += c * k[j, i]
+                    add_stage_history(fy, k, st, h)
                 if nonautonomous and _GAMMAS[st] != 0.0:
                     for i in range(n):
                         fy[i] += h * _GAMMAS[st] * ft[i]
@@ -167,20 +169,12 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                     k[st, i] = fy[i]
             err = 0.0
             if not failed:
-                for i in range(n):
-                    v = y[i]
-                    for st in range(6):
-                        v += _M[st] * k[st, i]
-                    ynew[i] = v
-                    sc = atol + rtol * max(abs(y[i]), abs(v))
-                    err += (k[5, i] / sc) ** 2
-                err = math.sqrt(err / n)
+                err = new_solution(y, k, ynew, rtol, atol)
                 if not math.isfinite(err):
                     failed = True
             if failed:
                 h *= 0.1
                 continue
-            fac = 0.9 * err ** (-0.25) if err > 0.0 else 6.0
             if err <= 1.0:
                 t_new = t1 if last else t + h
                 if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
@@ -208,12 +202,12 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
                 counters[0] += 1
                 if counters[0] > MAX_STEPS:
                     return 1, h, i_out
-                h = h * min(6.0, max(0.2, fac))
+                h = h * step_factor(err, True)
                 if last:
                     # a step cut short to land on t1 says nothing against the larger step
                     h = max(h, wanted)
                 break
-            h = h * min(1.0, max(0.1, fac))
+            h = h * step_factor(err, False)
     return 0, h, i_out
 
 
@@ -332,18 +326,12 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         if mode == 1:
             if interpolate(log_t_a[r], log_v_a[r], log_n, t_end) != interpolate(log_t_a[r], log_v_a[r], log_n, t):
                 nonauto = True
-        if mode != MODE_FREE and not nonauto:
-            # fixed pH and temperature: mass-action path with dense output
-            ph = rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, 0.0, ws)
-            if math.isnan(ph):
-                info[0] = t
-                return 3
-            status, h, i_out = integrate_fixed(t, t_end, y, h, model, ws, mode == MODE_HELD, ctx[3], titrant_conc,
-                                               feed_rate, feed_volume_rate, rtol, atol, out, out_t, i_out, n_out,
-                                               ph, temp_here, counters)
-            t_next = t_end
+        t_next = t_end
+        if mode != MODE_FREE:
+            # the acid-base state depends on time only: mass-action path (segment_kernel)
+            status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, feed_rate, feed_volume_rate,
+                                                temp_slope, nonauto, rtol, atol, out, out_t, i_out, n_out, counters)
         else:
-            t_next = t_end
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
                                                  i_out, n_out)

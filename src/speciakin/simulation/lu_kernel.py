@@ -10,12 +10,17 @@ from __future__ import annotations
 
 import math
 
-from numba import njit
+from speciakin.simulation.jit_options import leaf_kernel
 
 
-@njit(cache=True)
+@leaf_kernel
 def lu_factor(a, piv):
-    """In-place LU with partial pivoting; returns False when singular."""
+    """In-place LU with partial pivoting; returns False when singular.
+
+    The diagonal of ``a`` receives the reciprocals of U's pivots (so that
+    :func:`lu_solve` multiplies instead of dividing); below it, L's
+    multipliers; above it, the rest of U.
+    """
     n = a.shape[0]
     for k in range(n):
         p = k
@@ -33,6 +38,7 @@ def lu_factor(a, piv):
                 a[k, j] = a[p, j]
                 a[p, j] = tmp
         inv = 1.0 / a[k, k]
+        a[k, k] = inv
         for i in range(k + 1, n):
             a[i, k] *= inv
             f = a[i, k]
@@ -42,7 +48,7 @@ def lu_factor(a, piv):
     return True
 
 
-@njit(cache=True)
+@leaf_kernel(inline="always")
 def lu_solve(a, piv, b):
     """Solve in place with the factors of :func:`lu_factor`."""
     n = a.shape[0]
@@ -61,4 +67,4 @@ def lu_solve(a, piv, b):
         s = b[i]
         for j in range(i + 1, n):
             s -= a[i, j] * b[j]
-        b[i] = s / a[i, i]
+        b[i] = s * a[i, i]

@@ -40,13 +40,14 @@ from speciakin.simulation.speciation_kernel import (
     solve_charge_balance,
 )
 from speciakin.simulation.water_kernel import pkw
+from speciakin.simulation.jit_options import leaf_kernel
 
 MODE_HELD = 0
 MODE_LOGGED = 1
 MODE_FREE = 2
 
 
-@njit(cache=True)
+@leaf_kernel
 def interpolate(times, values, n, t):
     """Piecewise-linear interpolation held constant outside the knots."""
     if n == 1 or t <= times[0]:
@@ -68,7 +69,7 @@ def interpolate(times, values, n, t):
 @njit(cache=True)
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
-    rate, cache, pka2, pops2, zbar2, dzbar_dT)."""
+    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy)."""
     cache = np.empty(8)
     cache[0] = math.nan  # temperature of the cached T-dependent values
     cache[1] = math.nan  # pKw at that temperature
@@ -77,11 +78,11 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     cache[4] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
-            np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)),
-            np.empty(max(n_micro, 1)), np.empty(max(n_mol, 1)), np.zeros(max(n_mol, 1)))
+            np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
+            np.empty(n_species + 2), np.zeros(n_species + 2))
 
 
-@njit(cache=True)
+@leaf_kernel
 def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start, micro_charge,
                                    n_mol, dpka_dt, dzbar_dt):
     """d zbar / dT [1/K] of every molecule at fixed pH.
@@ -114,7 +115,22 @@ def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, 
         dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)
 
 
-@njit(cache=True, inline="always")
+@leaf_kernel(inline="always")
+def requirement_fraction(k, pops, react_species, react_mask, react_value, mol_micro_start, n_mol):
+    """Fraction of reactant ``k``'s microstates that meet its site requirements
+    (1 for a reactant without requirements or without sites)."""
+    sp = react_species[k]
+    if not (sp < n_mol and react_mask[k] != 0):
+        return 1.0
+    frac = 0.0
+    m0 = mol_micro_start[sp]
+    for st in range(mol_micro_start[sp + 1] - m0):
+        if (st & react_mask[k]) == react_value[k]:
+            frac += pops[m0 + st]
+    return frac
+
+
+@leaf_kernel(inline="always")
 def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_mask, react_value,
                     mol_micro_start, n_mol):
     """Rate-law factor of reactant ``k``: concentration x fraction of its
@@ -125,19 +141,67 @@ def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_m
         return hydroxide
     if kind != 0:
         return 1.0
-    sp = react_species[k]
-    f = conc[sp]
-    if sp < n_mol and react_mask[k] != 0:
-        frac = 0.0
-        m0 = mol_micro_start[sp]
-        for st in range(mol_micro_start[sp + 1] - m0):
-            if (st & react_mask[k]) == react_value[k]:
-                frac += pops[m0 + st]
-        f *= frac
-    return f
+    return conc[react_species[k]] * requirement_fraction(k, pops, react_species, react_mask, react_value,
+                                                         mol_micro_start, n_mol)
 
 
-@njit(cache=True)
+@leaf_kernel
+def set_temperature(temperature, model, par, ws):
+    """Bring the temperature-dependent values in ``ws`` to ``temperature`` [K]:
+    pKw, site pKa (van 't Hoff) and rate constants (Arrhenius [1]_)."""
+    t_ref = model[24]
+    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
+    pka = ws[0]
+    k_of_t = ws[1]
+    cache = ws[7]
+    if temperature == cache[0]:
+        return
+    cache[0] = temperature
+    cache[1] = pkw(temperature)
+    for i in range(pka_ref.shape[0]):
+        pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
+    for s in range(log10_k.shape[0]):
+        k_of_t[s] = 10.0 ** log10_k[s] * math.exp(-ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
+    cache[2] = math.nan
+
+
+@leaf_kernel
+def time_speciation(t, model, par, ctx, temperature_slope, ws):
+    """Speciation at time t of a held or logged pH run; returns the pH.
+
+    Fills ``ws``: temperature-dependent values, populations, mean charges
+    and, for a held pH under a temperature ramp, d zbar/dT of every molecule
+    and d[OH-]/dT (``cache[4]``, a central difference of pKw).  Nothing here
+    depends on the amounts.
+    """
+    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
+     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
+     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
+    temperature = interpolate(temp_t, temp_v, temp_n, t)
+    set_temperature(temperature, model, par, ws)
+    if mode == MODE_HELD:
+        ph = ph_value + ph_offset
+    else:
+        ph = interpolate(log_t, log_v, log_n, t) + ph_offset
+    if ph != cache[2]:
+        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, par[2],
+                        mol_inter_start, n_mol, ph, pops)
+        mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
+        cache[2] = ph
+    if mode == MODE_HELD and temperature_slope != 0.0:
+        mean_charge_temperature_slopes(pops, par[1], temperature, mol_site_start, mol_micro_start,
+                                       micro_charge, n_mol, pka2, dzdt)
+        dtemp = 1e-3
+        # d[OH-]/dT at fixed pH [mol/(L*K)]
+        cache[4] = (10.0 ** (ph - pkw(temperature + dtemp)) - 10.0 ** (ph - pkw(temperature - dtemp))) / (
+            2.0 * dtemp)
+    return ph
+
+
+@leaf_kernel
 def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws):
     """Evaluate dy/dt at (t, y); returns the pH used (NaN on failure, dy = NaN).
 
@@ -150,31 +214,20 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (pka_ref, enthalpy, inter_w, log10_k, ea) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
-    n_sites = pka_ref.shape[0]
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n_steps = log10_k.shape[0]
     volume = y[n_species]
     if not (volume > 0.0):
         for i in range(dy.shape[0]):
             dy[i] = math.nan
         return math.nan
-    temperature = interpolate(temp_t, temp_v, temp_n, t)
-    if temperature != cache[0]:
-        cache[0] = temperature
-        cache[1] = pkw(temperature)
-        for i in range(n_sites):
-            pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
-        for s in range(n_steps):
-            k_of_t[s] = 10.0 ** log10_k[s] * math.exp(
-                -ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
-        cache[2] = math.nan
-    pkw_value = cache[1]
-    for j in range(n_species):
-        conc[j] = y[j] / volume
     if mode == MODE_FREE:
+        set_temperature(interpolate(temp_t, temp_v, temp_n, t), model, par, ws)
+        for j in range(n_species):
+            conc[j] = y[j] / volume
         ph = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
                                   mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
-                                  micro_charge, micro_protons, pkw_value, cache[3], pops, zbar, variance)
+                                  micro_charge, micro_protons, cache[1], cache[3], pops, zbar, variance)
         if math.isnan(ph):
             for i in range(dy.shape[0]):
                 dy[i] = math.nan
@@ -183,15 +236,10 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         cache[3] = ph
         cache[2] = ph
     else:
-        if mode == MODE_HELD:
-            ph = ph_value + ph_offset
-        else:
-            ph = interpolate(log_t, log_v, log_n, t) + ph_offset
-        if ph != cache[2]:
-            all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                            mol_inter_start, n_mol, ph, pops)
-            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
-            cache[2] = ph
+        ph = time_speciation(t, model, par, ctx, temperature_slope, ws)
+        for j in range(n_species):
+            conc[j] = y[j] / volume
+    pkw_value = cache[1]
     hydrogen = 10.0 ** (-ph)
     hydroxide = 10.0 ** (ph - pkw_value)
     # reaction rates [mol/(L*s)]
@@ -220,14 +268,8 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         for j in range(n_mol, n_species):
             num += species_charge[j] * dy[j]
         if temperature_slope != 0.0:
-            # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH: d zbar/dT exactly
-            # (mean_charge_temperature_slopes), d[OH-]/dT by a central difference of pKw
-            mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start,
-                                           micro_charge, n_mol, pka2, dzdt)
-            dtemp = 1e-3
-            # d[OH-]/dT at fixed pH [mol/(L*K)]
-            cache[4] = (10.0 ** (ph - pkw(temperature + dtemp)) - 10.0 ** (ph - pkw(temperature - dtemp))) / (
-                2.0 * dtemp)
+            # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH (dzbar/dT and
+            # d[OH-]/dT left in ws by time_speciation)
             dcharge = -volume * cache[4]
             for m in range(n_mol):
                 dcharge += y[m] * dzdt[m]
@@ -240,7 +282,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     return ph
 
 
-@njit(cache=True)
+@leaf_kernel
 def charge_imbalance(y, model, ph, ws):
     """sum n zbar + sum z n_ion + V([H+] - [OH-]) [mol] with ``ws`` populations at ``ph``."""
     n_mol = model[0]
@@ -256,7 +298,7 @@ def charge_imbalance(y, model, ph, ws):
     return total
 
 
-@njit(cache=True)
+@leaf_kernel
 def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     """d(dy/dt)/dy for held or logged pH (constant or ramped temperature).
 
@@ -279,7 +321,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
@@ -310,13 +352,8 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
                 kind = react_kind[k]
                 if kind == 0:
                     sp = react_species[k]
-                    frac = 1.0
-                    if sp < n_mol and react_mask[k] != 0:
-                        frac = 0.0
-                        m0 = mol_micro_start[sp]
-                        for st in range(mol_micro_start[sp + 1] - m0):
-                            if (st & react_mask[k]) == react_value[k]:
-                                frac += pops[m0 + st]
+                    frac = requirement_fraction(k, pops, react_species, react_mask, react_value, mol_micro_start,
+                                                n_mol)
                     if k == kk:
                         d *= frac / volume
                     else:
@@ -351,14 +388,14 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
         _free_ph_coupling(y, model, ws, jac, ph, hydroxide)
 
 
-@njit(cache=True)
+@leaf_kernel
 def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
     """Add (df/dpH)(dpH/dy) to ``jac`` for the free-pH mode (see :func:`analytic_jacobian`)."""
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, pops2, zbar2, dzdt) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     volume = y[n_species]
     # dg/dpH [mol/L per pH unit]
@@ -366,7 +403,9 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
     for m in range(n_mol):
         dg += conc[m] * variance[m]
     dg *= -LN10
-    dfdph = np.zeros(n)
+    dfdph = scratch
+    for i in range(n):
+        dfdph[i] = 0.0
     for s in range(step_logk_q.shape[0]):
         dr = 0.0
         for kk in range(react_start[s], react_start[s + 1]):
@@ -415,6 +454,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
         else:
             gy = -charge / (volume * volume)
         dpdy = -gy / dg
+        dph_dy[j] = dpdy
         if dpdy != 0.0:
             for i in range(n):
                 jac[i, j] += dfdph[i] * dpdy

@@ -15,13 +15,16 @@ from __future__ import annotations
 
 import math
 
-from numba import njit
+from speciakin.simulation.jit_options import leaf_kernel
+
 
 GAS_CONSTANT = 8.314462618  # [J/(mol*K)], CODATA 2018 exact value
 LN10 = math.log(10.0)
+#: Newton step [pH units] below which the charge balance counts as solved
+NEWTON_ACCEPT = 1e-13
 
 
-@njit(cache=True)
+@leaf_kernel
 def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
     """pKa at ``temperature`` by van 't Hoff [2]_.
 
@@ -30,7 +33,7 @@ def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
     return pka_ref + enthalpy * 1000.0 / (GAS_CONSTANT * LN10) * (1.0 / temperature - 1.0 / reference_temperature)
 
 
-@njit(cache=True)
+@leaf_kernel
 def molecule_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
                          inter_start, inter_end, ph, out, out_start):
     """Microstate populations of one molecule at ``ph`` (log-sum-exp) [1]_.
@@ -53,14 +56,15 @@ def molecule_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
             top = lw
     total = 0.0
     for s in range(n_micro):
-        v = 10.0 ** (out[out_start + s] - top)
+        v = math.exp(LN10 * (out[out_start + s] - top))
         out[out_start + s] = v
         total += v
+    inv_total = 1.0 / total
     for s in range(n_micro):
-        out[out_start + s] /= total
+        out[out_start + s] *= inv_total
 
 
-@njit(cache=True)
+@leaf_kernel
 def all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
                     mol_inter_start, n_mol, ph, pops):
     """Populations of every molecule's microstates at ``ph`` into ``pops``."""
@@ -71,7 +75,7 @@ def all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inte
                              mol_inter_start[m], mol_inter_start[m + 1], ph, pops, mol_micro_start[m])
 
 
-@njit(cache=True)
+@leaf_kernel
 def mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance):
     """Population-weighted mean charge of each molecule and the variance of its
     number of bound protons (= -d zbar / d pH / ln 10)."""
@@ -87,7 +91,7 @@ def mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar
         proton_variance[m] = max(p2 - p1 * p1, 0.0)
 
 
-@njit(cache=True)
+@leaf_kernel
 def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start, mol_micro_start,
                          inter_a, inter_b, inter_w, mol_inter_start, micro_charge, micro_protons,
                          pkw_value, ph_guess, pops, zbar, proton_variance):
@@ -127,10 +131,16 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
         else:
             hi = ph
         step = -g / dg
+        if abs(step) < NEWTON_ACCEPT:
+            # Newton converges quadratically: the root is within about |step| of ph,
+            # and pops, zbar are already those at ph
+            if ph <= -2.999 or ph >= 16.999:
+                return math.nan
+            return ph
         new = ph + step
         if not (new > lo and new < hi):
             new = 0.5 * (lo + hi)
-        if abs(new - ph) < 1e-13 or hi - lo < 1e-13:
+        if hi - lo < 1e-13:
             ph = new
             all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
                             mol_inter_start, n_mol, ph, pops)

@@ -16,7 +16,8 @@ from __future__ import annotations
 
 import math
 
-from numba import njit
+from speciakin.simulation.jit_options import leaf_kernel
+
 
 # One set of IAPWS coefficients for the whole project: the chemistry layer's.
 from speciakin.chemistry.water import _ALPHA, _BETA, _GAMMA, _MW, _N
@@ -24,7 +25,7 @@ from speciakin.chemistry.water import _ALPHA, _BETA, _GAMMA, _MW, _N
 __all__ = ["water_density", "pkw", "pkw_at_density"]
 
 
-@njit(cache=True)
+@leaf_kernel
 def water_density(temperature):
     """Density of liquid water at 0.1 MPa [g/cm^3] (Kell 1975 [2]_, 0-150 C).
 
@@ -39,13 +40,13 @@ def water_density(temperature):
     return num / (1.0 + 16.879850e-3 * t) / 1000.0
 
 
-@njit(cache=True)
+@leaf_kernel
 def pkw(temperature):
     """pKw at 0.1 MPa: :func:`pkw_at_density` with the density of :func:`water_density`."""
     return pkw_at_density(temperature, water_density(temperature))
 
 
-@njit(cache=True)
+@leaf_kernel
 def pkw_at_density(temperature, rho):
     """pKw = -log10(Kw) of water at 0.1 MPa (IAPWS R11-07 [1]_, eq. 1-3).
 

@@ -1,0 +1,601 @@
+"""Fast Rodas4 path for segments whose acid-base state depends on time only.
+
+With the pH held or logged, the microstate fractions, rate constants, [OH-]
+and mean charges depend on the pH and the temperature, which depend on time
+alone inside a segment (both are constant or linear between breakpoints);
+they never depend on the amounts.  The rate of step s is then mass action
+with an effective constant
+
+    r_s = k_eff,s(t) * prod_(concentration reactants) c_j,
+    k_eff,s = k_s(T) * prod (fraction of microstates meeting the requirement)
+              * [OH-] (when hydroxide is a reactant),
+
+and the held-pH titrant rate q that keeps the charge balance is linear in
+the step rates and the amounts:
+
+    q = beta(t) + sum_s alpha_s(t) v_s + sum_j gamma_j(t) y_j,   v_s = V r_s,
+
+with alpha_s = -(w . nu_s) / d, beta = -(excess dV/dt_feed + w . feed) / d,
+gamma = -(dT/dt) d(charge)/dT / d (weights w = mean charges and ion charges,
+d = titrant charge + excess / titrant concentration; see ``rhs_kernel``).  So
+
+    dy/dt = feed + sum_s nu_s v_s + e_q q,   e_q = titrant, volume/c_t, consumed,
+
+is a few products and small dot products (:func:`smooth_rhs`), with an exact
+Jacobian (:func:`smooth_jacobian`) and, under a ramp, an exact time
+derivative.
+
+The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma) are
+evaluated with the full speciation (``rhs_kernel.time_speciation``) at the
+four Chebyshev points of the segment and carried as a cubic in time (for
+each positive k_eff, the cubic of its logarithm, which is nearly linear in
+time under a temperature ramp and smooth in pH) [3]_.  The cubic is checked
+against a full evaluation at the midpoint, and the segment is halved until
+every coefficient agrees to :data:`COEFFICIENT_RTOL` of its size (a
+coefficient error of 1e-9 relative changes the solution far less than the
+integration tolerance).  At constant pH and temperature the coefficients are
+constants (one evaluation per segment).
+
+Outputs inside the segment are read from the cubic Hermite interpolant of
+each accepted step, so the steps need not stop at output times; only
+breakpoints (doses, events, knots) end a segment.
+
+References
+----------
+.. [1] Hairer, E. and Wanner, G., "Solving Ordinary Differential Equations II.
+   Stiff and Differential-Algebraic Problems", 2nd ed., Springer 1996,
+   section IV.7 (Rodas4, transformed form with W = I/(h*gamma) - J, and the
+   non-autonomous term gamma_i h df/dt).
+.. [2] Hairer, E., Norsett, S. P. and Wanner, G., "Solving Ordinary
+   Differential Equations I", 2nd ed., Springer 1993, section II.6 (dense
+   output; cubic Hermite interpolation, eq. 6.7).
+.. [3] Trefethen, L. N., "Approximation Theory and Approximation Practice",
+   SIAM 2013, chapters 2-4 (interpolation in Chebyshev points).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from speciakin.simulation.jit_options import leaf_kernel
+from speciakin.simulation.lu_kernel import lu_factor, lu_solve
+from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
+                                                stage_point, step_factor)
+
+MAX_STEPS = 100000
+#: Interpolation points of the coefficient cubic on [-1, 1] (Chebyshev points of the first kind).
+NODES = np.cos((2.0 * np.arange(4) + 1.0) * np.pi / 8.0)
+#: Inverse Vandermonde matrix: monomial coefficients (x^0..x^3) from the values at NODES.
+FROM_NODES = np.linalg.inv(np.vander(NODES, 4, increasing=True))
+#: Points where the cubic is checked against a full evaluation (x = 0 is an
+#: extremum of the node polynomial T_4(x)/8, where the error of a smooth
+#: function's cubic is largest).
+CHECKS = np.array([0.0])
+#: Largest coefficient error allowed, relative to the coefficient's size on the segment.
+COEFFICIENT_RTOL = 1e-9
+#: Halvings of a segment before the coefficients are declared not smooth.
+MAX_HALVINGS = 40
+
+
+@leaf_kernel
+def effective_constants(model, ws, keff):
+    """k_eff of every step [consistent units of mol/L and s] from the populations in ``ws``.
+
+    ``ws`` must hold the populations, rate constants and pKw (left there by
+    :func:`~speciakin.simulation.rhs_kernel.time_speciation` at the time wanted).
+    """
+    n_mol = model[0]
+    mol_micro_start = model[4]
+    react_start = model[15]
+    react_kind = model[16]
+    react_species = model[17]
+    react_mask = model[19]
+    react_value = model[20]
+    k_of_t = ws[1]
+    pops = ws[2]
+    cache = ws[7]
+    hydroxide = 10.0 ** (cache[2] - cache[1])
+    for s in range(model[13].shape[0]):
+        r = k_of_t[s]
+        for k in range(react_start[s], react_start[s + 1]):
+            kind = react_kind[k]
+            if kind == 0:
+                r *= requirement_fraction(k, pops, react_species, react_mask, react_value, mol_micro_start, n_mol)
+            elif kind == 2:
+                r *= hydroxide
+        keff[s] = r
+
+
+@leaf_kernel
+def stoichiometry(model, nu, reactants, n_react):
+    """Net change of every species per unit of v_s (rows of ``nu``) and the
+    concentration reactants of each step; False when a step has more of them
+    than ``reactants`` has columns."""
+    react_start = model[15]
+    react_kind = model[16]
+    react_species = model[17]
+    react_coef = model[18]
+    prod_start = model[21]
+    prod_species = model[22]
+    prod_coef = model[23]
+    for s in range(nu.shape[0]):
+        for i in range(nu.shape[1]):
+            nu[s, i] = 0.0
+        m = 0
+        for k in range(react_start[s], react_start[s + 1]):
+            if react_kind[k] == 0:
+                if m >= reactants.shape[1]:
+                    return False
+                reactants[s, m] = react_species[k]
+                m += 1
+                nu[s, react_species[k]] -= react_coef[k]
+        n_react[s] = m
+        for k in range(prod_start[s], prod_start[s + 1]):
+            nu[s, prod_species[k]] += prod_coef[k]
+    return True
+
+
+@leaf_kernel
+def segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
+                         temperature_slope, coef):
+    """Coefficient vector (k_eff, alpha, beta, gamma) at the time of the last ``rhs`` call.
+
+    Layout: ``coef[:n_steps]`` = k_eff; ``coef[n_steps:2 n_steps]`` = alpha
+    [-]; ``coef[2 n_steps]`` = beta [mol/s]; ``coef[2 n_steps + 1 + m]`` =
+    gamma of molecule m [1/s]; the last entry = gamma of the volume
+    [mol/(L*s)].  alpha, beta, gamma are zero unless the pH is held.
+    """
+    n_mol = model[0]
+    n_species = model[1]
+    species_charge = model[2]
+    n_steps = nu.shape[0]
+    effective_constants(model, ws, coef)
+    for i in range(n_steps, coef.shape[0]):
+        coef[i] = 0.0
+    if not held:
+        return
+    zbar = ws[3]
+    cache = ws[7]
+    dzdt = ws[9]
+    excess = 10.0 ** (-cache[2]) - 10.0 ** (cache[2] - cache[1])
+    denominator = species_charge[titrant] + excess / titrant_conc
+    for s in range(n_steps):
+        num = 0.0
+        for j in range(n_mol):
+            num += zbar[j] * nu[s, j]
+        for j in range(n_mol, n_species):
+            num += species_charge[j] * nu[s, j]
+        coef[n_steps + s] = -num / denominator
+    num = excess * feed_volume_rate
+    for j in range(n_mol):
+        num += zbar[j] * feed_rate[j]
+    for j in range(n_mol, n_species):
+        num += species_charge[j] * feed_rate[j]
+    coef[2 * n_steps] = -num / denominator
+    if temperature_slope != 0.0:
+        for m in range(n_mol):
+            coef[2 * n_steps + 1 + m] = -temperature_slope * dzdt[m] / denominator
+        coef[2 * n_steps + 1 + n_mol] = temperature_slope * cache[4] / denominator
+
+
+@leaf_kernel(inline="always")
+def evaluate_cubic(poly, in_logs, x, value, slope):
+    """Values and d/dx of the cubics ``poly[c, :]`` (monomials in x) at x;
+    where ``in_logs[c]`` the cubic is that of the logarithm of the value."""
+    for c in range(poly.shape[0]):
+        a0 = poly[c, 0]
+        a1 = poly[c, 1]
+        a2 = poly[c, 2]
+        a3 = poly[c, 3]
+        p = a0 + x * (a1 + x * (a2 + x * a3))
+        dp = a1 + x * (2.0 * a2 + x * 3.0 * a3)
+        if in_logs[c]:
+            p = math.exp(p)
+            dp *= p
+        value[c] = p
+        slope[c] = dp
+
+
+@leaf_kernel(inline="always")
+def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
+               feed_rate, feed_volume_rate, product, v):
+    """dy/dt with the coefficients ``coef``; ``product`` receives V^(1-m) prod n
+    and ``v`` the step rates v_s = k_eff product [mol/s].  False (dy = NaN)
+    when the volume is not positive."""
+    n = dy.shape[0]
+    n_steps = nu.shape[0]
+    volume = y[n_species]
+    if not (volume > 0.0):
+        for i in range(n):
+            dy[i] = math.nan
+        return False
+    inv_v = 1.0 / volume
+    for i in range(n_species):
+        dy[i] = feed_rate[i]
+    dy[n_species] = feed_volume_rate
+    dy[n_species + 1] = 0.0
+    for s in range(n_steps):
+        p = volume
+        for m in range(n_react[s]):
+            p *= y[reactants[s, m]] * inv_v
+        product[s] = p
+        vs = coef[s] * p
+        v[s] = vs
+        for i in range(n_species):
+            dy[i] += nu[s, i] * vs
+    if held:
+        q = coef[2 * n_steps]
+        for s in range(n_steps):
+            q += coef[n_steps + s] * v[s]
+        g0 = 2 * n_steps + 1
+        for m in range(n_mol):
+            q += coef[g0 + m] * y[m]
+        q += coef[g0 + n_mol] * volume
+        dy[titrant] += q
+        dy[n_species] += q / titrant_conc
+        dy[n_species + 1] = q
+    return True
+
+
+@leaf_kernel
+def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
+                    v, active_of, jac_t):
+    """Non-zero columns of d(dy/dt)/dy, exact, stored transposed.
+
+    ``jac_t[a, i]`` = d(dy_i/dt)/dy_j for the a-th active state j
+    (``active_of[j]`` = a).  ``v`` must hold the step rates at ``y``.
+    dv_s/dn_j = k_eff V^(1-m)
+    prod_(other reactants) n; dv_s/dV = (1 - m) v_s / V; the titrant rate
+    adds alpha_s dv_s/dy_j + gamma_j.
+    """
+    n = jac_t.shape[1]
+    n_steps = nu.shape[0]
+    g0 = 2 * n_steps + 1
+    for a in range(jac_t.shape[0]):
+        for i in range(n):
+            jac_t[a, i] = 0.0
+    volume = y[n_species]
+    inv_v = 1.0 / volume
+    for s in range(n_steps):
+        m_s = n_react[s]
+        for mm in range(-1, m_s):
+            if mm < 0:
+                j = n_species
+                d = v[s] * (1.0 - m_s) * inv_v
+            else:
+                j = reactants[s, mm]
+                d = coef[s] * volume
+                for m in range(m_s):
+                    d *= inv_v if m == mm else y[reactants[s, m]] * inv_v
+            a = active_of[j]
+            for i in range(n_species):
+                jac_t[a, i] += nu[s, i] * d
+            if held:
+                dq = coef[n_steps + s] * d
+                jac_t[a, titrant] += dq
+                jac_t[a, n_species] += dq / titrant_conc
+                jac_t[a, n_species + 1] += dq
+    if held:
+        for j in range(n_mol + 1):
+            state = j if j < n_mol else n_species
+            dq = coef[g0 + j]
+            if dq != 0.0:
+                a = active_of[state]
+                jac_t[a, titrant] += dq
+                jac_t[a, n_species] += dq / titrant_conc
+                jac_t[a, n_species + 1] += dq
+
+
+@leaf_kernel
+def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant, titrant_conc, product, ft):
+    """d(dy/dt)/dt at fixed y [per s] from the coefficients and their time
+    derivatives ``coef_dt``; ``product`` as left by :func:`smooth_rhs` at y.
+
+    With v_s = k_eff,s P_s(y): df/dt = sum_s nu_s k_eff,s' P_s + e_q dq/dt,
+    dq/dt = beta' + sum_s (alpha_s' k_eff,s + alpha_s k_eff,s') P_s + sum_j gamma_j' y_j.
+    """
+    n = ft.shape[0]
+    n_steps = nu.shape[0]
+    for i in range(n):
+        ft[i] = 0.0
+    for s in range(n_steps):
+        dv = coef_dt[s] * product[s]
+        for i in range(n_species):
+            ft[i] += nu[s, i] * dv
+    if held:
+        g0 = 2 * n_steps + 1
+        dq = coef_dt[2 * n_steps]
+        for s in range(n_steps):
+            dq += (coef_dt[n_steps + s] * coef[s] + coef[n_steps + s] * coef_dt[s]) * product[s]
+        for m in range(n_mol):
+            dq += coef_dt[g0 + m] * y[m]
+        dq += coef_dt[g0 + n_mol] * y[n_species]
+        ft[titrant] += dq
+        ft[n_species] += dq / titrant_conc
+        ft[n_species + 1] = dq
+
+
+@leaf_kernel
+def hermite(y0, f0, y1, f1, h, theta, i):
+    """Cubic Hermite interpolant of component ``i`` at t0 + theta*h [2]_."""
+    a = y1[i] - y0[i]
+    return (y0[i] + theta * a
+            + theta * (theta - 1.0) * ((1.0 - 2.0 * theta) * a + (theta - 1.0) * h * f0[i] + theta * h * f1[i]))
+
+
+@njit(cache=True)
+def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_rate, temperature_slope,
+                     varying, rtol, atol, out, out_t, i_out, n_out, counters):
+    """Advance ``y`` from t0 to exactly t1 with Rodas4 [1]_ (held or logged pH).
+
+    ``varying`` = the pH or the temperature changes inside the segment (the
+    coefficients are then cubics in time, see the module notes).  Outputs at
+    times strictly inside (t0, t1) from index ``i_out`` are written to
+    ``out`` by Hermite interpolation [2]_.
+
+    Returns
+    -------
+    (status, next step size, next output index)
+    """
+    n_mol = model[0]
+    n_species = model[1]
+    n_steps = model[13].shape[0]
+    react_start = model[15]
+    react_kind = model[16]
+    mode = ctx[0]
+    held = mode == MODE_HELD
+    titrant = ctx[3]
+    titrant_conc = ctx[4]
+    n = y.shape[0]
+    span = t1 - t0
+    if span <= 0.0:
+        return 0, h, i_out
+    max_react = 1
+    for s in range(n_steps):
+        m = 0
+        for kk in range(react_start[s], react_start[s + 1]):
+            if react_kind[kk] == 0:
+                m += 1
+        max_react = max(max_react, m)
+    nu = np.empty((n_steps, n_species))
+    reactants = np.zeros((n_steps, max_react), dtype=np.int64)
+    n_react = np.zeros(n_steps, dtype=np.int64)
+    stoichiometry(model, nu, reactants, n_react)
+    n_coef = 2 * n_steps + n_mol + 2
+    nodes = np.empty((4, n_coef))
+    poly = np.zeros((n_coef, 4))
+    in_logs = np.zeros(n_coef, dtype=np.bool_)
+    exact = np.empty(n_coef)
+    scale = np.empty(n_coef)
+    cst = np.empty(n_coef)
+    dc = np.zeros(n_coef)
+    product = np.empty(max(n_steps, 1))
+    v = np.empty(max(n_steps, 1))
+    f0 = np.empty(n)
+    ft = np.zeros(n)
+    fy = np.empty(n)
+    ytmp = np.empty(n)
+    ynew = np.empty(n)
+    fnew = np.empty(n)
+    k = np.empty((6, n))
+    # states whose Jacobian column can be non-zero: concentration reactants, the
+    # volume and, under a held-pH temperature ramp, every molecule (gamma)
+    is_active = np.zeros(n, dtype=np.bool_)
+    is_active[n_species] = True
+    for s in range(n_steps):
+        for m in range(n_react[s]):
+            is_active[reactants[s, m]] = True
+    if held and temperature_slope != 0.0:
+        for m in range(n_mol):
+            is_active[m] = True
+    n_act = 0
+    for i in range(n):
+        if is_active[i]:
+            n_act += 1
+    n_pas = n - n_act
+    active = np.empty(n_act, dtype=np.int64)
+    passive = np.empty(max(n_pas, 1), dtype=np.int64)
+    active_of = np.full(n, -1, dtype=np.int64)
+    ia = 0
+    ip = 0
+    for i in range(n):
+        if is_active[i]:
+            active[ia] = i
+            active_of[i] = ia
+            ia += 1
+        else:
+            passive[ip] = i
+            ip += 1
+    jac_t = np.empty((n_act, n))
+    g = np.empty((n_act, n_act))
+    sub = np.empty(n_act)
+    piv = np.empty(n_act, dtype=np.int64)
+    ta = t0
+    trial = span
+    while ta < t1:
+        tb = min(t1, ta + trial)
+        if t1 - tb <= 1e-9 * span:
+            tb = t1
+        # ---- coefficients on [ta, tb]
+        if varying:
+            smooth = False
+            for halving in range(MAX_HALVINGS):
+                mid = 0.5 * (ta + tb)
+                half = 0.5 * (tb - ta)
+                for node in range(4):
+                    ph = time_speciation(mid + half * NODES[node], model, par, ctx, temperature_slope, ws)
+                    if math.isnan(ph):
+                        return 3, h, i_out
+                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
+                                         temperature_slope, nodes[node])
+                for c in range(n_coef):
+                    big = 0.0
+                    positive = c < n_steps
+                    for node in range(4):
+                        big = max(big, abs(nodes[node, c]))
+                        positive = positive and nodes[node, c] > 0.0
+                    scale[c] = big
+                    # rate constants vary exponentially with 1/T and pH: carry their logarithms
+                    in_logs[c] = positive
+                    if positive:
+                        for node in range(4):
+                            nodes[node, c] = math.log(nodes[node, c])
+                    for a in range(4):
+                        poly[c, a] = 0.0
+                        for node in range(4):
+                            poly[c, a] += FROM_NODES[a, node] * nodes[node, c]
+                smooth = True
+                for check in range(CHECKS.shape[0]):
+                    ph = time_speciation(mid + half * CHECKS[check], model, par, ctx, temperature_slope, ws)
+                    if math.isnan(ph):
+                        return 3, h, i_out
+                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
+                                         temperature_slope, exact)
+                    evaluate_cubic(poly, in_logs, CHECKS[check], cst, dc)
+                    for c in range(n_coef):
+                        if abs(cst[c] - exact[c]) > COEFFICIENT_RTOL * (abs(exact[c]) if in_logs[c] else scale[c]):
+                            smooth = False
+                            break
+                    if not smooth:
+                        break
+                if smooth:
+                    break
+                tb = ta + 0.5 * (tb - ta)
+            if not smooth:
+                return 2, h, i_out
+            inv_half = 1.0 / (0.5 * (tb - ta))
+            mid = 0.5 * (ta + tb)
+        else:
+            ph = time_speciation(ta, model, par, ctx, temperature_slope, ws)
+            if math.isnan(ph):
+                return 3, h, i_out
+            segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
+                                 temperature_slope, cst)
+            for c in range(n_coef):
+                in_logs[c] = False
+                poly[c, 0] = cst[c]
+                for a in range(1, 4):
+                    poly[c, a] = 0.0
+            inv_half = 0.0
+            mid = ta
+        sub_span = tb - ta
+        # ---- Rodas4 on [ta, tb]
+        if varying:
+            evaluate_cubic(poly, in_logs, (ta - mid) * inv_half, cst, dc)
+            for c in range(n_coef):
+                dc[c] *= inv_half
+        if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
+                          feed_rate, feed_volume_rate, product, v):
+            return 3, h, i_out
+        if h <= 0.0:
+            h = initial_step(y, f0, n, atol, rtol, sub_span)
+        t = ta
+        jac_fresh = False
+        while t < tb:
+            if not jac_fresh:
+                # cst, dc, product and v are those of (t, y): the last evaluation was there
+                smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, v,
+                                active_of, jac_t)
+                if varying:
+                    smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, product,
+                                           ft)
+                jac_fresh = True
+            last = False
+            wanted = h
+            if t + 1.0000001 * h >= tb:
+                h = tb - t
+                last = True
+            if h < 1e-13 * max(abs(t), span) or h <= 0.0:
+                return 2, h, i_out
+            # W = I/(h gamma) - J on the active states only; passive states (zero
+            # Jacobian columns) follow by substitution, k_p = h gamma (f_p + sum_a J[p, a] k_a)
+            hg = h * GAMMA
+            diag = 1.0 / hg
+            for a in range(n_act):
+                ia = active[a]
+                for b in range(n_act):
+                    g[a, b] = -jac_t[b, ia]
+                g[a, a] += diag
+            if not lu_factor(g, piv):
+                return 4, h, i_out
+            failed = False
+            for st in range(6):
+                if st == 0:
+                    for i in range(n):
+                        fy[i] = f0[i]
+                else:
+                    stage_point(y, k, st, ytmp)
+                    if varying:
+                        evaluate_cubic(poly, in_logs, (t + ALPHA[st] * h - mid) * inv_half, cst, dc)
+                    if not smooth_rhs(ytmp, fy, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
+                                      titrant_conc, feed_rate, feed_volume_rate, product, v):
+                        failed = True
+                        break
+                    add_stage_history(fy, k, st, h)
+                if varying and GAMMAS[st] != 0.0:
+                    gh = h * GAMMAS[st]
+                    for i in range(n):
+                        fy[i] += gh * ft[i]
+                for a in range(n_act):
+                    sub[a] = fy[active[a]]
+                lu_solve(g, piv, sub)
+                for a in range(n_act):
+                    k[st, active[a]] = sub[a]
+                for p in range(n_pas):
+                    ip = passive[p]
+                    val = fy[ip]
+                    for a in range(n_act):
+                        val += jac_t[a, ip] * sub[a]
+                    k[st, ip] = hg * val
+            err = 0.0
+            if not failed:
+                err = new_solution(y, k, ynew, rtol, atol)
+                if not math.isfinite(err):
+                    failed = True
+            t_new = tb if last else t + h
+            if not failed and err <= 1.0:
+                if varying:
+                    evaluate_cubic(poly, in_logs, (t_new - mid) * inv_half, cst, dc)
+                    for c in range(n_coef):
+                        dc[c] *= inv_half
+                if not smooth_rhs(ynew, fnew, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
+                                  titrant_conc, feed_rate, feed_volume_rate, product, v):
+                    failed = True
+            if failed:
+                h *= 0.1
+                continue
+            if err <= 1.0:
+                # outputs strictly inside (t, t_new] and before t1: interpolate; t1 itself is left to the caller
+                while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
+                    tout = out_t[i_out]
+                    theta = (tout - t) / h
+                    for j in range(n - 1):
+                        out[i_out, j] = hermite(y, f0, ynew, fnew, h, theta, j)
+                    if held:
+                        out[i_out, n - 1] = ctx[1] + ctx[2]
+                    else:
+                        out[i_out, n - 1] = interpolate(ctx[5], ctx[6], ctx[7], tout) + ctx[2]
+                    out[i_out, n] = hermite(y, f0, ynew, fnew, h, theta, n - 1)
+                    out[i_out, n + 1] = interpolate(ctx[8], ctx[9], ctx[10], tout)
+                    i_out += 1
+                for i in range(n):
+                    y[i] = ynew[i]
+                    f0[i] = fnew[i]
+                t = t_new
+                jac_fresh = False
+                counters[0] += 1
+                if counters[0] > MAX_STEPS:
+                    return 1, h, i_out
+                h = h * step_factor(err, True)
+                if last:
+                    # a step cut short to land on tb says nothing against the larger step
+                    h = max(h, wanted)
+            else:
+                h = h * step_factor(err, False)
+        trial = 2.0 * sub_span
+        ta = tb
+    return 0, h, i_out
