@@ -23,7 +23,8 @@ import numpy as np
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--steps", type=int, default=2500, help="posterior steps per walker")
+    parser.add_argument("--steps", type=int, default=1000, help="posterior steps per walker")
+    parser.add_argument("--proposal", default=None, help="moves: laplace (default with a fit) or stretch")
     parser.add_argument("--walkers", type=int, default=32)
     args = parser.parse_args()
 
@@ -32,7 +33,7 @@ def main() -> None:
     from speciakin.decision.draws import draws_from_covariance
     from speciakin.demo import demo_dir
     from speciakin.estimation.campaign_fit import fit_campaign
-    from speciakin.estimation.campaign_posterior import sample_campaign
+    from speciakin.estimation.campaign_posterior import proposal_covariance_from_fit, sample_campaign
 
     folder = demo_dir()
     inputs = workflow.resolve_inputs(folder)
@@ -42,14 +43,17 @@ def main() -> None:
     objective.log_likelihood_batch(np.repeat(objective.start[None, :], 2, axis=0))  # compile / warm up
 
     t = time.perf_counter()
-    fit = fit_campaign(objective, starts=1, profiles=False)
+    # as `speciakin run` does: profiles too (they widen the proposal where an interval is open)
+    fit = fit_campaign(objective, starts=1, profiles=True)
     t_fit = time.perf_counter() - t
-    print(f"fit (1 start, no profiles): {t_fit:.1f} s")
+    print(f"fit (1 start, with profiles): {t_fit:.1f} s")
 
     se = np.array([fit.fit.parameter(k).standard_error for k in fit.keys], float)
     t = time.perf_counter()
+    covariance, note = proposal_covariance_from_fit(fit) if args.proposal != "stretch" else (None, None)
     post = sample_campaign(objective, fit.theta, se, n_walkers=args.walkers, n_steps=args.steps, seed=1,
-                           progress=False)
+                           progress=False, covariance=covariance, proposal=args.proposal)
+    print(f"moves: {post.proposal} ({note or 'fit covariance used' if covariance is not None else 'no covariance'})")
     t_post = time.perf_counter() - t
     tau = np.asarray(post.diagnostics.autocorrelation_time, float)
     ratio = args.steps / np.nanmax(tau) if np.all(np.isfinite(tau)) else float("nan")
@@ -57,6 +61,11 @@ def main() -> None:
     print(f"posterior: {args.walkers} walkers x {args.steps} steps in {t_post:.1f} s "
           f"({per_eval:.2f} ms per likelihood evaluation of 6 runs); chain = {ratio:.0f} x the longest "
           f"autocorrelation time (50 x needed); target 300 s -> ratio {t_post / 300:.2f}")
+    if np.isfinite(ratio):
+        needed = 50.0 * np.nanmax(tau)
+        print(f"  50 x tau = {needed:.0f} steps -> {t_post / args.steps * needed:.0f} s at this speed "
+              f"(target 300 s -> ratio {t_post / args.steps * needed / 300:.2f}); tau per parameter: "
+              + ", ".join(f"{v:.1f}" for v in tau))
 
     import dataclasses
 

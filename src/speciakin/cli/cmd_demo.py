@@ -7,7 +7,7 @@ HELP = "run the whole job on the bundled demo campaign (invented compound, inven
 
 EPILOG = """example:
   speciakin demo                        # writes reports/demo/
-  speciakin demo --out /tmp/demo --steps 1500
+  speciakin demo --out /tmp/demo --steps 1000
 
 The demo compound, reagent and every number are invented for illustration."""
 
@@ -18,7 +18,7 @@ def add_arguments(parser) -> None:
     parser.epilog = EPILOG
     parser.add_argument("--out", metavar="DIR", default="reports/demo", help="output folder (default reports/demo)")
     add_pipeline_options(parser)
-    parser.set_defaults(steps=400)
+    parser.set_defaults(steps=2000)
 
 
 def run(args) -> int:

@@ -20,7 +20,7 @@ def add_arguments(parser) -> None:
 
     parser.epilog = EPILOG
     add_campaign_arguments(parser)
-    parser.add_argument("--steps", type=int, default=3000, help="steps per walker (default 3000)")
+    parser.add_argument("--steps", type=int, default=2000, help="steps per walker (default 2000)")
     parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
     parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
     parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the likelihood")

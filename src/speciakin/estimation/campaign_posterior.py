@@ -153,7 +153,7 @@ def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
 
 
 def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale: np.ndarray, *,
-                    n_walkers: int | None = None, n_steps: int = 3000, seed: int = 1,
+                    n_walkers: int | None = None, n_steps: int = 2000, seed: int = 1,
                     checkpoint=None, resume: bool = False, jobs: int = 1, scheduler=None,
                     progress=True, checkpoint_every: float = 30.0, covariance=None,
                     proposal: str | None = None) -> PosteriorResult:
