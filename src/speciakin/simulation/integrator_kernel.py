@@ -45,6 +45,8 @@ from speciakin.simulation.rhs_kernel import (
 )
 from speciakin.simulation.segment_kernel import hermite, integrate_smooth
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
+from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
                                                 stage_point, step_factor)
 
@@ -81,22 +83,24 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     right-hand side at the interpolated state).
 
     Returns (status, next step size, next output index).  ``counters[0]``
-    counts accepted steps.
+    counts accepted steps.  The work arrays are made here; the step loop
+    (:func:`rodas_general`) runs without reference counting.
     """
     n = y.shape[0]
-    f0 = np.empty(n)
-    ft = np.empty(n)
-    fy = np.empty(n)
-    ytmp = np.empty(n)
-    ynew = np.empty(n)
-    f1 = np.empty(n)
+    return rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
+                         nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out, np.empty(n),
+                         np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((6, n)),
+                         np.zeros((n, n)), np.empty((n, n)), np.empty(n, dtype=np.int64))
+
+
+@leaf_kernel
+def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous,
+                  rtol, atol, ws, counters, out, out_t, i_out, n_out, f0, ft, fy, ytmp, ynew, f1, k, jac, g, piv):
+    """The step loop of :func:`integrate_segment` on work arrays it is given."""
+    n = y.shape[0]
     temp_t = ctx[8]
     temp_v = ctx[9]
     temp_n = ctx[10]
-    k = np.empty((6, n))
-    jac = np.zeros((n, n))
-    g = np.empty((n, n))
-    piv = np.empty(n, dtype=np.int64)
     t = t0
     span = t1 - t0
     if span <= 0.0:
@@ -257,7 +261,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             info[0] = 0.0
             return 3
         imbalance = charge_imbalance(y, model, ph0, ws)
-        excess = 10.0 ** (-ph0) - 10.0 ** (ph0 - ws[7][1])
+        excess = exp10(-ph0) - exp10(ph0 - ws[7][1])
         delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
         y[titrant] += delta
         y[n_species] += delta / titrant_conc

@@ -32,6 +32,7 @@ import numpy as np
 from numba import njit
 
 from speciakin.simulation.speciation_kernel import (
+    exp10,
     GAS_CONSTANT,
     LN10,
     all_populations,
@@ -161,7 +162,7 @@ def set_temperature(temperature, model, par, ws):
     for i in range(pka_ref.shape[0]):
         pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
     for s in range(log10_k.shape[0]):
-        k_of_t[s] = 10.0 ** log10_k[s] * math.exp(-ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
+        k_of_t[s] = exp10(log10_k[s]) * math.exp(-ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
     cache[2] = math.nan
 
 
@@ -196,7 +197,7 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
                                        micro_charge, n_mol, pka2, dzdt)
         dtemp = 1e-3
         # d[OH-]/dT at fixed pH [mol/(L*K)]
-        cache[4] = (10.0 ** (ph - pkw(temperature + dtemp)) - 10.0 ** (ph - pkw(temperature - dtemp))) / (
+        cache[4] = (exp10(ph - pkw(temperature + dtemp)) - exp10(ph - pkw(temperature - dtemp))) / (
             2.0 * dtemp)
     return ph
 
@@ -240,8 +241,8 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         for j in range(n_species):
             conc[j] = y[j] / volume
     pkw_value = cache[1]
-    hydrogen = 10.0 ** (-ph)
-    hydroxide = 10.0 ** (ph - pkw_value)
+    hydrogen = exp10(-ph)
+    hydroxide = exp10(ph - pkw_value)
     # reaction rates [mol/(L*s)]
     for s in range(n_steps):
         r = k_of_t[s]
@@ -290,7 +291,7 @@ def charge_imbalance(y, model, ph, ws):
     species_charge = model[2]
     zbar = ws[3]
     cache = ws[7]
-    total = y[n_species] * (10.0 ** (-ph) - 10.0 ** (ph - cache[1]))
+    total = y[n_species] * (exp10(-ph) - exp10(ph - cache[1]))
     for m in range(n_mol):
         total += y[m] * zbar[m]
     for j in range(n_mol, n_species):
@@ -326,7 +327,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
     ph = cache[2]
-    hydroxide = 10.0 ** (ph - cache[1])
+    hydroxide = exp10(ph - cache[1])
     for i in range(n):
         for j in range(n):
             jac[i, j] = 0.0
@@ -367,7 +368,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
             for k in range(prod_start[s], prod_start[s + 1]):
                 jac[prod_species[k], j] += prod_coef[k] * d
     if mode == 0:
-        excess = 10.0 ** (-ph) - hydroxide
+        excess = exp10(-ph) - hydroxide
         denominator = species_charge[titrant] + excess / titrant_conc
         for j in range(n_species + 1):
             num = 0.0
@@ -399,7 +400,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
     n = y.shape[0]
     volume = y[n_species]
     # dg/dpH [mol/L per pH unit]
-    dg = 10.0 ** (-ph) + hydroxide
+    dg = exp10(-ph) + hydroxide
     for m in range(n_mol):
         dg += conc[m] * variance[m]
     dg *= -LN10

@@ -63,6 +63,7 @@ from numba import njit
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
+from speciakin.simulation.speciation_kernel import exp10
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
                                                 stage_point, step_factor)
 
@@ -98,7 +99,7 @@ def effective_constants(model, ws, keff):
     k_of_t = ws[1]
     pops = ws[2]
     cache = ws[7]
-    hydroxide = 10.0 ** (cache[2] - cache[1])
+    hydroxide = exp10(cache[2] - cache[1])
     for s in range(model[13].shape[0]):
         r = k_of_t[s]
         for k in range(react_start[s], react_start[s + 1]):
@@ -161,7 +162,7 @@ def segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, 
     zbar = ws[3]
     cache = ws[7]
     dzdt = ws[9]
-    excess = 10.0 ** (-cache[2]) - 10.0 ** (cache[2] - cache[1])
+    excess = exp10(-cache[2]) - exp10(cache[2] - cache[1])
     denominator = species_charge[titrant] + excess / titrant_conc
     for s in range(n_steps):
         num = 0.0
@@ -327,6 +328,137 @@ def hermite(y0, f0, y1, f1, h, theta, i):
             + theta * (theta - 1.0) * ((1.0 - 2.0 * theta) * a + (theta - 1.0) * h * f0[i] + theta * h * f1[i]))
 
 
+@leaf_kernel
+def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants, n_react, n_species,
+                 n_mol, held, titrant, titrant_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
+                 ytmp, ynew, fnew, k, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t, i_out,
+                 n_out, held_ph, ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, counters):
+    """Rodas4 steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
+    on the sub-interval); returns (status, next step size, next output index).
+
+    A leaf function: the work arrays come from the caller, so the step loop
+    runs without reference counting.
+    """
+    n = y.shape[0]
+    n_coef = poly.shape[0]
+    n_act = active.shape[0]
+    n_pas = n - n_act
+    sub_span = tb - ta
+    if varying:
+        evaluate_cubic(poly, in_logs, (ta - mid) * inv_half, cst, dc)
+        for c in range(n_coef):
+            dc[c] *= inv_half
+    if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
+                      feed_rate, feed_volume_rate, product, v):
+        return 3, h, i_out
+    if h <= 0.0:
+        h = initial_step(y, f0, n, atol, rtol, sub_span)
+    t = ta
+    jac_fresh = False
+    while t < tb:
+        if not jac_fresh:
+            # cst, dc, product and v are those of (t, y): the last evaluation was there
+            smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, v,
+                            active_of, jac_t)
+            if varying:
+                smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, product,
+                                       ft)
+            jac_fresh = True
+        last = False
+        wanted = h
+        if t + 1.0000001 * h >= tb:
+            h = tb - t
+            last = True
+        if h < 1e-13 * max(abs(t), span) or h <= 0.0:
+            return 2, h, i_out
+        # W = I/(h gamma) - J on the active states only; passive states (zero
+        # Jacobian columns) follow by substitution, k_p = h gamma (f_p + sum_a J[p, a] k_a)
+        hg = h * GAMMA
+        diag = 1.0 / hg
+        for a in range(n_act):
+            ia = active[a]
+            for b in range(n_act):
+                g[a, b] = -jac_t[b, ia]
+            g[a, a] += diag
+        if not lu_factor(g, piv):
+            return 4, h, i_out
+        failed = False
+        for st in range(6):
+            if st == 0:
+                for i in range(n):
+                    fy[i] = f0[i]
+            else:
+                stage_point(y, k, st, ytmp)
+                if varying:
+                    evaluate_cubic(poly, in_logs, (t + ALPHA[st] * h - mid) * inv_half, cst, dc)
+                if not smooth_rhs(ytmp, fy, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
+                                  titrant_conc, feed_rate, feed_volume_rate, product, v):
+                    failed = True
+                    break
+                add_stage_history(fy, k, st, h)
+            if varying and GAMMAS[st] != 0.0:
+                gh = h * GAMMAS[st]
+                for i in range(n):
+                    fy[i] += gh * ft[i]
+            for a in range(n_act):
+                sub[a] = fy[active[a]]
+            lu_solve(g, piv, sub)
+            for a in range(n_act):
+                k[st, active[a]] = sub[a]
+            for p in range(n_pas):
+                ip = passive[p]
+                val = fy[ip]
+                for a in range(n_act):
+                    val += jac_t[a, ip] * sub[a]
+                k[st, ip] = hg * val
+        err = 0.0
+        if not failed:
+            err = new_solution(y, k, ynew, rtol, atol)
+            if not math.isfinite(err):
+                failed = True
+        t_new = tb if last else t + h
+        if not failed and err <= 1.0:
+            if varying:
+                evaluate_cubic(poly, in_logs, (t_new - mid) * inv_half, cst, dc)
+                for c in range(n_coef):
+                    dc[c] *= inv_half
+            if not smooth_rhs(ynew, fnew, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
+                              titrant_conc, feed_rate, feed_volume_rate, product, v):
+                failed = True
+        if failed:
+            h *= 0.1
+            continue
+        if err <= 1.0:
+            # outputs strictly inside (t, t_new] and before t1: interpolate; t1 itself is left to the caller
+            while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
+                tout = out_t[i_out]
+                theta = (tout - t) / h
+                for j in range(n - 1):
+                    out[i_out, j] = hermite(y, f0, ynew, fnew, h, theta, j)
+                if held:
+                    out[i_out, n - 1] = held_ph
+                else:
+                    out[i_out, n - 1] = interpolate(log_t, log_v, log_n, tout) + ph_offset
+                out[i_out, n] = hermite(y, f0, ynew, fnew, h, theta, n - 1)
+                out[i_out, n + 1] = interpolate(temp_t, temp_v, temp_n, tout)
+                i_out += 1
+            for i in range(n):
+                y[i] = ynew[i]
+                f0[i] = fnew[i]
+            t = t_new
+            jac_fresh = False
+            counters[0] += 1
+            if counters[0] > MAX_STEPS:
+                return 1, h, i_out
+            h = h * step_factor(err, True)
+            if last:
+                # a step cut short to land on tb says nothing against the larger step
+                h = max(h, wanted)
+        else:
+            h = h * step_factor(err, False)
+    return 0, h, i_out
+
+
 @njit(cache=True)
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_rate, temperature_slope,
                      varying, rtol, atol, out, out_t, i_out, n_out, counters):
@@ -483,119 +615,16 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_r
             inv_half = 0.0
             mid = ta
         sub_span = tb - ta
-        # ---- Rodas4 on [ta, tb]
-        if varying:
-            evaluate_cubic(poly, in_logs, (ta - mid) * inv_half, cst, dc)
-            for c in range(n_coef):
-                dc[c] *= inv_half
-        if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                          feed_rate, feed_volume_rate, product, v):
-            return 3, h, i_out
-        if h <= 0.0:
-            h = initial_step(y, f0, n, atol, rtol, sub_span)
-        t = ta
-        jac_fresh = False
-        while t < tb:
-            if not jac_fresh:
-                # cst, dc, product and v are those of (t, y): the last evaluation was there
-                smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, v,
-                                active_of, jac_t)
-                if varying:
-                    smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, product,
-                                           ft)
-                jac_fresh = True
-            last = False
-            wanted = h
-            if t + 1.0000001 * h >= tb:
-                h = tb - t
-                last = True
-            if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-                return 2, h, i_out
-            # W = I/(h gamma) - J on the active states only; passive states (zero
-            # Jacobian columns) follow by substitution, k_p = h gamma (f_p + sum_a J[p, a] k_a)
-            hg = h * GAMMA
-            diag = 1.0 / hg
-            for a in range(n_act):
-                ia = active[a]
-                for b in range(n_act):
-                    g[a, b] = -jac_t[b, ia]
-                g[a, a] += diag
-            if not lu_factor(g, piv):
-                return 4, h, i_out
-            failed = False
-            for st in range(6):
-                if st == 0:
-                    for i in range(n):
-                        fy[i] = f0[i]
-                else:
-                    stage_point(y, k, st, ytmp)
-                    if varying:
-                        evaluate_cubic(poly, in_logs, (t + ALPHA[st] * h - mid) * inv_half, cst, dc)
-                    if not smooth_rhs(ytmp, fy, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                                      titrant_conc, feed_rate, feed_volume_rate, product, v):
-                        failed = True
-                        break
-                    add_stage_history(fy, k, st, h)
-                if varying and GAMMAS[st] != 0.0:
-                    gh = h * GAMMAS[st]
-                    for i in range(n):
-                        fy[i] += gh * ft[i]
-                for a in range(n_act):
-                    sub[a] = fy[active[a]]
-                lu_solve(g, piv, sub)
-                for a in range(n_act):
-                    k[st, active[a]] = sub[a]
-                for p in range(n_pas):
-                    ip = passive[p]
-                    val = fy[ip]
-                    for a in range(n_act):
-                        val += jac_t[a, ip] * sub[a]
-                    k[st, ip] = hg * val
-            err = 0.0
-            if not failed:
-                err = new_solution(y, k, ynew, rtol, atol)
-                if not math.isfinite(err):
-                    failed = True
-            t_new = tb if last else t + h
-            if not failed and err <= 1.0:
-                if varying:
-                    evaluate_cubic(poly, in_logs, (t_new - mid) * inv_half, cst, dc)
-                    for c in range(n_coef):
-                        dc[c] *= inv_half
-                if not smooth_rhs(ynew, fnew, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                                  titrant_conc, feed_rate, feed_volume_rate, product, v):
-                    failed = True
-            if failed:
-                h *= 0.1
-                continue
-            if err <= 1.0:
-                # outputs strictly inside (t, t_new] and before t1: interpolate; t1 itself is left to the caller
-                while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                    tout = out_t[i_out]
-                    theta = (tout - t) / h
-                    for j in range(n - 1):
-                        out[i_out, j] = hermite(y, f0, ynew, fnew, h, theta, j)
-                    if held:
-                        out[i_out, n - 1] = ctx[1] + ctx[2]
-                    else:
-                        out[i_out, n - 1] = interpolate(ctx[5], ctx[6], ctx[7], tout) + ctx[2]
-                    out[i_out, n] = hermite(y, f0, ynew, fnew, h, theta, n - 1)
-                    out[i_out, n + 1] = interpolate(ctx[8], ctx[9], ctx[10], tout)
-                    i_out += 1
-                for i in range(n):
-                    y[i] = ynew[i]
-                    f0[i] = fnew[i]
-                t = t_new
-                jac_fresh = False
-                counters[0] += 1
-                if counters[0] > MAX_STEPS:
-                    return 1, h, i_out
-                h = h * step_factor(err, True)
-                if last:
-                    # a step cut short to land on tb says nothing against the larger step
-                    h = max(h, wanted)
-            else:
-                h = h * step_factor(err, False)
+        # ---- Rodas4 on [ta, tb] (a leaf function: no reference counting in the step loop)
+        status, h, i_out = rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants,
+                                        n_react, n_species, n_mol, held, titrant, titrant_conc, feed_rate,
+                                        feed_volume_rate, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew, k,
+                                        active, passive[:n_pas], active_of, jac_t, g, sub, piv, rtol, atol, out,
+                                        out_t, i_out, n_out, ctx[1] + ctx[2], ctx[2], ctx[5], ctx[6], ctx[7],
+                                        ctx[8], ctx[9], ctx[10], counters)
+        if status != 0:
+            return status, h, i_out
+        sub_span = tb - ta
         trial = 2.0 * sub_span
         ta = tb
     return 0, h, i_out
