@@ -43,7 +43,7 @@ from speciakin.simulation.rhs_kernel import (
     mean_charges,
     rhs,
 )
-from speciakin.simulation.segment_kernel import hermite, integrate_smooth
+from speciakin.simulation.segment_kernel import hermite, integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10
 from speciakin.simulation.jit_options import leaf_kernel
@@ -243,6 +243,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     ctx = (mode, setpoint_a[r], ph_offset, max(titrant, 0), titrant_conc, log_t_a[r], log_v_a[r],
            max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n)
     ws = make_workspace(n_species, n_sites, micro_charge.shape[0], n_mol, n_steps)
+    sw = make_smooth_workspace(model, n_species + 2)
     n_state = n_species + 2
     y = y0_a[r].copy()
     for j in range(n_species):
@@ -333,8 +334,9 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         t_next = t_end
         if mode != MODE_FREE:
             # the acid-base state depends on time only: mass-action path (segment_kernel)
-            status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, feed_rate, feed_volume_rate,
-                                                temp_slope, nonauto, rtol, atol, out, out_t, i_out, n_out, counters)
+            status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, sw, feed_rate,
+                                                feed_volume_rate, temp_slope, nonauto, rtol, atol, out, out_t, i_out,
+                                                n_out, counters)
         else:
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,

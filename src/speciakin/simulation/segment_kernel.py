@@ -460,32 +460,16 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
 
 
 @njit(cache=True)
-def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_rate, temperature_slope,
-                     varying, rtol, atol, out, out_t, i_out, n_out, counters):
-    """Advance ``y`` from t0 to exactly t1 with Rodas4 [1]_ (held or logged pH).
-
-    ``varying`` = the pH or the temperature changes inside the segment (the
-    coefficients are then cubics in time, see the module notes).  Outputs at
-    times strictly inside (t0, t1) from index ``i_out`` are written to
-    ``out`` by Hermite interpolation [2]_.
-
-    Returns
-    -------
-    (status, next step size, next output index)
-    """
+def make_smooth_workspace(model, n):
+    """Work arrays of :func:`integrate_smooth` for one run (n = state size):
+    (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
+    product, v, f0, ft, fy, ytmp, ynew, fnew, k, is_active, active, passive,
+    active_of, jac_t, g, sub, piv).  The stoichiometry is filled in here."""
     n_mol = model[0]
     n_species = model[1]
     n_steps = model[13].shape[0]
     react_start = model[15]
     react_kind = model[16]
-    mode = ctx[0]
-    held = mode == MODE_HELD
-    titrant = ctx[3]
-    titrant_conc = ctx[4]
-    n = y.shape[0]
-    span = t1 - t0
-    if span <= 0.0:
-        return 0, h, i_out
     max_react = 1
     for s in range(n_steps):
         m = 0
@@ -498,25 +482,51 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_r
     n_react = np.zeros(n_steps, dtype=np.int64)
     stoichiometry(model, nu, reactants, n_react)
     n_coef = 2 * n_steps + n_mol + 2
-    nodes = np.empty((4, n_coef))
-    poly = np.zeros((n_coef, 4))
-    in_logs = np.zeros(n_coef, dtype=np.bool_)
-    exact = np.empty(n_coef)
-    scale = np.empty(n_coef)
-    cst = np.empty(n_coef)
-    dc = np.zeros(n_coef)
-    product = np.empty(max(n_steps, 1))
-    v = np.empty(max(n_steps, 1))
-    f0 = np.empty(n)
-    ft = np.zeros(n)
-    fy = np.empty(n)
-    ytmp = np.empty(n)
-    ynew = np.empty(n)
-    fnew = np.empty(n)
-    k = np.empty((6, n))
+    return (nu, reactants, n_react, np.empty((4, n_coef)), np.zeros((n_coef, 4)), np.zeros(n_coef, dtype=np.bool_),
+            np.empty(n_coef), np.empty(n_coef), np.empty(n_coef), np.zeros(n_coef), np.empty(max(n_steps, 1)),
+            np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
+            np.empty((6, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64),
+            np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty((n, n)), np.empty(n), np.empty(n, dtype=np.int64))
+
+
+@leaf_kernel
+def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
+                     varying, rtol, atol, out, out_t, i_out, n_out, counters):
+    """Advance ``y`` from t0 to exactly t1 with Rodas4 [1]_ (held or logged pH).
+
+    ``varying`` = the pH or the temperature changes inside the segment (the
+    coefficients are then cubics in time, see the module notes).  Outputs at
+    times strictly inside (t0, t1) from index ``i_out`` are written to
+    ``out`` by Hermite interpolation [2]_.  ``sw``: the run's work arrays
+    (:func:`make_smooth_workspace`).
+
+    Returns
+    -------
+    (status, next step size, next output index)
+    """
+    n_mol = model[0]
+    n_species = model[1]
+    n_steps = model[13].shape[0]
+    mode = ctx[0]
+    held = mode == MODE_HELD
+    titrant = ctx[3]
+    titrant_conc = ctx[4]
+    n = y.shape[0]
+    span = t1 - t0
+    if span <= 0.0:
+        return 0, h, i_out
+    (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
+     k, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
+    n_coef = poly.shape[0]
+    for i in range(n):
+        ft[i] = 0.0
+    for c in range(n_coef):
+        dc[c] = 0.0
     # states whose Jacobian column can be non-zero: concentration reactants, the
     # volume and, under a held-pH temperature ramp, every molecule (gamma)
-    is_active = np.zeros(n, dtype=np.bool_)
+    for i in range(n):
+        is_active[i] = False
+        active_of[i] = -1
     is_active[n_species] = True
     for s in range(n_steps):
         for m in range(n_react[s]):
@@ -525,27 +535,21 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_r
         for m in range(n_mol):
             is_active[m] = True
     n_act = 0
+    n_pas = 0
     for i in range(n):
         if is_active[i]:
+            active_all[n_act] = i
+            active_of[i] = n_act
             n_act += 1
-    n_pas = n - n_act
-    active = np.empty(n_act, dtype=np.int64)
-    passive = np.empty(max(n_pas, 1), dtype=np.int64)
-    active_of = np.full(n, -1, dtype=np.int64)
-    ia = 0
-    ip = 0
-    for i in range(n):
-        if is_active[i]:
-            active[ia] = i
-            active_of[i] = ia
-            ia += 1
         else:
-            passive[ip] = i
-            ip += 1
-    jac_t = np.empty((n_act, n))
-    g = np.empty((n_act, n_act))
-    sub = np.empty(n_act)
-    piv = np.empty(n_act, dtype=np.int64)
+            passive_all[n_pas] = i
+            n_pas += 1
+    active = active_all[:n_act]
+    passive = passive_all[:n_pas]
+    jac_t = jac_all[:n_act]
+    g = g_all[:n_act, :n_act]
+    sub = sub_all[:n_act]
+    piv = piv_all[:n_act]
     ta = t0
     trial = span
     while ta < t1:
@@ -619,7 +623,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, feed_rate, feed_volume_r
         status, h, i_out = rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants,
                                         n_react, n_species, n_mol, held, titrant, titrant_conc, feed_rate,
                                         feed_volume_rate, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew, k,
-                                        active, passive[:n_pas], active_of, jac_t, g, sub, piv, rtol, atol, out,
+                                        active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out,
                                         out_t, i_out, n_out, ctx[1] + ctx[2], ctx[2], ctx[5], ctx[6], ctx[7],
                                         ctx[8], ctx[9], ctx[10], counters)
         if status != 0:
