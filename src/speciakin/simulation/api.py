@@ -149,10 +149,11 @@ def _batch_inputs(compiled, cruns, q_sets, ph_offset, amount_factor):
         raise InputError("parameter sets have the wrong width", Location(key="Q"), q_sets.shape,
                          f"(n_sets, {compiled.nominal.size})")
     n_sets, n_runs = q_sets.shape[0], len(cruns.names)
-    off = np.broadcast_to(cruns.ph_offset[None, :] if ph_offset is None else np.asarray(ph_offset, float),
-                          (n_sets, n_runs)).copy()
-    fac = np.broadcast_to(cruns.amount_factor[None, :] if amount_factor is None else
-                          np.asarray(amount_factor, float), (n_sets, n_runs)).copy()
+    # filled by assignment (broadcasting); cheaper than broadcast_to(...).copy() per call
+    off = np.empty((n_sets, n_runs))
+    off[...] = cruns.ph_offset[None, :] if ph_offset is None else np.asarray(ph_offset, float)
+    fac = np.empty((n_sets, n_runs))
+    fac[...] = cruns.amount_factor[None, :] if amount_factor is None else np.asarray(amount_factor, float)
     return np.ascontiguousarray(q_sets), off, fac
 
 
@@ -207,9 +208,8 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
     if data.shape != expected or sigma.shape != expected:
         raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
                          (data.shape, sigma.shape), str(expected))
-    observed = np.isfinite(data)
-    if np.any(~(sigma[observed] > 0)):
-        raise InputError("sigma must be positive where data are observed", Location(key="sigma"))
     loglik = np.zeros(res.outputs.shape[0])
-    gaussian_loglik(res.outputs, res.status, data, sigma, compiled.n_species, bool(as_concentration), loglik)
+    # the compiled sum also reports a sigma that is not positive where data are observed
+    if not gaussian_loglik(res.outputs, res.status, data, sigma, compiled.n_species, bool(as_concentration), loglik):
+        raise InputError("sigma must be positive where data are observed", Location(key="sigma"))
     return loglik, res

@@ -53,7 +53,14 @@ def gaussian_loglik(out, status, data, sigma, n_species, as_concentration, logli
 
     ``data``, ``sigma``: (n_runs, n_times, n_outputs) like one set of ``out``;
     with ``as_concentration`` the species columns are compared as [mol/L].
+    Returns False (``loglik`` untouched) when a sigma where data are observed
+    is not positive.
     """
+    for r in range(data.shape[0]):
+        for i in range(data.shape[1]):
+            for j in range(data.shape[2]):
+                if not math.isnan(data[r, i, j]) and not (sigma[r, i, j] > 0.0):
+                    return False
     n_sets = out.shape[0]
     n_runs = out.shape[1]
     for s in range(n_sets):
@@ -75,3 +82,4 @@ def gaussian_loglik(out, status, data, sigma, n_species, as_concentration, logli
                     z = (d - y) / sigma[r, i, j]
                     total += -0.5 * z * z - math.log(sigma[r, i, j]) - 0.5 * _LOG_2PI
         loglik[s] = total if ok else -np.inf
+    return True
