@@ -148,6 +148,20 @@ def test_log_likelihood_against_numpy(batch_setup):
     assert loglik[0] == pytest.approx(expected, rel=1e-12)
 
 
+def test_sigma_must_be_positive_where_data_are_observed(batch_setup):
+    model, compiled, runs, times, cruns = batch_setup
+    shape = simulate_batch(compiled, cruns, compiled.nominal[None, :]).outputs.shape[1:]
+    data = np.full(shape, np.nan)
+    data[0, 1, 0] = 0.05
+    sigma = np.ones(shape)
+    sigma[0, 2, 0] = 0.0  # not observed there: allowed
+    loglik, _ = batch_log_likelihood(compiled, cruns, compiled.nominal[None, :], data, sigma)
+    assert np.isfinite(loglik[0])
+    sigma[0, 1, 0] = 0.0  # observed there: refused
+    with pytest.raises(InputError, match="sigma must be positive"):
+        batch_log_likelihood(compiled, cruns, compiled.nominal[None, :], data, sigma)
+
+
 def test_amount_factor_scales_substrate(batch_setup):
     model, compiled, runs, times, cruns = batch_setup
     res = simulate_batch(compiled, cruns, compiled.nominal[None, :], amount_factor=1.1)
