@@ -53,8 +53,8 @@ def run(args) -> int:
     out = default_out(args, "sample")
     fit = workflow.load_fit(out)
     if fit is None or fit.names != objective.names:
-        print("no matching fit.json in the output folder: fitting first")
-        fit = workflow.fit_step(objective, out, profiles=False)
+        print("no matching fit.json in the output folder: fitting first (with profiles, which shape the moves)")
+        fit = workflow.fit_step(objective, out, profiles=True)
     result = workflow.sample_step(objective, fit, out, n_steps=args.steps, n_walkers=args.walkers,
                                   seed=args.seed, resume=args.resume, jobs=args.jobs,
                                   scheduler=args.scheduler, progress=not args.quiet,
