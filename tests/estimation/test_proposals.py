@@ -24,6 +24,8 @@ from speciakin.estimation.campaign_posterior import (proposal_covariance_from_fi
                                                      widen_to_intervals)
 from speciakin.estimation.sampling import sample_posterior
 
+from .gaussian_target import MEAN, check_gaussian_moments, gaussian_log_likelihood
+
 # ---------------------------------------------------------------------------
 # pure functions
 # ---------------------------------------------------------------------------
@@ -222,47 +224,27 @@ def test_gamma_moments_long(seed, mixture):
 # the mixture through sample_posterior on a correlated Gaussian (analytic
 # covariance) with a proposal that is mis-centred and mis-scaled on purpose
 # ---------------------------------------------------------------------------
-_COV = np.array([[1.0, 1.6], [1.6, 4.0]])  # sd 1 and 2, correlation 0.8
-_PRECISION = np.linalg.inv(_COV)
-_MEAN = np.array([0.5, -1.0])
 _WIDE = [Prior("uniform", {"lower": -20, "upper": 20})] * 2
-
-
-def gaussian_log_likelihood(theta):
-    d = theta - _MEAN
-    return -0.5 * np.einsum("ni,ij,nj->n", d, _PRECISION, d)
 
 
 def _gaussian_run(n_steps, seed):
     # centre 0.7 sd off in each coordinate, covariance without correlation and 0.6 x the variances
-    return sample_posterior(gaussian_log_likelihood, ["x", "y"], _WIDE, _MEAN + [0.7, -1.4], [1.0, 2.0],
+    return sample_posterior(gaussian_log_likelihood, ["x", "y"], _WIDE, MEAN + [0.7, -1.4], [1.0, 2.0],
                             n_walkers=16, n_steps=n_steps, seed=seed, progress=False,
                             proposal_covariance=np.diag([0.6, 2.4]))
-
-
-def _check_gaussian(result):
-    x = result.samples
-    ess = min(min(result.diagnostics.ess_bulk), min(result.diagnostics.ess_autocorrelation))
-    cov = np.cov(x.T)
-    # variances: relative SE sqrt(2/ESS); correlation: (1-rho^2)/sqrt(ESS); mean: sd/sqrt(ESS)
-    # (large-sample normal theory, common practice); 4 standard errors allowed.
-    np.testing.assert_allclose(np.diag(cov), np.diag(_COV), rtol=4 * math.sqrt(2 / ess))
-    rho = cov[0, 1] / math.sqrt(cov[0, 0] * cov[1, 1])
-    assert abs(rho - 0.8) < 4 * (1 - 0.8 ** 2) / math.sqrt(ess)
-    assert np.all(np.abs(x.mean(axis=0) - _MEAN) < 4 * np.sqrt(np.diag(_COV) / ess))
 
 
 def test_mixture_recovers_correlated_gaussian():
     result = _gaussian_run(1200, seed=5)
     assert result.proposal == "laplace"
-    _check_gaussian(result)
+    check_gaussian_moments(result)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [21, 22, 23])
 def test_mixture_recovers_correlated_gaussian_long(seed):
     result = _gaussian_run(10000, seed)
-    _check_gaussian(result)
+    check_gaussian_moments(result)
     assert result.converged
 
 

@@ -10,6 +10,8 @@ from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError, SolverError
 from speciakin.estimation.sampling import PosteriorResult, sample_posterior
 
+from .gaussian_target import MEAN, check_gaussian_moments, gaussian_log_likelihood
+
 # ---------------------------------------------------------------------------
 # Conjugate normal model, known variance (Gelman et al., Bayesian Data
 # Analysis, 3rd ed., section 2.5, eq. 2.12): prior mu ~ N(mu0, tau0^2), data
@@ -85,29 +87,11 @@ def test_conjugate_normal_posterior_with_move_mixture_long(seed):
 # 2-D correlated Gaussian target, analytic covariance; wide uniform priors
 # make the posterior the Gaussian itself (truncation at > 10 sd is negligible).
 # ---------------------------------------------------------------------------
-_COV = np.array([[1.0, 1.6], [1.6, 4.0]])  # sd 1 and 2, correlation 0.8
-_PRECISION = np.linalg.inv(_COV)
-_MEAN = np.array([0.5, -1.0])
-
-
-def gaussian_log_likelihood(theta):
-    d = theta - _MEAN
-    return -0.5 * np.einsum("ni,ij,nj->n", d, _PRECISION, d)
-
-
 def test_correlated_gaussian_covariance_recovered():
     priors = [Prior("uniform", {"lower": -20, "upper": 20})] * 2
-    result = sample_posterior(gaussian_log_likelihood, ["x", "y"], priors, _MEAN, [1.0, 2.0],
+    result = sample_posterior(gaussian_log_likelihood, ["x", "y"], priors, MEAN, [1.0, 2.0],
                               n_walkers=16, n_steps=2000, seed=5, progress=False)
-    x = result.samples
-    ess = min(min(result.diagnostics.ess_bulk), min(result.diagnostics.ess_autocorrelation))
-    cov = np.cov(x.T)
-    # variances: relative standard error sqrt(2/ESS); correlation: (1-rho^2)/sqrt(ESS)
-    # (large-sample normal theory, common practice); 4 standard errors allowed.
-    np.testing.assert_allclose(np.diag(cov), np.diag(_COV), rtol=4 * math.sqrt(2 / ess))
-    rho = cov[0, 1] / math.sqrt(cov[0, 0] * cov[1, 1])
-    assert abs(rho - 0.8) < 4 * (1 - 0.8 ** 2) / math.sqrt(ess)
-    np.testing.assert_allclose(x.mean(axis=0), _MEAN, atol=4 * 2 / math.sqrt(ess))
+    check_gaussian_moments(result)
 
 
 def failing_log_likelihood(theta):
@@ -117,7 +101,7 @@ def failing_log_likelihood(theta):
 
 def test_failed_evaluations_are_counted_not_fatal():
     priors = [Prior("uniform", {"lower": -20, "upper": 20})] * 2
-    result = sample_posterior(failing_log_likelihood, ["x", "y"], priors, _MEAN, [1.0, 2.0],
+    result = sample_posterior(failing_log_likelihood, ["x", "y"], priors, MEAN, [1.0, 2.0],
                               n_walkers=8, n_steps=300, seed=1, progress=False)
     assert result.n_failed_evaluations > 0
     assert np.all(result.samples[:, 0] <= 1.5)
