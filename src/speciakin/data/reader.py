@@ -320,34 +320,26 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
     """
     values = table.column_values(index)
     n = len(values)
-    out = None
     if skip is None and bool not in set(map(type, values)):
         # one vectorised conversion; cells it cannot read (blank, text, '7,5') are looked at one by one
         import pandas as pd
 
         out = np.array(pd.to_numeric(pd.Series(values, dtype=object), errors="coerce"), dtype=float)
-        for i in np.flatnonzero(np.isnan(out)):
-            v = values[i]
-            if is_blank(v):
-                continue
-            f = _to_float(v)
-            if f is None:
-                collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
-                                v, "a number", code="not_numeric")
-            else:
-                out[i] = f
-    if out is None:
+        todo = np.flatnonzero(np.isnan(out))
+    else:
         out = np.full(n, np.nan)
-        for i, v in enumerate(values):
-            if skip is not None and skip[i]:
-                continue
-            if is_blank(v):
-                continue
-            f = _to_float(v)
-            if f is None:
-                collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
-                                v, "a number", code="not_numeric")
-                continue
+        todo = range(n)
+    for i in todo:
+        if skip is not None and skip[i]:
+            continue
+        v = values[i]
+        if is_blank(v):
+            continue
+        f = _to_float(v)
+        if f is None:
+            collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
+                            v, "a number", code="not_numeric")
+        else:
             out[i] = f
     bad = ~np.isfinite(out)
     blank = np.zeros(n, bool)
