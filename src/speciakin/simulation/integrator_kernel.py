@@ -47,8 +47,8 @@ from speciakin.simulation.segment_kernel import hermite, integrate_smooth, make_
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10
 from speciakin.simulation.jit_options import leaf_kernel
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
-                                                stage_point, step_factor)
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, land_step,
+                                                new_solution, stage_point, step_factor)
 
 STATUS_OK = 0
 STATUS_MAX_STEPS = 1
@@ -130,11 +130,8 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
             for i in range(n):
                 ft[i] = (ft[i] - f0[i]) / dt
         while True:
-            last = False
             wanted = h
-            if t + 1.0000001 * h >= t1:
-                h = t1 - t
-                last = True
+            h, last = land_step(t, h, t1)
             if h < 1e-13 * max(abs(t), span) or h <= 0.0:
                 return 2, h, i_out
             # G = I/(h*gamma) - J

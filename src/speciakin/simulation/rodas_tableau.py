@@ -106,6 +106,15 @@ def new_solution(y, k, ynew, rtol, atol):
 
 
 @leaf_kernel(inline="always")
+def land_step(t, h, t_end):
+    """(step, last): the step cut to land exactly on ``t_end`` when it would
+    reach or nearly reach it (within 1e-7 of a step), else ``h`` unchanged."""
+    if t + 1.0000001 * h >= t_end:
+        return t_end - t, True
+    return h, False
+
+
+@leaf_kernel(inline="always")
 def step_factor(err, accepted):
     """Step-size factor 0.9 err^-1/4, limited to [0.2, 6] after an accepted
     step and to [0.1, 1] after a rejected one (a PI controller was measured

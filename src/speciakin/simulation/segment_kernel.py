@@ -64,8 +64,8 @@ from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
 from speciakin.simulation.speciation_kernel import exp10
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, new_solution,
-                                                stage_point, step_factor)
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, land_step,
+                                                new_solution, stage_point, step_factor)
 
 MAX_STEPS = 100000
 #: Interpolation points of the coefficient cubic on [-1, 1] (Chebyshev points of the first kind).
@@ -364,11 +364,8 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, product,
                                        ft)
             jac_fresh = True
-        last = False
         wanted = h
-        if t + 1.0000001 * h >= tb:
-            h = tb - t
-            last = True
+        h, last = land_step(t, h, tb)
         if h < 1e-13 * max(abs(t), span) or h <= 0.0:
             return 2, h, i_out
         # W = I/(h gamma) - J on the active states only; passive states (zero
