@@ -14,6 +14,7 @@ from typing import Any
 __all__ = [
     "Location",
     "Problem",
+    "problems_with",
     "SpeciakinError",
     "InputError",
     "ModelFileError",
@@ -91,6 +92,11 @@ class Problem:
         }
 
 
+def problems_with(problems, severity: str) -> list[Problem]:
+    """The problems of one severity ("error" or "warning"), in their order."""
+    return [p for p in problems if p.severity == severity]
+
+
 class SpeciakinError(Exception):
     """Base class of every error the project raises on purpose."""
 
@@ -127,7 +133,7 @@ class InputError(SpeciakinError):
         if problems is None:
             problems = [Problem(message, location or Location(), value, expected)]
         self.problems = list(problems)
-        errors = [p for p in self.problems if p.severity == "error"] or self.problems
+        errors = problems_with(self.problems, "error") or self.problems
         if len(errors) == 1:
             text = errors[0].describe()
         else:
@@ -179,11 +185,11 @@ class ProblemCollector:
 
     @property
     def errors(self) -> list[Problem]:
-        return [p for p in self.problems if p.severity == "error"]
+        return problems_with(self.problems, "error")
 
     @property
     def warnings(self) -> list[Problem]:
-        return [p for p in self.problems if p.severity == "warning"]
+        return problems_with(self.problems, "warning")
 
     @property
     def has_errors(self) -> bool:

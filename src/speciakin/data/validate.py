@@ -23,7 +23,7 @@ from typing import Any
 import numpy as np
 
 from speciakin.data.campaign import Campaign, CampaignRun, TimeSeries
-from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector
+from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, problems_with
 
 __all__ = [
     "AREA_PERCENT_TOLERANCE", "MASS_BALANCE_TOLERANCE", "GAP_FACTOR", "GAP_MINIMUM",
@@ -282,11 +282,11 @@ class CheckReport:
 
     @property
     def errors(self) -> list[Problem]:
-        return [p for p in self.problems if p.severity == "error"]
+        return problems_with(self.problems, "error")
 
     @property
     def warnings(self) -> list[Problem]:
-        return [p for p in self.problems if p.severity == "warning"]
+        return problems_with(self.problems, "warning")
 
     @property
     def ok(self) -> bool:
