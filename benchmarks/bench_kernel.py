@@ -10,7 +10,8 @@ Each time is the best of several blocks of calls, with the median beside it
 (the host is a shared virtual machine whose speed moves by up to 2x).
 
 Compared routes (same tolerances rtol 1e-6, atol 1e-10):
-  * compiled kernel, one core, one parameter set per call;
+  * compiled kernel, one core, one parameter set per call (simulation and
+    likelihood in one compiled call);
   * compiled kernel, 64 parameter sets per call over all cores;
   * plain scipy solve_ivp (Radau) with a numpy right-hand side written here.
 Accuracy: outputs against a tight scipy reference (Radau, rtol 1e-11).
@@ -217,8 +218,9 @@ def main() -> None:
 
     # compiled, one core
     batch_log_likelihood(compiled, cruns, q0[None, :], data, sigma, parallel=False)
+    # many short blocks: the best block is then less likely to fall in a slow minute of the host
     one_core, one_core_median = timed(
-        lambda: batch_log_likelihood(compiled, cruns, q0[None, :], data, sigma, parallel=False), 100)
+        lambda: batch_log_likelihood(compiled, cruns, q0[None, :], data, sigma, parallel=False), 40, blocks=15)
     ll_serial, res = batch_log_likelihood(compiled, cruns, q0[None, :], data, sigma, parallel=False)
     steps = res.steps[0]
     print(f"compiled kernel, one core:           {one_core * 1e3:8.3f} ms per evaluation "
@@ -228,7 +230,7 @@ def main() -> None:
     q_sets = q0 + rng.normal(0.0, 0.05, size=(64, q0.size))
     batch_log_likelihood(compiled, cruns, q_sets, data, sigma, parallel=True)
     parallel_time, parallel_median = timed(
-        lambda: batch_log_likelihood(compiled, cruns, q_sets, data, sigma, parallel=True), 2)
+        lambda: batch_log_likelihood(compiled, cruns, q_sets, data, sigma, parallel=True), 2, blocks=10)
     ll_batch, bres = batch_log_likelihood(compiled, cruns, q_sets, data, sigma, parallel=True)
     per_eval_parallel = parallel_time / 64
     serial_time, _ = timed(lambda: batch_log_likelihood(compiled, cruns, q_sets, data, sigma, parallel=False), 1,

@@ -1,4 +1,4 @@
-"""Outputs between integration steps (Hermite dense output) and the held/logged-pH path."""
+"""Outputs between integration steps (continuous extension) and the held/logged-pH path."""
 
 from __future__ import annotations
 
@@ -39,8 +39,8 @@ def test_many_irregular_outputs_match_closed_form_and_do_not_force_steps():
 
 
 def test_outputs_inside_steps_agree_with_outputs_at_step_ends():
-    # the interpolant is third order while the steps are fourth order: an output read from the
-    # interpolant must still agree with the same run integrated to that time (tolerance 1e-6
+    # the continuous extension is one order below the steps: an output read from it
+    # must still agree with the same run integrated to that time (tolerance 1e-6
     # relative to the series maximum, the integrator's own rtol)
     model = two_site_model(double=True, hydrolysis=(-4.5, 0.5))
     for control in (held(7.5), logged_constant(8.0, 10800.0)):

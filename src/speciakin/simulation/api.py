@@ -10,7 +10,7 @@ import numpy as np
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, loglik_parallel, loglik_serial
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import STATUS_TEXT, microstate_amounts
 from speciakin.simulation.cache_guard import refresh_kernel_cache
@@ -157,6 +157,17 @@ def _batch_inputs(compiled, cruns, q_sets, ph_offset, amount_factor):
     return np.ascontiguousarray(q_sets), off, fac
 
 
+def _batch_buffers(compiled, compiled_runs, n_sets, n_runs):
+    """Output, status and info arrays of one batch call."""
+    out = np.full((n_sets, n_runs, compiled_runs.n_times_max, compiled.n_outputs), np.nan)
+    return out, np.zeros((n_sets, n_runs), np.int64), np.zeros((n_sets, n_runs, 3))
+
+
+def _batch_result(out, status, info) -> BatchResult:
+    failure = np.where(status != 0, info[..., 0], np.nan)
+    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy())
+
+
 def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,
                    amount_factor=None, rtol: float = 1e-6, atol: float = 1e-10,
                    parallel: bool = True) -> BatchResult:
@@ -178,14 +189,10 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     """
     _check_tolerances(rtol, atol)
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
-    n_sets, n_runs = off.shape
-    out = np.full((n_sets, n_runs, compiled_runs.n_times_max, compiled.n_outputs), np.nan)
-    status = np.zeros((n_sets, n_runs), np.int64)
-    info = np.zeros((n_sets, n_runs, 3))
+    out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
     kernel = batch_parallel if parallel else batch_serial
     kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
-    failure = np.where(status != 0, info[..., 0], np.nan)
-    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy())
+    return _batch_result(out, status, info)
 
 
 def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, data, sigma,
@@ -195,21 +202,26 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
 
     ``data`` and ``sigma`` have shape (n_runs, n_times_max, n_outputs); NaN in
     ``data`` = not observed.  With ``as_concentration`` the species columns
-    are compared as concentrations [mol/L], otherwise as amounts [mol].
+    are compared as concentrations [mol/L], otherwise as amounts [mol].  The
+    simulation and the sum run in one compiled call.
 
     Returns
     -------
     (loglik (n_sets,), BatchResult)
     """
-    res = simulate_batch(compiled, compiled_runs, q_sets, ph_offset, amount_factor, rtol, atol, parallel)
+    _check_tolerances(rtol, atol)
+    q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
+    out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
     data = np.asarray(data, float)
     sigma = np.asarray(sigma, float)
-    expected = res.outputs.shape[1:]
+    expected = out.shape[1:]
     if data.shape != expected or sigma.shape != expected:
         raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
                          (data.shape, sigma.shape), str(expected))
-    loglik = np.zeros(res.outputs.shape[0])
+    loglik = np.zeros(off.shape[0])
+    kernel = loglik_parallel if parallel else loglik_serial
     # the compiled sum also reports a sigma that is not positive where data are observed
-    if not gaussian_loglik(res.outputs, res.status, data, sigma, compiled.n_species, bool(as_concentration), loglik):
+    if not kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status,
+                  info, data, sigma, compiled.n_species, bool(as_concentration), loglik):
         raise InputError("sigma must be positive where data are observed", Location(key="sigma"))
-    return loglik, res
+    return loglik, _batch_result(out, status, info)

@@ -83,3 +83,23 @@ def gaussian_loglik(out, status, data, sigma, n_species, as_concentration, logli
                     total += -0.5 * z * z - math.log(sigma[r, i, j]) - 0.5 * _LOG_2PI
         loglik[s] = total if ok else -np.inf
     return True
+
+
+@njit(cache=True)
+def loglik_serial(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, data, sigma,
+                  n_species, as_concentration, loglik):
+    """:func:`batch_serial` and :func:`gaussian_loglik` in one compiled call
+    (one dispatch from Python per likelihood evaluation)."""
+    batch_serial(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info)
+    return gaussian_loglik(out, status, data, sigma, n_species, as_concentration, loglik)
+
+
+@njit(cache=True, parallel=True)
+def loglik_parallel(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, data, sigma,
+                    n_species, as_concentration, loglik):
+    """:func:`loglik_serial` with the (set, run) pairs spread over all cores."""
+    n_sets = q_all.shape[0]
+    n_runs = ph_offset.shape[1]
+    for task in prange(n_sets * n_runs):
+        _task(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, task, n_runs)
+    return gaussian_loglik(out, status, data, sigma, n_species, as_concentration, loglik)

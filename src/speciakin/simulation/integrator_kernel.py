@@ -1,9 +1,9 @@
-"""Compiled stiff integrator (Rodas4 Rosenbrock method) and the run driver.
+"""Compiled stiff integrator (Rodas5 Rosenbrock method) and the run driver.
 
-Rodas4: 6 stages, order 4 with an embedded order-3 estimate, L-stable and
-stiffly accurate.  Steps stop exactly at every discontinuity (dose start or
+Rodas5: 8 stages, order 5 with an embedded order-4 estimate, L-stable and
+stiffly accurate (coefficients in ``rodas_tableau``).  Steps stop exactly at every discontinuity (dose start or
 end, instant events, knots of the temperature and pH logs); outputs in
-between come from the cubic Hermite interpolant of each step.
+between come from the continuous extension (order 4) of each step.
 
 Held and logged pH: the acid-base state depends on time only, and every
 segment goes to the mass-action path of ``segment_kernel``.  Free pH: the pH
@@ -43,11 +43,12 @@ from speciakin.simulation.rhs_kernel import (
     mean_charges,
     rhs,
 )
-from speciakin.simulation.segment_kernel import hermite, integrate_smooth, make_smooth_workspace
+from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10
 from speciakin.simulation.jit_options import leaf_kernel
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, land_step,
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
+                                                dense_coefficients, dense_value, initial_step, land_step,
                                                 new_solution, stage_point, step_factor)
 
 STATUS_OK = 0
@@ -76,10 +77,10 @@ MAX_STEPS = 100000
 @njit(cache=True)
 def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
                       nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out):
-    """Advance ``y`` in place from t0 to exactly t1 with Rodas4 [1]_.
+    """Advance ``y`` in place from t0 to exactly t1 with Rodas5 [1]_.
 
     Outputs at times strictly inside (t0, t1) from index ``i_out`` are written
-    to ``out`` from the cubic Hermite interpolant of each step (pH from the
+    to ``out`` from the continuous extension of each step (pH from the
     right-hand side at the interpolated state).
 
     Returns (status, next step size, next output index).  ``counters[0]``
@@ -89,13 +90,14 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     n = y.shape[0]
     return rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
                          nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out, np.empty(n),
-                         np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((6, n)),
+                         np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((N_DENSE, n)),
+                         np.empty((N_STAGES, n)),
                          np.zeros((n, n)), np.empty((n, n)), np.empty(n, dtype=np.int64))
 
 
 @leaf_kernel
 def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous,
-                  rtol, atol, ws, counters, out, out_t, i_out, n_out, f0, ft, fy, ytmp, ynew, f1, k, jac, g, piv):
+                  rtol, atol, ws, counters, out, out_t, i_out, n_out, f0, ft, fy, ytmp, ynew, dense, k, jac, g, piv):
     """The step loop of :func:`integrate_segment` on work arrays it is given."""
     n = y.shape[0]
     temp_t = ctx[8]
@@ -143,7 +145,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
             if not lu_factor(g, piv):
                 return 4, h, i_out
             failed = False
-            for st in range(6):
+            for st in range(N_STAGES):
                 if st == 0:
                     for i in range(n):
                         fy[i] = f0[i]
@@ -170,7 +172,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                     k[st, i] = fy[i]
             err = 0.0
             if not failed:
-                err = new_solution(y, k, ynew, rtol, atol)
+                err = new_solution(y, ytmp, k, ynew, rtol, atol)
                 if not math.isfinite(err):
                     failed = True
             if failed:
@@ -179,15 +181,13 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
             if err <= 1.0:
                 t_new = t1 if last else t + h
                 if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                    # outputs inside this step: Hermite interpolation; t1 itself is left to the caller
-                    ph = rhs(t_new, ynew, f1, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-                    if math.isnan(ph):
-                        return 3, h, i_out
+                    # outputs inside this step: continuous extension; t1 itself is left to the caller
+                    dense_coefficients(k, dense)
                     while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
                         tout = out_t[i_out]
                         theta = (tout - t) / h
                         for i in range(n):
-                            ytmp[i] = hermite(y, f0, ynew, f1, h, theta, i)
+                            ytmp[i] = dense_value(y, ynew, dense, theta, i)
                         ph = rhs(tout, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
                         if math.isnan(ph):
                             return 3, h, i_out

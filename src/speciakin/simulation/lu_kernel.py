@@ -10,10 +10,12 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from speciakin.simulation.jit_options import leaf_kernel
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def lu_factor(a, piv):
     """In-place LU with partial pivoting; returns False when singular.
 
@@ -63,8 +65,12 @@ def lu_solve(a, piv, b):
         for j in range(i):
             s -= a[i, j] * b[j]
         b[i] = s
-    for i in range(n - 1, -1, -1):
+    # i runs n-1 .. 0 as an unsigned integer, so that no negative-index fix-up is compiled in
+    un = np.uint64(n)
+    one = np.uint64(1)
+    for back in range(n):
+        i = un - one - np.uint64(back)
         s = b[i]
-        for j in range(i + 1, n):
+        for j in range(i + one, un):
             s -= a[i, j] * b[j]
         b[i] = s * a[i, i]

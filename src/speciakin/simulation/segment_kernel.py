@@ -1,4 +1,4 @@
-"""Fast Rodas4 path for segments whose acid-base state depends on time only.
+"""Fast Rosenbrock (Rodas5) path for segments whose acid-base state depends on time only.
 
 With the pH held or logged, the microstate fractions, rate constants, [OH-]
 and mean charges depend on the pH and the temperature, which depend on time
@@ -29,27 +29,25 @@ The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma) are
 evaluated with the full speciation (``rhs_kernel.time_speciation``) at the
 four Chebyshev points of the segment and carried as a cubic in time (for
 each positive k_eff, the cubic of its logarithm, which is nearly linear in
-time under a temperature ramp and smooth in pH) [3]_.  The cubic is checked
+time under a temperature ramp and smooth in pH) [2]_.  The cubic is checked
 against a full evaluation at the midpoint, and the segment is halved until
 every coefficient agrees to :data:`COEFFICIENT_RTOL` of its size (a
 coefficient error of 1e-9 relative changes the solution far less than the
 integration tolerance).  At constant pH and temperature the coefficients are
 constants (one evaluation per segment).
 
-Outputs inside the segment are read from the cubic Hermite interpolant of
-each accepted step, so the steps need not stop at output times; only
-breakpoints (doses, events, knots) end a segment.
+Outputs inside the segment are read from the continuous extension of each
+accepted step (``rodas_tableau.dense_value``), so the steps need not stop at
+output times; only breakpoints (doses, events, knots) end a segment.
 
 References
 ----------
 .. [1] Hairer, E. and Wanner, G., "Solving Ordinary Differential Equations II.
    Stiff and Differential-Algebraic Problems", 2nd ed., Springer 1996,
-   section IV.7 (Rodas4, transformed form with W = I/(h*gamma) - J, and the
-   non-autonomous term gamma_i h df/dt).
-.. [2] Hairer, E., Norsett, S. P. and Wanner, G., "Solving Ordinary
-   Differential Equations I", 2nd ed., Springer 1993, section II.6 (dense
-   output; cubic Hermite interpolation, eq. 6.7).
-.. [3] Trefethen, L. N., "Approximation Theory and Approximation Practice",
+   section IV.7 (Rosenbrock methods, transformed form with W = I/(h*gamma) - J,
+   and the non-autonomous term gamma_i h df/dt); the coefficients are in
+   ``rodas_tableau``.
+.. [2] Trefethen, L. N., "Approximation Theory and Approximation Practice",
    SIAM 2013, chapters 2-4 (interpolation in Chebyshev points).
 """
 
@@ -64,7 +62,8 @@ from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
 from speciakin.simulation.speciation_kernel import exp10
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, add_stage_history, initial_step, land_step,
+from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
+                                                dense_coefficients, dense_value, initial_step, land_step,
                                                 new_solution, stage_point, step_factor)
 
 MAX_STEPS = 100000
@@ -242,7 +241,7 @@ def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titr
     return True
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
                     v, active_of, jac_t):
     """Non-zero columns of d(dy/dt)/dy, exact, stored transposed.
@@ -321,19 +320,11 @@ def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant
 
 
 @leaf_kernel
-def hermite(y0, f0, y1, f1, h, theta, i):
-    """Cubic Hermite interpolant of component ``i`` at t0 + theta*h [2]_."""
-    a = y1[i] - y0[i]
-    return (y0[i] + theta * a
-            + theta * (theta - 1.0) * ((1.0 - 2.0 * theta) * a + (theta - 1.0) * h * f0[i] + theta * h * f1[i]))
-
-
-@leaf_kernel
 def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants, n_react, n_species,
                  n_mol, held, titrant, titrant_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
-                 ytmp, ynew, fnew, k, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t, i_out,
+                 ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t, i_out,
                  n_out, held_ph, ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, counters):
-    """Rodas4 steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
+    """Rosenbrock steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
     on the sub-interval); returns (status, next step size, next output index).
 
     A leaf function: the work arrays come from the caller, so the step loop
@@ -380,7 +371,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
         if not lu_factor(g, piv):
             return 4, h, i_out
         failed = False
-        for st in range(6):
+        for st in range(N_STAGES):
             if st == 0:
                 for i in range(n):
                     fy[i] = f0[i]
@@ -410,7 +401,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 k[st, ip] = hg * val
         err = 0.0
         if not failed:
-            err = new_solution(y, k, ynew, rtol, atol)
+            err = new_solution(y, ytmp, k, ynew, rtol, atol)
             if not math.isfinite(err):
                 failed = True
         t_new = tb if last else t + h
@@ -426,17 +417,20 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
             h *= 0.1
             continue
         if err <= 1.0:
-            # outputs strictly inside (t, t_new] and before t1: interpolate; t1 itself is left to the caller
+            # outputs strictly inside (t, t_new] and before t1: continuous extension; t1 itself is left to
+            # the caller
+            if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
+                dense_coefficients(k, dense)
             while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
                 tout = out_t[i_out]
                 theta = (tout - t) / h
                 for j in range(n - 1):
-                    out[i_out, j] = hermite(y, f0, ynew, fnew, h, theta, j)
+                    out[i_out, j] = dense_value(y, ynew, dense, theta, j)
                 if held:
                     out[i_out, n - 1] = held_ph
                 else:
                     out[i_out, n - 1] = interpolate(log_t, log_v, log_n, tout) + ph_offset
-                out[i_out, n] = hermite(y, f0, ynew, fnew, h, theta, n - 1)
+                out[i_out, n] = dense_value(y, ynew, dense, theta, n - 1)
                 out[i_out, n + 1] = interpolate(temp_t, temp_v, temp_n, tout)
                 i_out += 1
             for i in range(n):
@@ -460,7 +454,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
 def make_smooth_workspace(model, n):
     """Work arrays of :func:`integrate_smooth` for one run (n = state size):
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
-    product, v, f0, ft, fy, ytmp, ynew, fnew, k, is_active, active, passive,
+    product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, is_active, active, passive,
     active_of, jac_t, g, sub, piv).  The stoichiometry is filled in here."""
     n_mol = model[0]
     n_species = model[1]
@@ -482,19 +476,19 @@ def make_smooth_workspace(model, n):
     return (nu, reactants, n_react, np.empty((4, n_coef)), np.zeros((n_coef, 4)), np.zeros(n_coef, dtype=np.bool_),
             np.empty(n_coef), np.empty(n_coef), np.empty(n_coef), np.zeros(n_coef), np.empty(max(n_steps, 1)),
             np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
-            np.empty((6, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64),
-            np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty((n, n)), np.empty(n), np.empty(n, dtype=np.int64))
+            np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64),
+            np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n), np.empty(n, dtype=np.int64))
 
 
 @leaf_kernel
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
                      varying, rtol, atol, out, out_t, i_out, n_out, counters):
-    """Advance ``y`` from t0 to exactly t1 with Rodas4 [1]_ (held or logged pH).
+    """Advance ``y`` from t0 to exactly t1 with Rodas5 [1]_ (held or logged pH).
 
     ``varying`` = the pH or the temperature changes inside the segment (the
     coefficients are then cubics in time, see the module notes).  Outputs at
     times strictly inside (t0, t1) from index ``i_out`` are written to
-    ``out`` by Hermite interpolation [2]_.  ``sw``: the run's work arrays
+    ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
     (:func:`make_smooth_workspace`).
 
     Returns
@@ -513,7 +507,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     if span <= 0.0:
         return 0, h, i_out
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
-     k, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
+     k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
     n_coef = poly.shape[0]
     for i in range(n):
         ft[i] = 0.0
@@ -544,7 +538,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     active = active_all[:n_act]
     passive = passive_all[:n_pas]
     jac_t = jac_all[:n_act]
-    g = g_all[:n_act, :n_act]
+    # a contiguous n_act x n_act matrix (a 2-D slice would be strided)
+    g = g_all[:n_act * n_act].reshape((n_act, n_act))
     sub = sub_all[:n_act]
     piv = piv_all[:n_act]
     ta = t0
@@ -616,11 +611,11 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
             inv_half = 0.0
             mid = ta
         sub_span = tb - ta
-        # ---- Rodas4 on [ta, tb] (a leaf function: no reference counting in the step loop)
+        # ---- Rosenbrock steps on [ta, tb] (a leaf function: no reference counting in the step loop)
         status, h, i_out = rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants,
                                         n_react, n_species, n_mol, held, titrant, titrant_conc, feed_rate,
                                         feed_volume_rate, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew, k,
-                                        active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out,
+                                        dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out,
                                         out_t, i_out, n_out, ctx[1] + ctx[2], ctx[2], ctx[5], ctx[6], ctx[7],
                                         ctx[8], ctx[9], ctx[10], counters)
         if status != 0:
