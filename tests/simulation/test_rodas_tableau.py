@@ -108,3 +108,17 @@ def test_a_tableau_that_is_not_stiffly_accurate_is_refused():
 def test_the_kernels_use_the_fifth_order_method():
     # docs/simulation.md states the method; keep the two in step
     assert rt.N_STAGES == 8 and rt.ERROR_ORDER == 5 and rt.N_DENSE == 3
+
+
+@pytest.mark.parametrize("method", [rt.RODAS4, rt.RODAS5], ids=["rodas4", "rodas5"])
+def test_chained_stages_are_the_stage_before_plus_its_k(method):
+    # the kernels evaluate a chained stage at (point of the stage before) + k_(st-1); check the identity
+    # on random stage vectors against the full sum y + sum_j a_(st, j) k_j
+    tab = rt.tableau(method)
+    rng = np.random.default_rng(3)
+    y, k = rng.normal(size=4), rng.normal(size=(tab["stages"], 4))
+    point = lambda st: y + sum(tab["a"][st * (st - 1) // 2 + j] * k[j] for j in range(st))  # noqa: E731
+    assert tab["chained"][-1]
+    for st in np.flatnonzero(tab["chained"]):
+        np.testing.assert_allclose(point(st), point(st - 1) + k[st - 1], rtol=1e-14, atol=1e-14)
+    np.testing.assert_allclose(y + tab["m"] @ k, point(tab["stages"] - 1) + k[-1], rtol=1e-14, atol=1e-14)

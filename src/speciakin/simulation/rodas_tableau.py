@@ -95,14 +95,15 @@ METHOD = RODAS5
 
 def tableau(method: dict) -> dict:
     """The arrays of a method: gamma, alpha (stage times), gammas, a and c
-    (lower triangles row by row), m (solution weights), dense (rows of the
-    continuous extension), stages, error_order.
+    (lower triangles row by row), m (solution weights), chained (see below),
+    dense (rows of the continuous extension), stages, error_order.
 
-    Both methods here are stiffly accurate: the last stage is evaluated at
-    the point of the stage before plus that stage's k (its row of a is the
-    row before, then 1), and the new solution is the point of the last stage
-    plus the last k (m = the last row of a, then 1).  This is checked here;
-    :func:`stage_point` and :func:`new_solution` use both identities, and
+    A stage is *chained* when its row of a is the row of the stage before,
+    then 1: it is evaluated at the point of the stage before plus that
+    stage's k.  Both methods here are stiffly accurate: the last stage is
+    chained, and the new solution is the point of the last stage plus the
+    last k (m = the last row of a, then 1); this is checked here.
+    :func:`stage_point` and :func:`new_solution` use these identities, and
     their sums keep the order of the full formulas, so the results are the
     same to the last bit.
     """
@@ -112,11 +113,13 @@ def tableau(method: dict) -> dict:
     row = lambda i: a[i * (i - 1) // 2:i * (i + 1) // 2]  # noqa: E731
     if not (a.shape[0] == stages * last // 2 == len(method["c"])):
         raise ValueError("a and c must hold the lower triangle of the stage matrix")
-    if not (np.array_equal(row(last)[:-1], row(last - 1)) and row(last)[-1] == 1.0):
+    chained = np.array([st >= 2 and np.array_equal(row(st)[:-1], row(st - 1)) and row(st)[-1] == 1.0
+                        for st in range(stages)])
+    if not chained[last]:
         raise ValueError("the method is not stiffly accurate in the form the kernels use")
     return dict(gamma=float(method["gamma"]), alpha=np.array(method["alpha"], dtype=float),
                 gammas=np.array(method["gammas"], dtype=float), a=a, c=np.array(method["c"], dtype=float),
-                m=np.append(row(last), 1.0), dense=np.array(method["dense"], dtype=float), stages=stages,
+                m=np.append(row(last), 1.0), chained=chained, dense=np.array(method["dense"], dtype=float), stages=stages,
                 error_order=int(method["error_order"]))
 
 
@@ -136,6 +139,8 @@ STAGE_A = _T["a"]
 STAGE_C = _T["c"]
 #: weights m_i of the solution
 STAGE_M = _T["m"]
+#: stages evaluated at the point of the stage before plus its k
+CHAINED = _T["chained"]
 #: the error estimate (the last stage) is of this order in h
 ERROR_ORDER = _T["error_order"]
 #: rows d_r of the continuous extension: D_r = sum_j DENSE[r, j] k_j
@@ -172,13 +177,14 @@ def initial_step(y, f0, n, atol, rtol, span):
 def stage_point(y, k, st, ytmp):
     """ytmp = y + sum_(j < st) a_(st, j) k_j: where stage ``st`` evaluates f.
 
-    For the last stage (st = 5) ``ytmp`` must still hold the point of stage 4:
-    the last point is that one plus k_4.
+    For a chained stage (:func:`tableau`; the last one, and for Rodas5 the
+    one before) ``ytmp`` must still hold the point of the stage before: the
+    point is that one plus its k.
     """
     n = y.shape[0]
-    if st == LAST:
+    if CHAINED[st]:
         for i in range(n):
-            ytmp[i] += k[LAST - 1, i]
+            ytmp[i] += k[st - 1, i]
         return
     for i in range(n):
         ytmp[i] = y[i]
@@ -204,8 +210,8 @@ def add_stage_history(fy, k, st, h):
 @leaf_kernel(inline="always")
 def new_solution(y, ylast, k, ynew, rtol, atol):
     """ynew = y + sum m_i k_i, computed as the point of the last stage
-    (``ylast``) plus k_6; returns the RMS error norm of the embedded estimate
-    (k_6), scaled by atol + rtol max(|y|, |ynew|) (NaN or inf when the step
+    (``ylast``) plus its k; returns the RMS error norm of the embedded
+    estimate (the last k), scaled by atol + rtol max(|y|, |ynew|) (NaN or inf when the step
     produced non-finite values)."""
     n = y.shape[0]
     err = 0.0
@@ -261,7 +267,7 @@ def error_root(err):
 
 @leaf_kernel(inline="always")
 def step_factor(err, accepted):
-    """Step-size factor 0.9 err^-1/4, limited to [0.2, 6] after an accepted
+    """Step-size factor 0.9 err^(-1/ERROR_ORDER), limited to [0.2, 6] after an accepted
     step and to [0.1, 1] after a rejected one (a PI controller was measured
     to take more steps on these problems)."""
     if accepted:
