@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from sim_models import constant_temperature, held, logged_constant, q, two_site_model, two_site_run
-from speciakin.chemistry.model import Ion, Model, Molecule, Reactant, Run, Step, TemperatureProfile
+from speciakin.chemistry.model import Ion, Model, Molecule, PhControl, Reactant, Run, Step, TemperatureProfile
 from speciakin.simulation import simulate
 
 
@@ -42,9 +42,11 @@ def test_outputs_inside_steps_agree_with_outputs_at_step_ends():
     # the continuous extension is one order below the steps: an output read from it
     # must still agree with the same run integrated to that time (tolerance 1e-6
     # relative to the series maximum, the integrator's own rtol)
+    # (free pH: the pH of an output is that of the charge balance at the interpolated state)
     model = two_site_model(double=True, hydrolysis=(-4.5, 0.5))
-    for control in (held(7.5), logged_constant(8.0, 10800.0)):
-        run = two_site_run(control)
+    runs = (two_site_run(held(7.5)), two_site_run(logged_constant(8.0, 10800.0)),
+            two_site_run(PhControl("free"), chloride=0.12, sodium=0.2))
+    for run in runs:
         t = np.linspace(0.0, 10800.0, 97)
         full = simulate(model, run, times=t)
         for i in (13, 40, 77):
@@ -52,6 +54,7 @@ def test_outputs_inside_steps_agree_with_outputs_at_step_ends():
             for name in ("S", "P_alkyl", "P_aryl", "P_both", "E"):
                 scale = np.max(np.abs(full.amount(name)))
                 assert abs(full.amount(name)[i] - short.amount(name)[-1]) <= 1e-6 * scale + 1e-12
+            assert abs(full.ph[i] - short.ph[-1]) <= 1e-5
 
 
 def test_held_ph_under_temperature_ramp_is_consistent_with_constant_temperature_limit():
