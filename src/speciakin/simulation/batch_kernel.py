@@ -7,6 +7,8 @@ parallel version uses numba ``prange``; the serial one is the same loop.
 The Gaussian log-likelihood is computed inside compiled code:
 log L = -1/2 sum ((d - y) / sigma)^2 - sum log(sigma) - N/2 log(2 pi),
 over the finite entries of ``data`` (NaN = not observed).
+:func:`loglik_serial` and :func:`loglik_parallel` simulate and sum in one
+compiled call, so a likelihood evaluation costs one dispatch from Python.
 """
 
 from __future__ import annotations
