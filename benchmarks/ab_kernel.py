@@ -103,8 +103,8 @@ def main() -> None:
                   f"{', '.join(map(str, setups[-1][2]))}", flush=True)
         (_, out_a, _, n_species), (_, out_b, _, _) = setups
         ref = out_a[..., :n_species]
-        print(f"largest output difference B - A: {np.max(np.abs(out_b[..., :n_species] - ref)) / np.max(np.abs(ref)):.2e}"
-              " of the largest amount")
+        difference = np.max(np.abs(out_b[..., :n_species] - ref)) / np.max(np.abs(ref))
+        print(f"largest output difference B - A: {difference:.2e} of the largest amount")
         times = np.zeros((args.rounds, 2))
         for r in range(args.rounds):
             order = (0, 1) if r % 2 == 0 else (1, 0)
@@ -116,7 +116,8 @@ def main() -> None:
                 times[r, i] = (time.perf_counter() - t0) / args.calls
         ratio = times[:, 1] / times[:, 0]
         for i, version in enumerate((args.a, args.b)):
-            print(f"{'AB'[i]} {version}: best {times[:, i].min() * 1e3:.3f} ms, median {np.median(times[:, i]) * 1e3:.3f} ms")
+            print(f"{'AB'[i]} {version}: best {times[:, i].min() * 1e3:.3f} ms, "
+                  f"median {np.median(times[:, i]) * 1e3:.3f} ms")
         print(f"B/A: median of paired ratios {np.median(ratio):.3f} (quartiles {np.quantile(ratio, 0.25):.3f}-"
               f"{np.quantile(ratio, 0.75):.3f}); ratio of the bests {times[:, 1].min() / times[:, 0].min():.3f}")
 

@@ -277,7 +277,8 @@ def main() -> None:
                            blocks=3)
     per_eval_serial_batch = serial_time / 64
     print(f"compiled kernel, 64 sets, all cores: {per_eval_parallel * 1e3:8.3f} ms per evaluation "
-          f"(median {parallel_median / 64 * 1e3:.3f}; blocks within 0.7 ms: {np.mean(pblocks / 64 <= 0.7e-3):.0%}; same batch on one core: {per_eval_serial_batch * 1e3:.3f} ms; failures: {int(np.sum(bres.status != 0))})")
+          f"(median {parallel_median / 64 * 1e3:.3f}; blocks within 0.7 ms: {np.mean(pblocks / 64 <= 0.7e-3):.0%}; "
+          f"same batch on one core: {per_eval_serial_batch * 1e3:.3f} ms; failures: {int(np.sum(bres.status != 0))})")
 
     # plain scipy route
     y0s = cruns.arrays[10].copy()

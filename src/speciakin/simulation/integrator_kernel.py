@@ -1,9 +1,10 @@
 """Compiled stiff integrator (Rodas5 Rosenbrock method) and the run driver.
 
 Rodas5: 8 stages, order 5 with an embedded order-4 estimate, L-stable and
-stiffly accurate (coefficients in ``rodas_tableau``).  Steps stop exactly at every discontinuity (dose start or
-end, instant events, knots of the temperature and pH logs); outputs in
-between come from the continuous extension (order 4) of each step.
+stiffly accurate (coefficients in ``rodas_tableau``).  Steps stop exactly at
+every discontinuity (dose start or end, instant events, knots of the
+temperature and pH logs); outputs in between come from the continuous
+extension (order 4) of each step.
 
 Held and logged pH: the acid-base state depends on time only, and every
 segment goes to the mass-action path of ``segment_kernel``.  Free pH: the pH

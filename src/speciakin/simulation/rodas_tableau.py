@@ -92,7 +92,6 @@ RODAS5 = dict(
 METHOD = RODAS5
 
 
-
 def tableau(method: dict) -> dict:
     """The arrays of a method: gamma, alpha (stage times), gammas, a and c
     (lower triangles row by row), m (solution weights), chained (see below),
@@ -119,8 +118,8 @@ def tableau(method: dict) -> dict:
         raise ValueError("the method is not stiffly accurate in the form the kernels use")
     return dict(gamma=float(method["gamma"]), alpha=np.array(method["alpha"], dtype=float),
                 gammas=np.array(method["gammas"], dtype=float), a=a, c=np.array(method["c"], dtype=float),
-                m=np.append(row(last), 1.0), chained=chained, dense=np.array(method["dense"], dtype=float), stages=stages,
-                error_order=int(method["error_order"]))
+                m=np.append(row(last), 1.0), chained=chained, dense=np.array(method["dense"], dtype=float),
+                stages=stages, error_order=int(method["error_order"]))
 
 
 _T = tableau(METHOD)
@@ -137,8 +136,6 @@ LAST = N_STAGES - 1
 STAGE_A = _T["a"]
 #: c_ij (lower triangle, row by row) of the stage right-hand sides
 STAGE_C = _T["c"]
-#: weights m_i of the solution
-STAGE_M = _T["m"]
 #: stages evaluated at the point of the stage before plus its k
 CHAINED = _T["chained"]
 #: the error estimate (the last stage) is of this order in h
@@ -211,8 +208,8 @@ def add_stage_history(fy, k, st, h):
 def new_solution(y, ylast, k, ynew, rtol, atol):
     """ynew = y + sum m_i k_i, computed as the point of the last stage
     (``ylast``) plus its k; returns the RMS error norm of the embedded
-    estimate (the last k), scaled by atol + rtol max(|y|, |ynew|) (NaN or inf when the step
-    produced non-finite values)."""
+    estimate (the last k), scaled by atol + rtol max(|y|, |ynew|) (NaN or
+    inf when the step produced non-finite values)."""
     n = y.shape[0]
     err = 0.0
     for i in range(n):
@@ -267,8 +264,8 @@ def error_root(err):
 
 @leaf_kernel(inline="always")
 def step_factor(err, accepted):
-    """Step-size factor 0.9 err^(-1/ERROR_ORDER), limited to [0.2, 6] after an accepted
-    step and to [0.1, 1] after a rejected one (a PI controller was measured
+    """Step-size factor 0.9 err^(-1/ERROR_ORDER), limited to [0.2, 6] after an
+    accepted step and to [0.1, 1] after a rejected one (a PI controller was measured
     to take more steps on these problems)."""
     if accepted:
         fac = 0.9 / error_root(err) if err > 0.0 else 6.0

@@ -322,8 +322,8 @@ def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant
 @leaf_kernel
 def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants, n_react, n_species,
                  n_mol, held, titrant, titrant_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
-                 ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t, i_out,
-                 n_out, held_ph, ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, counters):
+                 ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t,
+                 i_out, n_out, held_ph, ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, counters):
     """Rosenbrock steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
     on the sub-interval); returns (status, next step size, next output index).
 
@@ -476,8 +476,9 @@ def make_smooth_workspace(model, n):
     return (nu, reactants, n_react, np.empty((4, n_coef)), np.zeros((n_coef, 4)), np.zeros(n_coef, dtype=np.bool_),
             np.empty(n_coef), np.empty(n_coef), np.empty(n_coef), np.zeros(n_coef), np.empty(max(n_steps, 1)),
             np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
-            np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64),
-            np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n), np.empty(n, dtype=np.int64))
+            np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64),
+            np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n),
+            np.empty(n, dtype=np.int64))
 
 
 @leaf_kernel
