@@ -52,8 +52,8 @@ def main() -> int:
     parser.add_argument("--synthetic", action="store_true", help="use the small synthetic campaign")
     args = parser.parse_args()
 
-    from speciakin.estimation.campaign_fit import fit_campaign
-    from speciakin.estimation.objective import CampaignObjective
+    from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.objective import CampaignObjective
 
     t0 = time.perf_counter()
     model, campaign, label = _inputs(args.synthetic)

@@ -28,12 +28,12 @@ def main() -> None:
     parser.add_argument("--walkers", type=int, default=32)
     args = parser.parse_args()
 
-    from speciakin import workflow
-    from speciakin.decision.campaign_window import COVARIANCE, window_for_campaign
+    from speciakin.pipeline import steps as workflow
+    from speciakin.pipeline.window import COVARIANCE, window_for_campaign
     from speciakin.decision.draws import draws_from_covariance
     from speciakin.demo import demo_dir
-    from speciakin.estimation.campaign_fit import fit_campaign
-    from speciakin.estimation.campaign_posterior import proposal_covariance_from_fit, sample_campaign
+    from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.posterior import proposal_covariance_from_fit, sample_campaign
 
     folder = demo_dir()
     inputs = workflow.resolve_inputs(folder)

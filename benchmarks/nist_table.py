@@ -9,7 +9,7 @@ local Levenberg-Marquardt fit (lmfit "leastsq", one start) with the multistart
 search from start 1.
 
 Run:  .venv/bin/python benchmarks/nist_table.py [--markdown]
-Reference data: shared/reference/nist_strd (public domain NIST StRD files).
+Reference data: tests/data/nist_strd (NIST Statistical Reference Datasets, public domain).
 """
 
 from __future__ import annotations
@@ -22,7 +22,9 @@ import numpy as np
 
 from speciakin.errors import SolverError
 from speciakin.estimation import ParameterSpec, fit_least_squares
-from speciakin.estimation.nist_strd import NIST_MODELS, find_nist_folder, log_relative_error, read_nist_file
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests" / "estimation"))
+from nist_strd import NIST_FOLDER, NIST_MODELS, log_relative_error, read_nist_file  # noqa: E402
 
 
 def _scores(prob, fit):
@@ -44,10 +46,7 @@ def _run(prob, start, **options):
 
 
 def main(argv: list[str]) -> int:
-    folder = find_nist_folder(Path(__file__))
-    if folder is None:
-        print("NIST StRD folder not found (set SPECIAKIN_SHARED to the shared/ folder)")
-        return 1
+    folder = NIST_FOLDER
     sep = " | " if "--markdown" in argv else "  "
     head = ["dataset", "level", "start", "LRE b", "LRE se", "LRE RSS", "ok", "t [ms]",
             "LRE b (cs)", "LRE se (cs)", "ok (cs)", "t [ms] (cs)", "t cs / t"]

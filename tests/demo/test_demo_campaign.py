@@ -281,8 +281,8 @@ def test_demo_fit_recovers_the_truth(model, campaign):
     # inside its 99 % covariance interval (normal quantile from scipy.stats).
     from scipy import stats
 
-    from speciakin.estimation.campaign_fit import fit_campaign
-    from speciakin.estimation.objective import CampaignObjective
+    from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.objective import CampaignObjective
 
     objective = CampaignObjective(model, campaign)
     result = fit_campaign(objective, starts=1, profiles=False)

@@ -1,16 +1,12 @@
-"""Locate the NIST StRD reference folder (shared/ beside the repository, or $SPECIAKIN_SHARED)."""
+"""The NIST StRD reference folder kept in the repository (tests/data/nist_strd)."""
 
 from pathlib import Path
 
 import pytest
 
-from speciakin.estimation.nist_strd import find_nist_folder
+from .nist_strd import NIST_FOLDER
 
 
 @pytest.fixture(scope="session")
 def nist_folder() -> Path:
-    folder = find_nist_folder(Path(__file__))
-    if folder is None:
-        pytest.skip("NIST StRD folder not found: set SPECIAKIN_SHARED to the shared/ folder "
-                    "(expected shared/reference/nist_strd beside the repository)")
-    return folder
+    return NIST_FOLDER

@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from speciakin.estimation.campaign_fit import fit_campaign
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.fit import fit_campaign
+from speciakin.pipeline.objective import CampaignObjective
 
 from .campaign_synthetic import SAMPLE_TIMES, SMALL_COMPOUNDS, SMALL_TRUTH, small_model, synthetic_campaign
 

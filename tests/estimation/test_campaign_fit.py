@@ -10,9 +10,9 @@ import json
 import numpy as np
 import pytest
 
-from speciakin.estimation.campaign_fit import CampaignFitResult, fit_campaign
+from speciakin.pipeline.fit import CampaignFitResult, fit_campaign
 from speciakin.estimation.comparison import compare_models
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.objective import CampaignObjective
 
 from .campaign_synthetic import (DOUBLE_COMPOUNDS, SAMPLE_TIMES, SMALL_COMPOUNDS, SMALL_TRUTH, small_model,
                                  synthetic_campaign)

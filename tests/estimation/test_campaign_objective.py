@@ -13,7 +13,7 @@ from scipy.stats import norm
 
 from speciakin.data.campaign import Compound
 from speciakin.errors import InputError
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.objective import CampaignObjective
 from speciakin.simulation.api import simulate
 
 from .campaign_synthetic import (SAMPLE_TIMES, SMALL_COMPOUNDS, SMALL_TRUTH, small_model, synthetic_campaign,

@@ -13,9 +13,9 @@ agreement "to within about 20 %" in width.
 import numpy as np
 import pytest
 
-from speciakin.estimation.campaign_fit import fit_campaign
-from speciakin.estimation.campaign_posterior import sample_campaign
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.fit import fit_campaign
+from speciakin.pipeline.posterior import sample_campaign
+from speciakin.pipeline.objective import CampaignObjective
 
 from .campaign_synthetic import SAMPLE_TIMES, SMALL_COMPOUNDS, SMALL_TRUTH, small_model, synthetic_campaign
 

@@ -1,7 +1,7 @@
 """NIST StRD nonlinear regression problems run through the project's fitting layer.
 
 Source of the certified values: NIST Statistical Reference Datasets, Nonlinear
-Regression (public domain), files in shared/reference/nist_strd/.  Targets
+Regression (public domain), files in tests/data/nist_strd/.  Targets
 (log relative error, LRE = -log10(|est - cert| / |cert|)): >= 6 on parameters
 and >= 4 on standard errors.  Lanczos1's certified standard errors
 (residual standard deviation ~ 9e-14) lie below double precision, so only its
@@ -13,7 +13,7 @@ import pytest
 
 from speciakin.errors import SolverError
 from speciakin.estimation import ParameterSpec, fit_least_squares
-from speciakin.estimation.nist_strd import NIST_MODELS, log_relative_error, read_nist_file
+from .nist_strd import NIST_MODELS, log_relative_error, read_nist_file
 
 # Representative default subset (all lower-difficulty sets plus hard ones); the rest runs under -m slow.
 DEFAULT = ["Misra1a", "Chwirut2", "Chwirut1", "Lanczos3", "Gauss1", "Gauss2", "DanWood", "Misra1b",

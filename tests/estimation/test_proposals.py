@@ -20,7 +20,7 @@ from speciakin.errors import InputError
 from speciakin.estimation.checkpoint import read_checkpoint
 from speciakin.estimation.proposals import (PROPOSALS, IndependenceStudentTMove, build_moves,
                                             proposal_cholesky, student_t_draw, student_t_log_density)
-from speciakin.estimation.campaign_posterior import (proposal_covariance_from_fit, usable_fit_covariance,
+from speciakin.pipeline.posterior import (proposal_covariance_from_fit, usable_fit_covariance,
                                                      widen_to_intervals)
 from speciakin.estimation.sampling import sample_posterior
 

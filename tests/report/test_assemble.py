@@ -21,11 +21,11 @@ from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, T
 from speciakin.decision import Specification, compute_window
 from speciakin.decision.draws import COVARIANCE_SOURCE
 from speciakin.errors import InputError
-from speciakin.estimation.campaign_fit import fit_campaign
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.fit import fit_campaign
+from speciakin.pipeline.objective import CampaignObjective
 from speciakin.report import render_all
 from speciakin.report.assemble import NOT_RUN, REPORT_SECTION_TITLES, ReportInputs, build_report
-from speciakin.report.assemble_inputs import file_sha256
+from speciakin.report.assemble.inputs import file_sha256
 from speciakin.simulation.api import simulate
 
 MODEL_TEXT = '''
@@ -326,7 +326,7 @@ def test_with_fake_posterior(setup, tmp_path):
 
 
 def test_predictive_band_from_posterior_draws(setup):
-    from speciakin.report.assemble_runs import predictive_draws, run_curves
+    from speciakin.report.assemble.runs import predictive_draws, run_curves
 
     _, _, objective, fit, _ = setup
     posterior = fake_posterior(fit)
@@ -433,7 +433,7 @@ def test_command_errors(case, message, setup, tmp_path, capsys):
 
 def test_planned_process_in_display_units():
     from speciakin.decision import ProcessPlan
-    from speciakin.report.assemble_decision import process_block
+    from speciakin.report.assemble.decision import process_block
 
     # invented plan: 1 mmol substrate in 50 mL, 1.2 eq over 30 min, hold 60 min at 20 C
     plan = ProcessPlan(name="invented plan", substrate="S", substrate_amount=1e-3, volume=0.05, reagent="E",
@@ -463,7 +463,7 @@ def test_posterior_without_fit(setup):
 
 def test_window_section_with_design_space_map():
     from speciakin.report.assemble import species_colors
-    from speciakin.report.assemble_decision import window_section
+    from speciakin.report.assemble.decision import window_section
 
     rng = np.random.default_rng(4)
     draws = np.array([1.0, -0.5, 9.0, 4.5, 1.5]) + rng.normal(0.0, 0.05, size=(60, 5))   # invented
@@ -487,7 +487,7 @@ def test_window_section_with_design_space_map():
 
 
 def test_fit_figure_set_names_and_png(setup):
-    from speciakin.report.assemble_figures import fit_figure_set
+    from speciakin.report.assemble.figures import fit_figure_set
 
     _, _, objective, fit, _ = setup
     figures = fit_figure_set(objective, fit)

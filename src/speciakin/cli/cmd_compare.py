@@ -22,12 +22,12 @@ def add_arguments(parser) -> None:
 def run(args) -> int:
     from pathlib import Path
 
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.chemistry.modelfile import load_model
     from speciakin.cli._common import StageProgress, output_dir
     from speciakin.data import load_campaign
     from speciakin.errors import InputError, Location
-    from speciakin.estimation.campaign_fit import fit_campaign
+    from speciakin.pipeline.fit import fit_campaign
     from speciakin.estimation.comparison import compare_models
 
     if len(args.models) < 2:

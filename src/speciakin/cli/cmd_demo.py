@@ -25,7 +25,7 @@ def run(args) -> int:
     import time
     from pathlib import Path
 
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.cli._common import output_dir
     from speciakin.cli.cmd_run import execute
     from speciakin.demo import demo_dir

@@ -25,7 +25,7 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.cli._common import StageProgress, default_out
     from speciakin.errors import InputError, Location
 

@@ -69,9 +69,9 @@ def run(args) -> int:
     from speciakin.chemistry.modelfile import load_model
     from speciakin.data import check_campaign, load_campaign
     from speciakin.errors import InputError, Location
-    from speciakin.estimation.objective import CampaignObjective
+    from speciakin.pipeline.objective import CampaignObjective
     from speciakin.report.assemble import ReportInputs, build_report
-    from speciakin.report.assemble_files import read_fit, read_posterior, read_window, resolve_input
+    from speciakin.pipeline.outputs import read_fit, read_posterior, read_window, resolve_input
     from speciakin.report.render import render_all
 
     formats = _formats(args.formats)

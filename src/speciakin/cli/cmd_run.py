@@ -39,7 +39,7 @@ def execute(inputs, out, args, invented: bool = False) -> int:
     import sys
     import time
 
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.cli._common import StageProgress
     from speciakin.errors import SpeciakinError
 
@@ -63,7 +63,7 @@ def execute(inputs, out, args, invented: bool = False) -> int:
 
 
 def run(args) -> int:
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.cli._common import default_out
 
     inputs = workflow.resolve_inputs(args.campaign, args.model, args.process)

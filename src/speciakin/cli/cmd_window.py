@@ -24,7 +24,7 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin import workflow
+    from speciakin.pipeline import steps as workflow
     from speciakin.cli._common import default_out
 
     inputs = workflow.resolve_inputs(args.campaign, args.model, args.process, need_process=True)

@@ -1,7 +1,7 @@
 """Reader and model functions for the NIST StRD nonlinear regression datasets.
 
-The datasets are the reference problems of the estimation layer's tests and
-of ``benchmarks/nist_table.py``.  The model functions use only numpy
+The datasets (``tests/data/nist_strd/``) are the reference problems of the
+estimation layer's tests and of ``benchmarks/nist_table.py``.  The model functions use only numpy
 operations that accept complex input, so the complex-step Jacobian applies.
 
 References
@@ -21,7 +21,7 @@ import numpy as np
 
 from speciakin.errors import DataError, Location
 
-__all__ = ["NistProblem", "read_nist_file", "NIST_MODELS", "NIST_DIFFICULTY", "find_nist_folder",
+__all__ = ["NistProblem", "read_nist_file", "NIST_MODELS", "NIST_DIFFICULTY", "NIST_FOLDER",
            "log_relative_error"]
 
 
@@ -142,20 +142,8 @@ def read_nist_file(path: str | os.PathLike) -> NistProblem:
                        table[:, 2], table[:, 3], rss)
 
 
-def find_nist_folder(start: str | os.PathLike) -> Path | None:
-    """Locate ``shared/reference/nist_strd``: ``$SPECIAKIN_SHARED`` first, then ``../shared`` beside
-    each parent folder of ``start``.  None when absent."""
-    candidates = []
-    env = os.environ.get("SPECIAKIN_SHARED")
-    if env:
-        candidates.append(Path(env) / "reference" / "nist_strd")
-    for parent in Path(start).resolve().parents:
-        candidates.append(parent / "shared" / "reference" / "nist_strd")
-        candidates.append(parent.parent / "shared" / "reference" / "nist_strd")
-    for c in candidates:
-        if (c / "Misra1a.dat").is_file():
-            return c
-    return None
+#: The certified NIST StRD files, kept in the repository (see its README.md).
+NIST_FOLDER = Path(__file__).resolve().parents[1] / "data" / "nist_strd"
 
 
 def log_relative_error(estimate: float, certified: float) -> float:

@@ -57,7 +57,7 @@ def read_fit(folder: Path) -> tuple[Any, dict[str, Any]] | None:
     path = find_result(folder, "fit")
     if path is None:
         return None
-    from speciakin.estimation.campaign_fit import CampaignFitResult
+    from speciakin.pipeline.fit import CampaignFitResult
 
     data = _read_json(path, "fit result")
     try:

@@ -23,9 +23,9 @@ def fit_figure_set(objective: Any, fit: Any, posterior: Any = None, predictive_d
     Parameters
     ----------
     objective
-        :class:`speciakin.estimation.objective.CampaignObjective`.
+        :class:`speciakin.pipeline.objective.CampaignObjective`.
     fit
-        :class:`speciakin.estimation.campaign_fit.CampaignFitResult` (or None: data only).
+        :class:`speciakin.pipeline.fit.CampaignFitResult` (or None: data only).
     posterior
         Optional posterior for the 5-95 % predictive bands.
 
@@ -38,9 +38,9 @@ def fit_figure_set(objective: Any, fit: Any, posterior: Any = None, predictive_d
         ``.`` in a run name become ``_`` so that the names serve as file names.
     """
     from speciakin.report.assemble import species_colors
-    from speciakin.report.assemble_parameters import correlation_section
-    from speciakin.report.assemble_posterior import profile_blocks
-    from speciakin.report.assemble_runs import runs_section
+    from speciakin.report.assemble.parameters import correlation_section
+    from speciakin.report.assemble.posterior import profile_blocks
+    from speciakin.report.assemble.runs import runs_section
 
     named: dict[str, Figure] = {}
     runs_section(objective, fit, posterior, species_colors(objective.model), predictive_draws, seed,

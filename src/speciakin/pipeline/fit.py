@@ -1,6 +1,6 @@
 """Global least-squares fit of a model to a whole campaign, with profiles.
 
-:func:`fit_campaign` wires :class:`~speciakin.estimation.objective.CampaignObjective`
+:func:`fit_campaign` wires :class:`~speciakin.pipeline.objective.CampaignObjective`
 into the generic multistart layer (:func:`fit_least_squares`) and the profile
 likelihood (:func:`profile_all`), and translates the result back into the
 model's own parameter names and scales (a fitted pKa shift is also reported
@@ -18,7 +18,7 @@ from typing import Any, Callable
 import numpy as np
 
 from speciakin.estimation.leastsq import fit_least_squares
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.objective import CampaignObjective
 from speciakin.estimation.profile import profile_all
 from speciakin.estimation.results import FitResult, Profile
 

@@ -11,7 +11,7 @@ posterior predictive checks).
 Weighted residuals follow the objective: ``(y_model - y_obs) / sigma`` with
 ``sigma = sqrt(a**2 + (r * y_obs)**2)``, and for a value below the LOQ
 ``max(y_model - LOQ, 0) / sigma_LOQ`` (see
-:mod:`speciakin.estimation.objective`).
+:mod:`speciakin.pipeline.objective`).
 """
 
 from __future__ import annotations

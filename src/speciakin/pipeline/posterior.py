@@ -16,7 +16,7 @@ import numpy as np
 
 from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError, Location
-from speciakin.estimation.objective import CampaignObjective
+from speciakin.pipeline.objective import CampaignObjective
 from speciakin.estimation.priors import build_prior, default_pka_shift_prior
 from speciakin.estimation.proposals import proposal_cholesky
 from speciakin.estimation.sampling import PosteriorResult, sample_posterior

@@ -40,9 +40,9 @@ from datetime import datetime, timezone
 from typing import Any
 
 from speciakin import __version__
-from speciakin.report.assemble_decision import decision_summary_section, window_section, window_table
-from speciakin.report.assemble_inputs import inputs_section, model_section
-from speciakin.report.assemble_parameters import (
+from speciakin.report.assemble.decision import decision_summary_section, window_section, window_table
+from speciakin.report.assemble.inputs import inputs_section, model_section
+from speciakin.report.assemble.parameters import (
     correlation_section,
     correlation_table,
     identifiability_warnings,
@@ -50,8 +50,8 @@ from speciakin.report.assemble_parameters import (
     parameter_section,
     parameter_table,
 )
-from speciakin.report.assemble_posterior import convergence_section
-from speciakin.report.assemble_runs import observation_table, runs_section
+from speciakin.report.assemble.posterior import convergence_section
+from speciakin.report.assemble.runs import observation_table, runs_section
 from speciakin.report.document import ReportDocument, Section, Table
 from speciakin.report.palette import SpeciesColors
 from speciakin.report.texts import INVENTED_DATA_NOTE, assumptions_section, cautions_section
@@ -88,10 +88,10 @@ class ReportInputs:
         :class:`speciakin.data.campaign.Campaign` (provenance gives the
         workbook paths and SHA-256).
     objective
-        :class:`speciakin.estimation.objective.CampaignObjective` of model and
+        :class:`speciakin.pipeline.objective.CampaignObjective` of model and
         campaign (needed for curves and residuals), or None.
     fit
-        :class:`speciakin.estimation.campaign_fit.CampaignFitResult` or None.
+        :class:`speciakin.pipeline.fit.CampaignFitResult` or None.
     posterior
         :class:`speciakin.estimation.sampling.PosteriorResult` or None.
     window

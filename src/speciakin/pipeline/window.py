@@ -90,7 +90,7 @@ def window_for_campaign(objective, process, draws, source: str, progress=None):
     Parameters
     ----------
     objective
-        :class:`speciakin.estimation.objective.CampaignObjective` (model and
+        :class:`speciakin.pipeline.objective.CampaignObjective` (model and
         the fitted-parameter layout).
     process
         Validated process plan (:func:`speciakin.decision.load_process`).
