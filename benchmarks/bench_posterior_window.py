@@ -28,7 +28,7 @@ def main() -> None:
     parser.add_argument("--walkers", type=int, default=32)
     args = parser.parse_args()
 
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline as workflow
     from speciakin.pipeline.window import COVARIANCE, window_for_campaign
     from speciakin.decision.draws import draws_from_covariance
     from speciakin.demo import demo_dir

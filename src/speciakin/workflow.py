@@ -1,4 +1,4 @@
-"""Former name of :mod:`speciakin.pipeline.steps`, kept so that older scripts still import."""
+"""Former name of :mod:`speciakin.pipeline`, kept so that older scripts still import."""
 
-from speciakin.pipeline.steps import *  # noqa: F401,F403
-from speciakin.pipeline.steps import __all__  # noqa: F401
+from speciakin.pipeline import *  # noqa: F401,F403
+from speciakin.pipeline import __all__  # noqa: F401

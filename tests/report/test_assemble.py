@@ -23,6 +23,7 @@ from speciakin.decision.draws import COVARIANCE_SOURCE
 from speciakin.errors import InputError
 from speciakin.pipeline.fit import fit_campaign
 from speciakin.pipeline.objective import CampaignObjective
+from speciakin.pipeline.predictions import predict
 from speciakin.report import render_all
 from speciakin.report.assemble import NOT_RUN, REPORT_SECTION_TITLES, ReportInputs, build_report
 from speciakin.report.assemble.inputs import file_sha256
@@ -195,7 +196,8 @@ def rendered(setup, tmp_path_factory):
     folder = tmp_path_factory.mktemp("report")
     model_file = folder / "model.toml"
     model_file.write_text(MODEL_TEXT, encoding="utf-8")
-    inputs = ReportInputs(model=model, campaign=campaign, objective=objective, fit=fit, window=window,
+    inputs = ReportInputs(model=model, campaign=campaign, predictions=predict(objective, fit), fit=fit,
+                          window=window,
                           command="speciakin report out", software_version="0.0-test",
                           extra_inputs=[("model file", str(model_file))], invented=True)
     doc = build_report(inputs)
@@ -326,20 +328,21 @@ def test_with_fake_posterior(setup, tmp_path):
 
 
 def test_predictive_band_from_posterior_draws(setup):
-    from speciakin.report.assemble.runs import predictive_draws, run_curves
+    from speciakin.pipeline.predictions import figure_keys, posterior_draws
 
     _, _, objective, fit, _ = setup
     posterior = fake_posterior(fit)
-    draws = predictive_draws(objective, posterior, 40, seed=0)
-    curves = run_curves(objective, fit.theta, draws)
-    direct = objective.curves_batch(draws, 121)
-    for name, entry in curves.items():
-        assert entry["n_band"] == 40
-        for compound, best in entry["values"].items():
+    predictions = predict(objective, fit, posterior, band_draws=40, seed=0)
+    direct = objective.curves_batch(posterior_draws(objective, posterior, 40, seed=0), 121)
+    keys = figure_keys(objective)
+    assert predictions.band_draws == 40
+    for run in predictions.runs:
+        assert run.n_band == 40
+        for compound, curves in direct[run.name]["values"].items():
             # reference: numpy percentiles of the same draws' curves, computed here
-            np.testing.assert_allclose(entry["low"][compound], np.percentile(direct[name]["values"][compound], 5, axis=0))
-            np.testing.assert_allclose(entry["high"][compound], np.percentile(direct[name]["values"][compound], 95, axis=0))
-        np.testing.assert_allclose(entry["time"], direct[name]["time"] / 60.0)
+            np.testing.assert_allclose(run.low[keys[compound]], np.percentile(curves, 5, axis=0))
+            np.testing.assert_allclose(run.high[keys[compound]], np.percentile(curves, 95, axis=0))
+        np.testing.assert_allclose(run.time, direct[run.name]["time"] / 60.0)
 
 
 def test_posterior_of_another_model_is_refused(setup):
@@ -347,8 +350,7 @@ def test_posterior_of_another_model_is_refused(setup):
     posterior = fake_posterior(fit)
     posterior.parameter_names = ["a", "b"]
     with pytest.raises(InputError, match="posterior does not belong"):
-        build_report(ReportInputs(model=model, campaign=campaign, objective=objective, fit=fit,
-                                  posterior=posterior))
+        predict(objective, fit, posterior)
 
 
 def test_missing_extra_input_is_an_input_error(setup, tmp_path):
@@ -490,7 +492,7 @@ def test_fit_figure_set_names_and_png(setup):
     from speciakin.report.assemble.figures import fit_figure_set
 
     _, _, objective, fit, _ = setup
-    figures = fit_figure_set(objective, fit)
+    figures = fit_figure_set(objective.model, predict(objective, fit), fit)
     expected = {f"run_{r}" for r in objective.run_names} | {f"titrant_{r}" for r in objective.run_names}
     assert expected | {"residuals", "profiles", "correlation"} == set(figures)
     assert all(png.startswith(b"\x89PNG\r\n\x1a\n") for png in figures.values())

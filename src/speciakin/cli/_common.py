@@ -61,8 +61,10 @@ class StageProgress:
 
         bar = self.bars.get(stage)
         if bar is None:
-            labels = {"starts": "fit (starting points)", "profiles": "profile likelihood"}
+            labels = {"starts": "fit (starting points)", "profiles": "profile likelihood",
+                      "sample": "posterior (stored steps)", "window": "pH window (batches)"}
             bar = self.bars[stage] = tqdm(total=total, desc=labels.get(stage, stage), unit="step", leave=True)
+        bar.total = total
         bar.n = done
         bar.refresh()
         if done >= total:

@@ -22,12 +22,13 @@ def add_arguments(parser) -> None:
 def run(args) -> int:
     from pathlib import Path
 
-    from speciakin.pipeline import steps as workflow
     from speciakin.chemistry.modelfile import load_model
     from speciakin.cli._common import StageProgress, output_dir
     from speciakin.data import load_campaign
     from speciakin.errors import InputError, Location
+    from speciakin.pipeline import make_objective
     from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.outputs import write_json, write_text
     from speciakin.estimation.comparison import compare_models
 
     if len(args.models) < 2:
@@ -43,14 +44,14 @@ def run(args) -> int:
             label = str(path)
         progress = StageProgress(not args.quiet)
         try:
-            fits[label] = fit_campaign(workflow.make_objective(model, campaign), starts=args.starts,
+            fits[label] = fit_campaign(make_objective(model, campaign), starts=args.starts,
                                        seed=args.seed, profiles=False, progress=progress)
         finally:
             progress.close()
     comparison = compare_models({k: v.fit for k, v in fits.items()})
-    workflow.write_json(out / "compare.json", {"comparison": comparison.to_dict(),
-                                               "fits": {k: v.to_dict() for k, v in fits.items()}})
-    workflow.write_text(out / "compare.txt", comparison.report() + "\n")
+    write_json(out / "compare.json", {"comparison": comparison.to_dict(),
+                                      "fits": {k: v.to_dict() for k, v in fits.items()}})
+    write_text(out / "compare.txt", comparison.report() + "\n")
     print(comparison.report())
     print(f"\nwritten: {out / 'compare.json'}")
     return 0

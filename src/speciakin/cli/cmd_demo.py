@@ -25,14 +25,14 @@ def run(args) -> int:
     import time
     from pathlib import Path
 
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline
     from speciakin.cli._common import output_dir
     from speciakin.cli.cmd_run import execute
     from speciakin.demo import demo_dir
 
     t0 = time.perf_counter()
     folder = demo_dir()
-    inputs = workflow.resolve_inputs(folder, folder / "model.toml", folder / "process.toml")
+    inputs = pipeline.resolve_inputs(folder, folder / "model.toml", folder / "process.toml")
     out = output_dir(Path(args.out))
     print(f"demo campaign (INVENTED data): {folder}")
     code = execute(inputs, out, args, invented=True)

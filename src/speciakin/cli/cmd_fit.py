@@ -25,23 +25,24 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline
+    from speciakin.report.results import fit_figures
     from speciakin.cli._common import StageProgress, default_out
     from speciakin.errors import InputError, Location
 
     if args.starts is not None and args.starts < 1:
         raise InputError("--starts must be at least 1", Location(key="--starts"), args.starts, "an integer >= 1")
-    inputs = workflow.resolve_inputs(args.campaign, args.model)
-    model, campaign, _ = workflow.load_inputs(inputs)
-    objective = workflow.make_objective(model, campaign)
+    inputs = pipeline.resolve_inputs(args.campaign, args.model)
+    model, campaign, _ = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
     out = default_out(args, "fit")
     progress = StageProgress(not args.quiet)
     try:
-        result = workflow.fit_step(objective, out, starts=args.starts, seed=args.seed,
+        result = pipeline.fit_step(objective, out, starts=args.starts, seed=args.seed,
                                    profiles=not args.no_profiles, progress=progress)
     finally:
         progress.close()
-    workflow.fit_figures(objective, result, out)
+    fit_figures(model, pipeline.predict_step(objective, result), result, out)
     print(result.report())
     print(f"\nwritten: {out / 'fit.json'}, {out / 'fit.txt'}, {out / 'figures'}")
     return 0

@@ -12,7 +12,7 @@ example:
   speciakin report results/ --formats html,pdf
 
 reads from OUTDIR whatever exists: fit.json (least-squares fit),
-posterior_samples.h5 (posterior sample), window.json (pH window); a missing piece is reported as
+posterior.h5 (posterior sample), window.json (pH window); a missing piece is reported as
 "not run". The model and campaign paths come from fit.json unless given.
 writes OUTDIR/report.<suffix> for each format (each file replaced atomically).
 """
@@ -63,54 +63,15 @@ def _command(args) -> str:
 
 
 def run(args) -> int:
-    from pathlib import Path
-
-    from speciakin import __version__
-    from speciakin.chemistry.modelfile import load_model
-    from speciakin.data import check_campaign, load_campaign
-    from speciakin.errors import InputError, Location
-    from speciakin.pipeline.objective import CampaignObjective
-    from speciakin.report.assemble import ReportInputs, build_report
-    from speciakin.pipeline.outputs import read_fit, read_posterior, read_window, resolve_input
-    from speciakin.report.render import render_all
+    from speciakin import pipeline
+    from speciakin.report.results import write_report
 
     formats = _formats(args.formats)
-    folder = Path(args.outdir)
-    if not folder.is_dir():
-        raise InputError("output folder not found", Location(file=str(folder)),
-                         expected="the folder a previous fit, sample or window command wrote")
-    fit_entry = read_fit(folder)
-    fit, fit_data = fit_entry if fit_entry is not None else (None, {})
-    model_path = resolve_input(args.model, fit_data.get("model"), folder, "model file", "model")
-    campaign_path = resolve_input(args.campaign, fit_data.get("campaign"), folder, "campaign", "campaign")
-    model = load_model(model_path)
-    campaign = load_campaign(campaign_path)
-    objective = CampaignObjective(model, campaign)
-    if fit is not None and list(fit.names) != list(objective.names):
-        raise InputError("fit.json does not belong to this model: its fitted parameters differ",
-                         Location(file=str(folder / "fit.json"), key="parameters"), ", ".join(fit.names),
-                         "the model's fitted parameters " + ", ".join(objective.names))
-    posterior = read_posterior(folder)
-    window = read_window(folder)
-    process = None
-    extra = [("model file", str(model_path))]
-    if args.process:
-        from speciakin.decision.process import load_process
-
-        process_path = resolve_input(args.process, None, folder, "process file", "process")
-        process = load_process(process_path, model)
-        extra.append(("process file", str(process_path)))
-    check = check_campaign(campaign_path, model=model)
-    invented = bool(args.invented) or model.description.lower().startswith("invented")
-    doc = build_report(ReportInputs(
-        model=model, campaign=campaign, objective=objective, fit=fit, posterior=posterior, window=window,
-        process=process, check=check, command=_command(args), software_version=__version__,
-        extra_inputs=extra, invented=invented))
-    paths = render_all(doc, folder, formats=formats)
-    missing = [what for what, value in (("fit", fit), ("posterior", posterior), ("window", window))
-               if value is None]
-    for fmt, path in paths.items():
+    results = pipeline.load_results(args.outdir, campaign=args.campaign, model=args.model, process=args.process)
+    invented = bool(args.invented) or results.model.description.lower().startswith("invented")
+    paths = write_report(args.outdir, results, invented=invented, formats=formats, command=_command(args))
+    for path in paths.values():
         print(f"wrote {path}")
-    if missing:
-        print("not run (reported as such): " + ", ".join(missing))
+    if results.missing:
+        print("not run (reported as such): " + ", ".join(results.missing))
     return 0

@@ -39,32 +39,33 @@ def execute(inputs, out, args, invented: bool = False) -> int:
     import sys
     import time
 
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline
     from speciakin.cli._common import StageProgress
     from speciakin.errors import SpeciakinError
+    from speciakin.report import results as renderer
 
-    state: dict = {}
+    step = {"name": "?"}
     progress = StageProgress(not args.quiet)
     t0 = time.perf_counter()
     try:
-        result = workflow.run_all(
-            inputs, out, starts=args.starts, seed=args.seed, n_steps=args.steps, n_walkers=args.walkers,
-            jobs=args.jobs, scheduler=args.scheduler, resume=args.resume, profiles=not args.no_profiles,
-            draws=args.draws, invented=invented, say=print, progress_factory=lambda stage: progress,
-            state=state, sample_progress=not args.quiet)
+        result = pipeline.run_all(
+            inputs, out, renderer=renderer, starts=args.starts, seed=args.seed, n_steps=args.steps,
+            n_walkers=args.walkers, jobs=args.jobs, scheduler=args.scheduler, resume=args.resume,
+            profiles=not args.no_profiles, draws=args.draws, invented=invented, say=print,
+            progress=None if args.quiet else progress, on_step=lambda name: step.update(name=name))
     except SpeciakinError as exc:
         progress.close()
-        print(f"speciakin: stopped at step '{state.get('step', '?')}': {exc}", file=sys.stderr)
+        print(f"speciakin: stopped at step '{step['name']}': {exc}", file=sys.stderr)
         print(f"speciakin: the output of earlier steps is kept in {out}", file=sys.stderr)
         return exc.exit_code
     progress.close()
-    print(f"\ndone in {time.perf_counter() - t0:.1f} s; open {result['report'].get('html', out)}")
+    print(f"\ndone in {time.perf_counter() - t0:.1f} s; open {result.report.get('html', out)}")
     return 0
 
 
 def run(args) -> int:
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline
     from speciakin.cli._common import default_out
 
-    inputs = workflow.resolve_inputs(args.campaign, args.model, args.process)
+    inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
     return execute(inputs, default_out(args, "run"), args)

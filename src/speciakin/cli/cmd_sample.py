@@ -34,8 +34,10 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin.pipeline import steps as workflow
+    from speciakin import pipeline
     from speciakin.cli._common import default_out
+    from speciakin.pipeline import outputs
+    from speciakin.report.results import posterior_figures
     from speciakin.errors import InputError, Location
 
     for key, value, minimum in (("--steps", args.steps, 10), ("--jobs", args.jobs, 1)):
@@ -47,19 +49,19 @@ def run(args) -> int:
         if args.proposal not in PROPOSALS:
             raise InputError("unknown move choice", Location(key="--proposal"), args.proposal,
                              "one of " + ", ".join(PROPOSALS))
-    inputs = workflow.resolve_inputs(args.campaign, args.model)
-    model, campaign, _ = workflow.load_inputs(inputs)
-    objective = workflow.make_objective(model, campaign)
+    inputs = pipeline.resolve_inputs(args.campaign, args.model)
+    model, campaign, _ = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
     out = default_out(args, "sample")
-    fit = workflow.load_fit(out)
+    fit = outputs.load_fit(out)
     if fit is None or fit.names != objective.names:
         print("no matching fit.json in the output folder: fitting first (with profiles, which shape the moves)")
-        fit = workflow.fit_step(objective, out, profiles=True)
-    result = workflow.sample_step(objective, fit, out, n_steps=args.steps, n_walkers=args.walkers,
+        fit = pipeline.fit_step(objective, out, profiles=True)
+    result = pipeline.sample_step(objective, fit, out, n_steps=args.steps, n_walkers=args.walkers,
                                   seed=args.seed, resume=args.resume, jobs=args.jobs,
                                   scheduler=args.scheduler, progress=not args.quiet,
                                   proposal=args.proposal)
-    workflow.posterior_figures(result, out)
+    posterior_figures(result, out)
     print(result.report())
     print(f"\nwritten: {out / 'posterior.json'}, {out / 'posterior.h5'}, {out / 'figures'}")
     return 0

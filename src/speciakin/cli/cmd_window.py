@@ -24,39 +24,28 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin.pipeline import steps as workflow
-    from speciakin.cli._common import default_out
+    from speciakin import pipeline
+    from speciakin.pipeline import outputs
+    from speciakin.cli._common import StageProgress, default_out
 
-    inputs = workflow.resolve_inputs(args.campaign, args.model, args.process, need_process=True)
-    model, campaign, process = workflow.load_inputs(inputs)
-    objective = workflow.make_objective(model, campaign)
+    inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process, need_process=True)
+    model, campaign, process = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
     out = default_out(args, "window")
-    posterior = workflow.load_posterior(out)
-    fit = workflow.load_fit(out)
+    posterior = outputs.load_posterior(out)
+    fit = outputs.load_fit(out)
     if posterior is not None and list(posterior.parameter_names) != objective.names:
         posterior = None
     if posterior is None and (fit is None or fit.names != objective.names):
         print("no matching fit.json in the output folder: fitting first")
-        fit = workflow.fit_step(objective, out, profiles=False)
-    bar = None
-    if not args.quiet:
-        from tqdm import tqdm
-
-        bar = tqdm(desc="pH window", unit="batch")
-
-    def progress(done, total):
-        if bar is not None:
-            bar.total = total
-            bar.n = done
-            bar.refresh()
-
+        fit = pipeline.fit_step(objective, out, profiles=False)
+    progress = StageProgress(not args.quiet)
     try:
-        result = workflow.window_step(objective, process, out, fit=fit, posterior=posterior, draws=args.draws,
+        result = pipeline.window_step(objective, process, out, fit=fit, posterior=posterior, draws=args.draws,
                                       seed=args.seed, progress=progress)
     finally:
-        if bar is not None:
-            bar.close()
+        progress.close()
     print(result.report())
-    print(f"\n{workflow.window_text(result)}")
+    print(f"\n{pipeline.window_text(result)}")
     print(f"written: {out / 'window.json'}, {out / 'figures'}")
     return 0

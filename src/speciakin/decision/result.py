@@ -5,12 +5,12 @@ exist (None where they do not apply), with ``report()``, ``to_dict()`` and
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, fields
 from typing import Any, Mapping
 
 import numpy as np
 
+from speciakin._json import json_ready, nan_from_null
 from speciakin.decision.specs import Specification
 
 __all__ = ["WindowResult", "REPORT_HEADINGS"]
@@ -28,41 +28,12 @@ REPORT_HEADINGS = (
 )
 
 
-def _json_number(x: Any) -> Any:
-    if x is None:
-        return None
-    x = float(x)
-    return x if math.isfinite(x) else None
-
-
-def _json_array(a: Any) -> Any:
-    if a is None:
-        return None
-    arr = np.asarray(a, dtype=float)
-    return np.where(np.isfinite(arr), arr, np.nan).tolist() if arr.ndim else _json_number(arr)
-
-
-def _clean(obj: Any) -> Any:
-    """Replace NaN/inf by None in nested lists."""
-    if isinstance(obj, dict):
-        return {k: _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, float):
-        return obj if math.isfinite(obj) else None
-    return obj
+def _float_array(a: Any) -> np.ndarray | None:
+    return None if a is None else np.asarray(a, dtype=float)
 
 
 def _from_json_array(a: Any) -> np.ndarray | None:
-    if a is None:
-        return None
-    return np.asarray(_none_to_nan(a), dtype=float)
-
-
-def _none_to_nan(obj: Any) -> Any:
-    if isinstance(obj, list):
-        return [_none_to_nan(v) for v in obj]
-    return np.nan if obj is None else obj
+    return None if a is None else np.asarray(nan_from_null(a), dtype=float)
 
 
 def _intervals(items: Any) -> list[tuple[float, float]]:
@@ -225,9 +196,9 @@ class WindowResult:
             if f.name == "specifications":
                 out[f.name] = [s.to_dict() for s in value]
             elif f.name in ("outcome_median", "outcome_lower", "outcome_upper"):
-                out[f.name] = {k: _json_array(v) for k, v in value.items()}
+                out[f.name] = {k: _float_array(v) for k, v in value.items()}
             elif isinstance(value, np.ndarray):
-                out[f.name] = _json_array(value)
+                out[f.name] = _float_array(value)
             elif f.name in ("windows", "robust_windows", "robust_windows_per_draw"):
                 out[f.name] = [[float(a), float(b)] for a, b in value]
             elif f.name == "primary_window":
@@ -235,11 +206,9 @@ class WindowResult:
             elif f.name in ("map_windows", "map_robust_windows"):
                 out[f.name] = None if value is None else [[[float(a), float(b)] for a, b in row]
                                                           for row in value]
-            elif isinstance(value, float):
-                out[f.name] = _json_number(value)
             else:
                 out[f.name] = value
-        return _clean(out)
+        return json_ready(out)
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any]) -> "WindowResult":

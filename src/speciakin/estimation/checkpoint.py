@@ -1,9 +1,19 @@
-"""Crash-safe checkpoints of an ensemble-sampler run (HDF5 via h5py).
+"""The posterior store: crash-safe checkpoint and finished result in one HDF5 file.
 
 A checkpoint holds everything needed to continue a run exactly where it
 stopped: the chain and log-posterior so far, the accepted-move counts, the
 state of the sampler's random number generator after the last completed
-step, and the run settings (parameter names, walkers, seed, thinning).
+step, and the run settings (parameter names, walkers, seed, thinning).  When
+the run is finished the same file also holds the result (group ``result``:
+JSON metadata of the summary and diagnostics, and the acceptance fractions),
+as a sampler backend keeps chain and state together; the chain is stored once.
+
+Layout (format tag ``speciakin.posterior/1``)::
+
+    attrs: format, settings (JSON)
+    chain (n_stored, n_walkers, n_params), log_prob (n_stored, n_walkers), accepted (n_walkers,)
+    random_state/  keys (624,) + attrs name, pos, has_gauss, cached_gaussian
+    result/        (finished runs only) acceptance_fraction (n_walkers,) + attrs metadata (JSON)
 
 Each write goes to a temporary file in the same folder, is flushed and
 fsync'ed, and then renamed over the previous checkpoint (``os.replace`` is
@@ -23,12 +33,13 @@ import h5py
 import numpy as np
 
 from speciakin._io import atomic_path
+from speciakin._json import format_tag
 from speciakin.errors import InputError, Location
 
 __all__ = ["Checkpoint", "write_checkpoint", "read_checkpoint", "CHECKPOINT_FORMAT"]
 
-#: Format tag stored in every checkpoint file; bumped on incompatible change.
-CHECKPOINT_FORMAT = "speciakin-ensemble-checkpoint-1"
+#: Format tag stored in every posterior file; bumped on incompatible change.
+CHECKPOINT_FORMAT = format_tag("posterior", 1)
 
 
 @dataclass
@@ -48,6 +59,9 @@ class Checkpoint:
     settings
         JSON-ready run settings (parameter names, n_walkers, seed, thin_by,
         ...); used to refuse resuming a different run.
+    result
+        None while the run is unfinished; then ``{"metadata": dict,
+        "acceptance_fraction": array}`` of the finished result.
     """
 
     chain: np.ndarray
@@ -55,6 +69,7 @@ class Checkpoint:
     accepted: np.ndarray
     random_state: tuple
     settings: dict = field(default_factory=dict)
+    result: dict | None = None
 
     @property
     def iteration(self) -> int:
@@ -77,6 +92,11 @@ def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
             rs.attrs["pos"] = int(pos)
             rs.attrs["has_gauss"] = int(has_gauss)
             rs.attrs["cached_gaussian"] = float(cached)
+            if checkpoint.result is not None:
+                group = fh.create_group("result")
+                group.attrs["metadata"] = json.dumps(checkpoint.result["metadata"])
+                group.create_dataset("acceptance_fraction",
+                                     data=np.asarray(checkpoint.result["acceptance_fraction"], dtype=float))
             fh.flush()
 
 
@@ -105,10 +125,14 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
             random_state = (str(rs.attrs["name"]), rs["keys"][...].astype(np.uint32),
                             int(rs.attrs["pos"]), int(rs.attrs["has_gauss"]),
                             float(rs.attrs["cached_gaussian"]))
+            result = None
+            if "result" in fh:
+                result = {"metadata": json.loads(fh["result"].attrs["metadata"]),
+                          "acceptance_fraction": fh["result"]["acceptance_fraction"][...]}
     except OSError as exc:
         raise InputError(f"checkpoint file cannot be read: {exc}", where, None,
                          "an HDF5 checkpoint written by speciakin") from None
     except KeyError as exc:
         raise InputError(f"checkpoint file is incomplete: missing {exc}", where, None,
                          "an HDF5 checkpoint written by speciakin") from None
-    return Checkpoint(chain, log_prob, accepted, random_state, settings)
+    return Checkpoint(chain, log_prob, accepted, random_state, settings, result)

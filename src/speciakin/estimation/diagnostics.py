@@ -41,6 +41,8 @@ import emcee
 import numpy as np
 from scipy import stats
 
+from speciakin._json import json_ready
+
 __all__ = [
     "ConvergenceDiagnostics",
     "autocorrelation_time",
@@ -269,13 +271,7 @@ class ConvergenceDiagnostics:
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
-        return {k: (_json_number(v) if isinstance(v, float) else
-                    [_json_number(x) if isinstance(x, float) else x for x in v] if isinstance(v, list) else v)
-                for k, v in asdict(self).items()}
-
-
-def _json_number(x: float):
-    return x if math.isfinite(x) else None
+        return json_ready(asdict(self))
 
 
 def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, parameter_names,

@@ -1,44 +1,79 @@
-"""Read the result files of an output folder back for a report.
+"""The output folder: the one list of result files, and save / load of every result.
 
-An output folder holds what ``fit``, ``sample`` and ``window`` wrote: the
-least-squares result (:data:`RESULT_FILES` ``"fit"``), the posterior (HDF5)
-and the pH window (JSON).  Each reader returns None when its file is absent
-(the report then says "not run") and raises
+Every step writes its results through this module and every reader (the
+``report``, ``window`` and ``sample`` commands, a Python caller) reads them
+back through it, so a file name or a format is spelled in one place.  JSON
+files are strict (NaN -> null, numpy -> Python; :mod:`speciakin._json`); every
+file is written atomically (:mod:`speciakin._io`).  A loader returns None when
+its file is absent (the report then says "not run") and raises
 :class:`~speciakin.errors.InputError` naming the file when it is present but
-unreadable.  Input files are opened read-only.
+unreadable.
+
+The posterior is one HDF5 file, ``posterior.h5``: the sampler's checkpoint
+(continued by ``--resume``) that also holds the finished result
+(:mod:`speciakin.estimation.checkpoint` describes the layout).
 """
 
 from __future__ import annotations
 
 import json
+import os
+import shlex
+import sys
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
+from speciakin import __version__
+from speciakin._io import atomic_write_text
+from speciakin._json import dumps
 from speciakin.errors import InputError, Location
 
-__all__ = ["RESULT_FILES", "find_result", "read_fit", "read_posterior", "read_window", "resolve_input"]
+__all__ = ["RESULT_FILES", "FIGURES_FOLDER", "result_path", "write_json", "write_text", "read_json",
+           "command_line", "save_check", "save_fit", "load_fit", "load_fit_data", "save_posterior",
+           "load_posterior", "save_window", "load_window", "save_timings", "resolve_input"]
 
-#: File names looked for in an output folder, per result, in order of preference.
-RESULT_FILES: Mapping[str, tuple[str, ...]] = MappingProxyType({
-    "fit": ("fit.json",),
-    "posterior": ("posterior_samples.h5",),   # posterior.h5 is the sampler's checkpoint, not a result
-    "window": ("window.json",),
+#: Every file a step writes into the output folder, by role (docs/workflow.md lists them).
+RESULT_FILES: Mapping[str, str] = MappingProxyType({
+    "check": "check.json",
+    "fit": "fit.json",
+    "fit_text": "fit.txt",
+    "posterior": "posterior.h5",
+    "posterior_summary": "posterior.json",
+    "posterior_text": "posterior.txt",
+    "window": "window.json",
+    "window_text": "window.txt",
+    "timings": "timings.json",
+    "report": "report",            # report.html, report.pdf, report.xlsx
 })
+#: Sub-folder of the figures of each step.
+FIGURES_FOLDER = "figures"
 
 
-def find_result(folder: Path, kind: str) -> Path | None:
-    """The first existing file of ``RESULT_FILES[kind]`` in ``folder``, or None."""
-    for name in RESULT_FILES[kind]:
-        p = folder / name
-        if p.is_file():
-            return p
-    return None
+def result_path(folder: str | os.PathLike, role: str) -> Path:
+    """Path of the file of ``role`` (a key of :data:`RESULT_FILES`) in ``folder``."""
+    return Path(folder) / RESULT_FILES[role]
 
 
-def _read_json(path: Path, what: str) -> dict[str, Any]:
+def command_line() -> str:
+    """The command that produced an output, for reproduction."""
+    return "speciakin " + " ".join(shlex.quote(a) for a in sys.argv[1:])
+
+
+def write_text(path: str | os.PathLike, text: str) -> Path:
+    """Write UTF-8 text atomically."""
+    return atomic_write_text(path, text)
+
+
+def write_json(path: str | os.PathLike, data: Any) -> Path:
+    """Write strict JSON atomically (NaN -> null, numpy -> Python)."""
+    return atomic_write_text(path, dumps(data))
+
+
+def read_json(path: Path, what: str) -> dict[str, Any]:
+    """A JSON object from ``path``; InputError naming the file when it cannot be read."""
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
     except OSError as exc:
         raise InputError(f"cannot read the {what}: {exc.strerror or exc}", Location(file=str(path)),
                          expected=f"a readable {what}") from None
@@ -52,52 +87,122 @@ def _read_json(path: Path, what: str) -> dict[str, Any]:
     return data
 
 
-def read_fit(folder: Path) -> tuple[Any, dict[str, Any]] | None:
-    """The :class:`CampaignFitResult` of ``folder`` and its raw JSON, or None."""
-    path = find_result(folder, "fit")
-    if path is None:
+def _provenance(data: dict[str, Any], command: str | None) -> dict[str, Any]:
+    data["software_version"] = __version__
+    data["command"] = command if command is not None else command_line()
+    return data
+
+
+def _save_json_and_text(folder: Path, json_role: str, text_role: str, result: Any, command: str | None) -> None:
+    write_json(result_path(folder, json_role), _provenance(result.to_dict(), command))
+    write_text(result_path(folder, text_role), result.report() + "\n")
+
+
+def _malformed(path: Path, what: str, exc: Exception, expected: str) -> InputError:
+    return InputError(f"the {what} is incomplete or malformed ({type(exc).__name__}: {exc})",
+                      Location(file=str(path)), expected=expected)
+
+
+# ------------------------------------------------------------------ check
+def save_check(folder: Path, check: Any) -> Path:
+    """``check.json`` of a :class:`~speciakin.data.validate.CheckReport`."""
+    return write_json(result_path(folder, "check"), check.to_dict())
+
+
+# ------------------------------------------------------------------ fit
+def save_fit(folder: Path, fit: Any, command: str | None = None) -> None:
+    """``fit.json`` (schema in docs/workflow.md) and ``fit.txt`` of a CampaignFitResult."""
+    _save_json_and_text(Path(folder), "fit", "fit_text", fit, command)
+
+
+def load_fit_data(folder: Path) -> tuple[Any, dict[str, Any]] | None:
+    """The :class:`~speciakin.pipeline.fit.CampaignFitResult` of ``folder`` and its raw JSON, or None."""
+    path = result_path(folder, "fit")
+    if not path.is_file():
         return None
     from speciakin.pipeline.fit import CampaignFitResult
 
-    data = _read_json(path, "fit result")
+    data = read_json(path, "fit result")
     try:
         return CampaignFitResult.from_dict(data), data
     except (KeyError, TypeError, ValueError, IndexError) as exc:
-        raise InputError(f"the fit result is incomplete or malformed ({type(exc).__name__}: {exc})",
-                         Location(file=str(path)), expected="fit.json as written by the fit command") from None
+        raise _malformed(path, "fit result", exc, "fit.json as written by the fit command") from None
 
 
-def read_posterior(folder: Path) -> Any | None:
-    """The :class:`PosteriorResult` of ``folder``, or None."""
-    path = find_result(folder, "posterior")
-    if path is None:
+def load_fit(folder: Path) -> Any | None:
+    """The CampaignFitResult of ``folder``, or None."""
+    entry = load_fit_data(folder)
+    return None if entry is None else entry[0]
+
+
+# ------------------------------------------------------------------ posterior
+def save_posterior(folder: Path, posterior: Any, command: str | None = None) -> None:
+    """Add the finished result to the sampler's ``posterior.h5``; write ``posterior.json`` / ``.txt``.
+
+    The chain in the file is the sampler's checkpoint (written at the end of
+    the run); only the result's metadata and acceptance fractions are added.
+    """
+    from speciakin.estimation.checkpoint import read_checkpoint, write_checkpoint
+
+    folder = Path(folder)
+    path = result_path(folder, "posterior")
+    stored = read_checkpoint(path)
+    # the metadata keeps NaN (Python's JSON reads it back); only the .json files are strict
+    stored.result = {"metadata": posterior._metadata(), "acceptance_fraction": posterior.acceptance_fraction}
+    write_checkpoint(path, stored)
+    _save_json_and_text(folder, "posterior_summary", "posterior_text", posterior, command)
+
+
+def load_posterior(folder: Path) -> Any | None:
+    """The PosteriorResult of ``folder``'s ``posterior.h5``, or None (no file, or a run not finished)."""
+    path = result_path(folder, "posterior")
+    if not path.is_file():
         return None
-    from speciakin.estimation.sampling import PosteriorResult
+    from speciakin.estimation.checkpoint import read_checkpoint
+    from speciakin.estimation.diagnostics import ConvergenceDiagnostics
+    from speciakin.estimation.sampling import ParameterSummary, PosteriorResult
 
+    stored = read_checkpoint(path)
+    if stored.result is None:
+        return None
     try:
-        return PosteriorResult.load(path)
-    except (KeyError, TypeError, ValueError) as exc:
-        raise InputError(f"the posterior file is incomplete or malformed ({type(exc).__name__}: {exc})",
-                         Location(file=str(path)), expected="a file written by PosteriorResult.save") from None
+        meta = dict(stored.result["metadata"])
+        chain = stored.chain
+        samples = chain[meta["burn_in"]::meta["thin"]].reshape(-1, chain.shape[2])
+        return PosteriorResult(chain=chain, log_prob=stored.log_prob,
+                               acceptance_fraction=stored.result["acceptance_fraction"], samples=samples,
+                               summary=[ParameterSummary(**s) for s in meta.pop("summary")],
+                               diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
+    except (KeyError, TypeError, ValueError, IndexError) as exc:
+        raise _malformed(path, "posterior file", exc, "posterior.h5 as written by the sample command") from None
 
 
-def read_window(folder: Path) -> Any | None:
-    """The :class:`WindowResult` of ``folder``, or None (a ``{"window": ...}`` wrapper is accepted)."""
-    path = find_result(folder, "window")
-    if path is None:
+# ------------------------------------------------------------------ window
+def save_window(folder: Path, window: Any, command: str | None = None) -> None:
+    """``window.json`` and ``window.txt`` of a WindowResult."""
+    _save_json_and_text(Path(folder), "window", "window_text", window, command)
+
+
+def load_window(folder: Path) -> Any | None:
+    """The :class:`~speciakin.decision.result.WindowResult` of ``folder``, or None."""
+    path = result_path(folder, "window")
+    if not path.is_file():
         return None
     from speciakin.decision.result import WindowResult
 
-    data = _read_json(path, "window result")
-    if "level" not in data and isinstance(data.get("window"), dict):
-        data = data["window"]
+    data = read_json(path, "window result")
     try:
         return WindowResult.from_dict(data)
     except (KeyError, TypeError, ValueError, IndexError) as exc:
-        raise InputError(f"the window result is incomplete or malformed ({type(exc).__name__}: {exc})",
-                         Location(file=str(path)), expected="window.json as written by the window command") from None
+        raise _malformed(path, "window result", exc, "window.json as written by the window command") from None
 
 
+def save_timings(folder: Path, timings: Mapping[str, float]) -> Path:
+    """``timings.json``: wall time of each step [s]."""
+    return write_json(result_path(folder, "timings"), dict(timings))
+
+
+# ------------------------------------------------------------------ inputs named by a result
 def resolve_input(given: str | None, recorded: str | None, folder: Path, what: str, key: str) -> Path:
     """Path of an input file: the one given, else the one recorded in fit.json
     (as written, then relative to the output folder).
@@ -115,8 +220,9 @@ def resolve_input(given: str | None, recorded: str | None, folder: Path, what: s
     if not recorded:
         raise InputError(f"no {what} given and none recorded in fit.json", Location(key=key),
                          expected=f"--{key} PATH, or a fit.json in the output folder that names the {what}")
-    for p in (Path(recorded), folder / recorded):
+    for p in (Path(recorded), Path(folder) / recorded):
         if p.exists():
             return p
-    raise InputError(f"the {what} named in fit.json no longer exists", Location(file=str(folder / "fit.json"),
-                     key=key), recorded, f"an existing path (or give --{key})")
+    raise InputError(f"the {what} named in fit.json no longer exists",
+                     Location(file=str(result_path(folder, "fit")), key=key), recorded,
+                     f"an existing path (or give --{key})")

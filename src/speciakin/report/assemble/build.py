@@ -6,7 +6,7 @@ whatever results exist: least-squares fit, posterior, pH window) into one
 (None) gives a short "not run" note instead of its section's numbers, so the
 same builder serves a report after only a fit.
 
-Sections, in reading order (DOMAIN.md sections 6-8):
+Sections, in reading order:
 
 1. Decision summary (a decision callout)
 2. Inputs (files with SHA-256, software version, command, date)
@@ -18,8 +18,9 @@ Sections, in reading order (DOMAIN.md sections 6-8):
 8. pH window
 9. Assumptions and limitations; Cautions
 
-The science-specific pieces live in ``assemble_*.py`` modules, one concern
-each; this module only orders them.
+The science-specific pieces live in the other modules of this folder, one
+concern each; this module only orders them.  Curves and fitted values come
+ready-made (:mod:`speciakin.pipeline.predictions`): the report only renders.
 
 References
 ----------
@@ -87,9 +88,9 @@ class ReportInputs:
     campaign
         :class:`speciakin.data.campaign.Campaign` (provenance gives the
         workbook paths and SHA-256).
-    objective
-        :class:`speciakin.pipeline.objective.CampaignObjective` of model and
-        campaign (needed for curves and residuals), or None.
+    predictions
+        :class:`speciakin.pipeline.predictions.PredictionSet`: curves, bands
+        and fitted values of model and campaign, or None (no run plots).
     fit
         :class:`speciakin.pipeline.fit.CampaignFitResult` or None.
     posterior
@@ -111,15 +112,11 @@ class ReportInputs:
         True to label the report as based on invented demonstration data.
     title
         Report title (default: from the model name).
-    predictive_draws
-        Posterior draws used for the predictive bands [-].
-    seed
-        Seed of the choice of those draws.
     """
 
     model: Any
     campaign: Any
-    objective: Any = None
+    predictions: Any = None
     fit: Any = None
     posterior: Any = None
     window: Any = None
@@ -130,8 +127,6 @@ class ReportInputs:
     extra_inputs: list[tuple[str, str]] = field(default_factory=list)
     invented: bool = False
     title: str = ""
-    predictive_draws: int = 150
-    seed: int = 0
 
 
 def species_colors(model) -> SpeciesColors:
@@ -173,8 +168,7 @@ def build_report(inputs: ReportInputs) -> ReportDocument:
         model_section(inputs.model, inputs.fit),
         parameter_section(inputs.fit, inputs.posterior),
         correlation_section(inputs.fit, inputs.posterior, warnings),
-        runs_section(inputs.objective, inputs.fit, inputs.posterior, colors, inputs.predictive_draws,
-                     inputs.seed),
+        runs_section(inputs.predictions, inputs.fit, inputs.posterior, colors),
         convergence_section(inputs.fit, inputs.posterior),
         window_section(inputs.window, colors, inputs.process),
         assumptions_section(warnings),
@@ -184,7 +178,7 @@ def build_report(inputs: ReportInputs) -> ReportDocument:
     for table in (parameter_table(inputs.fit, inputs.posterior),
                   interval_table(inputs.fit, inputs.posterior),
                   correlation_table(inputs.fit, inputs.posterior),
-                  observation_table(inputs.objective, inputs.fit, inputs.posterior),
+                  observation_table(inputs.predictions),
                   window_table(inputs.window)):
         if table is not None:
             workbook.append(table)

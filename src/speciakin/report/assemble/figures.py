@@ -16,18 +16,18 @@ from speciakin.report.document import Figure
 __all__ = ["fit_figure_set"]
 
 
-def fit_figure_set(objective: Any, fit: Any, posterior: Any = None, predictive_draws: int = 150,
-                   seed: int = 0) -> dict[str, bytes]:
+def fit_figure_set(model: Any, predictions: Any, fit: Any) -> dict[str, bytes]:
     """PNG bytes of the fit's figures.
 
     Parameters
     ----------
-    objective
-        :class:`speciakin.pipeline.objective.CampaignObjective`.
+    model
+        :class:`speciakin.chemistry.model.Model` (species colours).
+    predictions
+        :class:`speciakin.pipeline.predictions.PredictionSet` (curves, with
+        the 5-95 % predictive bands when it holds them).
     fit
         :class:`speciakin.pipeline.fit.CampaignFitResult` (or None: data only).
-    posterior
-        Optional posterior for the 5-95 % predictive bands.
 
     Returns
     -------
@@ -37,14 +37,13 @@ def fit_figure_set(objective: Any, fit: Any, posterior: Any = None, predictive_d
         PNG bytes; characters other than letters, digits, ``_``, ``-`` and
         ``.`` in a run name become ``_`` so that the names serve as file names.
     """
-    from speciakin.report.assemble import species_colors
+    from speciakin.report.assemble.build import species_colors
     from speciakin.report.assemble.parameters import correlation_section
     from speciakin.report.assemble.posterior import profile_blocks
     from speciakin.report.assemble.runs import runs_section
 
     named: dict[str, Figure] = {}
-    runs_section(objective, fit, posterior, species_colors(objective.model), predictive_draws, seed,
-                 figure_names=named)
+    runs_section(predictions, fit, None, species_colors(model), figure_names=named)
     out = {re.sub(r"[^A-Za-z0-9_.-]+", "_", name): figure.image_bytes() for name, figure in named.items()}
     for block in profile_blocks(fit):
         if isinstance(block, Figure):

@@ -1,0 +1,71 @@
+"""Input files of a campaign: where they are, and loading them through the layers below."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+
+from speciakin.errors import InputError, Location
+
+__all__ = ["Inputs", "resolve_inputs", "load_inputs", "MODEL_FILE", "PROCESS_FILE"]
+
+#: Default names of the model and process files inside a campaign folder (made by ``speciakin new``).
+MODEL_FILE = "model.toml"
+PROCESS_FILE = "process.toml"
+
+
+@dataclass
+class Inputs:
+    """Resolved input paths of a campaign (process may be None)."""
+
+    campaign: Path
+    model: Path
+    process: Path | None = None
+
+    def labelled(self) -> list[tuple[str, str]]:
+        """``(label, path)`` of the model and process files, for the report's input list."""
+        out = [("model file", str(self.model))]
+        if self.process:
+            out.append(("process file", str(self.process)))
+        return out
+
+
+def resolve_inputs(campaign: str | os.PathLike, model: str | os.PathLike | None = None,
+                   process: str | os.PathLike | None = None, need_process: bool = False) -> Inputs:
+    """Find the model and process files: given explicitly, or ``model.toml`` /
+    ``process.toml`` inside the campaign folder (what ``speciakin new`` creates).
+
+    Raises
+    ------
+    InputError
+        A named file does not exist, or the process file is needed and missing.
+    """
+    c = Path(campaign)
+    if not c.exists():
+        raise InputError("campaign not found", Location(file=str(c)),
+                         expected="a campaign folder (made by 'speciakin new') or a workbook (.xlsx)")
+    folder = c if c.is_dir() else c.parent
+    m = Path(model) if model else folder / MODEL_FILE
+    if not m.exists():
+        raise InputError("model file not found", Location(file=str(m)),
+                         expected="--model MODEL.toml, or model.toml inside the campaign folder")
+    p = Path(process) if process else (folder / PROCESS_FILE if (folder / PROCESS_FILE).exists() else None)
+    if p is not None and not p.exists():
+        raise InputError("process file not found", Location(file=str(p)), expected="an existing process file")
+    if need_process and p is None:
+        raise InputError("no process file", Location(file=str(folder / PROCESS_FILE)),
+                         expected="--process PROCESS.toml, or process.toml inside the campaign folder")
+    return Inputs(c, m, p)
+
+
+def load_inputs(inputs: Inputs):
+    """(model, campaign, process or None) from resolved paths; raises the layers' input errors."""
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.data import load_campaign
+    from speciakin.decision import load_process
+
+    model = load_model(inputs.model)
+    campaign = load_campaign(inputs.campaign)
+    process = load_process(inputs.process, model) if inputs.process else None
+    return model, campaign, process

@@ -1,0 +1,225 @@
+"""The whole job and the results of an output folder.
+
+:func:`run_all` chains check -> fit -> sample -> window and hands the
+:class:`Results` to a renderer for the figures and the report;
+:func:`load_results` rebuilds the same :class:`Results` from the files of an
+output folder (what ``speciakin report`` renders).  The renderer is passed in
+because the report layer sits above this one: the command line passes
+:mod:`speciakin.report.results`, another front end may pass its own object
+with the same three functions (:class:`Renderer`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Protocol
+
+from speciakin.errors import DataError, InputError, Location
+from speciakin.pipeline import outputs
+from speciakin.pipeline.inputs import Inputs, load_inputs
+from speciakin.pipeline.steps import (
+    CancelFlag,
+    Progress,
+    check_step,
+    fit_step,
+    make_objective,
+    predict_step,
+    sample_step,
+    timed,
+    window_step,
+    window_text,
+)
+
+__all__ = ["Results", "Renderer", "run_all", "load_results", "STEPS"]
+
+#: The steps of :func:`run_all`, in order.
+STEPS = ("check", "fit", "sample", "window", "report")
+
+
+class Renderer(Protocol):
+    """What :func:`run_all` needs to draw figures and write the report."""
+
+    def fit_figures(self, model: Any, predictions: Any, fit: Any, out: Path) -> list[Path]: ...
+
+    def posterior_figures(self, posterior: Any, out: Path) -> list[Path]: ...
+
+    def write_report(self, out: Path, results: "Results", *, invented: bool = False, formats=None,
+                     command: str = "") -> dict[str, Path]: ...
+
+
+@dataclass
+class Results:
+    """Inputs and every result of a campaign; a step that has not run leaves None.
+
+    Attributes
+    ----------
+    model, campaign, process
+        The loaded inputs (process None without a process file).
+    inputs
+        Their paths (:class:`~speciakin.pipeline.inputs.Inputs`), or None.
+    objective
+        :class:`~speciakin.pipeline.objective.CampaignObjective` of model and campaign.
+    check, fit, posterior, window
+        CheckReport, CampaignFitResult, PosteriorResult, WindowResult.
+    predictions
+        :class:`~speciakin.pipeline.predictions.PredictionSet` (curves, bands, fitted values).
+    report
+        {format: path} of the rendered report.
+    timings
+        Wall time of each step [s].
+    """
+
+    model: Any
+    campaign: Any
+    process: Any = None
+    inputs: Inputs | None = None
+    objective: Any = None
+    check: Any = None
+    fit: Any = None
+    posterior: Any = None
+    window: Any = None
+    predictions: Any = None
+    report: dict[str, Path] = field(default_factory=dict)
+    timings: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def missing(self) -> list[str]:
+        """Names of the results that do not exist (reported as "not run")."""
+        return [name for name in ("fit", "posterior", "window") if getattr(self, name) is None]
+
+
+def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, starts: int | None = None,
+            seed: int = 1, n_steps: int = 2000, n_walkers: int | None = None, jobs: int = 1, scheduler=None,
+            resume: bool = False, profiles: bool = True, draws: int | None = None, invented: bool = False,
+            formats=None, progress: Progress | None = None, cancel: CancelFlag | None = None,
+            say: Callable[[str], None] = lambda s: None, on_step: Callable[[str], None] | None = None,
+            sample_bar: bool = False) -> Results:
+    """check -> fit -> sample -> window -> report, each step's output kept in ``out``.
+
+    Parameters
+    ----------
+    inputs
+        Resolved input paths (:func:`~speciakin.pipeline.inputs.resolve_inputs`).
+    out
+        Output folder (created).
+    renderer
+        Draws the figures and writes the report (:mod:`speciakin.report.results`);
+        None: results files only.
+    starts, seed, profiles
+        Least-squares settings (see :func:`~speciakin.pipeline.fit.fit_campaign`).
+    n_steps, n_walkers, jobs, scheduler, resume
+        Sampler settings (see :func:`~speciakin.pipeline.steps.sample_step`).
+    draws
+        Parameter draws of the window (default: the process file's).
+    invented, formats
+        Report label and formats.
+    progress, cancel
+        ``progress(stage, done, total)`` and a flag with ``is_set()`` (see
+        :mod:`speciakin.pipeline.steps`).
+    say
+        Receives one line of text after each step.
+    on_step
+        Called with the step name when a step starts.
+    sample_bar
+        Show the sampler's own progress bar (with time left) when ``progress`` is None.
+
+    Returns
+    -------
+    Results
+
+    Raises
+    ------
+    SpeciakinError
+        The first step's error; every earlier step's output stays in ``out``.
+    Cancelled
+        ``cancel`` was set.
+    """
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    started = on_step or (lambda name: None)
+    timings: dict[str, float] = {}
+    started("check")
+    check = timed(timings, "check", lambda: check_step(inputs, out))
+    if check.errors:
+        raise DataError(problems=check.errors)
+    say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
+
+    model, campaign, process = load_inputs(inputs)
+    results = Results(model, campaign, process, inputs, check=check, timings=timings)
+    started("fit")
+    results.objective = objective = make_objective(model, campaign)
+    results.fit = fit = timed(timings, "fit", lambda: fit_step(
+        objective, out, starts=starts, seed=seed, profiles=profiles, progress=progress, cancel=cancel))
+    say(f"fit: chi-square {fit.fit.chisqr:.4g}, reduced {fit.fit.reduced_chisqr:.3g} ({timings['fit']:.1f} s)")
+    results.predictions = predict_step(objective, fit)
+    if renderer is not None:
+        renderer.fit_figures(model, results.predictions, fit, out)
+
+    started("sample")
+    results.posterior = posterior = timed(timings, "sample", lambda: sample_step(
+        objective, fit, out, n_steps=n_steps, n_walkers=n_walkers, seed=seed, resume=resume, jobs=jobs,
+        scheduler=scheduler, progress=progress if progress is not None else sample_bar, cancel=cancel))
+    if renderer is not None:
+        renderer.posterior_figures(posterior, out)
+    say(f"sample: {posterior.n_walkers} walkers x {posterior.n_steps} steps, "
+        f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s)")
+
+    if process is not None:
+        started("window")
+        results.window = timed(timings, "window", lambda: window_step(
+            objective, process, out, fit=fit, posterior=posterior, draws=draws, seed=seed, progress=progress,
+            cancel=cancel))
+        say(f"window: {window_text(results.window)} ({timings['window']:.1f} s)")
+    else:
+        say("window: skipped (no process file)")
+
+    started("report")
+    results.predictions = predict_step(objective, fit, posterior, previous=results.predictions)
+    if renderer is not None:
+        results.report = timed(timings, "report", lambda: renderer.write_report(
+            out, results, invented=invented, formats=formats, command=outputs.command_line()))
+        say("report: " + ", ".join(str(p) for p in results.report.values()))
+    outputs.save_timings(out, timings)
+    return results
+
+
+def load_results(folder: Path, *, campaign: str | None = None, model: str | None = None,
+                 process: str | None = None, check: bool = True) -> Results:
+    """The results in an output folder, with the inputs they belong to and their predictions.
+
+    The model and campaign are the ones given, else the ones named in
+    ``fit.json``; results of another model are refused.
+
+    Raises
+    ------
+    InputError
+        Folder missing, inputs not found, or a result that does not belong to the model.
+    """
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.data import check_campaign, load_campaign
+    from speciakin.decision.process import load_process
+
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError("output folder not found", Location(file=str(folder)),
+                         expected="the folder a previous fit, sample or window command wrote")
+    entry = outputs.load_fit_data(folder)
+    fit, fit_data = entry if entry is not None else (None, {})
+    model_path = outputs.resolve_input(model, fit_data.get("model"), folder, "model file", "model")
+    campaign_path = outputs.resolve_input(campaign, fit_data.get("campaign"), folder, "campaign", "campaign")
+    process_path = outputs.resolve_input(process, None, folder, "process file", "process") if process else None
+    loaded_model = load_model(model_path)
+    loaded_campaign = load_campaign(campaign_path)
+    objective = make_objective(loaded_model, loaded_campaign)
+    if fit is not None and list(fit.names) != list(objective.names):
+        raise InputError("fit.json does not belong to this model: its fitted parameters differ",
+                         Location(file=str(outputs.result_path(folder, "fit")), key="parameters"),
+                         ", ".join(fit.names), "the model's fitted parameters " + ", ".join(objective.names))
+    results = Results(
+        loaded_model, loaded_campaign, load_process(process_path, loaded_model) if process_path else None,
+        Inputs(campaign_path, model_path, process_path), objective=objective, fit=fit,
+        posterior=outputs.load_posterior(folder), window=outputs.load_window(folder),
+        check=check_campaign(campaign_path, model=loaded_model) if check else None)
+    results.predictions = predict_step(objective, results.fit, results.posterior)
+    return results
