@@ -14,7 +14,8 @@ from speciakin.decision import (
     load_process,
     process_scan_arguments,
 )
-from speciakin.decision.plots import OKABE_ITO, plot_map, plot_outcomes, plot_probability
+from speciakin.decision.plots import plot_map, plot_outcomes, plot_probability
+from speciakin.palette import OKABE_ITO
 
 ROOT = Path(__file__).resolve().parents[2]
 SPECS = [Specification("percent", ("PB",), ">=", 90.0), Specification("percent", ("S",), "<=", 1.0)]
@@ -34,7 +35,7 @@ def test_plots_write_png_files(tmp_path):
     one = compute_window(outcome_fn, draws, grid, SPECS, outcome_names=NAMES)
     with pytest.raises(ValueError, match="no second factor"):
         plot_map(one, tmp_path / "none.png")
-    assert len(set(OKABE_ITO)) == 8
+    assert len(set(OKABE_ITO.values())) == 8
 
 
 def test_process_scan_arguments_from_example():

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from speciakin.errors import InputError
-from speciakin.report.palette import LINE_STYLES, OKABE_ITO, SPECIES_COLOR_ORDER, SpeciesColors, hex_to_rgb
+from speciakin.palette import LINE_STYLES, OKABE_ITO, SPECIES_COLOR_ORDER, SpeciesColors, hex_to_rgb
 
 
 def test_colours_match_the_published_rgb_values():

@@ -27,9 +27,6 @@ example (invented compound with an alkyl amine and an aryl amine):
   a pH range starting below zero needs the '=' form: --ph-range=-2:16:0.1
 """
 
-#: Okabe and Ito (2008) colour-blind-safe palette.
-OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000")
-_LINESTYLES = ("-", "--", ":", "-.")
 #: Table formats by file suffix.
 TABLE_SUFFIXES = (".csv", ".xlsx")
 
@@ -203,9 +200,11 @@ def write_table(frame, path: str) -> None:
 
 
 def line_style(index: int) -> dict:
-    """Colour and line style of curve ``index`` (Okabe-Ito colours, then dashes)."""
-    return {"color": OKABE_ITO[index % len(OKABE_ITO)],
-            "linestyle": _LINESTYLES[(index // len(OKABE_ITO)) % len(_LINESTYLES)]}
+    """Colour and line style of curve ``index`` (:func:`speciakin.palette.cycle_style`)."""
+    from speciakin.palette import cycle_style
+
+    color, line = cycle_style(index)
+    return {"color": color, "linestyle": line}
 
 
 def visible_microstates(populations, threshold: float = 0.01, limit: int = 16) -> list[int]:

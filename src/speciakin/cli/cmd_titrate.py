@@ -76,7 +76,7 @@ def _plot(result, path: str) -> None:
 
     volume_ml = result.titrant_volume * 1e3
     fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(7.5, 7.5), sharex=True)
-    ax1.plot(volume_ml, result.ph, color=shared.OKABE_ITO[4])
+    ax1.plot(volume_ml, result.ph, color=shared.line_style(0)["color"])
     for v in result.steepest_points():
         ax1.axvline(v * 1e3, color="0.6", linestyle=":", linewidth=1)
     ax1.set_ylabel("pH")

@@ -17,12 +17,9 @@ import numpy as np
 
 from speciakin._io import atomic_write_bytes
 from speciakin.decision.result import WindowResult
+from speciakin.palette import OKABE_ITO, cycle_style
 
-__all__ = ["plot_probability", "plot_outcomes", "plot_map", "OKABE_ITO"]
-
-#: Okabe-Ito palette (black first, then the seven colours).
-OKABE_ITO = ("#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00",
-             "#CC79A7")
+__all__ = ["plot_probability", "plot_outcomes", "plot_map"]
 
 
 def _figure(width: float = 6.5, height: float = 4.0):
@@ -45,24 +42,25 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     fig = _figure()
     ax = fig.add_subplot()
     for k, (a, b) in enumerate(result.windows):
-        ax.axvspan(a, b, color=OKABE_ITO[2], alpha=0.25, lw=0,
+        ax.axvspan(a, b, color=OKABE_ITO["sky blue"], alpha=0.25, lw=0,
                    label="window (p >= level)" if k == 0 else None)
     for k, (a, b) in enumerate(result.robust_windows):
-        ax.axvspan(a, b, color=OKABE_ITO[5], alpha=0.35, lw=0,
+        ax.axvspan(a, b, color=OKABE_ITO["blue"], alpha=0.35, lw=0,
                    label=f"robust set points (+/- {result.tolerance:g} pH)" if k == 0 else None)
     se = result.probability_standard_error
     ax.fill_between(result.ph, np.clip(result.probability - 2 * se, 0, 1),
-                    np.clip(result.probability + 2 * se, 0, 1), color=OKABE_ITO[0], alpha=0.15,
+                    np.clip(result.probability + 2 * se, 0, 1), color=OKABE_ITO["black"], alpha=0.15,
                     lw=0, label="+/- 2 Monte Carlo s.e.")
-    ax.plot(result.ph, result.probability, color=OKABE_ITO[0], lw=1.8,
+    ax.plot(result.ph, result.probability, color=OKABE_ITO["black"], lw=1.8,
             label="probability, all specifications met")
     worst = result.worst_case_probability
     if np.any(np.isfinite(worst)):
-        ax.plot(result.ph, worst, color=OKABE_ITO[6], lw=1.2, ls="--",
+        ax.plot(result.ph, worst, color=OKABE_ITO["vermillion"], lw=1.2, ls="--",
                 label=f"lowest within +/- {result.tolerance:g} pH")
-    ax.axhline(result.level, color=OKABE_ITO[1], lw=1.2, ls=":", label=f"level {result.level:g}")
+    ax.axhline(result.level, color=OKABE_ITO["orange"], lw=1.2, ls=":", label=f"level {result.level:g}")
     if result.best_ph is not None:
-        ax.axvline(result.best_ph, color=OKABE_ITO[7], lw=1.0, label=f"best set point pH {result.best_ph:.2f}")
+        ax.axvline(result.best_ph, color=OKABE_ITO["reddish purple"], lw=1.0,
+                   label=f"best set point pH {result.best_ph:.2f}")
     ax.set_xlabel("set-point pH [-]")
     ax.set_ylabel("probability [-]")
     ax.set_ylim(-0.02, 1.02)
@@ -78,13 +76,13 @@ def plot_outcomes(result: WindowResult, path: str | os.PathLike) -> Path:
     fig = _figure()
     ax = fig.add_subplot()
     for k, name in enumerate(result.outcome_names):
-        colour = OKABE_ITO[(k + 1) % len(OKABE_ITO)]
+        colour = cycle_style(k)[0]
         ax.fill_between(result.ph, result.outcome_lower[name], result.outcome_upper[name],
                         color=colour, alpha=0.25, lw=0)
         ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6, label=name)
     for a, b in result.windows:
-        ax.axvline(a, color=OKABE_ITO[0], lw=0.8, ls=":")
-        ax.axvline(b, color=OKABE_ITO[0], lw=0.8, ls=":")
+        ax.axvline(a, color=OKABE_ITO["black"], lw=0.8, ls=":")
+        ax.axvline(b, color=OKABE_ITO["black"], lw=0.8, ls=":")
     ax.set_xlabel("set-point pH [-]")
     ax.set_ylabel("mole % of substrate moiety [%]")
     ax.set_xlim(result.ph[0], result.ph[-1])
@@ -108,14 +106,15 @@ def plot_map(result: WindowResult, path: str | os.PathLike) -> Path:
 
     fig = _figure()
     ax = fig.add_subplot()
-    cmap = LinearSegmentedColormap.from_list("probability", ["#FFFFFF", OKABE_ITO[2], OKABE_ITO[5]])
+    cmap = LinearSegmentedColormap.from_list("probability",
+                                             ["#FFFFFF", OKABE_ITO["sky blue"], OKABE_ITO["blue"]])
     y = np.asarray(result.factor_values, dtype=float)
     mesh = ax.pcolormesh(result.ph, y, result.map_probability.T, cmap=cmap, vmin=0, vmax=1,
                          shading="nearest")
     fig.colorbar(mesh, ax=ax, label="probability [-]")
     if result.ph.size > 1 and y.size > 1:
         ax.contour(result.ph, y, result.map_probability.T, levels=[result.level],
-                   colors=[OKABE_ITO[6]], linewidths=1.5)
+                   colors=[OKABE_ITO["vermillion"]], linewidths=1.5)
     ax.set_xlabel("set-point pH [-]")
     ax.set_ylabel(f"{result.factor_name} [{result.factor_unit}]")
     ax.set_title(f"Design space: probability of meeting every specification "

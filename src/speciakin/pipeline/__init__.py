@@ -18,7 +18,7 @@ Modules
 -------
 inputs       the campaign's input files: find and load them
 objective    model + campaign -> weighted residuals and log-likelihood
-objective_data  the observation arrays of the objective (HPLC, titrant)
+fitted       the fitted parameters and the error model of the observations
 fit          multistart least squares of a campaign (CampaignFitResult, fit.json)
 posterior    priors from the model file and the sampler on the campaign objective
 window       pH window of the planned process from fit or posterior draws

@@ -9,7 +9,6 @@ as the pKa it implies).
 
 from __future__ import annotations
 
-import json
 import math
 import time
 from dataclasses import dataclass, field
@@ -17,10 +16,11 @@ from typing import Any, Callable
 
 import numpy as np
 
+from speciakin._json import dumps
 from speciakin.estimation.leastsq import fit_least_squares
-from speciakin.pipeline.objective import CampaignObjective
 from speciakin.estimation.profile import profile_all
 from speciakin.estimation.results import FitResult, Profile
+from speciakin.pipeline.objective import CampaignObjective
 
 __all__ = ["CampaignFitResult", "fit_campaign", "MISFIT_RMS"]
 
@@ -183,15 +183,8 @@ class CampaignFitResult:
                    campaign_source=data.get("campaign", ""))
 
     def to_json(self) -> str:
-        return json.dumps(self.to_dict(), indent=1, allow_nan=False, default=_json_default)
-
-
-def _json_default(value):
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    raise TypeError(type(value))
+        """Strict JSON text of :meth:`to_dict` (NaN -> null)."""
+        return dumps(self.to_dict())
 
 
 def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = None, seed: int | None = None,

@@ -20,7 +20,7 @@ from speciakin.report.document import (
     load_document,
     save_document,
 )
-from speciakin.report.palette import OKABE_ITO, SpeciesColors
+from speciakin.palette import OKABE_ITO, SpeciesColors
 from speciakin.report.render import REPORT_FORMATS, render, render_all
 from speciakin.report.texts import assumptions_section, cautions_section
 

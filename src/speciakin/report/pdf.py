@@ -15,14 +15,16 @@ from pathlib import Path
 from xml.sax.saxutils import escape
 
 from speciakin.errors import InputError, Location
+from speciakin.palette import OKABE_ITO
 from speciakin.report._io import atomic_write_bytes
 from speciakin.report.document import CALLOUT_KINDS, RESERVED_ANCHORS, Block, Callout, Figure, KeyValues, ReportDocument, Table
 from speciakin.report.html import SUMMARY_ANCHOR, SUMMARY_TITLE
 
 __all__ = ["render_pdf", "pdf_bytes", "CALLOUT_COLORS"]
 
-#: Border colour of each callout kind (Okabe-Ito colours, see palette.py).
-CALLOUT_COLORS = {"decision": "#0072B2", "warning": "#D55E00", "caution": "#E69F00", "note": "#6B6B6B"}
+#: Border colour of each callout kind (:mod:`speciakin.palette`).
+CALLOUT_COLORS = {"decision": OKABE_ITO["blue"], "warning": OKABE_ITO["vermillion"],
+                  "caution": OKABE_ITO["orange"], "note": "#6B6B6B"}
 _BAND = "#F3F5F7"
 _RULE = "#C8C8C8"
 
@@ -313,7 +315,7 @@ def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
         story.append(_callout(block, styles, width))
     story.append(heading("Contents", RESERVED_ANCHORS[1]))
     for i, section in enumerate(doc.sections, 1):
-        story.append(Paragraph(f'<a href="#{section.anchor}" color="#0072B2">{i}. {escape(section.title)}</a>',
+        story.append(Paragraph(f'<a href="#{section.anchor}" color="{OKABE_ITO["blue"]}">{i}. {escape(section.title)}</a>',
                                styles["body"]))
     for i, section in enumerate(doc.sections, 1):
         story.append(heading(f"{i}. {section.title}", section.anchor))

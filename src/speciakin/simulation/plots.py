@@ -14,19 +14,15 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Sequence
 
+from speciakin.palette import cycle_style
 from speciakin.simulation.results import SimulationResult
 
-__all__ = ["OKABE_ITO", "species_colours", "plot_run", "plot_ph", "plot_titrant"]
-
-#: Okabe-Ito colour-blind-safe palette [1]_ (black last, for the ninth species on).
-OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000")
-_STYLES = ("-", "--", ":", "-.")
+__all__ = ["species_colours", "plot_run", "plot_ph", "plot_titrant"]
 
 
 def species_colours(names: Sequence[str]) -> dict[str, tuple[str, str]]:
-    """Stable (colour, line style) per species, in model order."""
-    return {n: (OKABE_ITO[i % len(OKABE_ITO)], _STYLES[(i // len(OKABE_ITO)) % len(_STYLES)])
-            for i, n in enumerate(names)}
+    """Stable (colour, line style) per species, in model order (:mod:`speciakin.palette`)."""
+    return {n: cycle_style(i) for i, n in enumerate(names)}
 
 
 def _save(fig, path: Path) -> None:
@@ -64,8 +60,8 @@ def _all_runs(results: Sequence[SimulationResult], path, values, ylabel: str, ti
 
     fig, ax = plt.subplots(figsize=(7, 4.5))
     for i, res in enumerate(results):
-        ax.plot(res.times / 60.0, values(res), _STYLES[(i // len(OKABE_ITO)) % len(_STYLES)],
-                color=OKABE_ITO[i % len(OKABE_ITO)], label=res.run_name)
+        color, line = cycle_style(i)
+        ax.plot(res.times / 60.0, values(res), line, color=color, label=res.run_name)
     ax.set_xlabel("time [min]")
     ax.set_ylabel(ylabel)
     ax.set_title(title)

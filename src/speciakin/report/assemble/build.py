@@ -54,7 +54,7 @@ from speciakin.report.assemble.parameters import (
 from speciakin.report.assemble.posterior import convergence_section
 from speciakin.report.assemble.runs import observation_table, runs_section
 from speciakin.report.document import ReportDocument, Section, Table
-from speciakin.report.palette import SpeciesColors
+from speciakin.palette import SpeciesColors
 from speciakin.report.texts import INVENTED_DATA_NOTE, assumptions_section, cautions_section
 
 __all__ = ["ReportInputs", "build_report", "REPORT_SECTION_TITLES", "NOT_RUN"]

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
-from speciakin.report.palette import SpeciesColors
+from speciakin.palette import SpeciesColors
 
 __all__ = ["decision_summary_section", "window_section", "window_table", "window_centre_outcomes",
            "format_interval", "specification_limits", "process_block"]

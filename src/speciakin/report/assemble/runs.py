@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 
 from speciakin.report.document import Figure, Paragraph, Section, Table
-from speciakin.report.palette import SpeciesColors
+from speciakin.palette import SpeciesColors
 
 __all__ = ["observation_table", "runs_section"]
 

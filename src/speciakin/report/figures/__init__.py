@@ -3,7 +3,7 @@
 Every helper takes plain arrays and mappings, never project result objects,
 so each can be tested alone and called from any layer that has numbers.
 Species keep their colour across figures through a shared
-:class:`speciakin.report.palette.SpeciesColors`.
+:class:`speciakin.palette.SpeciesColors`.
 """
 
 from speciakin.report.figures.decision import (

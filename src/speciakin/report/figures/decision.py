@@ -15,7 +15,7 @@ import numpy as np
 
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
-from speciakin.report.palette import NEUTRAL, OKABE_ITO, SpeciesColors
+from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
 __all__ = ["probability_vs_ph_figure", "outcomes_vs_ph_figure", "probability_map_figure"]
 

@@ -19,7 +19,7 @@ import numpy as np
 
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
-from speciakin.report.palette import NEUTRAL, OKABE_ITO
+from speciakin.palette import NEUTRAL, OKABE_ITO
 
 __all__ = ["PROFILE_THRESHOLD_95", "profile_figure", "trace_figure", "corner_figure", "correlation_figure"]
 

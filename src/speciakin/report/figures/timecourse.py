@@ -8,7 +8,7 @@ import numpy as np
 
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
-from speciakin.report.palette import NEUTRAL, SpeciesColors
+from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
 __all__ = ["time_course_figure", "residuals_figure", "titrant_figure"]
 
@@ -186,9 +186,9 @@ def titrant_figure(
         if band_low is not None and band_high is not None:
             lo, hi = as_array(band_low, "band_low"), as_array(band_high, "band_high")
             same_length(model_time=mt, band_low=lo, band_high=hi)
-            ax.fill_between(mt, lo, hi, color="#0072B2", alpha=0.18, linewidth=0, label="5-95 % band")
-        ax.plot(mt, my, color="#0072B2", linewidth=1.6, label="model")
-    ax.plot(t, y, linestyle="none", marker="o", markersize=3, color="#D55E00", label="controller log")
+            ax.fill_between(mt, lo, hi, color=OKABE_ITO["blue"], alpha=0.18, linewidth=0, label="5-95 % band")
+        ax.plot(mt, my, color=OKABE_ITO["blue"], linewidth=1.6, label="model")
+    ax.plot(t, y, linestyle="none", marker="o", markersize=3, color=OKABE_ITO["vermillion"], label="controller log")
     ax.set_xlabel(f"time [{time_unit}]")
     ax.set_ylabel(f"titrant consumed [{amount_unit}]")
     if title:

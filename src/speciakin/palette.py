@@ -1,4 +1,4 @@
-"""Colour-blind-safe colours and a stable species -> colour mapping.
+"""The one palette of every figure: colour-blind-safe colours and a stable species -> colour mapping.
 
 The eight colours are the "Color Universal Design" set of Okabe and Ito,
 distinguishable by readers with the common forms of colour-vision deficiency
@@ -28,6 +28,7 @@ __all__ = [
     "Style",
     "SpeciesColors",
     "hex_to_rgb",
+    "cycle_style",
 ]
 
 #: The eight colours of [1]_ by name, as hex RGB.
@@ -68,6 +69,13 @@ def hex_to_rgb(color: str) -> tuple[int, int, int]:
         return int(text[0:2], 16), int(text[2:4], 16), int(text[4:6], 16)
     except ValueError:
         raise InputError("not a hex colour", Location(key="color"), color, "'#RRGGBB'") from None
+
+
+def cycle_style(index: int) -> tuple[str, str]:
+    """(hex colour, line style) of curve ``index``: the colours in :data:`SPECIES_COLOR_ORDER`,
+    then the same colours with the next line style."""
+    n = len(SPECIES_COLOR_ORDER)
+    return OKABE_ITO[SPECIES_COLOR_ORDER[index % n]], LINE_STYLES[(index // n) % len(LINE_STYLES)]
 
 
 @dataclass(frozen=True)
@@ -115,10 +123,8 @@ class SpeciesColors:
     def style(self, name: str) -> Style:
         """The :class:`Style` of species ``name``."""
         i = self._index(name)
-        n = len(SPECIES_COLOR_ORDER)
-        turn = i // n
-        return Style(OKABE_ITO[SPECIES_COLOR_ORDER[i % n]], LINE_STYLES[turn % len(LINE_STYLES)],
-                     MARKERS[turn % len(MARKERS)])
+        color, line = cycle_style(i)
+        return Style(color, line, MARKERS[(i // len(SPECIES_COLOR_ORDER)) % len(MARKERS)])
 
     def color(self, name: str) -> str:
         """Hex colour of species ``name``."""
