@@ -25,11 +25,11 @@ from typing import Any, Callable, Mapping
 from speciakin.chemistry.model import Prior, Quantity
 from speciakin.chemistry.modelfile_paths import sub_path
 from speciakin.chemistry.modelfile_reader import TableReader
+from speciakin.chemistry.prior_families import PRIOR_FAMILIES
 
 __all__ = [
     "QuantityKind",
     "QUANTITY_KINDS",
-    "PRIOR_PARAMETERS",
     "DEFAULT_PKA_SPREAD",
     "quantity_name",
     "read_quantity",
@@ -60,19 +60,6 @@ QUANTITY_KINDS: Mapping[str, QuantityKind] = MappingProxyType({
                                       "Arrhenius activation energy [kJ/mol]"),
 })
 
-#: Prior families the model file accepts and the parameters each one needs
-#: (on the fitted scale).  The names match the prior registry of the
-#: estimation layer (speciakin.estimation.priors), which turns them into
-#: densities; the chemistry layer may not import that layer, so the names are
-#: mirrored here and a test checks that both tables agree.
-PRIOR_PARAMETERS: Mapping[str, tuple[str, ...]] = MappingProxyType({
-    "normal": ("mean", "sd"),
-    "lognormal": ("log_mean", "log_sd"),
-    "uniform": ("lower", "upper"),
-    "halfnormal": ("scale",),
-    "student_t": ("degrees_of_freedom", "mean", "scale"),
-})
-
 #: Prior sd of a fitted pKa shift when the file states neither ``spread`` nor
 #: ``prior`` [pK units] (common practice: co-solvent shifts of about half a unit).
 DEFAULT_PKA_SPREAD = 0.5
@@ -91,12 +78,12 @@ def _read_prior(reader: TableReader, value: Any, path: str) -> Prior | None:
     if table is None:
         return None
     family = table.get("family")
-    if family not in PRIOR_PARAMETERS:
+    if family not in PRIOR_FAMILIES:
         reader.error(sub_path(path, "family") if "family" in table else path,
                      "unknown prior family" if "family" in table else "missing key 'family'",
-                     family, "one of: " + ", ".join(PRIOR_PARAMETERS))
+                     family, "one of: " + ", ".join(PRIOR_FAMILIES))
         return None
-    names = PRIOR_PARAMETERS[family]
+    names = PRIOR_FAMILIES[family].parameter_names
     reader.check_keys(table, path, ("family", *names))
     parameters: dict[str, float] = {}
     for name in names:
@@ -177,10 +164,11 @@ def check_quantity(q: Quantity, path: str, report: Callable[..., None]) -> None:
         report(sub_path(path, "upper"), f"{q.name}: {what} lies above the upper bound",
                f"value={centre:g}, upper={q.upper:g}", "lower <= value <= upper")
     if q.prior is not None:
-        names = PRIOR_PARAMETERS.get(q.prior.family)
+        family = PRIOR_FAMILIES.get(q.prior.family)
+        names = None if family is None else family.parameter_names
         if names is None:
             report(sub_path(path, "prior"), f"{q.name}: unknown prior family", q.prior.family,
-                   "one of: " + ", ".join(PRIOR_PARAMETERS))
+                   "one of: " + ", ".join(PRIOR_FAMILIES))
         else:
             missing = [n for n in names if n not in q.prior.parameters]
             if missing:

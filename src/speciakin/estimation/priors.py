@@ -1,8 +1,10 @@
-"""Prior distributions for Bayesian sampling: one registry of families.
+"""Prior distributions for Bayesian sampling, built from the one registry of families.
 
-Each family in :data:`PRIOR_FAMILIES` declares its parameter names, how they
-are validated, its vectorised log-density, how to draw from it and how to
-describe it in a report.  The model file stores a prior as
+Each family in :data:`~speciakin.chemistry.prior_families.PRIOR_FAMILIES`
+declares its parameter names, how they are validated, its vectorised
+log-density, how to draw from it and how to describe it in a report (the
+registry lives in the chemistry layer so that the model-file parser reads the
+same table).  The model file stores a prior as
 ``speciakin.chemistry.model.Prior(family, parameters)``; :func:`build_prior`
 turns that into a :class:`PriorDistribution` that the sampler uses.
 
@@ -23,12 +25,21 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Callable, Mapping
+from typing import Mapping
 
 import numpy as np
-from scipy import special
 
 from speciakin.chemistry.model import Prior
+from speciakin.chemistry.prior_families import (  # noqa: F401  (the registry, re-exported)
+    PRIOR_FAMILIES,
+    PriorFamily,
+    halfnormal_log_density,
+    lognormal_log_density,
+    normal_log_density,
+    register_prior_family,
+    student_t_log_density,
+    uniform_log_density,
+)
 from speciakin.errors import InputError, Location, Problem
 
 __all__ = [
@@ -42,191 +53,6 @@ __all__ = [
     "default_error_scale_prior",
     "joint_log_prior",
 ]
-
-_LOG_2PI = math.log(2.0 * math.pi)
-
-
-# --------------------------------------------------------------------------
-# pure array functions: log-densities [log of 1/unit of x]
-# --------------------------------------------------------------------------
-
-def normal_log_density(x, mean, sd):
-    """Log-density of the normal distribution N(mean, sd^2).
-
-    References
-    ----------
-    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
-    """
-    z = (np.asarray(x, dtype=float) - mean) / sd
-    return -0.5 * z * z - math.log(sd) - 0.5 * _LOG_2PI
-
-
-def lognormal_log_density(x, log_mean, log_sd):
-    """Log-density of the lognormal: log(x) ~ N(log_mean, log_sd^2); -inf for x <= 0.
-
-    References
-    ----------
-    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
-    """
-    x = np.asarray(x, dtype=float)
-    out = np.full(x.shape, -np.inf)
-    pos = x > 0
-    lx = np.log(x[pos])
-    z = (lx - log_mean) / log_sd
-    out[pos] = -0.5 * z * z - math.log(log_sd) - 0.5 * _LOG_2PI - lx
-    return out
-
-
-def uniform_log_density(x, lower, upper):
-    """Log-density of the uniform distribution on [lower, upper]; -inf outside."""
-    x = np.asarray(x, dtype=float)
-    inside = (x >= lower) & (x <= upper)
-    return np.where(inside, -math.log(upper - lower), -np.inf)
-
-
-def halfnormal_log_density(x, scale):
-    """Log-density of the half-normal |N(0, scale^2)| on x >= 0; -inf below 0.
-
-    References
-    ----------
-    Gelman, A., "Prior distributions for variance parameters in hierarchical
-    models", Bayesian Analysis 2006, 1, 515 (weakly informative scale priors).
-    """
-    x = np.asarray(x, dtype=float)
-    z = x / scale
-    value = -0.5 * z * z - math.log(scale) + 0.5 * math.log(2.0 / math.pi)
-    return np.where(x >= 0, value, -np.inf)
-
-
-def student_t_log_density(x, degrees_of_freedom, mean, scale):
-    """Log-density of the location-scale Student-t distribution.
-
-    References
-    ----------
-    Gelman et al., Bayesian Data Analysis, 3rd ed., appendix A.
-    """
-    nu = degrees_of_freedom
-    z = (np.asarray(x, dtype=float) - mean) / scale
-    const = (special.gammaln(0.5 * (nu + 1)) - special.gammaln(0.5 * nu)
-             - 0.5 * math.log(nu * math.pi) - math.log(scale))
-    return const - 0.5 * (nu + 1) * np.log1p(z * z / nu)
-
-
-# --------------------------------------------------------------------------
-# registry
-# --------------------------------------------------------------------------
-
-@dataclass(frozen=True)
-class PriorFamily:
-    """One family of prior distributions.
-
-    Attributes
-    ----------
-    name
-        Registry key, as written in the model file.
-    parameter_names
-        Names of the family's parameters, in the order the functions take them.
-    constraints
-        For each parameter, a (test, text) pair: ``test(value)`` is True when
-        the value is allowed; ``text`` says what is allowed.
-    log_density
-        ``log_density(x, *parameters)``, vectorised over ``x``.
-    draw
-        ``draw(rng, size, *parameters)`` -> array of draws.
-    support
-        ``support(*parameters)`` -> (lower, upper), possibly infinite.
-    describe
-        ``describe(*parameters)`` -> text for reports.
-    cross_check
-        Optional ``check(parameters) -> message | None`` for conditions that
-        involve several parameters (e.g. lower < upper).
-    """
-
-    name: str
-    parameter_names: tuple[str, ...]
-    constraints: Mapping[str, tuple[Callable[[float], bool], str]]
-    log_density: Callable
-    draw: Callable
-    support: Callable
-    describe: Callable
-    cross_check: Callable | None = None
-
-
-PRIOR_FAMILIES: dict[str, PriorFamily] = {}
-
-
-def register_prior_family(family: PriorFamily) -> PriorFamily:
-    """Add a family to :data:`PRIOR_FAMILIES` (the one list of families)."""
-    if family.name in PRIOR_FAMILIES:
-        raise ValueError(f"prior family {family.name!r} is already registered")
-    PRIOR_FAMILIES[family.name] = family
-    return family
-
-
-def _any_number(v: float) -> bool:
-    return math.isfinite(v)
-
-
-def _positive(v: float) -> bool:
-    return math.isfinite(v) and v > 0
-
-
-_FINITE = (_any_number, "a finite number")
-_POSITIVE = (_positive, "a finite number > 0")
-
-register_prior_family(PriorFamily(
-    name="normal",
-    parameter_names=("mean", "sd"),
-    constraints={"mean": _FINITE, "sd": _POSITIVE},
-    log_density=normal_log_density,
-    draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
-    support=lambda mean, sd: (-np.inf, np.inf),
-    describe=lambda mean, sd: f"normal(mean={mean:g}, sd={sd:g})",
-))
-
-register_prior_family(PriorFamily(
-    name="lognormal",
-    parameter_names=("log_mean", "log_sd"),
-    constraints={"log_mean": _FINITE, "log_sd": _POSITIVE},
-    log_density=lognormal_log_density,
-    draw=lambda rng, size, log_mean, log_sd: rng.lognormal(log_mean, log_sd, size),
-    support=lambda log_mean, log_sd: (0.0, np.inf),
-    describe=lambda log_mean, log_sd: (
-        f"lognormal(log_mean={log_mean:g}, log_sd={log_sd:g}; median {math.exp(log_mean):.4g})"),
-))
-
-register_prior_family(PriorFamily(
-    name="uniform",
-    parameter_names=("lower", "upper"),
-    constraints={"lower": _FINITE, "upper": _FINITE},
-    log_density=uniform_log_density,
-    draw=lambda rng, size, lower, upper: rng.uniform(lower, upper, size),
-    support=lambda lower, upper: (lower, upper),
-    describe=lambda lower, upper: f"uniform(lower={lower:g}, upper={upper:g})",
-    cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'",
-))
-
-register_prior_family(PriorFamily(
-    name="halfnormal",
-    parameter_names=("scale",),
-    constraints={"scale": _POSITIVE},
-    log_density=halfnormal_log_density,
-    draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
-    support=lambda scale: (0.0, np.inf),
-    describe=lambda scale: f"halfnormal(scale={scale:g})",
-))
-
-register_prior_family(PriorFamily(
-    name="student_t",
-    parameter_names=("degrees_of_freedom", "mean", "scale"),
-    constraints={"degrees_of_freedom": _POSITIVE, "mean": _FINITE, "scale": _POSITIVE},
-    log_density=student_t_log_density,
-    draw=lambda rng, size, nu, mean, scale: mean + scale * rng.standard_t(nu, size),
-    support=lambda nu, mean, scale: (-np.inf, np.inf),
-    describe=lambda nu, mean, scale: (
-        f"student_t(degrees_of_freedom={nu:g}, mean={mean:g}, scale={scale:g})"),
-))
-
 
 # --------------------------------------------------------------------------
 # a validated prior
