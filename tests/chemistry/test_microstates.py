@@ -71,7 +71,7 @@ def test_binding_polynomial_of_independent_sites_matches_numpy_poly():
 
 
 def test_aryl_protonated_alkyl_free_microstate_negligible():
-    # Common practice (DOMAIN.md section 2): anilinium-type site pKa 4.6 and
+    # Common practice: anilinium-type site pKa 4.6 and
     # benzylammonium-type site 9.3 (CRC Handbook, aqueous 25 C, from memory);
     # the microstate with the aryl site protonated and the alkyl site free is
     # negligible (below 1e-4 of the total) at every pH from 0 to 14.

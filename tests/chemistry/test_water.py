@@ -33,7 +33,7 @@ def test_iapws_vectorised():
 
 
 def test_pkw_at_25_c():
-    # pKw = 13.995 at 25 C and 0.1 MPa (IAPWS R11-07; DOMAIN.md section 2)
+    # pKw = 13.995 at 25 C and 0.1 MPa (IAPWS R11-07, Bandura and Lvov, J. Phys. Chem. Ref. Data 2006, 35, 15)
     assert water.pkw(298.15) == pytest.approx(13.995, abs=1e-3)
     assert water.ion_product(298.15) == pytest.approx(10 ** -13.995, rel=3e-3)
 

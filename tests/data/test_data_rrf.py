@@ -1,6 +1,6 @@
 """Area% -> mole fractions through relative response factors.
 
-Source: DOMAIN.md section 5 and the standard response-factor correction
+Source: the standard response-factor correction
 (Snyder, Kirkland and Dolan, "Introduction to Modern Liquid Chromatography",
 3rd ed., 2010, ch. 11): mole fraction_i = (A_i / RRF_i) / sum_j (A_j / RRF_j).
 The expected numbers are worked by hand in the comments.

@@ -6,7 +6,8 @@ of site i, the substrate decays as exp(-tau (k1 f1 + k2 f2)) and the two mono
 products form in the fixed ratio k1 f1 : k2 f2 (parallel first-order
 reactions; analytic solution, e.g. Atkins and de Paula, "Physical Chemistry",
 parallel reactions).  Far below both pKa values the ratio of rates is
-(k2/k1) 10^(pKa1 - pKa2) (DOMAIN.md section 3).
+(k2/k1) 10^(pKa1 - pKa2), since f_i is proportional to 10^(pH - pKa_i) there
+(Henderson-Hasselbalch limit of each site's free fraction).
 
 Parameters (columns of a draw): log10 k1, log10 k2, pKa1, pKa2, log10 tau.
 All numbers are invented.

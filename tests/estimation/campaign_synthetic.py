@@ -10,7 +10,8 @@ model the objective documents (an absolute and a relative part):
 
     y_obs = y_true + N(0, sqrt(a^2 + (r * y_true)^2))
 
-Area% of compound i: 100 n_i RRF_i / sum_j n_j RRF_j (DOMAIN.md section 5).
+Area% of compound i: 100 n_i RRF_i / sum_j n_j RRF_j (response-factor correction,
+Snyder, Kirkland and Dolan, "Introduction to Modern Liquid Chromatography", 3rd ed., 2010, ch. 11).
 Values below the LOQ are reported censored ("<LOQ").  Held-pH runs also get a
 titrant log with noise sd sqrt((0.005 max)^2 + (0.01 y)^2), the objective's
 default titrant error model.

@@ -67,9 +67,10 @@ def test_recovery_precision_low_noise():
 
 def test_undetermined_parameter_has_open_profile():
     # Hydroxide path of reagent hydrolysis with runs only at pH 5 and 6: k_OH [OH-] is below 2e-6 1/s for
-    # any k_OH up to about 20 L/(mol*s), against 3e-4 1/s for water (DOMAIN.md section 3: k_hyd = k_w +
-    # k_OH [OH-]); nothing in the data pins log10 k_OH down from below.  Raue et al. 2009: a profile that
-    # never reaches the threshold is an open (non-identifiable) interval and must not be reported as a number.
+    # any k_OH up to about 20 L/(mol*s), against 3e-4 1/s for water (k_hyd = k_w + k_OH [OH-],
+    # the usual rate law of hydrolysis by water and hydroxide); nothing in the data pins log10 k_OH down
+    # from below.  Raue et al. 2009: a profile that never reaches the threshold is an open
+    # (non-identifiable) interval and must not be reported as a number.
     model = small_model(fit_pka=False, fit_kb=False, fit_hydrolysis_oh=True, setpoints=(5.0, 6.0))
     campaign = synthetic_campaign(model, model.runs, {"log10k[acyl_a]": 1.0}, SAMPLE_TIMES, SMALL_COMPOUNDS,
                                   seed=7)

@@ -49,7 +49,7 @@ def test_parameter_order_and_start(objective):
 def test_kernel_inputs_maps_pka_shift_onto_base(objective):
     q, offsets, factors = objective.kernel_inputs(np.array([[0.3, 1.2, -0.4], [-0.5, 0.1, 0.2]]))
     names = objective.compiled.quantity_names
-    # a pKa shift adds to the file value 5.2 (DOMAIN.md section 2: fitted shifts of aqueous pKa)
+    # a pKa shift adds to the file value 5.2 (the model file's rule: a fitted shift of the aqueous pKa)
     np.testing.assert_allclose(q[:, names.index("pKa[S.N_b]")], [5.5, 4.7], rtol=0, atol=1e-12)
     # rate constants replace the file value (log10 scale)
     np.testing.assert_allclose(q[:, names.index("log10k[acyl_a]")], [1.2, 0.1], rtol=0, atol=1e-12)
@@ -62,7 +62,7 @@ def test_kernel_inputs_maps_pka_shift_onto_base(objective):
 
 
 def test_area_percent_equals_hand_calculation(model, objective):
-    # Area% of compound i = 100 n_i RRF_i / sum_j n_j RRF_j (DOMAIN.md section 5; Snyder, Kirkland and
+    # Area% of compound i = 100 n_i RRF_i / sum_j n_j RRF_j (Snyder, Kirkland and
     # Dolan, "Introduction to Modern Liquid Chromatography", 3rd ed., 2010, ch. 11), computed here by hand
     # from the simulated amounts of one sample (run ph7_0, 15 min).
     pred = objective.predict_batch(THETA_TRUE[None, :])

@@ -11,7 +11,8 @@ from speciakin.simulation import simulate
 
 
 def _reference(pka_alk, pka_ar, w, lk_alk, lk_ar, lk_w, lk_oh, ph, pkw, times):
-    """numpy right-hand side written here from DOMAIN.md sections 2-3, integrated with
+    """numpy right-hand side written here from the site-binding speciation and the
+    site-specific rate law r_i = k_i [S] f_i(pH) [E] (f_i: free fraction of site i), integrated with
     scipy.integrate.solve_ivp (Radau, rtol 1e-10), the general-purpose reference."""
     lw = np.array([0.0, pka_alk - ph, pka_ar - ph, pka_alk + pka_ar - 2 * ph - w])
     pop = 10.0 ** (lw - lw.max())

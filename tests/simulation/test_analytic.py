@@ -121,7 +121,7 @@ def test_pkw_iapws_check_values(temperature, rho, expected):
 
 
 def test_pkw_at_25c_and_kell_density():
-    # pKw = 13.995 at 25 C, 0.1 MPa (IAPWS R11-07, cited in DOMAIN.md);
+    # pKw = 13.995 at 25 C, 0.1 MPa (IAPWS R11-07, Bandura and Lvov, J. Phys. Chem. Ref. Data 2006, 35, 15);
     # density 997.047 kg/m3 at 25 C (Kell 1975; CRC Handbook, from memory).
     assert abs(pkw(298.15) - 13.995) < 1.5e-3
     assert abs(water_density(298.15) - 0.997047) < 5e-6

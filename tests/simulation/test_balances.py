@@ -119,7 +119,7 @@ def test_held_titrant_counts_released_acid_and_speciation_shift():
 
 def test_competition_ratio_at_held_ph():
     # two sites, no double reaction, reagent charged at once: d[Pa]/d[Pb] =
-    # (k_a f_a)/(k_b f_b) at all times (DOMAIN.md section 3), so the ratio of the
+    # (k_a f_a)/(k_b f_b) at all times (parallel reactions with a common reagent), so the ratio of the
     # products is that constant.
     ph = 6.0
     model = two_site_model(double=False)
