@@ -65,23 +65,10 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
 
 def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> Path:
     """Write ``data`` to ``path`` atomically; returns the path."""
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as handle:
+    with atomic_path(path) as tmp:
+        with os.fdopen(os.open(tmp, os.O_WRONLY | os.O_TRUNC), "wb") as handle:
             handle.write(data)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.chmod(tmp, _default_mode())
-        os.replace(tmp, target)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    return target
+    return Path(path)
 
 
 def atomic_write_text(path: str | os.PathLike, text: str) -> Path:

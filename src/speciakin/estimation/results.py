@@ -50,6 +50,17 @@ def _dec(value: Any) -> Any:
     return value
 
 
+def _field_dict(record: Any) -> dict[str, Any]:
+    """Every dataclass field of ``record``, JSON-ready (:func:`_enc`)."""
+    return {f.name: _enc(getattr(record, f.name)) for f in fields(record)}
+
+
+def _with_warnings(lines: list[str], warnings: list[str]) -> str:
+    """Report text: ``lines`` and a "Warnings" heading with one line per warning (or "none")."""
+    lines = lines + ["", "Warnings", "--------"] + ([f"- {w}" for w in warnings] or ["none"])
+    return "\n".join(lines) + "\n"
+
+
 def _fmt(value: float | None, digits: int = 6) -> str:
     if value is None:
         return "-"
@@ -82,7 +93,7 @@ class ParameterEstimate:
     profile_open_above: bool | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {f.name: _enc(getattr(self, f.name)) for f in fields(self)}
+        return _field_dict(self)
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "ParameterEstimate":
@@ -110,7 +121,7 @@ class StartRecord:
     distance_from_best: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {f.name: _enc(getattr(self, f.name)) for f in fields(self)}
+        return _field_dict(self)
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "StartRecord":
@@ -260,9 +271,7 @@ class FitResult:
             mark = "*" if s.index == self.best_start else " "
             lines.append(f"{s.index:>3}{mark}{s.status[:43]:<44}{_fmt(s.chisqr, 9):>16}"
                          f"{_fmt(s.distance_from_best, 3):>11}{s.n_evaluations:>7}")
-        lines += ["", "Warnings", "--------"]
-        lines += [f"- {w}" for w in self.warnings] or ["none"]
-        return "\n".join(lines) + "\n"
+        return _with_warnings(lines, self.warnings)
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {}
@@ -343,12 +352,10 @@ class Profile:
                  f"interval: [{lo}, {hi}]", "", "Points", "------",
                  f"{'value':>16}{'delta chi-square':>20}"]
         lines += [f"{_fmt(v, 8):>16}{_fmt(d, 5):>20}" for v, d in zip(self.values, self.delta_chisqr)]
-        lines += ["", "Warnings", "--------"]
-        lines += [f"- {w}" for w in self.warnings] or ["none"]
-        return "\n".join(lines) + "\n"
+        return _with_warnings(lines, self.warnings)
 
     def to_dict(self) -> dict[str, Any]:
-        return {f.name: _enc(getattr(self, f.name)) for f in fields(self)}
+        return _field_dict(self)
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "Profile":
@@ -385,12 +392,10 @@ class ComparisonResult:
             lines.append(f"{name:<20}{self.n_parameters[k]:>4}{_fmt(self.chisqr[k], 6):>14}"
                          f"{self.aic[k]:>12.3f}{self.delta_aic[k]:>9.3f}{self.akaike_weights[k]:>9.4f}"
                          f"{self.bic[k]:>12.3f}{self.delta_bic[k]:>9.3f}{self.bic_weights[k]:>9.4f}")
-        lines += ["", "Warnings", "--------"]
-        lines += [f"- {w}" for w in self.warnings] or ["none"]
-        return "\n".join(lines) + "\n"
+        return _with_warnings(lines, self.warnings)
 
     def to_dict(self) -> dict[str, Any]:
-        return {f.name: _enc(getattr(self, f.name)) for f in fields(self)}
+        return _field_dict(self)
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "ComparisonResult":

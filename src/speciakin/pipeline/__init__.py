@@ -31,17 +31,8 @@ run          run_all (the whole job) and load_results (an output folder)
 from speciakin.pipeline.inputs import Inputs, load_inputs, resolve_inputs
 from speciakin.pipeline.outputs import RESULT_FILES
 from speciakin.pipeline.run import STEPS, Renderer, Results, load_results, run_all
-from speciakin.pipeline.steps import (
-    Cancelled,
-    Progress,
-    check_step,
-    fit_step,
-    make_objective,
-    predict_step,
-    sample_step,
-    window_step,
-    window_text,
-)
+from speciakin.pipeline.steps import (Cancelled, Progress, check_step, fit_step, make_objective, predict_step,
+                                      sample_step, window_step, window_text)
 
 __all__ = [
     "Inputs", "resolve_inputs", "load_inputs", "RESULT_FILES", "STEPS", "Renderer", "Results", "run_all",

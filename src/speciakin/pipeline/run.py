@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Protocol
+from typing import TYPE_CHECKING, Any, Callable, Protocol
 
 from speciakin.errors import DataError, InputError, Location
 from speciakin.pipeline import outputs
@@ -30,6 +30,17 @@ from speciakin.pipeline.steps import (
     window_step,
     window_text,
 )
+
+if TYPE_CHECKING:
+    from speciakin.chemistry.model import Model
+    from speciakin.data.campaign import Campaign
+    from speciakin.data.validate import CheckReport
+    from speciakin.decision.process_plan import ProcessPlan
+    from speciakin.decision.result import WindowResult
+    from speciakin.estimation.sampling import PosteriorResult
+    from speciakin.pipeline.fit import CampaignFitResult
+    from speciakin.pipeline.objective import CampaignObjective
+    from speciakin.pipeline.predictions import PredictionSet
 
 __all__ = ["Results", "Renderer", "run_all", "load_results", "STEPS"]
 
@@ -50,36 +61,23 @@ class Renderer(Protocol):
 
 @dataclass
 class Results:
-    """Inputs and every result of a campaign; a step that has not run leaves None.
+    """Inputs and every result of a campaign; a step that has not run leaves None."""
 
-    Attributes
-    ----------
-    model, campaign, process
-        The loaded inputs (process None without a process file).
-    inputs
-        Their paths (:class:`~speciakin.pipeline.inputs.Inputs`), or None.
-    objective
-        :class:`~speciakin.pipeline.objective.CampaignObjective` of model and campaign.
-    check, fit, posterior, window
-        CheckReport, CampaignFitResult, PosteriorResult, WindowResult.
-    predictions
-        :class:`~speciakin.pipeline.predictions.PredictionSet` (curves, bands, fitted values).
-    report
-        {format: path} of the rendered report.
-    timings
-        Wall time of each step [s].
-    """
-
-    model: Any
-    campaign: Any
-    process: Any = None
+    #: The loaded inputs (process None without a process file) and their paths.
+    model: Model
+    campaign: Campaign
+    process: ProcessPlan | None = None
     inputs: Inputs | None = None
-    objective: Any = None
-    check: Any = None
-    fit: Any = None
-    posterior: Any = None
-    window: Any = None
-    predictions: Any = None
+    #: Model + campaign -> residuals and likelihood (what every step evaluates).
+    objective: CampaignObjective | None = None
+    #: The results of the steps.
+    check: CheckReport | None = None
+    fit: CampaignFitResult | None = None
+    posterior: PosteriorResult | None = None
+    window: WindowResult | None = None
+    #: Curves, bands and fitted values for the report and figures.
+    predictions: PredictionSet | None = None
+    #: {format: path} of the rendered report, and the wall time of each step [s].
     report: dict[str, Path] = field(default_factory=dict)
     timings: dict[str, float] = field(default_factory=dict)
 

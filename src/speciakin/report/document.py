@@ -20,6 +20,7 @@ from typing import Any, Iterator, Mapping
 
 from speciakin import __version__
 from speciakin.errors import InputError, Location
+from speciakin.report import blocks as _blocks
 from speciakin.report.blocks import (
     BLOCK_TYPES,
     CALLOUT_KINDS,
@@ -39,25 +40,9 @@ from speciakin.report.blocks import (
     slugify,
 )
 
-__all__ = [
-    "CALLOUT_KINDS",
-    "BLOCK_TYPES",
-    "Cell",
-    "Paragraph",
-    "KeyValues",
-    "Table",
-    "Figure",
-    "Callout",
-    "BulletList",
-    "Section",
-    "ReportDocument",
-    "format_cell",
-    "slugify",
-    "PNG_SIGNATURE",
-    "RESERVED_ANCHORS",
-    "save_document",
-    "load_document",
-]
+#: The document's own names, and the block names re-exported from :mod:`speciakin.report.blocks`.
+__all__ = ["Section", "ReportDocument", "save_document", "load_document",
+           *(name for name in _blocks.__all__ if name != "Block")]
 
 
 @dataclass

@@ -69,11 +69,5 @@ def html_text(doc: ReportDocument) -> str:
 
 
 def render_html(doc: ReportDocument, path: str | os.PathLike) -> Path:
-    """Write ``doc`` as one self-contained HTML file at ``path`` (atomically).
-
-    Returns
-    -------
-    pathlib.Path
-        The written file.
-    """
+    """Write ``doc`` as one self-contained HTML file at ``path`` (atomically); returns the path."""
     return atomic_write_text(path, html_text(doc))

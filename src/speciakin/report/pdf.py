@@ -327,11 +327,5 @@ def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
 
 
 def render_pdf(doc: ReportDocument, path: str | os.PathLike) -> Path:
-    """Write ``doc`` as an A4 PDF at ``path`` (atomically).
-
-    Returns
-    -------
-    pathlib.Path
-        The written file.
-    """
+    """Write ``doc`` as an A4 PDF at ``path`` (atomically); returns the path."""
     return atomic_write_bytes(path, pdf_bytes(doc))

@@ -160,11 +160,5 @@ def xlsx_bytes(doc: ReportDocument) -> bytes:
 
 
 def render_xlsx(doc: ReportDocument, path: str | os.PathLike) -> Path:
-    """Write ``doc`` as an XLSX workbook at ``path`` (atomically).
-
-    Returns
-    -------
-    pathlib.Path
-        The written file.
-    """
+    """Write ``doc`` as an XLSX workbook at ``path`` (atomically); returns the path."""
     return atomic_write_bytes(path, xlsx_bytes(doc))

@@ -58,6 +58,22 @@ def to_png(fig: Figure, dpi: int = DPI) -> bytes:
     return buffer.getvalue()
 
 
+def finish_with_legend(fig: Figure, ax: Any, x_label: str, y_label: str, title: str = "",
+                       band_label: str | None = None) -> bytes:
+    """Label the axes, add the title, a legend entry for a grey band (when
+    ``band_label``) and the legend right of the axes; PNG bytes of ``fig``."""
+    from speciakin.palette import NEUTRAL
+
+    if band_label:
+        ax.fill_between([], [], [], color=NEUTRAL, alpha=0.18, linewidth=0, label=band_label)
+    ax.set_xlabel(x_label)
+    ax.set_ylabel(y_label)
+    if title:
+        ax.set_title(title)
+    ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), frameon=False)
+    return to_png(fig)
+
+
 def as_array(values: Any, name: str, ndim: int = 1, allow_nan: bool = True) -> np.ndarray:
     """``values`` as a float array of ``ndim`` dimensions, or an InputError naming ``name``."""
     try:

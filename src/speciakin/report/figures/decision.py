@@ -14,7 +14,8 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
-from speciakin.report.figures._style import DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
+from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
+                                             new_figure, same_length, to_png)
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
 __all__ = ["probability_vs_ph_figure", "outcomes_vs_ph_figure", "probability_map_figure"]
@@ -131,14 +132,8 @@ def outcomes_vs_ph_figure(
                 ax.axhline(float(bound), color=style.color, linestyle=":", linewidth=1.2)
     if limits:
         ax.plot([], [], color=NEUTRAL, linestyle=":", label="specification limit")
-    if low and high:
-        ax.fill_between([], [], [], color=NEUTRAL, alpha=0.18, linewidth=0, label="5-95 % band")
-    ax.set_xlabel("pH [-]")
-    ax.set_ylabel(f"{value_label} [{value_unit}]")
-    if title:
-        ax.set_title(title)
-    ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), frameon=False)
-    return to_png(fig)
+    return finish_with_legend(fig, ax, "pH [-]", f"{value_label} [{value_unit}]", title,
+                              "5-95 % band" if low and high else None)
 
 
 def probability_map_figure(

@@ -7,7 +7,8 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
-from speciakin.report.figures._style import DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
+from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
+                                             new_figure, same_length, to_png)
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
 __all__ = ["time_course_figure", "residuals_figure", "titrant_figure"]
@@ -91,14 +92,8 @@ def time_course_figure(
             ax.plot(t[cens], np.full(int(cens.sum()), float(level)), linestyle="none", marker="v",
                     markersize=5.5, markerfacecolor="none", markeredgecolor=style.color,
                     label=f"{name} <LOQ")
-    if band_low and band_high:
-        ax.fill_between([], [], [], color=NEUTRAL, alpha=0.18, linewidth=0, label=band_label)
-    ax.set_xlabel(f"time [{time_unit}]")
-    ax.set_ylabel(f"{value_label} [{value_unit}]")
-    if title:
-        ax.set_title(title)
-    ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), frameon=False)
-    return to_png(fig)
+    return finish_with_legend(fig, ax, f"time [{time_unit}]", f"{value_label} [{value_unit}]", title,
+                              band_label if band_low and band_high else None)
 
 
 def residuals_figure(
