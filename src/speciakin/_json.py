@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["json_ready", "dumps", "format_tag", "nan_from_null"]
+__all__ = ["json_ready", "dumps", "format_tag", "nan_from_null", "finite_or_none"]
 
 
 def json_ready(value: Any) -> Any:
@@ -34,6 +34,12 @@ def json_ready(value: Any) -> Any:
     if isinstance(value, PurePath):
         return str(value)
     return value
+
+
+def finite_or_none(value: Any) -> float | None:
+    """A number as float, or None when it is NaN or infinite (table cells, JSON)."""
+    value = float(value)
+    return value if math.isfinite(value) else None
 
 
 def dumps(value: Any, indent: int | None = 1) -> str:

@@ -9,32 +9,18 @@ its images.
 
 from __future__ import annotations
 
-import dataclasses
 import json
-import re
 from html.parser import HTMLParser
 
 import pytest
 
+from pipeline.regression_case import build_reduced_demo
 from speciakin.cli.main import main
-from speciakin.data import load_campaign, write_campaign
-from speciakin.demo import demo_dir
 
 
 @pytest.fixture(scope="module")
 def reduced_demo(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("reduced")
-    demo = demo_dir()
-    campaign = load_campaign(demo)
-    keep = [r for r in campaign.runs if r.recipe.ph.mode == "held"][:3]
-    write_campaign(dataclasses.replace(campaign, runs=tuple(keep)), folder / "campaign.xlsx")
-    (folder / "model.toml").write_text((demo / "model.toml").read_text())
-    process = (demo / "process.toml").read_text()
-    process = re.sub(r"ph_step = [0-9.]+", "ph_step = 0.5", process)
-    process = re.sub(r"draws = [0-9]+", "draws = 16", process)
-    process = re.sub(r"\[scan\.second_factor\]\n(?:[a-z_]+ = [^\n]*\n)+", "", process)
-    (folder / "process.toml").write_text(process)
-    return folder
+    return build_reduced_demo(tmp_path_factory.mktemp("reduced"))
 
 
 class _ImageCollector(HTMLParser):

@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from speciakin._json import finite_or_none
 from speciakin.errors import InputError, Location
 
 __all__ = ["PredictionSet", "RunPrediction", "Observation", "predict", "with_band", "CURVE_POINTS",
@@ -148,10 +149,6 @@ def _value_axis(objective: Any, run_index: int) -> tuple[str, str]:
     return "concentration", "mol/L"
 
 
-def _num(x: float) -> float | None:
-    return float(x) if np.isfinite(x) else None
-
-
 def _observations(objective: Any, theta: np.ndarray | None, keys: dict[str, str]) -> list[Observation]:
     n = objective.n_data
     if theta is None:
@@ -168,14 +165,14 @@ def _observations(objective: Any, theta: np.ndarray | None, keys: dict[str, str]
         rows.append(Observation(
             objective.run_names[ri], float(objective.output_times[ri][objective.h_t[i]] / _SECONDS_PER_MINUTE),
             compound, keys.get(compound, compound), None if cens else float(objective.h_obs[i]), cens,
-            _num(objective.h_loq[i]), _num(fitted[i]), _num(residual[i]), _value_axis(objective, ri)[1]))
+            finite_or_none(objective.h_loq[i]), finite_or_none(fitted[i]), finite_or_none(residual[i]), _value_axis(objective, ri)[1]))
     for j in range(objective.n_titrant):
         ri = int(objective.t_run[j])
         k = objective.n_hplc + j
         rows.append(Observation(
             objective.run_names[ri], float(objective.output_times[ri][objective.t_t[j]] / _SECONDS_PER_MINUTE),
             "titrant consumed", "titrant", float(objective.t_obs[j]) * _MMOL_PER_MOL, False, None,
-            _num(fitted[k] * _MMOL_PER_MOL), _num(residual[k]), "mmol", titrant=True))
+            finite_or_none(fitted[k] * _MMOL_PER_MOL), finite_or_none(residual[k]), "mmol", titrant=True))
     return rows
 
 

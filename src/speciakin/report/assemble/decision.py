@@ -18,8 +18,9 @@ from typing import Any
 
 import numpy as np
 
-from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
+from speciakin._json import finite_or_none
 from speciakin.palette import SpeciesColors
+from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
 
 __all__ = ["decision_summary_section", "window_section", "window_table", "window_centre_outcomes",
            "format_interval", "specification_limits", "process_block"]
@@ -151,8 +152,8 @@ def window_table(window: Any) -> Table | None:
     rows = []
     for k, x in enumerate(np.asarray(window.ph, float)):
         in_robust = any(lo - 1e-9 <= x <= hi + 1e-9 for lo, hi in robust)
-        rows.append([float(x), _num(window.probability[k]), _num(window.probability_standard_error[k]),
-                     _num(window.worst_case_probability[k]), _num(window.robust_probability_per_draw[k]),
+        rows.append([float(x), finite_or_none(window.probability[k]), finite_or_none(window.probability_standard_error[k]),
+                     finite_or_none(window.worst_case_probability[k]), finite_or_none(window.robust_probability_per_draw[k]),
                      in_robust])
     return Table("pH window scan", ["pH", "probability", "MC standard error", "worst case over drift",
                                     "per-draw robust probability", "robust set point"], rows,
@@ -160,11 +161,6 @@ def window_table(window: Any) -> Table | None:
                  sheet_name="window",
                  note=f"Probability that every specification is met (level {window.level:g}, pH tolerance "
                       f"+/- {window.tolerance:g}); {window.n_draws} draws from the {window.uncertainty_source}.")
-
-
-def _num(x: Any) -> float | None:
-    x = float(x)
-    return x if np.isfinite(x) else None
 
 
 def process_block(process: Any) -> KeyValues | Paragraph:
