@@ -172,7 +172,7 @@ def demo_objective() -> None:
     """Time the campaign objective of the bundled (invented) demo campaign."""
     from pathlib import Path
 
-    from speciakin.pipeline.steps import load_inputs, make_objective, resolve_inputs
+    from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
 
     folder = Path(__file__).resolve().parents[1] / "data_templates" / "demo"
     if not folder.exists():

@@ -28,7 +28,7 @@ def main() -> None:
     parser.add_argument("--walkers", type=int, default=32)
     args = parser.parse_args()
 
-    from speciakin import pipeline as workflow
+    from speciakin import pipeline
     from speciakin.pipeline.window import COVARIANCE, window_for_campaign
     from speciakin.decision.draws import draws_from_covariance
     from speciakin.demo import demo_dir
@@ -36,9 +36,9 @@ def main() -> None:
     from speciakin.pipeline.posterior import proposal_covariance_from_fit, sample_campaign
 
     folder = demo_dir()
-    inputs = workflow.resolve_inputs(folder)
-    model, campaign, process = workflow.load_inputs(inputs)
-    objective = workflow.make_objective(model, campaign)
+    inputs = pipeline.resolve_inputs(folder)
+    model, campaign, process = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
     print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f}")
     objective.log_likelihood_batch(np.repeat(objective.start[None, :], 2, axis=0))  # compile / warm up
 

@@ -89,3 +89,10 @@ def test_loaders_name_a_broken_file(tmp_path):
     with pytest.raises(Exception, match="window.json|not valid JSON"):
         outputs.load_window(tmp_path)
     assert outputs.load_fit(tmp_path) is None
+
+
+def test_former_module_name_still_imports():
+    import speciakin.workflow as former
+    from speciakin import pipeline
+
+    assert former.run_all is pipeline.run_all and former.load_results is pipeline.load_results

@@ -16,7 +16,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from speciakin._json import dumps
+from speciakin._json import dumps, format_tag
 from speciakin.estimation.leastsq import fit_least_squares
 from speciakin.estimation.profile import profile_all
 from speciakin.estimation.results import FitResult, Profile
@@ -149,7 +149,7 @@ class CampaignFitResult:
         f = self.fit
         order = [f.varying_names.index(k) for k in self.keys]
         return {
-            "schema": "speciakin.fit/1",
+            "schema": format_tag("fit", 1),
             "model": self.model_source, "campaign": self.campaign_source,
             "parameters": self.rows(),
             "statistics": {"chi_square": f.chisqr, "reduced_chi_square": f.reduced_chisqr, "aic": f.aic,
