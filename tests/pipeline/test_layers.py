@@ -131,3 +131,16 @@ def test_no_import_cycle():
     # from a module to the packages that contain it
     graph = {m: {d for d in deps if d not in package_parents(m)} for m, deps in graph.items()}
     assert cycles(graph) == []
+
+
+def test_the_report_only_renders():
+    """No report module reads the objective's arrays or runs the model (they come as predictions)."""
+    forbidden = {"h_run", "h_t", "h_cens", "h_obs", "h_loq", "h_compound", "t_run", "t_t", "t_obs",
+                 "output_times", "curves_batch", "predict_batch", "residuals", "residuals_batch",
+                 "log_likelihood_batch", "simulate", "simulate_batch"}
+    found = []
+    for path in (SRC / "speciakin" / "report").rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Attribute) and node.attr in forbidden:
+                found.append(f"{path.name}:{node.lineno} .{node.attr}")
+    assert not found, "\n".join(found)
