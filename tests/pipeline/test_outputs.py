@@ -96,3 +96,14 @@ def test_former_module_name_still_imports():
     from speciakin import pipeline
 
     assert former.run_all is pipeline.run_all and former.load_results is pipeline.load_results
+
+
+def test_a_checkpoint_of_the_earlier_tag_still_resumes(tmp_path):
+    import h5py
+
+    path = tmp_path / "posterior.h5"
+    run(path, 30)
+    with h5py.File(path, "a") as fh:
+        fh.attrs["format"] = "speciakin-ensemble-checkpoint-1"
+    resumed = run(path, 60, resume=True)
+    np.testing.assert_array_equal(resumed.chain, run(tmp_path / "straight.h5", 60).chain)

@@ -40,6 +40,8 @@ __all__ = ["Checkpoint", "write_checkpoint", "read_checkpoint", "CHECKPOINT_FORM
 
 #: Format tag stored in every posterior file; bumped on incompatible change.
 CHECKPOINT_FORMAT = format_tag("posterior", 1)
+#: Tags of earlier files with the same layout (read, so that an interrupted run still resumes).
+EARLIER_FORMATS = ("speciakin-ensemble-checkpoint-1",)
 
 
 @dataclass
@@ -114,7 +116,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
         raise InputError("checkpoint file not found", where, None, "an existing checkpoint to resume")
     try:
         with h5py.File(path, "r") as fh:
-            if fh.attrs.get("format") != CHECKPOINT_FORMAT:
+            if fh.attrs.get("format") not in (CHECKPOINT_FORMAT, *EARLIER_FORMATS):
                 raise InputError("not a sampler checkpoint", where, fh.attrs.get("format"),
                                  f"format {CHECKPOINT_FORMAT}")
             settings = json.loads(fh.attrs["settings"])
