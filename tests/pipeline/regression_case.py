@@ -2,9 +2,11 @@
 
 Reduced = the first three runs held at constant pH, two least-squares starts
 with profiles, 16 window draws from the fit's covariance on a coarse pH grid.
-:func:`produce` runs ``speciakin fit`` and ``speciakin window`` on it and
-returns ``fit.json`` and ``window.json`` without the entries that change from
-run to run (wall times, paths, command line, software version).
+:func:`produce` runs ``speciakin fit``, ``speciakin window`` and ``speciakin
+report`` on it and returns ``fit.json`` and ``window.json`` without the
+entries that change from run to run (wall times, paths, command line,
+software version), and the report's numbers: every table sheet of
+``report.xlsx`` (parameters, intervals, correlation, observations, window).
 
 The stored copy lives in ``tests/pipeline/baseline/``; regenerate it after an
 intended change of numbers with::
@@ -20,7 +22,7 @@ import re
 from pathlib import Path
 
 BASELINE = Path(__file__).resolve().parent / "baseline"
-RESULT_FILES = ("fit.json", "window.json")
+RESULT_FILES = ("fit.json", "window.json", "report_tables.json")
 # entries that depend on the machine, the folder or the clock, not on the numbers
 VOLATILE = {"elapsed_s", "command", "software_version", "model", "campaign", "elapsed", "timings",
             "process_file"}
@@ -61,11 +63,23 @@ def produce(work: Path) -> dict[str, object]:
     case = build_reduced_demo(work / "case")
     out = work / "out"
     for argv in (["fit", str(case), "--out", str(out), "--starts", "2", "--seed", "3", "--quiet"],
-                 ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"]):
+                 ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"],
+                 ["report", str(out), "--formats", "xlsx"]):
         code = main(argv)
         if code != 0:
             raise RuntimeError(f"speciakin {argv[0]} failed with exit code {code}")
-    return {name: strip_volatile(json.loads((out / name).read_text())) for name in RESULT_FILES}
+    found = {name: strip_volatile(json.loads((out / name).read_text())) for name in RESULT_FILES[:2]}
+    found["report_tables.json"] = report_tables(out / "report.xlsx")
+    return found
+
+
+def report_tables(path: Path) -> dict[str, list[list[object]]]:
+    """Every table sheet of a report workbook (the summary sheet, with dates and hashes, left out)."""
+    from openpyxl import load_workbook
+
+    workbook = load_workbook(path, read_only=True)
+    return {name: [list(row) for row in workbook[name].iter_rows(values_only=True)]
+            for name in workbook.sheetnames[1:]}
 
 
 def write_baseline(work: Path) -> list[Path]:
