@@ -14,7 +14,7 @@ from html.parser import HTMLParser
 
 import pytest
 
-from pipeline.regression_case import build_reduced_demo
+from pipeline.regression_case import build_reduced_demo, report_tables
 from speciakin.cli.main import main
 
 
@@ -66,6 +66,14 @@ def test_run_produces_every_output(reduced_demo, tmp_path):
     values = [c for row in sheet.iter_rows(values_only=True) for c in row]
     assert "log10k[acylation_aryl]" in values
     assert any(isinstance(v, float) for v in values)
+
+    # the report command renders the same folder through the same pipeline functions: the posterior
+    # is read back from posterior.h5 (checkpoint and result in one file), and the tables are the same
+    first = report_tables(out / "report.xlsx")
+    (out / "report.xlsx").unlink()
+    assert main(["report", str(out), "--formats", "xlsx"]) == 0
+    assert report_tables(out / "report.xlsx") == first
+    assert "credible 2.5 %" in first["parameters"][0]
 
 
 def test_run_stops_at_the_failing_step(reduced_demo, tmp_path, capsys):
