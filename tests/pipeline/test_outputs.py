@@ -107,3 +107,16 @@ def test_a_checkpoint_of_the_earlier_tag_still_resumes(tmp_path):
         fh.attrs["format"] = "speciakin-ensemble-checkpoint-1"
     resumed = run(path, 60, resume=True)
     np.testing.assert_array_equal(resumed.chain, run(tmp_path / "straight.h5", 60).chain)
+
+
+def test_window_inside_a_wrapper_is_read(tmp_path):
+    from speciakin.decision import compute_window
+    from speciakin.decision.specs import Specification
+
+    def outcomes(draws, ph, factor=None):  # invented closed form: outcome = 10 * pH for every draw
+        return np.broadcast_to(10.0 * np.asarray(ph)[None, :, None], (draws.shape[0], len(ph), 1)).copy()
+
+    window = compute_window(outcomes, np.zeros((8, 1)), np.linspace(6.0, 8.0, 5),
+                            [Specification("percent", ("X",), ">=", 65.0)], outcome_names=["X"])
+    outputs.write_json(tmp_path / "window.json", {"window": window.to_dict()})
+    assert outputs.load_window(tmp_path).windows == window.windows

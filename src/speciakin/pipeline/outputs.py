@@ -184,13 +184,16 @@ def save_window(folder: Path, window: Any, command: str | None = None) -> None:
 
 
 def load_window(folder: Path) -> Any | None:
-    """The :class:`~speciakin.decision.result.WindowResult` of ``folder``, or None."""
+    """The :class:`~speciakin.decision.result.WindowResult` of ``folder``, or None
+    (a ``{"window": {...}}`` wrapper is accepted)."""
     path = result_path(folder, "window")
     if not path.is_file():
         return None
     from speciakin.decision.result import WindowResult
 
     data = read_json(path, "window result")
+    if "level" not in data and isinstance(data.get("window"), dict):  # a {"window": {...}} wrapper
+        data = data["window"]
     try:
         return WindowResult.from_dict(data)
     except (KeyError, TypeError, ValueError, IndexError) as exc:
