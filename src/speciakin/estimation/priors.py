@@ -12,6 +12,12 @@ Defaults used by the project (documented in docs/sampling.md):
 * log10 of a rate constant: ``uniform(lower, upper)`` within its bounds;
 * error scales: weakly informative ``halfnormal(scale=...)``.
 
+Bounds: a fitted quantity's model-file bounds truncate its prior
+(:meth:`PriorDistribution.truncated`): the log-density is -inf outside the
+bounds and is renormalised inside them (divided by the prior mass between
+the bounds, from the family's cumulative distribution function), so a
+walker can never leave the bounds and the density integrates to one.
+
 References
 ----------
 Gelman, A. et al., Bayesian Data Analysis, 3rd ed., CRC Press 2013,
@@ -41,6 +47,7 @@ __all__ = [
     "default_log10_rate_prior",
     "default_error_scale_prior",
     "joint_log_prior",
+    "truncate_prior",
 ]
 
 _LOG_2PI = math.log(2.0 * math.pi)
@@ -112,6 +119,17 @@ def student_t_log_density(x, degrees_of_freedom, mean, scale):
     return const - 0.5 * (nu + 1) * np.log1p(z * z / nu)
 
 
+def _lognormal_cdf(x, log_mean, log_sd):
+    x = np.asarray(x, dtype=float)
+    with np.errstate(divide="ignore"):
+        return np.where(x > 0, special.ndtr((np.log(np.maximum(x, 0.0)) - log_mean) / log_sd), 0.0)
+
+
+def _halfnormal_cdf(x, scale):
+    x = np.asarray(x, dtype=float)
+    return np.where(x > 0, special.erf(np.maximum(x, 0.0) / (scale * math.sqrt(2.0))), 0.0)
+
+
 # --------------------------------------------------------------------------
 # registry
 # --------------------------------------------------------------------------
@@ -140,6 +158,11 @@ class PriorFamily:
     cross_check
         Optional ``check(parameters) -> message | None`` for conditions that
         involve several parameters (e.g. lower < upper).
+    cdf
+        ``cdf(x, *parameters)`` -> cumulative probability (vectorised); used
+        to renormalise a prior truncated to bounds and to draw from it.
+    ppf
+        ``ppf(u, *parameters)`` -> quantile (inverse of ``cdf``).
     """
 
     name: str
@@ -150,6 +173,8 @@ class PriorFamily:
     support: Callable
     describe: Callable
     cross_check: Callable | None = None
+    cdf: Callable | None = None
+    ppf: Callable | None = None
 
 
 PRIOR_FAMILIES: dict[str, PriorFamily] = {}
@@ -182,6 +207,8 @@ register_prior_family(PriorFamily(
     draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
     support=lambda mean, sd: (-np.inf, np.inf),
     describe=lambda mean, sd: f"normal(mean={mean:g}, sd={sd:g})",
+    cdf=lambda x, mean, sd: special.ndtr((np.asarray(x, dtype=float) - mean) / sd),
+    ppf=lambda u, mean, sd: mean + sd * special.ndtri(u),
 ))
 
 register_prior_family(PriorFamily(
@@ -193,6 +220,8 @@ register_prior_family(PriorFamily(
     support=lambda log_mean, log_sd: (0.0, np.inf),
     describe=lambda log_mean, log_sd: (
         f"lognormal(log_mean={log_mean:g}, log_sd={log_sd:g}; median {math.exp(log_mean):.4g})"),
+    cdf=_lognormal_cdf,
+    ppf=lambda u, log_mean, log_sd: np.exp(log_mean + log_sd * special.ndtri(u)),
 ))
 
 register_prior_family(PriorFamily(
@@ -204,6 +233,8 @@ register_prior_family(PriorFamily(
     support=lambda lower, upper: (lower, upper),
     describe=lambda lower, upper: f"uniform(lower={lower:g}, upper={upper:g})",
     cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'",
+    cdf=lambda x, lower, upper: np.clip((np.asarray(x, dtype=float) - lower) / (upper - lower), 0.0, 1.0),
+    ppf=lambda u, lower, upper: lower + np.asarray(u, dtype=float) * (upper - lower),
 ))
 
 register_prior_family(PriorFamily(
@@ -214,6 +245,8 @@ register_prior_family(PriorFamily(
     draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
     support=lambda scale: (0.0, np.inf),
     describe=lambda scale: f"halfnormal(scale={scale:g})",
+    cdf=_halfnormal_cdf,
+    ppf=lambda u, scale: scale * math.sqrt(2.0) * special.erfinv(u),
 ))
 
 register_prior_family(PriorFamily(
@@ -225,6 +258,8 @@ register_prior_family(PriorFamily(
     support=lambda nu, mean, scale: (-np.inf, np.inf),
     describe=lambda nu, mean, scale: (
         f"student_t(degrees_of_freedom={nu:g}, mean={mean:g}, scale={scale:g})"),
+    cdf=lambda x, nu, mean, scale: special.stdtr(nu, (np.asarray(x, dtype=float) - mean) / scale),
+    ppf=lambda u, nu, mean, scale: mean + scale * special.stdtrit(nu, u),
 ))
 
 
@@ -234,13 +269,25 @@ register_prior_family(PriorFamily(
 
 @dataclass(frozen=True)
 class PriorDistribution:
-    """A validated prior: a registered family with its parameter values.
+    """A validated prior: a registered family with its parameter values,
+    optionally truncated to bounds.
 
-    Build it with :func:`build_prior`.  All methods are vectorised.
+    Build it with :func:`build_prior`; truncate it with :meth:`truncated`.
+    All methods are vectorised.
+
+    Attributes
+    ----------
+    family, parameters
+        Registry key and parameter values.
+    lower, upper
+        Truncation bounds on the parameter's scale (infinite = none): the
+        density is -inf outside and divided by the prior mass between them.
     """
 
     family: str
     parameters: Mapping[str, float] = field(default_factory=dict)
+    lower: float = -math.inf
+    upper: float = math.inf
 
     @property
     def _family(self) -> PriorFamily:
@@ -250,26 +297,92 @@ class PriorDistribution:
     def _values(self) -> tuple[float, ...]:
         return tuple(self.parameters[n] for n in self._family.parameter_names)
 
+    @property
+    def is_truncated(self) -> bool:
+        """True when finite bounds cut into the family's own support."""
+        lo, hi = self._family.support(*self._values)
+        return bool(self.lower > lo or self.upper < hi)
+
+    def _mass_bounds(self) -> tuple[float, float]:
+        """Cumulative probability of the family at the two bounds."""
+        cdf = self._family.cdf
+        lo = 0.0 if math.isinf(self.lower) else float(cdf(self.lower, *self._values))
+        hi = 1.0 if math.isinf(self.upper) else float(cdf(self.upper, *self._values))
+        return lo, hi
+
+    def log_mass(self) -> float:
+        """log of the family's probability between the bounds (0 when not truncated)."""
+        if not self.is_truncated:
+            return 0.0
+        lo, hi = self._mass_bounds()
+        return math.log(hi - lo) if hi > lo else -math.inf
+
     def log_density(self, x) -> np.ndarray:
-        """Log prior density at ``x`` (array); -inf outside the support."""
-        return np.asarray(self._family.log_density(x, *self._values), dtype=float)
+        """Log prior density at ``x`` (array); -inf outside the support and the bounds.
+
+        Inside the bounds the family's density is divided by its mass
+        between them, so the truncated density integrates to one.
+        """
+        x = np.asarray(x, dtype=float)
+        value = np.asarray(self._family.log_density(x, *self._values), dtype=float)
+        if math.isinf(self.lower) and math.isinf(self.upper):
+            return value
+        inside = (x >= self.lower) & (x <= self.upper)
+        return np.where(inside, value - self.log_mass(), -np.inf)
 
     def draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        """``size`` independent draws, from a numpy Generator."""
-        return np.asarray(self._family.draw(rng, size, *self._values), dtype=float)
+        """``size`` independent draws, from a numpy Generator (inverse CDF when truncated)."""
+        if not self.is_truncated:
+            return np.asarray(self._family.draw(rng, size, *self._values), dtype=float)
+        lo, hi = self._mass_bounds()
+        u = lo + (hi - lo) * rng.uniform(size=size)
+        x = np.asarray(self._family.ppf(u, *self._values), dtype=float)
+        return np.clip(x, *self.support())
 
     def support(self) -> tuple[float, float]:
-        """(lower, upper) of the support; may be infinite."""
+        """(lower, upper) of the support within the bounds; may be infinite."""
         lo, hi = self._family.support(*self._values)
-        return float(lo), float(hi)
+        return max(float(lo), self.lower), min(float(hi), self.upper)
+
+    def truncated(self, lower: float | None, upper: float | None,
+                  location: Location | None = None) -> "PriorDistribution":
+        """The same prior cut to [lower, upper] (None = no bound), renormalised.
+
+        Raises
+        ------
+        InputError
+            When the prior puts no probability between the bounds.
+        """
+        lo = self.lower if lower is None else max(self.lower, float(lower))
+        hi = self.upper if upper is None else min(self.upper, float(upper))
+        out = PriorDistribution(self.family, dict(self.parameters), lo, hi)
+        s_lo, s_hi = out.support()
+        if not s_lo < s_hi or not math.isfinite(out.log_mass()):
+            raise InputError(f"the prior {self.describe()} puts no probability between the bounds",
+                             location or Location(), [lower, upper],
+                             "bounds that overlap the prior's support and mass")
+        return out
 
     def describe(self) -> str:
-        """Text for reports, e.g. ``normal(mean=0, sd=0.5)``."""
-        return self._family.describe(*self._values)
+        """Text for reports, e.g. ``normal(mean=0, sd=0.5) within [-1, 1]``."""
+        text = self._family.describe(*self._values)
+        if self.is_truncated:
+            text += f" within [{self.lower:g}, {self.upper:g}]"
+        return text
 
     def to_dict(self) -> dict:
         return {"family": self.family, "parameters": dict(self.parameters),
+                "lower": None if math.isinf(self.lower) else self.lower,
+                "upper": None if math.isinf(self.upper) else self.upper,
                 "text": self.describe()}
+
+
+def truncate_prior(prior: PriorDistribution, lower: float | None, upper: float | None,
+                   location: Location | None = None) -> PriorDistribution:
+    """:meth:`PriorDistribution.truncated` with infinite bounds read as "no bound"."""
+    def bound(v):
+        return None if v is None or not math.isfinite(float(v)) else float(v)
+    return prior.truncated(bound(lower), bound(upper), location)
 
 
 def _check(prior: Prior, location: Location) -> PriorDistribution:
@@ -343,7 +456,9 @@ def build_prior(prior: Prior | PriorDistribution | None, default: Prior | PriorD
         raise InputError("no prior given and no default", location, None,
                          "a prior with a family from " + ", ".join(sorted(PRIOR_FAMILIES)))
     if isinstance(chosen, PriorDistribution):
-        chosen = Prior(chosen.family, dict(chosen.parameters))
+        checked = _check(Prior(chosen.family, dict(chosen.parameters)), location)
+        return checked.truncated(chosen.lower if math.isfinite(chosen.lower) else None,
+                                 chosen.upper if math.isfinite(chosen.upper) else None, location)
     return _check(chosen, location)
 
 
