@@ -224,7 +224,8 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
 
     n = int(draws or process.n_draws)
     theta, source, notes = window_draws(fit, posterior, n, seed if seed is not None else process.seed)
-    result = window_for_campaign(objective, process, theta, source, progress=progress)
+    result = window_for_campaign(objective, process, theta, source, progress=progress, fit=fit,
+                                 posterior=posterior)
     if notes:
         result.warnings.extend(notes)
     data = result.to_dict()
