@@ -280,7 +280,8 @@ def ph_coverage_gate(x: GateInputs) -> GateVerdict:
     low, high = (float(v) for v in x.run_ph_range)
     reasons, verdicts, figures = [], [], {"run_ph_range": [low, high]}
     for a, b in x.windows:
-        for edge, beyond, side in ((a, low - a, "below the lowest"), (b, b - high, "above the highest")):
+        for edge in (a, b):
+            beyond, side = (low - edge, "below the lowest") if edge < low else (edge - high, "above the highest")
             if beyond > PH_MARGIN_PROVISIONAL:
                 verdicts.append(NOT_ESTABLISHED if beyond > PH_MARGIN_NOT_ESTABLISHED else PROVISIONAL)
                 reasons.append(f"window edge pH {edge:.2f} lies {beyond:.2f} pH {side} run pH "
