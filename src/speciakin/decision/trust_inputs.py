@@ -114,7 +114,10 @@ def open_profile_shifts(outcome_fn: Callable, fit: Any, windows: Sequence[tuple[
         ends = [e for e in ends if e is not None]
         if not edges or not ends:
             continue
-        values = np.asarray(outcome_fn(np.vstack([best] + ends), np.asarray(edges)), dtype=float)
+        stack = np.vstack([best] + ends)
+        # one edge per call: run names carry the pH to 0.01, close edges would clash
+        values = np.concatenate([np.asarray(outcome_fn(stack, np.array([e])), dtype=float) for e in edges],
+                                axis=1)
         for spec in specs:
             v = specification_value(values, spec, outcome_names)          # (1 + n_ends, n_edges)
             with np.errstate(invalid="ignore"):
