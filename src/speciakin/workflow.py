@@ -342,7 +342,9 @@ def window_text(window) -> str:
         return "none" if not x else f"pH {x[0]:.2f} to {x[1]:.2f}"
 
     robust = max(window.robust_windows, key=lambda w: w[1] - w[0]) if window.robust_windows else None
-    return (f"recommended {fmt(window.primary_window)} at probability >= {window.level:g}, "
+    status = getattr(window, "status", None)
+    return ((f"{status.upper()}: " if status else "")
+            + f"recommended {fmt(window.primary_window)} at probability >= {window.level:g}, "
             f"robust to +/- {window.tolerance:g} pH: {fmt(robust)}")
 
 
