@@ -12,7 +12,7 @@ from scipy import integrate, stats
 from .campaign_synthetic import small_model
 from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError
-from speciakin.estimation.priors import PRIOR_FAMILIES, build_prior, truncate_prior
+from speciakin.estimation.priors import PRIOR_FAMILIES, build_prior
 from speciakin.estimation.sampling import sample_posterior
 
 # One parameter set per family (invented numbers) and the scipy.stats reference.
@@ -38,7 +38,7 @@ def test_truncated_density_is_the_renormalised_scipy_density(family):
     # Distributions, vol. 1, 2nd ed., 1994, section 10.1).
     parameters, reference = FAMILIES[family]
     lo, hi = BOUNDS[family]
-    prior = truncate_prior(build_prior(Prior(family, parameters)), lo, hi)
+    prior = build_prior(Prior(family, parameters)).truncated(lo, hi)
     x = np.linspace(lo, hi, 41)
     expected = reference.logpdf(x) - math.log(reference.cdf(hi) - reference.cdf(lo))
     np.testing.assert_allclose(prior.log_density(x), expected, rtol=1e-10, atol=1e-10)
@@ -56,7 +56,7 @@ def test_truncated_draws_follow_the_truncated_distribution(family):
     # sampler (fixed seed).
     parameters, reference = FAMILIES[family]
     lo, hi = BOUNDS[family]
-    prior = truncate_prior(build_prior(Prior(family, parameters)), lo, hi)
+    prior = build_prior(Prior(family, parameters)).truncated(lo, hi)
     x = prior.draw(np.random.default_rng(3), 3000)
     assert np.all((x >= lo) & (x <= hi))
     c_lo, c_hi = reference.cdf(lo), reference.cdf(hi)
@@ -64,7 +64,7 @@ def test_truncated_draws_follow_the_truncated_distribution(family):
 
 
 def test_build_prior_keeps_the_bounds_and_describe_says_so():
-    prior = truncate_prior(build_prior(Prior("normal", {"mean": 0.0, "sd": 0.5})), -1.0, 1.0)
+    prior = build_prior(Prior("normal", {"mean": 0.0, "sd": 0.5})).truncated(-1.0, 1.0)
     again = build_prior(prior)
     assert (again.lower, again.upper) == (-1.0, 1.0)
     assert again.describe() == "normal(mean=0, sd=0.5) within [-1, 1]"
@@ -74,7 +74,7 @@ def test_build_prior_keeps_the_bounds_and_describe_says_so():
 def test_prior_without_mass_between_the_bounds_is_a_located_error():
     prior = build_prior(Prior("halfnormal", {"scale": 1.0}))
     with pytest.raises(InputError, match="puts no probability between the bounds"):
-        truncate_prior(prior, -3.0, -1.0)
+        prior.truncated(-3.0, -1.0)
 
 
 finite = st.floats(-50, 50, allow_nan=False)
@@ -89,7 +89,7 @@ def test_log_prior_is_minus_infinity_outside_the_bounds(family, a, width, x):
     if not (max(lo, s_lo) < min(hi, s_hi)):
         return
     try:
-        prior = truncate_prior(base, lo, hi)
+        prior = base.truncated(lo, hi)
     except InputError:  # no representable mass between the bounds (far tail)
         return
     value = float(prior.log_density(np.array([x]))[0])
@@ -124,9 +124,9 @@ def test_walkers_never_leave_the_model_file_bounds():
     # The likelihood pulls hard toward values far outside the bounds (a normal
     # likelihood centred at +5 and -400 (sd 0.3 and 2) with the bounds [-1, 1] and [-3, 3]); with
     # truncated priors every stored position of every walker stays inside.
-    priors = [truncate_prior(build_prior(Prior("normal", {"mean": 0.0, "sd": 0.5})), -1.0, 1.0),
-              truncate_prior(build_prior(Prior("student_t", {"degrees_of_freedom": 3, "mean": 0.0,
-                                                             "scale": 5.0})), -3.0, 3.0)]
+    priors = [build_prior(Prior("normal", {"mean": 0.0, "sd": 0.5})).truncated(-1.0, 1.0),
+              build_prior(Prior("student_t", {"degrees_of_freedom": 3, "mean": 0.0,
+                                              "scale": 5.0})).truncated(-3.0, 3.0)]
     centre = np.array([5.0, -400.0])
 
     def log_likelihood(theta):

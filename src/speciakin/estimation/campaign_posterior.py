@@ -17,7 +17,7 @@ import numpy as np
 from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError, Location
 from speciakin.estimation.objective import CampaignObjective
-from speciakin.estimation.priors import build_prior, default_pka_shift_prior, truncate_prior
+from speciakin.estimation.priors import build_prior, default_pka_shift_prior
 from speciakin.estimation.proposals import proposal_cholesky
 from speciakin.estimation.sampling import PosteriorResult, sample_posterior
 
@@ -56,7 +56,7 @@ def campaign_priors(objective: CampaignObjective) -> list:
             prior = build_prior(Prior("normal", {"mean": 0.0, "sd": 0.1}), location=where)
         else:
             prior = build_prior(Prior("normal", {"mean": p.value, "sd": 3.0}), location=where)
-        priors.append(truncate_prior(prior, p.lower, p.upper, where))
+        priors.append(prior.truncated(p.lower, p.upper, where))
     return priors
 
 

@@ -47,7 +47,6 @@ __all__ = [
     "default_log10_rate_prior",
     "default_error_scale_prior",
     "joint_log_prior",
-    "truncate_prior",
 ]
 
 _LOG_2PI = math.log(2.0 * math.pi)
@@ -346,15 +345,15 @@ class PriorDistribution:
 
     def truncated(self, lower: float | None, upper: float | None,
                   location: Location | None = None) -> "PriorDistribution":
-        """The same prior cut to [lower, upper] (None = no bound), renormalised.
+        """The same prior cut to [lower, upper] (None or infinite = no bound), renormalised.
 
         Raises
         ------
         InputError
             When the prior puts no probability between the bounds.
         """
-        lo = self.lower if lower is None else max(self.lower, float(lower))
-        hi = self.upper if upper is None else min(self.upper, float(upper))
+        lo = max(self.lower, -math.inf if lower is None else float(lower))
+        hi = min(self.upper, math.inf if upper is None else float(upper))
         out = PriorDistribution(self.family, dict(self.parameters), lo, hi)
         s_lo, s_hi = out.support()
         if not s_lo < s_hi or not math.isfinite(out.log_mass()):
@@ -375,14 +374,6 @@ class PriorDistribution:
                 "lower": None if math.isinf(self.lower) else self.lower,
                 "upper": None if math.isinf(self.upper) else self.upper,
                 "text": self.describe()}
-
-
-def truncate_prior(prior: PriorDistribution, lower: float | None, upper: float | None,
-                   location: Location | None = None) -> PriorDistribution:
-    """:meth:`PriorDistribution.truncated` with infinite bounds read as "no bound"."""
-    def bound(v):
-        return None if v is None or not math.isfinite(float(v)) else float(v)
-    return prior.truncated(bound(lower), bound(upper), location)
 
 
 def _check(prior: Prior, location: Location) -> PriorDistribution:
@@ -456,9 +447,8 @@ def build_prior(prior: Prior | PriorDistribution | None, default: Prior | PriorD
         raise InputError("no prior given and no default", location, None,
                          "a prior with a family from " + ", ".join(sorted(PRIOR_FAMILIES)))
     if isinstance(chosen, PriorDistribution):
-        checked = _check(Prior(chosen.family, dict(chosen.parameters)), location)
-        return checked.truncated(chosen.lower if math.isfinite(chosen.lower) else None,
-                                 chosen.upper if math.isfinite(chosen.upper) else None, location)
+        return _check(Prior(chosen.family, dict(chosen.parameters)), location).truncated(
+            chosen.lower, chosen.upper, location)
     return _check(chosen, location)
 
 
