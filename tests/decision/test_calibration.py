@@ -47,7 +47,7 @@ def make_process(model, n_draws):
     return validate_process(plan, model)
 
 
-def calibration(seeds, n_draws):
+def calibration(seeds, n_draws, noise=(0.1, 0.02)):
     """Per campaign: [false claims, set points checked, robust false claims, robust set points checked,
     has a window, largest distance of a false claim beyond the true pass set [pH]]."""
     from speciakin.decision.campaign_window import process_outcome_function, window_draws, window_for_campaign
@@ -61,7 +61,8 @@ def calibration(seeds, n_draws):
     rows = []
     for seed in seeds:
         tally = np.zeros(6)
-        campaign = synthetic_campaign(model, model.runs, SMALL_TRUTH, SAMPLE_TIMES, SMALL_COMPOUNDS, seed=seed)
+        campaign = synthetic_campaign(model, model.runs, SMALL_TRUTH, SAMPLE_TIMES, SMALL_COMPOUNDS, seed=seed,
+                                      noise=noise)
         objective = CampaignObjective(model, campaign, parallel=False)
         fit = fit_campaign(objective, starts=1, profiles=False)
         theta, source, _ = window_draws(fit, None, n_draws, seed)

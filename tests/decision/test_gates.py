@@ -28,7 +28,8 @@ CLEAN = dict(source="posterior", parameter_names=["a", "b"], posterior_converged
              process={"equivalents": 1.3, "dosing_time": 10.0, "end_time": 120.0, "temperature": 25.0,
                       "ph_mode": "held"},
              runs={"equivalents": [1.3, 1.3], "dosing_time": [10.0, 10.0], "end_time": [120.0, 120.0],
-                   "temperature": [25.0, 25.0], "ph_mode": ["held", "held"]})
+                   "temperature": [25.0, 25.0], "ph_mode": ["held", "held"]},
+             chi_square=95.0, degrees_of_freedom=100)
 
 
 def inputs(**change):
@@ -130,6 +131,22 @@ def test_process_envelope_gate():
     runs = dict(CLEAN["runs"], ph_mode=["logged", "free"])
     v = verdict("process envelope", inputs(runs=runs))
     assert v.verdict == PROVISIONAL and "no lab run did" in v.reasons[0]
+
+
+@pytest.mark.parametrize("chi_square, expected", [
+    (120.0, PASS),
+    (149.0, PASS),               # the 0.999 quantile of chi2(100) is 149.45 (scipy.stats.chi2;
+    (150.0, PROVISIONAL),        # Abramowitz and Stegun 1964, table 26.8)
+    (399.0, PROVISIONAL),
+    (450.0, NOT_ESTABLISHED),    # reduced chi-square 4.5 > 4
+    (math.inf, NOT_ESTABLISHED),
+])
+def test_error_model_gate(chi_square, expected):
+    v = verdict("error model", inputs(chi_square=chi_square, degrees_of_freedom=100))
+    assert v.verdict == expected
+    if expected == NOT_ESTABLISHED and math.isfinite(chi_square):
+        assert "scatter 2.12 times more than the stated error model allows" in v.reasons[0]
+    assert verdict("error model", inputs(chi_square=None)).verdict == NOT_CHECKED
 
 
 def test_status_is_the_worst_gate_and_lands_in_the_result():

@@ -84,3 +84,23 @@ def test_unconverged_posterior_fires_the_convergence_gate(below_pka, tmp_path):
     text = (tmp_path / "window.txt").read_text()
     assert result.status.upper() in text
     assert any(("R-hat" in r or "effective sample size" in r or "not converged" in r) for r in result.status_reasons)
+
+
+def test_data_noisier_than_stated_fire_the_error_model_gate():
+    # data made with 20x the noise the model file states (absolute 2 area%, relative 20 %)
+    from speciakin.decision.campaign_window import window_draws, window_for_campaign
+    from speciakin.estimation.campaign_fit import fit_campaign
+    from speciakin.estimation.objective import CampaignObjective
+
+    model = small_model()
+    campaign = synthetic_campaign(model, model.runs, SMALL_TRUTH, SAMPLE_TIMES, SMALL_COMPOUNDS, seed=22,
+                                  noise=(2.0, 0.2))
+    objective = CampaignObjective(model, campaign, parallel=False)
+    fit = fit_campaign(objective, starts=1, profiles=False)
+    theta, source, _ = window_draws(fit, None, 20, 1)
+    result = window_for_campaign(objective, make_process(model), theta, source, fit=fit)
+    error_model = gate(result, "error model")
+    assert error_model["verdict"] == NOT_ESTABLISHED
+    assert error_model["figures"]["reduced_chi_square"] > 4
+    assert result.status == "not established"
+    assert gate(result, "identifiability")["verdict"] == "not checked"        # fit without profiles

@@ -32,6 +32,10 @@ Thresholds (module constants, documented in docs/decision.md):
 * process envelope: equivalents, dosing time or end time more than 10 %
   outside the runs' range, temperature more than 2 K outside, or a pH mode
   no run used: provisional.
+* error model: the fit's chi-square above the 99.9 % quantile of the
+  chi-square distribution with its degrees of freedom (scipy.stats.chi2):
+  provisional; reduced chi-square above 4 (the stated errors are less than
+  half the scatter, so the posterior is too narrow): not established.
 """
 
 from __future__ import annotations
@@ -48,7 +52,8 @@ __all__ = ["GateInputs", "GateVerdict", "Gate", "GATES", "assess", "combine", "s
            "ESTABLISHED", "PROVISIONAL", "NOT_ESTABLISHED", "PASS", "NOT_CHECKED", "STATUSES",
            "R_HAT_PASS", "R_HAT_USABLE", "ESS_PASS", "ESS_USABLE", "BOUND_ZONE", "BOUND_SHARE",
            "PH_MARGIN_PROVISIONAL", "PH_MARGIN_NOT_ESTABLISHED", "ENVELOPE_RELATIVE",
-           "ENVELOPE_TEMPERATURE", "PERCENT_MARGIN", "RATIO_MARGIN"]
+           "ENVELOPE_TEMPERATURE", "PERCENT_MARGIN", "RATIO_MARGIN", "CHI_SQUARE_QUANTILE",
+           "REDUCED_CHI_SQUARE_LIMIT"]
 
 ESTABLISHED, PROVISIONAL, NOT_ESTABLISHED = "established", "provisional", "not established"
 PASS, NOT_CHECKED = "pass", "not checked"
@@ -74,6 +79,10 @@ PH_MARGIN_NOT_ESTABLISHED = 1.0
 ENVELOPE_RELATIVE = 0.10
 #: Slack of the process envelope for temperature [K].
 ENVELOPE_TEMPERATURE = 2.0
+#: Quantile of chi2(degrees of freedom) above which the fit's chi-square is too large [-].
+CHI_SQUARE_QUANTILE = 0.999
+#: Reduced chi-square above which the stated errors are too small to trust the posterior [-].
+REDUCED_CHI_SQUARE_LIMIT = 4.0
 #: Margin of a mole-% or conversion specification [percentage points].
 PERCENT_MARGIN = 1.0
 #: Margin of a ratio specification, as a share of its limit [-].
@@ -127,6 +136,9 @@ class GateInputs:
     runs
         The same keys, one list of values over the lab runs (None entries
         = not applicable to that run).
+    chi_square, degrees_of_freedom
+        Chi-square of the least-squares fit (residuals divided by the
+        stated errors) and its degrees of freedom.
     """
 
     source: str | None = None
@@ -142,6 +154,8 @@ class GateInputs:
     run_ph_range: tuple[float, float] | None = None
     process: Mapping[str, Any] | None = None
     runs: Mapping[str, Sequence[Any]] | None = None
+    chi_square: float | None = None
+    degrees_of_freedom: int | None = None
 
 
 @dataclass
@@ -323,6 +337,31 @@ def envelope_gate(x: GateInputs) -> GateVerdict:
     return GateVerdict(name, PROVISIONAL if reasons else PASS, reasons, figures)
 
 
+def error_model_gate(x: GateInputs) -> GateVerdict:
+    """Scatter of the data against the stated error model (chi-square of the fit)."""
+    from scipy import stats
+
+    name = "error model"
+    if x.chi_square is None or not x.degrees_of_freedom or x.degrees_of_freedom < 1:
+        return GateVerdict(name, NOT_CHECKED, ["no fit chi-square was given"])
+    chi2, dof = float(x.chi_square), int(x.degrees_of_freedom)
+    reduced = chi2 / dof
+    limit = float(stats.chi2.ppf(CHI_SQUARE_QUANTILE, dof))
+    figures = {"chi_square": chi2, "degrees_of_freedom": dof, "reduced_chi_square": reduced,
+               "chi_square_limit": limit}
+    if not math.isfinite(chi2) or reduced > REDUCED_CHI_SQUARE_LIMIT:
+        return GateVerdict(name, NOT_ESTABLISHED, [
+            f"the data scatter {math.sqrt(reduced):.3g} times more than the stated error model allows "
+            f"(reduced chi-square {reduced:.3g}): the posterior is too narrow; state the errors of the "
+            "data in the model file's [fit] error_model"], figures)
+    if chi2 > limit:
+        return GateVerdict(name, PROVISIONAL, [
+            f"chi-square {chi2:.4g} of the fit is above the {CHI_SQUARE_QUANTILE:.1%} quantile {limit:.4g} "
+            f"for {dof} degrees of freedom: the stated errors are too small or the model misses something"],
+            figures)
+    return GateVerdict(name, PASS, [], figures)
+
+
 #: The one registry of gates, in the order they are reported.
 GATES: dict[str, Gate] = {g.name: g for g in (
     Gate("convergence", "posterior converged (R-hat, effective sample size)", convergence_gate),
@@ -331,6 +370,7 @@ GATES: dict[str, Gate] = {g.name: g for g in (
          identifiability_gate),
     Gate("pH coverage", "window edges inside the pH range of the runs", ph_coverage_gate),
     Gate("process envelope", "process conditions inside the envelope of the runs", envelope_gate),
+    Gate("error model", "data scatter as the stated error model says (fit chi-square)", error_model_gate),
 )}
 
 

@@ -148,6 +148,10 @@ def campaign_gate_inputs(objective: Any, process: Any, result: Any, draws: np.nd
         inputs.r_hat = [float(r) for r in d.r_hat]
         inputs.ess = [min(float(b), float(t), float(a)) for b, t, a in
                       zip(d.ess_bulk, d.ess_tail, d.ess_autocorrelation)]
+    core = getattr(fit, "fit", None)
+    if core is not None and getattr(core, "chisqr", None) is not None:
+        inputs.chi_square = float(core.chisqr)
+        inputs.degrees_of_freedom = int(core.degrees_of_freedom)
     if fit is not None and outcome_fn is not None and list(getattr(fit, "names", [])) == inputs.parameter_names:
         inputs.open_profiles = open_profile_shifts(outcome_fn, fit, result.windows, result.specifications,
                                                    result.outcome_names)
