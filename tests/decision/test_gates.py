@@ -158,10 +158,10 @@ def test_status_is_the_worst_gate_and_lands_in_the_result():
     assert result.status is None and "not assessed" in result.report()
     apply_gates(result, inputs(r_hat=[1.3, 1.0], windows=result.windows, run_ph_range=(2.5, 3.0)))
     assert result.status == "not established"
-    assert any("R-hat of a is 1.3" in r for r in result.status_reasons)
+    assert "posterior not converged: R-hat above 1.1 for a (1.3)" in result.status_reasons
     assert any("above the highest run pH" in r for r in result.status_reasons)
     text = result.report()
-    assert "NOT ESTABLISHED" in text and "R-hat of a is 1.3" in text
+    assert "NOT ESTABLISHED" in text and "R-hat above 1.1 for a (1.3)" in text
     data = json.loads(json.dumps(result.to_dict(), allow_nan=False))
     assert data["status"] == "not established" and data["status_reasons"] == result.status_reasons
     assert [g["name"] for g in data["gates"]] == list(GATES)

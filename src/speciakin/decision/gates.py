@@ -213,22 +213,24 @@ def convergence_gate(x: GateInputs) -> GateVerdict:
     if x.r_hat is None or x.ess is None:
         return GateVerdict(name, NOT_CHECKED, ["no convergence figures were given"])
     names = list(x.parameter_names) or [f"parameter {i + 1}" for i in range(len(x.r_hat))]
-    verdicts, reasons = [], []
+    groups: dict[tuple[str, str], list[str]] = {}
     for n, r, e in zip(names, x.r_hat, x.ess):
         r = float(r) if r is not None else math.inf
         e = float(e) if e is not None else 0.0
         if not r <= R_HAT_USABLE:
-            verdicts.append(NOT_ESTABLISHED)
-            reasons.append(f"posterior not converged: R-hat of {n} is {r:.3g} (above {R_HAT_USABLE:g})")
+            groups.setdefault((NOT_ESTABLISHED, f"posterior not converged: R-hat above {R_HAT_USABLE:g} for "),
+                              []).append(f"{n} ({r:.3g})")
         elif r > R_HAT_PASS:
-            verdicts.append(PROVISIONAL)
-            reasons.append(f"posterior not fully converged: R-hat of {n} is {r:.3g} (above {R_HAT_PASS:g})")
+            groups.setdefault((PROVISIONAL, f"posterior not fully converged: R-hat above {R_HAT_PASS:g} for "),
+                              []).append(f"{n} ({r:.3g})")
         if not e >= ESS_USABLE:
-            verdicts.append(NOT_ESTABLISHED)
-            reasons.append(f"effective sample size of {n} is {e:.0f} (below {ESS_USABLE:g})")
+            groups.setdefault((NOT_ESTABLISHED, f"effective sample size below {ESS_USABLE:g} for "),
+                              []).append(f"{n} ({e:.0f})")
         elif e < ESS_PASS:
-            verdicts.append(PROVISIONAL)
-            reasons.append(f"effective sample size of {n} is {e:.0f} (below {ESS_PASS:g})")
+            groups.setdefault((PROVISIONAL, f"effective sample size below {ESS_PASS:g} for "),
+                              []).append(f"{n} ({e:.0f})")
+    verdicts = [v for v, _ in groups]
+    reasons = [text + ", ".join(items) for (_, text), items in groups.items()]
     if x.posterior_converged is False and not verdicts:
         verdicts.append(PROVISIONAL)
         reasons.append("the sampler reports the posterior as not converged (chain too short for its "
