@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from speciakin.decision import Specification, compute_window
+from speciakin.decision import Specification, WindowResult, compute_window
 from speciakin.decision.gates import (
     GATES,
     NOT_CHECKED,
@@ -165,3 +165,5 @@ def test_status_is_the_worst_gate_and_lands_in_the_result():
     data = json.loads(json.dumps(result.to_dict(), allow_nan=False))
     assert data["status"] == "not established" and data["status_reasons"] == result.status_reasons
     assert [g["name"] for g in data["gates"]] == list(GATES)
+    back = WindowResult.from_dict(data)
+    assert back.to_dict() == data and back.status == result.status

@@ -8,6 +8,8 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from decision_synthetic import NAMES, TRUTH, closed_form, outcome_fn
 from speciakin.decision import Specification, WindowResult, compute_window, evaluate_specs
@@ -93,3 +95,23 @@ def test_level_set_and_coverage_by_hand():
     assert level_set(intervals, 0.99) == [(3.0, 3.5)]
     np.testing.assert_allclose(coverage(intervals, [0.5, 1.5, 3.2, 4.7]), [0, 1 / 3, 1, 2 / 3])
     assert shrink_intervals(intervals, 0.5) == [[(1.5, 3.5)], [(2.5, 4.5)], [(5.0, 5.5)]]
+
+
+interval = st.tuples(st.floats(0, 10), st.floats(0, 3)).map(lambda t: (t[0], t[0] + t[1]))
+
+
+@settings(max_examples=100, deadline=None)
+@given(rows=st.lists(st.lists(interval, max_size=3).map(
+           lambda ivs: [iv for k, iv in enumerate(sorted(ivs))
+                        if all(iv[0] > other[1] for other in sorted(ivs)[:k])]), min_size=1, max_size=12),
+       level=st.floats(0.05, 1.0), x=st.lists(st.floats(-1, 14), min_size=1, max_size=30))
+def test_level_set_is_where_the_coverage_reaches_the_level(rows, level, x):
+    # property: away from the interval ends, x lies in level_set exactly when the share of rows
+    # covering x is >= level (definition of the level set of a step function)
+    found = level_set(rows, level)
+    ends = np.array([e for row in rows for iv in row for e in iv] or [np.inf])
+    for v in x:
+        if np.min(np.abs(ends - v)) < 1e-6:
+            continue
+        inside = any(a <= v <= b for a, b in found)
+        assert inside == (coverage(rows, [v])[0] >= level - 1e-9)
