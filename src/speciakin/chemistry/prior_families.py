@@ -104,6 +104,17 @@ def student_t_log_density(x, degrees_of_freedom, mean, scale):
     return const - 0.5 * (nu + 1) * np.log1p(z * z / nu)
 
 
+def _lognormal_cdf(x, log_mean, log_sd):
+    x = np.asarray(x, dtype=float)
+    with np.errstate(divide="ignore"):
+        return np.where(x > 0, special.ndtr((np.log(np.maximum(x, 0.0)) - log_mean) / log_sd), 0.0)
+
+
+def _halfnormal_cdf(x, scale):
+    x = np.asarray(x, dtype=float)
+    return np.where(x > 0, special.erf(np.maximum(x, 0.0) / (scale * math.sqrt(2.0))), 0.0)
+
+
 # --------------------------------------------------------------------------
 # registry
 # --------------------------------------------------------------------------
@@ -132,6 +143,11 @@ class PriorFamily:
     cross_check
         Optional ``check(parameters) -> message | None`` for conditions that
         involve several parameters (e.g. lower < upper).
+    cdf
+        ``cdf(x, *parameters)`` -> cumulative probability (vectorised); used
+        to renormalise a prior truncated to bounds and to draw from it.
+    ppf
+        ``ppf(u, *parameters)`` -> quantile (inverse of ``cdf``).
     """
 
     name: str
@@ -142,6 +158,8 @@ class PriorFamily:
     support: Callable
     describe: Callable
     cross_check: Callable | None = None
+    cdf: Callable | None = None
+    ppf: Callable | None = None
 
 
 PRIOR_FAMILIES: dict[str, PriorFamily] = {}
@@ -174,6 +192,8 @@ register_prior_family(PriorFamily(
     draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
     support=lambda mean, sd: (-np.inf, np.inf),
     describe=lambda mean, sd: f"normal(mean={mean:g}, sd={sd:g})",
+    cdf=lambda x, mean, sd: special.ndtr((np.asarray(x, dtype=float) - mean) / sd),
+    ppf=lambda u, mean, sd: mean + sd * special.ndtri(u),
 ))
 
 register_prior_family(PriorFamily(
@@ -185,6 +205,8 @@ register_prior_family(PriorFamily(
     support=lambda log_mean, log_sd: (0.0, np.inf),
     describe=lambda log_mean, log_sd: (
         f"lognormal(log_mean={log_mean:g}, log_sd={log_sd:g}; median {math.exp(log_mean):.4g})"),
+    cdf=_lognormal_cdf,
+    ppf=lambda u, log_mean, log_sd: np.exp(log_mean + log_sd * special.ndtri(u)),
 ))
 
 register_prior_family(PriorFamily(
@@ -196,6 +218,8 @@ register_prior_family(PriorFamily(
     support=lambda lower, upper: (lower, upper),
     describe=lambda lower, upper: f"uniform(lower={lower:g}, upper={upper:g})",
     cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'",
+    cdf=lambda x, lower, upper: np.clip((np.asarray(x, dtype=float) - lower) / (upper - lower), 0.0, 1.0),
+    ppf=lambda u, lower, upper: lower + np.asarray(u, dtype=float) * (upper - lower),
 ))
 
 register_prior_family(PriorFamily(
@@ -206,6 +230,8 @@ register_prior_family(PriorFamily(
     draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
     support=lambda scale: (0.0, np.inf),
     describe=lambda scale: f"halfnormal(scale={scale:g})",
+    cdf=_halfnormal_cdf,
+    ppf=lambda u, scale: scale * math.sqrt(2.0) * special.erfinv(u),
 ))
 
 register_prior_family(PriorFamily(
@@ -217,4 +243,6 @@ register_prior_family(PriorFamily(
     support=lambda nu, mean, scale: (-np.inf, np.inf),
     describe=lambda nu, mean, scale: (
         f"student_t(degrees_of_freedom={nu:g}, mean={mean:g}, scale={scale:g})"),
+    cdf=lambda x, nu, mean, scale: special.stdtr(nu, (np.asarray(x, dtype=float) - mean) / scale),
+    ppf=lambda u, nu, mean, scale: mean + scale * special.stdtrit(nu, u),
 ))

@@ -22,16 +22,20 @@ import numpy as np
 from speciakin.decision.draws import POSTERIOR_SOURCE
 from speciakin.decision.outcomes import outcome_bands
 from speciakin.decision.process import FACTOR_KINDS, ProcessPlan
+from speciakin.decision.refine import (
+    DEFAULT_RESOLUTION,
+    coverage,
+    level_set,
+    refine_pass_intervals,
+    shrink_intervals,
+)
 from speciakin.decision.result import WindowResult
 from speciakin.decision.specs import Specification, evaluate_specs
 from speciakin.decision.window import (
     interval_containing,
-    per_draw_robust_probability,
     probability_curve,
-    robust_window,
     touches_range_edge,
     widest_interval,
-    window_edges,
     worst_case_probability,
 )
 from speciakin.errors import SolverError
@@ -56,18 +60,6 @@ def choose_best_index(score: np.ndarray) -> int | None:
     runs = np.split(tied, np.flatnonzero(np.diff(tied) > 1) + 1)
     longest = max(runs, key=len)
     return int(longest[(len(longest) - 1) // 2])
-
-
-def _intersect(first: Sequence[tuple[float, float]], second: Sequence[tuple[float, float]]
-               ) -> list[tuple[float, float]]:
-    """Pairwise intersection of two sorted lists of disjoint intervals."""
-    out = []
-    for a1, b1 in first:
-        for a2, b2 in second:
-            low, high = max(a1, a2), min(b1, b2)
-            if high >= low:
-                out.append((float(low), float(high)))
-    return sorted(out)
 
 
 def _validate(draws: np.ndarray, ph: np.ndarray, level: float, tolerance: float) -> None:
@@ -113,7 +105,8 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
                    uncertainty_source: str = POSTERIOR_SOURCE,
                    factor_name: str | None = None, factor_unit: str | None = None,
                    nominal_factor: float | None = None,
-                   factor_display_values: Sequence[float] | None = None) -> WindowResult:
+                   factor_display_values: Sequence[float] | None = None,
+                   resolution: float = DEFAULT_RESOLUTION) -> WindowResult:
     """Probability that every specification is met, against pH (and a second factor).
 
     Parameters
@@ -153,6 +146,10 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
     factor_display_values
         The factor values as shown in the result (e.g. [C] when
         ``factor_grid`` is in [K]); default: ``factor_grid``.
+    resolution
+        Every pass/fail change of a draw between grid points is located by
+        bisection on new simulations to this width [pH units]
+        (:mod:`speciakin.decision.refine`); window and robust edges follow.
 
     Returns
     -------
@@ -190,20 +187,32 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         j = int(np.argmin(np.abs(np.asarray(factors) - target)))
     pass_1d = passes[:, :, j]
     probability, standard_error = probability_curve(pass_1d)
-    windows = window_edges(ph, probability, level)
-    robust = robust_window(ph, probability, level, tolerance)
     worst = worst_case_probability(ph, probability, tolerance)
-    per_draw = per_draw_robust_probability(ph, pass_1d, tolerance)
-    # per-draw reading: interpolated like the window, then kept inside the
-    # curve-based robust window (it is the stricter reading; set points whose
-    # band leaves the grid are unknown)
-    per_draw_windows = _intersect(
-        window_edges(ph, np.nan_to_num(per_draw, nan=-1.0), level), robust)
-    best = choose_best_index(worst)
-    if best is None or worst[best] <= 0:
-        best = choose_best_index(probability)
-    best_ph = float(ph[best]) if best is not None else None
-    best_probability = float(probability[best]) if best is not None else None
+    # one robust window: per-draw pass intervals refined by bisection, then
+    # the exact level sets of p(x) and of the per-draw drift-band share r(x)
+    refined = {}
+
+    def refined_slice(k: int):
+        if k not in refined:
+            found, n_sim = refine_pass_intervals(outcome_fn, theta, ph, passes[:, :, k], list(specs), names,
+                                                 resolution, factor=factors[k])
+            refined[k] = (found, shrink_intervals(found, tolerance), n_sim)
+        return refined[k]
+
+    intervals, shrunk, _ = refined_slice(j)
+    windows = level_set(intervals, level)
+    robust = level_set(shrunk, level)
+    per_draw = coverage(shrunk, ph)
+    per_draw[(ph - tolerance < ph[0] - 1e-9) | (ph + tolerance > ph[-1] + 1e-9)] = np.nan
+    curve_ph = np.round(np.arange(ph[0], ph[-1] + 0.25 * resolution, 0.5 * resolution), 10)
+    curve_ph = curve_ph[curve_ph <= ph[-1] + 1e-12]
+    curve_p = coverage(intervals, curve_ph)
+    curve_r = coverage(shrunk, curve_ph)
+    best = choose_best_index(curve_r)
+    if best is None or curve_r[best] <= 0:
+        best = choose_best_index(curve_p)
+    best_ph = float(curve_ph[best]) if best is not None else None
+    best_probability = float(curve_p[best]) if best is not None else None
     primary = interval_containing(windows, best_ph) or widest_interval(windows)
     bands = outcome_bands(outcomes[:, :, j, :])               # (3, n_ph, n_out)
     warnings: list[str] = []
@@ -214,9 +223,9 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
             warnings.append("window touches the edge of the scanned range; extend the pH grid "
                             "to see where it ends")
         if not robust:
-            warnings.append(f"no set point keeps probability >= {level:g} over its whole "
-                            f"+/- {tolerance:g} pH drift band (window narrower than the drift "
-                            f"band)")
+            warnings.append(f"no set point where a share >= {level:g} of the draws meets every "
+                            f"specification at every pH within +/- {tolerance:g} (the window is "
+                            f"narrower than the drift band)")
     if n_failed:
         warnings.append(f"{n_failed} of {theta.shape[0]} draws gave non-finite outcomes "
                         f"(simulation failed); they count as not meeting the specifications")
@@ -229,12 +238,14 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         probability=probability, probability_standard_error=standard_error,
         worst_case_probability=worst, robust_probability_per_draw=per_draw,
         windows=windows, primary_window=primary, robust_windows=robust,
-        robust_windows_per_draw=per_draw_windows, best_ph=best_ph,
+        robust_windows_per_draw=list(robust), best_ph=best_ph,
         best_probability=best_probability, outcome_names=names,
         outcome_median={n: bands[1, :, i] for i, n in enumerate(names)},
         outcome_lower={n: bands[0, :, i] for i, n in enumerate(names)},
         outcome_upper={n: bands[2, :, i] for i, n in enumerate(names)},
-        n_failed_draws=n_failed, warnings=warnings,
+        n_failed_draws=n_failed, warnings=warnings, curve_ph=curve_ph,
+        curve_probability=curve_p, curve_robust_probability=curve_r, resolution=float(resolution),
+        n_refinement_simulations=int(refined[j][2]),
     )
     if factor_grid is not None:
         map_p, map_se = probability_curve(passes)              # (n_ph, n_f)
@@ -248,9 +259,9 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         result.nominal_factor = float(shown[j])
         result.map_probability = map_p
         result.map_standard_error = map_se
-        result.map_windows = [window_edges(ph, map_p[:, k], level) for k in range(len(factors))]
-        result.map_robust_windows = [robust_window(ph, map_p[:, k], level, tolerance)
-                                     for k in range(len(factors))]
+        result.map_windows = [level_set(refined_slice(k)[0], level) for k in range(len(factors))]
+        result.map_robust_windows = [level_set(refined_slice(k)[1], level) for k in range(len(factors))]
+        result.n_refinement_simulations = sum(v[2] for v in refined.values())
     return result
 
 

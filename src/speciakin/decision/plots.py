@@ -38,7 +38,14 @@ def _save(fig, path: str | os.PathLike) -> Path:
 
 def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     """Probability of meeting every specification against pH, with the level
-    line, the window (light) and the robust set points (dark) shaded."""
+    line, the window (light) and the robust set points (dark) shaded.
+
+    The two curves are the step functions the windows are computed from
+    (``result.curve_*``: the share of draws meeting every specification at
+    the set point, and at every pH within +/- tolerance), so each shaded
+    band begins and ends where its curve crosses the level.  Results without
+    those curves (older files) draw the grid values.
+    """
     fig = _figure()
     ax = fig.add_subplot()
     for k, (a, b) in enumerate(result.windows):
@@ -51,12 +58,14 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     ax.fill_between(result.ph, np.clip(result.probability - 2 * se, 0, 1),
                     np.clip(result.probability + 2 * se, 0, 1), color=OKABE_ITO["black"], alpha=0.15,
                     lw=0, label="+/- 2 Monte Carlo s.e.")
-    ax.plot(result.ph, result.probability, color=OKABE_ITO["black"], lw=1.8,
-            label="probability, all specifications met")
-    worst = result.worst_case_probability
-    if np.any(np.isfinite(worst)):
-        ax.plot(result.ph, worst, color=OKABE_ITO["vermillion"], lw=1.2, ls="--",
-                label=f"lowest within +/- {result.tolerance:g} pH")
+    if result.curve_ph is not None:
+        x, p, robust = result.curve_ph, result.curve_probability, result.curve_robust_probability
+    else:
+        x, p, robust = result.ph, result.probability, result.robust_probability_per_draw
+    ax.plot(x, p, color=OKABE_ITO["black"], lw=1.8, label="probability, all specifications met")
+    if robust is not None and np.any(np.isfinite(robust)):
+        ax.plot(x, robust, color=OKABE_ITO["vermillion"], lw=1.2, ls="--",
+                label=f"all met at every pH within +/- {result.tolerance:g}")
     ax.axhline(result.level, color=OKABE_ITO["orange"], lw=1.2, ls=":", label=f"level {result.level:g}")
     if result.best_ph is not None:
         ax.axvline(result.best_ph, color=OKABE_ITO["reddish purple"], lw=1.0,
@@ -65,8 +74,11 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     ax.set_ylabel("probability [-]")
     ax.set_ylim(-0.02, 1.02)
     ax.set_xlim(result.ph[0], result.ph[-1])
-    ax.set_title(f"Probability of meeting every specification ({result.n_draws} draws, "
-                 f"{result.uncertainty_source})", fontsize=9)
+    title = (f"Probability of meeting every specification ({result.n_draws} draws, "
+             f"{result.uncertainty_source})")
+    if result.status:
+        title += f"\nstatus: {result.status}"
+    ax.set_title(title, fontsize=9)
     ax.legend(fontsize=7, loc="best")
     return _save(fig, path)
 

@@ -18,6 +18,7 @@ __all__ = ["WindowResult", "REPORT_HEADINGS"]
 #: Headings of :meth:`WindowResult.report`, always present and in this order.
 REPORT_HEADINGS = (
     "pH window",
+    "Status",
     "Settings",
     "Specifications",
     "Decision",
@@ -61,22 +62,27 @@ class WindowResult:
     probability, probability_standard_error
         (n_ph,) [-]; for a 2-D scan, at the factor value ``nominal_factor``.
     worst_case_probability
-        (n_ph,) lowest probability within +/- tolerance [-]; NaN where the
-        band leaves the grid.
+        (n_ph,) lowest pointwise probability within +/- tolerance [-]; NaN
+        where the band leaves the grid.  Never below the robust probability;
+        not used for the robust set points.
     robust_probability_per_draw
-        (n_ph,) fraction of draws meeting every specification at every grid
-        pH within +/- tolerance [-].
+        (n_ph,) share of draws meeting every specification at every pH
+        within +/- tolerance [-] (from the refined pass intervals); NaN where
+        the band leaves the grid.
     windows
-        Intervals (low, high) [pH] where probability >= level.
+        Intervals (low, high) [pH] where probability >= level; edges located
+        to ``resolution`` by bisection on simulations.
     primary_window
         The window containing the best point, else the widest; None if none.
     robust_windows
-        Set-point intervals whose whole drift band keeps probability >= level.
+        The robust set points: where a share >= level of the draws meets
+        every specification at every pH within +/- tolerance; edges located
+        to ``resolution``.
     robust_windows_per_draw
-        Same with the per-draw robust probability (grid resolution).
+        The same intervals (kept so older readers of ``window.json`` work).
     best_ph, best_probability
-        Set point with the highest worst-case probability over the drift band
-        (highest probability when no band fits in the grid) [pH], [-].
+        Set point with the highest robust probability (middle of the longest
+        tie; highest probability when no band fits in the grid) [pH], [-].
     outcome_names
         Molecules (or outcomes) in the bands.
     outcome_median, outcome_lower, outcome_upper
@@ -93,6 +99,22 @@ class WindowResult:
         Draws whose outcomes were not finite at some point (counted as failing).
     warnings
         Plain-language findings.
+    curve_ph, curve_probability, curve_robust_probability
+        The probability and the robust probability as step functions sampled
+        every ``resolution / 2`` pH: what the figure draws; their crossings of
+        ``level`` are the window and robust edges.
+    resolution
+        Width [pH units] to which pass/fail changes were located.
+    n_refinement_simulations
+        (draw, pH) simulations used by the bisection.
+    status
+        Trust status in plain words: "established", "provisional" or
+        "not established" (:mod:`speciakin.decision.gates`); None when no
+        gate was evaluated.
+    status_reasons
+        Why the status is not "established" (empty when it is).
+    gates
+        One dict per gate: name, verdict, reasons, figures.
     """
 
     level: float
@@ -125,12 +147,28 @@ class WindowResult:
     map_robust_windows: list[list[tuple[float, float]]] | None = None
     n_failed_draws: int = 0
     warnings: list[str] = field(default_factory=list)
+    curve_ph: np.ndarray | None = None
+    curve_probability: np.ndarray | None = None
+    curve_robust_probability: np.ndarray | None = None
+    resolution: float | None = None
+    n_refinement_simulations: int = 0
+    status: str | None = None
+    status_reasons: list[str] = field(default_factory=list)
+    gates: list[dict[str, Any]] = field(default_factory=list)
 
     # ------------------------------------------------------------------ text
     def report(self) -> str:
         """Plain-text report with the fixed headings of :data:`REPORT_HEADINGS`."""
-        h = REPORT_HEADINGS
-        lines = [f"== {h[0]} =="]
+        lines = [f"== {REPORT_HEADINGS[0]} =="]
+        lines.append(f"[{REPORT_HEADINGS[1]}]")
+        if self.status is None:
+            lines.append("  not assessed (no trust gates were evaluated)")
+        else:
+            lines.append(f"  {self.status.upper()}")
+            lines += [f"  - {r}" for r in self.status_reasons]
+            checked = [g for g in self.gates if g.get("verdict") == "not checked"]
+            lines += [f"  (not checked: {g['name']}: {'; '.join(g.get('reasons', []))})" for g in checked]
+        h = REPORT_HEADINGS[1:]
         lines.append(f"[{h[1]}]")
         lines.append(f"  level                  {self.level:.3g}")
         lines.append(f"  pH tolerance           +/- {self.tolerance:.3g}")
@@ -138,6 +176,9 @@ class WindowResult:
                      f"({self.ph.size} points)")
         lines.append(f"  draws                  {self.n_draws}")
         lines.append(f"  uncertainty source     {self.uncertainty_source}")
+        if self.resolution is not None:
+            lines.append(f"  edge resolution        {self.resolution:g} pH (bisection, "
+                         f"{self.n_refinement_simulations} extra simulations)")
         if self.factor_name:
             vals = ", ".join(f"{v:g}" for v in self.factor_values)
             lines.append(f"  second factor          {self.factor_name} [{self.factor_unit}]: {vals}")
@@ -154,14 +195,14 @@ class WindowResult:
             lines.append(f"  no pH meets every specification with probability >= {self.level:g}")
         lines.append("  robust set points      " + (_fmt_intervals(self.robust_windows)
                                                    if self.robust_windows else "none"))
-        lines.append("  robust (per draw)      " + (_fmt_intervals(self.robust_windows_per_draw)
-                                                   if self.robust_windows_per_draw else "none"))
+        lines.append(f"    (a share >= {self.level:g} of the draws meets every specification at "
+                     f"every pH within +/- {self.tolerance:g})")
         if self.best_ph is not None:
             what = "best set point      " if self.windows else "highest probability "
             lines.append(f"  {what}   pH {self.best_ph:.2f} "
                          f"(probability {self.best_probability:.3f})")
         lines.append(f"[{h[4]}]")
-        lines.append("   pH     p      MC s.e.  worst(+/-tol)  per-draw robust")
+        lines.append("   pH     p      MC s.e.  worst(+/-tol)  robust (+/-tol)")
         for k, x in enumerate(self.ph):
             lines.append(f"  {x:5.2f}  {self.probability[k]:.3f}  {self.probability_standard_error[k]:.4f}"
                          f"   {_fmt(self.worst_case_probability[k])}          "
@@ -254,6 +295,14 @@ class WindowResult:
             else [_intervals(row) for row in data["map_robust_windows"]],
             n_failed_draws=int(data.get("n_failed_draws", 0)),
             warnings=list(data.get("warnings", [])),
+            curve_ph=arr("curve_ph"),
+            curve_probability=arr("curve_probability"),
+            curve_robust_probability=arr("curve_robust_probability"),
+            resolution=num("resolution"),
+            n_refinement_simulations=int(data.get("n_refinement_simulations", 0)),
+            status=data.get("status"),
+            status_reasons=list(data.get("status_reasons", [])),
+            gates=[dict(g) for g in data.get("gates", [])],
         )
 
 

@@ -14,6 +14,12 @@ Defaults used by the project (documented in docs/sampling.md):
 * log10 of a rate constant: ``uniform(lower, upper)`` within its bounds;
 * error scales: weakly informative ``halfnormal(scale=...)``.
 
+Bounds: a fitted quantity's model-file bounds truncate its prior
+(:meth:`PriorDistribution.truncated`): the log-density is -inf outside the
+bounds and is renormalised inside them (divided by the prior mass between
+the bounds, from the family's cumulative distribution function), so a
+walker can never leave the bounds and the density integrates to one.
+
 References
 ----------
 Gelman, A. et al., Bayesian Data Analysis, 3rd ed., CRC Press 2013,
@@ -23,6 +29,7 @@ distributions).
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Mapping
 
@@ -59,13 +66,25 @@ __all__ = [
 
 @dataclass(frozen=True)
 class PriorDistribution:
-    """A validated prior: a registered family with its parameter values.
+    """A validated prior: a registered family with its parameter values,
+    optionally truncated to bounds.
 
-    Build it with :func:`build_prior`.  All methods are vectorised.
+    Build it with :func:`build_prior`; truncate it with :meth:`truncated`.
+    All methods are vectorised.
+
+    Attributes
+    ----------
+    family, parameters
+        Registry key and parameter values.
+    lower, upper
+        Truncation bounds on the parameter's scale (infinite = none): the
+        density is -inf outside and divided by the prior mass between them.
     """
 
     family: str
     parameters: Mapping[str, float] = field(default_factory=dict)
+    lower: float = -math.inf
+    upper: float = math.inf
 
     @property
     def _family(self) -> PriorFamily:
@@ -75,25 +94,83 @@ class PriorDistribution:
     def _values(self) -> tuple[float, ...]:
         return tuple(self.parameters[n] for n in self._family.parameter_names)
 
+    @property
+    def is_truncated(self) -> bool:
+        """True when finite bounds cut into the family's own support."""
+        lo, hi = self._family.support(*self._values)
+        return bool(self.lower > lo or self.upper < hi)
+
+    def _mass_bounds(self) -> tuple[float, float]:
+        """Cumulative probability of the family at the two bounds."""
+        cdf = self._family.cdf
+        lo = 0.0 if math.isinf(self.lower) else float(cdf(self.lower, *self._values))
+        hi = 1.0 if math.isinf(self.upper) else float(cdf(self.upper, *self._values))
+        return lo, hi
+
+    def log_mass(self) -> float:
+        """log of the family's probability between the bounds (0 when not truncated)."""
+        if not self.is_truncated:
+            return 0.0
+        lo, hi = self._mass_bounds()
+        return math.log(hi - lo) if hi > lo else -math.inf
+
     def log_density(self, x) -> np.ndarray:
-        """Log prior density at ``x`` (array); -inf outside the support."""
-        return np.asarray(self._family.log_density(x, *self._values), dtype=float)
+        """Log prior density at ``x`` (array); -inf outside the support and the bounds.
+
+        Inside the bounds the family's density is divided by its mass
+        between them, so the truncated density integrates to one.
+        """
+        x = np.asarray(x, dtype=float)
+        value = np.asarray(self._family.log_density(x, *self._values), dtype=float)
+        if math.isinf(self.lower) and math.isinf(self.upper):
+            return value
+        inside = (x >= self.lower) & (x <= self.upper)
+        return np.where(inside, value - self.log_mass(), -np.inf)
 
     def draw(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        """``size`` independent draws, from a numpy Generator."""
-        return np.asarray(self._family.draw(rng, size, *self._values), dtype=float)
+        """``size`` independent draws, from a numpy Generator (inverse CDF when truncated)."""
+        if not self.is_truncated:
+            return np.asarray(self._family.draw(rng, size, *self._values), dtype=float)
+        lo, hi = self._mass_bounds()
+        u = lo + (hi - lo) * rng.uniform(size=size)
+        x = np.asarray(self._family.ppf(u, *self._values), dtype=float)
+        return np.clip(x, *self.support())
 
     def support(self) -> tuple[float, float]:
-        """(lower, upper) of the support; may be infinite."""
+        """(lower, upper) of the support within the bounds; may be infinite."""
         lo, hi = self._family.support(*self._values)
-        return float(lo), float(hi)
+        return max(float(lo), self.lower), min(float(hi), self.upper)
+
+    def truncated(self, lower: float | None, upper: float | None,
+                  location: Location | None = None) -> "PriorDistribution":
+        """The same prior cut to [lower, upper] (None or infinite = no bound), renormalised.
+
+        Raises
+        ------
+        InputError
+            When the prior puts no probability between the bounds.
+        """
+        lo = max(self.lower, -math.inf if lower is None else float(lower))
+        hi = min(self.upper, math.inf if upper is None else float(upper))
+        out = PriorDistribution(self.family, dict(self.parameters), lo, hi)
+        s_lo, s_hi = out.support()
+        if not s_lo < s_hi or not math.isfinite(out.log_mass()):
+            raise InputError(f"the prior {self.describe()} puts no probability between the bounds",
+                             location or Location(), [lower, upper],
+                             "bounds that overlap the prior's support and mass")
+        return out
 
     def describe(self) -> str:
-        """Text for reports, e.g. ``normal(mean=0, sd=0.5)``."""
-        return self._family.describe(*self._values)
+        """Text for reports, e.g. ``normal(mean=0, sd=0.5) within [-1, 1]``."""
+        text = self._family.describe(*self._values)
+        if self.is_truncated:
+            text += f" within [{self.lower:g}, {self.upper:g}]"
+        return text
 
     def to_dict(self) -> dict:
         return {"family": self.family, "parameters": dict(self.parameters),
+                "lower": None if math.isinf(self.lower) else self.lower,
+                "upper": None if math.isinf(self.upper) else self.upper,
                 "text": self.describe()}
 
 
@@ -168,7 +245,8 @@ def build_prior(prior: Prior | PriorDistribution | None, default: Prior | PriorD
         raise InputError("no prior given and no default", location, None,
                          "a prior with a family from " + ", ".join(sorted(PRIOR_FAMILIES)))
     if isinstance(chosen, PriorDistribution):
-        chosen = Prior(chosen.family, dict(chosen.parameters))
+        return _check(Prior(chosen.family, dict(chosen.parameters)), location).truncated(
+            chosen.lower, chosen.upper, location)
     return _check(chosen, location)
 
 

@@ -38,20 +38,25 @@ def campaign_priors(objective: CampaignObjective) -> list:
       within the bounds;
     * a pH-probe offset without bounds: normal(0, 0.1); other unbounded
       quantities: normal(start, 3) on the fitted scale (weak).
+
+    Every prior, stated or default, is truncated to the parameter's
+    model-file bounds (-inf log-density outside, renormalised inside), so
+    no walker can leave the bounds in any prior family.
     """
     priors = []
     for p in objective.parameters:
         where = Location(file=objective.model.source or None, key=p.name)
         if p.prior is not None:
-            priors.append(build_prior(p.prior, location=where))
+            prior = build_prior(p.prior, location=where)
         elif p.shift:
-            priors.append(default_pka_shift_prior())
+            prior = default_pka_shift_prior()
         elif math.isfinite(p.lower) and math.isfinite(p.upper):
-            priors.append(build_prior(Prior("uniform", {"lower": p.lower, "upper": p.upper}), location=where))
+            prior = build_prior(Prior("uniform", {"lower": p.lower, "upper": p.upper}), location=where)
         elif p.kind == "probe_offset":
-            priors.append(build_prior(Prior("normal", {"mean": 0.0, "sd": 0.1}), location=where))
+            prior = build_prior(Prior("normal", {"mean": 0.0, "sd": 0.1}), location=where)
         else:
-            priors.append(build_prior(Prior("normal", {"mean": p.value, "sd": 3.0}), location=where))
+            prior = build_prior(Prior("normal", {"mean": p.value, "sd": 3.0}), location=where)
+        priors.append(prior.truncated(p.lower, p.upper, where))
     return priors
 
 

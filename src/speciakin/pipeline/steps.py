@@ -133,7 +133,8 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
     n = int(draws or process.n_draws)
     theta, source, notes = window_draws(fit, posterior, n, seed if seed is not None else process.seed)
     result = window_for_campaign(objective, process, theta, source,
-                                 progress=tracker("window", progress, cancel) if (progress or cancel) else None)
+                                 progress=tracker("window", progress, cancel) if (progress or cancel) else None,
+                                 fit=fit, posterior=posterior)
     if notes:
         result.warnings.extend(notes)
     outputs.save_window(out, result)
@@ -159,7 +160,9 @@ def window_text(window) -> str:
         return "none" if not x else f"pH {x[0]:.2f} to {x[1]:.2f}"
 
     robust = max(window.robust_windows, key=lambda w: w[1] - w[0]) if window.robust_windows else None
-    return (f"recommended {fmt(window.primary_window)} at probability >= {window.level:g}, "
+    status = getattr(window, "status", None)
+    return ((f"{status.upper()}: " if status else "")
+            + f"recommended {fmt(window.primary_window)} at probability >= {window.level:g}, "
             f"robust to +/- {window.tolerance:g} pH: {fmt(robust)}")
 
 

@@ -84,7 +84,7 @@ def window_draws(fit=None, posterior=None, n: int = 500, seed: int | None = None
     return d.draws, COVARIANCE, notes
 
 
-def window_for_campaign(objective, process, draws, source: str, progress=None):
+def window_for_campaign(objective, process, draws, source: str, progress=None, *, fit=None, posterior=None):
     """Probability that the planned process meets every specification, against pH.
 
     Parameters
@@ -98,12 +98,23 @@ def window_for_campaign(objective, process, draws, source: str, progress=None):
         (n_draws, p) fitted-parameter vectors.
     source
         Where the draws came from (:data:`POSTERIOR` or :data:`COVARIANCE`).
+    fit, posterior
+        The campaign fit (profiles) and posterior (convergence) the draws
+        come from, for the trust gates; None = not available.
 
     Returns
     -------
     WindowResult
+        With ``status``, ``status_reasons`` and ``gates`` set.
     """
     names = process_outcome_names(objective.model, process)
-    return compute_window(process_outcome_function(objective, process), np.asarray(draws, float),
-                          outcome_names=names, uncertainty_source=source, progress=progress,
-                          **process_scan_arguments(process))
+    outcome_fn = process_outcome_function(objective, process)
+    result = compute_window(outcome_fn, np.asarray(draws, float),
+                            outcome_names=names, uncertainty_source=source, progress=progress,
+                            **process_scan_arguments(process))
+    # --- trust gates (decision/gates.py): status, reasons -------------------------------
+    from speciakin.decision.trust_inputs import apply_gates, campaign_gate_inputs
+    apply_gates(result, campaign_gate_inputs(objective, process, result, draws, source, fit=fit,
+                                             posterior=posterior, outcome_fn=outcome_fn))
+    # --- end trust gates -----------------------------------------------------------------
+    return result
