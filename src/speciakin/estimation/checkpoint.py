@@ -48,6 +48,10 @@ class Checkpoint:
     settings
         JSON-ready run settings (parameter names, n_walkers, seed, thin_by,
         ...); used to refuse resuming a different run.
+    stop_checks
+        JSON-ready convergence checks made so far (dicts of
+        :class:`speciakin.estimation.stopping.StopCheck`); empty for a run of
+        fixed length and in files written before checks existed.
     """
 
     chain: np.ndarray
@@ -55,6 +59,7 @@ class Checkpoint:
     accepted: np.ndarray
     random_state: tuple
     settings: dict = field(default_factory=dict)
+    stop_checks: list = field(default_factory=list)
 
     @property
     def iteration(self) -> int:
@@ -68,6 +73,7 @@ def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
         with h5py.File(tmp, "w") as fh:
             fh.attrs["format"] = CHECKPOINT_FORMAT
             fh.attrs["settings"] = json.dumps(checkpoint.settings)
+            fh.attrs["stop_checks"] = json.dumps(checkpoint.stop_checks)
             fh.create_dataset("chain", data=np.asarray(checkpoint.chain, dtype=float))
             fh.create_dataset("log_prob", data=np.asarray(checkpoint.log_prob, dtype=float))
             fh.create_dataset("accepted", data=np.asarray(checkpoint.accepted, dtype=float))
@@ -98,6 +104,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 raise InputError("not a sampler checkpoint", where, fh.attrs.get("format"),
                                  f"format {CHECKPOINT_FORMAT}")
             settings = json.loads(fh.attrs["settings"])
+            stop_checks = json.loads(fh.attrs["stop_checks"]) if "stop_checks" in fh.attrs else []
             chain = fh["chain"][...]
             log_prob = fh["log_prob"][...]
             accepted = fh["accepted"][...]
@@ -111,4 +118,4 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     except KeyError as exc:
         raise InputError(f"checkpoint file is incomplete: missing {exc}", where, None,
                          "an HDF5 checkpoint written by speciakin") from None
-    return Checkpoint(chain, log_prob, accepted, random_state, settings)
+    return Checkpoint(chain, log_prob, accepted, random_state, settings, stop_checks)
