@@ -171,7 +171,7 @@ def load_fit(out: Path):
                          expected="a fit.json written by 'speciakin fit'") from None
 
 
-def sample_step(objective, fit, out: Path, *, n_steps: int = 2000, n_walkers: int | None = None,
+def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walkers: int | None = None,
                 seed: int = 1, resume: bool = False, jobs: int = 1, scheduler=None, progress=True,
                 proposal: str | None = None):
     """Posterior by emcee from the least-squares optimum; checkpoints to
@@ -269,7 +269,7 @@ def report_step(out: Path, *, model, campaign, objective=None, fit=None, posteri
     return render_all(doc, out, "report", list(formats))
 
 
-def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: int = 2000,
+def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: int | None = None,
             n_walkers=None, jobs: int = 1, scheduler=None, resume: bool = False, profiles: bool = True,
             draws=None, invented: bool = False, say: Callable[[str], None] = lambda s: None,
             progress_factory: Callable | None = None, state: dict | None = None,
@@ -312,7 +312,8 @@ def run_all(inputs: Inputs, out: Path, *, starts=None, seed: int = 1, n_steps: i
     posterior_figures(posterior, out)
     timings["sample"] = time.perf_counter() - t
     say(f"sample: {posterior.n_walkers} walkers x {posterior.n_steps} steps, "
-        f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s)")
+        f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s); "
+        f"stopped: {posterior.stop_message}")
 
     window = None
     if process is not None:

@@ -3,7 +3,9 @@
 A checkpoint holds everything needed to continue a run exactly where it
 stopped: the chain and log-posterior so far, the accepted-move counts, the
 state of the sampler's random number generator after the last completed
-step, and the run settings (parameter names, walkers, seed, thinning).
+step, the run settings (parameter names, walkers, seed, thinning, and for a
+run that stops when converged its stop rule) and the convergence checks made
+so far (:mod:`speciakin.estimation.stopping`).
 
 Each write goes to a temporary file in the same folder, is flushed and
 fsync'ed, and then renamed over the previous checkpoint (``os.replace`` is
