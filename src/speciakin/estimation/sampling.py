@@ -10,7 +10,9 @@ over local processes or a Dask cluster, checkpoints to disk and resumes, and
 returns a :class:`PosteriorResult`.  The moves are chosen by name from
 :data:`speciakin.estimation.proposals.PROPOSALS`: the stretch move, or (given
 the least-squares covariance) an independence Student-t move mixed with
-differential evolution.
+differential evolution.  By default the run stops when converged (checks of
+the stored chain at fixed steps, :mod:`speciakin.estimation.stopping`), at
+the latest at a cap; ``n_steps`` asks for a fixed length instead.
 
 References
 ----------
@@ -293,12 +295,15 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         ``"tcp://host:port"`` of a Dask distributed scheduler (or a
         ``distributed.Client``); overrides ``jobs``.
     progress
-        True = tqdm bar with time left; a callable is called as
-        ``progress(steps_done, steps_total, seconds_left)``; False = silent.
+        True = tqdm bar with time left (against the cap when running until
+        converged, showing the last check); a callable is called as
+        ``progress(steps_done, steps_total, seconds_left)`` (``steps_total`` =
+        the cap when running until converged); False = silent.
     thin_by
         Store every ``thin_by``-th step.
     target_tau_multiple
-        Chain length needed in autocorrelation times (default 50).
+        Chain length needed in autocorrelation times (default 50); a
+        convergence criterion of the stop rule and of the diagnostics.
     start_ball
         Size of the start ball in units of ``start_scale``.
     proposal
@@ -315,6 +320,8 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     Returns
     -------
     PosteriorResult
+        With ``stop_reason`` ("converged", "cap" or "fixed"), ``stop_message``
+        and ``stop_checks``.
 
     Raises
     ------
@@ -437,7 +444,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                         last_save_time, last_save_step = now, backend.iteration
                     if stop:
                         break
-            elif remaining <= 0 and not (checks and checks[-1].step == done * thin_by):
+            elif remaining <= 0:
                 converged_now(done)  # a resumed run at or past the cap: its final check
         except KeyboardInterrupt:
             save()
