@@ -161,9 +161,22 @@ def rank_normalised_r_hat(draws: np.ndarray) -> float:
     normalisation and the folded draws |x - median|).
     """
     split = _split_chains(np.asarray(draws, dtype=float))
+    return _r_hat_of_split(split, _normal_scores(split))
+
+
+def _r_hat_of_split(split: np.ndarray, scores: np.ndarray) -> float:
+    """R-hat from split chains and their normal scores (shared so that the scores are ranked once)."""
     folded = np.abs(split - np.median(split))
-    value = max(_basic_r_hat(_normal_scores(split)), _basic_r_hat(_normal_scores(folded)))
+    value = max(_basic_r_hat(scores), _basic_r_hat(_normal_scores(folded)))
     return value if math.isfinite(value) else math.inf
+
+
+def _finite_ess(value: float) -> float:
+    return value if math.isfinite(value) else 0.0
+
+
+def _tail_ess_of_split(split: np.ndarray) -> float:
+    return _finite_ess(min(_basic_ess((split <= np.quantile(split, q)).astype(float)) for q in (0.05, 0.95)))
 
 
 def effective_sample_size(draws: np.ndarray, kind: str = "bulk") -> float:
@@ -175,12 +188,10 @@ def effective_sample_size(draws: np.ndarray, kind: str = "bulk") -> float:
     """
     split = _split_chains(np.asarray(draws, dtype=float))
     if kind == "bulk":
-        value = _basic_ess(_normal_scores(split))
-    elif kind == "tail":
-        value = min(_basic_ess((split <= np.quantile(split, q)).astype(float)) for q in (0.05, 0.95))
-    else:
-        raise ValueError(f"kind must be 'bulk' or 'tail', not {kind!r}")
-    return value if math.isfinite(value) else 0.0
+        return _finite_ess(_basic_ess(_normal_scores(split)))
+    if kind == "tail":
+        return _tail_ess_of_split(split)
+    raise ValueError(f"kind must be 'bulk' or 'tail', not {kind!r}")
 
 
 def monte_carlo_standard_error(draws: np.ndarray) -> float:
@@ -321,9 +332,12 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray |
     for j in range(n_params):
         draws = kept[:, :, j].T  # walkers as chains: (n_walkers, n_kept)
         if n_kept >= 4:
-            r_hat.append(rank_normalised_r_hat(draws))
-            ess_bulk.append(effective_sample_size(draws, "bulk"))
-            ess_tail.append(effective_sample_size(draws, "tail"))
+            # as rank_normalised_r_hat and effective_sample_size, with the normal scores ranked once
+            split = _split_chains(draws)
+            scores = _normal_scores(split)
+            r_hat.append(_r_hat_of_split(split, scores))
+            ess_bulk.append(_finite_ess(_basic_ess(scores)))
+            ess_tail.append(_tail_ess_of_split(split))
             mcse.append(monte_carlo_standard_error(draws))
         else:
             r_hat.append(math.inf)
