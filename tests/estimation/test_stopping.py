@@ -290,3 +290,18 @@ def test_resume_after_kill_9_stops_at_the_same_step(tmp_path, converged_run):
     resumed = gaussian_run(checkpoint=path, resume=True)
     assert np.array_equal(resumed.chain, converged_run.chain)
     assert resumed.n_steps == converged_run.n_steps and resumed.stop_checks == converged_run.stop_checks
+
+
+def test_stop_fields_survive_save_and_load(tmp_path, converged_run):
+    import json
+
+    from speciakin.estimation.sampling import PosteriorResult
+
+    path = tmp_path / "posterior.h5"
+    converged_run.save(path)
+    back = PosteriorResult.load(path)
+    for key in ("stop_reason", "stop_message", "stop_checks", "stop_rule"):
+        assert getattr(back, key) == getattr(converged_run, key)
+    assert back.stop_rule == {"check_every": 200, "min_steps": 400, "target_tau_multiple": 50.0,
+                              "r_hat_limit": 1.01, "ess_minimum": 400.0, "max_steps": 5000}
+    json.dumps(converged_run.to_dict(), allow_nan=False)
