@@ -207,5 +207,5 @@ def stop_summary(rule: StopRule | None, checks: list[StopCheck], n_steps: int) -
         return "converged", f"converged at step {last.step}: {last.figures()} ({rule.describe()})"
     text = f"reached the cap of {rule.max_steps} steps without meeting the convergence criteria"
     if last is not None:
-        text += f" (at step {last.step}: " + "; ".join(last.failing) + f"; {last.figures()})"
+        text += f" (not met at step {last.step}: " + "; ".join(last.failing) + ")"
     return "cap", text
