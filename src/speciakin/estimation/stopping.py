@@ -37,8 +37,8 @@ from speciakin.estimation.diagnostics import ESS_MINIMUM, R_HAT_LIMIT, diagnose_
 __all__ = ["StopRule", "StopCheck", "check_chain", "stop_summary", "DEFAULT_CHECK_EVERY",
            "DEFAULT_MIN_STEPS", "DEFAULT_MAX_STEPS", "STOP_REASONS"]
 
-#: Steps between two convergence checks (a check of a few thousand stored steps
-#: costs well under a second; 200 demo steps cost about 20 s).
+#: Steps between two convergence checks (a check of a 1600-step demo chain costs
+#: a few per cent of the 200 steps before it; docs/sampling.md).
 DEFAULT_CHECK_EVERY = 200
 #: No check before this many steps: a tau estimated from a very short chain
 #: reads low (emcee documentation), so the first check waits for some chain.
