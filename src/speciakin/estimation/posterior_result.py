@@ -73,7 +73,7 @@ def _json_ready(value):
 
 @dataclass
 class PosteriorResult:
-    """Result of :func:`sample_posterior`; every field always exists.
+    """Result of :func:`speciakin.estimation.sampling.sample_posterior`; every field always exists.
 
     Attributes
     ----------
