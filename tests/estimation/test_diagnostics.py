@@ -9,6 +9,7 @@ from speciakin.estimation.diagnostics import (
     autocorrelation_time,
     choose_burn_in_and_thin,
     convergence_diagnostics,
+    diagnose_chain,
     effective_sample_size,
     monte_carlo_standard_error,
     rank_normalised_r_hat,
@@ -76,6 +77,26 @@ def test_long_iid_chain_passes():
     d = convergence_diagnostics(chain, np.full(8, 0.35), ["a", "b"], burn_in=0)
     assert d.converged and d.warnings == []
     assert d.to_dict()["converged"] is True
+
+
+def test_too_few_effective_samples_is_not_converged():
+    # 2 walkers x 180 iid steps: long enough (tau ~ 1) and R-hat ~ 1, but about 360 draws in all,
+    # below the 400 of Vehtari et al. 2021 (bulk and tail ESS), which the stop rule requires too
+    chain = np.random.default_rng(3).standard_normal((180, 2, 1))
+    d = convergence_diagnostics(chain, np.full(2, 0.3), ["a"], burn_in=0)
+    assert d.long_enough and d.r_hat[0] <= 1.01 and min(d.ess_bulk[0], d.ess_tail[0]) < 400
+    assert not d.converged and any("effective sample size below 400" in w for w in d.warnings)
+
+
+def test_diagnose_chain_needs_no_acceptance_and_ignores_it_for_convergence():
+    chain = np.random.default_rng(6).standard_normal((600, 8, 2))
+    with_acceptance, burn_in, thin = diagnose_chain(chain, np.full(8, 0.01), ["a", "b"])
+    without, burn_in_2, thin_2 = diagnose_chain(chain, None, ["a", "b"])
+    assert (burn_in, thin) == (burn_in_2, thin_2) == choose_burn_in_and_thin(autocorrelation_time(chain), 600)
+    assert with_acceptance.converged and without.converged
+    assert any("acceptance" in w for w in with_acceptance.warnings)
+    assert not any("acceptance" in w for w in without.warnings)
+    assert without.r_hat == with_acceptance.r_hat and without.ess_tail == with_acceptance.ess_tail
 
 
 @pytest.mark.parametrize("acceptance, expected", [(0.05, True), (0.8, True), (0.3, False)])

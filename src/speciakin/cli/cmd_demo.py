@@ -18,7 +18,6 @@ def add_arguments(parser) -> None:
     parser.epilog = EPILOG
     parser.add_argument("--out", metavar="DIR", default="reports/demo", help="output folder (default reports/demo)")
     add_pipeline_options(parser)
-    parser.set_defaults(steps=2000)
 
 
 def run(args) -> int:

@@ -14,7 +14,8 @@ output stays in the output folder. Open report.html (or report.pdf) when done.""
 
 
 def add_pipeline_options(parser) -> None:
-    parser.add_argument("--steps", type=int, default=2000, help="posterior steps per walker (default 2000)")
+    parser.add_argument("--steps", type=int, default=None,
+                        help="fixed posterior steps per walker (default: until converged, at most 5000)")
     parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
     parser.add_argument("--starts", type=int, default=None, help="least-squares starting points")
     parser.add_argument("--draws", type=int, default=None, help="parameter draws for the window")

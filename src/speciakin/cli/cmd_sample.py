@@ -6,7 +6,8 @@ NAME = "sample"
 HELP = "sample the Bayesian posterior of the fitted parameters (emcee), with checkpoints"
 
 EPILOG = """example:
-  speciakin sample my-campaign --steps 4000 --jobs 2
+  speciakin sample my-campaign --jobs 2                 # until converged (checked every 200 steps, cap 5000)
+  speciakin sample my-campaign --steps 4000             # exactly 4000 steps per walker
   speciakin sample my-campaign --resume                 # continue an interrupted run
   speciakin sample my-campaign --scheduler tcp://10.0.0.5:8786   # an existing Dask cluster
   speciakin sample my-campaign --proposal stretch       # the stretch move only (no fit covariance used)
@@ -20,7 +21,8 @@ def add_arguments(parser) -> None:
 
     parser.epilog = EPILOG
     add_campaign_arguments(parser)
-    parser.add_argument("--steps", type=int, default=2000, help="steps per walker (default 2000)")
+    parser.add_argument("--steps", type=int, default=None,
+                        help="fixed steps per walker (default: until converged, at most 5000)")
     parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
     parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
     parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the likelihood")
@@ -41,7 +43,7 @@ def run(args) -> int:
     from speciakin.errors import InputError, Location
 
     for key, value, minimum in (("--steps", args.steps, 10), ("--jobs", args.jobs, 1)):
-        if value < minimum:
+        if value is not None and value < minimum:
             raise InputError(f"{key} is too small", Location(key=key), value, f"an integer >= {minimum}")
     if args.proposal is not None:
         from speciakin.estimation.proposals import PROPOSALS

@@ -7,10 +7,13 @@ step, and the run settings (parameter names, walkers, seed, thinning).  When
 the run is finished the same file also holds the result (group ``result``:
 JSON metadata of the summary and diagnostics, and the acceptance fractions),
 as a sampler backend keeps chain and state together; the chain is stored once.
+For a run that stops when converged, the settings hold its stop rule and the
+file holds the convergence checks made so far
+(:mod:`speciakin.estimation.stopping`).
 
 Layout (format tag ``speciakin.posterior/1``)::
 
-    attrs: format, settings (JSON)
+    attrs: format, settings (JSON), stop_checks (JSON)
     chain (n_stored, n_walkers, n_params), log_prob (n_stored, n_walkers), accepted (n_walkers,)
     random_state/  keys (624,) + attrs name, pos, has_gauss, cached_gaussian
     result/        (finished runs only) acceptance_fraction (n_walkers,) + attrs metadata (JSON)
@@ -64,6 +67,10 @@ class Checkpoint:
     result
         None while the run is unfinished; then ``{"metadata": dict,
         "acceptance_fraction": array}`` of the finished result.
+    stop_checks
+        JSON-ready convergence checks made so far (dicts of
+        :class:`speciakin.estimation.stopping.StopCheck`); empty for a run of
+        fixed length and in files written before checks existed.
     """
 
     chain: np.ndarray
@@ -72,6 +79,7 @@ class Checkpoint:
     random_state: tuple
     settings: dict = field(default_factory=dict)
     result: dict | None = None
+    stop_checks: list = field(default_factory=list)
 
     @property
     def iteration(self) -> int:
@@ -85,6 +93,7 @@ def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
         with h5py.File(tmp, "w") as fh:
             fh.attrs["format"] = CHECKPOINT_FORMAT
             fh.attrs["settings"] = json.dumps(checkpoint.settings)
+            fh.attrs["stop_checks"] = json.dumps(checkpoint.stop_checks)
             fh.create_dataset("chain", data=np.asarray(checkpoint.chain, dtype=float))
             fh.create_dataset("log_prob", data=np.asarray(checkpoint.log_prob, dtype=float))
             fh.create_dataset("accepted", data=np.asarray(checkpoint.accepted, dtype=float))
@@ -120,6 +129,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 raise InputError("not a sampler checkpoint", where, fh.attrs.get("format"),
                                  f"format {CHECKPOINT_FORMAT}")
             settings = json.loads(fh.attrs["settings"])
+            stop_checks = json.loads(fh.attrs["stop_checks"]) if "stop_checks" in fh.attrs else []
             chain = fh["chain"][...]
             log_prob = fh["log_prob"][...]
             accepted = fh["accepted"][...]
@@ -137,4 +147,4 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     except KeyError as exc:
         raise InputError(f"checkpoint file is incomplete: missing {exc}", where, None,
                          "an HDF5 checkpoint written by speciakin") from None
-    return Checkpoint(chain, log_prob, accepted, random_state, settings, result)
+    return Checkpoint(chain, log_prob, accepted, random_state, settings, result=result, stop_checks=stop_checks)

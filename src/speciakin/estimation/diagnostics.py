@@ -51,6 +51,7 @@ __all__ = [
     "monte_carlo_standard_error",
     "choose_burn_in_and_thin",
     "convergence_diagnostics",
+    "diagnose_chain",
     "ACCEPTANCE_RANGE",
     "R_HAT_LIMIT",
     "ESS_MINIMUM",
@@ -162,9 +163,22 @@ def rank_normalised_r_hat(draws: np.ndarray) -> float:
     normalisation and the folded draws |x - median|).
     """
     split = _split_chains(np.asarray(draws, dtype=float))
+    return _r_hat_of_split(split, _normal_scores(split))
+
+
+def _r_hat_of_split(split: np.ndarray, scores: np.ndarray) -> float:
+    """R-hat from split chains and their normal scores (shared so that the scores are ranked once)."""
     folded = np.abs(split - np.median(split))
-    value = max(_basic_r_hat(_normal_scores(split)), _basic_r_hat(_normal_scores(folded)))
+    value = max(_basic_r_hat(scores), _basic_r_hat(_normal_scores(folded)))
     return value if math.isfinite(value) else math.inf
+
+
+def _finite_ess(value: float) -> float:
+    return value if math.isfinite(value) else 0.0
+
+
+def _tail_ess_of_split(split: np.ndarray) -> float:
+    return _finite_ess(min(_basic_ess((split <= np.quantile(split, q)).astype(float)) for q in (0.05, 0.95)))
 
 
 def effective_sample_size(draws: np.ndarray, kind: str = "bulk") -> float:
@@ -176,12 +190,10 @@ def effective_sample_size(draws: np.ndarray, kind: str = "bulk") -> float:
     """
     split = _split_chains(np.asarray(draws, dtype=float))
     if kind == "bulk":
-        value = _basic_ess(_normal_scores(split))
-    elif kind == "tail":
-        value = min(_basic_ess((split <= np.quantile(split, q)).astype(float)) for q in (0.05, 0.95))
-    else:
-        raise ValueError(f"kind must be 'bulk' or 'tail', not {kind!r}")
-    return value if math.isfinite(value) else 0.0
+        return _finite_ess(_basic_ess(_normal_scores(split)))
+    if kind == "tail":
+        return _tail_ess_of_split(split)
+    raise ValueError(f"kind must be 'bulk' or 'tail', not {kind!r}")
 
 
 def monte_carlo_standard_error(draws: np.ndarray) -> float:
@@ -234,7 +246,10 @@ class ConvergenceDiagnostics:
     r_hat, ess_bulk, ess_tail, ess_autocorrelation, mcse_mean
         Per parameter, after burn-in, walkers as chains (see module doc).
     converged
-        No convergence warning was raised.
+        Every convergence criterion holds: chain length >= ``target_tau_multiple``
+        x the longest tau, R-hat <= ``R_HAT_LIMIT`` and bulk and tail ESS >=
+        ``ESS_MINIMUM`` for every parameter (the same rule stops the sampler,
+        :mod:`speciakin.estimation.stopping`).
     warnings
         Plain-words findings.
     """
@@ -274,8 +289,9 @@ class ConvergenceDiagnostics:
         return json_ready(asdict(self))
 
 
-def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, parameter_names,
-                            burn_in: int, target_tau_multiple: float = 50.0) -> ConvergenceDiagnostics:
+def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray | None, parameter_names,
+                            burn_in: int, target_tau_multiple: float = 50.0,
+                            tau: np.ndarray | None = None) -> ConvergenceDiagnostics:
     """Compute every convergence figure of a chain and the plain-words warnings.
 
     Parameters
@@ -283,13 +299,18 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
     chain
         (n_steps, n_walkers, n_params) stored positions, burn-in included.
     acceptance_fraction
-        (n_walkers,) acceptance fraction per walker.
+        (n_walkers,) acceptance fraction per walker; None when unknown (no
+        acceptance warnings; the acceptance figures are then NaN).  The
+        ``converged`` flag never depends on it: it is a function of the chain.
     parameter_names
         Names of the parameters, in column order.
     burn_in
         Stored steps discarded before R-hat and ESS.
     target_tau_multiple
         Chain length needed, in units of the autocorrelation time.
+    tau
+        Autocorrelation times of ``chain`` when already computed
+        (:func:`autocorrelation_time`); None = compute them.
 
     Returns
     -------
@@ -298,7 +319,7 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
     chain = np.asarray(chain, dtype=float)
     n_steps, n_walkers, n_params = chain.shape
     names = list(parameter_names)
-    tau = autocorrelation_time(chain)
+    tau = autocorrelation_time(chain) if tau is None else np.asarray(tau, dtype=float)
     max_tau = float(np.max(tau)) if n_params else math.inf
     multiple = n_steps / max_tau if math.isfinite(max_tau) and max_tau > 0 else 0.0
     kept = chain[burn_in:]
@@ -307,9 +328,12 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
     for j in range(n_params):
         draws = kept[:, :, j].T  # walkers as chains: (n_walkers, n_kept)
         if n_kept >= 4:
-            r_hat.append(rank_normalised_r_hat(draws))
-            ess_bulk.append(effective_sample_size(draws, "bulk"))
-            ess_tail.append(effective_sample_size(draws, "tail"))
+            # as rank_normalised_r_hat and effective_sample_size, with the normal scores ranked once
+            split = _split_chains(draws)
+            scores = _normal_scores(split)
+            r_hat.append(_r_hat_of_split(split, scores))
+            ess_bulk.append(_finite_ess(_basic_ess(scores)))
+            ess_tail.append(_tail_ess_of_split(split))
             mcse.append(monte_carlo_standard_error(draws))
         else:
             r_hat.append(math.inf)
@@ -317,7 +341,8 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
             ess_tail.append(0.0)
             mcse.append(math.inf)
         ess_tau.append(n_walkers * n_kept / tau[j] if math.isfinite(tau[j]) else 0.0)
-    acceptance = np.asarray(acceptance_fraction, dtype=float)
+    acceptance = (np.full(n_walkers, np.nan) if acceptance_fraction is None
+                  else np.asarray(acceptance_fraction, dtype=float))
     found: list[str] = []
     converged = True
     if multiple < target_tau_multiple:
@@ -331,11 +356,12 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
             found.append("not converged: the autocorrelation time cannot be estimated "
                          f"(parameter {worst} does not move); run longer or check the model")
     lo, hi = ACCEPTANCE_RANGE
+    known = acceptance_fraction is not None and acceptance.size > 0
     mean_acc = float(acceptance.mean()) if acceptance.size else 0.0
-    if not lo <= mean_acc <= hi:
+    if known and not lo <= mean_acc <= hi:
         found.append(f"acceptance fraction {mean_acc:.2f} is outside {lo:g}-{hi:g} (common practice): "
                      "the posterior may be badly scaled or multimodal")
-    stuck = int(np.sum(acceptance < 0.2 * np.median(acceptance))) if acceptance.size else 0
+    stuck = int(np.sum(acceptance < 0.2 * np.median(acceptance))) if known else 0
     if stuck:
         found.append(f"{stuck} walker(s) accept less than a fifth of the median: they may be stuck")
     bad_rhat = [f"{n} ({r:.3f})" for n, r in zip(names, r_hat) if not r <= R_HAT_LIMIT]
@@ -345,6 +371,8 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
                      + ": walkers disagree, run longer")
     low_ess = [f"{n} ({min(b, t, a):.0f})" for n, b, t, a in zip(names, ess_bulk, ess_tail, ess_tau)
                if min(b, t, a) < ESS_MINIMUM]
+    if any(not min(b, t) >= ESS_MINIMUM for b, t in zip(ess_bulk, ess_tail)):
+        converged = False
     if low_ess:
         found.append(f"effective sample size below {ESS_MINIMUM:g} for " + ", ".join(low_ess)
                      + ": intervals are imprecise, run longer")
@@ -357,3 +385,39 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray, 
         r_hat=[float(x) for x in r_hat], ess_bulk=[float(x) for x in ess_bulk],
         ess_tail=[float(x) for x in ess_tail], ess_autocorrelation=[float(x) for x in ess_tau],
         mcse_mean=[float(x) for x in mcse], converged=converged, warnings=found)
+
+
+def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, parameter_names,
+                   target_tau_multiple: float = 50.0) -> tuple[ConvergenceDiagnostics, int, int]:
+    """Burn-in, thinning and every convergence figure of a chain, from the chain alone.
+
+    The burn-in and thinning follow :func:`choose_burn_in_and_thin` from the
+    autocorrelation times of the whole chain; R-hat and ESS are computed on
+    the part after the burn-in.  The result (in particular ``converged``)
+    depends only on ``chain`` and ``target_tau_multiple`` (the acceptance
+    fractions feed warnings only), which is what lets a resumed run take the
+    same stop decision as an uninterrupted one.
+
+    Parameters
+    ----------
+    chain
+        (n_steps, n_walkers, n_params) stored positions, burn-in included.
+    acceptance_fraction
+        (n_walkers,) acceptance fraction per walker, or None.
+    parameter_names
+        Names of the parameters, in column order.
+    target_tau_multiple
+        Chain length needed, in units of the autocorrelation time.
+
+    Returns
+    -------
+    diagnostics, burn_in, thin
+        :class:`ConvergenceDiagnostics`, and the burn-in [stored steps] and
+        thinning of the kept samples.
+    """
+    chain = np.asarray(chain, dtype=float)
+    tau = autocorrelation_time(chain)
+    burn_in, thin = choose_burn_in_and_thin(tau, chain.shape[0])
+    diagnostics = convergence_diagnostics(chain, acceptance_fraction, parameter_names, burn_in,
+                                          target_tau_multiple, tau=tau)
+    return diagnostics, burn_in, thin

@@ -10,7 +10,9 @@ over local processes or a Dask cluster, checkpoints to disk and resumes, and
 returns a :class:`PosteriorResult`.  The moves are chosen by name from
 :data:`speciakin.estimation.proposals.PROPOSALS`: the stretch move, or (given
 the least-squares covariance) an independence Student-t move mixed with
-differential evolution.
+differential evolution.  By default the run stops when converged (checks of
+the stored chain at fixed steps, :mod:`speciakin.estimation.stopping`), at
+the latest at a cap; ``n_steps`` asks for a fixed length instead.
 
 References
 ----------
@@ -22,240 +24,28 @@ Hammer", PASP 2013, 125, 306.
 
 from __future__ import annotations
 
-import json
 import math
-import os
 import time
-from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Callable, Sequence
 
 import emcee
 import numpy as np
 
-from speciakin._io import atomic_path
 from speciakin.errors import InputError, Location, SolverError
 from speciakin.estimation.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
-from speciakin.estimation.diagnostics import (ConvergenceDiagnostics, autocorrelation_time,
-                                              choose_burn_in_and_thin, convergence_diagnostics)
+from speciakin.estimation.diagnostics import diagnose_chain
 from speciakin.estimation.parallel import make_evaluator
+from speciakin.estimation.posterior_result import ParameterSummary, PosteriorResult, summarise
 from speciakin.estimation.priors import PriorDistribution, build_prior, joint_log_prior
 from speciakin.estimation.proposals import PROPOSALS, build_moves, proposal_fingerprint
+from speciakin.estimation.stopping import (DEFAULT_CHECK_EVERY, DEFAULT_MAX_STEPS, DEFAULT_MIN_STEPS,
+                                           StopCheck, StopRule, check_chain, stop_summary)
 
 __all__ = ["sample_posterior", "LogPosterior", "initial_walkers", "PosteriorResult",
            "ParameterSummary", "summarise"]
 
 _MAX_START_ROUNDS = 100
-
-
-@dataclass
-class ParameterSummary:
-    """Posterior summary of one parameter (units of the fitted scale).
-
-    Attributes
-    ----------
-    name, mean, sd, median, lower_95, upper_95
-        Name; posterior mean, standard deviation, median, 2.5 % and 97.5 %
-        quantiles of the kept samples.
-    mcse_mean
-        Monte Carlo standard error of the mean (Vehtari et al. 2021, via ArviZ).
-    r_hat
-        Rank-normalised split R-hat (walkers as chains).
-    """
-
-    name: str
-    mean: float
-    sd: float
-    median: float
-    lower_95: float
-    upper_95: float
-    mcse_mean: float
-    r_hat: float
-
-
-def summarise(names, samples: np.ndarray, diagnostics: ConvergenceDiagnostics) -> list[ParameterSummary]:
-    """Per-parameter summary of flat samples (n_samples, n_params)."""
-    out = []
-    for j, name in enumerate(names):
-        x = samples[:, j]
-        q = np.quantile(x, [0.025, 0.5, 0.975]) if x.size else np.full(3, np.nan)
-        out.append(ParameterSummary(str(name), float(np.mean(x)) if x.size else math.nan,
-                                    float(np.std(x, ddof=1)) if x.size > 1 else math.nan,
-                                    float(q[1]), float(q[0]), float(q[2]),
-                                    float(diagnostics.mcse_mean[j]), float(diagnostics.r_hat[j])))
-    return out
-
-
-def _json_ready(value):
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, dict):
-        return {k: _json_ready(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_json_ready(v) for v in value]
-    return value
-
-
-@dataclass
-class PosteriorResult:
-    """Result of :func:`sample_posterior`; every field always exists.
-
-    Attributes
-    ----------
-    parameter_names
-        Names in column order.
-    chain
-        (n_stored, n_walkers, n_params) stored positions, burn-in included.
-    log_prob
-        (n_stored, n_walkers) log-posterior of the stored positions.
-    acceptance_fraction
-        (n_walkers,) acceptance fraction of each walker.
-    burn_in, thin
-        Stored steps discarded at the start, and thinning of the kept part.
-    samples
-        (n_samples, n_params) flat kept samples: ``chain[burn_in::thin]``.
-    summary
-        One :class:`ParameterSummary` per parameter.
-    diagnostics
-        :class:`~speciakin.estimation.diagnostics.ConvergenceDiagnostics`.
-    warnings
-        Plain-words warnings (convergence, failed evaluations, start problems).
-    priors
-        Text of each prior.
-    n_walkers, n_steps, thin_by, seed
-        Run settings (n_steps = steps per walker, thin_by = storage thinning).
-    evaluator
-        Where the likelihood ran ("serial", "2 local processes", ...).
-    elapsed_seconds
-        Wall time of this call [s].
-    n_likelihood_evaluations, n_failed_evaluations
-        Counts in this call (a resumed run counts only its own part).
-    resumed_from
-        Stored steps loaded from a checkpoint, or None for a fresh run.
-    proposal
-        Name of the move choice (a key of ``proposals.PROPOSALS``).
-    moves
-        Plain-words description of the moves and their weights.
-    """
-
-    parameter_names: list[str]
-    chain: np.ndarray
-    log_prob: np.ndarray
-    acceptance_fraction: np.ndarray
-    burn_in: int
-    thin: int
-    samples: np.ndarray
-    summary: list[ParameterSummary]
-    diagnostics: ConvergenceDiagnostics
-    warnings: list[str] = field(default_factory=list)
-    priors: list[str] = field(default_factory=list)
-    n_walkers: int = 0
-    n_steps: int = 0
-    thin_by: int = 1
-    seed: int | None = None
-    evaluator: str = "serial"
-    elapsed_seconds: float = 0.0
-    n_likelihood_evaluations: int = 0
-    n_failed_evaluations: int = 0
-    resumed_from: int | None = None
-    proposal: str = "stretch"
-    moves: str = PROPOSALS["stretch"].describe
-
-    @property
-    def converged(self) -> bool:
-        return bool(self.diagnostics.converged)
-
-    def draws(self, n: int, seed: int | None = None) -> np.ndarray:
-        """``n`` parameter sets (n, n_params) drawn from the kept samples.
-
-        Without replacement when ``n`` is at most the number of samples,
-        with replacement otherwise.
-        """
-        if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 1:
-            raise InputError("number of draws is not allowed", Location(key="n"), n, "a whole number >= 1")
-        rng = np.random.default_rng(seed)
-        total = self.samples.shape[0]
-        index = rng.choice(total, size=int(n), replace=int(n) > total)
-        return self.samples[index].copy()
-
-    def trace(self, name: str) -> np.ndarray:
-        """(n_stored, n_walkers) trace of one parameter, for trace plots."""
-        if name not in self.parameter_names:
-            raise InputError("unknown parameter", Location(key="name"), name,
-                             "one of " + ", ".join(self.parameter_names))
-        return self.chain[:, :, self.parameter_names.index(name)]
-
-    def report(self) -> str:
-        """Text report with the fixed headings "Posterior summary", "Convergence", "Warnings"."""
-        head = (f"{'parameter':<28}{'mean':>11}{'sd':>10}{'median':>11}{'2.5 %':>11}{'97.5 %':>11}"
-                f"{'MCSE':>9}")
-        lines = ["Posterior summary", "-----------------",
-                 f"{self.n_walkers} walkers x {self.n_steps} steps (stored every {self.thin_by}), "
-                 f"burn-in {self.burn_in} stored steps, thinned by {self.thin}, "
-                 f"{self.samples.shape[0]} samples kept; seed {self.seed}; likelihood: {self.evaluator}",
-                 f"moves ({self.proposal}): {self.moves}",
-                 head]
-        for s in self.summary:
-            lines.append(f"{s.name:<28}{s.mean:>11.4g}{s.sd:>10.3g}{s.median:>11.4g}"
-                         f"{s.lower_95:>11.4g}{s.upper_95:>11.4g}{s.mcse_mean:>9.2g}")
-        lines.append("priors: " + "; ".join(f"{n}: {p}" for n, p in zip(self.parameter_names, self.priors)))
-        lines += ["", self.diagnostics.report(), "", "Warnings", "--------"]
-        lines += [f"- {w}" for w in self.warnings] or ["none"]
-        return "\n".join(lines)
-
-    def _metadata(self) -> dict:
-        return {"parameter_names": self.parameter_names, "burn_in": self.burn_in, "thin": self.thin,
-                "summary": [asdict(s) for s in self.summary], "diagnostics": asdict(self.diagnostics),
-                "warnings": self.warnings, "priors": self.priors, "n_walkers": self.n_walkers,
-                "n_steps": self.n_steps, "thin_by": self.thin_by, "seed": self.seed,
-                "evaluator": self.evaluator, "elapsed_seconds": self.elapsed_seconds,
-                "n_likelihood_evaluations": self.n_likelihood_evaluations,
-                "n_failed_evaluations": self.n_failed_evaluations, "resumed_from": self.resumed_from,
-                "proposal": self.proposal, "moves": self.moves}
-
-    def to_dict(self) -> dict:
-        """JSON-ready summary (no chain; non-finite numbers become None)."""
-        data = self._metadata()
-        data["acceptance_fraction"] = self.acceptance_fraction.tolist()
-        data["n_samples"] = int(self.samples.shape[0])
-        data["converged"] = self.converged
-        return _json_ready(data)
-
-    def save(self, path: str | os.PathLike) -> None:
-        """Write the result to an HDF5 file atomically (arrays + JSON metadata)."""
-        import h5py
-
-        with atomic_path(path) as tmp:
-            with h5py.File(tmp, "w") as fh:
-                fh.attrs["format"] = "speciakin-posterior-1"
-                fh.attrs["metadata"] = json.dumps(self._metadata())
-                fh.create_dataset("chain", data=self.chain)
-                fh.create_dataset("log_prob", data=self.log_prob)
-                fh.create_dataset("acceptance_fraction", data=self.acceptance_fraction)
-
-    @classmethod
-    def load(cls, path: str | os.PathLike) -> "PosteriorResult":
-        """Read a result written by :meth:`save`."""
-        import h5py
-
-        path = Path(path)
-        where = Location(file=str(path))
-        try:
-            with h5py.File(path, "r") as fh:
-                if fh.attrs.get("format") != "speciakin-posterior-1":
-                    raise InputError("not a posterior result file", where, fh.attrs.get("format"),
-                                     "a file written by PosteriorResult.save")
-                meta = json.loads(fh.attrs["metadata"])
-                chain = fh["chain"][...]
-                log_prob = fh["log_prob"][...]
-                acceptance = fh["acceptance_fraction"][...]
-        except (OSError, KeyError) as exc:
-            raise InputError(f"posterior result cannot be read: {exc}", where, None,
-                             "a file written by PosteriorResult.save") from None
-        samples = chain[meta["burn_in"]::meta["thin"]].reshape(-1, chain.shape[2])
-        return cls(chain=chain, log_prob=log_prob, acceptance_fraction=acceptance, samples=samples,
-                   summary=[ParameterSummary(**s) for s in meta.pop("summary")],
-                   diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
 
 
 class LogPosterior:
@@ -336,7 +126,7 @@ def initial_walkers(log_posterior: Callable, start: np.ndarray, scale: np.ndarra
 
 
 def _check_inputs(parameter_names, priors, start, start_scale, n_walkers, n_steps, thin_by,
-                  checkpoint_every, checkpoint_every_steps, target_tau_multiple):
+                  checkpoint_every, checkpoint_every_steps, target_tau_multiple, stop):
     names = [str(n) for n in parameter_names]
     if not names or len(set(names)) != len(names):
         raise InputError("parameter names must be given and unique", Location(key="parameter_names"),
@@ -368,7 +158,16 @@ def _check_inputs(parameter_names, priors, start, start_scale, n_walkers, n_step
 
     whole(n_walkers, "n_walkers", max(2 * n_params, 2), f"a whole number >= 2 x {n_params} parameters")
     whole(thin_by, "thin_by", 1, "a whole number >= 1")
-    whole(n_steps, "n_steps", thin_by, f"a whole number >= thin_by ({thin_by})")
+    check_every, min_steps, max_steps = stop
+    if n_steps is not None:  # fixed length: the stop-rule settings are not used
+        whole(n_steps, "n_steps", thin_by, f"a whole number >= thin_by ({thin_by}), or None = until converged")
+    else:
+        whole(check_every, "check_every", thin_by, f"a whole number >= thin_by ({thin_by})")
+        if check_every % thin_by:
+            raise InputError("'check_every' is not allowed", Location(key="check_every"), check_every,
+                             f"a multiple of thin_by ({thin_by}): checks are made on stored steps")
+        whole(min_steps, "min_steps", 0, "a whole number >= 0")
+        whole(max_steps, "max_steps", 4 * thin_by, f"a whole number >= 4 x thin_by ({4 * thin_by})")
     if checkpoint_every_steps is not None:
         whole(checkpoint_every_steps, "checkpoint_every_steps", 1, "a whole number >= 1 or None")
     if not (isinstance(checkpoint_every, (int, float)) and math.isfinite(checkpoint_every)
@@ -378,13 +177,28 @@ def _check_inputs(parameter_names, priors, start, start_scale, n_walkers, n_step
     if not (math.isfinite(target_tau_multiple) and target_tau_multiple > 0):
         raise InputError("'target_tau_multiple' is not allowed", Location(key="target_tau_multiple"),
                          target_tau_multiple, "a number > 0")
-    return names, built, start, scale, notes
+    rule = None
+    if n_steps is None:
+        rule = StopRule(int(check_every), int(min_steps), int(max_steps) // thin_by * thin_by,
+                        float(target_tau_multiple))
+    return names, built, start, scale, notes, rule
 
 
 def _settings(names, n_walkers, thin_by, seed, proposal, fingerprint) -> dict:
     return {"parameter_names": names, "n_walkers": int(n_walkers), "thin_by": int(thin_by),
             "seed": None if seed is None else int(seed), "proposal": proposal,
             "proposal_fingerprint": fingerprint}
+
+
+def _check_same_rule(cp: Checkpoint, rule: StopRule | None, path: Path) -> None:
+    """A checkpoint of a run that stops when converged resumes only under the same rule (cap aside)."""
+    saved = cp.settings.get("stop_rule")
+    if rule is None or saved is None or saved == rule.identity():
+        return
+    raise InputError("checkpoint belongs to a run with other convergence checks (interval, first check "
+                     "or criteria differ), so it would not stop where the interrupted run would",
+                     Location(file=str(path), key="stop_rule"), saved,
+                     f"{rule.identity()} as in this run (or a fixed number of steps, or start without resume)")
 
 
 def _check_resumable(cp: Checkpoint, settings: dict, path: Path) -> None:
@@ -403,6 +217,7 @@ def _check_resumable(cp: Checkpoint, settings: dict, path: Path) -> None:
 
 
 def _progress_reporter(progress, total: int, initial: int):
+    """(update(done), note(text), close()) for the chosen kind of progress report."""
     if callable(progress):
         start_time, start_step = time.monotonic(), initial
 
@@ -412,17 +227,19 @@ def _progress_reporter(progress, total: int, initial: int):
             left = (total - done) / rate if rate > 0 else math.inf
             progress(done, total, left)
 
-        return report, lambda: None
+        return report, (lambda text: None), (lambda: None)
     if progress:
         from tqdm.auto import tqdm
 
         bar = tqdm(total=total, initial=initial, unit="step", desc="sampling", leave=False)
-        return (lambda done: bar.update(done - bar.n)), bar.close
-    return (lambda done: None), (lambda: None)
+        return (lambda done: bar.update(done - bar.n)), bar.set_postfix_str, bar.close
+    return (lambda done: None), (lambda text: None), (lambda: None)
 
 
 def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[str], priors: Sequence,
-                     start, start_scale, *, n_walkers: int = 32, n_steps: int = 5000,
+                     start, start_scale, *, n_walkers: int = 32, n_steps: int | None = None,
+                     max_steps: int = DEFAULT_MAX_STEPS, min_steps: int = DEFAULT_MIN_STEPS,
+                     check_every: int = DEFAULT_CHECK_EVERY,
                      seed: int | None = None, checkpoint: str | Path | None = None,
                      checkpoint_every: float = 60.0, checkpoint_every_steps: int | None = None,
                      resume: bool = False, jobs: int = 1, scheduler=None, progress=True,
@@ -450,8 +267,18 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     n_walkers
         Number of walkers (>= 2 x n_params).
     n_steps
-        Steps per walker in total (a resumed run continues to this length);
-        ``n_steps // thin_by`` steps are stored.
+        None (default): run until converged -- the chain is checked every
+        ``check_every`` steps from ``min_steps`` on and at ``max_steps``, and
+        the run stops at the first check where chain length >=
+        ``target_tau_multiple`` x tau, R-hat <= 1.01 and bulk and tail ESS >=
+        400 hold for every parameter, or at the cap ``max_steps``
+        (:mod:`speciakin.estimation.stopping`).  A whole number: exactly that
+        many steps per walker, no checks (a resumed run continues to this
+        length).  ``steps // thin_by`` steps are stored.
+    max_steps, min_steps, check_every
+        Cap, first check and interval between checks [steps per walker] of a
+        run until converged (defaults 5000, 400, 200); ``check_every`` must be
+        a multiple of ``thin_by``.
     seed
         Seed; the same seed gives the same chain whatever ``jobs`` or
         ``scheduler`` and whether or not the run was interrupted and resumed.
@@ -468,12 +295,15 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         ``"tcp://host:port"`` of a Dask distributed scheduler (or a
         ``distributed.Client``); overrides ``jobs``.
     progress
-        True = tqdm bar with time left; a callable is called as
-        ``progress(steps_done, steps_total, seconds_left)``; False = silent.
+        True = tqdm bar with time left (against the cap when running until
+        converged, showing the last check); a callable is called as
+        ``progress(steps_done, steps_total, seconds_left)`` (``steps_total`` =
+        the cap when running until converged); False = silent.
     thin_by
         Store every ``thin_by``-th step.
     target_tau_multiple
-        Chain length needed in autocorrelation times (default 50).
+        Chain length needed in autocorrelation times (default 50); a
+        convergence criterion of the stop rule and of the diagnostics.
     start_ball
         Size of the start ball in units of ``start_scale``.
     proposal
@@ -490,6 +320,8 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     Returns
     -------
     PosteriorResult
+        With ``stop_reason`` ("converged", "cap" or "fixed"), ``stop_message``
+        and ``stop_checks``.
 
     Raises
     ------
@@ -507,9 +339,9 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     Carlo Statistical Methods, 2nd ed. 2004, section 7.4; ter Braak, Stat.
     Comput. 2006, 16, 239.
     """
-    names, built, start, scale, notes = _check_inputs(
+    names, built, start, scale, notes, rule = _check_inputs(
         parameter_names, priors, start, start_scale, n_walkers, n_steps, thin_by, checkpoint_every,
-        checkpoint_every_steps, target_tau_multiple)
+        checkpoint_every_steps, target_tau_multiple, (check_every, min_steps, max_steps))
     n_params = len(names)
     if proposal is None:
         proposal = "stretch" if proposal_covariance is None else "laplace"
@@ -518,7 +350,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     if PROPOSALS[proposal].needs_covariance:  # already checked by build_moves
         covariance = np.asarray(proposal_covariance, dtype=float)
     fingerprint = proposal_fingerprint(proposal, start, covariance)
-    n_stored = n_steps // thin_by
+    n_stored = (n_steps if rule is None else rule.max_steps) // thin_by
     path = Path(checkpoint) if checkpoint is not None else None
     loaded: Checkpoint | None = None
     if resume:
@@ -536,6 +368,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     settings = _settings(names, n_walkers, thin_by, seed, proposal, fingerprint)
     if loaded is not None:
         _check_resumable(loaded, settings, path)
+        _check_same_rule(loaded, rule, path)
         if loaded.iteration == 0:
             loaded = None
     began = time.monotonic()
@@ -564,20 +397,36 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                                         backend=backend, moves=moves)
         sampler.random_state = random_state
         last = {"iteration": done, "accepted": backend.accepted.copy(), "random_state": random_state}
+        checks: list[StopCheck] = []
+        if loaded is not None and rule is not None:
+            checks = [StopCheck.from_dict(c) for c in loaded.stop_checks if c["step"] < done * thin_by]
+        run_settings = dict(settings, n_steps=None if n_steps is None else int(n_steps))
+        if rule is not None:
+            run_settings.update(stop_rule=rule.identity(), max_steps=rule.max_steps)
 
         def save() -> None:
             if path is None or last["iteration"] == 0:
                 return
             n = last["iteration"]
             write_checkpoint(path, Checkpoint(backend.chain[:n].copy(), backend.log_prob[:n].copy(),
-                                              last["accepted"], last["random_state"],
-                                              dict(settings, n_steps=int(n_steps))))
+                                              last["accepted"], last["random_state"], run_settings,
+                                              stop_checks=[c.to_dict() for c in checks if c.step <= n * thin_by]))
 
-        update, close_bar = _progress_reporter(progress, n_stored, done)
+        update, note, close_bar = _progress_reporter(progress, n_stored, done)
+
+        def converged_now(iteration: int) -> bool:
+            """Check the stored chain when ``iteration`` stored steps is a check point."""
+            step = iteration * thin_by
+            if rule is None or iteration == 0 or not rule.is_check_step(step):
+                return False
+            checks.append(check_chain(backend.chain[:iteration], names, step, rule.target_tau_multiple))
+            note(f"{checks[-1].short()} (cap {rule.max_steps})")
+            return checks[-1].passed
+
         last_save_time, last_save_step = time.monotonic(), done
         try:
             remaining = n_stored - done
-            if remaining > 0:
+            if remaining > 0 and not converged_now(done):  # a resumed converged run needs no step
                 initial = emcee.State(coords, log_prob=log_prob, random_state=random_state)
                 for state in sampler.sample(initial, iterations=remaining, thin_by=thin_by,
                                             progress=False, store=True,
@@ -585,6 +434,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                     last = {"iteration": backend.iteration, "accepted": backend.accepted.copy(),
                             "random_state": state.random_state}
                     update(backend.iteration)
+                    stop = converged_now(backend.iteration)
                     now = time.monotonic()
                     if path is not None and (
                             now - last_save_time >= checkpoint_every
@@ -592,6 +442,10 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                                 and backend.iteration - last_save_step >= checkpoint_every_steps)):
                         save()
                         last_save_time, last_save_step = now, backend.iteration
+                    if stop:
+                        break
+            elif remaining <= 0:
+                converged_now(done)  # a resumed run at or past the cap: its final check
         except KeyboardInterrupt:
             save()
             raise
@@ -605,17 +459,20 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     chain = backend.get_chain()
     log_prob_chain = backend.get_log_prob()
     acceptance = backend.accepted / max(backend.iteration, 1)
-    n_steps = max(int(n_steps), chain.shape[0] * int(thin_by))  # a resumed run may be longer
-    return _finish(names, built, chain, log_prob_chain, acceptance, settings, n_steps, thin_by,
+    run_steps = chain.shape[0] * int(thin_by)
+    if rule is None:
+        run_steps = max(int(n_steps), run_steps)  # a resumed run may be longer
+    reason, message = stop_summary(rule, checks, run_steps)
+    stop = {"reason": reason, "message": message, "checks": [c.to_dict() for c in checks],
+            "rule": None if rule is None else dict(rule.identity(), max_steps=rule.max_steps)}
+    return _finish(names, built, chain, log_prob_chain, acceptance, settings, run_steps, thin_by,
                    target_tau_multiple, notes, description, time.monotonic() - began, log_posterior,
-                   None if loaded is None else loaded.iteration)
+                   None if loaded is None else loaded.iteration, stop)
 
 
-def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_by,
-            target_tau_multiple, notes, evaluator, elapsed, log_posterior, resumed_from) -> PosteriorResult:
-    tau = autocorrelation_time(chain)
-    burn_in, thin = choose_burn_in_and_thin(tau, chain.shape[0])
-    diagnostics = convergence_diagnostics(chain, acceptance, names, burn_in, target_tau_multiple)
+def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_by, target_tau_multiple,
+            notes, evaluator, elapsed, log_posterior, resumed_from, stop) -> PosteriorResult:
+    diagnostics, burn_in, thin = diagnose_chain(chain, acceptance, names, target_tau_multiple)
     samples = chain[burn_in::thin].reshape(-1, chain.shape[2])
     warnings = list(notes) + list(diagnostics.warnings)
     if log_posterior.n_failures:
@@ -630,4 +487,6 @@ def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_
         seed=settings["seed"], evaluator=evaluator, elapsed_seconds=float(elapsed),
         n_likelihood_evaluations=int(log_posterior.n_evaluations),
         n_failed_evaluations=int(log_posterior.n_failures), resumed_from=resumed_from,
-        proposal=settings["proposal"], moves=PROPOSALS[settings["proposal"]].describe)
+        proposal=settings["proposal"], moves=PROPOSALS[settings["proposal"]].describe,
+        stop_reason=stop["reason"], stop_message=stop["message"], stop_checks=stop["checks"],
+        stop_rule=stop["rule"])

@@ -158,7 +158,7 @@ def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
 
 
 def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale: np.ndarray, *,
-                    n_walkers: int | None = None, n_steps: int = 2000, seed: int = 1,
+                    n_walkers: int | None = None, n_steps: int | None = None, seed: int = 1,
                     checkpoint=None, resume: bool = False, jobs: int = 1, scheduler=None,
                     progress=True, checkpoint_every: float = 30.0, covariance=None,
                     proposal: str | None = None) -> PosteriorResult:
@@ -174,7 +174,8 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
     n_walkers
         Default: max(32, 4 x parameters), even.
     n_steps
-        Steps per walker.
+        Steps per walker; None = until converged, at most the sampler's cap
+        (see :func:`speciakin.estimation.sampling.sample_posterior`).
     checkpoint, resume, jobs, scheduler, progress, checkpoint_every
         See :func:`speciakin.estimation.sampling.sample_posterior`.
     covariance

@@ -88,7 +88,7 @@ class Results:
 
 
 def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, starts: int | None = None,
-            seed: int = 1, n_steps: int = 2000, n_walkers: int | None = None, jobs: int = 1, scheduler=None,
+            seed: int = 1, n_steps: int | None = None, n_walkers: int | None = None, jobs: int = 1, scheduler=None,
             resume: bool = False, profiles: bool = True, draws: int | None = None, invented: bool = False,
             formats=None, progress: Progress | None = None, cancel: CancelFlag | None = None,
             say: Callable[[str], None] = lambda s: None, on_step: Callable[[str], None] | None = None,
@@ -161,7 +161,8 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     if renderer is not None:
         renderer.posterior_figures(posterior, out)
     say(f"sample: {posterior.n_walkers} walkers x {posterior.n_steps} steps, "
-        f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s)")
+        f"{'converged' if posterior.converged else 'NOT converged'} ({timings['sample']:.1f} s); "
+        f"stopped: {posterior.stop_message}")
 
     if process is not None:
         started("window")

@@ -86,7 +86,7 @@ def fit_step(objective, out: Path, *, starts: int | None = None, seed: int | Non
     return result
 
 
-def sample_step(objective, fit, out: Path, *, n_steps: int = 2000, n_walkers: int | None = None,
+def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walkers: int | None = None,
                 seed: int = 1, resume: bool = False, jobs: int = 1, scheduler=None,
                 progress: Progress | bool | None = True, cancel: CancelFlag | None = None,
                 proposal: str | None = None):
