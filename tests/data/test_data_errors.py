@@ -179,7 +179,7 @@ def test_workbook_locations_use_sheet_titles(tmp_path):
 def test_not_a_workbook(tmp_path):
     bad = tmp_path / "campaign.xlsx"
     bad.write_text("this is not a workbook")
-    with pytest.raises(DataError, match="not a readable XLSX workbook"):
+    with pytest.raises(DataError, match="not an XLSX workbook"):
         load_campaign(bad)
 
 

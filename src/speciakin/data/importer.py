@@ -19,7 +19,8 @@ from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, 
                                     optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
 from speciakin.data.import_logs import read_additions, read_probe, read_titrant
-from speciakin.data.reader import RawTable, SourceFile, numeric_column, read_csv_folder, read_workbook
+from speciakin.data.reader import (RawTable, SourceFile, column_letter, numeric_column, read_csv_folder,
+                                   read_workbook)
 from speciakin.data.sheets import CHARGE_PREFIX, PH_MODE_WORDS, SHEETS, normalise_name, sheet_by_name
 from speciakin.errors import DataError, Location, ProblemCollector
 
@@ -84,6 +85,8 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
             c.error("required sheet is missing", Location(file=any_file, sheet=spec.title), None,
                     f"a sheet named '{spec.title}'" + (f" (or {spec.csv_name})" if any_file.endswith(".csv")
                                                      else ""), code="missing_sheet")
+    for table in found.values():
+        table_notes(table, c)
     if c.has_errors:
         return None
 
@@ -106,6 +109,8 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
                            titrant.get(r["name"]), runs_cols, c)
         if built is not None:
             runs.append(built)
+    for table in found.values():
+        comma_note(table, c)
     if c.has_errors:
         return None
     sheets_info = {key: {"file": t.file, "sheet": t.sheet,
@@ -148,6 +153,42 @@ def load_campaign(path: str | Path) -> Campaign:
     c.raise_if_errors(DataError)
     campaign_warnings(campaign, c)
     return replace(campaign, problems=tuple(c.warnings))
+
+
+# --------------------------------------------------------------------- files
+
+def table_notes(table: RawTable, c: ProblemCollector) -> None:
+    """Report what the reader found about a whole sheet: encoding notes, shifted
+    cells, formulas without a stored result (one error per column)."""
+    for severity, message, code in table.notes:
+        loc = Location(file=table.file, sheet=table.sheet)
+        if severity == "warning":
+            c.warning(message, loc, code=code)
+        else:
+            c.error(message, loc, expected="one cell per header column", code=code)
+    by_column: dict[int, list[tuple[int, str]]] = {}
+    for row, col, formula in table.formula_cells:
+        by_column.setdefault(col, []).append((row, formula))
+    for col, cells in sorted(by_column.items()):
+        row, formula = cells[0]
+        more = f" ({len(cells)} such cells in this column)" if len(cells) > 1 else ""
+        header = table.headers[col] if col < len(table.headers) else ""
+        c.error(f"formula has no stored result, so its value is unknown{more}",
+                Location(file=table.file, sheet=table.sheet, row=row,
+                         column=f"{column_letter(col)} ({header})" if header else column_letter(col)),
+                "=" + formula, "a value: open the workbook in Excel or LibreOffice and save it (this stores the "
+                "results), or replace the formulas by their values (copy, paste values)",
+                code="formula_without_value")
+
+
+def comma_note(table: RawTable, c: ProblemCollector) -> None:
+    """One note per sheet for numbers written with a decimal comma."""
+    if not table.comma_cells:
+        return
+    row, col = min(table.comma_cells)
+    n = len(table.comma_cells)
+    c.warning(f"{n} number(s) written with a decimal comma were read as decimals ('7,5' = 7.5)",
+              table.location(row, col), None, "decimal points, or decimal commas throughout", code="decimal_comma")
 
 
 # --------------------------------------------------------------------- sheets

@@ -18,12 +18,13 @@ import html
 import io
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from speciakin._cells import unguard_csv_text
 from speciakin.errors import DataError, Location, ProblemCollector
 
 __all__ = ["RawTable", "SourceFile", "read_workbook", "read_csv_folder", "column_letter",
@@ -60,7 +61,12 @@ class RawTable:
     """Cells of one sheet below its header row.
 
     ``rows[i]`` is a tuple of cell values (None for blank) at spreadsheet row
-    ``row_numbers[i]``; fully blank rows are dropped.
+    ``row_numbers[i]``; fully blank rows are dropped.  ``formula_cells``
+    lists (row, 0-based column, formula) of formulas without a stored result
+    (read as blank); ``notes`` holds (message, code) remarks about the whole
+    file as (severity, message, code), severity "fatal" meaning the sheet's
+    columns cannot be trusted (cells shifted); ``comma_cells`` collects (row, column) of numbers
+    written with a decimal comma as they are converted.
     """
 
     file: str
@@ -68,6 +74,9 @@ class RawTable:
     headers: list[str]
     rows: list[tuple]
     row_numbers: np.ndarray
+    formula_cells: list[tuple[int, int, str]] = field(default_factory=list)
+    notes: list[tuple[str, str, str]] = field(default_factory=list)
+    comma_cells: list[tuple[int, int]] = field(default_factory=list)
 
     def location(self, row: int | None = None, column: int | None = None) -> Location:
         col = None
@@ -218,19 +227,98 @@ def read_workbook(path: Path) -> tuple[dict[str, RawTable], SourceFile]:
         data = path.read_bytes()
     except OSError as exc:
         raise DataError(f"cannot read workbook: {exc.strerror}", Location(file=str(path))) from None
+    not_xlsx = workbook_kind_problem(data)
+    if not_xlsx:
+        raise DataError(not_xlsx, Location(file=str(path)), expected="a workbook saved as .xlsx without a password")
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
-    except (BadZipFile, KeyError, ValueError, OSError) as exc:
-        raise DataError(f"not a readable XLSX workbook ({exc})", Location(file=str(path)),
-                        expected="a workbook saved as .xlsx") from None
+    except (BadZipFile, KeyError, ValueError, OSError, TypeError, AttributeError, IndexError) as exc:
+        raise DataError("not a readable XLSX workbook (" + (str(exc) or type(exc).__name__) + ")",
+                        Location(file=str(path)), expected="a workbook saved as .xlsx") from None
     tables: dict[str, RawTable] = {}
     try:
         for ws in wb.worksheets:
             rows = fast_sheet_rows(ws)
-            tables[ws.title] = _table(str(path), ws.title, rows if rows is not None else ws.iter_rows(values_only=True))
+            table = _table(str(path), ws.title, rows if rows is not None else ws.iter_rows(values_only=True))
+            table.formula_cells = formulas_without_result(ws)
+            tables[ws.title] = table
     finally:
         wb.close()
     return tables, SourceFile(str(path), tuple(tables), _hash(data), len(data))
+
+
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
+_ENCRYPTED_MARK = "EncryptedPackage".encode("utf-16-le")
+
+
+def workbook_kind_problem(data: bytes) -> str | None:
+    """A plain sentence when ``data`` is not an XLSX workbook we can read, else None.
+
+    An XLSX file is a zip archive (starts with ``PK``); a password-protected
+    workbook is an OLE container holding an ``EncryptedPackage`` stream; the
+    Excel 97-2003 ``.xls`` format is an OLE container without it.
+    """
+    if data.startswith(_OLE_MAGIC):
+        if _ENCRYPTED_MARK in data:
+            return ("the workbook is password-protected (encrypted) and cannot be read; "
+                    "remove the password (File > Info > Protect Workbook) or save an unprotected copy")
+        return "this is an old Excel 97-2003 (.xls) workbook; open it and save it as .xlsx"
+    if data[:5] == b"{\\rtf" or data.lstrip()[:1] == b"<":
+        return "the file is not a workbook (it holds text or HTML); save it from the spreadsheet program as .xlsx"
+    if not data.startswith(b"PK"):
+        return "the file is not an XLSX workbook (not a zip archive); save it from the spreadsheet program as .xlsx"
+    return None
+
+
+_FORMULA_NO_VALUE = re.compile(
+    rb'<c r="([A-Z]{1,3})(\d+)"[^>]*?(?<!/)>\s*<f(?:[^>]*?/>|[^>]*>(.*?)</f>)\s*(?:<v\s*/>|<v></v>)?\s*</c>', re.S)
+
+
+def formulas_without_result(ws) -> list[tuple[int, int, str]]:
+    """(row, 0-based column, formula) of formula cells that carry no stored result.
+
+    A workbook written by a program that does not calculate (a script, some
+    exporters) stores formulas without their values; read with
+    ``data_only=True`` they look blank.  Returns [] when the sheet's XML is
+    not reachable.
+    """
+    try:
+        with ws._get_source() as source:
+            data = source.read()
+    except (AttributeError, KeyError, OSError):
+        return []
+    if b"<f" not in data:
+        return []
+    return [(int(row), _column_index(letters), html.unescape((formula or b"").decode("utf-8", "replace")))
+            for letters, row, formula in _FORMULA_NO_VALUE.findall(data)]
+
+
+def decode_csv(data: bytes) -> tuple[str, list[tuple[str, str, str]]]:
+    """Text of a CSV file and notes about its encoding.
+
+    UTF-8 (with or without BOM) is read silently.  UTF-16 (as written by
+    "Unicode text" exports) and Windows-1252/Latin-1 are read with one note
+    each.  Raises ValueError for a file that is not text.
+    """
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")) or (len(data) > 3 and data[1:2] == b"\x00" and data[3:4] == b"\x00"):
+        try:
+            text = data.decode("utf-16")
+        except UnicodeDecodeError:
+            raise ValueError("the file looks like UTF-16 text but does not decode; save it as 'CSV UTF-8'") from None
+        return text.lstrip("\ufeff"), [("warning", "the file is UTF-16 text; it was read as such (saving as 'CSV UTF-8' "
+                                         "is recommended)", "encoding")]
+    if b"\x00" in data:
+        raise ValueError("the file is not text (it holds NUL bytes); export the sheet as 'CSV UTF-8'")
+    try:
+        return data.decode("utf-8-sig"), []
+    except UnicodeDecodeError:
+        pass
+    try:
+        text = data.decode("cp1252")
+    except UnicodeDecodeError:
+        text = data.decode("latin-1")
+    return text, [("warning", "the file is not UTF-8; it was read as Windows-1252/Latin-1 text (check accented names; "
+                   "saving as 'CSV UTF-8' avoids this)", "encoding")]
 
 
 def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]]:
@@ -243,9 +331,9 @@ def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]
         except OSError as exc:
             raise DataError(f"cannot read CSV file: {exc.strerror}", Location(file=str(path))) from None
         try:
-            text = data.decode("utf-8-sig")
-        except UnicodeDecodeError:
-            text = data.decode("latin-1")
+            text, notes = decode_csv(data)
+        except ValueError as exc:
+            raise DataError(str(exc), Location(file=str(path)), expected="a CSV text file") from None
         try:
             sample = text[:4096]
             dialect = csv.Sniffer().sniff(sample, delimiters=",;\t") if sample.strip() else csv.excel
@@ -257,9 +345,27 @@ def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]
                 raw = list(csv.reader(io.StringIO(text), dialect))
             except csv.Error as exc:
                 raise DataError(f"cannot parse CSV file ({exc})", Location(file=str(path))) from None
-        tables[path.stem] = _table(str(path), path.stem, raw)
+        if "'" in text:  # texts guarded against formula execution by our writers: '=1+2 -> =1+2
+            raw = [tuple(unguard_csv_text(v) for v in row) for row in raw]
+        table = _table(str(path), path.stem, raw)
+        table.notes = notes + _wide_rows(raw, len(table.headers), getattr(dialect, "delimiter", ","))
+        tables[path.stem] = table
         sources.append(SourceFile(str(path), (path.stem,), _hash(data), len(data)))
     return tables, sources
+
+
+def _wide_rows(raw: list, width: int, delimiter: str) -> list[tuple[str, str, str]]:
+    """A fatal note when data rows hold more filled cells than the header row."""
+    wide = [n for n, row in enumerate(raw[1:], start=2)
+            if len(row) > width and any(not is_blank(v) for v in row[width:])]
+    if not wide or width == 0:
+        return []
+    text = (f"{len(wide)} row(s) have more cells than the header row (first: row {wide[0]}), so the "
+            "columns are shifted")
+    if delimiter == ",":
+        text += ("; the numbers seem to use decimal commas while commas also separate the cells: "
+                 "export with ';' as the separator, or with decimal points")
+    return [("fatal", text, "shifted_cells")]
 
 
 def _csv_rows_fast(text: str, dialect) -> list[tuple] | None:
@@ -291,16 +397,24 @@ def _csv_rows_fast(text: str, dialect) -> list[tuple] | None:
     return [tuple(r) for r in values.tolist()] if width else None
 
 
-def _to_float(value: Any) -> float | None:
-    """One cell -> float, or None when it is not a number."""
+def has_decimal_comma(value: Any) -> bool:
+    """True for a text such as ``'7,5'``: one comma, no point (read as 7.5 everywhere)."""
+    return isinstance(value, str) and value.count(",") == 1 and "." not in value
+
+
+def to_float(value: Any) -> float | None:
+    """One cell -> float, or None when it is not a number.
+
+    The one rule for every sheet: a text with one comma and no point is a
+    decimal comma (``'7,5'`` -> 7.5); callers note such cells once per file.
+    """
     if isinstance(value, bool):
         return None
-    if isinstance(value, (int, float)):
+    if isinstance(value, (int, float, np.integer, np.floating)):
         return float(value)
     if isinstance(value, str):
         try:
-            return float(value.strip().replace(",", ".") if value.count(",") == 1 and "." not in value
-                         else value.strip())
+            return float(value.strip().replace(",", ".") if has_decimal_comma(value) else value.strip())
         except ValueError:
             return None
     return None
@@ -335,7 +449,9 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
         v = values[i]
         if is_blank(v):
             continue
-        f = _to_float(v)
+        f = to_float(v)
+        if f is not None and has_decimal_comma(v):
+            table.comma_cells.append((int(table.row_numbers[i]), index))
         if f is None:
             collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
                             v, "a number", code="not_numeric")
@@ -349,7 +465,7 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
         blank |= skip
     for i in np.flatnonzero(bad & ~blank):
         v = values[i]
-        if _to_float(v) is not None and not math.isfinite(_to_float(v)):
+        if to_float(v) is not None and not math.isfinite(to_float(v)):
             collector.error(f"{what} is not a finite number", table.location(int(table.row_numbers[i]), index),
                             v, "a finite number", code="not_numeric")
     if not blank_ok:

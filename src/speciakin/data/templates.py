@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 from speciakin import units
+from speciakin._cells import csv_text, guard_workbook
 from speciakin.data._files import write_bytes_atomically
 from speciakin.data.sheets import CHARGE_PREFIX, HPLC_KINDS, PH_MODE_WORDS, SHEETS
 from speciakin.errors import DataError, Location
@@ -110,6 +111,7 @@ def _workbook_bytes(tables: Tables) -> bytes:
             dv = DataValidation(type="list", formula1='"held,logged,free"', allow_blank=True)
             ws.add_data_validation(dv)
             dv.add("B2:B1000")
+    guard_workbook(wb)  # names such as '=1+2' stay text
     buf = io.BytesIO()
     wb.save(buf)
     return buf.getvalue()
@@ -118,9 +120,9 @@ def _workbook_bytes(tables: Tables) -> bytes:
 def _csv_bytes(headers: Sequence[str], rows: Iterable[Sequence]) -> bytes:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(headers)
+    w.writerow([csv_text(h) for h in headers])
     for r in rows:
-        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, float) else v) for v in r])
+        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, float) else csv_text(v)) for v in r])
     return buf.getvalue().encode("utf-8")
 
 
