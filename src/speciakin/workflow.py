@@ -119,7 +119,7 @@ def load_inputs(inputs: Inputs):
     from speciakin.decision import load_process
 
     model = load_model(inputs.model)
-    campaign = load_campaign(inputs.campaign)
+    campaign = load_campaign(inputs.campaign, model)
     process = load_process(inputs.process, model) if inputs.process else None
     return model, campaign, process
 

@@ -32,12 +32,12 @@ def _base(kind: str) -> Path:
     return _BASE[kind]
 
 
-FILES = ["runs.csv", "additions.csv", "compounds.csv", "hplc_results.csv", "probe_log.csv", "titrant_log.csv"]
+FILES = ["runs.csv", "dosing.csv", "compounds.csv", "hplc_results.csv", "probe_log.csv", "titrant_log.csv"]
 cell_text = st.one_of(
     st.text(max_size=12),
     st.sampled_from(["", " ", "<LOQ", "<", "<-1", "<abc", "nan", "inf", "-inf", "-3", "1e400", "held",
                      "logged", "free", "area%", "concentration", "R01", "R09", "S-peak", "7,5", "TRUE",
-                     "time [min]", "charge [mmol]", "charge X [parsec]"]),
+                     "time [min]", "charge S [mmol]", "initial [mmol]", "initial X [parsec]", "=1+2", "'=1+2"]),
     st.floats(allow_nan=True, allow_infinity=True).map(repr),
     st.integers(-10**6, 10**6).map(str),
 )
@@ -94,7 +94,7 @@ xlsx_value = st.one_of(
 
 
 xlsx_cells = st.lists(st.tuples(st.sampled_from(["Runs", "Compounds", "HPLC results", "Probe log",
-                                                 "Additions", "Titrant log", "Read me"]),
+                                                 "Dosing", "Titrant log", "Read me"]),
                                 st.integers(1, 30), st.integers(1, 12), xlsx_value), min_size=1, max_size=5)
 
 
@@ -120,7 +120,7 @@ _quick = dict(deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @settings(max_examples=25, **_quick)
 @given(**csv_args)
 # found by this test: a run name ending in NUL, which numpy's string comparison does not match
-@example(edits=[("runs.csv", 0, 0, ""), ("additions.csv", 1, 0, "\x00")], shape="none", which="runs.csv", index=0)
+@example(edits=[("runs.csv", 0, 0, ""), ("dosing.csv", 1, 0, "\x00")], shape="none", which="runs.csv", index=0)
 def test_csv_cells_never_escape(edits, shape, which, index):
     _csv_case(edits, shape, which, index)
 

@@ -15,13 +15,16 @@ import numpy as np
 from speciakin import units
 from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, Withdrawal
 from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
+from speciakin.data.consistency import run_problems
+from speciakin.data.validate import campaign_warnings, model_problems
 from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
                                     optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
-from speciakin.data.import_logs import read_additions, read_probe, read_titrant
+from speciakin.data.import_logs import read_dosing, read_probe, read_titrant
 from speciakin.data.reader import (RawTable, SourceFile, column_letter, numeric_column, read_csv_folder,
                                    read_workbook)
-from speciakin.data.sheets import CHARGE_PREFIX, PH_MODE_WORDS, SHEETS, normalise_name, sheet_by_name
+from speciakin.data.sheets import (INITIAL_PREFIX, PH_MODE_WORDS, RENAMED_SHEETS, SHEETS, normalise_name,
+                                   sheet_by_name)
 from speciakin.errors import DataError, Location, ProblemCollector
 
 __all__ = ["load_campaign", "import_campaign", "find_sources"]
@@ -73,6 +76,11 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     for name, table in tables.items():
         spec = sheet_by_name(name)
         if spec is None:
+            new = RENAMED_SHEETS.get(normalise_name(name))
+            if new is not None:
+                c.error(f"sheet '{name}' was renamed to '{new}'", Location(file=table.file, sheet=name), name,
+                        f"a sheet named '{new}' (CSV file {SHEETS['dosing'].csv_name}); rename it",
+                        code="renamed_sheet")
             continue
         if spec.key in found:
             c.error("sheet appears twice", Location(file=table.file, sheet=name), name, "each sheet once",
@@ -98,14 +106,14 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     compounds = _read_compounds(matched["compounds"], c)
     hplc_cols = matched["hplc"]
     hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
-    additions = read_additions(matched["additions"], c, known) if "additions" in found else {}
+    dosing = read_dosing(matched["dosing"], c, known) if "dosing" in found else {}
     probe = read_probe(matched["probe"], c, known) if "probe" in found else {}
     conc = {r["name"]: r["titrant_concentration"] for r in run_rows}
     titrant = read_titrant(matched["titrant"], c, known, conc) if "titrant" in found else {}
 
     runs: list[CampaignRun] = []
     for r in run_rows:
-        built = _build_run(r, hplc.get(r["name"]), additions.get(r["name"], ()), probe.get(r["name"], {}),
+        built = _build_run(r, hplc.get(r["name"]), dosing.get(r["name"], ()), probe.get(r["name"], {}),
                            titrant.get(r["name"]), runs_cols, c)
         if built is not None:
             runs.append(built)
@@ -116,6 +124,9 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     sheets_info = {key: {"file": t.file, "sheet": t.sheet,
                          "columns": {k: matched[key].label(k) for k in matched[key].found}}
                    for key, t in found.items()}
+    runs_table = runs_cols.table
+    sheets_info["runs"]["columns"].update(
+        {normalise_name(name): f"{column_letter(i)} ({runs_table.headers[i]})" for i, name, _ in runs_cols.extra})
     all_kinds = np.concatenate([r.hplc.kind for r in runs]) if runs else np.array([], dtype=object)
     campaign = Campaign(
         runs=tuple(runs), compounds=tuple(compounds), provenance=tuple(sources), problems=(),
@@ -123,10 +134,11 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
         layout="long" if hplc_cols.index("compound") is not None else "wide",
         extra={"sheets": sheets_info},
     )
-    return campaign
+    run_problems(campaign, c)
+    return None if c.has_errors else campaign
 
 
-def load_campaign(path: str | Path) -> Campaign:
+def load_campaign(path: str | Path, model=None) -> Campaign:
     """Import a campaign folder, workbook or CSV folder.
 
     Parameters
@@ -134,6 +146,11 @@ def load_campaign(path: str | Path) -> Campaign:
     path
         A campaign folder (holding one .xlsx workbook or a ``csv/`` folder), a
         workbook file, or a folder of CSV files (one per sheet).
+    model
+        Optional :class:`speciakin.chemistry.model.Model`: names of
+        compounds, species and titrants are then checked against it, so that
+        a mismatch is reported at its workbook cell (not later by the
+        simulator at a model-file key).
 
     Returns
     -------
@@ -146,12 +163,12 @@ def load_campaign(path: str | Path) -> Campaign:
     DataError
         Listing every error found, each with file, sheet, row and column.
     """
-    from speciakin.data.validate import campaign_warnings
-
     c = ProblemCollector()
     campaign = import_campaign(path, c)
     c.raise_if_errors(DataError)
-    campaign_warnings(campaign, c)
+    units_map = model_problems(campaign, model, c) if model is not None else None
+    c.raise_if_errors(DataError)
+    campaign_warnings(campaign, c, units_map)
     return replace(campaign, problems=tuple(c.warnings))
 
 
@@ -208,12 +225,12 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
     charges: list[tuple[str, np.ndarray]] = []
     for i, name, unit_text in cols.extra:
         n = normalise_name(name)
-        if not n.startswith(CHARGE_PREFIX.strip()):
+        if not (n + " ").startswith(INITIAL_PREFIX):
             continue
-        species = name.strip()[len(CHARGE_PREFIX):].strip()
+        species = name.strip()[len(INITIAL_PREFIX):].strip()
         loc = t.location(1, i)
         if not species:
-            c.error("charge column does not name a species", loc, t.headers[i], "e.g. 'charge S [mmol]'",
+            c.error("initial-amount column does not name a species", loc, t.headers[i], "e.g. 'initial S [mmol]'",
                     code="invalid_header")
             continue
         try:
@@ -223,7 +240,7 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
                     unit_text or t.headers[i], "one of: " + ", ".join(units.DIMENSIONS["amount"]),
                     code="unknown_unit" if unit_text else "missing_unit")
             continue
-        charges.append((species, numeric_column(t, i, c, what=f"charge of {species}", factor=u.factor,
+        charges.append((species, numeric_column(t, i, c, what=f"initial amount of {species}", factor=u.factor,
                                                 minimum=0.0)))
     out: list[dict] = []
     first: dict[str, int] = {}
@@ -290,7 +307,7 @@ def _read_compounds(cols: SheetColumns, c: ProblemCollector) -> list[Compound]:
     return out
 
 
-def _build_run(r: dict, hplc: HplcData | None, doses: tuple[Dose, ...], probe: dict,
+def _build_run(r: dict, hplc: HplcData | None, dosing: tuple[tuple[Dose, int], ...], probe: dict,
                titrant: TitrantLog | None, cols: SheetColumns, c: ProblemCollector) -> CampaignRun | None:
     t = cols.table
     row = r["row"]
@@ -337,5 +354,6 @@ def _build_run(r: dict, hplc: HplcData | None, doses: tuple[Dose, ...], probe: d
     if r["sample_volume"]:
         withdrawals = tuple(Withdrawal(float(x), r["sample_volume"]) for x in hplc.sample_times)
     recipe = Run(name=r["name"], charges=dict(r["charges"]), volume=r["volume"], temperature=temperature,
-                 ph=control, end_time=float(end), doses=tuple(doses), withdrawals=withdrawals, note=r["note"])
-    return CampaignRun(recipe, hplc, titrant, ph_log, temp_log, row)
+                 ph=control, end_time=float(end), doses=tuple(d for d, _ in dosing), withdrawals=withdrawals,
+                 note=r["note"])
+    return CampaignRun(recipe, hplc, titrant, ph_log, temp_log, row, tuple(k for _, k in dosing))

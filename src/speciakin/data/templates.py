@@ -15,7 +15,7 @@ from typing import Iterable, Sequence
 from speciakin import units
 from speciakin._cells import csv_text, guard_workbook
 from speciakin.data._files import write_bytes_atomically
-from speciakin.data.sheets import CHARGE_PREFIX, HPLC_KINDS, PH_MODE_WORDS, SHEETS
+from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHEETS
 from speciakin.errors import DataError, Location
 
 __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write_template",
@@ -23,7 +23,7 @@ __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write
 
 GUIDE_TITLE = "Read me"
 WORKBOOK_NAME = "campaign.xlsx"
-EXAMPLE_CHARGE_COLUMNS = (f"{CHARGE_PREFIX}S [mmol]", f"{CHARGE_PREFIX}E [mmol]")
+EXAMPLE_INITIAL_COLUMNS = (f"{INITIAL_PREFIX}S [mmol]", f"{INITIAL_PREFIX}E [mmol]")
 
 Tables = dict[str, tuple[list[str], list[Sequence]]]
 
@@ -44,9 +44,9 @@ def guide_lines() -> list[tuple[str, str]]:
         for col in spec.columns:
             lines.append((f"    {col.header}", ("required. " if col.required else "") + col.description))
         if spec.key == "runs":
-            lines.append((f"    {CHARGE_PREFIX}<name> [mmol]",
+            lines.append((f"    {INITIAL_PREFIX}<name> [mmol]",
                           "One column per species present at time zero, named as in the model file "
-                          f"(the template shows {' and '.join(repr(c) for c in EXAMPLE_CHARGE_COLUMNS)}; "
+                          f"(the template shows {' and '.join(repr(c) for c in EXAMPLE_INITIAL_COLUMNS)}; "
                           "rename or add columns). Blank = none."))
         if spec.key == "hplc":
             lines.append(("    <compound> (wide layout)",
@@ -74,7 +74,7 @@ def blank_tables() -> Tables:
     for spec in SHEETS.values():
         headers = [c.header for c in spec.columns]
         if spec.key == "runs":
-            headers += list(EXAMPLE_CHARGE_COLUMNS)
+            headers += list(EXAMPLE_INITIAL_COLUMNS)
         out[spec.key] = (headers, [])
     return out
 
@@ -169,7 +169,7 @@ Files here:
 
 - `{workbook}`: the campaign workbook. Its first sheet ('{guide}') explains every sheet,
   column and unit. Fill in the runs, the HPLC compounds and results, and (if you have them)
-  the additions, the probe log and the titrant log.
+  the dosing, the probe log and the titrant log.
 {model_line}
 {process_line}
 
