@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import numpy as np
 
+# shared limits: volumes (1 uL to 100 m3), temperatures (-100 C to 300 C), concentrations (30 mol/L)
+from speciakin.chemistry.plausibility import CONCENTRATION_LIMIT, TEMPERATURE_LIMITS, VOLUME_RANGE
 from speciakin.data.campaign import Campaign, CampaignRun
 from speciakin.data.sheets import INITIAL_PREFIX, normalise_name
 from speciakin.errors import ProblemCollector
@@ -27,16 +29,8 @@ __all__ = [
     "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_RATIO_USUAL", "run_problems",
 ]
 
-#: [L] a start, dose or sample volume outside this range is an error (1 uL to 100 m3), common practice.
-VOLUME_RANGE = (1e-6, 1e5)
-#: [K] temperatures outside this range are errors: -100 C to 300 C, beyond any liquid-phase
-#: solution chemistry with a pH probe (common practice).
-TEMPERATURE_LIMITS = (173.15, 573.15)
 #: [K] temperatures outside -20 C to 120 C draw a warning (common practice).
 TEMPERATURE_USUAL = (253.15, 393.15)
-#: [mol/L] no solute exceeds this concentration; pure water is about 55.5 mol/L (1000 g/L over
-#: 18.015 g/mol, from memory), so 30 mol/L is an error.
-CONCENTRATION_LIMIT = 30.0
 #: [mol/L] concentrations above this draw a warning (common practice).
 CONCENTRATION_USUAL = 10.0
 #: [mol/L] pH-stat titrants are usually 0.01 to 10 mol/L (common practice); outside: a warning.
