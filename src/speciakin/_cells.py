@@ -21,7 +21,7 @@ from __future__ import annotations
 from typing import Any
 
 __all__ = ["FORMULA_TRIGGERS", "needs_guard", "csv_text", "unguard_csv_text", "guard_workbook",
-           "frame_csv_text", "frame_xlsx_bytes"]
+           "has_carriage_return", "frame_csv_text", "frame_xlsx_bytes"]
 
 #: First characters that make a spreadsheet program evaluate a cell.
 FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
@@ -61,14 +61,25 @@ def guard_workbook(workbook) -> int:
     return count
 
 
+def has_carriage_return(values) -> bool:
+    """True when a text among ``values`` holds a carriage return: Python's csv
+    writer (before 3.12) leaves such a field unquoted with a "\\n" line end,
+    which splits the row for every reader, so the caller quotes it."""
+    return any(isinstance(v, str) and "\r" in v for v in values)
+
+
 def frame_csv_text(frame) -> str:
     """A pandas DataFrame as CSV text with guarded headers and text cells."""
+    import csv
+
     out = frame.copy()
     out.columns = [csv_text(str(c)) for c in out.columns]
+    quote = has_carriage_return(out.columns)
     for name in out.columns:
         if out[name].dtype == object or str(out[name].dtype).startswith(("string", "str")):
             out[name] = out[name].map(csv_text).astype(object)
-    return out.to_csv(index=False)
+            quote = quote or has_carriage_return(out[name])
+    return out.to_csv(index=False, quoting=csv.QUOTE_NONNUMERIC if quote else csv.QUOTE_MINIMAL)
 
 
 def frame_xlsx_bytes(frame, sheet_name: str = "Sheet1") -> bytes:

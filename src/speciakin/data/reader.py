@@ -336,9 +336,12 @@ def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]
             raise DataError(str(exc), Location(file=str(path)), expected="a CSV text file") from None
         try:
             sample = text[:4096]
-            dialect = csv.Sniffer().sniff(sample, delimiters=",;\t") if sample.strip() else csv.excel
+            delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t").delimiter if sample.strip() else ","
         except csv.Error:
-            dialect = csv.excel
+            delimiter = ","
+        # only the delimiter is sniffed: the quote character is always '"' (a sniffed "'" would
+        # swallow texts that our writers quote against formula execution, such as '=1+2)
+        dialect = type("SniffedDialect", (csv.excel,), {"delimiter": delimiter})
         raw = _csv_rows_fast(text, dialect)
         if raw is None:
             try:

@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 from speciakin import units
-from speciakin._cells import csv_text, guard_workbook
+from speciakin._cells import csv_text, guard_workbook, has_carriage_return
 from speciakin.data._files import write_bytes_atomically
 from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHEETS
 from speciakin.errors import DataError, Location
@@ -120,9 +120,10 @@ def _workbook_bytes(tables: Tables) -> bytes:
 def _csv_bytes(headers: Sequence[str], rows: Iterable[Sequence]) -> bytes:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow([csv_text(h) for h in headers])
-    for r in rows:
-        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, float) else csv_text(v)) for v in r])
+    quoted = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_ALL)  # rows with a carriage return
+    for r in [headers, *rows]:
+        cells = ["" if v is None else (repr(float(v)) if isinstance(v, float) else csv_text(v)) for v in r]
+        (quoted if has_carriage_return(cells) else w).writerow(cells)
     return buf.getvalue().encode("utf-8")
 
 
