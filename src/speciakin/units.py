@@ -120,6 +120,7 @@ def from_internal(value: float, symbol: str, dimension: str | None = None) -> fl
 
 _QTY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _HEADER = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
+_HEADER_SLASH = re.compile(r"^(.*?\S)\s+/\s+(\S.*?)\s*$")  # "time / min" (quantity / unit, ISO 80000-1)
 
 
 def parse_quantity(text: str | float | int, dimension: str, default_unit: str | None = None) -> float:
@@ -151,8 +152,12 @@ def parse_quantity(text: str | float | int, dimension: str, default_unit: str | 
 
 
 def split_header(header: str) -> tuple[str, str | None]:
-    """Split ``"time [min]"`` into ``("time", "min")``; no brackets -> ``(header, None)``."""
+    """Split ``"time [min]"``, ``"time (min)"`` or ``"time / min"`` into ``("time", "min")``;
+    no unit -> ``(header, None)``."""
     m = _HEADER.match(str(header).strip())
     if not m:
+        m = _HEADER_SLASH.match(str(header).strip())
+        if m:
+            return m.group(1).strip(), m.group(2).strip("() ") or None
         return str(header).strip(), None
-    return m.group(1).strip(), m.group(2).strip() or None
+    return m.group(1).strip().rstrip("/").strip(), m.group(2).strip() or None

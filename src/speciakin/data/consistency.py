@@ -26,7 +26,8 @@ from speciakin.errors import ProblemCollector
 
 __all__ = [
     "VOLUME_RANGE", "TEMPERATURE_LIMITS", "TEMPERATURE_USUAL", "CONCENTRATION_LIMIT", "CONCENTRATION_USUAL",
-    "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_RATIO_USUAL", "run_problems",
+    "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_CONCENTRATION_MINIMUM", "MAX_RUN_TIME",
+    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "run_problems",
 ]
 
 #: [K] temperatures outside -20 C to 120 C draw a warning (common practice).
@@ -38,6 +39,14 @@ TITRANT_CONCENTRATION_USUAL = (0.01, 10.0)
 #: [mol/L] a titrant more concentrated than this is an error (saturated NaOH is about 19 mol/L,
 #: from memory).
 TITRANT_CONCENTRATION_LIMIT = 25.0
+#: [mol/L] below this a titrant cannot hold a pH (it would take litres per millimole): an error.
+TITRANT_CONCENTRATION_MINIMUM = 1e-4
+#: [s] a run longer than a year is an error (a time unit mistake), common practice.
+MAX_RUN_TIME = 365.25 * 86400.0
+#: [-] RRF values outside this range draw a warning (common practice for UV detection).
+RRF_USUAL = (0.01, 100.0)
+#: [area%] a single area% value above 100 + this is an error (the area_sum tolerance of validate.py).
+AREA_PERCENT_EXCESS = 3.0
 #: [-] titrant consumed over the amounts in the vessel (initial + dosed, titrant ion excluded):
 #: outside this range a warning asks to check the titrant concentration and its unit (common practice).
 TITRANT_RATIO_USUAL = (1e-3, 1e2)
@@ -67,6 +76,13 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         c.error(f"run {run.name} has no length: no duration and nothing observed after time zero",
                 loc("runs", run.row, where), None, "a duration > 0, or HPLC samples or log readings after time zero",
                 code="zero_length")
+        return
+    if end > MAX_RUN_TIME:
+        has_duration = "duration" in campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {})
+        c.error(f"run {run.name} lasts {end / 86400.0:.3g} days", loc("runs", run.row, "duration" if has_duration
+                                                                          else "run"),
+                end / 60.0, f"at most {MAX_RUN_TIME / 86400.0:g} days [min]; check the time values and units "
+                "(the run ends at its duration or else at its last observation)", code="implausible")
         return
     rows = run.dose_rows or (None,) * len(r.doses)
     for dose, row in zip(r.doses, rows):
@@ -165,6 +181,12 @@ def _plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> 
                           amount * 1e3, f"below {CONCENTRATION_USUAL:g} mol/L; check the units",
                           code="unusual_concentration")
     h = run.hplc
+    over = (h.kind == "area_percent") & np.isfinite(h.value) & (h.value > 100.0 + AREA_PERCENT_EXCESS)
+    if over.any():
+        k = int(np.flatnonzero(over)[0])
+        c.error(f"area% of {h.compound[k]} in run {run.name} is above 100",
+                loc("hplc", int(h.rows[k]), "value" if campaign.layout == "long" else "time"), float(h.value[k]),
+                f"an area% from 0 to 100 (+{AREA_PERCENT_EXCESS:g} for rounding)", code="implausible")
     conc = (h.kind == "concentration") & np.isfinite(h.value) & (h.value > CONCENTRATION_LIMIT)
     if conc.any():
         k = int(np.flatnonzero(conc)[0])
@@ -182,14 +204,22 @@ def _titrant_plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollec
     tc = ph.titrant_concentration
     if tc is not None and tc > 0:
         lo, hi = TITRANT_CONCENTRATION_USUAL
-        if tc > TITRANT_CONCENTRATION_LIMIT:
-            c.error(f"titrant concentration of run {run.name} is not physically possible", where, f"{tc:g} mol/L",
-                    f"at most {TITRANT_CONCENTRATION_LIMIT:g} mol/L; check the unit in the header", code="implausible")
+        if not TITRANT_CONCENTRATION_MINIMUM <= tc <= TITRANT_CONCENTRATION_LIMIT:
+            c.error(f"titrant concentration of run {run.name} is not physically plausible", where, f"{tc:g} mol/L",
+                    f"{TITRANT_CONCENTRATION_MINIMUM:g} to {TITRANT_CONCENTRATION_LIMIT:g} mol/L; check the value and "
+                    "the unit in the header", code="implausible")
         elif not lo <= tc <= hi:
             c.warning(f"titrant concentration of run {run.name} is unusual for a pH-stat titrant", where,
                       f"{tc:g} mol/L", f"{lo:g} to {hi:g} mol/L; check the unit in the header "
                       "(mol/L or mmol/L)", code="unusual_titrant")
     if run.titrant is None or not run.titrant.amount.size:
+        return
+    vol = run.titrant.volume
+    if vol is not None and vol.size and np.nanmax(vol) > VOLUME_RANGE[1]:
+        k = int(np.nanargmax(vol))
+        c.error(f"titrant volume of run {run.name} is not physically plausible",
+                campaign.locate("titrant", int(run.titrant.rows[k]), "volume"), float(vol[k]) * 1e3,
+                f"at most {VOLUME_RANGE[1] * 1e3:g} mL; check the value and the header unit", code="implausible")
         return
     used = float(np.nanmax(run.titrant.amount))
     present = sum(a for s, a in r.charges.items() if s != ph.titrant)
@@ -207,7 +237,13 @@ def _titrant_plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollec
 
 
 def run_problems(campaign: Campaign, c: ProblemCollector) -> None:
-    """Add the consistency and plausibility findings of every run to ``c``."""
+    """Add the consistency and plausibility findings of every run (and of the
+    compounds' RRFs) to ``c``."""
+    lo, hi = RRF_USUAL
+    for comp in campaign.compounds:
+        if not lo <= comp.rrf <= hi:
+            c.warning(f"RRF of {comp.name} is unusual", campaign.locate("compounds", comp.row, "rrf"), comp.rrf,
+                      f"{lo:g} to {hi:g} (the response relative to the reference compound)", code="unusual_rrf")
     for run in campaign.runs:
         _consistency(campaign, run, c)
         _plausibility(campaign, run, c)

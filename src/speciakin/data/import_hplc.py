@@ -25,7 +25,10 @@ def parse_signal(raw, factor: float) -> tuple[float, bool, float, str | None]:
     else:
         s = str(raw).strip()
         if s.startswith("<"):
-            limit = to_float(s[1:].strip())
+            rest = s[1:].strip()
+            limit = to_float(rest)
+            if limit is None and rest and rest.upper() != "LOQ":
+                return np.nan, False, np.nan, "not a number (after '<' write LOQ or the limit)"
             limit = np.nan if limit is None else limit
             if np.isfinite(limit) and limit < 0:
                 return np.nan, True, np.nan, "negative limit"

@@ -30,6 +30,16 @@ from speciakin.errors import DataError, Location, ProblemCollector
 __all__ = ["load_campaign", "import_campaign", "find_sources"]
 
 
+#: Spreadsheet formats that are not read, with what to do instead.
+_OTHER_BOOKS = {
+    ".xls": "this is an old Excel 97-2003 (.xls) workbook; open it and save it as .xlsx",
+    ".xlsm": "macro-enabled workbooks (.xlsm) are not read; save a copy as .xlsx",
+    ".xlsb": "binary workbooks (.xlsb) are not read; save a copy as .xlsx",
+    ".ods": "OpenDocument spreadsheets (.ods) are not read; save a copy as .xlsx",
+    ".numbers": "Numbers files are not read; export the workbook as .xlsx",
+}
+
+
 def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile]]:
     """Read the campaign's tables from a folder (one .xlsx or a csv/ folder), a
     workbook file, or a folder of CSV files.
@@ -46,6 +56,9 @@ def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile
             return tables, [src]
         if p.suffix.lower() == ".csv":
             return read_csv_folder(p.parent)
+        if p.suffix.lower() in _OTHER_BOOKS:
+            raise DataError(_OTHER_BOOKS[p.suffix.lower()], Location(file=str(p)), p.suffix,
+                            "an .xlsx workbook (or a folder of CSV files)")
         raise DataError("not a campaign workbook", Location(file=str(p)), p.suffix,
                         "an .xlsx workbook, a campaign folder or a folder of CSV files")
     if not p.is_dir():
@@ -60,6 +73,10 @@ def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile
     for folder in (p / "csv", p):
         if folder.is_dir() and any(folder.glob("*.csv")):
             return read_csv_folder(folder)
+    others = sorted(q.name for q in p.iterdir() if q.suffix.lower() in _OTHER_BOOKS)
+    if others:
+        raise DataError(_OTHER_BOOKS[Path(others[0]).suffix.lower()], Location(file=str(p / others[0])),
+                        ", ".join(others), "an .xlsx workbook (or a csv/ folder)")
     raise DataError("no campaign workbook or CSV files found", Location(file=str(p)),
                     expected="one .xlsx workbook, or a csv/ folder with one CSV file per sheet")
 
@@ -73,14 +90,15 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     tables, sources = find_sources(path)
     c = collector
     found: dict[str, RawTable] = {}
+    renamed: list[tuple] = []
     for name, table in tables.items():
         spec = sheet_by_name(name)
         if spec is None:
             new = RENAMED_SHEETS.get(normalise_name(name))
-            if new is not None:
-                c.error(f"sheet '{name}' was renamed to '{new}'", Location(file=table.file, sheet=name), name,
-                        f"a sheet named '{new}' (CSV file {SHEETS['dosing'].csv_name}); rename it",
-                        code="renamed_sheet")
+            if new is not None:  # reported with the sheets' own findings, below
+                renamed.append((f"sheet '{name}' was renamed to '{new}'", Location(file=table.file, sheet=name),
+                                name, f"a sheet named '{new}' (CSV file {SHEETS['dosing'].csv_name}); rename it",
+                                "renamed_sheet"))
             continue
         if spec.key in found:
             c.error("sheet appears twice", Location(file=table.file, sheet=name), name, "each sheet once",
@@ -100,6 +118,8 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
 
     matched: dict[str, SheetColumns] = {key: match_columns(found[key], SHEETS[key], c, open_extra=key == "hplc")
                                     for key in found}
+    for message, loc, value, expected, code in renamed:
+        c.error(message, loc, value, expected, code=code)
     runs_cols = matched["runs"]
     run_rows = _read_runs(runs_cols, c)
     known = {r["name"]: r["row"] for r in run_rows}
