@@ -90,7 +90,7 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
             col = "end" if dose.end != dose.start else "start"
             c.error(f"dose of {dose.species} in run {run.name} ends after the run ends ({end_min})",
                     loc("dosing", row, col), dose.end / 60.0,
-                    f"a time <= the run's duration [min]; check the time unit in the header", code="after_end")
+                    "a time <= the run's duration [min]; check the time unit in the header", code="after_end")
     if r.withdrawals:
         late = np.flatnonzero(run.hplc.time > end)
         if late.size:

@@ -109,7 +109,7 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
             continue
         f = factor if kinds[k] == "concentration" else 1.0
         value, censored, cell_loq, err = parse_signal(raw, f)
-        if has_decimal_comma(raw) or (isinstance(raw, str) and has_decimal_comma(raw.strip().lstrip("<"))):
+        if has_decimal_comma(raw):  # '7,5' and '<0,05' alike
             t.comma_cells.append((row, col))
         if err is not None:
             c.error(f"HPLC value is {err}", t.location(row, col), raw,

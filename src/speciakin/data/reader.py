@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._cells import unguard_csv_text
+from speciakin.data.file_kinds import column_index, decode_csv, formulas_without_result, workbook_kind_problem
 from speciakin.errors import DataError, Location, ProblemCollector
 
 __all__ = ["RawTable", "SourceFile", "read_workbook", "read_csv_folder", "column_letter",
@@ -137,13 +138,6 @@ _CELL_START = re.compile(rb"<c[ >/]")
 _TEXT = re.compile(rb"<t(?:\s[^>]*)?>(.*?)</t>", re.S)
 
 
-def _column_index(letters: bytes) -> int:
-    n = 0
-    for ch in letters:
-        n = n * 26 + (ch - 64)
-    return n - 1
-
-
 def fast_sheet_rows(ws) -> list[tuple] | None:
     """Cell values of a read-only openpyxl worksheet by scanning its XML once.
 
@@ -193,7 +187,7 @@ def fast_sheet_rows(ws) -> list[tuple] | None:
             continue  # openpyxl reads an empty text cell as None
         col = letters_cache.get(letters)
         if col is None:
-            col = letters_cache[letters] = _column_index(letters)
+            col = letters_cache[letters] = column_index(letters)
         rows.setdefault(int(row_text), {})[col] = value
     if not rows:
         return []
@@ -245,80 +239,6 @@ def read_workbook(path: Path) -> tuple[dict[str, RawTable], SourceFile]:
     finally:
         wb.close()
     return tables, SourceFile(str(path), tuple(tables), _hash(data), len(data))
-
-
-_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
-_ENCRYPTED_MARK = "EncryptedPackage".encode("utf-16-le")
-
-
-def workbook_kind_problem(data: bytes) -> str | None:
-    """A plain sentence when ``data`` is not an XLSX workbook we can read, else None.
-
-    An XLSX file is a zip archive (starts with ``PK``); a password-protected
-    workbook is an OLE container holding an ``EncryptedPackage`` stream; the
-    Excel 97-2003 ``.xls`` format is an OLE container without it.
-    """
-    if data.startswith(_OLE_MAGIC):
-        if _ENCRYPTED_MARK in data:
-            return ("the workbook is password-protected (encrypted) and cannot be read; "
-                    "remove the password (File > Info > Protect Workbook) or save an unprotected copy")
-        return "this is an old Excel 97-2003 (.xls) workbook; open it and save it as .xlsx"
-    if data[:5] == b"{\\rtf" or data.lstrip()[:1] == b"<":
-        return "the file is not a workbook (it holds text or HTML); save it from the spreadsheet program as .xlsx"
-    if not data.startswith(b"PK"):
-        return "the file is not an XLSX workbook (not a zip archive); save it from the spreadsheet program as .xlsx"
-    return None
-
-
-_FORMULA_NO_VALUE = re.compile(
-    rb'<c r="([A-Z]{1,3})(\d+)"[^>]*?(?<!/)>\s*<f(?:[^>]*?/>|[^>]*>(.*?)</f>)\s*(?:<v\s*/>|<v></v>)?\s*</c>', re.S)
-
-
-def formulas_without_result(ws) -> list[tuple[int, int, str]]:
-    """(row, 0-based column, formula) of formula cells that carry no stored result.
-
-    A workbook written by a program that does not calculate (a script, some
-    exporters) stores formulas without their values; read with
-    ``data_only=True`` they look blank.  Returns [] when the sheet's XML is
-    not reachable.
-    """
-    try:
-        with ws._get_source() as source:
-            data = source.read()
-    except (AttributeError, KeyError, OSError):
-        return []
-    if b"<f" not in data:
-        return []
-    return [(int(row), _column_index(letters), html.unescape((formula or b"").decode("utf-8", "replace")))
-            for letters, row, formula in _FORMULA_NO_VALUE.findall(data)]
-
-
-def decode_csv(data: bytes) -> tuple[str, list[tuple[str, str, str]]]:
-    """Text of a CSV file and notes about its encoding.
-
-    UTF-8 (with or without BOM) is read silently.  UTF-16 (as written by
-    "Unicode text" exports) and Windows-1252/Latin-1 are read with one note
-    each.  Raises ValueError for a file that is not text.
-    """
-    if data.startswith((b"\xff\xfe", b"\xfe\xff")) or (len(data) > 3 and data[1:2] == b"\x00" and data[3:4] == b"\x00"):
-        try:
-            text = data.decode("utf-16")
-        except UnicodeDecodeError:
-            raise ValueError("the file looks like UTF-16 text but does not decode; save it as 'CSV UTF-8'") from None
-        return text.lstrip("\ufeff"), [("warning", "the file is UTF-16 text; it was read as such (saving as 'CSV UTF-8' "
-                                         "is recommended)", "encoding")]
-    if b"\x00" in data:
-        raise ValueError("the file is not text (it holds NUL bytes); export the sheet as 'CSV UTF-8'")
-    try:
-        return data.decode("utf-8-sig"), []
-    except UnicodeDecodeError:
-        pass
-    try:
-        text = data.decode("cp1252")
-    except UnicodeDecodeError:
-        text = data.decode("latin-1")
-    return text, [("warning", "the file is not UTF-8; it was read as Windows-1252/Latin-1 text (check accented names; "
-                   "saving as 'CSV UTF-8' avoids this)", "encoding")]
 
 
 def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]]:
