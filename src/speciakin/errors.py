@@ -14,6 +14,7 @@ from typing import Any
 __all__ = [
     "Location",
     "Problem",
+    "show_value",
     "problems_with",
     "SpeciakinError",
     "InputError",
@@ -59,6 +60,51 @@ class Location:
         return {k: v for k, v in self.__dict__.items() if v is not None}
 
 
+def show_value(value: Any) -> str:
+    """A value as a person reads it in a message: never a Python repr such as
+    ``np.float64(300.0)`` or ``datetime.timedelta(seconds=300)``.
+
+    Texts are quoted (control characters escaped), numbers written plainly,
+    dates and times in ISO form, durations in seconds, sequences and
+    mappings item by item.
+    """
+    import datetime
+    import math
+
+    if isinstance(value, str):
+        return repr(value)
+    if isinstance(value, bool) or value is None:
+        return str(value)
+    item = getattr(value, "item", None)
+    if callable(item) and getattr(value, "ndim", None) == 0:
+        try:
+            value = item()  # numpy scalar -> Python scalar
+        except (TypeError, ValueError):
+            pass
+    if isinstance(value, bool):
+        return str(value)
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return repr(value) if math.isfinite(value) else str(value)
+    if isinstance(value, datetime.timedelta):
+        return f"{value.total_seconds():g} s"
+    if isinstance(value, (datetime.datetime, datetime.date, datetime.time)):
+        return value.isoformat()
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{k}: {show_value(v)}" for k, v in value.items()) + "}"
+    tolist = getattr(value, "tolist", None)
+    if callable(tolist):
+        value = tolist()
+        if not isinstance(value, list):
+            return show_value(value)
+    if isinstance(value, (list, tuple, set, frozenset)):
+        items = list(value)
+        shown = ", ".join(show_value(v) for v in items[:8]) + (", ..." if len(items) > 8 else "")
+        return "[" + shown + "]"
+    return str(value)
+
+
 @dataclass(frozen=True)
 class Problem:
     """One finding: ``severity`` is ``"error"`` or ``"warning"``."""
@@ -74,7 +120,7 @@ class Problem:
         where = self.location.describe()
         text = f"{where}: {self.message}" if where else self.message
         if self.value is not None:
-            text += f" (value {self.value!r}"
+            text += f" (value {show_value(self.value)}"
             text += f"; expected {self.expected})" if self.expected else ")"
         elif self.expected:
             text += f" (expected {self.expected})"
@@ -86,7 +132,7 @@ class Problem:
             "code": self.code,
             "message": self.message,
             "location": self.location.to_dict(),
-            "value": None if self.value is None else str(self.value),
+            "value": None if self.value is None else show_value(self.value),
             "expected": self.expected,
             "text": self.describe(),
         }

@@ -15,6 +15,8 @@ from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Mapping
 
+from speciakin.errors import show_value
+
 __all__ = [
     "Unit",
     "UNITS",
@@ -102,7 +104,7 @@ def lookup(symbol: str, dimension: str | None = None) -> Unit:
         unit = UNITS.get(s.lower())
     if unit is None or (dimension is not None and unit.dimension != dimension):
         allowed = DIMENSIONS.get(dimension, tuple(UNITS)) if dimension else tuple(UNITS)
-        raise KeyError(f"unknown unit {symbol!r}; accepted: {', '.join(allowed)}")
+        raise KeyError(f"unknown unit {show_value(symbol)}; accepted: {', '.join(allowed)}")
     return unit
 
 
@@ -120,6 +122,7 @@ def from_internal(value: float, symbol: str, dimension: str | None = None) -> fl
 
 _QTY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 _HEADER = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
+_HEADER_SLASH = re.compile(r"^(.*?\S)\s+/\s+(\S.*?)\s*$")  # "time / min" (quantity / unit, ISO 80000-1)
 
 
 def parse_quantity(text: str | float | int, dimension: str, default_unit: str | None = None) -> float:
@@ -131,18 +134,18 @@ def parse_quantity(text: str | float | int, dimension: str, default_unit: str | 
         If the number or unit cannot be read; the message says what is accepted.
     """
     if isinstance(text, bool):
-        raise ValueError(f"expected a {dimension} such as '30 {DIMENSIONS[dimension][0]}', got {text!r}")
+        raise ValueError(f"expected a {dimension} such as '30 {DIMENSIONS[dimension][0]}', got {show_value(text)}")
     if isinstance(text, (int, float)):
         if default_unit is None:
-            raise ValueError(f"a bare number {text!r} needs a unit; accepted: {', '.join(DIMENSIONS[dimension])}")
+            raise ValueError(f"a bare number {show_value(text)} needs a unit; accepted: {', '.join(DIMENSIONS[dimension])}")
         return to_internal(float(text), default_unit, dimension)
     m = _QTY.match(str(text))
     if not m:
-        raise ValueError(f"expected a number with a unit such as '30 {DIMENSIONS[dimension][0]}', got {text!r}")
+        raise ValueError(f"expected a number with a unit such as '30 {DIMENSIONS[dimension][0]}', got {show_value(text)}")
     number, symbol = float(m.group(1)), m.group(2)
     if not symbol:
         if default_unit is None:
-            raise ValueError(f"{text!r} has no unit; accepted: {', '.join(DIMENSIONS[dimension])}")
+            raise ValueError(f"{show_value(text)} has no unit; accepted: {', '.join(DIMENSIONS[dimension])}")
         symbol = default_unit
     try:
         return to_internal(number, symbol, dimension)
@@ -151,8 +154,12 @@ def parse_quantity(text: str | float | int, dimension: str, default_unit: str | 
 
 
 def split_header(header: str) -> tuple[str, str | None]:
-    """Split ``"time [min]"`` into ``("time", "min")``; no brackets -> ``(header, None)``."""
+    """Split ``"time [min]"``, ``"time (min)"`` or ``"time / min"`` into ``("time", "min")``;
+    no unit -> ``(header, None)``."""
     m = _HEADER.match(str(header).strip())
     if not m:
+        m = _HEADER_SLASH.match(str(header).strip())
+        if m:
+            return m.group(1).strip(), m.group(2).strip("() ") or None
         return str(header).strip(), None
-    return m.group(1).strip(), m.group(2).strip() or None
+    return m.group(1).strip().rstrip("/").strip(), m.group(2).strip() or None

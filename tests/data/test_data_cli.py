@@ -68,6 +68,7 @@ def test_check_errors_json(tmp_path, capsys):
 def test_check_warnings_exit_zero(tmp_path, capsys):
     folder = csv_campaign(tmp_path)
     edit(folder, "runs.csv", 2, "duration [min]", "60")
+    edit(folder, "runs.csv", 2, "sample volume [mL]", "")
     assert main(["check", str(folder)]) == 0
     assert "sample taken after the run ends" in capsys.readouterr().out
 

@@ -83,9 +83,9 @@ def test_non_numeric_hplc_value(folder):
 
 
 def test_negative_value(folder):
-    edit(folder, "additions.csv", 2, "amount [mmol]", "-1")
+    edit(folder, "dosing.csv", 2, "amount [mmol]", "-1")
     p = _only(check_campaign(folder), "negative")
-    _assert_at(p, "additions", 2, "C (amount [mmol])")
+    _assert_at(p, "dosing", 2, "C (amount [mmol])")
 
 
 def test_duplicate_run_identifier(folder):
@@ -152,7 +152,7 @@ def test_held_run_without_setpoint(folder):
 def test_all_errors_in_one_pass(folder):
     edit(folder, "runs.csv", 2, "pH setpoint", "")
     edit(folder, "hplc_results.csv", 10, "run", "R09")
-    edit(folder, "additions.csv", 2, "amount [mmol]", "-1")
+    edit(folder, "dosing.csv", 2, "amount [mmol]", "-1")
     with pytest.raises(DataError) as info:
         load_campaign(folder)
     codes = {p.code for p in info.value.problems}
@@ -179,7 +179,7 @@ def test_workbook_locations_use_sheet_titles(tmp_path):
 def test_not_a_workbook(tmp_path):
     bad = tmp_path / "campaign.xlsx"
     bad.write_text("this is not a workbook")
-    with pytest.raises(DataError, match="not a readable XLSX workbook"):
+    with pytest.raises(DataError, match="not an XLSX workbook"):
         load_campaign(bad)
 
 

@@ -37,10 +37,10 @@ def test_header_units_convert(pair):
     _rescale(other, "hplc_results.csv", "time [min]", "time [h]", 1 / 60)
     _rescale(other, "runs.csv", "start volume [mL]", "start volume [L]", 1e-3)
     _rescale(other, "runs.csv", "temperature [C]", "temperature [K]", 1.0, 273.15)
-    _rescale(other, "runs.csv", "charge S [mmol]", "charge S [mol]", 1e-3)
+    _rescale(other, "runs.csv", "initial S [mmol]", "initial S [mol]", 1e-3)
     _rescale(other, "runs.csv", "titrant concentration [mol/L]", "titrant concentration [mM]", 1e3)
     _rescale(other, "hplc_results.csv", "value", "value [mmol/L]", 1.0)  # area% unaffected below
-    _rescale(other, "additions.csv", "amount [mmol]", "amount [umol]", 1e3)
+    _rescale(other, "dosing.csv", "amount [mmol]", "amount [umol]", 1e3)
     _rescale(other, "probe_log.csv", "time [min]", "time [s]", 60.0)
     a, b = load_campaign(base), load_campaign(other)
     for ra, rb in zip(a.runs, b.runs):

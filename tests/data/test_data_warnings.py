@@ -53,9 +53,20 @@ def test_duplicate_sample_time(folder):
 
 def test_sample_after_run_end(folder):
     edit(folder, "runs.csv", 2, "duration [min]", "60")
+    edit(folder, "runs.csv", 2, "sample volume [mL]", "")  # no liquid removed: the late sample is only noted
     p = _warning(folder, "after_end")
     _at(p, "hplc_results", 22, "B (time [min])")   # first value at 120 min
     assert p.value == pytest.approx(120.0)
+
+
+def test_sample_after_run_end_with_sample_volume_is_an_error(folder):
+    """A sample that removes liquid after the run ends cannot be simulated: an error at the
+    HPLC cell (before, the simulator reported it at 'run.R01.withdrawals[5].time')."""
+    edit(folder, "runs.csv", 2, "duration [min]", "60")
+    report = check_campaign(folder)
+    (p,) = [p for p in report.errors if p.code == "after_end"]
+    _at(p, "hplc_results", 22, "B (time [min])")
+    assert "time unit" in p.describe()
 
 
 def test_area_percent_not_summing_to_100(folder):

@@ -26,6 +26,7 @@ from speciakin.chemistry.model import (
 )
 from speciakin.chemistry.modelfile_paths import format_path, sub_path
 from speciakin.chemistry.modelfile_quantity import check_quantity
+from speciakin.chemistry.plausibility import plausibility_problems
 from speciakin.errors import Location, Problem, ProblemCollector
 
 __all__ = ["validate_model", "ACTIVITY_MODELS", "MOLECULE_ROLES", "hydrolysis_step_name",
@@ -326,4 +327,4 @@ def validate_model(model: Model) -> list[Problem]:
                     and not item["lower"] < item["upper"]:
                 ch.error(format_path("fit", key, "lower"), "lower bound is not below the upper bound",
                          f"lower={item['lower']:g}, upper={item['upper']:g}", "lower < upper")
-    return ch.c.problems
+    return ch.c.problems + plausibility_problems(model)

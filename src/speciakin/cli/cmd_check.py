@@ -21,7 +21,7 @@ def add_arguments(parser) -> None:
 def run(args) -> int:
     import json
 
-    from speciakin.data.validate import check_campaign
+    from speciakin.data import check_campaign
 
     model = args.model
     if model is None:

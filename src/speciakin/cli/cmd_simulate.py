@@ -51,9 +51,9 @@ def parse_times(text: str, end_time: float):
 
 
 def run(args) -> int:
-    import io
     from pathlib import Path
 
+    from speciakin._cells import frame_csv_text, frame_xlsx_bytes
     from speciakin.chemistry.modelfile import load_model
     from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file, output_dir
     from speciakin.errors import InputError, Location
@@ -84,11 +84,9 @@ def run(args) -> int:
 
     frame = pd.concat([res.to_frame() for res in results], ignore_index=True)
     if table.lower().endswith(".xlsx"):
-        buf = io.BytesIO()
-        frame.to_excel(buf, index=False, sheet_name="simulation")
-        atomic_write_bytes(out / table, buf.getvalue())
+        atomic_write_bytes(out / table, frame_xlsx_bytes(frame, "simulation"))
     else:
-        atomic_write_text(out / table, frame.to_csv(index=False))
+        atomic_write_text(out / table, frame_csv_text(frame))
     written = [out / table]
     if not args.no_plots:
         from speciakin.simulation.plots import plot_ph, plot_run, plot_titrant

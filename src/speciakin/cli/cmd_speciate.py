@@ -10,6 +10,7 @@ import argparse
 import io
 from pathlib import Path
 
+from speciakin._cells import frame_csv_text, frame_xlsx_bytes
 from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file
 from speciakin.errors import InputError, Location
 
@@ -192,11 +193,9 @@ def check_output_paths(args) -> None:
 def write_table(frame, path: str) -> None:
     """Write a DataFrame as CSV or XLSX (by suffix), atomically."""
     if Path(path).suffix.lower() == ".xlsx":
-        buffer = io.BytesIO()
-        frame.to_excel(buffer, index=False, engine="openpyxl")
-        atomic_write_bytes(path, buffer.getvalue())
+        atomic_write_bytes(path, frame_xlsx_bytes(frame))
     else:
-        atomic_write_text(path, frame.to_csv(index=False))
+        atomic_write_text(path, frame_csv_text(frame))
 
 
 def line_style(index: int) -> dict:

@@ -3,6 +3,7 @@
 Public API::
 
     load_campaign(path) -> Campaign          # raises DataError listing every error
+    load_campaign(path, model=model)         # also checks names against a model
     check_campaign(path, model=None) -> CheckReport
     write_campaign(campaign, path)           # .xlsx workbook or CSV folder
     write_template(path), write_template_csv(folder), new_campaign(folder)
@@ -13,7 +14,7 @@ from speciakin.data.campaign import (Campaign, CampaignRun, Compound, HplcData, 
 from speciakin.data.importer import load_campaign
 from speciakin.data.sheets import SHEETS
 from speciakin.data.templates import new_campaign, write_template, write_template_csv
-from speciakin.data.validate import CheckReport, check_campaign
+from speciakin.data.check import CheckReport, check_campaign
 from speciakin.data.writer import write_campaign
 
 __all__ = [

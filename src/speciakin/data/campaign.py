@@ -15,7 +15,7 @@ import numpy as np
 
 from speciakin.chemistry.model import PhControl, Run
 from speciakin.data.reader import SourceFile
-from speciakin.errors import Problem
+from speciakin.errors import Location, Problem
 
 __all__ = [
     "Compound",
@@ -297,6 +297,9 @@ class CampaignRun:
         Probe readings (pH [-], temperature [K]) or None.
     row
         Row of the run in the runs sheet.
+    dose_rows
+        Row in the Dosing sheet of each of ``recipe.doses`` (empty when
+        built in code).
     """
 
     recipe: Run
@@ -305,6 +308,7 @@ class CampaignRun:
     ph_log: TimeSeries | None = None
     temperature_log: TimeSeries | None = None
     row: int | None = None
+    dose_rows: tuple[int, ...] = ()
 
     @property
     def name(self) -> str:
@@ -380,6 +384,14 @@ class Campaign:
             if r.name == name:
                 return r
         raise KeyError(f"no run {name!r}; runs: {', '.join(r.name for r in self.runs)}")
+
+    def locate(self, sheet: str, row: int | None = None, column: str | None = None) -> Location:
+        """Location of a cell: ``sheet`` and ``column`` are registry keys
+        (``"runs"``, ``"start_volume"``); the column reads as in messages,
+        letter and header as written (``"G (start volume [mL])"``)."""
+        info = self.extra.get("sheets", {}).get(sheet, {})
+        label = info.get("columns", {}).get(column, column) if column else None
+        return Location(file=info.get("file"), sheet=info.get("sheet"), row=row, column=label)
 
     def compound(self, name: str) -> Compound:
         for c in self.compounds:

@@ -13,7 +13,7 @@ import numpy as np
 
 from speciakin import units
 from speciakin.data.reader import RawTable, column_letter, numeric_column, text_column
-from speciakin.data.sheets import CHARGE_PREFIX, SheetSpec, normalise_name
+from speciakin.data.sheets import INITIAL_PREFIX, RENAMED_PREFIXES, SheetSpec, normalise_name
 from speciakin.errors import Location, ProblemCollector
 
 __all__ = ["SheetColumns", "match_columns", "column_numbers", "column_texts", "run_column", "group_rows",
@@ -52,7 +52,12 @@ def match_columns(table: RawTable, spec: SheetSpec, c: ProblemCollector, *,
         loc = table.location(1, i)
         if col is None:
             cols.extra.append((i, name, unit_text))
-            if not open_extra and not normalise_name(name).startswith(CHARGE_PREFIX.strip()):
+            old = next((p for p in RENAMED_PREFIXES if normalise_name(name).startswith(p.strip() + " ")), None)
+            if old is not None and not open_extra:
+                new = RENAMED_PREFIXES[old] + name.strip()[len(old):].strip()
+                c.error(f"column '{old.strip()} ...' was renamed to '{RENAMED_PREFIXES[old].strip()} ...'", loc,
+                        header, f"'{new} [{unit_text or 'mmol'}]'", code="renamed_column")
+            elif not open_extra and not normalise_name(name).startswith(INITIAL_PREFIX.strip() + " "):
                 c.warning("column not recognised; it is ignored", loc, header,
                           "one of: " + ", ".join(s.header for s in spec.columns), code="unknown_column")
             continue

@@ -7,7 +7,7 @@ import numpy as np
 from speciakin import units
 from speciakin.data.campaign import Compound, HplcData, basis_of
 from speciakin.data.columns import SheetColumns, column_numbers, column_texts, run_column
-from speciakin.data.reader import is_blank
+from speciakin.data.reader import has_decimal_comma, is_blank, to_float
 from speciakin.data.sheets import HPLC_KINDS, normalise_name
 from speciakin.errors import Location, ProblemCollector
 
@@ -26,16 +26,15 @@ def parse_signal(raw, factor: float) -> tuple[float, bool, float, str | None]:
         s = str(raw).strip()
         if s.startswith("<"):
             rest = s[1:].strip()
-            try:
-                limit = float(rest)
-            except ValueError:
-                limit = np.nan
+            limit = to_float(rest)
+            if limit is None and rest and rest.upper() != "LOQ":
+                return np.nan, False, np.nan, "not a number (after '<' write LOQ or the limit)"
+            limit = np.nan if limit is None else limit
             if np.isfinite(limit) and limit < 0:
                 return np.nan, True, np.nan, "negative limit"
             return np.nan, True, limit * factor, None
-        try:
-            v = float(s)
-        except ValueError:
+        v = to_float(s)
+        if v is None:
             return np.nan, False, np.nan, "not a number"
     if not np.isfinite(v):
         return np.nan, False, np.nan, "not a finite number"
@@ -110,6 +109,8 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
             continue
         f = factor if kinds[k] == "concentration" else 1.0
         value, censored, cell_loq, err = parse_signal(raw, f)
+        if has_decimal_comma(raw):  # '7,5' and '<0,05' alike
+            t.comma_cells.append((row, col))
         if err is not None:
             c.error(f"HPLC value is {err}", t.location(row, col), raw,
                     "a number >= 0, '<LOQ', '<' followed by the limit, or blank", code="not_numeric"

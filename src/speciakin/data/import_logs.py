@@ -1,4 +1,4 @@
-"""Additions, probe log and titrant log sheets."""
+"""Dosing, probe log and titrant log sheets."""
 
 from __future__ import annotations
 
@@ -9,10 +9,12 @@ from speciakin.data.campaign import TimeSeries, TitrantLog
 from speciakin.data.columns import SheetColumns, column_numbers, column_texts, group_rows, run_column
 from speciakin.errors import Location, ProblemCollector
 
-__all__ = ["read_additions", "read_probe", "read_titrant"]
+__all__ = ["read_dosing", "read_probe", "read_titrant"]
 
 
-def read_additions(cols: SheetColumns, c: ProblemCollector, known: dict[str, int]) -> dict[str, tuple[Dose, ...]]:
+def read_dosing(cols: SheetColumns, c: ProblemCollector,
+                known: dict[str, int]) -> dict[str, tuple[tuple[Dose, int], ...]]:
+    """Doses per run, each with its spreadsheet row."""
     t = cols.table
     runs = run_column(cols, c, known)
     species = column_texts(cols, "species")
@@ -20,7 +22,7 @@ def read_additions(cols: SheetColumns, c: ProblemCollector, known: dict[str, int
     start = column_numbers(cols, "start", c, "start time", minimum=0.0, blank_ok=False)
     end = column_numbers(cols, "end", c, "end time", minimum=0.0)
     volume = column_numbers(cols, "volume", c, "volume", minimum=0.0)
-    out: dict[str, list[Dose]] = {}
+    out: dict[str, list[tuple[Dose, int]]] = {}
     for k, row in enumerate(t.row_numbers.tolist()):
         if runs[k] not in known:
             continue
@@ -32,11 +34,12 @@ def read_additions(cols: SheetColumns, c: ProblemCollector, known: dict[str, int
             continue
         e = end[k] if np.isfinite(end[k]) else start[k]
         if e < start[k]:
-            c.error("addition ends before it starts", t.location(row, cols.index("end")),
+            c.error("dose ends before it starts", t.location(row, cols.index("end")),
                     t.rows[k][cols.index("end")], "an end time >= the start time", code="out_of_range")
             continue
-        out.setdefault(runs[k], []).append(Dose(species[k], float(amount[k]), float(start[k]), float(e),
-                                                float(volume[k]) if np.isfinite(volume[k]) else 0.0))
+        dose = Dose(species[k], float(amount[k]), float(start[k]), float(e),
+                    float(volume[k]) if np.isfinite(volume[k]) else 0.0)
+        out.setdefault(runs[k], []).append((dose, row))
     return {k: tuple(v) for k, v in out.items()}
 
 

@@ -15,15 +15,29 @@ import numpy as np
 from speciakin import units
 from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, Withdrawal
 from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
+from speciakin.data.consistency import run_problems
+from speciakin.data.validate import campaign_warnings, model_problems
 from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
                                     optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
-from speciakin.data.import_logs import read_additions, read_probe, read_titrant
-from speciakin.data.reader import RawTable, SourceFile, numeric_column, read_csv_folder, read_workbook
-from speciakin.data.sheets import CHARGE_PREFIX, PH_MODE_WORDS, SHEETS, normalise_name, sheet_by_name
+from speciakin.data.import_logs import read_dosing, read_probe, read_titrant
+from speciakin.data.reader import (RawTable, SourceFile, column_letter, numeric_column, read_csv_folder,
+                                   read_workbook)
+from speciakin.data.sheets import (INITIAL_PREFIX, PH_MODE_WORDS, RENAMED_SHEETS, SHEETS, normalise_name,
+                                   sheet_by_name)
 from speciakin.errors import DataError, Location, ProblemCollector
 
 __all__ = ["load_campaign", "import_campaign", "find_sources"]
+
+
+#: Spreadsheet formats that are not read, with what to do instead.
+_OTHER_BOOKS = {
+    ".xls": "this is an old Excel 97-2003 (.xls) workbook; open it and save it as .xlsx",
+    ".xlsm": "macro-enabled workbooks (.xlsm) are not read; save a copy as .xlsx",
+    ".xlsb": "binary workbooks (.xlsb) are not read; save a copy as .xlsx",
+    ".ods": "OpenDocument spreadsheets (.ods) are not read; save a copy as .xlsx",
+    ".numbers": "Numbers files are not read; export the workbook as .xlsx",
+}
 
 
 def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile]]:
@@ -42,6 +56,9 @@ def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile
             return tables, [src]
         if p.suffix.lower() == ".csv":
             return read_csv_folder(p.parent)
+        if p.suffix.lower() in _OTHER_BOOKS:
+            raise DataError(_OTHER_BOOKS[p.suffix.lower()], Location(file=str(p)), p.suffix,
+                            "an .xlsx workbook (or a folder of CSV files)")
         raise DataError("not a campaign workbook", Location(file=str(p)), p.suffix,
                         "an .xlsx workbook, a campaign folder or a folder of CSV files")
     if not p.is_dir():
@@ -56,6 +73,10 @@ def find_sources(path: str | Path) -> tuple[dict[str, RawTable], list[SourceFile
     for folder in (p / "csv", p):
         if folder.is_dir() and any(folder.glob("*.csv")):
             return read_csv_folder(folder)
+    others = sorted(q.name for q in p.iterdir() if q.suffix.lower() in _OTHER_BOOKS)
+    if others:
+        raise DataError(_OTHER_BOOKS[Path(others[0]).suffix.lower()], Location(file=str(p / others[0])),
+                        ", ".join(others), "an .xlsx workbook (or a csv/ folder)")
     raise DataError("no campaign workbook or CSV files found", Location(file=str(p)),
                     expected="one .xlsx workbook, or a csv/ folder with one CSV file per sheet")
 
@@ -69,9 +90,15 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     tables, sources = find_sources(path)
     c = collector
     found: dict[str, RawTable] = {}
+    renamed: list[tuple] = []
     for name, table in tables.items():
         spec = sheet_by_name(name)
         if spec is None:
+            new = RENAMED_SHEETS.get(normalise_name(name))
+            if new is not None:  # reported with the sheets' own findings, below
+                renamed.append((f"sheet '{name}' was renamed to '{new}'", Location(file=table.file, sheet=name),
+                                name, f"a sheet named '{new}' (CSV file {SHEETS['dosing'].csv_name}); rename it",
+                                "renamed_sheet"))
             continue
         if spec.key in found:
             c.error("sheet appears twice", Location(file=table.file, sheet=name), name, "each sheet once",
@@ -84,33 +111,42 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
             c.error("required sheet is missing", Location(file=any_file, sheet=spec.title), None,
                     f"a sheet named '{spec.title}'" + (f" (or {spec.csv_name})" if any_file.endswith(".csv")
                                                      else ""), code="missing_sheet")
+    for table in found.values():
+        table_notes(table, c)
     if c.has_errors:
         return None
 
     matched: dict[str, SheetColumns] = {key: match_columns(found[key], SHEETS[key], c, open_extra=key == "hplc")
                                     for key in found}
+    for message, loc, value, expected, code in renamed:
+        c.error(message, loc, value, expected, code=code)
     runs_cols = matched["runs"]
     run_rows = _read_runs(runs_cols, c)
     known = {r["name"]: r["row"] for r in run_rows}
     compounds = _read_compounds(matched["compounds"], c)
     hplc_cols = matched["hplc"]
     hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
-    additions = read_additions(matched["additions"], c, known) if "additions" in found else {}
+    dosing = read_dosing(matched["dosing"], c, known) if "dosing" in found else {}
     probe = read_probe(matched["probe"], c, known) if "probe" in found else {}
     conc = {r["name"]: r["titrant_concentration"] for r in run_rows}
     titrant = read_titrant(matched["titrant"], c, known, conc) if "titrant" in found else {}
 
     runs: list[CampaignRun] = []
     for r in run_rows:
-        built = _build_run(r, hplc.get(r["name"]), additions.get(r["name"], ()), probe.get(r["name"], {}),
+        built = _build_run(r, hplc.get(r["name"]), dosing.get(r["name"], ()), probe.get(r["name"], {}),
                            titrant.get(r["name"]), runs_cols, c)
         if built is not None:
             runs.append(built)
+    for table in found.values():
+        comma_note(table, c)
     if c.has_errors:
         return None
     sheets_info = {key: {"file": t.file, "sheet": t.sheet,
                          "columns": {k: matched[key].label(k) for k in matched[key].found}}
                    for key, t in found.items()}
+    runs_table = runs_cols.table
+    sheets_info["runs"]["columns"].update(
+        {normalise_name(name): f"{column_letter(i)} ({runs_table.headers[i]})" for i, name, _ in runs_cols.extra})
     all_kinds = np.concatenate([r.hplc.kind for r in runs]) if runs else np.array([], dtype=object)
     campaign = Campaign(
         runs=tuple(runs), compounds=tuple(compounds), provenance=tuple(sources), problems=(),
@@ -118,10 +154,11 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
         layout="long" if hplc_cols.index("compound") is not None else "wide",
         extra={"sheets": sheets_info},
     )
-    return campaign
+    run_problems(campaign, c)
+    return None if c.has_errors else campaign
 
 
-def load_campaign(path: str | Path) -> Campaign:
+def load_campaign(path: str | Path, model=None) -> Campaign:
     """Import a campaign folder, workbook or CSV folder.
 
     Parameters
@@ -129,6 +166,11 @@ def load_campaign(path: str | Path) -> Campaign:
     path
         A campaign folder (holding one .xlsx workbook or a ``csv/`` folder), a
         workbook file, or a folder of CSV files (one per sheet).
+    model
+        Optional :class:`speciakin.chemistry.model.Model`: names of
+        compounds, species and titrants are then checked against it, so that
+        a mismatch is reported at its workbook cell (not later by the
+        simulator at a model-file key).
 
     Returns
     -------
@@ -141,13 +183,49 @@ def load_campaign(path: str | Path) -> Campaign:
     DataError
         Listing every error found, each with file, sheet, row and column.
     """
-    from speciakin.data.validate import campaign_warnings
-
     c = ProblemCollector()
     campaign = import_campaign(path, c)
     c.raise_if_errors(DataError)
-    campaign_warnings(campaign, c)
+    units_map = model_problems(campaign, model, c) if model is not None else None
+    c.raise_if_errors(DataError)
+    campaign_warnings(campaign, c, units_map)
     return replace(campaign, problems=tuple(c.warnings))
+
+
+# --------------------------------------------------------------------- files
+
+def table_notes(table: RawTable, c: ProblemCollector) -> None:
+    """Report what the reader found about a whole sheet: encoding notes, shifted
+    cells, formulas without a stored result (one error per column)."""
+    for severity, message, code in table.notes:
+        loc = Location(file=table.file, sheet=table.sheet)
+        if severity == "warning":
+            c.warning(message, loc, code=code)
+        else:
+            c.error(message, loc, expected="one cell per header column", code=code)
+    by_column: dict[int, list[tuple[int, str]]] = {}
+    for row, col, formula in table.formula_cells:
+        by_column.setdefault(col, []).append((row, formula))
+    for col, cells in sorted(by_column.items()):
+        row, formula = cells[0]
+        more = f" ({len(cells)} such cells in this column)" if len(cells) > 1 else ""
+        header = table.headers[col] if col < len(table.headers) else ""
+        c.error(f"formula has no stored result, so its value is unknown{more}",
+                Location(file=table.file, sheet=table.sheet, row=row,
+                         column=f"{column_letter(col)} ({header})" if header else column_letter(col)),
+                "=" + formula, "a value: open the workbook in Excel or LibreOffice and save it (this stores the "
+                "results), or replace the formulas by their values (copy, paste values)",
+                code="formula_without_value")
+
+
+def comma_note(table: RawTable, c: ProblemCollector) -> None:
+    """One note per sheet for numbers written with a decimal comma."""
+    if not table.comma_cells:
+        return
+    row, col = min(table.comma_cells)
+    n = len(table.comma_cells)
+    c.warning(f"{n} number(s) written with a decimal comma were read as decimals ('7,5' = 7.5)",
+              table.location(row, col), None, "decimal points, or decimal commas throughout", code="decimal_comma")
 
 
 # --------------------------------------------------------------------- sheets
@@ -167,12 +245,12 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
     charges: list[tuple[str, np.ndarray]] = []
     for i, name, unit_text in cols.extra:
         n = normalise_name(name)
-        if not n.startswith(CHARGE_PREFIX.strip()):
+        if not (n + " ").startswith(INITIAL_PREFIX):
             continue
-        species = name.strip()[len(CHARGE_PREFIX):].strip()
+        species = name.strip()[len(INITIAL_PREFIX):].strip()
         loc = t.location(1, i)
         if not species:
-            c.error("charge column does not name a species", loc, t.headers[i], "e.g. 'charge S [mmol]'",
+            c.error("initial-amount column does not name a species", loc, t.headers[i], "e.g. 'initial S [mmol]'",
                     code="invalid_header")
             continue
         try:
@@ -182,7 +260,7 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
                     unit_text or t.headers[i], "one of: " + ", ".join(units.DIMENSIONS["amount"]),
                     code="unknown_unit" if unit_text else "missing_unit")
             continue
-        charges.append((species, numeric_column(t, i, c, what=f"charge of {species}", factor=u.factor,
+        charges.append((species, numeric_column(t, i, c, what=f"initial amount of {species}", factor=u.factor,
                                                 minimum=0.0)))
     out: list[dict] = []
     first: dict[str, int] = {}
@@ -249,7 +327,7 @@ def _read_compounds(cols: SheetColumns, c: ProblemCollector) -> list[Compound]:
     return out
 
 
-def _build_run(r: dict, hplc: HplcData | None, doses: tuple[Dose, ...], probe: dict,
+def _build_run(r: dict, hplc: HplcData | None, dosing: tuple[tuple[Dose, int], ...], probe: dict,
                titrant: TitrantLog | None, cols: SheetColumns, c: ProblemCollector) -> CampaignRun | None:
     t = cols.table
     row = r["row"]
@@ -296,5 +374,6 @@ def _build_run(r: dict, hplc: HplcData | None, doses: tuple[Dose, ...], probe: d
     if r["sample_volume"]:
         withdrawals = tuple(Withdrawal(float(x), r["sample_volume"]) for x in hplc.sample_times)
     recipe = Run(name=r["name"], charges=dict(r["charges"]), volume=r["volume"], temperature=temperature,
-                 ph=control, end_time=float(end), doses=tuple(doses), withdrawals=withdrawals, note=r["note"])
-    return CampaignRun(recipe, hplc, titrant, ph_log, temp_log, row)
+                 ph=control, end_time=float(end), doses=tuple(d for d, _ in dosing), withdrawals=withdrawals,
+                 note=r["note"])
+    return CampaignRun(recipe, hplc, titrant, ph_log, temp_log, row, tuple(k for _, k in dosing))

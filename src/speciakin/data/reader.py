@@ -18,12 +18,14 @@ import html
 import io
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from speciakin._cells import unguard_csv_text
+from speciakin.data.file_kinds import column_index, decode_csv, formulas_without_result, workbook_kind_problem
 from speciakin.errors import DataError, Location, ProblemCollector
 
 __all__ = ["RawTable", "SourceFile", "read_workbook", "read_csv_folder", "column_letter",
@@ -60,7 +62,12 @@ class RawTable:
     """Cells of one sheet below its header row.
 
     ``rows[i]`` is a tuple of cell values (None for blank) at spreadsheet row
-    ``row_numbers[i]``; fully blank rows are dropped.
+    ``row_numbers[i]``; fully blank rows are dropped.  ``formula_cells``
+    lists (row, 0-based column, formula) of formulas without a stored result
+    (read as blank); ``notes`` holds (message, code) remarks about the whole
+    file as (severity, message, code), severity "fatal" meaning the sheet's
+    columns cannot be trusted (cells shifted); ``comma_cells`` collects (row, column) of numbers
+    written with a decimal comma as they are converted.
     """
 
     file: str
@@ -68,6 +75,9 @@ class RawTable:
     headers: list[str]
     rows: list[tuple]
     row_numbers: np.ndarray
+    formula_cells: list[tuple[int, int, str]] = field(default_factory=list)
+    notes: list[tuple[str, str, str]] = field(default_factory=list)
+    comma_cells: list[tuple[int, int]] = field(default_factory=list)
 
     def location(self, row: int | None = None, column: int | None = None) -> Location:
         col = None
@@ -128,13 +138,6 @@ _CELL_START = re.compile(rb"<c[ >/]")
 _TEXT = re.compile(rb"<t(?:\s[^>]*)?>(.*?)</t>", re.S)
 
 
-def _column_index(letters: bytes) -> int:
-    n = 0
-    for ch in letters:
-        n = n * 26 + (ch - 64)
-    return n - 1
-
-
 def fast_sheet_rows(ws) -> list[tuple] | None:
     """Cell values of a read-only openpyxl worksheet by scanning its XML once.
 
@@ -184,7 +187,7 @@ def fast_sheet_rows(ws) -> list[tuple] | None:
             continue  # openpyxl reads an empty text cell as None
         col = letters_cache.get(letters)
         if col is None:
-            col = letters_cache[letters] = _column_index(letters)
+            col = letters_cache[letters] = column_index(letters)
         rows.setdefault(int(row_text), {})[col] = value
     if not rows:
         return []
@@ -218,16 +221,21 @@ def read_workbook(path: Path) -> tuple[dict[str, RawTable], SourceFile]:
         data = path.read_bytes()
     except OSError as exc:
         raise DataError(f"cannot read workbook: {exc.strerror}", Location(file=str(path))) from None
+    not_xlsx = workbook_kind_problem(data)
+    if not_xlsx:
+        raise DataError(not_xlsx, Location(file=str(path)), expected="a workbook saved as .xlsx without a password")
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
-    except (BadZipFile, KeyError, ValueError, OSError) as exc:
-        raise DataError(f"not a readable XLSX workbook ({exc})", Location(file=str(path)),
-                        expected="a workbook saved as .xlsx") from None
+    except (BadZipFile, KeyError, ValueError, OSError, TypeError, AttributeError, IndexError) as exc:
+        raise DataError("not a readable XLSX workbook (" + (str(exc) or type(exc).__name__) + ")",
+                        Location(file=str(path)), expected="a workbook saved as .xlsx") from None
     tables: dict[str, RawTable] = {}
     try:
         for ws in wb.worksheets:
             rows = fast_sheet_rows(ws)
-            tables[ws.title] = _table(str(path), ws.title, rows if rows is not None else ws.iter_rows(values_only=True))
+            table = _table(str(path), ws.title, rows if rows is not None else ws.iter_rows(values_only=True))
+            table.formula_cells = formulas_without_result(ws)
+            tables[ws.title] = table
     finally:
         wb.close()
     return tables, SourceFile(str(path), tuple(tables), _hash(data), len(data))
@@ -243,23 +251,44 @@ def read_csv_folder(folder: Path) -> tuple[dict[str, RawTable], list[SourceFile]
         except OSError as exc:
             raise DataError(f"cannot read CSV file: {exc.strerror}", Location(file=str(path))) from None
         try:
-            text = data.decode("utf-8-sig")
-        except UnicodeDecodeError:
-            text = data.decode("latin-1")
+            text, notes = decode_csv(data)
+        except ValueError as exc:
+            raise DataError(str(exc), Location(file=str(path)), expected="a CSV text file") from None
         try:
             sample = text[:4096]
-            dialect = csv.Sniffer().sniff(sample, delimiters=",;\t") if sample.strip() else csv.excel
+            delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t").delimiter if sample.strip() else ","
         except csv.Error:
-            dialect = csv.excel
+            delimiter = ","
+        # only the delimiter is sniffed: the quote character is always '"' (a sniffed "'" would
+        # swallow texts that our writers quote against formula execution, such as '=1+2)
+        dialect = type("SniffedDialect", (csv.excel,), {"delimiter": delimiter})
         raw = _csv_rows_fast(text, dialect)
         if raw is None:
             try:
                 raw = list(csv.reader(io.StringIO(text), dialect))
             except csv.Error as exc:
                 raise DataError(f"cannot parse CSV file ({exc})", Location(file=str(path))) from None
-        tables[path.stem] = _table(str(path), path.stem, raw)
+        if "'" in text:  # texts guarded against formula execution by our writers: '=1+2 -> =1+2
+            raw = [tuple(unguard_csv_text(v) for v in row) for row in raw]
+        table = _table(str(path), path.stem, raw)
+        table.notes = notes + _wide_rows(raw, len(table.headers), getattr(dialect, "delimiter", ","))
+        tables[path.stem] = table
         sources.append(SourceFile(str(path), (path.stem,), _hash(data), len(data)))
     return tables, sources
+
+
+def _wide_rows(raw: list, width: int, delimiter: str) -> list[tuple[str, str, str]]:
+    """A fatal note when data rows hold more filled cells than the header row."""
+    wide = [n for n, row in enumerate(raw[1:], start=2)
+            if len(row) > width and any(not is_blank(v) for v in row[width:])]
+    if not wide or width == 0:
+        return []
+    text = (f"{len(wide)} row(s) have more cells than the header row (first: row {wide[0]}), so the "
+            "columns are shifted")
+    if delimiter == ",":
+        text += ("; the numbers seem to use decimal commas while commas also separate the cells: "
+                 "export with ';' as the separator, or with decimal points")
+    return [("fatal", text, "shifted_cells")]
 
 
 def _csv_rows_fast(text: str, dialect) -> list[tuple] | None:
@@ -291,16 +320,24 @@ def _csv_rows_fast(text: str, dialect) -> list[tuple] | None:
     return [tuple(r) for r in values.tolist()] if width else None
 
 
-def _to_float(value: Any) -> float | None:
-    """One cell -> float, or None when it is not a number."""
+def has_decimal_comma(value: Any) -> bool:
+    """True for a text such as ``'7,5'``: one comma, no point (read as 7.5 everywhere)."""
+    return isinstance(value, str) and value.count(",") == 1 and "." not in value
+
+
+def to_float(value: Any) -> float | None:
+    """One cell -> float, or None when it is not a number.
+
+    The one rule for every sheet: a text with one comma and no point is a
+    decimal comma (``'7,5'`` -> 7.5); callers note such cells once per file.
+    """
     if isinstance(value, bool):
         return None
-    if isinstance(value, (int, float)):
+    if isinstance(value, (int, float, np.integer, np.floating)):
         return float(value)
     if isinstance(value, str):
         try:
-            return float(value.strip().replace(",", ".") if value.count(",") == 1 and "." not in value
-                         else value.strip())
+            return float(value.strip().replace(",", ".") if has_decimal_comma(value) else value.strip())
         except ValueError:
             return None
     return None
@@ -335,7 +372,9 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
         v = values[i]
         if is_blank(v):
             continue
-        f = _to_float(v)
+        f = to_float(v)
+        if f is not None and has_decimal_comma(v):
+            table.comma_cells.append((int(table.row_numbers[i]), index))
         if f is None:
             collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
                             v, "a number", code="not_numeric")
@@ -349,7 +388,7 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
         blank |= skip
     for i in np.flatnonzero(bad & ~blank):
         v = values[i]
-        if _to_float(v) is not None and not math.isfinite(_to_float(v)):
+        if to_float(v) is not None and not math.isfinite(to_float(v)):
             collector.error(f"{what} is not a finite number", table.location(int(table.row_numbers[i]), index),
                             v, "a finite number", code="not_numeric")
     if not blank_ok:

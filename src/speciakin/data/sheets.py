@@ -22,7 +22,9 @@ __all__ = [
     "SHEETS",
     "HPLC_KINDS",
     "PH_MODE_WORDS",
-    "CHARGE_PREFIX",
+    "INITIAL_PREFIX",
+    "RENAMED_SHEETS",
+    "RENAMED_PREFIXES",
     "normalise_name",
     "sheet_by_name",
 ]
@@ -80,8 +82,15 @@ class SheetSpec:
         raise KeyError(key)
 
 
-#: Prefix of the per-species charge columns of the runs sheet: ``charge S [mmol]``.
-CHARGE_PREFIX = "charge "
+#: Prefix of the per-species columns of the runs sheet giving the amount present at
+#: time zero: ``initial S [mmol]``.
+INITIAL_PREFIX = "initial "
+
+#: Former sheet names (normalised) -> the title that replaced them.
+RENAMED_SHEETS: Mapping[str, str] = MappingProxyType({"additions": "Dosing"})
+
+#: Former prefixes of the per-species Runs columns -> the prefix that replaced them.
+RENAMED_PREFIXES: Mapping[str, str] = MappingProxyType({"charge ": INITIAL_PREFIX})
 
 #: Accepted words for the kind of an HPLC value -> internal kind.
 HPLC_KINDS: Mapping[str, str] = MappingProxyType({
@@ -129,18 +138,18 @@ _RUNS = SheetSpec(
     ),
 )
 
-_ADDITIONS = SheetSpec(
-    "additions", "Additions", "additions.csv", False,
-    "Everything added after time zero (reagent, base, acid), one row per addition. "
+_DOSING = SheetSpec(
+    "dosing", "Dosing", "dosing.csv", False,
+    "Everything dosed into the vessel after time zero (reagent, base, acid), one row per dose. "
     "Several rows per run are allowed.",
     (
         _c("run", ["run", "run id"], None, None, True, "Run identifier from the Runs sheet."),
         _c("species", ["species", "what"], None, None, True,
-           "What is added: a molecule or ion name of the model file."),
-        _c("amount", ["amount"], "amount", "mmol", True, "Amount added in total."),
+           "What is dosed: a molecule or ion name of the model file."),
+        _c("amount", ["amount"], "amount", "mmol", True, "Amount dosed in total."),
         _c("start", ["start"], "time", "min", True, "When the addition begins."),
         _c("end", ["end"], "time", "min", False,
-           "When it ends (constant rate in between). Blank or equal to start = added at once."),
+           "When it ends (constant rate in between). Blank or equal to start = dosed at once."),
         _c("volume", ["volume"], "volume", "mL", False, "Liquid volume that comes with it (blank = none)."),
     ),
 )
@@ -210,7 +219,7 @@ _TITRANT = SheetSpec(
 
 #: Every sheet of a campaign, in workbook order.
 SHEETS: Mapping[str, SheetSpec] = MappingProxyType({
-    s.key: s for s in (_RUNS, _ADDITIONS, _COMPOUNDS, _HPLC, _PROBE, _TITRANT)
+    s.key: s for s in (_RUNS, _DOSING, _COMPOUNDS, _HPLC, _PROBE, _TITRANT)
 })
 
 

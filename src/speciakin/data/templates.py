@@ -13,8 +13,9 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 from speciakin import units
+from speciakin._cells import csv_text, guard_workbook, has_carriage_return
 from speciakin.data._files import write_bytes_atomically
-from speciakin.data.sheets import CHARGE_PREFIX, HPLC_KINDS, PH_MODE_WORDS, SHEETS
+from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHEETS
 from speciakin.errors import DataError, Location
 
 __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write_template",
@@ -22,7 +23,7 @@ __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write
 
 GUIDE_TITLE = "Read me"
 WORKBOOK_NAME = "campaign.xlsx"
-EXAMPLE_CHARGE_COLUMNS = (f"{CHARGE_PREFIX}S [mmol]", f"{CHARGE_PREFIX}E [mmol]")
+EXAMPLE_INITIAL_COLUMNS = (f"{INITIAL_PREFIX}S [mmol]", f"{INITIAL_PREFIX}E [mmol]")
 
 Tables = dict[str, tuple[list[str], list[Sequence]]]
 
@@ -43,9 +44,9 @@ def guide_lines() -> list[tuple[str, str]]:
         for col in spec.columns:
             lines.append((f"    {col.header}", ("required. " if col.required else "") + col.description))
         if spec.key == "runs":
-            lines.append((f"    {CHARGE_PREFIX}<name> [mmol]",
+            lines.append((f"    {INITIAL_PREFIX}<name> [mmol]",
                           "One column per species present at time zero, named as in the model file "
-                          f"(the template shows {' and '.join(repr(c) for c in EXAMPLE_CHARGE_COLUMNS)}; "
+                          f"(the template shows {' and '.join(repr(c) for c in EXAMPLE_INITIAL_COLUMNS)}; "
                           "rename or add columns). Blank = none."))
         if spec.key == "hplc":
             lines.append(("    <compound> (wide layout)",
@@ -73,7 +74,7 @@ def blank_tables() -> Tables:
     for spec in SHEETS.values():
         headers = [c.header for c in spec.columns]
         if spec.key == "runs":
-            headers += list(EXAMPLE_CHARGE_COLUMNS)
+            headers += list(EXAMPLE_INITIAL_COLUMNS)
         out[spec.key] = (headers, [])
     return out
 
@@ -110,6 +111,7 @@ def _workbook_bytes(tables: Tables) -> bytes:
             dv = DataValidation(type="list", formula1='"held,logged,free"', allow_blank=True)
             ws.add_data_validation(dv)
             dv.add("B2:B1000")
+    guard_workbook(wb)  # names such as '=1+2' stay text
     buf = io.BytesIO()
     wb.save(buf)
     return buf.getvalue()
@@ -118,9 +120,10 @@ def _workbook_bytes(tables: Tables) -> bytes:
 def _csv_bytes(headers: Sequence[str], rows: Iterable[Sequence]) -> bytes:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(headers)
-    for r in rows:
-        w.writerow(["" if v is None else (repr(float(v)) if isinstance(v, float) else v) for v in r])
+    quoted = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_ALL)  # rows with a carriage return
+    for r in [headers, *rows]:
+        cells = ["" if v is None else (repr(float(v)) if isinstance(v, float) else csv_text(v)) for v in r]
+        (quoted if has_carriage_return(cells) else w).writerow(cells)
     return buf.getvalue().encode("utf-8")
 
 
@@ -167,7 +170,7 @@ Files here:
 
 - `{workbook}`: the campaign workbook. Its first sheet ('{guide}') explains every sheet,
   column and unit. Fill in the runs, the HPLC compounds and results, and (if you have them)
-  the additions, the probe log and the titrant log.
+  the dosing, the probe log and the titrant log.
 {model_line}
 {process_line}
 

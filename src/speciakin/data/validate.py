@@ -16,19 +16,15 @@ logged pH vs setpoint              > :data:`SETPOINT_TOLERANCE` (0.5 pH units)
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from pathlib import Path
-from typing import Any
-
 import numpy as np
 
 from speciakin.data.campaign import Campaign, CampaignRun, TimeSeries
-from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, problems_with
+from speciakin.data.sheets import INITIAL_PREFIX, normalise_name
+from speciakin.errors import Location, ProblemCollector
 
 __all__ = [
     "AREA_PERCENT_TOLERANCE", "MASS_BALANCE_TOLERANCE", "GAP_FACTOR", "GAP_MINIMUM",
-    "SETPOINT_TOLERANCE", "CheckReport", "campaign_warnings", "model_problems", "check_campaign",
-    "mass_balance",
+    "SETPOINT_TOLERANCE", "campaign_warnings", "model_problems", "mass_balance",
 ]
 
 AREA_PERCENT_TOLERANCE = 3.0   # [area%] common practice
@@ -39,9 +35,7 @@ SETPOINT_TOLERANCE = 0.5       # [pH units] common practice for a pH-stat
 
 
 def _loc(campaign: Campaign, sheet: str, row: int | None, column: str | None) -> Location:
-    info = campaign.extra.get("sheets", {}).get(sheet, {})
-    label = info.get("columns", {}).get(column, column) if column else None
-    return Location(file=info.get("file"), sheet=info.get("sheet"), row=row, column=label)
+    return campaign.locate(sheet, row, column)
 
 
 def _first_decrease(time: np.ndarray) -> tuple[int, int]:
@@ -149,7 +143,7 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
                       _loc(campaign, "hplc", row, "time"), t / 60.0, "one value per compound and time [min]",
                       code="duplicate_time")
         late = np.flatnonzero(h.time > run.recipe.end_time)
-        if late.size:
+        if late.size and not run.recipe.withdrawals:  # with withdrawals it is an error (consistency.py)
             k = int(late[0])
             c.warning(f"sample taken after the run ends ({run.recipe.end_time / 60.0:g} min)"
                       + (f"; {late.size} values in all" if late.size > 1 else ""),
@@ -207,10 +201,6 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
                           + (f" ({off.size} readings in all)" if off.size > 1 else ""),
                           _loc(campaign, "probe", int(log.rows[k]), "ph"), float(log.value[k]),
                           f"within {SETPOINT_TOLERANCE:g} of the setpoint", code="setpoint_deviation")
-        if run.recipe.ph.mode == "held" and not run.recipe.ph.titrant:
-            c.warning(f"held-pH run {run.name} names no titrant ion; titrant use cannot be modelled",
-                      _loc(campaign, "runs", run.row, "titrant"), None, "an ion name such as Na+",
-                      code="missing_titrant")
     if area_used:
         sheet = campaign.extra.get("sheets", {}).get("compounds", {})
         has_rrf = "rrf" in sheet.get("columns", {})
@@ -237,13 +227,14 @@ def model_problems(campaign: Campaign, model, c: ProblemCollector) -> dict[str, 
     for run in campaign.runs:
         for species in run.recipe.charges:
             if species not in known:
-                c.error(f"run {run.name} charges a species the model does not have",
-                        _loc(campaign, "runs", run.row, None), f"charge {species}",
+                c.error(f"run {run.name} starts with a species the model does not have",
+                        _loc(campaign, "runs", run.row, normalise_name(f"{INITIAL_PREFIX}{species}")), species,
                         "a molecule or ion of the model: " + ", ".join(sorted(known)), code="unknown_species")
-        for dose in run.recipe.doses:
+        rows = run.dose_rows or (None,) * len(run.recipe.doses)
+        for dose, row in zip(run.recipe.doses, rows):
             if dose.species not in known:
-                c.error(f"run {run.name} adds a species the model does not have",
-                        _loc(campaign, "additions", None, "species"), dose.species,
+                c.error(f"run {run.name} doses a species the model does not have",
+                        _loc(campaign, "dosing", row, "species"), dose.species,
                         "a molecule or ion of the model: " + ", ".join(sorted(known)), code="unknown_species")
         tit = run.recipe.ph.titrant
         if run.recipe.ph.mode == "held" and tit and tit not in ions:
@@ -255,116 +246,3 @@ def model_problems(campaign: Campaign, model, c: ProblemCollector) -> dict[str, 
         return _substrate_units_from_compounds(campaign)
     moiety = next(iter(substrate.moieties))
     return {m.name: float(m.moieties.get(moiety, 0.0)) for m in model.molecules}
-
-
-@dataclass
-class CheckReport:
-    """Outcome of :func:`check_campaign`.
-
-    Attributes
-    ----------
-    source
-        Campaign path.
-    model
-        Model file path or name, or None.
-    problems
-        Every error and warning, in the order found.
-    runs, hplc_values, log_readings
-        Counts of what was imported (0 when the import failed).
-    """
-
-    source: str
-    model: str | None = None
-    problems: list[Problem] = field(default_factory=list)
-    runs: int = 0
-    hplc_values: int = 0
-    log_readings: int = 0
-
-    @property
-    def errors(self) -> list[Problem]:
-        return problems_with(self.problems, "error")
-
-    @property
-    def warnings(self) -> list[Problem]:
-        return problems_with(self.problems, "warning")
-
-    @property
-    def ok(self) -> bool:
-        return not self.errors
-
-    @property
-    def exit_code(self) -> int:
-        return 0 if self.ok else DataError.exit_code
-
-    def report(self) -> str:
-        lines = ["Campaign check", "==============", f"Campaign: {self.source}",
-                 f"Model: {self.model or '(none)'}",
-                 f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}",
-                 "", "Errors", "------"]
-        lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
-        lines += ["", "Warnings", "--------"]
-        lines += [f"  - {p.describe()}" for p in self.warnings] or ["  none"]
-        lines += ["", "Result", "------",
-                  "OK: ready to fit" if self.ok and not self.warnings else
-                  "OK with warnings: review them before fitting" if self.ok else
-                  f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"]
-        return "\n".join(lines)
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"source": self.source, "model": self.model, "ok": self.ok,
-                "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
-                           "hplc_values": self.hplc_values, "log_readings": self.log_readings},
-                "problems": [p.to_dict() for p in self.problems]}
-
-
-def check_campaign(path: str | Path, model=None) -> CheckReport:
-    """Import and check a campaign; never raises for problems in the data.
-
-    Parameters
-    ----------
-    path
-        Campaign folder, workbook or CSV folder.
-    model
-        None, a :class:`speciakin.chemistry.model.Model`, or the path of a
-        model file (read with ``speciakin.chemistry.modelfile.load_model``).
-
-    Returns
-    -------
-    CheckReport
-        Every error and warning with its location.
-    """
-    from speciakin.data.importer import import_campaign
-
-    c = ProblemCollector()
-    report = CheckReport(source=str(path))
-    model_obj = None
-    if model is not None:
-        if isinstance(model, (str, Path)):
-            report.model = str(model)
-            try:
-                from speciakin.chemistry.modelfile import load_model
-            except ImportError:
-                c.error("model files cannot be read by this installation", Location(file=str(model)),
-                        code="model_unavailable")
-            else:
-                try:
-                    model_obj = load_model(model)
-                except InputError as exc:  # the model reader's own findings, reported with ours
-                    c.problems.extend(exc.problems)
-        else:
-            model_obj = model
-            report.model = getattr(model, "source", "") or getattr(model, "name", "model")
-    try:
-        campaign = import_campaign(path, c)
-    except DataError as exc:
-        c.problems.extend(exc.problems)
-        campaign = None
-    if campaign is not None:
-        units_map = model_problems(campaign, model_obj, c) if model_obj is not None else None
-        campaign_warnings(campaign, c, units_map)
-        report.runs = len(campaign.runs)
-        report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
-        report.log_readings = sum(len(x) for r in campaign.runs for x in (r.ph_log, r.temperature_log)
-                                  if x is not None)
-    report.problems = list(c.problems)
-    return report

@@ -14,7 +14,7 @@ import numpy as np
 
 from speciakin import units
 from speciakin.data.campaign import Campaign
-from speciakin.data.sheets import CHARGE_PREFIX, SHEETS
+from speciakin.data.sheets import INITIAL_PREFIX, SHEETS
 from speciakin.data.templates import write_tables
 
 __all__ = ["write_campaign"]
@@ -49,7 +49,7 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
         Files written (atomically).
     """
     species = list(dict.fromkeys(s for r in campaign.runs for s in r.recipe.charges))
-    run_rows, add_rows, hplc_rows, probe_rows, titrant_rows = [], [], [], [], []
+    run_rows, dose_rows, hplc_rows, probe_rows, titrant_rows = [], [], [], [], []
     for run in campaign.runs:
         r = run.recipe
         ph = r.ph
@@ -62,7 +62,7 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
             _f(sample_volume, "mL", "volume"), r.note or None,
         ] + [_f(r.charges.get(s), "mmol", "amount") for s in species])
         for d in r.doses:
-            add_rows.append([r.name, d.species, _f(d.amount, "mmol", "amount"), _f(d.start, "min", "time"),
+            dose_rows.append([r.name, d.species, _f(d.amount, "mmol", "amount"), _f(d.start, "min", "time"),
                              _f(d.end, "min", "time"), _f(d.volume, "mL", "volume")])
         h = run.hplc
         for k in range(len(h)):
@@ -100,8 +100,8 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
     compound_rows = [[c.name, c.molecule, c.rrf, c.molar_mass, c.loq, c.substrate_units] for c in campaign.compounds]
     hplc_headers = ["run", "time [min]", "kind", "compound", "value"]  # concentrations in mol/L, the default
     tables = {
-        "runs": (_headers("runs") + [f"{CHARGE_PREFIX}{s} [mmol]" for s in species], run_rows),
-        "additions": (_headers("additions"), add_rows),
+        "runs": (_headers("runs") + [f"{INITIAL_PREFIX}{s} [mmol]" for s in species], run_rows),
+        "dosing": (_headers("dosing"), dose_rows),
         "compounds": (_headers("compounds"), compound_rows),
         "hplc": (hplc_headers, hplc_rows),
         "probe": (_headers("probe"), probe_rows),

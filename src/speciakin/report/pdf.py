@@ -3,8 +3,9 @@ summary, contents, numbered pages, tables that split across pages (header
 row repeated), figures scaled to the text frame.
 
 Text is set in DejaVu Sans (shipped with matplotlib) so that symbols such as
-"≥", "±" and Greek letters print and stay extractable; the built-in
-Helvetica is used when that font file is missing.
+"≥", "±" and Greek letters print and stay extractable, with fallback fonts
+for CJK names and emoji (pdf_fonts.py); the built-in Helvetica is used when
+DejaVu Sans is missing.
 """
 
 from __future__ import annotations
@@ -12,13 +13,14 @@ from __future__ import annotations
 import io
 import os
 from pathlib import Path
-from xml.sax.saxutils import escape
 
 from speciakin.errors import InputError, Location
 from speciakin.palette import OKABE_ITO
 from speciakin.report._io import atomic_write_bytes
 from speciakin.report.document import CALLOUT_KINDS, RESERVED_ANCHORS, Block, Callout, Figure, KeyValues, ReportDocument, Table
 from speciakin.report.html import SUMMARY_ANCHOR, SUMMARY_TITLE
+from speciakin.report.pdf_fonts import markup as escape  # escapes; fallback fonts for any script
+from speciakin.report.pdf_fonts import register_fonts
 
 __all__ = ["render_pdf", "pdf_bytes", "CALLOUT_COLORS"]
 
@@ -30,25 +32,8 @@ _RULE = "#C8C8C8"
 
 
 def _fonts() -> tuple[str, str, str]:
-    """Register DejaVu Sans if available; return (regular, bold, mono) font names."""
-    from reportlab.pdfbase import pdfmetrics
-    from reportlab.pdfbase.ttfonts import TTFont
-
-    if "SpkSans" in pdfmetrics.getRegisteredFontNames():
-        return "SpkSans", "SpkSans-Bold", "SpkMono"
-    try:
-        import matplotlib
-
-        folder = Path(matplotlib.get_data_path()) / "fonts" / "ttf"
-        pdfmetrics.registerFont(TTFont("SpkSans", str(folder / "DejaVuSans.ttf")))
-        pdfmetrics.registerFont(TTFont("SpkSans-Bold", str(folder / "DejaVuSans-Bold.ttf")))
-        pdfmetrics.registerFont(TTFont("SpkSans-Oblique", str(folder / "DejaVuSans-Oblique.ttf")))
-        pdfmetrics.registerFont(TTFont("SpkMono", str(folder / "DejaVuSansMono.ttf")))
-        pdfmetrics.registerFontFamily("SpkSans", normal="SpkSans", bold="SpkSans-Bold",
-                                      italic="SpkSans-Oblique", boldItalic="SpkSans-Bold")
-        return "SpkSans", "SpkSans-Bold", "SpkMono"
-    except (OSError, ImportError):  # font files missing: the standard PDF fonts still work
-        return "Helvetica", "Helvetica-Bold", "Courier"
+    """Register DejaVu Sans and the fallback fonts (pdf_fonts.py); return (regular, bold, mono) font names."""
+    return register_fonts()
 
 
 def _styles():

@@ -14,6 +14,7 @@ import os
 import re
 from pathlib import Path
 
+from speciakin._cells import guard_workbook
 from speciakin.report._io import atomic_write_bytes
 from speciakin.report.document import Cell, ReportDocument, Table, format_cell
 
@@ -154,6 +155,7 @@ def xlsx_bytes(doc: ReportDocument) -> bytes:
         _write_table(workbook.create_sheet(name), table)
     workbook.properties.title = doc.title
     workbook.properties.creator = f"speciakin {doc.software_version}"
+    guard_workbook(workbook)  # texts such as '=1+2' stay text
     buffer = io.BytesIO()
     workbook.save(buffer)
     return buffer.getvalue()

@@ -100,7 +100,7 @@ class ReportInputs:
     process
         :class:`speciakin.decision.process_plan.ProcessPlan` or None.
     check
-        :class:`speciakin.data.validate.CheckReport` or None.
+        :class:`speciakin.data.check.CheckReport` or None.
     command
         The exact command that reproduces the report.
     software_version

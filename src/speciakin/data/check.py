@@ -1,0 +1,125 @@
+"""``check_campaign``: import a campaign, check it (with a model when given)
+and gather every error and warning into a :class:`CheckReport`."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from speciakin.data.importer import import_campaign
+from speciakin.data.validate import campaign_warnings, model_problems
+from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, problems_with
+
+__all__ = ["CheckReport", "check_campaign"]
+
+
+@dataclass
+class CheckReport:
+    """Outcome of :func:`check_campaign`.
+
+    Attributes
+    ----------
+    source
+        Campaign path.
+    model
+        Model file path or name, or None.
+    problems
+        Every error and warning, in the order found.
+    runs, hplc_values, log_readings
+        Counts of what was imported (0 when the import failed).
+    """
+
+    source: str
+    model: str | None = None
+    problems: list[Problem] = field(default_factory=list)
+    runs: int = 0
+    hplc_values: int = 0
+    log_readings: int = 0
+
+    @property
+    def errors(self) -> list[Problem]:
+        return problems_with(self.problems, "error")
+
+    @property
+    def warnings(self) -> list[Problem]:
+        return problems_with(self.problems, "warning")
+
+    @property
+    def ok(self) -> bool:
+        return not self.errors
+
+    @property
+    def exit_code(self) -> int:
+        return 0 if self.ok else DataError.exit_code
+
+    def report(self) -> str:
+        lines = ["Campaign check", "==============", f"Campaign: {self.source}",
+                 f"Model: {self.model or '(none)'}",
+                 f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}",
+                 "", "Errors", "------"]
+        lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
+        lines += ["", "Warnings", "--------"]
+        lines += [f"  - {p.describe()}" for p in self.warnings] or ["  none"]
+        lines += ["", "Result", "------",
+                  "OK: ready to fit" if self.ok and not self.warnings else
+                  "OK with warnings: review them before fitting" if self.ok else
+                  f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"]
+        return "\n".join(lines)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"source": self.source, "model": self.model, "ok": self.ok,
+                "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
+                           "hplc_values": self.hplc_values, "log_readings": self.log_readings},
+                "problems": [p.to_dict() for p in self.problems]}
+
+
+def check_campaign(path: str | Path, model=None) -> CheckReport:
+    """Import and check a campaign; never raises for problems in the data.
+
+    Parameters
+    ----------
+    path
+        Campaign folder, workbook or CSV folder.
+    model
+        None, a :class:`speciakin.chemistry.model.Model`, or the path of a
+        model file (read with ``speciakin.chemistry.modelfile.load_model``).
+
+    Returns
+    -------
+    CheckReport
+        Every error and warning with its location.
+    """
+    c = ProblemCollector()
+    report = CheckReport(source=str(path))
+    model_obj = None
+    if model is not None:
+        if isinstance(model, (str, Path)):
+            report.model = str(model)
+            try:
+                from speciakin.chemistry.modelfile import load_model
+            except ImportError:
+                c.error("model files cannot be read by this installation", Location(file=str(model)),
+                        code="model_unavailable")
+            else:
+                try:
+                    model_obj = load_model(model)
+                except InputError as exc:  # the model reader's own findings, reported with ours
+                    c.problems.extend(exc.problems)
+        else:
+            model_obj = model
+            report.model = getattr(model, "source", "") or getattr(model, "name", "model")
+    try:
+        campaign = import_campaign(path, c)
+    except DataError as exc:
+        c.problems.extend(exc.problems)
+        campaign = None
+    if campaign is not None:
+        units_map = model_problems(campaign, model_obj, c) if model_obj is not None else None
+        campaign_warnings(campaign, c, units_map)
+        report.runs = len(campaign.runs)
+        report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
+        report.log_readings = sum(len(x) for r in campaign.runs for x in (r.ph_log, r.temperature_log)
+                                  if x is not None)
+    report.problems = list(c.problems)
+    return report
