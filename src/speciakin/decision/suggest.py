@@ -369,6 +369,11 @@ class SuggestResult:
         return "\n".join(lines)
 
 
+def _ph(value: float) -> str:
+    """Two decimals without a negative zero."""
+    return f"{round(value, 2) + 0.0:.2f}"
+
+
 def _conditions_text(conditions: dict[str, Any]) -> str:
     parts = [f"pH {conditions['setpoint_pH']:.2f}"]
     for key, fmt in (("temperature_C", "{:g} C"), ("equivalents", "{:g} eq"),
@@ -606,8 +611,8 @@ def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_
     if decision is not None:
         helps = max(top.edge_reduction, top.undecided_reduction) >= min_gain
         gain_text = (f"the best run is expected to narrow the window edges' {int(round(100 * credible))} % "
-                     f"credible widths by {top.edge_reduction:.2f} pH and the undecided span by "
-                     f"{top.undecided_reduction:.2f} pH")
+                     f"credible widths by {_ph(top.edge_reduction)} pH and the undecided span by "
+                     f"{_ph(top.undecided_reduction)} pH")
         limit_text = f"{min_gain:g} pH"
     else:
         helps = max(top.sd_shrinkage.values(), default=0.0) >= MIN_SD_SHRINKAGE

@@ -312,9 +312,16 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         other = "preposterior" if method == "linear" else "linear"
         alt = rank_candidates(draws, obs.values, obs.sd, conditions, method=other,
                               progress=say(f"check ({other})"), **kwargs)
-        first = alt.candidates[0].index
-        rank_in_alt = [c.index for c in alt.candidates].index(result.candidates[0].index) + 1
-        result.check = {"method": other, "best_candidate": alt.candidates[0].to_dict(),
-                        "rank_of_this_best_there": rank_in_alt,
-                        "agree": first == result.candidates[0].index, "helps": alt.helps}
+        order = [c.index for c in alt.candidates]
+        mine = alt.candidates[order.index(result.candidates[0].index)]
+        best = alt.candidates[0]
+        result.check = {
+            "method": other, "best_candidate": best.to_dict(), "this_best_there": mine.to_dict(),
+            "rank_of_this_best_there": order.index(mine.index) + 1, "agree": best.index == mine.index,
+            "shortfall_pH": (best.edge_reduction - mine.edge_reduction) if decision is not None else None,
+            "helps": alt.helps}
+        if result.check["shortfall_pH"] is not None and result.check["shortfall_pH"] > result.min_gain:
+            result.notes.append(f"the {other} check prefers {best.conditions['setpoint_pH']:.2f} and expects "
+                                f"{result.check['shortfall_pH']:.2f} pH more narrowing from it; treat the "
+                                "ranking as uncertain")
     return result
