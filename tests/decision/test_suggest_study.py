@@ -37,8 +37,11 @@ from speciakin.decision.suggest import credible_width, decision_draws, draw_edge
 from speciakin.decision.suggest_campaign import candidate_runs, suggest_for_campaign, template_index  # noqa: E402
 from speciakin.estimation.campaign_fit import fit_campaign  # noqa: E402
 from speciakin.estimation.objective import CampaignObjective  # noqa: E402
+from speciakin.errors import SolverError  # noqa: E402
 
 N_DRAWS = 300
+#: Least-squares starts per fit (the ridge of the low-pH campaigns defeats single starts now and then).
+STARTS = 4
 
 
 def edge_width(objective, fit, process, anchor_ph: float | None = None) -> tuple[float, float]:
@@ -52,14 +55,18 @@ def edge_width(objective, fit, process, anchor_ph: float | None = None) -> tuple
     return sum(credible_width(edges[:, k]) for k in (0, 1)), float(decision.ph[decision.anchor])
 
 
-def one_campaign(k: int) -> dict:
+def one_campaign(k: int) -> dict | None:
+    """One campaign of the study; None when a least-squares fit fails (counted apart)."""
     rng = np.random.default_rng(1000 + k)
     truth = {"pKa[S.N_a]": rng.uniform(7.5, 9.5), "log10k[acyl_a]": rng.uniform(1.0, 2.0),
              "log10k[acyl_b]": rng.uniform(-0.3, 0.3)}
     setpoints = tuple(sorted(rng.choice([3.0, 3.5, 4.0, 4.5, 5.0, 5.5, 6.0], size=3, replace=False)))
     model, campaign, process = build(setpoints, seed=k, truth=truth)
     objective = CampaignObjective(model, campaign)
-    fit = fit_campaign(objective, profiles=False)
+    try:
+        fit = fit_campaign(objective, starts=STARTS, profiles=False)
+    except SolverError:
+        return None
     result = suggest_for_campaign(objective, fit=fit, process=process, n_draws=N_DRAWS, seed=k)
     top = result.candidates[0]
     others = [c for c in result.candidates if c.index != top.index]
@@ -70,7 +77,10 @@ def one_campaign(k: int) -> dict:
         runs, _ = candidate_runs(objective, [cand.conditions], template_index(objective), SAMPLE_TIMES)
         extended = synthetic_campaign(model, list(model.runs) + runs, truth, SAMPLE_TIMES, COMPOUNDS, seed=k)
         obj2 = CampaignObjective(model, extended)
-        widths[label] = edge_width(obj2, fit_campaign(obj2, profiles=False), process)[0]
+        try:
+            widths[label] = edge_width(obj2, fit_campaign(obj2, starts=STARTS, profiles=False), process)[0]
+        except SolverError:
+            return None
     return {"campaign": k, "truth_pka": truth["pKa[S.N_a]"], "setpoints": setpoints,
             "top_ph": top.conditions["setpoint_pH"], "random_ph": pick.conditions["setpoint_pH"],
             "before": before, "top": widths["top"], "random": widths["random"],
@@ -87,8 +97,22 @@ def summary(rows: list[dict]) -> str:
     return "\n".join(lines)
 
 
+def run_study(n: int, most: int) -> tuple[list[dict], int]:
+    """Campaigns k = 0, 1, ... until ``n`` complete (at most ``most`` tried); rows and failed fits."""
+    rows, failed, k = [], 0, 0
+    while len(rows) < n and k < most:
+        row = one_campaign(k)
+        k += 1
+        if row is None:
+            failed += 1
+        else:
+            rows.append(row)
+    return rows, failed
+
+
 def test_top_run_is_never_clearly_worse_short():
-    rows = [one_campaign(k) for k in range(3)]
+    rows, _ = run_study(3, 5)
+    assert len(rows) == 3
     print(summary(rows))
     for r in rows:
         assert r["top"] <= r["random"] + 0.1, summary(rows)
@@ -97,7 +121,9 @@ def test_top_run_is_never_clearly_worse_short():
 
 @pytest.mark.slow
 def test_top_run_beats_a_random_run_in_most_campaigns():
-    rows = [one_campaign(k) for k in range(20)]
+    rows, failed = run_study(20, 26)
     print(summary(rows))
+    print(f"campaigns whose least-squares fit failed (left out): {failed}")
+    assert len(rows) == 20
     wins = sum(r["top"] < r["random"] for r in rows)
     assert wins >= 0.8 * len(rows), summary(rows)

@@ -44,7 +44,7 @@ def suggest_shrinkage_figure(ph: Sequence[float], edge_low: Sequence[float] | No
     x = as_array(ph, "ph", allow_nan=False)
     d = as_array(d_gain, "d_gain")
     same_length(ph=x, d_gain=d)
-    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN)
+    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.8)
     ax = fig.add_subplot()
     right = ax.twinx()
     series = (("low window edge (credible width)", edge_low, "blue", "-", "o"),
@@ -74,7 +74,8 @@ def suggest_shrinkage_figure(ph: Sequence[float], edge_low: Sequence[float] | No
     right.set_ylim(bottom=0.0, top=max(1e-6, float(np.nanmax(d))) * 1.1 if np.isfinite(d).any() else 1.0)
     handles, labels = ax.get_legend_handles_labels()
     h2, l2 = right.get_legend_handles_labels()
-    ax.legend(handles + h2, labels + l2, frameon=False, loc="upper left", fontsize=7)
+    ax.legend(handles + h2, labels + l2, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.2),
+              ncol=2, fontsize=7)
     if title:
         ax.set_title(title)
     return to_png(fig)
