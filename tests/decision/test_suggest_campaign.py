@@ -161,3 +161,26 @@ def test_command_writes_suggestions_and_figure(tmp_path, capsys):
     png = (out / "figures" / "suggest_shrinkage.png").read_bytes()
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
     assert (out / "suggest.txt").read_text().startswith("Suggested next runs")
+
+
+def test_candidate_runs_copy_the_protocol_with_the_stated_changes(low_campaign):
+    objective = low_campaign[3]
+    index = template_index(objective)
+    template = objective.runs[index].recipe
+    conditions = candidate_conditions((7.0, 7.0), temperatures_c=[30.0], equivalents=[2.0],
+                                      dosing_times_min=[20.0], sample_times_min=[0.0, 5.0, 60.0])
+    assert len(conditions) == 1
+    (run,), (times,) = candidate_runs(objective, conditions, index, SAMPLE_TIMES)
+    # hand values: 2.0 eq of the 1.0 mmol substrate charged, fed from 0 to 20 min, 30 C = 303.15 K
+    assert run.ph.mode == "held" and run.ph.setpoint == 7.0
+    assert run.ph.titrant == template.ph.titrant
+    assert run.ph.titrant_concentration == template.ph.titrant_concentration
+    assert run.temperature.temperatures == (303.15,)
+    (dose,) = run.doses
+    assert dose.species == "ANH"
+    assert dose.amount == pytest.approx(2.0e-3, rel=1e-12)
+    assert (dose.start, dose.end) == (0.0, 1200.0)
+    assert dose.volume == template.doses[0].volume
+    assert run.charges == template.charges and run.volume == template.volume
+    np.testing.assert_array_equal(times, [300.0, 3600.0])
+    assert run.end_time == template.end_time
