@@ -204,3 +204,16 @@ def test_bad_arguments():
     with pytest.raises(ValueError, match="n_draws >= 10"):
         rank_candidates(theta[:3], [p[:3] for p in preds], sd, [{"setpoint_pH": 1.0}] * 3,
                         parameter_names=["a", "b"])
+
+
+def test_a_candidate_whose_simulations_fail_is_not_judged():
+    theta, decision, preds, noise = _toy_decision(spread=0.8)
+    preds[0] = preds[0].copy()
+    preds[0][::2] = np.nan                       # half the draws failed, plus one more
+    preds[0][1] = np.nan
+    result = rank_candidates(theta, preds, lambda c, v: np.full(v.shape, noise[c]),
+                             [{"setpoint_pH": float(i)} for i in range(3)], parameter_names=["edge", "other"],
+                             decision=decision)
+    failed = next(c for c in result.candidates if c.index == 0)
+    assert failed.reason.startswith("not judged") and failed.edge_reduction == 0.0
+    assert result.candidates[0].index == 1

@@ -108,6 +108,13 @@ def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_
     def evaluate(chosen: list[int]) -> CandidateScore:
         y = np.concatenate([preds[c] for c in chosen], axis=1)
         ok = np.all(np.isfinite(y), axis=1)
+        if ok.sum() < max(10, theta.shape[0] // 2):
+            done[0] += 1
+            score = CandidateScore(chosen[-1], dict(conditions[chosen[-1]]), prior.widths(), prior.widths(),
+                                   prior.undecided(), prior.undecided(), 0.0, 0.0, {n: 0.0 for n in names})
+            score.reason = (f"not judged: the simulation of this run failed for {int((~ok).sum())} of "
+                            f"{ok.size} draws")
+            return score
         if method == "linear":
             sub = prior if ok.all() else Prior(theta[ok], None if decision is None else DecisionDraws(
                 decision.ph, decision.passes[ok], decision.margin[ok], decision.anchor), credible)
