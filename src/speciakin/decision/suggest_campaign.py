@@ -23,7 +23,7 @@ from speciakin.chemistry.model import Run, TemperatureProfile
 from speciakin.decision.campaign_window import process_outcome_function, window_draws
 from speciakin.decision.design import process_scan_arguments
 from speciakin.decision.outcomes import process_outcome_names
-from speciakin.decision.suggest import SuggestResult, decision_draws, rank_candidates
+from speciakin.decision.suggest import MIN_GAIN_PH, SuggestResult, decision_draws, rank_candidates
 from speciakin.errors import InputError, Location
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_runs
@@ -267,10 +267,41 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
                          progress: Callable[[str, int, int], None] | None = None) -> SuggestResult:
     """Rank candidate next runs of a campaign (see :func:`rank_candidates`).
 
-    ``fit`` (CampaignFitResult) or ``posterior`` (PosteriorResult) must be
-    given; the posterior is used when present.  ``process`` (validated plan)
-    switches on the decision criteria.  ``check`` also runs the other method
-    and records whether its best candidate agrees.
+    Parameters
+    ----------
+    objective
+        :class:`speciakin.estimation.objective.CampaignObjective` of the campaign.
+    fit, posterior
+        CampaignFitResult and/or PosteriorResult; the posterior's draws are
+        used when given, else draws from the fit's covariance.
+    process
+        Validated process plan: switches on the window criteria; None = the
+        D-optimal criterion over all parameters only.
+    n_draws, seed
+        Parameter draws and the seed of draws and simulated noise.
+    ph_range, ph_step
+        Candidate set points [pH] (default: :func:`plausible_ph_range`) and spacing.
+    plant_ph, temperatures_c, temperature_limits_c, equivalents, dosing_times_min, sample_times_min
+        Limits and optional factors, see :func:`candidate_conditions` ([C], [-], [min]).
+    template
+        Name of the campaign run whose protocol the candidates copy.
+    method, batch, min_gain
+        As for :func:`rank_candidates` (``min_gain`` [pH], default :data:`MIN_GAIN_PH`).
+    check
+        Also rank with the other method; ``result.check`` records its best
+        candidate and how much less it expects from this method's best.
+    progress
+        ``progress(stage, done, total)``.
+
+    Returns
+    -------
+    SuggestResult
+
+    Raises
+    ------
+    InputError
+        No fit or posterior, no candidate within the limits, limits outside
+        the model's validity, an unknown template run.
     """
     if fit is None and posterior is None:
         raise InputError("no fit or posterior to start from", Location(file="fit.json"), None,
@@ -299,7 +330,7 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         outcomes = np.concatenate([fn(draws[i:i + 64], args["ph_grid"]) for i in range(0, draws.shape[0], 64)])
         decision = decision_draws(args["ph_grid"], outcomes, args["specs"], names)
     kwargs = dict(parameter_names=objective.names, decision=decision, batch=batch, seed=seed,
-                  min_gain=min_gain if min_gain is not None else 0.1)
+                  min_gain=min_gain if min_gain is not None else MIN_GAIN_PH)
     result = rank_candidates(draws, obs.values, obs.sd, conditions, method=method,
                              progress=say("rank candidates"), **kwargs)
     pkas = {n: v for n, v in site_pkas(objective, theta_centre).items() if n in objective.names}
