@@ -217,3 +217,19 @@ def test_a_candidate_whose_simulations_fail_is_not_judged():
     failed = next(c for c in result.candidates if c.index == 0)
     assert failed.reason.startswith("not judged") and failed.edge_reduction == 0.0
     assert result.candidates[0].index == 1
+
+
+def test_shrinkage_figure_is_a_png():
+    from speciakin.report.figures.suggest import suggest_shrinkage_figure
+
+    theta, decision, preds, noise = _toy_decision(spread=0.8)
+    result = rank_candidates(theta, preds, lambda c, v: np.full(v.shape, noise[c]),
+                             [{"setpoint_pH": float(i)} for i in range(3)], parameter_names=["edge", "other"],
+                             decision=decision)
+    curves = result.by_ph()
+    np.testing.assert_array_equal(curves["ph"], [0.0, 1.0, 2.0])
+    assert curves["edge_high"][0] == pytest.approx(result.candidates[0].edge_width_before[1]
+                                                   - result.candidates[0].edge_width_after[1])
+    png = suggest_shrinkage_figure(curves["ph"], curves["edge_low"], curves["edge_high"], curves["undecided"],
+                                   curves["d_gain"], min_gain=0.1, best_ph=0.0)
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"

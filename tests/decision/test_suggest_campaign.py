@@ -79,7 +79,7 @@ def test_top_suggestion_sits_near_the_undetermined_pka(low_suggestion):
     # narrow the edges within the "helps much" threshold of its own best, which is also near the pKa
     check = low_suggestion.check
     assert check["method"] == "preposterior"
-    assert 0.0 <= check["shortfall_pH"] <= 0.1
+    assert -0.01 <= check["shortfall_pH"] <= 0.1   # ranks are keyed to 0.01 pH, so a hair below 0 can occur
     assert abs(check["best_candidate"]["conditions"]["setpoint_pH"] - TRUTH[PKA]) <= 1.5
 
 

@@ -39,7 +39,7 @@ def suggest_shrinkage_figure(ph: Sequence[float], edge_low: Sequence[float] | No
     min_gain
         "Helps much" threshold [pH units]; a dashed line.
     best_ph
-        The suggested set point; a vertical marker.
+        The top-ranked set point; a vertical marker.
     """
     x = as_array(ph, "ph", allow_nan=False)
     d = as_array(d_gain, "d_gain")
@@ -64,7 +64,7 @@ def suggest_shrinkage_figure(ph: Sequence[float], edge_low: Sequence[float] | No
                    label=f"'helps much' threshold {min_gain:g} pH")
     if best_ph is not None:
         ax.axvline(float(best_ph), color=OKABE_ITO["black"], linewidth=0.8, alpha=0.6,
-                   label=f"suggested pH {best_ph:.2f}")
+                   label=f"top-ranked pH {best_ph:.2f}")
     ax.set_xlabel("set-point pH of the candidate run [-]")
     ax.set_ylabel("expected reduction [pH units]")
     right.set_ylabel("D-optimal gain [nats]")
