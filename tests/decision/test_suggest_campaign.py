@@ -184,3 +184,21 @@ def test_candidate_runs_copy_the_protocol_with_the_stated_changes(low_campaign):
     assert run.charges == template.charges and run.volume == template.volume
     np.testing.assert_array_equal(times, [300.0, 3600.0])
     assert run.end_time == template.end_time
+
+
+def test_posterior_draws_are_used_when_given(low_campaign):
+    from speciakin.decision.campaign_window import window_draws
+
+    _, _, process, objective, fit = low_campaign
+
+    class Posterior:                       # the one method window_draws needs of a PosteriorResult
+        parameter_names = objective.names
+
+        def draws(self, n, seed):
+            return window_draws(fit, None, n, seed)[0]
+
+    result = suggest_for_campaign(objective, fit=None, posterior=Posterior(), process=process, n_draws=200,
+                                  ph_range=(5.0, 9.0), ph_step=1.0, check=True)
+    assert result.notes[0].startswith("parameter draws: posterior (200 draws)")
+    assert {c.conditions["setpoint_pH"] for c in result.candidates} == {5.0, 6.0, 7.0, 8.0, 9.0}
+    assert "Check by the preposterior method" in result.report()

@@ -127,6 +127,13 @@ class SuggestResult:
         if len(self.batch) > 1:
             lines += ["", f"Batch of {len(self.batch)} runs chosen together (greedy):"]
             lines += [f"  {i + 1}. {conditions_text(c.conditions)}" for i, c in enumerate(self.batch)]
+        if self.check:
+            best = self.check["best_candidate"]["conditions"]
+            lines += ["", f"Check by the {self.check['method']} method: its best run is "
+                          f"{conditions_text(best)}"
+                      + ("" if self.check.get("shortfall_pH") is None else
+                         f"; it expects {ph_text(self.check['shortfall_pH'])} pH more narrowing from that "
+                         "than from the run above")]
         if self.notes:
             lines += ["", "Notes"] + [f"- {n}" for n in self.notes]
         return "\n".join(lines)
