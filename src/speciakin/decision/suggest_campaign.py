@@ -207,6 +207,7 @@ class CandidateObservables:
 
     def simulate(self, draws: np.ndarray, runs: list[Run], times: list[np.ndarray],
                  progress: Callable[[int, int], None] | None = None, chunk: int = 64) -> list[np.ndarray]:
+        """Predicted observations of every run for every draw, ``chunk`` draws per kernel call."""
         o = self.objective
         compiled = o.compiled
         cruns = compile_runs(compiled, runs, [np.concatenate([[0.0], t]) for t in times])
@@ -253,6 +254,26 @@ class CandidateObservables:
 
 
 def candidate_observables(objective, draws, runs, times, template, progress=None) -> CandidateObservables:
+    """Simulate every candidate run for every draw (batched over the cores).
+
+    Parameters
+    ----------
+    objective
+        The campaign objective (model, kernel, error model, tolerances).
+    draws
+        (n_draws, p) fitted-parameter vectors.
+    runs, times
+        Candidate runs and their sample times [s] (:func:`candidate_runs`).
+    template
+        Index of the campaign run whose compounds and RRFs are reported.
+    progress
+        ``progress(done, total)`` over the draws.
+
+    Returns
+    -------
+    CandidateObservables
+        ``values`` per candidate (n_draws, m_c), NaN rows where the simulation failed.
+    """
     obs = CandidateObservables(objective, template)
     obs.simulate(np.asarray(draws, float), runs, times, progress)
     return obs
