@@ -26,15 +26,15 @@ from suggest_synthetic import COMPOUNDS, LOW_SETPOINTS, TRUTH, build  # noqa: E4
 from speciakin.cli.main import main  # noqa: E402
 from speciakin.data import write_campaign  # noqa: E402
 from speciakin.decision.process import process_to_toml  # noqa: E402
-from speciakin.decision.suggest_campaign import (  # noqa: E402
+from speciakin.pipeline.suggest import (  # noqa: E402
     candidate_conditions,
     candidate_runs,
     suggest_for_campaign,
     template_index,
 )
 from speciakin.errors import InputError  # noqa: E402
-from speciakin.estimation.campaign_fit import fit_campaign  # noqa: E402
-from speciakin.estimation.objective import CampaignObjective  # noqa: E402
+from speciakin.pipeline.fit import fit_campaign  # noqa: E402
+from speciakin.pipeline.objective import CampaignObjective  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "estimation"))
 from campaign_synthetic import SAMPLE_TIMES, synthetic_campaign  # noqa: E402
@@ -187,7 +187,7 @@ def test_candidate_runs_copy_the_protocol_with_the_stated_changes(low_campaign):
 
 
 def test_posterior_draws_are_used_when_given(low_campaign):
-    from speciakin.decision.campaign_window import window_draws
+    from speciakin.pipeline.window import window_draws
 
     _, _, process, objective, fit = low_campaign
 

@@ -32,13 +32,13 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "estimation"))
 from campaign_synthetic import SAMPLE_TIMES, synthetic_campaign  # noqa: E402
 from suggest_synthetic import COMPOUNDS, build  # noqa: E402
 
-from speciakin.decision.campaign_window import process_outcome_function, window_draws  # noqa: E402
+from speciakin.pipeline.window import process_outcome_function, window_draws  # noqa: E402
 from speciakin.decision.design import process_scan_arguments  # noqa: E402
 from speciakin.decision.outcomes import process_outcome_names  # noqa: E402
 from speciakin.decision.suggest import credible_width, decision_draws, draw_edges  # noqa: E402
-from speciakin.decision.suggest_campaign import candidate_runs, suggest_for_campaign, template_index  # noqa: E402
-from speciakin.estimation.campaign_fit import fit_campaign  # noqa: E402
-from speciakin.estimation.objective import CampaignObjective  # noqa: E402
+from speciakin.pipeline.suggest import candidate_runs, suggest_for_campaign, template_index  # noqa: E402
+from speciakin.pipeline.fit import fit_campaign  # noqa: E402
+from speciakin.pipeline.objective import CampaignObjective  # noqa: E402
 from speciakin.errors import SolverError  # noqa: E402
 
 N_DRAWS = 300

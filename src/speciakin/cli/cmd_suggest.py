@@ -61,27 +61,29 @@ def _check_counts(args) -> None:
 
 
 def run(args) -> int:
-    from speciakin import __version__, workflow
+    from speciakin import pipeline
+    from speciakin._io import atomic_write_bytes
     from speciakin.cli._common import StageProgress, default_out
-    from speciakin.decision.suggest_campaign import suggest_for_campaign
     from speciakin.errors import InputError, Location
+    from speciakin.pipeline import outputs
+    from speciakin.pipeline.suggest import suggest_for_campaign
     from speciakin.report.figures.suggest import suggest_shrinkage_figure
 
     _check_counts(args)
-    inputs = workflow.resolve_inputs(args.campaign, args.model, args.process)
-    model, campaign, process = workflow.load_inputs(inputs)
-    objective = workflow.make_objective(model, campaign)
+    inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
+    model, campaign, process = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
     out = default_out(args, "suggest")
-    posterior = workflow.load_posterior(out)
+    posterior = outputs.load_posterior(out)
     if posterior is not None and list(posterior.parameter_names) != objective.names:
         posterior = None
-    fit = workflow.load_fit(out)
+    fit = outputs.load_fit(out)
     if fit is not None and fit.names != objective.names:
         raise InputError("fit.json was made for other fitted parameters than the model now marks",
-                         Location(file=str(out / "fit.json")), fit.names,
+                         Location(file=str(outputs.result_path(out, "fit"))), fit.names,
                          f"a fit of {', '.join(objective.names)} (run 'speciakin fit' again)")
     if fit is None and posterior is None:
-        raise InputError("no fit or posterior to start from", Location(file=str(out / "fit.json")),
+        raise InputError("no fit or posterior to start from", Location(file=str(outputs.result_path(out, "fit"))),
                          expected="run 'speciakin fit' (and optionally 'speciakin sample') first")
     progress = StageProgress(enabled=not args.quiet)
     try:
@@ -94,18 +96,14 @@ def run(args) -> int:
             check=args.check, progress=progress)
     finally:
         progress.close()
-    data = result.to_dict()
-    data.update(software_version=__version__, command=workflow.command_line(),
-                inputs={"campaign": str(inputs.campaign), "model": str(inputs.model),
-                        "process": None if inputs.process is None else str(inputs.process)})
-    workflow.write_json(out / "suggest.json", data)
-    workflow.write_text(out / "suggest.txt", result.report() + "\n")
+    outputs.save_suggestion(out, result, inputs)
     curves = result.by_ph()
     png = suggest_shrinkage_figure(curves["ph"], curves["edge_low"], curves["edge_high"], curves["undecided"],
                                    curves["d_gain"], min_gain=result.min_gain if result.has_decision else None,
                                    best_ph=result.candidates[0].conditions["setpoint_pH"],
                                    title="Expected shrinkage of the decision's uncertainty")
-    workflow.write_bytes(out / "figures" / "suggest_shrinkage.png", png)
+    figure = out / outputs.FIGURES_FOLDER / "suggest_shrinkage.png"
+    atomic_write_bytes(figure, png)
     print(result.report())
-    print(f"\nwritten: {out / 'suggest.json'}, {out / 'figures' / 'suggest_shrinkage.png'}")
+    print(f"\nwritten: {outputs.result_path(out, 'suggest')}, {figure}")
     return 0

@@ -43,6 +43,8 @@ RESULT_FILES: Mapping[str, str] = MappingProxyType({
     "posterior_text": "posterior.txt",
     "window": "window.json",
     "window_text": "window.txt",
+    "suggest": "suggest.json",
+    "suggest_text": "suggest.txt",
     "timings": "timings.json",
     "report": "report",            # report.html, report.pdf, report.xlsx
 })
@@ -175,6 +177,17 @@ def load_posterior(folder: Path) -> Any | None:
                                diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
     except (KeyError, TypeError, ValueError, IndexError) as exc:
         raise _malformed(path, "posterior file", exc, "posterior.h5 as written by the sample command") from None
+
+
+# ------------------------------------------------------------------ suggestion
+def save_suggestion(folder: Path, suggestion: Any, inputs: Any = None, command: str | None = None) -> None:
+    """``suggest.json`` and ``suggest.txt`` of a SuggestResult (with the input paths when given)."""
+    data = _provenance(suggestion.to_dict(), command)
+    if inputs is not None:
+        data["inputs"] = {"campaign": str(inputs.campaign), "model": str(inputs.model),
+                          "process": None if inputs.process is None else str(inputs.process)}
+    write_json(result_path(folder, "suggest"), data)
+    write_text(result_path(folder, "suggest_text"), suggestion.report() + "\n")
 
 
 # ------------------------------------------------------------------ window

@@ -13,7 +13,7 @@ from typing import Sequence
 import numpy as np
 
 from speciakin.report.figures._style import DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
-from speciakin.report.palette import NEUTRAL, OKABE_ITO
+from speciakin.palette import NEUTRAL, OKABE_ITO
 
 __all__ = ["suggest_shrinkage_figure"]
 

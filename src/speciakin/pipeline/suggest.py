@@ -20,7 +20,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from speciakin.chemistry.model import Run, TemperatureProfile
-from speciakin.decision.campaign_window import process_outcome_function, window_draws
+from speciakin.pipeline.window import process_outcome_function, window_draws
 from speciakin.decision.design import process_scan_arguments
 from speciakin.decision.outcomes import process_outcome_names
 from speciakin.decision.suggest import MIN_GAIN_PH, SuggestResult, decision_draws, rank_candidates
@@ -291,7 +291,7 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
     Parameters
     ----------
     objective
-        :class:`speciakin.estimation.objective.CampaignObjective` of the campaign.
+        :class:`speciakin.pipeline.objective.CampaignObjective` of the campaign.
     fit, posterior
         CampaignFitResult and/or PosteriorResult; the posterior's draws are
         used when given, else draws from the fit's covariance.
