@@ -138,7 +138,7 @@ def test_process_runs_other_factors_and_errors(tmp_path):
 
 def test_extra_charges(tmp_path):
     text = BASE.replace('titrant_concentration = "2 M"',
-                        'titrant_concentration = "2 M"\n\n[process.charges]\n"Cl-" = "5 mmol"\n')
+                        'titrant_concentration = "2 M"\n\n[process.initial]\n"Cl-" = "5 mmol"\n')
     process = load_process(write(tmp_path, text), MODEL)
     (run,) = process_runs(process, MODEL, [5.0])
     assert run.charges["Cl-"] == pytest.approx(0.005)

@@ -42,6 +42,7 @@ from speciakin.chemistry.modelfile_summary import model_summary  # noqa: F401  (
 from speciakin.chemistry.modelfile_units import parse_rate_constant, rate_unit_text
 from speciakin.chemistry.modelfile_validate import (
     ACTIVITY_MODELS,
+    MODEL_ACTIVITY_MODELS,
     hydrolysis_step_name,
     validate_model,
 )
@@ -193,7 +194,14 @@ class _Builder:
         if "reference_temperature" in head:
             t_ref = r.measure(head["reference_temperature"], "model.reference_temperature",
                               "temperature", positive=True) or _NAN
-        activity = r.string(head, "activity", "model", default="ideal", choices=ACTIVITY_MODELS)
+        activity = r.string(head, "activity", "model", default="ideal")
+        if activity is not None and activity not in MODEL_ACTIVITY_MODELS:
+            extra = (" ('davies' is applied by the stand-alone speciation and titration commands, not by "
+                     "the kinetics simulation: a model would silently ignore it)"
+                     if activity in ACTIVITY_MODELS else "")
+            r.error("model.activity", "activity correction not available for a model" + extra, activity,
+                    "one of: " + ", ".join(MODEL_ACTIVITY_MODELS))
+            activity = None
         ions = self._ions(r.table(data, "ions", "") or {})
         molecule_tables = r.table(data, "molecule", "") or {}
         molecules = tuple(m for key, value in molecule_tables.items()
