@@ -333,8 +333,8 @@ def _titrant_problems(compiled: CompiledModel, ph, pkey: str, c: ProblemCollecto
             continue
         charge = _ion_charge(compiled, name)
         if charge is None:
-            c.error(f"{key.replace('_', ' ')} is not an ion of the model", Location(file=src, key=f"{pkey}.{key}"),
-                    name, allowed)
+            c.error(f"the {key.replace('_', ' ')} ion is not declared in the model",
+                    Location(file=src, key=f"{pkey}.{key}"), name, allowed)
         elif charge == 0:
             c.error(f"{key.replace('_', ' ')} ion has no charge", Location(file=src, key=f"{pkey}.{key}"), name,
                     "a charged ion")
@@ -428,7 +428,7 @@ def _run_problems(compiled: CompiledModel, run: Run, times: np.ndarray, c: Probl
                     ph.titrant, "one of " + (", ".join(species[compiled.n_molecules:]) or "(the model has no ions)"))
     if ph.mode in ("held", "logged"):
         _titrant_problems(compiled, ph, pkey, c)
-    elif ph.mode == "logged":
+    if ph.mode == "logged":
         lt, lv = np.asarray(ph.log_times, float), np.asarray(ph.log_ph, float)
         if lt.size == 0 or lt.size != lv.size:
             c.error("logged pH needs equally many times and pH values", Location(file=src, key=pkey + ".log"),
