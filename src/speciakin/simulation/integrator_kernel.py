@@ -61,8 +61,10 @@ STATUS_VOLUME = 5
 STATUS_TITRANT_SIGN = 6
 STATUS_NO_ADJUSTING_ION = 7
 
-#: Largest titrant withdrawal tolerated as round-off in a one-sided run, relative to the
-#: run's total amount (initial amounts + doses).
+#: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
+#: consumed so far), relative to the run's total amount (initial amounts + doses):
+#: the water of a feed at the set point, for example, takes a trace of the
+#: opposite reagent.
 TITRANT_SIGN_RTOL = 1e-4
 
 #: Human-readable meaning of each status code.
@@ -317,9 +319,10 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     info[2] = 0.0
     info[3] = 0.0
     info[4] = 0.0
-    # titrant withdrawn beyond round-off in a one-sided run: the pH cannot be held
+    # a one-sided titrant withdrawn by more than this: the pH cannot be held
     sign_tol = scale_a[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
-    one_sided = controlled != 0 and second < 0
+    step_tol = sign_tol if (controlled != 0 and second < 0) else -1.0
+    peak = np.zeros(1)
     counters = np.zeros(1, dtype=np.int64)
     zero_feed = np.zeros(n_species)
     # controlled runs: the start mixture is brought to the pH of t = 0 (see adjust_start)
@@ -398,7 +401,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             # the acid-base state depends on time only: mass-action path (segment_kernel)
             status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, sw, feed_rate,
                                                 feed_volume_rate, temp_slope, nonauto, rtol, atol, out, out_t, i_out,
-                                                n_out, counters)
+                                                n_out, counters, step_tol, peak)
         else:
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
@@ -407,9 +410,6 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         if status != 0:
             info[0] = t
             return status
-        if one_sided and y[n_species + 1] < -sign_tol:
-            info[0] = t_next
-            return STATUS_TITRANT_SIGN
         t = t_next
     info[1] = counters[0]
     for i in range(n_out):

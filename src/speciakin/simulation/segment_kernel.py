@@ -375,9 +375,13 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                  n_mol, held, titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, cst, dc,
                  product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
                  rtol, atol, out, out_t, i_out, n_out, ph_is_held, held_ph, ph_offset, log_t, log_v, log_n, temp_t,
-                 temp_v, temp_n, counters):
+                 temp_v, temp_n, counters, sign_tol, peak):
     """Rosenbrock steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
     on the sub-interval); returns (status, next step size, next output index).
+
+    With ``sign_tol`` > 0 (a one-sided titrant) the titrant consumed may not
+    fall more than ``sign_tol`` [mol] below its largest value so far
+    (``peak[0]``): a titrant cannot be withdrawn (status 6).
 
     A leaf function: the work arrays come from the caller, so the step loop
     runs without reference counting.
@@ -491,6 +495,11 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 f0[i] = fnew[i]
             t = t_new
             jac_fresh = False
+            if sign_tol > 0.0:
+                if y[n_species + 1] > peak[0]:
+                    peak[0] = y[n_species + 1]
+                elif y[n_species + 1] < peak[0] - sign_tol:
+                    return 6, h, i_out
             counters[0] += 1
             if counters[0] > MAX_STEPS:
                 return 1, h, i_out
@@ -536,14 +545,14 @@ def make_smooth_workspace(model, n):
 
 @leaf_kernel
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
-                     varying, rtol, atol, out, out_t, i_out, n_out, counters):
+                     varying, rtol, atol, out, out_t, i_out, n_out, counters, sign_tol, peak):
     """Advance ``y`` from t0 to exactly t1 with Rodas5 [1]_ (held or logged pH).
 
     ``varying`` = the pH or the temperature changes inside the segment (the
     coefficients are then cubics in time, see the module notes).  Outputs at
     times strictly inside (t0, t1) from index ``i_out`` are written to
     ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
-    (:func:`make_smooth_workspace`).
+    (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see :func:`rodas_smooth`.
 
     Returns
     -------
@@ -675,7 +684,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                                         second_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
                                         ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
                                         rtol, atol, out, out_t, i_out, n_out, ph_is_held, ctx[1] + ctx[2], ctx[2],
-                                        ctx[5], ctx[6], ctx[7], ctx[8], ctx[9], ctx[10], counters)
+                                        ctx[5], ctx[6], ctx[7], ctx[8], ctx[9], ctx[10], counters, sign_tol,
+                                        peak)
         if status != 0:
             return status, h, i_out
         sub_span = tb - ta
