@@ -145,6 +145,11 @@ class Quantity:
     shift
         True when the fitted parameter is a shift added to ``value`` (pKa),
         False when it replaces ``value``.
+    same_as
+        Name of another quantity of the same kind that this one equals (the
+        same ester group hydrolysed in two molecules, say): the simulator
+        uses that quantity's value, fitted or not; this one is never fitted
+        itself and carries the other's nominal value.  None = its own value.
     """
 
     value: float
@@ -155,6 +160,7 @@ class Quantity:
     upper: float | None = None
     prior: Prior | None = None
     shift: bool = False
+    same_as: str | None = None
 
     def __float__(self) -> float:
         return float(self.value)
@@ -396,7 +402,14 @@ class Model:
     reference_temperature
         T_ref [K] of pKa values and rate constants.
     activity
-        ``"ideal"`` or ``"davies"`` (activity correction of H+ and ions).
+        ``"ideal"`` (the only option a model accepts, :data:`MODEL_ACTIVITY_MODELS`).
+    pkw
+        pKw of the medium at the reference temperature (a Quantity named
+        ``pKw[medium]``; fitted as a shift like a pKa), or None for water
+        (IAPWS R11-07).  Its temperature dependence follows water's: pKw(T) =
+        pKw_water(T) + (pkw - pKw_water(T_ref)).
+    medium
+        Free-text name of the medium (reports).
     runs
         Runs declared in the model file (for ``speciakin simulate``).
     source
@@ -413,6 +426,8 @@ class Model:
     description: str = ""
     source: str = ""
     extra: Mapping[str, Any] = field(default_factory=dict)
+    pkw: Quantity | None = None
+    medium: str = ""
 
     def molecule(self, name: str) -> Molecule:
         for m in self.molecules:
@@ -435,7 +450,8 @@ class Model:
     def quantities(self) -> list[Quantity]:
         """Every Quantity of the model in a fixed, documented order:
         for each molecule, for each site: pKa, enthalpy; then its interactions'
-        W; then for each step: log10 k, activation energy."""
+        W; then for each step: log10 k, activation energy; then the medium's
+        pKw when the model sets one."""
         out: list[Quantity] = []
         for m in self.molecules:
             for s in m.sites:
@@ -443,4 +459,6 @@ class Model:
             out += [i.w for i in m.interactions]
         for st in self.steps:
             out += [st.log10_k, st.activation_energy]
+        if self.pkw is not None:
+            out.append(self.pkw)
         return out

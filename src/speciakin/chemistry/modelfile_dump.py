@@ -61,6 +61,8 @@ def _with_unit(x: float, unit: str) -> str:
 
 
 def _quantity(q: Quantity, unit: str = "") -> str:
+    if q.same_as is not None:
+        return toml_value({"same_as": q.same_as})
     value = f"{_float(q.value)} {unit}" if unit else q.value
     if not q.fit and q.lower is None and q.upper is None and q.prior is None:
         return toml_value(value)
@@ -188,6 +190,12 @@ def dump_model(model: Model) -> str:
         out.append(f"description = {toml_value(model.description)}")
     out.append(f"reference_temperature = {_with_unit(model.reference_temperature, 'K')}")
     out.append(f"activity = {toml_value(model.activity)}")
+    if model.pkw is not None or model.medium:
+        out += ["", "[medium]"]
+        if model.medium:
+            out.append(f"name = {toml_value(model.medium)}")
+        if model.pkw is not None:
+            out.append(f"pkw = {_quantity(model.pkw)}")
     if model.ions:
         out += ["", "[ions]"] + [f"{_key(i.name)} = {int(i.charge)}" for i in model.ions]
     for m in model.molecules:

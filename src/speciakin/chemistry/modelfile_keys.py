@@ -24,7 +24,8 @@ RENAMED_KEYS: Mapping[str, Mapping[str, str]] = MappingProxyType({
 #: Allowed keys of every table of the file, by table (drives the unknown-key
 #: check and the reference in docs/model-file.md).
 FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
-    "top": ("model", "ions", "molecule", "step", "hydrolysis", "run", "fit"),
+    "top": ("model", "ions", "molecule", "step", "hydrolysis", "run", "fit", "medium"),
+    "medium": ("name", "pkw"),
     "model": ("name", "description", "reference_temperature", "activity"),
     "molecule": ("label", "role", "molar_mass", "charge", "moieties", "site", "interaction"),
     "site": ("name", "kind", "pka", "enthalpy"),
@@ -42,7 +43,8 @@ FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
     "dosing": ("species", "amount", "start", "end", "volume"),
     "withdrawal": ("time", "volume"),
     "samples": ("times", "volume"),
-    "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed"),
+    "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed", "log_thinning"),
+    "fit.log_thinning": ("titrant", "ph"),
     "fit.nuisance": ("runs", "lower", "upper", "sd"),
     "fit.error_model": ("absolute", "relative", "titrant_absolute", "titrant_relative"),
 })

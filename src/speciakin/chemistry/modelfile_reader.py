@@ -29,6 +29,8 @@ class TableReader:
         self._text = text
         self._key_lines: KeyLines | None = None
         self.collector = ProblemCollector()
+        #: key path of every quantity written ``{ same_as = ... }``, by quantity name
+        self.shared_paths: dict[str, str] = {}
 
     @property
     def key_lines(self) -> KeyLines:

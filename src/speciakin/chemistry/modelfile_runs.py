@@ -240,6 +240,19 @@ class RunReader:
                     if number is not None:
                         em[key] = number
             out["error_model"] = em
+        if "log_thinning" in table:
+            path = "fit.log_thinning"
+            raw = r.typed(table["log_thinning"], path, dict, "a table { titrant = N, ph = M }") or {}
+            r.check_keys(raw, path, FILE_KEYS["fit.log_thinning"])
+            thin = {}
+            for key in FILE_KEYS["fit.log_thinning"]:
+                if key in raw:
+                    value = r.typed(raw[key], sub_path(path, key), int, "a whole number of readings >= 2")
+                    if value is not None and value < 2:
+                        r.error(sub_path(path, key), "too few readings", value, "a whole number >= 2")
+                    elif value is not None:
+                        thin[key] = value
+            out["log_thinning"] = thin
         for key in ("starts", "seed"):
             if key in table:
                 value = r.typed(table[key], format_path("fit", key), int)

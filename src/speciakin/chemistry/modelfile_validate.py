@@ -31,6 +31,9 @@ from speciakin.chemistry.modelfile_paths import format_path, sub_path
 from speciakin.chemistry.modelfile_quantity import check_quantity
 from speciakin.errors import Location, Problem, ProblemCollector
 
+#: Plausible pKw of a medium [-] (water 14.0 at 25 C; water-organic mixtures reach about 17-18).
+PKW_RANGE = (10.0, 20.0)
+
 __all__ = ["validate_model", "ACTIVITY_MODELS", "MOLECULE_ROLES", "hydrolysis_step_name",
            "PH_RANGE"]
 
@@ -319,6 +322,11 @@ def validate_model(model: Model) -> list[Problem]:
         ch.error("model.activity", "activity correction not available for a model (every path, the "
                  "kinetics kernel included, uses ideal activities)", model.activity,
                  "one of: " + ", ".join(MODEL_ACTIVITY_MODELS))
+    if model.pkw is not None:
+        check_quantity(model.pkw, "medium.pkw", ch.error)
+        if math.isfinite(model.pkw.value) and not PKW_RANGE[0] <= model.pkw.value <= PKW_RANGE[1]:
+            ch.error("medium.pkw", "pKw of the medium out of range", model.pkw.value,
+                     f"{PKW_RANGE[0]:g} <= pKw <= {PKW_RANGE[1]:g}")
     counts = Counter([m.name for m in model.molecules] + [i.name for i in model.ions])
     for name, n in counts.items():
         if n > 1:

@@ -9,7 +9,8 @@ shapes so that one compiled call can simulate any (parameter set, run) pair.
 
 The parameter vector ``q`` has the order of ``Model.quantities()``: for each
 molecule, for each site: pKa, enthalpy; then its interactions' W; then for
-each step: log10 k, activation energy.
+each step: log10 k, activation energy; then the medium's pKw, when the model
+sets one (the last entry of the model tuple is its index, -1 for water).
 """
 
 from __future__ import annotations
@@ -162,8 +163,11 @@ def compile_model(model: Model) -> CompiledModel:
     micro_charge, micro_protons, micro_names, micro_mol = [], [], [], []
     names: list[str] = []
     nominal: list[float] = []
+    shared: dict[int, tuple[str, str]] = {}     # index -> (target name, key) of quantities declared same_as
 
     def add_quantity(quantity, fallback, key):
+        if getattr(quantity, "same_as", None) is not None:
+            shared[len(names)] = (quantity.same_as, key)
         if not _finite(quantity.value):
             c.error("value is not a finite number", Location(file=src, key=key), quantity.value, "a finite number")
         names.append(_default_name(quantity.name, fallback))
@@ -286,6 +290,20 @@ def compile_model(model: Model) -> CompiledModel:
         prod_start.append(len(prod_species))
         step_logk_q.append(add_quantity(st.log10_k, f"log10k.{st.name}", key + ".log10_k"))
         step_ea_q.append(add_quantity(st.activation_energy, f"Ea.{st.name}", key + ".activation_energy"))
+    medium_q = -1
+    if model.pkw is not None:
+        medium_q = add_quantity(model.pkw, "pKw.medium", "medium.pkw")
+    # shared quantities: the kernel reads the target's entry of q (fitted or not)
+    target_of = {}
+    for index, (target, key) in shared.items():
+        if target not in names or shared.get(names.index(target)) is not None:
+            c.error("shared quantity names no quantity with its own value", Location(file=src, key=key), target,
+                    "the name of another quantity of the model")
+        else:
+            target_of[index] = names.index(target)
+    for index_list in (site_pka_q, site_dh_q, inter_q, step_logk_q, step_ea_q):
+        for k, index in enumerate(index_list):
+            index_list[k] = target_of.get(index, index)
     for ion in model.ions:
         if not isinstance(ion.charge, (int, np.integer)):
             c.error("ion charge must be an integer", Location(file=src, key=f"ion.{ion.name}.charge"), ion.charge)
@@ -303,7 +321,7 @@ def compile_model(model: Model) -> CompiledModel:
         i8(site_pka_q), i8(site_dh_q), i8(inter_a), i8(inter_b), i8(inter_q), i8(mol_inter_start),
         f8(micro_charge), f8(micro_protons), i8(step_logk_q), i8(step_ea_q), i8(react_start), i8(react_kind),
         i8(react_species), f8(react_coef), i8(react_mask), i8(react_value), i8(prod_start), i8(prod_species),
-        f8(prod_coef), float(model.reference_temperature), f8(substrate_mask),
+        f8(prod_coef), float(model.reference_temperature), f8(substrate_mask), int(medium_q),
     )
     outputs = [f"amount:{s}" for s in species] + ["volume", "pH", "titrant", "temperature", "opposite_titrant"]
     return CompiledModel(model, species, len(mol_names), len(species), names, f8(nominal), outputs,

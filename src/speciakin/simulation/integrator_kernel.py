@@ -47,6 +47,7 @@ from speciakin.simulation.rhs_kernel import (
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
@@ -287,14 +288,16 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode_a, setpoint_a, titrant_a, titrant_conc_a, log_t_a, log_v_a, log_n_a, temp_t_a, temp_v_a,
      temp_n_a, y0_a, feed_t0_a, feed_t1_a, feed_species_a, feed_amount_a, feed_volume_a, n_feed_a,
      ev_t_a, ev_kind_a, ev_species_a, ev_amount_a, ev_volume_a, n_ev_a, bp_a, n_bp_a, out_t_a,
      n_out_a, scale_a, second_a, second_conc_a, controlled_a, start_a, acid_a, base_a) = runs
     n_sites = site_pka_q.shape[0]
     n_steps = step_logk_q.shape[0]
-    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q])
+    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
+    pkw_shift = q[medium_q] - pkw(t_ref) if medium_q >= 0 else 0.0
+    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q], pkw_shift)
     mode = mode_a[r]
     titrant = titrant_a[r]
     titrant_conc = titrant_conc_a[r]
@@ -426,7 +429,7 @@ def microstate_amounts(model, q, ph, temperature, amounts, out):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     from_rhs = make_workspace(n_species, site_pka_q.shape[0], micro_charge.shape[0], n_mol,
                               step_logk_q.shape[0])
     pka = from_rhs[0]

@@ -155,16 +155,17 @@ def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_m
 @leaf_kernel
 def set_temperature(temperature, model, par, ws):
     """Bring the temperature-dependent values in ``ws`` to ``temperature`` [K]:
-    pKw, site pKa (van 't Hoff) and rate constants (Arrhenius [1]_)."""
+    pKw (water's, shifted by the medium's ``par[5]``), site pKa (van 't Hoff)
+    and rate constants (Arrhenius [1]_)."""
     t_ref = model[24]
-    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
+    (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
     pka = ws[0]
     k_of_t = ws[1]
     cache = ws[7]
     if temperature == cache[0]:
         return
     cache[0] = temperature
-    cache[1] = pkw(temperature)
+    cache[1] = pkw(temperature) + pkw_shift
     for i in range(pka_ref.shape[0]):
         pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
     for s in range(log10_k.shape[0]):
@@ -184,7 +185,7 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
@@ -204,7 +205,8 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
                                        micro_charge, n_mol, pka2, dzdt)
         dtemp = 1e-3
         # d[OH-]/dT at fixed pH [mol/(L*K)]
-        cache[4] = (exp10(ph - pkw(temperature + dtemp)) - exp10(ph - pkw(temperature - dtemp))) / (
+        shift = par[5]
+        cache[4] = (exp10(ph - pkw(temperature + dtemp) - shift) - exp10(ph - pkw(temperature - dtemp) - shift)) / (
             2.0 * dtemp)
     return ph
 
@@ -219,8 +221,8 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
+    (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
@@ -343,7 +345,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
@@ -433,7 +435,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     volume = y[n_species]
