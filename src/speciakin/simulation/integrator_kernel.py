@@ -67,6 +67,12 @@ STATUS_NO_ADJUSTING_ION = 7
 #: the water of a feed at the set point, for example, takes a trace of the
 #: opposite reagent.
 TITRANT_SIGN_RTOL = 1e-4
+#: Control band of a one-sided pH-stat [pH units] (common practice: a pH-stat holds
+#: its set point within a few hundredths of a unit).  A withdrawal smaller than the
+#: start solution's buffer capacity times this band is tolerated: a real controller
+#: would stop dosing and the pH would drift by less than the band, which the model
+#: neglects (it keeps the set point).
+CONTROL_BAND = 0.05
 
 #: Human-readable meaning of each status code.
 STATUS_TEXT = {
@@ -339,6 +345,12 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         if status != 0:
             info[0] = 0.0
             return status
+        if step_tol > 0.0:
+            # buffer capacity of the start solution [mol per pH unit]: ln10 (sum n var(N) + V ([H+] + [OH-]))
+            capacity = y[n_species] * (exp10(-ph0) + exp10(ph0 - ws[7][1]))
+            for m in range(n_mol):
+                capacity += y[m] * ws[4][m]
+            step_tol = max(step_tol, math.log(10.0) * capacity * CONTROL_BAND)
     n_out = n_out_a[r]
     n_ev = n_ev_a[r]
     n_bp = n_bp_a[r]
