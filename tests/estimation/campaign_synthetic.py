@@ -65,6 +65,7 @@ activity = "ideal"
 
 [ions]
 "Na+" = 1
+"Cl-" = -1      # the acid that brings the free amine to its set point inside the start volume
 
 [molecule.S]
 role = "substrate"

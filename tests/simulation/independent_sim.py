@@ -63,6 +63,7 @@ class Scenario:
     k_water: float                     # E + water -> 2 HA [1/s]
     feeds: list[tuple[str, float, float, float, float]] = field(default_factory=list)
     # (species, amount [mol], start [s], end [s], liquid volume [L])
+    k_hydroxide: float = 0.0           # E + OH- -> 2 HA [L/(mol*s)]
     base_conc: float | None = None     # Na+ titrant [mol/L]
     acid_conc: float | None = None     # Cl- titrant [mol/L]
     start: str = "computed"            # computed | titrant
@@ -71,8 +72,9 @@ class Scenario:
 class IndependentRun:
     """Simulate a :class:`Scenario`; columns: species, Na+, Cl-, volume, base used, acid used."""
 
-    def __init__(self, sc: Scenario) -> None:
+    def __init__(self, sc: Scenario, rtol: float = 1e-11) -> None:
         self.sc = sc
+        self.rtol = rtol
         self.names = [s.name for s in sc.species]
         self.index = {n: i for i, n in enumerate(self.names)}
         self.n = len(self.names)
@@ -118,7 +120,7 @@ class IndependentRun:
         c = x[: self.n] / v
         s, e = self.index["S"], self.index["E"]
         r1 = sc.k_coupling * c[s] * sc.species[s].free_fraction(ph) * c[e]
-        r2 = sc.k_water * c[e]
+        r2 = sc.k_water * c[e] + sc.k_hydroxide * 10.0 ** (ph - PKW_25C) * c[e]
         d = np.zeros(self.n + 4)
         d[s] -= r1 * v
         d[e] -= (r1 + r2) * v
@@ -196,7 +198,8 @@ class IndependentRun:
         out = np.full((len(times), self.n + 5), np.nan)
         t_all = np.asarray(times, float)
         for a, b in zip(edges[:-1], edges[1:]):
-            sol = solve_ivp(self.rhs, (a, b), x, method="Radau", rtol=1e-11, atol=1e-16, dense_output=True,
+            sol = solve_ivp(self.rhs, (a, b), x, method="Radau", rtol=self.rtol, atol=1e-5 * self.rtol,
+                            dense_output=True,
                             args=(v_start, a, b))
             assert sol.success, sol.message
             for j in np.flatnonzero((t_all >= a) & (t_all <= b)):
