@@ -182,7 +182,8 @@ def _run(ch: _Checker, model: Model, run: Run, species: set[str], ions: set[str]
     for name, amount in run.charges.items():
         cp = sub_path(path, "initial", name)
         if name not in species:
-            ch.error(cp, "unknown species in the initial amounts", name, "a molecule or ion: " + ", ".join(sorted(species)))
+            ch.error(cp, "unknown species in the initial amounts", name,
+                     "a molecule or ion: " + ", ".join(sorted(species)))
         ch.finite(amount, cp, "amount", minimum=0)
     tp = run.temperature
     tpath = sub_path(path, "temperature")

@@ -26,10 +26,10 @@ adds: when q < 0 and the run has an opposite titrant, that one is dosed at
 the rate ratio(t) q, ratio = d_titrant / d_opposite (a fifth coefficient);
 the right-hand side is then piecewise smooth, and the step control meets
 the switch like any other kink.  So the right-hand side is a few products
-and small dot products (:func:`smooth_rhs`), with an exact Jacobian (:func:`smooth_jacobian`) and, under a ramp, an exact time
-derivative.
+and small dot products (:func:`smooth_rhs`), with an exact Jacobian
+(:func:`smooth_jacobian`) and, under a ramp, an exact time derivative.
 
-The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma) are
+The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma, ratio) are
 evaluated with the full speciation (``rhs_kernel.time_speciation``) at the
 four Chebyshev points of the segment and carried as a cubic in time (for
 each positive k_eff, the cubic of its logarithm, which is nearly linear in
