@@ -90,3 +90,11 @@ def test_shared_quantity_errors_name_the_key(k_b, words):
 def test_davies_is_refused_with_a_reason():
     with pytest.raises(ModelFileError, match=r"key 'model\.activity'.*not by the kinetics simulation"):
         parse_model(text().replace('name = "medium_test"', 'name = "medium_test"\nactivity = "davies"'))
+
+
+def test_log_thinning_is_an_explicit_option():
+    assert "log_thinning" not in parse_model(text() + "\n[fit]\nstarts = 2\n").extra["fit"]
+    m = parse_model(text() + "\n[fit]\nlog_thinning = { titrant = 40, ph = 240 }\n")
+    assert m.extra["fit"]["log_thinning"] == {"titrant": 40, "ph": 240}
+    with pytest.raises(ModelFileError, match=r"key 'fit\.log_thinning\.ph': too few readings \(value 1"):
+        parse_model(text() + "\n[fit]\nlog_thinning = { ph = 1 }\n")
