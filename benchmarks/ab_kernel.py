@@ -69,7 +69,7 @@ def workload(name: str):
     n_runs = len(runs)
     off, fac = np.zeros((1, n_runs)), np.ones((1, n_runs))
     out = np.full((1, n_runs, len(space["TIMES"]), compiled.n_outputs), np.nan)
-    status, info = np.zeros((1, n_runs), np.int64), np.zeros((1, n_runs, 3))
+    status, info = np.zeros((1, n_runs), np.int64), np.zeros((1, n_runs, 8))  # room for every version's info entries
     args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-6, 1e-10, out, status, info)
 
     def call():

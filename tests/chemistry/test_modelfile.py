@@ -65,7 +65,7 @@ k = "35 L/(mol*s)"
 [run.r1]
 volume = "50 mL"
 end_time = "60 min"
-charges = { S = "1 mmol" }
+initial = { S = "1 mmol" }
 ph = { mode = "held", setpoint = 7.0, titrant = "Na+", titrant_concentration = "0.5 M" }
 """
 
@@ -167,21 +167,21 @@ def test_quantity_names_and_fit_specs():
 
 
 def test_concentration_charges_use_run_volume():
-    m = parse_model(BASE.replace('charges = { S = "1 mmol" }', 'charges = { S = "20 mM", "Na+" = 0.5 }'))
+    m = parse_model(BASE.replace('initial = { S = "1 mmol" }', 'initial = { S = "20 mM", "Na+" = 0.5 }'))
     assert m.runs[0].charges["S"] == pytest.approx(20e-3 * 0.050)   # 20 mmol/L x 50 mL = 1 mmol
     assert m.runs[0].charges["Na+"] == pytest.approx(0.5e-3)       # bare number = mmol
 
 
 def test_doses_withdrawals_and_profiles():
     text = BASE + """
-[[run.r1.dose]]
+[[run.r1.dosing]]
 species = "E"
 amount = "1.1 mmol"
 start = "5 min"
 end = "35 min"
 volume = "5 mL"
 
-[[run.r1.dose]]
+[[run.r1.dosing]]
 species = "E"
 amount = "0.2 M"
 start = 40
@@ -323,7 +323,7 @@ _finite = dict(allow_nan=False, allow_infinity=False)
 def test_round_trip_keeps_every_float_exactly(pka, shift, log10_k, ea, amount, volume, hours, celsius):
     text = BASE.replace("pka = 9.0", f"pka = {{ value = {pka!r}, fit = true, lower = {-shift!r}, upper = {shift!r} }}")
     text = text.replace('k = "35 L/(mol*s)"', f"log10_k = {log10_k!r}\nactivation_energy = {ea!r}")
-    text = text.replace('charges = { S = "1 mmol" }', f'charges = {{ S = "{amount!r} mmol" }}')
+    text = text.replace('initial = { S = "1 mmol" }', f'initial = {{ S = "{amount!r} mmol" }}')
     text = text.replace('volume = "50 mL"', f'volume = "{volume!r} mL"\ntemperature = "{celsius!r} C"')
     text = text.replace('end_time = "60 min"', f'end_time = "{hours!r} h"')
     m = parse_model(text)

@@ -124,9 +124,9 @@ def test_rate_constant_given_twice():
 
 
 def test_negative_amount():
-    text = BASE.replace('charges = { S = "1 mmol" }', 'charges = { S = "-1 mmol" }')
+    text = BASE.replace('initial = { S = "1 mmol" }', 'initial = { S = "-1 mmol" }')
     n = line_of(text, "-1 mmol")
-    check(text, rf"line {n}, key 'run\.r1\.charges\.S': must not be negative \(value '-1 mmol'")
+    check(text, rf"line {n}, key 'run\.r1\.initial\.S': must not be negative \(value '-1 mmol'")
 
 
 def test_bad_unit():
@@ -134,13 +134,13 @@ def test_bad_unit():
           r"key 'run\.r1\.volume': unknown unit 'furlongs'; accepted: L, mL, uL, m3")
 
 
-DOSE = '\n[[run.r1.dose]]\nspecies = "E"\namount = "1 mmol"\nstart = {start}\nend = {end}\n'
+DOSE = '\n[[run.r1.dosing]]\nspecies = "E"\namount = "1 mmol"\nstart = {start}\nend = {end}\n'
 
 
 @pytest.mark.parametrize("start, end, key, pattern", [
-    ('"-5 min"', '"10 min"', "start", r"key 'run\.r1\.dose\[1\]\.start': dosing starts before the run \(value -300\.0"),
-    ('"10 min"', '"5 min"', "end", r"key 'run\.r1\.dose\[1\]\.end': dosing ends before it starts \(value 'start=600 s, end=300 s'"),
-    ('"10 min"', '"90 min"', "end", r"key 'run\.r1\.dose\[1\]\.end': dosing ends after the run \(value 'end=5400 s, end_time=3600 s'"),
+    ('"-5 min"', '"10 min"', "start", r"key 'run\.r1\.dosing\[1\]\.start': dosing starts before the run \(value -300\.0"),
+    ('"10 min"', '"5 min"', "end", r"key 'run\.r1\.dosing\[1\]\.end': dosing ends before it starts \(value 'start=600 s, end=300 s'"),
+    ('"10 min"', '"90 min"', "end", r"key 'run\.r1\.dosing\[1\]\.end': dosing ends after the run \(value 'end=5400 s, end_time=3600 s'"),
 ])
 def test_dosing_outside_the_run(start, end, key, pattern):
     text = BASE + DOSE.format(start=start, end=end)
@@ -150,7 +150,7 @@ def test_dosing_outside_the_run(start, end, key, pattern):
 
 def test_dose_of_unknown_species():
     check(BASE + DOSE.format(start=0, end=10).replace('"E"', '"X"'),
-          r"key 'run\.r1\.dose\[1\]\.species': unknown species in dose \(value 'X'")
+          r"key 'run\.r1\.dosing\[1\]\.species': unknown species in dosing \(value 'X'")
 
 
 def test_logged_run_without_data():
@@ -188,7 +188,7 @@ def test_logged_csv_bad_row(tmp_path):
     ('ph = { mode = "held", setpoint = 7.0, titrant = "K+", titrant_concentration = "0.5 M" }',
      r"key 'run\.r1\.ph\.titrant': titrant is not a declared ion \(value 'K\+'; expected one of the \[ions\]: Na\+\)"),
     ('ph = { mode = "held", setpoint = 7.0, titrant = "Na+" }',
-     r"key 'run\.r1\.ph': a held-pH run needs the titrant concentration"),
+     r"key 'run\.r1\.ph': the base titrant 'Na\+' needs its concentration"),
     ('ph = { mode = "stat" }', r"key 'run\.r1\.ph\.mode': unknown pH mode \(value 'stat'; expected one of: held, logged, free\)"),
 ])
 def test_held_run_needs_setpoint_and_titrant(ph, pattern):
@@ -259,9 +259,9 @@ def test_hydrolysis_problem_points_at_shorthand():
 
 
 def test_dosed_concentration_needs_a_volume():
-    text = BASE + '\n[[run.r1.dose]]\nspecies = "E"\namount = "0.5 M"\nstart = 0\n'
+    text = BASE + '\n[[run.r1.dosing]]\nspecies = "E"\namount = "0.5 M"\nstart = 0\n'
     n = line_of(text, 'amount = "0.5 M"')
-    check(text, rf"line {n}, key 'run\.r1\.dose\[1\]\.amount': a concentration needs a volume")
+    check(text, rf"line {n}, key 'run\.r1\.dosing\[1\]\.amount': a concentration needs a volume")
 
 
 def test_moiety_imbalance_is_only_a_warning():

@@ -138,7 +138,7 @@ def test_process_runs_other_factors_and_errors(tmp_path):
 
 def test_extra_charges(tmp_path):
     text = BASE.replace('titrant_concentration = "2 M"',
-                        'titrant_concentration = "2 M"\n\n[process.charges]\n"Cl-" = "5 mmol"\n')
+                        'titrant_concentration = "2 M"\n\n[process.initial]\n"Cl-" = "5 mmol"\n')
     process = load_process(write(tmp_path, text), MODEL)
     (run,) = process_runs(process, MODEL, [5.0])
     assert run.charges["Cl-"] == pytest.approx(0.005)
@@ -170,6 +170,16 @@ def test_extra_charges(tmp_path):
      "scan.second_factor.kind", "unknown factor kind"),
     ('rule = ">= 90 %"', 'rule = ">= 90 %"\n\n[scan.second_factor]\nkind = "temperature"\n'
      'values = ["30 C", "20 C"]', "scan.second_factor.values", "increasing"),
+    ('titrant_concentration = "2 M"', 'titrant_concentration = "2 M"\nopposite_titrant_concentration = "1 M"',
+     "process.opposite_titrant_concentration", "without opposite_titrant"),
+    ('titrant_concentration = "2 M"', 'titrant_concentration = "2 M"\nopposite_titrant = "Cl-"',
+     "process.opposite_titrant_concentration", "missing"),
+    ('titrant_concentration = "2 M"', 'titrant_concentration = "2 M"\nstart_adjustment = "later"',
+     "process.start_adjustment", "unknown start adjustment"),
+    ('titrant_concentration = "2 M"', 'titrant_concentration = "2 M"\n\n[process.charges]\n"Cl-" = "5 mmol"',
+     "process.charges", "renamed to 'initial'"),
+    ('titrant_concentration = "2 M"', 'titrant_concentration = "2 M"\n\n[process.initial]\n"Cl-" = "-5 mmol"',
+     "process.initial.Cl-", "must not be negative"),
 ])
 def test_every_error_names_the_key(tmp_path, old, new, key, words):
     text = BASE.replace(old, new)
@@ -240,3 +250,70 @@ def test_documented_example_parses_and_validates():
     assert process.extra_charges == {"Cl-": pytest.approx(0.005)}
     assert [s.kind for s in process.specifications] == ["percent", "ratio"]
     assert process.second_factor.values == (1.0, 1.1, 1.2)
+
+
+def test_titrants_and_start_adjustment_reach_the_runs(tmp_path):
+    # the process uses the lab runs' conventions: the same PhControl fields
+    text = BASE.replace('titrant_concentration = "2 M"',
+                        'titrant_concentration = "2 M"\nopposite_titrant = "Cl-"\n'
+                        'opposite_titrant_concentration = "1 M"\nstart_adjustment = "titrant"\n'
+                        'start_base = "Na+"')
+    process = load_process(write(tmp_path, text), MODEL)
+    assert parse_process(tomllib.loads(process_to_toml(process))) == \
+        parse_process(tomllib.loads(process_to_toml(process)))
+    again = parse_process(tomllib.loads(process_to_toml(process)))
+    assert (again.opposite_titrant, again.opposite_titrant_concentration, again.start_adjustment,
+            again.start_base) == ("Cl-", 1.0, "titrant", "Na+")
+    (run,) = process_runs(process, MODEL, [6.0])
+    ph = run.ph
+    assert (ph.titrant, ph.titrant_concentration, ph.opposite_titrant, ph.opposite_titrant_concentration,
+            ph.start_adjustment, ph.start_acid, ph.start_base) == ("Na+", 2.0, "Cl-", 1.0, "titrant", None, "Na+")
+    default = process_runs(load_process(write(tmp_path, BASE, "plain.toml"), MODEL), MODEL, [6.0])[0]
+    assert default.ph.start_adjustment == "computed" and default.ph.opposite_titrant is None
+
+
+def test_titrant_signs_checked_against_model(tmp_path):
+    text = BASE.replace('titrant_concentration = "2 M"',
+                        'titrant_concentration = "2 M"\nopposite_titrant = "Na+"\n'
+                        'opposite_titrant_concentration = "1 M"\nstart_acid = "Na+"')
+    with pytest.raises(ModelFileError) as info:
+        load_process(write(tmp_path, text), MODEL)
+    message = str(info.value)
+    assert "key 'process.opposite_titrant'" in message and "opposite charge" in message
+    assert "key 'process.start_acid'" in message and "negative charge" in message
+
+
+def test_window_set_point_the_titrant_cannot_hold_is_a_located_error(tmp_path):
+    # invented amine S (pKa 9) brought to pH 5 by the titrant alone (base): impossible; the
+    # window's outcome function names the process file, the key and the set point
+    from speciakin.chemistry.model import Quantity, Site
+    from speciakin.decision.campaign_window import process_outcome_function
+    from speciakin.simulation import compile_model
+
+    amine = Model("amine", molecules=(
+        Molecule("S", sites=(Site("N", "base", Quantity(9.0)),), moieties={"core": 1}, role="substrate"),
+        Molecule("ANH", moieties={"acyl": 2}, role="reagent"),
+        Molecule("P_alkyl", moieties={"core": 1, "acyl": 1}, role="product")),
+        ions=(Ion("Na+", 1), Ion("Cl-", -1)))
+    text = BASE.replace('titrant_concentration = "2 M"',
+                        'titrant_concentration = "2 M"\nstart_adjustment = "titrant"')
+    path = write(tmp_path, text)
+    process = load_process(path, amine)
+    compiled = compile_model(amine)
+
+    class Objective:                      # the few members the outcome function reads
+        model, rtol, atol, parallel = amine, 1e-6, 1e-10, False
+
+        def kernel_inputs(self, draws):
+            return np.repeat(compiled.nominal[None, :], len(draws), axis=0), None, None
+
+    Objective.compiled = compiled
+    outcome = process_outcome_function(Objective(), process)
+    with pytest.raises(InputError) as info:
+        outcome(np.zeros((1, 0)), [5.0, 10.5])
+    message = str(info.value)
+    assert str(path) in message and "key 'process.titrant'" in message and "set point pH 5" in message
+    # acid inside the start volume (the default) reaches pH 5
+    ok = load_process(write(tmp_path, BASE, "ok.toml"), amine)
+    values = process_outcome_function(Objective(), ok)(np.zeros((1, 0)), [5.0, 10.5])
+    assert np.all(np.isfinite(values))

@@ -66,6 +66,7 @@ activity = "ideal"
 
 [ions]
 "Na+" = 1
+"Cl-" = -1      # the acid that brings the free amine to its set point inside the start volume
 
 [molecule.S]
 role = "substrate"
@@ -145,10 +146,10 @@ k = {{ value = "0.5 L/(mol*s)", fit = {flag(fit_double)}, lower = -3.0, upper = 
 [run.{name}]
 volume = "50 mL"
 end_time = "120 min"
-charges = {{ S = "1.0 mmol" }}
+initial = {{ S = "1.0 mmol" }}
 ph = {{ mode = "held", setpoint = {sp}, titrant = "Na+", titrant_concentration = "1 M" }}
 
-[[run.{name}.dose]]
+[[run.{name}.dosing]]
 species = "ANH"
 amount = "1.3 mmol"
 start = "0 min"

@@ -86,14 +86,14 @@ log10_k = -1.5
 volume = "50 mL"
 temperature = "25 C"
 end_time = "60 min"
-charges = { S = "1.0 mmol", E = "1.2 mmol" }
+initial = { S = "1.0 mmol", E = "1.2 mmol" }
 ph = { mode = "held", setpoint = 6.0, titrant = "Na+", titrant_concentration = "1 M" }
 
 [run.held_pH8]
 volume = "50 mL"
 temperature = "25 C"
 end_time = "60 min"
-charges = { S = "1.0 mmol", E = "1.2 mmol" }
+initial = { S = "1.0 mmol", E = "1.2 mmol" }
 ph = { mode = "held", setpoint = 8.0, titrant = "Na+", titrant_concentration = "1 M" }
 '''
 

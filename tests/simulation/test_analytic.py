@@ -56,7 +56,8 @@ def _hydrolysis_model(log10k_w, log10k_oh, ea=0.0):
     acid = Molecule("HA", sites=(Site("O", "acid", q(4.76)),), moieties={"acyl": 1})
     steps = (Step("w", (Reactant("E"), Reactant("water")), (("HA", 2.0),), q(log10k_w), q(ea)),
              Step("oh", (Reactant("E"), Reactant("hydroxide")), (("HA", 2.0),), q(log10k_oh)))
-    return Model("anhydride hydrolysis (invented)", (e, acid), steps, ions=(Ion("Na", 1),))
+    # Cl: the acid that brings the start solution to the held pH inside its volume
+    return Model("anhydride hydrolysis (invented)", (e, acid), steps, ions=(Ion("Na", 1), Ion("Cl", -1)))
 
 
 def test_first_order_hydrolysis_half_life():

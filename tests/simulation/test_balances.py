@@ -10,6 +10,7 @@ from scipy.optimize import brentq
 
 from sim_models import held, two_site_model, two_site_run
 from speciakin.chemistry.model import Ion, Model, Molecule, PhControl, Run, Site, TemperatureProfile
+from speciakin.errors import InputError
 from speciakin.simulation import simulate
 
 
@@ -110,11 +111,25 @@ def test_held_titrant_counts_released_acid_and_speciation_shift():
     water_term = (res.volume - res.volume[0]) * (10 ** -ph - kw / 10 ** -ph)
     expected = acid * alpha + freed - water_term
     np.testing.assert_allclose(res.titrant, expected, rtol=1e-7, atol=1e-12)
-    # the start: bringing 0.1 mol of the free diamine to pH 10 takes acid (negative titrant);
-    # the titrant's own volume (2 mol/L) carries water of the held pH too
+    # the start: bringing 0.1 mol of the free diamine to pH 10 takes acid; by default it is
+    # added inside the start volume (Cl-, the model's only negative ion): the charge balance
+    # at pH 10 fixes its amount, and no titrant is used
     excess = 10 ** -ph - kw / 10 ** -ph
-    start = -(0.1 * bound_s + 1.0 * excess) / (1.0 + excess / 2.0)
-    assert res.initial_titrant == pytest.approx(start, rel=1e-9)
+    assert res.start_adjustment == pytest.approx(-(0.1 * bound_s + 1.0 * excess), rel=1e-9)
+    assert res.initial_titrant == 0.0 and res.volume[0] == 1.0
+    # brought by the titrants instead: the base titrant cannot, the opposite (acid) titrant
+    # does, and its own volume (0.5 mol/L) carries water of the held pH too
+    two_sided = PhControl("held", setpoint=ph, titrant="Na", titrant_concentration=2.0,
+                          opposite_titrant="Cl", opposite_titrant_concentration=0.5,
+                          start_adjustment="titrant")
+    res2 = simulate(model, two_site_run(two_sided), times=np.linspace(0, 10800.0, 13))
+    start = (0.1 * bound_s + 1.0 * excess) / (1.0 - excess / 0.5)
+    assert res2.initial_opposite_titrant == pytest.approx(start, rel=1e-9)
+    assert res2.initial_titrant == 0.0
+    assert res2.volume[0] == pytest.approx(1.0 + start / 0.5, rel=1e-12)
+    with pytest.raises(InputError, match=r"set point pH 10 cannot be reached.*opposite titrant"):
+        simulate(model, two_site_run(PhControl("held", setpoint=ph, titrant="Na", titrant_concentration=2.0,
+                                               start_adjustment="titrant")))
 
 
 def test_competition_ratio_at_held_ph():
@@ -148,7 +163,12 @@ def test_almost_nothing_reacts_below_ph_2():
     # over the time the pH-4 run needs to convert most substrate, the pH-1.5 run
     # converts less than a tenth of that.
     model = two_site_model(double=False)
-    low = simulate(model, two_site_run(held(1.5)), times=[0.0, 10800.0])
+    # at pH 1.5 the reagent feed's own liquid needs acid to stay at the set point: a
+    # two-sided pH-stat (the base titrant alone would have to be withdrawn)
+    two_sided = PhControl("held", setpoint=1.5, titrant="Na", titrant_concentration=1.0,
+                          opposite_titrant="Cl", opposite_titrant_concentration=1.0)
+    low = simulate(model, two_site_run(two_sided), times=[0.0, 10800.0])
+    assert low.opposite_titrant[-1] > 0 and low.titrant[-1] >= 0
     mid = simulate(model, two_site_run(held(4.0)), times=[0.0, 10800.0])
     assert mid.conversion("S")[-1] > 0.5
     assert low.conversion("S")[-1] < 0.1 * mid.conversion("S")[-1]

@@ -362,7 +362,7 @@ def _check_amounts(names, conc, strong):
 def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_charge: float = 0.0,
              temperature: float = 298.15, activity: str = "ideal",
              spectator_ionic_strength: float | None = None,
-             initial_ph: float | None = None) -> EquilibriumResult:
+             initial_ph: float | None = None, pkw_value: float | None = None) -> EquilibriumResult:
     """Solve the charge balance of a mixture for pH.
 
     Parameters
@@ -381,6 +381,8 @@ def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_cha
     spectator_ionic_strength
         ``1/2 sum z_i^2 c_i`` of the spectator ions [mol/L]; None = assume
         monovalent ions, ``|strong_ion_charge| / 2``.
+    pkw_value
+        pKw of the medium at ``temperature`` (None = water, IAPWS R11-07).
     initial_ph
         Optional starting guess (speeds up a sequence of solves).
 
@@ -413,7 +415,7 @@ def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_cha
     if not np.isfinite(spectator_ionic_strength) or spectator_ionic_strength < 0:
         raise InputError("spectator ionic strength must be >= 0", Location(key="spectator_ionic_strength"),
                          spectator_ionic_strength, ">= 0 [mol/L]")
-    pkw_value = float(water.pkw(temperature))
+    pkw_value = float(water.pkw(temperature) if pkw_value is None else pkw_value)
     tables = [s.tables() for s in species]
 
     def ionic(p, lg1, offsets):
@@ -496,4 +498,5 @@ def solve_model_ph(model: Model, concentrations: Mapping[str, float], temperatur
     _check_amounts(list(ion_conc), list(ion_conc.values()), 0.0)
     strong = sum(ions[n] * c for n, c in ion_conc.items())
     spectator = 0.5 * sum(ions[n] ** 2 * c for n, c in ion_conc.items())
-    return solve_ph(species, conc, strong, t, activity or model.activity, spectator)
+    return solve_ph(species, conc, strong, t, activity or model.activity, spectator,
+                    pkw_value=float(water.medium_pkw(model, t)))

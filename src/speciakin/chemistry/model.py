@@ -47,7 +47,9 @@ __all__ = [
     "TemperatureProfile",
     "Run",
     "PH_MODES",
+    "START_ADJUSTMENTS",
     "ACTIVITY_MODELS",
+    "MODEL_ACTIVITY_MODELS",
     "MOLECULE_ROLES",
 ]
 
@@ -79,11 +81,30 @@ PSEUDO_REACTANTS = ("water", "hydroxide")
 #: pH modes of a run.
 PH_MODES = ("held", "logged", "free")
 
+#: How the start solution of a controlled run (held pH, or logged pH with a
+#: titrant) reaches the pH of t = 0: name -> description (one registry for
+#: the model file, the process file, the kernel and the docs).
+START_ADJUSTMENTS: Mapping[str, str] = MappingProxyType({
+    "computed": "acid or base added before t = 0 inside the start volume, amount from the charge "
+                "balance at the pH of t = 0",
+    "given": "the start amounts already hold the adjusting acid or base (written with the initial "
+             "amounts); nothing is added",
+    "titrant": "the titrant (or the opposite titrant) brings the start solution to the pH at t = 0; "
+               "its volume is added",
+})
+
 #: Activity options: name -> description (one registry for parsing, solvers and docs).
+#: The stand-alone speciation and titration tools (``chemistry.equilibrium``,
+#: ``chemistry.titration``) apply both; a model (and so the kinetics kernel)
+#: accepts only :data:`MODEL_ACTIVITY_MODELS`.
 ACTIVITY_MODELS: Mapping[str, str] = MappingProxyType({
     "ideal": "activity coefficients equal to 1",
     "davies": "Davies (1962) equation, ionic strength iterated to self-consistency",
 })
+
+#: Activity options a model file may choose: those every path, the kinetics
+#: kernel included, applies.
+MODEL_ACTIVITY_MODELS = ("ideal",)
 
 #: Roles a molecule may have (free-text tags checked by the model-file validator).
 MOLECULE_ROLES = ("substrate", "reagent", "product", "byproduct", "acid", "buffer")
@@ -124,6 +145,11 @@ class Quantity:
     shift
         True when the fitted parameter is a shift added to ``value`` (pKa),
         False when it replaces ``value``.
+    same_as
+        Name of another quantity of the same kind that this one equals (the
+        same ester group hydrolysed in two molecules, say): the simulator
+        uses that quantity's value, fitted or not; this one is never fitted
+        itself and carries the other's nominal value.  None = its own value.
     """
 
     value: float
@@ -134,6 +160,7 @@ class Quantity:
     upper: float | None = None
     prior: Prior | None = None
     shift: bool = False
+    same_as: str | None = None
 
     def __float__(self) -> float:
         return float(self.value)
@@ -291,8 +318,19 @@ class PhControl:
     mode ``held``: a controller keeps ``setpoint`` by dosing ``titrant`` (an
     Ion name; positive ion = base such as Na+ from NaOH, negative = acid) at
     ``titrant_concentration`` [mol/L]; the simulator reports titrant consumed.
-    mode ``logged``: pH(t) interpolated from ``log_times`` [s] and ``log_ph``.
+    mode ``logged``: pH(t) interpolated from ``log_times`` [s] and ``log_ph``;
+    with a ``titrant``, the acid and/or base that follows the log comes from
+    the charge balance and its volume is added (without one the charge
+    balance is not kept).
     mode ``free``: pH from the charge balance at every instant.
+
+    ``opposite_titrant`` (an ion of the opposite sign) at
+    ``opposite_titrant_concentration`` [mol/L] makes a two-sided pH-stat: it is
+    dosed whenever the titrant would have to be withdrawn.  Titrant volumes
+    only add.  ``start_adjustment`` (a key of :data:`START_ADJUSTMENTS`) says
+    how the start solution reaches the pH of t = 0; ``start_acid`` and
+    ``start_base`` name the ions of a computed adjustment (default: the titrant
+    of that sign, else the model's only ion of that sign).
     """
 
     mode: str
@@ -301,6 +339,16 @@ class PhControl:
     titrant_concentration: float | None = None
     log_times: tuple[float, ...] = ()
     log_ph: tuple[float, ...] = ()
+    opposite_titrant: str | None = None
+    opposite_titrant_concentration: float | None = None
+    start_adjustment: str = "computed"
+    start_acid: str | None = None
+    start_base: str | None = None
+
+    @property
+    def controlled(self) -> bool:
+        """True when a titrant keeps the charge balance (held, or logged with a titrant)."""
+        return self.mode == "held" or (self.mode == "logged" and self.titrant is not None)
 
 
 @dataclass(frozen=True)
@@ -354,7 +402,14 @@ class Model:
     reference_temperature
         T_ref [K] of pKa values and rate constants.
     activity
-        ``"ideal"`` or ``"davies"`` (activity correction of H+ and ions).
+        ``"ideal"`` (the only option a model accepts, :data:`MODEL_ACTIVITY_MODELS`).
+    pkw
+        pKw of the medium at the reference temperature (a Quantity named
+        ``pKw[medium]``; fitted as a shift like a pKa), or None for water
+        (IAPWS R11-07).  Its temperature dependence follows water's: pKw(T) =
+        pKw_water(T) + (pkw - pKw_water(T_ref)).
+    medium
+        Free-text name of the medium (reports).
     runs
         Runs declared in the model file (for ``speciakin simulate``).
     source
@@ -371,6 +426,8 @@ class Model:
     description: str = ""
     source: str = ""
     extra: Mapping[str, Any] = field(default_factory=dict)
+    pkw: Quantity | None = None
+    medium: str = ""
 
     def molecule(self, name: str) -> Molecule:
         for m in self.molecules:
@@ -393,7 +450,8 @@ class Model:
     def quantities(self) -> list[Quantity]:
         """Every Quantity of the model in a fixed, documented order:
         for each molecule, for each site: pKa, enthalpy; then its interactions'
-        W; then for each step: log10 k, activation energy."""
+        W; then for each step: log10 k, activation energy; then the medium's
+        pKw when the model sets one."""
         out: list[Quantity] = []
         for m in self.molecules:
             for s in m.sites:
@@ -401,4 +459,6 @@ class Model:
             out += [i.w for i in m.interactions]
         for st in self.steps:
             out += [st.log10_k, st.activation_energy]
+        if self.pkw is not None:
+            out.append(self.pkw)
         return out

@@ -35,13 +35,14 @@ from speciakin.chemistry.model import (
 from speciakin.chemistry.modelfile_dump import dump_model  # noqa: F401  (public API)
 from speciakin.chemistry.modelfile_keys import FILE_KEYS
 from speciakin.chemistry.modelfile_paths import format_path, parent_path, sub_path
-from speciakin.chemistry.modelfile_quantity import read_quantity
+from speciakin.chemistry.modelfile_quantity import read_quantity, share_quantities
 from speciakin.chemistry.modelfile_runs import RunReader
 from speciakin.chemistry.modelfile_reader import TableReader
 from speciakin.chemistry.modelfile_summary import model_summary  # noqa: F401  (public API)
 from speciakin.chemistry.modelfile_units import parse_rate_constant, rate_unit_text
 from speciakin.chemistry.modelfile_validate import (
     ACTIVITY_MODELS,
+    MODEL_ACTIVITY_MODELS,
     hydrolysis_step_name,
     validate_model,
 )
@@ -193,7 +194,14 @@ class _Builder:
         if "reference_temperature" in head:
             t_ref = r.measure(head["reference_temperature"], "model.reference_temperature",
                               "temperature", positive=True) or _NAN
-        activity = r.string(head, "activity", "model", default="ideal", choices=ACTIVITY_MODELS)
+        activity = r.string(head, "activity", "model", default="ideal")
+        if activity is not None and activity not in MODEL_ACTIVITY_MODELS:
+            extra = (" ('davies' is applied by the stand-alone speciation and titration commands, not by "
+                     "the kinetics simulation: a model would silently ignore it)"
+                     if activity in ACTIVITY_MODELS else "")
+            r.error("model.activity", "activity correction not available for a model" + extra, activity,
+                    "one of: " + ", ".join(MODEL_ACTIVITY_MODELS))
+            activity = None
         ions = self._ions(r.table(data, "ions", "") or {})
         molecule_tables = r.table(data, "molecule", "") or {}
         molecules = tuple(m for key, value in molecule_tables.items()
@@ -205,13 +213,27 @@ class _Builder:
         run_reader = RunReader(r, self.base_dir)
         runs = tuple(run for key, value in (r.table(data, "run", "") or {}).items()
                      if (run := run_reader.run(key, value)) is not None)
+        pkw, medium = self._medium(r.table(data, "medium", "") or {})
         extra: dict[str, Any] = {}
         if "fit" in data:
             fit = run_reader.fit_options(r.table(data, "fit", "") or {})
             extra["fit"] = fit
-        return Model(name=name or "", molecules=molecules, steps=tuple(steps), ions=ions,
-                     reference_temperature=t_ref, activity=activity or "ideal", runs=runs,
-                     description=description or "", source=source, extra=extra)
+        model = Model(name=name or "", molecules=molecules, steps=tuple(steps), ions=ions,
+                      reference_temperature=t_ref, activity=activity or "ideal", runs=runs,
+                      description=description or "", source=source, extra=extra, pkw=pkw, medium=medium)
+        return share_quantities(model, lambda name, message, value, expected: r.error(
+            r.shared_paths.get(name, name), message, value, expected))
+
+    def _medium(self, table: dict) -> tuple[Quantity | None, str]:
+        """``[medium]``: name and pKw (fixed, or fitted as a shift); absent = water."""
+        r = self.reader
+        r.check_keys(table, "medium", FILE_KEYS["medium"])
+        name = r.string(table, "name", "medium", default="") or ""
+        pkw = None
+        if "pkw" in table:
+            pkw = read_quantity(r, table["pkw"], "medium.pkw", "pkw", "medium",
+                                lambda raw, sub: r.number(raw, sub, what="a pKw value (number)"))
+        return pkw, name
 
     def _ions(self, table: dict) -> tuple[Ion, ...]:
         out = []

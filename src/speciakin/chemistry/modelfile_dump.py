@@ -61,6 +61,8 @@ def _with_unit(x: float, unit: str) -> str:
 
 
 def _quantity(q: Quantity, unit: str = "") -> str:
+    if q.same_as is not None:
+        return toml_value({"same_as": q.same_as})
     value = f"{_float(q.value)} {unit}" if unit else q.value
     if not q.fit and q.lower is None and q.upper is None and q.prior is None:
         return toml_value(value)
@@ -140,25 +142,31 @@ def _run(run: Run) -> list[str]:
         out.append("temperature = " + toml_value({
             "times": [f"{_float(t)} s" for t in tp.times],
             "values": [f"{_float(t)} K" for t in tp.temperatures]}))
-    out.append("charges = " + toml_value({k: f"{_float(v)} mol" for k, v in run.charges.items()}))
+    out.append("initial = " + toml_value({k: f"{_float(v)} mol" for k, v in run.charges.items()}))
     ph: dict[str, Any] = {"mode": run.ph.mode}
-    if run.ph.mode == "held":
-        if run.ph.setpoint is not None:
-            ph["setpoint"] = float(run.ph.setpoint)
-        if run.ph.titrant is not None:
-            ph["titrant"] = run.ph.titrant
-        if run.ph.titrant_concentration is not None:
-            ph["titrant_concentration"] = f"{_float(run.ph.titrant_concentration)} mol/L"
+    if run.ph.mode == "held" and run.ph.setpoint is not None:
+        ph["setpoint"] = float(run.ph.setpoint)
     elif run.ph.mode == "logged":
         ph.update(time_unit="s", times=[float(t) for t in run.ph.log_times],
                   values=[float(v) for v in run.ph.log_ph])
+    if run.ph.mode in ("held", "logged"):
+        for key in ("titrant", "opposite_titrant"):
+            if getattr(run.ph, key) is not None:
+                ph[key] = getattr(run.ph, key)
+            if getattr(run.ph, f"{key}_concentration") is not None:
+                ph[f"{key}_concentration"] = f"{_float(getattr(run.ph, f'{key}_concentration'))} mol/L"
+        if run.ph.controlled:
+            ph["start_adjustment"] = run.ph.start_adjustment
+        for key in ("start_acid", "start_base"):
+            if getattr(run.ph, key) is not None:
+                ph[key] = getattr(run.ph, key)
     out.append(f"ph = {toml_value(ph)}")
     if run.ph_offset != 0.0:
         out.append(f"probe_offset = {_float(run.ph_offset)}")
     if run.amount_factor != 1.0:
         out.append(f"amount_factor = {_float(run.amount_factor)}")
     for d in run.doses:
-        out += ["", f"[[{_header('run', run.name, 'dose')}]]", f"species = {toml_value(d.species)}",
+        out += ["", f"[[{_header('run', run.name, 'dosing')}]]", f"species = {toml_value(d.species)}",
                 f"amount = {_with_unit(d.amount, 'mol')}", f"start = {_with_unit(d.start, 's')}",
                 f"end = {_with_unit(d.end, 's')}", f"volume = {_with_unit(d.volume, 'L')}"]
     for w in run.withdrawals:
@@ -182,6 +190,12 @@ def dump_model(model: Model) -> str:
         out.append(f"description = {toml_value(model.description)}")
     out.append(f"reference_temperature = {_with_unit(model.reference_temperature, 'K')}")
     out.append(f"activity = {toml_value(model.activity)}")
+    if model.pkw is not None or model.medium:
+        out += ["", "[medium]"]
+        if model.medium:
+            out.append(f"name = {toml_value(model.medium)}")
+        if model.pkw is not None:
+            out.append(f"pkw = {_quantity(model.pkw)}")
     if model.ions:
         out += ["", "[ions]"] + [f"{_key(i.name)} = {int(i.charge)}" for i in model.ions]
     for m in model.molecules:

@@ -9,12 +9,23 @@ from __future__ import annotations
 from types import MappingProxyType
 from typing import Mapping
 
-__all__ = ["FILE_KEYS"]
+__all__ = ["FILE_KEYS", "RENAMED_KEYS"]
+
+#: Keys of a pH table that say how the pH is reached and held (held pH, logged pH with a titrant).
+_PH_CONTROL_KEYS = ("titrant", "titrant_concentration", "opposite_titrant", "opposite_titrant_concentration",
+                    "start_adjustment", "start_acid", "start_base")
+
+#: Keys of earlier versions, by table: old key -> its new name.  A file that
+#: still uses one gets a "renamed to" error.
+RENAMED_KEYS: Mapping[str, Mapping[str, str]] = MappingProxyType({
+    "run": MappingProxyType({"charges": "initial", "dose": "dosing"}),
+})
 
 #: Allowed keys of every table of the file, by table (drives the unknown-key
 #: check and the reference in docs/model-file.md).
 FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
-    "top": ("model", "ions", "molecule", "step", "hydrolysis", "run", "fit"),
+    "top": ("model", "ions", "molecule", "step", "hydrolysis", "run", "fit", "medium"),
+    "medium": ("name", "pkw"),
     "model": ("name", "description", "reference_temperature", "activity"),
     "molecule": ("label", "role", "molar_mass", "charge", "moieties", "site", "interaction"),
     "site": ("name", "kind", "pka", "enthalpy"),
@@ -23,16 +34,17 @@ FILE_KEYS: Mapping[str, tuple[str, ...]] = MappingProxyType({
     "reactant": ("species", "requires", "coefficient"),
     "hydrolysis": ("products", "water", "hydroxide"),
     "hydrolysis_path": ("k", "log10_k", "activation_energy"),
-    "run": ("note", "volume", "temperature", "end_time", "charges", "ph", "dose", "withdrawal",
+    "run": ("note", "volume", "temperature", "end_time", "initial", "ph", "dosing", "withdrawal",
             "samples", "probe_offset", "amount_factor"),
     "temperature": ("times", "values"),
-    "ph.held": ("mode", "setpoint", "titrant", "titrant_concentration"),
-    "ph.logged": ("mode", "times", "values", "time_unit", "file"),
+    "ph.held": ("mode", "setpoint") + _PH_CONTROL_KEYS,
+    "ph.logged": ("mode", "times", "values", "time_unit", "file") + _PH_CONTROL_KEYS,
     "ph.free": ("mode",),
-    "dose": ("species", "amount", "start", "end", "volume"),
+    "dosing": ("species", "amount", "start", "end", "volume"),
     "withdrawal": ("time", "volume"),
     "samples": ("times", "volume"),
-    "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed"),
+    "fit": ("probe_offset", "amount_factor", "error_model", "starts", "seed", "log_thinning"),
+    "fit.log_thinning": ("titrant", "ph"),
     "fit.nuisance": ("runs", "lower", "upper", "sd"),
     "fit.error_model": ("absolute", "relative", "titrant_absolute", "titrant_relative"),
 })

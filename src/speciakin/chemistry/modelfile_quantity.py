@@ -34,6 +34,7 @@ __all__ = [
     "quantity_name",
     "read_quantity",
     "check_quantity",
+    "share_quantities",
 ]
 
 
@@ -58,6 +59,8 @@ QUANTITY_KINDS: Mapping[str, QuantityKind] = MappingProxyType({
                             "log10 of the rate constant at the reference temperature"),
     "activation_energy": QuantityKind("activation_energy", "Ea", "kJ/mol", False,
                                       "Arrhenius activation energy [kJ/mol]"),
+    "pkw": QuantityKind("pkw", "pKw", "", True,
+                        "pKw of the medium at the reference temperature [-] (temperature dependence of water)"),
 })
 
 #: Prior sd of a fitted pKa shift when the file states neither ``spread`` nor
@@ -119,6 +122,15 @@ def read_quantity(reader: TableReader, value: Any, path: str, kind: str, owner: 
     if not isinstance(value, dict):
         number = convert(value, path)
         return None if number is None else Quantity(number, unit, name, shift=spec.shift)
+    if "same_as" in value:
+        # shared with another quantity: its value is filled in by share_quantities
+        reader.check_keys(value, path, ("same_as",))
+        target = reader.typed(value["same_as"], sub_path(path, "same_as"), str,
+                              f"the name of another quantity, such as '{spec.prefix}[...]'")
+        if target is None:
+            return None
+        reader.shared_paths[name] = sub_path(path, "same_as")
+        return Quantity(math.nan, unit, name, shift=spec.shift, same_as=target)
     keys = _SPEC_KEYS + (("spread",) if spec.shift else ())
     reader.check_keys(value, path, keys, required=("value",))
     if "value" not in value:
@@ -142,6 +154,48 @@ def read_quantity(reader: TableReader, value: Any, path: str, kind: str, owner: 
     if number is None:
         return None
     return Quantity(number, unit, name, fit, lower, upper, prior, spec.shift)
+
+
+def share_quantities(model, report: Callable[..., None]):
+    """Fill the value of every quantity declared ``same_as`` another (a model).
+
+    The target must exist, be of the same kind (same name prefix) and not be
+    shared itself.  ``report(path, message, value, expected)`` records a
+    problem; the key path is that of the shared quantity (found by name).
+    Returns the model with the values copied (unchanged when nothing is shared).
+    """
+    from dataclasses import replace
+
+    by_name = {q.name: q for q in model.quantities() if q.name}
+    shared = {q.name: q for q in model.quantities() if q.same_as is not None}
+    if not shared:
+        return model
+    values = {}
+    for name, q in shared.items():
+        target = by_name.get(q.same_as)
+        prefix = name.split("[", 1)[0]
+        if target is None:
+            report(name, f"{name}: same_as names no quantity of the model", q.same_as,
+                   "one of: " + ", ".join(n for n in by_name if n.split("[", 1)[0] == prefix and n != name))
+        elif target.name.split("[", 1)[0] != prefix:
+            report(name, f"{name}: same_as names a quantity of another kind", q.same_as, f"a {prefix}[...] name")
+        elif target.same_as is not None or target.name == name:
+            report(name, f"{name}: same_as names a quantity that is itself shared", q.same_as,
+                   "a quantity with its own value")
+        else:
+            values[name] = target.value
+
+    def fill(q: Quantity) -> Quantity:
+        if q.same_as is None or q.name not in values:
+            return q
+        return replace(q, value=values[q.name], fit=False, lower=None, upper=None, prior=None)
+
+    molecules = tuple(replace(m, sites=tuple(replace(s, pka=fill(s.pka), enthalpy=fill(s.enthalpy)) for s in m.sites),
+                              interactions=tuple(replace(i, w=fill(i.w)) for i in m.interactions))
+                      for m in model.molecules)
+    steps = tuple(replace(s, log10_k=fill(s.log10_k), activation_energy=fill(s.activation_energy))
+                  for s in model.steps)
+    return replace(model, molecules=molecules, steps=steps)
 
 
 def check_quantity(q: Quantity, path: str, report: Callable[..., None]) -> None:

@@ -9,7 +9,7 @@ on and every mistake of the file is reported at once.
 from __future__ import annotations
 
 import math
-from typing import Any, Iterable
+from typing import Any, Iterable, Mapping
 
 from speciakin.chemistry.modelfile_paths import KeyLines, format_path, sub_path
 from speciakin.chemistry.modelfile_units import BARE_NUMBER_UNITS
@@ -29,6 +29,8 @@ class TableReader:
         self._text = text
         self._key_lines: KeyLines | None = None
         self.collector = ProblemCollector()
+        #: key path of every quantity written ``{ same_as = ... }``, by quantity name
+        self.shared_paths: dict[str, str] = {}
 
     @property
     def key_lines(self) -> KeyLines:
@@ -50,11 +52,17 @@ class TableReader:
 
     # -- structure -----------------------------------------------------------
     def check_keys(self, table: dict, path: str, allowed: Iterable[str],
-                   required: Iterable[str] = ()) -> None:
-        """Record unknown keys (listing the allowed ones) and missing required keys."""
+                   required: Iterable[str] = (), renamed: Mapping[str, str] | None = None) -> None:
+        """Record unknown keys (listing the allowed ones; a key of ``renamed``
+        names its new spelling) and missing required keys."""
         allowed = tuple(allowed)
+        renamed = renamed or {}
         for key in table:
-            if key not in allowed:
+            if key in renamed and key not in allowed:
+                self.error(sub_path(path, key) if path else format_path(key),
+                           f"key '{key}' was renamed to '{renamed[key]}'", key,
+                           f"'{renamed[key]}' (same content)", code="unknown_key")
+            elif key not in allowed:
                 self.error(sub_path(path, key) if path else format_path(key), "unknown key",
                            key, "one of: " + ", ".join(allowed), code="unknown_key")
         for key in required:

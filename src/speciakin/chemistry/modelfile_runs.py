@@ -1,9 +1,9 @@
-"""Runs of the model file (charges, temperature, pH control, doses, samples)
+"""Runs of the model file (initial amounts, temperature, pH control, dosing, samples)
 and the ``[fit]`` table of estimation options.
 
 Bare numbers use the defaults of
 :data:`speciakin.chemistry.modelfile_units.BARE_NUMBER_UNITS` (time min, volume
-mL, amount mmol, concentration mol/L, temperature C).  A charge or a dosed
+mL, amount mmol, concentration mol/L, temperature C).  An initial or a dosed
 amount written as a concentration is multiplied by the run volume (or the
 dose volume).
 """
@@ -14,8 +14,9 @@ import math
 from pathlib import Path
 from typing import Any
 
-from speciakin.chemistry.model import PH_MODES, Dose, PhControl, Run, TemperatureProfile, Withdrawal
-from speciakin.chemistry.modelfile_keys import FILE_KEYS
+from speciakin.chemistry.model import (PH_MODES, START_ADJUSTMENTS, Dose, PhControl, Run, TemperatureProfile,
+                                      Withdrawal)
+from speciakin.chemistry.modelfile_keys import FILE_KEYS, RENAMED_KEYS
 from speciakin.chemistry.modelfile_paths import format_path, sub_path
 from speciakin.chemistry.modelfile_phlog import read_ph_log
 from speciakin.chemistry.modelfile_reader import TableReader
@@ -57,7 +58,8 @@ class RunReader:
         table = r.typed(value, path, dict)
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["run"], required=("volume", "end_time", "ph"))
+        r.check_keys(table, path, FILE_KEYS["run"], required=("volume", "end_time", "ph"),
+                     renamed=RENAMED_KEYS["run"])
         note = r.string(table, "note", path, default="") or ""
         volume = _NAN
         if "volume" in table:
@@ -69,14 +71,14 @@ class RunReader:
         volume = _NAN if volume is None else volume
         end_time = _NAN if end_time is None else end_time
         charges: dict[str, float] = {}
-        for species, raw in (r.table(table, "charges", path) or {}).items():
-            amount = self._amount(raw, sub_path(path, "charges", species), volume)
+        for species, raw in (r.table(table, "initial", path) or {}).items():
+            amount = self._amount(raw, sub_path(path, "initial", species), volume)
             charges[species] = _NAN if amount is None else amount
         temperature = self._temperature(table, path)
         ph = self._ph(table, path)
         doses = []
-        for i, item in enumerate(self.reader.array(table, "dose", path)):
-            dose = self._dose(item, sub_path(path, "dose", i))
+        for i, item in enumerate(self.reader.array(table, "dosing", path)):
+            dose = self._dose(item, sub_path(path, "dosing", i))
             if dose is not None:
                 doses.append(dose)
         withdrawals = []
@@ -152,23 +154,34 @@ class RunReader:
         r.check_keys(raw, sub, FILE_KEYS[f"ph.{mode}"])
         if mode == "held":
             setpoint = r.number(raw["setpoint"], sub_path(sub, "setpoint")) if "setpoint" in raw else None
-            titrant = r.string(raw, "titrant", sub)
-            conc = None
-            if "titrant_concentration" in raw:
-                conc = r.measure(raw["titrant_concentration"], sub_path(sub, "titrant_concentration"),
-                                 "concentration", positive=True)
-            return PhControl("held", setpoint, titrant, conc)
+            return PhControl("held", setpoint, **self._control(raw, sub))
         if mode == "logged":
             times, values = read_ph_log(r, raw, sub, self.base_dir)
-            return PhControl("logged", log_times=times, log_ph=values)
+            return PhControl("logged", log_times=times, log_ph=values, **self._control(raw, sub))
         return PhControl("free")
+
+    def _control(self, raw: dict, sub: str) -> dict[str, Any]:
+        """Titrant, opposite titrant and start adjustment of a held or logged pH table."""
+        r = self.reader
+        out: dict[str, Any] = {}
+        for key in ("titrant", "opposite_titrant"):
+            out[key] = r.string(raw, key, sub)
+            ckey = f"{key}_concentration"
+            out[ckey] = None
+            if ckey in raw:
+                out[ckey] = r.measure(raw[ckey], sub_path(sub, ckey), "concentration", positive=True)
+        out["start_adjustment"] = r.string(raw, "start_adjustment", sub, default="computed",
+                                           choices=START_ADJUSTMENTS) or "computed"
+        out["start_acid"] = r.string(raw, "start_acid", sub)
+        out["start_base"] = r.string(raw, "start_base", sub)
+        return out
 
     def _dose(self, value: Any, path: str) -> Dose | None:
         r = self.reader
         table = r.typed(value, path, dict)
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["dose"], required=("species", "amount", "start"))
+        r.check_keys(table, path, FILE_KEYS["dosing"], required=("species", "amount", "start"))
         species = r.string(table, "species", path)
         volume = 0.0
         if "volume" in table:
@@ -227,6 +240,19 @@ class RunReader:
                     if number is not None:
                         em[key] = number
             out["error_model"] = em
+        if "log_thinning" in table:
+            path = "fit.log_thinning"
+            raw = r.typed(table["log_thinning"], path, dict, "a table { titrant = N, ph = M }") or {}
+            r.check_keys(raw, path, FILE_KEYS["fit.log_thinning"])
+            thin = {}
+            for key in FILE_KEYS["fit.log_thinning"]:
+                if key in raw:
+                    value = r.typed(raw[key], sub_path(path, key), int, "a whole number of readings >= 2")
+                    if value is not None and value < 2:
+                        r.error(sub_path(path, key), "too few readings", value, "a whole number >= 2")
+                    elif value is not None:
+                        thin[key] = value
+            out["log_thinning"] = thin
         for key in ("starts", "seed"):
             if key in table:
                 value = r.typed(table[key], format_path("fit", key), int)

@@ -14,13 +14,16 @@ from typing import Any
 
 from speciakin.chemistry.model import (
     ACTIVITY_MODELS,
+    MODEL_ACTIVITY_MODELS,
     MOLECULE_ROLES,
     PH_MODES,
     PSEUDO_REACTANTS,
     SITE_KINDS,
     SITE_STATES,
+    START_ADJUSTMENTS,
     Model,
     Molecule,
+    PhControl,
     Run,
     Step,
 )
@@ -28,6 +31,9 @@ from speciakin.chemistry.modelfile_paths import format_path, sub_path
 from speciakin.chemistry.modelfile_quantity import check_quantity
 from speciakin.chemistry.plausibility import plausibility_problems
 from speciakin.errors import Location, Problem, ProblemCollector
+
+#: Plausible pKw of a medium [-] (water 14.0 at 25 C; water-organic mixtures reach about 17-18).
+PKW_RANGE = (10.0, 20.0)
 
 __all__ = ["validate_model", "ACTIVITY_MODELS", "MOLECULE_ROLES", "hydrolysis_step_name",
            "PH_RANGE"]
@@ -175,9 +181,10 @@ def _run(ch: _Checker, model: Model, run: Run, species: set[str], ions: set[str]
     ch.finite(run.volume, sub_path(path, "volume"), "volume", positive=True)
     horizon_ok = ch.finite(run.end_time, sub_path(path, "end_time"), "end time", positive=True)
     for name, amount in run.charges.items():
-        cp = sub_path(path, "charges", name)
+        cp = sub_path(path, "initial", name)
         if name not in species:
-            ch.error(cp, "unknown species in charges", name, "a molecule or ion: " + ", ".join(sorted(species)))
+            ch.error(cp, "unknown species in the initial amounts", name,
+                     "a molecule or ion: " + ", ".join(sorted(species)))
         ch.finite(amount, cp, "amount", minimum=0)
     tp = run.temperature
     tpath = sub_path(path, "temperature")
@@ -190,11 +197,11 @@ def _run(ch: _Checker, model: Model, run: Run, species: set[str], ions: set[str]
                 break
         if any(b <= a for a, b in zip(tp.times, tp.times[1:])):
             ch.error(sub_path(tpath, "times"), "times must increase", list(tp.times), "increasing times")
-    _ph(ch, run, path, ions, horizon_ok)
+    _ph(ch, model, run, path, ions, horizon_ok)
     for i, dose in enumerate(run.doses):
-        dp = sub_path(path, "dose", i)
+        dp = sub_path(path, "dosing", i)
         if dose.species not in species:
-            ch.error(sub_path(dp, "species"), "unknown species in dose", dose.species,
+            ch.error(sub_path(dp, "species"), "unknown species in dosing", dose.species,
                      "a molecule or ion: " + ", ".join(sorted(species)))
         ch.finite(dose.amount, sub_path(dp, "amount"), "dosed amount", minimum=0)
         ch.finite(dose.volume, sub_path(dp, "volume"), "dosed volume", minimum=0)
@@ -216,7 +223,51 @@ def _run(ch: _Checker, model: Model, run: Run, species: set[str], ions: set[str]
     ch.finite(run.amount_factor, sub_path(path, "amount_factor"), "amount factor", positive=True)
 
 
-def _ph(ch: _Checker, run: Run, path: str, ions: set[str], horizon_ok: bool) -> None:
+def _titrants(ch: _Checker, model: Model, ph: PhControl, pp: str) -> None:
+    """Titrant, opposite titrant (each with its own concentration, opposite
+    charges) and the ions of the start adjustment."""
+    charges = {i.name: i.charge for i in model.ions}
+    listed = ", ".join(sorted(charges)) or "(none declared)"
+    signs = {}
+    for key in ("titrant", "opposite_titrant"):
+        name = getattr(ph, key)
+        conc = getattr(ph, f"{key}_concentration")
+        if name is None:
+            if conc is not None:
+                ch.error(sub_path(pp, f"{key}_concentration"), f"a concentration without {key}", conc,
+                         f"{key} = an ion name")
+            continue
+        if name not in charges:
+            ch.error(sub_path(pp, key), f"{key.replace('_', ' ')} is not a declared ion", name,
+                     "one of the [ions]: " + listed)
+        elif charges[name] == 0:
+            ch.error(sub_path(pp, key), f"{key.replace('_', ' ')} has no charge", name, "a charged ion")
+        else:
+            signs[key] = charges[name] > 0
+        side = {True: "base", False: "acid"}.get(signs.get(key), "titrant")
+        if conc is None:
+            ch.error(pp, f"the {side} titrant '{name}' needs its concentration",
+                     expected=f"{key}_concentration such as '1 M'", code="missing")
+        else:
+            ch.finite(conc, sub_path(pp, f"{key}_concentration"), f"{side} titrant concentration", positive=True)
+    if ph.opposite_titrant is not None and ph.titrant is None:
+        ch.error(pp, "an opposite titrant needs a titrant", expected="titrant = an ion name", code="missing")
+    if len(signs) == 2 and signs["titrant"] == signs["opposite_titrant"]:
+        ch.error(sub_path(pp, "opposite_titrant"), "the opposite titrant must carry the opposite charge",
+                 ph.opposite_titrant, "an ion whose charge has the other sign than the titrant's")
+    if ph.start_adjustment not in START_ADJUSTMENTS:
+        ch.error(sub_path(pp, "start_adjustment"), "unknown start adjustment", ph.start_adjustment,
+                 "one of: " + ", ".join(START_ADJUSTMENTS))
+    for key, positive in (("start_acid", False), ("start_base", True)):
+        name = getattr(ph, key)
+        if name is not None and (name not in charges or (charges[name] > 0) != positive or charges[name] == 0):
+            ch.error(sub_path(pp, key), f"{key.replace('_', ' ')} must be a declared ion with a "
+                     f"{'positive' if positive else 'negative'} charge", name,
+                     "one of: " + (", ".join(n for n, z in charges.items() if z != 0 and (z > 0) == positive)
+                                   or "(none declared)"))
+
+
+def _ph(ch: _Checker, model: Model, run: Run, path: str, ions: set[str], horizon_ok: bool) -> None:
     ph = run.ph
     pp = sub_path(path, "ph")
     lo, hi = PH_RANGE
@@ -232,16 +283,9 @@ def _ph(ch: _Checker, run: Run, path: str, ions: set[str], horizon_ok: bool) -> 
         if ph.titrant is None:
             ch.error(pp, "a held-pH run needs a titrant ion", expected="titrant = an ion name such as 'Na+'",
                      code="missing")
-        elif ph.titrant not in ions:
-            ch.error(sub_path(pp, "titrant"), "titrant is not a declared ion", ph.titrant,
-                     "one of the [ions]: " + (", ".join(sorted(ions)) or "(none declared)"))
-        if ph.titrant_concentration is None:
-            ch.error(pp, "a held-pH run needs the titrant concentration",
-                     expected="titrant_concentration such as '1 M'", code="missing")
-        else:
-            ch.finite(ph.titrant_concentration, sub_path(pp, "titrant_concentration"),
-                      "titrant concentration", positive=True)
-    elif ph.mode == "logged":
+    if ph.mode in ("held", "logged"):
+        _titrants(ch, model, ph, pp)
+    if ph.mode == "logged":
         if not ph.log_times:
             ch.error(pp, "a logged-pH run has no pH data", expected="times and values, or a CSV file",
                      code="missing")
@@ -276,9 +320,15 @@ def validate_model(model: Model) -> list[Problem]:
     if not math.isfinite(model.reference_temperature) or model.reference_temperature <= 0:
         ch.error("model.reference_temperature", "reference temperature must be positive",
                  model.reference_temperature, "a temperature > 0 K")
-    if model.activity not in ACTIVITY_MODELS:
-        ch.error("model.activity", "unknown activity correction", model.activity,
-                 "one of: " + ", ".join(ACTIVITY_MODELS))
+    if model.activity not in MODEL_ACTIVITY_MODELS:
+        ch.error("model.activity", "activity correction not available for a model (every path, the "
+                 "kinetics kernel included, uses ideal activities)", model.activity,
+                 "one of: " + ", ".join(MODEL_ACTIVITY_MODELS))
+    if model.pkw is not None:
+        check_quantity(model.pkw, "medium.pkw", ch.error)
+        if math.isfinite(model.pkw.value) and not PKW_RANGE[0] <= model.pkw.value <= PKW_RANGE[1]:
+            ch.error("medium.pkw", "pKw of the medium out of range", model.pkw.value,
+                     f"{PKW_RANGE[0]:g} <= pKw <= {PKW_RANGE[1]:g}")
     counts = Counter([m.name for m in model.molecules] + [i.name for i in model.ions])
     for name, n in counts.items():
         if n > 1:

@@ -37,6 +37,7 @@ __all__ = [
     "debye_huckel_slope",
     "ionic_strength",
     "davies_log10_gamma",
+    "medium_pkw",
     "vant_hoff_pka",
 ]
 
@@ -120,6 +121,16 @@ def water_density_kell(temperature):
            + 105.56302e-9 * t**4 - 280.54253e-12 * t**5)
     out = num / (1.0 + 16.879850e-3 * t)
     return out if np.ndim(out) else float(out)
+
+
+def medium_pkw(model, temperature):
+    """pKw of a model's medium at ``temperature`` [K]: water's (IAPWS) when
+    ``model.pkw`` is None, else water's shifted so that it equals
+    ``model.pkw`` at the model's reference temperature."""
+    value = pkw(temperature)
+    if getattr(model, "pkw", None) is None:
+        return value
+    return value + (float(model.pkw.value) - float(pkw(model.reference_temperature)))
 
 
 def pkw(temperature=298.15):

@@ -12,6 +12,18 @@ from speciakin.errors import Location, ProblemCollector
 __all__ = ["read_dosing", "read_probe", "read_titrant"]
 
 
+#: A tared burette or balance reads slightly below zero near the start (common practice: a few
+#: hundredths of a mL): cumulative titrant readings down to minus this much are data; lower
+#: ones are refused as implausible [L for volume, mol for amount].
+TITRANT_TARE = {"volume": 0.5e-3, "amount": 0.5e-3}
+
+
+def _tare_minimum(cols, key: str) -> float:
+    """Lowest accepted titrant reading of column ``key`` in the column's own unit."""
+    unit = cols.unit(key)
+    return -TITRANT_TARE[key] / (unit.factor if unit else 1.0)
+
+
 def read_dosing(cols: SheetColumns, c: ProblemCollector,
                 known: dict[str, int]) -> dict[str, tuple[tuple[Dose, int], ...]]:
     """Doses per run, each with its spreadsheet row."""
@@ -77,8 +89,8 @@ def read_titrant(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
         return {}
     runs = run_column(cols, c, known)
     time = column_numbers(cols, "time", c, "time", minimum=0.0, blank_ok=False)
-    volume = column_numbers(cols, "volume", c, "titrant volume", minimum=0.0)
-    amount = column_numbers(cols, "amount", c, "titrant amount", minimum=0.0)
+    volume = column_numbers(cols, "volume", c, "titrant volume", minimum=_tare_minimum(cols, "volume"))
+    amount = column_numbers(cols, "amount", c, "titrant amount", minimum=_tare_minimum(cols, "amount"))
     out: dict[str, TitrantLog] = {}
     for run, idx in group_rows(runs).items():
         if run not in known:

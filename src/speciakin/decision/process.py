@@ -19,9 +19,10 @@ from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
-from speciakin.chemistry.model import Model
+from speciakin.chemistry.model import START_ADJUSTMENTS, Model
 from speciakin.decision.process_fields import (
     PROCESS_KEYS,
+    RENAMED_PROCESS_KEYS,
     SCAN_KEYS,
     Reader,
     parse_equivalents,
@@ -72,7 +73,7 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
                 "a [process] table", code="missing")
         r.problems.raise_if_errors(ModelFileError)
     p, t = "process", "process"
-    r.unknown_keys(proc, PROCESS_KEYS, p, t)
+    r.unknown_keys(proc, PROCESS_KEYS, p, t, renamed=RENAMED_PROCESS_KEYS)
     name = r.text(proc, "name", p, t, required=False, default=Path(source).stem if source else "process")
     description = r.text(proc, "description", p, t, required=False)
     substrate = r.text(proc, "substrate", p, t)
@@ -109,14 +110,28 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
                       default=0.0)
     temperature = r.quantity(proc, "temperature", "temperature", p, t)
     titrant_c = r.quantity(proc, "titrant_concentration", "concentration", p, t)
+    opposite = r.text(proc, "opposite_titrant", p, t, required=False) or None
+    opposite_c = None
+    if opposite is not None or "opposite_titrant_concentration" in proc:
+        opposite_c = r.quantity(proc, "opposite_titrant_concentration", "concentration", p, t)
+        if opposite is None:
+            r.error("a concentration without opposite_titrant",
+                    r.where("process.opposite_titrant_concentration", t, "opposite_titrant_concentration"),
+                    proc.get("opposite_titrant_concentration"), PROCESS_KEYS["opposite_titrant"])
+    start = r.text(proc, "start_adjustment", p, t, required=False, default="computed")
+    if start not in START_ADJUSTMENTS:
+        r.error("unknown start adjustment", r.where("process.start_adjustment", t, "start_adjustment"),
+                start, PROCESS_KEYS["start_adjustment"])
+    start_acid = r.text(proc, "start_acid", p, t, required=False) or None
+    start_base = r.text(proc, "start_base", p, t, required=False) or None
     charges: dict[str, float] = {}
-    raw_charges = proc.get("charges", {})
+    raw_charges = proc.get("initial", {})
     if not isinstance(raw_charges, dict):
-        r.error("not a table", r.where("process.charges", t, "charges"), raw_charges,
-                PROCESS_KEYS["charges"])
+        r.error("not a table", r.where("process.initial", t, "initial"), raw_charges,
+                PROCESS_KEYS["initial"])
     else:
         for key in raw_charges:
-            v = r.quantity(raw_charges, key, "amount", "process.charges", "process.charges",
+            v = r.quantity(raw_charges, key, "amount", "process.initial", "process.initial",
                            allow_zero=True)
             if v is not None:
                 charges[key] = v
@@ -168,6 +183,8 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
         reagent=reagent, equivalents=float(equivalents), dosing_time=float(dosing),
         hold_time=float(hold), temperature=float(temperature), titrant=titrant,
         titrant_concentration=float(titrant_c), feed_volume=float(feed), moiety=moiety,
+        opposite_titrant=opposite, opposite_titrant_concentration=opposite_c, start_adjustment=start,
+        start_acid=start_acid, start_base=start_base,
         extra_charges=MappingProxyType(charges), ph_from=ph_from, ph_to=ph_to, ph_step=ph_step,
         level=level, ph_tolerance=tolerance, n_draws=int(draws), seed=int(seed),
         second_factor=factor, specifications=tuple(specs), description=description, source=source)
@@ -221,12 +238,24 @@ def validate_process(process: ProcessPlan, model: Model, text: str = "") -> Proc
         if value not in molecules:
             r.error("unknown molecule", r.where(f"process.{key}", "process", key), value,
                     f"one of {', '.join(molecules)}", code="unknown_name")
-    if process.titrant not in ions:
-        r.error("unknown ion", r.where("process.titrant", "process", "titrant"), process.titrant,
-                f"one of {', '.join(ions) or '(the model declares no ions)'}", code="unknown_name")
+    charge = {i.name: i.charge for i in model.ions}
+    for key, sign in (("titrant", 0), ("opposite_titrant", 0), ("start_acid", -1), ("start_base", 1)):
+        value = getattr(process, key)
+        if value is None:
+            continue
+        fits = [n for n, z in charge.items() if z != 0 and (sign == 0 or z * sign > 0)]
+        if value not in fits:
+            what = {0: "a charged ion", -1: "an ion with a negative charge", 1: "an ion with a positive charge"}
+            r.error(f"unknown ion, or not {what[sign]}", r.where(f"process.{key}", "process", key), value,
+                    f"one of {', '.join(fits) or '(the model declares no such ion)'}", code="unknown_name")
+    if (process.opposite_titrant in charge and process.titrant in charge
+            and charge[process.opposite_titrant] * charge[process.titrant] > 0):
+        r.error("the opposite titrant must carry the opposite charge of the titrant",
+                r.where("process.opposite_titrant", "process", "opposite_titrant"), process.opposite_titrant,
+                "an ion whose charge has the other sign", code="invalid")
     for key in process.extra_charges:
         if key not in molecules and key not in ions:
-            r.error("unknown molecule or ion", r.where(f"process.charges.{key}", "process.charges", key),
+            r.error("unknown molecule or ion", r.where(f"process.initial.{key}", "process.initial", key),
                     key, f"one of {', '.join(molecules + ions)}", code="unknown_name")
     moiety = process.moiety
     if process.substrate in molecules:
@@ -289,11 +318,18 @@ def process_to_toml(process: ProcessPlan) -> str:
         f'temperature = "{q(process.temperature)} K"',
         f"titrant = {_toml_string(process.titrant)}",
         f'titrant_concentration = "{q(process.titrant_concentration)} mol/L"',
+        f"start_adjustment = {_toml_string(process.start_adjustment)}",
     ]
+    if process.opposite_titrant is not None:
+        lines += [f"opposite_titrant = {_toml_string(process.opposite_titrant)}",
+                  f'opposite_titrant_concentration = "{q(process.opposite_titrant_concentration)} mol/L"']
+    for key in ("start_acid", "start_base"):
+        if getattr(process, key) is not None:
+            lines.append(f"{key} = {_toml_string(getattr(process, key))}")
     if process.moiety:
         lines.append(f"moiety = {_toml_string(process.moiety)}")
     if process.extra_charges:
-        lines += ["", "[process.charges]"]
+        lines += ["", "[process.initial]"]
         lines += [f'{_toml_string(k)} = "{q(v)} mol"' for k, v in process.extra_charges.items()]
     lines += ["", "[scan]", f"ph_from = {q(process.ph_from)}", f"ph_to = {q(process.ph_to)}",
               f"ph_step = {q(process.ph_step)}", f"level = {q(process.level)}",

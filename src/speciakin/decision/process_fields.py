@@ -10,13 +10,14 @@ import math
 import re
 from typing import Any, Mapping
 
+from speciakin.chemistry.model import START_ADJUSTMENTS
 from speciakin.decision.process_plan import FACTOR_KINDS, SecondFactor
 from speciakin.decision.specs import OPERATORS, OUTCOME_KINDS, Specification
 from speciakin.errors import Location, ProblemCollector
 from speciakin.units import parse_quantity
 
 __all__ = ["Reader", "parse_equivalents", "parse_specification", "parse_second_factor",
-           "PROCESS_KEYS", "SCAN_KEYS", "SPECIFICATION_KEYS", "FACTOR_KEYS"]
+           "PROCESS_KEYS", "RENAMED_PROCESS_KEYS", "SCAN_KEYS", "SPECIFICATION_KEYS", "FACTOR_KEYS"]
 
 PROCESS_KEYS = {
     "name": "text", "description": "text", "substrate": "a molecule name",
@@ -27,9 +28,17 @@ PROCESS_KEYS = {
     "dosing_time": "a time such as '30 min'", "hold_time": "a time such as '60 min'",
     "feed_volume": "a volume such as '20 mL'", "temperature": "a temperature such as '20 C'",
     "titrant": "an ion name such as 'Na+'",
-    "titrant_concentration": "a concentration such as '2 M'", "moiety": "a moiety name",
-    "charges": "a table of name = amount",
+    "titrant_concentration": "a concentration such as '2 M'",
+    "opposite_titrant": "an ion name of the other sign than the titrant, such as 'Cl-'",
+    "opposite_titrant_concentration": "a concentration such as '1 M'",
+    "start_adjustment": "one of " + ", ".join(START_ADJUSTMENTS),
+    "start_acid": "an ion name with a negative charge, such as 'Cl-'",
+    "start_base": "an ion name with a positive charge, such as 'Na+'",
+    "moiety": "a moiety name",
+    "initial": "a table of name = amount",
 }
+#: Keys of earlier versions of the process file: old key -> new name.
+RENAMED_PROCESS_KEYS = {"charges": "initial"}
 SCAN_KEYS = {
     "ph_from": "a pH", "ph_to": "a pH", "ph_step": "a pH step > 0",
     "level": "a probability between 0 and 1, such as 0.95",
@@ -91,9 +100,14 @@ class Reader:
         self.problems.error(message, loc, value, expected, code)
 
     def unknown_keys(self, data: Mapping[str, Any], allowed: Mapping[str, str], prefix: str,
-                     table: str | None, index: int | None = None) -> None:
+                     table: str | None, index: int | None = None,
+                     renamed: Mapping[str, str] | None = None) -> None:
         for key in data:
-            if key not in allowed:
+            if renamed and key in renamed:
+                self.error(f"key '{key}' was renamed to '{renamed[key]}'",
+                           self.where(f"{prefix}.{key}", table, key, index), key,
+                           f"'{renamed[key]}' (same content)", code="unknown_key")
+            elif key not in allowed:
                 self.error("unknown key", self.where(f"{prefix}.{key}", table, key, index), key,
                            f"one of {', '.join(allowed)}", code="unknown_key")
 

@@ -83,11 +83,21 @@ class ProcessPlan:
     titrant, titrant_concentration
         Ion the pH controller doses (model ion name) and its concentration
         [mol/L].
+    opposite_titrant, opposite_titrant_concentration
+        Optional ion of the other sign and its concentration [mol/L]: a
+        two-sided pH-stat (None = the titrant alone).
+    start_adjustment
+        How the start solution reaches the set point
+        (:data:`speciakin.chemistry.model.START_ADJUSTMENTS`; default
+        ``computed``: acid or base inside the start volume).
+    start_acid, start_base
+        Ions of a computed start adjustment (None = the titrant of that sign,
+        else the model's only ion of that sign).
     moiety
         Substrate moiety that outcomes count (None = the substrate's only
         moiety, resolved against the model).
     extra_charges
-        Other initial amounts [mol] by molecule or ion name.
+        Other initial amounts [mol] by molecule or ion name (``[process.initial]``).
     ph_from, ph_to, ph_step
         pH scan grid [-].
     level
@@ -115,6 +125,11 @@ class ProcessPlan:
     titrant_concentration: float
     feed_volume: float = 0.0
     moiety: str | None = None
+    opposite_titrant: str | None = None
+    opposite_titrant_concentration: float | None = None
+    start_adjustment: str = "computed"
+    start_acid: str | None = None
+    start_base: str | None = None
     extra_charges: Mapping[str, float] = field(default_factory=dict)
     ph_from: float = 2.0
     ph_to: float = 12.0

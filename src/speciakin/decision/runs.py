@@ -44,12 +44,15 @@ def process_runs(process: ProcessPlan, model: Model | None, ph_values: Sequence[
                  second_factor_value: float | None = None) -> list[Run]:
     """Held-pH runs of the planned process, one per set-point pH.
 
-    Each run charges ``substrate_amount`` of the substrate (plus
-    ``extra_charges``) in ``volume``; doses ``equivalents x substrate_amount``
-    of the reagent at a constant rate from 0 to ``dosing_time`` (an instant
-    addition when the dosing time is 0) with ``feed_volume`` of liquid; holds
-    the pH at the set point with the titrant; and ends at ``dosing_time +
-    hold_time``.
+    Each run starts with ``substrate_amount`` of the substrate (plus the
+    ``[process.initial]`` amounts) in ``volume``, brought to the set point as
+    ``start_adjustment`` says (default: acid or base inside the start volume);
+    doses ``equivalents x substrate_amount`` of the reagent at a constant rate
+    from 0 to ``dosing_time`` (an instant addition when the dosing time is 0)
+    with ``feed_volume`` of liquid; holds the pH at the set point with the
+    titrant (and the opposite titrant, when given: a two-sided pH-stat), whose
+    volumes add to the batch; and ends at ``dosing_time + hold_time``.  These
+    are the conventions of the lab runs (:class:`PhControl`).
 
     Parameters
     ----------
@@ -71,8 +74,11 @@ def process_runs(process: ProcessPlan, model: Model | None, ph_values: Sequence[
     if model is not None:
         names = {m.name for m in model.molecules} | {i.name for i in model.ions}
         for key, name in (("process.substrate", process.substrate),
-                          ("process.reagent", process.reagent), ("process.titrant", process.titrant)):
-            if name not in names:
+                          ("process.reagent", process.reagent), ("process.titrant", process.titrant),
+                          ("process.opposite_titrant", process.opposite_titrant),
+                          ("process.start_acid", process.start_acid),
+                          ("process.start_base", process.start_base)):
+            if name is not None and name not in names:
                 raise InputError("name not found in the model",
                                  Location(file=process.source or None, key=key), name,
                                  f"one of {', '.join(sorted(names))}")
@@ -95,7 +101,11 @@ def process_runs(process: ProcessPlan, model: Model | None, ph_values: Sequence[
             volume=process.volume,
             temperature=TemperatureProfile((0.0,), (temperature,)),
             ph=PhControl("held", setpoint=ph, titrant=process.titrant,
-                         titrant_concentration=process.titrant_concentration),
+                         titrant_concentration=process.titrant_concentration,
+                         opposite_titrant=process.opposite_titrant,
+                         opposite_titrant_concentration=process.opposite_titrant_concentration,
+                         start_adjustment=process.start_adjustment, start_acid=process.start_acid,
+                         start_base=process.start_base),
             end_time=end,
             doses=(Dose(process.reagent, reagent_amount, 0.0, dosing, process.feed_volume),),
             note="planned process run",

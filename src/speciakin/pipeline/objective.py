@@ -56,10 +56,9 @@ from speciakin.simulation.compile import compile_model, compile_runs
 
 __all__ = ["FittedParameter", "ErrorModel", "CampaignObjective", "Predictions", "identifier"]
 
-#: Most points of a pH log handed to the kernel per run (explicit resampling).
-MAX_PH_LOG_POINTS = 240
-#: Most titrant-log points used per run (explicit resampling).
-MAX_TITRANT_POINTS = 40
+#: Logs are used in full unless ``[fit] log_thinning = { titrant = N, ph = M }``
+#: caps the readings per run (resampled on an even grid); the fit records how
+#: many readings of each log entered it (``describe()["log_readings"]``).
 #: A logged temperature that stays within this band [K] over a run is replaced
 #: by its mean (the probe's scatter is not a temperature programme; a constant
 #: temperature also keeps the kernel on its fast analytic-Jacobian path).
@@ -85,11 +84,12 @@ class Predictions:
     status: np.ndarray
 
 
-def _resample_titrant(times: np.ndarray, amounts: np.ndarray, end: float) -> tuple[np.ndarray, np.ndarray]:
+def _resample_titrant(times: np.ndarray, amounts: np.ndarray, end: float,
+                      limit: int | None = None) -> tuple[np.ndarray, np.ndarray]:
     keep = np.isfinite(times) & np.isfinite(amounts) & (times <= end)
     t, a = times[keep], amounts[keep]
-    if t.size > MAX_TITRANT_POINTS:
-        grid = np.linspace(t.min(), t.max(), MAX_TITRANT_POINTS)
+    if limit is not None and t.size > limit:
+        grid = np.linspace(t.min(), t.max(), limit)
         a = np.interp(grid, t, a)
         t = grid
     return t, a
@@ -124,6 +124,8 @@ class CampaignObjective:
         self.rtol, self.atol, self.parallel = float(rtol), float(atol), bool(parallel)
         self.compiled = compile_model(model)
         fit_settings = dict(model.extra.get("fit", {}) or {})
+        self.thinning = dict(fit_settings.get("log_thinning", {}) or {})
+        self.log_readings: list[dict[str, Any]] = []
         self.error_model = ErrorModel.from_settings(fit_settings.get("error_model"), campaign.basis)
         self._check_mapping()
         self.runs = [self._prepare_run(r) for r in campaign.runs]
@@ -151,8 +153,9 @@ class CampaignObjective:
             flat = TemperatureProfile((0.0,), (float(temps.mean()),))
             crun = replace(crun, recipe=replace(recipe, temperature=flat))
             recipe = crun.recipe
-        if recipe.ph.mode == "logged" and len(recipe.ph.log_times) > MAX_PH_LOG_POINTS:
-            grid = np.linspace(min(recipe.ph.log_times), max(recipe.ph.log_times), MAX_PH_LOG_POINTS)
+        limit = self.thinning.get("ph")
+        if recipe.ph.mode == "logged" and limit is not None and len(recipe.ph.log_times) > limit:
+            grid = np.linspace(min(recipe.ph.log_times), max(recipe.ph.log_times), limit)
             crun = crun.with_resampled_ph_log(grid)
         return crun
 
@@ -206,8 +209,16 @@ class CampaignObjective:
             h = crun.hplc
             end = float(crun.recipe.end_time)
             tt, ta = (np.empty(0), np.empty(0))
-            if crun.titrant is not None and crun.recipe.ph.mode == "held":
-                tt, ta = _resample_titrant(crun.titrant.time, crun.titrant.amount, end)
+            if crun.titrant is not None and crun.recipe.ph.controlled:
+                tt, ta = _resample_titrant(crun.titrant.time, crun.titrant.amount, end,
+                                           self.thinning.get("titrant"))
+            source = self.campaign.runs[ri]
+            self.log_readings.append({
+                "run": crun.name,
+                "titrant_readings": 0 if source.titrant is None else int(np.size(source.titrant.time)),
+                "titrant_used": int(tt.size),
+                "ph_log_readings": 0 if source.ph_log is None else int(np.size(source.ph_log.time)),
+                "ph_log_used": len(crun.recipe.ph.log_times) if crun.recipe.ph.mode == "logged" else 0})
             keep = h.time <= end
             times = np.unique(np.concatenate([[0.0], h.time[keep], tt]))
             times_per_run.append(times)
@@ -460,6 +471,6 @@ class CampaignObjective:
             "conversion": ("area% of each compound = 100 n_i RRF_i / sum_j n_j RRF_j over the compounds of "
                            "the sample" if self.campaign.basis in ("area_percent", "area", "mixed")
                            else "concentrations compared as n_i / V"),
-            "ph_log_points_max": MAX_PH_LOG_POINTS, "titrant_points_max": MAX_TITRANT_POINTS,
+            "log_thinning": dict(self.thinning) or None, "log_readings": list(self.log_readings),
             "flat_temperature_band_K": FLAT_TEMPERATURE_BAND,
         }

@@ -19,7 +19,7 @@ from speciakin.decision.draws import draws_from_covariance
 from speciakin.decision.outcomes import process_outcome_names, process_outcomes
 from speciakin.decision.runs import process_runs
 from speciakin.decision.design import compute_window
-from speciakin.simulation.api import simulate_batch
+from speciakin.simulation.api import PH_CONTROL_STATUS, ph_control_error, simulate_batch
 from speciakin.simulation.compile import compile_runs
 
 __all__ = ["process_outcome_function", "window_for_campaign", "window_draws", "POSTERIOR", "COVARIANCE"]
@@ -34,7 +34,9 @@ def process_outcome_function(objective, process) -> Callable:
     ``draws`` are fitted-parameter vectors of ``objective`` (run nuisance
     parameters, if any, do not apply to a planned process: pH offset 0,
     amount factor 1).  A failed simulation gives NaN outcomes (counted as
-    failing by the window).
+    failing by the window); a set point that the process's titrant (or start
+    adjustment) cannot reach or hold is an :class:`InputError` naming the
+    process file, the key and the set point.
     """
     model = objective.model
     compiled = objective.compiled
@@ -49,6 +51,12 @@ def process_outcome_function(objective, process) -> Callable:
         shape = (draws.shape[0], len(runs))
         res = simulate_batch(compiled, cruns, q, np.zeros(shape), np.ones(shape), objective.rtol,
                              objective.atol, objective.parallel)
+        bad = np.isin(res.status, PH_CONTROL_STATUS)
+        if bad.any():
+            i, j = np.argwhere(bad)[0]
+            key = "process.titrant" if res.status[i, j] == PH_CONTROL_STATUS[0] else "process.start_adjustment"
+            raise ph_control_error(compiled, runs[j], int(res.status[i, j]), float(res.failure_time[i, j]),
+                                   file=process.source or None, key=key)
         final = res.outputs[:, :, 1, :n_mol].copy()
         final[res.status != 0] = np.nan
         amounts = {name: final[:, :, i] for i, name in enumerate(names)}

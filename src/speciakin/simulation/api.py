@@ -12,7 +12,8 @@ from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
 from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, loglik_parallel, loglik_serial
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
-from speciakin.simulation.integrator_kernel import STATUS_TEXT, microstate_amounts
+from speciakin.simulation.integrator_kernel import (STATUS_NO_ADJUSTING_ION, STATUS_TEXT, STATUS_TITRANT_SIGN,
+                                                    microstate_amounts)
 from speciakin.simulation.cache_guard import refresh_kernel_cache
 from speciakin.simulation.results import SimulationResult
 
@@ -20,9 +21,15 @@ _cache = getattr(batch_serial, "_cache", None)
 if _cache is not None and getattr(_cache, "_cache_path", None):
     refresh_kernel_cache(_cache._cache_path)
 
-__all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times"]
+__all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
+           "ph_control_error", "PH_CONTROL_STATUS"]
 
 DEFAULT_OUTPUTS = 201
+#: Entries of the kernel's per-run info: failure time, steps, initial titrant,
+#: initial opposite titrant, start adjustment.
+N_INFO = 5
+#: Status codes that mean the pH control cannot reach or hold its pH (bad input, not a solver failure).
+PH_CONTROL_STATUS = (STATUS_TITRANT_SIGN, STATUS_NO_ADJUSTING_ION)
 
 
 def default_times(run: Run, count: int = DEFAULT_OUTPUTS) -> np.ndarray:
@@ -87,10 +94,12 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
     qv = _parameter_vector(compiled, q)
     out = np.full((1, 1, cruns.n_times_max, compiled.n_outputs), np.nan)
     status = np.zeros((1, 1), np.int64)
-    info = np.zeros((1, 1, 3))
+    info = np.zeros((1, 1, N_INFO))
     batch_serial(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :],
                  cruns.amount_factor[None, :], float(rtol), float(atol), out, status, info)
     code = int(status[0, 0])
+    if code in PH_CONTROL_STATUS:
+        raise ph_control_error(compiled, run, code, float(info[0, 0, 0]))
     if code != 0:
         raise SolverError(f"run '{run.name}': integration failed at t = {info[0, 0, 0]:.6g} s "
                           f"({info[0, 0, 0] / 60:.4g} min): {STATUS_TEXT.get(code, 'unknown failure')} "
@@ -109,11 +118,14 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
         run_name=run.name, times=t.copy(), species_names=list(compiled.species_names),
         molecule_names=list(compiled.species_names[:compiled.n_molecules]), amounts=amounts,
         concentrations=amounts / volume[:, None], volume=volume, ph=ph, titrant=o[:, nsp + 2].copy(),
-        initial_titrant=float(info[0, 0, 2]) if run.ph.mode == "held" else None,
+        initial_titrant=float(info[0, 0, 2]) if run.ph.controlled else None,
         temperature=temperature, ph_mode=run.ph.mode,
         microstate_names=list(compiled.microstate_names) if microstates else None,
         microstate_amounts=micro, moiety_names=list(compiled.moiety_names),
-        moiety_matrix=compiled.moiety_matrix.copy(), steps=int(info[0, 0, 1]))
+        moiety_matrix=compiled.moiety_matrix.copy(), steps=int(info[0, 0, 1]),
+        opposite_titrant=o[:, nsp + 4].copy(),
+        initial_opposite_titrant=float(info[0, 0, 3]) if run.ph.controlled else None,
+        start_adjustment=float(info[0, 0, 4]) if run.ph.controlled else None)
 
 
 @dataclass
@@ -124,8 +136,8 @@ class BatchResult:
     ----------
     outputs
         (n_sets, n_runs, n_times_max, n_outputs); columns as ``compiled.output_names``
-        (amounts [mol], volume [L], pH, titrant [mol], temperature [K]); rows past
-        a run's own output count are NaN.
+        (amounts [mol], volume [L], pH, titrant [mol], temperature [K], opposite
+        titrant [mol]); rows past a run's own output count are NaN.
     status
         (n_sets, n_runs) int: 0 ok, otherwise a code of ``STATUS_TEXT``.
     failure_time
@@ -133,7 +145,13 @@ class BatchResult:
     steps
         (n_sets, n_runs) accepted integration steps.
     initial_titrant
-        (n_sets, n_runs) [mol] titrant to reach the held pH at t = 0 (0 unless held).
+        (n_sets, n_runs) [mol] titrant that brought the start to the pH of t = 0
+        (start adjustment ``titrant``; 0 otherwise).
+    initial_opposite_titrant
+        (n_sets, n_runs) [mol] the same for the opposite titrant.
+    start_adjustment
+        (n_sets, n_runs) [mol equivalents, + base, - acid] added inside the
+        start volume (start adjustment ``computed``; 0 otherwise).
     """
 
     outputs: np.ndarray
@@ -141,6 +159,8 @@ class BatchResult:
     failure_time: np.ndarray
     steps: np.ndarray
     initial_titrant: np.ndarray
+    initial_opposite_titrant: np.ndarray
+    start_adjustment: np.ndarray
 
 
 def _batch_inputs(compiled, cruns, q_sets, ph_offset, amount_factor):
@@ -160,12 +180,39 @@ def _batch_inputs(compiled, cruns, q_sets, ph_offset, amount_factor):
 def _batch_buffers(compiled, compiled_runs, n_sets, n_runs):
     """Output, status and info arrays of one batch call."""
     out = np.full((n_sets, n_runs, compiled_runs.n_times_max, compiled.n_outputs), np.nan)
-    return out, np.zeros((n_sets, n_runs), np.int64), np.zeros((n_sets, n_runs, 3))
+    return out, np.zeros((n_sets, n_runs), np.int64), np.zeros((n_sets, n_runs, N_INFO))
 
 
 def _batch_result(out, status, info) -> BatchResult:
     failure = np.where(status != 0, info[..., 0], np.nan)
-    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy())
+    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy(),
+                       info[..., 3].copy(), info[..., 4].copy())
+
+
+def ph_control_error(compiled: CompiledModel, run: Run, code: int, time: float,
+                     file: str | None = None, key: str | None = None) -> InputError:
+    """The located error of a run whose pH the available titrant (or start
+    adjustment) cannot reach or hold (status 6 or 7 of ``STATUS_TEXT``).
+
+    ``file`` and ``key`` name where the pH control was written (default: the
+    model file and ``run.<name>.ph``).
+    """
+    ph = run.ph
+    where = f"set point pH {ph.setpoint:g}" if ph.mode == "held" else "the logged pH"
+    when = "at the start" if time <= 0 else f"at t = {time / 60:.4g} min"
+    if code == STATUS_TITRANT_SIGN:
+        side = "acid" if (ph.titrant and _ion_sign(compiled, ph.titrant) > 0) else "base"
+        expected = (f"an opposite titrant ({side}) with its concentration, or a start adjustment that does not "
+                    f"use the titrant")
+    else:
+        expected = "start_acid / start_base naming an ion of the model of the needed sign"
+    return InputError(f"run '{run.name}': {where} cannot be reached or held {when}: {STATUS_TEXT[code]}",
+                      Location(file=file or compiled.model.source or None, key=key or f"run.{run.name}.ph"),
+                      ph.setpoint if ph.mode == "held" else None, expected)
+
+
+def _ion_sign(compiled: CompiledModel, name: str) -> float:
+    return float(np.sign(compiled.arrays[2][compiled.species_index(name)]))
 
 
 def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,

@@ -9,7 +9,8 @@ shapes so that one compiled call can simulate any (parameter set, run) pair.
 
 The parameter vector ``q`` has the order of ``Model.quantities()``: for each
 molecule, for each site: pKa, enthalpy; then its interactions' W; then for
-each step: log10 k, activation energy.
+each step: log10 k, activation energy; then the medium's pKw, when the model
+sets one (the last entry of the model tuple is its index, -1 for water).
 """
 
 from __future__ import annotations
@@ -25,6 +26,7 @@ from speciakin.chemistry.model import (
     PSEUDO_REACTANTS,
     SITE_KINDS,
     SITE_STATES,
+    START_ADJUSTMENTS,
     Model,
     Run,
 )
@@ -36,6 +38,8 @@ __all__ = ["CompiledModel", "CompiledRuns", "compile_model", "compile_runs", "MA
 MAX_SITES = 12
 _REACTANT_KIND = {"species": 0, "water": 1, "hydroxide": 2}
 _MODE_CODE = {mode: i for i, mode in enumerate(PH_MODES)}  # held 0, logged 1, free 2
+#: Start adjustment codes of the kernel (``integrator_kernel.adjust_start``).
+START_CODES = {"computed": 0, "given": 1, "titrant": 2}
 
 
 @dataclass
@@ -56,7 +60,7 @@ class CompiledModel:
         q0, the nominal values [internal units; rate constants as log10].
     output_names
         Names of the output columns: ``amount:<species>`` [mol], ``volume`` [L],
-        ``pH``, ``titrant`` [mol], ``temperature`` [K].
+        ``pH``, ``titrant`` [mol], ``temperature`` [K], ``opposite_titrant`` [mol].
     microstate_names
         ``molecule[protonated sites]`` for every microstate, in kernel order.
     microstate_molecule
@@ -82,7 +86,7 @@ class CompiledModel:
 
     @property
     def n_outputs(self) -> int:
-        return self.n_species + 4
+        return self.n_species + 5
 
     def species_index(self, name: str) -> int:
         return self.species_names.index(name)
@@ -159,8 +163,11 @@ def compile_model(model: Model) -> CompiledModel:
     micro_charge, micro_protons, micro_names, micro_mol = [], [], [], []
     names: list[str] = []
     nominal: list[float] = []
+    shared: dict[int, tuple[str, str]] = {}     # index -> (target name, key) of quantities declared same_as
 
     def add_quantity(quantity, fallback, key):
+        if getattr(quantity, "same_as", None) is not None:
+            shared[len(names)] = (quantity.same_as, key)
         if not _finite(quantity.value):
             c.error("value is not a finite number", Location(file=src, key=key), quantity.value, "a finite number")
         names.append(_default_name(quantity.name, fallback))
@@ -283,6 +290,20 @@ def compile_model(model: Model) -> CompiledModel:
         prod_start.append(len(prod_species))
         step_logk_q.append(add_quantity(st.log10_k, f"log10k.{st.name}", key + ".log10_k"))
         step_ea_q.append(add_quantity(st.activation_energy, f"Ea.{st.name}", key + ".activation_energy"))
+    medium_q = -1
+    if model.pkw is not None:
+        medium_q = add_quantity(model.pkw, "pKw.medium", "medium.pkw")
+    # shared quantities: the kernel reads the target's entry of q (fitted or not)
+    target_of = {}
+    for index, (target, key) in shared.items():
+        if target not in names or shared.get(names.index(target)) is not None:
+            c.error("shared quantity names no quantity with its own value", Location(file=src, key=key), target,
+                    "the name of another quantity of the model")
+        else:
+            target_of[index] = names.index(target)
+    for index_list in (site_pka_q, site_dh_q, inter_q, step_logk_q, step_ea_q):
+        for k, index in enumerate(index_list):
+            index_list[k] = target_of.get(index, index)
     for ion in model.ions:
         if not isinstance(ion.charge, (int, np.integer)):
             c.error("ion charge must be an integer", Location(file=src, key=f"ion.{ion.name}.charge"), ion.charge)
@@ -300,11 +321,81 @@ def compile_model(model: Model) -> CompiledModel:
         i8(site_pka_q), i8(site_dh_q), i8(inter_a), i8(inter_b), i8(inter_q), i8(mol_inter_start),
         f8(micro_charge), f8(micro_protons), i8(step_logk_q), i8(step_ea_q), i8(react_start), i8(react_kind),
         i8(react_species), f8(react_coef), i8(react_mask), i8(react_value), i8(prod_start), i8(prod_species),
-        f8(prod_coef), float(model.reference_temperature), f8(substrate_mask),
+        f8(prod_coef), float(model.reference_temperature), f8(substrate_mask), int(medium_q),
     )
-    outputs = [f"amount:{s}" for s in species] + ["volume", "pH", "titrant", "temperature"]
+    outputs = [f"amount:{s}" for s in species] + ["volume", "pH", "titrant", "temperature", "opposite_titrant"]
     return CompiledModel(model, species, len(mol_names), len(species), names, f8(nominal), outputs,
                          micro_names, i8(micro_mol), moiety_names, moiety_matrix, arrays)
+
+
+def _ion_charge(compiled: CompiledModel, name: str | None) -> float | None:
+    """Charge of ion ``name`` of the model (None when it is not an ion)."""
+    ions = compiled.species_names[compiled.n_molecules:]
+    if name not in ions:
+        return None
+    return float(compiled.arrays[2][compiled.species_index(name)])
+
+
+def _titrant_problems(compiled: CompiledModel, ph, pkey: str, c: ProblemCollector) -> None:
+    """Titrant, opposite titrant and start adjustment of a held or logged run."""
+    src = compiled.model.source or None
+    ions = compiled.species_names[compiled.n_molecules:]
+    allowed = "one of " + (", ".join(ions) or "(the model has no ions)")
+    signs = {}
+    for key, name, conc in (("titrant", ph.titrant, ph.titrant_concentration),
+                            ("opposite_titrant", ph.opposite_titrant, ph.opposite_titrant_concentration)):
+        if name is None:
+            if conc is not None:
+                c.error(f"{key}_concentration given without {key}", Location(file=src, key=f"{pkey}.{key}"),
+                        None, f"{key} = an ion name")
+            continue
+        charge = _ion_charge(compiled, name)
+        if charge is None:
+            c.error(f"the {key.replace('_', ' ')} ion is not declared in the model",
+                    Location(file=src, key=f"{pkey}.{key}"), name, allowed)
+        elif charge == 0:
+            c.error(f"{key.replace('_', ' ')} ion has no charge", Location(file=src, key=f"{pkey}.{key}"), name,
+                    "a charged ion")
+        else:
+            signs[key] = math.copysign(1.0, charge)
+        if not (conc is not None and _finite(conc) and conc > 0):
+            side = "acid" if charge is not None and charge < 0 else "base" if charge else "titrant"
+            c.error(f"the {side} titrant '{name}' needs a positive concentration",
+                    Location(file=src, key=f"{pkey}.{key}_concentration"), conc, "a concentration > 0 mol/L")
+    if ph.opposite_titrant is not None and ph.titrant is None:
+        c.error("an opposite titrant needs a titrant", Location(file=src, key=f"{pkey}.titrant"), None,
+                "titrant = an ion name")
+    if len(signs) == 2 and signs["titrant"] == signs["opposite_titrant"]:
+        c.error("the opposite titrant must carry the opposite charge of the titrant",
+                Location(file=src, key=f"{pkey}.opposite_titrant"), ph.opposite_titrant,
+                "an ion whose charge has the other sign")
+    if ph.start_adjustment not in START_ADJUSTMENTS:
+        c.error("unknown start adjustment", Location(file=src, key=f"{pkey}.start_adjustment"),
+                ph.start_adjustment, "one of " + ", ".join(START_ADJUSTMENTS))
+    for key, name, sign in (("start_acid", ph.start_acid, -1.0), ("start_base", ph.start_base, 1.0)):
+        if name is None:
+            continue
+        charge = _ion_charge(compiled, name)
+        if charge is None or charge * sign <= 0:
+            c.error(f"{key.replace('_', ' ')} must be an ion of the model with a "
+                    f"{'negative' if sign < 0 else 'positive'} charge", Location(file=src, key=f"{pkey}.{key}"),
+                    name, "one of " + (", ".join(i for i in ions if (_ion_charge(compiled, i) or 0) * sign > 0)
+                                       or "(none in the model)"))
+
+
+def _adjusting_ion(compiled: CompiledModel, ph, sign: float) -> int:
+    """Index of the ion a computed start adjustment adds on side ``sign``
+    (-1 acid, +1 base): the named one, else the titrant of that sign, else the
+    model's only ion of that sign; -1 when there is none."""
+    named = ph.start_acid if sign < 0 else ph.start_base
+    if named is not None:
+        return compiled.species_index(named)
+    for name in (ph.titrant, ph.opposite_titrant):
+        charge = _ion_charge(compiled, name)
+        if charge is not None and charge * sign > 0:
+            return compiled.species_index(name)
+    ions = [i for i in compiled.species_names[compiled.n_molecules:] if (_ion_charge(compiled, i) or 0) * sign > 0]
+    return compiled.species_index(ions[0]) if len(ions) == 1 else -1
 
 
 def _run_problems(compiled: CompiledModel, run: Run, times: np.ndarray, c: ProblemCollector) -> None:
@@ -350,19 +441,12 @@ def _run_problems(compiled: CompiledModel, run: Run, times: np.ndarray, c: Probl
     elif ph.mode == "held":
         if not (ph.setpoint is not None and _finite(ph.setpoint)):
             c.error("held pH needs a setpoint", Location(file=src, key=pkey + ".setpoint"), ph.setpoint, "a pH value")
-        if ph.titrant not in compiled.species_names[compiled.n_molecules:]:
+        if ph.titrant is None:
             c.error("held pH needs a titrant ion of the model", Location(file=src, key=pkey + ".titrant"),
                     ph.titrant, "one of " + (", ".join(species[compiled.n_molecules:]) or "(the model has no ions)"))
-        else:
-            charge = compiled.arrays[2][compiled.species_index(ph.titrant)]
-            if charge == 0:
-                c.error("titrant ion has no charge", Location(file=src, key=pkey + ".titrant"), ph.titrant,
-                        "a charged ion")
-        if not (ph.titrant_concentration is not None and _finite(ph.titrant_concentration)
-                and ph.titrant_concentration > 0):
-            c.error("held pH needs a positive titrant concentration",
-                    Location(file=src, key=pkey + ".titrant_concentration"), ph.titrant_concentration, "> 0 mol/L")
-    elif ph.mode == "logged":
+    if ph.mode in ("held", "logged"):
+        _titrant_problems(compiled, ph, pkey, c)
+    if ph.mode == "logged":
         lt, lv = np.asarray(ph.log_times, float), np.asarray(ph.log_ph, float)
         if lt.size == 0 or lt.size != lv.size:
             c.error("logged pH needs equally many times and pH values", Location(file=src, key=pkey + ".log"),
@@ -418,7 +502,7 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
 
     n_runs = len(runs)
     nsp = compiled.n_species
-    n_state = nsp + 2
+    n_state = nsp + 3
     sidx = {s: i for i, s in enumerate(compiled.species_names)}
     max_log = max([len(r.ph.log_times) for r in runs] + [1])
     max_temp = max([len(r.temperature.times) for r in runs] + [1])
@@ -470,12 +554,26 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
     out_t = np.zeros((n_runs, max_out))
     n_out = np.zeros(n_runs, np.int64)
     scale = np.zeros((n_runs, n_state))
+    second = np.full(n_runs, -1, np.int64)
+    second_conc = np.ones(n_runs)
+    controlled = np.zeros(n_runs, np.int64)
+    start = np.zeros(n_runs, np.int64)
+    acid = np.full(n_runs, -1, np.int64)
+    base = np.full(n_runs, -1, np.int64)
     for i, r in enumerate(runs):
         mode[i] = _MODE_CODE[r.ph.mode]
         if r.ph.mode == "held":
             setpoint[i] = float(r.ph.setpoint)
+        if r.ph.controlled:
+            controlled[i] = 1
             titrant[i] = sidx[r.ph.titrant]
             titrant_conc[i] = float(r.ph.titrant_concentration)
+            if r.ph.opposite_titrant is not None:
+                second[i] = sidx[r.ph.opposite_titrant]
+                second_conc[i] = float(r.ph.opposite_titrant_concentration)
+            start[i] = START_CODES[r.ph.start_adjustment]
+            acid[i] = _adjusting_ion(compiled, r.ph, -1.0)
+            base[i] = _adjusting_ion(compiled, r.ph, 1.0)
         if r.ph.mode == "logged":
             log_n[i] = len(r.ph.log_times)
             log_t[i, :log_n[i]] = r.ph.log_times
@@ -503,8 +601,10 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
         scale[i, :nsp] = max(total, 1e-12) * 1e-6
         scale[i, nsp] = total_volume * 1e-6
         scale[i, nsp + 1] = max(total, 1e-12) * 1e-6
+        scale[i, nsp + 2] = max(total, 1e-12) * 1e-6
     arrays = (mode, setpoint, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n, y0,
               feed_t0, feed_t1, feed_species, feed_amount, feed_volume, n_feed, ev_t, ev_kind, ev_species,
-              ev_amount, ev_volume, n_ev, bp, n_bp, out_t, n_out, scale)
+              ev_amount, ev_volume, n_ev, bp, n_bp, out_t, n_out, scale, second, second_conc, controlled, start,
+              acid, base)
     return CompiledRuns(runs, names, times, max_out, np.array([float(r.ph_offset) for r in runs]),
                         np.array([float(r.amount_factor) for r in runs]), arrays)

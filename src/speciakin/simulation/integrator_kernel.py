@@ -35,8 +35,8 @@ from numba import njit
 
 from speciakin.simulation.rhs_kernel import (
     MODE_FREE,
+    MODE_LOGGED,
     analytic_jacobian,
-    MODE_HELD,
     all_populations,
     charge_imbalance,
     interpolate,
@@ -47,6 +47,7 @@ from speciakin.simulation.rhs_kernel import (
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
@@ -58,6 +59,20 @@ STATUS_STEP_UNDERFLOW = 2
 STATUS_NOT_FINITE = 3
 STATUS_SINGULAR = 4
 STATUS_VOLUME = 5
+STATUS_TITRANT_SIGN = 6
+STATUS_NO_ADJUSTING_ION = 7
+
+#: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
+#: consumed so far), relative to the run's total amount (initial amounts + doses):
+#: the water of a feed at the set point, for example, takes a trace of the
+#: opposite reagent.
+TITRANT_SIGN_RTOL = 1e-4
+#: Control band of a one-sided pH-stat [pH units] (common practice: a pH-stat holds
+#: its set point within a few hundredths of a unit).  A withdrawal smaller than the
+#: start solution's buffer capacity times this band is tolerated: a real controller
+#: would stop dosing and the pH would drift by less than the band, which the model
+#: neglects (it keeps the set point).
+CONTROL_BAND = 0.05
 
 #: Human-readable meaning of each status code.
 STATUS_TEXT = {
@@ -67,6 +82,10 @@ STATUS_TEXT = {
     STATUS_NOT_FINITE: "the right-hand side is not finite (charge balance has no root or a value overflowed)",
     STATUS_SINGULAR: "singular iteration matrix",
     STATUS_VOLUME: "the volume became zero or negative (withdrawals exceed the liquid present)",
+    STATUS_TITRANT_SIGN: "the titrant cannot hold the pH: it would have to be withdrawn (the opposite "
+                         "reagent is needed: give an opposite titrant, or adjust the start solution)",
+    STATUS_NO_ADJUSTING_ION: "the start solution needs acid or base to reach the pH, and no ion of that "
+                             "sign is named for the start adjustment",
 }
 
 _GAMMA = GAMMA
@@ -192,11 +211,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                         ph = rhs(tout, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
                         if math.isnan(ph):
                             return 3, h, i_out
-                        for i in range(n - 1):
-                            out[i_out, i] = ytmp[i]
-                        out[i_out, n - 1] = ph
-                        out[i_out, n] = ytmp[n - 1]
-                        out[i_out, n + 1] = interpolate(temp_t, temp_v, temp_n, tout)
+                        write_output(out, i_out, ytmp, ph, interpolate(temp_t, temp_v, temp_n, tout))
                         i_out += 1
                 for i in range(n):
                     y[i] = ynew[i]
@@ -213,36 +228,96 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
     return 0, h, i_out
 
 
+@leaf_kernel
+def write_output(out, i_out, y, ph, temperature):
+    """Output row ``i_out``: amounts, volume, pH, titrant consumed, temperature,
+    opposite titrant consumed (state: amounts, volume, titrant, opposite titrant)."""
+    nsp = y.shape[0] - 3
+    for j in range(nsp + 1):
+        out[i_out, j] = y[j]
+    out[i_out, nsp + 1] = ph
+    out[i_out, nsp + 2] = y[nsp + 1]
+    out[i_out, nsp + 3] = temperature
+    out[i_out, nsp + 4] = y[nsp + 2]
+
+
+@leaf_kernel
+def adjust_start(y, model, ph, ws, start, titrant, titrant_conc, second, second_conc, acid, base, tol, info):
+    """Bring the start mixture to ``ph`` before t = 0; returns a status code.
+
+    ``start`` 0: acid (ion ``acid``) or base (ion ``base``) inside the start
+    volume, amount from the charge balance at ``ph`` (recorded in ``info[4]``
+    as equivalents, + base, - acid); 1: nothing added (given in the initial
+    amounts); 2: the titrant, or the opposite titrant, with its volume
+    (``info[2]``, ``info[3]`` [mol]).  Populations in ``ws`` must be at ``ph``.
+    """
+    n_species = model[1]
+    species_charge = model[2]
+    imbalance = charge_imbalance(y, model, ph, ws)
+    if start == 1 or abs(imbalance) <= tol:
+        return 0
+    if start == 0:
+        ion = acid if imbalance > 0.0 else base
+        if ion < 0:
+            return STATUS_NO_ADJUSTING_ION
+        delta = -imbalance / species_charge[ion]
+        y[ion] += delta
+        info[4] = -imbalance
+        return 0
+    excess = exp10(-ph) - exp10(ph - ws[7][1])
+    delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
+    if delta >= 0.0:
+        y[titrant] += delta
+        y[n_species] += delta / titrant_conc
+        info[2] = delta
+        return 0
+    if second < 0:
+        return STATUS_TITRANT_SIGN
+    delta = -imbalance / (species_charge[second] + excess / second_conc)
+    y[second] += delta
+    y[n_species] += delta / second_conc
+    info[3] = delta
+    return 0
+
+
 @njit(cache=True)
 def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
 
     ``out[i, :]`` = amounts of every species [mol], volume [L], pH, titrant
-    consumed [mol], temperature [K] at output time i (state before instant
-    events at that time).  ``info`` = [failure time [s], accepted steps,
-    initial titrant [mol]].  Returns the status code.
+    consumed [mol], temperature [K], opposite titrant consumed [mol] at
+    output time i (state before instant events at that time).  ``info`` =
+    [failure time [s], accepted steps, initial titrant [mol], initial
+    opposite titrant [mol], start adjustment inside the volume [equivalents,
+    + base]].  Returns the status code.
     """
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode_a, setpoint_a, titrant_a, titrant_conc_a, log_t_a, log_v_a, log_n_a, temp_t_a, temp_v_a,
      temp_n_a, y0_a, feed_t0_a, feed_t1_a, feed_species_a, feed_amount_a, feed_volume_a, n_feed_a,
      ev_t_a, ev_kind_a, ev_species_a, ev_amount_a, ev_volume_a, n_ev_a, bp_a, n_bp_a, out_t_a,
-     n_out_a, scale_a) = runs
+     n_out_a, scale_a, second_a, second_conc_a, controlled_a, start_a, acid_a, base_a) = runs
     n_sites = site_pka_q.shape[0]
     n_steps = step_logk_q.shape[0]
-    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q])
+    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
+    pkw_shift = q[medium_q] - pkw(t_ref) if medium_q >= 0 else 0.0
+    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q], pkw_shift)
     mode = mode_a[r]
     titrant = titrant_a[r]
     titrant_conc = titrant_conc_a[r]
     temp_n = temp_n_a[r]
     log_n = log_n_a[r]
+    second = second_a[r]
+    controlled = controlled_a[r]
     ctx = (mode, setpoint_a[r], ph_offset, max(titrant, 0), titrant_conc, log_t_a[r], log_v_a[r],
-           max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n)
+           max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n, second, second_conc_a[r], controlled)
     ws = make_workspace(n_species, n_sites, micro_charge.shape[0], n_mol, n_steps)
-    sw = make_smooth_workspace(model, n_species + 2)
-    n_state = n_species + 2
+    n_state = n_species + 3
+    sw = make_smooth_workspace(model, n_state)
+    cache = ws[7]
+    cache[5] = 0.0
     y = y0_a[r].copy()
     for j in range(n_species):
         y[j] *= 1.0 + (amount_factor - 1.0) * substrate_mask[j]
@@ -251,23 +326,31 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     info[0] = math.nan
     info[1] = 0.0
     info[2] = 0.0
+    info[3] = 0.0
+    info[4] = 0.0
+    # a one-sided titrant withdrawn by more than this: the pH cannot be held
+    sign_tol = scale_a[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
+    step_tol = sign_tol if (controlled != 0 and second < 0) else -1.0
+    peak = np.zeros(1)
     counters = np.zeros(1, dtype=np.int64)
     zero_feed = np.zeros(n_species)
-    # held mode: the initial mixture is brought to the held pH with titrant
-    if mode == MODE_HELD:
+    # controlled runs: the start mixture is brought to the pH of t = 0 (see adjust_start)
+    if controlled != 0:
         ph0 = rhs(0.0, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
         if math.isnan(ph0):
             info[0] = 0.0
             return 3
-        imbalance = charge_imbalance(y, model, ph0, ws)
-        excess = exp10(-ph0) - exp10(ph0 - ws[7][1])
-        delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
-        y[titrant] += delta
-        y[n_species] += delta / titrant_conc
-        info[2] = delta
-        if not (y[titrant] >= 0.0):
-            # more counter-titrant than available is still reported; amounts may be negative
-            pass
+        status = adjust_start(y, model, ph0, ws, start_a[r], titrant, titrant_conc, second, second_conc_a[r],
+                              acid_a[r], base_a[r], sign_tol * 1e-3, info)
+        if status != 0:
+            info[0] = 0.0
+            return status
+        if step_tol > 0.0:
+            # buffer capacity of the start solution [mol per pH unit]: ln10 (sum n var(N) + V ([H+] + [OH-]))
+            capacity = y[n_species] * (exp10(-ph0) + exp10(ph0 - ws[7][1]))
+            for m in range(n_mol):
+                capacity += y[m] * ws[4][m]
+            step_tol = max(step_tol, math.log(10.0) * capacity * CONTROL_BAND)
     n_out = n_out_a[r]
     n_ev = n_ev_a[r]
     n_bp = n_bp_a[r]
@@ -286,11 +369,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             if math.isnan(ph):
                 info[0] = t
                 return 3
-            for j in range(n_state - 1):
-                out[i_out, j] = y[j]
-            out[i_out, n_state - 1] = ph
-            out[i_out, n_state] = y[n_species + 1]
-            out[i_out, n_state + 1] = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
+            write_output(out, i_out, y, ph, interpolate(temp_t_a[r], temp_v_a[r], temp_n, t))
             i_out += 1
         if i_out >= n_out:
             break
@@ -326,15 +405,18 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         temp_here = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
         temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_end) - temp_here) / (t_end - t)
         nonauto = temp_slope != 0.0
-        if mode == 1:
-            if interpolate(log_t_a[r], log_v_a[r], log_n, t_end) != interpolate(log_t_a[r], log_v_a[r], log_n, t):
+        if mode == MODE_LOGGED:
+            ph_rise = interpolate(log_t_a[r], log_v_a[r], log_n, t_end) - interpolate(log_t_a[r], log_v_a[r], log_n, t)
+            if ph_rise != 0.0:
                 nonauto = True
+            # the logged pH is linear inside the segment: its slope drives the titrant of a controlled run
+            cache[5] = ph_rise / (t_end - t)
         t_next = t_end
         if mode != MODE_FREE:
             # the acid-base state depends on time only: mass-action path (segment_kernel)
             status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, sw, feed_rate,
                                                 feed_volume_rate, temp_slope, nonauto, rtol, atol, out, out_t, i_out,
-                                                n_out, counters)
+                                                n_out, counters, step_tol, peak)
         else:
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
@@ -359,7 +441,7 @@ def microstate_amounts(model, q, ph, temperature, amounts, out):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     from_rhs = make_workspace(n_species, site_pka_q.shape[0], micro_charge.shape[0], n_mol,
                               step_logk_q.shape[0])
     pka = from_rhs[0]

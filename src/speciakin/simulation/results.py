@@ -32,10 +32,21 @@ class SimulationResult:
     ph
         (n_t,) true pH (setpoint or log plus the run's pH offset, or the charge-balance pH).
     titrant
-        (n_t,) titrant consumed since t = 0 [mol] (zero unless the pH is held).
+        (n_t,) titrant consumed since t = 0 [mol] (zero unless the run is
+        controlled: held pH, or logged pH with a titrant).
     initial_titrant
-        Titrant needed to bring the initial mixture to the held pH [mol]
-        (already in the ion amounts and volume at t = 0); None unless held.
+        Titrant that brought the start mixture to the pH of t = 0 [mol]
+        (start adjustment ``titrant``; already in the ion amounts and volume
+        at t = 0); None unless the run is controlled.
+    opposite_titrant
+        (n_t,) opposite titrant consumed since t = 0 [mol] (two-sided pH-stat;
+        zero otherwise).
+    initial_opposite_titrant
+        Opposite titrant added at t = 0 [mol]; None unless controlled.
+    start_adjustment
+        Acid or base added inside the start volume before t = 0 (start
+        adjustment ``computed``) [equivalents of base, mol; negative = acid];
+        None unless controlled.
     temperature
         (n_t,) [K].
     ph_mode
@@ -65,6 +76,9 @@ class SimulationResult:
     moiety_names: list[str]
     moiety_matrix: np.ndarray
     steps: int
+    opposite_titrant: np.ndarray | None = None
+    initial_opposite_titrant: float | None = None
+    start_adjustment: float | None = None
 
     def amount(self, species: str) -> np.ndarray:
         """Amount of one species against time [mol]."""
@@ -119,6 +133,8 @@ class SimulationResult:
         cols["volume [L]"] = self.volume
         cols["pH"] = self.ph
         cols["titrant [mol]"] = self.titrant
+        if self.opposite_titrant is not None and np.any(self.opposite_titrant != 0):
+            cols["opposite titrant [mol]"] = self.opposite_titrant
         cols["temperature [K]"] = self.temperature
         if self.microstate_amounts is not None:
             for j, name in enumerate(self.microstate_names):
@@ -136,8 +152,15 @@ class SimulationResult:
         for j, name in enumerate(self.species_names):
             lines.append(f"  {name}: {self.amounts[-1, j]:.6g} mol ({self.concentrations[-1, j]:.6g} mol/L)")
         lines += ["", "Titrant", f"  consumed: {self.titrant[-1]:.6g} mol"]
+        if self.opposite_titrant is not None and np.any(self.opposite_titrant != 0):
+            lines.append(f"  opposite titrant consumed: {self.opposite_titrant[-1]:.6g} mol")
         if self.initial_titrant is not None:
-            lines.append(f"  to reach the held pH at the start: {self.initial_titrant:.6g} mol")
+            lines.append(f"  titrant to reach the pH at the start: {self.initial_titrant:.6g} mol")
+        if self.initial_opposite_titrant:
+            lines.append(f"  opposite titrant to reach the pH at the start: {self.initial_opposite_titrant:.6g} mol")
+        if self.start_adjustment:
+            side = "base" if self.start_adjustment > 0 else "acid"
+            lines.append(f"  {side} inside the start volume: {abs(self.start_adjustment):.6g} mol")
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
@@ -153,6 +176,9 @@ class SimulationResult:
             "ph": self.ph.tolist(),
             "titrant_mol": self.titrant.tolist(),
             "initial_titrant_mol": self.initial_titrant,
+            "opposite_titrant_mol": None if self.opposite_titrant is None else self.opposite_titrant.tolist(),
+            "initial_opposite_titrant_mol": self.initial_opposite_titrant,
+            "start_adjustment_equivalents_mol": self.start_adjustment,
             "temperature_K": self.temperature.tolist(),
             "ph_mode": self.ph_mode,
             "microstate_names": self.microstate_names,

@@ -1,7 +1,8 @@
 """Compiled right-hand side of the speciation-kinetics equations.
 
-State vector ``y`` (length n_species + 2): amounts [mol] of every molecule,
-then every strong ion, then the volume [L], then the titrant consumed [mol].
+State vector ``y`` (length n_species + 3): amounts [mol] of every molecule,
+then every strong ion, then the volume [L], then the titrant consumed [mol],
+then the opposite titrant consumed [mol] (two-sided pH-stat).
 Acid-base equilibria are algebraic: at every call the pH is fixed (held),
 read from the log (logged) or solved from the charge balance (free), and
 the microstate populations follow from it.
@@ -10,10 +11,13 @@ Rate of step s [mol/(L*s)]: r_s = k_s(T) * prod_reactants factor, with
 factor = c_species * (fraction of its microstates meeting every requirement),
 1 for water, [OH-] = Kw/[H+] for hydroxide; d n/dt = V * sum_s nu * r_s + feeds.
 
-Held pH: the titrant rate q [mol/s] keeps the charge balance
-sum_m n_m zbar_m + sum_ions z n + V([H+] - [OH-]) = 0 true at the held pH;
-its time derivative is linear in q and is solved for q, including the drift of
-zbar and Kw with temperature.
+Held pH, and logged pH with a titrant ("controlled" runs): the titrant rate
+q [mol/s] keeps the charge balance sum_m n_m zbar_m + sum_ions z n +
+V([H+] - [OH-]) = 0 true at the imposed pH; its time derivative is linear in
+q and is solved for q, including the drift of zbar and Kw with temperature
+and, for a logged pH, with the pH itself.  Titrant volumes only add: when the
+titrant would have to be withdrawn (q < 0) the opposite titrant, when the run
+has one, is dosed instead at its own concentration (two-sided pH-stat).
 
 References
 ----------
@@ -77,10 +81,12 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     cache[2] = math.nan  # pH of the cached populations
     cache[3] = 7.0       # last pH (warm start of the charge balance)
     cache[4] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
+    cache[5] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
+    cache[6] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
             np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
-            np.empty(n_species + 2), np.zeros(n_species + 2))
+            np.empty(n_species + 3), np.zeros(n_species + 3))
 
 
 @leaf_kernel
@@ -149,16 +155,17 @@ def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_m
 @leaf_kernel
 def set_temperature(temperature, model, par, ws):
     """Bring the temperature-dependent values in ``ws`` to ``temperature`` [K]:
-    pKw, site pKa (van 't Hoff) and rate constants (Arrhenius [1]_)."""
+    pKw (water's, shifted by the medium's ``par[5]``), site pKa (van 't Hoff)
+    and rate constants (Arrhenius [1]_)."""
     t_ref = model[24]
-    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
+    (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
     pka = ws[0]
     k_of_t = ws[1]
     cache = ws[7]
     if temperature == cache[0]:
         return
     cache[0] = temperature
-    cache[1] = pkw(temperature)
+    cache[1] = pkw(temperature) + pkw_shift
     for i in range(pka_ref.shape[0]):
         pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
     for s in range(log10_k.shape[0]):
@@ -178,8 +185,9 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
+     second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     temperature = interpolate(temp_t, temp_v, temp_n, t)
     set_temperature(temperature, model, par, ws)
@@ -192,12 +200,13 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
                         mol_inter_start, n_mol, ph, pops)
         mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
         cache[2] = ph
-    if mode == MODE_HELD and temperature_slope != 0.0:
+    if controlled and temperature_slope != 0.0:
         mean_charge_temperature_slopes(pops, par[1], temperature, mol_site_start, mol_micro_start,
                                        micro_charge, n_mol, pka2, dzdt)
         dtemp = 1e-3
         # d[OH-]/dT at fixed pH [mol/(L*K)]
-        cache[4] = (exp10(ph - pkw(temperature + dtemp)) - exp10(ph - pkw(temperature - dtemp))) / (
+        shift = par[5]
+        cache[4] = (exp10(ph - pkw(temperature + dtemp) - shift) - exp10(ph - pkw(temperature - dtemp) - shift)) / (
             2.0 * dtemp)
     return ph
 
@@ -212,9 +221,10 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (pka_ref, enthalpy, inter_w, log10_k, ea) = par
-    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
+    (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
+     second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n_steps = log10_k.shape[0]
     volume = y[n_species]
@@ -261,7 +271,8 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
             dy[prod_species[k]] += prod_coef[k] * vr
     dy[n_species] = feed_volume_rate
     dy[n_species + 1] = 0.0
-    if mode == MODE_HELD:
+    dy[n_species + 2] = 0.0
+    if controlled:
         excess = hydrogen - hydroxide
         num = excess * dy[n_species]
         for m in range(n_mol):
@@ -275,11 +286,24 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
             for m in range(n_mol):
                 dcharge += y[m] * dzdt[m]
             num += temperature_slope * dcharge
-        denominator = species_charge[titrant] + excess / titrant_conc
-        q = -num / denominator
-        dy[titrant] += q
-        dy[n_species] += q / titrant_conc
-        dy[n_species + 1] = q
+        if mode == MODE_LOGGED and cache[5] != 0.0:
+            # d/dt through the logged pH: dzbar/dpH = -ln10 var(N), d([H+] - [OH-])/dpH = -ln10 ([H+] + [OH-])
+            dcharge = volume * (hydrogen + hydroxide)
+            for m in range(n_mol):
+                dcharge += y[m] * variance[m]
+            num -= cache[5] * LN10 * dcharge
+        q = -num / (species_charge[titrant] + excess / titrant_conc)
+        cache[6] = 0.0
+        if q < 0.0 and second >= 0:
+            q = -num / (species_charge[second] + excess / second_conc)
+            dy[second] += q
+            dy[n_species] += q / second_conc
+            dy[n_species + 2] = q
+            cache[6] = 1.0
+        else:
+            dy[titrant] += q
+            dy[n_species] += q / titrant_conc
+            dy[n_species + 1] = q
     return ph
 
 
@@ -309,7 +333,8 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     the derivatives in y are exact.  Under a temperature ramp the held-pH
     titrant rate has the extra term slope * (sum n_m dzbar_m/dT - V d[OH-]/dT),
     linear in the amounts and the volume (dzbar/dT and d[OH-]/dT left in ``ws``
-    by :func:`rhs`).  Column of the titrant-consumed state is zero.
+    by :func:`rhs`); a logged pH with a titrant adds the same with d pH/dt.
+    Columns of the titrant-consumed states are zero.
 
     Free pH: the pH itself depends on the state through the charge balance
     g(pH, y) = 0, so J = J_fixed pH + (df/dpH) (dpH/dy) with
@@ -320,8 +345,9 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
-    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n) = ctx
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
+    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
+     second, second_conc, controlled) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
@@ -367,9 +393,18 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
                     jac[react_species[k], j] -= react_coef[k] * d
             for k in range(prod_start[s], prod_start[s + 1]):
                 jac[prod_species[k], j] += prod_coef[k] * d
-    if mode == 0:
+    if controlled:
         excess = exp10(-ph) - hydroxide
-        denominator = species_charge[titrant] + excess / titrant_conc
+        # the branch of the last rhs call at this state: titrant or opposite titrant
+        dosed = titrant
+        conc_dosed = titrant_conc
+        row = n_species + 1
+        if cache[6] != 0.0:
+            dosed = second
+            conc_dosed = second_conc
+            row = n_species + 2
+        denominator = species_charge[dosed] + excess / conc_dosed
+        ph_slope = cache[5] if mode == MODE_LOGGED else 0.0
         for j in range(n_species + 1):
             num = 0.0
             for i in range(n_mol):
@@ -381,10 +416,15 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
                     num += temperature_slope * dzdt[j]
                 elif j == n_species:
                     num -= temperature_slope * cache[4]
+            if ph_slope != 0.0:
+                if j < n_mol:
+                    num -= ph_slope * LN10 * variance[j]
+                elif j == n_species:
+                    num -= ph_slope * LN10 * (exp10(-ph) + hydroxide)
             dq = -num / denominator
-            jac[titrant, j] += dq
-            jac[n_species, j] += dq / titrant_conc
-            jac[n_species + 1, j] = dq
+            jac[dosed, j] += dq
+            jac[n_species, j] += dq / conc_dosed
+            jac[row, j] = dq
     if mode == 2:
         _free_ph_coupling(y, model, ws, jac, ph, hydroxide)
 
@@ -395,7 +435,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
     (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask) = model
+     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     volume = y[n_species]

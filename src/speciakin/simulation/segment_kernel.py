@@ -10,8 +10,8 @@ with an effective constant
     k_eff,s = k_s(T) * prod (fraction of microstates meeting the requirement)
               * [OH-] (when hydroxide is a reactant),
 
-and the held-pH titrant rate q that keeps the charge balance is linear in
-the step rates and the amounts:
+and the titrant rate q that keeps the charge balance (held pH, or a logged
+pH with a titrant) is linear in the step rates and the amounts:
 
     q = beta(t) + sum_s alpha_s(t) v_s + sum_j gamma_j(t) y_j,   v_s = V r_s,
 
@@ -21,11 +21,15 @@ d = titrant charge + excess / titrant concentration; see ``rhs_kernel``).  So
 
     dy/dt = feed + sum_s nu_s v_s + e_q q,   e_q = titrant, volume/c_t, consumed,
 
-is a few products and small dot products (:func:`smooth_rhs`), with an exact
-Jacobian (:func:`smooth_jacobian`) and, under a ramp, an exact time
-derivative.
+(gamma also carries d pH/dt of a logged segment).  A titrant volume only
+adds: when q < 0 and the run has an opposite titrant, that one is dosed at
+the rate ratio(t) q, ratio = d_titrant / d_opposite (a fifth coefficient);
+the right-hand side is then piecewise smooth, and the step control meets
+the switch like any other kink.  So the right-hand side is a few products
+and small dot products (:func:`smooth_rhs`), with an exact Jacobian
+(:func:`smooth_jacobian`) and, under a ramp, an exact time derivative.
 
-The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma) are
+The time-dependent coefficients c(t) = (k_eff, alpha, beta, gamma, ratio) are
 evaluated with the full speciation (``rhs_kernel.time_speciation``) at the
 four Chebyshev points of the segment and carried as a cubic in time (for
 each positive k_eff, the cubic of its logarithm, which is nearly linear in
@@ -61,7 +65,7 @@ from numba import njit
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
-from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.speciation_kernel import LN10, exp10
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
                                                 new_solution, stage_point, step_factor)
@@ -140,14 +144,17 @@ def stoichiometry(model, nu, reactants, n_react):
 
 
 @leaf_kernel
-def segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
-                         temperature_slope, coef):
-    """Coefficient vector (k_eff, alpha, beta, gamma) at the time of the last ``rhs`` call.
+def segment_coefficients(model, ws, nu, controlled, titrant, titrant_conc, second, second_conc, feed_rate,
+                         feed_volume_rate, temperature_slope, coef):
+    """Coefficient vector (k_eff, alpha, beta, gamma, ratio) at the time of the last ``rhs`` call.
 
     Layout: ``coef[:n_steps]`` = k_eff; ``coef[n_steps:2 n_steps]`` = alpha
     [-]; ``coef[2 n_steps]`` = beta [mol/s]; ``coef[2 n_steps + 1 + m]`` =
-    gamma of molecule m [1/s]; the last entry = gamma of the volume
-    [mol/(L*s)].  alpha, beta, gamma are zero unless the pH is held.
+    gamma of molecule m [1/s]; then gamma of the volume [mol/(L*s)]; the last
+    entry = d_titrant / d_opposite, the factor that turns a (negative) titrant
+    rate into the opposite titrant's rate [-].  alpha, beta, gamma are zero
+    unless the run is controlled (held pH, or logged pH with a titrant); the
+    pH slope of a logged segment is ``ws[7][5]``.
     """
     n_mol = model[0]
     n_species = model[1]
@@ -156,13 +163,18 @@ def segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, 
     effective_constants(model, ws, coef)
     for i in range(n_steps, coef.shape[0]):
         coef[i] = 0.0
-    if not held:
+    if not controlled:
         return
     zbar = ws[3]
+    variance = ws[4]
     cache = ws[7]
     dzdt = ws[9]
-    excess = exp10(-cache[2]) - exp10(cache[2] - cache[1])
+    hydrogen = exp10(-cache[2])
+    hydroxide = exp10(cache[2] - cache[1])
+    excess = hydrogen - hydroxide
     denominator = species_charge[titrant] + excess / titrant_conc
+    if second >= 0:
+        coef[coef.shape[0] - 1] = denominator / (species_charge[second] + excess / second_conc)
     for s in range(n_steps):
         num = 0.0
         for j in range(n_mol):
@@ -180,6 +192,12 @@ def segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, 
         for m in range(n_mol):
             coef[2 * n_steps + 1 + m] = -temperature_slope * dzdt[m] / denominator
         coef[2 * n_steps + 1 + n_mol] = temperature_slope * cache[4] / denominator
+    ph_slope = cache[5]
+    if ph_slope != 0.0:
+        # a logged pH moves the charge balance: dzbar/dpH = -ln10 var(N), d excess/dpH = -ln10 ([H+] + [OH-])
+        for m in range(n_mol):
+            coef[2 * n_steps + 1 + m] += ph_slope * LN10 * variance[m] / denominator
+        coef[2 * n_steps + 1 + n_mol] += ph_slope * LN10 * (hydrogen + hydroxide) / denominator
 
 
 @leaf_kernel(inline="always")
@@ -202,7 +220,7 @@ def evaluate_cubic(poly, in_logs, x, value, slope):
 
 @leaf_kernel(inline="always")
 def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-               feed_rate, feed_volume_rate, product, v):
+               second, second_conc, feed_rate, feed_volume_rate, product, v):
     """dy/dt with the coefficients ``coef``; ``product`` receives V^(1-m) prod n
     and ``v`` the step rates v_s = k_eff product [mol/s].  False (dy = NaN)
     when the volume is not positive."""
@@ -218,6 +236,7 @@ def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titr
         dy[i] = feed_rate[i]
     dy[n_species] = feed_volume_rate
     dy[n_species + 1] = 0.0
+    dy[n_species + 2] = 0.0
     for s in range(n_steps):
         p = volume
         for m in range(n_react[s]):
@@ -235,15 +254,39 @@ def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titr
         for m in range(n_mol):
             q += coef[g0 + m] * y[m]
         q += coef[g0 + n_mol] * volume
-        dy[titrant] += q
-        dy[n_species] += q / titrant_conc
-        dy[n_species + 1] = q
+        if q < 0.0 and second >= 0:
+            # the titrant would be withdrawn: the opposite titrant is dosed instead
+            q *= coef[g0 + n_mol + 1]
+            dy[second] += q
+            dy[n_species] += q / second_conc
+            dy[n_species + 2] = q
+        else:
+            dy[titrant] += q
+            dy[n_species] += q / titrant_conc
+            dy[n_species + 1] = q
     return True
 
 
 @leaf_kernel(inline="always")
+def titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant, titrant_conc, second, second_conc):
+    """(factor, dosed ion, its concentration, consumed-state row, titrant rate)
+    at ``y`` with step rates ``v``: the titrant itself, or the opposite
+    titrant when the titrant rate is negative and the run has one."""
+    g0 = 2 * n_steps + 1
+    q = coef[2 * n_steps]
+    for s in range(n_steps):
+        q += coef[n_steps + s] * v[s]
+    for m in range(n_mol):
+        q += coef[g0 + m] * y[m]
+    q += coef[g0 + n_mol] * y[n_species]
+    if q < 0.0 and second >= 0:
+        return coef[g0 + n_mol + 1], second, second_conc, n_species + 2, q
+    return 1.0, titrant, titrant_conc, n_species + 1, q
+
+
+@leaf_kernel(inline="always")
 def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                    v, active_of, jac_t):
+                    second, second_conc, v, active_of, jac_t):
     """Non-zero columns of d(dy/dt)/dy, exact, stored transposed.
 
     ``jac_t[a, i]`` = d(dy_i/dt)/dy_j for the a-th active state j
@@ -260,6 +303,8 @@ def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, tit
             jac_t[a, i] = 0.0
     volume = y[n_species]
     inv_v = 1.0 / volume
+    factor, dosed, conc_dosed, row, q = titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant,
+                                                       titrant_conc, second, second_conc)
     for s in range(n_steps):
         m_s = n_react[s]
         for mm in range(-1, m_s):
@@ -275,23 +320,24 @@ def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, tit
             for i in range(n_species):
                 jac_t[a, i] += nu[s, i] * d
             if held:
-                dq = coef[n_steps + s] * d
-                jac_t[a, titrant] += dq
-                jac_t[a, n_species] += dq / titrant_conc
-                jac_t[a, n_species + 1] += dq
+                dq = factor * coef[n_steps + s] * d
+                jac_t[a, dosed] += dq
+                jac_t[a, n_species] += dq / conc_dosed
+                jac_t[a, row] += dq
     if held:
         for j in range(n_mol + 1):
             state = j if j < n_mol else n_species
-            dq = coef[g0 + j]
+            dq = factor * coef[g0 + j]
             if dq != 0.0:
                 a = active_of[state]
-                jac_t[a, titrant] += dq
-                jac_t[a, n_species] += dq / titrant_conc
-                jac_t[a, n_species + 1] += dq
+                jac_t[a, dosed] += dq
+                jac_t[a, n_species] += dq / conc_dosed
+                jac_t[a, row] += dq
 
 
 @leaf_kernel
-def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant, titrant_conc, product, ft):
+def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant, titrant_conc, second,
+                           second_conc, product, v, ft):
     """d(dy/dt)/dt at fixed y [per s] from the coefficients and their time
     derivatives ``coef_dt``; ``product`` as left by :func:`smooth_rhs` at y.
 
@@ -314,18 +360,28 @@ def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant
         for m in range(n_mol):
             dq += coef_dt[g0 + m] * y[m]
         dq += coef_dt[g0 + n_mol] * y[n_species]
-        ft[titrant] += dq
-        ft[n_species] += dq / titrant_conc
-        ft[n_species + 1] = dq
+        factor, dosed, conc_dosed, row, q = titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant,
+                                                           titrant_conc, second, second_conc)
+        if dosed != titrant:
+            # opposite titrant: rate = ratio(t) * q(t)
+            dq = factor * dq + coef_dt[g0 + n_mol + 1] * q
+        ft[dosed] += dq
+        ft[n_species] += dq / conc_dosed
+        ft[row] = dq
 
 
 @leaf_kernel
 def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants, n_react, n_species,
-                 n_mol, held, titrant, titrant_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
-                 ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out, out_t,
-                 i_out, n_out, held_ph, ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, counters):
+                 n_mol, held, titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, cst, dc,
+                 product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
+                 rtol, atol, out, out_t, i_out, n_out, ph_is_held, held_ph, ph_offset, log_t, log_v, log_n, temp_t,
+                 temp_v, temp_n, counters, sign_tol, peak):
     """Rosenbrock steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
     on the sub-interval); returns (status, next step size, next output index).
+
+    With ``sign_tol`` > 0 (a one-sided titrant) the titrant consumed may not
+    fall more than ``sign_tol`` [mol] below its largest value so far
+    (``peak[0]``): a titrant cannot be withdrawn (status 6).
 
     A leaf function: the work arrays come from the caller, so the step loop
     runs without reference counting.
@@ -340,7 +396,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
         for c in range(n_coef):
             dc[c] *= inv_half
     if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                      feed_rate, feed_volume_rate, product, v):
+                      second, second_conc, feed_rate, feed_volume_rate, product, v):
         return 3, h, i_out
     if h <= 0.0:
         h = initial_step(y, f0, n, atol, rtol, sub_span)
@@ -349,11 +405,11 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
     while t < tb:
         if not jac_fresh:
             # cst, dc, product and v are those of (t, y): the last evaluation was there
-            smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, v,
-                            active_of, jac_t)
+            smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
+                            second, second_conc, v, active_of, jac_t)
             if varying:
-                smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, product,
-                                       ft)
+                smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, second,
+                                       second_conc, product, v, ft)
             jac_fresh = True
         wanted = h
         h, last = land_step(t, h, tb)
@@ -380,7 +436,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 if varying:
                     evaluate_cubic(poly, in_logs, (t + ALPHA[st] * h - mid) * inv_half, cst, dc)
                 if not smooth_rhs(ytmp, fy, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                                  titrant_conc, feed_rate, feed_volume_rate, product, v):
+                                  titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v):
                     failed = True
                     break
                 add_stage_history(fy, k, st, h)
@@ -411,7 +467,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 for c in range(n_coef):
                     dc[c] *= inv_half
             if not smooth_rhs(ynew, fnew, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                              titrant_conc, feed_rate, feed_volume_rate, product, v):
+                              titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v):
                 failed = True
         if failed:
             h *= 0.1
@@ -424,20 +480,26 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
             while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
                 tout = out_t[i_out]
                 theta = (tout - t) / h
-                for j in range(n - 1):
+                for j in range(n_species + 1):
                     out[i_out, j] = dense_value(y, ynew, dense, theta, j)
-                if held:
-                    out[i_out, n - 1] = held_ph
+                if ph_is_held:
+                    out[i_out, n_species + 1] = held_ph
                 else:
-                    out[i_out, n - 1] = interpolate(log_t, log_v, log_n, tout) + ph_offset
-                out[i_out, n] = dense_value(y, ynew, dense, theta, n - 1)
-                out[i_out, n + 1] = interpolate(temp_t, temp_v, temp_n, tout)
+                    out[i_out, n_species + 1] = interpolate(log_t, log_v, log_n, tout) + ph_offset
+                out[i_out, n_species + 2] = dense_value(y, ynew, dense, theta, n_species + 1)
+                out[i_out, n_species + 3] = interpolate(temp_t, temp_v, temp_n, tout)
+                out[i_out, n_species + 4] = dense_value(y, ynew, dense, theta, n_species + 2)
                 i_out += 1
             for i in range(n):
                 y[i] = ynew[i]
                 f0[i] = fnew[i]
             t = t_new
             jac_fresh = False
+            if sign_tol > 0.0:
+                if y[n_species + 1] > peak[0]:
+                    peak[0] = y[n_species + 1]
+                elif y[n_species + 1] < peak[0] - sign_tol:
+                    return 6, h, i_out
             counters[0] += 1
             if counters[0] > MAX_STEPS:
                 return 1, h, i_out
@@ -472,7 +534,7 @@ def make_smooth_workspace(model, n):
     reactants = np.zeros((n_steps, max_react), dtype=np.int64)
     n_react = np.zeros(n_steps, dtype=np.int64)
     stoichiometry(model, nu, reactants, n_react)
-    n_coef = 2 * n_steps + n_mol + 2
+    n_coef = 2 * n_steps + n_mol + 3
     return (nu, reactants, n_react, np.empty((4, n_coef)), np.zeros((n_coef, 4)), np.zeros(n_coef, dtype=np.bool_),
             np.empty(n_coef), np.empty(n_coef), np.empty(n_coef), np.zeros(n_coef), np.empty(max(n_steps, 1)),
             np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
@@ -483,14 +545,14 @@ def make_smooth_workspace(model, n):
 
 @leaf_kernel
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
-                     varying, rtol, atol, out, out_t, i_out, n_out, counters):
+                     varying, rtol, atol, out, out_t, i_out, n_out, counters, sign_tol, peak):
     """Advance ``y`` from t0 to exactly t1 with Rodas5 [1]_ (held or logged pH).
 
     ``varying`` = the pH or the temperature changes inside the segment (the
     coefficients are then cubics in time, see the module notes).  Outputs at
     times strictly inside (t0, t1) from index ``i_out`` are written to
     ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
-    (:func:`make_smooth_workspace`).
+    (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see :func:`rodas_smooth`.
 
     Returns
     -------
@@ -500,9 +562,13 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     n_species = model[1]
     n_steps = model[13].shape[0]
     mode = ctx[0]
-    held = mode == MODE_HELD
+    ph_is_held = mode == MODE_HELD
+    # "held" below: the charge balance is kept by titrant (held pH, or a logged pH with a titrant)
+    held = ctx[13] != 0
     titrant = ctx[3]
     titrant_conc = ctx[4]
+    second = ctx[11]
+    second_conc = ctx[12]
     n = y.shape[0]
     span = t1 - t0
     if span <= 0.0:
@@ -523,7 +589,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     for s in range(n_steps):
         for m in range(n_react[s]):
             is_active[reactants[s, m]] = True
-    if held and temperature_slope != 0.0:
+    if held and (temperature_slope != 0.0 or ws[7][5] != 0.0):
         for m in range(n_mol):
             is_active[m] = True
     n_act = 0
@@ -559,8 +625,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                     ph = time_speciation(mid + half * NODES[node], model, par, ctx, temperature_slope, ws)
                     if math.isnan(ph):
                         return 3, h, i_out
-                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
-                                         temperature_slope, nodes[node])
+                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc,
+                                         feed_rate, feed_volume_rate, temperature_slope, nodes[node])
                 for c in range(n_coef):
                     big = 0.0
                     positive = c < n_steps
@@ -582,8 +648,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                     ph = time_speciation(mid + half * CHECKS[check], model, par, ctx, temperature_slope, ws)
                     if math.isnan(ph):
                         return 3, h, i_out
-                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
-                                         temperature_slope, exact)
+                    segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc,
+                                         feed_rate, feed_volume_rate, temperature_slope, exact)
                     evaluate_cubic(poly, in_logs, CHECKS[check], cst, dc)
                     for c in range(n_coef):
                         if abs(cst[c] - exact[c]) > COEFFICIENT_RTOL * (abs(exact[c]) if in_logs[c] else scale[c]):
@@ -602,8 +668,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
             ph = time_speciation(ta, model, par, ctx, temperature_slope, ws)
             if math.isnan(ph):
                 return 3, h, i_out
-            segment_coefficients(model, ws, nu, held, titrant, titrant_conc, feed_rate, feed_volume_rate,
-                                 temperature_slope, cst)
+            segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc, feed_rate,
+                                 feed_volume_rate, temperature_slope, cst)
             for c in range(n_coef):
                 in_logs[c] = False
                 poly[c, 0] = cst[c]
@@ -614,11 +680,12 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         sub_span = tb - ta
         # ---- Rosenbrock steps on [ta, tb] (a leaf function: no reference counting in the step loop)
         status, h, i_out = rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants,
-                                        n_react, n_species, n_mol, held, titrant, titrant_conc, feed_rate,
-                                        feed_volume_rate, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew, k,
-                                        dense, active, passive, active_of, jac_t, g, sub, piv, rtol, atol, out,
-                                        out_t, i_out, n_out, ctx[1] + ctx[2], ctx[2], ctx[5], ctx[6], ctx[7],
-                                        ctx[8], ctx[9], ctx[10], counters)
+                                        n_react, n_species, n_mol, held, titrant, titrant_conc, second,
+                                        second_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
+                                        ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
+                                        rtol, atol, out, out_t, i_out, n_out, ph_is_held, ctx[1] + ctx[2], ctx[2],
+                                        ctx[5], ctx[6], ctx[7], ctx[8], ctx[9], ctx[10], counters, sign_tol,
+                                        peak)
         if status != 0:
             return status, h, i_out
         sub_span = tb - ta
