@@ -287,7 +287,7 @@ def test_window_set_point_the_titrant_cannot_hold_is_a_located_error(tmp_path):
     # invented amine S (pKa 9) brought to pH 5 by the titrant alone (base): impossible; the
     # window's outcome function names the process file, the key and the set point
     from speciakin.chemistry.model import Quantity, Site
-    from speciakin.decision.campaign_window import process_outcome_function
+    from speciakin.pipeline.window import process_outcome_function
     from speciakin.simulation import compile_model
 
     amine = Model("amine", molecules=(

@@ -27,7 +27,7 @@ from scipy.optimize import brentq
 from independent_sim import IndependentRun, Scenario, Species
 from speciakin.chemistry.model import Ion, Model, Molecule, Quantity, Reactant, Requirement, Step
 from speciakin.decision import load_process
-from speciakin.decision.campaign_window import process_outcome_function
+from speciakin.pipeline.window import process_outcome_function
 from speciakin.decision.design import compute_window
 from speciakin.decision.outcomes import process_outcome_names
 from speciakin.simulation import compile_model
