@@ -37,7 +37,7 @@ k = K
 [run.r1]
 volume = "50 mL"
 end_time = "60 min"
-charges = { S = "1 mmol" }
+initial = { S = "1 mmol" }
 ph = { mode = "free" }
 """
 

@@ -140,7 +140,7 @@ k = "0.001 1/s"
 [run."=1+2"]
 volume = "50 mL"
 end_time = "10 min"
-charges = {{ {a} = "1 mmol" }}
+initial = {{ {a} = "1 mmol" }}
 ph = {{ mode = "free" }}
 '''
 

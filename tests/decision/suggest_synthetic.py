@@ -43,6 +43,7 @@ activity = "ideal"
 
 [ions]
 "Na+" = 1
+"Cl-" = -1      # the acid that brings the free amine to its set point inside the start volume
 
 [molecule.S]
 role = "substrate"
@@ -99,10 +100,10 @@ water = {{ k = "3e-4 1/s" }}
 [run.{name}]
 volume = "50 mL"
 end_time = "120 min"
-charges = {{ S = "1.0 mmol" }}
+initial = {{ S = "1.0 mmol" }}
 ph = {{ mode = "held", setpoint = {sp}, titrant = "Na+", titrant_concentration = "1 M" }}
 
-[[run.{name}.dose]]
+[[run.{name}.dosing]]
 species = "ANH"
 amount = "1.5 mmol"
 start = "0 min"
