@@ -305,6 +305,8 @@ def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
     for i, section in enumerate(doc.sections, 1):
         story.append(heading(f"{i}. {section.title}", section.anchor))
         for block in section.blocks:
+            if getattr(block, "kind", None) == "decision":
+                continue  # decision callouts are shown once, in the summary on page 1
             story.extend(_block(block, styles, width, height))
     footer = _footer(doc.title, styles["regular"], total)
     template.build(story, onFirstPage=footer, onLaterPages=footer)
