@@ -93,7 +93,9 @@ def _callout(block: Callout, styles, width: float):
         ("TOPPADDING", (0, 0), (-1, 0), 6),
     ]))
     table.spaceBefore, table.spaceAfter = 4, 8
-    return table
+    from reportlab.platypus import KeepTogether
+
+    return KeepTogether([table])  # a callout's title never sits alone at the foot of a page
 
 
 def _column_widths(table: Table, width: float, cell_font: str = "Helvetica", head_font: str = "Helvetica-Bold",

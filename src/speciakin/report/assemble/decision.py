@@ -134,7 +134,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             title = f"Recommended: {format_interval(window.primary_window)}"
         else:
             title = f"{status.capitalize()}: candidate window {format_interval(window.primary_window)}"
-        text = (f"{status_text} Every specification is met with probability at least {window.level:g} from "
+        text = (f"{status_text}\n\nEvery specification is met with probability at least {window.level:g} from "
                 f"{format_interval(window.primary_window)}"
                 + (" according to the model. " if established else
                    " according to the model, but the window is not established (see the reasons). "))
@@ -146,7 +146,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
                      "pH control or a new process is needed. ")
     else:
         title = "No pH window found"
-        text = (f"{status_text} No pH in the scanned range meets every specification with probability at "
+        text = (f"{status_text}\n\nNo pH in the scanned range meets every specification with probability at "
                 f"least {window.level:g}. ")
         if window.best_ph is not None:
             text += (f"The highest probability, {window.best_probability:.3f}, is at pH {window.best_ph:.2f}. ")
