@@ -158,7 +158,6 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         text += " Based on invented demonstration data."
     blocks.append(Callout("decision", title, text))
     rows = [("Status", status),
-            ("Status reasons", "; ".join(getattr(window, "status_reasons", []) or []) or "none"),
             ("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),
             ("Candidate window" if not established else "Recommended window", format_interval(window.primary_window)),
             ("Robust set points", format_interval(robust)),
