@@ -34,8 +34,11 @@ def text_boxes(fig):
     return [(t.get_text(), t.get_window_extent(renderer)) for t in items if t.get_visible() and t.get_text()]
 
 
-def overlapping(fig):
-    boxes = text_boxes(fig)
+def overlapping(fig, pad: float = 2.0):
+    """Pairs of texts whose boxes, grown by ``pad`` pixels on every side, intersect (touching
+    labels such as "-0.526-0.524" count as overlapping)."""
+    boxes = [(t, b.expanded((b.width + 2 * pad) / max(b.width, 1e-9), (b.height + 2 * pad) / max(b.height, 1e-9)))
+             for t, b in text_boxes(fig)]
     return [(a[0], b[0]) for i, a in enumerate(boxes) for b in boxes[i + 1:] if a[1].overlaps(b[1])]
 
 
@@ -62,10 +65,13 @@ def test_corner_labels_do_not_overlap(n):
 
 
 @pytest.mark.parametrize("n", [1, 2, 5, 10])
-def test_profile_labels_do_not_overlap(n):
-    values = {name: np.linspace(-1.2, 0.9, 11) for name in NAMES[:n]}
-    delta = {name: 9.0 * np.linspace(-1.2, 0.9, 11) ** 2 for name in NAMES[:n]}
-    fig = profile_plot(values, delta, {name: 0.0 for name in NAMES[:n]},
+@pytest.mark.parametrize("centre, half", [(0.0, 1.0), (-0.522, 0.004), (-0.4512, 0.0008)])
+def test_profile_labels_do_not_overlap(n, centre, half):
+    # narrow ranges around a negative value give the longest tick labels (-0.4520, -0.4512, ...)
+    grid = centre + half * np.linspace(-1.0, 1.0, 11)
+    values = {name: grid for name in NAMES[:n]}
+    delta = {name: 9.0 * ((grid - centre) / half) ** 2 for name in NAMES[:n]}
+    fig = profile_plot(values, delta, {name: centre for name in NAMES[:n]},
                        units={name: "log10 L/(mol*s)" for name in NAMES[:n]})
     assert overlapping(fig) == []
 

@@ -99,7 +99,7 @@ def profile_plot(values, delta_chi_square, best=None, threshold: float = PROFILE
         ax.set_xlabel(_wrap(f"value [{unit}]" if unit else "value", chars))
         ax.set_ylabel("\u0394\u03c7\u00b2 [-]")
         ax.set_ylim(bottom=0.0)
-        ax.xaxis.set_major_locator(MaxNLocator(5))
+        ax.xaxis.set_major_locator(MaxNLocator(3))  # long labels (-0.4512) stay apart
         ax.yaxis.set_major_locator(MaxNLocator(4))
     for ax in axes[len(names):]:
         ax.set_visible(False)
