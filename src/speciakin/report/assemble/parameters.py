@@ -18,13 +18,14 @@ credible intervals).
 
 from __future__ import annotations
 
-from typing import Any
+import re
+from typing import Any, Mapping
 
 import numpy as np
 
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["log_readings_table", "shown_name", "prior_texts", "posterior_rows", "parameter_section", "parameter_table", "interval_table",
+__all__ = ["natural_value", "log_readings_table", "shown_name", "prior_texts", "posterior_rows", "parameter_section", "parameter_table", "interval_table",
            "correlation_section", "correlation_table", "identifiability_warnings", "STRONG_CORRELATION"]
 
 #: |correlation| above which a pair is named in the report (common practice).
@@ -151,6 +152,21 @@ def shown_name(name: str, is_shift: bool) -> str:
     return f"shift of {name}" if is_shift else name
 
 
+def natural_value(row: Mapping[str, Any]) -> str | None:
+    """A fitted value on the scale a chemist reads: the absolute pKa of a shift
+    ("pKa 9.28"), the rate constant of a log10 k with its unit ("k = 10.9 L/(mol*s)")."""
+    value = row.get("value")
+    if value is None or not np.isfinite(value):
+        return None
+    if row.get("shift_of") is not None:
+        return f"pKa {row['implied_value']:.2f}"
+    unit = str(row.get("unit") or "")
+    match = re.fullmatch(r"log10\((.+)\)", unit)
+    if match:
+        return f"k = {10.0 ** float(value):.3g} {match.group(1)}"
+    return None
+
+
 def log_readings_table(fit: Any) -> Table | Paragraph | None:
     """How many readings of each titrant and pH log entered the fit (None without logs)."""
     if fit is None:
@@ -192,18 +208,22 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
         blocks.append(Paragraph("Least-squares fit: not run; only posterior columns are filled."))
     cols = table.columns
     col = {c: cols.index(c) for c in cols}
-    shifts = {r["name"] for r in fit.rows() if r["shift_of"] is not None} if fit is not None else set()
+    fit_rows = {r["name"]: r for r in fit.rows()} if fit is not None else {}
+    shifts = {n for n, r in fit_rows.items() if r["shift_of"] is not None}
 
     def shown(row: list) -> str:
         return shown_name(row[col["parameter"]], row[col["parameter"]] in shifts)
 
     # printed as three narrow tables so that each fits the A4 text width
-    blocks.append(Table("Least-squares estimates", ["parameter", "unit", "LS estimate", "std. error", "absolute pKa"],
+    blocks.append(Table("Least-squares estimates", ["parameter", "unit", "LS estimate", "std. error",
+                                                    "absolute pKa or rate constant"],
                         [[shown(r), r[col["unit"]], r[col["least-squares value"]],
-                          r[col["standard error"]], r[col["implied pKa"]]] for r in table.rows],
-                        formats=[None, None, ".4g", ".3g", ".3f"],
+                          r[col["standard error"]], natural_value(fit_rows[r[col["parameter"]]])
+                          if r[col["parameter"]] in fit_rows else None] for r in table.rows],
+                        formats=[None, None, ".4g", ".3g", None],
                         note="A pKa fitted as a shift from its model-file value is listed as 'shift of pKa[...]'; "
-                             "the absolute pKa beside it is the model-file value plus the fitted shift."))
+                             "the absolute pKa beside it is the model-file value plus the fitted shift. A rate "
+                             "constant fitted as log10 k is shown beside it as k with its unit."))
     if fit is not None and not fit.profiles:
         blocks.append(Paragraph("Profile likelihood: not computed for this fit."))
     blocks.append(Table("95 % intervals", ["parameter", "covariance 95 %", "profile 95 %"],
