@@ -207,7 +207,6 @@ def rendered(setup, tmp_path_factory):
 
 def test_sections_in_order(rendered):
     doc, _, _ = rendered
-    # the suggestion section appears only when suggest.json exists (none here)
     assert [s.title for s in doc.sections] == [t for t in REPORT_SECTION_TITLES if t != "Next-run suggestion"]
     assert doc.callouts("decision")
 
@@ -391,9 +390,8 @@ def test_command_writes_report_and_keeps_inputs(result_folder, capsys):
     assert not (result_folder / "report.pdf").exists()
     assert "report.html" in out and "posterior" in out
     html = (result_folder / "report.html").read_text(encoding="utf-8")
-    # a bare window computation carries no trust-gate verdict: not presented as established
-    assert "Status: not checked" in html and "candidate window pH" in html
-    assert "Recommended: pH" not in html and "Posterior sampling: not run" in html
+    # a bare window computation carries no gate verdict: not presented as established
+    assert "Status: not checked" in html and "Recommended: pH" not in html and "Posterior sampling: not run" in html
     assert before["campaign.xlsx"] in html            # the workbook's SHA-256 is listed
     after = {name: hashlib.sha256((result_folder / name).read_bytes()).hexdigest() for name in before}
     assert after == before                            # inputs are never modified

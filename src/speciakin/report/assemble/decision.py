@@ -23,8 +23,18 @@ from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["decision_summary_section", "status_words", "gate_table", "STATUS_MEANING", "window_section", "window_table", "window_centre_outcomes",
-           "format_interval", "specification_limits", "process_block"]
+__all__ = [
+    "decision_summary_section",
+    "status_words",
+    "gate_table",
+    "STATUS_MEANING",
+    "window_section",
+    "window_table",
+    "window_centre_outcomes",
+    "format_interval",
+    "specification_limits",
+    "process_block",
+]
 
 
 def format_interval(interval: tuple[float, float] | None) -> str:
@@ -252,7 +262,8 @@ def window_section(window: Any, colors: SpeciesColors, process: Any = None,
     if window.outcome_names:
         blocks.append(Figure(outcomes_vs_ph_figure(
             ph, relabel(window.outcome_median, names), relabel(window.outcome_lower, names),
-            relabel(window.outcome_upper, names), relabel(specification_limits(window), names), colors, value_label="end of process", value_unit="mol%"),
+            relabel(window.outcome_upper, names), relabel(specification_limits(window), names),
+            colors, value_label="end of process", value_unit="mol%"),
             "Expected outcomes against pH: median (line) and 5-95 % band over the parameter draws; "
             "specification limits as dotted lines."))
     if window.map_probability is not None and window.factor_values is not None:

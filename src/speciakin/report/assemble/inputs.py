@@ -14,7 +14,15 @@ from typing import Any, Sequence
 from speciakin.errors import InputError, Location
 from speciakin.report.document import BulletList, KeyValues, Paragraph, Section, Table
 
-__all__ = ["activity_words", "pkw_words", "file_sha256", "input_file_rows", "inputs_section", "model_section", "scheme_lines"]
+__all__ = [
+    "activity_words",
+    "pkw_words",
+    "file_sha256",
+    "input_file_rows",
+    "inputs_section",
+    "model_section",
+    "scheme_lines",
+]
 
 _CHUNK = 1 << 20
 

@@ -25,8 +25,20 @@ import numpy as np
 
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["natural_value", "log_readings_table", "shown_name", "prior_texts", "posterior_rows", "parameter_section", "parameter_table", "interval_table",
-           "correlation_section", "correlation_table", "identifiability_warnings", "STRONG_CORRELATION"]
+__all__ = [
+    "natural_value",
+    "log_readings_table",
+    "shown_name",
+    "prior_texts",
+    "posterior_rows",
+    "parameter_section",
+    "parameter_table",
+    "interval_table",
+    "correlation_section",
+    "correlation_table",
+    "identifiability_warnings",
+    "STRONG_CORRELATION",
+]
 
 #: |correlation| above which a pair is named in the report (common practice).
 STRONG_CORRELATION = 0.95

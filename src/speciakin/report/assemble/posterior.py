@@ -23,7 +23,14 @@ import numpy as np
 
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["stop_words", "STOP_REASONS", "convergence_section", "diagnostics_table", "profile_blocks", "CORNER_MAX_SAMPLES"]
+__all__ = [
+    "stop_words",
+    "STOP_REASONS",
+    "convergence_section",
+    "diagnostics_table",
+    "profile_blocks",
+    "CORNER_MAX_SAMPLES",
+]
 
 #: Most samples drawn in the corner plot (thinned evenly beyond this).
 CORNER_MAX_SAMPLES = 4000

@@ -16,8 +16,18 @@ from matplotlib.figure import Figure
 
 from speciakin.errors import InputError, Location
 
-__all__ = ["legend_below", "LEGEND_WRAP", "TEXT_WIDTH_IN", "DEFAULT_HEIGHT_IN", "DPI", "RC", "new_figure", "to_png", "as_array",
-           "same_length"]
+__all__ = [
+    "legend_below",
+    "LEGEND_WRAP",
+    "TEXT_WIDTH_IN",
+    "DEFAULT_HEIGHT_IN",
+    "DPI",
+    "RC",
+    "new_figure",
+    "to_png",
+    "as_array",
+    "same_length",
+]
 
 #: Text width of an A4 page with 25 mm margins: 160 mm [in].
 TEXT_WIDTH_IN = 160.0 / 25.4

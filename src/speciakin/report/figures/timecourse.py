@@ -7,7 +7,8 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
-from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend, legend_below,
+from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
+                                             legend_below,
                                              new_figure, same_length, to_png)
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
