@@ -29,6 +29,8 @@ __all__ = [
     "SpeciesColors",
     "hex_to_rgb",
     "cycle_style",
+    "display_names",
+    "model_species_colors",
 ]
 
 #: The eight colours of [1]_ by name, as hex RGB.
@@ -71,6 +73,23 @@ def hex_to_rgb(color: str) -> tuple[int, int, int]:
         raise InputError("not a hex colour", Location(key="color"), color, "'#RRGGBB'") from None
 
 
+def model_species_colors(model) -> SpeciesColors:
+    """One :class:`SpeciesColors` for every figure of a model: the molecules in
+    model order, keyed by their display names (:func:`display_names`), the
+    short names as aliases, so a species has the same colour whichever name
+    a figure uses."""
+    names = display_names(model)
+    return SpeciesColors([names[m.name] for m in model.molecules], aliases=dict(names))
+
+
+def display_names(model) -> dict[str, str]:
+    """Short name -> compound label of each molecule (the short name when the
+    label is empty or shared by another molecule)."""
+    labels = [(m.name, (getattr(m, "label", "") or "").strip() or m.name) for m in model.molecules]
+    seen = [lab for _, lab in labels]
+    return {name: (lab if seen.count(lab) == 1 else name) for name, lab in labels}
+
+
 def cycle_style(index: int) -> tuple[str, str]:
     """(hex colour, line style) of curve ``index``: the colours in :data:`SPECIES_COLOR_ORDER`,
     then the same colours with the next line style."""
@@ -101,9 +120,14 @@ class SpeciesColors:
     >>> colors = SpeciesColors(["S", "P1", "P2"])
     >>> colors.color("P1") == colors.color("P1")
     True
+    >>> SpeciesColors(["substrate"], aliases={"S": "substrate"}).color("S") == OKABE_ITO["blue"]
+    True
     """
 
     species: list[str] = field(default_factory=list)
+    #: Other names of a species (e.g. model short name -> compound label): an
+    #: alias gets the style of the species it names.
+    aliases: dict[str, str] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         names: list[str] = []
@@ -116,6 +140,7 @@ class SpeciesColors:
         self.species = names
 
     def _index(self, name: str) -> int:
+        name = self.aliases.get(name, name)
         if name not in self.species:
             self.species.append(name)
         return self.species.index(name)

@@ -207,7 +207,7 @@ def rendered(setup, tmp_path_factory):
 
 def test_sections_in_order(rendered):
     doc, _, _ = rendered
-    assert [s.title for s in doc.sections] == list(REPORT_SECTION_TITLES)
+    assert [s.title for s in doc.sections] == [t for t in REPORT_SECTION_TITLES if t != "Next-run suggestion"]
     assert doc.callouts("decision")
 
 
@@ -297,7 +297,7 @@ def test_window_sheet_matches_result(rendered, setup):
 def test_nothing_but_model_and_campaign(setup, tmp_path):
     model, campaign = setup[0], setup[1]
     doc = build_report(ReportInputs(model=model, campaign=campaign))
-    assert [s.title for s in doc.sections] == list(REPORT_SECTION_TITLES)
+    assert [s.title for s in doc.sections] == [t for t in REPORT_SECTION_TITLES if t != "Next-run suggestion"]
     text = json.dumps(doc.to_dict())
     assert NOT_RUN in text
     assert doc.callouts("decision")[0].title == "pH window not computed"
@@ -390,7 +390,8 @@ def test_command_writes_report_and_keeps_inputs(result_folder, capsys):
     assert not (result_folder / "report.pdf").exists()
     assert "report.html" in out and "posterior" in out
     html = (result_folder / "report.html").read_text(encoding="utf-8")
-    assert "Recommended: pH" in html and "Posterior sampling: not run" in html
+    # a bare window computation carries no gate verdict: not presented as established
+    assert "Status: not checked" in html and "Recommended: pH" not in html and "Posterior sampling: not run" in html
     assert before["campaign.xlsx"] in html            # the workbook's SHA-256 is listed
     after = {name: hashlib.sha256((result_folder / name).read_bytes()).hexdigest() for name in before}
     assert after == before                            # inputs are never modified

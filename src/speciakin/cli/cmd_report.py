@@ -33,6 +33,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="comma-separated formats among " + ", ".join(REPORT_FORMATS) + " (default: all)")
     parser.add_argument("--invented", action="store_true",
                         help="label the report as based on invented demonstration data")
+    add_people_arguments(parser)
+
+
+def add_people_arguments(parser: argparse.ArgumentParser) -> None:
+    """``--author`` and ``--reviewer`` for the report's QA block (shared with ``run``)."""
+    parser.add_argument("--author", default="", help="author named in the report's QA block "
+                        "(default: [report] author in the process file)")
+    parser.add_argument("--reviewer", default="", help="reviewer named in the report's QA block "
+                        "(default: [report] reviewer in the process file)")
 
 
 def _formats(text: str | None) -> tuple[str, ...] | None:
@@ -53,9 +62,9 @@ def _command(args) -> str:
     import shlex
 
     parts = ["speciakin", "report", str(args.outdir)]
-    for option in ("campaign", "model", "process", "formats"):
+    for option in ("campaign", "model", "process", "formats", "author", "reviewer"):
         value = getattr(args, option)
-        if value is not None:
+        if value:
             parts += [f"--{option}", str(value)]
     if args.invented:
         parts.append("--invented")
@@ -69,7 +78,8 @@ def run(args) -> int:
     formats = _formats(args.formats)
     results = pipeline.load_results(args.outdir, campaign=args.campaign, model=args.model, process=args.process)
     invented = bool(args.invented) or results.model.description.lower().startswith("invented")
-    paths = write_report(args.outdir, results, invented=invented, formats=formats, command=_command(args))
+    paths = write_report(args.outdir, results, invented=invented, formats=formats, command=_command(args),
+                         author=args.author, reviewer=args.reviewer)
     for path in paths.values():
         print(f"wrote {path}")
     if results.missing:

@@ -31,8 +31,11 @@ def add_arguments(parser) -> None:
     from speciakin.cli._common import add_campaign_arguments
 
     parser.epilog = EPILOG
+    from speciakin.cli.cmd_report import add_people_arguments
+
     add_campaign_arguments(parser, process=True)
     add_pipeline_options(parser)
+    add_people_arguments(parser)
 
 
 def execute(inputs, out, args, invented: bool = False) -> int:
@@ -45,6 +48,13 @@ def execute(inputs, out, args, invented: bool = False) -> int:
     from speciakin.errors import SpeciakinError
     from speciakin.report import results as renderer
 
+    if getattr(args, "author", "") or getattr(args, "reviewer", ""):
+        import functools
+        import types
+
+        renderer = types.SimpleNamespace(
+            fit_figures=renderer.fit_figures, posterior_figures=renderer.posterior_figures,
+            write_report=functools.partial(renderer.write_report, author=args.author, reviewer=args.reviewer))
     step = {"name": "?"}
     progress = StageProgress(not args.quiet)
     t0 = time.perf_counter()

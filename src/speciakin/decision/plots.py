@@ -83,15 +83,18 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     return _save(fig, path)
 
 
-def plot_outcomes(result: WindowResult, path: str | os.PathLike) -> Path:
-    """Median and 5-95 % band of each outcome against pH."""
+def plot_outcomes(result: WindowResult, path: str | os.PathLike, colors=None) -> Path:
+    """Median and 5-95 % band of each outcome against pH; ``colors`` (a
+    :class:`speciakin.palette.SpeciesColors` of the model) gives each species
+    the colour it has in every other figure."""
     fig = _figure()
     ax = fig.add_subplot()
     for k, name in enumerate(result.outcome_names):
-        colour = cycle_style(k)[0]
+        colour = colors.color(name) if colors is not None else cycle_style(k)[0]
         ax.fill_between(result.ph, result.outcome_lower[name], result.outcome_upper[name],
                         color=colour, alpha=0.25, lw=0)
-        ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6, label=name)
+        label = colors.aliases.get(name, name) if colors is not None else name
+        ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6, label=label)
     for a, b in result.windows:
         ax.axvline(a, color=OKABE_ITO["black"], lw=0.8, ls=":")
         ax.axvline(b, color=OKABE_ITO["black"], lw=0.8, ls=":")

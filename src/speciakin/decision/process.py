@@ -65,7 +65,7 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
     """
     r = Reader(source, text)
     top = {"process": "a [process] table", "scan": "a [scan] table",
-           "specification": "[[specification]] tables"}
+           "specification": "[[specification]] tables", "report": "a [report] table (author, reviewer)"}
     r.unknown_keys(data, top, "", None)
     proc = data.get("process")
     if not isinstance(proc, dict):
@@ -177,6 +177,7 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
         r.error("no specification given", Location(file=source or None, key="specification"), None,
                 "at least one [[specification]] table", code="missing")
 
+    report = _report_people(r, data.get("report", {}), source)
     r.problems.raise_if_errors(ModelFileError)
     return ProcessPlan(
         name=name, substrate=substrate, substrate_amount=float(amount), volume=float(volume),
@@ -187,7 +188,24 @@ def parse_process(data: Mapping[str, Any], source: str = "", text: str = "") -> 
         start_acid=start_acid, start_base=start_base,
         extra_charges=MappingProxyType(charges), ph_from=ph_from, ph_to=ph_to, ph_step=ph_step,
         level=level, ph_tolerance=tolerance, n_draws=int(draws), seed=int(seed),
-        second_factor=factor, specifications=tuple(specs), description=description, source=source)
+        second_factor=factor, specifications=tuple(specs), description=description, source=source,
+        report_author=report.get("author", ""), report_reviewer=report.get("reviewer", ""))
+
+
+def _report_people(r: Reader, table: Any, source: str) -> dict[str, str]:
+    """``[report]`` author and reviewer (free text) for the report's QA block."""
+    if not isinstance(table, dict):
+        r.error("not a table", Location(file=source or None, key="report"), table, "a [report] table")
+        return {}
+    r.unknown_keys(table, {"author": "text", "reviewer": "text"}, "report", "report")
+    out = {}
+    for key in ("author", "reviewer"):
+        if key in table:
+            if isinstance(table[key], str):
+                out[key] = table[key].strip()
+            else:
+                r.error("not text", Location(file=source or None, key=f"report.{key}"), table[key], "a name as text")
+    return out
 
 
 def load_process(path: str | Path, model: Model | None = None) -> ProcessPlan:

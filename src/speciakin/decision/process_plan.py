@@ -110,6 +110,8 @@ class ProcessPlan:
         Optional 2-D map factor.
     specifications
         Limits on end-of-process outcomes.
+    report_author, report_reviewer
+        Names for the report's QA block (``[report]`` table; empty when not given).
     """
 
     name: str
@@ -142,6 +144,8 @@ class ProcessPlan:
     specifications: tuple[Specification, ...] = ()
     description: str = ""
     source: str = ""
+    report_author: str = ""
+    report_reviewer: str = ""
 
     def ph_values(self) -> np.ndarray:
         """The pH grid from ``ph_from`` to ``ph_to`` (inclusive when it falls on a step)."""

@@ -242,3 +242,15 @@ def resolve_input(given: str | None, recorded: str | None, folder: Path, what: s
     raise InputError(f"the {what} named in fit.json no longer exists",
                      Location(file=str(result_path(folder, "fit")), key=key), recorded,
                      f"an existing path (or give --{key})")
+
+
+def load_suggestion(folder: Path) -> dict[str, Any] | None:
+    """The ``suggest.json`` body of ``folder`` as a dict (SuggestResult.to_dict()), or None when absent."""
+    path = result_path(folder, "suggest")
+    if not path.is_file():
+        return None
+    data = read_json(path, "suggestion result")
+    if not isinstance(data.get("candidates"), list):
+        raise _malformed(path, "suggestion result", KeyError("candidates"),
+                         "suggest.json as written by the suggest command")
+    return data

@@ -138,7 +138,7 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
     if notes:
         result.warnings.extend(notes)
     outputs.save_window(out, result)
-    window_figures(result, out)
+    window_figures(result, out, objective.model)
     return result
 
 
@@ -171,14 +171,17 @@ def _figures(out: Path) -> Path:
     return Path(out) / outputs.FIGURES_FOLDER
 
 
-def window_figures(window, out: Path) -> None:
-    """Probability, outcome and (with a second factor) map plots into ``out/figures``."""
+def window_figures(window, out: Path, model=None) -> None:
+    """Probability, outcome and (with a second factor) map plots into ``out/figures``
+    (species coloured as in every other figure of ``model``)."""
     from speciakin.decision.plots import plot_map, plot_outcomes, plot_probability
+    from speciakin.palette import model_species_colors
 
     figures = _figures(out)
     figures.mkdir(parents=True, exist_ok=True)
     plot_probability(window, figures / "window_probability.png")
-    plot_outcomes(window, figures / "window_outcomes.png")
+    plot_outcomes(window, figures / "window_outcomes.png",
+                  model_species_colors(model) if model is not None else None)
     if getattr(window, "map_probability", None) is not None:
         plot_map(window, figures / "window_map.png")
 

@@ -88,8 +88,8 @@ def format_cell(value: Cell, spec: str | None = None) -> str:
         return value
     if isinstance(value, float) and not math.isfinite(value):
         return "NaN" if math.isnan(value) else ("inf" if value > 0 else "-inf")
-    if isinstance(value, int) and spec is None:
-        return str(value)
+    if isinstance(value, int) and (spec is None or not spec.endswith(("d", "n", ","))):
+        return str(value)  # integers (counts, seeds) print as integers whatever the column format
     return format(value, spec or DEFAULT_NUMBER_FORMAT)
 
 

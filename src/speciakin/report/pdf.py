@@ -93,7 +93,9 @@ def _callout(block: Callout, styles, width: float):
         ("TOPPADDING", (0, 0), (-1, 0), 6),
     ]))
     table.spaceBefore, table.spaceAfter = 4, 8
-    return table
+    from reportlab.platypus import KeepTogether
+
+    return KeepTogether([table])  # a callout's title never sits alone at the foot of a page
 
 
 def _column_widths(table: Table, width: float, cell_font: str = "Helvetica", head_font: str = "Helvetica-Bold",
@@ -305,6 +307,8 @@ def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
     for i, section in enumerate(doc.sections, 1):
         story.append(heading(f"{i}. {section.title}", section.anchor))
         for block in section.blocks:
+            if getattr(block, "kind", None) == "decision":
+                continue  # decision callouts are shown once, in the summary on page 1
             story.extend(_block(block, styles, width, height))
     footer = _footer(doc.title, styles["regular"], total)
     template.build(story, onFirstPage=footer, onLaterPages=footer)

@@ -44,7 +44,7 @@ def posterior_figures(posterior: Any, out: Path) -> list[Path]:
 
 
 def write_report(out: Path, results: Any, *, invented: bool = False, formats=None, command: str = "",
-                 stem: str = RESULT_FILES["report"]) -> dict[str, Path]:
+                 stem: str = RESULT_FILES["report"], author: str = "", reviewer: str = "") -> dict[str, Path]:
     """Build the report document from ``results`` and render it; returns {format: path}.
 
     Parameters
@@ -60,14 +60,24 @@ def write_report(out: Path, results: Any, *, invented: bool = False, formats=Non
         Formats among :data:`~speciakin.report.render.REPORT_FORMATS` (None: all).
     command
         The command that reproduces the report.
+    author, reviewer
+        Names for the report's QA block (default: the process file's
+        ``[report]`` table).
+
+    A ``suggest.json`` in ``out`` (and ``figures/suggest_shrinkage.png``) adds
+    the next-run suggestion section.
     """
     from speciakin import __version__
     from speciakin.report.assemble import ReportInputs, build_report
+    from speciakin.pipeline.outputs import load_suggestion
     from speciakin.report.render import render_all
 
+    figure = _figures(out) / "suggest_shrinkage.png"
     extra = results.inputs.labelled() if results.inputs is not None else []
     doc = build_report(ReportInputs(
         model=results.model, campaign=results.campaign, predictions=results.predictions, fit=results.fit,
         posterior=results.posterior, window=results.window, process=results.process, check=results.check,
-        command=command, software_version=__version__, extra_inputs=extra, invented=invented))
+        command=command, software_version=__version__, extra_inputs=extra, invented=invented,
+        suggestion=load_suggestion(Path(out)), suggestion_figure=figure if figure.is_file() else None,
+        author=author, reviewer=reviewer, base_folder=Path(out).resolve().parent))
     return render_all(doc, Path(out), stem, tuple(formats) if formats else None)

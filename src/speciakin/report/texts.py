@@ -7,7 +7,7 @@ renderer shows them.
 
 from __future__ import annotations
 
-from typing import Iterable
+from typing import Any, Iterable
 
 from speciakin.report.document import BulletList, Callout, Paragraph, Section
 
@@ -20,16 +20,18 @@ __all__ = [
     "INVENTED_DATA_NOTE",
     "cautions_section",
     "assumptions_section",
+    "model_assumptions",
 ]
 
 CAUTIONS_TITLE = "Cautions"
 
 #: Hazards of the chemistry this kind of model describes.
 CAUTION_ITEMS: tuple[str, ...] = (
-    "Acylating agents such as carboxylic anhydrides and acid chlorides are corrosive. They react "
+    "Reactive reagents such as acylating agents (carboxylic anhydrides and acid chlorides) are corrosive. They react "
     "with water and with bases, and these reactions release heat.",
     "Adding a strong base (for example sodium hydroxide solution) to an aqueous mixture releases "
-    "heat; dosing rate and cooling capacity limit how fast it may be added.",
+    "heat; dosing rate and cooling capacity limit how fast it may be added. Exotherms at plant scale "
+    "must be assessed before scale-up.",
     "Some bases release gas when they neutralise acid (carbonates and hydrogen carbonates give "
     "carbon dioxide); allow for foaming and vessel venting.",
 )
@@ -37,12 +39,14 @@ CAUTION_ITEMS: tuple[str, ...] = (
 DECISION_AID_TEXT = (
     "The fitted model and the pH window in this report are a decision aid. They do not replace a "
     "process-safety assessment (for example reaction calorimetry), a validated analytical method, "
-    "the site's own procedures, or local regulations and licensed professional practice."
+    "the site's own procedures, or local codes, regulations and licensed professional practice; defer "
+    "to the process-safety assessment wherever it differs."
 )
 
 ASSUMPTIONS_TITLE = "Assumptions and limitations"
 
-#: Modelling assumptions every report states.
+#: Modelling assumptions every report states (the model-specific ones come
+#: from :func:`model_assumptions`).
 ASSUMPTION_ITEMS: tuple[str, ...] = (
     "Proton transfers are treated as instantaneous: at every moment each molecule's protonation "
     "states are at equilibrium with the current pH, and only the reactions with the reagent and "
@@ -50,9 +54,6 @@ ASSUMPTION_ITEMS: tuple[str, ...] = (
     "The vessel is treated as ideally mixed. A fast reaction dosed into a stirred vessel can be "
     "limited by mixing at the feed point (a local excess of reagent or base); the kinetic model "
     "does not describe that, so scale-up to a different vessel or feed position needs its own check.",
-    "Activities are approximated by an activity model (Davies equation for ionic strength); in "
-    "water/co-solvent mixtures the electrode pH is an apparent pH and the pKa values fitted here "
-    "hold for that medium only.",
     "Predictions outside the pH, temperature and dosing range of the lab runs are extrapolations.",
 )
 
@@ -77,7 +78,36 @@ def cautions_section(extra_items: Iterable[str] = ()) -> Section:
     ], anchor="cautions")
 
 
-def assumptions_section(unconstrained: Iterable[str] = ()) -> Section:
+def model_assumptions(model: Any = None) -> list[str]:
+    """Assumptions that depend on the model actually used: activity setting, ion product of water,
+    medium.  Without a model nothing is claimed about them."""
+    if model is None:
+        return ["The activity and medium settings of the model are not known to this report."]
+    from speciakin.chemistry.model import ACTIVITY_MODELS
+
+    activity = getattr(model, "activity", "ideal")
+    out = []
+    if activity == "ideal":
+        out.append("Activities: ideal (activity coefficients equal to 1): concentrations stand for activities, "
+                   "so ionic-strength effects on the pKa values and rates are not modelled; they are absorbed "
+                   "into the fitted values, which hold for the ionic strength of the lab runs.")
+    else:
+        out.append(f"Activities: {activity} ({ACTIVITY_MODELS.get(activity, 'as named in the model file')}).")
+    pkw = getattr(model, "pkw", None)
+    medium = getattr(model, "medium", "") or ""
+    if pkw is None:
+        out.append("The ion product of water follows pure water (IAPWS R11-07) at the run temperature.")
+    else:
+        out.append(f"The ion product of the medium{' (' + medium + ')' if medium else ''} is pKw "
+                   f"{pkw.value:.2f} at the reference temperature ({'fitted' if pkw.fit else 'fixed'}), "
+                   "with the temperature dependence of water.")
+    if medium or pkw is not None:
+        out.append("In a water/co-solvent medium the electrode pH is an apparent pH; the pKa values fitted "
+                   "here hold for that medium only.")
+    return out
+
+
+def assumptions_section(unconstrained: Iterable[str] = (), model: Any = None) -> Section:
     """The "Assumptions and limitations" section.
 
     Parameters
@@ -86,9 +116,12 @@ def assumptions_section(unconstrained: Iterable[str] = ()) -> Section:
         Warnings from the fit, one sentence each: parameters the data do not
         pin down (flat or open profile, at a bound), strong correlations.
         Listed under their own heading; an empty list is said in words.
+    model
+        The model used (:class:`speciakin.chemistry.model.Model`): its
+        activity and medium settings give their own items.
     """
     warnings = [str(t) for t in unconstrained]
-    blocks = [BulletList(list(ASSUMPTION_ITEMS)),
+    blocks = [BulletList(list(ASSUMPTION_ITEMS[:2]) + model_assumptions(model) + list(ASSUMPTION_ITEMS[2:])),
               Paragraph("What the data do not constrain:")]
     if warnings:
         blocks.append(BulletList(warnings))

@@ -16,7 +16,13 @@ Sections, in reading order:
 6. Runs: data, fitted curves, predictive bands, residuals, titrant
 7. Convergence and profiles
 8. pH window
-9. Assumptions and limitations; Cautions
+9. Next-run suggestion (only when a suggestion was made)
+10. Quality assurance (document ID, author and reviewer, versions, commit)
+11. Assumptions and limitations; Cautions
+
+Every absolute path in the finished document is made relative to the
+report's base folder (or cut to its last component), so no report shows the
+folders of the machine that made it.
 
 The science-specific pieces live in the other modules of this folder, one
 concern each; this module only orders them.  Curves and fitted values come
@@ -51,10 +57,12 @@ from speciakin.report.assemble.parameters import (
     parameter_section,
     parameter_table,
 )
+from speciakin.palette import SpeciesColors, display_names, model_species_colors
 from speciakin.report.assemble.posterior import convergence_section
+from speciakin.report.assemble.qa import document_id, qa_section, strip_absolute_paths
 from speciakin.report.assemble.runs import observation_table, runs_section
+from speciakin.report.assemble.suggest import SUGGESTION_TITLE, suggestion_section
 from speciakin.report.document import ReportDocument, Section, Table
-from speciakin.palette import SpeciesColors
 from speciakin.report.texts import INVENTED_DATA_NOTE, assumptions_section, cautions_section
 
 __all__ = ["ReportInputs", "build_report", "REPORT_SECTION_TITLES", "NOT_RUN"]
@@ -72,6 +80,8 @@ REPORT_SECTION_TITLES = (
     "Runs: data and fitted curves",
     "Convergence and profiles",
     "pH window",
+    SUGGESTION_TITLE,
+    "Quality assurance",
     "Assumptions and limitations",
     "Cautions",
 )
@@ -112,6 +122,16 @@ class ReportInputs:
         True to label the report as based on invented demonstration data.
     title
         Report title (default: from the model name).
+    suggestion
+        The ``suggest.json`` body, or None (no suggestion section).
+    suggestion_figure
+        Path of ``figures/suggest_shrinkage.png``, or None.
+    author, reviewer
+        Names for the QA block (empty: taken from the process file's
+        ``[report]`` table, else "not stated").
+    base_folder
+        Folder that absolute paths in the report are made relative to
+        (None: paths are cut to their last component).
     """
 
     model: Any
@@ -127,11 +147,17 @@ class ReportInputs:
     extra_inputs: list[tuple[str, str]] = field(default_factory=list)
     invented: bool = False
     title: str = ""
+    suggestion: Any = None
+    suggestion_figure: Any = None
+    author: str = ""
+    reviewer: str = ""
+    base_folder: Any = None
 
 
 def species_colors(model) -> SpeciesColors:
-    """One :class:`SpeciesColors` for the whole report, in the model's molecule order."""
-    return SpeciesColors([m.name for m in model.molecules])
+    """One :class:`SpeciesColors` for the whole report, in the model's molecule order, keyed by
+    compound label (short names as aliases; :func:`speciakin.palette.model_species_colors`)."""
+    return model_species_colors(model)
 
 
 def build_report(inputs: ReportInputs) -> ReportDocument:
@@ -156,24 +182,27 @@ def build_report(inputs: ReportInputs) -> ReportDocument:
         does not belong to the model (parameter names differ).
     """
     colors = species_colors(inputs.model)
+    names = display_names(inputs.model)
     warnings = identifiability_warnings(inputs.fit, inputs.posterior)
     title = inputs.title or f"Speciation-kinetics report: {inputs.model.name}"
     subtitle = INVENTED_DATA_NOTE if inputs.invented else ""
     created = datetime.now(timezone.utc).replace(microsecond=0).isoformat()
 
     sections: list[Section] = [
-        decision_summary_section(inputs.window, inputs.fit, inputs.posterior, inputs.invented),
+        decision_summary_section(inputs.window, inputs.fit, inputs.posterior, inputs.invented, names),
         inputs_section(inputs.campaign, inputs.extra_inputs, inputs.software_version, inputs.command,
                        inputs.check, inputs.invented, created),
         model_section(inputs.model, inputs.fit),
         parameter_section(inputs.fit, inputs.posterior),
         correlation_section(inputs.fit, inputs.posterior, warnings),
-        runs_section(inputs.predictions, inputs.fit, inputs.posterior, colors),
+        runs_section(inputs.predictions, inputs.fit, inputs.posterior, colors, names=names),
         convergence_section(inputs.fit, inputs.posterior),
-        window_section(inputs.window, colors, inputs.process),
-        assumptions_section(warnings),
-        cautions_section(),
+        window_section(inputs.window, colors, inputs.process, names),
     ]
+    suggestion = suggestion_section(inputs.suggestion, inputs.suggestion_figure)
+    if suggestion is not None:
+        sections.append(suggestion)
+    tail = [assumptions_section(warnings, inputs.model), cautions_section()]
     workbook: list[Table] = []
     for table in (parameter_table(inputs.fit, inputs.posterior),
                   interval_table(inputs.fit, inputs.posterior),
@@ -182,7 +211,32 @@ def build_report(inputs: ReportInputs) -> ReportDocument:
                   window_table(inputs.window)):
         if table is not None:
             workbook.append(table)
-    return ReportDocument(title, sections, subtitle=subtitle, created=created,
-                          software_version=inputs.software_version,
-                          command=inputs.command, tables_for_workbook=workbook)
+    command = strip_absolute_paths(inputs.command, inputs.base_folder)
+    doc = _without_absolute_paths(ReportDocument(title, sections + tail, subtitle=subtitle, created=created,
+                                                 software_version=inputs.software_version, command=command,
+                                                 tables_for_workbook=workbook), inputs.base_folder)
+    content = doc.to_dict()
+    content.pop("created", None)
+    process = inputs.process
+    author = inputs.author or (getattr(process, "report_author", "") if process is not None else "")
+    reviewer = inputs.reviewer or (getattr(process, "report_reviewer", "") if process is not None else "")
+    qa = qa_section(document_id(content), author, reviewer, created)
+    doc.sections.insert(len(doc.sections) - len(tail), qa)
+    return doc
+
+
+def _without_absolute_paths(doc: ReportDocument, base: Any) -> ReportDocument:
+    """The document with every absolute path in its text made relative to ``base`` (or cut)."""
+    def clean(value: Any, key: str = "") -> Any:
+        if key == "png_base64":
+            return value
+        if isinstance(value, str):
+            return strip_absolute_paths(value, base)
+        if isinstance(value, dict):
+            return {k: clean(v, k) for k, v in value.items()}
+        if isinstance(value, list):
+            return [clean(v) for v in value]
+        return value
+
+    return ReportDocument.from_dict(clean(doc.to_dict()))
 

@@ -20,10 +20,21 @@ import numpy as np
 
 from speciakin._json import finite_or_none
 from speciakin.palette import SpeciesColors
+from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["decision_summary_section", "window_section", "window_table", "window_centre_outcomes",
-           "format_interval", "specification_limits", "process_block"]
+__all__ = [
+    "decision_summary_section",
+    "status_words",
+    "gate_table",
+    "STATUS_MEANING",
+    "window_section",
+    "window_table",
+    "window_centre_outcomes",
+    "format_interval",
+    "specification_limits",
+    "process_block",
+]
 
 
 def format_interval(interval: tuple[float, float] | None) -> str:
@@ -74,8 +85,47 @@ def _uncertainty_words(source: str) -> str:
     return f"Uncertainty: {source}"
 
 
-def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bool = False) -> Section:
-    """The "Decision summary" section, opened by a decision callout."""
+#: Plain-words meaning of each trust status (decision/gates.py).
+STATUS_MEANING = {
+    "established": "every trust gate passes; the window may be presented as established",
+    "provisional": "at least one trust gate asks for caution; treat the window as provisional",
+    "not established": "at least one trust gate fails; the window must not be relied on",
+}
+
+
+def status_words(window: Any) -> tuple[str, str]:
+    """(status, one sentence with its reasons) of a window's trust gates.
+
+    A window without gate results (older ``window.json``, a bare
+    computation) says so instead of claiming to be established.
+    """
+    status = getattr(window, "status", None)
+    if not status:
+        return "not checked", ("Status: not checked (the window result carries no trust-gate verdict); "
+                               "do not present it as established.")
+    reasons = [str(r).rstrip(".") for r in getattr(window, "status_reasons", []) or []]
+    text = f"Status: {status} ({STATUS_MEANING.get(status, status)})"
+    if reasons:
+        text += ". Reasons: " + "; ".join(reasons)
+    return status, text + "."
+
+
+def gate_table(window: Any) -> Table | None:
+    """One row per trust gate: name, verdict, reasons (None when no gate ran)."""
+    gates = getattr(window, "gates", None) or []
+    if not gates:
+        return None
+    rows = [[str(g.get("name", "")), str(g.get("verdict", "")), "; ".join(str(r) for r in g.get("reasons", []))
+             or None] for g in gates]
+    return Table("Trust gates", ["gate", "verdict", "reasons"], rows,
+                 note="Thresholds as documented with the decision layer (R-hat, ESS, bounds, profiles, pH "
+                      "range and process envelope of the runs, error model); a gate that could not be "
+                      "checked does not lower the status.")
+
+
+def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bool = False,
+                             names: dict[str, str] | None = None) -> Section:
+    """The "Decision summary" section, opened by a decision callout that states the trust status."""
     blocks: list = []
     if window is None:
         text = ("pH window: not run. No process decision can be stated yet; run the window computation "
@@ -84,12 +134,20 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             text += " Least-squares fit: not run."
         blocks.append(Callout("decision", "pH window not computed", text))
         return Section("Decision summary", blocks, anchor="decision")
+    status, status_text = status_words(window)
+    established = status == "established"
     robust = _robust_for_primary(window)
     centre_ph, outcomes = window_centre_outcomes(window)
+    outcomes = [[label_of(names, row[0]), *row[1:]] for row in outcomes]
     if window.primary_window is not None:
-        title = f"Recommended: {format_interval(window.primary_window)}"
-        text = (f"Every specification is met with probability at least {window.level:g} from "
-                f"{format_interval(window.primary_window)}. ")
+        if established:
+            title = f"Recommended: {format_interval(window.primary_window)}"
+        else:
+            title = f"{status.capitalize()}: candidate window {format_interval(window.primary_window)}"
+        text = (f"{status_text}\n\nEvery specification is met with probability at least {window.level:g} from "
+                f"{format_interval(window.primary_window)}"
+                + (" according to the model. " if established else
+                   " according to the model, but the window is not established (see the reasons). "))
         if robust is not None:
             text += (f"Set points from {format_interval(robust)} keep that probability when the pH drifts by "
                      f"+/- {window.tolerance:g}. ")
@@ -98,8 +156,8 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
                      "pH control or a new process is needed. ")
     else:
         title = "No pH window found"
-        text = (f"No pH in the scanned range meets every specification with probability at least "
-                f"{window.level:g}. ")
+        text = (f"{status_text}\n\nNo pH in the scanned range meets every specification with probability at "
+                f"least {window.level:g}. ")
         if window.best_ph is not None:
             text += (f"The highest probability, {window.best_probability:.3f}, is at pH {window.best_ph:.2f}. ")
     if outcomes:
@@ -109,14 +167,18 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if invented:
         text += " Based on invented demonstration data."
     blocks.append(Callout("decision", title, text))
-    rows = [("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),
-            ("Recommended window", format_interval(window.primary_window)),
+    rows = [("Status", status),
+            ("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),
+            ("Candidate window" if not established else "Recommended window", format_interval(window.primary_window)),
             ("Robust set points", format_interval(robust)),
             ("All windows", ", ".join(format_interval(w) for w in window.windows) or "none"),
             ("Best set point", None if window.best_ph is None else f"pH {window.best_ph:.2f} "
              f"(probability {window.best_probability:.3f})"),
             ("Uncertainty source", window.uncertainty_source), ("Draws", window.n_draws)]
     blocks.append(KeyValues(rows, number_format=".3g"))
+    gates = gate_table(window)
+    if gates is not None:
+        blocks.append(gates)
     if outcomes:
         blocks.append(Table(f"Expected outcomes at pH {centre_ph:.2f}", ["species", "median", "5 %", "95 %"],
                             outcomes, units=[None, "mol%", "mol%", "mol%"], formats=[None, ".2f", ".2f", ".2f"],
@@ -163,14 +225,14 @@ def window_table(window: Any) -> Table | None:
                       f"+/- {window.tolerance:g}); {window.n_draws} draws from the {window.uncertainty_source}.")
 
 
-def process_block(process: Any) -> KeyValues | Paragraph:
+def process_block(process: Any, names: dict[str, str] | None = None) -> KeyValues | Paragraph:
     """The planned process the window was computed for (display units)."""
     if process is None:
         return Paragraph("Planned process: no process file was given for this report.")
     rows = [("Process", process.name), ("Description", process.description or None),
-            ("Substrate", f"{process.substrate}, {process.substrate_amount * 1e3:.4g} mmol"),
+            ("Substrate", f"{label_of(names, process.substrate)}, {process.substrate_amount * 1e3:.4g} mmol"),
             ("Initial volume [mL]", process.volume * 1e3),
-            ("Reagent", f"{process.reagent}, {process.equivalents:.4g} eq"),
+            ("Reagent", f"{label_of(names, process.reagent)}, {process.equivalents:.4g} eq"),
             ("Dosing time [min]", process.dosing_time / 60.0), ("Hold time [min]", process.hold_time / 60.0),
             ("Temperature [C]", process.temperature - 273.15),
             ("pH held with", f"{process.titrant} ({process.titrant_concentration:.4g} mol/L)"),
@@ -180,16 +242,18 @@ def process_block(process: Any) -> KeyValues | Paragraph:
     return KeyValues(rows, number_format=".4g")
 
 
-def window_section(window: Any, colors: SpeciesColors, process: Any = None) -> Section:
+def window_section(window: Any, colors: SpeciesColors, process: Any = None,
+                   names: dict[str, str] | None = None) -> Section:
     """The "pH window" section: planned process, probability vs pH, outcomes vs pH, 2-D map, scan table."""
     if window is None:
-        return Section("pH window", [Paragraph("pH window: not run."), process_block(process)], anchor="window")
+        return Section("pH window", [Paragraph("pH window: not run."), process_block(process, names)],
+                       anchor="window")
     from speciakin.report.figures import outcomes_vs_ph_figure, probability_map_figure, probability_vs_ph_figure
 
     ph = np.asarray(window.ph, float)
     p = np.asarray(window.probability, float)
     se = np.asarray(window.probability_standard_error, float)
-    blocks: list = [process_block(process), Figure(probability_vs_ph_figure(
+    blocks: list = [process_block(process, names), Figure(probability_vs_ph_figure(
         ph, p, window.level, window=window.primary_window, robust_window=_robust_for_primary(window),
         probability_low=np.clip(p - 2 * se, 0, 1), probability_high=np.clip(p + 2 * se, 0, 1)),
         f"Probability that every specification is met against set-point pH (band: +/- 2 Monte Carlo "
@@ -197,8 +261,9 @@ def window_section(window: Any, colors: SpeciesColors, process: Any = None) -> S
         f"set points robust to +/- {window.tolerance:g} pH drift.")]
     if window.outcome_names:
         blocks.append(Figure(outcomes_vs_ph_figure(
-            ph, window.outcome_median, window.outcome_lower, window.outcome_upper,
-            specification_limits(window), colors, value_label="end of process", value_unit="mol%"),
+            ph, relabel(window.outcome_median, names), relabel(window.outcome_lower, names),
+            relabel(window.outcome_upper, names), relabel(specification_limits(window), names),
+            colors, value_label="end of process", value_unit="mol%"),
             "Expected outcomes against pH: median (line) and 5-95 % band over the parameter draws; "
             "specification limits as dotted lines."))
     if window.map_probability is not None and window.factor_values is not None:

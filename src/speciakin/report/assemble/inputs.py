@@ -14,7 +14,15 @@ from typing import Any, Sequence
 from speciakin.errors import InputError, Location
 from speciakin.report.document import BulletList, KeyValues, Paragraph, Section, Table
 
-__all__ = ["file_sha256", "input_file_rows", "inputs_section", "model_section", "scheme_lines"]
+__all__ = [
+    "activity_words",
+    "pkw_words",
+    "file_sha256",
+    "input_file_rows",
+    "inputs_section",
+    "model_section",
+    "scheme_lines",
+]
 
 _CHUNK = 1 << 20
 
@@ -121,20 +129,46 @@ def _quantity_rows(model: Any, fitted_values: dict[str, float]) -> list[list[Any
         if q.value == 0.0 and not q.fit and q.unit in ("kJ/mol", ""):
             continue  # unused energies and interactions: nothing to say
         estimate = fitted_values.get(q.name)
-        rows.append([q.name, q.unit or None, float(q.value), "fitted" if q.fit else "fixed", estimate])
+        if q.fit:
+            status = "fitted as a shift from this start" if getattr(q, "shift", False) else "fitted from this start"
+        else:
+            status = "fixed at this value"
+        rows.append([q.name, q.unit or None, float(q.value), status, estimate])
     return rows
+
+
+def activity_words(model: Any) -> str:
+    """The model's activity setting with what it means (the chemistry layer's registry)."""
+    from speciakin.chemistry.model import ACTIVITY_MODELS
+
+    return f"{model.activity} ({ACTIVITY_MODELS.get(model.activity, 'as named in the model file')})"
+
+
+def pkw_words(model: Any) -> str:
+    """The ion product of the medium the model uses, in words."""
+    pkw = getattr(model, "pkw", None)
+    medium = getattr(model, "medium", "") or ""
+    if pkw is None:
+        return "pure water (IAPWS R11-07, temperature dependent)"
+    where = f" of {medium}" if medium else " of the medium"
+    how = "fitted as a shift from" if pkw.fit else "fixed at"
+    return f"pKw{where} {how} {pkw.value:.2f} at the reference temperature, following water's temperature dependence"
 
 
 def model_section(model: Any, fit: Any = None) -> Section:
     """The "The model" section: species and sites, reaction scheme, fitted vs fixed quantities."""
     blocks: list = [KeyValues([("Model", model.name), ("Description", model.description or None),
                                ("Reference temperature [C]", round(model.reference_temperature - 273.15, 2)),
-                               ("Activity correction", model.activity)])]
+                               ("Activity correction", activity_words(model)),
+                               ("Ion product of the medium (pKw)", pkw_words(model))])]
     species_rows = []
     for m in model.molecules:
-        sites = "; ".join(f"{s.name} ({s.kind}, pKa {s.pka.value:.2f})" for s in m.sites) or None
-        species_rows.append([m.name, m.label or None, m.role or None, sites])
-    blocks.append(Table("Species", ["name", "label", "role", "sites"], species_rows))
+        sites = "; ".join(f"{s.name} ({s.kind}, {'starting ' if s.pka.fit else ''}pKa {s.pka.value:.2f})"
+                          for s in m.sites) or None
+        species_rows.append([m.label or m.name, m.name, m.role or None, sites])
+    blocks.append(Table("Species", ["compound", "short name", "role", "sites"], species_rows,
+                        note="Site pKa values as written in the model file: a 'starting' pKa is where the fit "
+                             "began, not a result (results: Parameters section)."))
     scheme = scheme_lines(model)
     blocks.append(Paragraph("Reaction scheme (a site in brackets must be in the state named for the "
                             "step to proceed; proton transfers are treated as instantaneous equilibria):"))
@@ -144,10 +178,10 @@ def model_section(model: Any, fit: Any = None) -> Section:
         for row in fit.rows():
             implied[row["name"]] = row["implied_value"]
     blocks.append(Table("Fitted and fixed quantities",
-                        ["quantity", "unit", "file value", "status", "estimate"],
+                        ["quantity", "unit", "starting or fixed value", "status", "estimate"],
                         _quantity_rows(model, implied),
-                        note="file value: as written in the model file; estimate: least-squares value (empty when "
-                             "not fitted or no fit). log10 k values are in log10 of the rate-constant unit; a "
-                             "fitted pKa is estimated as a shift from the file value and shown as the pKa it "
-                             "implies."))
+                        note="starting or fixed value: as written in the model file (for a fitted quantity only "
+                             "where the fit started); estimate: least-squares result (empty when not fitted or no "
+                             "fit). log10 k values are in log10 of the rate-constant unit; a pKa fitted as a shift "
+                             "is shown as the absolute pKa it implies."))
     return Section("The model", blocks, anchor="model")

@@ -18,14 +18,27 @@ credible intervals).
 
 from __future__ import annotations
 
-from typing import Any
+import re
+from typing import Any, Mapping
 
 import numpy as np
 
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["prior_texts", "posterior_rows", "parameter_section", "parameter_table", "interval_table",
-           "correlation_section", "correlation_table", "identifiability_warnings", "STRONG_CORRELATION"]
+__all__ = [
+    "natural_value",
+    "log_readings_table",
+    "shown_name",
+    "prior_texts",
+    "posterior_rows",
+    "parameter_section",
+    "parameter_table",
+    "interval_table",
+    "correlation_section",
+    "correlation_table",
+    "identifiability_warnings",
+    "STRONG_CORRELATION",
+]
 
 #: |correlation| above which a pair is named in the report (common practice).
 STRONG_CORRELATION = 0.95
@@ -146,6 +159,47 @@ def interval_table(fit: Any, posterior: Any = None) -> Table | None:
                  rows, sheet_name="intervals", note="95 % intervals on the fitted scale.")
 
 
+def shown_name(name: str, is_shift: bool) -> str:
+    """Printed name of a parameter: a pKa fitted as a shift reads "shift of <name>"."""
+    return f"shift of {name}" if is_shift else name
+
+
+def natural_value(row: Mapping[str, Any]) -> str | None:
+    """A fitted value on the scale a chemist reads: the absolute pKa of a shift
+    ("pKa 9.28"), the rate constant of a log10 k with its unit ("k = 10.9 L/(mol*s)")."""
+    value = row.get("value")
+    if value is None or not np.isfinite(value):
+        return None
+    if row.get("shift_of") is not None:
+        return f"pKa {row['implied_value']:.2f}"
+    unit = str(row.get("unit") or "")
+    match = re.fullmatch(r"log10\((.+)\)", unit)
+    if match:
+        return f"k = {10.0 ** float(value):.3g} {match.group(1)}"
+    return None
+
+
+def log_readings_table(fit: Any) -> Table | Paragraph | None:
+    """How many readings of each titrant and pH log entered the fit (None without logs)."""
+    if fit is None:
+        return None
+    objective = getattr(fit, "objective", None) or {}
+    entries = objective.get("log_readings") or []
+    entries = [e for e in entries if e.get("titrant_readings") or e.get("ph_log_readings")]
+    if not entries:
+        return Paragraph("Logs: no titrant or pH log entered the fit (runs at held pH without a titrant log, or "
+                         "runs without logs).") if "log_readings" in objective else None
+    rows = [[str(e.get("run")), int(e.get("titrant_readings", 0)), int(e.get("titrant_used", 0)),
+             int(e.get("ph_log_readings", 0)), int(e.get("ph_log_used", 0))] for e in entries]
+    thinning = objective.get("log_thinning") or {}
+    note = ("Every reading of each log is used" if not thinning else
+            "Logs thinned as set in the model file ("
+            + ", ".join(f"{k}: every {v}-th reading" for k, v in sorted(thinning.items())) + ")")
+    note += "; readings after the run's end time are not used."
+    return Table("Log readings used by the fit", ["run", "titrant log readings", "titrant readings used",
+                                                  "pH log readings", "pH readings used"], rows, note=note)
+
+
 def parameter_section(fit: Any, posterior: Any = None) -> Section:
     """The "Parameters" section: least-squares and posterior tables (split for print)."""
     table = parameter_table(fit, posterior)
@@ -159,20 +213,33 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
                                  ("Chi-square", st.chisqr), ("Reduced chi-square", st.reduced_chisqr),
                                  ("AIC", st.aic), ("BIC", st.bic), ("Converged", bool(st.success))],
                                 number_format=".4g"))
+        logs = log_readings_table(fit)
+        if logs is not None:
+            blocks.append(logs)
     else:
         blocks.append(Paragraph("Least-squares fit: not run; only posterior columns are filled."))
     cols = table.columns
     col = {c: cols.index(c) for c in cols}
+    fit_rows = {r["name"]: r for r in fit.rows()} if fit is not None else {}
+    shifts = {n for n, r in fit_rows.items() if r["shift_of"] is not None}
+
+    def shown(row: list) -> str:
+        return shown_name(row[col["parameter"]], row[col["parameter"]] in shifts)
+
     # printed as three narrow tables so that each fits the A4 text width
-    blocks.append(Table("Least-squares estimates", ["parameter", "unit", "LS estimate", "std. error", "implied pKa"],
-                        [[r[col["parameter"]], r[col["unit"]], r[col["least-squares value"]],
-                          r[col["standard error"]], r[col["implied pKa"]]] for r in table.rows],
-                        formats=[None, None, ".4g", ".3g", ".3f"],
-                        note="For a pKa shift the implied pKa is the model-file value plus the fitted shift."))
+    blocks.append(Table("Least-squares estimates", ["parameter", "unit", "LS estimate", "std. error",
+                                                    "absolute pKa or rate constant"],
+                        [[shown(r), r[col["unit"]], r[col["least-squares value"]],
+                          r[col["standard error"]], natural_value(fit_rows[r[col["parameter"]]])
+                          if r[col["parameter"]] in fit_rows else None] for r in table.rows],
+                        formats=[None, None, ".4g", ".3g", None],
+                        note="A pKa fitted as a shift from its model-file value is listed as 'shift of pKa[...]'; "
+                             "the absolute pKa beside it is the model-file value plus the fitted shift. A rate "
+                             "constant fitted as log10 k is shown beside it as k with its unit."))
     if fit is not None and not fit.profiles:
         blocks.append(Paragraph("Profile likelihood: not computed for this fit."))
     blocks.append(Table("95 % intervals", ["parameter", "covariance 95 %", "profile 95 %"],
-                        [[r[col["parameter"]],
+                        [[shown(r),
                           _interval_text(r[col["covariance 2.5 %"]], r[col["covariance 97.5 %"]]),
                           _interval_text(r[col["profile 2.5 %"]], r[col["profile 97.5 %"]])] for r in table.rows],
                         note="'open': the profile likelihood stays below its threshold on that side within the "
@@ -180,7 +247,7 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
     if posterior is None:
         blocks.append(Paragraph("Posterior sampling: not run. Priors that a sampling run would use:"))
     blocks.append(Table("Posterior and priors", ["parameter", "posterior median", "credible 95 %", "prior"],
-                        [[r[col["parameter"]], r[col["posterior median"]],
+                        [[shown(r), r[col["posterior median"]],
                           _interval_text(r[col["credible 2.5 %"]], r[col["credible 97.5 %"]]),
                           r[col["prior"]]] for r in table.rows],
                         formats=[None, ".4g", None, None],

@@ -23,10 +23,40 @@ import numpy as np
 
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
-__all__ = ["convergence_section", "diagnostics_table", "profile_blocks", "CORNER_MAX_SAMPLES"]
+__all__ = [
+    "stop_words",
+    "STOP_REASONS",
+    "convergence_section",
+    "diagnostics_table",
+    "profile_blocks",
+    "CORNER_MAX_SAMPLES",
+]
 
 #: Most samples drawn in the corner plot (thinned evenly beyond this).
 CORNER_MAX_SAMPLES = 4000
+
+
+#: Plain words for the sampler's stop reasons (estimation/stopping.py).
+STOP_REASONS = {
+    "converged": "a convergence check passed",
+    "cap": "the cap on steps was reached before a convergence check passed",
+    "fixed": "the fixed number of steps that was asked for was reached",
+}
+
+
+def stop_words(posterior: Any) -> str:
+    """Why sampling stopped, in plain words (the sampler's own message when it has one)."""
+    reason = getattr(posterior, "stop_reason", None)
+    message = getattr(posterior, "stop_message", "") or ""
+    if not reason:
+        return "not recorded"
+    text = STOP_REASONS.get(reason, reason)
+    checks = getattr(posterior, "stop_checks", None) or []
+    if message:
+        text += f" ({message.rstrip('.')})"
+    if checks:
+        text += f"; {len(checks)} convergence check{'s' if len(checks) != 1 else ''} made"
+    return text
 
 
 def diagnostics_table(posterior: Any) -> Table:
@@ -92,6 +122,7 @@ def convergence_section(fit: Any, posterior: Any) -> Section:
              f"{d.acceptance_mean:.3f}, {d.acceptance_min:.3f}, {d.acceptance_max:.3f}"),
             ("Chain length / longest autocorrelation time", d.tau_multiple),
             ("Converged", bool(d.converged)), ("Seed", posterior.seed),
+            ("Why sampling stopped", stop_words(posterior)),
         ], number_format=".4g"))
         blocks.append(diagnostics_table(posterior))
         notes = list(d.warnings) + [w for w in posterior.warnings if w not in d.warnings]

@@ -14,8 +14,9 @@ from typing import Any
 
 import numpy as np
 
-from speciakin.report.document import Figure, Paragraph, Section, Table
 from speciakin.palette import SpeciesColors
+from speciakin.report.assemble.names import label_of, relabel
+from speciakin.report.document import Figure, Paragraph, Section, Table
 
 __all__ = ["observation_table", "runs_section"]
 
@@ -55,7 +56,7 @@ def _observed_points(observations: list) -> tuple[dict, dict, dict, dict]:
 
 
 def runs_section(predictions: Any, fit: Any, posterior: Any, colors: SpeciesColors,
-                 figure_names: dict[str, Figure] | None = None) -> Section:
+                 figure_names: dict[str, Figure] | None = None, names: dict[str, str] | None = None) -> Section:
     """The "Runs: data and fitted curves" section.
 
     ``figure_names``, when given, receives each figure under a file-friendly
@@ -81,10 +82,11 @@ def runs_section(predictions: Any, fit: Any, posterior: Any, colors: SpeciesColo
     for run in predictions.runs:
         name = run.name
         hplc = [o for o in predictions.observations if o.run == name and not o.titrant]
-        t_obs, y_obs, cens, loq = _observed_points(hplc)
+        t_obs, y_obs, cens, loq = (relabel(d, names) for d in _observed_points(hplc))
         has_curve = run.time is not None
         blocks.append(named.setdefault(f"run_{name}", Figure(time_course_figure(
-            t_obs, y_obs, run.time, run.values, colors, cens, loq, run.low, run.high,
+            t_obs, y_obs, run.time, relabel(run.values, names), colors, cens, loq, relabel(run.low, names),
+            relabel(run.high, names),
             title=f"Run {name}", value_label=run.value_label, value_unit=run.value_unit),
             f"Run {name}: HPLC data (points; open triangles at the LOQ for values below it)"
             + (f", {what} (lines)" if has_curve else "") + (", 5-95 % predictive band" if run.low else "") + ".")))
@@ -99,7 +101,7 @@ def runs_section(predictions: Any, fit: Any, posterior: Any, colors: SpeciesColo
                 title=f"Run {name}: titrant consumed"),
                 f"Run {name} (pH held): titrant consumed, controller log and model"
                 + (" with 5-95 % band." if has_curve and run.titrant_low is not None else "."))))
-    residual_blocks = _residual_blocks(predictions, fit, colors)
+    residual_blocks = _residual_blocks(predictions, fit, colors, names)
     for block in residual_blocks:
         if isinstance(block, Figure):
             named.setdefault("residuals", block)
@@ -107,7 +109,8 @@ def runs_section(predictions: Any, fit: Any, posterior: Any, colors: SpeciesColo
     return Section(title, blocks, anchor="runs")
 
 
-def _residual_blocks(predictions: Any, fit: Any, colors: SpeciesColors) -> list:
+def _residual_blocks(predictions: Any, fit: Any, colors: SpeciesColors,
+                     names: dict[str, str] | None = None) -> list:
     """One residual figure for the HPLC data of every run, and the RMS per run and observable."""
     from speciakin.report.figures import residuals_figure
 
@@ -121,7 +124,7 @@ def _residual_blocks(predictions: Any, fit: Any, colors: SpeciesColors) -> list:
         unit = units.pop() if len(units) == 1 else "data scale"
         blocks.append(Figure(residuals_figure(
             np.array([o.time for o in finite]), np.array([o.fitted for o in finite]),
-            np.array([o.residual for o in finite]), [o.key for o in finite], colors,
+            np.array([o.residual for o in finite]), [label_of(names, o.key) for o in finite], colors,
             prediction_label=f"fitted [{unit}]", title="Weighted residuals of the HPLC data, all runs"),
             "Weighted residuals of every HPLC value against time and against the fitted value; they "
             "should scatter around 0 with a standard deviation near 1 when the error model holds."))

@@ -16,8 +16,18 @@ from matplotlib.figure import Figure
 
 from speciakin.errors import InputError, Location
 
-__all__ = ["TEXT_WIDTH_IN", "DEFAULT_HEIGHT_IN", "DPI", "RC", "new_figure", "to_png", "as_array",
-           "same_length"]
+__all__ = [
+    "legend_below",
+    "LEGEND_WRAP",
+    "TEXT_WIDTH_IN",
+    "DEFAULT_HEIGHT_IN",
+    "DPI",
+    "RC",
+    "new_figure",
+    "to_png",
+    "as_array",
+    "same_length",
+]
 
 #: Text width of an A4 page with 25 mm margins: 160 mm [in].
 TEXT_WIDTH_IN = 160.0 / 25.4
@@ -59,19 +69,44 @@ def to_png(fig: Figure, dpi: int = DPI) -> bytes:
 
 
 def finish_with_legend(fig: Figure, ax: Any, x_label: str, y_label: str, title: str = "",
-                       band_label: str | None = None) -> bytes:
+                       band_label: str | None = None, handles: list | None = None) -> bytes:
     """Label the axes, add the title, a legend entry for a grey band (when
-    ``band_label``) and the legend right of the axes; PNG bytes of ``fig``."""
+    ``band_label``) and the legend below the axes in two columns (long
+    compound names keep the full plot width); PNG bytes of ``fig``.
+    ``handles``: the legend entries (default: the labelled artists of ``ax``)."""
     from speciakin.palette import NEUTRAL
 
-    if band_label:
-        ax.fill_between([], [], [], color=NEUTRAL, alpha=0.18, linewidth=0, label=band_label)
+    if handles is None:
+        if band_label:
+            ax.fill_between([], [], [], color=NEUTRAL, alpha=0.18, linewidth=0, label=band_label)
+        handles = ax.get_legend_handles_labels()[0]
+    elif band_label:
+        from matplotlib.patches import Patch
+
+        handles = [*handles, Patch(color=NEUTRAL, alpha=0.18, linewidth=0, label=band_label)]
     ax.set_xlabel(x_label)
     ax.set_ylabel(y_label)
     if title:
         ax.set_title(title)
-    ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), frameon=False)
+    if handles:
+        legend_below(fig, handles)
     return to_png(fig)
+
+
+#: Characters of a legend label per line in a two-column legend below a text-width figure.
+LEGEND_WRAP = 44
+
+
+def legend_below(fig: Figure, handles: list | None = None) -> None:
+    """The figure's legend below the axes, two columns, labels wrapped to :data:`LEGEND_WRAP`
+    characters (compound names can be long), at the legend font size of :data:`RC`."""
+    import textwrap
+
+    if handles is None:
+        handles = [h for ax in fig.axes for h in ax.get_legend_handles_labels()[0]]
+    for h in handles:
+        h.set_label("\n".join(textwrap.wrap(h.get_label(), LEGEND_WRAP)) or h.get_label())
+    fig.legend(handles=handles, loc="outside lower center", ncol=2, frameon=False, fontsize=RC["legend.fontsize"])
 
 
 def as_array(values: Any, name: str, ndim: int = 1, allow_nan: bool = True) -> np.ndarray:

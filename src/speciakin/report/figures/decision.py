@@ -15,6 +15,7 @@ import numpy as np
 
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
+                                             legend_below,
                                              new_figure, same_length, to_png)
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
@@ -67,7 +68,7 @@ def probability_vs_ph_figure(
         raise InputError("probability level out of range", Location(key="level"), level, "a number between 0 and 1")
     window = _interval(window, "window")
     robust_window = _interval(robust_window, "robust_window")
-    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN)
+    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.5)
     ax = fig.add_subplot()
     if window:
         ax.axvspan(*window, color=OKABE_ITO["sky blue"], alpha=0.25, linewidth=0,
@@ -86,7 +87,7 @@ def probability_vs_ph_figure(
     ax.set_ylabel("probability [-]")
     if title:
         ax.set_title(title)
-    ax.legend(frameon=False, loc="best")
+    legend_below(fig)  # below the axes: never over the curve or the shaded window
     return to_png(fig)
 
 
@@ -116,7 +117,7 @@ def outcomes_vs_ph_figure(
     """
     x = as_array(ph, "ph", allow_nan=False)
     colors = colors or SpeciesColors(list(median))
-    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.3)
+    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.8)
     ax = fig.add_subplot()
     for name, values in median.items():
         y = as_array(values, f"median['{name}']")

@@ -21,7 +21,8 @@ from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
 from speciakin.palette import NEUTRAL, OKABE_ITO
 
-__all__ = ["PROFILE_THRESHOLD_95", "profile_figure", "trace_figure", "corner_figure", "correlation_figure"]
+__all__ = ["PROFILE_THRESHOLD_95", "profile_figure", "profile_plot", "trace_figure", "corner_figure", "corner_plot",
+           "correlation_figure"]
 
 #: 95 % quantile of the chi-square distribution with 1 degree of freedom
 #: (scipy.stats.chi2.ppf(0.95, 1) = 3.841458820694124).
@@ -41,9 +42,9 @@ def profile_figure(
     best: Mapping[str, float] | None = None,
     threshold: float = PROFILE_THRESHOLD_95,
     units: Mapping[str, str] | None = None,
-    columns: int = 3,
+    columns: int = 2,
 ) -> bytes:
-    """Profile likelihood of each parameter: delta chi-square against value [1]_.
+    """Profile likelihood of each parameter: delta chi-square against value [1]_ (PNG bytes).
 
     Parameters
     ----------
@@ -58,13 +59,29 @@ def profile_figure(
     units
         Per parameter: unit shown in the axis label.
     """
+    return to_png(profile_plot(values, delta_chi_square, best, threshold, units, columns))
+
+
+def _wrap(text: str, width: int) -> str:
+    import textwrap
+
+    return "\n".join(textwrap.wrap(text, width, break_long_words=True, break_on_hyphens=False)) or text
+
+
+def profile_plot(values, delta_chi_square, best=None, threshold: float = PROFILE_THRESHOLD_95, units=None,
+                 columns: int = 2):
+    """The matplotlib figure of :func:`profile_figure` (drawn, not yet saved): one panel per
+    parameter, its name as the panel title (wrapped), few ticks so no label overlaps."""
+    from matplotlib.ticker import MaxNLocator
+
     names = list(values)
     if not names:
         raise InputError("no profile to plot", Location(key="values"), None, "at least one parameter")
     n_cols = max(1, min(columns, len(names)))
     n_rows = math.ceil(len(names) / n_cols)
-    fig = new_figure(TEXT_WIDTH_IN, 2.1 * n_rows + 0.3)
+    fig = new_figure(TEXT_WIDTH_IN, 2.3 * n_rows + 0.3)
     axes = np.atleast_1d(fig.subplots(n_rows, n_cols, squeeze=False)).ravel()
+    chars = int(90 / n_cols)
     for ax, name in zip(axes, names):
         if name not in delta_chi_square:
             raise InputError("profile values without delta chi-square", Location(key=f"delta_chi_square['{name}']"),
@@ -78,12 +95,16 @@ def profile_figure(
         if best and name in best:
             ax.axvline(float(best[name]), color=OKABE_ITO["vermillion"], linewidth=1.0)
         unit = (units or {}).get(name)
-        ax.set_xlabel(f"{name} [{unit}]" if unit else name)
+        ax.set_title(_wrap(name, chars), fontsize=8)
+        ax.set_xlabel(_wrap(f"value [{unit}]" if unit else "value", chars))
         ax.set_ylabel("\u0394\u03c7\u00b2 [-]")
         ax.set_ylim(bottom=0.0)
+        ax.xaxis.set_major_locator(MaxNLocator(3))  # long labels (-0.4512) stay apart
+        ax.yaxis.set_major_locator(MaxNLocator(4))
     for ax in axes[len(names):]:
         ax.set_visible(False)
-    return to_png(fig)
+    fig.canvas.draw()
+    return fig
 
 
 def trace_figure(
@@ -141,6 +162,18 @@ def corner_figure(
     bins
         Histogram bins per axis.
     """
+    return to_png(corner_plot(samples, names, truths, bins))
+
+
+def corner_plot(samples, names, truths=None, bins: int = 30):
+    """The matplotlib figure of :func:`corner_figure` (drawn, not yet saved).
+
+    Axes are labelled by parameter number; the key (number = name) sits in
+    the empty upper triangle, and each axis keeps at most three ticks, so no
+    label overlaps another however many parameters there are.
+    """
+    from matplotlib.ticker import MaxNLocator
+
     draws = as_array(samples, "samples", ndim=2, allow_nan=False)
     n_par = draws.shape[1]
     names = _names(names, n_par, "names")
@@ -148,8 +181,9 @@ def corner_figure(
     if ref is not None and len(ref) != n_par:
         raise InputError("one reference value per parameter needed", Location(key="truths"), len(ref),
                          f"{n_par} values")
-    size = min(TEXT_WIDTH_IN, 1.6 * n_par + 0.6)
+    size = min(TEXT_WIDTH_IN, 1.6 * n_par + 0.6) if n_par > 1 else 3.2
     fig = new_figure(size, size)
+    small = 6 if n_par > 4 else 7
     axes = fig.subplots(n_par, n_par, squeeze=False)
     for row in range(n_par):
         for col in range(n_par):
@@ -167,15 +201,25 @@ def corner_figure(
             if ref is not None:
                 ax.axvline(ref[col], color=OKABE_ITO["vermillion"], linewidth=0.9)
             ax.grid(False)
+            ax.xaxis.set_major_locator(MaxNLocator(3 if n_par <= 4 else 2, prune="both"))
+            ax.yaxis.set_major_locator(MaxNLocator(3 if n_par <= 4 else 2, prune="both"))
+            ax.tick_params(labelsize=small)
             if row == n_par - 1:
-                ax.set_xlabel(names[col])
+                ax.set_xlabel(f"({col + 1})" if n_par > 1 else names[col], fontsize=small + 1)
+                ax.tick_params(axis="x", labelrotation=45 if n_par <= 4 else 90)
             else:
                 ax.set_xticklabels([])
             if col == 0 and row > 0:
-                ax.set_ylabel(names[row])
-            elif col > 0:
+                ax.set_ylabel(f"({row + 1})", fontsize=small + 1)
+            elif col > 0 or row == 0:
                 ax.set_yticklabels([])
-    return to_png(fig)
+    if n_par > 1:
+        # the key fills the empty upper triangle: wrap to its width (character ~0.55 em)
+        chars = max(12, int(0.9 * size * (n_par - 1) / n_par / (0.55 * (small + 1) / 72.0)) - 5)
+        key = "\n".join(f"({i + 1}) {_wrap(n, chars)}" for i, n in enumerate(names))
+        fig.text(0.98, 0.98, key, ha="right", va="top", fontsize=small + 1, linespacing=1.3, multialignment="left")
+    fig.canvas.draw()
+    return fig
 
 
 def correlation_figure(matrix: Sequence[Sequence[float]], names: Sequence[str], annotate: bool | None = None) -> bytes:

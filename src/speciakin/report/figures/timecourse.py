@@ -8,6 +8,7 @@ import numpy as np
 
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
+                                             legend_below,
                                              new_figure, same_length, to_png)
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
@@ -55,9 +56,10 @@ def time_course_figure(
         PNG image.
     """
     colors = colors or SpeciesColors(list(dict.fromkeys([*observed, *(model or {})])))
-    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.4)
+    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 1.0)
     ax = fig.add_subplot()
     grid = as_array(model_time, "model_time") if model_time is not None else None
+    any_censored = False
     for name, values in (model or {}).items():
         y = as_array(values, f"model['{name}']")
         if grid is None:
@@ -69,7 +71,7 @@ def time_course_figure(
             hi = as_array(band_high[name], f"band_high['{name}']")
             same_length(model_time=grid, band_low=lo, band_high=hi)
             ax.fill_between(grid, lo, hi, color=style.color, alpha=0.18, linewidth=0)
-        ax.plot(grid, y, color=style.color, linestyle=style.line_style, linewidth=1.6, label=f"{name} model")
+        ax.plot(grid, y, color=style.color, linestyle=style.line_style, linewidth=1.6)
     for name, values in observed.items():
         if name not in observed_time:
             raise InputError("no sampling times for species", Location(key=f"observed_time['{name}']"), name,
@@ -83,17 +85,30 @@ def time_course_figure(
             same_length(observed_time=t, censored=cens)
         style = colors.style(name)
         ax.plot(t[~cens], y[~cens], linestyle="none", marker=style.marker, markersize=4.5,
-                color=style.color, label=f"{name} data")
+                color=style.color)
         if cens.any():
             level = (loq or {}).get(name)
             if level is None or not np.isfinite(level):
                 raise InputError("censored points need the limit of quantitation", Location(key=f"loq['{name}']"),
                                  level, "a finite number")
             ax.plot(t[cens], np.full(int(cens.sum()), float(level)), linestyle="none", marker="v",
-                    markersize=5.5, markerfacecolor="none", markeredgecolor=style.color,
-                    label=f"{name} <LOQ")
+                    markersize=5.5, markerfacecolor="none", markeredgecolor=style.color)
+            any_censored = True
+    # one entry per species (its colour, line and marker), then what lines, points and triangles mean
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], color=colors.style(n).color, linestyle=colors.style(n).line_style,
+                      marker=colors.style(n).marker, markersize=4.5, linewidth=1.6, label=n)
+               for n in dict.fromkeys([*(model or {}), *observed])]
+    if model:
+        handles.append(Line2D([], [], color=NEUTRAL, linewidth=1.6, label="lines: model"))
+    handles.append(Line2D([], [], color=NEUTRAL, linestyle="none", marker="o", markersize=4.5,
+                          label="points: data"))
+    if any_censored:
+        handles.append(Line2D([], [], color=NEUTRAL, linestyle="none", marker="v", markersize=5.5,
+                              markerfacecolor="none", label="open triangles: below the LOQ (at the LOQ)"))
     return finish_with_legend(fig, ax, f"time [{time_unit}]", f"{value_label} [{value_unit}]", title,
-                              band_label if band_low and band_high else None)
+                              band_label if band_low and band_high else None, handles=handles)
 
 
 def residuals_figure(
@@ -126,7 +141,7 @@ def residuals_figure(
     names = np.asarray(list(species), dtype=object)
     same_length(time=t, predicted=p, residual=r, species=names)
     colors = colors or SpeciesColors(list(dict.fromkeys(names.tolist())))
-    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN)
+    fig = new_figure(TEXT_WIDTH_IN, DEFAULT_HEIGHT_IN + 0.6)
     left, right = fig.subplots(1, 2, sharey=True)
     for name in dict.fromkeys(names.tolist()):
         sel = names == name
@@ -139,7 +154,7 @@ def residuals_figure(
     left.set_xlabel(f"time [{time_unit}]")
     right.set_xlabel(prediction_label)
     left.set_ylabel(residual_label)
-    left.legend(frameon=False)
+    legend_below(fig)
     if title:
         fig.suptitle(title)
     return to_png(fig)
