@@ -23,7 +23,13 @@ def add_arguments(parser) -> None:
 def run(args) -> int:
     import webbrowser
 
-    from speciakin.web import create_app, make_server, new_token
+    try:
+        from speciakin.web import create_app, make_server, new_token
+    except ImportError as exc:
+        from speciakin.errors import InputError, Location
+
+        raise InputError("the workbench page needs the 'web' extra", Location(key="web"), exc.name,
+                         "pip install 'speciakin[web]' (dash, dash-ag-grid, plotly)") from None
 
     import speciakin.data.importer  # noqa: F401  (loaded once before the first page asks)
     import speciakin.pipeline  # noqa: F401

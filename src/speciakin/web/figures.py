@@ -9,13 +9,15 @@ from __future__ import annotations
 
 from typing import Any
 
+import html
+
 import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
 from speciakin.palette import SpeciesColors
 
-__all__ = ["MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure"]
+__all__ = ["label", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure"]
 
 #: Most points of one trace drawn on the page; longer logs are thinned.
 MAX_POINTS = 1500
@@ -33,6 +35,12 @@ def thin(x: np.ndarray, y: np.ndarray, limit: int = MAX_POINTS) -> tuple[np.ndar
     k = int(np.ceil(n / limit))
     idx = np.unique(np.r_[np.arange(0, n, k), n - 1])
     return np.asarray(x)[idx], np.asarray(y)[idx], k
+
+
+def label(text) -> str:
+    """User text (run, compound names) for a Plotly label: its few markup tags are escaped so that
+    a name is shown as written, never read as markup."""
+    return html.escape(str(text), quote=False)
 
 
 def empty_figure(text: str) -> go.Figure:
@@ -62,13 +70,13 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
     for name in dict.fromkeys(h.compound.tolist()):
         pick = h.compound == name
         shown = np.where(h.censored[pick], np.nan, h.value[pick])
-        fig.add_trace(go.Scatter(x=h.time[pick] / _S_PER_MIN, y=shown, mode="markers", name=str(name),
+        fig.add_trace(go.Scatter(x=h.time[pick] / _S_PER_MIN, y=shown, mode="markers", name=label(name),
                                  marker=dict(color=colors.color(str(h.molecule[pick][0])))), row=1, col=1)
         low = h.censored[pick]
         if low.any():
+            marker = dict(symbol="triangle-down-open", color=colors.color(str(h.molecule[pick][0])))
             fig.add_trace(go.Scatter(x=h.time[pick][low] / _S_PER_MIN, y=np.nan_to_num(h.loq[pick][low]),
-                                     mode="markers", name=f"{name} below LOQ", marker=dict(symbol="triangle-down-open",
-                                     color=colors.color(str(h.molecule[pick][0])))), row=1, col=1)
+                                     mode="markers", name=label(f"{name} below LOQ"), marker=marker), row=1, col=1)
     ph = run.recipe.ph
     if run.ph_log is not None and len(run.ph_log):
         _log_trace(fig, run.ph_log, lambda v: v, "pH log", 1, 2, notes, "#000000")
@@ -91,9 +99,9 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
     for r, c in ((1, 1), (1, 2), (2, 1), (2, 2)):
         fig.update_xaxes(title_text="time [min]", row=r, col=c)
     fig.update_layout(template=TEMPLATE, height=560, margin=dict(l=50, r=20, t=60, b=40),
-                      title=dict(text=f"run {run.name}: data as imported", font=dict(size=15)))
+                      title=dict(text=f"run {label(run.name)}: data as imported", font=dict(size=15)))
     note = "; ".join(notes) if notes else "every reading shown"
-    fig.add_annotation(text=note, showarrow=False, x=0, y=-0.13, xref="paper", yref="paper", xanchor="left",
+    fig.add_annotation(text=note, showarrow=False, x=1, y=1.1, xref="paper", yref="paper", xanchor="right",
                        font=dict(size=11, color="#555555"))
     return fig
 
@@ -108,21 +116,22 @@ def fit_run_figure(prediction, observations: list, colors: SpeciesColors) -> go.
             if prediction.low and key in prediction.low:
                 fig.add_trace(go.Scatter(x=np.r_[prediction.time, prediction.time[::-1]],
                                          y=np.r_[prediction.high[key], prediction.low[key][::-1]], fill="toself",
-                                         line=dict(width=0), fillcolor=color, opacity=0.2, name=f"{key} band",
-                                         hoverinfo="skip"))
-            fig.add_trace(go.Scatter(x=prediction.time, y=y, mode="lines", name=f"{key} fitted",
+                                         line=dict(width=0), fillcolor=color, opacity=0.2,
+                                         name=label(f"{key} band"), hoverinfo="skip"))
+            fig.add_trace(go.Scatter(x=prediction.time, y=y, mode="lines", name=label(f"{key} fitted"),
                                      line=dict(color=color)))
     for key in dict.fromkeys(o.key for o in observations if not o.titrant):
         rows = [o for o in observations if o.key == key and not o.titrant]
         fig.add_trace(go.Scatter(x=[o.time for o in rows],
                                  y=[o.observed if o.observed is not None else o.loq for o in rows],
-                                 mode="markers", name=f"{key} observed",
+                                 mode="markers", name=label(f"{key} observed"),
                                  marker=dict(color=colors.color(key),
                                              symbol=["triangle-down-open" if o.censored else "circle" for o in rows])))
-    title = f"run {prediction.name}: fitted curves over data"
+    title = f"run {label(prediction.name)}: fitted curves over data"
     if prediction.failed:
         title += " (the simulation at the fitted parameters failed)"
-    fig.update_layout(template=TEMPLATE, title=dict(text=title, font=dict(size=15)), height=460, xaxis_title="time [min]",
+    fig.update_layout(template=TEMPLATE, title=dict(text=title, font=dict(size=15)), height=460,
+                      xaxis_title="time [min]",
                       yaxis_title=f"{prediction.value_label} [{unit}]" if unit else prediction.value_label,
                       margin=dict(l=60, r=20, t=60, b=40))
     return fig
@@ -145,7 +154,8 @@ def window_figure(window: Any) -> go.Figure:
         fig.add_vrect(x0=lo, x1=hi, fillcolor="#009E73", opacity=0.15, line_width=0,
                       annotation_text=f"window pH {lo:.2f}-{hi:.2f}", annotation_position="top left")
     status = window.status or "no trust status"
-    fig.update_layout(template=TEMPLATE, title=dict(text=f"probability of meeting spec against pH: {status}", font=dict(size=15)),
+    fig.update_layout(template=TEMPLATE, title=dict(text=f"probability of meeting spec against pH: {status}",
+                                                    font=dict(size=15)),
                       xaxis_title="pH", yaxis_title="probability [-]", yaxis_range=[-0.02, 1.05], height=440,
                       margin=dict(l=60, r=20, t=60, b=40))
     return fig

@@ -18,6 +18,7 @@ __all__ = ["layout", "register", "check_rows", "CHECK_COLUMNS"]
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
+_WRAPPED = ("message", "value", "expected")
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
 
@@ -44,7 +45,7 @@ def layout() -> html.Div:
         html.H3("Check"),
         html.Div(id="check-summary"),
         dag.AgGrid(id="check-table", columnDefs=[{"field": f, "headerName": h, "flex": 3 if f == "message" else 1,
-                                                  "wrapText": f == "message", "autoHeight": f == "message"}
+                                                  "wrapText": f in _WRAPPED, "autoHeight": f in _WRAPPED}
                                                  for f, h in CHECK_COLUMNS],
                    rowData=[], defaultColDef={"sortable": True, "resizable": True, "filter": True},
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),

@@ -38,4 +38,5 @@ def register(app, state) -> None:
             text = state.cached("model", [path], lambda: model_summary(load_model(path)))
         except SpeciakinError as exc:
             return "", f"error: {exc}"
+        text = text.replace("\nRuns\n  (none)\n", "\nRuns\n  (from the workbook: see step 1)\n")
         return text, f"model file: {name}/model.toml"
