@@ -55,17 +55,24 @@ def _interval(pair) -> str:
     return f"{'open' if lo is None else f'{lo:.4g}'} to {'open' if hi is None else f'{hi:.4g}'}"
 
 
+def _profile(p: dict) -> str:
+    """The profile interval, "not computed" when the fit ran without profiles (no open-end flags)."""
+    if p.get("profile_open_below") is None and p.get("profile_open_above") is None:
+        return "not computed"
+    return _interval(p.get("profile_interval"))
+
+
 def parameter_rows(fit_data: dict) -> list[dict]:
     """One row per parameter of ``fit.json``: value, standard error, covariance and profile intervals."""
     rows = []
     for p in fit_data.get("parameters", []):
         notes = [n for n, flag in (("fixed", p.get("fixed")), ("at a bound", p.get("at_bound"))) if flag]
-        if p.get("implied_value") is not None:
-            notes.append(f"implies {p['implied_value']:.4g}")
+        if p.get("shift_of") is not None and p.get("implied_value") is not None:
+            notes.append(f"shift of {p['shift_of']:g}: implies {p['implied_value']:.4g}")
         value, se = p.get("value"), p.get("standard_error")
         rows.append({"name": p.get("name"), "unit": p.get("unit") or "",
                      "value": "" if value is None else f"{value:.5g}", "se": "" if se is None else f"{se:.3g}",
-                     "ci": _interval(p.get("covariance_interval")), "profile": _interval(p.get("profile_interval")),
+                     "ci": _interval(p.get("covariance_interval")), "profile": _profile(p),
                      "note": ", ".join(notes)})
     return rows
 
