@@ -125,9 +125,10 @@ def test_a_running_job_can_be_cancelled(server, page, shot):
     page.click("#job-start")
     page.wait_for_selector("#job-message:has-text('started job')")
     job = state.board.jobs("short")[0]
-    page.wait_for_selector(f"#job-{job.id} button:has-text('Cancel')")
+    page.wait_for_selector(f"#job-{job.id}:has-text('stage starts')")  # the fit is running
+    shot(page, "07-job-before-cancel")
     page.click(f"#job-{job.id} button:has-text('Cancel')")
     page.wait_for_selector(f"#job-{job.id}:has-text('cancelled')", timeout=600_000)
-    shot(page, "07-job-cancelled")
-    assert job.state == "cancelled"
+    shot(page, "08-job-cancelled")
+    assert job.state == "cancelled" and "step 'starts' cancelled" in job.message
     assert not (state.root / "short" / job.folder / "fit.json").exists()

@@ -84,7 +84,7 @@ def test_a_script_in_a_compound_name_is_shown_as_text(server, page, shot):
     assert SCRIPT_NAME in page.inner_text("#check-table")
     assert page.evaluate("window.__injected") is None
     assert page.locator("#check-table script").count() == 0
-    shot(page, "08-script-name-as-text")
+    shot(page, "09-script-name-as-text")
 
 
 def test_a_host_other_than_loopback_needs_a_token(root, capsys):

@@ -17,13 +17,13 @@ def layout() -> html.Div:
         html.H3("Start a job"),
         html.Div(className="row", children=[
             html.Label("least-squares starts", htmlFor="job-starts"),
-            dcc.Input(id="job-starts", type="number", min=1, max=64, step=1, value=None,
-                      placeholder="model file's", style={"width": "9em"}),
+            html.Div(dcc.Input(id="job-starts", type="number", min=1, max=64, step=1, value=None,
+                               placeholder="model file's"), style={"width": "11em"}),
             dcc.Checklist(id="job-profiles", options=[{"label": "profile intervals", "value": "yes"}],
                           value=["yes"]),
             html.Label("window draws", htmlFor="job-draws"),
-            dcc.Input(id="job-draws", type="number", min=4, max=5000, step=1, value=None,
-                      placeholder="process file's", style={"width": "9em"}),
+            html.Div(dcc.Input(id="job-draws", type="number", min=4, max=5000, step=1, value=None,
+                               placeholder="process file's"), style={"width": "11em"}),
             html.Button("Start fit and window", id="job-start", n_clicks=0),
         ]),
         html.Div(id="job-message", className="message", role="status"),
@@ -51,7 +51,8 @@ def job_card(view: dict) -> html.Div:
     if running:
         parts += [html.Div([f"stage {view['stage']}: {view['done']} of {view['total']}  ",
                             html.Progress(value=str(view["done"]), max=str(total)),
-                            f"  time left in this stage: {_duration(view['seconds_left'])}"]),
+                            f"  time left in this stage: {_duration(view['seconds_left'])}; "
+                            f"running for {_duration(view['elapsed'])}"]),
                   html.Button("Cancel", id={"type": "job-cancel", "id": view["id"]}, n_clicks=0)]
     else:
         parts.append(html.Div(f"took {_duration(view['elapsed'])}"))

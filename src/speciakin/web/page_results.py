@@ -31,7 +31,8 @@ def layout() -> html.Div:
         ]),
         html.Div(id="result-message", className="message"),
         html.H3("Fitted parameters"),
-        dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h, "flex": 1}
+        dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
+                                                      "flex": 2 if f in ("name", "note", "ci") else 1}
                                                      for f, h in PARAMETER_COLUMNS],
                    rowData=[], defaultColDef={"sortable": True, "resizable": True},
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
