@@ -7,13 +7,13 @@ import binascii
 import re
 
 import dash_ag_grid as dag
-from dash import Input, Output, State, dcc, html, no_update
+from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web.figures import empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
-__all__ = ["layout", "register", "check_rows", "CHECK_COLUMNS"]
+__all__ = ["layout", "register", "check_rows", "folder_picker", "CHECK_COLUMNS"]
 
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
@@ -22,14 +22,18 @@ _WRAPPED = ("message", "value", "expected")
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
 
+def folder_picker(label: str, prefix: str, placeholder: str) -> html.Div:
+    """A labelled dropdown ``<prefix>-choice`` with a ``<prefix>-refresh`` button."""
+    return html.Div(className="row", children=[
+        html.Label(label, htmlFor=f"{prefix}-choice"),
+        dcc.Dropdown(id=f"{prefix}-choice", placeholder=placeholder, clearable=False, style={"minWidth": "320px"}),
+        html.Button("Refresh list", id=f"{prefix}-refresh", n_clicks=0),
+    ])
+
+
 def layout() -> html.Div:
     return html.Div(className="page", children=[
-        html.Div(className="row", children=[
-            html.Label("Campaign folder", htmlFor="campaign-choice"),
-            dcc.Dropdown(id="campaign-choice", placeholder="choose a campaign folder", clearable=False,
-                         style={"minWidth": "320px"}),
-            html.Button("Refresh list", id="campaign-refresh", n_clicks=0),
-        ]),
+        folder_picker("Campaign folder", "campaign", "choose a campaign folder"),
         html.Details([
             html.Summary("Create a campaign or upload a filled workbook"),
             html.Div(className="row", children=[

@@ -9,6 +9,7 @@ from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web.figures import empty_figure, fit_run_figure, window_figure
+from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
 
 __all__ = ["layout", "register", "parameter_rows", "HISTORY_NOT_YET", "PARAMETER_COLUMNS"]
@@ -23,12 +24,7 @@ PARAMETER_COLUMNS = (("name", "parameter"), ("unit", "unit"), ("value", "value")
 
 def layout() -> html.Div:
     return html.Div(className="page", children=[
-        html.Div(className="row", children=[
-            html.Label("Result folder", htmlFor="result-choice"),
-            dcc.Dropdown(id="result-choice", placeholder="choose a result", clearable=False,
-                         style={"minWidth": "320px"}),
-            html.Button("Refresh list", id="result-refresh", n_clicks=0),
-        ]),
+        folder_picker("Result folder", "result", "choose a result"),
         html.Div(id="result-message", className="message"),
         html.H3("Fitted parameters"),
         dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
