@@ -61,10 +61,12 @@ def root(tmp_path_factory):
 
 @pytest.fixture(scope="session")
 def server(root):
-    """The page served on a free loopback port; yields (base url, state)."""
+    """The page served on a free loopback port with jobs on a Dask local cluster (as
+    ``speciakin web`` runs them); yields (base url, state)."""
     from speciakin.web import create_app, make_server
+    from speciakin.web.dask_jobs import DaskJobBoard
 
-    app, state = create_app(root)
+    app, state = create_app(root, board=DaskJobBoard())
     srv = make_server(app, "127.0.0.1", 0, token=None)
     thread = threading.Thread(target=srv.serve_forever, daemon=True)
     thread.start()

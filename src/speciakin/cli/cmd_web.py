@@ -15,6 +15,11 @@ def add_arguments(parser) -> None:
                         help="address to listen on (default 127.0.0.1; any other needs --require-token)")
     parser.add_argument("--require-token", action="store_true",
                         help="print a random token at start; requests without it get 403")
+    parser.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                        help="run the page's jobs on an existing Dask distributed scheduler (as for 'sample'); "
+                             "default: a local cluster started at the first job")
+    parser.add_argument("--in-process", action="store_true",
+                        help="run jobs in threads of the server process instead of a Dask cluster")
     parser.add_argument("--no-browser", action="store_true", help="do not open a browser window")
     parser.epilog = ("example:\n  speciakin web ~/campaigns\n"
                      "  speciakin web ~/campaigns --host 0.0.0.0 --require-token   # reachable by colleagues")
@@ -35,7 +40,13 @@ def run(args) -> int:
     import speciakin.pipeline  # noqa: F401
 
     token = new_token() if args.require_token else None
-    app, state = create_app(args.root, token=token)
+    if args.in_process:
+        board = None
+    else:
+        from speciakin.web.dask_jobs import DaskJobBoard
+
+        board = DaskJobBoard(args.scheduler)
+    app, state = create_app(args.root, token=token, board=board)
     server = make_server(app, args.host, args.port, token=token)
     url = f"http://{'127.0.0.1' if args.host in ('0.0.0.0', '::') else args.host}:{server.server_port}/"
     if token:

@@ -9,6 +9,7 @@ app            the Dash application, token and loopback guards, the server
 paths          the campaign root: every path resolved inside it, safe upload names, result folders
 state          what the server keeps: root, job board, caches keyed by file times
 jobs           pipeline work in the background: progress, time left, cancel, one folder per job
+dask_jobs      the same jobs on a Dask cluster (local, or an existing scheduler)
 figures        Plotly figures: raw data per run, fitted curves over data, the window
 page_campaign  step 1: open or create a campaign, upload, check table, raw data
 page_model     step 2: model summary (parameter table not yet available)

@@ -5,10 +5,10 @@ again.  Each job writes into its own new folder ``results/<stamp>-<id>``
 (:func:`speciakin.web.paths.new_result_folder` refuses an existing one), so
 two jobs never write into the same folder.
 
-Execution: a small thread pool in the server process (see DEVELOPERS.md,
-"web" for why not Dask in this slice).  :class:`JobBoard` is the one
-interface the page uses (``submit``, ``get``, ``jobs``, ``cancel``); another
-executor can stand behind it without changing the page.
+Execution: :class:`JobBoard` runs jobs in a thread pool of the server
+process; :class:`speciakin.web.dask_jobs.DaskJobBoard` runs them on a Dask
+cluster.  Both have the one interface the page uses (``submit``, ``get``,
+``jobs``, ``cancel``).
 """
 
 from __future__ import annotations
@@ -127,8 +127,12 @@ class JobBoard:
             if any(j.folder == job.folder and j.campaign == campaign_name for j in self._jobs.values()):
                 raise FileExistsError(out)
             self._jobs[job_id] = job
-        self._pool.submit(self._run, job, campaign, out)
+        self._start(job, campaign, out)
         return job
+
+    def _start(self, job: Job, campaign: Path, out: Path) -> None:
+        """Hand the job to the executor (here the thread pool)."""
+        self._pool.submit(self._run, job, campaign, out)
 
     def _run(self, job: Job, campaign: Path, out: Path) -> None:
         from speciakin.pipeline import Cancelled
