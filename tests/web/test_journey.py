@@ -132,3 +132,38 @@ def test_a_running_job_can_be_cancelled(server, page, shot):
     shot(page, "08-job-cancelled")
     assert job.state == "cancelled" and "step 'starts' cancelled" in job.message
     assert not (state.root / "short" / job.folder / "fit.json").exists()
+
+
+def test_a_campaign_is_created_from_the_templates_and_a_workbook_uploaded(server, page, shot, tmp_path):
+    from speciakin.demo import demo_dir
+
+    url, state = server
+    page.goto(url)
+    page.wait_for_selector("#campaign-choice")
+    page.click("text=Create a campaign or upload a filled workbook")
+    page.fill("#new-name", "fresh-campaign")
+    page.click("#new-create")
+    page.wait_for_selector("#campaign-message:has-text('created fresh-campaign')")
+    page.wait_for_selector("#campaign-choice-value:has-text('fresh-campaign')")
+    assert (state.root / "fresh-campaign" / "model.toml").is_file()
+    shot(page, "10-created")
+    page.set_input_files("#upload input[type=file]", str(demo_dir() / "campaign.xlsx"))
+    page.wait_for_selector("#campaign-message:has-text('stored campaign.xlsx in fresh-campaign')")
+    page.wait_for_selector("#check-summary:has-text('6 run(s)')")
+    kept = list((state.root / "fresh-campaign" / "previous-workbooks").iterdir())
+    assert len(kept) == 1 and kept[0].name.endswith("-campaign.xlsx")
+    shot(page, "11-uploaded")
+    # a malformed upload gets the same located error as `check`
+    fake = tmp_path / "saved as text.xlsx"
+    fake.write_text("run,pH\nR1,4\n")
+    page.set_input_files("#upload input[type=file]", str(fake))
+    page.wait_for_selector("#campaign-message:has-text('stored saved_as_text.xlsx in fresh-campaign')")
+    page.wait_for_selector("#check-table .ag-row:has-text('saved_as_text.xlsx')")
+    assert "not a workbook" in page.inner_text("#check-table") or "not an XLSX" in page.inner_text("#check-table")
+    shot(page, "12-malformed-upload")
+    assert len(list((state.root / "fresh-campaign" / "previous-workbooks").iterdir())) == 2
+    # a name that leaves the root is refused before anything is written
+    page.fill("#new-name", "../outside")
+    page.click("#new-create")
+    page.wait_for_selector("#campaign-message:has-text('not a usable folder name')")
+    assert not (state.root.parent / "outside").exists()

@@ -19,6 +19,7 @@ __all__ = ["layout", "register", "check_rows", "folder_picker", "CHECK_COLUMNS"]
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
 _WRAPPED = ("message", "value", "expected")
+_FLEX = {"message": 4, "expected": 2, "column": 2}
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
 
@@ -37,7 +38,8 @@ def layout() -> html.Div:
         html.Details([
             html.Summary("Create a campaign or upload a filled workbook"),
             html.Div(className="row", children=[
-                dcc.Input(id="new-name", placeholder="new folder name, e.g. amine-acylation", debounce=False),
+                html.Div(dcc.Input(id="new-name", placeholder="new folder name, e.g. amine-acylation"),
+                         style={"width": "24em"}),
                 html.Button("Create from the templates", id="new-create", n_clicks=0),
             ]),
             dcc.Upload(id="upload", className="upload", max_size=MAX_UPLOAD_BYTES, accept=".xlsx",
@@ -48,7 +50,7 @@ def layout() -> html.Div:
         html.Div(id="campaign-message", className="message", role="status"),
         html.H3("Check"),
         html.Div(id="check-summary"),
-        dag.AgGrid(id="check-table", columnDefs=[{"field": f, "headerName": h, "flex": 3 if f == "message" else 1,
+        dag.AgGrid(id="check-table", columnDefs=[{"field": f, "headerName": h, "flex": _FLEX.get(f, 1),
                                                   "wrapText": f in _WRAPPED, "autoHeight": f in _WRAPPED}
                                                  for f, h in CHECK_COLUMNS],
                    rowData=[], defaultColDef={"sortable": True, "resizable": True, "filter": True},
