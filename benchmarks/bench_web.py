@@ -93,6 +93,11 @@ def _browser(url: str) -> None:
         def reload():
             page.reload()
             page.wait_for_selector("#check-summary:has-text('Ready to fit')", timeout=120_000)
+
+        def first_paint():
+            page.reload()
+            page.wait_for_selector("#campaign-choice-value:has-text('demo')", timeout=120_000)
+        _say("browser: reload until the campaign list shows", _times(first_paint))
         _say("browser: reload until the demo's check shows", _times(reload))
         browser.close()
 

@@ -22,9 +22,9 @@ def _callback(client, campaign: str) -> dict:
                ("raw-run", "value")]
     body = {"output": ".." + "...".join(f"{i}.{p}" for i, p in outputs) + "..",
             "outputs": [{"id": i, "property": p} for i, p in outputs],
-            "inputs": [{"id": "campaign", "property": "data", "value": campaign},
+            "inputs": [{"id": "campaign-choice", "property": "value", "value": campaign},
                        {"id": "campaign-message", "property": "children", "value": ""}],
-            "changedPropIds": ["campaign.data"], "state": []}
+            "changedPropIds": ["campaign-choice.value"], "state": []}
     answer = client.post("/_dash-update-component", json=body, headers={"Host": "127.0.0.1"})
     assert answer.status_code == 200, answer.data[:500]
     return json.loads(answer.data)["response"]

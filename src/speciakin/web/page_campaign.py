@@ -10,7 +10,7 @@ import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
-from speciakin.web.figures import empty_figure, raw_run_figure
+from speciakin.web.figures import raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
 __all__ = ["layout", "register", "check_rows", "folder_picker", "CHECK_COLUMNS"]
@@ -57,7 +57,7 @@ def layout() -> html.Div:
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
         html.H3("Raw data per run"),
         dcc.Dropdown(id="raw-run", placeholder="choose a run", clearable=False, style={"maxWidth": "320px"}),
-        dcc.Graph(id="raw-figure", figure=empty_figure("choose a campaign"), config={"displaylogo": False}),
+        html.Div(id="raw-figure-box", children=html.P("choose a campaign", className="message")),
     ])
 
 
@@ -95,10 +95,11 @@ def register(app, state) -> None:
                   Output("campaign-message", "children"),
                   Input("campaign-refresh", "n_clicks"), Input("new-create", "n_clicks"),
                   Input("upload", "contents"), State("upload", "filename"), State("new-name", "value"),
-                  State("campaign", "data"))
-    def choose(_refresh, create, contents, filename, new_name, current):
+                  State("campaign-choice", "value"), State("campaign", "data"))
+    def choose(_refresh, create, contents, filename, new_name, shown, remembered):
         from dash import ctx
 
+        current = shown or remembered  # the store keeps the choice over a page reload
         message = ""
         chosen = current
         try:
@@ -119,7 +120,7 @@ def register(app, state) -> None:
 
     @app.callback(Output("check-summary", "children"), Output("check-table", "rowData"),
                   Output("raw-run", "options"), Output("raw-run", "value"),
-                  Input("campaign", "data"), Input("campaign-message", "children"))
+                  Input("campaign-choice", "value"), Input("campaign-message", "children"))
     def check(name, _message):
         if not name:
             return "choose a campaign folder", [], [], None
@@ -139,19 +140,22 @@ def register(app, state) -> None:
         return (html.Span(summary, className="ok" if report.ok else "bad"), check_rows(report),
                 [{"label": r, "value": r} for r in runs], runs[0] if runs else None)
 
-    @app.callback(Output("raw-figure", "figure"), Input("raw-run", "value"), State("campaign", "data"))
+    @app.callback(Output("raw-figure-box", "children"), Input("raw-run", "value"), State("campaign-choice", "value"))
     def raw(run_name, name):
+        # the figure (and the plotting library with it) loads only when there is something to draw,
+        # so the check above shows first
         if not name or not run_name:
-            return empty_figure("raw data are plotted once the campaign has no check errors")
+            return html.P("raw data are plotted once the campaign has no check errors", className="message")
         try:
             folder = state.folder(name)
             campaign = _campaign(state, folder)
             run = campaign.run(run_name)
         except (SpeciakinError, KeyError) as exc:
-            return empty_figure(f"cannot plot: {exc}")
+            return html.P(f"cannot plot: {exc}", className="message")
         from speciakin.palette import SpeciesColors
 
-        return raw_run_figure(run, SpeciesColors(sorted({c.molecule for c in campaign.compounds})))
+        figure = raw_run_figure(run, SpeciesColors(sorted({c.molecule for c in campaign.compounds})))
+        return dcc.Graph(id="raw-figure", figure=figure, config={"displaylogo": False})
 
 
 def _create(state, new_name):

@@ -63,7 +63,7 @@ def job_card(view: dict) -> html.Div:
 
 def register(app, state) -> None:
     @app.callback(Output("job-message", "children"), Input("job-start", "n_clicks"),
-                  State("campaign", "data"), State("job-starts", "value"), State("job-profiles", "value"),
+                  State("campaign-choice", "value"), State("job-starts", "value"), State("job-profiles", "value"),
                   State("job-draws", "value"), prevent_initial_call=True)
     def start(clicks, name, starts, profiles, draws):
         if not clicks:
@@ -79,7 +79,7 @@ def register(app, state) -> None:
             return f"error: {exc}"
         return f"started job {job.id}; it writes into {name}/{job.folder}"
 
-    @app.callback(Output("job-list", "children"), Input("job-poll", "n_intervals"), Input("campaign", "data"),
+    @app.callback(Output("job-list", "children"), Input("job-poll", "n_intervals"), Input("campaign-choice", "value"),
                   Input("job-message", "children"))
     def poll(_n, name, _message):
         jobs = state.board.jobs(name) if name else []

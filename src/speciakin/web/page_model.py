@@ -26,7 +26,7 @@ def layout() -> html.Div:
 
 def register(app, state) -> None:
     @app.callback(Output("model-summary", "children"), Output("model-message", "children"),
-                  Input("campaign", "data"))
+                  Input("campaign-choice", "value"))
     def summary(name):
         if not name:
             return "", "choose a campaign folder first"

@@ -94,7 +94,7 @@ def _results(state, folder, out):
 
 def register(app, state) -> None:
     @app.callback(Output("result-choice", "options"), Output("result-choice", "value"),
-                  Input("campaign", "data"), Input("result-refresh", "n_clicks"), State("result-choice", "value"))
+                  Input("campaign-choice", "value"), Input("result-refresh", "n_clicks"), State("result-choice", "value"))
     def listing(name, _clicks, current):
         if not name:
             return [], None
@@ -108,7 +108,7 @@ def register(app, state) -> None:
                   Output("window-status", "children"), Output("window-reasons", "children"),
                   Output("window-figure", "figure"), Output("fit-run", "options"), Output("fit-run", "value"),
                   Output("result-message", "children"),
-                  Input("result-choice", "value"), State("campaign", "data"))
+                  Input("result-choice", "value"), State("campaign-choice", "value"))
     def show(result, name):
         blank = ([], [], "", [], empty_figure("no result chosen"), [], None)
         if not name or not result:
@@ -132,7 +132,7 @@ def register(app, state) -> None:
                 [{"label": r, "value": r} for r in runs], runs[0] if runs else None, f"result {result}")
 
     @app.callback(Output("fit-figure", "figure"), Input("fit-run", "value"), State("result-choice", "value"),
-                  State("campaign", "data"))
+                  State("campaign-choice", "value"))
     def curves(run_name, result, name):
         if not (run_name and result and name):
             return empty_figure("choose a run")
