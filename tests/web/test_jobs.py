@@ -96,3 +96,23 @@ def test_thinning_keeps_the_ends_and_at_most_about_the_limit():
     np.testing.assert_array_equal(ty, tx * 2)
     same = thin(x[:10], x[:10], limit=1000)
     assert same[2] == 1 and len(same[0]) == 10
+
+
+def test_a_long_log_is_thinned_for_display_and_the_figure_says_so():
+    import dataclasses
+
+    from speciakin.data import TimeSeries, load_campaign
+    from speciakin.demo import demo_dir
+    from speciakin.palette import SpeciesColors
+    from speciakin.web.figures import MAX_POINTS, raw_run_figure
+
+    run = load_campaign(demo_dir()).runs[0]
+    n = 6000
+    t = np.linspace(0.0, run.recipe.end_time, n)
+    long_log = TimeSeries(t, 4.0 + 0.01 * np.sin(t), np.arange(n) + 2)
+    fig = raw_run_figure(dataclasses.replace(run, ph_log=long_log), SpeciesColors(["S"]))
+    trace = next(d for d in fig.data if d.name == "pH log")
+    assert len(trace.x) <= MAX_POINTS + 1 and trace.x[-1] == t[-1] / 60.0
+    notes = " ".join(a.text for a in fig.layout.annotations)
+    assert f"pH log: 1 in 4 of {n} readings shown (display only; the fit uses all)" in notes
+    assert len(long_log) == n  # the campaign's log itself is untouched

@@ -58,7 +58,7 @@ def _log_trace(fig: go.Figure, series, scale, name: str, row: int, col: int, not
     t, v, k = thin(series.time / _S_PER_MIN, scale(series.value))
     fig.add_trace(go.Scatter(x=t, y=v, mode="lines", name=name, line=dict(color=color)), row=row, col=col)
     if k > 1:
-        notes.append(f"{name}: every {k}th of {len(series)} readings shown (display only; the fit uses all)")
+        notes.append(f"{name}: 1 in {k} of {len(series)} readings shown (display only; the fit uses all)")
 
 
 def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
@@ -95,7 +95,8 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
         t, v, k = thin(run.titrant.time / _S_PER_MIN, run.titrant.amount * 1e3)
         fig.add_trace(go.Scatter(x=t, y=v, mode="lines", name="titrant", line=dict(color="#0072B2")), row=2, col=2)
         if k > 1:
-            notes.append(f"titrant: every {k}th of {len(run.titrant.time)} readings shown (display only)")
+            notes.append(f"titrant: 1 in {k} of {len(run.titrant.time)} readings shown "
+                         "(display only; the fit uses all)")
     for r, c in ((1, 1), (1, 2), (2, 1), (2, 2)):
         fig.update_xaxes(title_text="time [min]", row=r, col=c)
     fig.update_layout(template=TEMPLATE, height=560, margin=dict(l=50, r=20, t=60, b=40),

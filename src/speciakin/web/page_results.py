@@ -94,7 +94,8 @@ def _results(state, folder, out):
 
 def register(app, state) -> None:
     @app.callback(Output("result-choice", "options"), Output("result-choice", "value"),
-                  Input("campaign-choice", "value"), Input("result-refresh", "n_clicks"), State("result-choice", "value"))
+                  Input("campaign-choice", "value"), Input("result-refresh", "n_clicks"),
+                  State("result-choice", "value"))
     def listing(name, _clicks, current):
         if not name:
             return [], None
