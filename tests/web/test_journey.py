@@ -167,3 +167,17 @@ def test_a_campaign_is_created_from_the_templates_and_a_workbook_uploaded(server
     page.click("#new-create")
     page.wait_for_selector("#campaign-message:has-text('not a usable folder name')")
     assert not (state.root.parent / "outside").exists()
+
+
+def test_a_failing_job_says_where_the_input_is_wrong(server, page, shot):
+    url, state = server
+    sheet, row, col, value = PLANTED
+    open_campaign(page, url, "planted")
+    page.click("text=3 Jobs")
+    page.click("#job-start")
+    page.wait_for_selector("#job-message:has-text('started job')")
+    job = state.board.jobs("planted")[0]
+    page.wait_for_selector(f"#job-{job.id}:has-text('failed')", timeout=300_000)
+    text = page.inner_text(f"#job-{job.id}")
+    assert f"sheet '{sheet}'" in text and f"row {row}" in text and repr(value) in text
+    shot(page, "13-job-failed")
