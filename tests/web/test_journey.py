@@ -146,6 +146,7 @@ def test_a_campaign_is_created_from_the_templates_and_a_workbook_uploaded(server
     page.wait_for_selector("#campaign-message:has-text('created fresh-campaign')")
     page.wait_for_selector("#campaign-choice-value:has-text('fresh-campaign')")
     assert (state.root / "fresh-campaign" / "model.toml").is_file()
+    page.wait_for_selector("#check-summary:has-text('Nothing to fit yet')")  # the blank workbook is checked
     shot(page, "10-created")
     page.set_input_files("#upload input[type=file]", str(demo_dir() / "campaign.xlsx"))
     page.wait_for_selector("#campaign-message:has-text('stored campaign.xlsx in fresh-campaign')")

@@ -130,7 +130,7 @@ def register(app, state) -> None:
             return f"error: {exc}", [], [], None
         summary = (f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {report.runs} run(s), "
                    f"{report.hplc_values} HPLC values, {report.log_readings} log readings. "
-                   + ("Ready to fit." if report.ok else "Nothing can be fitted until the errors are fixed."))
+                   + _verdict(report))
         runs = []
         if report.ok:
             try:
@@ -156,6 +156,14 @@ def register(app, state) -> None:
 
         figure = raw_run_figure(run, SpeciesColors(sorted({c.molecule for c in campaign.compounds})))
         return dcc.Graph(id="raw-figure", figure=figure, config={"displaylogo": False})
+
+
+def _verdict(report) -> str:
+    if not report.ok:
+        return "Nothing can be fitted until the errors are fixed."
+    if report.runs == 0:
+        return "Nothing to fit yet: fill in the workbook and upload it."
+    return "Ready to fit; review the warnings first." if report.warnings else "Ready to fit."
 
 
 def _create(state, new_name):
