@@ -14,7 +14,7 @@ $(PY):
 
 $(STAMP): pyproject.toml | $(PY)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -e ".[dev]"
+	$(PY) -m pip install --quiet -e ".[dev,web]"
 	@touch $(STAMP)
 
 install: $(STAMP)

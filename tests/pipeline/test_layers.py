@@ -14,7 +14,7 @@ import pytest
 
 SRC = Path(__file__).resolve().parents[2] / "src"
 #: Layers in order; a module may import its own layer and those before it.
-LAYERS = ("base", "chemistry", "simulation", "data", "estimation", "decision", "pipeline", "report", "cli")
+LAYERS = ("base", "chemistry", "simulation", "data", "estimation", "decision", "pipeline", "report", "web", "cli")
 #: Top-level modules and the layer they belong to.
 TOP_LEVEL = {"errors": "base", "_io": "base", "_json": "base", "_cells": "base", "units": "base", "palette": "base",
              "demo": "base", "__init__": "base", "workflow": "pipeline"}

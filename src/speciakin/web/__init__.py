@@ -1,0 +1,22 @@
+"""The local browser workbench: the campaign journey on a page (``speciakin web``).
+
+It sits on top of the pipeline, like the command line, and calls the same
+public Python API (:mod:`speciakin.pipeline`); nothing below imports it.
+
+Modules
+-------
+app            the Dash application, token and loopback guards, the server
+paths          the campaign root: every path resolved inside it, safe upload names, result folders
+state          what the server keeps: root, job board, caches keyed by file times
+jobs           pipeline work in the background: progress, time left, cancel, one folder per job
+dask_jobs      the same jobs on a Dask cluster (local, or an existing scheduler)
+figures        Plotly figures: raw data per run, fitted curves over data, the window
+page_campaign  step 1: open or create a campaign, upload, check table, raw data
+page_model     step 2: model summary (parameter table not yet available)
+page_jobs      step 3: start, follow and cancel jobs
+page_results   step 4: parameters, window and its status, fitted curves (history not yet available)
+"""
+
+from speciakin.web.app import create_app, is_loopback, make_server, new_token
+
+__all__ = ["create_app", "make_server", "is_loopback", "new_token"]

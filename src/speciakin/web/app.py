@@ -1,0 +1,139 @@
+"""The Dash application of the workbench and the server that runs it.
+
+:func:`create_app` builds the page for one campaign root; :func:`serve`
+runs it.  Loopback is the default; another host is refused unless a token is
+required, and then every request without the token gets 403 (the token is
+printed at start, given once as ``?token=...`` and then kept in a cookie).
+"""
+
+from __future__ import annotations
+
+import hmac
+import ipaddress
+import secrets
+from pathlib import Path
+
+from dash import Dash, dcc, html
+
+from speciakin.errors import InputError, Location
+from speciakin.web import page_campaign, page_jobs, page_model, page_results
+from speciakin.web.paths import MAX_UPLOAD_BYTES
+from speciakin.web.state import WebState
+
+__all__ = ["create_app", "make_server", "is_loopback", "new_token", "TOKEN_COOKIE"]
+
+TOKEN_COOKIE = "speciakin_token"
+_TABS = (("campaign", "1 Campaign and data", page_campaign), ("model", "2 Model", page_model),
+         ("jobs", "3 Jobs", page_jobs), ("results", "4 Results", page_results))
+_STYLE = """
+body { font-family: system-ui, sans-serif; margin: 0 1.5em; color: #1a1a1a; }
+.row { display: flex; gap: .8em; align-items: center; flex-wrap: wrap; margin: .5em 0; }
+.message { margin: .5em 0; white-space: pre-wrap; }
+.upload { border: 2px dashed #888; padding: 1em; margin: .5em 0; cursor: pointer; }
+.ok { color: #006b3c; font-weight: 600; } .bad { color: #b00020; font-weight: 600; }
+.placeholder { border-left: 4px solid #E69F00; padding: .4em .8em; background: #fff8e6; }
+.job { border: 1px solid #ccc; padding: .6em; margin: .4em 0; border-radius: 4px; }
+.state-failed { color: #b00020; } .state-done { color: #006b3c; } .state-cancelled { color: #8a5a00; }
+.job-text, .summary { white-space: pre-wrap; background: #f6f6f6; padding: .5em; }
+progress { width: 16em; }
+"""
+
+
+def is_loopback(host: str) -> bool:
+    """True for ``localhost`` and loopback addresses (127.0.0.0/8, ::1)."""
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False
+
+
+def new_token() -> str:
+    """A random token for a server that other machines can reach."""
+    return secrets.token_urlsafe(24)
+
+
+def create_app(root: str | Path, *, token: str | None = None, board=None) -> tuple[Dash, WebState]:
+    """The page for the campaign folders under ``root``.
+
+    Parameters
+    ----------
+    root
+        Campaign root; the page reads and writes only inside it.
+    token
+        When given, every request must carry it (query ``token`` or the cookie).
+    board
+        A :class:`~speciakin.web.jobs.JobBoard` (default: a new one).
+
+    Raises
+    ------
+    InputError
+        ``root`` is not a folder.
+    """
+    base = Path(root).resolve()
+    if not base.is_dir():
+        raise InputError("campaign root not found", Location(file=str(root)), expected="an existing folder")
+    state = WebState(base) if board is None else WebState(base, board)
+    app = Dash(__name__, title="speciakin workbench", suppress_callback_exceptions=False,
+               update_title=None)
+    app.server.config["MAX_CONTENT_LENGTH"] = MAX_UPLOAD_BYTES * 4 // 3 + 1_000_000  # base64 in JSON
+    if token:
+        _guard(app.server, token)
+    else:
+        _loopback_only(app.server)
+    app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + _STYLE + "</style>")
+    app.layout = html.Div([
+        dcc.Store(id="campaign", storage_type="session"),
+        html.H2("speciakin workbench"),
+        html.P(f"campaign root: {base}", className="root"),
+        dcc.Tabs(id="tabs", value="campaign", persistence=True, persistence_type="session", children=[
+            dcc.Tab(label=label, value=key, children=module.layout()) for key, label, module in _TABS]),
+    ])
+    for _, _, module in _TABS:
+        module.register(app, state)
+    return app, state
+
+
+def _guard(server, token: str) -> None:
+    from flask import abort, request
+
+    @server.before_request
+    def require_token():
+        given = request.args.get("token") or request.cookies.get(TOKEN_COOKIE) or ""
+        if not hmac.compare_digest(given.encode(), token.encode()):
+            abort(403)
+
+    @server.after_request
+    def remember(response):
+        if request.args.get("token"):
+            response.set_cookie(TOKEN_COOKIE, token, httponly=True, samesite="Strict")
+        return response
+
+
+def _loopback_only(server) -> None:
+    """Without a token, answer only requests addressed to a loopback name (a web page elsewhere
+    cannot reach the server through a name that resolves to 127.0.0.1)."""
+    from flask import abort, request
+
+    @server.before_request
+    def require_loopback_host():
+        host = request.host.rsplit(":", 1)[0] if not request.host.startswith("[") else request.host[1:].split("]")[0]
+        if not is_loopback(host):
+            abort(403)
+
+
+def make_server(app: Dash, host: str, port: int, *, token: str | None):
+    """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it).
+
+    Raises
+    ------
+    InputError
+        A host other than loopback without a token.
+    """
+    from werkzeug.serving import make_server as werkzeug_server
+
+    if not is_loopback(host) and not token:
+        raise InputError("a host other than loopback needs a token", Location(key="--host"), host,
+                         "127.0.0.1 (default), or --require-token so that only people given the token get in")
+    return werkzeug_server(host, port, app.server, threaded=True)

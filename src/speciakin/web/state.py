@@ -1,0 +1,58 @@
+"""What the server keeps: the campaign root, the job board and caches of loaded files.
+
+Caches are keyed by path and modification times, so an edited workbook or a
+new result is read again; nothing is stored outside the campaign root.
+"""
+
+from __future__ import annotations
+
+import threading
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+from speciakin.web.jobs import JobBoard
+from speciakin.web.paths import inside_root
+
+__all__ = ["WebState"]
+
+_CACHE_SIZE = 16
+
+
+def _stamp(paths: list[Path]) -> tuple:
+    return tuple((str(p), p.stat().st_mtime_ns, p.stat().st_size) for p in sorted(paths) if p.exists())
+
+
+@dataclass
+class WebState:
+    """The server's state: ``root`` (resolved), the job board, caches."""
+
+    root: Path
+    board: JobBoard = field(default_factory=JobBoard)
+    _cache: dict[tuple, Any] = field(default_factory=dict)
+    _lock: threading.Lock = field(default_factory=threading.Lock)
+
+    def folder(self, name: str | None) -> Path:
+        """A campaign folder chosen on the page, resolved inside the root (raises InputError)."""
+        return inside_root(self.root, name)
+
+    def cached(self, kind: str, files: list[Path], make: Callable[[], Any]) -> Any:
+        """``make()``, remembered while ``files`` keep their modification times."""
+        key = (kind, _stamp(files))
+        with self._lock:
+            if key in self._cache:
+                return self._cache[key]
+        value = make()
+        with self._lock:
+            if len(self._cache) >= _CACHE_SIZE:
+                self._cache.pop(next(iter(self._cache)))
+            self._cache[key] = value
+        return value
+
+    @staticmethod
+    def inputs_of(campaign: Path) -> list[Path]:
+        """The files a campaign's check depends on (workbook, CSV files, model and process files)."""
+        files = list(campaign.glob("*.xlsx")) + list(campaign.glob("*.toml")) + list(campaign.glob("*.csv"))
+        if (campaign / "csv").is_dir():
+            files += list((campaign / "csv").glob("*.csv"))
+        return files + [campaign]
