@@ -32,7 +32,7 @@ from speciakin._json import dumps
 from speciakin.errors import InputError, Location
 
 __all__ = ["RESULT_FILES", "FIGURES_FOLDER", "result_path", "write_json", "write_text", "read_json",
-           "command_line", "relative", "recorded_path", "safe_stems", "save_check", "save_fit", "load_fit", "load_fit_data", "save_posterior",
+           "command_line", "relative", "recorded_path", "safe_stems", "check_as_recorded", "save_check", "save_fit", "load_fit", "load_fit_data", "save_posterior",
            "load_posterior", "save_window", "load_window", "save_timings", "resolve_input"]
 
 #: Every file a step writes into the output folder, by role (docs/workflow.md lists them).
@@ -157,9 +157,24 @@ def _malformed(path: Path, what: str, exc: Exception, expected: str) -> InputErr
 
 
 # ------------------------------------------------------------------ check
+def check_as_recorded(check: Any, folder: Path) -> Any:
+    """A copy of a CheckReport whose file paths are written relative to ``folder``."""
+    import dataclasses
+
+    def shown(problem):
+        loc = problem.location
+        if not getattr(loc, "file", None):
+            return problem
+        return dataclasses.replace(problem, location=dataclasses.replace(loc, file=recorded_path(loc.file, folder)))
+
+    return dataclasses.replace(check, source=recorded_path(str(check.source), folder),
+                               model=None if check.model is None else recorded_path(str(check.model), folder),
+                               problems=[shown(p) for p in check.problems])
+
+
 def save_check(folder: Path, check: Any) -> Path:
-    """``check.json`` of a :class:`~speciakin.data.validate.CheckReport`."""
-    return write_json(result_path(folder, "check"), check.to_dict())
+    """``check.json`` of a :class:`~speciakin.data.validate.CheckReport` (paths relative to ``folder``)."""
+    return write_json(result_path(folder, "check"), check_as_recorded(check, Path(folder)).to_dict())
 
 
 # ------------------------------------------------------------------ fit
@@ -299,7 +314,7 @@ def resolve_input(given: str | None, recorded: str | None, folder: Path, what: s
     if not recorded:
         raise InputError(f"no {what} given and none recorded in fit.json", Location(key=key),
                          expected=f"--{key} PATH, or a fit.json in the output folder that names the {what}")
-    for p in (Path(folder) / recorded, Path(recorded)):
+    for p in (Path(os.path.normpath(Path(folder) / recorded)), Path(recorded)):
         if p.exists():
             return p
     raise InputError(f"the {what} named in fit.json no longer exists",

@@ -218,7 +218,8 @@ def for_report(results: Results, out: Path) -> Results:
     if inputs is not None:
         inputs = Inputs(ShownPath(inputs.campaign, out), ShownPath(inputs.model, out),
                         None if inputs.process is None else ShownPath(inputs.process, out))
-    return dataclasses.replace(results, campaign=campaign, inputs=inputs)
+    check = None if results.check is None else outputs.check_as_recorded(results.check, out)
+    return dataclasses.replace(results, campaign=campaign, inputs=inputs, check=check)
 
 
 def load_results(folder: Path, *, campaign: str | None = None, model: str | None = None,
