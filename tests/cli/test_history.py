@@ -151,3 +151,52 @@ def test_steps_alone_history_contrast_and_a_moved_folder(campaign, tmp_path, cap
     assert not (moved / "results" / window_folder.name / "report.html").exists()
     html = (rendered / "report.html").read_text()
     assert str(tmp_path) not in html and "Recommended" in html
+
+
+def _renamed(reduced: Path, folder: Path, names: list[str]) -> Path:
+    """A copy of the reduced demo whose runs carry ``names``."""
+    import dataclasses
+
+    from speciakin.data import load_campaign, write_campaign
+
+    folder.mkdir(parents=True)
+    campaign = load_campaign(reduced / "campaign.xlsx")
+    runs = tuple(dataclasses.replace(r, recipe=dataclasses.replace(r.recipe, name=n))
+                 for r, n in zip(campaign.runs, names))
+    write_campaign(dataclasses.replace(campaign, runs=runs), folder / "campaign.xlsx")
+    shutil.copy(reduced / "model.toml", folder / "model.toml")
+    return folder
+
+
+@pytest.mark.filterwarnings("ignore")
+def test_run_names_give_distinct_figure_files(reduced, tmp_path):
+    similar = _renamed(reduced, tmp_path / "similar", ["R/1", "R_1", "R 1"])
+    assert main(["fit", str(similar), *SHORT_FIT]) == 0
+    figures = sorted(p.name for p in (_folders(similar)[0] / "figures").glob("run_*.png"))
+    assert len(figures) == 3 and len(set(figures)) == 3
+    long_name = _renamed(reduced, tmp_path / "long", ["R" * 300, "R2", "R3"])
+    assert main(["fit", str(long_name), *SHORT_FIT]) == 0
+    figures = [p.name for p in (_folders(long_name)[0] / "figures").glob("run_*.png")]
+    assert len(figures) == 3 and max(len(f) for f in figures) < 100
+
+
+@pytest.mark.filterwarnings("ignore")
+def test_sample_resume_continues_the_interrupted_folder(campaign):
+    assert main(["fit", str(campaign), *SHORT_FIT]) == 0
+    assert main(["sample", str(campaign), "--steps", "24", "--walkers", "20", "--quiet"]) == 0
+    fit_folder, sampled = _folders(campaign)
+    assert folders.read_status(sampled)["built_on"] == "../" + fit_folder.name
+    # as a kill leaves it: status running, the lock of a process that is gone
+    status = json.loads((sampled / folders.STATUS_FILE).read_text())
+    status["status"] = "running"
+    (sampled / folders.STATUS_FILE).write_text(json.dumps(status))
+    (sampled / folders.LOCK_FILE).write_text(json.dumps({"pid": 2 ** 22 + 1, "host": __import__("socket").gethostname(),
+                                                        "started": status["started"]}))
+    assert folders.read_status(sampled)["status"] == "interrupted"
+    assert main(["sample", str(campaign), "--resume", "--steps", "24", "--walkers", "20", "--quiet"]) == 0
+    assert _folders(campaign) == [fit_folder, sampled]            # continued in place, no new folder
+    after = folders.read_status(sampled)
+    assert after["status"] == "complete" and len(after["resumed"]) == 1
+    assert not (sampled / folders.LOCK_FILE).exists()
+    rows = [r for r in history.list_runs(campaign / "results") if r["folder"] == sampled.name]
+    assert len(rows) == 1 and rows[0]["status"] == "complete"

@@ -79,7 +79,8 @@ def run(args) -> int:
     source = earlier_result(args, inputs, "fit")
     if source is None:
         raise InputError("no fit or posterior to start from",
-                         Location(file=str(pipeline.results_root(inputs.campaign))), expected="run 'speciakin fit' (and optionally 'speciakin sample') first")
+                         Location(file=str(pipeline.results_root(inputs.campaign))),
+                         expected="run 'speciakin fit' (and optionally 'speciakin sample') first")
     posterior = outputs.load_posterior(source)
     if posterior is not None and list(posterior.parameter_names) != objective.names:
         posterior = None

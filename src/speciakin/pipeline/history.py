@@ -23,8 +23,8 @@ from typing import Any, Iterable
 
 from speciakin.pipeline.outputs import relative
 
-__all__ = ["INDEX_FILE", "PACKAGES", "open_index", "record_start", "record_end", "list_runs", "find_run", "run_of_folder",
-           "input_files", "file_sha256", "package_versions"]
+__all__ = ["INDEX_FILE", "PACKAGES", "open_index", "record_start", "record_end", "list_runs", "find_run",
+           "run_of_folder", "input_files", "file_sha256", "package_versions"]
 
 INDEX_FILE = "index.sqlite"
 #: Packages whose versions every run records.

@@ -32,8 +32,9 @@ from speciakin._json import dumps
 from speciakin.errors import InputError, Location
 
 __all__ = ["RESULT_FILES", "FIGURES_FOLDER", "result_path", "write_json", "write_text", "read_json",
-           "command_line", "relative", "recorded_path", "safe_stems", "check_as_recorded", "save_check", "save_fit", "load_fit", "load_fit_data", "save_posterior",
-           "load_posterior", "save_window", "load_window", "save_timings", "resolve_input"]
+           "command_line", "relative", "recorded_path", "safe_stems", "check_as_recorded", "save_check", "save_fit",
+           "load_fit", "load_fit_data", "save_posterior", "load_posterior", "save_window", "load_window",
+           "save_timings", "resolve_input", "save_suggestion"]
 
 #: Every file a step writes into the output folder, by role (docs/workflow.md lists them).
 RESULT_FILES: Mapping[str, str] = MappingProxyType({
