@@ -111,7 +111,7 @@ def command_line(folder: str | os.PathLike | None = None) -> str:
     args = sys.argv[1:]
     if folder is not None:
         args = [relative(a, folder) if a and not a.startswith("-") and os.path.exists(a) else a for a in args]
-    return "speciakin " + " ".join(shlex.quote(a) for a in args)
+    return " ".join(["speciakin", *(shlex.quote(a) for a in args)])
 
 
 def write_text(path: str | os.PathLike, text: str) -> Path:
