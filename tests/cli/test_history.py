@@ -200,3 +200,11 @@ def test_sample_resume_continues_the_interrupted_folder(campaign):
     assert not (sampled / folders.LOCK_FILE).exists()
     rows = [r for r in history.list_runs(campaign / "results") if r["folder"] == sampled.name]
     assert len(rows) == 1 and rows[0]["status"] == "complete"
+
+
+def test_resume_without_an_interrupted_folder_is_a_clear_error(campaign, capsys):
+    for argv in (["run", str(campaign), "--resume", *SHORT_RUN], ["sample", str(campaign), "--resume", "--quiet"]):
+        assert main(argv) == 2
+        err = capsys.readouterr().err
+        assert "interrupted" in err and "Traceback" not in err
+    assert not (campaign / "results").exists() or not _folders(campaign)
