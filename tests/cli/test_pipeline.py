@@ -89,3 +89,5 @@ def test_run_stops_at_the_failing_step(reduced_demo, tmp_path, capsys):
     assert code != 0
     err = capsys.readouterr().err
     assert "stopped at step 'check'" in err and "basic" in err
+    status = folders.read_status(tmp_path / "o")                    # the folder says it is not complete
+    assert status["status"] == "failed" and "basic" in status["error"]
