@@ -79,7 +79,9 @@ def _parameters(folder: Path) -> dict[str, str]:
     fit_path = outputs.result_path(folder, "fit")
     if fit_path.is_file():
         for p in outputs.read_json(fit_path, "fit result").get("parameters", []):
-            interval = p.get("profile_interval") or p.get("covariance_interval")
+            profile = p.get("profile_interval")
+            usable = isinstance(profile, list) and any(x is not None for x in profile)
+            interval = profile if usable else p.get("covariance_interval")
             found[p["name"]] = f"{_number(p.get('value'))} {_interval(interval)}"
     post_path = outputs.result_path(folder, "posterior_summary")
     if post_path.is_file():
@@ -103,7 +105,8 @@ def contrast(root: str | os.PathLike, a: str, b: str) -> dict[str, Any]:
     runs = [_resolve(root, a), _resolve(root, b)]
     live = {r["id"]: r["status"] for r in live_runs(root)}
     general = [[key, *(live.get(r["id"], r["status"]) if key == "status" else r.get(key) for r in runs)]
-               for key in ("id", "step", "status", "started", "elapsed_s", "command", "built_on")]
+               for key in ("id", "step", "status", "started", "command", "built_on")]
+    general.insert(4, ["wall time [s]", *(_number(r.get("elapsed_s")) for r in runs)])
     general.append(["seeds", *(", ".join(f"{k} {v}" for k, v in r["seeds"].items()) for r in runs)])
     for package in history.PACKAGES:
         versions = [r["versions"].get(package) for r in runs]
