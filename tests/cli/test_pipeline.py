@@ -16,6 +16,7 @@ import pytest
 
 from pipeline.regression_case import build_reduced_demo, report_tables
 from speciakin.cli.main import main
+from speciakin.pipeline import folders
 
 
 @pytest.fixture(scope="module")
@@ -69,10 +70,12 @@ def test_run_produces_every_output(reduced_demo, tmp_path):
 
     # the report command renders the same folder through the same pipeline functions: the posterior
     # is read back from posterior.h5 (checkpoint and result in one file), and the tables are the same
+    # into a new result folder beside the campaign (the folder rendered is left as it is)
     first = report_tables(out / "report.xlsx")
-    (out / "report.xlsx").unlink()
     assert main(["report", str(out), "--formats", "xlsx"]) == 0
-    assert report_tables(out / "report.xlsx") == first
+    again = folders.result_folders(reduced_demo / "results")[-1]
+    assert report_tables(again / "report.xlsx") == first
+    assert folders.read_status(again)["status"] == "complete"
     assert "credible 2.5 %" in first["parameters"][0]
 
 
@@ -86,3 +89,5 @@ def test_run_stops_at_the_failing_step(reduced_demo, tmp_path, capsys):
     assert code != 0
     err = capsys.readouterr().err
     assert "stopped at step 'check'" in err and "basic" in err
+    status = folders.read_status(tmp_path / "o")                    # the folder says it is not complete
+    assert status["status"] == "failed" and "basic" in status["error"]

@@ -64,7 +64,7 @@ def produce(work: Path) -> dict[str, object]:
     out = work / "out"
     for argv in (["fit", str(case), "--out", str(out), "--starts", "2", "--seed", "3", "--quiet"],
                  ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"],
-                 ["report", str(out), "--formats", "xlsx"]):
+                 ["report", str(out), "--out", str(out), "--formats", "xlsx"]):
         code = main(argv)
         if code != 0:
             raise RuntimeError(f"speciakin {argv[0]} failed with exit code {code}")

@@ -73,3 +73,44 @@ class StageProgress:
     def close(self) -> None:
         for bar in self.bars.values():
             bar.close()
+
+
+# ------------------------------------------------------------------ result folders (docs/workflow.md)
+def add_source_argument(parser, what: str = "fit") -> None:
+    """``--from RESULT``: the earlier result folder a step builds on."""
+    parser.add_argument("--from", dest="source", metavar="RESULT", default=None,
+                        help=f"earlier result folder (path, or an id from 'speciakin history') holding the {what} "
+                             "(default: the newest complete one under <campaign>/results/)")
+
+
+def earlier_result(args, inputs, having: str) -> Path | None:
+    """The result folder a step builds on: ``--from``; else an explicit ``--out`` that already holds
+    the file of ``having`` (steps chained in one folder); else the newest complete folder with it; else None."""
+    from speciakin.pipeline import outputs
+    from speciakin.pipeline.record import find_result
+
+    if getattr(args, "source", None):
+        return find_result(inputs.campaign, args.source, having=having)
+    if getattr(args, "out", None) and outputs.result_path(args.out, having).is_file():
+        return Path(args.out)
+    try:
+        return find_result(inputs.campaign, having=having)
+    except InputError:
+        return None
+
+
+def recording(args, inputs, step: str, *, writes=(), resume=None, built_on=None, carry=(), seeds=None):
+    """The :class:`~speciakin.pipeline.record.Recording` of a command: ``--out`` or a new result folder."""
+    from speciakin.pipeline.record import Recording
+
+    return Recording(inputs, step=step, out=getattr(args, "out", None), resume=resume, built_on=built_on,
+                     carry=carry, writes=writes, seeds=seeds)
+
+
+def print_notes(rec) -> None:
+    """Say where the results are and anything the recording could not do."""
+    import sys
+
+    for note in rec.notes:
+        print(f"speciakin: note: {note}", file=sys.stderr)
+    print(f"result folder: {rec.folder} ({rec.status})")

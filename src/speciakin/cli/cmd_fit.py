@@ -9,7 +9,8 @@ EPILOG = """example:
   speciakin fit my-campaign --out my-campaign/results
   speciakin fit runs.xlsx --model model.toml --starts 12 --no-profiles
 
-writes fit.json (schema in docs/workflow.md), fit.txt and figures/ in the output folder."""
+writes fit.json (schema in docs/workflow.md), fit.txt and figures/ into a new result folder
+<campaign>/results/<UTC time>-<id>/ (or --out DIR, refused when it already holds a fit)."""
 
 
 def add_arguments(parser) -> None:
@@ -27,7 +28,7 @@ def add_arguments(parser) -> None:
 def run(args) -> int:
     from speciakin import pipeline
     from speciakin.report.results import fit_figures
-    from speciakin.cli._common import StageProgress, default_out
+    from speciakin.cli._common import StageProgress, print_notes, recording
     from speciakin.errors import InputError, Location
 
     if args.starts is not None and args.starts < 1:
@@ -35,14 +36,16 @@ def run(args) -> int:
     inputs = pipeline.resolve_inputs(args.campaign, args.model)
     model, campaign, _ = pipeline.load_inputs(inputs)
     objective = pipeline.make_objective(model, campaign)
-    out = default_out(args, "fit")
-    progress = StageProgress(not args.quiet)
-    try:
-        result = pipeline.fit_step(objective, out, starts=args.starts, seed=args.seed,
-                                   profiles=not args.no_profiles, progress=progress)
-    finally:
-        progress.close()
-    fit_figures(model, pipeline.predict_step(objective, result), result, out)
+    with recording(args, inputs, "fit", writes=("fit", "fit_text"), seeds={"seed": args.seed}) as rec:
+        out = rec.folder
+        progress = StageProgress(not args.quiet)
+        try:
+            result = pipeline.fit_step(objective, out, starts=args.starts, seed=args.seed,
+                                       profiles=not args.no_profiles, progress=progress)
+        finally:
+            progress.close()
+        fit_figures(model, pipeline.predict_step(objective, result), result, out)
     print(result.report())
+    print_notes(rec)
     print(f"\nwritten: {out / 'fit.json'}, {out / 'fit.txt'}, {out / 'figures'}")
     return 0

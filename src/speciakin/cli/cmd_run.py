@@ -9,8 +9,19 @@ EPILOG = """example:
   speciakin run my-campaign                      # model.toml and process.toml inside the folder
   speciakin run runs.xlsx --model model.toml --process process.toml --out results --jobs 2
 
-stops with a clear message at the first step that fails; every earlier step's
-output stays in the output folder. Open report.html (or report.pdf) when done."""
+writes into a new result folder <campaign>/results/<UTC time>-<id>/ (or --out DIR, refused
+when it already holds results); 'speciakin history CAMPAIGN' lists every run. Stops with
+a clear message at the first step that fails; every earlier step's output stays in the
+folder, marked failed. --resume continues the newest interrupted run (or --out DIR) in
+place. Open report.html (or report.pdf) when done."""
+
+
+class _Reported(Exception):
+    """A step's error, already printed: marks the result folder failed, then becomes the exit code."""
+
+    def __init__(self, code: int, error: Exception) -> None:
+        super().__init__(str(error))
+        self.code = code
 
 
 def add_pipeline_options(parser) -> None:
@@ -22,7 +33,8 @@ def add_pipeline_options(parser) -> None:
     parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
     parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the posterior")
     parser.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask distributed scheduler")
-    parser.add_argument("--resume", action="store_true", help="continue an interrupted posterior run")
+    parser.add_argument("--resume", action="store_true",
+                        help="continue an interrupted run (the newest, or the folder of --out) in place")
     parser.add_argument("--no-profiles", action="store_true", help="skip profile-likelihood intervals")
     parser.add_argument("--quiet", action="store_true", help="no progress bars")
 
@@ -38,8 +50,11 @@ def add_arguments(parser) -> None:
     add_people_arguments(parser)
 
 
-def execute(inputs, out, args, invented: bool = False) -> int:
-    """Run the pipeline for resolved inputs; shared with ``speciakin demo``."""
+def execute(inputs, out, args, invented: bool = False, raise_errors: bool = False) -> int:
+    """Run the pipeline for resolved inputs; shared with ``speciakin demo``.
+
+    With ``raise_errors`` a step's error is printed and raised again (so that
+    the result folder around the call is marked failed)."""
     import sys
     import time
 
@@ -68,15 +83,35 @@ def execute(inputs, out, args, invented: bool = False) -> int:
         progress.close()
         print(f"speciakin: stopped at step '{step['name']}': {exc}", file=sys.stderr)
         print(f"speciakin: the output of earlier steps is kept in {out}", file=sys.stderr)
+        if raise_errors:
+            raise _Reported(exc.exit_code, exc) from None
         return exc.exit_code
     progress.close()
     print(f"\ndone in {time.perf_counter() - t0:.1f} s; open {result.report.get('html', out)}")
     return 0
 
 
+#: What a run writes (an explicit --out must hold none of it).
+WRITES = ("check", "fit", "fit_text", "posterior", "posterior_summary", "window", "window_text", "report", "timings")
+
+
 def run(args) -> int:
+    from pathlib import Path
+
     from speciakin import pipeline
-    from speciakin.cli._common import default_out
+    from speciakin.cli._common import print_notes, recording
 
     inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
-    return execute(inputs, default_out(args, "run"), args)
+    resume = None
+    if args.resume:
+        resume = Path(args.out) if args.out else pipeline.find_result(
+            inputs.campaign, having="posterior", statuses=("interrupted", "failed"), what="interrupted run")
+    seeds = {"seed": args.seed}
+    rec = recording(args, inputs, "run", writes=WRITES, resume=resume, seeds=seeds)
+    try:
+        with rec:
+            code = execute(inputs, rec.folder, args, raise_errors=True)
+    except _Reported as reported:
+        code = reported.code
+    print_notes(rec)
+    return code

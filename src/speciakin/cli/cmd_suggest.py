@@ -8,7 +8,8 @@ HELP = "rank candidate next runs by how much they are expected to firm up the pH
 EPILOG = """example:
   speciakin suggest my-campaign --plant-ph 4 9 --batch 2
 
-needs fit.json in the output folder (uses posterior_samples.h5 when present) and,
+builds on the newest complete result folder with a fit (or --from RESULT; uses its
+posterior.h5 when present) and writes into a new result folder; needs,
 for the window criteria, the process file; candidates copy the protocol of a
 campaign run (--template) with a held pH set point on a grid over the model's
 plausible range.  Writes suggest.json, suggest.txt and figures/suggest_shrinkage.png.
@@ -16,10 +17,11 @@ Method and thresholds: docs/suggest.md."""
 
 
 def add_arguments(parser) -> None:
-    from speciakin.cli._common import add_campaign_arguments
+    from speciakin.cli._common import add_campaign_arguments, add_source_argument
 
     parser.epilog = EPILOG
     add_campaign_arguments(parser, process=True)
+    add_source_argument(parser, "fit (and posterior)")
     parser.add_argument("--ph-range", nargs=2, type=float, metavar=("LOW", "HIGH"),
                         help="candidate set points from LOW to HIGH (default: site pKa values +/- 2 and the "
                              "campaign's set points)")
@@ -50,6 +52,10 @@ def add_arguments(parser) -> None:
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
+#: Results of the folder a suggestion builds on, copied into its own folder.
+CARRIED = ("fit", "fit_text", "posterior", "posterior_summary", "posterior_text", "window", "window_text")
+
+
 def _check_counts(args) -> None:
     from speciakin.errors import InputError, Location
 
@@ -62,29 +68,46 @@ def _check_counts(args) -> None:
 
 def run(args) -> int:
     from speciakin import pipeline
-    from speciakin._io import atomic_write_bytes
-    from speciakin.cli._common import StageProgress, default_out
+    from speciakin.cli._common import earlier_result, print_notes, recording
     from speciakin.errors import InputError, Location
     from speciakin.pipeline import outputs
-    from speciakin.pipeline.suggest import suggest_for_campaign
-    from speciakin.report.figures.suggest import suggest_shrinkage_figure
 
     _check_counts(args)
     inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
     model, campaign, process = pipeline.load_inputs(inputs)
     objective = pipeline.make_objective(model, campaign)
-    out = default_out(args, "suggest")
-    posterior = outputs.load_posterior(out)
+    source = earlier_result(args, inputs, "fit")
+    if source is None:
+        raise InputError("no fit or posterior to start from",
+                         Location(file=str(pipeline.results_root(inputs.campaign))),
+                         expected="run 'speciakin fit' (and optionally 'speciakin sample') first")
+    posterior = outputs.load_posterior(source)
     if posterior is not None and list(posterior.parameter_names) != objective.names:
         posterior = None
-    fit = outputs.load_fit(out)
+    fit = outputs.load_fit(source)
     if fit is not None and fit.names != objective.names:
         raise InputError("fit.json was made for other fitted parameters than the model now marks",
-                         Location(file=str(outputs.result_path(out, "fit"))), fit.names,
+                         Location(file=str(outputs.result_path(source, "fit"))), fit.names,
                          f"a fit of {', '.join(objective.names)} (run 'speciakin fit' again)")
-    if fit is None and posterior is None:
-        raise InputError("no fit or posterior to start from", Location(file=str(outputs.result_path(out, "fit"))),
-                         expected="run 'speciakin fit' (and optionally 'speciakin sample') first")
+    with recording(args, inputs, "suggest", writes=("suggest", "suggest_text"), built_on=source, carry=CARRIED,
+                   seeds={"seed": args.seed}) as rec:
+        out = rec.folder
+        result = _suggest(args, inputs, objective, fit, posterior, process, out)
+    print(result.report())
+    print(f"\nwritten: {outputs.result_path(out, 'suggest')}, "
+          f"{out / outputs.FIGURES_FOLDER / 'suggest_shrinkage.png'}")
+    print_notes(rec)
+    return 0
+
+
+def _suggest(args, inputs, objective, fit, posterior, process, out):
+    """Rank the candidates and write suggest.json, suggest.txt and the figure into ``out``."""
+    from speciakin._io import atomic_write_bytes
+    from speciakin.cli._common import StageProgress
+    from speciakin.pipeline import outputs
+    from speciakin.pipeline.suggest import suggest_for_campaign
+    from speciakin.report.figures.suggest import suggest_shrinkage_figure
+
     progress = StageProgress(enabled=not args.quiet)
     try:
         result = suggest_for_campaign(
@@ -102,8 +125,5 @@ def run(args) -> int:
                                    curves["d_gain"], min_gain=result.min_gain if result.has_decision else None,
                                    best_ph=result.candidates[0].conditions["setpoint_pH"],
                                    title="Expected shrinkage of the decision's uncertainty")
-    figure = out / outputs.FIGURES_FOLDER / "suggest_shrinkage.png"
-    atomic_write_bytes(figure, png)
-    print(result.report())
-    print(f"\nwritten: {outputs.result_path(out, 'suggest')}, {figure}")
-    return 0
+    atomic_write_bytes(out / outputs.FIGURES_FOLDER / "suggest_shrinkage.png", png)
+    return result

@@ -27,7 +27,7 @@ from speciakin.errors import SpeciakinError
 #: Sub-commands in the order of the chemist's journey.
 COMMANDS = (
     "new", "check", "speciate", "titrate", "simulate", "fit", "compare",
-    "sample", "window", "suggest", "report", "run", "demo", "web",
+    "sample", "window", "suggest", "report", "run", "history", "contrast", "demo", "web",
 )
 
 

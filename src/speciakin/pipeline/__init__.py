@@ -9,6 +9,12 @@ The public Python API (the command line calls it; so can any other front end)::
     results = pipeline.run_all(inputs, "out", renderer=renderer, progress=print_progress, cancel=event)
     again = pipeline.load_results("out")             # the same Results, read from the files
 
+A new result folder with its lock, status and index row (what every command
+uses; docs/workflow.md, "Result folders")::
+
+    with pipeline.Recording(inputs, step="run") as rec:    # <campaign>/results/<UTC time>-<id>/
+        pipeline.run_all(inputs, rec.folder, renderer=renderer)
+
 Steps one by one: :func:`check_step`, :func:`fit_step`, :func:`sample_step`,
 :func:`window_step`, :func:`predict_step`; progress callbacks
 ``progress(stage, done, total)`` and cancellation (``cancel.is_set()`` ->
@@ -26,16 +32,22 @@ predictions  fitted curves, bands and fitted values, computed once for the repor
 outputs      the output folder: file names, JSON codec, save / load of every result
 steps        one function per step, progress and cancellation
 run          run_all (the whole job) and load_results (an output folder)
+folders      result folders: new_result_folder, lock, status.json, the newest complete one
+history      the SQLite index of every run (index.sqlite)
+record       Recording: folder + lock + status + index row around one piece of work
 """
 
 from speciakin.pipeline.inputs import Inputs, load_inputs, resolve_inputs
+from speciakin.pipeline.folders import new_result_folder, read_status, results_root
 from speciakin.pipeline.outputs import RESULT_FILES
-from speciakin.pipeline.run import STEPS, Renderer, Results, load_results, run_all
+from speciakin.pipeline.record import Recording, find_result
+from speciakin.pipeline.run import STEPS, Renderer, Results, for_report, load_results, run_all
 from speciakin.pipeline.steps import (Cancelled, Progress, check_step, fit_step, make_objective, predict_step,
                                       sample_step, window_step, window_text)
 
 __all__ = [
     "Inputs", "resolve_inputs", "load_inputs", "RESULT_FILES", "STEPS", "Renderer", "Results", "run_all",
     "load_results", "Cancelled", "Progress", "check_step", "fit_step", "make_objective", "predict_step",
-    "sample_step", "window_step", "window_text",
+    "sample_step", "window_step", "window_text", "Recording", "find_result", "new_result_folder", "read_status",
+    "results_root", "for_report",
 ]

@@ -23,11 +23,12 @@ class Inputs:
     model: Path
     process: Path | None = None
 
-    def labelled(self) -> list[tuple[str, str]]:
-        """``(label, path)`` of the model and process files, for the report's input list."""
-        out = [("model file", str(self.model))]
+    def labelled(self) -> list[tuple[str, os.PathLike]]:
+        """``(label, path)`` of the model and process files, for the report's input list
+        (the path objects themselves: ``str()`` is what the report prints, ``os.fspath()`` what it reads)."""
+        out: list[tuple[str, os.PathLike]] = [("model file", self.model)]
         if self.process:
-            out.append(("process file", str(self.process)))
+            out.append(("process file", self.process))
         return out
 
 

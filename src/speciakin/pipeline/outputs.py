@@ -16,13 +16,15 @@ The posterior is one HDF5 file, ``posterior.h5``: the sampler's checkpoint
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
+import re
 import shlex
 import sys
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import Any, Iterable, Mapping
 
 from speciakin import __version__
 from speciakin._io import atomic_write_text
@@ -30,8 +32,9 @@ from speciakin._json import dumps
 from speciakin.errors import InputError, Location
 
 __all__ = ["RESULT_FILES", "FIGURES_FOLDER", "result_path", "write_json", "write_text", "read_json",
-           "command_line", "save_check", "save_fit", "load_fit", "load_fit_data", "save_posterior",
-           "load_posterior", "save_window", "load_window", "save_timings", "resolve_input"]
+           "command_line", "relative", "recorded_path", "safe_stems", "check_as_recorded", "save_check", "save_fit",
+           "load_fit", "load_fit_data", "save_posterior", "load_posterior", "save_window", "load_window",
+           "save_timings", "resolve_input", "save_suggestion"]
 
 #: Every file a step writes into the output folder, by role (docs/workflow.md lists them).
 RESULT_FILES: Mapping[str, str] = MappingProxyType({
@@ -57,9 +60,58 @@ def result_path(folder: str | os.PathLike, role: str) -> Path:
     return Path(folder) / RESULT_FILES[role]
 
 
-def command_line() -> str:
-    """The command that produced an output, for reproduction."""
-    return "speciakin " + " ".join(shlex.quote(a) for a in sys.argv[1:])
+def relative(path: str | os.PathLike, folder: str | os.PathLike) -> str:
+    """``path`` written relative to ``folder`` (forward slashes), so that no output names the machine."""
+    try:
+        rel = os.path.relpath(os.path.abspath(path), os.path.abspath(folder))
+    except ValueError:  # another drive (Windows): no relative form exists
+        return Path(path).name
+    return rel.replace(os.sep, "/")
+
+
+def recorded_path(path: str, folder: Path) -> str:
+    """An input path as an output records it: relative to ``folder`` when it names a file."""
+    return relative(path, folder) if path and os.path.exists(path) else path
+
+
+#: Longest file stem :func:`safe_stems` keeps before it shortens a name (characters).
+MAX_STEM = 60
+
+
+def safe_stems(names: Iterable[str]) -> dict[str, str]:
+    """A distinct, safe file stem for each name (figure files of runs named by the chemist).
+
+    Letters, digits, ``_``, ``-`` and ``.`` are kept, every other run of
+    characters becomes ``_``; a stem that changed, is longer than
+    :data:`MAX_STEM`, or equals another stem ignoring case gets ``-`` and the
+    first 8 hex digits of the name's SHA-256, so ``R/1``, ``R_1`` and ``R 1``
+    give three files and a 300-character name gives a short one.
+    """
+    names = list(dict.fromkeys(names))
+    plain = {n: re.sub(r"[^A-Za-z0-9_.-]+", "_", n).strip(".") or "_" for n in names}
+    counts: dict[str, int] = {}
+    for stem in plain.values():
+        counts[stem.lower()] = counts.get(stem.lower(), 0) + 1
+    out = {}
+    for name, stem in plain.items():
+        if stem != name or len(stem) > MAX_STEM or counts[stem.lower()] > 1:
+            stem = stem[:MAX_STEM] + "-" + hashlib.sha256(name.encode("utf-8")).hexdigest()[:8]
+        out[name] = stem
+    return out
+
+
+def command_line(folder: str | os.PathLike | None = None) -> str:
+    """The command that produced an output, for reproduction.
+
+    With ``folder``, every argument that names an existing file or folder is
+    written relative to ``folder`` (the result folder), so that the command
+    names no path of the machine; it then reproduces the result when started
+    from inside the result folder.
+    """
+    args = sys.argv[1:]
+    if folder is not None:
+        args = [relative(a, folder) if a and not a.startswith("-") and os.path.exists(a) else a for a in args]
+    return " ".join(["speciakin", *(shlex.quote(a) for a in args)])
 
 
 def write_text(path: str | os.PathLike, text: str) -> Path:
@@ -89,14 +141,14 @@ def read_json(path: Path, what: str) -> dict[str, Any]:
     return data
 
 
-def _provenance(data: dict[str, Any], command: str | None) -> dict[str, Any]:
+def _provenance(data: dict[str, Any], command: str | None, folder: Path | None = None) -> dict[str, Any]:
     data["software_version"] = __version__
-    data["command"] = command if command is not None else command_line()
+    data["command"] = command if command is not None else command_line(folder)
     return data
 
 
 def _save_json_and_text(folder: Path, json_role: str, text_role: str, result: Any, command: str | None) -> None:
-    write_json(result_path(folder, json_role), _provenance(result.to_dict(), command))
+    write_json(result_path(folder, json_role), _provenance(result.to_dict(), command, folder))
     write_text(result_path(folder, text_role), result.report() + "\n")
 
 
@@ -106,15 +158,40 @@ def _malformed(path: Path, what: str, exc: Exception, expected: str) -> InputErr
 
 
 # ------------------------------------------------------------------ check
+def check_as_recorded(check: Any, folder: Path) -> Any:
+    """A copy of a CheckReport whose file paths are written relative to ``folder``."""
+    import dataclasses
+
+    def shown(problem):
+        loc = problem.location
+        if not getattr(loc, "file", None):
+            return problem
+        return dataclasses.replace(problem, location=dataclasses.replace(loc, file=recorded_path(loc.file, folder)))
+
+    return dataclasses.replace(check, source=recorded_path(str(check.source), folder),
+                               model=None if check.model is None else recorded_path(str(check.model), folder),
+                               problems=[shown(p) for p in check.problems])
+
+
 def save_check(folder: Path, check: Any) -> Path:
-    """``check.json`` of a :class:`~speciakin.data.validate.CheckReport`."""
-    return write_json(result_path(folder, "check"), check.to_dict())
+    """``check.json`` of a :class:`~speciakin.data.validate.CheckReport` (paths relative to ``folder``)."""
+    return write_json(result_path(folder, "check"), check_as_recorded(check, Path(folder)).to_dict())
 
 
 # ------------------------------------------------------------------ fit
 def save_fit(folder: Path, fit: Any, command: str | None = None) -> None:
-    """``fit.json`` (schema in docs/workflow.md) and ``fit.txt`` of a CampaignFitResult."""
-    _save_json_and_text(Path(folder), "fit", "fit_text", fit, command)
+    """``fit.json`` (schema in docs/workflow.md) and ``fit.txt`` of a CampaignFitResult.
+
+    The model and campaign paths are written relative to ``folder`` (the
+    folder can be moved together with its inputs and rendered again).
+    """
+    import dataclasses
+
+    folder = Path(folder)
+    shown = dataclasses.replace(
+        fit, model_source=recorded_path(fit.model_source, folder),
+        campaign_source=recorded_path(fit.campaign_source, folder))
+    _save_json_and_text(folder, "fit", "fit_text", shown, command)
 
 
 def load_fit_data(folder: Path) -> tuple[Any, dict[str, Any]] | None:
@@ -182,10 +259,11 @@ def load_posterior(folder: Path) -> Any | None:
 # ------------------------------------------------------------------ suggestion
 def save_suggestion(folder: Path, suggestion: Any, inputs: Any = None, command: str | None = None) -> None:
     """``suggest.json`` and ``suggest.txt`` of a SuggestResult (with the input paths when given)."""
-    data = _provenance(suggestion.to_dict(), command)
+    folder = Path(folder)
+    data = _provenance(suggestion.to_dict(), command, folder)
     if inputs is not None:
-        data["inputs"] = {"campaign": str(inputs.campaign), "model": str(inputs.model),
-                          "process": None if inputs.process is None else str(inputs.process)}
+        data["inputs"] = {"campaign": relative(inputs.campaign, folder), "model": relative(inputs.model, folder),
+                          "process": None if inputs.process is None else relative(inputs.process, folder)}
     write_json(result_path(folder, "suggest"), data)
     write_text(result_path(folder, "suggest_text"), suggestion.report() + "\n")
 
@@ -221,7 +299,8 @@ def save_timings(folder: Path, timings: Mapping[str, float]) -> Path:
 # ------------------------------------------------------------------ inputs named by a result
 def resolve_input(given: str | None, recorded: str | None, folder: Path, what: str, key: str) -> Path:
     """Path of an input file: the one given, else the one recorded in fit.json
-    (as written, then relative to the output folder).
+    (relative to the output folder, then as written: older files recorded
+    paths relative to where the command was started).
 
     Raises
     ------
@@ -236,7 +315,7 @@ def resolve_input(given: str | None, recorded: str | None, folder: Path, what: s
     if not recorded:
         raise InputError(f"no {what} given and none recorded in fit.json", Location(key=key),
                          expected=f"--{key} PATH, or a fit.json in the output folder that names the {what}")
-    for p in (Path(recorded), Path(folder) / recorded):
+    for p in (Path(os.path.normpath(Path(folder) / recorded)), Path(recorded)):
         if p.exists():
             return p
     raise InputError(f"the {what} named in fit.json no longer exists",

@@ -11,6 +11,8 @@ with the same three functions (:class:`Renderer`).
 
 from __future__ import annotations
 
+import dataclasses
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable, Protocol
@@ -42,7 +44,7 @@ if TYPE_CHECKING:
     from speciakin.pipeline.objective import CampaignObjective
     from speciakin.pipeline.predictions import PredictionSet
 
-__all__ = ["Results", "Renderer", "run_all", "load_results", "STEPS"]
+__all__ = ["Results", "Renderer", "run_all", "load_results", "for_report", "STEPS"]
 
 #: The steps of :func:`run_all`, in order.
 STEPS = ("check", "fit", "sample", "window", "report")
@@ -177,10 +179,47 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     results.predictions = predict_step(objective, fit, posterior, previous=results.predictions)
     if renderer is not None:
         results.report = timed(timings, "report", lambda: renderer.write_report(
-            out, results, invented=invented, formats=formats, command=outputs.command_line()))
+            out, for_report(results, out), invented=invented, formats=formats, command=outputs.command_line(out)))
         say("report: " + ", ".join(str(p) for p in results.report.values()))
     outputs.save_timings(out, timings)
     return results
+
+
+class ShownPath(os.PathLike):
+    """A file read at its real path but written into outputs as a path relative to a result folder."""
+
+    def __init__(self, real: str | os.PathLike, folder: Path) -> None:
+        self.real = Path(real)
+        self.shown = outputs.relative(real, folder)
+
+    def __fspath__(self) -> str:
+        return str(self.real)
+
+    def __str__(self) -> str:
+        return self.shown
+
+    def __repr__(self) -> str:
+        return self.shown
+
+
+def for_report(results: Results, out: Path) -> Results:
+    """A copy of ``results`` whose input paths print relative to ``out`` (files are still read at their
+    real paths), so that the report names no folder of the machine."""
+    out = Path(out)
+    campaign = results.campaign
+    try:
+        campaign = dataclasses.replace(
+            campaign, source=outputs.recorded_path(campaign.source, out) if campaign.source else campaign.source,
+            provenance=tuple(dataclasses.replace(p, path=outputs.recorded_path(str(p.path), out))
+                             for p in campaign.provenance))
+    except (TypeError, AttributeError):  # a campaign object without these fields
+        pass
+    inputs = results.inputs
+    if inputs is not None:
+        inputs = Inputs(ShownPath(inputs.campaign, out), ShownPath(inputs.model, out),
+                        None if inputs.process is None else ShownPath(inputs.process, out))
+    check = None if results.check is None else outputs.check_as_recorded(results.check, out)
+    return dataclasses.replace(results, campaign=campaign, inputs=inputs, check=check)
 
 
 def load_results(folder: Path, *, campaign: str | None = None, model: str | None = None,

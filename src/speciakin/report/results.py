@@ -8,7 +8,6 @@ is the renderer that :func:`speciakin.pipeline.run.run_all` is given.
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from typing import Any
 
@@ -26,7 +25,7 @@ def fit_figures(model: Any, predictions: Any, fit: Any, out: Path) -> list[Path]
     """Per-run data-and-model plots, residuals, profiles and correlation into ``out/figures``."""
     from speciakin.report.assemble.figures import fit_figure_set
 
-    return [atomic_write_bytes(_figures(out) / f"{re.sub(r'[^A-Za-z0-9_.-]+', '_', name)}.png", png)
+    return [atomic_write_bytes(_figures(out) / f"{name}.png", png)
             for name, png in fit_figure_set(model, predictions, fit).items()]
 
 

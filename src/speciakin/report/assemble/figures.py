@@ -8,9 +8,9 @@ the correlation matrix.
 
 from __future__ import annotations
 
-import re
 from typing import Any
 
+from speciakin.pipeline.outputs import safe_stems
 from speciakin.report.document import Figure
 
 __all__ = ["fit_figure_set"]
@@ -34,8 +34,8 @@ def fit_figure_set(model: Any, predictions: Any, fit: Any) -> dict[str, bytes]:
     dict
         ``run_<run>``, ``titrant_<run>`` (held-pH runs), ``residuals``,
         ``profiles`` (when computed) and ``correlation`` (when available) ->
-        PNG bytes; characters other than letters, digits, ``_``, ``-`` and
-        ``.`` in a run name become ``_`` so that the names serve as file names.
+        PNG bytes; the names are safe, distinct file stems
+        (:func:`speciakin.pipeline.outputs.safe_stems`).
     """
     from speciakin.report.assemble.build import species_colors
     from speciakin.report.assemble.parameters import correlation_section
@@ -44,7 +44,8 @@ def fit_figure_set(model: Any, predictions: Any, fit: Any) -> dict[str, bytes]:
 
     named: dict[str, Figure] = {}
     runs_section(predictions, fit, None, species_colors(model), figure_names=named)
-    out = {re.sub(r"[^A-Za-z0-9_.-]+", "_", name): figure.image_bytes() for name, figure in named.items()}
+    stems = safe_stems(named)
+    out = {stems[name]: figure.image_bytes() for name, figure in named.items()}
     for block in profile_blocks(fit):
         if isinstance(block, Figure):
             out["profiles"] = block.image_bytes()
