@@ -7,6 +7,7 @@ HELP = "the whole job: check, fit, sample, pH window and report, in one command"
 
 EPILOG = """example:
   speciakin run my-campaign                      # model.toml and process.toml inside the folder
+  speciakin run my-campaign --quick              # provisional first look: fit + covariance window
   speciakin run runs.xlsx --model model.toml --process process.toml --out results --jobs 2
 
 stops with a clear message at the first step that fails; every earlier step's
@@ -33,6 +34,8 @@ def add_arguments(parser) -> None:
     parser.epilog = EPILOG
     add_campaign_arguments(parser, process=True)
     add_pipeline_options(parser)
+    from speciakin.cli._quick import add_quick_option
+    add_quick_option(parser)
 
 
 def execute(inputs, out, args, invented: bool = False) -> int:
@@ -69,4 +72,7 @@ def run(args) -> int:
     from speciakin.cli._common import default_out
 
     inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
+    if args.quick:
+        from speciakin.cli._quick import run_quick
+        return run_quick(inputs, default_out(args, "run"), args)
     return execute(inputs, default_out(args, "run"), args)
