@@ -38,7 +38,7 @@ def test_check_reports_process_file_errors_with_their_key(tmp_path, capsys):
     assert main(["check", str(tmp_path / "c"), "--format", "json"]) == 1
     report = json.loads(capsys.readouterr().out)
     bad = [q for q in report["problems"] if q["severity"] == "error"]
-    assert len(bad) == 1 and bad[0]["location"]["key"] == "process.reagent" and bad[0]["value"] == "NOPE"
+    assert len(bad) == 1 and bad[0]["location"]["key"] == "process.reagent" and bad[0]["value"] == "'NOPE'"  # values are shown quoted
 
 
 def test_example_checks_and_runs_quick(tmp_path, capsys):
@@ -53,6 +53,10 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     assert report["counts"]["runs"] == 3 and report["counts"]["hplc_values"] == 54
     assert report["counts"]["log_readings"] == 279
     assert report["counts"]["errors"] == 0
+    # raw-data plots before any fit: one PNG per run
+    assert main(["look", str(folder)]) == 0
+    assert sorted(p.name for p in (folder / "look").glob("*.png")) == ["E01-pH4.5.png", "E02-pH6.0.png",
+                                                                        "E03-pH7.5.png"]
     assert main(["run", str(folder), "--quick", "--quiet"]) == 0
     assert QUICK_NOTE in capsys.readouterr().out
     fit = json.loads((folder / "results" / "fit.json").read_text())

@@ -7,7 +7,7 @@ def add_quick_option(parser) -> None:
     """The ``--quick`` option of ``speciakin run``."""
     parser.add_argument("--quick", action="store_true",
                         help="provisional first look: fit (2 starts, no profiles) and a pH window from the "
-                             "fit's covariance; no posterior, no report. Outputs are labelled PROVISIONAL")
+                             "fit's covariance (at most 200 draws); no posterior, no report. Outputs are labelled PROVISIONAL")
 
 
 def run_quick(inputs, out, args) -> int:

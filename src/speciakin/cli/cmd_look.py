@@ -32,6 +32,13 @@ def _file_name(run: str) -> str:
     return (re.sub(r"[^A-Za-z0-9._-]+", "_", run).strip("._") or "run") + ".png"
 
 
+def _legend_text(name: str, label: str) -> str:
+    """The HPLC name, with the model's label when it says more."""
+    if not label or label == name:
+        return name
+    return label if label.startswith(name) else f"{name} ({label})"
+
+
 def plot_run(run, compounds, labels: dict, colors, path) -> None:
     """One figure of a run's raw data (three panels stacked over one time axis [min]).
 
@@ -59,7 +66,7 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
     from speciakin._io import atomic_write_bytes
     from speciakin.palette import NEUTRAL, OKABE_ITO
 
-    fig, (ax_h, ax_p, ax_t) = plt.subplots(3, 1, figsize=(8.0, 9.0), sharex=True,
+    fig, (ax_h, ax_p, ax_t) = plt.subplots(3, 1, figsize=(10.0, 9.0), sharex=True,
                                            gridspec_kw={"height_ratios": [2.2, 1.2, 1.2]})
     h = run.hplc
     molecule_of = {c.name: c.molecule for c in compounds}
@@ -71,7 +78,7 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
         style = colors.style(molecule)
         t = h.time[sel] / 60.0
         v = h.value[sel] * scale
-        text = f"{name} ({labels[molecule]})" if labels.get(molecule) and labels[molecule] != name else name
+        text = _legend_text(name, labels.get(molecule, ""))
         ax_h.plot(t, v, marker=style.marker, linestyle=style.line_style, color=style.color, label=text, ms=4)
         cens = h.censored[sel]
         if cens.any():
@@ -80,7 +87,7 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
     ax_h.set_ylabel(axis_label)
     if h.censored.any():
         ax_h.plot([], [], linestyle="none", marker="v", mfc="none", color=NEUTRAL, label="below LOQ (drawn at 0)")
-    ax_h.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, frameon=False)
+    ax_h.legend(loc="upper left", bbox_to_anchor=(1.15, 1.0), fontsize=8, frameon=False)
     ax_h.set_title(f"run {run.name}: raw data" + (f"\n{run.recipe.note}" if run.recipe.note else ""), fontsize=9)
 
     ph_color, temp_color = OKABE_ITO["blue"], OKABE_ITO["vermillion"]
@@ -93,10 +100,10 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
     if run.temperature_log is not None and len(run.temperature_log):
         ax_temp.plot(run.temperature_log.time / 60.0, run.temperature_log.value - 273.15, color=temp_color,
                      lw=1.2, ls="-.", label="temperature")
-    ax_temp.set_ylabel("temperature [C]", color=temp_color)
+    ax_temp.set_ylabel("temperature [C]", color=temp_color, labelpad=2)
     handles = ax_p.get_legend_handles_labels()[0] + ax_temp.get_legend_handles_labels()[0]
     if handles:
-        ax_p.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.12, 1.0), fontsize=8, frameon=False)
+        ax_p.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.15, 1.0), fontsize=8, frameon=False)
     else:
         ax_p.text(0.5, 0.5, "no pH or temperature log", transform=ax_p.transAxes, ha="center", color=NEUTRAL)
 

@@ -17,9 +17,12 @@ def add_arguments(parser) -> None:
 
 
 def run(args) -> int:
-    from speciakin.data.templates import new_campaign
+    if args.example:
+        from speciakin.data.example import new_example as make
+    else:
+        from speciakin.data.templates import new_campaign as make
 
-    written = new_campaign(args.folder, example=args.example)
+    written = make(args.folder)
     print(f"created {args.folder}:")
     for path in written:
         print(f"  {path.name}")

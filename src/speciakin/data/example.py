@@ -14,9 +14,10 @@ from pathlib import Path
 import numpy as np
 
 from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, Withdrawal
+from speciakin.data._files import write_bytes_atomically
 from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TimeSeries, TitrantLog
 
-__all__ = ["EXAMPLE_FILES", "TRUTH", "SEED", "example_campaign", "example_source"]
+__all__ = ["EXAMPLE_FILES", "TRUTH", "SEED", "example_campaign", "example_source", "new_example"]
 
 #: Files copied from ``data/example/`` next to the generated workbook.
 EXAMPLE_FILES = ("model.toml", "process.toml")
@@ -103,3 +104,42 @@ def example_campaign(model, seed: int = SEED) -> Campaign:
                                                       volume_ml * _ML),
                                TimeSeries(log_t.copy(), ph, rows), temp))
     return Campaign(runs=tuple(out), compounds=compounds, basis="area_percent")
+
+
+_EXAMPLE_README = """# INVENTED example campaign
+
+Everything in this folder is invented for practice: "KV-5113" is a fictional diamine and
+"lovic anhydride" a fictional acylating agent. `campaign.xlsx` holds three runs simulated
+from `model.toml` with other ("true") rate constants and seeded noise; they are not
+measurements. Do not use these numbers for any real process.
+
+Try:
+
+1. `speciakin check {name}`
+2. `speciakin run {name} --quick` (a provisional first look in well under a minute
+   once the simulation kernel is compiled), then `speciakin run {name}` for the full job.
+"""
+
+
+def new_example(folder: str | Path) -> list[Path]:
+    """Create ``folder`` with the INVENTED example campaign: its model and
+    process files, a workbook simulated from them (:func:`example_campaign`)
+    and a README.  Returns the files written.
+
+    Raises
+    ------
+    DataError
+        When ``folder`` exists and is not empty.
+    """
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.data.templates import WORKBOOK_NAME, new_folder
+    from speciakin.data.writer import write_campaign
+
+    p = new_folder(folder)
+    written = []
+    for name in EXAMPLE_FILES:
+        write_bytes_atomically(p / name, (example_source() / name).read_bytes())
+        written.append(p / name)
+    written += write_campaign(example_campaign(load_model(p / "model.toml")), p / WORKBOOK_NAME)
+    write_bytes_atomically(p / "README.md", _EXAMPLE_README.format(name=p.name).encode("utf-8"))
+    return written + [p / "README.md"]

@@ -19,7 +19,7 @@ from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHE
 from speciakin.errors import DataError, Location
 
 __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write_template",
-           "write_template_csv", "new_campaign", "blank_tables", "regenerate_data_templates"]
+           "write_template_csv", "new_folder", "new_campaign", "blank_tables", "regenerate_data_templates"]
 
 GUIDE_TITLE = "Read me"
 WORKBOOK_NAME = "campaign.xlsx"
@@ -184,18 +184,13 @@ Then:
 {notes}"""
 
 
-def new_campaign(folder: str | Path, example: bool = False) -> list[Path]:
-    """Create a campaign folder from the templates.
-
-    Writes the workbook, the model and process skeletons when the installation
-    provides them, and a README for the chemist.  With ``example`` the folder
-    holds the small INVENTED example campaign instead (:mod:`speciakin.data.example`:
-    its model and process files and a workbook simulated from them).
+def new_folder(folder: str | Path) -> Path:
+    """Create ``folder`` for a new campaign (it may exist when empty).
 
     Raises
     ------
     DataError
-        When ``folder`` exists and is not empty.
+        When ``folder`` exists and is not empty, or cannot be created.
     """
     p = Path(folder)
     if p.exists() and (not p.is_dir() or any(p.iterdir())):
@@ -205,8 +200,22 @@ def new_campaign(folder: str | Path, example: bool = False) -> list[Path]:
         p.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise DataError(f"cannot create folder: {exc.strerror}", Location(file=str(p))) from None
-    if example:
-        return _example_folder(p)
+    return p
+
+
+def new_campaign(folder: str | Path) -> list[Path]:
+    """Create a campaign folder from the templates.
+
+    Writes the workbook, the model and process skeletons when the installation
+    provides them, and a README for the chemist.  (The INVENTED example folder:
+    :func:`speciakin.data.example.new_example`.)
+
+    Raises
+    ------
+    DataError
+        When ``folder`` exists and is not empty.
+    """
+    p = new_folder(folder)
     written = [write_template(p / WORKBOOK_NAME)]
     notes = []
     lines = {}
@@ -231,35 +240,6 @@ def new_campaign(folder: str | Path, example: bool = False) -> list[Path]:
     write_bytes_atomically(p / "README.md", readme.replace("\n\n\n", "\n\n").encode("utf-8"))
     written.append(p / "README.md")
     return written
-
-
-_EXAMPLE_README = """# INVENTED example campaign
-
-Everything in this folder is invented for practice: "KV-5113" is a fictional diamine and
-"lovic anhydride" a fictional acylating agent. `campaign.xlsx` holds three runs simulated
-from `model.toml` with other ("true") rate constants and seeded noise; they are not
-measurements. Do not use these numbers for any real process.
-
-Try:
-
-1. `speciakin check {name}`
-2. `speciakin run {name} --quick` (a provisional first look in well under a minute
-   once the simulation kernel is compiled), then `speciakin run {name}` for the full job.
-"""
-
-
-def _example_folder(p: Path) -> list[Path]:
-    from speciakin.chemistry.modelfile import load_model
-    from speciakin.data.example import EXAMPLE_FILES, example_campaign, example_source
-    from speciakin.data.writer import write_campaign
-
-    written = []
-    for name in EXAMPLE_FILES:
-        write_bytes_atomically(p / name, (example_source() / name).read_bytes())
-        written.append(p / name)
-    written += write_campaign(example_campaign(load_model(p / "model.toml")), p / WORKBOOK_NAME)
-    write_bytes_atomically(p / "README.md", _EXAMPLE_README.format(name=p.name).encode("utf-8"))
-    return written + [p / "README.md"]
 
 
 def regenerate_data_templates(target: str | Path) -> list[Path]:

@@ -17,13 +17,15 @@ from speciakin.pipeline.inputs import Inputs, load_inputs
 from speciakin.pipeline import outputs
 from speciakin.pipeline.steps import CancelFlag, Progress, check_step, make_objective, timed, window_step, window_text
 
-__all__ = ["QUICK_NOTE", "QUICK_STARTS", "quick_run"]
+__all__ = ["QUICK_NOTE", "QUICK_STARTS", "QUICK_DRAWS", "quick_run", "mark_provisional"]
 
 #: The label every quick output carries.
 QUICK_NOTE = ("PROVISIONAL (quick mode): least-squares fit without profile intervals and a window from "
               "the fit's covariance, no posterior sampling; run without --quick before any decision")
 #: Starting points of the quick fit unless given.
 QUICK_STARTS = 2
+#: Most window draws of the quick mode unless given (the process file's number when smaller).
+QUICK_DRAWS = 200
 
 
 def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int = 1, draws: int | None = None,
@@ -40,7 +42,7 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
         Output folder (created).
     starts, seed, draws
         Starting points (default :data:`QUICK_STARTS`), seed, window draws
-        (default: the process file's).
+        (default: the process file's, at most :data:`QUICK_DRAWS`).
     progress, cancel
         As for every step (:mod:`speciakin.pipeline.steps`).
     say
@@ -74,7 +76,8 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
     say(f"fit: chi-square {fit.fit.chisqr:.4g}, reduced {fit.fit.reduced_chisqr:.3g} ({timings['fit']:.1f} s)")
     window = None
     if process is not None:
-        window = timed(timings, "window", lambda: window_step(objective, process, out, fit=fit, draws=draws,
+        n_draws = draws or min(int(process.n_draws), QUICK_DRAWS)
+        window = timed(timings, "window", lambda: window_step(objective, process, out, fit=fit, draws=n_draws,
                                                               seed=seed, progress=progress, cancel=cancel))
         mark_provisional(window)
         outputs.save_window(out, window)
