@@ -64,3 +64,23 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     assert QUICK_NOTE in fit["warnings"]
     assert window["status"] in ("provisional", "not established") and window["status_reasons"][0] == QUICK_NOTE
     assert "PROVISIONAL" in (folder / "results" / "window.txt").read_text()
+
+
+def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, capsys):
+    folder = tmp_path / "try-it"
+    assert main(["new", str(folder), "--example"]) == 0
+    before = (folder / "model.toml").read_text()
+    assert main(["run", str(folder), "--quick", "--quiet", "--fix", "log10k[acylation_alkyl]",
+                 "--bounds", "log10k[acylation_aryl]=-2:2"]) == 0
+    fit = json.loads((folder / "results" / "fit.json").read_text())
+    assert fit["overrides"] == [{"name": "log10k[acylation_alkyl]", "fit": False},
+                                {"name": "log10k[acylation_aryl]", "lower": -2.0, "upper": 2.0}]
+    assert [p["name"] for p in fit["parameters"]] == ["log10k[acylation_aryl]"]
+    assert (folder / "model.toml").read_text() == before
+    capsys.readouterr()
+    assert main(["run", str(folder), "--quick", "--quiet", "--fix", "pKa[SUB.nope]"]) == 2
+    assert "pKa[SUB.N_aryl]" in capsys.readouterr().err
+    saved = tmp_path / "saved.toml"
+    assert main(["fit", str(folder), "--no-profiles", "--starts", "1", "--quiet",
+                 "--fix", "log10k[acylation_alkyl]", "--save-overrides", str(saved)]) == 0
+    assert "fit = false" in saved.read_text() and "INVENTED EXAMPLE" in saved.read_text()

@@ -15,15 +15,18 @@ def run_quick(inputs, out, args) -> int:
     import time
 
     from speciakin.cli._common import StageProgress
+    from speciakin.cli._overrides import apply_overrides, model_hook
     from speciakin.pipeline import predict_step
     from speciakin.pipeline.quick import QUICK_NOTE, quick_run
     from speciakin.report.results import fit_figures
 
+    inputs, overrides = apply_overrides(inputs, args)
     progress = StageProgress(not args.quiet)
     t0 = time.perf_counter()
     try:
         result = quick_run(inputs, out, starts=args.starts, seed=args.seed, draws=args.draws,
-                           progress=None if args.quiet else progress, say=print)
+                           progress=None if args.quiet else progress, say=print,
+                           fit_options=model_hook(inputs, overrides))
     finally:
         progress.close()
     fit_figures(result["objective"].model, predict_step(result["objective"], result["fit"]), result["fit"], out)

@@ -34,8 +34,10 @@ def add_arguments(parser) -> None:
     parser.epilog = EPILOG
     add_campaign_arguments(parser, process=True)
     add_pipeline_options(parser)
+    from speciakin.cli._overrides import add_override_options
     from speciakin.cli._quick import add_quick_option
     add_quick_option(parser)
+    add_override_options(parser)
 
 
 def execute(inputs, out, args, invented: bool = False) -> int:
@@ -71,8 +73,10 @@ def run(args) -> int:
     from speciakin import pipeline
     from speciakin.cli._common import default_out
 
-    inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
+    from speciakin.cli._overrides import apply_overrides
+
+    inputs, out = pipeline.resolve_inputs(args.campaign, args.model, args.process), default_out(args, "run")
     if args.quick:
         from speciakin.cli._quick import run_quick
-        return run_quick(inputs, default_out(args, "run"), args)
-    return execute(inputs, default_out(args, "run"), args)
+        return run_quick(inputs, out, args)
+    return execute(apply_overrides(inputs, args, out)[0], out, args)
