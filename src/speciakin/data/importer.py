@@ -17,6 +17,7 @@ from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, 
 from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
 from speciakin.data.consistency import run_problems
 from speciakin.data.validate import campaign_warnings, model_problems
+from speciakin.data.clock import convert_clock_cells
 from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
                                     optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
@@ -120,6 +121,7 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
                                     for key in found}
     for message, loc, value, expected, code in renamed:
         c.error(message, loc, value, expected, code=code)
+    convert_clock_cells(matched, c)  # clock times and durations -> elapsed time (docs/data.md)
     runs_cols = matched["runs"]
     run_rows = _read_runs(runs_cols, c)
     known = {r["name"]: r["row"] for r in run_rows}

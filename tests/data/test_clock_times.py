@@ -1,0 +1,62 @@
+"""Clock times (10:35) and durations in the time columns of a campaign."""
+
+from __future__ import annotations
+
+import datetime
+
+import numpy as np
+
+from data_factory import csv_campaign, edit, read_csv, write_csv
+from speciakin.data import check_campaign, load_campaign
+from speciakin.data.clock import clock_seconds
+
+_TIME_HEADERS = {"probe_log.csv": ("time [min]",), "hplc_results.csv": ("time [min]",),
+                 "titrant_log.csv": ("time [min]",), "dosing.csv": ("start [min]", "end [min]")}
+
+
+def _clock(minutes: float, start_s: float = 10 * 3600.0) -> str:
+    s = start_s + minutes * 60.0
+    return f"{int(s // 3600):02d}:{int(s % 3600 // 60):02d}:{s % 60:09.6f}"
+
+
+def _to_clock(folder, runs=None):
+    for name, headers in _TIME_HEADERS.items():
+        rows = read_csv(folder, name)
+        for h in headers:
+            j = rows[0].index(h)
+            for r in rows[1:]:
+                if r[j] and (runs is None or r[0] in runs):
+                    r[j] = _clock(float(r[j]))
+        write_csv(folder, name, rows)
+
+
+def test_clock_seconds_by_hand():
+    # 10:35 = 10 h * 3600 s + 35 min * 60 s = 38100 s (hand arithmetic)
+    assert clock_seconds(datetime.time(10, 35)) == 38100.0
+    assert clock_seconds("10:35") == 38100.0 and clock_seconds("10:35:30") == 38130.0
+    # Excel's day zero is 1899-12-30: 1900-01-01 00:10 is 2 days + 600 s after it
+    assert clock_seconds(datetime.datetime(1900, 1, 1, 0, 10)) == 2 * 86400.0 + 600.0
+    assert clock_seconds("7.5") is None and clock_seconds(12.0) is None and clock_seconds("25:00") is None
+
+
+def test_clock_times_read_as_elapsed_from_the_first_clock_time_of_the_run(tmp_path):
+    plain = load_campaign(csv_campaign(tmp_path / "a"))
+    folder = csv_campaign(tmp_path / "b")
+    _to_clock(folder)
+    clocked = load_campaign(folder)
+    for p, q in zip(plain.runs, clocked.runs):
+        # every run of the factory campaign has a reading at 0 min: time zero is 10:00:00
+        np.testing.assert_allclose(q.hplc.time, p.hplc.time, atol=1e-6)
+        for a, b in ((p.ph_log, q.ph_log), (p.titrant, q.titrant)):
+            if a is not None:
+                np.testing.assert_allclose(b.time, a.time, atol=1e-6)
+        np.testing.assert_allclose([(d.start, d.end) for d in q.recipe.doses],
+                                   [(d.start, d.end) for d in p.recipe.doses], atol=1e-6)
+
+
+def test_a_run_mixing_clock_times_and_numbers_is_a_located_error(tmp_path):
+    folder = csv_campaign(tmp_path)
+    edit(folder, "hplc_results.csv", 2, "time [min]", "10:00")
+    report = check_campaign(folder)
+    bad = [p for p in report.errors if "mixes clock times" in p.message]
+    assert len(bad) == 1 and bad[0].location.sheet is not None and bad[0].location.row is not None
