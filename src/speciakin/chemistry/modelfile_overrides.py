@@ -1,7 +1,8 @@
 """Parameter overrides: fix or free a model-file parameter, set its start or bounds, without editing TOML.
 
 An override names a parameter as the results do (``pKa[S.N_aryl]``,
-``log10k[acylation_aryl]``, ``Ea[acylation_aryl]``, ``dH[S.N_aryl]``, ``pKw``)
+``log10k[acylation_aryl]``, ``Ea[acylation_aryl]``, ``dH[S.N_aryl]``, ``pKw[medium]``;
+interaction energies ``W[...]`` are changed in the file itself)
 and changes the model file's entry for it the way a chemist would by hand: a
 bare value becomes a table ``{ value = ..., fit = true }``; ``fit``, ``value``,
 ``lower`` and ``upper`` of a table are set.  Values are read exactly as the
@@ -112,7 +113,7 @@ def _entry(doc, name: str):
     """(table holding the entry, key) of parameter ``name`` in the tomlkit document, or None."""
     from speciakin.chemistry.modelfile_validate import hydrolysis_step_name
 
-    if name == "pKw":
+    if name == "pKw[medium]":
         medium = doc.get("medium")
         return (medium, "pkw") if medium is not None and "pkw" in medium else None
     m = _NAME.match(name)
@@ -178,6 +179,9 @@ def apply_overrides_text(text: str, overrides: Iterable[ParameterOverride], sour
     doc = tomlkit.parse(text)
     for o in overrides:
         where = _entry(doc, o.name) if o.name in known else None
+        if where is None and o.name in known:
+            raise InputError("this parameter cannot be changed by an option", Location(file=source, key=o.name),
+                             o.name, "an edit of the model file (interaction energies W)")
         if where is None:
             raise InputError("unknown parameter", Location(file=source, key=o.name), o.name,
                              "one of " + ", ".join(known))

@@ -65,6 +65,8 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
     if check.errors:
         raise DataError(problems=check.errors)
     say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
+    for problem in check.warnings:  # their text, not only their number
+        say(f"  warning: {problem.describe()}")
     model, campaign, process = load_inputs(inputs)
     if fit_options is not None:
         model = fit_options(model)
