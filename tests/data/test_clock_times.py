@@ -60,3 +60,42 @@ def test_a_run_mixing_clock_times_and_numbers_is_a_located_error(tmp_path):
     report = check_campaign(folder)
     bad = [p for p in report.errors if "mixes clock times" in p.message]
     assert len(bad) == 1 and bad[0].location.sheet is not None and bad[0].location.row is not None
+
+
+def test_excel_time_and_duration_cells(tmp_path):
+    import openpyxl
+
+    from data_factory import build_campaign
+    from speciakin.data import write_campaign
+
+    path = tmp_path / "campaign.xlsx"
+    write_campaign(build_campaign(), path)
+    plain = load_campaign(path)
+    wb = openpyxl.load_workbook(path)
+    ws = wb["Probe log"]
+    header = [c.value for c in ws[1]]
+    t, r = header.index("time [min]") + 1, header.index("run") + 1
+    run = ws.cell(2, r).value
+    rows = [i for i in range(2, ws.max_row + 1) if ws.cell(i, r).value == run]
+    # every time cell of that run in every sheet becomes a clock time 9:00 + elapsed minutes
+    for sheet, columns in (("Probe log", ("time [min]",)), ("HPLC results", ("time [min]",)),
+                           ("Titrant log", ("time [min]",)), ("Dosing", ("start [min]", "end [min]"))):
+        s = wb[sheet]
+        head = [c.value for c in s[1]]
+        for name in columns:
+            j = head.index(name) + 1
+            for i in range(2, s.max_row + 1):
+                if s.cell(i, head.index("run") + 1).value == run and s.cell(i, j).value is not None:
+                    minutes = float(s.cell(i, j).value)
+                    s.cell(i, j).value = (datetime.datetime(2026, 3, 4, 9, 0) + datetime.timedelta(minutes=minutes))
+    # another run's first probe time as an Excel duration of 0:00 (the same as 0 min)
+    other = [i for i in range(2, ws.max_row + 1) if ws.cell(i, r).value not in (run, None)]
+    if other:
+        ws.cell(other[0], t).value = datetime.timedelta(minutes=float(ws.cell(other[0], t).value))
+    wb.save(path)
+    clocked = load_campaign(path)
+    assert rows
+    for p, q in zip(plain.runs, clocked.runs):
+        np.testing.assert_allclose(q.hplc.time, p.hplc.time, atol=1e-3)
+        if p.ph_log is not None:
+            np.testing.assert_allclose(q.ph_log.time, p.ph_log.time, atol=1e-3)
