@@ -99,3 +99,32 @@ def test_excel_time_and_duration_cells(tmp_path):
         np.testing.assert_allclose(q.hplc.time, p.hplc.time, atol=1e-3)
         if p.ph_log is not None:
             np.testing.assert_allclose(q.ph_log.time, p.ph_log.time, atol=1e-3)
+
+
+def test_initial_amount_as_mass_with_the_compounds_molar_mass(tmp_path):
+    from data_factory import rename_header
+
+    plain = load_campaign(csv_campaign(tmp_path / "a"))
+    folder = csv_campaign(tmp_path / "b")
+    rows = read_csv(folder, "compounds.csv")
+    molar_mass = {r[1]: float(r[3]) for r in rows[1:]}["S"]  # columns: compound, model molecule, RRF, molar mass
+    rows = read_csv(folder, "runs.csv")
+    j = rows[0].index("initial S [mmol]")
+    for r in rows[1:]:
+        if r[j]:
+            r[j] = repr(float(r[j]) * molar_mass)  # mmol x g/mol = mg
+    write_csv(folder, "runs.csv", rows)
+    rename_header(folder, "runs.csv", "initial S [mmol]", "initial S [mg]")
+    massed = load_campaign(folder)
+    for p, q in zip(plain.runs, massed.runs):
+        assert abs(q.recipe.charges["S"] - p.recipe.charges["S"]) <= 1e-12 * p.recipe.charges["S"]
+
+
+def test_initial_mass_without_molar_mass_is_a_located_error(tmp_path):
+    from data_factory import rename_header
+
+    folder = csv_campaign(tmp_path)
+    rename_header(folder, "runs.csv", "initial E [mmol]", "initial E [mg]")
+    report = check_campaign(folder)
+    bad = [p for p in report.errors if "molar mass of E" in p.message]
+    assert len(bad) == 1 and bad[0].location.row == 1 and bad[0].location.column.endswith("(initial E [mg])")
