@@ -169,12 +169,12 @@ class CampaignFitResult:
             "residuals_by_group": f.group_residual_sd,
             "starts": [s.to_dict() for s in f.starts],
             "warnings": list(self.warnings),
-            "overrides": list(self.overrides),
             "objective": self.objective,
             "elapsed_s": self.elapsed,
             "fit_result": f.to_dict(),
             "profiles": {self.names[self.keys.index(k)]: p.to_dict() for k, p in self.profiles.items()},
             "keys": self.keys, "bases": self.bases, "shifts": self.shifts, "units": self.units,
+            **({"overrides": list(self.overrides)} if self.overrides else {}),  # only when options changed the model
         }
 
     @classmethod
