@@ -36,7 +36,7 @@ def _legend_text(name: str, label: str) -> str:
     """The HPLC name, with the model's label when it says more."""
     if not label or label == name:
         return name
-    return label if label.startswith(name) else f"{name} ({label})"
+    return label if name in label else f"{name} ({label})"
 
 
 def plot_run(run, compounds, labels: dict, colors, path) -> None:
