@@ -210,7 +210,8 @@ class _Builder:
                  if (s := self._step(key, value)) is not None]
         for key, value in (r.table(data, "hydrolysis", "") or {}).items():
             steps += self._hydrolysis(key, value)
-        run_reader = RunReader(r, self.base_dir)
+        run_reader = RunReader(r, self.base_dir, {m.name: m.molar_mass for m in molecules},
+                               next((m.name for m in molecules if m.role == "substrate"), None))
         runs = tuple(run for key, value in (r.table(data, "run", "") or {}).items()
                      if (run := run_reader.run(key, value)) is not None)
         pkw, medium = self._medium(r.table(data, "medium", "") or {})

@@ -5,7 +5,10 @@ Bare numbers use the defaults of
 :data:`speciakin.chemistry.modelfile_units.BARE_NUMBER_UNITS` (time min, volume
 mL, amount mmol, concentration mol/L, temperature C).  An initial or a dosed
 amount written as a concentration is multiplied by the run volume (or the
-dose volume).
+dose volume); one written as a mass ("236 mg") is divided by the molecule's
+``molar_mass``; a dosed amount written in equivalents ("1.2 eq") is that many
+times the run's initial amount of the substrate (the molecule with role
+"substrate").
 """
 
 from __future__ import annotations
@@ -20,6 +23,7 @@ from speciakin.chemistry.modelfile_keys import FILE_KEYS, RENAMED_KEYS
 from speciakin.chemistry.modelfile_paths import format_path, sub_path
 from speciakin.chemistry.modelfile_phlog import read_ph_log
 from speciakin.chemistry.modelfile_reader import TableReader
+from speciakin.chemistry.modelfile_units import is_mass, parse_equivalents
 from speciakin.units import parse_quantity
 
 __all__ = ["RunReader"]
@@ -30,13 +34,32 @@ _NAN = float("nan")
 class RunReader:
     """Read ``[run.<name>]`` and ``[fit]`` tables; problems go to ``reader``."""
 
-    def __init__(self, reader: TableReader, base_dir: Path) -> None:
+    def __init__(self, reader: TableReader, base_dir: Path, molar_masses: dict[str, float | None] | None = None,
+                 substrate: str | None = None) -> None:
         self.reader = reader
         self.base_dir = base_dir
+        #: Molar mass [g/mol] (or None) of each molecule, for amounts given as masses.
+        self.molar_masses = dict(molar_masses or {})
+        #: Name of the substrate molecule, for amounts given in equivalents.
+        self.substrate = substrate
 
-    def _amount(self, raw: Any, path: str, volume: float | None) -> float | None:
-        """An amount, or a concentration multiplied by ``volume`` [L]."""
+    def _mass(self, raw: str, path: str, species: str | None) -> float | None:
+        """A mass [g] divided by the molar mass [g/mol] of ``species``: [mol]."""
         r = self.reader
+        molar_mass = self.molar_masses.get(species) if species else None
+        if not molar_mass or not math.isfinite(molar_mass):
+            r.error(path, f"a mass needs the molar mass of {species or 'the species'}", raw,
+                    f"molar_mass in [molecule.{species}], or an amount such as '1.0 mmol'")
+            return None
+        mass = r.measure(raw, path, "mass", minimum=0)
+        return None if mass is None else mass / molar_mass
+
+    def _amount(self, raw: Any, path: str, volume: float | None, species: str | None = None) -> float | None:
+        """An amount, a concentration multiplied by ``volume`` [L], or a mass
+        divided by the molar mass of ``species``."""
+        r = self.reader
+        if is_mass(raw):
+            return self._mass(raw, path, species)
         if isinstance(raw, str):
             try:
                 parse_quantity(raw, "concentration")
@@ -72,13 +95,13 @@ class RunReader:
         end_time = _NAN if end_time is None else end_time
         charges: dict[str, float] = {}
         for species, raw in (r.table(table, "initial", path) or {}).items():
-            amount = self._amount(raw, sub_path(path, "initial", species), volume)
+            amount = self._amount(raw, sub_path(path, "initial", species), volume, species)
             charges[species] = _NAN if amount is None else amount
         temperature = self._temperature(table, path)
         ph = self._ph(table, path)
         doses = []
         for i, item in enumerate(self.reader.array(table, "dosing", path)):
-            dose = self._dose(item, sub_path(path, "dosing", i))
+            dose = self._dose(item, sub_path(path, "dosing", i), charges.get(self.substrate or ""))
             if dose is not None:
                 doses.append(dose)
         withdrawals = []
@@ -176,7 +199,22 @@ class RunReader:
         out["start_base"] = r.string(raw, "start_base", sub)
         return out
 
-    def _dose(self, value: Any, path: str) -> Dose | None:
+    def _equivalents(self, raw: Any, path: str, substrate_amount: float | None) -> float | None:
+        """``"1.2 eq"`` times the run's initial substrate amount [mol]."""
+        r = self.reader
+        try:
+            eq = parse_equivalents(raw)
+        except ValueError as exc:
+            r.error(path, str(exc), raw, "a positive number of equivalents such as '1.2 eq'")
+            return None
+        if substrate_amount is None or not math.isfinite(substrate_amount):
+            r.error(path, "equivalents need the run's initial amount of the substrate", raw,
+                    f"'initial' of the substrate ({self.substrate or 'a molecule with role substrate'}) in this "
+                    "run, or an amount such as '1.0 mmol'")
+            return None
+        return eq * substrate_amount
+
+    def _dose(self, value: Any, path: str, substrate_amount: float | None = None) -> Dose | None:
         r = self.reader
         table = r.typed(value, path, dict)
         if table is None:
@@ -186,8 +224,12 @@ class RunReader:
         volume = 0.0
         if "volume" in table:
             volume = r.measure(table["volume"], sub_path(path, "volume"), "volume", minimum=0)
-        amount = self._amount(table["amount"], sub_path(path, "amount"), volume) \
-            if "amount" in table else None
+        amount = None
+        if "amount" in table:
+            raw = table["amount"]
+            amount = (self._equivalents(raw, sub_path(path, "amount"), substrate_amount)
+                      if isinstance(raw, str) and parse_equivalents_safe(raw) else
+                      self._amount(raw, sub_path(path, "amount"), volume, species))
         start = r.measure(table["start"], sub_path(path, "start"), "time") if "start" in table else None
         end = start
         if "end" in table:
@@ -262,3 +304,11 @@ class RunReader:
                     else:
                         out[key] = value
         return out
+
+
+def parse_equivalents_safe(text: str) -> bool:
+    """True when ``text`` is written in equivalents (valid or not)."""
+    try:
+        return parse_equivalents(text) is not None
+    except ValueError:
+        return True

@@ -21,7 +21,13 @@ __all__ = [
     "BARE_NUMBER_UNITS",
     "rate_unit_text",
     "parse_rate_constant",
+    "EQUIVALENT_UNITS",
+    "parse_equivalents",
+    "is_mass",
 ]
+
+#: Words that mark an amount as equivalents of the substrate ("1.2 eq").
+EQUIVALENT_UNITS = ("eq", "equiv", "equivalents")
 
 #: Unit assumed when the model file gives a bare number, by dimension.
 #: This one table drives parsing and the format reference (docs/model-file.md).
@@ -75,12 +81,15 @@ def _factors(part: str, sign: int) -> list[tuple[str, int]]:
 
 
 def _unit_factor(unit: str) -> tuple[float, tuple[int, int, int]]:
-    """Return (factor to internal units, (volume, amount, time) exponents)."""
+    """Return (factor to internal units, (volume, amount, time) exponents);
+    every part after a '/' divides ("L/mol/s" = "L/(mol*s)")."""
     text = unit.strip()
-    if text.count("/") > 1:
-        raise ValueError(f"cannot read unit {unit!r}: more than one '/'")
-    numerator, _, denominator = text.partition("/")
-    factors = _factors(numerator, +1) + (_factors(denominator, -1) if denominator else [])
+    numerator, *denominators = text.split("/")
+    factors = _factors(numerator, +1)
+    for denominator in denominators:
+        if not denominator.strip():
+            raise ValueError(f"cannot read unit {unit!r}: nothing after '/'")
+        factors += _factors(denominator, -1)
     if not factors:
         raise ValueError(f"cannot read unit {unit!r}")
     total = 1.0
@@ -142,3 +151,36 @@ def parse_rate_constant(text: str, order: int) -> float:
         raise ValueError(f"unit {m.group(2)!r} does not fit a step of order {order}; "
                          f"expected a unit like {rate_unit_text(order)!r}")
     return math.log10(value * factor)
+
+
+def parse_equivalents(text) -> float | None:
+    """``"1.2 eq"`` -> 1.2; None when ``text`` is not written in equivalents.
+
+    Raises
+    ------
+    ValueError
+        Equivalents that are not a positive finite number.
+    """
+    if not isinstance(text, str):
+        return None
+    m = _NUMBER.match(text)
+    if not m or m.group(2).lower() not in EQUIVALENT_UNITS:
+        return None
+    value = float(m.group(1))
+    if not math.isfinite(value) or value <= 0.0:
+        raise ValueError(f"equivalents must be positive, got {text!r}")
+    return value
+
+
+def is_mass(text) -> bool:
+    """True when ``text`` is a number with a mass unit ("236 mg", "1.2 g")."""
+    if not isinstance(text, str):
+        return False
+    m = _NUMBER.match(text)
+    if not m or not m.group(2):
+        return False
+    try:
+        lookup(m.group(2), "mass")
+    except KeyError:
+        return False
+    return True

@@ -8,6 +8,7 @@ HELP = "fit rate constants and pKa shifts to every run of a campaign at once"
 EPILOG = """example:
   speciakin fit my-campaign --out my-campaign/results
   speciakin fit runs.xlsx --model model.toml --starts 12 --no-profiles
+  speciakin fit my-campaign --fix 'pKa[S.N_aryl]' --bounds 'log10k[acylation]=-1:3'
 
 writes fit.json (schema in docs/workflow.md), fit.txt and figures/ into a new result folder
 <campaign>/results/<UTC time>-<id>/ (or --out DIR, refused when it already holds a fit)."""
@@ -23,6 +24,8 @@ def add_arguments(parser) -> None:
     parser.add_argument("--seed", type=int, default=None, help="seed of the starting points")
     parser.add_argument("--no-profiles", action="store_true", help="skip the profile-likelihood intervals")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    from speciakin.cli._overrides import add_override_options
+    add_override_options(parser)
 
 
 def run(args) -> int:
@@ -33,8 +36,11 @@ def run(args) -> int:
 
     if args.starts is not None and args.starts < 1:
         raise InputError("--starts must be at least 1", Location(key="--starts"), args.starts, "an integer >= 1")
-    inputs = pipeline.resolve_inputs(args.campaign, args.model)
+    from speciakin.cli._overrides import apply_overrides, model_hook
+
+    inputs, overrides = apply_overrides(pipeline.resolve_inputs(args.campaign, args.model), args)
     model, campaign, _ = pipeline.load_inputs(inputs)
+    model = model_hook(inputs, overrides)(model) if overrides else model
     objective = pipeline.make_objective(model, campaign)
     with recording(args, inputs, "fit", writes=("fit", "fit_text"), seeds={"seed": args.seed}) as rec:
         out = rec.folder

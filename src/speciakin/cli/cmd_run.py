@@ -7,6 +7,7 @@ HELP = "the whole job: check, fit, sample, pH window and report, in one command"
 
 EPILOG = """example:
   speciakin run my-campaign                      # model.toml and process.toml inside the folder
+  speciakin run my-campaign --quick              # provisional first look: fit + covariance window
   speciakin run runs.xlsx --model model.toml --process process.toml --out results --jobs 2
 
 writes into a new result folder <campaign>/results/<UTC time>-<id>/ (or --out DIR, refused
@@ -48,6 +49,10 @@ def add_arguments(parser) -> None:
     add_campaign_arguments(parser, process=True)
     add_pipeline_options(parser)
     add_people_arguments(parser)
+    from speciakin.cli._overrides import add_override_options
+    from speciakin.cli._quick import add_quick_option
+    add_quick_option(parser)
+    add_override_options(parser)
 
 
 def execute(inputs, out, args, invented: bool = False, raise_errors: bool = False) -> int:
@@ -101,6 +106,8 @@ def run(args) -> int:
     from speciakin import pipeline
     from speciakin.cli._common import print_notes, recording
 
+    from speciakin.cli._overrides import apply_overrides
+
     inputs = pipeline.resolve_inputs(args.campaign, args.model, args.process)
     resume = None
     if args.resume:
@@ -110,7 +117,11 @@ def run(args) -> int:
     rec = recording(args, inputs, "run", writes=WRITES, resume=resume, seeds=seeds)
     try:
         with rec:
-            code = execute(inputs, rec.folder, args, raise_errors=True)
+            if args.quick:
+                from speciakin.cli._quick import run_quick
+                code = run_quick(inputs, rec.folder, args)
+            else:
+                code = execute(apply_overrides(inputs, args, rec.folder)[0], rec.folder, args, raise_errors=True)
     except _Reported as reported:
         code = reported.code
     print_notes(rec)

@@ -26,7 +26,7 @@ from speciakin.errors import SpeciakinError
 
 #: Sub-commands in the order of the chemist's journey.
 COMMANDS = (
-    "new", "check", "speciate", "titrate", "simulate", "fit", "compare",
+    "new", "check", "look", "speciate", "titrate", "simulate", "fit", "compare",
     "sample", "window", "suggest", "report", "run", "history", "contrast", "demo", "web",
 )
 

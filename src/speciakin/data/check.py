@@ -26,12 +26,17 @@ class CheckReport:
         Model file path or name, or None.
     problems
         Every error and warning, in the order found.
+    process
+        Process file path, or None (the data layer does not read it; the
+        command line adds its problems).
     runs, hplc_values, log_readings
-        Counts of what was imported (0 when the import failed).
+        Counts of what was imported (0 when the import failed); log readings
+        are pH, temperature and titrant readings together.
     """
 
     source: str
     model: str | None = None
+    process: str | None = None
     problems: list[Problem] = field(default_factory=list)
     runs: int = 0
     hplc_values: int = 0
@@ -56,6 +61,7 @@ class CheckReport:
     def report(self) -> str:
         lines = ["Campaign check", "==============", f"Campaign: {self.source}",
                  f"Model: {self.model or '(none)'}",
+                 *([f"Process: {self.process}"] if self.process else []),
                  f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}",
                  "", "Errors", "------"]
         lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
@@ -68,7 +74,7 @@ class CheckReport:
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"source": self.source, "model": self.model, "ok": self.ok,
+        return {"source": self.source, "model": self.model, "process": self.process, "ok": self.ok,
                 "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
                            "hplc_values": self.hplc_values, "log_readings": self.log_readings},
                 "problems": [p.to_dict() for p in self.problems]}
@@ -119,7 +125,7 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         campaign_warnings(campaign, c, units_map)
         report.runs = len(campaign.runs)
         report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
-        report.log_readings = sum(len(x) for r in campaign.runs for x in (r.ph_log, r.temperature_log)
-                                  if x is not None)
+        report.log_readings = sum(len(x.time) for r in campaign.runs
+                                  for x in (r.ph_log, r.temperature_log, r.titrant) if x is not None)
     report.problems = list(c.problems)
     return report

@@ -17,6 +17,7 @@ from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, 
 from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
 from speciakin.data.consistency import run_problems
 from speciakin.data.validate import campaign_warnings, model_problems
+from speciakin.data.clock import convert_clock_cells
 from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
                                     optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
@@ -120,10 +121,11 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
                                     for key in found}
     for message, loc, value, expected, code in renamed:
         c.error(message, loc, value, expected, code=code)
+    convert_clock_cells(matched, c)  # clock times and durations -> elapsed time (docs/data.md)
     runs_cols = matched["runs"]
-    run_rows = _read_runs(runs_cols, c)
-    known = {r["name"]: r["row"] for r in run_rows}
     compounds = _read_compounds(matched["compounds"], c)
+    run_rows = _read_runs(runs_cols, c, {x.molecule: x.molar_mass for x in compounds if x.molar_mass})
+    known = {r["name"]: r["row"] for r in run_rows}
     hplc_cols = matched["hplc"]
     hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
     dosing = read_dosing(matched["dosing"], c, known) if "dosing" in found else {}
@@ -230,7 +232,30 @@ def comma_note(table: RawTable, c: ProblemCollector) -> None:
 
 # --------------------------------------------------------------------- sheets
 
-def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
+def _initial_factor(species: str, unit_text: str | None, header: str, molar_masses: dict[str, float], loc,
+                    c: ProblemCollector) -> float | None:
+    """Factor from an initial-amount column's numbers to [mol]: an amount unit,
+    or a mass unit divided by the molar mass [g/mol] of the Compounds sheet."""
+    try:
+        return units.lookup(unit_text or "", "amount").factor
+    except KeyError:
+        pass
+    try:
+        mass = units.lookup(unit_text or "", "mass")
+    except KeyError:
+        c.error("unknown unit in header" if unit_text else "header has no unit", loc, unit_text or header,
+                "one of: " + ", ".join(units.DIMENSIONS["amount"] + units.DIMENSIONS["mass"]),
+                code="unknown_unit" if unit_text else "missing_unit")
+        return None
+    if species not in molar_masses:
+        c.error(f"a mass needs the molar mass of {species}", loc, unit_text,
+                f"a 'molar mass' for the compound of {species} in the Compounds sheet, or an amount unit",
+                code="missing_value")
+        return None
+    return mass.factor / molar_masses[species]
+
+
+def _read_runs(cols: SheetColumns, c: ProblemCollector, molar_masses: dict[str, float] | None = None) -> list[dict]:
     t = cols.table
     names = column_texts(cols, "run")
     modes = column_texts(cols, "ph_mode")
@@ -253,14 +278,10 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector) -> list[dict]:
             c.error("initial-amount column does not name a species", loc, t.headers[i], "e.g. 'initial S [mmol]'",
                     code="invalid_header")
             continue
-        try:
-            u = units.lookup(unit_text or "", "amount")
-        except KeyError:
-            c.error("unknown unit in header" if unit_text else "header has no unit", loc,
-                    unit_text or t.headers[i], "one of: " + ", ".join(units.DIMENSIONS["amount"]),
-                    code="unknown_unit" if unit_text else "missing_unit")
+        factor = _initial_factor(species, unit_text, t.headers[i], molar_masses or {}, loc, c)
+        if factor is None:
             continue
-        charges.append((species, numeric_column(t, i, c, what=f"initial amount of {species}", factor=u.factor,
+        charges.append((species, numeric_column(t, i, c, what=f"initial amount of {species}", factor=factor,
                                                 minimum=0.0)))
     out: list[dict] = []
     first: dict[str, int] = {}

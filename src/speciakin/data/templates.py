@@ -19,11 +19,13 @@ from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHE
 from speciakin.errors import DataError, Location
 
 __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write_template",
-           "write_template_csv", "new_campaign", "blank_tables", "regenerate_data_templates"]
+           "write_template_csv", "new_folder", "new_campaign", "blank_tables", "regenerate_data_templates"]
 
 GUIDE_TITLE = "Read me"
 WORKBOOK_NAME = "campaign.xlsx"
-EXAMPLE_INITIAL_COLUMNS = (f"{INITIAL_PREFIX}S [mmol]", f"{INITIAL_PREFIX}E [mmol]")
+#: The species names of the model skeleton (chemistry/templates/model_skeleton.toml), so that the
+#: three templates of a new folder agree.
+EXAMPLE_INITIAL_COLUMNS = (f"{INITIAL_PREFIX}SUB [mmol]", f"{INITIAL_PREFIX}REA [mmol]")
 
 Tables = dict[str, tuple[list[str], list[Sequence]]]
 
@@ -182,16 +184,13 @@ Then:
 {notes}"""
 
 
-def new_campaign(folder: str | Path) -> list[Path]:
-    """Create a campaign folder from the templates.
-
-    Writes the workbook, the model and process skeletons when the installation
-    provides them, and a README for the chemist.
+def new_folder(folder: str | Path) -> Path:
+    """Create ``folder`` for a new campaign (it may exist when empty).
 
     Raises
     ------
     DataError
-        When ``folder`` exists and is not empty.
+        When ``folder`` exists and is not empty, or cannot be created.
     """
     p = Path(folder)
     if p.exists() and (not p.is_dir() or any(p.iterdir())):
@@ -201,6 +200,22 @@ def new_campaign(folder: str | Path) -> list[Path]:
         p.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise DataError(f"cannot create folder: {exc.strerror}", Location(file=str(p))) from None
+    return p
+
+
+def new_campaign(folder: str | Path) -> list[Path]:
+    """Create a campaign folder from the templates.
+
+    Writes the workbook, the model and process skeletons when the installation
+    provides them, and a README for the chemist.  (The INVENTED example folder:
+    :func:`speciakin.data.example.new_example`.)
+
+    Raises
+    ------
+    DataError
+        When ``folder`` exists and is not empty.
+    """
+    p = new_folder(folder)
     written = [write_template(p / WORKBOOK_NAME)]
     notes = []
     lines = {}

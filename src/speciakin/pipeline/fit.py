@@ -75,6 +75,8 @@ class CampaignFitResult:
     elapsed: dict[str, float] = field(default_factory=dict)
     model_source: str = ""
     campaign_source: str = ""
+    #: Parameter overrides of the command line or API (chemistry.modelfile_overrides), as dicts.
+    overrides: list[dict[str, Any]] = field(default_factory=list)
 
     @property
     def theta(self) -> np.ndarray:
@@ -140,6 +142,9 @@ class CampaignFitResult:
         lines += ["", "Residuals by run and observable", "-------------------------------"]
         for label, stats in f.group_residual_sd.items():
             lines.append(f"{label:<40} rms {stats['rms']:.3g}  (n = {int(stats['count'])})")
+        if self.overrides:
+            lines += ["", "Parameter overrides (not in the model file)", "-------------------------------------------"]
+            lines += ["- " + ", ".join(f"{k} {v}" for k, v in o.items()) for o in self.overrides]
         lines += ["", "Warnings", "--------"]
         lines += [f"- {w}" for w in self.warnings] or ["(none)"]
         return "\n".join(lines)
@@ -169,6 +174,7 @@ class CampaignFitResult:
             "fit_result": f.to_dict(),
             "profiles": {self.names[self.keys.index(k)]: p.to_dict() for k, p in self.profiles.items()},
             "keys": self.keys, "bases": self.bases, "shifts": self.shifts, "units": self.units,
+            **({"overrides": list(self.overrides)} if self.overrides else {}),  # only when options changed the model
         }
 
     @classmethod
@@ -180,7 +186,7 @@ class CampaignFitResult:
                    shifts=list(data["shifts"]), units=list(data["units"]), profiles=profiles,
                    objective=dict(data.get("objective", {})), warnings=list(data.get("warnings", [])),
                    elapsed=dict(data.get("elapsed_s", {})), model_source=data.get("model", ""),
-                   campaign_source=data.get("campaign", ""))
+                   campaign_source=data.get("campaign", ""), overrides=list(data.get("overrides", [])))
 
     def to_json(self) -> str:
         """Strict JSON text of :meth:`to_dict` (NaN -> null)."""
@@ -256,4 +262,5 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         bases=[p.base for p in params], shifts=[p.shift for p in params], units=[p.unit for p in params],
         profiles=prof, objective=objective.describe(), warnings=warnings,
         elapsed={"fit": t_fit, "profiles": t_prof},
-        model_source=objective.model.source, campaign_source=objective.campaign.source)
+        model_source=objective.model.source, campaign_source=objective.campaign.source,
+        overrides=list(objective.model.extra.get("overrides", ())))

@@ -144,6 +144,8 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     if check.errors:
         raise DataError(problems=check.errors)
     say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
+    for problem in check.warnings:  # their text, not only their number
+        say(f"  warning: {problem.describe()}")
 
     model, campaign, process = load_inputs(inputs)
     results = Results(model, campaign, process, inputs, check=check, timings=timings)

@@ -1,0 +1,86 @@
+"""The first hour: `speciakin new`, `new --example`, `check` and `run --quick` as a new user meets them."""
+
+from __future__ import annotations
+
+import json
+import tomllib
+
+from speciakin.cli.main import main
+from speciakin.pipeline.quick import QUICK_NOTE
+
+
+def test_new_templates_agree_with_each_other(tmp_path, capsys):
+    # the three templates of a new folder name the same molecules
+    assert main(["new", str(tmp_path / "c")]) == 0
+    model = tomllib.loads((tmp_path / "c" / "model.toml").read_text())
+    process = tomllib.loads((tmp_path / "c" / "process.toml").read_text())
+    molecules = set(model["molecule"])
+    named = {process["process"]["substrate"], process["process"]["reagent"]}
+    named |= {s["species"] for s in process["specification"]}
+    assert named <= molecules
+    import openpyxl
+    ws = openpyxl.load_workbook(tmp_path / "c" / "campaign.xlsx")["Runs"]
+    initial = [c.value.split()[1] for c in ws[1] if str(c.value).startswith("initial ")]
+    assert initial and set(initial) <= molecules
+    capsys.readouterr()
+    # check reads the process file too: no process-file error in a fresh folder, the only finding
+    # is the empty workbook (a warning whose text is printed)
+    assert main(["check", str(tmp_path / "c")]) == 0
+    text = capsys.readouterr().out
+    assert "Process: " in text and "no runs yet" in text
+
+
+def test_check_reports_process_file_errors_with_their_key(tmp_path, capsys):
+    assert main(["new", str(tmp_path / "c")]) == 0
+    p = tmp_path / "c" / "process.toml"
+    p.write_text(p.read_text().replace('reagent = "REA"', 'reagent = "NOPE"'))
+    capsys.readouterr()
+    assert main(["check", str(tmp_path / "c"), "--format", "json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    bad = [q for q in report["problems"] if q["severity"] == "error"]
+    assert len(bad) == 1 and bad[0]["location"]["key"] == "process.reagent" and bad[0]["value"] == "'NOPE'"  # values are shown quoted
+
+
+def test_example_checks_and_runs_quick(tmp_path, capsys):
+    folder = tmp_path / "try-it"
+    assert main(["new", str(folder), "--example"]) == 0
+    assert "INVENTED" in (folder / "README.md").read_text()
+    capsys.readouterr()
+    assert main(["check", str(folder), "--format", "json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    # 3 runs x 6 samples x 3 compounds; logs every 2 min over 60 min (31 readings) of pH,
+    # temperature and titrant in each of the 3 runs: 3 * 3 * 31 = 279
+    assert report["counts"]["runs"] == 3 and report["counts"]["hplc_values"] == 54
+    assert report["counts"]["log_readings"] == 279
+    assert report["counts"]["errors"] == 0
+    # raw-data plots before any fit: one PNG per run
+    assert main(["look", str(folder)]) == 0
+    assert sorted(p.name for p in (folder / "look").glob("*.png")) == ["E01-pH4.5.png", "E02-pH6.0.png",
+                                                                        "E03-pH7.5.png"]
+    assert main(["run", str(folder), "--quick", "--quiet"]) == 0
+    assert QUICK_NOTE in capsys.readouterr().out
+    fit = json.loads((folder / "results" / "fit.json").read_text())
+    window = json.loads((folder / "results" / "window.json").read_text())
+    assert QUICK_NOTE in fit["warnings"]
+    assert window["status"] in ("provisional", "not established") and window["status_reasons"][0] == QUICK_NOTE
+    assert "PROVISIONAL" in (folder / "results" / "window.txt").read_text()
+
+
+def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, capsys):
+    folder = tmp_path / "try-it"
+    assert main(["new", str(folder), "--example"]) == 0
+    before = (folder / "model.toml").read_text()
+    assert main(["run", str(folder), "--quick", "--quiet", "--fix", "log10k[acylation_alkyl]",
+                 "--bounds", "log10k[acylation_aryl]=-2:2"]) == 0
+    fit = json.loads((folder / "results" / "fit.json").read_text())
+    assert fit["overrides"] == [{"name": "log10k[acylation_alkyl]", "fit": False},
+                                {"name": "log10k[acylation_aryl]", "lower": -2.0, "upper": 2.0}]
+    assert [p["name"] for p in fit["parameters"]] == ["log10k[acylation_aryl]"]
+    assert (folder / "model.toml").read_text() == before
+    capsys.readouterr()
+    assert main(["run", str(folder), "--quick", "--quiet", "--fix", "pKa[SUB.nope]"]) == 2
+    assert "pKa[SUB.N_aryl]" in capsys.readouterr().err
+    saved = tmp_path / "saved.toml"
+    assert main(["fit", str(folder), "--no-profiles", "--starts", "1", "--quiet",
+                 "--fix", "log10k[acylation_alkyl]", "--save-overrides", str(saved)]) == 0
+    assert "fit = false" in saved.read_text() and "INVENTED EXAMPLE" in saved.read_text()
