@@ -158,3 +158,36 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
             return ph
         ph = new
     return math.nan
+
+
+@leaf_kernel
+def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start, micro_charge,
+                                   n_mol, dpka_dt, dzbar_dt):
+    """d zbar / dT [1/K] of every molecule at fixed pH.
+
+    With log10 w_s = sum_i s_i (pKa_i(T) - pH) - ..., and van 't Hoff
+    d pKa_i/dT = -dH_i / (R ln 10 T^2), the populations move as
+    d p_s/dT = ln 10 p_s (L_s - <L>), L_s = sum_i s_i d pKa_i/dT, so
+    d zbar/dT = ln 10 (<z L> - <z><L>) (Borkovec and Koper [1]_).
+    ``dpka_dt`` is scratch of length n_sites.
+    """
+    for i in range(enthalpy.shape[0]):
+        dpka_dt[i] = -enthalpy[i] * 1000.0 / (GAS_CONSTANT * LN10 * temperature * temperature)
+    for m in range(n_mol):
+        s0 = mol_site_start[m]
+        ns = mol_site_start[m + 1] - s0
+        m0 = mol_micro_start[m]
+        mean_z = 0.0
+        mean_l = 0.0
+        mean_zl = 0.0
+        for st in range(1 << ns):
+            slope = 0.0
+            for i in range(ns):
+                if (st >> i) & 1:
+                    slope += dpka_dt[s0 + i]
+            p = pops[m0 + st]
+            z = micro_charge[m0 + st]
+            mean_z += p * z
+            mean_l += p * slope
+            mean_zl += p * z * slope
+        dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)
