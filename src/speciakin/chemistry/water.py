@@ -2,10 +2,11 @@
 van 't Hoff pKa shift.
 
 All functions are pure and vectorised over numpy arrays.  The two water
-formulas (:func:`kell_density`, :func:`iapws_pkw`) are written once, without
-checks, in a form numba compiles into the simulation kernel as it stands
-(``register_jitable``); :func:`water_density_kell`, :func:`pkw_iapws` and
-:func:`pkw` wrap them with validation and units.
+formulas (:func:`kell_density`, :func:`iapws_pkw`) and van 't Hoff
+(:func:`vant_hoff`) are written once, without checks, in a form numba
+compiles into the simulation kernel as it stands (``register_jitable``);
+:func:`water_density_kell`, :func:`pkw_iapws`, :func:`pkw` and
+:func:`vant_hoff_pka` wrap them with validation and units.
 
 References
 ----------
@@ -36,6 +37,7 @@ __all__ = [
     "GAS_CONSTANT",
     "kell_density",
     "iapws_pkw",
+    "vant_hoff",
     "pkw_iapws",
     "water_density_kell",
     "pkw",
@@ -50,6 +52,7 @@ __all__ = [
 
 #: Molar gas constant [J/(mol*K)] (CODATA 2018, exact).
 GAS_CONSTANT = 8.314462618
+_LN10 = float(np.log(10.0))
 
 _ELEMENTARY_CHARGE = 1.602176634e-19  # [C], exact SI
 _BOLTZMANN = 1.380649e-23  # [J/K], exact SI
@@ -104,6 +107,17 @@ def iapws_pkw(temperature, rho):
     # Eq. (1)
     return (-2.0 * _N * (np.log10(1.0 + z) - z / (z + 1.0) * rho * (_BETA[0] + _BETA[1] / t + _BETA[2] * rho))
             + pkw_gas + 2.0 * np.log10(_MW / 1000.0))
+
+
+@register_jitable
+def vant_hoff(pka_reference, enthalpy, temperature, reference_temperature):
+    """pKa(T) = pKa(T_ref) + dH / (R ln 10) (1/T - 1/T_ref), the formula alone (no checks).
+
+    ``enthalpy`` dH [kJ/mol], temperatures [K]; floats or arrays (also
+    compiled into the kernel).  See :func:`vant_hoff_pka`.
+    """
+    return pka_reference + enthalpy * 1000.0 / (GAS_CONSTANT * _LN10) * (1.0 / temperature
+                                                                         - 1.0 / reference_temperature)
 
 
 def _finite_positive(x, key: str, unit: str) -> np.ndarray:
@@ -312,5 +326,5 @@ def vant_hoff_pka(pka_reference, enthalpy, temperature, reference_temperature=29
     if not np.all(np.isfinite(dh)) or not np.all(np.isfinite(p0)):
         raise InputError("pKa or enthalpy is not finite", Location(key="enthalpy"), enthalpy,
                          "finite numbers")
-    out = p0 + dh * 1000.0 / (GAS_CONSTANT * np.log(10.0)) * (1.0 / t - 1.0 / tr)
+    out = vant_hoff(p0, dh, t, tr)
     return out if np.ndim(out) else float(out)

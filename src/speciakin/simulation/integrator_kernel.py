@@ -49,7 +49,7 @@ from speciakin.simulation.status import (STATUS_MAX_STEPS, STATUS_NO_ADJUSTING_I
                                          STATUS_VOLUME)
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
-from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_MODE, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_LAST_PH, C_PH_SLOPE, C_PKW,
@@ -429,8 +429,7 @@ def microstate_amounts(model, q, ph, temperature, amounts, out):
     pops = from_rhs[WS_POPS]
     for row in range(ph.shape[0]):
         for i in range(site_pka_q.shape[0]):
-            pka[i] = q[site_pka_q[i]] + q[model.site_dh_q[i]] * 1000.0 / (8.314462618 * math.log(10.0)) * (
-                1.0 / temperature[row] - 1.0 / model.t_ref)
+            pka[i] = site_pka_at(q[site_pka_q[i]], q[model.site_dh_q[i]], temperature[row], model.t_ref)
         all_populations(pka, model.mol_site_start, mol_micro_start, model.inter_a, model.inter_b,
                         q[model.inter_q], model.mol_inter_start, n_mol, ph[row], pops)
         for m in range(n_mol):

@@ -15,10 +15,9 @@ from __future__ import annotations
 
 import math
 
+from speciakin.chemistry.water import GAS_CONSTANT, vant_hoff
 from speciakin.simulation.jit_options import leaf_kernel
 
-
-GAS_CONSTANT = 8.314462618  # [J/(mol*K)], CODATA 2018 exact value
 LN10 = math.log(10.0)
 
 
@@ -36,9 +35,10 @@ NEWTON_ACCEPT = 1e-13
 def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
     """pKa at ``temperature`` by van 't Hoff [2]_.
 
-    pKa(T) = pKa(T_ref) + dH / (R ln 10) * (1/T - 1/T_ref), dH in [kJ/mol], T in [K].
+    pKa(T) = pKa(T_ref) + dH / (R ln 10) * (1/T - 1/T_ref), dH in [kJ/mol], T in [K]
+    (the formula is ``chemistry.water.vant_hoff``).
     """
-    return pka_ref + enthalpy * 1000.0 / (GAS_CONSTANT * LN10) * (1.0 / temperature - 1.0 / reference_temperature)
+    return vant_hoff(pka_ref, enthalpy, temperature, reference_temperature)
 
 
 @leaf_kernel
