@@ -52,7 +52,9 @@ from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
-from speciakin.simulation.layout import (CTX_MODE, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_LAST_PH, C_PH_SLOPE, C_PKW,
+from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
+                                         CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT_CONC,
+                                         C_LAST_PH, C_PH_SLOPE, C_PKW,
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
@@ -263,6 +265,21 @@ def adjust_start(y, model, ph, ws, start, titrant, titrant_conc, second, second_
 
 
 @njit(cache=True)
+def run_context(model, q, runs, r, ph_offset):
+    """(par, ctx) of run ``r``: the parameters gathered from ``q`` (``layout.PAR_*``)
+    and the run's context (``layout.CTX_*``)."""
+    medium_q = model.medium_q
+    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
+    pkw_shift = q[medium_q] - pkw(model.t_ref) if medium_q >= 0 else 0.0
+    par = (q[model.site_pka_q], q[model.site_dh_q], q[model.inter_q], q[model.step_logk_q], q[model.step_ea_q],
+           pkw_shift)
+    ctx = (runs.mode[r], runs.setpoint[r], ph_offset, max(runs.titrant[r], 0), runs.titrant_conc[r],
+           runs.log_t[r], runs.log_v[r], max(runs.log_n[r], 1), runs.temp_t[r], runs.temp_v[r], runs.temp_n[r],
+           runs.second[r], runs.second_conc[r], runs.controlled[r])
+    return par, ctx
+
+
+@njit(cache=True)
 def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
 
@@ -273,36 +290,26 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     opposite titrant [mol], start adjustment inside the volume [equivalents,
     + base]].  Returns the status code.
     """
-    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
-     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
-     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
-    (mode_a, setpoint_a, titrant_a, titrant_conc_a, log_t_a, log_v_a, log_n_a, temp_t_a, temp_v_a,
-     temp_n_a, y0_a, feed_t0_a, feed_t1_a, feed_species_a, feed_amount_a, feed_volume_a, n_feed_a,
-     ev_t_a, ev_kind_a, ev_species_a, ev_amount_a, ev_volume_a, n_ev_a, bp_a, n_bp_a, out_t_a,
-     n_out_a, scale_a, second_a, second_conc_a, controlled_a, start_a, acid_a, base_a) = runs
-    n_sites = site_pka_q.shape[0]
-    n_steps = step_logk_q.shape[0]
-    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
-    pkw_shift = q[medium_q] - pkw(t_ref) if medium_q >= 0 else 0.0
-    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q], pkw_shift)
-    mode = mode_a[r]
-    titrant = titrant_a[r]
-    titrant_conc = titrant_conc_a[r]
-    temp_n = temp_n_a[r]
-    log_n = log_n_a[r]
-    second = second_a[r]
-    controlled = controlled_a[r]
-    ctx = (mode, setpoint_a[r], ph_offset, max(titrant, 0), titrant_conc, log_t_a[r], log_v_a[r],
-           max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n, second, second_conc_a[r], controlled)
-    ws = make_workspace(n_species, n_sites, micro_charge.shape[0], n_mol, n_steps)
+    n_mol = model.n_mol
+    n_species = model.n_species
+    par, ctx = run_context(model, q, runs, r, ph_offset)
+    mode = ctx[CTX_MODE]
+    titrant = runs.titrant[r]
+    titrant_conc = ctx[CTX_TITRANT_CONC]
+    second = ctx[CTX_SECOND]
+    controlled = ctx[CTX_CONTROLLED]
+    temp_t = ctx[CTX_TEMP_T]
+    temp_v = ctx[CTX_TEMP_V]
+    temp_n = ctx[CTX_TEMP_N]
+    ws = make_workspace(n_species, model.site_pka_q.shape[0], model.micro_charge.shape[0], n_mol,
+                        model.step_logk_q.shape[0])
     n_state = n_species + 3
     sw = make_smooth_workspace(model, n_state)
     cache = ws[WS_CACHE]
     cache[C_PH_SLOPE] = 0.0
-    y = y0_a[r].copy()
+    y = runs.y0[r].copy()
     for j in range(n_species):
-        y[j] *= 1.0 + (amount_factor - 1.0) * substrate_mask[j]
+        y[j] *= 1.0 + (amount_factor - 1.0) * model.substrate_mask[j]
     dy = np.empty(n_state)
     feed_rate = np.zeros(n_species)
     info[0] = math.nan
@@ -311,7 +318,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     info[3] = 0.0
     info[4] = 0.0
     # a one-sided titrant withdrawn by more than this: the pH cannot be held
-    sign_tol = scale_a[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
+    sign_tol = runs.scale[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
     step_tol = sign_tol if (controlled != 0 and second < 0) else -1.0
     peak = np.zeros(1)
     counters = np.zeros(1, dtype=np.int64)
@@ -322,8 +329,8 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         if math.isnan(ph0):
             info[0] = 0.0
             return STATUS_NOT_FINITE
-        status = adjust_start(y, model, ph0, ws, start_a[r], titrant, titrant_conc, second, second_conc_a[r],
-                              acid_a[r], base_a[r], sign_tol * 1e-3, info)
+        status = adjust_start(y, model, ph0, ws, runs.start[r], titrant, titrant_conc, second,
+                              ctx[CTX_SECOND_CONC], runs.acid[r], runs.base[r], sign_tol * 1e-3, info)
         if status != STATUS_OK:
             info[0] = 0.0
             return status
@@ -333,13 +340,12 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             for m in range(n_mol):
                 capacity += y[m] * ws[WS_VAR][m]
             step_tol = max(step_tol, math.log(10.0) * capacity * CONTROL_BAND)
-    n_out = n_out_a[r]
-    n_ev = n_ev_a[r]
-    n_bp = n_bp_a[r]
-    n_feed = n_feed_a[r]
-    out_t = out_t_a[r]
-    ev_t = ev_t_a[r]
-    bp = bp_a[r]
+    n_out = runs.n_out[r]
+    n_ev = runs.n_ev[r]
+    n_bp = runs.n_bp[r]
+    out_t = runs.out_t[r]
+    ev_t = runs.ev_t[r]
+    bp = runs.bp[r]
     i_out = 0
     i_ev = 0
     i_bp = 0
@@ -351,16 +357,16 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             if math.isnan(ph):
                 info[0] = t
                 return STATUS_NOT_FINITE
-            write_output(out, i_out, y, ph, interpolate(temp_t_a[r], temp_v_a[r], temp_n, t))
+            write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
             i_out += 1
         if i_out >= n_out:
             break
         while i_ev < n_ev and ev_t[i_ev] <= t:
-            if ev_kind_a[r, i_ev] == 0:
-                y[ev_species_a[r, i_ev]] += ev_amount_a[r, i_ev]
-                y[n_species] += ev_volume_a[r, i_ev]
+            if runs.ev_kind[r, i_ev] == 0:
+                y[runs.ev_species[r, i_ev]] += runs.ev_amount[r, i_ev]
+                y[n_species] += runs.ev_volume[r, i_ev]
             else:
-                frac = ev_volume_a[r, i_ev] / y[n_species]
+                frac = runs.ev_volume[r, i_ev] / y[n_species]
                 if not (frac < 1.0):
                     info[0] = t
                     return STATUS_VOLUME
@@ -378,17 +384,20 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         feed_volume_rate = 0.0
         for j in range(n_species):
             feed_rate[j] = 0.0
-        for f in range(n_feed):
-            f0 = feed_t0_a[r, f]
-            f1 = feed_t1_a[r, f]
+        for f in range(runs.n_feed[r]):
+            f0 = runs.feed_t0[r, f]
+            f1 = runs.feed_t1[r, f]
             if f0 < tm < f1:
-                feed_rate[feed_species_a[r, f]] += feed_amount_a[r, f] / (f1 - f0)
-                feed_volume_rate += feed_volume_a[r, f] / (f1 - f0)
-        temp_here = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
-        temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_end) - temp_here) / (t_end - t)
+                feed_rate[runs.feed_species[r, f]] += runs.feed_amount[r, f] / (f1 - f0)
+                feed_volume_rate += runs.feed_volume[r, f] / (f1 - f0)
+        temp_here = interpolate(temp_t, temp_v, temp_n, t)
+        temp_slope = (interpolate(temp_t, temp_v, temp_n, t_end) - temp_here) / (t_end - t)
         nonauto = temp_slope != 0.0
         if mode == MODE_LOGGED:
-            ph_rise = interpolate(log_t_a[r], log_v_a[r], log_n, t_end) - interpolate(log_t_a[r], log_v_a[r], log_n, t)
+            log_t = ctx[CTX_LOG_T]
+            log_v = ctx[CTX_LOG_V]
+            log_n = ctx[CTX_LOG_N]
+            ph_rise = interpolate(log_t, log_v, log_n, t_end) - interpolate(log_t, log_v, log_n, t)
             if ph_rise != 0.0:
                 nonauto = True
             # the logged pH is linear inside the segment: its slope drives the titrant of a controlled run
@@ -414,7 +423,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             if not math.isfinite(out[i, j]):
                 info[0] = out_t[i]
                 return STATUS_NOT_FINITE
-    return 0
+    return STATUS_OK
 
 
 @njit(cache=True)
