@@ -3,7 +3,8 @@ PYTHON ?= python3.11
 VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed
-export NUMBA_CACHE_DIR ?= $(CURDIR)/.numba_cache
+# compiled kernels go to the per-user cache the package chooses (simulation/cache_guard.py), the same
+# for make, the speciakin command and Python; set NUMBA_CACHE_DIR to choose another folder
 export MPLBACKEND ?= Agg
 
 .PHONY: demo test test-slow bench example-report install clean

@@ -76,7 +76,7 @@ def test_held_ph_under_temperature_ramp_is_consistent_with_constant_temperature_
 def test_mean_charge_temperature_slope_closed_form_single_base_site():
     # one base site: zbar = theta = 1 / (1 + 10^(pH - pKa)), so d zbar/dT = ln10 theta (1 - theta) dpKa/dT
     # with van 't Hoff dpKa/dT = -dH / (R ln10 T^2) (Atkins' Physical Chemistry, van 't Hoff equation)
-    from speciakin.simulation.rhs_kernel import mean_charge_temperature_slopes
+    from speciakin.simulation.speciation_kernel import mean_charge_temperature_slopes
     from speciakin.simulation.speciation_kernel import all_populations
 
     pka, dh, temp, ph = 8.2, 42.0, 305.0, 7.9  # invented site; dH [kJ/mol], T [K]

@@ -47,15 +47,8 @@ from speciakin.chemistry import water
 from speciakin.chemistry.model import ACTIVITY_MODELS, Model, Molecule
 from speciakin.errors import InputError, Location, SolverError
 
-__all__ = [
-    "ACTIVITY_MODELS",
-    "IonizableSpecies",
-    "EquilibriumResult",
-    "charge_balance",
-    "solve_ph",
-    "solve_model_ph",
-]
-
+__all__ = ["ACTIVITY_MODELS", "IonizableSpecies", "EquilibriumResult", "charge_balance", "solve_ph",
+           "solve_model_ph"]
 
 _MAX_ITERATIONS = 200
 _MAX_IONIC_STRENGTH_ITERATIONS = 100

@@ -1,7 +1,12 @@
 """Water and temperature: ion product of water, activity coefficients,
 van 't Hoff pKa shift.
 
-All functions are pure and vectorised over numpy arrays.
+All functions are pure and vectorised over numpy arrays.  The two water
+formulas (:func:`kell_density`, :func:`iapws_pkw`) and van 't Hoff
+(:func:`vant_hoff`) are written once, without checks, in a form numba
+compiles into the simulation kernel as it stands (``register_jitable``);
+:func:`water_density_kell`, :func:`pkw_iapws`, :func:`pkw` and
+:func:`vant_hoff_pka` wrap them with validation and units.
 
 References
 ----------
@@ -24,11 +29,15 @@ References
 from __future__ import annotations
 
 import numpy as np
+from numba.extending import register_jitable
 
 from speciakin.errors import InputError, Location
 
 __all__ = [
     "GAS_CONSTANT",
+    "kell_density",
+    "iapws_pkw",
+    "vant_hoff",
     "pkw_iapws",
     "water_density_kell",
     "pkw",
@@ -43,6 +52,7 @@ __all__ = [
 
 #: Molar gas constant [J/(mol*K)] (CODATA 2018, exact).
 GAS_CONSTANT = 8.314462618
+_LN10 = float(np.log(10.0))
 
 _ELEMENTARY_CHARGE = 1.602176634e-19  # [C], exact SI
 _BOLTZMANN = 1.380649e-23  # [J/K], exact SI
@@ -55,6 +65,59 @@ _MW = 18.015268  # [g/mol]
 _ALPHA = (-0.864671, 8659.19, -22786.2)
 _BETA = (0.642044, -56.8534, -0.375754)
 _GAMMA = (0.61415, 48251.33, -67707.93, 10102100.0)
+
+
+@register_jitable
+def kell_density(temperature):
+    """Density of liquid water at 0.1 MPa [g/cm^3], Kell 1975 [2]_ eq. (16), the
+    formula alone (no checks; valid 0 to 150 C).
+
+    Parameters
+    ----------
+    temperature
+        [K], a float or an array (also compiled into the kernel).
+    """
+    t = temperature - 273.15
+    num = (999.83952 + 16.945176 * t - 7.9870401e-3 * t * t - 46.170461e-6 * t ** 3
+           + 105.56302e-9 * t ** 4 - 280.54253e-12 * t ** 5)
+    return num / (1.0 + 16.879850e-3 * t) / 1000.0
+
+
+@register_jitable
+def iapws_pkw(temperature, rho):
+    """pKw = -log10 Kw of water, IAPWS R11-07 [1]_ eqs. (1)-(3), the formula alone (no checks).
+
+    Parameters
+    ----------
+    temperature
+        [K], a float or an array (also compiled into the kernel).
+    rho
+        Density of water [g/cm^3].
+
+    Returns
+    -------
+    float or numpy.ndarray
+        pKw on the molal scale [-] (Kw in (mol/kg)^2).
+    """
+    t = temperature
+    # Eq. (3): Z = rho exp(alpha0 + alpha1/T + alpha2/T^2 rho^(2/3))
+    z = rho * np.exp(_ALPHA[0] + _ALPHA[1] / t + _ALPHA[2] / (t * t) * rho ** (2.0 / 3.0))
+    # Eq. (2): ideal-gas pKw^G
+    pkw_gas = _GAMMA[0] + _GAMMA[1] / t + _GAMMA[2] / (t * t) + _GAMMA[3] / (t * t * t)
+    # Eq. (1)
+    return (-2.0 * _N * (np.log10(1.0 + z) - z / (z + 1.0) * rho * (_BETA[0] + _BETA[1] / t + _BETA[2] * rho))
+            + pkw_gas + 2.0 * np.log10(_MW / 1000.0))
+
+
+@register_jitable
+def vant_hoff(pka_reference, enthalpy, temperature, reference_temperature):
+    """pKa(T) = pKa(T_ref) + dH / (R ln 10) (1/T - 1/T_ref), the formula alone (no checks).
+
+    ``enthalpy`` dH [kJ/mol], temperatures [K]; floats or arrays (also
+    compiled into the kernel).  See :func:`vant_hoff_pka`.
+    """
+    return pka_reference + enthalpy * 1000.0 / (GAS_CONSTANT * _LN10) * (1.0 / temperature
+                                                                         - 1.0 / reference_temperature)
 
 
 def _finite_positive(x, key: str, unit: str) -> np.ndarray:
@@ -89,13 +152,7 @@ def pkw_iapws(temperature, density):
     if not np.all(np.isfinite(rho)) or np.any(rho < 0):
         raise InputError("density must be a non-negative finite number", Location(key="density"),
                          density, ">= 0 [kg/m^3]")
-    # Eq. (3): Z = rho exp(alpha0 + alpha1/T + alpha2/T^2 rho^(2/3))
-    z = rho * np.exp(_ALPHA[0] + _ALPHA[1] / t + _ALPHA[2] / t**2 * rho ** (2.0 / 3.0))
-    # Eq. (2): ideal-gas pKw^G
-    pkw_gas = _GAMMA[0] + _GAMMA[1] / t + _GAMMA[2] / t**2 + _GAMMA[3] / t**3
-    # Eq. (1)
-    out = (-2.0 * _N * (np.log10(1.0 + z) - z / (z + 1.0) * rho * (_BETA[0] + _BETA[1] / t + _BETA[2] * rho))
-           + pkw_gas + 2.0 * np.log10(_MW / 1000.0))
+    out = iapws_pkw(t, rho)
     return out if np.ndim(out) else float(out)
 
 
@@ -116,10 +173,7 @@ def water_density_kell(temperature):
     ----------
     Kell 1975 (module references), Eq. (16).
     """
-    t = _finite_positive(temperature, "temperature", "K") - 273.15
-    num = (999.83952 + 16.945176 * t - 7.9870401e-3 * t**2 - 46.170461e-6 * t**3
-           + 105.56302e-9 * t**4 - 280.54253e-12 * t**5)
-    out = num / (1.0 + 16.879850e-3 * t)
+    out = kell_density(_finite_positive(temperature, "temperature", "K")) * 1000.0
     return out if np.ndim(out) else float(out)
 
 
@@ -272,5 +326,5 @@ def vant_hoff_pka(pka_reference, enthalpy, temperature, reference_temperature=29
     if not np.all(np.isfinite(dh)) or not np.all(np.isfinite(p0)):
         raise InputError("pKa or enthalpy is not finite", Location(key="enthalpy"), enthalpy,
                          "finite numbers")
-    out = p0 + dh * 1000.0 / (GAS_CONSTANT * np.log(10.0)) * (1.0 / t - 1.0 / tr)
+    out = vant_hoff(p0, dh, t, tr)
     return out if np.ndim(out) else float(out)

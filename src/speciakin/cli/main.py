@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import logging
 import os
 import sys
 
@@ -63,8 +64,20 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def show_notes() -> None:
+    """Show the library's notes (logger ``speciakin``, level INFO; e.g. that the
+    kernel compiles) on stderr as ``speciakin: ...``."""
+    notes = logging.getLogger("speciakin")
+    if not notes.handlers:
+        handler = logging.StreamHandler(sys.stderr)
+        handler.setFormatter(logging.Formatter("speciakin: %(message)s"))
+        notes.addHandler(handler)
+        notes.setLevel(logging.INFO)
+
+
 def main(argv: list[str] | None = None) -> int:
     os.environ.setdefault("MPLBACKEND", "Agg")
+    show_notes()
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "_module", None):

@@ -11,10 +11,16 @@ Public API::
 See docs/simulation.md.
 """
 
-from speciakin.simulation.api import BatchResult, batch_log_likelihood, default_times, simulate, simulate_batch
-from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
-from speciakin.simulation.integrator_kernel import STATUS_TEXT
-from speciakin.simulation.results import SimulationResult
+from speciakin.simulation.cache_guard import choose_cache_dir
+
+# before any kernel module is imported: one compiled-code cache for every entry point
+choose_cache_dir()
+
+from speciakin.simulation.api import (BatchResult, batch_log_likelihood, default_times, simulate,  # noqa: E402
+                                      simulate_batch)
+from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs  # noqa: E402
+from speciakin.simulation.results import SimulationResult  # noqa: E402
+from speciakin.simulation.status import STATUS_TEXT  # noqa: E402
 
 __all__ = [
     "BatchResult", "CompiledModel", "CompiledRuns", "SimulationResult", "STATUS_TEXT",

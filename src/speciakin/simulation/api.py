@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import logging
 import math
 from dataclasses import dataclass
 from typing import Sequence
@@ -10,16 +11,30 @@ import numpy as np
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, loglik_parallel, loglik_serial
+from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, gaussian_loglik
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
-from speciakin.simulation.integrator_kernel import (STATUS_NO_ADJUSTING_ION, STATUS_TEXT, STATUS_TITRANT_SIGN,
-                                                    microstate_amounts)
-from speciakin.simulation.cache_guard import refresh_kernel_cache
+from speciakin.simulation.integrator_kernel import microstate_amounts
+from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_TEXT, STATUS_TITRANT_SIGN
+from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
 from speciakin.simulation.results import SimulationResult
 
 _cache = getattr(batch_serial, "_cache", None)
 if _cache is not None and getattr(_cache, "_cache_path", None):
     refresh_kernel_cache(_cache._cache_path)
+
+#: Records of this layer (the command line shows them on stderr; a library user may attach a handler).
+LOG = logging.getLogger("speciakin.simulation")
+_compile_noticed = False
+
+
+def notice_compile(kernel) -> None:
+    """Log once per process, before the first call of ``kernel``, that it compiles
+    (its compiled code is not in the cache yet)."""
+    global _compile_noticed
+    if not _compile_noticed and not is_cached(kernel):
+        _compile_noticed = True
+        LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
+
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
            "ph_control_error", "PH_CONTROL_STATUS"]
@@ -95,6 +110,7 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
     out = np.full((1, 1, cruns.n_times_max, compiled.n_outputs), np.nan)
     status = np.zeros((1, 1), np.int64)
     info = np.zeros((1, 1, N_INFO))
+    notice_compile(batch_serial)
     batch_serial(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :],
                  cruns.amount_factor[None, :], float(rtol), float(atol), out, status, info)
     code = int(status[0, 0])
@@ -212,7 +228,7 @@ def ph_control_error(compiled: CompiledModel, run: Run, code: int, time: float,
 
 
 def _ion_sign(compiled: CompiledModel, name: str) -> float:
-    return float(np.sign(compiled.arrays[2][compiled.species_index(name)]))
+    return float(np.sign(compiled.arrays.species_charge[compiled.species_index(name)]))
 
 
 def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,
@@ -238,6 +254,7 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
     out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
     kernel = batch_parallel if parallel else batch_serial
+    notice_compile(kernel)
     kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
     return _batch_result(out, status, info)
 
@@ -250,7 +267,8 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
     ``data`` and ``sigma`` have shape (n_runs, n_times_max, n_outputs); NaN in
     ``data`` = not observed.  With ``as_concentration`` the species columns
     are compared as concentrations [mol/L], otherwise as amounts [mol].  The
-    simulation and the sum run in one compiled call.
+    simulation is the compiled batch of :func:`simulate_batch` (no separate
+    compiled variant), then a compiled sum.
 
     Returns
     -------
@@ -266,9 +284,10 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
         raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
                          (data.shape, sigma.shape), str(expected))
     loglik = np.zeros(off.shape[0])
-    kernel = loglik_parallel if parallel else loglik_serial
+    kernel = batch_parallel if parallel else batch_serial
+    notice_compile(kernel)
+    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
     # the compiled sum also reports a sigma that is not positive where data are observed
-    if not kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status,
-                  info, data, sigma, compiled.n_species, bool(as_concentration), loglik):
+    if not gaussian_loglik(out, status, data, sigma, compiled.n_species, bool(as_concentration), loglik):
         raise InputError("sigma must be positive where data are observed", Location(key="sigma"))
     return loglik, _batch_result(out, status, info)

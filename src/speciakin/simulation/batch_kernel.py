@@ -7,8 +7,11 @@ parallel version uses numba ``prange``; the serial one is the same loop.
 The Gaussian log-likelihood is computed inside compiled code:
 log L = -1/2 sum ((d - y) / sigma)^2 - sum log(sigma) - N/2 log(2 pi),
 over the finite entries of ``data`` (NaN = not observed).
-:func:`loglik_serial` and :func:`loglik_parallel` simulate and sum in one
-compiled call, so a likelihood evaluation costs one dispatch from Python.
+The likelihood is summed by its own small compiled function after
+:func:`batch_serial` or :func:`batch_parallel` (a second dispatch of a few
+microseconds): the whole kernel is compiled into these two entry points only,
+since every entry point that calls it compiles and optimises all of it again
+(a fused simulate-and-sum variant doubled the cold compile).
 """
 
 from __future__ import annotations
@@ -85,23 +88,3 @@ def gaussian_loglik(out, status, data, sigma, n_species, as_concentration, logli
                     total += -0.5 * z * z - math.log(sigma[r, i, j]) - 0.5 * _LOG_2PI
         loglik[s] = total if ok else -np.inf
     return True
-
-
-@njit(cache=True)
-def loglik_serial(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, data, sigma,
-                  n_species, as_concentration, loglik):
-    """:func:`batch_serial` and :func:`gaussian_loglik` in one compiled call
-    (one dispatch from Python per likelihood evaluation)."""
-    batch_serial(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info)
-    return gaussian_loglik(out, status, data, sigma, n_species, as_concentration, loglik)
-
-
-@njit(cache=True, parallel=True)
-def loglik_parallel(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, data, sigma,
-                    n_species, as_concentration, loglik):
-    """:func:`loglik_serial` with the (set, run) pairs spread over all cores."""
-    n_sets = q_all.shape[0]
-    n_runs = ph_offset.shape[1]
-    for task in prange(n_sets * n_runs):
-        _task(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, task, n_runs)
-    return gaussian_loglik(out, status, data, sigma, n_species, as_concentration, loglik)

@@ -1,21 +1,83 @@
-"""Keep numba's on-disk cache of the kernel in step with its sources.
+"""The kernel's compiled-code cache: one location, kept in step with the sources.
 
-numba checks only the source file of the cached function itself; a change
-in a function it calls from another module (for example the water formula)
-would leave a stale compiled copy in use.  This guard hashes the sources of
-every kernel module and clears this package's cache entries when the hash
-changes, before anything is loaded from the cache.
+**One location.**  numba writes compiled kernels to ``NUMBA_CACHE_DIR`` when it
+is set, else beside the sources (or a user folder when those are read-only),
+so ``make``, the ``speciakin`` command and a Python session could each compile
+once into their own place.  :func:`choose_cache_dir` (called when
+``speciakin.simulation`` is imported, before any kernel module) sets
+``NUMBA_CACHE_DIR`` to one per-user folder (:func:`default_cache_dir`) when the
+caller has not set it; numba keeps the binaries of each source folder apart
+inside it, so several copies of the package do not collide.
+
+**Kept in step.**  numba checks only the source file of the cached function
+itself; a change in a function it calls from another module (for example the
+water formula) would leave a stale compiled copy in use.
+:func:`refresh_kernel_cache` hashes the sources of every kernel module and
+clears this package's cache entries when the hash changes, before anything is
+loaded from the cache; other changes (the Python layers around the kernel)
+recompile nothing.
+
+**Cold start.**  :func:`is_cached` tells whether a compiled function has an
+entry on disk, so that the caller can say once that it compiles.
 """
 
 from __future__ import annotations
 
 import hashlib
 import os
+import sys
 from pathlib import Path
 
-KERNEL_MODULES = ("jit_options", "water_kernel", "speciation_kernel", "rhs_kernel", "rodas_tableau", "lu_kernel", "segment_kernel",
-                  "integrator_kernel", "batch_kernel")
+#: Kernel modules of this folder (every module with compiled code and the constants it reads).
+KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation_kernel", "rhs_kernel",
+                  "rodas_tableau", "lu_kernel", "smooth_rhs_kernel", "segment_kernel", "integrator_kernel",
+                  "batch_kernel")
+#: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
+SHARED_SOURCES = ("chemistry/water.py",)
 _STAMP = "speciakin_kernel_sources.sha256"
+#: Rough duration of a cold compile on a quiet two-core machine [s]: about 120 s of wall time
+#: (180 s of CPU time) to the first parallel likelihood (``benchmarks/bench_kernel.py --cold``).
+COLD_COMPILE_SECONDS = 120
+
+
+def default_cache_dir() -> Path:
+    """Per-user cache folder of compiled kernels.
+
+    ``$XDG_CACHE_HOME/speciakin/numba`` (default ``~/.cache``) on Linux and
+    other Unix systems, ``~/Library/Caches/speciakin/numba`` on macOS,
+    ``%LOCALAPPDATA%\\speciakin\\numba`` on Windows.
+    """
+    if sys.platform == "win32":
+        base = Path(os.environ.get("LOCALAPPDATA") or Path.home() / "AppData" / "Local")
+    elif sys.platform == "darwin":
+        base = Path.home() / "Library" / "Caches"
+    else:
+        base = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache")
+    return base / "speciakin" / "numba"
+
+
+def choose_cache_dir() -> str:
+    """Use :func:`default_cache_dir` unless ``NUMBA_CACHE_DIR`` is set; returns the folder in use."""
+    folder = os.environ.get("NUMBA_CACHE_DIR")
+    if not folder:
+        folder = str(default_cache_dir())
+        os.environ["NUMBA_CACHE_DIR"] = folder
+        if "numba" in sys.modules:
+            # numba read its configuration at import: tell it too (kernels not yet decorated use it)
+            from numba.core import config
+            config.CACHE_DIR = folder
+    return folder
+
+
+def kernel_sources_digest() -> str:
+    """SHA-256 of the kernel's sources (this folder's kernel modules and the shared formulas)."""
+    here = Path(__file__).parent
+    digest = hashlib.sha256()
+    for name in KERNEL_MODULES:
+        digest.update((here / f"{name}.py").read_bytes())
+    for rel in SHARED_SOURCES:
+        digest.update((here.parent / rel).read_bytes())
+    return digest.hexdigest()
 
 
 def refresh_kernel_cache(cache_path: str | os.PathLike) -> bool:
@@ -31,12 +93,7 @@ def refresh_kernel_cache(cache_path: str | os.PathLike) -> bool:
     bool
         True when stale entries were removed.
     """
-    here = Path(__file__).parent
-    digest = hashlib.sha256()
-    for name in KERNEL_MODULES + ("../chemistry/water",):
-        digest.update((here / f"{name}.py").read_bytes())
-    # the chemistry constants feed the water kernel
-    text = digest.hexdigest()
+    text = kernel_sources_digest()
     folder = Path(cache_path)
     stamp = folder / _STAMP
     try:
@@ -56,3 +113,12 @@ def refresh_kernel_cache(cache_path: str | os.PathLike) -> bool:
     except OSError:
         # a read-only or shared cache folder: numba falls back to compiling
         return False
+
+
+def is_cached(dispatcher) -> bool:
+    """True when the compiled function ``dispatcher`` has an index on disk (or caching is off)."""
+    cache = getattr(dispatcher, "_cache", None)
+    index = getattr(getattr(cache, "_cache_file", None), "_index_path", None)
+    if index is None or not getattr(cache, "_enabled", True):
+        return True
+    return os.path.exists(index)

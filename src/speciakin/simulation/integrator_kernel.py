@@ -13,7 +13,8 @@ follows from the charge balance at every right-hand side call
 ``rhs_kernel.analytic_jacobian``; the time derivative under a temperature
 ramp is a forward difference.
 
-Status codes (0 = success) are in :data:`STATUS_TEXT`.
+Status codes (0 = success) are named in ``status.py``; the layout of the
+model and runs tuples, the run context and the work arrays in ``layout.py``.
 
 References
 ----------
@@ -41,26 +42,23 @@ from speciakin.simulation.rhs_kernel import (
     charge_imbalance,
     interpolate,
     make_workspace,
-    mean_charges,
     rhs,
 )
+from speciakin.simulation.status import (STATUS_MAX_STEPS, STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK,
+                                         STATUS_SINGULAR, STATUS_STEP_UNDERFLOW, STATUS_TITRANT_SIGN,
+                                         STATUS_VOLUME)
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
-from speciakin.simulation.speciation_kernel import exp10
+from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
+from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
+                                         CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT_CONC,
+                                         C_LAST_PH, C_PH_SLOPE, C_PKW,
+                                         START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
                                                 new_solution, stage_point, step_factor)
-
-STATUS_OK = 0
-STATUS_MAX_STEPS = 1
-STATUS_STEP_UNDERFLOW = 2
-STATUS_NOT_FINITE = 3
-STATUS_SINGULAR = 4
-STATUS_VOLUME = 5
-STATUS_TITRANT_SIGN = 6
-STATUS_NO_ADJUSTING_ION = 7
 
 #: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
 #: consumed so far), relative to the run's total amount (initial amounts + doses):
@@ -73,20 +71,6 @@ TITRANT_SIGN_RTOL = 1e-4
 #: would stop dosing and the pH would drift by less than the band, which the model
 #: neglects (it keeps the set point).
 CONTROL_BAND = 0.05
-
-#: Human-readable meaning of each status code.
-STATUS_TEXT = {
-    STATUS_OK: "ok",
-    STATUS_MAX_STEPS: "maximum number of integration steps exceeded",
-    STATUS_STEP_UNDERFLOW: "step size became too small (the equations are too stiff or discontinuous)",
-    STATUS_NOT_FINITE: "the right-hand side is not finite (charge balance has no root or a value overflowed)",
-    STATUS_SINGULAR: "singular iteration matrix",
-    STATUS_VOLUME: "the volume became zero or negative (withdrawals exceed the liquid present)",
-    STATUS_TITRANT_SIGN: "the titrant cannot hold the pH: it would have to be withdrawn (the opposite "
-                         "reagent is needed: give an opposite titrant, or adjust the start solution)",
-    STATUS_NO_ADJUSTING_ION: "the start solution needs acid or base to reach the pH, and no ion of that "
-                             "sign is named for the start adjustment",
-}
 
 _GAMMA = GAMMA
 _ALPHA = ALPHA
@@ -120,19 +104,19 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                   rtol, atol, ws, counters, out, out_t, i_out, n_out, f0, ft, fy, ytmp, ynew, dense, k, jac, g, piv):
     """The step loop of :func:`integrate_segment` on work arrays it is given."""
     n = y.shape[0]
-    temp_t = ctx[8]
-    temp_v = ctx[9]
-    temp_n = ctx[10]
+    temp_t = ctx[CTX_TEMP_T]
+    temp_v = ctx[CTX_TEMP_V]
+    temp_n = ctx[CTX_TEMP_N]
     t = t0
     span = t1 - t0
     if span <= 0.0:
-        return 0, h, i_out
-    free = ctx[0] == MODE_FREE
-    cache = ws[7]
-    dph_dy = ws[11]
+        return STATUS_OK, h, i_out
+    free = ctx[CTX_MODE] == MODE_FREE
+    cache = ws[WS_CACHE]
+    dph_dy = ws[WS_DPH_DY]
     ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
-        return 3, h, i_out
+        return STATUS_NOT_FINITE, h, i_out
     if h <= 0.0:
         h = initial_step(y, f0, n, atol, rtol, span)
     need_eval = False
@@ -140,7 +124,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
         if need_eval:
             ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
             if math.isnan(ph):
-                return 3, h, i_out
+                return STATUS_NOT_FINITE, h, i_out
         need_eval = True
         ph_at_y = ph
         analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
@@ -148,14 +132,14 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
             dt = 1.5e-8 * max(abs(t), span)
             ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
             if math.isnan(ph):
-                return 3, h, i_out
+                return STATUS_NOT_FINITE, h, i_out
             for i in range(n):
                 ft[i] = (ft[i] - f0[i]) / dt
         while True:
             wanted = h
             h, last = land_step(t, h, t1)
             if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-                return 2, h, i_out
+                return STATUS_STEP_UNDERFLOW, h, i_out
             # G = I/(h*gamma) - J
             diag = 1.0 / (h * _GAMMA)
             for i in range(n):
@@ -163,7 +147,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                     g[i, j] = -jac[i, j]
                 g[i, i] += diag
             if not lu_factor(g, piv):
-                return 4, h, i_out
+                return STATUS_SINGULAR, h, i_out
             failed = False
             for st in range(N_STAGES):
                 if st == 0:
@@ -177,7 +161,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                         guess = ph_at_y
                         for i in range(n - 1):
                             guess += dph_dy[i] * (ytmp[i] - y[i])
-                        cache[3] = guess
+                        cache[C_LAST_PH] = guess
                     ph = rhs(t + _ALPHA[st] * h, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate,
                              temperature_slope, ws)
                     if math.isnan(ph):
@@ -210,7 +194,7 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                             ytmp[i] = dense_value(y, ynew, dense, theta, i)
                         ph = rhs(tout, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
                         if math.isnan(ph):
-                            return 3, h, i_out
+                            return STATUS_NOT_FINITE, h, i_out
                         write_output(out, i_out, ytmp, ph, interpolate(temp_t, temp_v, temp_n, tout))
                         i_out += 1
                 for i in range(n):
@@ -218,14 +202,14 @@ def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, te
                 t = t_new
                 counters[0] += 1
                 if counters[0] > MAX_STEPS:
-                    return 1, h, i_out
+                    return STATUS_MAX_STEPS, h, i_out
                 h = h * step_factor(err, True)
                 if last:
                     # a step cut short to land on t1 says nothing against the larger step
                     h = max(h, wanted)
                 break
             h = h * step_factor(err, False)
-    return 0, h, i_out
+    return STATUS_OK, h, i_out
 
 
 @leaf_kernel
@@ -251,33 +235,48 @@ def adjust_start(y, model, ph, ws, start, titrant, titrant_conc, second, second_
     amounts); 2: the titrant, or the opposite titrant, with its volume
     (``info[2]``, ``info[3]`` [mol]).  Populations in ``ws`` must be at ``ph``.
     """
-    n_species = model[1]
-    species_charge = model[2]
+    n_species = model.n_species
+    species_charge = model.species_charge
     imbalance = charge_imbalance(y, model, ph, ws)
-    if start == 1 or abs(imbalance) <= tol:
-        return 0
-    if start == 0:
+    if start == START_GIVEN or abs(imbalance) <= tol:
+        return STATUS_OK
+    if start == START_COMPUTED:
         ion = acid if imbalance > 0.0 else base
         if ion < 0:
             return STATUS_NO_ADJUSTING_ION
         delta = -imbalance / species_charge[ion]
         y[ion] += delta
         info[4] = -imbalance
-        return 0
-    excess = exp10(-ph) - exp10(ph - ws[7][1])
+        return STATUS_OK
+    excess = exp10(-ph) - exp10(ph - ws[WS_CACHE][C_PKW])
     delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
     if delta >= 0.0:
         y[titrant] += delta
         y[n_species] += delta / titrant_conc
         info[2] = delta
-        return 0
+        return STATUS_OK
     if second < 0:
         return STATUS_TITRANT_SIGN
     delta = -imbalance / (species_charge[second] + excess / second_conc)
     y[second] += delta
     y[n_species] += delta / second_conc
     info[3] = delta
-    return 0
+    return STATUS_OK
+
+
+@njit(cache=True)
+def run_context(model, q, runs, r, ph_offset):
+    """(par, ctx) of run ``r``: the parameters gathered from ``q`` (``layout.PAR_*``)
+    and the run's context (``layout.CTX_*``)."""
+    medium_q = model.medium_q
+    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
+    pkw_shift = q[medium_q] - pkw(model.t_ref) if medium_q >= 0 else 0.0
+    par = (q[model.site_pka_q], q[model.site_dh_q], q[model.inter_q], q[model.step_logk_q], q[model.step_ea_q],
+           pkw_shift)
+    ctx = (runs.mode[r], runs.setpoint[r], ph_offset, max(runs.titrant[r], 0), runs.titrant_conc[r],
+           runs.log_t[r], runs.log_v[r], max(runs.log_n[r], 1), runs.temp_t[r], runs.temp_v[r], runs.temp_n[r],
+           runs.second[r], runs.second_conc[r], runs.controlled[r])
+    return par, ctx
 
 
 @njit(cache=True)
@@ -291,36 +290,26 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     opposite titrant [mol], start adjustment inside the volume [equivalents,
     + base]].  Returns the status code.
     """
-    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
-     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
-     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
-    (mode_a, setpoint_a, titrant_a, titrant_conc_a, log_t_a, log_v_a, log_n_a, temp_t_a, temp_v_a,
-     temp_n_a, y0_a, feed_t0_a, feed_t1_a, feed_species_a, feed_amount_a, feed_volume_a, n_feed_a,
-     ev_t_a, ev_kind_a, ev_species_a, ev_amount_a, ev_volume_a, n_ev_a, bp_a, n_bp_a, out_t_a,
-     n_out_a, scale_a, second_a, second_conc_a, controlled_a, start_a, acid_a, base_a) = runs
-    n_sites = site_pka_q.shape[0]
-    n_steps = step_logk_q.shape[0]
-    # the medium's pKw: water's (IAPWS) shifted to the model's value at the reference temperature
-    pkw_shift = q[medium_q] - pkw(t_ref) if medium_q >= 0 else 0.0
-    par = (q[site_pka_q], q[site_dh_q], q[inter_q], q[step_logk_q], q[step_ea_q], pkw_shift)
-    mode = mode_a[r]
-    titrant = titrant_a[r]
-    titrant_conc = titrant_conc_a[r]
-    temp_n = temp_n_a[r]
-    log_n = log_n_a[r]
-    second = second_a[r]
-    controlled = controlled_a[r]
-    ctx = (mode, setpoint_a[r], ph_offset, max(titrant, 0), titrant_conc, log_t_a[r], log_v_a[r],
-           max(log_n, 1), temp_t_a[r], temp_v_a[r], temp_n, second, second_conc_a[r], controlled)
-    ws = make_workspace(n_species, n_sites, micro_charge.shape[0], n_mol, n_steps)
+    n_mol = model.n_mol
+    n_species = model.n_species
+    par, ctx = run_context(model, q, runs, r, ph_offset)
+    mode = ctx[CTX_MODE]
+    titrant = runs.titrant[r]
+    titrant_conc = ctx[CTX_TITRANT_CONC]
+    second = ctx[CTX_SECOND]
+    controlled = ctx[CTX_CONTROLLED]
+    temp_t = ctx[CTX_TEMP_T]
+    temp_v = ctx[CTX_TEMP_V]
+    temp_n = ctx[CTX_TEMP_N]
+    ws = make_workspace(n_species, model.site_pka_q.shape[0], model.micro_charge.shape[0], n_mol,
+                        model.step_logk_q.shape[0])
     n_state = n_species + 3
     sw = make_smooth_workspace(model, n_state)
-    cache = ws[7]
-    cache[5] = 0.0
-    y = y0_a[r].copy()
+    cache = ws[WS_CACHE]
+    cache[C_PH_SLOPE] = 0.0
+    y = runs.y0[r].copy()
     for j in range(n_species):
-        y[j] *= 1.0 + (amount_factor - 1.0) * substrate_mask[j]
+        y[j] *= 1.0 + (amount_factor - 1.0) * model.substrate_mask[j]
     dy = np.empty(n_state)
     feed_rate = np.zeros(n_species)
     info[0] = math.nan
@@ -329,7 +318,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     info[3] = 0.0
     info[4] = 0.0
     # a one-sided titrant withdrawn by more than this: the pH cannot be held
-    sign_tol = scale_a[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
+    sign_tol = runs.scale[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
     step_tol = sign_tol if (controlled != 0 and second < 0) else -1.0
     peak = np.zeros(1)
     counters = np.zeros(1, dtype=np.int64)
@@ -339,25 +328,24 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         ph0 = rhs(0.0, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
         if math.isnan(ph0):
             info[0] = 0.0
-            return 3
-        status = adjust_start(y, model, ph0, ws, start_a[r], titrant, titrant_conc, second, second_conc_a[r],
-                              acid_a[r], base_a[r], sign_tol * 1e-3, info)
-        if status != 0:
+            return STATUS_NOT_FINITE
+        status = adjust_start(y, model, ph0, ws, runs.start[r], titrant, titrant_conc, second,
+                              ctx[CTX_SECOND_CONC], runs.acid[r], runs.base[r], sign_tol * 1e-3, info)
+        if status != STATUS_OK:
             info[0] = 0.0
             return status
         if step_tol > 0.0:
             # buffer capacity of the start solution [mol per pH unit]: ln10 (sum n var(N) + V ([H+] + [OH-]))
-            capacity = y[n_species] * (exp10(-ph0) + exp10(ph0 - ws[7][1]))
+            capacity = y[n_species] * (exp10(-ph0) + exp10(ph0 - ws[WS_CACHE][C_PKW]))
             for m in range(n_mol):
-                capacity += y[m] * ws[4][m]
+                capacity += y[m] * ws[WS_VAR][m]
             step_tol = max(step_tol, math.log(10.0) * capacity * CONTROL_BAND)
-    n_out = n_out_a[r]
-    n_ev = n_ev_a[r]
-    n_bp = n_bp_a[r]
-    n_feed = n_feed_a[r]
-    out_t = out_t_a[r]
-    ev_t = ev_t_a[r]
-    bp = bp_a[r]
+    n_out = runs.n_out[r]
+    n_ev = runs.n_ev[r]
+    n_bp = runs.n_bp[r]
+    out_t = runs.out_t[r]
+    ev_t = runs.ev_t[r]
+    bp = runs.bp[r]
     i_out = 0
     i_ev = 0
     i_bp = 0
@@ -368,20 +356,20 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             ph = rhs(t, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
             if math.isnan(ph):
                 info[0] = t
-                return 3
-            write_output(out, i_out, y, ph, interpolate(temp_t_a[r], temp_v_a[r], temp_n, t))
+                return STATUS_NOT_FINITE
+            write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
             i_out += 1
         if i_out >= n_out:
             break
         while i_ev < n_ev and ev_t[i_ev] <= t:
-            if ev_kind_a[r, i_ev] == 0:
-                y[ev_species_a[r, i_ev]] += ev_amount_a[r, i_ev]
-                y[n_species] += ev_volume_a[r, i_ev]
+            if runs.ev_kind[r, i_ev] == 0:
+                y[runs.ev_species[r, i_ev]] += runs.ev_amount[r, i_ev]
+                y[n_species] += runs.ev_volume[r, i_ev]
             else:
-                frac = ev_volume_a[r, i_ev] / y[n_species]
+                frac = runs.ev_volume[r, i_ev] / y[n_species]
                 if not (frac < 1.0):
                     info[0] = t
-                    return 5
+                    return STATUS_VOLUME
                 for j in range(n_species + 1):
                     y[j] *= 1.0 - frac
             h = 0.0
@@ -396,21 +384,24 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         feed_volume_rate = 0.0
         for j in range(n_species):
             feed_rate[j] = 0.0
-        for f in range(n_feed):
-            f0 = feed_t0_a[r, f]
-            f1 = feed_t1_a[r, f]
+        for f in range(runs.n_feed[r]):
+            f0 = runs.feed_t0[r, f]
+            f1 = runs.feed_t1[r, f]
             if f0 < tm < f1:
-                feed_rate[feed_species_a[r, f]] += feed_amount_a[r, f] / (f1 - f0)
-                feed_volume_rate += feed_volume_a[r, f] / (f1 - f0)
-        temp_here = interpolate(temp_t_a[r], temp_v_a[r], temp_n, t)
-        temp_slope = (interpolate(temp_t_a[r], temp_v_a[r], temp_n, t_end) - temp_here) / (t_end - t)
+                feed_rate[runs.feed_species[r, f]] += runs.feed_amount[r, f] / (f1 - f0)
+                feed_volume_rate += runs.feed_volume[r, f] / (f1 - f0)
+        temp_here = interpolate(temp_t, temp_v, temp_n, t)
+        temp_slope = (interpolate(temp_t, temp_v, temp_n, t_end) - temp_here) / (t_end - t)
         nonauto = temp_slope != 0.0
         if mode == MODE_LOGGED:
-            ph_rise = interpolate(log_t_a[r], log_v_a[r], log_n, t_end) - interpolate(log_t_a[r], log_v_a[r], log_n, t)
+            log_t = ctx[CTX_LOG_T]
+            log_v = ctx[CTX_LOG_V]
+            log_n = ctx[CTX_LOG_N]
+            ph_rise = interpolate(log_t, log_v, log_n, t_end) - interpolate(log_t, log_v, log_n, t)
             if ph_rise != 0.0:
                 nonauto = True
             # the logged pH is linear inside the segment: its slope drives the titrant of a controlled run
-            cache[5] = ph_rise / (t_end - t)
+            cache[C_PH_SLOPE] = ph_rise / (t_end - t)
         t_next = t_end
         if mode != MODE_FREE:
             # the acid-base state depends on time only: mass-action path (segment_kernel)
@@ -422,7 +413,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
                                                  i_out, n_out)
         info[1] = counters[0]
-        if status != 0:
+        if status != STATUS_OK:
             info[0] = t
             return status
         t = t_next
@@ -431,30 +422,25 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         for j in range(out.shape[1]):
             if not math.isfinite(out[i, j]):
                 info[0] = out_t[i]
-                return 3
-    return 0
+                return STATUS_NOT_FINITE
+    return STATUS_OK
 
 
 @njit(cache=True)
 def microstate_amounts(model, q, ph, temperature, amounts, out):
     """Amount [mol] of every microstate for each row (pH, T, amounts)."""
-    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
-     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
-     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
-    from_rhs = make_workspace(n_species, site_pka_q.shape[0], micro_charge.shape[0], n_mol,
-                              step_logk_q.shape[0])
-    pka = from_rhs[0]
-    pops = from_rhs[2]
-    zbar = from_rhs[3]
-    var = from_rhs[4]
+    n_mol = model.n_mol
+    site_pka_q = model.site_pka_q
+    mol_micro_start = model.mol_micro_start
+    from_rhs = make_workspace(model.n_species, site_pka_q.shape[0], model.micro_charge.shape[0], n_mol,
+                              model.step_logk_q.shape[0])
+    pka = from_rhs[WS_PKA]
+    pops = from_rhs[WS_POPS]
     for row in range(ph.shape[0]):
         for i in range(site_pka_q.shape[0]):
-            pka[i] = q[site_pka_q[i]] + q[site_dh_q[i]] * 1000.0 / (8.314462618 * math.log(10.0)) * (
-                1.0 / temperature[row] - 1.0 / t_ref)
-        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, q[inter_q],
-                        mol_inter_start, n_mol, ph[row], pops)
-        mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, var)
+            pka[i] = site_pka_at(q[site_pka_q[i]], q[model.site_dh_q[i]], temperature[row], model.t_ref)
+        all_populations(pka, model.mol_site_start, mol_micro_start, model.inter_a, model.inter_b,
+                        q[model.inter_q], model.mol_inter_start, n_mol, ph[row], pops)
         for m in range(n_mol):
             for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
                 out[row, s] = amounts[row, m] * pops[s]

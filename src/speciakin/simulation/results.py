@@ -152,15 +152,13 @@ class SimulationResult:
         for j, name in enumerate(self.species_names):
             lines.append(f"  {name}: {self.amounts[-1, j]:.6g} mol ({self.concentrations[-1, j]:.6g} mol/L)")
         lines += ["", "Titrant", f"  consumed: {self.titrant[-1]:.6g} mol"]
-        if self.opposite_titrant is not None and np.any(self.opposite_titrant != 0):
-            lines.append(f"  opposite titrant consumed: {self.opposite_titrant[-1]:.6g} mol")
-        if self.initial_titrant is not None:
-            lines.append(f"  titrant to reach the pH at the start: {self.initial_titrant:.6g} mol")
-        if self.initial_opposite_titrant:
-            lines.append(f"  opposite titrant to reach the pH at the start: {self.initial_opposite_titrant:.6g} mol")
-        if self.start_adjustment:
-            side = "base" if self.start_adjustment > 0 else "acid"
-            lines.append(f"  {side} inside the start volume: {abs(self.start_adjustment):.6g} mol")
+        used_opposite = self.opposite_titrant is not None and np.any(self.opposite_titrant != 0)
+        side = "base" if (self.start_adjustment or 0.0) > 0 else "acid"
+        optional = (("opposite titrant consumed", self.opposite_titrant[-1] if used_opposite else None),
+                    ("titrant to reach the pH at the start", self.initial_titrant),
+                    ("opposite titrant to reach the pH at the start", self.initial_opposite_titrant or None),
+                    (f"{side} inside the start volume", abs(self.start_adjustment) if self.start_adjustment else None))
+        lines += [f"  {label}: {value:.6g} mol" for label, value in optional if value is not None]
         return "\n".join(lines)
 
     def to_dict(self) -> dict:

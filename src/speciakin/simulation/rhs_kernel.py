@@ -36,6 +36,7 @@ import numpy as np
 from numba import njit
 
 from speciakin.simulation.speciation_kernel import (
+    mean_charge_temperature_slopes,
     exp10,
     GAS_CONSTANT,
     LN10,
@@ -46,6 +47,11 @@ from speciakin.simulation.speciation_kernel import (
 )
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
+from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
+                                         CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
+                                         C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_TEMPERATURE, PAR_ENTHALPY,
+                                         PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
+                                         WS_VAR, WS_ZBAR)
 
 MODE_HELD = 0
 MODE_LOGGED = 1
@@ -76,50 +82,17 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
     rate, cache, pka2, dzbar_dT, state_scratch, dph_dy)."""
     cache = np.empty(8)
-    cache[0] = math.nan  # temperature of the cached T-dependent values
-    cache[1] = math.nan  # pKw at that temperature
-    cache[2] = math.nan  # pH of the cached populations
-    cache[3] = 7.0       # last pH (warm start of the charge balance)
-    cache[4] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
-    cache[5] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
-    cache[6] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
+    cache[C_TEMPERATURE] = math.nan  # temperature of the cached T-dependent values
+    cache[C_PKW] = math.nan  # pKw at that temperature
+    cache[C_PH] = math.nan  # pH of the cached populations
+    cache[C_LAST_PH] = 7.0       # last pH (warm start of the charge balance)
+    cache[C_DOH_DT] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
+    cache[C_PH_SLOPE] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
+    cache[C_OPPOSITE] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
             np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
             np.empty(n_species + 3), np.zeros(n_species + 3))
-
-
-@leaf_kernel
-def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start, micro_charge,
-                                   n_mol, dpka_dt, dzbar_dt):
-    """d zbar / dT [1/K] of every molecule at fixed pH.
-
-    With log10 w_s = sum_i s_i (pKa_i(T) - pH) - ..., and van 't Hoff
-    d pKa_i/dT = -dH_i / (R ln 10 T^2), the populations move as
-    d p_s/dT = ln 10 p_s (L_s - <L>), L_s = sum_i s_i d pKa_i/dT, so
-    d zbar/dT = ln 10 (<z L> - <z><L>) (Borkovec and Koper [2]_).
-    ``dpka_dt`` is scratch of length n_sites.
-    """
-    for i in range(enthalpy.shape[0]):
-        dpka_dt[i] = -enthalpy[i] * 1000.0 / (GAS_CONSTANT * LN10 * temperature * temperature)
-    for m in range(n_mol):
-        s0 = mol_site_start[m]
-        ns = mol_site_start[m + 1] - s0
-        m0 = mol_micro_start[m]
-        mean_z = 0.0
-        mean_l = 0.0
-        mean_zl = 0.0
-        for st in range(1 << ns):
-            slope = 0.0
-            for i in range(ns):
-                if (st >> i) & 1:
-                    slope += dpka_dt[s0 + i]
-            p = pops[m0 + st]
-            z = micro_charge[m0 + st]
-            mean_z += p * z
-            mean_l += p * slope
-            mean_zl += p * z * slope
-        dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)
 
 
 @leaf_kernel(inline="always")
@@ -155,22 +128,22 @@ def reactant_factor(k, conc, pops, hydroxide, react_kind, react_species, react_m
 @leaf_kernel
 def set_temperature(temperature, model, par, ws):
     """Bring the temperature-dependent values in ``ws`` to ``temperature`` [K]:
-    pKw (water's, shifted by the medium's ``par[5]``), site pKa (van 't Hoff)
+    pKw (water's, shifted by the medium's ``par[PAR_PKW_SHIFT]``), site pKa (van 't Hoff)
     and rate constants (Arrhenius [1]_)."""
-    t_ref = model[24]
+    t_ref = model.t_ref
     (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
-    pka = ws[0]
-    k_of_t = ws[1]
-    cache = ws[7]
-    if temperature == cache[0]:
+    pka = ws[WS_PKA]
+    k_of_t = ws[WS_K]
+    cache = ws[WS_CACHE]
+    if temperature == cache[C_TEMPERATURE]:
         return
-    cache[0] = temperature
-    cache[1] = pkw(temperature) + pkw_shift
+    cache[C_TEMPERATURE] = temperature
+    cache[C_PKW] = pkw(temperature) + pkw_shift
     for i in range(pka_ref.shape[0]):
         pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
     for s in range(log10_k.shape[0]):
         k_of_t[s] = exp10(log10_k[s]) * math.exp(-ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
-    cache[2] = math.nan
+    cache[C_PH] = math.nan
 
 
 @leaf_kernel
@@ -179,35 +152,33 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
 
     Fills ``ws``: temperature-dependent values, populations, mean charges
     and, for a held pH under a temperature ramp, d zbar/dT of every molecule
-    and d[OH-]/dT (``cache[4]``, a central difference of pKw).  Nothing here
+    and d[OH-]/dT (``cache[C_DOH_DT]``, a central difference of pKw).  Nothing here
     depends on the amounts.
     """
-    (n_mol, n_species, species_charge, mol_site_start, mol_micro_start, site_pka_q, site_dh_q,
-     inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
-     step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
-     prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
-    (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
-     second, second_conc, controlled) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
-    temperature = interpolate(temp_t, temp_v, temp_n, t)
+    n_mol = model.n_mol
+    pops = ws[WS_POPS]
+    cache = ws[WS_CACHE]
+    temperature = interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], t)
     set_temperature(temperature, model, par, ws)
-    if mode == MODE_HELD:
-        ph = ph_value + ph_offset
+    if ctx[CTX_MODE] == MODE_HELD:
+        ph = ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET]
     else:
-        ph = interpolate(log_t, log_v, log_n, t) + ph_offset
-    if ph != cache[2]:
-        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, par[2],
-                        mol_inter_start, n_mol, ph, pops)
-        mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, variance)
-        cache[2] = ph
-    if controlled and temperature_slope != 0.0:
-        mean_charge_temperature_slopes(pops, par[1], temperature, mol_site_start, mol_micro_start,
-                                       micro_charge, n_mol, pka2, dzdt)
+        ph = interpolate(ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N], t) + ctx[CTX_PH_OFFSET]
+    if ph != cache[C_PH]:
+        all_populations(ws[WS_PKA], model.mol_site_start, model.mol_micro_start, model.inter_a, model.inter_b,
+                        par[PAR_W], model.mol_inter_start, n_mol, ph, pops)
+        mean_charges(pops, model.micro_charge, model.micro_protons, model.mol_micro_start, n_mol, ws[WS_ZBAR],
+                     ws[WS_VAR])
+        cache[C_PH] = ph
+    if ctx[CTX_CONTROLLED] and temperature_slope != 0.0:
+        mean_charge_temperature_slopes(pops, par[PAR_ENTHALPY], temperature, model.mol_site_start,
+                                       model.mol_micro_start, model.micro_charge, n_mol, ws[WS_PKA2],
+                                       ws[WS_DZBAR_DT])
         dtemp = 1e-3
         # d[OH-]/dT at fixed pH [mol/(L*K)]
-        shift = par[5]
-        cache[4] = (exp10(ph - pkw(temperature + dtemp) - shift) - exp10(ph - pkw(temperature - dtemp) - shift)) / (
-            2.0 * dtemp)
+        shift = par[PAR_PKW_SHIFT]
+        cache[C_DOH_DT] = (exp10(ph - pkw(temperature + dtemp) - shift)
+                           - exp10(ph - pkw(temperature - dtemp) - shift)) / (2.0 * dtemp)
     return ph
 
 
@@ -238,19 +209,19 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
             conc[j] = y[j] / volume
         ph = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
                                   mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
-                                  micro_charge, micro_protons, cache[1], cache[3], pops, zbar, variance)
+                                  micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar, variance)
         if math.isnan(ph):
             for i in range(dy.shape[0]):
                 dy[i] = math.nan
-            cache[2] = math.nan
+            cache[C_PH] = math.nan
             return math.nan
-        cache[3] = ph
-        cache[2] = ph
+        cache[C_LAST_PH] = ph
+        cache[C_PH] = ph
     else:
         ph = time_speciation(t, model, par, ctx, temperature_slope, ws)
         for j in range(n_species):
             conc[j] = y[j] / volume
-    pkw_value = cache[1]
+    pkw_value = cache[C_PKW]
     hydrogen = exp10(-ph)
     hydroxide = exp10(ph - pkw_value)
     # reaction rates [mol/(L*s)]
@@ -282,24 +253,24 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         if temperature_slope != 0.0:
             # d/dt of sum n zbar(T) + V([H+] - Kw(T)/[H+]) at fixed pH (dzbar/dT and
             # d[OH-]/dT left in ws by time_speciation)
-            dcharge = -volume * cache[4]
+            dcharge = -volume * cache[C_DOH_DT]
             for m in range(n_mol):
                 dcharge += y[m] * dzdt[m]
             num += temperature_slope * dcharge
-        if mode == MODE_LOGGED and cache[5] != 0.0:
+        if mode == MODE_LOGGED and cache[C_PH_SLOPE] != 0.0:
             # d/dt through the logged pH: dzbar/dpH = -ln10 var(N), d([H+] - [OH-])/dpH = -ln10 ([H+] + [OH-])
             dcharge = volume * (hydrogen + hydroxide)
             for m in range(n_mol):
                 dcharge += y[m] * variance[m]
-            num -= cache[5] * LN10 * dcharge
+            num -= cache[C_PH_SLOPE] * LN10 * dcharge
         q = -num / (species_charge[titrant] + excess / titrant_conc)
-        cache[6] = 0.0
+        cache[C_OPPOSITE] = 0.0
         if q < 0.0 and second >= 0:
             q = -num / (species_charge[second] + excess / second_conc)
             dy[second] += q
             dy[n_species] += q / second_conc
             dy[n_species + 2] = q
-            cache[6] = 1.0
+            cache[C_OPPOSITE] = 1.0
         else:
             dy[titrant] += q
             dy[n_species] += q / titrant_conc
@@ -310,12 +281,12 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
 @leaf_kernel
 def charge_imbalance(y, model, ph, ws):
     """sum n zbar + sum z n_ion + V([H+] - [OH-]) [mol] with ``ws`` populations at ``ph``."""
-    n_mol = model[0]
-    n_species = model[1]
-    species_charge = model[2]
-    zbar = ws[3]
-    cache = ws[7]
-    total = y[n_species] * (exp10(-ph) - exp10(ph - cache[1]))
+    n_mol = model.n_mol
+    n_species = model.n_species
+    species_charge = model.species_charge
+    zbar = ws[WS_ZBAR]
+    cache = ws[WS_CACHE]
+    total = y[n_species] * (exp10(-ph) - exp10(ph - cache[C_PKW]))
     for m in range(n_mol):
         total += y[m] * zbar[m]
     for j in range(n_mol, n_species):
@@ -352,8 +323,8 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
-    ph = cache[2]
-    hydroxide = exp10(ph - cache[1])
+    ph = cache[C_PH]
+    hydroxide = exp10(ph - cache[C_PKW])
     for i in range(n):
         for j in range(n):
             jac[i, j] = 0.0
@@ -399,12 +370,12 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
         dosed = titrant
         conc_dosed = titrant_conc
         row = n_species + 1
-        if cache[6] != 0.0:
+        if cache[C_OPPOSITE] != 0.0:
             dosed = second
             conc_dosed = second_conc
             row = n_species + 2
         denominator = species_charge[dosed] + excess / conc_dosed
-        ph_slope = cache[5] if mode == MODE_LOGGED else 0.0
+        ph_slope = cache[C_PH_SLOPE] if mode == MODE_LOGGED else 0.0
         for j in range(n_species + 1):
             num = 0.0
             for i in range(n_mol):
@@ -415,7 +386,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
                 if j < n_mol:
                     num += temperature_slope * dzdt[j]
                 elif j == n_species:
-                    num -= temperature_slope * cache[4]
+                    num -= temperature_slope * cache[C_DOH_DT]
             if ph_slope != 0.0:
                 if j < n_mol:
                     num -= ph_slope * LN10 * variance[j]

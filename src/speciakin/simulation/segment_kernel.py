@@ -63,9 +63,15 @@ import numpy as np
 from numba import njit
 
 from speciakin.simulation.jit_options import leaf_kernel
+from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
+                                         CTX_SECOND, CTX_SECOND_CONC, CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T,
+                                         CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, C_PH_SLOPE, WS_CACHE)
 from speciakin.simulation.lu_kernel import lu_factor, lu_solve
-from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, requirement_fraction, time_speciation
-from speciakin.simulation.speciation_kernel import LN10, exp10
+from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, time_speciation
+from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
+                                                    smooth_time_derivative, stoichiometry)
+from speciakin.simulation.status import (STATUS_MAX_STEPS, STATUS_NOT_FINITE, STATUS_OK, STATUS_SINGULAR,
+                                         STATUS_STEP_UNDERFLOW, STATUS_TITRANT_SIGN)
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
                                                 dense_coefficients, dense_value, initial_step, land_step,
                                                 new_solution, stage_point, step_factor)
@@ -83,291 +89,6 @@ CHECKS = np.array([0.0])
 COEFFICIENT_RTOL = 1e-9
 #: Halvings of a segment before the coefficients are declared not smooth.
 MAX_HALVINGS = 40
-
-
-@leaf_kernel
-def effective_constants(model, ws, keff):
-    """k_eff of every step [consistent units of mol/L and s] from the populations in ``ws``.
-
-    ``ws`` must hold the populations, rate constants and pKw (left there by
-    :func:`~speciakin.simulation.rhs_kernel.time_speciation` at the time wanted).
-    """
-    n_mol = model[0]
-    mol_micro_start = model[4]
-    react_start = model[15]
-    react_kind = model[16]
-    react_species = model[17]
-    react_mask = model[19]
-    react_value = model[20]
-    k_of_t = ws[1]
-    pops = ws[2]
-    cache = ws[7]
-    hydroxide = exp10(cache[2] - cache[1])
-    for s in range(model[13].shape[0]):
-        r = k_of_t[s]
-        for k in range(react_start[s], react_start[s + 1]):
-            kind = react_kind[k]
-            if kind == 0:
-                r *= requirement_fraction(k, pops, react_species, react_mask, react_value, mol_micro_start, n_mol)
-            elif kind == 2:
-                r *= hydroxide
-        keff[s] = r
-
-
-@leaf_kernel
-def stoichiometry(model, nu, reactants, n_react):
-    """Net change of every species per unit of v_s (rows of ``nu``) and the
-    concentration reactants of each step; False when a step has more of them
-    than ``reactants`` has columns."""
-    react_start = model[15]
-    react_kind = model[16]
-    react_species = model[17]
-    react_coef = model[18]
-    prod_start = model[21]
-    prod_species = model[22]
-    prod_coef = model[23]
-    for s in range(nu.shape[0]):
-        for i in range(nu.shape[1]):
-            nu[s, i] = 0.0
-        m = 0
-        for k in range(react_start[s], react_start[s + 1]):
-            if react_kind[k] == 0:
-                if m >= reactants.shape[1]:
-                    return False
-                reactants[s, m] = react_species[k]
-                m += 1
-                nu[s, react_species[k]] -= react_coef[k]
-        n_react[s] = m
-        for k in range(prod_start[s], prod_start[s + 1]):
-            nu[s, prod_species[k]] += prod_coef[k]
-    return True
-
-
-@leaf_kernel
-def segment_coefficients(model, ws, nu, controlled, titrant, titrant_conc, second, second_conc, feed_rate,
-                         feed_volume_rate, temperature_slope, coef):
-    """Coefficient vector (k_eff, alpha, beta, gamma, ratio) at the time of the last ``rhs`` call.
-
-    Layout: ``coef[:n_steps]`` = k_eff; ``coef[n_steps:2 n_steps]`` = alpha
-    [-]; ``coef[2 n_steps]`` = beta [mol/s]; ``coef[2 n_steps + 1 + m]`` =
-    gamma of molecule m [1/s]; then gamma of the volume [mol/(L*s)]; the last
-    entry = d_titrant / d_opposite, the factor that turns a (negative) titrant
-    rate into the opposite titrant's rate [-].  alpha, beta, gamma are zero
-    unless the run is controlled (held pH, or logged pH with a titrant); the
-    pH slope of a logged segment is ``ws[7][5]``.
-    """
-    n_mol = model[0]
-    n_species = model[1]
-    species_charge = model[2]
-    n_steps = nu.shape[0]
-    effective_constants(model, ws, coef)
-    for i in range(n_steps, coef.shape[0]):
-        coef[i] = 0.0
-    if not controlled:
-        return
-    zbar = ws[3]
-    variance = ws[4]
-    cache = ws[7]
-    dzdt = ws[9]
-    hydrogen = exp10(-cache[2])
-    hydroxide = exp10(cache[2] - cache[1])
-    excess = hydrogen - hydroxide
-    denominator = species_charge[titrant] + excess / titrant_conc
-    if second >= 0:
-        coef[coef.shape[0] - 1] = denominator / (species_charge[second] + excess / second_conc)
-    for s in range(n_steps):
-        num = 0.0
-        for j in range(n_mol):
-            num += zbar[j] * nu[s, j]
-        for j in range(n_mol, n_species):
-            num += species_charge[j] * nu[s, j]
-        coef[n_steps + s] = -num / denominator
-    num = excess * feed_volume_rate
-    for j in range(n_mol):
-        num += zbar[j] * feed_rate[j]
-    for j in range(n_mol, n_species):
-        num += species_charge[j] * feed_rate[j]
-    coef[2 * n_steps] = -num / denominator
-    if temperature_slope != 0.0:
-        for m in range(n_mol):
-            coef[2 * n_steps + 1 + m] = -temperature_slope * dzdt[m] / denominator
-        coef[2 * n_steps + 1 + n_mol] = temperature_slope * cache[4] / denominator
-    ph_slope = cache[5]
-    if ph_slope != 0.0:
-        # a logged pH moves the charge balance: dzbar/dpH = -ln10 var(N), d excess/dpH = -ln10 ([H+] + [OH-])
-        for m in range(n_mol):
-            coef[2 * n_steps + 1 + m] += ph_slope * LN10 * variance[m] / denominator
-        coef[2 * n_steps + 1 + n_mol] += ph_slope * LN10 * (hydrogen + hydroxide) / denominator
-
-
-@leaf_kernel(inline="always")
-def evaluate_cubic(poly, in_logs, x, value, slope):
-    """Values and d/dx of the cubics ``poly[c, :]`` (monomials in x) at x;
-    where ``in_logs[c]`` the cubic is that of the logarithm of the value."""
-    for c in range(poly.shape[0]):
-        a0 = poly[c, 0]
-        a1 = poly[c, 1]
-        a2 = poly[c, 2]
-        a3 = poly[c, 3]
-        p = a0 + x * (a1 + x * (a2 + x * a3))
-        dp = a1 + x * (2.0 * a2 + x * 3.0 * a3)
-        if in_logs[c]:
-            p = math.exp(p)
-            dp *= p
-        value[c] = p
-        slope[c] = dp
-
-
-@leaf_kernel(inline="always")
-def smooth_rhs(y, dy, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-               second, second_conc, feed_rate, feed_volume_rate, product, v):
-    """dy/dt with the coefficients ``coef``; ``product`` receives V^(1-m) prod n
-    and ``v`` the step rates v_s = k_eff product [mol/s].  False (dy = NaN)
-    when the volume is not positive."""
-    n = dy.shape[0]
-    n_steps = nu.shape[0]
-    volume = y[n_species]
-    if not (volume > 0.0):
-        for i in range(n):
-            dy[i] = math.nan
-        return False
-    inv_v = 1.0 / volume
-    for i in range(n_species):
-        dy[i] = feed_rate[i]
-    dy[n_species] = feed_volume_rate
-    dy[n_species + 1] = 0.0
-    dy[n_species + 2] = 0.0
-    for s in range(n_steps):
-        p = volume
-        for m in range(n_react[s]):
-            p *= y[reactants[s, m]] * inv_v
-        product[s] = p
-        vs = coef[s] * p
-        v[s] = vs
-        for i in range(n_species):
-            dy[i] += nu[s, i] * vs
-    if held:
-        q = coef[2 * n_steps]
-        for s in range(n_steps):
-            q += coef[n_steps + s] * v[s]
-        g0 = 2 * n_steps + 1
-        for m in range(n_mol):
-            q += coef[g0 + m] * y[m]
-        q += coef[g0 + n_mol] * volume
-        if q < 0.0 and second >= 0:
-            # the titrant would be withdrawn: the opposite titrant is dosed instead
-            q *= coef[g0 + n_mol + 1]
-            dy[second] += q
-            dy[n_species] += q / second_conc
-            dy[n_species + 2] = q
-        else:
-            dy[titrant] += q
-            dy[n_species] += q / titrant_conc
-            dy[n_species + 1] = q
-    return True
-
-
-@leaf_kernel(inline="always")
-def titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant, titrant_conc, second, second_conc):
-    """(factor, dosed ion, its concentration, consumed-state row, titrant rate)
-    at ``y`` with step rates ``v``: the titrant itself, or the opposite
-    titrant when the titrant rate is negative and the run has one."""
-    g0 = 2 * n_steps + 1
-    q = coef[2 * n_steps]
-    for s in range(n_steps):
-        q += coef[n_steps + s] * v[s]
-    for m in range(n_mol):
-        q += coef[g0 + m] * y[m]
-    q += coef[g0 + n_mol] * y[n_species]
-    if q < 0.0 and second >= 0:
-        return coef[g0 + n_mol + 1], second, second_conc, n_species + 2, q
-    return 1.0, titrant, titrant_conc, n_species + 1, q
-
-
-@leaf_kernel(inline="always")
-def smooth_jacobian(y, coef, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                    second, second_conc, v, active_of, jac_t):
-    """Non-zero columns of d(dy/dt)/dy, exact, stored transposed.
-
-    ``jac_t[a, i]`` = d(dy_i/dt)/dy_j for the a-th active state j
-    (``active_of[j]`` = a).  ``v`` must hold the step rates at ``y``.
-    dv_s/dn_j = k_eff V^(1-m)
-    prod_(other reactants) n; dv_s/dV = (1 - m) v_s / V; the titrant rate
-    adds alpha_s dv_s/dy_j + gamma_j.
-    """
-    n = jac_t.shape[1]
-    n_steps = nu.shape[0]
-    g0 = 2 * n_steps + 1
-    for a in range(jac_t.shape[0]):
-        for i in range(n):
-            jac_t[a, i] = 0.0
-    volume = y[n_species]
-    inv_v = 1.0 / volume
-    factor, dosed, conc_dosed, row, q = titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant,
-                                                       titrant_conc, second, second_conc)
-    for s in range(n_steps):
-        m_s = n_react[s]
-        for mm in range(-1, m_s):
-            if mm < 0:
-                j = n_species
-                d = v[s] * (1.0 - m_s) * inv_v
-            else:
-                j = reactants[s, mm]
-                d = coef[s] * volume
-                for m in range(m_s):
-                    d *= inv_v if m == mm else y[reactants[s, m]] * inv_v
-            a = active_of[j]
-            for i in range(n_species):
-                jac_t[a, i] += nu[s, i] * d
-            if held:
-                dq = factor * coef[n_steps + s] * d
-                jac_t[a, dosed] += dq
-                jac_t[a, n_species] += dq / conc_dosed
-                jac_t[a, row] += dq
-    if held:
-        for j in range(n_mol + 1):
-            state = j if j < n_mol else n_species
-            dq = factor * coef[g0 + j]
-            if dq != 0.0:
-                a = active_of[state]
-                jac_t[a, dosed] += dq
-                jac_t[a, n_species] += dq / conc_dosed
-                jac_t[a, row] += dq
-
-
-@leaf_kernel
-def smooth_time_derivative(y, coef, coef_dt, nu, n_species, n_mol, held, titrant, titrant_conc, second,
-                           second_conc, product, v, ft):
-    """d(dy/dt)/dt at fixed y [per s] from the coefficients and their time
-    derivatives ``coef_dt``; ``product`` as left by :func:`smooth_rhs` at y.
-
-    With v_s = k_eff,s P_s(y): df/dt = sum_s nu_s k_eff,s' P_s + e_q dq/dt,
-    dq/dt = beta' + sum_s (alpha_s' k_eff,s + alpha_s k_eff,s') P_s + sum_j gamma_j' y_j.
-    """
-    n = ft.shape[0]
-    n_steps = nu.shape[0]
-    for i in range(n):
-        ft[i] = 0.0
-    for s in range(n_steps):
-        dv = coef_dt[s] * product[s]
-        for i in range(n_species):
-            ft[i] += nu[s, i] * dv
-    if held:
-        g0 = 2 * n_steps + 1
-        dq = coef_dt[2 * n_steps]
-        for s in range(n_steps):
-            dq += (coef_dt[n_steps + s] * coef[s] + coef[n_steps + s] * coef_dt[s]) * product[s]
-        for m in range(n_mol):
-            dq += coef_dt[g0 + m] * y[m]
-        dq += coef_dt[g0 + n_mol] * y[n_species]
-        factor, dosed, conc_dosed, row, q = titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant,
-                                                           titrant_conc, second, second_conc)
-        if dosed != titrant:
-            # opposite titrant: rate = ratio(t) * q(t)
-            dq = factor * dq + coef_dt[g0 + n_mol + 1] * q
-        ft[dosed] += dq
-        ft[n_species] += dq / conc_dosed
-        ft[row] = dq
 
 
 @leaf_kernel
@@ -397,7 +118,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
             dc[c] *= inv_half
     if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
                       second, second_conc, feed_rate, feed_volume_rate, product, v):
-        return 3, h, i_out
+        return STATUS_NOT_FINITE, h, i_out
     if h <= 0.0:
         h = initial_step(y, f0, n, atol, rtol, sub_span)
     t = ta
@@ -414,7 +135,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
         wanted = h
         h, last = land_step(t, h, tb)
         if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-            return 2, h, i_out
+            return STATUS_STEP_UNDERFLOW, h, i_out
         # W = I/(h gamma) - J on the active states only; passive states (zero
         # Jacobian columns) follow by substitution, k_p = h gamma (f_p + sum_a J[p, a] k_a)
         hg = h * GAMMA
@@ -425,7 +146,7 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 g[a, b] = -jac_t[b, ia]
             g[a, a] += diag
         if not lu_factor(g, piv):
-            return 4, h, i_out
+            return STATUS_SINGULAR, h, i_out
         failed = False
         for st in range(N_STAGES):
             if st == 0:
@@ -499,17 +220,17 @@ def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, 
                 if y[n_species + 1] > peak[0]:
                     peak[0] = y[n_species + 1]
                 elif y[n_species + 1] < peak[0] - sign_tol:
-                    return 6, h, i_out
+                    return STATUS_TITRANT_SIGN, h, i_out
             counters[0] += 1
             if counters[0] > MAX_STEPS:
-                return 1, h, i_out
+                return STATUS_MAX_STEPS, h, i_out
             h = h * step_factor(err, True)
             if last:
                 # a step cut short to land on tb says nothing against the larger step
                 h = max(h, wanted)
         else:
             h = h * step_factor(err, False)
-    return 0, h, i_out
+    return STATUS_OK, h, i_out
 
 
 @njit(cache=True)
@@ -518,11 +239,11 @@ def make_smooth_workspace(model, n):
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
     product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, is_active, active, passive,
     active_of, jac_t, g, sub, piv).  The stoichiometry is filled in here."""
-    n_mol = model[0]
-    n_species = model[1]
-    n_steps = model[13].shape[0]
-    react_start = model[15]
-    react_kind = model[16]
+    n_mol = model.n_mol
+    n_species = model.n_species
+    n_steps = model.step_logk_q.shape[0]
+    react_start = model.react_start
+    react_kind = model.react_kind
     max_react = 1
     for s in range(n_steps):
         m = 0
@@ -558,21 +279,21 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     -------
     (status, next step size, next output index)
     """
-    n_mol = model[0]
-    n_species = model[1]
-    n_steps = model[13].shape[0]
-    mode = ctx[0]
+    n_mol = model.n_mol
+    n_species = model.n_species
+    n_steps = model.step_logk_q.shape[0]
+    mode = ctx[CTX_MODE]
     ph_is_held = mode == MODE_HELD
     # "held" below: the charge balance is kept by titrant (held pH, or a logged pH with a titrant)
-    held = ctx[13] != 0
-    titrant = ctx[3]
-    titrant_conc = ctx[4]
-    second = ctx[11]
-    second_conc = ctx[12]
+    held = ctx[CTX_CONTROLLED] != 0
+    titrant = ctx[CTX_TITRANT]
+    titrant_conc = ctx[CTX_TITRANT_CONC]
+    second = ctx[CTX_SECOND]
+    second_conc = ctx[CTX_SECOND_CONC]
     n = y.shape[0]
     span = t1 - t0
     if span <= 0.0:
-        return 0, h, i_out
+        return STATUS_OK, h, i_out
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
      k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
     n_coef = poly.shape[0]
@@ -589,7 +310,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     for s in range(n_steps):
         for m in range(n_react[s]):
             is_active[reactants[s, m]] = True
-    if held and (temperature_slope != 0.0 or ws[7][5] != 0.0):
+    if held and (temperature_slope != 0.0 or ws[WS_CACHE][C_PH_SLOPE] != 0.0):
         for m in range(n_mol):
             is_active[m] = True
     n_act = 0
@@ -624,7 +345,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                 for node in range(4):
                     ph = time_speciation(mid + half * NODES[node], model, par, ctx, temperature_slope, ws)
                     if math.isnan(ph):
-                        return 3, h, i_out
+                        return STATUS_NOT_FINITE, h, i_out
                     segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc,
                                          feed_rate, feed_volume_rate, temperature_slope, nodes[node])
                 for c in range(n_coef):
@@ -647,7 +368,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                 for check in range(CHECKS.shape[0]):
                     ph = time_speciation(mid + half * CHECKS[check], model, par, ctx, temperature_slope, ws)
                     if math.isnan(ph):
-                        return 3, h, i_out
+                        return STATUS_NOT_FINITE, h, i_out
                     segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc,
                                          feed_rate, feed_volume_rate, temperature_slope, exact)
                     evaluate_cubic(poly, in_logs, CHECKS[check], cst, dc)
@@ -661,13 +382,13 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                     break
                 tb = ta + 0.5 * (tb - ta)
             if not smooth:
-                return 2, h, i_out
+                return STATUS_STEP_UNDERFLOW, h, i_out
             inv_half = 1.0 / (0.5 * (tb - ta))
             mid = 0.5 * (ta + tb)
         else:
             ph = time_speciation(ta, model, par, ctx, temperature_slope, ws)
             if math.isnan(ph):
-                return 3, h, i_out
+                return STATUS_NOT_FINITE, h, i_out
             segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc, feed_rate,
                                  feed_volume_rate, temperature_slope, cst)
             for c in range(n_coef):
@@ -683,12 +404,12 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                                         n_react, n_species, n_mol, held, titrant, titrant_conc, second,
                                         second_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
                                         ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
-                                        rtol, atol, out, out_t, i_out, n_out, ph_is_held, ctx[1] + ctx[2], ctx[2],
-                                        ctx[5], ctx[6], ctx[7], ctx[8], ctx[9], ctx[10], counters, sign_tol,
+                                        rtol, atol, out, out_t, i_out, n_out, ph_is_held, ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET], ctx[CTX_PH_OFFSET],
+                                        ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N], ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], counters, sign_tol,
                                         peak)
-        if status != 0:
+        if status != STATUS_OK:
             return status, h, i_out
         sub_span = tb - ta
         trial = 2.0 * sub_span
         ta = tb
-    return 0, h, i_out
+    return STATUS_OK, h, i_out

@@ -15,10 +15,9 @@ from __future__ import annotations
 
 import math
 
+from speciakin.chemistry.water import GAS_CONSTANT, vant_hoff
 from speciakin.simulation.jit_options import leaf_kernel
 
-
-GAS_CONSTANT = 8.314462618  # [J/(mol*K)], CODATA 2018 exact value
 LN10 = math.log(10.0)
 
 
@@ -36,9 +35,10 @@ NEWTON_ACCEPT = 1e-13
 def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
     """pKa at ``temperature`` by van 't Hoff [2]_.
 
-    pKa(T) = pKa(T_ref) + dH / (R ln 10) * (1/T - 1/T_ref), dH in [kJ/mol], T in [K].
+    pKa(T) = pKa(T_ref) + dH / (R ln 10) * (1/T - 1/T_ref), dH in [kJ/mol], T in [K]
+    (the formula is ``chemistry.water.vant_hoff``).
     """
-    return pka_ref + enthalpy * 1000.0 / (GAS_CONSTANT * LN10) * (1.0 / temperature - 1.0 / reference_temperature)
+    return vant_hoff(pka_ref, enthalpy, temperature, reference_temperature)
 
 
 @leaf_kernel
@@ -158,3 +158,36 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
             return ph
         ph = new
     return math.nan
+
+
+@leaf_kernel
+def mean_charge_temperature_slopes(pops, enthalpy, temperature, mol_site_start, mol_micro_start, micro_charge,
+                                   n_mol, dpka_dt, dzbar_dt):
+    """d zbar / dT [1/K] of every molecule at fixed pH.
+
+    With log10 w_s = sum_i s_i (pKa_i(T) - pH) - ..., and van 't Hoff
+    d pKa_i/dT = -dH_i / (R ln 10 T^2), the populations move as
+    d p_s/dT = ln 10 p_s (L_s - <L>), L_s = sum_i s_i d pKa_i/dT, so
+    d zbar/dT = ln 10 (<z L> - <z><L>) (Borkovec and Koper [1]_).
+    ``dpka_dt`` is scratch of length n_sites.
+    """
+    for i in range(enthalpy.shape[0]):
+        dpka_dt[i] = -enthalpy[i] * 1000.0 / (GAS_CONSTANT * LN10 * temperature * temperature)
+    for m in range(n_mol):
+        s0 = mol_site_start[m]
+        ns = mol_site_start[m + 1] - s0
+        m0 = mol_micro_start[m]
+        mean_z = 0.0
+        mean_l = 0.0
+        mean_zl = 0.0
+        for st in range(1 << ns):
+            slope = 0.0
+            for i in range(ns):
+                if (st >> i) & 1:
+                    slope += dpka_dt[s0 + i]
+            p = pops[m0 + st]
+            z = micro_charge[m0 + st]
+            mean_z += p * z
+            mean_l += p * slope
+            mean_zl += p * z * slope
+        dzbar_dt[m] = LN10 * (mean_zl - mean_z * mean_l)

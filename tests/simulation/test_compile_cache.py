@@ -1,0 +1,93 @@
+"""The compiled-code cache: one folder, stale entries cleared, a notice before a cold compile;
+and the formulas shared by chemistry and the kernel."""
+
+from __future__ import annotations
+
+import logging
+import os
+import sys
+from pathlib import Path
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from speciakin.chemistry import water
+from speciakin.simulation import api, cache_guard
+
+
+@pytest.mark.skipif(sys.platform in ("win32", "darwin"), reason="the XDG folder applies to Linux and other Unix")
+def test_default_cache_dir_follows_xdg(monkeypatch, tmp_path):
+    # XDG Base Directory Specification: user caches under $XDG_CACHE_HOME, default ~/.cache
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
+    assert cache_guard.default_cache_dir() == tmp_path / "speciakin" / "numba"
+    monkeypatch.delenv("XDG_CACHE_HOME")
+    assert cache_guard.default_cache_dir() == Path.home() / ".cache" / "speciakin" / "numba"
+
+
+def test_choose_cache_dir_keeps_a_given_folder_and_fills_an_empty_one(monkeypatch, tmp_path):
+    from numba.core import config
+
+    monkeypatch.setenv("NUMBA_CACHE_DIR", str(tmp_path / "given"))
+    assert cache_guard.choose_cache_dir() == str(tmp_path / "given")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path))
+    monkeypatch.delenv("NUMBA_CACHE_DIR")
+    monkeypatch.setattr(config, "CACHE_DIR", config.CACHE_DIR)
+    chosen = cache_guard.choose_cache_dir()
+    assert os.environ["NUMBA_CACHE_DIR"] == chosen == config.CACHE_DIR
+    if sys.platform not in ("win32", "darwin"):
+        assert chosen == str(tmp_path / "speciakin" / "numba")
+
+
+def test_refresh_clears_only_kernel_entries_and_only_when_the_sources_change(tmp_path):
+    kernel_entry = tmp_path / "rhs_kernel.rhs-215.py311.nbi"
+    other_entry = tmp_path / "elsewhere.f-3.py311.nbi"
+    kernel_entry.write_text("x")
+    other_entry.write_text("x")
+    assert cache_guard.refresh_kernel_cache(tmp_path) is True  # no stamp yet: treated as changed
+    assert not kernel_entry.exists() and other_entry.exists()
+    kernel_entry.write_text("x")
+    assert cache_guard.refresh_kernel_cache(tmp_path) is False  # same sources: nothing removed
+    assert kernel_entry.exists()
+    (tmp_path / "speciakin_kernel_sources.sha256").write_text("an older digest")
+    assert cache_guard.refresh_kernel_cache(tmp_path) is True
+    assert not kernel_entry.exists()
+
+
+def test_every_compiled_module_is_hashed():
+    folder = Path(cache_guard.__file__).parent
+    compiled = {p.stem for p in folder.glob("*.py")
+                if "leaf_kernel" in p.read_text() or "@njit" in p.read_text()} - {"jit_options"}
+    assert compiled <= set(cache_guard.KERNEL_MODULES)
+
+
+def test_compile_notice_is_logged_once(monkeypatch, tmp_path, caplog):
+    cold = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
+        _index_path=str(tmp_path / "missing.nbi"))))
+    warm_index = tmp_path / "present.nbi"
+    warm_index.write_text("x")
+    warm = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
+        _index_path=str(warm_index))))
+    assert cache_guard.is_cached(warm) and not cache_guard.is_cached(cold)
+    monkeypatch.setattr(api, "_compile_noticed", False)
+    with caplog.at_level(logging.INFO, logger="speciakin.simulation"):
+        api.notice_compile(warm)
+        assert not caplog.records
+        api.notice_compile(cold)
+        api.notice_compile(cold)
+    messages = [r.getMessage() for r in caplog.records]
+    assert len(messages) == 1 and messages[0].startswith("compiling the simulation kernel once (about ")
+
+
+def test_water_formulas_are_the_same_in_chemistry_and_in_the_kernel():
+    from speciakin.simulation.speciation_kernel import site_pka_at
+    from speciakin.simulation.water_kernel import pkw, water_density
+
+    # one formula, two callers: the compiled kernel and the checked numpy functions agree to rounding;
+    # the values themselves are checked against IAPWS R11-07 and Kell 1975 in tests/chemistry/test_water.py
+    for t in (273.15, 298.15, 310.0, 353.15, 423.15):
+        assert pkw(t) == pytest.approx(water.pkw(t), rel=1e-15)
+        assert water_density(t) * 1000.0 == pytest.approx(water.water_density_kell(t), rel=1e-15)
+        assert site_pka_at(9.5, 45.0, t, 298.15) == pytest.approx(water.vant_hoff_pka(9.5, 45.0, t), rel=1e-15)
+    t = np.array([280.0, 300.0, 320.0])
+    np.testing.assert_allclose(water.pkw(t), [pkw(x) for x in t], rtol=1e-15)
