@@ -6,6 +6,7 @@ import json
 import tomllib
 
 from speciakin.cli.main import main
+from speciakin.pipeline.folders import latest_result
 from speciakin.pipeline.quick import QUICK_NOTE
 
 
@@ -59,11 +60,12 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
                                                                         "E03-pH7.5.png"]
     assert main(["run", str(folder), "--quick", "--quiet"]) == 0
     assert QUICK_NOTE in capsys.readouterr().out
-    fit = json.loads((folder / "results" / "fit.json").read_text())
-    window = json.loads((folder / "results" / "window.json").read_text())
+    result = latest_result(folder / "results")     # the run's own new result folder
+    fit = json.loads((result / "fit.json").read_text())
+    window = json.loads((result / "window.json").read_text())
     assert QUICK_NOTE in fit["warnings"]
     assert window["status"] in ("provisional", "not established") and window["status_reasons"][0] == QUICK_NOTE
-    assert "PROVISIONAL" in (folder / "results" / "window.txt").read_text()
+    assert "PROVISIONAL" in (result / "window.txt").read_text()
 
 
 def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, capsys):
@@ -72,7 +74,7 @@ def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, c
     before = (folder / "model.toml").read_text()
     assert main(["run", str(folder), "--quick", "--quiet", "--fix", "log10k[acylation_alkyl]",
                  "--bounds", "log10k[acylation_aryl]=-2:2"]) == 0
-    fit = json.loads((folder / "results" / "fit.json").read_text())
+    fit = json.loads((latest_result(folder / "results") / "fit.json").read_text())
     assert fit["overrides"] == [{"name": "log10k[acylation_alkyl]", "fit": False},
                                 {"name": "log10k[acylation_aryl]", "lower": -2.0, "upper": 2.0}]
     assert [p["name"] for p in fit["parameters"]] == ["log10k[acylation_aryl]"]

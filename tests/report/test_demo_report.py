@@ -36,7 +36,8 @@ def demo(tmp_path_factory):
     out = work / "out"
     for argv in (["fit", str(case), "--out", str(out), "--starts", "2", "--seed", "3", "--quiet"],
                  ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"],
-                 ["report", str(out), "--formats", "html,pdf,xlsx", "--process", str(case / "process.toml")]):
+                 ["report", str(out), "--out", str(out), "--formats", "html,pdf,xlsx",
+                  "--process", str(case / "process.toml")]):
         assert main(argv) == 0, argv
     from openpyxl import load_workbook
 
