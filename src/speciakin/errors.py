@@ -16,6 +16,7 @@ __all__ = [
     "Problem",
     "show_value",
     "problems_with",
+    "ProblemList",
     "SpeciakinError",
     "InputError",
     "ModelFileError",
@@ -207,7 +208,21 @@ class SolverError(SpeciakinError):
     exit_code = 3
 
 
-class ProblemCollector:
+class ProblemList:
+    """``errors`` and ``warnings`` of an object that holds ``problems`` (a list of Problem)."""
+
+    problems: list[Problem]
+
+    @property
+    def errors(self) -> list[Problem]:
+        return problems_with(self.problems, "error")
+
+    @property
+    def warnings(self) -> list[Problem]:
+        return problems_with(self.problems, "warning")
+
+
+class ProblemCollector(ProblemList):
     """Gather problems in one pass and raise them together.
 
     Examples
@@ -228,14 +243,6 @@ class ProblemCollector:
     def warning(self, message: str, location: Location | None = None, value: Any = None,
                 expected: str | None = None, code: str = "suspicious") -> None:
         self.problems.append(Problem(message, location or Location(), value, expected, "warning", code))
-
-    @property
-    def errors(self) -> list[Problem]:
-        return problems_with(self.problems, "error")
-
-    @property
-    def warnings(self) -> list[Problem]:
-        return problems_with(self.problems, "warning")
 
     @property
     def has_errors(self) -> bool:

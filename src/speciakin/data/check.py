@@ -9,13 +9,13 @@ from typing import Any
 
 from speciakin.data.importer import import_campaign
 from speciakin.data.validate import campaign_warnings, model_problems
-from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, problems_with
+from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, ProblemList
 
 __all__ = ["CheckReport", "check_campaign"]
 
 
 @dataclass
-class CheckReport:
+class CheckReport(ProblemList):
     """Outcome of :func:`check_campaign`.
 
     Attributes
@@ -41,14 +41,6 @@ class CheckReport:
     runs: int = 0
     hplc_values: int = 0
     log_readings: int = 0
-
-    @property
-    def errors(self) -> list[Problem]:
-        return problems_with(self.problems, "error")
-
-    @property
-    def warnings(self) -> list[Problem]:
-        return problems_with(self.problems, "warning")
 
     @property
     def ok(self) -> bool:
