@@ -54,14 +54,15 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     for k, (a, b) in enumerate(result.robust_windows):
         ax.axvspan(a, b, color=OKABE_ITO["blue"], alpha=0.35, lw=0,
                    label=f"robust set points (+/- {result.tolerance:g} pH)" if k == 0 else None)
-    se = result.probability_standard_error
-    ax.fill_between(result.ph, np.clip(result.probability - 2 * se, 0, 1),
-                    np.clip(result.probability + 2 * se, 0, 1), color=OKABE_ITO["black"], alpha=0.15,
-                    lw=0, label="+/- 2 Monte Carlo s.e.")
     if result.curve_ph is not None:
         x, p, robust = result.curve_ph, result.curve_probability, result.curve_robust_probability
+        # binomial Monte Carlo standard error of a share of n draws, on the same step curve
+        se = np.sqrt(np.clip(p * (1.0 - p), 0.0, None) / max(int(result.n_draws), 1))
     else:
         x, p, robust = result.ph, result.probability, result.robust_probability_per_draw
+        se = result.probability_standard_error
+    ax.fill_between(x, np.clip(p - 2 * se, 0, 1), np.clip(p + 2 * se, 0, 1), color=OKABE_ITO["black"],
+                    alpha=0.15, lw=0, label="+/- 2 Monte Carlo s.e.")
     ax.plot(x, p, color=OKABE_ITO["black"], lw=1.8, label="probability, all specifications met")
     if robust is not None and np.any(np.isfinite(robust)):
         ax.plot(x, robust, color=OKABE_ITO["vermillion"], lw=1.2, ls="--",
@@ -74,7 +75,7 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     ax.set_ylabel("probability [-]")
     ax.set_ylim(-0.02, 1.02)
     ax.set_xlim(result.ph[0], result.ph[-1])
-    title = (f"Probability of meeting every specification ({result.n_draws} draws, "
+    title = (f"Probability of meeting every specification\n({result.n_draws} draws: "
              f"{result.uncertainty_source})")
     if result.status:
         title += f"\nstatus: {result.status}"
