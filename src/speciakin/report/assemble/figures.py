@@ -37,13 +37,13 @@ def fit_figure_set(model: Any, predictions: Any, fit: Any) -> dict[str, bytes]:
         PNG bytes; the names are safe, distinct file stems
         (:func:`speciakin.pipeline.outputs.safe_stems`).
     """
-    from speciakin.report.assemble.build import species_colors
+    from speciakin.report.assemble.build import display_names, species_colors
     from speciakin.report.assemble.parameters import correlation_section
     from speciakin.report.assemble.posterior import profile_blocks
     from speciakin.report.assemble.runs import runs_section
 
     named: dict[str, Figure] = {}
-    runs_section(predictions, fit, None, species_colors(model), figure_names=named)
+    runs_section(predictions, fit, None, species_colors(model), names=display_names(model), figure_names=named)
     stems = safe_stems(named)
     out = {stems[name]: figure.image_bytes() for name, figure in named.items()}
     for block in profile_blocks(fit):
