@@ -177,7 +177,7 @@ def list_runs(root: str | os.PathLike) -> list[dict[str, Any]]:
         return []
     with closing(sqlite3.connect(root / INDEX_FILE, timeout=BUSY_TIMEOUT_S)) as con:
         con.row_factory = sqlite3.Row
-        return [_row(con, r) for r in con.execute("SELECT * FROM runs ORDER BY started DESC, id DESC").fetchall()]
+        return [_row(con, r) for r in con.execute("SELECT * FROM runs ORDER BY started DESC, rowid DESC").fetchall()]
 
 
 def run_of_folder(root: str | os.PathLike, folder: Path) -> str | None:
