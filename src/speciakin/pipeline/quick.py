@@ -57,16 +57,12 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
         ``check``, ``fit``, ``window`` (None without a process file), ``timings`` [s].
     """
     from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.run import checked_inputs
 
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
     timings: dict[str, float] = {}
-    check = timed(timings, "check", lambda: check_step(inputs, out))
-    if check.errors:
-        raise DataError(problems=check.errors)
-    say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
-    for problem in check.warnings:  # their text, not only their number
-        say(f"  warning: {problem.describe()}")
+    check = checked_inputs(inputs, out, timings, say)
     model, campaign, process = load_inputs(inputs)
     if fit_options is not None:
         model = fit_options(model)

@@ -89,6 +89,17 @@ class Results:
         return [name for name in ("fit", "posterior", "window") if getattr(self, name) is None]
 
 
+def checked_inputs(inputs: Inputs, out: Path, timings: dict[str, float], say: Callable[[str], None]):
+    """The check step of a run: raises DataError on errors, says every warning's text; the CheckReport."""
+    check = timed(timings, "check", lambda: check_step(inputs, out))
+    if check.errors:
+        raise DataError(problems=check.errors)
+    say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
+    for problem in check.warnings:  # their text, not only their number
+        say(f"  warning: {problem.describe()}")
+    return check
+
+
 def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, starts: int | None = None,
             seed: int = 1, n_steps: int | None = None, n_walkers: int | None = None, jobs: int = 1, scheduler=None,
             resume: bool = False, profiles: bool = True, draws: int | None = None, invented: bool = False,
@@ -140,12 +151,7 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     started = on_step or (lambda name: None)
     timings: dict[str, float] = {}
     started("check")
-    check = timed(timings, "check", lambda: check_step(inputs, out))
-    if check.errors:
-        raise DataError(problems=check.errors)
-    say(f"check: {len(check.errors)} errors, {len(check.warnings)} warnings")
-    for problem in check.warnings:  # their text, not only their number
-        say(f"  warning: {problem.describe()}")
+    check = checked_inputs(inputs, out, timings, say)
 
     model, campaign, process = load_inputs(inputs)
     results = Results(model, campaign, process, inputs, check=check, timings=timings)
