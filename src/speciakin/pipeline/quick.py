@@ -12,10 +12,9 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Callable
 
-from speciakin.errors import DataError
 from speciakin.pipeline.inputs import Inputs, load_inputs
 from speciakin.pipeline import outputs
-from speciakin.pipeline.steps import CancelFlag, Progress, check_step, make_objective, timed, window_step, window_text
+from speciakin.pipeline.steps import CancelFlag, Progress, make_objective, timed, window_step, window_text
 
 __all__ = ["QUICK_NOTE", "QUICK_STARTS", "QUICK_DRAWS", "quick_run", "mark_provisional"]
 
