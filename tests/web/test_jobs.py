@@ -24,34 +24,42 @@ def _wait(job, timeout=30.0):
 @pytest.fixture
 def kinds(monkeypatch):
     """Job kinds of known behaviour in place of the pipeline's."""
+    from speciakin.web import job_kinds
+    from speciakin.web.job_kinds import JobKind
+
     gate = threading.Event()
 
-    def steps(job, campaign, out, progress):
+    def steps(job, campaign, feedback):
+        folder = campaign / "results" / job.id
+        folder.mkdir(parents=True)
+        feedback.opened(folder)
         for i in range(5):
-            progress("starts", i, 5)
-            if job.settings.get("wait"):
+            feedback("starts", i, 5)
+            if job.settings.get("starts"):
                 gate.wait(5)
-        (out / "done.txt").write_text("x")
+        (folder / "done.txt").write_text("x")
         return "finished"
 
-    def bad_input(job, campaign, out, progress):
+    def bad_input(job, campaign, feedback):
         raise InputError("start volume is not a number", Location(file="c.xlsx", sheet="Runs", row=4,
                                                                   column="G (start volume [mL])"), "fifty", "a number")
 
-    def bug(job, campaign, out, progress):
+    def bug(job, campaign, feedback):
         raise ZeroDivisionError("division by zero")
 
-    monkeypatch.setattr(jobs_module, "JOB_KINDS", {"steps": ("steps", steps), "bad": ("bad", bad_input),
-                                                   "bug": ("bug", bug)})
+    fake = {"steps": JobKind("steps", "fit", ("starts",), steps), "bad": JobKind("bad", "fit", (), bad_input),
+            "bug": JobKind("bug", "fit", (), bug)}
+    monkeypatch.setattr(jobs_module, "JOB_KINDS", fake)
+    monkeypatch.setattr(job_kinds, "JOB_KINDS", fake)
     return gate
 
 
-def test_a_job_runs_in_its_own_new_folder_and_reports_progress(tmp_path, kinds):
+def test_a_job_reports_progress_and_the_folder_it_writes(tmp_path, kinds):
     board = JobBoard()
     first = _wait(board.submit("steps", "c", tmp_path, {}))
     second = _wait(board.submit("steps", "c", tmp_path, {}))
     assert first.state == second.state == "done" and first.message == "finished"
-    assert first.folder != second.folder
+    assert first.folder == f"results/{first.id}" and first.folder != second.folder
     assert (tmp_path / first.folder / "done.txt").is_file()
     assert (first.stage, first.done, first.total) == ("starts", 4, 5)
     assert [j.id for j in board.jobs("c")] == [second.id, first.id]
@@ -69,7 +77,7 @@ def test_time_left_follows_the_pace_of_the_stage():
 
 def test_a_job_is_cancelled_at_its_next_progress_point(tmp_path, kinds):
     board = JobBoard()
-    job = board.submit("steps", "c", tmp_path, {"wait": True})
+    job = board.submit("steps", "c", tmp_path, {"starts": 1})
     while job.state != "running":
         time.sleep(0.01)
     assert board.cancel(job.id)
@@ -116,3 +124,27 @@ def test_a_long_log_is_thinned_for_display_and_the_figure_says_so():
     notes = " ".join(a.text for a in fig.layout.annotations)
     assert f"pH log: 1 in 4 of {n} readings shown (display only; the fit uses all)" in notes
     assert len(long_log) == n  # the campaign's log itself is untouched
+
+
+def test_settings_out_of_range_are_refused_naming_the_setting(tmp_path):
+    from speciakin.web.job_kinds import clean_settings
+
+    board = JobBoard()
+    with pytest.raises(InputError) as err:
+        board.submit("posterior", "c", tmp_path, {"steps": 3})
+    assert "steps per walker" in str(err.value) and "10 to 100000" in str(err.value)
+    assert board.jobs() == []  # nothing started
+    for bad in ({"starts": 0}, {"starts": 2.5}, {"draws": "many"}):
+        with pytest.raises(InputError):
+            clean_settings("fit", bad)
+    with pytest.raises(InputError):
+        clean_settings("report", {"source": "../../elsewhere"})
+    with pytest.raises(InputError):
+        clean_settings("report", {"formats": ["html", "docx"]})
+    with pytest.raises(InputError):
+        clean_settings("nonsense", {})
+    # "until converged" drops the fixed steps; fixed steps drop the cap
+    assert clean_settings("posterior", {"steps": 50, "cap": 400, "until_converged": True})["steps"] is None
+    assert clean_settings("posterior", {"steps": 50, "cap": 400})["cap"] is None
+    assert clean_settings("fit", {"starts": "3", "profiles": [], "walkers": 9}) == \
+        {"starts": 3, "profiles": False, "draws": None}

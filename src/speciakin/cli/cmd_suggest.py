@@ -102,11 +102,10 @@ def run(args) -> int:
 
 def _suggest(args, inputs, objective, fit, posterior, process, out):
     """Rank the candidates and write suggest.json, suggest.txt and the figure into ``out``."""
-    from speciakin._io import atomic_write_bytes
     from speciakin.cli._common import StageProgress
     from speciakin.pipeline import outputs
     from speciakin.pipeline.suggest import suggest_for_campaign
-    from speciakin.report.figures.suggest import suggest_shrinkage_figure
+    from speciakin.report.results import suggest_figures
 
     progress = StageProgress(enabled=not args.quiet)
     try:
@@ -120,10 +119,5 @@ def _suggest(args, inputs, objective, fit, posterior, process, out):
     finally:
         progress.close()
     outputs.save_suggestion(out, result, inputs)
-    curves = result.by_ph()
-    png = suggest_shrinkage_figure(curves["ph"], curves["edge_low"], curves["edge_high"], curves["undecided"],
-                                   curves["d_gain"], min_gain=result.min_gain if result.has_decision else None,
-                                   best_ph=result.candidates[0].conditions["setpoint_pH"],
-                                   title="Expected shrinkage of the decision's uncertainty")
-    atomic_write_bytes(out / outputs.FIGURES_FOLDER / "suggest_shrinkage.png", png)
+    suggest_figures(result, out)
     return result

@@ -161,7 +161,7 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
                     n_walkers: int | None = None, n_steps: int | None = None, seed: int = 1,
                     checkpoint=None, resume: bool = False, jobs: int = 1, scheduler=None,
                     progress=True, checkpoint_every: float = 30.0, covariance=None,
-                    proposal: str | None = None) -> PosteriorResult:
+                    proposal: str | None = None, max_steps: int | None = None) -> PosteriorResult:
     """Sample the posterior of the campaign's fitted parameters.
 
     Parameters
@@ -174,8 +174,8 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
     n_walkers
         Default: max(32, 4 x parameters), even.
     n_steps
-        Steps per walker; None = until converged, at most the sampler's cap
-        (see :func:`speciakin.estimation.sampling.sample_posterior`).
+        Steps per walker; None = until converged, at most ``max_steps``
+        (None: the sampler's cap, see :func:`speciakin.estimation.sampling.sample_posterior`).
     checkpoint, resume, jobs, scheduler, progress, checkpoint_every
         See :func:`speciakin.estimation.sampling.sample_posterior`.
     covariance
@@ -205,4 +205,5 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
                             scale, n_walkers=n_walkers, n_steps=n_steps, seed=seed, checkpoint=checkpoint,
                             resume=resume, jobs=jobs, scheduler=scheduler, progress=progress,
                             checkpoint_every=checkpoint_every, proposal=proposal,
-                            proposal_covariance=covariance)
+                            proposal_covariance=covariance,
+                            **({} if max_steps is None else {"max_steps": max_steps}))

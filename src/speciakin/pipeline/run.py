@@ -105,7 +105,7 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
             resume: bool = False, profiles: bool = True, draws: int | None = None, invented: bool = False,
             formats=None, progress: Progress | None = None, cancel: CancelFlag | None = None,
             say: Callable[[str], None] = lambda s: None, on_step: Callable[[str], None] | None = None,
-            sample_bar: bool = False) -> Results:
+            sample_bar: bool = False, max_steps: int | None = None) -> Results:
     """check -> fit -> sample -> window -> report, each step's output kept in ``out``.
 
     Parameters
@@ -119,7 +119,7 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
         None: results files only.
     starts, seed, profiles
         Least-squares settings (see :func:`~speciakin.pipeline.fit.fit_campaign`).
-    n_steps, n_walkers, jobs, scheduler, resume
+    n_steps, n_walkers, jobs, scheduler, resume, max_steps
         Sampler settings (see :func:`~speciakin.pipeline.steps.sample_step`).
     draws
         Parameter draws of the window (default: the process file's).
@@ -167,7 +167,8 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     started("sample")
     results.posterior = posterior = timed(timings, "sample", lambda: sample_step(
         objective, fit, out, n_steps=n_steps, n_walkers=n_walkers, seed=seed, resume=resume, jobs=jobs,
-        scheduler=scheduler, progress=progress if progress is not None else sample_bar, cancel=cancel))
+        scheduler=scheduler, progress=progress if progress is not None else sample_bar, cancel=cancel,
+        max_steps=max_steps))
     if renderer is not None:
         renderer.posterior_figures(posterior, out)
     say(f"sample: {posterior.n_walkers} walkers x {posterior.n_steps} steps, "

@@ -89,7 +89,7 @@ def fit_step(objective, out: Path, *, starts: int | None = None, seed: int | Non
 def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walkers: int | None = None,
                 seed: int = 1, resume: bool = False, jobs: int = 1, scheduler=None,
                 progress: Progress | bool | None = True, cancel: CancelFlag | None = None,
-                proposal: str | None = None):
+                proposal: str | None = None, max_steps: int | None = None):
     """Posterior by emcee from the least-squares optimum; checkpoints to and
     finally stores the result in ``posterior.h5``; writes ``posterior.json``
     and ``posterior.txt``; returns PosteriorResult.
@@ -99,7 +99,8 @@ def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walk
     is missing or not positive definite the stretch move is used and the
     result's warnings say why.  ``proposal="stretch"`` forces the stretch
     move.  ``progress`` True shows a progress bar, a callable receives
-    ``("sample", done, total)``.
+    ``("sample", done, total)``.  ``max_steps`` caps a run until converged
+    (``n_steps`` None; default the sampler's cap).
     """
     from speciakin.pipeline.posterior import proposal_covariance_from_fit, sample_campaign
 
@@ -117,7 +118,8 @@ def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walk
         progress = tracker("sample", progress if callable(progress) else None, cancel)
     result = sample_campaign(objective, fit.theta, se, n_walkers=n_walkers, n_steps=n_steps, seed=seed,
                              checkpoint=outputs.result_path(out, "posterior"), resume=resume, jobs=jobs,
-                             scheduler=scheduler, progress=progress, covariance=covariance, proposal=proposal)
+                             scheduler=scheduler, progress=progress, covariance=covariance, proposal=proposal,
+                             max_steps=max_steps)
     if note:
         result.warnings.insert(0, note)
     outputs.save_posterior(out, result)

@@ -14,7 +14,7 @@ from typing import Any
 from speciakin._io import atomic_write_bytes
 from speciakin.pipeline.outputs import FIGURES_FOLDER, RESULT_FILES
 
-__all__ = ["fit_figures", "posterior_figures", "write_report"]
+__all__ = ["fit_figures", "posterior_figures", "suggest_figures", "write_report"]
 
 
 def _figures(out: Path) -> Path:
@@ -40,6 +40,19 @@ def posterior_figures(posterior: Any, out: Path) -> list[Path]:
         paths.append(atomic_write_bytes(_figures(out) / "posterior_corner.png",
                                         corner_figure(posterior.samples, posterior.parameter_names)))
     return paths
+
+
+def suggest_figures(suggestion: Any, out: Path) -> list[Path]:
+    """The expected shrinkage of the decision's uncertainty against pH of a next-run suggestion
+    into ``out/figures/suggest_shrinkage.png`` (the report's suggestion section shows it)."""
+    from speciakin.report.figures.suggest import suggest_shrinkage_figure
+
+    curves = suggestion.by_ph()
+    png = suggest_shrinkage_figure(curves["ph"], curves["edge_low"], curves["edge_high"], curves["undecided"],
+                                   curves["d_gain"], min_gain=suggestion.min_gain if suggestion.has_decision else None,
+                                   best_ph=suggestion.candidates[0].conditions["setpoint_pH"],
+                                   title="Expected shrinkage of the decision's uncertainty")
+    return [atomic_write_bytes(_figures(out) / "suggest_shrinkage.png", png)]
 
 
 def write_report(out: Path, results: Any, *, invented: bool = False, formats=None, command: str = "",

@@ -16,7 +16,7 @@ from pathlib import Path
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import page_campaign, page_jobs, page_model, page_results
+from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -24,7 +24,8 @@ __all__ = ["create_app", "make_server", "is_loopback", "new_token", "TOKEN_COOKI
 
 TOKEN_COOKIE = "speciakin_token"
 _TABS = (("campaign", "1 Campaign and data", page_campaign), ("model", "2 Model", page_model),
-         ("jobs", "3 Jobs", page_jobs), ("results", "4 Results", page_results))
+         ("jobs", "3 Jobs", page_jobs), ("results", "4 Results", page_results),
+         ("history", "5 History", page_history))
 _STYLE = """
 body { font-family: system-ui, sans-serif; margin: 0 1.5em; color: #1a1a1a; }
 .row { display: flex; gap: .8em; align-items: center; flex-wrap: wrap; margin: .5em 0; }
@@ -36,6 +37,9 @@ body { font-family: system-ui, sans-serif; margin: 0 1.5em; color: #1a1a1a; }
 .state-failed { color: #b00020; } .state-done { color: #006b3c; } .state-cancelled { color: #8a5a00; }
 .job-text, .summary { white-space: pre-wrap; background: #f6f6f6; padding: .5em; }
 progress { width: 16em; }
+table.compare { border-collapse: collapse; margin: .6em 0; } table.compare caption { text-align: left; font-weight: 600; }
+table.compare td, table.compare th { border: 1px solid #ccc; padding: .2em .5em; text-align: left; }
+tr.differs td { background: #fff3d6; } a.download { margin-right: .8em; }
 """
 
 

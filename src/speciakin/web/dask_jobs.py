@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from speciakin.errors import InputError, Location, SpeciakinError
-from speciakin.web.jobs import JOB_KINDS, Job, JobBoard
+from speciakin.web.jobs import Feedback, Job, JobBoard, perform
 
 __all__ = ["DaskJobBoard", "remote_job"]
 
@@ -29,27 +29,17 @@ def _names(job_id: str) -> tuple[str, str]:
     return f"speciakin-job-progress-{job_id}", f"speciakin-job-cancel-{job_id}"
 
 
-def remote_job(kind: str, campaign: str, out: str, settings: dict[str, Any], job_id: str) -> tuple[str, str]:
-    """Run one job on a worker; returns (state, message) with state "done", "cancelled" or "failed"."""
+def remote_job(kind: str, campaign: str, settings: dict[str, Any], job_id: str) -> tuple[str, str, str]:
+    """Run one job on a worker; returns (state, message, folder) with state "done", "cancelled" or
+    "failed" and the result folder relative to the campaign ("" when none was made)."""
     from distributed import Event, Variable
-
-    from speciakin.pipeline import Cancelled
 
     progress_name, cancel_name = _names(job_id)
     cancel, shown = Event(cancel_name), Variable(progress_name)
     job = Job(job_id, kind, "", "", settings, cancel=cancel)
-
-    def progress(stage: str, done: int, total: int) -> None:
-        if cancel.is_set():
-            raise Cancelled(f"step '{stage}' cancelled")
-        shown.set([stage, int(done), int(total)])
-
-    try:
-        return "done", JOB_KINDS[kind][1](job, Path(campaign), Path(out), progress)
-    except Cancelled as exc:  # never let an interrupt reach the worker itself
-        return "cancelled", f"cancelled ({exc})"
-    except SpeciakinError as exc:
-        return "failed", str(exc)
+    feedback = Feedback(Path(campaign), cancel, shown.set)
+    state, message = perform(job, Path(campaign), feedback)
+    return state, message, feedback.shown["folder"]
 
 
 class DaskJobBoard(JobBoard):
@@ -95,11 +85,11 @@ class DaskJobBoard(JobBoard):
                                      self._address, "the address of a running scheduler, e.g. tcp://host:8786")
             return self._client
 
-    def _start(self, job: Job, campaign: Path, out: Path) -> None:
-        threading.Thread(target=self._follow, args=(job, campaign, out), daemon=True,
+    def _start(self, job: Job, campaign: Path) -> None:
+        threading.Thread(target=self._follow, args=(job, campaign), daemon=True,
                          name=f"speciakin-job-{job.id}").start()
 
-    def _follow(self, job: Job, campaign: Path, out: Path) -> None:
+    def _follow(self, job: Job, campaign: Path) -> None:
         from distributed import Event, Variable
 
         try:
@@ -108,23 +98,20 @@ class DaskJobBoard(JobBoard):
             shown, cancel = Variable(progress_name, client=client), Event(cancel_name, client=client)
             if job.cancel.is_set():
                 cancel.set()
-            future = client.submit(remote_job, job.kind, str(campaign), str(out), job.settings, job.id,
+            future = client.submit(remote_job, job.kind, str(campaign), job.settings, job.id,
                                    pure=False, key=f"speciakin-job-{job.id}")
             job.state = "running"
             while not future.done():
                 if job.cancel.is_set() and not cancel.is_set():
                     cancel.set()
                 try:
-                    stage, done, total = shown.get(timeout=_POLL_S)
+                    job.show(shown.get(timeout=_POLL_S))
                 except TimeoutError:
                     continue
-                if stage != job.stage:
-                    job.stage, job.stage_started = stage, time.time()
-                job.done, job.total = done, total
                 time.sleep(_POLL_S)
-            job.state, job.message = future.result()
-            if job.state == "cancelled":
-                job.message += f"; files written so far stay in {job.folder}"
+            job.state, job.message, folder = future.result()
+            job.folder = folder or job.folder
+            self._after(job)
             shown.delete()
         except SpeciakinError as exc:
             job.state, job.message = "failed", str(exc)

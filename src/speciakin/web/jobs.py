@@ -1,14 +1,16 @@
 """Jobs of the page: pipeline work in the background, with progress, time left and cancel.
 
 A job is kept on the server, keyed by its id, so a reloaded page finds it
-again.  Each job writes into its own new folder ``results/<stamp>-<id>``
-(:func:`speciakin.web.paths.new_result_folder` refuses an existing one), so
-two jobs never write into the same folder.
+again.  Its work (:mod:`speciakin.web.job_kinds`) runs inside a
+:class:`speciakin.pipeline.Recording`: a new result folder
+``results/<UTC time>-<id>`` taken with ``mkdir`` (never an existing one, so
+two jobs never write into the same folder), its lock and ``status.json``,
+and a row in the campaign's results index, as for a command-line run.
 
 Execution: :class:`JobBoard` runs jobs in a thread pool of the server
 process; :class:`speciakin.web.dask_jobs.DaskJobBoard` runs them on a Dask
 cluster.  Both have the one interface the page uses (``submit``, ``get``,
-``jobs``, ``cancel``).
+``jobs``, ``cancel``) and both run a job through :func:`perform`.
 """
 
 from __future__ import annotations
@@ -23,8 +25,9 @@ from pathlib import Path
 from typing import Any, Callable
 
 from speciakin.errors import SpeciakinError
+from speciakin.web.job_kinds import JOB_KINDS, clean_settings
 
-__all__ = ["Job", "JobBoard", "JOB_KINDS", "fit_window_job"]
+__all__ = ["Job", "JobBoard", "JOB_KINDS", "Feedback", "perform"]
 
 log = logging.getLogger(__name__)
 
@@ -50,6 +53,8 @@ class Job:
     stage_started: float = field(default_factory=time.time)
     finished: float | None = None
     cancel: threading.Event = field(default_factory=threading.Event, repr=False)
+    #: Plain-words notes of the recording (the index could not be written, ...).
+    notes: list[str] = field(default_factory=list)
 
     def seconds_left(self, now: float | None = None) -> float | None:
         """Time left in the current stage [s], from its pace so far (None before the first step)."""
@@ -58,46 +63,78 @@ class Job:
         spent = (now or time.time()) - self.stage_started
         return spent / self.done * max(self.total - self.done, 0)
 
+    def show(self, shown: dict[str, Any]) -> None:
+        """Take the progress a worker reported (stage, done, total, folder)."""
+        if shown.get("stage") and shown["stage"] != self.stage:
+            self.stage, self.stage_started = shown["stage"], time.time()
+        self.done, self.total = int(shown.get("done", 0)), int(shown.get("total", 0))
+        if shown.get("folder"):
+            self.folder = shown["folder"]
+
     def view(self) -> dict[str, Any]:
         """Plain dict for the page."""
-        left = self.seconds_left()
-        return {"id": self.id, "kind": self.kind, "campaign": self.campaign, "folder": self.folder,
-                "state": self.state, "stage": self.stage, "done": self.done, "total": self.total,
-                "message": self.message, "seconds_left": left,
-                "elapsed": (self.finished or time.time()) - self.created}
+        return {"id": self.id, "kind": self.kind, "label": JOB_KINDS[self.kind].label if self.kind in JOB_KINDS
+                else self.kind, "campaign": self.campaign, "folder": self.folder, "state": self.state,
+                "stage": self.stage, "done": self.done, "total": self.total, "message": self.message,
+                "seconds_left": self.seconds_left(), "elapsed": (self.finished or time.time()) - self.created}
 
 
-Work = Callable[[Job, Path, Path, Callable[[str, int, int], None]], str]
+class Feedback:
+    """What a job's work reports: ``feedback(stage, done, total)`` and ``feedback.opened(folder)``.
+
+    Parameters
+    ----------
+    campaign
+        The campaign folder (the result folder is shown relative to it).
+    cancel
+        The job's cancel flag (``is_set()``); once set, the next call raises
+        :class:`speciakin.pipeline.Cancelled`.
+    publish
+        Receives ``{"stage", "done", "total", "folder"}`` after every change.
+    """
+
+    def __init__(self, campaign: Path, cancel, publish: Callable[[dict[str, Any]], None]) -> None:
+        self.campaign = Path(campaign)
+        self.cancel = cancel
+        self.publish = publish
+        self.shown: dict[str, Any] = {"stage": "", "done": 0, "total": 0, "folder": ""}
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        from speciakin.pipeline import Cancelled
+
+        if self.cancel.is_set():
+            raise Cancelled(f"step '{stage}' cancelled")
+        self.shown.update(stage=stage, done=int(done), total=int(total))
+        self.publish(dict(self.shown))
+
+    def opened(self, folder: Path) -> None:
+        """The job's result folder exists: show it (relative to the campaign)."""
+        from speciakin.pipeline.outputs import relative
+
+        self.shown["folder"] = relative(folder, self.campaign)
+        self.publish(dict(self.shown))
 
 
-def fit_window_job(job: Job, campaign: Path, out: Path, progress: Callable[[str, int, int], None]) -> str:
-    """check -> fit -> window (when the campaign has a process file); returns a one-line summary."""
-    from speciakin import pipeline
-    from speciakin.errors import DataError
+def perform(job: Job, campaign: Path, feedback: Feedback) -> tuple[str, str]:
+    """Run ``job``'s work; returns (state, message), state "done", "cancelled" or "failed".
 
-    s = job.settings
-    progress("check", 0, 1)
-    inputs = pipeline.resolve_inputs(campaign)
-    check = pipeline.check_step(inputs, out)
-    if check.errors:
-        raise DataError(problems=check.errors)
-    progress("load", 0, 1)
-    model, loaded, process = pipeline.load_inputs(inputs)
-    objective = pipeline.make_objective(model, loaded)
-    fit = pipeline.fit_step(objective, out, starts=s.get("starts"), profiles=bool(s.get("profiles")),
-                            progress=progress, cancel=job.cancel)
-    text = f"fit: chi-square {fit.fit.chisqr:.4g}, reduced {fit.fit.reduced_chisqr:.3g}"
-    if process is not None:
-        window = pipeline.window_step(objective, process, out, fit=fit, draws=s.get("draws"), progress=progress,
-                                      cancel=job.cancel)
-        text += "; window: " + pipeline.window_text(window)
-    return text
+    A cancelled job keeps the files its finished steps wrote (its folder reads
+    "interrupted"); a failed one says why (a bad input names its file, sheet,
+    row and column).
+    """
+    from speciakin.pipeline import Cancelled
 
-
-#: Job kinds the page offers: name -> (label, work).
-JOB_KINDS: dict[str, tuple[str, Work]] = {
-    "fit": ("fit and window", fit_window_job),
-}
+    try:
+        state, message = "done", JOB_KINDS[job.kind].work(job, campaign, feedback)
+    except Cancelled as exc:  # never let the interrupt reach the thread or the worker itself
+        state, message = "cancelled", f"cancelled ({exc})"
+    except SpeciakinError as exc:
+        state, message = "failed", str(exc)
+    except Exception as exc:  # a bug: the page says so instead of hanging
+        log.exception("job %s failed", job.id)
+        state, message = "failed", f"unexpected error ({type(exc).__name__}): {exc}"
+    notes = "".join(f"\nnote: {n}" for n in job.notes)
+    return state, message + notes
 
 
 class JobBoard:
@@ -115,51 +152,38 @@ class JobBoard:
         self._lock = threading.Lock()
 
     def submit(self, kind: str, campaign_name: str, campaign: Path, settings: dict[str, Any]) -> Job:
-        """Start a job of ``kind`` on ``campaign`` (a resolved folder inside the root)."""
-        from speciakin.web.paths import new_result_folder
+        """Start a job of ``kind`` on ``campaign`` (a resolved folder inside the root).
 
-        if kind not in JOB_KINDS:
-            raise KeyError(kind)
-        job_id = secrets.token_hex(4)
-        out = new_result_folder(campaign, job_id)
-        job = Job(job_id, kind, campaign_name, str(out.relative_to(campaign)), dict(settings))
+        Raises
+        ------
+        InputError
+            An unknown kind or a setting out of range (nothing is started).
+        """
+        job = Job(secrets.token_hex(4), kind, campaign_name, "", clean_settings(kind, settings))
         with self._lock:
-            if any(j.folder == job.folder and j.campaign == campaign_name for j in self._jobs.values()):
-                raise FileExistsError(out)
-            self._jobs[job_id] = job
-        self._start(job, campaign, out)
+            self._jobs[job.id] = job
+        self._start(job, campaign)
         return job
 
-    def _start(self, job: Job, campaign: Path, out: Path) -> None:
+    def _start(self, job: Job, campaign: Path) -> None:
         """Hand the job to the executor (here the thread pool)."""
-        self._pool.submit(self._run, job, campaign, out)
+        self._pool.submit(self._run, job, campaign)
 
-    def _run(self, job: Job, campaign: Path, out: Path) -> None:
-        from speciakin.pipeline import Cancelled
-
-        def progress(stage: str, done: int, total: int) -> None:
-            if job.cancel.is_set():
-                raise Cancelled(f"step '{stage}' cancelled")
-            if stage != job.stage:
-                job.stage, job.stage_started = stage, time.time()
-            job.done, job.total = int(done), int(total)
-
+    def _run(self, job: Job, campaign: Path) -> None:
         if job.cancel.is_set():
             job.state, job.message, job.finished = "cancelled", "cancelled before it started", time.time()
             return
         job.state = "running"
         try:
-            job.message = JOB_KINDS[job.kind][1](job, campaign, out, progress)
-            job.state = "done"
-        except Cancelled as exc:
-            job.state, job.message = "cancelled", f"cancelled ({exc}); files written so far stay in {job.folder}"
-        except SpeciakinError as exc:
-            job.state, job.message = "failed", str(exc)
-        except Exception as exc:  # a bug: the page says so instead of hanging
-            log.exception("job %s failed", job.id)
-            job.state, job.message = "failed", f"unexpected error ({type(exc).__name__}): {exc}"
+            job.state, job.message = perform(job, campaign, Feedback(campaign, job.cancel, job.show))
+            self._after(job)
         finally:
             job.finished = time.time()
+
+    @staticmethod
+    def _after(job: Job) -> None:
+        if job.state == "cancelled" and job.folder:
+            job.message += f"; files written so far stay in {job.folder}"
 
     def get(self, job_id: str | None) -> Job | None:
         return self._jobs.get(str(job_id)) if job_id else None
