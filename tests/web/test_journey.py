@@ -132,6 +132,12 @@ def test_a_running_job_can_be_cancelled(server, page, shot):
     shot(page, "08-job-cancelled")
     assert job.state == "cancelled" and "step 'starts' cancelled" in job.message
     assert not (state.root / "short" / job.folder / "fit.json").exists()
+    # the results index records the cancelled job as interrupted, and the history tab shows it
+    page.click("text=5 History")
+    run_id = job.folder.rsplit("/", 1)[-1]
+    row = page.locator("#history-table .ag-row", has_text=run_id).first
+    row.wait_for()
+    assert row.locator("[col-id='status']").inner_text() == "interrupted"
 
 
 def test_a_campaign_is_created_from_the_templates_and_a_workbook_uploaded(server, page, shot, tmp_path):
@@ -182,3 +188,75 @@ def test_a_failing_job_says_where_the_input_is_wrong(server, page, shot):
     text = page.inner_text(f"#job-{job.id}")
     assert f"sheet '{sheet}'" in text and f"row {row}" in text and repr(value) in text
     shot(page, "13-job-failed")
+
+
+def _complete_fit(state) -> str:
+    """The id of a complete fit of the "short" campaign (one is made when none exists yet)."""
+    from speciakin.pipeline import results_root
+    from speciakin.pipeline.contrast import live_runs
+
+    runs = [r for r in live_runs(results_root(state.root / "short")) if r["status"] == "complete"
+            and r["step"] == "fit"]
+    if runs:
+        return runs[0]["id"]
+    job = state.board.submit("fit", "short", state.root / "short", {"starts": 1, "draws": 8})
+    while job.state in ("queued", "running"):
+        time.sleep(0.2)
+    assert job.state == "done", job.message
+    return job.folder.rsplit("/", 1)[-1]
+
+
+def test_report_job_download_and_two_results_side_by_side(server, page, shot, tmp_path):
+    import json
+
+    url, state = server
+    fit_id = _complete_fit(state)
+    open_campaign(page, url, "short")
+    page.click("text=3 Jobs")
+    page.check("#job-kind input[value='report']")
+    page.wait_for_selector("#job-start:has-text('Start report')")
+    assert page.locator("#job-field-starts").is_hidden()  # only the settings a report reads are shown
+    page.uncheck("#job-formats input[value='pdf']")
+    page.uncheck("#job-formats input[value='xlsx']")
+    page.click("#job-start")
+    page.wait_for_selector("#job-message:has-text('started job')")
+    job = state.board.jobs("short")[0]
+    assert job.kind == "report"
+    page.wait_for_selector(f"#job-{job.id}:has-text('done')", timeout=300_000)
+    shot(page, "14-report-job-done")
+    link = page.locator(f"#job-{job.id} a.download", has_text="report.html")
+    with page.expect_download() as info:
+        link.click()
+    download = info.value
+    assert download.suggested_filename == "report.html"
+    saved = tmp_path / "report.html"
+    download.save_as(saved)
+    assert saved.read_bytes() == (state.root / "short" / job.folder / "report.html").read_bytes()
+    assert "<html" in saved.read_text(encoding="utf-8").lower()
+
+    report_id = job.folder.rsplit("/", 1)[-1]
+    page.click("text=5 History")
+    page.wait_for_selector(f"#history-table .ag-row:has-text('{report_id}')")
+    fit_row = page.locator("#history-table .ag-row", has_text=fit_id).first
+    window = json.loads((state.root / "short" / "results" / fit_id / "window.json").read_text())
+    assert fit_row.locator("[col-id='window_status']").inner_text() == window["status"]
+    assert fit_row.locator("[col-id='window']").inner_text().startswith("pH ") or not window["primary_window"]
+    assert fit_row.locator("[col-id='status']").inner_text() == "complete"
+    assert "speciakin web: report" in page.locator("#history-table .ag-row", has_text=report_id).first.inner_text()
+    shot(page, "15-history")
+    choose(page, "files-choice", report_id)
+    page.wait_for_selector("#files-list a:has-text('report.html')")
+    with page.expect_download() as info:
+        page.click("#files-list a:has-text('window.json')")
+    assert info.value.suggested_filename == "window.json"
+    choose(page, "compare-a", fit_id)
+    choose(page, "compare-b", report_id)
+    page.wait_for_selector("#compare-view table.compare")
+    text = page.inner_text("#compare-view")
+    fit = json.loads((state.root / "short" / "results" / fit_id / "fit.json").read_text())
+    for p in fit["parameters"]:
+        assert p["name"] in text
+    assert "pH window and its status" in text and window["status"] in text
+    assert page.inner_text("#compare-inputs-summary").startswith("inputs: the same")
+    page.locator("#compare-view").scroll_into_view_if_needed()
+    shot(page, "16-two-results-side-by-side")

@@ -37,7 +37,7 @@ body { font-family: system-ui, sans-serif; margin: 0 1.5em; color: #1a1a1a; }
 .state-failed { color: #b00020; } .state-done { color: #006b3c; } .state-cancelled { color: #8a5a00; }
 .job-text, .summary { white-space: pre-wrap; background: #f6f6f6; padding: .5em; }
 progress { width: 16em; }
-table.compare { border-collapse: collapse; margin: .6em 0; } table.compare caption { text-align: left; font-weight: 600; }
+table.compare { border-collapse: collapse; margin: .2em 0 .6em; }
 table.compare td, table.compare th { border: 1px solid #ccc; padding: .2em .5em; text-align: left; }
 tr.differs td { background: #fff3d6; } a.download { margin-right: .8em; }
 """

@@ -15,6 +15,9 @@ __all__ = ["layout", "register", "history_rows", "HISTORY_COLUMNS", "contrast_vi
 HISTORY_COLUMNS = (("started", "started (UTC)"), ("id", "id"), ("step", "step"), ("status", "status"),
                    ("window", "pH window"), ("window_status", "window status"), ("chi2", "reduced chi-square"),
                    ("elapsed", "wall time [s]"), ("command", "command"))
+#: (flex, minimum width [px]) of the history table's columns (the others: 1, 110 px).
+_WIDTHS = {"started": (2, 190), "id": (2, 230), "step": (1, 80), "status": (1, 100), "window": (2, 150),
+           "window_status": (1, 130), "command": (4, 260)}
 #: How often the table is read again while the tab is open [ms].
 POLL_MS = 4000
 
@@ -26,7 +29,7 @@ def layout() -> html.Div:
             html.Button("Refresh", id="history-refresh", n_clicks=0)]),
         html.Div(id="history-message", className="message"),
         dag.AgGrid(id="history-table", rowData=[], columnDefs=[
-            {"field": f, "headerName": h, "flex": 3 if f == "command" else (2 if f in ("id", "started") else 1)}
+            {"field": f, "headerName": h, "flex": _WIDTHS.get(f, (1, 0))[0], "minWidth": _WIDTHS.get(f, (1, 110))[1]}
             for f, h in HISTORY_COLUMNS],
             defaultColDef={"sortable": True, "resizable": True, "filter": True, "wrapText": True,
                            "autoHeight": True},
@@ -66,15 +69,15 @@ def history_rows(runs: list[dict]) -> list[dict]:
     return rows
 
 
-def _table(header: list[str], rows: list[list], caption: str, compare: bool = True) -> html.Table:
+def _table(header: list[str], rows: list[list], caption: str, compare: bool = True) -> html.Div:
     """A table of text cells; a row whose A and B differ is marked."""
     body = []
     for row in rows:
         cells = ["" if c is None else str(c) for c in row]
         differs = compare and len(cells) >= 3 and cells[1] != cells[2]
         body.append(html.Tr([html.Td(c) for c in cells], className="differs" if differs else None))
-    return html.Table([html.Caption(caption), html.Thead(html.Tr([html.Th(h) for h in header])), html.Tbody(body)],
-                      className="compare")
+    return html.Div([html.H4(caption), html.Table([html.Thead(html.Tr([html.Th(h) for h in header])),
+                                                   html.Tbody(body)], className="compare")])
 
 
 def contrast_view(data: dict) -> list:
