@@ -318,7 +318,7 @@ def run_work(job, campaign: Path, feedback) -> str:
     with _recorded(job, inputs, feedback) as rec:
         results = pipeline.run_all(inputs, rec.folder, renderer=renderer, starts=s["starts"], profiles=s["profiles"],
                                    n_steps=s["steps"], n_walkers=s["walkers"], max_steps=s["cap"], draws=s["draws"],
-                                   invented=invented, progress=feedback, cancel=job.cancel,
+                                   invented=invented, formats=s["formats"], progress=feedback, cancel=job.cancel,
                                    on_step=lambda name: feedback(name, 0, 0))
     text = f"run: fit reduced chi-square {results.fit.fit.reduced_chisqr:.3g}"
     if results.window is not None:
@@ -334,5 +334,5 @@ JOB_KINDS: dict[str, JobKind] = {
     "window": JobKind("window", "window", ("source", "draws"), window_work),
     "suggest": JobKind("next-run suggestion", "suggest", ("source", "suggest_draws"), suggest_work),
     "report": JobKind("report", "report", ("source", "formats"), report_work),
-    "run": JobKind("whole run", "run", ("starts", "profiles", *_SAMPLER, "draws"), run_work),
+    "run": JobKind("whole run", "run", ("starts", "profiles", *_SAMPLER, "draws", "formats"), run_work),
 }

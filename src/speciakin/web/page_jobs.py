@@ -105,7 +105,8 @@ def job_card(view: dict, links: list | None = None) -> html.Div:
         counts = f"{view['done']} of {view['total']}" if view["total"] else "started"
         parts += [html.Div([f"stage {view['stage']}: {counts}  ",
                             html.Progress(value=str(view["done"]), max=str(total)),
-                            f"  time left in this stage: {_duration(view['seconds_left'])}; "
+                            f"  time left in this stage: {'at most ' if view.get('at_most') else ''}"
+                            f"{_duration(view['seconds_left'])}; "
                             f"running for {_duration(view['elapsed'])}"]),
                   html.Button("Cancel", id={"type": "job-cancel", "id": view["id"]}, n_clicks=0)]
     else:
