@@ -38,6 +38,13 @@ def test_a_fit_job_runs_on_the_local_cluster_with_progress(root, board):
     assert "starts" in stages or "window" in stages, stages
     saved = json.loads((campaign / job.folder / "window.json").read_text())
     assert saved["status"] in job.message.lower()
+    # the worker made the folder through the pipeline's Recording and recorded it in the results index
+    from speciakin.pipeline import results_root
+    from speciakin.pipeline.contrast import live_runs
+
+    row = next(r for r in live_runs(results_root(campaign)) if r["folder"] == job.folder.rsplit("/", 1)[-1])
+    assert (row["step"], row["status"]) == ("fit", "complete")
+    assert row["summary"]["window_status"] == saved["status"]
 
 
 def test_a_job_on_the_cluster_can_be_cancelled(root, board):

@@ -128,8 +128,8 @@ def clean_settings(kind: str, given: dict[str, Any]) -> dict[str, Any]:
 def _command(job) -> str:
     """What the index records as the command: the page's job and its settings (no machine path)."""
     kind = JOB_KINDS[job.kind]
-    shown = [f"{k} {','.join(v) if isinstance(v, tuple) else v}" for k, v in job.settings.items()
-             if v not in (None, False, ())]
+    shown = [k if v is True else f"{k} {','.join(v) if isinstance(v, tuple) else v}"
+             for k, v in job.settings.items() if v not in (None, False, ())]
     return f"speciakin web: {kind.label}" + (f" ({'; '.join(shown)})" if shown else "")
 
 

@@ -16,8 +16,8 @@ HISTORY_COLUMNS = (("started", "started (UTC)"), ("id", "id"), ("step", "step"),
                    ("window", "pH window"), ("window_status", "window status"), ("chi2", "reduced chi-square"),
                    ("elapsed", "wall time [s]"), ("command", "command"))
 #: (flex, minimum width [px]) of the history table's columns (the others: 1, 110 px).
-_WIDTHS = {"started": (2, 190), "id": (2, 230), "step": (1, 80), "status": (1, 100), "window": (2, 150),
-           "window_status": (1, 130), "command": (4, 260)}
+_WIDTHS = {"started": (2, 170), "id": (2, 200), "step": (1, 70), "status": (1, 95), "window": (2, 130),
+           "window_status": (1, 100), "chi2": (1, 90), "elapsed": (1, 80), "command": (4, 240)}
 #: How often the table is read again while the tab is open [ms].
 POLL_MS = 4000
 
@@ -32,7 +32,7 @@ def layout() -> html.Div:
             {"field": f, "headerName": h, "flex": _WIDTHS.get(f, (1, 0))[0], "minWidth": _WIDTHS.get(f, (1, 110))[1]}
             for f, h in HISTORY_COLUMNS],
             defaultColDef={"sortable": True, "resizable": True, "filter": True, "wrapText": True,
-                           "autoHeight": True},
+                           "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True},
             dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
         html.H3("Files of a result"),
         dcc.Dropdown(id="files-choice", placeholder="choose a result", clearable=False,

@@ -152,7 +152,7 @@ def register(app, state) -> None:
     @app.callback(Output("job-message", "children"), Input("job-start", "n_clicks"),
                   State("campaign-choice", "value"), State("job-kind", "value"),
                   [State(f"job-{key}", "value") for key in FIELDS], prevent_initial_call=True)
-    def start(clicks, name, kind, values):
+    def start(clicks, name, kind, *values):
         if not clicks:
             return no_update
         if not name:
