@@ -15,9 +15,9 @@ __all__ = ["layout", "register", "history_rows", "HISTORY_COLUMNS", "contrast_vi
 HISTORY_COLUMNS = (("started", "started (UTC)"), ("id", "id"), ("step", "step"), ("status", "status"),
                    ("window", "pH window"), ("window_status", "window status"), ("chi2", "reduced chi-square"),
                    ("elapsed", "wall time [s]"), ("command", "command"))
-#: (flex, minimum width [px]) of the history table's columns (the others: 1, 110 px).
-_WIDTHS = {"started": (2, 170), "id": (2, 200), "step": (1, 70), "status": (1, 95), "window": (2, 130),
-           "window_status": (1, 100), "chi2": (1, 90), "elapsed": (1, 80), "command": (4, 240)}
+#: (flex, minimum width [px]) of the history table's columns; only the command wraps.
+_WIDTHS = {"started": (0, 180), "id": (0, 215), "step": (0, 80), "status": (0, 105), "window": (0, 140),
+           "window_status": (0, 110), "chi2": (0, 95), "elapsed": (0, 80), "command": (1, 220)}
 #: How often the table is read again while the tab is open [ms].
 POLL_MS = 4000
 
@@ -29,10 +29,11 @@ def layout() -> html.Div:
             html.Button("Refresh", id="history-refresh", n_clicks=0)]),
         html.Div(id="history-message", className="message"),
         dag.AgGrid(id="history-table", rowData=[], columnDefs=[
-            {"field": f, "headerName": h, "flex": _WIDTHS.get(f, (1, 0))[0], "minWidth": _WIDTHS.get(f, (1, 110))[1]}
+            {"field": f, "headerName": h, **({"flex": 1} if _WIDTHS[f][0] else {"width": _WIDTHS[f][1]}),
+             "minWidth": _WIDTHS[f][1], "wrapText": f == "command", "autoHeight": f == "command",
+             "filter": f in ("step", "status", "window_status")}
             for f, h in HISTORY_COLUMNS],
-            defaultColDef={"sortable": True, "resizable": True, "filter": True, "wrapText": True,
-                           "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True},
+            defaultColDef={"sortable": True, "resizable": True, "wrapHeaderText": True, "autoHeaderHeight": True},
             dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
         html.H3("Files of a result"),
         dcc.Dropdown(id="files-choice", placeholder="choose a result", clearable=False,
