@@ -260,3 +260,31 @@ def test_report_job_download_and_two_results_side_by_side(server, page, shot, tm
     assert page.inner_text("#compare-inputs-summary").startswith("inputs: the same")
     page.locator("#compare-view").scroll_into_view_if_needed()
     shot(page, "16-two-results-side-by-side")
+
+
+def test_a_short_posterior_until_converged_is_started_from_the_page(server, page, shot):
+    import json
+
+    url, state = server
+    fit_id = _complete_fit(state)
+    open_campaign(page, url, "short")
+    page.click("text=3 Jobs")
+    page.check("#job-kind input[value='posterior']")
+    page.wait_for_selector("#job-start:has-text('Start posterior')")
+    choose(page, "job-source", fit_id)
+    assert page.locator("#job-field-cap").is_hidden()  # fixed steps by default: no cap shown
+    page.check("#job-until_converged input[value='until']")
+    page.wait_for_selector("#job-field-cap", state="visible")
+    assert page.locator("#job-field-steps").is_hidden()
+    page.fill("#job-cap", "40")
+    page.click("#job-start")
+    page.wait_for_selector("#job-message:has-text('started job')")
+    job = state.board.jobs("short")[0]
+    assert job.kind == "posterior" and job.settings["cap"] == 40 and job.settings["steps"] is None
+    page.wait_for_selector(f"#job-{job.id}:has-text('done')", timeout=300_000)
+    shot(page, "17-posterior-done")
+    assert "posterior:" in page.inner_text(f"#job-{job.id}")
+    summary = json.loads((state.root / "short" / job.folder / "posterior.json").read_text())
+    assert summary["stop_reason"] == "cap"  # the stop rule checks from 400 steps on: a cap of 40 ends it
+    status = json.loads((state.root / "short" / job.folder / "status.json").read_text())
+    assert status["built_on"] == f"../{fit_id}"

@@ -138,9 +138,10 @@ def _sources(state, name: str | None) -> list[dict]:
 
 def register(app, state) -> None:
     @app.callback([Output(f"job-field-{key}", "style") for key in FIELDS] + [Output("job-start", "children")],
-                  Input("job-kind", "value"))
-    def fields(kind):
-        reads = JOB_KINDS[kind].reads if kind in JOB_KINDS else ()
+                  Input("job-kind", "value"), Input("job-until_converged", "value"))
+    def fields(kind, until):
+        reads = set(JOB_KINDS[kind].reads if kind in JOB_KINDS else ())
+        reads -= {"steps"} if until == "until" else {"cap"}  # the one of the two that applies
         shown = [{} if key in reads else {"display": "none"} for key in FIELDS]
         return shown + [f"Start {JOB_KINDS[kind].label if kind in JOB_KINDS else 'job'}"]
 
