@@ -277,10 +277,12 @@ def test_a_short_posterior_until_converged_is_started_from_the_page(server, page
     page.wait_for_selector("#job-field-cap", state="visible")
     assert page.locator("#job-field-steps").is_hidden()
     page.fill("#job-cap", "40")
+    page.fill("#job-walkers", "16")  # 2 x the 8 fitted parameters of the reduced demo: a short job
     page.click("#job-start")
     page.wait_for_selector("#job-message:has-text('started job')")
     job = state.board.jobs("short")[0]
     assert job.kind == "posterior" and job.settings["cap"] == 40 and job.settings["steps"] is None
+    assert job.settings["walkers"] == 16
     page.wait_for_selector(f"#job-{job.id}:has-text('done')", timeout=300_000)
     shot(page, "17-posterior-done")
     assert "posterior:" in page.inner_text(f"#job-{job.id}")
