@@ -11,8 +11,8 @@ from __future__ import annotations
 import math
 from typing import Any, Iterable, Mapping
 
-from speciakin.chemistry.modelfile_paths import KeyLines, format_path, sub_path
-from speciakin.chemistry.modelfile_units import BARE_NUMBER_UNITS
+from speciakin.chemistry.modelfile.paths import KeyLines, format_path, sub_path
+from speciakin.chemistry.modelfile.units import BARE_NUMBER_UNITS
 from speciakin.errors import Location, ProblemCollector
 from speciakin.units import DIMENSIONS, parse_quantity
 

@@ -2,7 +2,7 @@
 and the ``[fit]`` table of estimation options.
 
 Bare numbers use the defaults of
-:data:`speciakin.chemistry.modelfile_units.BARE_NUMBER_UNITS` (time min, volume
+:data:`speciakin.chemistry.modelfile.units.BARE_NUMBER_UNITS` (time min, volume
 mL, amount mmol, concentration mol/L, temperature C).  An initial or a dosed
 amount written as a concentration is multiplied by the run volume (or the
 dose volume); one written as a mass ("236 mg") is divided by the molecule's
@@ -19,11 +19,11 @@ from typing import Any
 
 from speciakin.chemistry.model import (PH_MODES, START_ADJUSTMENTS, Dose, PhControl, Run, TemperatureProfile,
                                       Withdrawal)
-from speciakin.chemistry.modelfile_keys import FILE_KEYS, RENAMED_KEYS
-from speciakin.chemistry.modelfile_paths import format_path, sub_path
-from speciakin.chemistry.modelfile_phlog import read_ph_log
-from speciakin.chemistry.modelfile_reader import TableReader
-from speciakin.chemistry.modelfile_units import is_mass, parse_equivalents
+from speciakin.chemistry.modelfile.keys import FILE_KEYS, RENAMED_KEYS
+from speciakin.chemistry.modelfile.paths import format_path, sub_path
+from speciakin.chemistry.modelfile.phlog import read_ph_log
+from speciakin.chemistry.modelfile.reader import TableReader
+from speciakin.chemistry.modelfile.units import is_mass, parse_equivalents
 from speciakin.units import parse_quantity
 
 __all__ = ["RunReader"]

@@ -1,13 +1,9 @@
-"""The reaction model file (TOML): read it into :class:`speciakin.chemistry.model.Model`.
+"""Reading a model file: TOML text -> :class:`speciakin.chemistry.model.Model`.
 
-The format is described for chemists in ``docs/model-file.md``; the commented
-skeleton ``templates/model_skeleton.toml`` shows every table.  Public API:
-
-``load_model(path)``       read a file (opened read-only) -> Model
-``parse_model(text)``      parse TOML text -> Model
-``validate_model(model)``  semantic checks -> list of Problem
-``model_summary(model)``   readable reaction scheme (string)
-``dump_model(model)``      Model -> TOML text; ``parse_model(dump_model(m)) == m``
+``load_model`` and ``parse_model`` (exported by the package, see
+:mod:`speciakin.chemistry.modelfile`) and the building of molecules, ions and
+steps; runs and the ``[fit]`` table are read by :mod:`.runs`, quantities by
+:mod:`.quantity`, semantic checks are :mod:`.validate`.
 
 Every problem of a file is gathered in one pass and raised together as a
 :class:`speciakin.errors.ModelFileError` whose message names the file, the key
@@ -32,15 +28,13 @@ from speciakin.chemistry.model import (
     Site,
     Step,
 )
-from speciakin.chemistry.modelfile_dump import dump_model  # noqa: F401  (public API)
-from speciakin.chemistry.modelfile_keys import FILE_KEYS
-from speciakin.chemistry.modelfile_paths import format_path, parent_path, sub_path
-from speciakin.chemistry.modelfile_quantity import read_quantity, share_quantities
-from speciakin.chemistry.modelfile_runs import RunReader
-from speciakin.chemistry.modelfile_reader import TableReader
-from speciakin.chemistry.modelfile_summary import model_summary  # noqa: F401  (public API)
-from speciakin.chemistry.modelfile_units import parse_rate_constant, rate_unit_text
-from speciakin.chemistry.modelfile_validate import (
+from speciakin.chemistry.modelfile.keys import FILE_KEYS
+from speciakin.chemistry.modelfile.paths import format_path, parent_path, sub_path
+from speciakin.chemistry.modelfile.quantity import read_quantity, share_quantities
+from speciakin.chemistry.modelfile.runs import RunReader
+from speciakin.chemistry.modelfile.reader import TableReader
+from speciakin.chemistry.modelfile.units import parse_rate_constant, rate_unit_text
+from speciakin.chemistry.modelfile.validate import (
     ACTIVITY_MODELS,
     MODEL_ACTIVITY_MODELS,
     hydrolysis_step_name,
@@ -48,14 +42,7 @@ from speciakin.chemistry.modelfile_validate import (
 )
 from speciakin.errors import Location, ModelFileError, Problem
 
-__all__ = [
-    "load_model",
-    "parse_model",
-    "validate_model",
-    "model_summary",
-    "dump_model",
-    "FILE_KEYS",
-]
+__all__ = ["load_model", "parse_model"]
 
 
 _NAN = float("nan")
