@@ -236,10 +236,9 @@ class _Builder:
     def _molecule(self, name: str, value: Any) -> Molecule | None:
         r = self.reader
         path = format_path("molecule", name)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["molecule"])
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["molecule"])
         label = r.string(table, "label", path, default="") or ""
         role = r.string(table, "role", path, default="") or ""
         molar_mass = None
@@ -270,10 +269,9 @@ class _Builder:
 
     def _site(self, molecule: str, value: Any, path: str) -> Site | None:
         r = self.reader
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["site"], required=("name", "kind", "pka"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["site"], required=("name", "kind", "pka"))
         name = r.string(table, "name", path)
         kind = r.string(table, "kind", path)
         if name is None or kind is None or "pka" not in table:
@@ -294,10 +292,9 @@ class _Builder:
 
     def _interaction(self, molecule: str, value: Any, path: str) -> Interaction | None:
         r = self.reader
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["interaction"], required=("sites", "w"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["interaction"], required=("sites", "w"))
         sites = table.get("sites")
         if not (isinstance(sites, list) and len(sites) == 2 and all(isinstance(s, str) for s in sites)):
             if "sites" in table:
@@ -318,10 +315,10 @@ class _Builder:
         r = self.reader
         if isinstance(value, str):
             return Reactant(value)
-        table = r.typed(value, path, dict, 'a species name or a table {species = "...", requires = {...}}')
+        table = r.keyed(value, path, FILE_KEYS["reactant"], required=("species",),
+                        what='a species name or a table {species = "...", requires = {...}}')
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["reactant"], required=("species",))
         species = r.string(table, "species", path)
         requires = []
         for site, state in (r.table(table, "requires", path) or {}).items():
@@ -388,10 +385,9 @@ class _Builder:
     def _step(self, name: str, value: Any) -> Step | None:
         r = self.reader
         path = format_path("step", name)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["step"], required=("reactants", "products"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["step"], required=("reactants", "products"))
         label = r.string(table, "label", path, default="") or ""
         reactants = []
         if "reactants" in table:
@@ -413,10 +409,9 @@ class _Builder:
     def _hydrolysis(self, molecule: str, value: Any) -> list[Step]:
         r = self.reader
         path = format_path("hydrolysis", molecule)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["hydrolysis"], required=("products",))
         if table is None:
             return []
-        r.check_keys(table, path, FILE_KEYS["hydrolysis"], required=("products",))
         if "water" not in table and "hydroxide" not in table:
             r.error(path, "no hydrolysis path given", expected="a 'water' and/or a 'hydroxide' table",
                     code="missing")
