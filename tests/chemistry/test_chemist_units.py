@@ -8,7 +8,7 @@ import math
 import pytest
 
 from speciakin.chemistry.modelfile import parse_model
-from speciakin.chemistry.modelfile_units import parse_equivalents, parse_rate_constant
+from speciakin.chemistry.modelfile.units import parse_equivalents, parse_rate_constant
 from speciakin.data.example import example_source
 from speciakin.errors import InputError
 

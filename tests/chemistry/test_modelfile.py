@@ -22,7 +22,7 @@ from speciakin.chemistry.modelfile import (
     parse_model,
     validate_model,
 )
-from speciakin.chemistry.modelfile_units import parse_rate_constant
+from speciakin.chemistry.modelfile.units import parse_rate_constant
 from speciakin.errors import ModelFileError
 
 ROOT = Path(__file__).resolve().parents[2]

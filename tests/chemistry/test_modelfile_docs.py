@@ -9,7 +9,7 @@ from pathlib import Path
 import pytest
 
 from speciakin.chemistry.modelfile import model_summary, parse_model, validate_model
-from speciakin.chemistry.modelfile_units import parse_rate_constant
+from speciakin.chemistry.modelfile.units import parse_rate_constant
 
 DOC = Path(__file__).resolve().parents[2] / "docs" / "model-file.md"
 

@@ -7,7 +7,7 @@ import math
 import pytest
 
 from speciakin.chemistry.modelfile import load_model
-from speciakin.chemistry.modelfile_overrides import (apply_overrides_text, load_model_with_overrides,
+from speciakin.chemistry.modelfile.overrides import (apply_overrides_text, load_model_with_overrides,
                                                      parse_overrides, write_overrides)
 from speciakin.data.example import example_source
 from speciakin.errors import InputError

@@ -1,4 +1,4 @@
-"""Model-file plausibility (speciakin.chemistry.plausibility), through the model validation."""
+"""Model-file plausibility (speciakin.chemistry.modelfile.plausibility), through the model validation."""
 
 from __future__ import annotations
 

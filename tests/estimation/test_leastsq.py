@@ -145,6 +145,30 @@ def test_report_round_trip_groups_and_progress():
     np.testing.assert_array_equal(back.covariance, fit.covariance)
 
 
+def test_non_finite_numbers_are_null_in_json():
+    """to_dict goes through the one JSON codec: NaN and infinities are null (strict JSON, no strings);
+    from_dict reads null back as NaN where a number is expected and as None where None is allowed."""
+    import dataclasses
+
+    y, sigma = make_data(6)
+    fit = fit_least_squares(lambda b: (y - first_order(b)) / sigma, SPECS, starts=2, seed=3)
+    correlation = fit.correlation.copy()
+    correlation[0, 1] = correlation[1, 0] = math.nan
+    first = dataclasses.replace(fit.parameters[0], standard_error=math.nan)
+    odd = dataclasses.replace(fit, aic=-math.inf, correlation=correlation, parameters=[first, *fit.parameters[1:]])
+    text = json.dumps(odd.to_dict(), allow_nan=False)
+    assert '"nan"' not in text and '"-inf"' not in text
+    data = json.loads(text)
+    assert data["aic"] is None and data["correlation"][0][1] is None
+    back = FitResult.from_dict(data)
+    assert math.isnan(back.aic) and math.isnan(back.correlation[0, 1]) and back.correlation[0, 0] == 1.0
+    assert back.parameters[0].standard_error is None  # a standard error may be None: null stays None
+    # files written before the codec spelled non-finite numbers as strings: still read
+    data["aic"], data["correlation"][0][1] = "-inf", "nan"
+    earlier = FitResult.from_dict(data)
+    assert earlier.aic == -math.inf and math.isnan(earlier.correlation[0, 1])
+
+
 def test_singular_jacobian_detected():
     # Two parameters entering only as a product: J has rank 1 (analytic).
     jac = np.column_stack([T, 2 * T])

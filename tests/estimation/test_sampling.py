@@ -153,6 +153,50 @@ def test_load_rejects_other_files(tmp_path):
         PosteriorResult.load(bad)
 
 
+def test_one_store_result_and_checkpoint(tmp_path):
+    """save() beside the sampler's checkpoint of the same chain keeps it resumable; a result saved
+    elsewhere loads but cannot be resumed; an unfinished checkpoint does not load as a result."""
+    path = tmp_path / "posterior.h5"
+    kwargs = dict(n_walkers=8, seed=5, progress=False, checkpoint=path)
+    args = (conjugate_log_likelihood, ["mu"], [Prior("normal", {"mean": _MU0, "sd": _TAU0})], [_Y.mean()], [0.4])
+    result = sample_posterior(*args, n_steps=30, **kwargs)
+    with pytest.raises(InputError, match="unfinished run"):
+        PosteriorResult.load(path)
+    result.save(path)
+    assert PosteriorResult.load(path).report() == result.report()
+    # the file still resumes: 60 steps from it equal 60 steps without a stop
+    longer = sample_posterior(*args, n_steps=60, resume=True, **kwargs)
+    straight = sample_posterior(*args, n_steps=60, **dict(kwargs, checkpoint=tmp_path / "straight.h5"))
+    assert np.array_equal(longer.chain, straight.chain)
+    alone = tmp_path / "alone.h5"
+    result.save(alone)
+    assert np.array_equal(PosteriorResult.load(alone).chain, result.chain)
+    with pytest.raises(InputError, match="cannot continue"):
+        sample_posterior(*args, n_steps=60, resume=True, **dict(kwargs, checkpoint=alone))
+
+
+def test_a_result_of_the_earlier_layout_loads(tmp_path):
+    """Files of the earlier result-only layout (tag speciakin-posterior-1) are still read."""
+    import dataclasses
+
+    import h5py
+
+    result = _run_conjugate(200, seed=4)
+    path = tmp_path / "earlier.h5"
+    meta = {f.name: getattr(result, f.name) for f in dataclasses.fields(result)
+            if f.name not in ("chain", "log_prob", "acceptance_fraction", "samples")}
+    meta["summary"] = [dataclasses.asdict(s) for s in result.summary]
+    meta["diagnostics"] = dataclasses.asdict(result.diagnostics)
+    with h5py.File(path, "w") as fh:  # the earlier layout, written here by hand
+        fh.attrs["format"] = "speciakin-posterior-1"
+        fh.attrs["metadata"] = json.dumps(meta)
+        fh.create_dataset("chain", data=result.chain)
+        fh.create_dataset("log_prob", data=result.log_prob)
+        fh.create_dataset("acceptance_fraction", data=result.acceptance_fraction)
+    back = PosteriorResult.load(path)
+    assert np.array_equal(back.samples, result.samples) and back.report() == result.report()
+
+
 def test_progress_callable_receives_steps_and_time_left():
     seen = []
     sample_posterior(conjugate_log_likelihood, ["mu"], [Prior("normal", {"mean": 0, "sd": 2})], [2.0], [0.4],

@@ -51,7 +51,7 @@ def test_hydroxide_rate_follows_the_medium_pkw():
 
 def test_shared_rate_constant_uses_the_target_entry():
     model = _model(shared=True)
-    from speciakin.chemistry.modelfile_quantity import share_quantities
+    from speciakin.chemistry.modelfile.quantity import share_quantities
     problems = []
     model = share_quantities(model, lambda *a: problems.append(a))
     assert not problems

@@ -75,6 +75,18 @@ class StageProgress:
             bar.close()
 
 
+def add_sampler_options(parser) -> None:
+    """The posterior sampler's options, one wording for ``sample``, ``run`` and ``demo``:
+    ``--steps``, ``--walkers``, ``--seed``, ``--jobs``, ``--scheduler``."""
+    parser.add_argument("--steps", type=int, default=None,
+                        help="fixed posterior steps per walker (default: until converged, at most 5000)")
+    parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
+    parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
+    parser.add_argument("--jobs", type=int, default=1,
+                        help="local worker processes for the posterior's likelihood")
+    parser.add_argument("--scheduler", metavar="ADDRESS", help="address of an existing Dask distributed scheduler")
+
+
 # ------------------------------------------------------------------ result folders (docs/workflow.md)
 def add_source_argument(parser, what: str = "fit") -> None:
     """``--from RESULT``: the earlier result folder a step builds on."""

@@ -1,5 +1,5 @@
 """``--fix``, ``--free``, ``--start``, ``--bounds`` and ``--save-overrides`` of ``fit`` and ``run``
-(:mod:`speciakin.chemistry.modelfile_overrides` on the command line)."""
+(:mod:`speciakin.chemistry.modelfile.overrides` on the command line)."""
 
 from __future__ import annotations
 
@@ -25,7 +25,7 @@ def add_override_options(parser) -> None:
 
 def overrides_of(args) -> list:
     """The overrides the options ask for (empty when none)."""
-    from speciakin.chemistry.modelfile_overrides import parse_overrides
+    from speciakin.chemistry.modelfile.overrides import parse_overrides
 
     return parse_overrides(args.fix, args.free, args.start, args.bounds)
 
@@ -38,7 +38,7 @@ def apply_overrides(inputs, args, out=None):
     with the overrides goes to ``out/model-with-overrides.toml`` and the
     returned inputs point at it.
     """
-    from speciakin.chemistry.modelfile_overrides import load_model_with_overrides, write_overrides
+    from speciakin.chemistry.modelfile.overrides import load_model_with_overrides, write_overrides
 
     overrides = overrides_of(args)
     if not overrides:
@@ -60,6 +60,6 @@ def model_hook(inputs, overrides):
     """``model -> model`` that applies ``overrides`` (for the quick mode), or None."""
     if not overrides:
         return None
-    from speciakin.chemistry.modelfile_overrides import load_model_with_overrides
+    from speciakin.chemistry.modelfile.overrides import load_model_with_overrides
 
     return lambda model: load_model_with_overrides(inputs.model, overrides)

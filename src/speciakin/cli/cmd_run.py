@@ -26,14 +26,11 @@ class _Reported(Exception):
 
 
 def add_pipeline_options(parser) -> None:
-    parser.add_argument("--steps", type=int, default=None,
-                        help="fixed posterior steps per walker (default: until converged, at most 5000)")
-    parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
+    from speciakin.cli._common import add_sampler_options
+
+    add_sampler_options(parser)
     parser.add_argument("--starts", type=int, default=None, help="least-squares starting points")
     parser.add_argument("--draws", type=int, default=None, help="parameter draws for the window")
-    parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
-    parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the posterior")
-    parser.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask distributed scheduler")
     parser.add_argument("--resume", action="store_true",
                         help="continue an interrupted run (the newest, or the folder of --out) in place")
     parser.add_argument("--no-profiles", action="store_true", help="skip profile-likelihood intervals")

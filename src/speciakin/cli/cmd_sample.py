@@ -19,17 +19,12 @@ newest interrupted folder (or --from / --out) in place."""
 
 
 def add_arguments(parser) -> None:
-    from speciakin.cli._common import add_campaign_arguments, add_source_argument
+    from speciakin.cli._common import add_campaign_arguments, add_sampler_options, add_source_argument
 
     parser.epilog = EPILOG
     add_campaign_arguments(parser)
     add_source_argument(parser)
-    parser.add_argument("--steps", type=int, default=None,
-                        help="fixed steps per walker (default: until converged, at most 5000)")
-    parser.add_argument("--walkers", type=int, default=None, help="walkers (default max(32, 4 x parameters))")
-    parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
-    parser.add_argument("--jobs", type=int, default=1, help="local worker processes for the likelihood")
-    parser.add_argument("--scheduler", metavar="ADDRESS", help="address of an existing Dask distributed scheduler")
+    add_sampler_options(parser)
     parser.add_argument("--resume", action="store_true",
                         help="continue the newest interrupted sample (or the folder of --from / --out) in place")
     parser.add_argument("--proposal", metavar="NAME", default=None,

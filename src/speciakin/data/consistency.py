@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 # shared limits: volumes (1 uL to 100 m3), temperatures (-100 C to 300 C), concentrations (30 mol/L)
-from speciakin.chemistry.plausibility import CONCENTRATION_LIMIT, TEMPERATURE_LIMITS, VOLUME_RANGE
+from speciakin.chemistry.modelfile.plausibility import CONCENTRATION_LIMIT, TEMPERATURE_LIMITS, VOLUME_RANGE
 from speciakin.data.campaign import Campaign, CampaignRun
 from speciakin.data.sheets import INITIAL_PREFIX, normalise_name
 from speciakin.errors import ProblemCollector

@@ -14,9 +14,17 @@ file holds the convergence checks made so far
 Layout (format tag ``speciakin.posterior/1``)::
 
     attrs: format, settings (JSON), stop_checks (JSON)
-    chain (n_stored, n_walkers, n_params), log_prob (n_stored, n_walkers), accepted (n_walkers,)
-    random_state/  keys (624,) + attrs name, pos, has_gauss, cached_gaussian
+    chain (n_stored, n_walkers, n_params), log_prob (n_stored, n_walkers)
+    accepted (n_walkers,)  random_state/ keys (624,) + attrs name, pos, has_gauss, cached_gaussian
+                   (the sampler's state: present in every file the sampler wrote, so it can be resumed)
     result/        (finished runs only) acceptance_fraction (n_walkers,) + attrs metadata (JSON)
+
+:meth:`speciakin.estimation.posterior_result.PosteriorResult.save` adds the
+``result`` group to the sampler's file of the same chain; a result saved
+where there is no such file is written without the sampler's state (it loads,
+but cannot be resumed).  Files of the earlier result-only layout (format tag
+``speciakin-posterior-1``: chain, log_prob, acceptance_fraction and the
+metadata as attributes) are read as such a finished result.
 
 Each write goes to a temporary file in the same folder, is flushed and
 fsync'ed, and then renamed over the previous checkpoint (``os.replace`` is
@@ -45,6 +53,8 @@ __all__ = ["Checkpoint", "write_checkpoint", "read_checkpoint", "CHECKPOINT_FORM
 CHECKPOINT_FORMAT = format_tag("posterior", 1)
 #: Tags of earlier files with the same layout (read, so that an interrupted run still resumes).
 EARLIER_FORMATS = ("speciakin-ensemble-checkpoint-1",)
+#: Tag of the earlier result-only layout (read as a finished result without the sampler's state).
+EARLIER_RESULT_FORMAT = "speciakin-posterior-1"
 
 
 @dataclass
@@ -58,9 +68,11 @@ class Checkpoint:
     log_prob
         (iteration, n_walkers) log-posterior of the stored positions.
     accepted
-        (n_walkers,) accepted proposals so far (all steps, not only stored).
+        (n_walkers,) accepted proposals so far (all steps, not only stored);
+        None in a file holding a result without the sampler's state.
     random_state
-        numpy RandomState state tuple after the last stored step.
+        numpy RandomState state tuple after the last stored step; None in a
+        file holding a result without the sampler's state (not resumable).
     settings
         JSON-ready run settings (parameter names, n_walkers, seed, thin_by,
         ...); used to refuse resuming a different run.
@@ -75,8 +87,8 @@ class Checkpoint:
 
     chain: np.ndarray
     log_prob: np.ndarray
-    accepted: np.ndarray
-    random_state: tuple
+    accepted: np.ndarray | None
+    random_state: tuple | None
     settings: dict = field(default_factory=dict)
     result: dict | None = None
     stop_checks: list = field(default_factory=list)
@@ -85,24 +97,30 @@ class Checkpoint:
     def iteration(self) -> int:
         return int(self.chain.shape[0])
 
+    @property
+    def resumable(self) -> bool:
+        """True when the file holds the sampler's state (a run can continue from it)."""
+        return self.random_state is not None and self.accepted is not None
+
 
 def write_checkpoint(path: str | os.PathLike, checkpoint: Checkpoint) -> None:
     """Write ``checkpoint`` to ``path`` atomically (temp file, fsync, rename)."""
     with atomic_path(path) as tmp:
-        name, keys, pos, has_gauss, cached = checkpoint.random_state
         with h5py.File(tmp, "w") as fh:
             fh.attrs["format"] = CHECKPOINT_FORMAT
             fh.attrs["settings"] = json.dumps(checkpoint.settings)
             fh.attrs["stop_checks"] = json.dumps(checkpoint.stop_checks)
             fh.create_dataset("chain", data=np.asarray(checkpoint.chain, dtype=float))
             fh.create_dataset("log_prob", data=np.asarray(checkpoint.log_prob, dtype=float))
-            fh.create_dataset("accepted", data=np.asarray(checkpoint.accepted, dtype=float))
-            rs = fh.create_group("random_state")
-            rs.attrs["name"] = str(name)
-            rs.create_dataset("keys", data=np.asarray(keys, dtype=np.uint32))
-            rs.attrs["pos"] = int(pos)
-            rs.attrs["has_gauss"] = int(has_gauss)
-            rs.attrs["cached_gaussian"] = float(cached)
+            if checkpoint.resumable:
+                name, keys, pos, has_gauss, cached = checkpoint.random_state
+                fh.create_dataset("accepted", data=np.asarray(checkpoint.accepted, dtype=float))
+                rs = fh.create_group("random_state")
+                rs.attrs["name"] = str(name)
+                rs.create_dataset("keys", data=np.asarray(keys, dtype=np.uint32))
+                rs.attrs["pos"] = int(pos)
+                rs.attrs["has_gauss"] = int(has_gauss)
+                rs.attrs["cached_gaussian"] = float(cached)
             if checkpoint.result is not None:
                 group = fh.create_group("result")
                 group.attrs["metadata"] = json.dumps(checkpoint.result["metadata"])
@@ -125,18 +143,22 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
         raise InputError("checkpoint file not found", where, None, "an existing checkpoint to resume")
     try:
         with h5py.File(path, "r") as fh:
-            if fh.attrs.get("format") not in (CHECKPOINT_FORMAT, *EARLIER_FORMATS):
-                raise InputError("not a sampler checkpoint", where, fh.attrs.get("format"),
-                                 f"format {CHECKPOINT_FORMAT}")
+            tag = fh.attrs.get("format")
+            if tag == EARLIER_RESULT_FORMAT:
+                return _earlier_result(fh)
+            if tag not in (CHECKPOINT_FORMAT, *EARLIER_FORMATS):
+                raise InputError("not a sampler checkpoint", where, tag, f"format {CHECKPOINT_FORMAT}")
             settings = json.loads(fh.attrs["settings"])
             stop_checks = json.loads(fh.attrs["stop_checks"]) if "stop_checks" in fh.attrs else []
             chain = fh["chain"][...]
             log_prob = fh["log_prob"][...]
-            accepted = fh["accepted"][...]
-            rs = fh["random_state"]
-            random_state = (str(rs.attrs["name"]), rs["keys"][...].astype(np.uint32),
-                            int(rs.attrs["pos"]), int(rs.attrs["has_gauss"]),
-                            float(rs.attrs["cached_gaussian"]))
+            accepted = random_state = None
+            if "random_state" in fh:
+                accepted = fh["accepted"][...]
+                rs = fh["random_state"]
+                random_state = (str(rs.attrs["name"]), rs["keys"][...].astype(np.uint32),
+                                int(rs.attrs["pos"]), int(rs.attrs["has_gauss"]),
+                                float(rs.attrs["cached_gaussian"]))
             result = None
             if "result" in fh:
                 result = {"metadata": json.loads(fh["result"].attrs["metadata"]),
@@ -148,3 +170,12 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
         raise InputError(f"checkpoint file is incomplete: missing {exc}", where, None,
                          "an HDF5 checkpoint written by speciakin") from None
     return Checkpoint(chain, log_prob, accepted, random_state, settings, result=result, stop_checks=stop_checks)
+
+
+def _earlier_result(fh) -> Checkpoint:
+    """A file of the earlier result-only layout as a finished result without the sampler's state."""
+    meta = json.loads(fh.attrs["metadata"])
+    settings = {key: meta.get(key) for key in ("parameter_names", "n_walkers", "thin_by", "seed", "proposal")}
+    return Checkpoint(fh["chain"][...], fh["log_prob"][...], None, None, settings,
+                      result={"metadata": meta, "acceptance_fraction": fh["acceptance_fraction"][...]},
+                      stop_checks=list(meta.get("stop_checks") or []))

@@ -2,12 +2,12 @@
 
 :class:`PosteriorResult` is what :func:`speciakin.estimation.sampling.sample_posterior`
 returns; it reports itself as text, as a JSON-ready dict (``posterior.json``) and
-saves to / loads from HDF5.
+saves to / loads from the one posterior store, the sampler's HDF5 checkpoint
+file (:mod:`speciakin.estimation.checkpoint` describes the layout).
 """
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from dataclasses import asdict, dataclass, field
@@ -15,8 +15,9 @@ from pathlib import Path
 
 import numpy as np
 
-from speciakin._io import atomic_path
+from speciakin._json import json_ready
 from speciakin.errors import InputError, Location
+from speciakin.estimation.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from speciakin.estimation.diagnostics import ConvergenceDiagnostics
 from speciakin.estimation.proposals import PROPOSALS
 
@@ -59,16 +60,6 @@ def summarise(names, samples: np.ndarray, diagnostics: ConvergenceDiagnostics) -
                                     float(q[1]), float(q[0]), float(q[2]),
                                     float(diagnostics.mcse_mean[j]), float(diagnostics.r_hat[j])))
     return out
-
-
-def _json_ready(value):
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, dict):
-        return {k: _json_ready(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_json_ready(v) for v in value]
-    return value
 
 
 @dataclass
@@ -214,40 +205,69 @@ class PosteriorResult:
         data["acceptance_fraction"] = self.acceptance_fraction.tolist()
         data["n_samples"] = int(self.samples.shape[0])
         data["converged"] = self.converged
-        return _json_ready(data)
+        return json_ready(data)
 
     def save(self, path: str | os.PathLike) -> None:
-        """Write the result to an HDF5 file atomically (arrays + JSON metadata)."""
-        import h5py
+        """Store the result in the posterior file ``path`` (HDF5, written atomically).
 
-        with atomic_path(path) as tmp:
-            with h5py.File(tmp, "w") as fh:
-                fh.attrs["format"] = "speciakin-posterior-1"
-                fh.attrs["metadata"] = json.dumps(self._metadata())
-                fh.create_dataset("chain", data=self.chain)
-                fh.create_dataset("log_prob", data=self.log_prob)
-                fh.create_dataset("acceptance_fraction", data=self.acceptance_fraction)
+        When ``path`` holds the sampler's checkpoint of this very chain, the
+        result is added to it and the file still resumes; otherwise the file is
+        written anew with the chain and the result but without the sampler's
+        state (it loads, but a run cannot continue from it).
+        """
+        stored = None
+        if Path(path).is_file():
+            try:
+                stored = read_checkpoint(path)
+            except InputError:
+                stored = None  # not a posterior file: written anew
+        if stored is None or not _same_chain(stored, self):
+            settings = {"parameter_names": list(self.parameter_names), "n_walkers": int(self.n_walkers),
+                        "thin_by": int(self.thin_by), "seed": self.seed, "proposal": self.proposal}
+            stored = Checkpoint(self.chain, self.log_prob, None, None, settings, stop_checks=self.stop_checks)
+        # the metadata keeps NaN (Python's JSON reads it back); only the .json result files are strict
+        stored.result = {"metadata": self._metadata(), "acceptance_fraction": self.acceptance_fraction}
+        write_checkpoint(path, stored)
 
     @classmethod
     def load(cls, path: str | os.PathLike) -> "PosteriorResult":
-        """Read a result written by :meth:`save`."""
-        import h5py
+        """Read the result of the posterior file ``path`` (see :meth:`save`).
 
-        path = Path(path)
-        where = Location(file=str(path))
+        Raises
+        ------
+        InputError
+            The file is missing, unreadable, not a posterior file, or holds
+            an unfinished run (a checkpoint without a result).
+        """
+        result = cls.from_store(read_checkpoint(path), path)
+        if result is None:
+            raise InputError("the posterior file holds an unfinished run (a checkpoint without a result)",
+                             Location(file=str(path)), None,
+                             "a finished run: continue it with resume, then load it")
+        return result
+
+    @classmethod
+    def from_store(cls, stored: Checkpoint, path: str | os.PathLike) -> "PosteriorResult | None":
+        """The result held by a posterior file already read (``path`` names it in errors), or None
+        when the run is not finished."""
+        if stored.result is None:
+            return None
         try:
-            with h5py.File(path, "r") as fh:
-                if fh.attrs.get("format") != "speciakin-posterior-1":
-                    raise InputError("not a posterior result file", where, fh.attrs.get("format"),
-                                     "a file written by PosteriorResult.save")
-                meta = json.loads(fh.attrs["metadata"])
-                chain = fh["chain"][...]
-                log_prob = fh["log_prob"][...]
-                acceptance = fh["acceptance_fraction"][...]
-        except (OSError, KeyError) as exc:
-            raise InputError(f"posterior result cannot be read: {exc}", where, None,
-                             "a file written by PosteriorResult.save") from None
-        samples = chain[meta["burn_in"]::meta["thin"]].reshape(-1, chain.shape[2])
-        return cls(chain=chain, log_prob=log_prob, acceptance_fraction=acceptance, samples=samples,
-                   summary=[ParameterSummary(**s) for s in meta.pop("summary")],
-                   diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
+            meta = dict(stored.result["metadata"])
+            chain = stored.chain
+            samples = chain[meta["burn_in"]::meta["thin"]].reshape(-1, chain.shape[2])
+            return cls(chain=chain, log_prob=stored.log_prob,
+                       acceptance_fraction=stored.result["acceptance_fraction"], samples=samples,
+                       summary=[ParameterSummary(**s) for s in meta.pop("summary")],
+                       diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
+        except (KeyError, TypeError, ValueError, IndexError) as exc:
+            raise InputError(f"the posterior file is incomplete or malformed ({type(exc).__name__}: {exc})",
+                             Location(file=str(path)), None,
+                             "a posterior file as written by the sampler (posterior.h5 of the sample command)"
+                             ) from None
+
+
+def _same_chain(stored: Checkpoint, result: PosteriorResult) -> bool:
+    """True when the stored chain and log-posterior are those of ``result``."""
+    return (stored.chain.shape == result.chain.shape and np.array_equal(stored.chain, result.chain)
+            and np.array_equal(stored.log_prob, result.log_prob))

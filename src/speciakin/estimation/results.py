@@ -1,58 +1,56 @@
 """Result dataclasses of the least-squares layer (fit, start table, profile, comparison).
 
 Every field always exists (None when it does not apply).  ``to_dict()``
-returns JSON-ready data (non-finite numbers become the strings ``"nan"``,
-``"inf"``, ``"-inf"``) and ``from_dict()`` restores the object.
+returns JSON-ready data through the project's one JSON codec
+(:mod:`speciakin._json`: NaN and infinities become ``null``, numpy becomes
+Python) and ``from_dict()`` restores the object: a ``null`` where the field
+may be None stays None, any other ``null`` (a number, or an entry of a list,
+array or table) reads back as NaN.  The strings ``"nan"``, ``"inf"`` and
+``"-inf"`` of files written before the codec are still read as numbers.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, fields, replace
+from dataclasses import Field, dataclass, field, fields, replace
 from typing import Any
 
 import numpy as np
 
+from speciakin._json import json_ready
 from speciakin.estimation.parameters import ParameterSpec
 
 __all__ = ["ParameterEstimate", "StartRecord", "FitResult", "Profile", "ComparisonResult"]
 
 
-def _enc(value: Any) -> Any:
-    """Make a value JSON-ready (arrays to lists, non-finite floats to strings)."""
-    if isinstance(value, np.ndarray):
-        return [_enc(v) for v in value.tolist()]
-    if isinstance(value, (list, tuple)):
-        return [_enc(v) for v in value]
-    if isinstance(value, dict):
-        return {str(k): _enc(v) for k, v in value.items()}
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        v = float(value)
-        if math.isnan(v):
-            return "nan"
-        if math.isinf(v):
-            return "inf" if v > 0 else "-inf"
-        return v
-    return value
-
-
-def _dec(value: Any) -> Any:
+def _numbers(value: Any) -> Any:
+    """Inverse of the codec inside a field: null -> NaN in nested lists and tables;
+    ``"nan"``, ``"inf"``, ``"-inf"`` (files written before the codec) -> float."""
+    if value is None:
+        return math.nan
     if isinstance(value, str) and value in ("nan", "inf", "-inf"):
         return float(value)
     if isinstance(value, list):
-        return [_dec(v) for v in value]
+        return [_numbers(v) for v in value]
     if isinstance(value, dict):
-        return {k: _dec(v) for k, v in value.items()}
+        return {k: _numbers(v) for k, v in value.items()}
     return value
 
 
+def _decode(spec: Field, value: Any) -> Any:
+    """A value of field ``spec`` read back from its ``to_dict`` form: null stays None where
+    the field may be None, otherwise it is NaN (:func:`_numbers`)."""
+    return None if value is None and "None" in str(spec.type) else _numbers(value)
+
+
+def _decoded(record_type: type, data: dict[str, Any]) -> dict[str, Any]:
+    """Every field of ``record_type`` read back from its ``to_dict`` form (:func:`_decode`)."""
+    return {f.name: _decode(f, data[f.name]) for f in fields(record_type)}
+
+
 def _field_dict(record: Any) -> dict[str, Any]:
-    """Every dataclass field of ``record``, JSON-ready (:func:`_enc`)."""
-    return {f.name: _enc(getattr(record, f.name)) for f in fields(record)}
+    """Every dataclass field of ``record``, JSON-ready (the codec's :func:`json_ready`)."""
+    return {f.name: json_ready(getattr(record, f.name)) for f in fields(record)}
 
 
 def _with_warnings(lines: list[str], warnings: list[str]) -> str:
@@ -97,7 +95,7 @@ class ParameterEstimate:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "ParameterEstimate":
-        data = _dec(dict(data))
+        data = _decoded(cls, data)
         if data.get("covariance_interval") is not None:
             data["covariance_interval"] = tuple(data["covariance_interval"])
         return cls(**data)
@@ -125,7 +123,7 @@ class StartRecord:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "StartRecord":
-        return cls(**_dec(dict(data)))
+        return cls(**_decoded(cls, data))
 
 
 @dataclass
@@ -280,7 +278,7 @@ class FitResult:
             if f.name in ("parameters", "starts", "parameter_specs"):
                 out[f.name] = [item.to_dict() for item in v]
             else:
-                out[f.name] = _enc(v)
+                out[f.name] = json_ready(v)
         return out
 
     @classmethod
@@ -295,9 +293,9 @@ class FitResult:
             elif f.name == "parameter_specs":
                 kw[f.name] = [ParameterSpec.from_dict(d) for d in v]
             elif f.name in ("covariance", "correlation", "residuals"):
-                kw[f.name] = np.array(_dec(v), dtype=float)
+                kw[f.name] = np.array(_decode(f, v), dtype=float)
             else:
-                kw[f.name] = _dec(v)
+                kw[f.name] = _decode(f, v)
         return cls(**kw)
 
 
@@ -359,7 +357,7 @@ class Profile:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "Profile":
-        kw = {f.name: _dec(data[f.name]) for f in fields(cls)}
+        kw = _decoded(cls, data)
         for key in ("values", "chisqr", "delta_chisqr"):
             kw[key] = np.array(kw[key], dtype=float)
         return cls(**kw)
@@ -399,4 +397,4 @@ class ComparisonResult:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "ComparisonResult":
-        return cls(**{f.name: _dec(data[f.name]) for f in fields(cls)})
+        return cls(**_decoded(cls, data))

@@ -202,6 +202,10 @@ def _check_same_rule(cp: Checkpoint, rule: StopRule | None, path: Path) -> None:
 
 
 def _check_resumable(cp: Checkpoint, settings: dict, path: Path) -> None:
+    if not cp.resumable:
+        raise InputError("the posterior file holds a finished result without the sampler's state, so the run "
+                         "cannot continue from it", Location(file=str(path)), None,
+                         "a checkpoint written by the sampler (or start without resume)")
     saved = dict(cp.settings)
     if "proposal" not in saved:  # checkpoints written before the move choice existed: stretch move
         saved["proposal"] = "stretch"

@@ -75,7 +75,7 @@ class CampaignFitResult:
     elapsed: dict[str, float] = field(default_factory=dict)
     model_source: str = ""
     campaign_source: str = ""
-    #: Parameter overrides of the command line or API (chemistry.modelfile_overrides), as dicts.
+    #: Parameter overrides of the command line or API (chemistry.modelfile.overrides), as dicts.
     overrides: list[dict[str, Any]] = field(default_factory=list)
 
     @property

@@ -219,16 +219,11 @@ def save_posterior(folder: Path, posterior: Any, command: str | None = None) -> 
     """Add the finished result to the sampler's ``posterior.h5``; write ``posterior.json`` / ``.txt``.
 
     The chain in the file is the sampler's checkpoint (written at the end of
-    the run); only the result's metadata and acceptance fractions are added.
+    the run); :meth:`PosteriorResult.save` adds the result's metadata and
+    acceptance fractions to it.
     """
-    from speciakin.estimation.checkpoint import read_checkpoint, write_checkpoint
-
     folder = Path(folder)
-    path = result_path(folder, "posterior")
-    stored = read_checkpoint(path)
-    # the metadata keeps NaN (Python's JSON reads it back); only the .json files are strict
-    stored.result = {"metadata": posterior._metadata(), "acceptance_fraction": posterior.acceptance_fraction}
-    write_checkpoint(path, stored)
+    posterior.save(result_path(folder, "posterior"))
     _save_json_and_text(folder, "posterior_summary", "posterior_text", posterior, command)
 
 
@@ -238,22 +233,9 @@ def load_posterior(folder: Path) -> Any | None:
     if not path.is_file():
         return None
     from speciakin.estimation.checkpoint import read_checkpoint
-    from speciakin.estimation.diagnostics import ConvergenceDiagnostics
-    from speciakin.estimation.sampling import ParameterSummary, PosteriorResult
+    from speciakin.estimation.posterior_result import PosteriorResult
 
-    stored = read_checkpoint(path)
-    if stored.result is None:
-        return None
-    try:
-        meta = dict(stored.result["metadata"])
-        chain = stored.chain
-        samples = chain[meta["burn_in"]::meta["thin"]].reshape(-1, chain.shape[2])
-        return PosteriorResult(chain=chain, log_prob=stored.log_prob,
-                               acceptance_fraction=stored.result["acceptance_fraction"], samples=samples,
-                               summary=[ParameterSummary(**s) for s in meta.pop("summary")],
-                               diagnostics=ConvergenceDiagnostics(**meta.pop("diagnostics")), **meta)
-    except (KeyError, TypeError, ValueError, IndexError) as exc:
-        raise _malformed(path, "posterior file", exc, "posterior.h5 as written by the sample command") from None
+    return PosteriorResult.from_store(read_checkpoint(path), path)
 
 
 # ------------------------------------------------------------------ suggestion

@@ -31,7 +31,7 @@ def register(app, state) -> None:
         if not name:
             return "", "choose a campaign folder first"
         from speciakin.chemistry.modelfile import load_model
-        from speciakin.chemistry.modelfile_summary import model_summary
+        from speciakin.chemistry.modelfile.summary import model_summary
 
         try:
             path = state.folder(name) / "model.toml"

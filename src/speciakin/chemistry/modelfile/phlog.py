@@ -13,9 +13,9 @@ import math
 from pathlib import Path
 from typing import Any
 
-from speciakin.chemistry.modelfile_paths import sub_path
-from speciakin.chemistry.modelfile_reader import TableReader
-from speciakin.chemistry.modelfile_units import BARE_NUMBER_UNITS
+from speciakin.chemistry.modelfile.paths import sub_path
+from speciakin.chemistry.modelfile.reader import TableReader
+from speciakin.chemistry.modelfile.units import BARE_NUMBER_UNITS
 from speciakin.errors import Location
 from speciakin.units import DIMENSIONS, split_header, to_internal
 

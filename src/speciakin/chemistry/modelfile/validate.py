@@ -27,9 +27,9 @@ from speciakin.chemistry.model import (
     Run,
     Step,
 )
-from speciakin.chemistry.modelfile_paths import format_path, sub_path
-from speciakin.chemistry.modelfile_quantity import check_quantity
-from speciakin.chemistry.plausibility import plausibility_problems
+from speciakin.chemistry.modelfile.paths import format_path, sub_path
+from speciakin.chemistry.modelfile.quantity import check_quantity
+from speciakin.chemistry.modelfile.plausibility import plausibility_problems
 from speciakin.errors import Location, Problem, ProblemCollector
 
 #: Plausible pKw of a medium [-] (water 14.0 at 25 C; water-organic mixtures reach about 17-18).

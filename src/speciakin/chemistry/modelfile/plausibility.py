@@ -29,7 +29,7 @@ import math
 from collections import Counter
 
 from speciakin.chemistry.model import Model, Quantity
-from speciakin.chemistry.modelfile_paths import format_path, sub_path
+from speciakin.chemistry.modelfile.paths import format_path, sub_path
 from speciakin.errors import Location, Problem, ProblemCollector
 
 __all__ = ["PKA_RANGE", "TEMPERATURE_LIMITS", "VOLUME_RANGE", "CONCENTRATION_LIMIT", "prior_centre",

@@ -23,8 +23,8 @@ from types import MappingProxyType
 from typing import Any, Callable, Mapping
 
 from speciakin.chemistry.model import Prior, Quantity
-from speciakin.chemistry.modelfile_paths import sub_path
-from speciakin.chemistry.modelfile_reader import TableReader
+from speciakin.chemistry.modelfile.paths import sub_path
+from speciakin.chemistry.modelfile.reader import TableReader
 from speciakin.chemistry.prior_families import PRIOR_FAMILIES
 
 __all__ = [

@@ -23,6 +23,9 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any, Iterable
 
+from speciakin._io import atomic_write_text
+from speciakin.chemistry.modelfile.parse import parse_model
+from speciakin.chemistry.modelfile.validate import hydrolysis_step_name
 from speciakin.errors import InputError, Location, ModelFileError
 
 __all__ = ["ParameterOverride", "parse_overrides", "apply_overrides_text", "load_model_with_overrides",
@@ -111,8 +114,6 @@ def overridable_names(model) -> list[str]:
 
 def _entry(doc, name: str):
     """(table holding the entry, key) of parameter ``name`` in the tomlkit document, or None."""
-    from speciakin.chemistry.modelfile_validate import hydrolysis_step_name
-
     if name == "pKw[medium]":
         medium = doc.get("medium")
         return (medium, "pkw") if medium is not None and "pkw" in medium else None
@@ -170,8 +171,6 @@ def apply_overrides_text(text: str, overrides: Iterable[ParameterOverride], sour
     """
     import tomlkit
 
-    from speciakin.chemistry.modelfile import parse_model
-
     overrides = list(overrides)
     if not overrides:
         return text
@@ -205,8 +204,6 @@ def load_model_with_overrides(path: str | Path, overrides: Iterable[ParameterOve
     InputError
         Unknown parameter names, or values the model file does not accept at that key.
     """
-    from speciakin.chemistry.modelfile import parse_model
-
     import dataclasses
 
     path = Path(path)
@@ -228,9 +225,6 @@ def write_overrides(path: str | Path, overrides: Iterable[ParameterOverride], ta
     Path
         The file written (atomically).
     """
-    from speciakin._io import atomic_write_text
-    from speciakin.chemistry.modelfile import parse_model
-
     path = Path(path)
     text = apply_overrides_text(_read(path), overrides, str(path))
     parse_model(text, str(path), path.parent)  # never write a file the reader refuses

@@ -2,7 +2,7 @@
 and the ``[fit]`` table of estimation options.
 
 Bare numbers use the defaults of
-:data:`speciakin.chemistry.modelfile_units.BARE_NUMBER_UNITS` (time min, volume
+:data:`speciakin.chemistry.modelfile.units.BARE_NUMBER_UNITS` (time min, volume
 mL, amount mmol, concentration mol/L, temperature C).  An initial or a dosed
 amount written as a concentration is multiplied by the run volume (or the
 dose volume); one written as a mass ("236 mg") is divided by the molecule's
@@ -19,11 +19,11 @@ from typing import Any
 
 from speciakin.chemistry.model import (PH_MODES, START_ADJUSTMENTS, Dose, PhControl, Run, TemperatureProfile,
                                       Withdrawal)
-from speciakin.chemistry.modelfile_keys import FILE_KEYS, RENAMED_KEYS
-from speciakin.chemistry.modelfile_paths import format_path, sub_path
-from speciakin.chemistry.modelfile_phlog import read_ph_log
-from speciakin.chemistry.modelfile_reader import TableReader
-from speciakin.chemistry.modelfile_units import is_mass, parse_equivalents
+from speciakin.chemistry.modelfile.keys import FILE_KEYS, RENAMED_KEYS
+from speciakin.chemistry.modelfile.paths import format_path, sub_path
+from speciakin.chemistry.modelfile.phlog import read_ph_log
+from speciakin.chemistry.modelfile.reader import TableReader
+from speciakin.chemistry.modelfile.units import is_mass, parse_equivalents
 from speciakin.units import parse_quantity
 
 __all__ = ["RunReader"]
@@ -78,11 +78,10 @@ class RunReader:
     def run(self, name: str, value: Any) -> Run | None:
         r = self.reader
         path = format_path("run", name)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["run"], required=("volume", "end_time", "ph"),
+                        renamed=RENAMED_KEYS["run"])
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["run"], required=("volume", "end_time", "ph"),
-                     renamed=RENAMED_KEYS["run"])
         note = r.string(table, "note", path, default="") or ""
         volume = _NAN
         if "volume" in table:
@@ -107,10 +106,9 @@ class RunReader:
         withdrawals = []
         for i, item in enumerate(self.reader.array(table, "withdrawal", path)):
             sub = sub_path(path, "withdrawal", i)
-            item = r.typed(item, sub, dict)
+            item = r.keyed(item, sub, FILE_KEYS["withdrawal"], required=("time", "volume"))
             if item is None:
                 continue
-            r.check_keys(item, sub, FILE_KEYS["withdrawal"], required=("time", "volume"))
             if "time" in item and "volume" in item:
                 t = r.measure(item["time"], sub_path(sub, "time"), "time")
                 v = r.measure(item["volume"], sub_path(sub, "volume"), "volume", minimum=0)
@@ -216,10 +214,9 @@ class RunReader:
 
     def _dose(self, value: Any, path: str, substrate_amount: float | None = None) -> Dose | None:
         r = self.reader
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["dosing"], required=("species", "amount", "start"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["dosing"], required=("species", "amount", "start"))
         species = r.string(table, "species", path)
         volume = 0.0
         if "volume" in table:
@@ -250,10 +247,10 @@ class RunReader:
             if isinstance(raw, bool):
                 out[key] = {"runs": "all" if raw else []}
                 continue
-            raw = r.typed(raw, path, dict, "true, false or a table {runs, lower, upper, sd}")
+            raw = r.keyed(raw, path, FILE_KEYS["fit.nuisance"],
+                          what="true, false or a table {runs, lower, upper, sd}")
             if raw is None:
                 continue
-            r.check_keys(raw, path, FILE_KEYS["fit.nuisance"])
             item: dict[str, Any] = {"runs": "all"}
             runs = raw.get("runs", "all")
             if runs != "all":
@@ -273,8 +270,7 @@ class RunReader:
             out[key] = item
         if "error_model" in table:
             path = "fit.error_model"
-            raw = r.typed(table["error_model"], path, dict) or {}
-            r.check_keys(raw, path, FILE_KEYS["fit.error_model"])
+            raw = r.keyed(table["error_model"], path, FILE_KEYS["fit.error_model"]) or {}
             em = {}
             for key in FILE_KEYS["fit.error_model"]:
                 if key in raw:
@@ -284,8 +280,8 @@ class RunReader:
             out["error_model"] = em
         if "log_thinning" in table:
             path = "fit.log_thinning"
-            raw = r.typed(table["log_thinning"], path, dict, "a table { titrant = N, ph = M }") or {}
-            r.check_keys(raw, path, FILE_KEYS["fit.log_thinning"])
+            raw = r.keyed(table["log_thinning"], path, FILE_KEYS["fit.log_thinning"],
+                          what="a table { titrant = N, ph = M }") or {}
             thin = {}
             for key in FILE_KEYS["fit.log_thinning"]:
                 if key in raw:

@@ -1,13 +1,9 @@
-"""The reaction model file (TOML): read it into :class:`speciakin.chemistry.model.Model`.
+"""Reading a model file: TOML text -> :class:`speciakin.chemistry.model.Model`.
 
-The format is described for chemists in ``docs/model-file.md``; the commented
-skeleton ``templates/model_skeleton.toml`` shows every table.  Public API:
-
-``load_model(path)``       read a file (opened read-only) -> Model
-``parse_model(text)``      parse TOML text -> Model
-``validate_model(model)``  semantic checks -> list of Problem
-``model_summary(model)``   readable reaction scheme (string)
-``dump_model(model)``      Model -> TOML text; ``parse_model(dump_model(m)) == m``
+``load_model`` and ``parse_model`` (exported by the package, see
+:mod:`speciakin.chemistry.modelfile`) and the building of molecules, ions and
+steps; runs and the ``[fit]`` table are read by :mod:`.runs`, quantities by
+:mod:`.quantity`, semantic checks are :mod:`.validate`.
 
 Every problem of a file is gathered in one pass and raised together as a
 :class:`speciakin.errors.ModelFileError` whose message names the file, the key
@@ -32,15 +28,13 @@ from speciakin.chemistry.model import (
     Site,
     Step,
 )
-from speciakin.chemistry.modelfile_dump import dump_model  # noqa: F401  (public API)
-from speciakin.chemistry.modelfile_keys import FILE_KEYS
-from speciakin.chemistry.modelfile_paths import format_path, parent_path, sub_path
-from speciakin.chemistry.modelfile_quantity import read_quantity, share_quantities
-from speciakin.chemistry.modelfile_runs import RunReader
-from speciakin.chemistry.modelfile_reader import TableReader
-from speciakin.chemistry.modelfile_summary import model_summary  # noqa: F401  (public API)
-from speciakin.chemistry.modelfile_units import parse_rate_constant, rate_unit_text
-from speciakin.chemistry.modelfile_validate import (
+from speciakin.chemistry.modelfile.keys import FILE_KEYS
+from speciakin.chemistry.modelfile.paths import format_path, parent_path, sub_path
+from speciakin.chemistry.modelfile.quantity import read_quantity, share_quantities
+from speciakin.chemistry.modelfile.runs import RunReader
+from speciakin.chemistry.modelfile.reader import TableReader
+from speciakin.chemistry.modelfile.units import parse_rate_constant, rate_unit_text
+from speciakin.chemistry.modelfile.validate import (
     ACTIVITY_MODELS,
     MODEL_ACTIVITY_MODELS,
     hydrolysis_step_name,
@@ -48,14 +42,7 @@ from speciakin.chemistry.modelfile_validate import (
 )
 from speciakin.errors import Location, ModelFileError, Problem
 
-__all__ = [
-    "load_model",
-    "parse_model",
-    "validate_model",
-    "model_summary",
-    "dump_model",
-    "FILE_KEYS",
-]
+__all__ = ["load_model", "parse_model"]
 
 
 _NAN = float("nan")
@@ -249,10 +236,9 @@ class _Builder:
     def _molecule(self, name: str, value: Any) -> Molecule | None:
         r = self.reader
         path = format_path("molecule", name)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["molecule"])
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["molecule"])
         label = r.string(table, "label", path, default="") or ""
         role = r.string(table, "role", path, default="") or ""
         molar_mass = None
@@ -283,10 +269,9 @@ class _Builder:
 
     def _site(self, molecule: str, value: Any, path: str) -> Site | None:
         r = self.reader
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["site"], required=("name", "kind", "pka"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["site"], required=("name", "kind", "pka"))
         name = r.string(table, "name", path)
         kind = r.string(table, "kind", path)
         if name is None or kind is None or "pka" not in table:
@@ -307,10 +292,9 @@ class _Builder:
 
     def _interaction(self, molecule: str, value: Any, path: str) -> Interaction | None:
         r = self.reader
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["interaction"], required=("sites", "w"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["interaction"], required=("sites", "w"))
         sites = table.get("sites")
         if not (isinstance(sites, list) and len(sites) == 2 and all(isinstance(s, str) for s in sites)):
             if "sites" in table:
@@ -331,10 +315,10 @@ class _Builder:
         r = self.reader
         if isinstance(value, str):
             return Reactant(value)
-        table = r.typed(value, path, dict, 'a species name or a table {species = "...", requires = {...}}')
+        table = r.keyed(value, path, FILE_KEYS["reactant"], required=("species",),
+                        what='a species name or a table {species = "...", requires = {...}}')
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["reactant"], required=("species",))
         species = r.string(table, "species", path)
         requires = []
         for site, state in (r.table(table, "requires", path) or {}).items():
@@ -401,10 +385,9 @@ class _Builder:
     def _step(self, name: str, value: Any) -> Step | None:
         r = self.reader
         path = format_path("step", name)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["step"], required=("reactants", "products"))
         if table is None:
             return None
-        r.check_keys(table, path, FILE_KEYS["step"], required=("reactants", "products"))
         label = r.string(table, "label", path, default="") or ""
         reactants = []
         if "reactants" in table:
@@ -426,10 +409,9 @@ class _Builder:
     def _hydrolysis(self, molecule: str, value: Any) -> list[Step]:
         r = self.reader
         path = format_path("hydrolysis", molecule)
-        table = r.typed(value, path, dict)
+        table = r.keyed(value, path, FILE_KEYS["hydrolysis"], required=("products",))
         if table is None:
             return []
-        r.check_keys(table, path, FILE_KEYS["hydrolysis"], required=("products",))
         if "water" not in table and "hydroxide" not in table:
             r.error(path, "no hydrolysis path given", expected="a 'water' and/or a 'hydroxide' table",
                     code="missing")

@@ -11,8 +11,8 @@ from __future__ import annotations
 import math
 from typing import Any, Iterable, Mapping
 
-from speciakin.chemistry.modelfile_paths import KeyLines, format_path, sub_path
-from speciakin.chemistry.modelfile_units import BARE_NUMBER_UNITS
+from speciakin.chemistry.modelfile.paths import KeyLines, format_path, sub_path
+from speciakin.chemistry.modelfile.units import BARE_NUMBER_UNITS
 from speciakin.errors import Location, ProblemCollector
 from speciakin.units import DIMENSIONS, parse_quantity
 
@@ -70,6 +70,15 @@ class TableReader:
                 self.error(path, f"missing key '{key}'", expected=f"a value for '{key}'",
                            code="missing")
 
+    def keyed(self, value: Any, path: str, allowed: Iterable[str], required: Iterable[str] = (),
+              renamed: Mapping[str, str] | None = None, what: str | None = None) -> dict | None:
+        """``value`` as a table whose keys are checked (:meth:`check_keys`), or None when it is
+        not a table (recorded; ``what`` says what was expected)."""
+        table = self.typed(value, path, dict, what)
+        if table is not None:
+            self.check_keys(table, path, allowed, required, renamed)
+        return table
+
     def typed(self, value: Any, path: str, kind: type, what: str | None = None) -> Any:
         """Return ``value`` if it is of ``kind`` (int/float accepted for float)."""
         if kind is float:
@@ -119,17 +128,7 @@ class TableReader:
         if value is None:
             return None
         value = float(value)
-        if not math.isfinite(value):
-            self.error(path, "not a finite number", value, what)
-            return None
-        if positive and value <= 0.0:
-            self.error(path, "must be positive", value, "a number > 0")
-            return None
-        if minimum is not None and value < minimum:
-            self.error(path, "out of range" if minimum != 0 else "must not be negative",
-                       value, f"a number >= {minimum:g}")
-            return None
-        return value
+        return self._in_range(path, value, value, what, "number", minimum, positive)
 
     def measure(self, value: Any, path: str, dimension: str, minimum: float | None = None,
                 positive: bool = False, default_unit: str | None = None) -> float | None:
@@ -148,14 +147,20 @@ class TableReader:
         except ValueError as exc:
             self.error(path, str(exc), value, expected, code="unit")
             return None
-        if not math.isfinite(internal):
-            self.error(path, "not a finite number", value, expected)
+        return self._in_range(path, internal, value, expected, "value", minimum, positive, " (internal units)")
+
+    def _in_range(self, path: str, checked: float, shown: Any, expected: str, noun: str,
+                  minimum: float | None, positive: bool, note: str = "") -> float | None:
+        """``checked`` if finite, > 0 when ``positive`` and >= ``minimum``; else None and a problem
+        showing the value as written (``shown``); ``note`` follows a nonzero minimum."""
+        if not math.isfinite(checked):
+            self.error(path, "not a finite number", shown, expected)
             return None
-        if positive and internal <= 0.0:
-            self.error(path, "must be positive", value, "a value > 0")
+        if positive and checked <= 0.0:
+            self.error(path, "must be positive", shown, f"a {noun} > 0")
             return None
-        if minimum is not None and internal < minimum:
-            self.error(path, "must not be negative" if minimum == 0 else "out of range", value,
-                       "a value >= 0" if minimum == 0 else f"a value >= {minimum:g} (internal units)")
+        if minimum is not None and checked < minimum:
+            self.error(path, "must not be negative" if minimum == 0 else "out of range", shown,
+                       f"a {noun} >= {minimum:g}" + ("" if minimum == 0 else note))
             return None
-        return internal
+        return checked
