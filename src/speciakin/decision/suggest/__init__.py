@@ -71,7 +71,8 @@ from speciakin.decision.suggest.criteria import (
 )
 from speciakin.decision.suggest.rank import rank_candidates
 from speciakin.decision.suggest.result import CandidateScore, SuggestResult
+from speciakin.decision.suggest.updates import LocalSensitivity
 
 __all__ = ["DecisionDraws", "decision_draws", "draw_edges", "credible_width", "undecided_width",
            "expected_pass_variance", "moving_parameters", "CandidateScore", "SuggestResult",
-           "rank_candidates", "METHODS", "MIN_GAIN_PH", "MIN_SD_SHRINKAGE", "CREDIBLE", "MOVE_CORRELATION"]
+           "rank_candidates", "LocalSensitivity", "METHODS", "MIN_GAIN_PH", "MIN_SD_SHRINKAGE", "CREDIBLE", "MOVE_CORRELATION"]
