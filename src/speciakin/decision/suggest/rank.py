@@ -19,13 +19,18 @@ NoiseFunction = Callable[[int, np.ndarray], np.ndarray]
 
 
 # ------------------------------------------------------------------ ranking
+def width_text(value: float) -> str:
+    """A width [pH] to two decimals, or three below 0.1 (so that close candidates read apart)."""
+    return f"{value:.3f}" if abs(value) < 0.1 else f"{value:.2f}"
+
+
 def _reason(score: CandidateScore, names: Sequence[str], has_decision: bool) -> str:
     parts = []
     if has_decision and score.edge_width_before is not None:
         for side, b, a in zip(("low", "high"), score.edge_width_before, score.edge_width_after):
             if b - a >= 0.01:
                 parts.append(f"narrow the {int(round(100 * CREDIBLE))} % credible interval of the {side} "
-                             f"window edge from {b:.2f} to {a:.2f} pH")
+                             f"window edge from {width_text(b)} to {width_text(a)} pH")
         if score.undecided_reduction >= 0.01:
             parts.append(f"shrink the span of set points whose pass/fail is undecided from "
                          f"{score.undecided_before:.2f} to {score.undecided_after:.2f} pH")
