@@ -422,6 +422,8 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         near = [f"{n} (about {v:.1f})" for n, v in pkas.items() if abs(v - score.conditions["setpoint_pH"]) <= 1.5]
         if near:
             score.reason += "; set point within 1.5 pH of " + ", ".join(near)
+    if sensitivity is not None and method == "fisher":
+        notes = notes + [f"fisher method: linearised at {sensitivity.information.shape[0]} of the draws"]
     result.notes[:0] = [f"parameter draws: {source} ({draws.shape[0]} draws)"] + notes
     if check:
         alt = rank_candidates(draws, obs.values, obs.sd, conditions, method=other,
