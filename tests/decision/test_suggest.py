@@ -21,6 +21,7 @@ from scipy.stats import multivariate_normal, norm
 from speciakin.decision.specs import Specification
 from speciakin.decision.suggest import (
     DecisionDraws,
+    LocalSensitivity,
     credible_width,
     decision_draws,
     draw_edges,
@@ -64,6 +65,34 @@ def test_linear_update_equals_conjugate_gaussian_update():
     # candidate 1 informs the widest parameter (variance 2) and has the largest exact gain
     gains = [_exact_gain(cov, j, sd)[1] for j in jac]
     assert result.candidates[0].index == int(np.argmax(gains))
+
+
+def _constant_sensitivity(n: int, cov, jac, sd, edges=None, margins=None) -> LocalSensitivity:
+    """The linearisation of a model linear in the parameters: the same at every draw."""
+    info = np.repeat(np.linalg.inv(cov)[None], n, axis=0)
+    cands = [np.repeat((j / sd)[None], n, axis=0) for j in jac]
+    return LocalSensitivity(info, cands, edges, margins)
+
+
+def test_fisher_update_equals_conjugate_gaussian_update():
+    theta, cov, jac, sd, preds = _linear_case(500)
+    names = ["a", "b", "c"]
+    sens = _constant_sensitivity(40, cov, jac, sd)
+    result = rank_candidates(theta, preds, lambda c, v: np.full(v.shape, sd),
+                             [{"setpoint_pH": float(i)} for i in range(3)], parameter_names=names,
+                             method="fisher", sensitivity=sens)
+    for score in result.candidates:
+        post, gain = _exact_gain(cov, jac[score.index], sd)
+        # no Monte Carlo in the local update of a linear model: the closed forms up to the
+        # numerical ridge of 1e-10 (relative) added before inverting
+        assert score.d_gain == pytest.approx(gain, rel=1e-8)
+        expected_shrink = 1.0 - np.sqrt(np.diag(post) / np.diag(cov))
+        np.testing.assert_allclose([score.sd_shrinkage[n] for n in names], expected_shrink, rtol=1e-8, atol=1e-8)
+    gains = [_exact_gain(cov, j, sd)[1] for j in jac]
+    assert [s.index for s in result.candidates] == list(np.argsort(gains)[::-1])
+    with pytest.raises(ValueError, match="LocalSensitivity"):
+        rank_candidates(theta, preds, lambda c, v: np.full(v.shape, sd),
+                        [{"setpoint_pH": float(i)} for i in range(3)], parameter_names=names, method="fisher")
 
 
 def test_preposterior_reweighting_agrees_with_conjugate_update():
@@ -182,6 +211,42 @@ def test_decision_criteria_rank_the_run_that_pins_the_edge():
     data = result.to_dict()
     assert data["candidates"][0]["conditions"]["setpoint_pH"] == 0.0
     assert data["candidates"][0]["expected"]["window_edge_credible_width_pH"]["high"]["reduction"] > 1.0
+
+
+def _toy_sensitivity(theta, decision, noise, n: int = 40) -> LocalSensitivity:
+    """Exact linearisation of the toy decision: edge = theta[0], margin = theta[0] - pH, the
+    candidates observe theta[0] or theta[1] directly; information of the current data = the
+    inverse of the draws' covariance (a Gaussian posterior)."""
+    cov = np.cov(theta.T)
+    unit = [np.array([[1.0, 0.0]]), np.array([[1.0, 0.0]]), np.array([[0.0, 1.0]])]
+    edges = np.zeros((n, 2, 2))
+    edges[:, 1, 0] = 1.0                                   # only the high edge moves, with theta[0]
+    margins = np.zeros((n, decision.ph.size, 2))
+    margins[:, :, 0] = 1.0
+    return LocalSensitivity(np.repeat(np.linalg.inv(cov)[None], n, axis=0),
+                            [np.repeat((u / s)[None], n, axis=0) for u, s in zip(unit, noise)], edges, margins)
+
+
+def test_fisher_update_of_the_toy_decision_by_hand():
+    theta, decision, preds, noise = _toy_decision(spread=0.8)
+    sens = _toy_sensitivity(theta, decision, noise)
+    result = rank_candidates(theta, preds, lambda c, v: np.full(v.shape, noise[c]),
+                             [{"setpoint_pH": float(i)} for i in range(3)], parameter_names=["edge", "other"],
+                             decision=decision, method="fisher", sensitivity=sens)
+    assert [c.index for c in result.candidates] == [0, 1, 2]
+    assert result.helps
+    sd = np.std(theta[:, 0], ddof=1)
+    # conjugate update of the edge sd after measuring it with sd s: sd * s / sqrt(sd^2 + s^2)
+    # (Bishop 2006, eq. 3.50-3.51); the draws' credible width scales with the sd ratio
+    for c, s in ((0, 0.05), (1, 0.5)):
+        score = next(x for x in result.candidates if x.index == c)
+        assert score.edge_width_after[1] == pytest.approx(score.edge_width_before[1] * s / np.hypot(sd, s),
+                                                          rel=1e-6)
+    # the nuisance run informs the edge only through the draws' sample correlation of the two
+    # parameters (about 1 / sqrt(600)): next to nothing
+    last = result.candidates[2]
+    assert last.edge_reduction == pytest.approx(0.0, abs=0.01)
+    assert last.undecided_reduction == pytest.approx(0.0, abs=1e-3)
 
 
 def test_a_pinned_decision_reports_that_no_run_helps_much():

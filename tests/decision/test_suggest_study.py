@@ -11,11 +11,16 @@ random numbers for both, so that the comparison is not blurred by Monte Carlo
 noise).  The count of campaigns where the top run leaves the narrower edges is
 the figure of merit; docs/suggest.md reports it.
 
-The slow version runs 20 campaigns (target: the top run narrower, or within
-0.01 pH of the random one (a tie, both pinned by the data's noise), in >= 80 %;
-the strict count is printed too); the default suite runs 3 and asserts the top
-run never leaves wider edges than the random one by more than the "helps much"
-threshold.
+The random run is drawn uniformly from the other candidates taken in grid
+order (so it does not depend on the ranking).  The widths are compared as
+computed (continuous: each draw's edge is the interpolated zero of its spec
+margin, not a grid or bisection step): a win is a strictly narrower width, a
+tie (equal widths) is not a win.
+
+The slow version runs 20 campaigns (issue 17's target: the top run strictly
+narrower in >= 80 %); the default suite runs 3 and asserts that the top run
+always narrows the edges and never leaves them wider than the random one by
+more than the "helps much" threshold.
 """
 
 from __future__ import annotations
@@ -46,10 +51,6 @@ N_DRAWS = 300
 #: sometimes stops with "gradient not small" for every start (about one campaign in four, seen
 #: with 4 starts); such campaigns are left out and counted.
 STARTS = 4
-#: Two widths closer than this [pH] are a tie: when both runs pin the edge down to a few
-#: hundredths of a pH, which one ends narrower depends on the noise of the new run's data,
-#: not on the choice (a tenth of the "helps much" threshold; our choice).
-TIE_PH = 0.01
 
 
 def edge_width(objective, fit, process, anchor_ph: float | None = None) -> tuple[float, float]:
@@ -78,7 +79,9 @@ def one_campaign(k: int) -> dict | None:
         return None
     result = suggest_for_campaign(objective, fit=fit, process=process, n_draws=N_DRAWS, seed=k)
     top = result.candidates[0]
-    others = [c for c in result.candidates if c.index != top.index]
+    # the random run: uniform over the other candidates in grid order (not in ranked order, so
+    # that the comparison run does not depend on the ranking)
+    others = sorted((c for c in result.candidates if c.index != top.index), key=lambda c: c.index)
     pick = others[int(rng.integers(len(others)))]
     before, _ = edge_width(objective, fit, process)
     widths = {}
@@ -93,24 +96,26 @@ def one_campaign(k: int) -> dict | None:
     return {"campaign": k, "truth_pka": truth["pKa[S.N_a]"], "setpoints": setpoints,
             "top_ph": top.conditions["setpoint_pH"], "random_ph": pick.conditions["setpoint_pH"],
             "before": before, "top": widths["top"], "random": widths["random"],
-            "expected_reduction": top.edge_reduction}
+            "expected_reduction": top.edge_reduction, "helps": result.helps}
 
 
 def summary(rows: list[dict]) -> str:
-    lines = [f"{'k':>3} {'pKa':>5} {'runs':>16} {'top':>5} {'rand':>5} {'before':>7} {'w_top':>7} {'w_rand':>7}"]
+    lines = [f"{'k':>3} {'pKa':>5} {'runs':>16} {'top':>5} {'rand':>5} {'before':>7} {'w_top':>8} {'w_rand':>8} "
+             f"{'helps':>5}"]
     for r in rows:
         lines.append(f"{r['campaign']:>3} {r['truth_pka']:5.2f} {str(r['setpoints']):>16} {r['top_ph']:5.1f} "
-                     f"{r['random_ph']:5.1f} {r['before']:7.3f} {r['top']:7.3f} {r['random']:7.3f}")
+                     f"{r['random_ph']:5.1f} {r['before']:7.3f} {r['top']:8.5f} {r['random']:8.5f} "
+                     f"{str(r['helps']):>5}")
     wins, ties, losses = tally(rows)
-    lines.append(f"top narrower than random in {wins} of {len(rows)} campaigns; within {TIE_PH} pH of it "
-                 f"(a tie) in {ties}; wider by more in {losses}")
+    lines.append(f"top strictly narrower than random in {wins} of {len(rows)} campaigns; equal in {ties}; "
+                 f"wider in {losses}")
     return "\n".join(lines)
 
 
 def tally(rows: list[dict]) -> tuple[int, int, int]:
-    """(strict wins, ties within TIE_PH, losses beyond TIE_PH) of the top run against the random one."""
+    """(wins, ties, losses): the top run's summed edge width strictly below, equal to, above the random run's."""
     wins = sum(r["top"] < r["random"] for r in rows)
-    ties = sum(r["random"] <= r["top"] <= r["random"] + TIE_PH for r in rows)
+    ties = sum(r["top"] == r["random"] for r in rows)
     return wins, ties, len(rows) - wins - ties
 
 
@@ -142,8 +147,7 @@ def test_top_run_beats_a_random_run_in_most_campaigns():
     print(summary(rows))
     print(f"campaigns whose least-squares fit failed (left out): {failed}")
     assert len(rows) == 20
-    wins, ties, losses = tally(rows)
-    # target: the top run leaves the narrower edges, or ties, in >= 80 % of campaigns, and is never
-    # worse by more than the "helps much" threshold (the strict count is printed and reported)
-    assert wins + ties >= 0.8 * len(rows), summary(rows)
-    assert all(r["top"] <= r["random"] + 0.1 for r in rows), summary(rows)
+    wins, _, _ = tally(rows)
+    # issue 17's target: the top run leaves strictly narrower window edges than a random candidate
+    # in >= 80 % of the campaigns (a tie is not a win)
+    assert wins >= 0.8 * len(rows), summary(rows)

@@ -18,6 +18,7 @@ Method and thresholds: docs/suggest.md."""
 
 def add_arguments(parser) -> None:
     from speciakin.cli._common import add_campaign_arguments, add_source_argument
+    from speciakin.decision.suggest.criteria import METHODS
 
     parser.epilog = EPILOG
     add_campaign_arguments(parser, process=True)
@@ -40,8 +41,9 @@ def add_arguments(parser) -> None:
                         help="sampling schedule of the new run [min] (default: the template run's)")
     parser.add_argument("--template", metavar="RUN", help="campaign run whose protocol the candidates copy "
                                                           "(default: the first held-pH run)")
-    parser.add_argument("--method", choices=("linear", "preposterior"), default="linear",
-                        help="linear-Gaussian update (default) or pre-posterior simulation")
+    parser.add_argument("--method", choices=METHODS, default="fisher",
+                        help="local Fisher update at each draw (default), linear-Gaussian update over the "
+                             "draws, or pre-posterior simulation")
     parser.add_argument("--check", action="store_true",
                         help="also rank with the other method and record whether they agree")
     parser.add_argument("--batch", type=int, default=1, metavar="K", help="choose K runs together (greedy)")

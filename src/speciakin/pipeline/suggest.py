@@ -23,12 +23,13 @@ from speciakin.chemistry.model import Run, TemperatureProfile
 from speciakin.pipeline.window import process_outcome_function, window_draws
 from speciakin.decision.design import process_scan_arguments
 from speciakin.decision.outcomes import process_outcome_names
-from speciakin.decision.suggest import MIN_GAIN_PH, SuggestResult, decision_draws, rank_candidates
+from speciakin.decision.suggest import MIN_GAIN_PH, LocalSensitivity, SuggestResult, decision_draws, \
+    draw_edges, rank_candidates
 from speciakin.errors import InputError, Location
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_runs
 
-__all__ = ["plausible_ph_range", "candidate_conditions", "candidate_runs", "template_index",
+__all__ = ["local_sensitivity", "plausible_ph_range", "candidate_conditions", "candidate_runs", "template_index",
            "CandidateObservables", "candidate_observables", "suggest_for_campaign", "PH_LIMITS",
            "TEMPERATURE_LIMITS_C"]
 
@@ -206,8 +207,10 @@ class CandidateObservables:
         self.values: list[np.ndarray] = []
 
     def simulate(self, draws: np.ndarray, runs: list[Run], times: list[np.ndarray],
-                 progress: Callable[[int, int], None] | None = None, chunk: int = 64) -> list[np.ndarray]:
-        """Predicted observations of every run for every draw, ``chunk`` draws per kernel call."""
+                 progress: Callable[[int, int], None] | None = None, chunk: int = 64,
+                 rtol: float | None = None) -> list[np.ndarray]:
+        """Predicted observations of every run for every draw, ``chunk`` draws per kernel call
+        (integrator tolerance ``rtol``, default the objective's)."""
         o = self.objective
         compiled = o.compiled
         cruns = compile_runs(compiled, runs, [np.concatenate([[0.0], t]) for t in times])
@@ -217,7 +220,8 @@ class CandidateObservables:
         for start in range(0, n, chunk):
             q, _, _ = o.kernel_inputs(draws[start:start + chunk])
             shape = (q.shape[0], len(runs))
-            res = simulate_batch(compiled, cruns, q, np.zeros(shape), np.ones(shape), o.rtol, o.atol, o.parallel)
+            res = simulate_batch(compiled, cruns, q, np.zeros(shape), np.ones(shape), rtol or o.rtol, o.atol,
+                                 o.parallel)
             for c, t in enumerate(times):
                 out = res.outputs[:, c, 1:t.size + 1, :]
                 amounts = out[:, :, self.columns]
@@ -279,11 +283,71 @@ def candidate_observables(objective, draws, runs, times, template, progress=None
     return obs
 
 
+def process_decision(objective, process, draws: np.ndarray, chunk: int = 64):
+    """Pass/fail and margins of the planned process for each draw (:func:`decision_draws`)."""
+    args = process_scan_arguments(process)
+    fn = process_outcome_function(objective, process)
+    outcomes = np.concatenate([fn(draws[i:i + chunk], args["ph_grid"]) for i in range(0, draws.shape[0], chunk)])
+    return decision_draws(args["ph_grid"], outcomes, args["specs"], process_outcome_names(objective.model, process))
+
+
+#: Draws at which the fisher method linearises (evenly spread over the draws).
+N_LOCAL = 40
+#: Relative step of the central differences and the integrator tolerance used for them
+#: (as CampaignObjective.jacobian).
+FD_STEP, FD_RTOL = 1e-3, 1e-8
+
+
+def local_sensitivity(objective, obs: CandidateObservables, draws: np.ndarray, runs, times, template: int,
+                      decision=None, process=None, n_local: int = N_LOCAL) -> LocalSensitivity:
+    """Central-difference linearisation at ``n_local`` of the draws (the fisher method).
+
+    At each chosen draw: the campaign's weighted residual Jacobian (its
+    information ``J^T J``), each candidate's observation Jacobian divided by
+    the error model's sd, and, with a decision, the gradients of the draw's
+    window edges (anchor kept) and spec margins.  Steps ``1e-3 max(1, |theta|)``
+    kept inside the bounds; failed simulations give zero sensitivity.
+    """
+    idx = np.unique(np.linspace(0, draws.shape[0] - 1, min(n_local, draws.shape[0])).round().astype(int))
+    base = draws[idx]
+    n, p = base.shape
+    lo = np.array([q.lower for q in objective.parameters])
+    hi = np.array([q.upper for q in objective.parameters])
+    h = FD_STEP * np.maximum(1.0, np.abs(base))
+    plus, minus = np.minimum(base + h, hi), np.maximum(base - h, lo)
+    sets = np.repeat(base[:, None, :], 2 * p, axis=1)
+    for j in range(p):
+        sets[:, 2 * j, j], sets[:, 2 * j + 1, j] = plus[:, j], minus[:, j]
+    sets = sets.reshape(n * 2 * p, p)
+    step = (plus - minus)[:, None, :]                                   # (n, 1, p)
+
+    def diff(values: np.ndarray) -> np.ndarray:
+        """(n * 2p, k) values at the perturbed sets -> (n, k, p) derivatives (NaN -> 0)."""
+        v = values.reshape(n, p, 2, -1)
+        d = np.moveaxis(v[:, :, 0] - v[:, :, 1], 1, 2) / step
+        return np.nan_to_num(d, nan=0.0, posinf=0.0, neginf=0.0)
+
+    jac = diff(objective.residuals_batch(sets, rtol=min(objective.rtol, FD_RTOL)))
+    info = np.einsum("nmp,nmq->npq", jac, jac)
+    moved = CandidateObservables(objective, template)
+    moved.simulate(sets, runs, times, rtol=min(objective.rtol, FD_RTOL))
+    cands = []
+    for c, values in enumerate(moved.values):
+        sd = obs.sd(c, np.nan_to_num(obs.values[c][idx], nan=0.0))
+        cands.append(diff(values) / sd[:, :, None])
+    edges = margins = None
+    if decision is not None:
+        moved_decision = replace(process_decision(objective, process, sets), anchor=decision.anchor)
+        edges = diff(draw_edges(moved_decision))
+        margins = diff(moved_decision.margin)
+    return LocalSensitivity(info, cands, edges, margins)
+
+
 def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n_draws: int = 400,
                          seed: int = 1, ph_range: tuple[float, float] | None = None, ph_step: float = 0.5,
                          plant_ph: tuple[float, float] | None = None, temperatures_c=None,
                          temperature_limits_c=None, equivalents=None, dosing_times_min=None,
-                         sample_times_min=None, template: str | None = None, method: str = "linear",
+                         sample_times_min=None, template: str | None = None, method: str = "fisher",
                          batch: int = 1, min_gain: float | None = None, check: bool = False,
                          progress: Callable[[str, int, int], None] | None = None) -> SuggestResult:
     """Rank candidate next runs of a campaign (see :func:`rank_candidates`).
@@ -309,7 +373,8 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
     method, batch, min_gain
         As for :func:`rank_candidates` (``min_gain`` [pH], default :data:`MIN_GAIN_PH`).
     check
-        Also rank with the other method; ``result.check`` records its best
+        Also rank with the other method (pre-posterior, or fisher for a
+        pre-posterior ranking); ``result.check`` records its best
         candidate and how much less it expects from this method's best.
     progress
         ``progress(stage, done, total)``.
@@ -343,15 +408,13 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
     runs, times = candidate_runs(objective, conditions, t_index, sample_times)
     say = (lambda stage: (lambda d, t: progress(stage, d, t))) if progress else (lambda stage: None)
     obs = candidate_observables(objective, draws, runs, times, t_index, say("simulate candidates"))
-    decision = None
-    if process is not None:
-        args = process_scan_arguments(process)
-        fn = process_outcome_function(objective, process)
-        names = process_outcome_names(objective.model, process)
-        outcomes = np.concatenate([fn(draws[i:i + 64], args["ph_grid"]) for i in range(0, draws.shape[0], 64)])
-        decision = decision_draws(args["ph_grid"], outcomes, args["specs"], names)
+    decision = None if process is None else process_decision(objective, process, draws)
+    other = "preposterior" if method != "preposterior" else "fisher"
+    sensitivity = None
+    if method == "fisher" or (check and other == "fisher"):
+        sensitivity = local_sensitivity(objective, obs, draws, runs, times, t_index, decision, process)
     kwargs = dict(parameter_names=objective.names, decision=decision, batch=batch, seed=seed,
-                  min_gain=min_gain if min_gain is not None else MIN_GAIN_PH)
+                  min_gain=min_gain if min_gain is not None else MIN_GAIN_PH, sensitivity=sensitivity)
     result = rank_candidates(draws, obs.values, obs.sd, conditions, method=method,
                              progress=say("rank candidates"), **kwargs)
     pkas = {n: v for n, v in site_pkas(objective, theta_centre).items() if n in objective.names}
@@ -359,9 +422,10 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         near = [f"{n} (about {v:.1f})" for n, v in pkas.items() if abs(v - score.conditions["setpoint_pH"]) <= 1.5]
         if near:
             score.reason += "; set point within 1.5 pH of " + ", ".join(near)
+    if sensitivity is not None and method == "fisher":
+        notes = notes + [f"fisher method: linearised at {sensitivity.information.shape[0]} of the draws"]
     result.notes[:0] = [f"parameter draws: {source} ({draws.shape[0]} draws)"] + notes
     if check:
-        other = "preposterior" if method == "linear" else "linear"
         alt = rank_candidates(draws, obs.values, obs.sd, conditions, method=other,
                               progress=say(f"check ({other})"), **kwargs)
         order = [c.index for c in alt.candidates]

@@ -28,7 +28,16 @@ Criteria (each an expected value over the data the candidate would give)
 
 Methods
 -------
-``"linear"`` (default): a linear-Gaussian (Laplace) update of the posterior
+``"fisher"`` (the pipeline's default): a local Fisher-information update at
+each of some draws (:class:`LocalSensitivity`, central differences made by
+the caller): ``S'_i = (I_i + J_ci^T J_ci)^-1`` with ``I_i`` the current runs'
+information at draw i; an edge's sd ``sqrt(g_i^T S'_i g_i)`` averaged over the
+draws, after against before, scales the edge's credible width (Bayesian
+c-optimality, Chaloner and Larntz, J. Statist. Plann. Inference 1989, 21,
+191); the D gain is averaged over the draws (Bayesian D-optimality,
+Chaloner and Verdinelli 1995, section 2.2).
+
+``"linear"``: a linear-Gaussian (Laplace) update of the posterior
 covariance per candidate, ``S' = S - C_gy (C_yy + R)^-1 C_yg``, with the
 covariances taken over the draws (the Bayes-linear adjusted variance,
 Goldstein and Wooff, "Bayes Linear Statistics", Wiley 2007, ch. 3).  For a
@@ -71,7 +80,8 @@ from speciakin.decision.suggest.criteria import (
 )
 from speciakin.decision.suggest.rank import rank_candidates
 from speciakin.decision.suggest.result import CandidateScore, SuggestResult
+from speciakin.decision.suggest.updates import LocalSensitivity
 
 __all__ = ["DecisionDraws", "decision_draws", "draw_edges", "credible_width", "undecided_width",
            "expected_pass_variance", "moving_parameters", "CandidateScore", "SuggestResult",
-           "rank_candidates", "METHODS", "MIN_GAIN_PH", "MIN_SD_SHRINKAGE", "CREDIBLE", "MOVE_CORRELATION"]
+           "rank_candidates", "LocalSensitivity", "METHODS", "MIN_GAIN_PH", "MIN_SD_SHRINKAGE", "CREDIBLE", "MOVE_CORRELATION"]

@@ -17,7 +17,7 @@ __all__ = ["DecisionDraws", "decision_draws", "draw_edges", "credible_width", "u
            "CREDIBLE", "MOVE_CORRELATION"]
 
 #: Update methods (see the module docstring).
-METHODS = ("linear", "preposterior")
+METHODS = ("fisher", "linear", "preposterior")
 #: A run "helps much" when it is expected to narrow an edge's credible width or
 #: the undecided width by at least this much [pH] (about the resolution of a
 #: plant pH probe and controller; common practice).

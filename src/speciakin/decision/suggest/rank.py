@@ -10,7 +10,8 @@ import numpy as np
 from speciakin.decision.suggest.criteria import CREDIBLE, METHODS, MIN_GAIN_PH, MIN_SD_SHRINKAGE, \
     DecisionDraws, moving_parameters
 from speciakin.decision.suggest.result import CandidateScore, SuggestResult, conditions_text, ph_text
-from speciakin.decision.suggest.updates import Prior, score_linear, score_preposterior
+from speciakin.decision.suggest.updates import LocalSensitivity, Prior, score_fisher, score_linear, \
+    score_preposterior
 
 __all__ = ["rank_candidates"]
 
@@ -18,13 +19,18 @@ NoiseFunction = Callable[[int, np.ndarray], np.ndarray]
 
 
 # ------------------------------------------------------------------ ranking
+def width_text(value: float) -> str:
+    """A width [pH] to two decimals, or three below 0.1 (so that close candidates read apart)."""
+    return f"{value:.3f}" if abs(value) < 0.1 else f"{value:.2f}"
+
+
 def _reason(score: CandidateScore, names: Sequence[str], has_decision: bool) -> str:
     parts = []
     if has_decision and score.edge_width_before is not None:
         for side, b, a in zip(("low", "high"), score.edge_width_before, score.edge_width_after):
             if b - a >= 0.01:
                 parts.append(f"narrow the {int(round(100 * CREDIBLE))} % credible interval of the {side} "
-                             f"window edge from {b:.2f} to {a:.2f} pH")
+                             f"window edge from {width_text(b)} to {width_text(a)} pH")
         if score.undecided_reduction >= 0.01:
             parts.append(f"shrink the span of set points whose pass/fail is undecided from "
                          f"{score.undecided_before:.2f} to {score.undecided_after:.2f} pH")
@@ -40,6 +46,7 @@ def _reason(score: CandidateScore, names: Sequence[str], has_decision: bool) -> 
 def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_sd: NoiseFunction,
                     conditions: Sequence[dict[str, Any]], *, parameter_names: Sequence[str],
                     decision: DecisionDraws | None = None, method: str = "linear", batch: int = 1,
+                    sensitivity: LocalSensitivity | None = None,
                     min_gain: float = MIN_GAIN_PH, credible: float = CREDIBLE, n_simulated: int = 100,
                     seed: int | None = 0,
                     progress: Callable[[int, int], None] | None = None) -> SuggestResult:
@@ -64,9 +71,13 @@ def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_
         Pass/fail and margins of the planned process per draw
         (:func:`decision_draws`); None = parameter criterion only.
     method
-        ``"linear"`` or ``"preposterior"``.
+        ``"fisher"`` (needs ``sensitivity``; the pipeline's default), ``"linear"``
+        or ``"preposterior"``.
     batch
         Number of runs to choose together (greedy).
+    sensitivity
+        The linearisation at some draws (:class:`LocalSensitivity`), for the
+        ``"fisher"`` method.
     min_gain
         Threshold [pH] below which no candidate "helps much".
     credible
@@ -92,6 +103,8 @@ def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_
         raise ValueError("one prediction array and one conditions dict per candidate, at least one")
     if batch < 1:
         raise ValueError("batch must be >= 1")
+    if method == "fisher" and (sensitivity is None or len(sensitivity.candidates) != len(predictions)):
+        raise ValueError("the fisher method needs a LocalSensitivity with one Jacobian per candidate")
     names = list(parameter_names)
     prior = Prior(theta, decision, credible)
     notes: list[str] = []
@@ -115,7 +128,9 @@ def rank_candidates(draws: np.ndarray, predictions: Sequence[np.ndarray], noise_
             score.reason = (f"not judged: the simulation of this run failed for {int((~ok).sum())} of "
                             f"{ok.size} draws")
             return score
-        if method == "linear":
+        if method == "fisher":
+            res = score_fisher(prior, sensitivity, chosen, moving)
+        elif method == "linear":
             sub = prior if ok.all() else Prior(theta[ok], None if decision is None else DecisionDraws(
                 decision.ph, decision.passes[ok], decision.margin[ok], decision.anchor), credible)
             var = np.concatenate([np.mean(noise_sd(c, preds[c][ok]) ** 2, axis=0) for c in chosen])

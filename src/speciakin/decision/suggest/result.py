@@ -45,7 +45,7 @@ class CandidateScore:
         return float(self.undecided_before - self.undecided_after)
 
     def sort_key(self) -> tuple[float, float, float]:
-        return (round(self.edge_reduction, 2), round(self.undecided_reduction, 2), self.d_gain)
+        return (self.edge_reduction, self.undecided_reduction, self.d_gain)
 
     def to_dict(self) -> dict[str, Any]:
         edges = None
