@@ -9,6 +9,7 @@ computes no window, map or curve itself.  Step 5 (history) placeholder.
 from __future__ import annotations
 
 import json
+import threading
 
 import numpy as np
 import dash_ag_grid as dag
@@ -29,6 +30,8 @@ PARAMETER_COLUMNS = (("name", "parameter"), ("unit", "unit"), ("value", "value")
                      ("posterior", "posterior median"), ("credible", "95 % credible interval"),
                      ("note", "note"))
 _GRAPH = {"displaylogo": False}
+#: Value of this page's tab (``app._TABS``).
+TAB = "results"
 
 
 def layout() -> html.Div:
@@ -127,16 +130,37 @@ def _result_folder(state, name, result):
     return folder, out
 
 
+_LOCKS: dict[str, threading.Lock] = {}
+_LOCKS_GUARD = threading.Lock()
+
+
 def _results(state, folder, out):
+    """The pipeline's results of ``out`` with their predictions (cached); one load at a time per folder,
+    so a page that asks while the prefetch still loads waits for it instead of loading twice."""
     from speciakin import pipeline
 
+    with _LOCKS_GUARD:
+        lock = _LOCKS.setdefault(str(out), threading.Lock())
     files = [out / "fit.json", out / "window.json", out / "posterior.h5", *state.inputs_of(folder)]
-    return state.cached("results", files, lambda: pipeline.load_results(
-        out, campaign=str(folder), model=str(folder / "model.toml"), check=False))
+    with lock:
+        return state.cached("results", files, lambda: pipeline.load_results(
+            out, campaign=str(folder), model=str(folder / "model.toml"), check=False))
+
+
+def _prefetch(state, folder, out) -> None:
+    """Load the newest result in the background when its campaign is chosen (the fitted curves need the
+    pipeline's predictions, seconds for the demo), so the results tab answers at once."""
+    def load():
+        try:
+            _results(state, folder, out)
+        except (SpeciakinError, OSError, ValueError):
+            pass  # the results tab shows the error when it is opened
+    threading.Thread(target=load, name="speciakin-prefetch", daemon=True).start()
 
 
 def _views(state, out):
-    """What the views read from the result folder's files (no model, no simulation), cached."""
+    """Every view but the curves, from the result folder's files (no model, no simulation), cached:
+    table rows, warnings, correlation figure, window status and reasons, window figure, 2-D map."""
     from speciakin.pipeline import outputs
 
     def read():
@@ -146,7 +170,12 @@ def _views(state, out):
         correlation = correlation_of(fit_data)
         if correlation is None and posterior_data is not None:
             correlation = correlation_of(fit_data, outputs.load_posterior(out))
-        return fit_data, posterior_data, correlation, outputs.load_window(out)
+        warnings = [html.Li(w) for w in [*fit_data.get("warnings", []),
+                                         *(posterior_data or {}).get("warnings", [])]]
+        corr = (empty_figure("no correlation: the fit has no covariance and there is no posterior")
+                if correlation is None else correlation_figure(*correlation))
+        return (parameter_rows(fit_data, posterior_data), warnings, corr,
+                *_window_views(outputs.load_window(out)))
 
     files = [out / "fit.json", out / "window.json", out / "posterior.json", out / "posterior.h5"]
     return state.cached("views", files, read)
@@ -173,36 +202,38 @@ def register(app, state) -> None:
         if not name:
             return [], None
         try:
-            names = result_folders(state.folder(name))
+            folder = state.folder(name)
+            names = result_folders(folder)
         except SpeciakinError:
             return [], None
-        return [{"label": n, "value": n} for n in names], current if current in names else (names[0] if names else None)
+        chosen = current if current in names else (names[0] if names else None)
+        if chosen:
+            _prefetch(state, *_result_folder(state, name, chosen))
+        return [{"label": n, "value": n} for n in names], chosen
 
     @app.callback(Output("parameter-table", "rowData"), Output("fit-warnings", "children"),
                   Output("correlation-figure", "figure"),
                   Output("window-status", "children"), Output("window-reasons", "children"),
                   Output("window-figure", "figure"), Output("map-figure", "figure"),
                   Output("result-message", "children"),
-                  Input("result-choice", "value"), State("campaign-choice", "value"))
-    def show(result, name):
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
+    def show(result, tab, name):
+        _only_when_shown(tab)
         blank = ([], [], empty_figure("no result chosen"), "", [], empty_figure("no result chosen"),
                  empty_figure("no result chosen"))
         if not name or not result:
             return *blank, "no result yet: start a fit job on the Jobs tab"
         try:
             _, out = _result_folder(state, name, result)
-            fit_data, posterior_data, correlation, window = _views(state, out)
+            views = _views(state, out)
         except (SpeciakinError, OSError, ValueError) as exc:
             return *blank, f"error: {exc}"
-        warnings = [html.Li(w) for w in [*fit_data.get("warnings", []), *(posterior_data or {}).get("warnings", [])]]
-        corr = (empty_figure("no correlation: the fit has no covariance and there is no posterior")
-                if correlation is None else correlation_figure(*correlation))
-        return (parameter_rows(fit_data, posterior_data), warnings, corr, *_window_views(window),
-                f"result {result}")
+        return *views, f"result {result}"
 
     @app.callback(Output("fit-run", "options"), Output("fit-run", "value"), Output("fit-message", "children"),
-                  Input("result-choice", "value"), State("campaign-choice", "value"))
-    def runs(result, name):
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
+    def runs(result, tab, name):
+        _only_when_shown(tab)
         if not name or not result:
             return [], None, ""
         try:
@@ -230,6 +261,15 @@ def register(app, state) -> None:
         observations = [o for o in results.predictions.observations if o.run == run_name]
         return fit_run_figure(prediction, observations, model_species_colors(results.model),
                               display_names(results.model))
+
+
+def _only_when_shown(tab) -> None:
+    """Results are read only while their tab is shown, so that loading them (the fitted curves need the
+    pipeline's predictions, seconds for a large campaign) never holds up the other tabs."""
+    from dash.exceptions import PreventUpdate
+
+    if tab != TAB:
+        raise PreventUpdate
 
 
 def _window_line(window) -> str:
