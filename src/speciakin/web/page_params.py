@@ -23,7 +23,7 @@ from speciakin.web.params_table import DEFAULT_PRIOR, diff_lines, edited_overrid
 __all__ = ["layout", "register", "HELP"]
 
 HELP = ("Tick 'fitted' to let the fit move a parameter, untick it to fix it at its start value. Bounds and prior "
-        "numbers are on the fitted scale named in the column 'scale' (a pKa: its shift; a rate constant: log10 k, "
+        "numbers are on the fitted scale named in the column 'bounds and prior on' (a pKa: its shift; a rate constant: log10 k, "
         "or a text with its unit). A prior is a family and its numbers, e.g. 'mean=1.5, sd=1'. Each change is "
         "checked with the model file's rules and shown below as a diff; nothing is written until you save.")
 _EDITABLE = {"function": "!params.data.locked"}
@@ -31,9 +31,10 @@ _EDITABLE = {"function": "!params.data.locked"}
 
 def _columns() -> list[dict]:
     families = [DEFAULT_PRIOR, *PRIOR_FAMILIES]
-    wrapped = {"wrapText": True, "autoHeight": True, "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px"}}
+    wrapped = {"wrapText": True, "autoHeight": True,
+               "cellStyle": {"lineHeight": "1.4em", "paddingTop": "10px", "paddingBottom": "10px"}}
     return [
-        {"field": "name", "headerName": "parameter", "pinned": "left", "width": 200},
+        {"field": "name", "headerName": "parameter", "pinned": "left", "width": 250},
         {"field": "fit", "headerName": "fitted", "cellDataType": "boolean", "editable": _EDITABLE, "width": 80},
         {"field": "start", "headerName": "start value", "editable": _EDITABLE, "flex": 1, "minWidth": 110},
         {"field": "lower", "headerName": "lower bound", "editable": _EDITABLE, "width": 100},
@@ -52,7 +53,8 @@ def layout() -> html.Div:
         html.H3("Parameters"),
         html.P(HELP, className="message"),
         dag.AgGrid(id="param-table", columnDefs=_columns(), rowData=[], getRowId="params.data.name",
-                   defaultColDef={"resizable": True, "sortable": False, "cellDataType": False},
+                   defaultColDef={"resizable": True, "sortable": False, "cellDataType": False,
+                                  "wrapHeaderText": True, "autoHeaderHeight": True},
                    dashGridOptions={"domLayout": "autoHeight", "singleClickEdit": True,
                                     "stopEditingWhenCellsLoseFocus": True},
                    style={"width": "100%"}),

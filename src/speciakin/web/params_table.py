@@ -89,7 +89,7 @@ def parameter_rows(text: str, source: str = "model.toml", base_dir: str | Path |
         elif "spread" in table:
             note = f"prior from spread = {_text(table['spread'])} (normal, mean 0)"
         elif written is None:
-            note = "not written in the file: the model's default"
+            note = "not in the file: the default"
         rows.append({
             "name": q.name, "scale": SCALE.get(prefix, ""), "fit": bool(q.fit),
             "start": _text(start if start is not None else (q.value if math.isfinite(q.value) else "")),
