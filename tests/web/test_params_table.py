@@ -155,3 +155,19 @@ def test_result_rows_add_the_posterior_median_and_credible_interval():
     assert (row["posterior"], row["credible"]) == ("1.01", "0.79 to 1.25")
     assert "R-hat 1.050" in row["note"]
     assert result_rows(fit)[0]["posterior"] == "not sampled"
+
+
+def test_curve_figure_draws_the_band_and_names_compounds_escaped():
+    from speciakin.palette import SpeciesColors
+    from speciakin.pipeline.predictions import Observation, RunPrediction
+    from speciakin.web.figures import fit_run_figure
+
+    t = np.linspace(0.0, 10.0, 5)
+    run = RunPrediction("R<1>", "HPLC area", "area%", time=t, values={"P": t}, low={"P": t - 1},
+                        high={"P": t + 1}, n_band=150)
+    seen = [Observation("R<1>", 2.0, "P", "P", 2.1, False, 0.05, 2.0, 0.3, "area%")]
+    fig = fit_run_figure(run, seen, SpeciesColors(["P"]), {"P": "<b>amide</b>"})
+    band, line, points = fig.data
+    assert band.fill == "toself" and list(band.y) == [*(t + 1), *(t - 1)[::-1]]
+    assert line.name == "&lt;b&gt;amide&lt;/b&gt; fitted" and points.name == "&lt;b&gt;amide&lt;/b&gt; observed"
+    assert "R&lt;1&gt;" in fig.layout.title.text and "150 posterior draws" in fig.layout.title.text
