@@ -15,7 +15,7 @@ import time
 
 import pytest
 
-from .test_journey import choose, open_campaign
+from .test_journey import open_campaign
 
 pytestmark = pytest.mark.filterwarnings("ignore")
 
