@@ -12,11 +12,11 @@ jobs           pipeline work in the background: progress, time left, cancel, one
 job_kinds      the kinds of job (fit, posterior, window, suggestion, report, whole run), each recorded
 dask_jobs      the same jobs on a Dask cluster (local, or an existing scheduler)
 downloads      a result's files sent to the browser, every path checked inside the result folder
-figures        Plotly figures: raw data per run, fitted curves over data, the window
+figures        Plotly figures: raw data per run, fitted curves, window, correlation, 2-D map
 page_campaign  step 1: open or create a campaign, upload, check table, raw data
-page_model     step 2: model summary (parameter table not yet available)
+page_model     step 2: model summary and the parameter table (page_params, params_table)
 page_jobs      step 3: start, follow and cancel jobs; download what they wrote
-page_results   step 4: parameters, window and its status, fitted curves
+page_results   step 4: parameters, correlation, window and its status, 2-D map, fitted curves
 page_history   step 5: every result from the results index, its files, two results side by side
 """
 

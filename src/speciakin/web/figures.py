@@ -1,4 +1,8 @@
-"""Plotly figures of the page: raw data per run, fitted curves over data, the window.
+"""Plotly figures of the page: raw data per run, fitted curves over data, the window, correlation, 2-D map.
+
+Colours are the report's (:mod:`speciakin.palette`: one colour per compound
+from the model's molecule order, the same shading of windows and the same
+colour scales), and legends name compounds by their labels as the report does.
 
 Long logs are thinned for display only (every k-th reading, the last kept);
 the figure says so.  The fit always uses every reading: the figures read the
@@ -15,9 +19,10 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from speciakin.palette import SpeciesColors
+from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 
-__all__ = ["label", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure"]
+__all__ = ["label", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure",
+           "correlation_figure", "map_figure"]
 
 #: Most points of one trace drawn on the page; longer logs are thinned.
 MAX_POINTS = 1500
@@ -107,30 +112,37 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
     return fig
 
 
-def fit_run_figure(prediction, observations: list, colors: SpeciesColors) -> go.Figure:
-    """Observations of one run with the fitted curve (and the posterior band when there is one)."""
+def fit_run_figure(prediction, observations: list, colors: SpeciesColors,
+                   names: dict[str, str] | None = None) -> go.Figure:
+    """Observations of one run with the fitted curve (and the posterior band when there is one).
+
+    ``names`` maps figure keys (model short names) to compound labels for the legend.
+    """
+    names = names or {}
     fig = go.Figure()
     unit = prediction.value_unit
     if prediction.time is not None and prediction.values:
         for key, y in prediction.values.items():
-            color = colors.color(key)
+            color, shown = colors.color(key), names.get(key, key)
             if prediction.low and key in prediction.low:
                 fig.add_trace(go.Scatter(x=np.r_[prediction.time, prediction.time[::-1]],
                                          y=np.r_[prediction.high[key], prediction.low[key][::-1]], fill="toself",
                                          line=dict(width=0), fillcolor=color, opacity=0.2,
-                                         name=label(f"{key} band"), hoverinfo="skip"))
-            fig.add_trace(go.Scatter(x=prediction.time, y=y, mode="lines", name=label(f"{key} fitted"),
+                                         name=label(f"{shown} 5-95 % band"), hoverinfo="skip"))
+            fig.add_trace(go.Scatter(x=prediction.time, y=y, mode="lines", name=label(f"{shown} fitted"),
                                      line=dict(color=color)))
     for key in dict.fromkeys(o.key for o in observations if not o.titrant):
         rows = [o for o in observations if o.key == key and not o.titrant]
         fig.add_trace(go.Scatter(x=[o.time for o in rows],
                                  y=[o.observed if o.observed is not None else o.loq for o in rows],
-                                 mode="markers", name=label(f"{key} observed"),
+                                 mode="markers", name=label(f"{names.get(key, key)} observed"),
                                  marker=dict(color=colors.color(key),
                                              symbol=["triangle-down-open" if o.censored else "circle" for o in rows])))
     title = f"run {label(prediction.name)}: fitted curves over data"
     if prediction.failed:
         title += " (the simulation at the fitted parameters failed)"
+    elif prediction.n_band:
+        title += f" (band: {prediction.n_band} posterior draws)"
     fig.update_layout(template=TEMPLATE, title=dict(text=title, font=dict(size=15)), height=460,
                       xaxis_title="time [min]",
                       yaxis_title=f"{prediction.value_label} [{unit}]" if unit else prediction.value_label,
@@ -139,24 +151,94 @@ def fit_run_figure(prediction, observations: list, colors: SpeciesColors) -> go.
 
 
 def window_figure(window: Any) -> go.Figure:
-    """Probability of meeting every specification against pH, with the window and its status."""
+    """Probability of meeting every specification against pH, with the window, the robust set points
+    and the trust status (the report's shading: window sky blue, robust set points bluish green)."""
     fig = go.Figure()
-    ph = window.curve_ph if window.curve_ph is not None else window.ph
-    prob = window.curve_probability if window.curve_probability is not None else window.probability
-    fig.add_trace(go.Scatter(x=ph, y=prob, mode="lines", name="probability", line=dict(color="#0072B2")))
+    grid, p = np.asarray(window.ph, float), np.asarray(window.probability, float)
+    se = np.asarray(window.probability_standard_error, float)
+    for lo, hi in window.windows:
+        fig.add_vrect(x0=lo, x1=hi, fillcolor=OKABE_ITO["sky blue"], opacity=0.25, line_width=0)
+    for lo, hi in window.robust_windows:
+        fig.add_vrect(x0=lo, x1=hi, fillcolor=OKABE_ITO["bluish green"], opacity=0.35, line_width=0)
+    fig.add_trace(go.Scatter(x=np.r_[grid, grid[::-1]], y=np.r_[np.clip(p + 2 * se, 0, 1),
+                                                                 np.clip(p - 2 * se, 0, 1)[::-1]],
+                             fill="toself", fillcolor=OKABE_ITO["blue"], opacity=0.2, line=dict(width=0),
+                             name="Monte Carlo band (+/- 2 standard errors)", hoverinfo="skip"))
+    ph = window.curve_ph if window.curve_ph is not None else grid
+    prob = window.curve_probability if window.curve_probability is not None else p
+    fig.add_trace(go.Scatter(x=ph, y=prob, mode="lines", name="P(all specifications met)",
+                             line=dict(color=OKABE_ITO["blue"], width=2)))
     robust = window.curve_robust_probability
     if robust is not None:
-        fig.add_trace(go.Scatter(x=ph, y=robust, mode="lines", name=f"robust (+/- {window.tolerance:g} pH)",
-                                 line=dict(color="#D55E00", dash="dash")))
-    fig.add_hline(y=window.level, line=dict(color="#555555", dash="dot"),
-                  annotation_text=f"required {window.level:g}")
-    if window.primary_window:
-        lo, hi = window.primary_window
-        fig.add_vrect(x0=lo, x1=hi, fillcolor="#009E73", opacity=0.15, line_width=0,
-                      annotation_text=f"window pH {lo:.2f}-{hi:.2f}", annotation_position="top left")
-    status = window.status or "no trust status"
+        fig.add_trace(go.Scatter(x=ph, y=robust, mode="lines", name=f"robust to +/- {window.tolerance:g} pH",
+                                 line=dict(color=OKABE_ITO["vermillion"], dash="dash")))
+    fig.add_hline(y=window.level, line=dict(color=NEUTRAL, dash="dash"))
+    fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", line=dict(color=NEUTRAL, dash="dash"),
+                             name=f"required level {window.level:.2f}"))
+    for text, color, found in ((_windows_text("window", window.windows), OKABE_ITO["sky blue"], window.windows),
+                               (_windows_text("robust set points", window.robust_windows),
+                                OKABE_ITO["bluish green"], window.robust_windows)):
+        fig.add_trace(go.Scatter(x=[None], y=[None], mode="markers", name=text,
+                                 marker=dict(symbol="square", size=12, color=color,
+                                             opacity=0.6 if found else 0.15)))
+    status = window.status or "not assessed"
     fig.update_layout(template=TEMPLATE, title=dict(text=f"probability of meeting spec against pH: {status}",
                                                     font=dict(size=15)),
-                      xaxis_title="pH", yaxis_title="probability [-]", yaxis_range=[-0.02, 1.05], height=440,
-                      margin=dict(l=60, r=20, t=60, b=40))
+                      xaxis_title="pH [-]", yaxis_title="probability [-]", yaxis_range=[-0.02, 1.05], height=480,
+                      legend=dict(orientation="h", y=-0.18), margin=dict(l=60, r=20, t=60, b=40))
+    return fig
+
+
+def _windows_text(what: str, intervals) -> str:
+    if not intervals:
+        return f"{what}: none"
+    return f"{what}: " + ", ".join(f"pH {lo:.2f}-{hi:.2f}" for lo, hi in intervals)
+
+
+def correlation_figure(names: list[str], matrix, source: str) -> go.Figure:
+    """Heat map of a parameter correlation matrix (-1 to 1, the report's purple-orange scale)."""
+    corr = np.asarray(matrix, float)
+    shown = [label(n) for n in names]
+    n = len(names)
+    fig = go.Figure(go.Heatmap(z=corr, x=shown, y=shown, zmin=-1, zmax=1, colorscale="PuOr_r",
+                               colorbar=dict(title="correlation [-]"),
+                               texttemplate="%{z:.2f}" if n <= 12 else None,
+                               hovertemplate="%{y} / %{x}: %{z:.3f}<extra></extra>"))
+    size = max(360, min(760, 46 * n + 220))
+    fig.update_layout(template=TEMPLATE, title=dict(text=f"parameter correlation ({source})", font=dict(size=15)),
+                      height=size, width=size + 160, margin=dict(l=60, r=20, t=60, b=40),
+                      yaxis=dict(autorange="reversed"))
+    return fig
+
+
+def map_figure(window: Any) -> go.Figure:
+    """The design space: probability over pH and the second factor, with the level's contour and the
+    window found at each factor value (as the decision layer computed them; nothing recomputed)."""
+    ph = np.asarray(window.ph, float)
+    factor = np.asarray(window.factor_values, float)
+    p = np.asarray(window.map_probability, float).T                     # (n_factor, n_ph)
+    axis = f"{window.factor_name} [{window.factor_unit}]"
+    fig = go.Figure(go.Heatmap(x=ph, y=factor, z=p, zmin=0, zmax=1, colorscale="cividis",
+                               colorbar=dict(title="P(all specs met) [-]"),
+                               hovertemplate="pH %{x:.2f}, " + label(window.factor_name)
+                                             + " %{y:g}: %{z:.2f}<extra></extra>"))
+    if len(factor) > 1 and np.nanmin(p) < window.level < np.nanmax(p):
+        fig.add_trace(go.Contour(x=ph, y=factor, z=p, showscale=False, hoverinfo="skip",
+                                 contours=dict(start=window.level, end=window.level, size=1, coloring="none"),
+                                 line=dict(color="white", width=2), name=f"level {window.level:g}",
+                                 showlegend=True))
+    for value, intervals in zip(factor, window.map_windows or []):
+        for lo, hi in intervals:
+            fig.add_trace(go.Scatter(x=[lo, hi], y=[value, value], mode="lines+markers", showlegend=False,
+                                     line=dict(color=OKABE_ITO["sky blue"], width=4),
+                                     hovertemplate=f"window pH {lo:.2f}-{hi:.2f}<extra></extra>"))
+    fig.add_trace(go.Scatter(x=[None], y=[None], mode="lines", line=dict(color=OKABE_ITO["sky blue"], width=4),
+                             name=f"window at each {label(window.factor_name)} value"))
+    if window.nominal_factor is not None:
+        fig.add_hline(y=window.nominal_factor, line=dict(color=NEUTRAL, dash="dot"),
+                      annotation_text=f"planned {window.nominal_factor:g}", annotation_position="top left")
+    fig.update_layout(template=TEMPLATE, title=dict(text=f"design space: probability over pH and {label(axis)}",
+                                                    font=dict(size=15)),
+                      xaxis_title="pH [-]", yaxis_title=label(axis), height=460,
+                      legend=dict(orientation="h", y=-0.2), margin=dict(l=60, r=20, t=60, b=40))
     return fig

@@ -1,17 +1,13 @@
-"""Step 2 of the page: the model as a readable summary (molecules, sites, steps)."""
+"""Step 2 of the page: the model as a readable summary (molecules, sites, steps) and its parameter table."""
 
 from __future__ import annotations
 
 from dash import Input, Output, html
 
 from speciakin.errors import SpeciakinError
+from speciakin.web import page_params
 
-__all__ = ["layout", "register", "NOT_YET"]
-
-#: Honest placeholder for the parameter table (fix/free, start values, bounds, priors).
-NOT_YET = ("Parameter table: not yet available. Choosing which parameters are fitted, their start values, "
-           "bounds and priors on this page (written back to the model file with its comments kept) comes in a "
-           "later version; until then edit model.toml and reload this page.")
+__all__ = ["layout", "register"]
 
 
 def layout() -> html.Div:
@@ -19,15 +15,14 @@ def layout() -> html.Div:
         html.H3("Model"),
         html.Div(id="model-message", className="message"),
         html.Pre(id="model-summary", className="summary"),
-        html.H3("Parameters"),
-        html.P(NOT_YET, id="parameter-placeholder", className="placeholder"),
+        page_params.layout(),
     ])
 
 
 def register(app, state) -> None:
     @app.callback(Output("model-summary", "children"), Output("model-message", "children"),
-                  Input("campaign-choice", "value"))
-    def summary(name):
+                  Input("campaign-choice", "value"), Input("param-version", "data"))
+    def summary(name, _saved):
         if not name:
             return "", "choose a campaign folder first"
         from speciakin.chemistry.modelfile import load_model
@@ -40,3 +35,5 @@ def register(app, state) -> None:
             return "", f"error: {exc}"
         text = text.replace("\nRuns\n  (none)\n", "\nRuns\n  (from the workbook: see step 1)\n")
         return text, f"model file: {name}/model.toml"
+
+    page_params.register(app, state)

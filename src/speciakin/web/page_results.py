@@ -1,25 +1,36 @@
-"""Step 4 of the page: a result folder's parameters, fitted curves and pH window; step 5 (history) placeholder."""
+"""Step 4 of the page: a result folder's parameters, correlation, pH window, 2-D map and fitted curves.
+
+Everything shown is read from the result folder as the pipeline wrote it
+(``fit.json``, ``posterior.json``/``posterior.h5``, ``window.json``) and from
+the pipeline's predictions (:func:`speciakin.pipeline.load_results`); the page
+computes no window, map or curve itself.  Step 5 (history) placeholder.
+"""
 
 from __future__ import annotations
 
 import json
+import threading
 
+import numpy as np
 import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
-from speciakin.web.figures import empty_figure, fit_run_figure, window_figure
+from speciakin.web.figures import correlation_figure, empty_figure, fit_run_figure, map_figure, window_figure
 from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
 
-__all__ = ["layout", "register", "parameter_rows", "HISTORY_NOT_YET", "PARAMETER_COLUMNS"]
+__all__ = ["layout", "register", "parameter_rows", "correlation_of", "PARAMETER_COLUMNS"]
 
-HISTORY_NOT_YET = ("History: not yet available. Every result of the campaign from the results index, and two "
-                   "results side by side, come in a later version; until then choose one result folder above.")
+HISTORY_HINT = "Every result of the campaign, and two results side by side: see tab 5 History."
 #: Columns of the parameter table: (field, header).
 PARAMETER_COLUMNS = (("name", "parameter"), ("unit", "unit"), ("value", "value"), ("se", "standard error"),
                      ("ci", "95 % interval (covariance)"), ("profile", "95 % interval (profile)"),
+                     ("posterior", "posterior median"), ("credible", "95 % credible interval"),
                      ("note", "note"))
+_GRAPH = {"displaylogo": False}
+#: Value of this page's tab (``app._TABS``).
+TAB = "results"
 
 
 def layout() -> html.Div:
@@ -28,20 +39,29 @@ def layout() -> html.Div:
         html.Div(id="result-message", className="message"),
         html.H3("Fitted parameters"),
         dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
-                                                      "flex": 2 if f in ("name", "note", "ci") else 1}
+                                                      "flex": 2 if f in ("name", "note", "ci") else 1,
+                                                      "minWidth": 190 if f == "name" else 90}
                                                      for f, h in PARAMETER_COLUMNS],
-                   rowData=[], defaultColDef={"sortable": True, "resizable": True},
+                   rowData=[], defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
+                                              "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True,
+                                              "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px",
+                                                            "wordBreak": "break-word"}},
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
         html.Ul(id="fit-warnings"),
+        html.H3("Parameter correlation"),
+        dcc.Graph(id="correlation-figure", figure=empty_figure("choose a result"), config=_GRAPH),
         html.H3("pH window"),
         html.Div(id="window-status", className="status"),
         html.Ul(id="window-reasons"),
-        dcc.Graph(id="window-figure", figure=empty_figure("choose a result"), config={"displaylogo": False}),
+        dcc.Graph(id="window-figure", figure=empty_figure("choose a result"), config=_GRAPH),
+        html.H3("Design space over pH and a second condition"),
+        dcc.Graph(id="map-figure", figure=empty_figure("choose a result"), config=_GRAPH),
         html.H3("Fitted curves over data"),
         dcc.Dropdown(id="fit-run", placeholder="choose a run", clearable=False, style={"maxWidth": "320px"}),
-        dcc.Graph(id="fit-figure", figure=empty_figure("choose a result"), config={"displaylogo": False}),
+        html.Div(id="fit-message", className="message"),
+        dcc.Graph(id="fit-figure", figure=empty_figure("choose a result"), config=_GRAPH),
         html.H3("History"),
-        html.P(HISTORY_NOT_YET, id="history-placeholder", className="placeholder"),
+        html.P(HISTORY_HINT, id="history-hint", className="message"),
     ])
 
 
@@ -59,19 +79,44 @@ def _profile(p: dict) -> str:
     return _interval(p.get("profile_interval"))
 
 
-def parameter_rows(fit_data: dict) -> list[dict]:
-    """One row per parameter of ``fit.json``: value, standard error, covariance and profile intervals."""
+def parameter_rows(fit_data: dict, posterior_data: dict | None = None) -> list[dict]:
+    """One row per parameter of ``fit.json``: value, standard error, covariance and profile intervals,
+    and (when ``posterior.json`` is given) the posterior median and 95 % credible interval."""
+    summary = {s.get("name"): s for s in (posterior_data or {}).get("summary", [])}
     rows = []
     for p in fit_data.get("parameters", []):
         notes = [n for n, flag in (("fixed", p.get("fixed")), ("at a bound", p.get("at_bound"))) if flag]
         if p.get("shift_of") is not None and p.get("implied_value") is not None:
             notes.append(f"shift of {p['shift_of']:g}: implies {p['implied_value']:.4g}")
         value, se = p.get("value"), p.get("standard_error")
+        post = summary.get(p.get("name"), {})
+        if post.get("r_hat") is not None and post["r_hat"] > 1.01:  # Vehtari et al. 2021 (docs/sampling.md)
+            notes.append(f"R-hat {post['r_hat']:.3f}")
         rows.append({"name": p.get("name"), "unit": p.get("unit") or "",
                      "value": "" if value is None else f"{value:.5g}", "se": "" if se is None else f"{se:.3g}",
                      "ci": _interval(p.get("covariance_interval")), "profile": _profile(p),
+                     "posterior": "not sampled" if not post else _number(post.get("median")),
+                     "credible": "" if not post else _interval((post.get("lower_95"), post.get("upper_95"))),
                      "note": ", ".join(notes)})
     return rows
+
+
+def _number(value) -> str:
+    return "" if value is None else f"{value:.5g}"
+
+
+def correlation_of(fit_data: dict, posterior=None) -> tuple[list[str], np.ndarray, str] | None:
+    """(names, correlation matrix, source): the fit's (from its covariance, in ``fit.json``), else the
+    posterior samples'; None when neither is available."""
+    corr = (fit_data or {}).get("correlation") or {}
+    names, matrix = corr.get("names"), corr.get("matrix")
+    if names and matrix is not None:
+        values = np.array([[np.nan if v is None else v for v in row] for row in matrix], dtype=float)
+        if values.shape == (len(names), len(names)) and np.all(np.isfinite(values)):
+            return list(names), values, "least-squares covariance"
+    if posterior is not None and posterior.samples.shape[0] > 2 and posterior.samples.shape[1] > 1:
+        return list(posterior.parameter_names), np.corrcoef(posterior.samples.T), "posterior samples"
+    return None
 
 
 def _result_folder(state, name, result):
@@ -84,12 +129,68 @@ def _result_folder(state, name, result):
     return folder, out
 
 
+_LOCKS: dict[str, threading.Lock] = {}
+_LOCKS_GUARD = threading.Lock()
+
+
 def _results(state, folder, out):
+    """The pipeline's results of ``out`` with their predictions (cached); one load at a time per folder,
+    so a page that asks while the prefetch still loads waits for it instead of loading twice."""
     from speciakin import pipeline
 
-    files = [out / "fit.json", out / "window.json", *state.inputs_of(folder)]
-    return state.cached("results", files, lambda: pipeline.load_results(
-        out, campaign=str(folder), model=str(folder / "model.toml"), check=False))
+    with _LOCKS_GUARD:
+        lock = _LOCKS.setdefault(str(out), threading.Lock())
+    files = [out / "fit.json", out / "window.json", out / "posterior.h5", *state.inputs_of(folder)]
+    with lock:
+        return state.cached("results", files, lambda: pipeline.load_results(
+            out, campaign=str(folder), model=str(folder / "model.toml"), check=False))
+
+
+def _prefetch(state, folder, out) -> None:
+    """Load the newest result in the background when its campaign is chosen (the fitted curves need the
+    pipeline's predictions, seconds for the demo), so the results tab answers at once."""
+    def load():
+        try:
+            _results(state, folder, out)
+        except (SpeciakinError, OSError, ValueError):
+            pass  # the results tab shows the error when it is opened
+    threading.Thread(target=load, name="speciakin-prefetch", daemon=True).start()
+
+
+def _views(state, out):
+    """Every view but the curves, from the result folder's files (no model, no simulation), cached:
+    table rows, warnings, correlation figure, window status and reasons, window figure, 2-D map."""
+    from speciakin.pipeline import outputs
+
+    def read():
+        fit_data = json.loads((out / "fit.json").read_text(encoding="utf-8"))
+        summary = out / outputs.RESULT_FILES["posterior_summary"]
+        posterior_data = json.loads(summary.read_text(encoding="utf-8")) if summary.is_file() else None
+        correlation = correlation_of(fit_data)
+        if correlation is None and posterior_data is not None:
+            correlation = correlation_of(fit_data, outputs.load_posterior(out))
+        warnings = [html.Li(w) for w in [*fit_data.get("warnings", []),
+                                         *(posterior_data or {}).get("warnings", [])]]
+        corr = (empty_figure("no correlation: the fit has no covariance and there is no posterior")
+                if correlation is None else correlation_figure(*correlation))
+        return (parameter_rows(fit_data, posterior_data), warnings, corr,
+                *_window_views(outputs.load_window(out)))
+
+    files = [out / "fit.json", out / "window.json", out / "posterior.json", out / "posterior.h5"]
+    return state.cached("views", files, read)
+
+
+def _window_views(window):
+    if window is None:
+        message = "no window in this result (no process file, or the window step was not run)"
+        return message, [], empty_figure("no window"), empty_figure("no window, so no map")
+    status = f"window status: {window.status or 'not assessed'}; {_window_line(window)}"
+    reasons = [html.Li(r) for r in window.status_reasons]
+    if window.map_probability is None or window.factor_values is None:
+        drawn = empty_figure("no 2-D map: the process file has no [scan.second_factor]")
+    else:
+        drawn = map_figure(window)
+    return status, reasons, window_figure(window), drawn
 
 
 def register(app, state) -> None:
@@ -100,37 +201,48 @@ def register(app, state) -> None:
         if not name:
             return [], None
         try:
-            names = result_folders(state.folder(name))
+            folder = state.folder(name)
+            names = result_folders(folder)
         except SpeciakinError:
             return [], None
-        return [{"label": n, "value": n} for n in names], current if current in names else (names[0] if names else None)
+        chosen = current if current in names else (names[0] if names else None)
+        if chosen:
+            _prefetch(state, *_result_folder(state, name, chosen))
+        return [{"label": n, "value": n} for n in names], chosen
 
     @app.callback(Output("parameter-table", "rowData"), Output("fit-warnings", "children"),
+                  Output("correlation-figure", "figure"),
                   Output("window-status", "children"), Output("window-reasons", "children"),
-                  Output("window-figure", "figure"), Output("fit-run", "options"), Output("fit-run", "value"),
+                  Output("window-figure", "figure"), Output("map-figure", "figure"),
                   Output("result-message", "children"),
-                  Input("result-choice", "value"), State("campaign-choice", "value"))
-    def show(result, name):
-        blank = ([], [], "", [], empty_figure("no result chosen"), [], None)
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
+    def show(result, tab, name):
+        _only_when_shown(tab)
+        blank = ([], [], empty_figure("no result chosen"), "", [], empty_figure("no result chosen"),
+                 empty_figure("no result chosen"))
         if not name or not result:
             return *blank, "no result yet: start a fit job on the Jobs tab"
         try:
-            folder, out = _result_folder(state, name, result)
-            fit_data = json.loads((out / "fit.json").read_text(encoding="utf-8"))
-            results = _results(state, folder, out)
+            _, out = _result_folder(state, name, result)
+            views = _views(state, out)
         except (SpeciakinError, OSError, ValueError) as exc:
             return *blank, f"error: {exc}"
-        warnings = [html.Li(w) for w in fit_data.get("warnings", [])]
-        window = results.window
-        if window is None:
-            status, reasons, figure = "no window in this result (no process file)", [], empty_figure("no window")
-        else:
-            status = f"window status: {window.status or 'not evaluated'}; {_window_line(window)}"
-            reasons = [html.Li(r) for r in window.status_reasons]
-            figure = window_figure(window)
-        runs = [r.name for r in results.predictions.runs] if results.predictions else []
-        return (parameter_rows(fit_data), warnings, status, reasons, figure,
-                [{"label": r, "value": r} for r in runs], runs[0] if runs else None, f"result {result}")
+        return *views, f"result {result}"
+
+    @app.callback(Output("fit-run", "options"), Output("fit-run", "value"), Output("fit-message", "children"),
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
+    def runs(result, tab, name):
+        _only_when_shown(tab)
+        if not name or not result:
+            return [], None, ""
+        try:
+            folder, out = _result_folder(state, name, result)
+            results = _results(state, folder, out)
+        except (SpeciakinError, OSError, ValueError) as exc:
+            return [], None, f"the fitted curves cannot be drawn: {exc}"
+        names = [r.name for r in results.predictions.runs] if results.predictions else []
+        note = f"curves: {results.predictions.source}" if results.predictions else ""
+        return [{"label": r, "value": r} for r in names], names[0] if names else None, note
 
     @app.callback(Output("fit-figure", "figure"), Input("fit-run", "value"), State("result-choice", "value"),
                   State("campaign-choice", "value"))
@@ -143,11 +255,20 @@ def register(app, state) -> None:
             prediction = results.predictions.run(run_name)
         except (SpeciakinError, OSError, StopIteration) as exc:
             return empty_figure(f"cannot plot: {exc}")
-        from speciakin.palette import SpeciesColors
+        from speciakin.palette import display_names, model_species_colors
 
-        colors = SpeciesColors([m.name for m in results.model.molecules])
         observations = [o for o in results.predictions.observations if o.run == run_name]
-        return fit_run_figure(prediction, observations, colors)
+        return fit_run_figure(prediction, observations, model_species_colors(results.model),
+                              display_names(results.model))
+
+
+def _only_when_shown(tab) -> None:
+    """Results are read only while their tab is shown, so that loading them (the fitted curves need the
+    pipeline's predictions, seconds for a large campaign) never holds up the other tabs."""
+    from dash.exceptions import PreventUpdate
+
+    if tab != TAB:
+        raise PreventUpdate
 
 
 def _window_line(window) -> str:

@@ -29,7 +29,7 @@ from speciakin.chemistry.modelfile.validate import hydrolysis_step_name
 from speciakin.errors import InputError, Location, ModelFileError
 
 __all__ = ["ParameterOverride", "parse_overrides", "apply_overrides_text", "load_model_with_overrides",
-           "write_overrides", "overridable_names"]
+           "write_overrides", "overridable_names", "written_value"]
 
 _NAME = re.compile(r"^(pKa|dH|log10k|Ea)\[([^\]]+)\]$")
 _KEY_OF = {"pKa": "pka", "dH": "enthalpy", "Ea": "activation_energy"}
@@ -49,6 +49,9 @@ class ParameterOverride:
         Starting (or fixed) value, as the model file would write it (number or text with unit).
     lower, upper
         Bounds on the fitted scale of the model file (pKa: of the shift; rate constants: log10 k).
+    prior
+        ``{"family": ..., <parameters>}`` as the model file writes it (replaces a pKa's ``spread``);
+        an empty dict removes the stated prior (back to the default).
     """
 
     name: str
@@ -56,6 +59,7 @@ class ParameterOverride:
     start: float | str | None = None
     lower: float | None = None
     upper: float | None = None
+    prior: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return {k: v for k, v in asdict(self).items() if v is not None}
@@ -140,6 +144,19 @@ def _entry(doc, name: str):
     return table, ("log10_k" if "log10_k" in table else "k")
 
 
+def written_value(text, name: str) -> Any:
+    """What the model file writes for parameter ``name``: a number, a text with its unit, or a
+    quantity table as a dict; None when an override cannot change it (unknown, shared, W).
+    ``text`` is the file's text or its ``tomlkit.parse`` document (parsed once for many names)."""
+    import tomlkit
+
+    where = _entry(tomlkit.parse(text) if isinstance(text, str) else text, name)
+    if where is None or where[1] not in where[0]:
+        return None
+    value = where[0][where[1]]
+    return value.unwrap() if hasattr(value, "unwrap") else value
+
+
 def _change(table, key: str, o: ParameterOverride) -> None:
     import tomlkit
 
@@ -156,6 +173,14 @@ def _change(table, key: str, o: ParameterOverride) -> None:
     if o.lower is not None:
         entry["lower"] = o.lower
         entry["upper"] = o.upper
+    if o.prior is not None:
+        for old in ("spread", "prior"):  # the file takes a spread or a prior, not both
+            if old in entry:
+                del entry[old]
+        if o.prior:
+            prior = tomlkit.inline_table()
+            prior.update(o.prior)
+            entry["prior"] = prior
     if entry is not current:
         table[key] = entry
 

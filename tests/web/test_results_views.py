@@ -1,0 +1,173 @@
+"""The results views in a real headless Chromium: correlation, probability against pH with the window and
+its status, the 2-D map and the fitted curves of a finished short result (copy of the INVENTED demo),
+and how fast the demo's pages answer (figures printed, not asserted: speed is checked by benchmarks).
+"""
+
+from __future__ import annotations
+
+import json
+import time
+
+import numpy as np
+import pytest
+
+from .test_journey import choose, open_campaign
+
+pytestmark = pytest.mark.filterwarnings("ignore")
+
+CAMPAIGN = "views-short"
+RESULT = "20260101-000000-views"
+
+
+@pytest.fixture(scope="module")
+def result(root):
+    """A finished short result with a 2-D map: the reduced demo, a second factor of two values, one
+    least-squares start without profiles, 8 window draws on a 1-pH grid (pipeline API, as a job does)."""
+    from pipeline.regression_case import build_reduced_demo
+    from speciakin import pipeline
+
+    case = build_reduced_demo(root / CAMPAIGN)
+    process = (case / "process.toml").read_text().replace("ph_step = 0.5", "ph_step = 1.0")
+    process = process.replace("[[specification]]", '[scan.second_factor]\nkind = "equivalents"\n'
+                              'values = ["1.10 eq", "1.20 eq"]\n\n[[specification]]', 1)
+    (case / "process.toml").write_text(process)
+    out = case / "results" / RESULT
+    out.mkdir(parents=True)
+    inputs = pipeline.resolve_inputs(case)
+    pipeline.check_step(inputs, out)
+    model, campaign, plan = pipeline.load_inputs(inputs)
+    objective = pipeline.make_objective(model, campaign)
+    fit = pipeline.fit_step(objective, out, starts=1, seed=3, profiles=False)
+    pipeline.window_step(objective, plan, out, fit=fit, draws=8, seed=5)
+    return out
+
+
+def plotted(page, graph: str) -> list[dict]:
+    """The traces Plotly draws for the graph with id ``graph`` (its full data, arrays as plain lists)."""
+    return page.evaluate(
+        "(id) => { const plain = v => v == null ? v : ArrayBuffer.isView(v) ? Array.from(v) :"
+        " Array.isArray(v) ? v.map(plain) : v;"
+        " return document.querySelector(`#${id} .js-plotly-plot`)._fullData.map(t => ({type: t.type,"
+        " name: t.name, x: plain(t.x), y: plain(t.y), z: plain(t.z), color: t.line && t.line.color})); }", graph)
+
+
+def test_results_show_correlation_window_with_status_map_and_curves(server, page, result, shot):
+    url, _ = server
+    fit = json.loads((result / "fit.json").read_text())
+    window = json.loads((result / "window.json").read_text())
+    open_campaign(page, url, CAMPAIGN)
+    page.click("text=4 Results")
+    page.wait_for_selector(f"#result-choice-value:has-text('{RESULT}')")
+    page.wait_for_selector("#correlation-figure .gtitle:has-text('parameter correlation')")
+    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
+    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    shot(page, "30-results-views")
+
+    # correlation: the fit's own matrix, as fit.json holds it
+    heat = plotted(page, "correlation-figure")[0]
+    assert heat["type"] == "heatmap" and heat["x"] == fit["correlation"]["names"]
+    np.testing.assert_array_equal(np.array(heat["z"], float), np.array(fit["correlation"]["matrix"], float))
+    assert "least-squares covariance" in page.text_content("#correlation-figure .gtitle")
+
+    # probability against pH: the refined curve, the window and its trust status from window.json
+    assert window["status"] in page.text_content("#window-figure .gtitle")
+    assert f"window status: {window['status']}" in page.inner_text("#window-status")
+    curve = next(t for t in plotted(page, "window-figure") if t["name"] == "P(all specifications met)")
+    np.testing.assert_array_equal(curve["x"], window["curve_ph"])
+    np.testing.assert_array_equal(curve["y"], window["curve_probability"])
+    lo, hi = window["primary_window"]
+    legend = page.text_content("#window-figure .legend")
+    assert f"pH {lo:.2f}-{hi:.2f}" in legend and f"required level {window['level']:.2f}" in legend
+    for reason in window["status_reasons"]:
+        assert page.locator("#window-reasons li", has_text=reason[:40]).count() == 1
+
+    # the 2-D map: the decision layer's probabilities over pH x equivalents, not recomputed
+    grid = next(t for t in plotted(page, "map-figure") if t["type"] == "heatmap")
+    assert grid["x"] == window["ph"] and grid["y"] == window["factor_values"] == [1.1, 1.2]
+    np.testing.assert_array_equal(np.array(grid["z"], float), np.array(window["map_probability"], float).T)
+    assert "equivalents" in page.text_content("#map-figure .g-ytitle")
+
+    # fitted curves: compound names (labels of the model file) in the legend, the report's colours
+    names = [t["name"] for t in plotted(page, "fit-figure")]
+    assert "QX-2209 N-aryl amide (desired, invented) fitted" in names
+    assert "QX-2209 N-aryl amide (desired, invented) observed" in names
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.palette import model_species_colors
+
+    colors = model_species_colors(load_model(result.parent.parent / "model.toml"))
+    line = next(t for t in plotted(page, "fit-figure") if t["name"] == "QX-2209 N-aryl amide (desired, invented) fitted")
+    assert line["color"] == colors.color("P_aryl")
+    # the parameter table lists the fit's parameters; no posterior in this result
+    page.wait_for_selector("#parameter-table .ag-row")
+    assert set(page.locator("#parameter-table [col-id='posterior'].ag-cell").all_inner_texts()) == {"not sampled"}
+
+
+def test_zoom_is_interactive(server, page, result, shot):
+    """A drag on the curves zooms (Plotly's own zoom, in the browser)."""
+    url, _ = server
+    open_campaign(page, url, CAMPAIGN)
+    page.click("text=4 Results")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    before = page.evaluate("() => document.querySelector('#fit-figure .js-plotly-plot').layout.xaxis.range.slice()")
+    drag = page.locator("#fit-figure .nsewdrag").first
+    drag.scroll_into_view_if_needed()
+    box = drag.bounding_box()  # in the viewport, where the mouse moves
+    page.mouse.move(box["x"] + box["width"] * 0.2, box["y"] + box["height"] * 0.5)
+    page.mouse.down()
+    page.mouse.move(box["x"] + box["width"] * 0.5, box["y"] + box["height"] * 0.6, steps=5)
+    page.mouse.up()
+    page.wait_for_function("(b) => { const r = document.querySelector('#fit-figure .js-plotly-plot')"
+                           ".layout.xaxis.range; return r[1] - r[0] < 0.6 * (b[1] - b[0]); }", arg=before)
+    shot(page, "31-curves-zoomed")
+
+
+def _answers(page, action, expected: dict[str, str]) -> dict[str, float]:
+    """Seconds from ``action`` to the server's answer for each component of ``expected`` (id -> a
+    selector that shows it drawn, or None for a component of a tab not shown); "all drawn" is the time
+    until every answer has come and every selector is present."""
+    seen: dict[str, float] = {}
+    start = time.perf_counter()
+
+    def on_response(response):
+        if "_dash-update-component" in response.url:
+            body = response.request.post_data or ""
+            for output in expected:
+                if f"{output}." in body and output not in seen:
+                    seen[output] = time.perf_counter() - start
+
+    page.on("response", on_response)
+    action()
+    for output, drawn in expected.items():
+        if drawn:
+            page.wait_for_selector(drawn)
+        end = time.perf_counter() + 120
+        while output not in seen and time.perf_counter() < end:
+            page.wait_for_timeout(20)
+    seen["all drawn"] = time.perf_counter() - start
+    page.remove_listener("response", on_response)
+    return seen
+
+
+def test_page_speed_on_the_demo(server, page, result, capsys):
+    """Time from a choice on the page to the answers drawn in the browser, first and again [s]."""
+    url, _ = server
+    page.goto(url)
+    page.wait_for_selector("#campaign-choice")
+    figures = {}
+    for attempt in ("first", "again"):
+        for name, runs in (("demo", 6), (CAMPAIGN, 3)):
+            figures[f"choose campaign {name} ({attempt})"] = _answers(
+                page, lambda: choose(page, "campaign-choice", name),
+                {"check-summary": f"#check-summary:has-text('{runs} run(s)')", "raw-figure-box": "#raw-figure",
+                 "model-summary": None, "param-table": None})
+    for attempt in ("first", "again"):
+        figures[f"open the results tab ({attempt})"] = _answers(
+            page, lambda: page.click("text=4 Results"),
+            {"map-figure": "#map-figure .gtitle:has-text('design space')",
+             "fit-figure": "#fit-figure .gtitle:has-text('fitted')"})
+        page.click("text=1 Campaign and data")
+    with capsys.disabled():
+        print("\npage answers [s] (headless Chromium, server and browser on this machine, now):")
+        for what, seconds in figures.items():
+            print(f"  {what:<36} " + ", ".join(f"{k} {v:.2f}" for k, v in seconds.items()))
