@@ -157,3 +157,17 @@ def test_equivalents_refer_to_the_models_substrate(tmp_path):
     report = check_campaign(folder / "csv", model=folder / "model.toml")
     bad = [p for p in report.errors if p.code == "equivalents_of"]
     assert len(bad) == 1 and bad[0].location.column == "C (amount [eq])" and "S" in bad[0].expected
+
+
+def test_run_without_any_measured_molecule_is_a_located_error(tmp_path):
+    # R01 measures S and its products by area%; with no S at the start (and none dosed) every modelled
+    # area% is 0 / 0, which the fit could only meet with NaN: an error at the blank initial cell instead
+    folder = csv_campaign(tmp_path)
+    for value in ("", "0"):
+        edit(folder, "runs.csv", 2, "initial S [mmol]", value)
+        bad = [p for p in check_campaign(folder).errors if p.code == "nothing_measured"]
+        assert len(bad) == 1, value
+        assert bad[0].location.row == 2 and bad[0].location.column.endswith("(initial S [mmol])")
+    # a tiny amount is still an amount: no such error
+    edit(folder, "runs.csv", 2, "initial S [mmol]", "1e-9")
+    assert not [p for p in check_campaign(folder).errors if p.code == "nothing_measured"]
