@@ -362,8 +362,19 @@ def test_bad_input(case, bases, tmp_path, capsys):
         assert outcome == {"check": "warning", "fit": "complete", "run": "complete"}, outcome
 
 
+#: Cases that pass ``check`` but whose fit stops with a solver error (exit code 3, the solver's words, no
+#: location): open findings, expected to fail until fixed (strict: a fix makes the test say so).
+SOLVER_FAILURES = {
+    "runs[pH setpoint]='0'": "held at pH 0 with a base titrant: the run does not integrate at the start values "
+                             "(kernel status 2, step size too small); check only warns (setpoint_deviation)",
+    "runs[pH setpoint]='1e-300'": "as pH setpoint 0",
+    "dosing.csv[end [min]]=''": "the 30 min dose read as given at once: one least-squares start does not converge",
+}
+
+
 @pytest.mark.slow
-@pytest.mark.parametrize("case", CASES, ids=[c[0] for c in CASES])
+@pytest.mark.parametrize("case", [pytest.param(c, marks=pytest.mark.xfail(strict=True, reason=SOLVER_FAILURES[c[0]]))
+                                  if c[0] in SOLVER_FAILURES else c for c in CASES], ids=[c[0] for c in CASES])
 def test_bad_input_fit_and_run(case, bases, tmp_path, capsys):
     folder = _prepare(case, bases, tmp_path)
     OUTCOMES[case[0]] = run_case(folder, capsys, commands=True)
