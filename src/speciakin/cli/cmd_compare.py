@@ -19,7 +19,9 @@ def add_arguments(parser) -> None:
     parser.epilog = EPILOG
     parser.add_argument("campaign", help="campaign folder or workbook (.xlsx)")
     parser.add_argument("--models", nargs="+", required=True, metavar="MODEL.toml", help="model files to compare")
-    parser.add_argument("--out", metavar="DIR", help="output folder, new or without a comparison (default: a new folder under <campaign>/results/)")
+    parser.add_argument("--out", metavar="DIR",
+                        help="output folder, new or without a comparison (default: a new folder under "
+                             "<campaign>/results/)")
     parser.add_argument("--starts", type=int, default=None, help="starting points per fit")
     parser.add_argument("--seed", type=int, default=None, help="seed of the starting points")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
