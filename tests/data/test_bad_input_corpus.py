@@ -369,6 +369,8 @@ SOLVER_FAILURES = {
                              "(kernel status 2, step size too small); check only warns (setpoint_deviation)",
     "runs[pH setpoint]='1e-300'": "as pH setpoint 0",
     "dosing.csv[end [min]]=''": "the 30 min dose read as given at once: one least-squares start does not converge",
+    "hplc_results.csv header 'time [min]'->'time / s'": "sampling minutes read as seconds (every sample within "
+                                                         "3 min): check only warns, the fit meets NaN",
 }
 
 
