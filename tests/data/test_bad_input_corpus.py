@@ -375,7 +375,8 @@ SOLVER_FAILURES = {
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("case", [pytest.param(c, marks=pytest.mark.xfail(strict=True, reason=SOLVER_FAILURES[c[0]]))
+@pytest.mark.parametrize("case", [pytest.param(c, marks=pytest.mark.xfail(strict=True, raises=AssertionError,
+                                                                      reason=SOLVER_FAILURES[c[0]]))
                                   if c[0] in SOLVER_FAILURES else c for c in CASES], ids=[c[0] for c in CASES])
 def test_bad_input_fit_and_run(case, bases, tmp_path, capsys):
     folder = _prepare(case, bases, tmp_path)
