@@ -23,7 +23,7 @@ install: $(STAMP)
 demo:
 	@start=$$(date +%s); \
 	$(MAKE) --no-print-directory install && \
-	$(VENV)/bin/speciakin demo --out reports/demo && \
+	$(VENV)/bin/speciakin demo && \
 	echo "make demo: $$(( $$(date +%s) - start )) s in all, install included"
 
 test: $(STAMP)

@@ -197,9 +197,8 @@ class ModelFileError(InputError):
 
 
 class DataError(InputError):
-    """Campaign spreadsheets that do not import or validate."""
-
-    exit_code = 1
+    """Campaign spreadsheets that do not import or validate (bad input: exit code 2 when a command
+    stops on it; ``speciakin check`` itself reports them and exits 1)."""
 
 
 class SolverError(SpeciakinError):

@@ -1,9 +1,9 @@
-"""A corpus of bad inputs through ``speciakin check`` and the fit's set-up.
+"""A corpus of bad inputs through ``speciakin check``, ``speciakin fit`` and ``speciakin run``.
 
 Base: the invented demo campaign (workbook or CSV folder) with its model
-file.  Each case damages one thing: a cell, a header unit, a whole file, a
-sheet, the workbook container, or a model-file value.  The contract
-(errors.py, docs/data.md):
+file and a coarse process file.  Each case damages one thing: a cell, a
+header unit, a whole file, a sheet, the workbook container, or a model-file
+value.  The contract (errors.py, docs/data.md):
 
 * ``check`` exits 0 (no errors), 1 (errors in the data) or 2 (bad input),
   never with an exception;
@@ -12,8 +12,16 @@ sheet, the workbook container, or a model-file value.  The contract
 * a case that passes ``check`` sets up the fit (model + campaign + compiled
   runs) without an error at an internal key: whatever the simulator would
   reject was reported at its workbook cell first;
-* no input file is modified (SHA-256 before and after).
+* a case that fails ``check`` makes ``fit`` and ``run`` stop before any work
+  with exit code 2 and a message naming the file (and cell or key);
+* a case that passes ``check`` (with documented warnings) completes ``fit``
+  (one start, no profiles) and ``run --quick`` (one start, 16 window draws);
+* no input file is modified (SHA-256 before and after all three commands;
+  the result folders under ``results/`` are outputs).
 
+The default suite sends every case through ``check`` and a representative
+sample (every twentieth case and two cases that pass with warnings) through
+``fit`` and ``run`` as well; ``-m slow`` sends every case through all three.
 The counts printed by :func:`test_corpus_counts` are quoted in the report.
 """
 
@@ -40,8 +48,9 @@ BAD_VALUES = ["", "abc", "-1", "1e300", "1e-300", "0", "inf", "nan", "=1+2", "7,
 # ------------------------------------------------------------------ helpers
 
 def _hashes(folder: Path) -> dict[str, str]:
+    """SHA-256 of every input file (the result folders under ``results/`` are outputs)."""
     return {str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
-            for p in sorted(folder.rglob("*")) if p.is_file()}
+            for p in sorted(folder.rglob("*")) if p.is_file() and p.relative_to(folder).parts[0] != "results"}
 
 
 def _rows(path: Path) -> list[list[str]]:
@@ -228,12 +237,16 @@ CASES = corpus()
 def bases(tmp_path_factory):
     from speciakin.data import load_campaign, write_campaign
 
+    from pipeline.regression_case import build_reduced_demo
+
     root = tmp_path_factory.mktemp("corpus-base")
+    reduced = build_reduced_demo(root / "reduced")   # its process file: coarse pH grid, 16 window draws
     out = {}
     for kind in ("csv", "xlsx"):
         folder = root / kind
         folder.mkdir()
         shutil.copy(DEMO / "model.toml", folder / "model.toml")
+        shutil.copy(reduced / "process.toml", folder / "process.toml")
         if kind == "xlsx":
             shutil.copy(DEMO / "campaign.xlsx", folder / "campaign.xlsx")
         else:
@@ -242,16 +255,24 @@ def bases(tmp_path_factory):
     return out
 
 
-OUTCOMES: dict[str, str] = {}
+#: Outcome of each case per command ("error", "warning", "clean"; "complete" for fit and run).
+OUTCOMES: dict[str, dict[str, str]] = {}
+
+FIT = ["--starts", "1", "--no-profiles", "--quiet", "--seed", "1"]
+QUICK_RUN = ["--quick", "--starts", "1", "--draws", "16", "--quiet", "--seed", "1"]
+#: Cases that pass ``check`` with warnings and go through fit and run in the default suite
+#: (one workbook finding, one model-file finding).
+PASSING_SAMPLE = ("hplc decimal comma ;", "model pKa 40")
+#: Every twentieth case also goes through fit and run in the default suite.
+SAMPLE = {c[0] for c in CASES[::20]} | set(PASSING_SAMPLE)
 
 
-def run_case(folder: Path, capsys) -> str:
-    """Run one case; returns 'error', 'warning' or 'clean'."""
+def _check(folder: Path, capsys) -> str:
+    """``speciakin check`` (and the fit's set-up when it passes); 'error', 'warning' or 'clean'."""
     import json
 
     from speciakin.cli.main import main
 
-    before = _hashes(folder)
     code = main(["check", str(folder), "--format", "json"])
     out = capsys.readouterr()
     assert code in (0, 1, 2), code
@@ -276,17 +297,90 @@ def run_case(folder: Path, capsys) -> str:
             for p in exc.problems:  # a late error must point at the workbook, not at an internal run key
                 assert p.location.sheet or not (p.location.key or "").startswith("run."), p.describe()
             outcome = "error"
+    return outcome
+
+
+def _assert_located(err: str, folder: Path) -> None:
+    """Every problem of a command's error message names a file of the campaign (and its cell or key)."""
+    assert "Traceback" not in err, err
+    listed = [line for line in err.splitlines() if line.startswith("  - ")]
+    for line in listed or [err]:
+        assert str(folder) in line, f"not located: {line}"
+
+
+def _command(argv: list[str], folder: Path, capsys, failed_check: bool) -> str:
+    """``speciakin fit`` or ``run`` on a case; 'error' (located, exit code 2) or 'complete'."""
+    from speciakin.cli.main import main
+    from speciakin.pipeline import folders
+
+    before = set(folders.result_folders(folder / "results"))
+    code = main([argv[0], str(folder), *argv[1:]])
+    out = capsys.readouterr()
+    assert "Traceback" not in out.out + out.err
+    if failed_check:  # stops before any work, names the place
+        assert code == 2, (code, out.err[-2000:])
+        _assert_located(out.err, folder)
+        new = set(folders.result_folders(folder / "results")) - before
+        assert not any((f / "fit.json").exists() for f in new), "a fit was written for a case that fails check"
+        return "error"
+    assert code == 0, (code, out.err[-2000:])
+    new = set(folders.result_folders(folder / "results")) - before
+    assert len(new) == 1, new
+    made = new.pop()
+    assert folders.read_status(made)["status"] == "complete"
+    assert (made / "fit.json").is_file()
+    if "--quick" in argv:
+        assert (made / "window.json").is_file()
+    return "complete"
+
+
+def run_case(folder: Path, capsys, commands: bool) -> dict[str, str]:
+    """Run one case through check (and, with ``commands``, fit and run --quick); outcome per command."""
+    before = _hashes(folder)
+    outcome = {"check": _check(folder, capsys)}
+    if commands:
+        failed = outcome["check"] == "error"
+        outcome["fit"] = _command(["fit", *FIT], folder, capsys, failed)
+        outcome["run"] = _command(["run", *QUICK_RUN], folder, capsys, failed)
     assert _hashes(folder) == before, "an input file was modified"
     return outcome
 
 
-@pytest.mark.parametrize("case", CASES, ids=[c[0] for c in CASES])
-def test_bad_input(case, bases, tmp_path, capsys):
+def _prepare(case, bases, tmp_path) -> Path:
     name, kind, mutate = case
     folder = tmp_path / "campaign"
     shutil.copytree(bases[kind], folder)
     mutate(folder)
-    OUTCOMES[name] = run_case(folder, capsys)
+    return folder
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c[0] for c in CASES])
+def test_bad_input(case, bases, tmp_path, capsys):
+    folder = _prepare(case, bases, tmp_path)
+    OUTCOMES[case[0]] = outcome = run_case(folder, capsys, commands=case[0] in SAMPLE)
+    if case[0] in PASSING_SAMPLE:  # the sample that must complete fit and run really passes check
+        assert outcome == {"check": "warning", "fit": "complete", "run": "complete"}, outcome
+
+
+#: Cases that pass ``check`` but whose fit stops with a solver error (exit code 3, the solver's words, no
+#: location): open findings, expected to fail until fixed (strict: a fix makes the test say so).
+SOLVER_FAILURES = {
+    "runs[pH setpoint]='0'": "held at pH 0 with a base titrant: the run does not integrate at the start values "
+                             "(kernel status 2, step size too small); check only warns (setpoint_deviation)",
+    "runs[pH setpoint]='1e-300'": "as pH setpoint 0",
+    "dosing.csv[end [min]]=''": "the 30 min dose read as given at once: one least-squares start does not converge",
+    "hplc_results.csv header 'time [min]'->'time / s'": "sampling minutes read as seconds (every sample within "
+                                                         "3 min): check only warns, the fit meets NaN",
+}
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("case", [pytest.param(c, marks=pytest.mark.xfail(strict=True, raises=AssertionError,
+                                                                      reason=SOLVER_FAILURES[c[0]]))
+                                  if c[0] in SOLVER_FAILURES else c for c in CASES], ids=[c[0] for c in CASES])
+def test_bad_input_fit_and_run(case, bases, tmp_path, capsys):
+    folder = _prepare(case, bases, tmp_path)
+    OUTCOMES[case[0]] = run_case(folder, capsys, commands=True)
 
 
 def test_corpus_size():
@@ -294,11 +388,17 @@ def test_corpus_size():
 
 
 def test_corpus_counts(capsys):
-    """Prints the outcome counts of the cases run in this session (quoted in reports)."""
-    if len(OUTCOMES) < len(CASES):
-        pytest.skip("run together with test_bad_input")
-    counts = {k: sum(v == k for v in OUTCOMES.values()) for k in ("error", "warning", "clean")}
+    """Prints the outcome counts per command of the cases run in this session (quoted in reports)."""
+    if not OUTCOMES:
+        pytest.skip("run together with test_bad_input (or test_bad_input_fit_and_run)")
     with capsys.disabled():
-        print(f"\nbad-input corpus: {len(OUTCOMES)} cases: {counts}")
-        print("passed without a finding: " + "; ".join(k for k, v in OUTCOMES.items() if v == "clean"))
-        print("warnings only: " + "; ".join(k for k, v in OUTCOMES.items() if v == "warning"))
+        print(f"\nbad-input corpus: {len(OUTCOMES)} of {len(CASES)} cases run in this session")
+        for command in ("check", "fit", "run"):
+            seen = [o[command] for o in OUTCOMES.values() if command in o]
+            counts = {k: seen.count(k) for k in ("error", "warning", "clean", "complete") if k in seen}
+            print(f"  {command}: {len(seen)} cases: {counts}")
+        print("  (a traceback or a modified input fails the case's test, which then has no outcome here)")
+        print("check passed with warnings only: " + "; ".join(k for k, v in OUTCOMES.items()
+                                                              if v["check"] == "warning"))
+        print("check passed without a finding: " + "; ".join(k for k, v in OUTCOMES.items()
+                                                             if v["check"] == "clean"))

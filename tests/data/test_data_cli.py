@@ -41,7 +41,7 @@ def test_new_creates_folder(tmp_path, capsys):
 def test_new_refuses_non_empty_folder(tmp_path, capsys):
     (tmp_path / "camp").mkdir()
     (tmp_path / "camp" / "notes.txt").write_text("mine")
-    assert main(["new", str(tmp_path / "camp")]) == 1
+    assert main(["new", str(tmp_path / "camp")]) == 2          # bad input: exit code 2
     err = capsys.readouterr().err
     assert "not empty" in err and "Traceback" not in err
     assert (tmp_path / "camp" / "notes.txt").read_text() == "mine"

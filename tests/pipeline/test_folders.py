@@ -54,7 +54,37 @@ def test_new_folders_are_distinct_and_named_by_time(tmp_path):
     assert len(made) == 20
     for folder in made:
         stamp, short = folder.name.split("-")
-        assert len(stamp) == 16 and stamp.endswith("Z") and len(short) == 6
+        # ISO 8601 basic format with a decimal fraction of the second: 20261203T130501.482913Z
+        assert len(stamp) == 23 and stamp[15] == "." and stamp.endswith("Z") and len(short) == 6
+
+
+def test_two_results_in_the_same_second_latest_is_the_last_started(tmp_path, monkeypatch):
+    import datetime as dt
+
+    # a clock held still inside one second (and even repeating the same microsecond)
+    frozen = dt.datetime(2026, 12, 3, 13, 5, 1, 999999, tzinfo=dt.timezone.utc)
+    monkeypatch.setattr(folders, "_clock", lambda: frozen)
+    inputs = _campaign(tmp_path)
+    started = []
+    for _ in range(5):
+        with Recording(inputs, step="fit", command="c") as rec:
+            (rec.folder / "fit.json").write_text("{}")
+        started.append(rec.folder)
+    assert len({f.name[:15] for f in started}) == 1          # all five in one second
+    root = tmp_path / "campaign" / "results"
+    assert folders.result_folders(root) == started           # listed in the order they were started
+    assert folders.latest_result(root) == started[-1]
+    assert find_result(inputs.campaign, having="fit") == started[-1]
+    listed = [r["id"] for r in history.list_runs(root)]      # history: newest first
+    assert listed == [f.name for f in reversed(started)]
+
+
+def test_older_names_without_microseconds_sort_by_time(tmp_path):
+    # a result folder written by an earlier version (stamp to the second) among new ones
+    for name in ("20261203T130500Z-aaaaaa", "20261203T130501.000002Z-bbbbbb", "20261203T130459.999999Z-cccccc"):
+        (tmp_path / name).mkdir()
+        (tmp_path / name / folders.STATUS_FILE).write_text('{"status": "complete"}')
+    assert [f.name[-6:] for f in folders.result_folders(tmp_path)] == ["cccccc", "aaaaaa", "bbbbbb"]
 
 
 def _make_folder(root: str, queue) -> None:

@@ -11,7 +11,11 @@ from speciakin.data.importer import import_campaign
 from speciakin.data.validate import campaign_warnings, model_problems
 from speciakin.errors import DataError, InputError, Location, Problem, ProblemCollector, ProblemList
 
-__all__ = ["CheckReport", "check_campaign"]
+__all__ = ["CHECK_FAILED", "CheckReport", "check_campaign"]
+
+#: Exit code of ``speciakin check`` when it finds errors (a command that stops on them, such as
+#: ``fit`` or ``run``, exits with the input-error code 2 instead).
+CHECK_FAILED = 1
 
 
 @dataclass
@@ -48,7 +52,8 @@ class CheckReport(ProblemList):
 
     @property
     def exit_code(self) -> int:
-        return 0 if self.ok else DataError.exit_code
+        """0 without errors, :data:`CHECK_FAILED` with errors (exit code of ``speciakin check``)."""
+        return 0 if self.ok else CHECK_FAILED
 
     def report(self) -> str:
         lines = ["Campaign check", "==============", f"Campaign: {self.source}",

@@ -17,7 +17,48 @@ from speciakin.data.sheets import INITIAL_PREFIX, RENAMED_PREFIXES, SheetSpec, n
 from speciakin.errors import Location, ProblemCollector
 
 __all__ = ["SheetColumns", "match_columns", "column_numbers", "column_texts", "run_column", "group_rows",
-           "optional_float"]
+           "optional_float", "EQUIVALENTS", "moles_per_gram", "accepted_units"]
+
+#: The header unit of an amount given in equivalents of the substrate ("amount [eq]"); its words are
+#: the model file's (:data:`speciakin.chemistry.modelfile_units.EQUIVALENT_UNITS`).
+EQUIVALENTS = units.Unit("eq", "equivalents", 1.0)
+
+
+def _also_unit(unit_text: str, kinds: tuple[str, ...]) -> units.Unit | None:
+    """The unit of ``unit_text`` among the further kinds a column accepts (mass, equivalents), or None."""
+    from speciakin.chemistry.modelfile_units import EQUIVALENT_UNITS
+
+    if "equivalents" in kinds and unit_text.strip().lower() in EQUIVALENT_UNITS:
+        return EQUIVALENTS
+    if "mass" in kinds:
+        try:
+            return units.lookup(unit_text, "mass")
+        except KeyError:
+            return None
+    return None
+
+
+def accepted_units(dimension: str, also: tuple[str, ...] = ()) -> str:
+    """The header units a column accepts, for messages."""
+    from speciakin.chemistry.modelfile_units import EQUIVALENT_UNITS
+
+    listed = list(units.DIMENSIONS[dimension]) + (list(units.DIMENSIONS["mass"]) if "mass" in also else [])
+    listed += [EQUIVALENT_UNITS[0]] if "equivalents" in also else []
+    return ", ".join(listed)
+
+
+def moles_per_gram(species: str, molar_masses: dict[str, float], loc: Location, c: ProblemCollector,
+                   value=None) -> float | None:
+    """1 / molar mass [mol/g] of ``species`` from the Compounds sheet, for amounts given as masses.
+
+    Reports a located error (and returns None) when the Compounds sheet gives no molar mass for it.
+    """
+    if not molar_masses.get(species):
+        c.error(f"a mass needs the molar mass of {species}", loc, value,
+                f"a 'molar mass' for the compound of {species} in the Compounds sheet (a row of its own for a "
+                "species that HPLC does not report), or an amount unit", code="missing_value")
+        return None
+    return 1.0 / molar_masses[species]
 
 
 @dataclass
@@ -73,13 +114,15 @@ def match_columns(table: RawTable, spec: SheetSpec, c: ProblemCollector, *,
             if unit_text is None:
                 c.error("header has no unit", loc, header,
                         f"a unit in brackets, e.g. '{col.header}'; accepted: "
-                        + ", ".join(units.DIMENSIONS[col.dimension]), code="missing_unit")
+                        + accepted_units(col.dimension, col.also), code="missing_unit")
                 continue
             try:
                 unit = units.lookup(unit_text, col.dimension)
             except KeyError:
+                unit = _also_unit(unit_text, col.also)
+            if unit is None:
                 c.error("unknown unit in header", loc, unit_text,
-                        "one of: " + ", ".join(units.DIMENSIONS[col.dimension]), code="unknown_unit")
+                        "one of: " + accepted_units(col.dimension, col.also), code="unknown_unit")
                 continue
         elif col.key == "value" and unit_text is not None:
             try:

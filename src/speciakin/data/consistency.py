@@ -4,7 +4,8 @@ Two kinds of finding, both tied to the cell the value came from:
 
 * **Consistency** (errors): what the simulation layer would reject later
   with internal keys (``run.R06.withdrawals[9].time``) is found here first:
-  a start volume or run length of zero, doses or HPLC withdrawals after the
+  a start volume or run length of zero, a run whose HPLC area values
+  measure only molecules it never contains, doses or HPLC withdrawals after the
   run ends, a pH log that does not cover a logged run, repeated log times,
   a held run without titrant ion or concentration.
 * **Plausibility** (errors for physically impossible values, warnings for
@@ -246,4 +247,24 @@ def run_problems(campaign: Campaign, c: ProblemCollector) -> None:
                       f"{lo:g} to {hi:g} (the response relative to the reference compound)", code="unusual_rrf")
     for run in campaign.runs:
         _consistency(campaign, run, c)
+        _nothing_measured(campaign, run, c)
         _plausibility(campaign, run, c)
+
+
+def _nothing_measured(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> None:
+    """A run with HPLC area values whose measured molecules are neither present at the start nor
+    dosed, although the Runs sheet has an initial column for one of them: every area% would be 0 / 0."""
+    r = run.recipe
+    area = np.isin(run.hplc.kind, ("area_percent", "area"))
+    if not area.any():
+        return
+    observed = set(run.hplc.molecule[area].tolist())
+    present = {sp for sp, v in r.charges.items() if v > 0} | {d.species for d in r.doses if d.amount > 0}
+    columns = campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {})
+    declared = sorted(sp for sp in observed if normalise_name(INITIAL_PREFIX + sp) in columns)
+    if declared and not observed & present:
+        c.error(f"run {run.name} starts with none of the molecules its HPLC area values measure and doses none "
+                "of them (their area% would be 0 / 0)",
+                campaign.locate("runs", run.row, normalise_name(INITIAL_PREFIX + declared[0])),
+                r.charges.get(declared[0]), f"an initial amount > 0 of {' or '.join(declared)}",
+                code="nothing_measured")

@@ -6,7 +6,7 @@ import numpy as np
 
 from speciakin.chemistry.model import Dose
 from speciakin.data.campaign import TimeSeries, TitrantLog
-from speciakin.data.columns import SheetColumns, column_numbers, column_texts, group_rows, run_column
+from speciakin.data.columns import SheetColumns, column_numbers, column_texts, group_rows, moles_per_gram, run_column
 from speciakin.errors import Location, ProblemCollector
 
 __all__ = ["read_dosing", "read_probe", "read_titrant"]
@@ -24,13 +24,60 @@ def _tare_minimum(cols, key: str) -> float:
     return -TITRANT_TARE[key] / (unit.factor if unit else 1.0)
 
 
-def read_dosing(cols: SheetColumns, c: ProblemCollector,
-                known: dict[str, int]) -> dict[str, tuple[tuple[Dose, int], ...]]:
-    """Doses per run, each with its spreadsheet row."""
+def _dose_amounts(cols: SheetColumns, c: ProblemCollector, runs, species, amount: np.ndarray,
+                  molar_masses: dict[str, float], initial: dict[str, dict[str, float]],
+                  substrate: str | None) -> np.ndarray:
+    """Dosed amounts [mol] from a mass column [g] (divided by each species' molar mass) or an
+    equivalents column (times the run's initial amount of the substrate); other columns as they are."""
+    unit = cols.unit("amount")
+    if unit is None or unit.dimension not in ("mass", "equivalents"):
+        return amount
+    t = cols.table
+    i = cols.index("amount")
+    out = np.full(amount.shape, np.nan)
+    if unit.dimension == "equivalents" and substrate is None:
+        c.error("equivalents need the run's initial amount of the substrate, and the Runs sheet has no "
+                "'initial' column", t.location(1, i), t.headers[i],
+                "an 'initial <substrate> [mmol]' column in the Runs sheet (its first 'initial' column names "
+                "the substrate), or an amount unit such as [mmol]", code="missing_column")
+        return out
+    for k, row in enumerate(t.row_numbers.tolist()):
+        if not (np.isfinite(amount[k]) and species[k] and runs[k] in initial):
+            continue
+        loc = t.location(row, i)
+        if unit.dimension == "mass":
+            per_gram = moles_per_gram(species[k], molar_masses, loc, c, t.rows[k][i])
+            out[k] = np.nan if per_gram is None else amount[k] * per_gram
+            continue
+        start = initial[runs[k]].get(substrate)
+        if not start:
+            c.error(f"equivalents need the run's initial amount of the substrate {substrate}", loc, t.rows[k][i],
+                    f"an initial amount of {substrate} for run {runs[k]} in the Runs sheet, or an amount unit "
+                    "in this column's header", code="missing_value")
+            continue
+        out[k] = amount[k] * start
+    return out
+
+
+def read_dosing(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
+                molar_masses: dict[str, float] | None = None, initial: dict[str, dict[str, float]] | None = None,
+                substrate: str | None = None) -> dict[str, tuple[tuple[Dose, int], ...]]:
+    """Doses per run, each with its spreadsheet row.
+
+    Parameters
+    ----------
+    molar_masses
+        Molar mass [g/mol] per molecule (Compounds sheet), for an amount column in a mass unit.
+    initial
+        Initial amounts [mol] per run and species (Runs sheet), for an amount column in equivalents.
+    substrate
+        The species whose initial amount one equivalent is (the first 'initial' column of the Runs sheet).
+    """
     t = cols.table
     runs = run_column(cols, c, known)
     species = column_texts(cols, "species")
     amount = column_numbers(cols, "amount", c, "amount", minimum=0.0, blank_ok=False)
+    amount = _dose_amounts(cols, c, runs, species, amount, molar_masses or {}, initial or {}, substrate)
     start = column_numbers(cols, "start", c, "start time", minimum=0.0, blank_ok=False)
     end = column_numbers(cols, "end", c, "end time", minimum=0.0)
     volume = column_numbers(cols, "volume", c, "volume", minimum=0.0)

@@ -18,8 +18,8 @@ from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, T
 from speciakin.data.consistency import run_problems
 from speciakin.data.validate import campaign_warnings, model_problems
 from speciakin.data.clock import convert_clock_cells
-from speciakin.data.columns import (SheetColumns, column_numbers, column_texts, match_columns,
-                                    optional_float)
+from speciakin.data.columns import (EQUIVALENTS, SheetColumns, column_numbers, column_texts, match_columns,
+                                    moles_per_gram, optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
 from speciakin.data.import_logs import read_dosing, read_probe, read_titrant
 from speciakin.data.reader import (RawTable, SourceFile, column_letter, numeric_column, read_csv_folder,
@@ -128,7 +128,11 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
     known = {r["name"]: r["row"] for r in run_rows}
     hplc_cols = matched["hplc"]
     hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
-    dosing = read_dosing(matched["dosing"], c, known) if "dosing" in found else {}
+    molar_masses = {x.molecule: x.molar_mass for x in compounds if x.molar_mass}
+    substrate = next((name.strip()[len(INITIAL_PREFIX):].strip() for _, name, _ in runs_cols.extra
+                      if (normalise_name(name) + " ").startswith(INITIAL_PREFIX)), None) or None
+    dosing = read_dosing(matched["dosing"], c, known, molar_masses, {r["name"]: r["charges"] for r in run_rows},
+                         substrate) if "dosing" in found else {}
     probe = read_probe(matched["probe"], c, known) if "probe" in found else {}
     conc = {r["name"]: r["titrant_concentration"] for r in run_rows}
     titrant = read_titrant(matched["titrant"], c, known, conc) if "titrant" in found else {}
@@ -156,6 +160,8 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
         layout="long" if hplc_cols.index("compound") is not None else "wide",
         extra={"sheets": sheets_info},
     )
+    if "dosing" in matched and matched["dosing"].unit("amount") == EQUIVALENTS:
+        campaign.extra["equivalents_of"] = substrate   # checked against the model's substrate (validate.py)
     run_problems(campaign, c)
     return None if c.has_errors else campaign
 
@@ -247,12 +253,8 @@ def _initial_factor(species: str, unit_text: str | None, header: str, molar_mass
                 "one of: " + ", ".join(units.DIMENSIONS["amount"] + units.DIMENSIONS["mass"]),
                 code="unknown_unit" if unit_text else "missing_unit")
         return None
-    if species not in molar_masses:
-        c.error(f"a mass needs the molar mass of {species}", loc, unit_text,
-                f"a 'molar mass' for the compound of {species} in the Compounds sheet, or an amount unit",
-                code="missing_value")
-        return None
-    return mass.factor / molar_masses[species]
+    per_gram = moles_per_gram(species, molar_masses, loc, c, unit_text)
+    return None if per_gram is None else mass.factor * per_gram
 
 
 def _read_runs(cols: SheetColumns, c: ProblemCollector, molar_masses: dict[str, float] | None = None) -> list[dict]:

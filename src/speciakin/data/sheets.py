@@ -50,6 +50,10 @@ class ColumnSpec:
         A missing required column is an error.
     description
         Plain words for the guide sheet.
+    also
+        Further kinds of header unit the column accepts besides ``dimension``:
+        ``"mass"`` (divided by the molar mass of the row's species) and
+        ``"equivalents"`` (times the run's initial amount of the substrate).
     """
 
     key: str
@@ -58,6 +62,7 @@ class ColumnSpec:
     unit: str | None
     required: bool
     description: str
+    also: tuple[str, ...] = ()
 
     @property
     def header(self) -> str:
@@ -107,8 +112,8 @@ PH_MODE_WORDS: Mapping[str, str] = MappingProxyType({
 })
 
 
-def _c(key, names, dimension, unit, required, description) -> ColumnSpec:
-    return ColumnSpec(key, tuple(names), dimension, unit, required, description)
+def _c(key, names, dimension, unit, required, description, also=()) -> ColumnSpec:
+    return ColumnSpec(key, tuple(names), dimension, unit, required, description, tuple(also))
 
 
 _RUNS = SheetSpec(
@@ -146,7 +151,11 @@ _DOSING = SheetSpec(
         _c("run", ["run", "run id"], None, None, True, "Run identifier from the Runs sheet."),
         _c("species", ["species", "what"], None, None, True,
            "What is dosed: a molecule or ion name of the model file."),
-        _c("amount", ["amount"], "amount", "mmol", True, "Amount dosed in total."),
+        _c("amount", ["amount"], "amount", "mmol", True,
+           "Amount dosed in total: an amount (amount [mmol]), a mass (amount [mg] or [g]: divided by the "
+           "molar mass the Compounds sheet gives for that molecule) or equivalents of the substrate "
+           "(amount [eq]: times the run's initial amount of the substrate, the species of the first "
+           "'initial' column of the Runs sheet).", also=("mass", "equivalents")),
         _c("start", ["start"], "time", "min", True, "When the addition begins."),
         _c("end", ["end"], "time", "min", False,
            "When it ends (constant rate in between). Blank or equal to start = dosed at once."),

@@ -224,6 +224,12 @@ def model_problems(campaign: Campaign, model, c: ProblemCollector) -> dict[str, 
             c.error(f"compound {comp.name} is mapped to a molecule the model does not have",
                     _loc(campaign, "compounds", comp.row, "molecule"), comp.molecule, "one of: " + listing,
                     code="unknown_molecule")
+    equivalents_of = campaign.extra.get("equivalents_of")
+    substrates = [m.name for m in model.molecules if m.role == "substrate"]
+    if equivalents_of and substrates and equivalents_of not in substrates:
+        c.error(f"dosed equivalents refer to {equivalents_of} (the first 'initial' column of the Runs sheet), "
+                "which is not the model's substrate", _loc(campaign, "dosing", 1, "amount"), equivalents_of,
+                f"the substrate {substrates[0]}'s 'initial' column first in the Runs sheet", code="equivalents_of")
     for run in campaign.runs:
         for species in run.recipe.charges:
             if species not in known:

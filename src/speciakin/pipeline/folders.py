@@ -4,7 +4,7 @@ Layout (docs/workflow.md, "Result folders")::
 
     <campaign folder>/results/
         index.sqlite                      the index of every run (pipeline.history)
-        20261203T130501Z-3fa2c1/          one folder per run or step started alone
+        20261203T130501.482913Z-3fa2c1/   one folder per run or step started alone
             .lock                         while it is written: pid, host, start time
             status.json                   running / complete / failed / interrupted, built_on
             fit.json, posterior.h5, ...   the results (pipeline.outputs.RESULT_FILES)
@@ -23,10 +23,12 @@ import datetime as _dt
 import errno
 import json
 import os
+import re
 import secrets
 import shutil
 import socket
 import tempfile
+import threading
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -36,7 +38,7 @@ from speciakin.pipeline.outputs import relative
 
 __all__ = ["RESULTS_FOLDER", "STATUS_FILE", "LOCK_FILE", "results_root", "new_result_folder", "ResultWriter",
            "read_status", "result_folders", "latest_result", "check_writable", "check_free", "carry_over",
-           "new_id", "utc_now"]
+           "new_id", "start_order", "utc_now"]
 
 #: Sub-folder of the campaign folder that holds the result folders and the index.
 RESULTS_FOLDER = "results"
@@ -99,9 +101,44 @@ def check_free(folder: Path, roles: Iterable[str]) -> None:
                                       "then writes a new folder under <campaign>/results/)")
 
 
+def _clock() -> _dt.datetime:
+    """The current UTC time (a function of its own so that tests can hold the clock still)."""
+    return _dt.datetime.now(_dt.timezone.utc)
+
+
+_last_stamp: list[_dt.datetime] = []
+_stamp_lock = threading.Lock()
+
+
 def new_id() -> str:
-    """``<UTC time stamp>-<6 hex digits>``: the name of a new result folder and the id of a run."""
-    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ") + "-" + secrets.token_hex(3)
+    """``<UTC time stamp to the microsecond>-<6 hex digits>``: the name of a new result folder and the id of a run.
+
+    Within one process the stamps strictly increase (a clock that repeats or
+    steps back gives the previous stamp plus 1 microsecond), so the folder
+    started last always sorts last, also within one second.
+    """
+    with _stamp_lock:
+        now = _clock()
+        if _last_stamp and now <= _last_stamp[0]:
+            now = _last_stamp[0] + _dt.timedelta(microseconds=1)
+        _last_stamp[:] = [now]
+    return now.strftime("%Y%m%dT%H%M%S.%fZ") + "-" + secrets.token_hex(3)
+
+
+#: ``<date>T<time>[.<microseconds>]Z-``: the start of a result folder's name (older versions wrote no microseconds).
+_STAMP = re.compile(r"^(\d{8}T\d{6})(?:\.(\d{1,6}))?Z-")
+
+
+def start_order(name: str) -> tuple[str, int, str]:
+    """Sort key of a result folder name in the order the folders were started.
+
+    Names from older versions (stamp to the second) sort as microsecond 0 of
+    their second; names without a stamp (folders made by hand) sort first.
+    """
+    m = _STAMP.match(name)
+    if m is None:
+        return ("", 0, name)
+    return (m.group(1), int((m.group(2) or "0").ljust(6, "0")), name)
 
 
 def new_result_folder(root: str | os.PathLike) -> Path:
@@ -178,11 +215,12 @@ def read_status(folder: str | os.PathLike) -> dict[str, Any]:
 
 
 def result_folders(root: str | os.PathLike) -> list[Path]:
-    """Result folders under ``root``, oldest first (the names sort by time)."""
+    """Result folders under ``root``, oldest first (in the order they were started: :func:`start_order`)."""
     root = Path(root)
     if not root.is_dir():
         return []
-    return sorted(p for p in root.iterdir() if p.is_dir() and (p / STATUS_FILE).exists())
+    return sorted((p for p in root.iterdir() if p.is_dir() and (p / STATUS_FILE).exists()),
+                  key=lambda p: start_order(p.name))
 
 
 def latest_result(root: str | os.PathLike, statuses: Iterable[str] = ("complete",),

@@ -89,12 +89,14 @@ def package_versions() -> dict[str, str | None]:
 
 
 def input_files(inputs: Any) -> list[tuple[str, Path]]:
-    """``(role, path)`` of every input file: the model, the process and the campaign's files.
+    """``(role, path)`` of every input file: the model (and ``other_models`` when given), the process
+    and the campaign's files.
 
     A campaign folder contributes its files (not the ``results`` folder, not
     hidden files, not the model and process files counted above).
     """
     files: list[tuple[str, Path]] = [("model", Path(inputs.model))]
+    files += [("model", Path(p)) for p in getattr(inputs, "other_models", ())]  # compare: several model files
     if inputs.process is not None:
         files.append(("process", Path(inputs.process)))
     campaign = Path(inputs.campaign)
