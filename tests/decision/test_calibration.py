@@ -2,13 +2,16 @@
 
 For each campaign (invented model of tests/estimation/campaign_synthetic.py,
 data simulated at the known parameters with noise, a new seed each time) the
-project fits the data, draws parameters from the least-squares covariance and
-computes the window of an invented process.  Every set point the window
+project fits the data, draws parameters from the least-squares covariance (or
+takes emcee draws of the project's sampler) and computes the window of an
+invented process (with the Monte Carlo guard of decision/montecarlo.py).  Every set point the window
 claims (p >= level) is then simulated with the TRUE parameters: a claim where
 the true process fails a specification is a false claim.  Checked set points:
 the window edges and every 0.05 pH inside the window; for the robust set
 points, every 0.01 pH of the drift band [x - tol, x + tol] around each
-checked robust set point.
+checked robust set point (the band itself, both ends included).  The measured
+counts and the analysis of the false claims are in docs/decision.md
+("Calibration").
 
 The target is 0 false claims.  What calibrated uncertainty promises is
 weaker: a claim p >= 0.95 next to a window edge is wrong when the estimate
