@@ -275,6 +275,20 @@ def test_unreachable_set_point_is_located(tmp_path):
     assert main(["check", str(tmp_path / "campaign")]) == DataError.exit_code
 
 
+def test_fit_stops_at_the_unreachable_set_point_cell(tmp_path, capsys):
+    # the fit loads the workbook with the model, so it names the cell instead of failing to converge
+    from speciakin.cli.main import main
+
+    folder = _folder(tmp_path, dict(RUNS_ROWS, W1="W1,held,7.0,Na+,0.5,,,titrant,,,25,50,120,1,1.1,"))
+    text = (folder / "model.toml").read_text(encoding="utf-8")
+    fitted = f"log10_k = {{ value = {math.log10(K_COUPLING)!r}, fit = true, lower = -3, upper = 3 }}"
+    (folder / "model.toml").write_text(text.replace(f"log10_k = {math.log10(K_COUPLING)!r}", fitted, 1),
+                                       encoding="utf-8")
+    assert main(["fit", str(folder)]) == DataError.exit_code
+    err = capsys.readouterr().err
+    assert "row 2, column 'H (start adjustment)'" in err and "cannot be reached or held" in err
+
+
 def test_titrant_that_would_be_withdrawn_in_a_logged_run_is_located(tmp_path):
     # W3 with the base titrant only: while the log falls the base would have to be taken out
     rows = dict(RUNS_ROWS, W3="W3,logged,,Na+,0.5,,,,,,25,50,100,1,0.4,1")
