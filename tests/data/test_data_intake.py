@@ -155,14 +155,14 @@ def test_renamed_sheet_and_columns_say_so(folder):
 def test_impossible_start_volumes(folder, value, words):
     edit(folder, "runs.csv", 2, "start volume [mL]", value)
     report = check_campaign(folder)
-    p = next(p for p in report.errors if p.location.column == "G (start volume [mL])")
+    p = next(p for p in report.errors if p.location.column == "N (start volume [mL])")
     assert words in p.message and p.location.row == 2
 
 
 def test_process_at_22_kelvin(folder):
     rename_header(folder, "runs.csv", "temperature [C]", "temperature [K]")   # 20 C written under [K]
     (p, *_) = _codes(check_campaign(folder), "implausible")
-    assert "C or K" in p.expected and p.location.column == "F (temperature [K])"
+    assert "C or K" in p.expected and p.location.column == "M (temperature [K])"
 
 
 def test_titrant_in_the_wrong_unit_warns(folder):

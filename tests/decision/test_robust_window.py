@@ -24,10 +24,14 @@ def draws(n=120, sd=0.06, seed=3):
     return TRUTH + sd * np.random.default_rng(seed).standard_normal((n, TRUTH.size))
 
 
-def brute_force_sets(theta, tolerance, level):
+def brute_force_sets(theta, tolerance, level, confidence=None):
     """Window and robust set by a brute-force scan of the closed form every 1e-4 pH:
     p(x) = share passing at x; r(x) = share passing at every fine point within
-    [x - tol, x + tol] inside the scanned range."""
+    [x - tol, x + tol] inside the scanned range.  With ``confidence`` a point is
+    claimed where the one-sided Clopper-Pearson lower bound of the share is
+    >= level (beta quantile, scipy.stats.beta; Clopper and Pearson, Biometrika 1934)."""
+    from scipy import stats
+
     fine = np.round(np.arange(COARSE[0], COARSE[-1] + FINE_STEP / 2, FINE_STEP), 10)
     ok = evaluate_specs(closed_form(theta, fine), SPECS, NAMES)           # (n, n_fine)
     w = int(round(tolerance / FINE_STEP))
@@ -38,18 +42,26 @@ def brute_force_sets(theta, tolerance, level):
     robust[:, idx] = (fails[:, idx + w + 1] - fails[:, idx - w]) == 0
 
     def edges(mask):
-        share = mask.mean(axis=0) >= level - 1e-12
+        k, n = mask.sum(axis=0), mask.shape[0]
+        if confidence is None:
+            share = k / n >= level - 1e-12
+        else:
+            share = (k > 0) & (stats.beta.ppf(1 - confidence, np.maximum(k, 1), n - k + 1) >= level - 1e-12)
         where = np.flatnonzero(share)
         runs = np.split(where, np.flatnonzero(np.diff(where) > 1) + 1) if where.size else []
         return [(fine[r[0]], fine[r[-1]]) for r in runs]
     return edges(ok), edges(robust)
 
 
-@pytest.mark.parametrize("level, tolerance", [(0.95, 0.3), (0.8, 0.2)])
-def test_bisection_reaches_the_resolution_on_a_coarse_grid(level, tolerance):
+@pytest.mark.parametrize("level, tolerance, confidence", [(0.95, 0.3, 0.95), (0.8, 0.2, 0.95), (0.95, 0.3, None),
+                                                       (0.8, 0.2, None)])
+def test_bisection_reaches_the_resolution_on_a_coarse_grid(level, tolerance, confidence):
+    # with and without the Monte Carlo guard (120 draws: enough for it at both levels)
     theta = draws()
-    result = compute_window(outcome_fn, theta, COARSE, SPECS, level, tolerance, outcome_names=NAMES)
-    window_ref, robust_ref = brute_force_sets(theta, tolerance, level)
+    result = compute_window(outcome_fn, theta, COARSE, SPECS, level, tolerance, outcome_names=NAMES,
+                            mc_confidence=confidence)
+    assert result.mc_confidence == confidence
+    window_ref, robust_ref = brute_force_sets(theta, tolerance, level, confidence)
     assert len(result.windows) == len(window_ref) == 1
     assert len(result.robust_windows) == len(robust_ref) == 1
     for got, ref in ((result.windows[0], window_ref[0]), (result.robust_windows[0], robust_ref[0])):
@@ -115,3 +127,43 @@ def test_level_set_is_where_the_coverage_reaches_the_level(rows, level, x):
             continue
         inside = any(a <= v <= b for a, b in found)
         assert inside == (coverage(rows, [v])[0] >= level - 1e-9)
+
+
+def test_monte_carlo_guard_counts_by_hand():
+    from scipy import stats
+
+    from speciakin.decision.montecarlo import claim_count, lower_bound, minimum_draws
+
+    # all n pass: the one-sided Clopper-Pearson bound is (1 - confidence)^(1/n) in closed form
+    for n in (16, 59, 200):
+        assert lower_bound(n, n, 0.95) == pytest.approx(0.05 ** (1 / n), rel=1e-10)
+    assert minimum_draws(0.95, 0.95) == 59          # 0.05^(1/59) = 0.9505 >= 0.95 > 0.05^(1/58)
+    assert claim_count(58, 0.95) is None and claim_count(59, 0.95) == 59
+    # 200 draws: 196 is the smallest count whose bound reaches 0.95 (scipy.stats.beta as reference)
+    assert claim_count(200, 0.95) == 196
+    assert stats.beta.ppf(0.05, 196, 5) >= 0.95 > stats.beta.ppf(0.05, 195, 6)
+    assert claim_count(200, 0.95, None) == 190 and claim_count(16, 0.95, None) == 16
+
+
+def test_too_few_draws_fall_back_to_the_share_and_say_so():
+    theta = draws(n=40)
+    guarded = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES)
+    plain = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES, mc_confidence=None)
+    assert guarded.mc_confidence is None and guarded.claim_count == 38
+    assert guarded.windows == plain.windows
+    assert any("too few to show probability" in w for w in guarded.warnings)
+    assert "not applied" in guarded.report()
+
+
+def test_guard_narrows_the_window_to_where_the_lower_bound_reaches_the_level():
+    theta = draws(n=200, seed=5)
+    guarded = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES)
+    plain = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES, mc_confidence=None)
+    assert guarded.mc_confidence == 0.95 and guarded.claim_count == 196
+    (a, b), (c, d) = guarded.windows[0], plain.windows[0]
+    assert c <= a < b <= d and (a > c or b < d)
+    # the plotted curve is the lower bound: it crosses the level exactly at the guarded edges
+    x, p = guarded.curve_ph, guarded.curve_probability
+    inside = (x >= a) & (x <= b)
+    assert np.all(p[inside] >= 0.95) and np.all(p[~inside] < 0.95)
+    assert "196 of 200 draws pass" in guarded.report()

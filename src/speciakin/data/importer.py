@@ -22,6 +22,7 @@ from speciakin.data.columns import (EQUIVALENTS, SheetColumns, column_numbers, c
                                     moles_per_gram, optional_float)
 from speciakin.data.import_hplc import empty_hplc, read_hplc
 from speciakin.data.import_logs import read_dosing, read_probe, read_titrant
+from speciakin.data.run_control import cell_locator, control_fields, read_control_columns
 from speciakin.data.reader import (RawTable, SourceFile, column_letter, numeric_column, read_csv_folder,
                                    read_workbook)
 from speciakin.data.sheets import (INITIAL_PREFIX, PH_MODE_WORDS, RENAMED_SHEETS, SHEETS, normalise_name,
@@ -261,10 +262,9 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector, molar_masses: dict[str, 
     t = cols.table
     names = column_texts(cols, "run")
     modes = column_texts(cols, "ph_mode")
-    titrants = column_texts(cols, "titrant")
+    control = read_control_columns(cols, c)
     notes = column_texts(cols, "note")
     setpoint = column_numbers(cols, "setpoint", c, "pH setpoint", minimum=0.0, maximum=14.0)
-    tconc = column_numbers(cols, "titrant_concentration", c, "titrant concentration", minimum=0.0)
     temp = column_numbers(cols, "temperature", c, "temperature")
     volume = column_numbers(cols, "start_volume", c, "start volume", minimum=0.0, blank_ok=False)
     duration = column_numbers(cols, "duration", c, "duration", minimum=0.0)
@@ -310,12 +310,18 @@ def _read_runs(cols: SheetColumns, c: ProblemCollector, molar_masses: dict[str, 
         if np.isfinite(temp[k]) and temp[k] <= 0:
             c.error("temperature is below absolute zero", t.location(row, temp_col), temp[k], "a temperature > 0 K",
                     code="out_of_range")
+        fields, added = control_fields({**control[k], "name": name, "row": row}, mode,
+                                       cell_locator(cols, row), c)
+        initial = {sp: float(v[k]) for sp, v in charges if np.isfinite(v[k])}
+        for ion, amount in added.items():
+            initial[ion] = initial.get(ion, 0.0) + amount
         out.append({
             "name": name, "row": row, "mode": mode, "setpoint": optional_float(setpoint[k]),
-            "titrant": titrants[k] or None, "titrant_concentration": optional_float(tconc[k]),
+            "control": fields, "titrant": control[k]["titrant"],
+            "titrant_concentration": control[k]["titrant_concentration"],
             "temperature": optional_float(temp[k]), "volume": optional_float(volume[k]), "duration": optional_float(duration[k]),
             "sample_volume": optional_float(sample_volume[k]), "note": notes[k],
-            "charges": {sp: float(v[k]) for sp, v in charges if np.isfinite(v[k])},
+            "charges": initial,
         })
     return out
 
@@ -361,7 +367,7 @@ def _build_run(r: dict, hplc: HplcData | None, dosing: tuple[tuple[Dose, int], .
     if mode is None:
         return None
     if mode == "held":
-        control = PhControl("held", r["setpoint"], r["titrant"], r["titrant_concentration"])
+        control = PhControl("held", r["setpoint"], **r["control"])
     elif mode == "logged":
         if ph_log is None:
             c.error("logged-pH run has no pH readings in the Probe log", t.location(row, cols.index("ph_mode")),
@@ -369,7 +375,7 @@ def _build_run(r: dict, hplc: HplcData | None, dosing: tuple[tuple[Dose, int], .
             return None
         order = np.argsort(ph_log.time, kind="stable")
         control = PhControl("logged", r["setpoint"], log_times=tuple(ph_log.time[order].tolist()),
-                            log_ph=tuple(ph_log.value[order].tolist()))
+                            log_ph=tuple(ph_log.value[order].tolist()), **r["control"])
     else:
         control = PhControl("free", r["setpoint"])
     if temp_log is not None:

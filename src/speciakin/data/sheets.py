@@ -22,6 +22,7 @@ __all__ = [
     "SHEETS",
     "HPLC_KINDS",
     "PH_MODE_WORDS",
+    "START_ADJUSTMENT_WORDS",
     "INITIAL_PREFIX",
     "RENAMED_SHEETS",
     "RENAMED_PREFIXES",
@@ -112,6 +113,15 @@ PH_MODE_WORDS: Mapping[str, str] = MappingProxyType({
 })
 
 
+#: Accepted words for how a controlled run's start solution reaches its pH ->
+#: :data:`speciakin.chemistry.model.START_ADJUSTMENTS` (docs/model-file.md, "Titrants and the start of a run").
+START_ADJUSTMENT_WORDS: Mapping[str, str] = MappingProxyType({
+    "computed": "computed", "calculated": "computed", "charge balance": "computed",
+    "given": "given", "given amount": "given", "stated": "given",
+    "titrant": "titrant", "by titrant": "titrant", "with titrant": "titrant",
+})
+
+
 def _c(key, names, dimension, unit, required, description, also=()) -> ColumnSpec:
     return ColumnSpec(key, tuple(names), dimension, unit, required, description, tuple(also))
 
@@ -128,9 +138,31 @@ _RUNS = SheetSpec(
         _c("setpoint", ["pH setpoint"], "ph", None, False,
            "Target pH of a held run (0-14). Required when pH mode is held."),
         _c("titrant", ["titrant ion"], None, None, False,
-           "Ion dosed by the controller of a held run, as named in the model file (e.g. Na+ for NaOH)."),
+           "Ion dosed by the controller, as named in the model file (e.g. Na+ for NaOH, Cl- for HCl). "
+           "Required for a held run; for a logged run it makes the model dose the acid or base that "
+           "follows the logged pH (blank = the logged run keeps no charge balance)."),
         _c("titrant_concentration", ["titrant concentration"], "concentration", "mol/L", False,
-           "Concentration of the titrant solution of a held run."),
+           "Concentration of the titrant solution. Required with a titrant ion."),
+        _c("opposite_titrant", ["opposite titrant ion"], None, None, False,
+           "Optional second titrant of the other sign (a two-sided pH-stat: e.g. Cl- beside Na+). It is "
+           "dosed whenever the titrant would have to be taken out; titrant volumes only add."),
+        _c("opposite_titrant_concentration", ["opposite titrant concentration"], "concentration", "mol/L",
+           False, "Concentration of the opposite titrant. Required with an opposite titrant ion."),
+        _c("start_adjustment", ["start adjustment"], None, None, False,
+           "How the start solution of a held or logged run reaches its pH before time zero: computed (acid or "
+           "base added inside the start volume, amount from the charge balance; the default when blank), "
+           "given (the amount added is written in the start acid / start base amount columns or in an "
+           "initial column) or titrant (the titrant brings it there and its volume adds)."),
+        _c("start_acid", ["start acid ion"], None, None, False,
+           "Ion of the acid added before time zero (e.g. Cl-). Blank = the titrant of that sign, else the "
+           "model's only negative ion."),
+        _c("start_acid_amount", ["start acid amount"], "amount", "mmol", False,
+           "With start adjustment 'given': amount of the start acid ion added inside the start volume."),
+        _c("start_base", ["start base ion"], None, None, False,
+           "Ion of the base added before time zero (e.g. Na+). Blank = the titrant of that sign, else the "
+           "model's only positive ion."),
+        _c("start_base_amount", ["start base amount"], "amount", "mmol", False,
+           "With start adjustment 'given': amount of the start base ion added inside the start volume."),
         _c("temperature", ["temperature"], "temperature", "C", False,
            "Constant temperature of the run. Leave blank when the probe log has temperatures."),
         _c("start_volume", ["start volume"], "volume", "mL", True,
@@ -216,7 +248,8 @@ _PROBE = SheetSpec(
 
 _TITRANT = SheetSpec(
     "titrant", "Titrant log", "titrant_log.csv", False,
-    "Titrant consumed by the controller of held runs, cumulative from time zero. "
+    "Titrant consumed by the controller of held runs (and of logged runs with a titrant ion), cumulative "
+    "from time zero: the titrant ion's consumption, not the opposite titrant's. "
     "Give the volume (converted with the titrant concentration of the Runs sheet) or the amount.",
     (
         _c("run", ["run", "run id"], None, None, True, "Run identifier from the Runs sheet."),

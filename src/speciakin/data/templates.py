@@ -15,7 +15,7 @@ from typing import Iterable, Sequence
 from speciakin import units
 from speciakin._cells import csv_text, guard_workbook, has_carriage_return
 from speciakin.data._files import write_bytes_atomically
-from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHEETS
+from speciakin.data.sheets import HPLC_KINDS, INITIAL_PREFIX, PH_MODE_WORDS, SHEETS, START_ADJUSTMENT_WORDS
 from speciakin.errors import DataError, Location
 
 __all__ = ["GUIDE_TITLE", "WORKBOOK_NAME", "guide_lines", "write_tables", "write_template",
@@ -57,6 +57,7 @@ def guide_lines() -> list[tuple[str, str]]:
         lines.append(("", ""))
     lines += [
         ("pH mode words", ", ".join(PH_MODE_WORDS)),
+        ("Start adjustment words", ", ".join(START_ADJUSTMENT_WORDS)),
         ("HPLC kinds", ", ".join(HPLC_KINDS)),
         ("Below the LOQ", "'<LOQ' uses the LOQ of the Compounds sheet; '<0.05' states the limit; a blank cell "
                           "in a sampled row counts as below the LOQ. Such values are kept as censored "
@@ -113,6 +114,12 @@ def _workbook_bytes(tables: Tables) -> bytes:
             dv = DataValidation(type="list", formula1='"held,logged,free"', allow_blank=True)
             ws.add_data_validation(dv)
             dv.add("B2:B1000")
+            start = SHEETS["runs"].column("start_adjustment").header
+            if start in headers:
+                letter = openpyxl.utils.get_column_letter(list(headers).index(start) + 1)
+                dv = DataValidation(type="list", formula1='"computed,given,titrant"', allow_blank=True)
+                ws.add_data_validation(dv)
+                dv.add(f"{letter}2:{letter}1000")
     guard_workbook(wb)  # names such as '=1+2' stay text
     buf = io.BytesIO()
     wb.save(buf)

@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from speciakin.data.campaign import Campaign, CampaignRun, TimeSeries
+from speciakin.data.run_control import control_model_problems
 from speciakin.data.sheets import INITIAL_PREFIX, normalise_name
 from speciakin.errors import Location, ProblemCollector
 
@@ -242,11 +243,7 @@ def model_problems(campaign: Campaign, model, c: ProblemCollector) -> dict[str, 
                 c.error(f"run {run.name} doses a species the model does not have",
                         _loc(campaign, "dosing", row, "species"), dose.species,
                         "a molecule or ion of the model: " + ", ".join(sorted(known)), code="unknown_species")
-        tit = run.recipe.ph.titrant
-        if run.recipe.ph.mode == "held" and tit and tit not in ions:
-            c.error(f"titrant of run {run.name} is not an ion of the model",
-                    _loc(campaign, "runs", run.row, "titrant"), tit, "one of: " + ", ".join(sorted(ions)),
-                    code="unknown_species")
+    control_model_problems(campaign, model, c)  # titrants, start ions, reachable set points (run_control.py)
     substrate = next((m for m in model.molecules if m.role == "substrate" and m.moieties), None)
     if substrate is None:
         return _substrate_units_from_compounds(campaign)

@@ -56,8 +56,13 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
         constant_t = (r.temperature.temperatures[0] if len(r.temperature.times) == 1
                       and run.temperature_log is None else None)
         sample_volume = r.withdrawals[0].volume if r.withdrawals else None
+        controlled = ph.mode in ("held", "logged")
         run_rows.append([
             r.name, ph.mode, ph.setpoint, ph.titrant, ph.titrant_concentration,
+            ph.opposite_titrant, ph.opposite_titrant_concentration,
+            # the default is written as a blank cell, which reads back as "computed"
+            ph.start_adjustment if controlled and ph.start_adjustment != "computed" else None,
+            ph.start_acid, None, ph.start_base, None,   # a given adjustment stays in the initial columns
             _f(constant_t, "C", "temperature"), _f(r.volume, "mL", "volume"), _f(r.end_time, "min", "time"),
             _f(sample_volume, "mL", "volume"), r.note or None,
         ] + [_f(r.charges.get(s), "mmol", "amount") for s in species])

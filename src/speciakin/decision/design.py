@@ -20,6 +20,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from speciakin.decision.draws import POSTERIOR_SOURCE
+from speciakin.decision.montecarlo import MC_CONFIDENCE, claim_count, lower_bound, minimum_draws
 from speciakin.decision.outcomes import outcome_bands
 from speciakin.decision.process import FACTOR_KINDS, ProcessPlan
 from speciakin.decision.refine import (
@@ -106,7 +107,8 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
                    factor_name: str | None = None, factor_unit: str | None = None,
                    nominal_factor: float | None = None,
                    factor_display_values: Sequence[float] | None = None,
-                   resolution: float = DEFAULT_RESOLUTION) -> WindowResult:
+                   resolution: float = DEFAULT_RESOLUTION,
+                   mc_confidence: float | None = MC_CONFIDENCE) -> WindowResult:
     """Probability that every specification is met, against pH (and a second factor).
 
     Parameters
@@ -150,6 +152,12 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         Every pass/fail change of a draw between grid points is located by
         bisection on new simulations to this width [pH units]
         (:mod:`speciakin.decision.refine`); window and robust edges follow.
+    mc_confidence
+        Monte Carlo guard (:mod:`speciakin.decision.montecarlo`): a set point
+        is claimed only where the one-sided Clopper-Pearson lower bound of
+        the probability at this confidence is >= ``level``; the curves are
+        that lower bound.  None (or too few draws for the guard) = the share
+        of passing draws.
 
     Returns
     -------
@@ -199,15 +207,27 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
             refined[k] = (found, shrink_intervals(found, tolerance), n_sim)
         return refined[k]
 
+    n = theta.shape[0]
+    need = claim_count(n, level, mc_confidence)
+    guarded = mc_confidence is not None and need is not None
+    if need is None:
+        need = claim_count(n, level, None)
+
+    def claimed(intervals_k):
+        return level_set(intervals_k, level, need)
+
+    def curve(share):
+        return lower_bound(share * n, n, mc_confidence) if guarded else share
+
     intervals, shrunk, _ = refined_slice(j)
-    windows = level_set(intervals, level)
-    robust = level_set(shrunk, level)
+    windows = claimed(intervals)
+    robust = claimed(shrunk)
     per_draw = coverage(shrunk, ph)
     per_draw[(ph - tolerance < ph[0] - 1e-9) | (ph + tolerance > ph[-1] + 1e-9)] = np.nan
     curve_ph = np.round(np.arange(ph[0], ph[-1] + 0.25 * resolution, 0.5 * resolution), 10)
     curve_ph = curve_ph[curve_ph <= ph[-1] + 1e-12]
-    curve_p = coverage(intervals, curve_ph)
-    curve_r = coverage(shrunk, curve_ph)
+    curve_p = curve(coverage(intervals, curve_ph))
+    curve_r = curve(coverage(shrunk, curve_ph))
     best = choose_best_index(curve_r)
     if best is None or curve_r[best] <= 0:
         best = choose_best_index(curve_p)
@@ -226,6 +246,10 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
             warnings.append(f"no set point where a share >= {level:g} of the draws meets every "
                             f"specification at every pH within +/- {tolerance:g} (the window is "
                             f"narrower than the drift band)")
+    if mc_confidence is not None and not guarded:
+        warnings.append(f"{n} draws are too few to show probability >= {level:g} against Monte Carlo error "
+                        f"(at least {minimum_draws(level, mc_confidence)} needed at confidence "
+                        f"{mc_confidence:g}); the window uses the share of passing draws")
     if n_failed:
         warnings.append(f"{n_failed} of {theta.shape[0]} draws gave non-finite outcomes "
                         f"(simulation failed); they count as not meeting the specifications")
@@ -246,6 +270,7 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         n_failed_draws=n_failed, warnings=warnings, curve_ph=curve_ph,
         curve_probability=curve_p, curve_robust_probability=curve_r, resolution=float(resolution),
         n_refinement_simulations=int(refined[j][2]),
+        mc_confidence=float(mc_confidence) if guarded else None, claim_count=int(need),
     )
     if factor_grid is not None:
         map_p, map_se = probability_curve(passes)              # (n_ph, n_f)
@@ -259,8 +284,8 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         result.nominal_factor = float(shown[j])
         result.map_probability = map_p
         result.map_standard_error = map_se
-        result.map_windows = [level_set(refined_slice(k)[0], level) for k in range(len(factors))]
-        result.map_robust_windows = [level_set(refined_slice(k)[1], level) for k in range(len(factors))]
+        result.map_windows = [claimed(refined_slice(k)[0]) for k in range(len(factors))]
+        result.map_robust_windows = [claimed(refined_slice(k)[1]) for k in range(len(factors))]
         result.n_refinement_simulations = sum(v[2] for v in refined.values())
     return result
 

@@ -139,6 +139,9 @@ class GateInputs:
     chi_square, degrees_of_freedom
         Chi-square of the least-squares fit (residuals divided by the
         stated errors) and its degrees of freedom.
+    level, mc_confidence
+        The window's level and the confidence of its Monte Carlo guard
+        (None when the guard did not apply: too few draws).
     """
 
     source: str | None = None
@@ -156,6 +159,8 @@ class GateInputs:
     runs: Mapping[str, Sequence[Any]] | None = None
     chi_square: float | None = None
     degrees_of_freedom: int | None = None
+    level: float | None = None
+    mc_confidence: float | None = None
 
 
 @dataclass
@@ -364,6 +369,27 @@ def error_model_gate(x: GateInputs) -> GateVerdict:
     return GateVerdict(name, PASS, [], figures)
 
 
+def monte_carlo_gate(x: GateInputs) -> GateVerdict:
+    """Enough draws for the Monte Carlo guard of the claim (:mod:`speciakin.decision.montecarlo`)."""
+    from speciakin.decision.montecarlo import MC_CONFIDENCE, minimum_draws
+
+    name = "Monte Carlo error"
+    if x.draws is None or x.level is None:
+        return GateVerdict(name, NOT_CHECKED, ["draws or level not given"])
+    n, needed = int(np.shape(x.draws)[0]), minimum_draws(x.level, MC_CONFIDENCE)
+    figures = {"draws": n, "draws_needed": needed, "confidence": x.mc_confidence}
+    if x.mc_confidence is None and n >= needed:
+        return GateVerdict(name, PROVISIONAL, [
+            "the window was computed without the Monte Carlo guard: it rests on the share of passing draws"],
+            figures)
+    if x.mc_confidence is None:
+        return GateVerdict(name, PROVISIONAL, [
+            f"{n} draws are too few to show probability >= {x.level:g} against Monte Carlo error (at least "
+            f"{needed} needed at confidence {MC_CONFIDENCE:g}): the window rests on the share of passing draws"],
+            figures)
+    return GateVerdict(name, PASS, [], figures)
+
+
 #: The one registry of gates, in the order they are reported.
 GATES: dict[str, Gate] = {g.name: g for g in (
     Gate("convergence", "posterior converged (R-hat, effective sample size)", convergence_gate),
@@ -373,6 +399,7 @@ GATES: dict[str, Gate] = {g.name: g for g in (
     Gate("pH coverage", "window edges inside the pH range of the runs", ph_coverage_gate),
     Gate("process envelope", "process conditions inside the envelope of the runs", envelope_gate),
     Gate("error model", "data scatter as the stated error model says (fit chi-square)", error_model_gate),
+    Gate("Monte Carlo error", "enough draws to claim the level against Monte Carlo error", monte_carlo_gate),
 )}
 
 

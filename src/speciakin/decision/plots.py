@@ -42,7 +42,8 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
 
     The two curves are the step functions the windows are computed from
     (``result.curve_*``: the share of draws meeting every specification at
-    the set point, and at every pH within +/- tolerance), so each shaded
+    the set point, and at every pH within +/- tolerance; its one-sided
+    Monte Carlo lower bound when ``result.mc_confidence`` is set), so each shaded
     band begins and ends where its curve crosses the level.  Results without
     those curves (older files) draw the grid values.
     """
@@ -61,9 +62,13 @@ def plot_probability(result: WindowResult, path: str | os.PathLike) -> Path:
     else:
         x, p, robust = result.ph, result.probability, result.robust_probability_per_draw
         se = result.probability_standard_error
-    ax.fill_between(x, np.clip(p - 2 * se, 0, 1), np.clip(p + 2 * se, 0, 1), color=OKABE_ITO["black"],
-                    alpha=0.15, lw=0, label="+/- 2 Monte Carlo s.e.")
-    ax.plot(x, p, color=OKABE_ITO["black"], lw=1.8, label="probability, all specifications met")
+    if result.mc_confidence is None:
+        ax.fill_between(x, np.clip(p - 2 * se, 0, 1), np.clip(p + 2 * se, 0, 1), color=OKABE_ITO["black"],
+                        alpha=0.15, lw=0, label="+/- 2 Monte Carlo s.e.")
+        what = "probability, all specifications met"
+    else:   # the curves are the Monte Carlo lower bound (decision/montecarlo.py): no band around them
+        what = f"probability, all specifications met ({result.mc_confidence:.0%} lower bound)"
+    ax.plot(x, p, color=OKABE_ITO["black"], lw=1.8, label=what)
     if robust is not None and np.any(np.isfinite(robust)):
         ax.plot(x, robust, color=OKABE_ITO["vermillion"], lw=1.2, ls="--",
                 label=f"all met at every pH within +/- {result.tolerance:g}")

@@ -158,16 +158,18 @@ def coverage(intervals: Sequence[Sequence[Interval]], x: Sequence[float]) -> np.
     return count / max(1, len(intervals))
 
 
-def level_set(intervals: Sequence[Sequence[Interval]], level: float) -> list[Interval]:
+def level_set(intervals: Sequence[Sequence[Interval]], level: float, count: int | None = None) -> list[Interval]:
     """Exact set {x : share of draws whose intervals contain x >= level}.
 
     The share is a step function that changes only at interval ends; a sweep
     over the sorted ends gives the set as disjoint closed intervals.
+    ``count`` (a number of draws) replaces ``level`` x n as the threshold:
+    the Monte Carlo guard's count (:func:`speciakin.decision.montecarlo.claim_count`).
     """
     n = len(intervals)
     if n == 0:
         return []
-    need = level * n - 1e-9
+    need = (level * n if count is None else count) - 1e-9
     events = sorted([(lo, 0) for row in intervals for lo, _ in row]
                     + [(hi, 1) for row in intervals for _, hi in row])   # starts before ends
     out: list[Interval] = []

@@ -107,6 +107,13 @@ class WindowResult:
         Width [pH units] to which pass/fail changes were located.
     n_refinement_simulations
         (draw, pH) simulations used by the bisection.
+    mc_confidence
+        Confidence of the Monte Carlo guard (:mod:`speciakin.decision.montecarlo`)
+        when it applied: windows, robust set points and the two curves are
+        then the one-sided Clopper-Pearson lower bound of the probability;
+        None = the share of passing draws (guard off, or too few draws).
+    claim_count
+        Passing draws (of ``n_draws``) needed to claim a set point.
     status
         Trust status in plain words: "established", "provisional" or
         "not established" (:mod:`speciakin.decision.gates`); None when no
@@ -152,6 +159,8 @@ class WindowResult:
     curve_robust_probability: np.ndarray | None = None
     resolution: float | None = None
     n_refinement_simulations: int = 0
+    mc_confidence: float | None = None
+    claim_count: int | None = None
     status: str | None = None
     status_reasons: list[str] = field(default_factory=list)
     gates: list[dict[str, Any]] = field(default_factory=list)
@@ -176,6 +185,11 @@ class WindowResult:
                      f"({self.ph.size} points)")
         lines.append(f"  draws                  {self.n_draws}")
         lines.append(f"  uncertainty source     {self.uncertainty_source}")
+        if self.claim_count is not None:
+            lines.append("  Monte Carlo guard      " + (
+                f"a set point is claimed where >= {self.claim_count} of {self.n_draws} draws pass (one-sided "
+                f"{self.mc_confidence:g} lower bound of p >= level)" if self.mc_confidence is not None else
+                f"not applied: a set point is claimed where >= {self.claim_count} of {self.n_draws} draws pass"))
         if self.resolution is not None:
             lines.append(f"  edge resolution        {self.resolution:g} pH (bisection, "
                          f"{self.n_refinement_simulations} extra simulations)")
@@ -300,6 +314,8 @@ class WindowResult:
             curve_robust_probability=arr("curve_robust_probability"),
             resolution=num("resolution"),
             n_refinement_simulations=int(data.get("n_refinement_simulations", 0)),
+            mc_confidence=num("mc_confidence"),
+            claim_count=None if data.get("claim_count") is None else int(data["claim_count"]),
             status=data.get("status"),
             status_reasons=list(data.get("status_reasons", [])),
             gates=[dict(g) for g in data.get("gates", [])],

@@ -139,7 +139,8 @@ def campaign_gate_inputs(objective: Any, process: Any, result: Any, draws: np.nd
         source="posterior" if posterior is not None and source == "posterior" else source,
         parameter_names=[p.name for p in params], draws=np.asarray(draws, dtype=float),
         lower=[float(p.lower) for p in params], upper=[float(p.upper) for p in params],
-        windows=list(result.windows), run_ph_range=run_ph_range(runs),
+        windows=list(result.windows), run_ph_range=run_ph_range(runs), level=float(result.level),
+        mc_confidence=result.mc_confidence,
         process=process_conditions(process),
         runs=run_conditions(runs, process.substrate, process.reagent))
     if posterior is not None:

@@ -67,6 +67,6 @@ def load_inputs(inputs: Inputs):
     from speciakin.decision import load_process
 
     model = load_model(inputs.model)
-    campaign = load_campaign(inputs.campaign)
+    campaign = load_campaign(inputs.campaign, model=model)  # names, titrants, reachable set points (docs/data.md)
     process = load_process(inputs.process, model) if inputs.process else None
     return model, campaign, process
