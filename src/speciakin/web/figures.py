@@ -163,11 +163,13 @@ def window_figure(window: Any) -> go.Figure:
     fig.add_trace(go.Scatter(x=np.r_[grid, grid[::-1]], y=np.r_[np.clip(p + 2 * se, 0, 1),
                                                                  np.clip(p - 2 * se, 0, 1)[::-1]],
                              fill="toself", fillcolor=OKABE_ITO["blue"], opacity=0.2, line=dict(width=0),
-                             name="Monte Carlo band (+/- 2 standard errors)", hoverinfo="skip"))
+                             name="share of draws +/- 2 standard errors", hoverinfo="skip"))
     ph = window.curve_ph if window.curve_ph is not None else grid
     prob = window.curve_probability if window.curve_probability is not None else p
-    fig.add_trace(go.Scatter(x=ph, y=prob, mode="lines", name="P(all specifications met)",
-                             line=dict(color=OKABE_ITO["blue"], width=2)))
+    guard = getattr(window, "mc_confidence", None)
+    name = ("P(all specifications met)" if guard is None or window.curve_probability is None
+            else f"lower {guard:g} confidence bound of P (window read from it)")
+    fig.add_trace(go.Scatter(x=ph, y=prob, mode="lines", name=name, line=dict(color=OKABE_ITO["blue"], width=2)))
     robust = window.curve_robust_probability
     if robust is not None:
         fig.add_trace(go.Scatter(x=ph, y=robust, mode="lines", name=f"robust to +/- {window.tolerance:g} pH",

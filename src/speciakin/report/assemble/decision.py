@@ -242,6 +242,21 @@ def process_block(process: Any, names: dict[str, str] | None = None) -> KeyValue
     return KeyValues(rows, number_format=".4g")
 
 
+def _claim_curve(window: Any):
+    """The curve the window is read from when the Monte Carlo guard is on (its lower confidence bound)."""
+    if getattr(window, "mc_confidence", None) is None or getattr(window, "curve_probability", None) is None:
+        return None
+    return (window.curve_ph, window.curve_probability,
+            f"lower {window.mc_confidence:g} confidence bound (window read from it)")
+
+
+def _claim_caption(window: Any) -> str:
+    if _claim_curve(window) is None:
+        return ""
+    return (f"; dashed: its one-sided {window.mc_confidence:g} Monte Carlo lower confidence bound, from which "
+            f"the window is read")
+
+
 def window_section(window: Any, colors: SpeciesColors, process: Any = None,
                    names: dict[str, str] | None = None) -> Section:
     """The "pH window" section: planned process, probability vs pH, outcomes vs pH, 2-D map, scan table."""
@@ -255,10 +270,11 @@ def window_section(window: Any, colors: SpeciesColors, process: Any = None,
     se = np.asarray(window.probability_standard_error, float)
     blocks: list = [process_block(process, names), Figure(probability_vs_ph_figure(
         ph, p, window.level, window=window.primary_window, robust_window=_robust_for_primary(window),
-        probability_low=np.clip(p - 2 * se, 0, 1), probability_high=np.clip(p + 2 * se, 0, 1)),
-        f"Probability that every specification is met against set-point pH (band: +/- 2 Monte Carlo "
-        f"standard errors); line at the level {window.level:g}; light shading: window; dark shading: "
-        f"set points robust to +/- {window.tolerance:g} pH drift.")]
+        probability_low=np.clip(p - 2 * se, 0, 1), probability_high=np.clip(p + 2 * se, 0, 1),
+        claim=_claim_curve(window)),
+        f"Probability that every specification is met against set-point pH (share of draws; band: +/- 2 "
+        f"Monte Carlo standard errors){_claim_caption(window)}; line at the level {window.level:g}; light "
+        f"shading: window; dark shading: set points robust to +/- {window.tolerance:g} pH drift.")]
     if window.outcome_names:
         blocks.append(Figure(outcomes_vs_ph_figure(
             ph, relabel(window.outcome_median, names), relabel(window.outcome_lower, names),

@@ -40,6 +40,7 @@ def probability_vs_ph_figure(
     probability_low: Sequence[float] | None = None,
     probability_high: Sequence[float] | None = None,
     title: str = "",
+    claim: tuple[Sequence[float], Sequence[float], str] | None = None,
 ) -> bytes:
     """Probability that every specification is met, against pH [1]_.
 
@@ -58,6 +59,10 @@ def probability_vs_ph_figure(
         by the plant's control tolerance; shaded darker.
     probability_low, probability_high
         Optional Monte Carlo uncertainty band of the probability itself.
+    claim
+        Optional ``(ph, value, label)``: the curve the window is read from
+        when it differs from ``probability`` (the Monte Carlo lower confidence
+        bound of the probability, docs/decision.md); drawn dashed.
     """
     x = as_array(ph, "ph", allow_nan=False)
     p = as_array(probability, "probability")
@@ -81,6 +86,10 @@ def probability_vs_ph_figure(
         same_length(ph=x, probability_low=lo, probability_high=hi)
         ax.fill_between(x, lo, hi, color=OKABE_ITO["blue"], alpha=0.2, linewidth=0, label="Monte Carlo band")
     ax.plot(x, p, color=OKABE_ITO["blue"], linewidth=1.8, label="P(all specifications met)")
+    if claim is not None:
+        cx, cy = as_array(claim[0], "claim ph", allow_nan=False), as_array(claim[1], "claim value")
+        same_length(claim_ph=cx, claim_value=cy)
+        ax.plot(cx, cy, color=OKABE_ITO["blue"], linewidth=1.4, linestyle="--", label=claim[2])
     ax.axhline(level, color=NEUTRAL, linestyle="--", linewidth=1.0, label=f"required level {level:.2f}")
     ax.set_ylim(-0.02, 1.02)
     ax.set_xlabel("pH [-]")
