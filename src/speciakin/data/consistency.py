@@ -28,7 +28,7 @@ from speciakin.errors import ProblemCollector
 __all__ = [
     "VOLUME_RANGE", "TEMPERATURE_LIMITS", "TEMPERATURE_USUAL", "CONCENTRATION_LIMIT", "CONCENTRATION_USUAL",
     "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_CONCENTRATION_MINIMUM", "MAX_RUN_TIME",
-    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "run_problems",
+    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "HELD_PH_RANGE", "run_problems",
 ]
 
 #: [K] temperatures outside -20 C to 120 C draw a warning (common practice).
@@ -48,6 +48,12 @@ MAX_RUN_TIME = 365.25 * 86400.0
 RRF_USUAL = (0.01, 100.0)
 #: [area%] a single area% value above 100 + this is an error (the area_sum tolerance of validate.py).
 AREA_PERCENT_EXCESS = 3.0
+#: [pH] a held (pH-stat) set point outside this range is an error: below pH 1 the free acid alone is
+#: above 0.1 mol/L, a tenth of a 1 M titrant, and above pH 13 the free base likewise, so the titrant
+#: volume no longer measures the reaction; glass electrodes read low above about pH 12-13 (alkaline
+#: error) and drift below about pH 1 (acid error) (common practice, from memory).  The simulation
+#: does not integrate a held run of the demo model near pH 0.
+HELD_PH_RANGE = (1.0, 13.0)
 #: [-] titrant consumed over the amounts in the vessel (initial + dosed, titrant ion excluded):
 #: outside this range a warning asks to check the titrant concentration and its unit (common practice).
 TITRANT_RATIO_USUAL = (1e-3, 1e2)
@@ -123,6 +129,12 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                     "readings up to the end of the run, or a shorter duration; check the time units",
                     code="log_coverage")
     if ph.mode == "held":
+        lo, hi = HELD_PH_RANGE
+        if ph.setpoint is not None and 0.0 <= ph.setpoint <= 14.0 and not lo <= ph.setpoint <= hi:
+            c.error(f"held-pH run {run.name} has a set point no pH-stat can hold", loc("runs", run.row, "setpoint"),
+                    f"pH {ph.setpoint:g}", f"a set point from pH {lo:g} to {hi:g} (outside it the free acid or base "
+                    "alone is above 0.1 mol/L); check the value, or give the run as logged or free",
+                    code="implausible")
         if not ph.titrant:
             c.error(f"held-pH run {run.name} names no titrant ion", loc("runs", run.row, "titrant"), None,
                     "the ion the controller doses, as named in the model (e.g. Na+)", code="missing_titrant")
