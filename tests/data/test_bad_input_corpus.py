@@ -364,10 +364,7 @@ def test_bad_input(case, bases, tmp_path, capsys):
 
 #: Cases that pass ``check`` but whose fit stops with a solver error (exit code 3, the solver's words, no
 #: location): open findings, expected to fail until fixed (strict: a fix makes the test say so).
-SOLVER_FAILURES = {
-    "hplc_results.csv header 'time [min]'->'time / s'": "sampling minutes read as seconds (every sample within "
-                                                         "3 min): check only warns, the fit meets NaN",
-}
+SOLVER_FAILURES: dict[str, str] = {}
 
 
 @pytest.mark.slow

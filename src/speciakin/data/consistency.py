@@ -28,7 +28,8 @@ from speciakin.errors import ProblemCollector
 __all__ = [
     "VOLUME_RANGE", "TEMPERATURE_LIMITS", "TEMPERATURE_USUAL", "CONCENTRATION_LIMIT", "CONCENTRATION_USUAL",
     "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_CONCENTRATION_MINIMUM", "MAX_RUN_TIME",
-    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "HELD_PH_RANGE", "run_problems",
+    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "HELD_PH_RANGE", "SAMPLING_SPAN_FRACTION",
+    "run_problems",
 ]
 
 #: [K] temperatures outside -20 C to 120 C draw a warning (common practice).
@@ -54,6 +55,9 @@ AREA_PERCENT_EXCESS = 3.0
 #: error) and drift below about pH 1 (acid error) (common practice, from memory).  The simulation
 #: does not integrate a held run of the demo model near pH 0.
 HELD_PH_RANGE = (1.0, 13.0)
+#: [-] every HPLC sample of a run within this fraction of its stated duration draws a warning
+#: (`sampling_span`: minutes read as seconds put a 3 h run's samples within its first 3 min), common practice.
+SAMPLING_SPAN_FRACTION = 0.05
 #: [-] titrant consumed over the amounts in the vessel (initial + dosed, titrant ion excluded):
 #: outside this range a warning asks to check the titrant concentration and its unit (common practice).
 TITRANT_RATIO_USUAL = (1e-3, 1e2)
@@ -91,6 +95,7 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                 end / 60.0, f"at most {MAX_RUN_TIME / 86400.0:g} days [min]; check the time values and units "
                 "(the run ends at its duration or else at its last observation)", code="implausible")
         return
+    _sampling_span(campaign, run, end, c)
     rows = run.dose_rows or (None,) * len(r.doses)
     for dose, row in zip(r.doses, rows):
         if dose.end > end:
@@ -142,6 +147,19 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
             c.error(f"held-pH run {run.name} has no titrant concentration",
                     loc("runs", run.row, "titrant_concentration"), ph.titrant_concentration,
                     "the concentration of the titrant solution (> 0)", code="missing_value")
+
+
+def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemCollector) -> None:
+    """Warning when every HPLC sample of a run with a stated duration falls in its first few percent."""
+    times = np.unique(run.hplc.time[np.isfinite(run.hplc.time)])
+    if "duration" not in campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {}) or times.size < 2:
+        return
+    if times[-1] < SAMPLING_SPAN_FRACTION * end:
+        k = int(np.argmax(run.hplc.time))
+        c.warning(f"every HPLC sample of run {run.name} is taken within the first {times[-1] / 60.0:.3g} min of "
+                  f"the run's {end / 60.0:g} min", campaign.locate("hplc", int(run.hplc.rows[k]), "time"),
+                  float(run.hplc.time[k]) / 60.0, f"samples spread over the run; check the time unit in the header "
+                  "of the HPLC results (min, s or h)", code="sampling_span")
 
 
 def _plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> None:
