@@ -20,13 +20,13 @@ __all__ = ["SheetColumns", "match_columns", "column_numbers", "column_texts", "r
            "optional_float", "EQUIVALENTS", "moles_per_gram", "accepted_units"]
 
 #: The header unit of an amount given in equivalents of the substrate ("amount [eq]"); its words are
-#: the model file's (:data:`speciakin.chemistry.modelfile_units.EQUIVALENT_UNITS`).
+#: the model file's (:data:`speciakin.chemistry.modelfile.units.EQUIVALENT_UNITS`).
 EQUIVALENTS = units.Unit("eq", "equivalents", 1.0)
 
 
 def _also_unit(unit_text: str, kinds: tuple[str, ...]) -> units.Unit | None:
     """The unit of ``unit_text`` among the further kinds a column accepts (mass, equivalents), or None."""
-    from speciakin.chemistry.modelfile_units import EQUIVALENT_UNITS
+    from speciakin.chemistry.modelfile.units import EQUIVALENT_UNITS
 
     if "equivalents" in kinds and unit_text.strip().lower() in EQUIVALENT_UNITS:
         return EQUIVALENTS
@@ -40,7 +40,7 @@ def _also_unit(unit_text: str, kinds: tuple[str, ...]) -> units.Unit | None:
 
 def accepted_units(dimension: str, also: tuple[str, ...] = ()) -> str:
     """The header units a column accepts, for messages."""
-    from speciakin.chemistry.modelfile_units import EQUIVALENT_UNITS
+    from speciakin.chemistry.modelfile.units import EQUIVALENT_UNITS
 
     listed = list(units.DIMENSIONS[dimension]) + (list(units.DIMENSIONS["mass"]) if "mass" in also else [])
     listed += [EQUIVALENT_UNITS[0]] if "equivalents" in also else []
