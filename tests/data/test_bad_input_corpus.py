@@ -364,14 +364,7 @@ def test_bad_input(case, bases, tmp_path, capsys):
 
 #: Cases that pass ``check`` but whose fit stops with a solver error (exit code 3, the solver's words, no
 #: location): open findings, expected to fail until fixed (strict: a fix makes the test say so).
-SOLVER_FAILURES = {
-    "runs[pH setpoint]='0'": "held at pH 0 with a base titrant: the run does not integrate at the start values "
-                             "(kernel status 2, step size too small); check only warns (setpoint_deviation)",
-    "runs[pH setpoint]='1e-300'": "as pH setpoint 0",
-    "dosing.csv[end [min]]=''": "the 30 min dose read as given at once: one least-squares start does not converge",
-    "hplc_results.csv header 'time [min]'->'time / s'": "sampling minutes read as seconds (every sample within "
-                                                         "3 min): check only warns, the fit meets NaN",
-}
+SOLVER_FAILURES: dict[str, str] = {}
 
 
 @pytest.mark.slow
@@ -381,6 +374,22 @@ SOLVER_FAILURES = {
 def test_bad_input_fit_and_run(case, bases, tmp_path, capsys):
     folder = _prepare(case, bases, tmp_path)
     OUTCOMES[case[0]] = run_case(folder, capsys, commands=True)
+
+
+def test_run_that_does_not_integrate_at_the_start_is_located(bases, tmp_path, capsys):
+    """A held set point of 1.5 passes ``check`` (inside pH 1-13) but the demo model's held run does not
+    integrate there at the model file's values (kernel status 2): ``fit`` stops before fitting with exit
+    code 2, naming the run's row of the Runs sheet, the kernel's reason and what to check."""
+    from speciakin.cli.main import main
+
+    folder = _prepare(("held pH 1.5", "csv", set_cell("runs.csv", "pH setpoint", 2, "1.5")), bases, tmp_path)
+    assert _check(folder, capsys) != "error"
+    code = main(["fit", str(folder), *FIT])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    _assert_located(err, folder)
+    assert "runs.csv, sheet 'runs', row 2" in err and "run R01-pH4.0 cannot be simulated" in err
+    assert "step size became too small" in err and "check this row's pH set point" in err
 
 
 def test_corpus_size():

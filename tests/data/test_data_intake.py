@@ -196,3 +196,19 @@ def test_late_simulator_errors_are_found_at_the_cell(folder):
     edit(folder, "dosing.csv", 2, "end [min]", "500")
     (p,) = _codes(check_campaign(folder), "after_end")
     assert (p.location.sheet, p.location.row, p.location.column) == ("dosing", 2, "E (end [min])")
+
+
+@pytest.mark.parametrize("value", ["0", "1e-300", "0.5", "13.5"])
+def test_held_set_point_no_ph_stat_can_hold(folder, value):
+    """A held set point outside pH 1-13 (consistency.HELD_PH_RANGE, common practice): at pH 0 the free acid
+    alone is 1 mol/L, as concentrated as the 1 M titrant."""
+    edit(folder, "runs.csv", 2, "pH setpoint", value)
+    p = next(p for p in check_campaign(folder).errors if p.code == "implausible")
+    assert "no pH-stat can hold" in p.message and "pH 1 to 13" in p.expected
+    assert (p.location.row, p.location.column) == (2, "C (pH setpoint)")
+
+
+@pytest.mark.parametrize("value", ["1", "4", "13"])
+def test_held_set_point_within_the_range_passes(folder, value):
+    edit(folder, "runs.csv", 2, "pH setpoint", value)
+    assert not [p for p in check_campaign(folder).errors if p.code == "implausible"]

@@ -123,3 +123,12 @@ def test_mass_balance_uses_model_moieties(folder):
     report = check_campaign(folder, model=model)
     p = [x for x in report.warnings if x.code == "mass_balance"][0]
     _at(p, "hplc_results", 54, "B (time [min])")
+
+
+def test_every_sample_early_in_a_long_run(folder):
+    """R01 samples up to 120 min; stated as a 10000 min run, every sample falls in its first 1.2 %
+    (below consistency.SAMPLING_SPAN_FRACTION, 5 %): the signature of a wrong time unit."""
+    edit(folder, "runs.csv", 2, "duration [min]", "10000")
+    p = _warning(folder, "sampling_span")
+    assert (p.location.sheet, p.location.column) == ("hplc_results", "B (time [min])")
+    assert p.value == pytest.approx(120.0) and "within the first 120 min of the run's 10000 min" in p.message

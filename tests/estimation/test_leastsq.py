@@ -87,6 +87,16 @@ def test_nan_at_a_start_fails_that_start_only():
     assert any("starts failed" in w for w in fit.warnings)
 
 
+def test_unconverged_start_is_reported_but_never_a_success():
+    """One start cut off after 3 evaluations ends at finite residuals: the fit reports it as not
+    converged, with a warning, instead of stopping."""
+    y, sigma = make_data(1)
+    fit = fit_least_squares(lambda b: (y - first_order(b)) / sigma, SPECS, starts=1, max_evaluations=3)
+    assert not fit.success and not fit.starts[0].success
+    assert fit.warnings[0].startswith("no start converged (1 tried)") and "try more starts" in fit.warnings[0]
+    assert math.isfinite(fit.chisqr)
+
+
 def test_no_start_succeeds_raises_solver_error():
     with pytest.raises(SolverError, match="no start converged"):
         fit_least_squares(lambda b: np.full(5, np.nan), [ParameterSpec("a", 1.0)], starts=2, seed=0)

@@ -28,7 +28,8 @@ from speciakin.errors import ProblemCollector
 __all__ = [
     "VOLUME_RANGE", "TEMPERATURE_LIMITS", "TEMPERATURE_USUAL", "CONCENTRATION_LIMIT", "CONCENTRATION_USUAL",
     "TITRANT_CONCENTRATION_USUAL", "TITRANT_CONCENTRATION_LIMIT", "TITRANT_CONCENTRATION_MINIMUM", "MAX_RUN_TIME",
-    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "run_problems",
+    "RRF_USUAL", "AREA_PERCENT_EXCESS", "TITRANT_RATIO_USUAL", "HELD_PH_RANGE", "SAMPLING_SPAN_FRACTION",
+    "run_problems",
 ]
 
 #: [K] temperatures outside -20 C to 120 C draw a warning (common practice).
@@ -48,6 +49,15 @@ MAX_RUN_TIME = 365.25 * 86400.0
 RRF_USUAL = (0.01, 100.0)
 #: [area%] a single area% value above 100 + this is an error (the area_sum tolerance of validate.py).
 AREA_PERCENT_EXCESS = 3.0
+#: [pH] a held (pH-stat) set point outside this range is an error: below pH 1 the free acid alone is
+#: above 0.1 mol/L, a tenth of a 1 M titrant, and above pH 13 the free base likewise, so the titrant
+#: volume no longer measures the reaction; glass electrodes read low above about pH 12-13 (alkaline
+#: error) and drift below about pH 1 (acid error) (common practice, from memory).  The simulation
+#: does not integrate a held run of the demo model near pH 0.
+HELD_PH_RANGE = (1.0, 13.0)
+#: [-] every HPLC sample of a run within this fraction of its stated duration draws a warning
+#: (`sampling_span`: minutes read as seconds put a 3 h run's samples within its first 3 min), common practice.
+SAMPLING_SPAN_FRACTION = 0.05
 #: [-] titrant consumed over the amounts in the vessel (initial + dosed, titrant ion excluded):
 #: outside this range a warning asks to check the titrant concentration and its unit (common practice).
 TITRANT_RATIO_USUAL = (1e-3, 1e2)
@@ -85,6 +95,7 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                 end / 60.0, f"at most {MAX_RUN_TIME / 86400.0:g} days [min]; check the time values and units "
                 "(the run ends at its duration or else at its last observation)", code="implausible")
         return
+    _sampling_span(campaign, run, end, c)
     rows = run.dose_rows or (None,) * len(r.doses)
     for dose, row in zip(r.doses, rows):
         if dose.end > end:
@@ -123,6 +134,12 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                     "readings up to the end of the run, or a shorter duration; check the time units",
                     code="log_coverage")
     if ph.mode == "held":
+        lo, hi = HELD_PH_RANGE
+        if ph.setpoint is not None and 0.0 <= ph.setpoint <= 14.0 and not lo <= ph.setpoint <= hi:
+            c.error(f"held-pH run {run.name} has a set point no pH-stat can hold", loc("runs", run.row, "setpoint"),
+                    f"pH {ph.setpoint:g}", f"a set point from pH {lo:g} to {hi:g} (outside it the free acid or base "
+                    "alone is above 0.1 mol/L); check the value, or give the run as logged or free",
+                    code="implausible")
         if not ph.titrant:
             c.error(f"held-pH run {run.name} names no titrant ion", loc("runs", run.row, "titrant"), None,
                     "the ion the controller doses, as named in the model (e.g. Na+)", code="missing_titrant")
@@ -130,6 +147,19 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
             c.error(f"held-pH run {run.name} has no titrant concentration",
                     loc("runs", run.row, "titrant_concentration"), ph.titrant_concentration,
                     "the concentration of the titrant solution (> 0)", code="missing_value")
+
+
+def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemCollector) -> None:
+    """Warning when every HPLC sample of a run with a stated duration falls in its first few percent."""
+    times = np.unique(run.hplc.time[np.isfinite(run.hplc.time)])
+    if "duration" not in campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {}) or times.size < 2:
+        return
+    if times[-1] < SAMPLING_SPAN_FRACTION * end:
+        k = int(np.argmax(run.hplc.time))
+        c.warning(f"every HPLC sample of run {run.name} is taken within the first {times[-1] / 60.0:.3g} min of "
+                  f"the run's {end / 60.0:g} min", campaign.locate("hplc", int(run.hplc.rows[k]), "time"),
+                  float(run.hplc.time[k]) / 60.0, f"samples spread over the run; check the time unit in the header "
+                  "of the HPLC results (min, s or h)", code="sampling_span")
 
 
 def _plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> None:

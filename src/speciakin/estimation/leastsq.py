@@ -204,7 +204,20 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
     good = [k for k, r in enumerate(records) if r.success]
     if not good:
         messages = sorted({r.status for r in records})
-        raise SolverError(f"no start converged ({len(records)} tried): " + "; ".join(messages[:5]))
+        ended = [k for k, f in enumerate(fits) if f.residual is not None and math.isfinite(f.chisqr)]
+        if not ended:
+            raise SolverError(f"no start converged ({len(records)} tried): " + "; ".join(messages[:5]))
+        # every start stopped at finite residuals without passing the tests: the lowest one is reported,
+        # never as a success (a stationary point it reaches may be a wrong local minimum)
+        best = min(ended, key=lambda k: fits[k].chisqr)
+        result = _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, groups, level,
+                           scale_by_residual_variance)
+        text = (f"no start converged ({len(records)} tried): " + "; ".join(messages[:5])
+                + f"; the estimates are those of the lowest chi-square reached (start {best}) and are doubtful: "
+                "try more starts")
+        result.warnings.insert(0, text)
+        result.success, result.message = False, text
+        return result
     # lowest chi-square; among starts within DIFFERENT_MINIMUM of it, an isolated minimum beats a flat one
     best = min(good, key=lambda k: fits[k].chisqr)
     isolated = [k for k in good if records[k].status != SINGULAR_STATUS

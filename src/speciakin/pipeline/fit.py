@@ -17,12 +17,15 @@ from typing import Any, Callable
 import numpy as np
 
 from speciakin._json import dumps, format_tag
+from speciakin.errors import InputError, Problem
 from speciakin.estimation.leastsq import fit_least_squares
 from speciakin.estimation.profile import profile_all
 from speciakin.estimation.results import FitResult, Profile
 from speciakin.pipeline.objective import CampaignObjective
+from speciakin.simulation.api import simulate_batch
+from speciakin.simulation.status import STATUS_TEXT
 
-__all__ = ["CampaignFitResult", "fit_campaign", "MISFIT_RMS"]
+__all__ = ["CampaignFitResult", "fit_campaign", "check_start_values", "MISFIT_RMS"]
 
 #: Per-run RMS of weighted residuals above which a misfit warning is given
 #: (residuals should scatter with unit standard deviation; common practice).
@@ -193,6 +196,34 @@ class CampaignFitResult:
         return dumps(self.to_dict())
 
 
+def check_start_values(objective: CampaignObjective) -> None:
+    """Simulate every run once at the starting values; a run that does not integrate there stops the fit.
+
+    Raises
+    ------
+    InputError
+        One problem per failed run, located at the run's row of the Runs sheet, with the kernel's
+        reason in plain words and what to check (exit code 2, before any fitting).
+    """
+    q, off, fac = objective.kernel_inputs(objective.start[None, :])
+    res = simulate_batch(objective.compiled, objective.compiled_runs, q, off, fac, objective.rtol, objective.atol,
+                         objective.parallel)
+    problems = []
+    for ri in np.flatnonzero(res.status[0] != 0):
+        crun, code = objective.campaign.runs[int(ri)], int(res.status[0, ri])
+        t = float(res.failure_time[0, ri])
+        ph = crun.recipe.ph
+        setting = f"pH {ph.mode}" + (f" at {ph.setpoint:g}" if ph.mode == "held" else "")
+        problems.append(Problem(
+            f"run {crun.name} cannot be simulated at the model file's starting values ({setting}): "
+            f"{STATUS_TEXT.get(code, 'unknown failure')} at t = {t / 60.0:.4g} min",
+            objective.campaign.locate("runs", crun.row, None), None,
+            "a run the model can follow: check this row's pH set point, titrant, amounts and volumes and the "
+            "time units, and the model file's starting values"))
+    if problems:
+        raise InputError(problems=problems)
+
+
 def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = None, seed: int | None = None,
                  profiles: bool = True, profile_points: int = 12,
                  progress: Callable[[str, int, int], None] | None = None) -> CampaignFitResult:
@@ -222,6 +253,7 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
     n_starts = starts if starts is not None else int(settings.get("starts", 6))
     seed = seed if seed is not None else int(settings.get("seed", 0))
     t0 = time.perf_counter()
+    check_start_values(objective)
 
     def on_start(done, total, best):
         if progress is not None:

@@ -389,7 +389,9 @@ class CampaignObjective:
 
         Step h_j = 1e-3 * max(1, |theta_j|) (integrator noise at rtol 1e-8
         divided by h stays near 1e-5; truncation error O(h^2) near 1e-6),
-        kept inside the bounds by one-sided steps where needed.
+        kept inside the bounds by one-sided steps where needed, and where the run
+        cannot be simulated on one side (a titrant that would have to be withdrawn
+        there, for example): then the difference is taken on the other side.
         """
         theta = np.asarray(theta, float)
         p = theta.size
@@ -403,6 +405,12 @@ class CampaignObjective:
             sets[2 * j, j] = plus[j]
             sets[2 * j + 1, j] = minus[j]
         r = self.residuals_batch(sets, rtol=min(self.rtol, 1e-8))
+        failed = ~np.all(np.isfinite(r), axis=1)
+        if failed.any():  # one-sided differences from theta where one side failed
+            r0 = self.residuals_batch(theta[None, :], rtol=min(self.rtol, 1e-8))[0]
+            up, down = np.where(failed[1::2], theta, minus), np.where(failed[0::2], theta, plus)
+            r[1::2][failed[1::2]], r[0::2][failed[0::2]] = r0, r0
+            plus, minus = down, up
         jac = np.empty((r.shape[1], p))
         for j in range(p):
             jac[:, j] = (r[2 * j] - r[2 * j + 1]) / (plus[j] - minus[j])
