@@ -184,65 +184,52 @@ def _positive(v: float) -> bool:
 _FINITE = (_any_number, "a finite number")
 _POSITIVE = (_positive, "a finite number > 0")
 
-register_prior_family(PriorFamily(
-    name="normal",
-    parameter_names=("mean", "sd"),
-    constraints={"mean": _FINITE, "sd": _POSITIVE},
-    log_density=normal_log_density,
-    draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
-    support=lambda mean, sd: (-np.inf, np.inf),
-    describe=lambda mean, sd: f"normal(mean={mean:g}, sd={sd:g})",
-    cdf=lambda x, mean, sd: special.ndtr((np.asarray(x, dtype=float) - mean) / sd),
-    ppf=lambda u, mean, sd: mean + sd * special.ndtri(u),
-))
 
-register_prior_family(PriorFamily(
-    name="lognormal",
-    parameter_names=("log_mean", "log_sd"),
-    constraints={"log_mean": _FINITE, "log_sd": _POSITIVE},
-    log_density=lognormal_log_density,
-    draw=lambda rng, size, log_mean, log_sd: rng.lognormal(log_mean, log_sd, size),
-    support=lambda log_mean, log_sd: (0.0, np.inf),
-    describe=lambda log_mean, log_sd: (
-        f"lognormal(log_mean={log_mean:g}, log_sd={log_sd:g}; median {math.exp(log_mean):.4g})"),
-    cdf=_lognormal_cdf,
-    ppf=lambda u, log_mean, log_sd: np.exp(log_mean + log_sd * special.ndtri(u)),
-))
+def _family(name: str, parameters: Mapping[str, tuple[Callable[[float], bool], str]], log_density: Callable, *,
+            draw: Callable, support: Callable, cdf: Callable, ppf: Callable,
+            note: Callable | None = None, cross_check: Callable | None = None) -> PriorFamily:
+    """A built-in family: ``parameters`` maps each parameter name (in the order
+    the functions take them) to its constraint; the report text lists the
+    parameters as ``name(p1=v1, p2=v2)``, with ``note(*parameters)`` after a
+    semicolon when given."""
+    names = tuple(parameters)
 
-register_prior_family(PriorFamily(
-    name="uniform",
-    parameter_names=("lower", "upper"),
-    constraints={"lower": _FINITE, "upper": _FINITE},
-    log_density=uniform_log_density,
-    draw=lambda rng, size, lower, upper: rng.uniform(lower, upper, size),
-    support=lambda lower, upper: (lower, upper),
-    describe=lambda lower, upper: f"uniform(lower={lower:g}, upper={upper:g})",
-    cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'",
-    cdf=lambda x, lower, upper: np.clip((np.asarray(x, dtype=float) - lower) / (upper - lower), 0.0, 1.0),
-    ppf=lambda u, lower, upper: lower + np.asarray(u, dtype=float) * (upper - lower),
-))
+    def describe(*values: float) -> str:
+        text = ", ".join(f"{n}={v:g}" for n, v in zip(names, values))
+        return f"{name}({text}; {note(*values)})" if note is not None else f"{name}({text})"
 
-register_prior_family(PriorFamily(
-    name="halfnormal",
-    parameter_names=("scale",),
-    constraints={"scale": _POSITIVE},
-    log_density=halfnormal_log_density,
-    draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
-    support=lambda scale: (0.0, np.inf),
-    describe=lambda scale: f"halfnormal(scale={scale:g})",
-    cdf=_halfnormal_cdf,
-    ppf=lambda u, scale: scale * math.sqrt(2.0) * special.erfinv(u),
-))
+    return PriorFamily(name=name, parameter_names=names, constraints=dict(parameters), log_density=log_density,
+                       draw=draw, support=support, describe=describe, cross_check=cross_check, cdf=cdf, ppf=ppf)
 
-register_prior_family(PriorFamily(
-    name="student_t",
-    parameter_names=("degrees_of_freedom", "mean", "scale"),
-    constraints={"degrees_of_freedom": _POSITIVE, "mean": _FINITE, "scale": _POSITIVE},
-    log_density=student_t_log_density,
-    draw=lambda rng, size, nu, mean, scale: mean + scale * rng.standard_t(nu, size),
-    support=lambda nu, mean, scale: (-np.inf, np.inf),
-    describe=lambda nu, mean, scale: (
-        f"student_t(degrees_of_freedom={nu:g}, mean={mean:g}, scale={scale:g})"),
-    cdf=lambda x, nu, mean, scale: special.stdtr(nu, (np.asarray(x, dtype=float) - mean) / scale),
-    ppf=lambda u, nu, mean, scale: mean + scale * special.stdtrit(nu, u),
-))
+
+for _built_in in (
+    _family("normal", {"mean": _FINITE, "sd": _POSITIVE}, normal_log_density,
+            draw=lambda rng, size, mean, sd: rng.normal(mean, sd, size),
+            support=lambda mean, sd: (-np.inf, np.inf),
+            cdf=lambda x, mean, sd: special.ndtr((np.asarray(x, dtype=float) - mean) / sd),
+            ppf=lambda u, mean, sd: mean + sd * special.ndtri(u)),
+    _family("lognormal", {"log_mean": _FINITE, "log_sd": _POSITIVE}, lognormal_log_density,
+            draw=lambda rng, size, log_mean, log_sd: rng.lognormal(log_mean, log_sd, size),
+            support=lambda log_mean, log_sd: (0.0, np.inf),
+            cdf=_lognormal_cdf,
+            ppf=lambda u, log_mean, log_sd: np.exp(log_mean + log_sd * special.ndtri(u)),
+            note=lambda log_mean, log_sd: f"median {math.exp(log_mean):.4g}"),
+    _family("uniform", {"lower": _FINITE, "upper": _FINITE}, uniform_log_density,
+            draw=lambda rng, size, lower, upper: rng.uniform(lower, upper, size),
+            support=lambda lower, upper: (lower, upper),
+            cdf=lambda x, lower, upper: np.clip((np.asarray(x, dtype=float) - lower) / (upper - lower), 0.0, 1.0),
+            ppf=lambda u, lower, upper: lower + np.asarray(u, dtype=float) * (upper - lower),
+            cross_check=lambda p: None if p["lower"] < p["upper"] else "'lower' must be less than 'upper'"),
+    _family("halfnormal", {"scale": _POSITIVE}, halfnormal_log_density,
+            draw=lambda rng, size, scale: np.abs(rng.normal(0.0, scale, size)),
+            support=lambda scale: (0.0, np.inf),
+            cdf=_halfnormal_cdf,
+            ppf=lambda u, scale: scale * math.sqrt(2.0) * special.erfinv(u)),
+    _family("student_t", {"degrees_of_freedom": _POSITIVE, "mean": _FINITE, "scale": _POSITIVE},
+            student_t_log_density,
+            draw=lambda rng, size, nu, mean, scale: mean + scale * rng.standard_t(nu, size),
+            support=lambda nu, mean, scale: (-np.inf, np.inf),
+            cdf=lambda x, nu, mean, scale: special.stdtr(nu, (np.asarray(x, dtype=float) - mean) / scale),
+            ppf=lambda u, nu, mean, scale: mean + scale * special.stdtrit(nu, u)),
+):
+    register_prior_family(_built_in)
