@@ -12,6 +12,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -81,6 +82,10 @@ def molecule_site_arrays(molecule: Molecule, temperature: float | None = None,
     return pka, w, zp, zd
 
 
+#: Fields of :class:`SpeciationResult` that its dictionary writes under another key (with the unit).
+_KEYS_WITH_UNIT = {"temperature": "temperature_K", "reference_temperature": "reference_temperature_K"}
+
+
 @dataclass
 class SpeciationResult:
     """Speciation of one molecule over a pH grid.
@@ -143,23 +148,17 @@ class SpeciationResult:
         return pd.DataFrame(data)
 
     def to_dict(self) -> dict:
-        return {
-            "molecule": self.molecule,
-            "ph": self.ph.tolist(),
-            "site_names": list(self.site_names),
-            "site_kinds": list(self.site_kinds),
-            "site_pka": self.site_pka.tolist(),
-            "interaction": self.interaction.tolist(),
-            "labels": list(self.labels),
-            "populations": self.populations.tolist(),
-            "site_protonated": self.site_protonated.tolist(),
-            "site_reactive": self.site_reactive.tolist(),
-            "mean_charge": self.mean_charge.tolist(),
-            "macroscopic_pka": self.macroscopic_pka.tolist(),
-            "temperature_K": self.temperature,
-            "reference_temperature_K": self.reference_temperature,
-            "notes": list(self.notes),
-        }
+        """JSON-ready dictionary: every field, arrays and sequences as lists,
+        the temperatures under keys with their unit (:data:`_KEYS_WITH_UNIT`)."""
+        out = {}
+        for f in dataclasses.fields(self):
+            value = getattr(self, f.name)
+            if isinstance(value, np.ndarray):
+                value = value.tolist()
+            elif isinstance(value, (list, tuple)):
+                value = list(value)
+            out[_KEYS_WITH_UNIT.get(f.name, f.name)] = value
+        return out
 
     @classmethod
     def from_dict(cls, data) -> "SpeciationResult":
