@@ -26,6 +26,11 @@ __all__ = [
 ]
 
 
+#: How :meth:`Location.describe` writes each field, in the order it lists them.
+_LOCATION_WORDS = (("file", "{}"), ("sheet", "sheet '{}'"), ("line", "line {}"), ("row", "row {}"),
+                   ("column", "column '{}'"), ("key", "key '{}'"))
+
+
 @dataclass(frozen=True)
 class Location:
     """Where a value came from.  Every field is optional.
@@ -42,20 +47,10 @@ class Location:
     line: int | None = None
 
     def describe(self) -> str:
-        parts: list[str] = []
-        if self.file:
-            parts.append(str(self.file))
-        if self.sheet:
-            parts.append(f"sheet '{self.sheet}'")
-        if self.line is not None:
-            parts.append(f"line {self.line}")
-        if self.row is not None:
-            parts.append(f"row {self.row}")
-        if self.column:
-            parts.append(f"column '{self.column}'")
-        if self.key:
-            parts.append(f"key '{self.key}'")
-        return ", ".join(parts)
+        """The place in words, e.g. ``runs.csv, row 4, column 'pH setpoint'``;
+        a field that is None or empty text is left out."""
+        values = ((words, getattr(self, name)) for name, words in _LOCATION_WORDS)
+        return ", ".join(words.format(v) for words, v in values if v is not None and v != "")
 
     def to_dict(self) -> dict[str, Any]:
         return {k: v for k, v in self.__dict__.items() if v is not None}
