@@ -153,16 +153,13 @@ _RUNS = SheetSpec(
            "base added inside the start volume, amount from the charge balance; the default when blank), "
            "given (the amount added is written in the start acid / start base amount columns or in an "
            "initial column) or titrant (the titrant brings it there and its volume adds)."),
-        _c("start_acid", ["start acid ion"], None, None, False,
-           "Ion of the acid added before time zero (e.g. Cl-). Blank = the titrant of that sign, else the "
-           "model's only negative ion."),
-        _c("start_acid_amount", ["start acid amount"], "amount", "mmol", False,
-           "With start adjustment 'given': amount of the start acid ion added inside the start volume."),
-        _c("start_base", ["start base ion"], None, None, False,
-           "Ion of the base added before time zero (e.g. Na+). Blank = the titrant of that sign, else the "
-           "model's only positive ion."),
-        _c("start_base_amount", ["start base amount"], "amount", "mmol", False,
-           "With start adjustment 'given': amount of the start base ion added inside the start volume."),
+        # the start acid and start base columns: the same two columns for either side
+        *(column for side, ion, sign in (("acid", "Cl-", "negative"), ("base", "Na+", "positive")) for column in (
+            _c(f"start_{side}", [f"start {side} ion"], None, None, False,
+               f"Ion of the {side} added before time zero (e.g. {ion}). Blank = the titrant of that sign, else "
+               f"the model's only {sign} ion."),
+            _c(f"start_{side}_amount", [f"start {side} amount"], "amount", "mmol", False,
+               f"With start adjustment 'given': amount of the start {side} ion added inside the start volume."))),
         _c("temperature", ["temperature"], "temperature", "C", False,
            "Constant temperature of the run. Leave blank when the probe log has temperatures."),
         _c("start_volume", ["start volume"], "volume", "mL", True,
