@@ -44,6 +44,7 @@ import numpy as np
 from scipy.special import gammaln
 
 from speciakin.errors import InputError, Location
+from speciakin.estimation.quantile_map import QuantileMap
 
 __all__ = ["student_t_log_density", "student_t_draw", "proposal_cholesky", "IndependenceStudentTMove",
            "ProposalSpec", "PROPOSALS", "build_moves", "proposal_fingerprint",
@@ -201,6 +202,11 @@ class IndependenceStudentTMove(emcee.moves.MHMove):
         nu of the Student-t (> 0; default 5).
     inflation
         Multiplier of the standard deviations (> 0; default 1.5).
+    shape_marginals
+        When True, :meth:`adapt_to` also fits a :class:`QuantileMap` of each
+        coordinate onto normal scores, and the Student-t is placed in score
+        space (skewed or bounded marginals); the density carries the map's
+        Jacobian.
 
     References
     ----------
@@ -209,7 +215,7 @@ class IndependenceStudentTMove(emcee.moves.MHMove):
     """
 
     def __init__(self, centre, covariance, degrees_of_freedom: float = DEFAULT_DEGREES_OF_FREEDOM,
-                 inflation: float = DEFAULT_INFLATION) -> None:
+                 inflation: float = DEFAULT_INFLATION, shape_marginals: bool = False) -> None:
         centre = np.asarray(centre, dtype=float).reshape(-1)
         if not np.all(np.isfinite(centre)):
             raise InputError("proposal centre is not usable", Location(key="start"), centre.tolist(),
@@ -222,6 +228,8 @@ class IndependenceStudentTMove(emcee.moves.MHMove):
         self.degrees_of_freedom = float(degrees_of_freedom)
         self.inflation = float(inflation)
         self.cholesky = float(inflation) * proposal_cholesky(covariance, centre.shape[0])
+        self.shape_marginals = bool(shape_marginals)
+        self.marginal_map: QuantileMap | None = None  # None = the Student-t acts on x itself
         super().__init__(self._independent_proposal, ndim=centre.shape[0])
 
     def adapt_to(self, draws: np.ndarray) -> bool:
@@ -239,21 +247,30 @@ class IndependenceStudentTMove(emcee.moves.MHMove):
         draws = np.ascontiguousarray(draws, dtype=float)
         if draws.shape[0] <= draws.shape[1] + 1 or not np.all(np.isfinite(draws)):
             return False
+        marginal_map = QuantileMap.fit(draws) if self.shape_marginals else None
+        scores = draws if marginal_map is None else marginal_map.forward(draws)[0]
         try:
-            cholesky = proposal_cholesky(np.cov(draws, rowvar=False), draws.shape[1], key="chain covariance")
+            cholesky = proposal_cholesky(np.atleast_2d(np.cov(scores, rowvar=False)), draws.shape[1],
+                                         key="chain covariance")
         except InputError:
             return False
-        self.centre = np.mean(draws, axis=0)
+        self.centre = np.mean(scores, axis=0)
         self.cholesky = ADAPTED_INFLATION * cholesky
+        self.marginal_map = marginal_map
         return True
 
     def log_density(self, x: np.ndarray) -> np.ndarray:
-        """Log proposal density q(x) of (n, d) points."""
-        return student_t_log_density(x, self.centre, self.cholesky, self.degrees_of_freedom)
+        """Log proposal density q(x) of (n, d) points (with the Jacobian of the marginal map, if any)."""
+        if self.marginal_map is None:
+            return student_t_log_density(x, self.centre, self.cholesky, self.degrees_of_freedom)
+        scores, log_jacobian = self.marginal_map.forward(x)
+        return student_t_log_density(scores, self.centre, self.cholesky, self.degrees_of_freedom) + log_jacobian
 
     def _independent_proposal(self, coords: np.ndarray, random) -> tuple[np.ndarray, np.ndarray]:
         proposed = student_t_draw(random, coords.shape[0], self.centre, self.cholesky,
                                   self.degrees_of_freedom)
+        if self.marginal_map is not None:
+            proposed = self.marginal_map.inverse(proposed)
         # emcee adds "ln q(x | x') - ln q(x' | x)"; for an independence proposal
         # q(x | x') = q(x): log q(x_old) - log q(x_new) (Robert and Casella, section 7.4).
         return proposed, self.log_density(coords) - self.log_density(proposed)
