@@ -44,7 +44,7 @@ import numpy as np
 from scipy.special import gammaln
 
 from speciakin.errors import InputError, Location
-from speciakin.estimation.quantile_map import QuantileMap
+from speciakin.estimation.quantile_map import DEFAULT_KNOTS, QuantileMap
 
 __all__ = ["student_t_log_density", "student_t_draw", "proposal_cholesky", "IndependenceStudentTMove",
            "ProposalSpec", "PROPOSALS", "build_moves", "proposal_fingerprint",
@@ -317,7 +317,7 @@ ADAPTIVE_WEIGHTS = {"independence": 0.7, "differential_evolution": 0.3}
 
 
 def _adaptive_moves(centre, covariance):
-    return [(IndependenceStudentTMove(centre, covariance), ADAPTIVE_WEIGHTS["independence"]),
+    return [(IndependenceStudentTMove(centre, covariance, shape_marginals=True), ADAPTIVE_WEIGHTS["independence"]),
             (emcee.moves.DEMove(), ADAPTIVE_WEIGHTS["differential_evolution"])]
 
 
@@ -340,8 +340,9 @@ PROPOSALS: dict[str, ProposalSpec] = {
     "adaptive": ProposalSpec(
         "adaptive", True,
         (f"independence Student-t (nu = {DEFAULT_DEGREES_OF_FREEDOM:g}), first centred at the start point "
-         f"with scale {DEFAULT_INFLATION:g} x the least-squares standard errors, refitted to the mean and "
-         f"{ADAPTED_INFLATION:g}^2 x the covariance of the second half of the chain after steps "
+         f"with scale {DEFAULT_INFLATION:g} x the least-squares standard errors, then placed on the normal "
+         f"scores of the chain's quantiles ({DEFAULT_KNOTS} per parameter) with the mean and "
+         f"{ADAPTED_INFLATION:g}^2 x the covariance of the scores of the second half of the chain after steps "
          + " and ".join(str(s) for s in ADAPT_AT_STEPS)
          + f" (warm-up, discarded) {ADAPTIVE_WEIGHTS['independence']:g} + differential evolution "
          f"{ADAPTIVE_WEIGHTS['differential_evolution']:g}"),
