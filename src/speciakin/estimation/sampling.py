@@ -266,10 +266,11 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         Size of the start ball in units of ``start_scale``.
     proposal
         Move choice, a key of :data:`~speciakin.estimation.proposals.PROPOSALS`:
-        ``"stretch"`` (emcee's stretch move) or ``"laplace"`` (independence
+        ``"stretch"`` (emcee's stretch move), ``"laplace"`` (independence
         Student-t centred at ``start`` with ``proposal_covariance``, mixed with
-        differential evolution).  None = ``"laplace"`` when
-        ``proposal_covariance`` is given, else ``"stretch"``.  Recorded in the
+        differential evolution) or ``"adaptive"`` (the same, refitted to the
+        chain during a warm-up that every figure discards).  None =
+        ``"adaptive"`` when ``proposal_covariance`` is given, else ``"stretch"``.  Recorded in the
         checkpoint: a resume with another choice is refused.
     proposal_covariance
         (n_params, n_params) covariance of the parameters on the fitted scale
