@@ -11,7 +11,12 @@ invariant whatever the centre and scale; a poor centre or scale only costs
 acceptance.  Because a fixed proposal cannot follow a posterior that departs
 from it (a parameter that is barely identified, a bound), the move is always
 mixed with differential-evolution moves that learn the shape from the
-ensemble (:data:`PROPOSALS`, ``"laplace"``).
+ensemble (:data:`PROPOSALS`, ``"laplace"``).  The ``"adaptive"`` choice (the
+default with a covariance) refits the independence proposal to the chain
+itself at fixed warm-up steps, on the normal scores of a per-parameter
+quantile map (:mod:`speciakin.estimation.quantile_map`), so that a skewed or
+bounded marginal is proposed where the posterior has its mass; after the last
+refit the move is fixed (finite adaptation) and the warm-up is discarded.
 
 Every random number is drawn from the ``RandomState`` that emcee hands to a
 move (``model.random``), so a seed fixes the chain and a checkpoint that saves
@@ -72,7 +77,7 @@ ADAPTED_INFLATION = 1.0
 #: proposal to the mean and covariance of the second half of the chain so far
 #: (all walkers pooled); the proposal is fixed after the last one, and the
 #: steps up to it are warm-up, discarded with the burn-in.
-ADAPT_AT_STEPS = (50, 150)
+ADAPT_AT_STEPS = (50, 150, 300)
 
 
 # ---------------------------------------------------------------------------
@@ -343,7 +348,7 @@ PROPOSALS: dict[str, ProposalSpec] = {
          f"with scale {DEFAULT_INFLATION:g} x the least-squares standard errors, then placed on the normal "
          f"scores of the chain's quantiles ({DEFAULT_KNOTS} per parameter) with the mean and "
          f"{ADAPTED_INFLATION:g}^2 x the covariance of the scores of the second half of the chain after steps "
-         + " and ".join(str(s) for s in ADAPT_AT_STEPS)
+         + ", ".join(str(s) for s in ADAPT_AT_STEPS)
          + f" (warm-up, discarded) {ADAPTIVE_WEIGHTS['independence']:g} + differential evolution "
          f"{ADAPTIVE_WEIGHTS['differential_evolution']:g}"),
         _adaptive_moves, ADAPT_AT_STEPS),
