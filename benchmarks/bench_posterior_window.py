@@ -15,9 +15,15 @@ speed at the time (it moves by up to 2x); the script prints the time the sampled
 at the reference speed and the ratio, the old fixed default of 2000 steps at the measured speed,
 the core count and the load average (the machine may be shared).
 
+With --compare NAME the script also runs the move choice NAME (e.g. laplace, the default before the
+adaptive moves) until converged, alternating with the default, --rounds times, and prints each
+run's time, steps at stop, stop reason and the load average beside it (the host's load moves the
+times; the steps at stop do not depend on it).
+
 Input: the bundled INVENTED demo campaign (speciakin.demo.demo_dir()).
 
 Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_posterior_window.py [--steps N]
+      [--compare laplace --rounds 1]
 """
 
 from __future__ import annotations
@@ -52,6 +58,8 @@ def main() -> None:
     parser.add_argument("--proposal", default=None, help="moves: laplace (default with a fit) or stretch")
     parser.add_argument("--walkers", type=int, default=32)
     parser.add_argument("--blocks", type=int, default=15, help="reference blocks before and after sampling")
+    parser.add_argument("--compare", default=None, help="another move choice run alternately with --proposal")
+    parser.add_argument("--rounds", type=int, default=1, help="alternating rounds with --compare")
     args = parser.parse_args()
 
     from speciakin import pipeline
@@ -60,6 +68,7 @@ def main() -> None:
     from speciakin.demo import demo_dir
     from speciakin.pipeline.fit import fit_campaign
     from speciakin.pipeline.posterior import proposal_covariance_from_fit, sample_campaign
+    from speciakin.estimation.proposals import ADAPTIVE_WEIGHTS, LAPLACE_WEIGHTS
 
     folder = demo_dir()
     inputs = pipeline.resolve_inputs(folder)
@@ -81,10 +90,32 @@ def main() -> None:
     full, half = spread, spread[: args.walkers // 2]
     before = (batch_blocks(objective, full, args.blocks), batch_blocks(objective, half, args.blocks))
 
-    t = time.perf_counter()
-    post = sample_campaign(objective, fit.theta, se, n_walkers=args.walkers, n_steps=args.steps, seed=1,
-                           progress=False, covariance=covariance, proposal=args.proposal)
-    t_post = time.perf_counter() - t
+    def timed_posterior(proposal):
+        start_load = load()
+        t = time.perf_counter()
+        result = sample_campaign(objective, fit.theta, se, n_walkers=args.walkers, n_steps=args.steps, seed=1,
+                                 progress=False, covariance=covariance, proposal=proposal)
+        elapsed = time.perf_counter() - t
+        print(f"posterior ({result.proposal}): {elapsed:.1f} s, {result.n_steps} steps, stopped: "
+              f"{result.stop_reason}; load average {start_load} at the start, {load()} at the end")
+        return result, elapsed
+
+    if args.compare:
+        rows = {}
+        for _ in range(args.rounds):
+            for proposal in (args.proposal, args.compare):
+                result, elapsed = timed_posterior(proposal)
+                rows.setdefault(result.proposal, []).append((elapsed, result.n_steps, result.stop_reason))
+        for name, runs in rows.items():
+            times = np.array([r[0] for r in runs])
+            print(f"converged posterior, {name}: best {times.min():.1f} s, median {np.median(times):.1f} s "
+                  f"over {len(runs)} run(s); steps at stop {sorted({r[1] for r in runs})}, "
+                  f"stop reasons {sorted({r[2] for r in runs})}")
+        names = list(rows)
+        if len(names) == 2:
+            ratio = np.median([r[0] for r in rows[names[0]]]) / np.median([r[0] for r in rows[names[1]]])
+            print(f"median time {names[0]} / {names[1]} = {ratio:.2f} (alternating runs, same process)")
+    post, t_post = timed_posterior(args.proposal)
     load_after_sampling = load()
     after = (batch_blocks(objective, full, args.blocks), batch_blocks(objective, half, args.blocks))
     full_blocks, half_blocks = np.concatenate([before[0], after[0]]), np.concatenate([before[1], after[1]])
@@ -102,10 +133,12 @@ def main() -> None:
     if np.all(np.isfinite(tau)):
         print(f"  chain = {steps / np.max(tau):.0f} x the longest tau; tau per parameter: "
               + ", ".join(f"{v:.1f}" for v in tau))
-    # one step: the independence move (weight 0.5) sends one full batch, differential evolution
-    # (weight 0.5) two half batches (docs/sampling.md, "Moves")
-    step_best = 0.5 * full_blocks.min() + half_blocks.min()
-    step_median = 0.5 * np.median(full_blocks) + np.median(half_blocks)
+    # one step: the independence move (weight w) sends one full batch, differential evolution
+    # (weight 1 - w) two half batches (docs/sampling.md, "Moves")
+    w = {"adaptive": ADAPTIVE_WEIGHTS, "laplace": LAPLACE_WEIGHTS}.get(post.proposal, {"independence": 0.0})
+    w = w["independence"]
+    step_best = w * full_blocks.min() + 2 * (1 - w) * half_blocks.min()
+    step_median = w * np.median(full_blocks) + 2 * (1 - w) * np.median(half_blocks)
     print(f"reference (same run, {2 * args.blocks} blocks each): likelihood of {args.walkers} sets "
           f"{full_blocks.min() * 1e3:.0f} ms best / {np.median(full_blocks) * 1e3:.0f} ms median, of "
           f"{len(half)} sets {half_blocks.min() * 1e3:.0f} / {np.median(half_blocks) * 1e3:.0f} ms -> "

@@ -18,8 +18,9 @@ from scipy import special, stats
 from speciakin.chemistry.model import Prior
 from speciakin.errors import InputError
 from speciakin.estimation.checkpoint import read_checkpoint
-from speciakin.estimation.proposals import (PROPOSALS, IndependenceStudentTMove, build_moves,
-                                            proposal_cholesky, student_t_draw, student_t_log_density)
+from speciakin.estimation.proposals import (ADAPT_AT_STEPS, PROPOSALS, IndependenceStudentTMove, adapt_moves,
+                                            adaptation_iterations, build_moves, proposal_cholesky,
+                                            student_t_draw, student_t_log_density, warm_up_iterations)
 from speciakin.pipeline.posterior import (proposal_covariance_from_fit, usable_fit_covariance,
                                                      widen_to_intervals)
 from speciakin.estimation.sampling import sample_posterior
@@ -132,7 +133,49 @@ def test_move_choice_errors():
         build_moves("laplace", np.zeros(2), None)
     with pytest.raises(InputError, match="'inflation' of the proposal"):
         IndependenceStudentTMove(np.zeros(2), np.eye(2), inflation=0.0)
-    assert set(PROPOSALS) >= {"stretch", "laplace"}
+    assert set(PROPOSALS) >= {"stretch", "laplace", "adaptive"}
+
+
+# ---------------------------------------------------------------------------
+# adaptation: the independence move refitted to the chain during warm-up
+# ---------------------------------------------------------------------------
+def test_adapt_to_takes_the_mean_and_covariance_of_the_draws():
+    rng = np.random.default_rng(3)
+    draws = rng.multivariate_normal(_CENTRE, _SIGMA, size=4000)
+    move = IndependenceStudentTMove(np.zeros(3), np.eye(3))
+    assert move.adapt_to(draws)
+    np.testing.assert_array_equal(move.centre, draws.mean(axis=0))
+    # scale matrix = ADAPTED_INFLATION^2 x the sample covariance (numpy.cov as the reference)
+    from speciakin.estimation.proposals import ADAPTED_INFLATION
+    np.testing.assert_allclose(move.cholesky @ move.cholesky.T, ADAPTED_INFLATION ** 2 * np.cov(draws.T),
+                               rtol=1e-12)
+
+
+def test_adapt_to_keeps_the_proposal_for_draws_without_spread():
+    move = IndependenceStudentTMove(np.ones(3), np.eye(3))
+    before = move.cholesky.copy()
+    collapsed = np.tile([1.0, 2.0, 3.0], (50, 1))  # covariance zero: not positive definite
+    assert not move.adapt_to(collapsed)
+    assert not move.adapt_to(np.ones((3, 3)))  # fewer draws than needed
+    np.testing.assert_array_equal(move.cholesky, before)
+    np.testing.assert_array_equal(move.centre, np.ones(3))
+
+
+def test_adaptation_points_and_warm_up():
+    assert adaptation_iterations("adaptive") == ADAPT_AT_STEPS
+    assert adaptation_iterations("adaptive", thin_by=4) == tuple(-(-s // 4) for s in ADAPT_AT_STEPS)
+    assert warm_up_iterations("adaptive") == max(ADAPT_AT_STEPS)
+    assert warm_up_iterations("laplace") == 0 and adaptation_iterations("stretch") == ()
+    # adapt_moves refits only at an adaptation point, from the second half of the chain so far
+    moves = build_moves("adaptive", np.zeros(2), np.eye(2))
+    chain = np.random.default_rng(1).normal(size=(ADAPT_AT_STEPS[0] + 1, 8, 2)) + 5.0
+    assert not adapt_moves(moves, "adaptive", chain, ADAPT_AT_STEPS[0] + 1)
+    assert adapt_moves(moves, "adaptive", chain, ADAPT_AT_STEPS[0])
+    window = chain[ADAPT_AT_STEPS[0] // 2:ADAPT_AT_STEPS[0]].reshape(-1, 2)
+    move = moves[0][0]  # the adaptive choice places the Student-t on the window's normal scores
+    assert move.marginal_map is not None
+    np.testing.assert_array_equal(move.centre, move.marginal_map.forward(window)[0].mean(axis=0))
+    assert not adapt_moves(build_moves("laplace", np.zeros(2), np.eye(2)), "laplace", chain, ADAPT_AT_STEPS[0])
 
 
 # ---------------------------------------------------------------------------
@@ -227,23 +270,34 @@ def test_gamma_moments_long(seed, mixture):
 _WIDE = [Prior("uniform", {"lower": -20, "upper": 20})] * 2
 
 
-def _gaussian_run(n_steps, seed):
+def _gaussian_run(n_steps, seed, proposal=None):
     # centre 0.7 sd off in each coordinate, covariance without correlation and 0.6 x the variances
     return sample_posterior(gaussian_log_likelihood, ["x", "y"], _WIDE, MEAN + [0.7, -1.4], [1.0, 2.0],
                             n_walkers=16, n_steps=n_steps, seed=seed, progress=False,
-                            proposal_covariance=np.diag([0.6, 2.4]))
+                            proposal_covariance=np.diag([0.6, 2.4]), proposal=proposal)
 
 
-def test_mixture_recovers_correlated_gaussian():
-    result = _gaussian_run(1200, seed=5)
-    assert result.proposal == "laplace"
+@pytest.mark.parametrize("proposal", ["laplace", "adaptive"])
+def test_mixture_recovers_correlated_gaussian(proposal):
+    result = _gaussian_run(1200, seed=5, proposal=proposal)
+    assert result.proposal == proposal
     check_gaussian_moments(result)
+
+
+def test_adaptive_is_the_default_with_a_covariance_and_discards_its_warm_up():
+    result = _gaussian_run(400, seed=5)
+    assert result.proposal == "adaptive"
+    assert result.burn_in >= max(ADAPT_AT_STEPS)
+    # after the warm-up the adapted proposal fits this Gaussian target: the walkers accept far more
+    # often than through the deliberately wrong start proposal of "laplace" (0.2-0.3 here)
+    assert result.acceptance_fraction.mean() > 0.45
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [21, 22, 23])
-def test_mixture_recovers_correlated_gaussian_long(seed):
-    result = _gaussian_run(10000, seed)
+@pytest.mark.parametrize("proposal", ["laplace", "adaptive"])
+def test_mixture_recovers_correlated_gaussian_long(seed, proposal):
+    result = _gaussian_run(10000, seed, proposal)
     check_gaussian_moments(result)
     assert result.converged
 
@@ -276,27 +330,48 @@ class InterruptAfter:
 
 
 def run(function, n_steps, path=None, resume=False, covariance=_BANANA_COV, **kwargs):
+    kwargs.setdefault("proposal", None if covariance is None else "laplace")
     return sample_posterior(function, NAMES, PRIORS, [0.4, 0.85], [0.2, 0.1], n_walkers=8, n_steps=n_steps,
                             seed=123, checkpoint=path, resume=resume, progress=False,
                             proposal_covariance=covariance, **kwargs)
 
 
-def test_resume_with_mixture_equals_uninterrupted_run(tmp_path):
+# the adaptive choice is interrupted after its first adaptation (about step 77: 1.3 likelihood
+# calls per step), after its second (about step 200) and after the last (about step 350)
+@pytest.mark.parametrize("proposal, n_steps, calls, adaptations_before", [
+    ("laplace", 120, 100, 0), ("adaptive", 400, 100, 1), ("adaptive", 400, 260, 2), ("adaptive", 400, 455, 3)])
+def test_resume_with_mixture_equals_uninterrupted_run(tmp_path, proposal, n_steps, calls, adaptations_before):
     # reference: an uninterrupted run with the same seed (every random number
-    # comes from the sampler's saved RandomState)
-    reference = run(banana_log_likelihood, 120)
-    assert reference.proposal == "laplace"
+    # comes from the sampler's saved RandomState; the adaptation from the stored chain)
+    reference = run(banana_log_likelihood, n_steps, proposal=proposal)
+    assert reference.proposal == proposal
     path = tmp_path / "ck.h5"
     with pytest.raises(KeyboardInterrupt):
-        run(InterruptAfter(100), 120, path, checkpoint_every=1e9, checkpoint_every_steps=25)
+        run(InterruptAfter(calls), n_steps, path, checkpoint_every=1e9, checkpoint_every_steps=25,
+            proposal=proposal)
     saved = read_checkpoint(path)
-    assert 0 < saved.iteration < 120 and saved.settings["proposal"] == "laplace"
-    resumed = run(banana_log_likelihood, 120, path, resume=True)
+    assert 0 < saved.iteration < n_steps and saved.settings["proposal"] == proposal
+    # interrupted where the test means to: after that many adaptations, before the next
+    assert sum(step <= saved.iteration for step in PROPOSALS[proposal].adapt_at) == adaptations_before
+    resumed = run(banana_log_likelihood, n_steps, path, resume=True, proposal=proposal)
     assert resumed.resumed_from == saved.iteration
     assert np.array_equal(resumed.chain[:saved.iteration], saved.chain)
     assert np.array_equal(resumed.chain, reference.chain)
     assert np.array_equal(resumed.log_prob, reference.log_prob)
     assert np.array_equal(resumed.acceptance_fraction, reference.acceptance_fraction)
+
+
+def test_adaptive_run_extended_from_an_adaptation_step_equals_uninterrupted_run(tmp_path):
+    # a finished run of exactly the last adaptation step, extended: the resumed run must redo that
+    # adaptation from the stored chain before its first step
+    n_first = ADAPT_AT_STEPS[-1]
+    reference = run(banana_log_likelihood, 2 * n_first, proposal="adaptive")
+    path = tmp_path / "ck.h5"
+    run(banana_log_likelihood, n_first, path, proposal="adaptive")
+    extended = run(banana_log_likelihood, 2 * n_first, path, resume=True, proposal="adaptive")
+    assert extended.resumed_from == n_first
+    assert np.array_equal(extended.chain, reference.chain)
+    assert np.array_equal(extended.log_prob, reference.log_prob)
 
 
 def test_resume_with_another_proposal_is_refused(tmp_path):

@@ -32,11 +32,11 @@ def conjugate_truth():
     return (_MU0 / _TAU0 ** 2 + _Y.sum() / _SIGMA ** 2) / precision, math.sqrt(1 / precision)
 
 
-def _run_conjugate(n_steps, seed, covariance=None):
+def _run_conjugate(n_steps, seed, covariance=None, proposal=None):
     mean, sd = conjugate_truth()
     return sample_posterior(conjugate_log_likelihood, ["mu"], [Prior("normal", {"mean": _MU0, "sd": _TAU0})],
                             [_Y.mean()], [sd], n_walkers=16, n_steps=n_steps, seed=seed, progress=False,
-                            proposal_covariance=covariance)
+                            proposal_covariance=covariance, proposal=proposal)
 
 
 def _check_conjugate(result):
@@ -64,21 +64,23 @@ def test_conjugate_normal_posterior_long(seed):
     assert result.converged
 
 
-# The same analytic posterior with the "laplace" move mixture; the proposal is
-# centred at the sample mean (not the posterior mean) with 1.7 x the posterior
-# variance, so the check does not rely on a proposal that equals the target.
-def test_conjugate_normal_posterior_with_move_mixture():
+# The same analytic posterior with the "laplace" and "adaptive" move mixtures; the
+# proposal starts centred at the sample mean (not the posterior mean) with 1.7 x the
+# posterior variance, so the check does not rely on a proposal that equals the target.
+@pytest.mark.parametrize("proposal", ["laplace", "adaptive"])
+def test_conjugate_normal_posterior_with_move_mixture(proposal):
     mean, sd = conjugate_truth()
-    result = _run_conjugate(800, seed=3, covariance=[[1.7 * sd ** 2]])
-    assert result.proposal == "laplace"
+    result = _run_conjugate(800, seed=3, covariance=[[1.7 * sd ** 2]], proposal=proposal)
+    assert result.proposal == proposal
     _check_conjugate(result)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3])
-def test_conjugate_normal_posterior_with_move_mixture_long(seed):
+@pytest.mark.parametrize("proposal", ["laplace", "adaptive"])
+def test_conjugate_normal_posterior_with_move_mixture_long(seed, proposal):
     mean, sd = conjugate_truth()
-    result = _run_conjugate(6000, seed, covariance=[[1.7 * sd ** 2]])
+    result = _run_conjugate(6000, seed, covariance=[[1.7 * sd ** 2]], proposal=proposal)
     _check_conjugate(result)
     assert result.converged
 

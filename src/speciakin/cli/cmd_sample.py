@@ -28,9 +28,10 @@ def add_arguments(parser) -> None:
     parser.add_argument("--resume", action="store_true",
                         help="continue the newest interrupted sample (or the folder of --from / --out) in place")
     parser.add_argument("--proposal", metavar="NAME", default=None,
-                        help="move choice (default: 'laplace' = independence Student-t from the fit "
-                             "covariance + differential evolution when fit.json has a usable covariance, "
-                             "else 'stretch'); the names are listed in docs/sampling.md")
+                        help="move choice (default: 'adaptive' = independence Student-t from the fit "
+                             "covariance, refitted to the chain during warm-up, + differential evolution "
+                             "when fit.json has a usable covariance, else 'stretch'); the names are listed "
+                             "in docs/sampling.md")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 

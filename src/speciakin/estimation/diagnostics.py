@@ -387,8 +387,12 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray |
         mcse_mean=[float(x) for x in mcse], converged=converged, warnings=found)
 
 
+#: Stored steps always kept after an adapting proposal's warm-up (the fewest R-hat needs).
+_MIN_KEPT_AFTER_WARM_UP = 4
+
+
 def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, parameter_names,
-                   target_tau_multiple: float = 50.0) -> tuple[ConvergenceDiagnostics, int, int]:
+                   target_tau_multiple: float = 50.0, warm_up: int = 0) -> tuple[ConvergenceDiagnostics, int, int]:
     """Burn-in, thinning and every convergence figure of a chain, from the chain alone.
 
     The burn-in and thinning follow :func:`choose_burn_in_and_thin` from the
@@ -408,6 +412,11 @@ def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, pa
         Names of the parameters, in column order.
     target_tau_multiple
         Chain length needed, in units of the autocorrelation time.
+    warm_up
+        Stored steps of an adapting proposal's warm-up: removed before
+        anything else (all but the last 4 stored steps of a shorter chain),
+        so every figure, the 50-tau length included, is of the chain after
+        it, and the burn-in counts from its end.
 
     Returns
     -------
@@ -416,8 +425,10 @@ def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, pa
         thinning of the kept samples.
     """
     chain = np.asarray(chain, dtype=float)
+    warm = min(max(int(warm_up), 0), max(chain.shape[0] - _MIN_KEPT_AFTER_WARM_UP, 0))
+    chain = chain[warm:]
     tau = autocorrelation_time(chain)
     burn_in, thin = choose_burn_in_and_thin(tau, chain.shape[0])
     diagnostics = convergence_diagnostics(chain, acceptance_fraction, parameter_names, burn_in,
                                           target_tau_multiple, tau=tau)
-    return diagnostics, burn_in, thin
+    return diagnostics, warm + burn_in, thin

@@ -38,15 +38,15 @@ from speciakin.estimation.diagnostics import diagnose_chain
 from speciakin.estimation.parallel import make_evaluator
 from speciakin.estimation.posterior_result import ParameterSummary, PosteriorResult, summarise
 from speciakin.estimation.priors import PriorDistribution, build_prior, joint_log_prior
-from speciakin.estimation.proposals import PROPOSALS, build_moves, proposal_fingerprint
+from speciakin.estimation.proposals import (DEFAULT_WITH_COVARIANCE, PROPOSALS, adapt_moves,
+                                            adaptation_iterations, build_moves, proposal_fingerprint,
+                                            warm_up_iterations)
+from speciakin.estimation.walkers import initial_walkers
 from speciakin.estimation.stopping import (DEFAULT_CHECK_EVERY, DEFAULT_MAX_STEPS, DEFAULT_MIN_STEPS,
                                            StopCheck, StopRule, check_chain, stop_summary)
 
 __all__ = ["sample_posterior", "LogPosterior", "initial_walkers", "PosteriorResult",
            "ParameterSummary", "summarise"]
-
-_MAX_START_ROUNDS = 100
-
 
 class LogPosterior:
     """Batched log-posterior: log-prior plus log-likelihood, -inf outside the prior support.
@@ -77,52 +77,6 @@ class LogPosterior:
             self.n_failures += int(bad.sum())
             out[inside] = log_prior[inside] + values
         return out
-
-
-def _reflect_into(x: np.ndarray, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
-    x = np.where(x < lower, 2 * lower - x, x)
-    x = np.where(x > upper, 2 * upper - x, x)
-    width = upper - lower
-    margin = np.where(np.isfinite(width), 1e-9 * width, 0.0)
-    return np.clip(x, lower + margin, upper - margin)
-
-
-def initial_walkers(log_posterior: Callable, start: np.ndarray, scale: np.ndarray,
-                    priors: Sequence[PriorDistribution], n_walkers: int, rng: np.random.Generator,
-                    ball: float = 0.1) -> tuple[np.ndarray, np.ndarray]:
-    """Walkers in a small Gaussian ball around ``start``, kept inside the prior support.
-
-    Each coordinate is ``start + ball * scale * N(0, 1)``, reflected into the
-    prior support; walkers whose log-posterior is -inf are redrawn.
-
-    Returns
-    -------
-    positions, log_posterior
-        (n_walkers, n_params) and (n_walkers,).
-
-    Raises
-    ------
-    SolverError
-        When no finite log-posterior is found for every walker after 100 rounds.
-    """
-    n_params = start.shape[0]
-    lower = np.array([p.support()[0] for p in priors])
-    upper = np.array([p.support()[1] for p in priors])
-    positions = np.empty((n_walkers, n_params))
-    values = np.full(n_walkers, -np.inf)
-    todo = np.arange(n_walkers)
-    for _ in range(_MAX_START_ROUNDS):
-        trial = start + ball * scale * rng.standard_normal((todo.size, n_params))
-        trial = _reflect_into(trial, lower, upper)
-        lp = log_posterior(trial)
-        positions[todo] = trial
-        values[todo] = lp
-        todo = todo[~np.isfinite(lp)]
-        if todo.size == 0:
-            return positions, values
-    raise SolverError(f"could not place {todo.size} of {n_walkers} walkers at a finite posterior "
-                      f"near the start point after {_MAX_START_ROUNDS} rounds; the log-likelihood "
-                      "fails there or the start lies outside the prior support")
 
 
 def _check_inputs(parameter_names, priors, start, start_scale, n_walkers, n_steps, thin_by,
@@ -312,10 +266,11 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         Size of the start ball in units of ``start_scale``.
     proposal
         Move choice, a key of :data:`~speciakin.estimation.proposals.PROPOSALS`:
-        ``"stretch"`` (emcee's stretch move) or ``"laplace"`` (independence
+        ``"stretch"`` (emcee's stretch move), ``"laplace"`` (independence
         Student-t centred at ``start`` with ``proposal_covariance``, mixed with
-        differential evolution).  None = ``"laplace"`` when
-        ``proposal_covariance`` is given, else ``"stretch"``.  Recorded in the
+        differential evolution) or ``"adaptive"`` (the same, refitted to the
+        chain during a warm-up that every figure discards).  None =
+        ``"adaptive"`` when ``proposal_covariance`` is given, else ``"stretch"``.  Recorded in the
         checkpoint: a resume with another choice is refused.
     proposal_covariance
         (n_params, n_params) covariance of the parameters on the fitted scale
@@ -348,12 +303,13 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
         checkpoint_every_steps, target_tau_multiple, (check_every, min_steps, max_steps))
     n_params = len(names)
     if proposal is None:
-        proposal = "stretch" if proposal_covariance is None else "laplace"
+        proposal = "stretch" if proposal_covariance is None else DEFAULT_WITH_COVARIANCE
     moves = build_moves(proposal, start, proposal_covariance)  # checks name and covariance
     covariance = None
     if PROPOSALS[proposal].needs_covariance:  # already checked by build_moves
         covariance = np.asarray(proposal_covariance, dtype=float)
     fingerprint = proposal_fingerprint(proposal, start, covariance)
+    warm_up = warm_up_iterations(proposal, thin_by)
     n_stored = (n_steps if rule is None else rule.max_steps) // thin_by
     path = Path(checkpoint) if checkpoint is not None else None
     loaded: Checkpoint | None = None
@@ -390,6 +346,9 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
             backend.accepted = np.array(loaded.accepted, dtype=float)
             coords, log_prob = loaded.chain[-1].copy(), loaded.log_prob[-1].copy()
             random_state = loaded.random_state
+            for iteration in adaptation_iterations(proposal, thin_by):  # the adaptations already made
+                if iteration <= done:
+                    adapt_moves(moves, proposal, loaded.chain, iteration, thin_by)
         else:
             seeds = np.random.SeedSequence(seed).spawn(2)
             coords, log_prob = initial_walkers(log_posterior, start, scale, built, n_walkers,
@@ -423,7 +382,8 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
             step = iteration * thin_by
             if rule is None or iteration == 0 or not rule.is_check_step(step):
                 return False
-            checks.append(check_chain(backend.chain[:iteration], names, step, rule.target_tau_multiple))
+            checks.append(check_chain(backend.chain[:iteration], names, step, rule.target_tau_multiple,
+                                      warm_up))
             note(f"{checks[-1].short()} (cap {rule.max_steps})")
             return checks[-1].passed
 
@@ -438,6 +398,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                     last = {"iteration": backend.iteration, "accepted": backend.accepted.copy(),
                             "random_state": state.random_state}
                     update(backend.iteration)
+                    adapt_moves(moves, proposal, backend.chain, backend.iteration, thin_by)
                     stop = converged_now(backend.iteration)
                     now = time.monotonic()
                     if path is not None and (
@@ -470,13 +431,13 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
     stop = {"reason": reason, "message": message, "checks": [c.to_dict() for c in checks],
             "rule": None if rule is None else dict(rule.identity(), max_steps=rule.max_steps)}
     return _finish(names, built, chain, log_prob_chain, acceptance, settings, run_steps, thin_by,
-                   target_tau_multiple, notes, description, time.monotonic() - began, log_posterior,
+                   (target_tau_multiple, warm_up), notes, description, time.monotonic() - began, log_posterior,
                    None if loaded is None else loaded.iteration, stop)
 
 
-def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_by, target_tau_multiple,
+def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_by, criteria,
             notes, evaluator, elapsed, log_posterior, resumed_from, stop) -> PosteriorResult:
-    diagnostics, burn_in, thin = diagnose_chain(chain, acceptance, names, target_tau_multiple)
+    diagnostics, burn_in, thin = diagnose_chain(chain, acceptance, names, *criteria)
     samples = chain[burn_in::thin].reshape(-1, chain.shape[2])
     warnings = list(notes) + list(diagnostics.warnings)
     if log_posterior.n_failures:

@@ -147,7 +147,8 @@ def _number(x: float, fmt: str) -> str:
     return format(x, fmt) if math.isfinite(x) else "not estimable"
 
 
-def check_chain(chain: np.ndarray, parameter_names, step: int, target_tau_multiple: float = 50.0) -> StopCheck:
+def check_chain(chain: np.ndarray, parameter_names, step: int, target_tau_multiple: float = 50.0,
+                warm_up: int = 0) -> StopCheck:
     """Check the stop criteria on a stored chain.
 
     Parameters
@@ -160,16 +161,19 @@ def check_chain(chain: np.ndarray, parameter_names, step: int, target_tau_multip
         Steps per walker the chain represents (recorded only).
     target_tau_multiple
         Chain length needed in autocorrelation times.
+    warm_up
+        Stored steps of an adapting proposal's warm-up: the figures are of
+        the chain after it (:func:`~speciakin.estimation.diagnostics.diagnose_chain`).
 
     Returns
     -------
     StopCheck
-        Depends on the values of ``chain`` and on ``target_tau_multiple``
-        only (not on the array's memory layout).
+        Depends on the values of ``chain``, ``target_tau_multiple`` and
+        ``warm_up`` only (not on the array's memory layout).
     """
     # one memory layout, so that the same values give the same figures to the last bit
     chain = np.ascontiguousarray(chain, dtype=float)
-    d, _, _ = diagnose_chain(chain, None, parameter_names, target_tau_multiple)
+    d, _, _ = diagnose_chain(chain, None, parameter_names, target_tau_multiple, warm_up)
     names = list(parameter_names)
     tau = np.asarray(d.autocorrelation_time, dtype=float)
     failing = []

@@ -4,8 +4,8 @@ The likelihood is :meth:`CampaignObjective.log_likelihood_batch` (all walkers
 a move updates at once go to the compiled simulator in one batch, spread over
 the cores); priors come from the model file, with the project defaults where
 the chemist stated none (see :func:`campaign_priors`).  Given the
-least-squares covariance, the sampler mixes an independence Student-t move
-centred at the optimum with differential evolution
+least-squares covariance, the sampler mixes an independence Student-t move,
+started at the optimum and refitted to the chain during a warm-up, with differential evolution
 (:mod:`speciakin.estimation.proposals`); without it, the stretch move.
 """
 
@@ -180,9 +180,9 @@ def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale
         See :func:`speciakin.estimation.sampling.sample_posterior`.
     covariance
         (n_params, n_params) least-squares covariance in fit order (fitted
-        scale), symmetric positive definite; builds the ``"laplace"`` moves.
+        scale), symmetric positive definite; builds the ``"adaptive"`` (or ``"laplace"``) moves.
     proposal
-        Move choice (``proposals.PROPOSALS``); None = ``"laplace"`` when
+        Move choice (``proposals.PROPOSALS``); None = ``"adaptive"`` when
         ``covariance`` is given, else ``"stretch"``.
 
     Returns

@@ -95,7 +95,7 @@ def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walk
     and ``posterior.txt``; returns PosteriorResult.
 
     The fit's covariance (widened to the profile intervals where they are
-    wider or open) shapes the moves (``proposal`` None or "laplace"); when it
+    wider or open) shapes the moves (``proposal`` None, "adaptive" or "laplace"); when it
     is missing or not positive definite the stretch move is used and the
     result's warnings say why.  ``proposal="stretch"`` forces the stretch
     move.  ``progress`` True shows a progress bar, a callable receives
@@ -110,8 +110,8 @@ def sample_step(objective, fit, out: Path, *, n_steps: int | None = None, n_walk
     if proposal != "stretch":
         covariance, note = proposal_covariance_from_fit(fit)
         if covariance is None:
-            if proposal == "laplace":
-                raise InputError("the 'laplace' proposal needs the fit covariance", Location(key="proposal"),
+            if proposal is not None:  # a named move choice that needs the covariance
+                raise InputError(f"the '{proposal}' proposal needs the fit covariance", Location(key="proposal"),
                                  proposal, "a fit with a positive-definite covariance, or the stretch move")
             proposal = "stretch"
     if callable(progress) or cancel is not None:
