@@ -9,8 +9,8 @@ import subprocess
 import sys
 from pathlib import Path
 
-SCRIPTS = ["bench_speciation.py", "bench_kernel.py", "bench_import.py", "bench_fit.py",
-           "bench_posterior_window.py", "nist_table.py"]
+SCRIPTS = ["bench_speciation.py", "bench_kernel.py", "bench_demo_likelihood.py", "bench_import.py",
+           "bench_fit.py", "bench_posterior_window.py", "nist_table.py"]
 
 
 def main() -> int:

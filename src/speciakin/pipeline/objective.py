@@ -135,6 +135,7 @@ class CampaignObjective:
             raise InputError("the model marks no quantity as fitted", Location(file=model.source or None,
                              key="fit = true"), expected="at least one pKa, rate constant or energy with fit = true")
         self._build_observations()
+        self._gather: tuple | None = None  # flat output indices of the observations (predict_batch)
 
     # ------------------------------------------------------------ set-up
     def _check_mapping(self) -> None:
@@ -348,21 +349,30 @@ class CampaignObjective:
         res = simulate_batch(self.compiled, self.compiled_runs, q, off, fac, rtol or self.rtol, self.atol,
                              self.parallel)
         out = res.outputs
-        amount = out[:, self.h_run, self.h_t, self.h_col]
         n_sets = out.shape[0]
+        # one flat gather per observable (cheaper than indexing with three index arrays per call)
+        flat = out.reshape(n_sets, -1)
+        shape = out.shape[1:]
+        if self._gather is None or self._gather[0] != shape:
+            self._gather = (shape, np.ravel_multi_index((self.h_run, self.h_t, self.h_col), shape),
+                            np.ravel_multi_index((self.h_run, self.h_t, np.full_like(self.h_t, self.vol_col)), shape),
+                            np.ravel_multi_index((self.t_run, self.t_t, np.full_like(self.t_t, self.tit_col)), shape))
+        _, at_amount, at_volume, at_titrant = self._gather
+        amount = flat.take(at_amount, axis=1)
         model = np.empty_like(amount)
         if self.h_area.any():
             num = amount * self.h_rrf[None, :]
-            denom = np.zeros((n_sets, self.n_samples))
-            for s in range(n_sets):
-                denom[s] = np.bincount(self.h_sample, weights=num[s], minlength=self.n_samples)
+            # the samples' sums for every set in one bincount (each bin adds its terms in the same order)
+            bins = (np.arange(n_sets)[:, None] * self.n_samples + self.h_sample[None, :]).ravel()
+            denom = np.bincount(bins, weights=num.ravel(), minlength=n_sets * self.n_samples).reshape(
+                n_sets, self.n_samples)
             with np.errstate(invalid="ignore", divide="ignore"):
                 area = 100.0 * num / denom[:, self.h_sample]
             model = np.where(self.h_area[None, :], area, model)
         if (~self.h_area).any():
-            vol = out[:, self.h_run, self.h_t, self.vol_col]
+            vol = flat.take(at_volume, axis=1)
             model = np.where(self.h_area[None, :], model, amount / vol)
-        tit = out[:, self.t_run, self.t_t, self.tit_col]
+        tit = flat.take(at_titrant, axis=1)
         failed = res.status.any(axis=1)
         model[failed] = np.nan
         tit[failed] = np.nan

@@ -141,8 +141,10 @@ def set_temperature(temperature, model, par, ws):
     cache[C_PKW] = pkw(temperature) + pkw_shift
     for i in range(pka_ref.shape[0]):
         pka[i] = site_pka_at(pka_ref[i], enthalpy[i], temperature, t_ref)
+    arrhenius = (1.0 / temperature - 1.0 / t_ref) * 1000.0 / GAS_CONSTANT
     for s in range(log10_k.shape[0]):
-        k_of_t[s] = exp10(log10_k[s]) * math.exp(-ea[s] * 1000.0 / GAS_CONSTANT * (1.0 / temperature - 1.0 / t_ref))
+        # one exponential: k_ref exp(-Ea/R (1/T - 1/T_ref)) = exp(ln10 log10 k_ref - Ea/R (1/T - 1/T_ref))
+        k_of_t[s] = math.exp(LN10 * log10_k[s] - ea[s] * arrhenius)
     cache[C_PH] = math.nan
 
 

@@ -95,6 +95,23 @@ def _adjusting_ion(compiled: CompiledModel, ph, sign: float) -> int:
     return compiled.species_index(ions[0]) if len(ions) == 1 else -1
 
 
+def kinks(times: Sequence[float], values: Sequence[float]) -> list[float]:
+    """Knots [s] of a piecewise-linear profile (held constant outside its knots)
+    where its slope changes.
+
+    A knot with the same slope on both sides (a flat stretch of a logged
+    temperature, say) is no break of the right-hand side: a segment may run
+    through it, and the integrator need not land a step on it.  The slopes are
+    compared exactly as the kernel computes them, so only a stretch whose values
+    are equal (or exactly collinear) is crossed.
+    """
+    t = [float(x) for x in times]
+    v = [float(x) for x in values]
+    n = len(t)
+    slopes = [0.0] + [(v[i + 1] - v[i]) / (t[i + 1] - t[i]) for i in range(n - 1)] + [0.0]
+    return [t[i] for i in range(n) if slopes[i] != slopes[i + 1]]
+
+
 def _run_problems(compiled: CompiledModel, run: Run, times: np.ndarray, c: ProblemCollector) -> None:
     src = compiled.model.source or None
     key = f"run.{run.name}"
@@ -214,9 +231,9 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
         pts = {float(r.end_time)}
         pts.update(float(x) for d in fl for x in (d.start, d.end))
         pts.update(float(e[0]) for e in ev)
-        pts.update(float(x) for x in r.temperature.times)
+        pts.update(kinks(r.temperature.times, r.temperature.temperatures))
         if r.ph.mode == "logged":
-            pts.update(float(x) for x in r.ph.log_times)
+            pts.update(kinks(r.ph.log_times, r.ph.log_ph))
         bps.append(np.array(sorted(p for p in pts if 0 < p <= r.end_time)))
     max_feed = max([len(f) for f in feeds] + [1])
     max_ev = max([len(e) for e in events] + [1])

@@ -29,6 +29,12 @@ def exp10(x):
 
 #: Newton step [pH units] below which the charge balance counts as solved
 NEWTON_ACCEPT = 1e-13
+#: Newton step [pH units] below which the step is taken and the populations are
+#: carried to the new pH to first order, dp_s/dpH = ln10 p_s (<N> - N_s), instead
+#: of being evaluated again: Newton converges quadratically, so the new pH is within
+#: about |step|^2 of the root, and the populations' second-order error is about
+#: (ln10 |step|)^2 / 2 < 3e-14 relative (no larger than the error NEWTON_ACCEPT leaves).
+NEWTON_LINEAR = 1e-7
 
 
 @leaf_kernel
@@ -44,11 +50,59 @@ def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
 @leaf_kernel
 def molecule_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
                          inter_start, inter_end, ph, out, out_start):
-    """Microstate populations of one molecule at ``ph`` (log-sum-exp) [1]_.
+    """Microstate populations of one molecule at ``ph`` [1]_.
 
     log10 w(s) = sum_i s_i (pKa_i - pH) - sum_{i<j} s_i s_j W_ij.
     Writes 2**n_sites populations to ``out[out_start:]``; returns nothing.
+
+    The weights are built as products: relative to the favoured state f of the
+    sites alone (site i protonated when pKa_i > pH), a microstate s weighs
+    prod_(i: s_i != f_i) 10^-|pKa_i - pH| times 10^-W_ij for every interacting
+    pair it holds, so one exponential per site and one per interaction are
+    needed instead of one per microstate, and no weight exceeds the
+    interaction factors (no overflow).  When the sum of the weights leaves the
+    range of floating-point numbers (interactions of hundreds of pK units) the
+    log-sum-exp form is used instead.
     """
+    n_micro = 1 << n_sites
+    favoured = 0
+    for i in range(n_sites):
+        a = pka[site_start + i] - ph
+        if a > 0.0:
+            favoured |= 1 << i
+    # flip pattern t (bits that differ from the favoured state) is stored at out_start + (favoured ^ t)
+    out[out_start + favoured] = 1.0
+    for i in range(n_sites):
+        out[out_start + (favoured ^ (1 << i))] = exp10(-abs(pka[site_start + i] - ph))
+    for t in range(3, n_micro):
+        high = 1
+        while high * 2 <= t:
+            high *= 2
+        if high != t:
+            out[out_start + (favoured ^ t)] = (out[out_start + (favoured ^ (t ^ high))]
+                                               * out[out_start + (favoured ^ high)])
+    for k in range(inter_start, inter_end):
+        factor = exp10(-inter_w[k])
+        both = (1 << inter_a[k]) | (1 << inter_b[k])
+        for s in range(n_micro):
+            if (s & both) == both:
+                out[out_start + s] *= factor
+    total = 0.0
+    for s in range(n_micro):
+        total += out[out_start + s]
+    if not (total > 1e-280 and total < 1e280):
+        log_sum_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w, inter_start, inter_end, ph, out,
+                            out_start)
+        return
+    inv_total = 1.0 / total
+    for s in range(n_micro):
+        out[out_start + s] *= inv_total
+
+
+@leaf_kernel
+def log_sum_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
+                        inter_start, inter_end, ph, out, out_start):
+    """:func:`molecule_populations` by log-sum-exp (one exponential per microstate)."""
     n_micro = 1 << n_sites
     top = -1e300
     for s in range(n_micro):
@@ -100,6 +154,18 @@ def mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar
 
 
 @leaf_kernel
+def shift_populations(pops, micro_protons, mol_micro_start, n_mol, ln_shift):
+    """Carry ``pops`` to a pH higher by ``ln_shift`` / ln10 to first order:
+    p_s <- p_s (1 + ln_shift (<N> - N_s)), N_s the protons of microstate s (the sum stays 1)."""
+    for m in range(n_mol):
+        mean_n = 0.0
+        for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
+            mean_n += pops[s] * micro_protons[s]
+        for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
+            pops[s] *= 1.0 + ln_shift * (mean_n - micro_protons[s])
+
+
+@leaf_kernel
 def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start, mol_micro_start,
                          inter_a, inter_b, inter_w, mol_inter_start, micro_charge, micro_protons,
                          pkw_value, ph_guess, pops, zbar, proton_variance):
@@ -142,6 +208,14 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
         if abs(step) < NEWTON_ACCEPT:
             # Newton converges quadratically: the root is within about |step| of ph,
             # and pops, zbar are already those at ph
+            if ph <= -2.999 or ph >= 16.999:
+                return math.nan
+            return ph
+        if abs(step) < NEWTON_LINEAR and lo < ph + step < hi:
+            # the last step: populations carried to the root to first order (see NEWTON_LINEAR)
+            ph += step
+            shift_populations(pops, micro_protons, mol_micro_start, n_mol, LN10 * step)
+            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
             if ph <= -2.999 or ph >= 16.999:
                 return math.nan
             return ph
