@@ -105,27 +105,14 @@ def main() -> None:
     parser.add_argument("--calls", type=int, default=50, help="calls per block (default 50)")
     parser.add_argument("--sets", type=int, default=0,
                         help="also time N parameter sets over all cores (public simulate_batch)")
-    parser.add_argument("--workdir", help="keep the exported versions and their compiled code in this folder "
-                        "(default: a temporary one); a second run with the same folder loads instead of compiling")
-    parser.add_argument("--prepare", choices=("a", "b"),
-                        help="with --workdir: only export and compile version a or b, then stop (the two can be "
-                        "compiled by two processes at once)")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory(prefix="speciakin_ab_") as tmp:
-        tmp = Path(args.workdir) if args.workdir else Path(tmp)
+        tmp = Path(tmp)
         os.environ["NUMBA_CACHE_DIR"] = str(tmp / "numba_cache")
         names = ("speciakin_version_a", "speciakin_version_b")
         for version, name in zip((args.a, args.b), names):
-            if not (tmp / name).is_dir():
-                export(version, name, tmp / f"_{name}")
-                shutil.move(str(tmp / f"_{name}" / name), tmp / name)
+            export(version, name, tmp)
         sys.path.insert(0, str(tmp))
-        if args.prepare:
-            name = names["ab".index(args.prepare)]
-            workload(name, 0)
-            if args.sets:
-                workload(name, args.sets)
-            return
         workloads = [("one set, six runs, one core", 0, args.calls)]
         if args.sets:
             workloads.append((f"{args.sets} sets x six runs, all cores", args.sets, max(1, args.calls // args.sets)))

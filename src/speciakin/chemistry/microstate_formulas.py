@@ -31,7 +31,7 @@ import math
 from numba.extending import register_jitable
 
 __all__ = ["LN10", "PH_LOW", "PH_HIGH", "exp10", "molecule_populations", "all_populations", "mean_charges",
-           "solve_charge_balance", "flat_sites"]
+           "solve_charge_balance"]
 
 LN10 = math.log(10.0)
 #: Bracket of the charge-balance solve [pH]: a root outside it counts as none.

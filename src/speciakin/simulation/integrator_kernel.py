@@ -73,7 +73,7 @@ CONTROL_BAND = 0.05
 
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def free_point(t, y, f, prob):
     """f = dy/dt at a step point (free-pH problem of :func:`integrate_segment`); its pH is kept
     (``cache[C_STEP_PH]``) as the start of the stages' charge-balance solves."""
@@ -83,7 +83,7 @@ def free_point(t, y, f, prob):
     return not math.isnan(ph)
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def free_stage(t, ytmp, y, f, prob):
     """f = dy/dt at a stage point; free pH: the charge-balance Newton starts at the
     linear prediction pH(y) + dpH/dy (ytmp - y), one iteration fewer than starting at
@@ -100,7 +100,7 @@ def free_stage(t, ytmp, y, f, prob):
     return not math.isnan(ph)
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def free_jacobian(t, y, f0, ft, jac_t, span, prob):
     """Analytic Jacobian at (t, y) (every state active, stored transposed) and, when the
     problem is non-autonomous (a temperature ramp), df/dt by a forward difference."""
@@ -120,7 +120,7 @@ def free_jacobian(t, y, f0, ft, jac_t, span, prob):
     return True
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def free_output(t, y, f, out, i_out, prob):
     """Output row at an interpolated state: the pH from the right-hand side there."""
     (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, jac) = prob

@@ -87,7 +87,7 @@ COEFFICIENT_RTOL = 1e-9
 MAX_HALVINGS = 40
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def smooth_point(t, y, f, prob):
     """f = dy/dt at a step point (held/logged-pH problem of :func:`integrate_smooth`):
     the coefficients and their time derivatives at t, then the mass-action right-hand side."""
@@ -102,7 +102,7 @@ def smooth_point(t, y, f, prob):
                       second_conc, feed_rate, feed_volume_rate, product, v)
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def smooth_stage(t, ytmp, y, f, prob):
     """f = dy/dt at a stage point (the coefficients' time derivatives are not needed there)."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
@@ -114,7 +114,7 @@ def smooth_stage(t, ytmp, y, f, prob):
                       second_conc, feed_rate, feed_volume_rate, product, v)
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def smooth_jacobian_at(t, y, f0, ft, jac_t, span, prob):
     """Exact Jacobian on the active states and, when the coefficients vary, the exact df/dt
     (``cst``, ``dc``, ``product`` and ``v`` are those of (t, y): the last evaluation was there)."""
@@ -129,7 +129,7 @@ def smooth_jacobian_at(t, y, f0, ft, jac_t, span, prob):
     return True
 
 
-@leaf_kernel
+@leaf_kernel(inline="always")
 def smooth_output(t, y, f, out, i_out, prob):
     """Output row at an interpolated state: the held pH, or the logged pH at t."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
