@@ -32,11 +32,13 @@ _LOG_2PI = math.log(2.0 * math.pi)
 @njit(cache=True, nogil=True)
 def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, first, stride):
     """Fill ``out`` (n_sets, n_runs, n_times, n_outputs), ``status``, ``info`` for the
-    tasks first, first + stride, ... (task = set * n_runs + run)."""
+    tasks first, first + stride, ... (task = run * n_sets + set: with many sets, each
+    thread gets an equal share of every run, whose costs differ widely)."""
+    n_sets = q_all.shape[0]
     n_runs = ph_offset.shape[1]
-    for task in range(first, q_all.shape[0] * n_runs, stride):
-        s = task // n_runs
-        r = task % n_runs
+    for task in range(first, n_sets * n_runs, stride):
+        r = task // n_sets
+        s = task % n_sets
         status[s, r] = run_one(model, q_all[s], runs, r, ph_offset[s, r], amount_factor[s, r], rtol, atol,
                                out[s, r], info[s, r])
 

@@ -57,7 +57,7 @@ from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, C
                                          C_LAST_PH, C_PH_SLOPE, C_PKW, C_STEP_PH,
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
-from speciakin.simulation.rosenbrock_kernel import rosenbrock_steps, write_output
+from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
 
 #: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
 #: consumed so far), relative to the run's total amount (initial amounts + doses):
@@ -77,7 +77,7 @@ CONTROL_BAND = 0.05
 def free_point(t, y, f, prob):
     """f = dy/dt at a step point (free-pH problem of :func:`integrate_segment`); its pH is kept
     (``cache[C_STEP_PH]``) as the start of the stages' charge-balance solves."""
-    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, jac) = prob
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
     ph = rhs(t, y, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     ws[WS_CACHE][C_STEP_PH] = ph
     return not math.isnan(ph)
@@ -88,7 +88,7 @@ def free_stage(t, ytmp, y, f, prob):
     """f = dy/dt at a stage point; free pH: the charge-balance Newton starts at the
     linear prediction pH(y) + dpH/dy (ytmp - y), one iteration fewer than starting at
     the last stage's pH."""
-    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, jac) = prob
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
     if ctx[CTX_MODE] == MODE_FREE:
         cache = ws[WS_CACHE]
         dph_dy = ws[WS_DPH_DY]
@@ -102,14 +102,12 @@ def free_stage(t, ytmp, y, f, prob):
 
 @leaf_kernel(inline="always")
 def free_jacobian(t, y, f0, ft, jac_t, span, prob):
-    """Analytic Jacobian at (t, y) (every state active, stored transposed) and, when the
-    problem is non-autonomous (a temperature ramp), df/dt by a forward difference."""
-    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, jac) = prob
+    """Analytic Jacobian at (t, y) (every state active: J itself, not transposed, see
+    ``rosenbrock_kernel.make_step_loop``) and, when the problem is non-autonomous (a
+    temperature ramp), df/dt by a forward difference."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
     n = y.shape[0]
-    analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
-    for i in range(n):
-        for j in range(n):
-            jac_t[j, i] = jac[i, j]
+    analytic_jacobian(y, model, ws, ctx, jac_t, temperature_slope)
     if nonautonomous:
         dt = 1.5e-8 * max(abs(t), span)
         ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
@@ -123,7 +121,7 @@ def free_jacobian(t, y, f0, ft, jac_t, span, prob):
 @leaf_kernel(inline="always")
 def free_output(t, y, f, out, i_out, prob):
     """Output row at an interpolated state: the pH from the right-hand side there."""
-    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, jac) = prob
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
     ph = rhs(t, y, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
         return False
@@ -140,8 +138,8 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     outputs at times strictly inside (t0, t1) from index ``i_out`` are
     written to ``out`` from the continuous extension of each step (pH from
     the right-hand side at the interpolated state).  The work arrays are
-    made here; the step loop (``rosenbrock_kernel.rosenbrock_steps``) runs
-    without reference counting.
+    made here; the step loop (:data:`free_steps`) runs without reference
+    counting.
 
     Returns (status, next step size, next output index).  ``counters[0]``
     counts accepted steps.
@@ -149,21 +147,19 @@ def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate
     if t1 - t0 <= 0.0:
         return STATUS_OK, h, i_out
     n = y.shape[0]
-    prob = (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws, np.zeros((n, n)))
+    prob = (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws)
+    # the Jacobian's slot starts at zero: analytic_jacobian leaves entries that are always zero alone
     work = (np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((N_STAGES, n)),
-            np.empty((N_DENSE, n)), np.arange(n), np.empty(0, dtype=np.int64), np.empty((n, n)),
-            np.empty((n, n)), np.empty(n), np.empty(n, dtype=np.int64))
-    return free_steps(t0, t1, y, h, prob, nonautonomous, work, rtol, atol, out, out_t, i_out, n_out, counters,
-                      np.zeros(1))
+            np.empty((N_DENSE, n)), np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64), np.zeros((n, n)),
+            np.empty((n, n)), np.empty(0), np.empty(n, dtype=np.int64))
+    return free_steps(prob, nonautonomous, t0, t1, t1, t1 - t0, y, h, work, rtol, atol, out, out_t, i_out, n_out,
+                      counters, -1.0, np.zeros(1))
 
 
-@leaf_kernel
-def free_steps(t0, t1, y, h, prob, nonautonomous, work, rtol, atol, out, out_t, i_out, n_out, counters, peak):
-    """The step loop of :func:`integrate_segment` (``rosenbrock_steps`` with the free-pH
-    problem functions, inlined here: no reference counting); no titrant-sign check
-    (``peak`` unused)."""
-    return rosenbrock_steps(free_point, free_stage, free_jacobian, free_output, prob, False, nonautonomous, t0, t1,
-                            t1, t1 - t0, y, h, work, rtol, atol, out, out_t, i_out, n_out, counters, -1.0, peak)
+#: The step loop of :func:`integrate_segment`: every state active, f at a new step point
+#: evaluated when the next step starts (after the outputs inside the step: the order of
+#: the warm-started charge-balance solves is that of the results' reference).
+free_steps = make_step_loop(free_point, free_stage, free_jacobian, free_output, prefetch=False, all_active=True)
 
 
 @leaf_kernel

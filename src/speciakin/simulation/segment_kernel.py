@@ -71,7 +71,7 @@ from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coef
                                                     smooth_time_derivative, stoichiometry)
 from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
-from speciakin.simulation.rosenbrock_kernel import rosenbrock_steps, write_output
+from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
 
 #: Interpolation points of the coefficient cubic on [-1, 1] (Chebyshev points of the first kind).
 NODES = np.cos((2.0 * np.arange(4) + 1.0) * np.pi / 8.0)
@@ -140,6 +140,12 @@ def smooth_output(t, y, f, out, i_out, prob):
     return True
 
 
+#: The step loop of :func:`integrate_smooth`: Jacobian on the active states, f at a new
+#: step point evaluated before the step is accepted (cheap here).
+smooth_steps = make_step_loop(smooth_point, smooth_stage, smooth_jacobian_at, smooth_output, prefetch=True,
+                              all_active=False)
+
+
 @njit(cache=True)
 def make_smooth_workspace(model, n):
     """Work arrays of :func:`integrate_smooth` for one run (n = state size):
@@ -181,7 +187,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     times strictly inside (t0, t1) from index ``i_out`` are written to
     ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
     (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see
-    ``rosenbrock_kernel.rosenbrock_steps``.
+    :data:`smooth_steps` (``rosenbrock_kernel``).
 
     Returns
     -------
@@ -313,9 +319,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                 titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of,
                 ph_is_held, held_ph, ctx[CTX_PH_OFFSET], ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N],
                 ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
-        status, h, i_out = rosenbrock_steps(smooth_point, smooth_stage, smooth_jacobian_at, smooth_output, prob, True,
-                                            varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out,
-                                            n_out, counters, sign_tol, peak)
+        status, h, i_out = smooth_steps(prob, varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out,
+                                        n_out, counters, sign_tol, peak)
         if status != STATUS_OK:
             return status, h, i_out
         sub_span = tb - ta
