@@ -26,6 +26,12 @@ the in-process comparison measured the process, not the kernel.  Separate
 processes with identical setups remove that; the control run ``HEAD HEAD``
 must give a median paired ratio within 0.97-1.03.
 
+Each process lays out its compiled code and data at other addresses, and
+that alone moved two processes of the same version apart by up to 5 %
+(median paired CPU-time ratios 0.95 and 1.09 seen between single pairs):
+``--processes`` workers per version (default 3) take the rounds in turn,
+so that the median is over layouts too.
+
 Both the wall time and the CPU time of each worker are taken per block.  On
 a crowded host (load average far above the cores) the wall time mostly
 measures waiting for a core; the CPU time does not (for the one-core
@@ -206,14 +212,14 @@ def version_key(version: str) -> str:
 class Worker:
     """A worker process running one version."""
 
-    def __init__(self, version: str, folder: Path, workloads: list[str]):
+    def __init__(self, version: str, folder: Path, workloads: list[str], index: str = "a0"):
         folder = folder.resolve()  # numba keys its cache by the sources' real path
         self.reused = (folder / "src").is_dir()
         if not self.reused:
             folder.mkdir(parents=True, exist_ok=True)
             export(version, folder)
         src = folder / "src"
-        self.result_file = str(folder / "outputs.npz")
+        self.result_file = str(folder / f"outputs_{index}.npz")
         env = dict(os.environ, PYTHONPATH=str(src), NUMBA_CACHE_DIR=str(folder / "numba_cache"),
                    MPLBACKEND="Agg", OMP_WAIT_POLICY="PASSIVE", PYTHONHASHSEED="0")
         self.version = version
@@ -278,6 +284,8 @@ def main() -> None:
     parser.add_argument("--block", type=float, default=0.2, help="seconds of calls per block (default 0.2)")
     parser.add_argument("--workloads", default=",".join(WORKLOADS),
                         help=f"comma-separated, from {', '.join(WORKLOADS)} (default all)")
+    parser.add_argument("--processes", type=int, default=3,
+                        help="worker processes per version, taking rounds in turn (default 3)")
     parser.add_argument("--keep", metavar="DIR",
                         help="keep each version's export and compiled cache in DIR (named by slot and source "
                              "digest) and reuse them in later runs: no recompiling of an unchanged version")
@@ -291,7 +299,8 @@ def main() -> None:
             folders = [Path(args.keep).resolve() / f"{'ab'[i]}-{version_key(v)}" for i, v in enumerate((args.a, args.b))]
         else:
             folders = [Path(tmp) / f"version_{'ab'[i]}" for i in range(2)]
-        workers = [Worker(v, f, workloads) for v, f in zip((args.a, args.b), folders)]
+        workers = [Worker(v, f, workloads, f"{'ab'[i]}0") for i, (v, f) in enumerate(zip((args.a, args.b), folders))]
+        pairs = [workers]
         try:
             for w in workers:
                 info = w.wait_ready()
@@ -299,26 +308,39 @@ def main() -> None:
                       f"({'kept export and cache' if w.reused else 'empty cache'}; {info['package']}; "
                       f"threads {info['threads']}, threading layer {info['layer']})", flush=True)
             compare_outputs(workers, workloads)
+            # more processes per version, loading the filled cache: each process lays out its code and data
+            # at other addresses, which alone moved identical versions by up to 5 %
+            pairs += [[Worker(v, f, workloads, f"{'ab'[i]}{j}") for i, (v, f) in enumerate(zip((args.a, args.b), folders))]
+                      for j in range(1, args.processes)]
+            for pair in pairs[1:]:
+                for w in pair:
+                    w.wait_ready()
             for name in workloads:
-                run_workload(name, workers, args.rounds, args.block)
+                run_workload(name, pairs, args.rounds, args.block)
         finally:
-            for w in workers:
-                w.close()
+            for pair in pairs:
+                for w in pair:
+                    w.close()
 
 
-def run_workload(name: str, workers, rounds: int, block: float) -> None:
-    """Alternating blocks A B, B A, ... of the same number of calls; prints the paired ratios
-    of the wall times and of the workers' CPU times."""
+def run_workload(name: str, pairs, rounds: int, block: float) -> None:
+    """Alternating blocks A B, B A, ... of the same number of calls, round r on the pair of
+    worker processes r mod len(pairs); prints the paired ratios of the wall times and of the
+    workers' CPU times (and, for CPU, the median of each pair of processes)."""
     load = os.getloadavg()[0]
-    probe = min(w.time(name, 1)[1] for w in workers for _ in range(2))
+    probe = min(w.time(name, 1)[1] for w in pairs[0] for _ in range(2))
     calls = max(1, int(round(block / probe)))
     times = np.zeros((2, rounds, 2))  # (wall, CPU) x round x version
     for r in range(rounds):
+        workers = pairs[r % len(pairs)]
         for i in ((0, 1) if r % 2 == 0 else (1, 0)):
             times[:, r, i] = workers[i].time(name, calls)
     load_after = os.getloadavg()[0]
     for kind, t in zip(("wall", "CPU"), times):
         ratio = t[:, 1] / t[:, 0]
+        if kind == "CPU" and len(pairs) > 1:
+            per_pair = ", ".join(f"{np.median(ratio[j::len(pairs)]):.3f}" for j in range(len(pairs)))
+            print(f"{name} (CPU): median paired ratio of each pair of processes: {per_pair}")
         bests = ", ".join(f"{'AB'[i]} best {t[:, i].min() * 1e3:.3f} median {np.median(t[:, i]) * 1e3:.3f}"
                           for i in range(2))
         print(f"{name} ({kind}): {bests} ms per call; B/A median of paired ratios {np.median(ratio):.3f} "
