@@ -4,24 +4,21 @@ from __future__ import annotations
 
 import logging
 import math
-import os
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
-from numba import config as numba_config
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_tasks, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, gaussian_loglik
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import microstate_amounts
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_TEXT, STATUS_TITRANT_SIGN
 from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
 from speciakin.simulation.results import SimulationResult
 
-_cache = getattr(batch_tasks, "_cache", None)
+_cache = getattr(batch_serial, "_cache", None)
 if _cache is not None and getattr(_cache, "_cache_path", None):
     refresh_kernel_cache(_cache._cache_path)
 
@@ -37,37 +34,6 @@ def notice_compile(kernel) -> None:
     if not _compile_noticed and not is_cached(kernel):
         _compile_noticed = True
         LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
-
-
-#: Threads of a parallel batch (numba's thread count: NUMBA_NUM_THREADS, default the number of cores).
-N_THREADS = max(int(numba_config.NUMBA_NUM_THREADS), 1)
-_pool: ThreadPoolExecutor | None = None
-_pool_pid = -1
-
-
-def _threads() -> ThreadPoolExecutor:
-    """The worker threads of parallel batches (made again in a forked process)."""
-    global _pool, _pool_pid
-    if _pool is None or _pool_pid != os.getpid():
-        _pool = ThreadPoolExecutor(max_workers=max(N_THREADS - 1, 1), thread_name_prefix="speciakin-kernel")
-        _pool_pid = os.getpid()
-    return _pool
-
-
-def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel) -> None:
-    """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
-    on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
-    (this one and the pool's; the compiled code releases the GIL)."""
-    notice_compile(batch_tasks)
-    args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
-    threads = min(N_THREADS, off.size) if parallel else 1
-    if threads <= 1:
-        batch_tasks(*args, 0, 1)
-        return
-    shares = [_threads().submit(batch_tasks, *args, i, threads) for i in range(1, threads)]
-    batch_tasks(*args, 0, threads)
-    for share in shares:
-        share.result()
 
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
@@ -144,8 +110,9 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
     out = np.full((1, 1, cruns.n_times_max, compiled.n_outputs), np.nan)
     status = np.zeros((1, 1), np.int64)
     info = np.zeros((1, 1, N_INFO))
-    run_kernel(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :], cruns.amount_factor[None, :],
-               rtol, atol, out, status, info, parallel=False)
+    notice_compile(batch_serial)
+    batch_serial(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :],
+                 cruns.amount_factor[None, :], float(rtol), float(atol), out, status, info)
     code = int(status[0, 0])
     if code in PH_CONTROL_STATUS:
         raise ph_control_error(compiled, run, code, float(info[0, 0, 0]))
@@ -276,7 +243,7 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     ph_offset, amount_factor
         (n_sets, n_runs) or broadcastable; default: each run's own values.
     parallel
-        Spread the (set, run) pairs over all cores (:data:`N_THREADS` threads).
+        Spread the (set, run) pairs over all cores (numba threads).
 
     Returns
     -------
@@ -286,7 +253,9 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     _check_tolerances(rtol, atol)
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
     out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
-    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
+    kernel = batch_parallel if parallel else batch_serial
+    notice_compile(kernel)
+    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
     return _batch_result(out, status, info)
 
 
@@ -315,7 +284,9 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
         raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
                          (data.shape, sigma.shape), str(expected))
     loglik = np.zeros(off.shape[0])
-    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
+    kernel = batch_parallel if parallel else batch_serial
+    notice_compile(kernel)
+    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
     # the compiled sum also reports a sigma that is not positive where data are observed
     if not gaussian_loglik(out, status, data, sigma, compiled.n_species, bool(as_concentration), loglik):
         raise InputError("sigma must be positive where data are observed", Location(key="sigma"))

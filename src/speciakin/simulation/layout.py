@@ -88,7 +88,6 @@ C_LAST_PH = 3         #: last pH (warm start of the charge balance)
 C_DOH_DT = 4          #: d[OH-]/dT at the held pH [mol/L/K]
 C_PH_SLOPE = 5        #: d pH/dt of the current segment (logged pH) [1/s]
 C_OPPOSITE = 6        #: 1 when the opposite titrant is dosed at the last rhs call
-C_STEP_PH = 7         #: pH at the current step point (free pH: start of the stages' charge-balance solves)
 N_CACHE = 8
 
 # ---- start adjustment codes (``KernelRuns.start``; ``integrator_kernel.adjust_start``)
