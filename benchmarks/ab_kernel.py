@@ -2,27 +2,58 @@
 
 The host is a shared virtual machine whose speed moves by up to 2x in spells
 of a few seconds, so two benchmark runs taken minutes apart cannot resolve a
-change of a few per cent.  This script loads both versions into one process
-(each copied under its own package name), checks that they give the same
-outputs, and times the benchmark workload of ``bench_kernel.py`` (one
-parameter set, six runs, ``batch_serial``) in alternating blocks.  The median
-of the paired ratios B/A is robust to the host's spells; identical versions
-give 0.97-1.03 here.
+change of a few per cent.  This script runs each version in its own worker
+process (its own export of ``src/``, its own compiled-code cache, the
+package under its own name), checks that both give the same outputs, and
+then has the workers time the same workloads in alternating blocks (A B B A
+...; a block is about ``--block`` seconds of calls).  The median of the paired
+ratios B/A is robust to the host's spells.
 
-A version is a git revision (``HEAD``, ``HEAD~2``, a commit) or ``WORKTREE``
-(the files on disk).  Each version is compiled once into a temporary numba
-cache (one to two minutes each).
+Workloads (compiled and called once before any timing):
 
-Run:  .venv/bin/python benchmarks/ab_kernel.py HEAD WORKTREE [--rounds 30]
+``bench``
+    the workload of ``bench_kernel.py``: one parameter set, six held-pH runs,
+    the compiled batch on one core;
+``demo1``
+    the residuals of the bundled (invented) demo campaign, one set, one core;
+``demo32``
+    the demo's log-likelihood of 32 sets over all cores.
+
+Why one process per version: loaded into one process (as earlier versions of
+this script did, each copy under a renamed package), two identical versions
+were timed 2.26x apart, whichever was compiled second being the slow one, so
+the in-process comparison measured the process, not the kernel.  Separate
+processes with identical setups remove that; the control run ``HEAD HEAD``
+must give a median paired ratio within 0.97-1.03.
+
+Each process lays out its compiled code and data at other addresses, and
+that alone moved two processes of the same version apart by up to 5 %
+(median paired CPU-time ratios 0.95 and 1.09 seen between single pairs):
+``--processes`` workers per version (default 3) take the rounds in turn,
+so that the median is over layouts too.
+
+Both the wall time and the CPU time of each worker are taken per block.  On
+a crowded host (load average far above the cores) the wall time mostly
+measures waiting for a core; the CPU time does not (for the one-core
+workloads it is the kernel's own time; for ``demo32`` it is the work of all
+threads, so it misses an uneven split over the cores, which the wall time
+shows on a quiet host).
+
+A version is a git revision (``HEAD``, ``main``, a commit) or ``WORKTREE`` (the
+files on disk).  Each version compiles into an empty temporary cache (the two
+compile side by side: two to four minutes on a shared two-core host).
+
+Run:  .venv/bin/python benchmarks/ab_kernel.py HEAD WORKTREE [--rounds 20] [--workloads bench,demo1,demo32]
+      [--keep .ab_versions]
 """
 
 from __future__ import annotations
 
 import argparse
-import importlib
+import hashlib
 import io
+import json
 import os
-import re
 import shutil
 import subprocess
 import sys
@@ -34,92 +65,289 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
+WORKLOADS = ("bench", "demo1", "demo32")
 
 
-def export(version: str, name: str, into: Path) -> None:
-    """Copy ``src/speciakin`` of ``version`` to ``into/name`` with its imports renamed."""
-    target = into / name
-    if version == "WORKTREE":
-        shutil.copytree(ROOT / "src" / "speciakin", target, ignore=shutil.ignore_patterns("__pycache__"))
+# ---------------------------------------------------------------- the worker (one per version)
+
+def bench_workload():
+    """(call, outputs) of the bench_kernel workload on one core, through the compiled entry point."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import bench_kernel as b
+    from speciakin.simulation import compile_model, compile_runs
+    from speciakin.simulation import batch_kernel as batch
+
+    compiled = compile_model(b.build_model())
+    runs = b.build_runs()
+    cruns = compile_runs(compiled, runs, [b.TIMES] * len(runs))
+    n_runs = len(runs)
+    q = compiled.nominal[None, :].copy()
+    off, fac = np.zeros((1, n_runs)), np.ones((1, n_runs))
+    out = np.full((1, n_runs, len(b.TIMES), compiled.n_outputs), np.nan)
+    status, info = np.zeros((1, n_runs), np.int64), np.zeros((1, n_runs, 8))  # room for every version's info
+    args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-6, 1e-10, out, status, info)
+    if hasattr(batch, "batch_tasks"):
+        def call():
+            batch.batch_tasks(*args, 0, 1)
     else:
-        blob = subprocess.run(["git", "archive", version, "src/speciakin"], cwd=ROOT, check=True,
+        def call():
+            batch.batch_serial(*args)
+
+    def result():
+        if np.any(status != 0):
+            raise SystemExit(f"bench: a run failed (status {status.tolist()})")
+        return out.copy(), info[0, :, 1].astype(int)
+    return call, result
+
+
+def demo_objective():
+    """The demo campaign's objective (the version's own pipeline)."""
+    from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
+
+    folder = ROOT / "data_templates" / "demo"
+    model, campaign, _ = load_inputs(resolve_inputs(folder))
+    return make_objective(model, campaign)
+
+
+def demo1_workload():
+    objective = demo_objective()
+    objective.parallel = False
+    theta = objective.start
+    last = {}
+
+    def call():
+        last["r"] = objective.residuals(theta)
+
+    def result():
+        return np.asarray(last["r"]), np.zeros(0, int)
+    return call, result
+
+
+def demo32_workload():
+    objective = demo_objective()
+    objective.parallel = True
+    theta = objective.start
+    rng = np.random.default_rng(7)
+    sets = theta + 0.01 * rng.standard_normal((32, theta.size)) * np.maximum(np.abs(theta), 1e-3)
+    last = {}
+
+    def call():
+        last["ll"] = objective.log_likelihood_batch(sets)
+
+    def result():
+        return np.asarray(last["ll"]), np.zeros(0, int)
+    return call, result
+
+
+def worker(workloads: list[str], result_file: str) -> None:
+    """Build and warm up every workload, save the outputs, then time blocks on request.
+
+    Protocol on stdin/stdout, one line each: ``NAME CALLS`` -> seconds for CALLS calls; ``quit``.
+    """
+    import speciakin
+
+    calls = {}
+    saved = {}
+    builders = {"bench": bench_workload, "demo1": demo1_workload, "demo32": demo32_workload}
+    for name in workloads:
+        call, result = builders[name]()
+        t0 = time.perf_counter()
+        call()  # compiles (or loads) every kernel the workload needs
+        first = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        call()
+        saved[name], saved[name + "_steps"] = result()
+        saved[name + "_first"] = np.array([first, time.perf_counter() - t0])
+        calls[name] = call
+    np.savez(result_file, **saved)
+    from numba import config, threading_layer
+    try:
+        layer = threading_layer()
+    except ValueError:  # no parallel region has run
+        layer = "none"
+    print(json.dumps({"ready": True, "package": speciakin.__file__, "threads": config.NUMBA_NUM_THREADS,
+                      "layer": layer}), flush=True)
+    for line in sys.stdin:
+        words = line.split()
+        if not words or words[0] == "quit":
+            break
+        call, n = calls[words[0]], int(words[1])
+        c0 = time.process_time()
+        t0 = time.perf_counter()
+        for _ in range(n):
+            call()
+        print(f"{time.perf_counter() - t0:.9f} {time.process_time() - c0:.9f}", flush=True)
+
+
+# ---------------------------------------------------------------- the parent
+
+def export(version: str, into: Path) -> Path:
+    """``src`` of ``version`` (a git revision or WORKTREE) copied to ``into``; returns the folder to put on the path."""
+    target = into / "src"
+    if version == "WORKTREE":
+        shutil.copytree(ROOT / "src", target, ignore=shutil.ignore_patterns("__pycache__", "*.egg-info"))
+    else:
+        blob = subprocess.run(["git", "archive", version, "src"], cwd=ROOT, check=True,
                               capture_output=True).stdout
         with tarfile.open(fileobj=io.BytesIO(blob)) as tar:
             # extraction filters exist from Python 3.11.4 on
             options = {"filter": "data"} if hasattr(tarfile, "data_filter") else {}
-            tar.extractall(into / "_export", **options)
-        shutil.move(str(into / "_export" / "src" / "speciakin"), target)
-    pattern = re.compile(r"\bspeciakin(?=[.\s])")
-    for path in target.rglob("*.py"):
-        text = path.read_text()
-        path.write_text(pattern.sub(name, text))
+            tar.extractall(into, **options)
+    return target
 
 
-def workload(name: str):
-    """(call, outputs) of the bench_kernel workload built with package ``name``."""
-    sim = importlib.import_module(name + ".simulation")
-    batch = importlib.import_module(name + ".simulation.batch_kernel")
-    source = (ROOT / "benchmarks" / "bench_kernel.py").read_text().replace("from speciakin.", f"from {name}.")
-    space: dict = {"__name__": f"bench_{name}"}
-    exec(compile(source, f"bench_kernel ({name})", "exec"), space)
-    compiled = sim.compile_model(space["build_model"]())
-    runs = space["build_runs"]()
-    cruns = sim.compile_runs(compiled, runs, [space["TIMES"]] * len(runs))
-    q = compiled.nominal[None, :].copy()
-    n_runs = len(runs)
-    off, fac = np.zeros((1, n_runs)), np.ones((1, n_runs))
-    out = np.full((1, n_runs, len(space["TIMES"]), compiled.n_outputs), np.nan)
-    status, info = np.zeros((1, n_runs), np.int64), np.zeros((1, n_runs, 8))  # room for every version's info entries
-    args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-6, 1e-10, out, status, info)
+def version_key(version: str) -> str:
+    """A short digest of the sources of ``version`` (names a kept export, see ``--keep``)."""
+    digest = hashlib.sha256()
+    if version == "WORKTREE":
+        for path in sorted((ROOT / "src").rglob("*.py")):
+            digest.update(str(path.relative_to(ROOT)).encode() + b"\0" + path.read_bytes())
+    else:
+        tree = subprocess.run(["git", "rev-parse", f"{version}:src"], cwd=ROOT, check=True, capture_output=True,
+                              text=True).stdout.strip()
+        digest.update(tree.encode())
+    return digest.hexdigest()[:16]
 
-    def call():
-        batch.batch_serial(*args)
 
-    call()
-    if np.any(status != 0):
-        raise SystemExit(f"version {name}: a run failed (status {status.tolist()})")
-    return call, out, info[0, :, 1].astype(int), compiled.n_species
+class Worker:
+    """A worker process running one version."""
+
+    def __init__(self, version: str, folder: Path, workloads: list[str], index: str = "a0"):
+        folder = folder.resolve()  # numba keys its cache by the sources' real path
+        self.reused = (folder / "src").is_dir()
+        if not self.reused:
+            folder.mkdir(parents=True, exist_ok=True)
+            export(version, folder)
+        src = folder / "src"
+        self.result_file = str(folder / f"outputs_{index}.npz")
+        env = dict(os.environ, PYTHONPATH=str(src), NUMBA_CACHE_DIR=str(folder / "numba_cache"),
+                   MPLBACKEND="Agg", OMP_WAIT_POLICY="PASSIVE", PYTHONHASHSEED="0")
+        self.version = version
+        self.started = time.perf_counter()
+        self.proc = subprocess.Popen([sys.executable, str(Path(__file__).resolve()), "--worker",
+                                      ",".join(workloads), self.result_file],
+                                     stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True, env=env,
+                                     cwd=str(folder))
+
+    def wait_ready(self) -> dict:
+        line = self.proc.stdout.readline()
+        if not line:
+            raise SystemExit(f"version {self.version}: the worker failed (see its messages above)")
+        info = json.loads(line)
+        info["seconds"] = time.perf_counter() - self.started
+        return info
+
+    def time(self, name: str, calls: int) -> tuple[float, float]:
+        """(wall time, CPU time of the worker process) per call [s] over ``calls`` calls."""
+        self.proc.stdin.write(f"{name} {calls}\n")
+        self.proc.stdin.flush()
+        wall, cpu = map(float, self.proc.stdout.readline().split())
+        return wall / calls, cpu / calls
+
+    def close(self) -> None:
+        try:
+            self.proc.stdin.write("quit\n")
+            self.proc.stdin.flush()
+        except OSError:
+            pass
+        self.proc.wait(timeout=60)
+
+
+def compare_outputs(workers, workloads) -> None:
+    a, b = (np.load(w.result_file) for w in workers)
+    for name in workloads:
+        ref = a[name]
+        if ref.shape != b[name].shape:
+            print(f"{name}: outputs differ in shape {ref.shape} vs {b[name].shape}")
+            continue
+        finite = np.isfinite(ref) & np.isfinite(b[name])
+        same_nan = np.array_equal(np.isfinite(ref), np.isfinite(b[name]))
+        diff = np.max(np.abs(ref[finite] - b[name][finite]), initial=0.0)
+        scale = np.max(np.abs(ref[finite]), initial=0.0)
+        steps = "" if a[name + "_steps"].size == 0 else (
+            f"; accepted steps per run A {a[name + '_steps'].tolist()}, B {b[name + '_steps'].tolist()}")
+        print(f"{name}: outputs B - A: largest difference {diff:.2e} (largest |A| {scale:.2e}); "
+              f"{'same' if same_nan else 'DIFFERENT'} finite entries{steps}")
+        print(f"{name}: first call (compile or cache load) A {a[name + '_first'][0]:.1f} s, "
+              f"B {b[name + '_first'][0]:.1f} s; second call A {a[name + '_first'][1] * 1e3:.2f} ms, "
+              f"B {b[name + '_first'][1] * 1e3:.2f} ms")
 
 
 def main() -> None:
+    if len(sys.argv) > 1 and sys.argv[1] == "--worker":
+        worker(sys.argv[2].split(","), sys.argv[3])
+        return
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("a", help="version A: a git revision or WORKTREE")
     parser.add_argument("b", help="version B: a git revision or WORKTREE")
-    parser.add_argument("--rounds", type=int, default=30, help="pairs of blocks (default 30)")
-    parser.add_argument("--calls", type=int, default=50, help="calls per block (default 50)")
+    parser.add_argument("--rounds", type=int, default=20, help="pairs of blocks per workload (default 20)")
+    parser.add_argument("--block", type=float, default=0.2, help="seconds of calls per block (default 0.2)")
+    parser.add_argument("--workloads", default=",".join(WORKLOADS),
+                        help=f"comma-separated, from {', '.join(WORKLOADS)} (default all)")
+    parser.add_argument("--processes", type=int, default=3,
+                        help="worker processes per version, taking rounds in turn (default 3)")
+    parser.add_argument("--keep", metavar="DIR",
+                        help="keep each version's export and compiled cache in DIR (named by slot and source "
+                             "digest) and reuse them in later runs: no recompiling of an unchanged version")
     args = parser.parse_args()
+    workloads = [w for w in args.workloads.split(",") if w]
+    unknown = sorted(set(workloads) - set(WORKLOADS))
+    if unknown:
+        parser.error(f"unknown workload(s) {', '.join(unknown)}; expected some of {', '.join(WORKLOADS)}")
     with tempfile.TemporaryDirectory(prefix="speciakin_ab_") as tmp:
-        tmp = Path(tmp)
-        os.environ["NUMBA_CACHE_DIR"] = str(tmp / "numba_cache")
-        names = ("speciakin_version_a", "speciakin_version_b")
-        for version, name in zip((args.a, args.b), names):
-            export(version, name, tmp)
-        sys.path.insert(0, str(tmp))
-        setups = []
-        for version, name in zip((args.a, args.b), names):
-            t0 = time.perf_counter()
-            setups.append(workload(name))
-            print(f"{version}: ready in {time.perf_counter() - t0:.0f} s; accepted steps per run "
-                  f"{', '.join(map(str, setups[-1][2]))}", flush=True)
-        (_, out_a, _, n_species), (_, out_b, _, _) = setups
-        ref = out_a[..., :n_species]
-        difference = np.max(np.abs(out_b[..., :n_species] - ref)) / np.max(np.abs(ref))
-        print(f"largest output difference B - A: {difference:.2e} of the largest amount")
-        times = np.zeros((args.rounds, 2))
-        for r in range(args.rounds):
-            order = (0, 1) if r % 2 == 0 else (1, 0)
-            for i in order:
-                call = setups[i][0]
-                t0 = time.perf_counter()
-                for _ in range(args.calls):
-                    call()
-                times[r, i] = (time.perf_counter() - t0) / args.calls
-        ratio = times[:, 1] / times[:, 0]
-        for i, version in enumerate((args.a, args.b)):
-            print(f"{'AB'[i]} {version}: best {times[:, i].min() * 1e3:.3f} ms, "
-                  f"median {np.median(times[:, i]) * 1e3:.3f} ms")
-        print(f"B/A: median of paired ratios {np.median(ratio):.3f} (quartiles {np.quantile(ratio, 0.25):.3f}-"
-              f"{np.quantile(ratio, 0.75):.3f}); ratio of the bests {times[:, 1].min() / times[:, 0].min():.3f}")
+        if args.keep:
+            folders = [Path(args.keep).resolve() / f"{'ab'[i]}-{version_key(v)}" for i, v in enumerate((args.a, args.b))]
+        else:
+            folders = [Path(tmp) / f"version_{'ab'[i]}" for i in range(2)]
+        workers = [Worker(v, f, workloads, f"{'ab'[i]}0") for i, (v, f) in enumerate(zip((args.a, args.b), folders))]
+        pairs = [workers]
+        try:
+            for w in workers:
+                info = w.wait_ready()
+                print(f"{'AB'[workers.index(w)]} {w.version}: ready after {info['seconds']:.0f} s "
+                      f"({'kept export and cache' if w.reused else 'empty cache'}; {info['package']}; "
+                      f"threads {info['threads']}, threading layer {info['layer']})", flush=True)
+            compare_outputs(workers, workloads)
+            # more processes per version, loading the filled cache: each process lays out its code and data
+            # at other addresses, which alone moved identical versions by up to 5 %
+            pairs += [[Worker(v, f, workloads, f"{'ab'[i]}{j}") for i, (v, f) in enumerate(zip((args.a, args.b), folders))]
+                      for j in range(1, args.processes)]
+            for pair in pairs[1:]:
+                for w in pair:
+                    w.wait_ready()
+            for name in workloads:
+                run_workload(name, pairs, args.rounds, args.block)
+        finally:
+            for pair in pairs:
+                for w in pair:
+                    w.close()
+
+
+def run_workload(name: str, pairs, rounds: int, block: float) -> None:
+    """Alternating blocks A B, B A, ... of the same number of calls, round r on the pair of
+    worker processes r mod len(pairs); prints the paired ratios of the wall times and of the
+    workers' CPU times (and, for CPU, the median of each pair of processes)."""
+    load = os.getloadavg()[0]
+    probe = min(w.time(name, 1)[1] for w in pairs[0] for _ in range(2))
+    calls = max(1, int(round(block / probe)))
+    times = np.zeros((2, rounds, 2))  # (wall, CPU) x round x version
+    for r in range(rounds):
+        workers = pairs[r % len(pairs)]
+        for i in ((0, 1) if r % 2 == 0 else (1, 0)):
+            times[:, r, i] = workers[i].time(name, calls)
+    load_after = os.getloadavg()[0]
+    for kind, t in zip(("wall", "CPU"), times):
+        ratio = t[:, 1] / t[:, 0]
+        if kind == "CPU" and len(pairs) > 1:
+            per_pair = ", ".join(f"{np.median(ratio[j::len(pairs)]):.3f}" for j in range(len(pairs)))
+            print(f"{name} (CPU): median paired ratio of each pair of processes: {per_pair}")
+        bests = ", ".join(f"{'AB'[i]} best {t[:, i].min() * 1e3:.3f} median {np.median(t[:, i]) * 1e3:.3f}"
+                          for i in range(2))
+        print(f"{name} ({kind}): {bests} ms per call; B/A median of paired ratios {np.median(ratio):.3f} "
+              f"(quartiles {np.quantile(ratio, 0.25):.3f}-{np.quantile(ratio, 0.75):.3f}); ratio of the bests "
+              f"{t[:, 1].min() / t[:, 0].min():.3f}")
+    print(f"{name}: {rounds} pairs of blocks of {calls} calls; load average {load:.2f} before, {load_after:.2f} "
+          f"after", flush=True)
 
 
 if __name__ == "__main__":
