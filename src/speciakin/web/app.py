@@ -16,7 +16,7 @@ from pathlib import Path
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results
+from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results, warm
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -92,11 +92,30 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
         html.H2("speciakin workbench"),
         html.P(f"campaign root: {base}", className="root"),
         dcc.Tabs(id="tabs", value="campaign", persistence=True, persistence_type="session", children=[
-            dcc.Tab(label=label, value=key, children=module.layout()) for key, label, module in _TABS]),
+            dcc.Tab(label=label, value=key) for key, label, _ in _TABS]),
+        *[html.Div(module.layout(), id=f"tab-page-{key}", className="tab-page", style=_shown(key == "campaign"))
+          for key, _, module in _TABS],
     ])
+    _register_tab_switch(app)
     for _, _, module in _TABS:
         module.register(app, state)
     return app, state
+
+
+def _shown(visible: bool) -> dict:
+    return {"display": "block" if visible else "none"}
+
+
+def _register_tab_switch(app: Dash) -> None:
+    """Every tab's page stays in the page and a tab only shows or hides it, in the browser (no server
+    round trip): a tab opened again is shown as it was, without drawing its tables and figures anew."""
+    from dash import Input, Output
+
+    keys = [key for key, _, _ in _TABS]
+    app.clientside_callback(
+        "function(tab) { return " + repr(keys).replace("'", '"')
+        + ".map(k => ({display: k === tab ? 'block' : 'none'})); }",
+        [Output(f"tab-page-{key}", "style") for key in keys], Input("tabs", "value"))
 
 
 def _guard(server, token: str) -> None:
@@ -128,7 +147,8 @@ def _loopback_only(server) -> None:
 
 
 def make_server(app: Dash, host: str, port: int, *, token: str | None):
-    """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it).
+    """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it); the code
+    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process).
 
     Raises
     ------
@@ -140,4 +160,5 @@ def make_server(app: Dash, host: str, port: int, *, token: str | None):
     if not is_loopback(host) and not token:
         raise InputError("a host other than loopback needs a token", Location(key="--host"), host,
                          "127.0.0.1 (default), or --require-token so that only people given the token get in")
+    warm.prepare()  # the code the first answers need, loaded before the first visitor asks
     return werkzeug_server(host, port, app.server, threaded=True)

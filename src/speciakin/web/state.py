@@ -14,13 +14,21 @@ from typing import Any, Callable
 from speciakin.web.jobs import JobBoard
 from speciakin.web.paths import inside_root
 
-__all__ = ["WebState"]
+__all__ = ["WebState", "file_stamp"]
 
 _CACHE_SIZE = 16
 
 
-def _stamp(paths: list[Path]) -> tuple:
-    return tuple((str(p), p.stat().st_mtime_ns, p.stat().st_size) for p in sorted(paths) if p.exists())
+def file_stamp(paths: list[Path]) -> tuple:
+    """(path, modification time [ns], size [bytes]) of each file of ``paths`` that exists, sorted."""
+    found = []
+    for p in sorted(paths):
+        try:
+            info = p.stat()
+        except OSError:
+            continue
+        found.append((str(p), info.st_mtime_ns, info.st_size))
+    return tuple(found)
 
 
 @dataclass
@@ -38,7 +46,7 @@ class WebState:
 
     def cached(self, kind: str, files: list[Path], make: Callable[[], Any]) -> Any:
         """``make()``, remembered while ``files`` keep their modification times."""
-        key = (kind, _stamp(files))
+        key = (kind, file_stamp(files))
         with self._lock:
             if key in self._cache:
                 return self._cache[key]
