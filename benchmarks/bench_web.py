@@ -96,8 +96,8 @@ def serve(root: str) -> int:
 
 # ------------------------------------------------------------------ the demo result
 def build_root(root: Path) -> None:
-    """The demo with a whole run (fit, posterior, window, HTML report) and a second fit, made by the
-    page's jobs with short settings (about a minute or two; skipped when ``root`` has them)."""
+    """The demo with a fit and a whole run (fit, posterior, window, HTML report), made by the page's jobs
+    with short settings (a few minutes; skipped when ``root`` has them)."""
     from speciakin.demo import demo_dir
     from speciakin.web.jobs import JobBoard
 
@@ -109,9 +109,10 @@ def build_root(root: Path) -> None:
         return
     board = JobBoard(workers=1)
     try:
-        for kind, settings in (("run", {"starts": 1, "profiles": False, "steps": 60, "draws": 40,
-                                        "formats": ["html"]}),
-                               ("fit", {"starts": 1, "profiles": False, "draws": 20})):
+        # the whole run last: the newest result, the one the results tab shows first
+        for kind, settings in (("fit", {"starts": 1, "profiles": False, "draws": 20}),
+                               ("run", {"starts": 1, "profiles": False, "steps": 60, "draws": 40,
+                                        "formats": ["html"]})):
             t = time.perf_counter()
             job = board.submit(kind, "demo", campaign, settings)
             while job.state in ("queued", "running"):

@@ -28,7 +28,7 @@ import numpy as np
 
 from speciakin._json import dumps, format_tag, nan_from_null
 
-__all__ = ["STORE_NAME", "FORMAT", "fingerprint", "to_data", "from_data", "save", "load", "carry", "predictions_of"]
+__all__ = ["STORE_NAME", "FORMAT", "input_files", "fingerprint", "to_data", "from_data", "save", "load", "carry", "predictions_of"]
 
 #: The file in a result folder (hidden: the page's store, not a result file).
 STORE_NAME = ".page-predictions.json"
@@ -49,11 +49,9 @@ def _sha256(path: Path) -> str:
 
 def input_files(campaign: Path) -> list[Path]:
     """The campaign's input files the curves may depend on (workbooks, CSV files, model and process files)."""
-    campaign = Path(campaign)
-    files = [*campaign.glob("*.xlsx"), *campaign.glob("*.toml"), *campaign.glob("*.csv")]
-    if (campaign / "csv").is_dir():
-        files += list((campaign / "csv").glob("*.csv"))
-    return sorted(p for p in files if p.is_file())
+    from speciakin.web.state import WebState
+
+    return sorted(p for p in WebState.inputs_of(Path(campaign)) if p.is_file())
 
 
 def fingerprint(result: Path, campaign: Path) -> dict[str, Any]:
