@@ -12,7 +12,7 @@ from pathlib import Path
 from typing import Any, Callable
 
 from speciakin.web.jobs import JobBoard
-from speciakin.web.paths import inside_root
+from speciakin.web.paths import campaign_inputs, inside_root
 
 __all__ = ["WebState", "file_stamp"]
 
@@ -59,8 +59,6 @@ class WebState:
 
     @staticmethod
     def inputs_of(campaign: Path) -> list[Path]:
-        """The files a campaign's check depends on (workbook, CSV files, model and process files)."""
-        files = list(campaign.glob("*.xlsx")) + list(campaign.glob("*.toml")) + list(campaign.glob("*.csv"))
-        if (campaign / "csv").is_dir():
-            files += list((campaign / "csv").glob("*.csv"))
-        return files + [campaign]
+        """The files a campaign's check depends on (workbook, CSV files, model and process files), and
+        the folder itself."""
+        return campaign_inputs(campaign) + [campaign]

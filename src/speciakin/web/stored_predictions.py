@@ -49,9 +49,9 @@ def _sha256(path: Path) -> str:
 
 def input_files(campaign: Path) -> list[Path]:
     """The campaign's input files the curves may depend on (workbooks, CSV files, model and process files)."""
-    from speciakin.web.state import WebState
+    from speciakin.web.paths import campaign_inputs
 
-    return sorted(p for p in WebState.inputs_of(Path(campaign)) if p.is_file())
+    return sorted(p for p in campaign_inputs(campaign) if p.is_file())
 
 
 def fingerprint(result: Path, campaign: Path) -> dict[str, Any]:
