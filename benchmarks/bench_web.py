@@ -1,105 +1,318 @@
-"""How fast the workbench page answers for the bundled (INVENTED) demo campaign; target < 1 s.
+"""How fast each view of the workbench page answers for the bundled (INVENTED) demo; target < 1 s.
 
-Prints best and median of several blocks, and the ratio to the 1 s target:
+The demo gets a finished result with a fit, a posterior and a window (the page's own "whole run" job
+with short settings) and a second fit for the comparison.  Then a page server is started in a new
+process and a headless Chromium (Playwright, Debian's /usr/bin/chromium or SPECIAKIN_CHROMIUM) opens,
+in the order of a chemist's visit, every view:
 
-* server: the page (``/``), its layout and its callback list over HTTP;
-* check: the check callback of the demo, first (workbook read) and repeated (cached);
-* browser (when Chromium is at /usr/bin/chromium or SPECIAKIN_CHROMIUM): a reload
-  until the check summary of the demo is on screen, assets cached as in a
-  second visit.
+    page       open the page (the root holds only the demo, so it opens it): the check and the raw
+               data of the first run
+    raw run    the raw data of another run
+    model      the model summary and the parameter table (tab 2)
+    results    tab 4: parameter table, correlation, probability against pH, 2-D map, fitted curves
+    curves     the fitted curves of another run
+    history    tab 5: every result; then two results side by side (from the choice of B)
+    results again  tab 4 opened a second time (from the click on it)
 
-Run: ``python benchmarks/bench_web.py`` (about a minute).
+For each view it prints the server time (wall time of the Dash callbacks the view set off, summed,
+and the slowest one) and the browser time (from the click to the drawn figure or table), best and
+median over the repeats, "cold" (first visit after the server started: a new process, nothing cached
+in memory) and "warm" (the same visit again in that server).  Each server serves one cold visit and
+``--warm`` warm ones; ``--servers`` servers are started one after another.
+
+``--before SRC`` (a ``src`` folder of another version, e.g. extracted with
+``git archive COMMIT src | tar -x -C DIR``) alternates servers of that version and of this one in the
+same run and prints both side by side with the ratio (this / before).  ``uptime`` is printed before
+and after.  Run: ``python benchmarks/bench_web.py`` (about two minutes, plus the demo's fit the first
+time; ``--root DIR`` keeps the campaign root for the next call).
 """
 
 from __future__ import annotations
 
+import argparse
+import io
+import json
 import os
 import shutil
 import statistics
+import subprocess
+import sys
 import tempfile
-import threading
 import time
 import urllib.request
 from pathlib import Path
 
 TARGET_S = 1.0
-REPEATS = 7
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking", "--disable-component-update",
+        "--disable-sync", "--no-first-run"]
+TIMINGS = "/__bench_timings"
 
 
-def _times(call, n=REPEATS):
-    out = []
-    for _ in range(n):
-        t = time.perf_counter()
-        call()
-        out.append(time.perf_counter() - t)
-    return out
+# ------------------------------------------------------------------ the server process (--serve)
+class _CallbackTimer:
+    """WSGI middleware: wall time of every Dash callback request, and the log on ``TIMINGS``."""
+
+    def __init__(self, inner):
+        self.inner = inner
+        self.log: list[dict] = []
+
+    def __call__(self, environ, start_response):
+        path = environ.get("PATH_INFO", "")
+        if path == TIMINGS:
+            body, self.log = json.dumps(self.log).encode(), []
+            start_response("200 OK", [("Content-Type", "application/json")])
+            return [body]
+        if path != "/_dash-update-component":
+            return self.inner(environ, start_response)
+        body = environ["wsgi.input"].read(int(environ.get("CONTENT_LENGTH") or 0))
+        environ["wsgi.input"] = io.BytesIO(body)
+        try:
+            output = json.loads(body).get("output", "")
+        except ValueError:
+            output = "?"
+        started, t0 = time.time(), time.perf_counter()
+        answer = b"".join(self.inner(environ, start_response))
+        self.log.append({"output": output, "start": started, "seconds": time.perf_counter() - t0,
+                         "bytes": len(answer)})
+        return [answer]
 
 
-def _say(label, times):
-    best, median = min(times), statistics.median(times)
-    print(f"{label:<44} best {best * 1e3:8.1f} ms  median {median * 1e3:8.1f} ms  "
-          f"median/target {median / TARGET_S:6.3f}", flush=True)
+def serve(root: str) -> int:
+    """Run the page on a free port (jobs in process: the benchmark starts none); print the port."""
+    import logging
 
-
-def main() -> int:
+    logging.getLogger("werkzeug").setLevel(logging.ERROR)
     import speciakin.data.importer  # noqa: F401  (as `speciakin web` does before serving)
     import speciakin.pipeline  # noqa: F401
-    from speciakin.demo import demo_dir
     from speciakin.web import create_app, make_server
 
-    root = Path(tempfile.mkdtemp(prefix="bench-web-"))
-    shutil.copytree(demo_dir(), root / "demo")
-    app, state = create_app(root)
+    app, _ = create_app(root)
+    app.server.wsgi_app = _CallbackTimer(app.server.wsgi_app)
     srv = make_server(app, "127.0.0.1", 0, token=None)
-    threading.Thread(target=srv.serve_forever, daemon=True).start()
-    url = f"http://127.0.0.1:{srv.server_port}/"
-    try:
-        for path in ("", "_dash-layout", "_dash-dependencies"):
-            _say(f"server GET /{path}", _times(lambda: urllib.request.urlopen(url + path).read()))
-        from speciakin.data import check_campaign
-
-        folder = root / "demo"
-        _say("check of the demo (workbook read each time)",
-             _times(lambda: check_campaign(folder, model=folder / "model.toml"), 3))
-        _say("check of the demo (page cache)", _times(lambda: state.cached(
-            "check", state.inputs_of(folder), lambda: check_campaign(folder, model=folder / "model.toml"))))
-        _browser(url)
-    finally:
-        srv.shutdown()
-        shutil.rmtree(root, ignore_errors=True)
+    print(srv.server_port, flush=True)
+    srv.serve_forever()
     return 0
 
 
-def _browser(url: str) -> None:
+# ------------------------------------------------------------------ the demo result
+def build_root(root: Path) -> None:
+    """The demo with a fit and a whole run (fit, posterior, window, HTML report), made by the page's jobs
+    with short settings (a few minutes; skipped when ``root`` has them)."""
+    from speciakin.demo import demo_dir
+    from speciakin.web.jobs import JobBoard
+
+    campaign = root / "demo"
+    if not campaign.is_dir():
+        shutil.copytree(demo_dir(), campaign)
+    done = campaign / "results" / ".bench-ready"
+    if done.is_file():
+        return
+    board = JobBoard(workers=1)
+    try:
+        # the whole run last: the newest result, the one the results tab shows first
+        for kind, settings in (("fit", {"starts": 1, "profiles": False, "draws": 20}),
+                               ("run", {"starts": 1, "profiles": False, "steps": 60, "draws": 40,
+                                        "formats": ["html"]})):
+            t = time.perf_counter()
+            job = board.submit(kind, "demo", campaign, settings)
+            while job.state in ("queued", "running"):
+                time.sleep(0.5)
+            print(f"demo result: {kind} job {job.state} in {time.perf_counter() - t:.0f} s ({job.folder})",
+                  flush=True)
+            if job.state != "done":
+                raise SystemExit(f"the {kind} job of the benchmark failed: {job.message}")
+    finally:
+        board.shutdown()
+    done.write_text("made by benchmarks/bench_web.py\n")
+
+
+# ------------------------------------------------------------------ the visit
+def _choose(page, dropdown: str, value: str | None = None, index: int | None = None) -> str:
+    page.click(f"#{dropdown}")
+    if value is None:
+        option = page.locator(".dash-dropdown-option").nth(index or 0)
+        value = option.locator("input").get_attribute("value")
+    page.click(f".dash-dropdown-option:has(input[value='{value}'])")
+    return value
+
+
+def _views(page, url: str):
+    """(view, action, {part: selector that shows it drawn}) in the order of a chemist's visit."""
+    def other(dropdown):
+        def act():
+            page.click(f"#{dropdown}")
+            options = page.locator(".dash-dropdown-option input")
+            value = options.nth(options.count() - 1).get_attribute("value")
+            page.click(f".dash-dropdown-option:has(input[value='{value}'])")
+            act.value = value
+        return act
+
+    raw, fit = other("raw-run"), other("fit-run")
+
+
+    return [
+        # the root holds one campaign, so the page opens it by itself
+        ("page and campaign", lambda: page.goto(url),
+         {"campaign list": "#campaign-choice-value:has-text('demo')",
+          "check": "#check-summary:has-text('Ready to fit')", "raw data": "#raw-figure .gtitle"}),
+        ("raw run", raw, {"raw data": lambda: f"#raw-figure .gtitle:has-text('run {raw.value}:')"}),
+        ("model", lambda: page.click("text=2 Model"),
+         {"summary": "#model-summary:has-text('Molecules')", "parameter table": "#param-table .ag-row"}),
+        ("results", lambda: page.click("text=4 Results"),
+         {"parameters": "#parameter-table .ag-row", "correlation": "#correlation-figure .gtitle",
+          "pH curve": "#window-figure .gtitle:has-text('probability')",
+          "2-D map": "#map-figure .gtitle:has-text('design space')",
+          "fitted curves": "#fit-figure .gtitle:has-text('fitted curves')"}),
+        ("curves", fit, {"fitted curves": lambda: f"#fit-figure .gtitle:has-text('run {fit.value}:')"}),
+        ("history", lambda: page.click("text=5 History"), {"results index": "#history-table .ag-row"}),
+        ("compare", lambda: _choose(page, "compare-b", index=1), {"side by side": "#compare-inputs-summary"}),
+        ("results again", lambda: page.click("text=4 Results"),
+         {"parameters": "#parameter-table .ag-row", "fitted curves": "#fit-figure .gtitle:has-text('fitted')"}),
+    ]
+
+
+#: What is done before a view's clock starts: result A chosen, another tab shown.
+_BEFORE = {"compare": lambda page: _choose(page, "compare-a", index=0),
+           "results again": lambda page: page.click("text=1 Campaign and data")}
+
+
+def _fresh(page) -> None:
+    """Blank the titles of the figures a view redraws, so that waiting for a title waits for the new one."""
+    page.evaluate("""() => { for (const id of ['raw-figure', 'fit-figure']) {
+        const t = document.querySelector(`#${id} .gtitle`); if (t) t.textContent = ''; } }""")
+
+
+def visit(page, url: str) -> dict[str, dict]:
+    """One visit of every view; {view: {"browser": {part: s}, "server": [callback times]}}."""
+    urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()  # nothing left from an earlier visit
+    out = {}
+    for view, action, parts in _views(page, url):
+        if view in ("raw run", "curves"):
+            _fresh(page)
+        if view in _BEFORE:
+            _BEFORE[view](page)
+            page.wait_for_timeout(300)
+            urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()
+        start = time.time()
+        action()
+        seen = {}
+        for part, selector in parts.items():
+            page.wait_for_selector(selector() if callable(selector) else selector, timeout=180_000)
+            seen[part] = time.time() - start
+        page.wait_for_timeout(250)  # callbacks still running after the drawing (none expected) are counted
+        log = json.loads(urllib.request.urlopen(url.rstrip("/") + TIMINGS).read())
+        out[view] = {"browser": seen, "server": [e["seconds"] for e in log], "bytes": sum(e["bytes"] for e in log),
+                     "slowest": max(log, key=lambda e: e["seconds"])["output"][:60] if log else ""}
+    return out
+
+
+def _start_server(src: Path, root: Path):
+    env = dict(os.environ, PYTHONPATH=str(src), MPLBACKEND="Agg")
+    env["NUMBA_CACHE_DIR"] = str(src.parent / ".numba_cache")  # each version its own compiled kernel
+    proc = subprocess.Popen([sys.executable, __file__, "--serve", str(root)], env=env, stdout=subprocess.PIPE,
+                            text=True)
+    port = int(proc.stdout.readline())
+    return proc, f"http://127.0.0.1:{port}/"
+
+
+def _summary(values: list[float]) -> str:
+    if not values:
+        return f"{'-':>15}"
+    return f"{min(values):6.2f} {statistics.median(values):6.2f}  "
+
+
+def report(results: dict[str, list[dict]], labels: list[str]) -> None:
+    """Per view and part: browser and server seconds, best and median, cold and warm."""
+    first = results[labels[0]][0]["cold"][0]
+    views = list(first.keys())
+    print("\nseconds, best and median (cold: first visit after the server started; warm: again)")
+    head = f"{'view':<14}{'part':<16}{'':<8}" + "".join(f"{'cold ' + l:>15}{'warm ' + l:>15}" for l in labels)
+    print(head + ("   ratio warm/cold medians of the last to the first" if len(labels) > 1 else ""))
+    for view in views:
+        parts = list(first[view]["browser"].keys())
+        rows = [(p, "browser", lambda r, v=view, p=p: r[v]["browser"].get(p)) for p in parts]
+        rows += [("callbacks sum", "server", lambda r, v=view: sum(r[v]["server"])),
+                 ("slowest", "server", lambda r, v=view: max(r[v]["server"], default=0.0))]
+        for part, where, get in rows:
+            line = f"{view:<14}{part:<16}{where:<8}"
+            medians = []
+            for label in labels:
+                for kind in ("cold", "warm"):
+                    values = [get(r) for s in results[label] for r in s[kind]]
+                    values = [v for v in values if v is not None]
+                    line += f"{_summary(values):>15}"
+                    medians.append(statistics.median(values) if values else float("nan"))
+            if len(labels) > 1:
+                line += "   " + " ".join(f"{b / a:6.3f}" if a else "     -" for a, b in
+                                         ((medians[0], medians[2]), (medians[1], medians[3])))
+            print(line)
+        print(f"{'':<14}{'slowest callback':<24}" + " | ".join(
+            results[l][0]["cold"][0][view]["slowest"] for l in labels))
+    worst = {l: max(max(r[v]["browser"].values()) for s in results[l] for k in ("cold", "warm") for r in s[k]
+                    for v in r) for l in labels}
+    for label in labels:
+        print(f"slowest view in the browser ({label}): {worst[label]:.2f} s = {worst[label] / TARGET_S:.2f} x the "
+              f"{TARGET_S:g} s target")
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n", 1)[0])
+    parser.add_argument("--serve", metavar="ROOT", help=argparse.SUPPRESS)
+    parser.add_argument("--root", help="campaign root to make (or reuse) instead of a temporary one")
+    parser.add_argument("--servers", type=int, default=3, help="servers started (cold visits) per version")
+    parser.add_argument("--warm", type=int, default=2, help="warm visits per server")
+    parser.add_argument("--before", help="the src folder of a version to compare with, servers alternated")
+    parser.add_argument("--save", help="write every measured time to this JSON file")
+    args = parser.parse_args()
+    if args.serve:
+        return serve(args.serve)
     chromium = os.environ.get("SPECIAKIN_CHROMIUM", "/usr/bin/chromium")
     try:
         from playwright.sync_api import sync_playwright
     except ImportError:
-        print("browser: skipped (playwright not installed)")
-        return
+        print("skipped: playwright is not installed")
+        return 0
     if not Path(chromium).is_file():
-        print(f"browser: skipped (no Chromium at {chromium})")
-        return
-    args = ["--no-sandbox", "--disable-gpu", "--disable-background-networking", "--disable-component-update",
-            "--disable-sync", "--no-first-run"]
+        print(f"skipped: no Chromium at {chromium}")
+        return 0
+    here = Path(__file__).resolve().parent.parent / "src"
+    versions = {"this": here} if not args.before else {"before": Path(args.before).resolve(), "this": here}
+    root = Path(args.root) if args.root else Path(tempfile.mkdtemp(prefix="bench-web-"))
+    root.mkdir(parents=True, exist_ok=True)
+    build_root(root)
+    print("load before:", os.getloadavg(), flush=True)
+    results: dict[str, list[dict]] = {label: [] for label in versions}
+    starts: dict[str, list[float]] = {label: [] for label in versions}
     with sync_playwright() as p:
-        browser = p.chromium.launch(executable_path=chromium, args=args)
-        page = browser.new_page()
-        page.goto(url)
-        page.click("#campaign-choice")
-        page.click(".dash-dropdown-option:has(input[value='demo'])")
-        page.wait_for_selector("#check-summary:has-text('Ready to fit')", timeout=120_000)
-
-        def reload():
-            page.reload()
-            page.wait_for_selector("#check-summary:has-text('Ready to fit')", timeout=120_000)
-
-        def first_paint():
-            page.reload()
-            page.wait_for_selector("#campaign-choice-value:has-text('demo')", timeout=120_000)
-        _say("browser: reload until the campaign list shows", _times(first_paint))
-        _say("browser: reload until the demo's check shows", _times(reload))
+        browser = p.chromium.launch(executable_path=chromium, args=ARGS)
+        for n in range(args.servers):
+            for label, src in versions.items():
+                t = time.perf_counter()
+                proc, url = _start_server(src, root)
+                starts[label].append(time.perf_counter() - t)
+                try:
+                    run = {"cold": [], "warm": []}
+                    for kind in ["cold"] + ["warm"] * args.warm:
+                        # a new browser context each visit: nothing remembered in the browser's session
+                        context = browser.new_context(viewport={"width": 1300, "height": 900})
+                        run[kind].append(visit(context.new_page(), url))
+                        context.close()
+                finally:
+                    proc.terminate()
+                    proc.wait(timeout=30)
+                results[label].append(run)
+                print(f"server {n + 1}/{args.servers} ({label}) done; load {os.getloadavg()}", flush=True)
         browser.close()
+    if args.save:
+        Path(args.save).write_text(json.dumps({"results": results, "starts": starts}, indent=1))
+    report(results, list(versions))
+    for label in versions:
+        print(f"server start until it listens ({label}): best {min(starts[label]):.2f} s, "
+              f"median {statistics.median(starts[label]):.2f} s")
+    print("load after:", os.getloadavg())
+    if not args.root:
+        shutil.rmtree(root, ignore_errors=True)
+    return 0
 
 
 if __name__ == "__main__":

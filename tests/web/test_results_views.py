@@ -122,10 +122,11 @@ def test_zoom_is_interactive(server, page, result, shot):
     shot(page, "31-curves-zoomed")
 
 
-def _answers(page, action, expected: dict[str, str]) -> dict[str, float]:
+def _answers(page, action, expected: dict[str, str], answered: bool = True) -> dict[str, float]:
     """Seconds from ``action`` to the server's answer for each component of ``expected`` (id -> a
     selector that shows it drawn, or None for a component of a tab not shown); "all drawn" is the time
-    until every answer has come and every selector is present."""
+    until every answer has come and every selector is present.  ``answered`` False: the components are
+    drawn already and no answer is waited for (a tab opened again)."""
     seen: dict[str, float] = {}
     start = time.perf_counter()
 
@@ -142,7 +143,7 @@ def _answers(page, action, expected: dict[str, str]) -> dict[str, float]:
         if drawn:
             page.wait_for_selector(drawn)
         end = time.perf_counter() + 120
-        while output not in seen and time.perf_counter() < end:
+        while answered and output not in seen and time.perf_counter() < end:
             page.wait_for_timeout(20)
     seen["all drawn"] = time.perf_counter() - start
     page.remove_listener("response", on_response)
@@ -159,15 +160,57 @@ def test_page_speed_on_the_demo(server, page, result, capsys):
         for name, runs in (("demo", 6), (CAMPAIGN, 3)):
             figures[f"choose campaign {name} ({attempt})"] = _answers(
                 page, lambda: choose(page, "campaign-choice", name),
-                {"check-summary": f"#check-summary:has-text('{runs} run(s)')", "raw-figure-box": "#raw-figure",
-                 "model-summary": None, "param-table": None})
+                {"check-summary": f"#check-summary:has-text('{runs} run(s)')", "raw-figure-box": "#raw-figure"})
     for attempt in ("first", "again"):
         figures[f"open the results tab ({attempt})"] = _answers(
             page, lambda: page.click("text=4 Results"),
             {"map-figure": "#map-figure .gtitle:has-text('design space')",
-             "fit-figure": "#fit-figure .gtitle:has-text('fitted')"})
+             "fit-figure": "#fit-figure .gtitle:has-text('fitted')"}, answered=attempt == "first")
         page.click("text=1 Campaign and data")
     with capsys.disabled():
         print("\npage answers [s] (headless Chromium, server and browser on this machine, now):")
         for what, seconds in figures.items():
             print(f"  {what:<36} " + ", ".join(f"{k} {v:.2f}" for k, v in seconds.items()))
+
+
+def test_a_second_open_of_the_results_tab_computes_and_sends_nothing_again(server, page, result, shot, monkeypatch):
+    """The fitted curves of a result without stored curves are computed once (by the pipeline, then kept in
+    the result folder); opening the tab again computes nothing and re-sends no view."""
+    import shutil
+
+    from speciakin import pipeline
+    from speciakin.web import stored_predictions
+
+    url, _ = server
+    # a result no page has shown yet: a copy of the short result, named as the newest (so it is preselected)
+    again = result.parent / "20260101-000001-again"
+    shutil.copytree(result, again)
+    (again / stored_predictions.STORE_NAME).unlink(missing_ok=True)
+    calls = []
+    original = pipeline.load_results
+
+    def counted(*args, **kwargs):
+        calls.append(args[0])
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(pipeline, "load_results", counted)
+    open_campaign(page, url, CAMPAIGN)
+    page.click("text=4 Results")
+    page.wait_for_selector(f"#result-choice-value:has-text('{again.name}')")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    assert [str(c) for c in calls] == [str(again.resolve())]  # computed once (the prefetch or the tab)
+    assert (again / stored_predictions.STORE_NAME).is_file()
+
+    sent = []  # request bodies of the callbacks that answered with something (204: nothing to update)
+    page.on("response", lambda r: sent.append(r.request.post_data or "")
+            if "_dash-update-component" in r.url and r.status == 200 else None)
+    page.click("text=1 Campaign and data")
+    page.click("text=4 Results")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    page.wait_for_timeout(1500)  # time for any callback the second open would set off
+    assert len(calls) == 1
+    # the tab's callbacks may be asked (they answer "nothing changed"), but no view is drawn anew
+    answered = [b for b in sent if any(f'"{o}.' in b or f'"{o}"' in b for o in ("fit-figure", "correlation-figure"))]
+    assert answered == [], answered
+    shot(page, "32-results-opened-again")

@@ -16,7 +16,7 @@ from pathlib import Path
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results
+from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results, warm
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -87,16 +87,50 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
     else:
         _loopback_only(app.server)
     app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + _STYLE + "</style>")
-    app.layout = html.Div([
-        dcc.Store(id="campaign", storage_type="session"),
-        html.H2("speciakin workbench"),
-        html.P(f"campaign root: {base}", className="root"),
-        dcc.Tabs(id="tabs", value="campaign", persistence=True, persistence_type="session", children=[
-            dcc.Tab(label=label, value=key, children=module.layout()) for key, label, module in _TABS]),
-    ])
+    head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
+            html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),
+            dcc.Tabs(id="tabs", value=_FIRST, persistence=True, persistence_type="session",
+                     children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS])]
+    app.layout = html.Div([*head, *[html.Div(module.layout() if key == _FIRST else [], id=f"tab-page-{key}",
+                                             className="tab-page", style=_shown(key == _FIRST))
+                                    for key, _, module in _TABS]])
+    # every callback is checked against the whole page, with every tab's page in it
+    app.validation_layout = html.Div([*head, *[html.Div(module.layout(), id=f"tab-page-{key}")
+                                               for key, _, module in _TABS]])
+    _register_tab_switch(app)
     for _, _, module in _TABS:
         module.register(app, state)
     return app, state
+
+
+#: The tab shown first.
+_FIRST = "campaign"
+
+
+def _shown(visible: bool) -> dict:
+    return {"display": "block" if visible else "none"}
+
+
+def _register_tab_switch(app: Dash) -> None:
+    """A tab's page is put into the page the first time the tab is opened, and stays: a tab only shows
+    or hides it, in the browser (no server round trip), so a tab opened again is shown as it was,
+    without drawing its tables and figures anew, and the page loads only the first tab's page."""
+    from dash import Input, Output, State, no_update
+
+    keys = [key for key, _, _ in _TABS]
+    app.clientside_callback(
+        "function(tab) { return " + repr(keys).replace("'", '"')
+        + ".map(k => ({display: k === tab ? 'block' : 'none'})); }",
+        [Output(f"tab-page-{key}", "style") for key in keys], Input("tabs", "value"))
+    later = [(key, module) for key, _, module in _TABS if key != _FIRST]
+
+    @app.callback(*[Output(f"tab-page-{key}", "children") for key, _ in later], Output("tabs-mounted", "data"),
+                  Input("tabs", "value"), State("tabs-mounted", "data"))
+    def mount(tab, mounted):
+        mounted = list(mounted or [])
+        if tab in mounted or tab not in dict(later):
+            return (no_update,) * (len(later) + 1)
+        return (*[module.layout() if key == tab else no_update for key, module in later], [*mounted, tab])
 
 
 def _guard(server, token: str) -> None:
@@ -128,7 +162,8 @@ def _loopback_only(server) -> None:
 
 
 def make_server(app: Dash, host: str, port: int, *, token: str | None):
-    """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it).
+    """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it); the code
+    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process).
 
     Raises
     ------
@@ -140,4 +175,5 @@ def make_server(app: Dash, host: str, port: int, *, token: str | None):
     if not is_loopback(host) and not token:
         raise InputError("a host other than loopback needs a token", Location(key="--host"), host,
                          "127.0.0.1 (default), or --require-token so that only people given the token get in")
+    warm.prepare()  # the code the first answers need, loaded before the first visitor asks
     return werkzeug_server(host, port, app.server, threaded=True)

@@ -197,6 +197,30 @@ def _posterior_of(folder: Path, objective):
     return posterior
 
 
+def _store_curves(job, folder: Path, campaign: Path, feedback, *, objective=None, predictions=None,
+                  source: Path | None = None) -> None:
+    """The job's last stage: the fitted curves and bands of its result stored in the result folder for the
+    page (:mod:`speciakin.web.stored_predictions`), so that opening the results tab is a file read.
+
+    ``predictions`` when the job computed them already; else the store of ``source`` (the result built
+    on) when it holds for the new folder; else computed from the folder's fit and posterior.  A failure
+    here does not fail the job (the results tab computes the curves then); the job's notes say so."""
+    from speciakin import pipeline
+    from speciakin.errors import SpeciakinError
+    from speciakin.web import stored_predictions
+
+    feedback("curves", 0, 1)
+    try:
+        if predictions is None and source is not None and stored_predictions.carry(source, folder, campaign):
+            return
+        if predictions is None:
+            predictions = pipeline.predict_step(objective, _fit_of(folder, objective), _posterior_of(folder, objective))
+        stored_predictions.save(folder, campaign, predictions)
+    except (SpeciakinError, OSError, ValueError) as exc:
+        job.notes.append(f"the fitted curves were not stored for the page ({exc}); the results tab computes them")
+    feedback("curves", 1, 1)
+
+
 def _invented(model) -> bool:
     """Label the report as invented when the model says so (the demo), as ``speciakin report`` does."""
     return str(getattr(model, "description", "")).lower().startswith("invented")
@@ -219,12 +243,14 @@ def fit_work(job, campaign: Path, feedback) -> str:
         fit = pipeline.fit_step(objective, out, starts=s["starts"], profiles=s["profiles"], progress=feedback,
                                 cancel=job.cancel)
         feedback("figures", 0, 1)
-        fit_figures(model, pipeline.predict_step(objective, fit), fit, out)
+        predictions = pipeline.predict_step(objective, fit)
+        fit_figures(model, predictions, fit, out)
         text = f"fit: chi-square {fit.fit.chisqr:.4g}, reduced {fit.fit.reduced_chisqr:.3g}"
         if process is not None:
             window = pipeline.window_step(objective, process, out, fit=fit, draws=s["draws"], progress=feedback,
                                           cancel=job.cancel)
             text += "; window: " + pipeline.window_text(window)
+        _store_curves(job, out, campaign, feedback, predictions=predictions)
     return text
 
 
@@ -243,6 +269,7 @@ def posterior_work(job, campaign: Path, feedback) -> str:
                                       max_steps=s["cap"], progress=feedback, cancel=job.cancel)
         feedback("figures", 0, 1)
         posterior_figures(result, rec.folder)
+        _store_curves(job, rec.folder, campaign, feedback, objective=objective)
     return (f"posterior: {result.n_walkers} walkers x {result.n_steps} steps, "
             f"{'converged' if result.converged else 'NOT converged'}; stopped: {result.stop_message}")
 
@@ -259,6 +286,7 @@ def window_work(job, campaign: Path, feedback) -> str:
         fit = _fit_of(rec.folder, objective)
         window = pipeline.window_step(objective, process, rec.folder, fit=fit, posterior=posterior,
                                       draws=job.settings["draws"], progress=feedback, cancel=job.cancel)
+        _store_curves(job, rec.folder, campaign, feedback, objective=objective, source=source)
     return "window: " + pipeline.window_text(window)
 
 
@@ -284,6 +312,7 @@ def suggest_work(job, campaign: Path, feedback) -> str:
                                       n_draws=job.settings["suggest_draws"] or 400, seed=1, progress=forward)
         outputs.save_suggestion(rec.folder, result, inputs)
         suggest_figures(result, rec.folder)
+        _store_curves(job, rec.folder, campaign, feedback, objective=objective, source=source)
     return "suggestion: next run at " + conditions_text(result.candidates[0].conditions)
 
 
@@ -302,6 +331,7 @@ def report_work(job, campaign: Path, feedback) -> str:
         paths = write_report(rec.folder, pipeline.for_report(results, rec.folder), invented=_invented(results.model),
                              formats=job.settings["formats"], command=rec.command)
         feedback("report", 1, 1)
+        _store_curves(job, rec.folder, campaign, feedback, predictions=results.predictions)
     return "report: " + ", ".join(p.name for p in paths.values()) + (
         "; not run (reported as such): " + ", ".join(results.missing) if results.missing else "")
 
@@ -320,6 +350,8 @@ def run_work(job, campaign: Path, feedback) -> str:
                                    n_steps=s["steps"], n_walkers=s["walkers"], max_steps=s["cap"], draws=s["draws"],
                                    invented=invented, formats=s["formats"], progress=feedback, cancel=job.cancel,
                                    on_step=lambda name: feedback(name, 0, 0))
+        _store_curves(job, rec.folder, campaign, feedback, predictions=results.predictions,
+                      objective=results.objective)
     text = f"run: fit reduced chi-square {results.fit.fit.reduced_chisqr:.3g}"
     if results.window is not None:
         text += "; window: " + pipeline.window_text(results.window)

@@ -16,9 +16,11 @@ import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
+from speciakin.web import stored_predictions
 from speciakin.web.figures import correlation_figure, empty_figure, fit_run_figure, map_figure, window_figure
 from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
+from speciakin.web.state import file_stamp
 
 __all__ = ["layout", "register", "parameter_rows", "correlation_of", "PARAMETER_COLUMNS"]
 
@@ -62,6 +64,7 @@ def layout() -> html.Div:
         dcc.Graph(id="fit-figure", figure=empty_figure("choose a result"), config=_GRAPH),
         html.H3("History"),
         html.P(HISTORY_HINT, id="history-hint", className="message"),
+        dcc.Store(id="results-drawn"),
     ])
 
 
@@ -134,16 +137,26 @@ _LOCKS_GUARD = threading.Lock()
 
 
 def _results(state, folder, out):
-    """The pipeline's results of ``out`` with their predictions (cached); one load at a time per folder,
-    so a page that asks while the prefetch still loads waits for it instead of loading twice."""
+    """(predictions, model) of ``out``: the fitted curves and bands stored in the result folder
+    (:mod:`speciakin.web.stored_predictions`; computed by the pipeline and stored when missing or
+    stale) and the campaign's model (colours, compound labels); cached in memory.  One load at a time
+    per folder, so a page that asks while the prefetch still loads waits for it instead of loading twice."""
     from speciakin import pipeline
+    from speciakin.chemistry.modelfile import load_model
 
     with _LOCKS_GUARD:
         lock = _LOCKS.setdefault(str(out), threading.Lock())
-    files = [out / "fit.json", out / "window.json", out / "posterior.h5", *state.inputs_of(folder)]
+
+    def compute():
+        return pipeline.load_results(out, campaign=str(folder), model=str(folder / "model.toml"),
+                                     check=False).predictions
+
+    files = [out / "fit.json", out / "posterior.h5", *state.inputs_of(folder)]
     with lock:
-        return state.cached("results", files, lambda: pipeline.load_results(
-            out, campaign=str(folder), model=str(folder / "model.toml"), check=False))
+        predictions = state.cached("predictions", files, lambda: stored_predictions.predictions_of(
+            out, folder, compute))
+    model_file = folder / "model.toml"
+    return predictions, state.cached("model-object", [model_file], lambda: load_model(model_file))
 
 
 def _prefetch(state, folder, out) -> None:
@@ -176,8 +189,20 @@ def _views(state, out):
         return (parameter_rows(fit_data, posterior_data), warnings, corr,
                 *_window_views(outputs.load_window(out)))
 
-    files = [out / "fit.json", out / "window.json", out / "posterior.json", out / "posterior.h5"]
-    return state.cached("views", files, read)
+    return state.cached("views", _view_files(out), read)
+
+
+def _view_files(out) -> list:
+    """The files of a result the views are drawn from."""
+    return [out / "fit.json", out / "window.json", out / "posterior.json", out / "posterior.h5"]
+
+
+def _drawn_key(state, name, result) -> str:
+    """What the results tab shows: campaign, result and the stamps of the files its views are read from
+    (kept in the page's ``results-drawn`` store: a second open of the tab re-sends nothing)."""
+    folder, out = _result_folder(state, name, result)
+    files = [*_view_files(out), *state.inputs_of(folder)]
+    return json.dumps([name, result, [list(s[1:]) for s in file_stamp(files)]])
 
 
 def _window_views(window):
@@ -214,34 +239,36 @@ def register(app, state) -> None:
                   Output("correlation-figure", "figure"),
                   Output("window-status", "children"), Output("window-reasons", "children"),
                   Output("window-figure", "figure"), Output("map-figure", "figure"),
-                  Output("result-message", "children"),
-                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
-    def show(result, tab, name):
-        _only_when_shown(tab)
+                  Output("result-message", "children"), Output("results-drawn", "data"),
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"),
+                  State("results-drawn", "data"))
+    def show(result, tab, name, drawn):
+        key = _unchanged(state, tab, name, result, drawn)
         blank = ([], [], empty_figure("no result chosen"), "", [], empty_figure("no result chosen"),
                  empty_figure("no result chosen"))
         if not name or not result:
-            return *blank, "no result yet: start a fit job on the Jobs tab"
+            return *blank, "no result yet: start a fit job on the Jobs tab", None
         try:
             _, out = _result_folder(state, name, result)
             views = _views(state, out)
         except (SpeciakinError, OSError, ValueError) as exc:
-            return *blank, f"error: {exc}"
-        return *views, f"result {result}"
+            return *blank, f"error: {exc}", None
+        return *views, f"result {result}", key
 
     @app.callback(Output("fit-run", "options"), Output("fit-run", "value"), Output("fit-message", "children"),
-                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"))
-    def runs(result, tab, name):
-        _only_when_shown(tab)
+                  Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"),
+                  State("results-drawn", "data"))
+    def runs(result, tab, name, drawn):
+        _unchanged(state, tab, name, result, drawn)
         if not name or not result:
             return [], None, ""
         try:
             folder, out = _result_folder(state, name, result)
-            results = _results(state, folder, out)
+            predictions, _ = _results(state, folder, out)
         except (SpeciakinError, OSError, ValueError) as exc:
             return [], None, f"the fitted curves cannot be drawn: {exc}"
-        names = [r.name for r in results.predictions.runs] if results.predictions else []
-        note = f"curves: {results.predictions.source}" if results.predictions else ""
+        names = [r.name for r in predictions.runs] if predictions else []
+        note = f"curves: {predictions.source}" if predictions else ""
         return [{"label": r, "value": r} for r in names], names[0] if names else None, note
 
     @app.callback(Output("fit-figure", "figure"), Input("fit-run", "value"), State("result-choice", "value"),
@@ -251,24 +278,31 @@ def register(app, state) -> None:
             return empty_figure("choose a run")
         try:
             folder, out = _result_folder(state, name, result)
-            results = _results(state, folder, out)
-            prediction = results.predictions.run(run_name)
-        except (SpeciakinError, OSError, StopIteration) as exc:
+            predictions, model = _results(state, folder, out)
+            prediction = predictions.run(run_name)
+        except (SpeciakinError, OSError, ValueError, StopIteration) as exc:
             return empty_figure(f"cannot plot: {exc}")
         from speciakin.palette import display_names, model_species_colors
 
-        observations = [o for o in results.predictions.observations if o.run == run_name]
-        return fit_run_figure(prediction, observations, model_species_colors(results.model),
-                              display_names(results.model))
+        observations = [o for o in predictions.observations if o.run == run_name]
+        return fit_run_figure(prediction, observations, model_species_colors(model), display_names(model))
 
 
-def _only_when_shown(tab) -> None:
-    """Results are read only while their tab is shown, so that loading them (the fitted curves need the
-    pipeline's predictions, seconds for a large campaign) never holds up the other tabs."""
+def _unchanged(state, tab, name, result, drawn) -> str | None:
+    """The key of what the tab would show (:func:`_drawn_key`); raises PreventUpdate (nothing sent)
+    while the tab is hidden (results are read only while their tab is shown, so that loading them
+    never holds up the other tabs) and when the tab shows that already."""
     from dash.exceptions import PreventUpdate
 
     if tab != TAB:
         raise PreventUpdate
+    try:
+        key = _drawn_key(state, name, result) if name and result else None
+    except SpeciakinError:
+        return None
+    if key is not None and key == drawn:
+        raise PreventUpdate
+    return key
 
 
 def _window_line(window) -> str:

@@ -16,7 +16,7 @@ from speciakin._io import atomic_write_bytes
 from speciakin.errors import InputError, Location
 
 __all__ = ["inside_root", "campaign_folders", "result_folders", "safe_upload_name", "store_workbook",
-           "new_result_folder", "MAX_UPLOAD_BYTES", "RESULTS_FOLDER", "PREVIOUS_WORKBOOKS"]
+           "new_result_folder", "campaign_inputs", "MAX_UPLOAD_BYTES", "RESULTS_FOLDER", "PREVIOUS_WORKBOOKS"]
 
 #: Largest workbook accepted by the upload [bytes] (a campaign workbook is well under 1 MB).
 MAX_UPLOAD_BYTES = 20 * 1024 * 1024
@@ -66,6 +66,15 @@ def campaign_folders(root: Path) -> list[str]:
             if base == folder.resolve() or base in folder.resolve().parents:
                 found.append("." if folder == base else folder.name)
     return found
+
+
+def campaign_inputs(campaign: Path) -> list[Path]:
+    """The input files of a campaign folder: workbooks, CSV files (also in ``csv/``), model and process files."""
+    campaign = Path(campaign)
+    files = list(campaign.glob("*.xlsx")) + list(campaign.glob("*.toml")) + list(campaign.glob("*.csv"))
+    if (campaign / "csv").is_dir():
+        files += list((campaign / "csv").glob("*.csv"))
+    return files
 
 
 def result_folders(campaign: Path) -> list[str]:

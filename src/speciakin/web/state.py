@@ -12,15 +12,23 @@ from pathlib import Path
 from typing import Any, Callable
 
 from speciakin.web.jobs import JobBoard
-from speciakin.web.paths import inside_root
+from speciakin.web.paths import campaign_inputs, inside_root
 
-__all__ = ["WebState"]
+__all__ = ["WebState", "file_stamp"]
 
 _CACHE_SIZE = 16
 
 
-def _stamp(paths: list[Path]) -> tuple:
-    return tuple((str(p), p.stat().st_mtime_ns, p.stat().st_size) for p in sorted(paths) if p.exists())
+def file_stamp(paths: list[Path]) -> tuple:
+    """(path, modification time [ns], size [bytes]) of each file of ``paths`` that exists, sorted."""
+    found = []
+    for p in sorted(paths):
+        try:
+            info = p.stat()
+        except OSError:
+            continue
+        found.append((str(p), info.st_mtime_ns, info.st_size))
+    return tuple(found)
 
 
 @dataclass
@@ -38,7 +46,7 @@ class WebState:
 
     def cached(self, kind: str, files: list[Path], make: Callable[[], Any]) -> Any:
         """``make()``, remembered while ``files`` keep their modification times."""
-        key = (kind, _stamp(files))
+        key = (kind, file_stamp(files))
         with self._lock:
             if key in self._cache:
                 return self._cache[key]
@@ -51,8 +59,6 @@ class WebState:
 
     @staticmethod
     def inputs_of(campaign: Path) -> list[Path]:
-        """The files a campaign's check depends on (workbook, CSV files, model and process files)."""
-        files = list(campaign.glob("*.xlsx")) + list(campaign.glob("*.toml")) + list(campaign.glob("*.csv"))
-        if (campaign / "csv").is_dir():
-            files += list((campaign / "csv").glob("*.csv"))
-        return files + [campaign]
+        """The files a campaign's check depends on (workbook, CSV files, model and process files), and
+        the folder itself."""
+        return campaign_inputs(campaign) + [campaign]

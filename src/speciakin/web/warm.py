@@ -1,0 +1,59 @@
+"""Loading, once per server process, the code the page's first answers need.
+
+The first check of a campaign imports the workbook reader, the data tables
+and the simulation (whose compiled kernel is loaded from its disk cache: the
+check simulates the runs' reach), the first result read imports the decision
+layer (and with it ``scipy.stats``), and the first figure of each kind
+imports Plotly's classes for it: seconds of work the first visitor would
+otherwise wait for.
+:func:`prepare` does it once per process when the server is made, on the
+bundled INVENTED demo (read only; nothing is written), before the server
+answers: not in a background thread, because Plotly's JSON encoder would then
+meet a module half imported by that thread (``pandas``) and fail.
+"""
+
+from __future__ import annotations
+
+import logging
+import threading
+
+__all__ = ["prepare", "warm_up"]
+
+log = logging.getLogger(__name__)
+_DONE = threading.Event()
+_LOCK = threading.Lock()
+
+
+def warm_up() -> None:
+    """Check the bundled demo, draw the raw data of its first run and figures of every kind the results
+    show (results are thrown away)."""
+    import plotly.graph_objects as go
+
+    import speciakin.decision  # noqa: F401  (what reading a window.json imports)
+    from speciakin.data import check_campaign, load_campaign
+    from speciakin.demo import demo_dir
+    from speciakin.errors import SpeciakinError
+    from speciakin.palette import SpeciesColors
+    from speciakin.web.figures import correlation_figure, raw_run_figure
+
+    demo = demo_dir()
+    try:
+        check_campaign(demo, model=demo / "model.toml")
+        campaign = load_campaign(demo)
+        colors = SpeciesColors(sorted({c.molecule for c in campaign.compounds}))
+        raw_run_figure(campaign.runs[0], colors).to_plotly_json()
+        figure = correlation_figure(["a", "b"], [[1.0, 0.5], [0.5, 1.0]], "warm-up")
+        figure.add_trace(go.Contour(z=[[0.0, 1.0], [1.0, 0.0]]))
+        figure.add_vrect(x0=0, x1=1)
+        figure.add_hline(y=0.5, annotation_text="warm-up")
+        figure.to_plotly_json()
+    except (SpeciakinError, OSError, ValueError, ImportError) as exc:  # only a head start: never fatal
+        log.debug("warm-up stopped: %s", exc)
+
+
+def prepare() -> None:
+    """Run :func:`warm_up`, once per process."""
+    with _LOCK:
+        if not _DONE.is_set():
+            warm_up()
+            _DONE.set()
