@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import os
+import time
 
 import pytest
 
@@ -70,6 +71,21 @@ def test_uploaded_names_are_sanitised_and_sizes_limited(tmp_path, monkeypatch):
     monkeypatch.setattr("speciakin.web.paths.MAX_UPLOAD_BYTES", 2)
     with pytest.raises(InputError, match="too large"):
         store_workbook(folder, "big.xlsx", b"123")
+
+
+def test_workbooks_replaced_within_one_second_are_all_kept(tmp_path, monkeypatch):
+    # the clock is frozen, so every upload below falls into the same second
+    frozen = time.gmtime(0)
+    monkeypatch.setattr("speciakin.web.paths.time.gmtime", lambda *_: frozen)
+    folder = tmp_path / "c"
+    folder.mkdir()
+    (folder / "campaign.xlsx").write_bytes(b"first")
+    store_workbook(folder, "campaign.xlsx", b"second")
+    store_workbook(folder, "campaign.xlsx", b"third")
+    store_workbook(folder, "other.xlsx", b"fourth")
+    kept = sorted(p.read_bytes() for p in (folder / "previous-workbooks").iterdir())
+    assert kept == [b"first", b"second", b"third"]
+    assert [p.name for p in folder.glob("*.xlsx")] == ["other.xlsx"]
 
 
 def test_a_script_in_a_compound_name_is_shown_as_text(server, page, shot):

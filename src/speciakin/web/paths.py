@@ -140,5 +140,10 @@ def store_workbook(campaign: Path, name: str | None, data: bytes) -> Path:
     for old in sorted(campaign.glob("*.xlsx")):
         keep = campaign / PREVIOUS_WORKBOOKS
         keep.mkdir(exist_ok=True)
-        old.rename(keep / f"{stamp}-{old.name}")
+        target = keep / f"{stamp}-{old.name}"
+        copy = 1
+        while target.exists():  # two uploads within one second: never replace a kept workbook
+            copy += 1
+            target = keep / f"{stamp}-{copy}-{old.name}"
+        old.rename(target)
     return atomic_write_bytes(campaign / clean, data)
