@@ -6,7 +6,7 @@ import numpy as np
 from hypothesis import given, settings, strategies as st
 from scipy.integrate import solve_ivp
 
-from sim_models import logged_constant, two_site_model, two_site_run
+from sim_models import logged_constant, radau_piecewise, two_site_model, two_site_run
 from speciakin.simulation import simulate
 
 
@@ -86,16 +86,7 @@ def _varying_reference(knots_t, knots_ph, temp_t, temp_k, times, pkw_of_t):
                 r[0] + r[1] + r[2] + r[3] + 2 * r[4] + 2 * r[5]]
 
     cuts = np.unique(np.concatenate([knots_t, temp_t, [times[-1]]]))
-    y = [0.1, 0.105, 0, 0, 0, 0]
-    rows = {0.0: np.array(y, float)}
-    for a, b in zip(cuts[:-1], cuts[1:]):
-        inside = times[(times > a) & (times <= b)]
-        sol = solve_ivp(rhs, (a, b), y, method="Radau", t_eval=np.union1d(inside, [b]), rtol=1e-10, atol=1e-16)
-        assert sol.success
-        for t, row in zip(sol.t, sol.y.T):
-            rows[float(t)] = row
-        y = sol.y[:, -1]
-    return np.array([rows[float(t)] for t in times])
+    return radau_piecewise(rhs, [0.1, 0.105, 0, 0, 0, 0], cuts, times)
 
 
 def test_kernel_matches_radau_with_logged_ph_and_temperature_ramp():

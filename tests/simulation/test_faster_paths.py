@@ -18,10 +18,9 @@ import math
 
 import numpy as np
 import pytest
-from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from sim_models import two_site_model, two_site_run
+from sim_models import radau_piecewise, two_site_model, two_site_run
 from speciakin.chemistry.model import PhControl, TemperatureProfile
 from speciakin.chemistry.water import pkw
 from speciakin.simulation import compile_model, compile_runs, simulate
@@ -207,16 +206,7 @@ def test_free_ph_run_with_a_temperature_ramp_matches_radau():
         return [-r[0] - r[1], -sum(r), r[0] - r[3], r[1] - r[2], r[2] + r[3],
                 r[0] + r[1] + r[2] + r[3] + 2 * r[4] + 2 * r[5], 0.0, 0.0]
 
-    y = np.array([0.1, 0.105, 0.0, 0.0, 0.0, 0.0, 0.15, 0.0])
-    rows = {0.0: y.copy()}
-    for a, b in zip(temp_t[:-1], temp_t[1:]):
-        inside = times[(times > a) & (times <= b)]
-        sol = solve_ivp(rhs, (a, b), y, method="Radau", t_eval=np.union1d(inside, [b]), rtol=1e-10, atol=1e-16)
-        assert sol.success
-        for t, row in zip(sol.t, sol.y.T):
-            rows[float(t)] = row
-        y = sol.y[:, -1]
-    ref = np.array([rows[float(t)] for t in times])
+    ref = radau_piecewise(rhs, [0.1, 0.105, 0.0, 0.0, 0.0, 0.0, 0.15, 0.0], temp_t, times)
     ref_ph = np.array([ph_of(row, float(np.interp(t, temp_t, temp_k)))[0] for t, row in zip(times, ref)])
     # columns: S, E, P_alkyl, P_aryl, P_both, HA, Na, Cl (volume 1 L)
     assert np.max(np.abs(res.concentrations[:, :6] - ref[:, :6])) / 0.105 < 1e-6
