@@ -109,18 +109,23 @@ def demo_objective():
     return make_objective(model, campaign)
 
 
+def _keeping_last(evaluate):
+    """(call, result) of a workload: ``call`` evaluates, ``result`` returns the last outputs (no status)."""
+    last = {}
+
+    def call():
+        last["out"] = evaluate()
+
+    def result():
+        return np.asarray(last["out"]), np.zeros(0, int)
+    return call, result
+
+
 def demo1_workload():
     objective = demo_objective()
     objective.parallel = False
     theta = objective.start
-    last = {}
-
-    def call():
-        last["r"] = objective.residuals(theta)
-
-    def result():
-        return np.asarray(last["r"]), np.zeros(0, int)
-    return call, result
+    return _keeping_last(lambda: objective.residuals(theta))
 
 
 def demo32_workload():
@@ -129,14 +134,7 @@ def demo32_workload():
     theta = objective.start
     rng = np.random.default_rng(7)
     sets = theta + 0.01 * rng.standard_normal((32, theta.size)) * np.maximum(np.abs(theta), 1e-3)
-    last = {}
-
-    def call():
-        last["ll"] = objective.log_likelihood_batch(sets)
-
-    def result():
-        return np.asarray(last["ll"]), np.zeros(0, int)
-    return call, result
+    return _keeping_last(lambda: objective.log_likelihood_batch(sets))
 
 
 def worker(workloads: list[str], result_file: str) -> None:
