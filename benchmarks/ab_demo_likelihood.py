@@ -94,7 +94,10 @@ def workload(name: str):
         info = np.zeros((1, 1, api.N_INFO))
         args = (objective.compiled.arrays, q, cruns.arrays, off[:, [i]].copy(), fac[:, [i]].copy(),
                 objective.rtol, objective.atol, out, status, info)
-        runs[run.name] = (lambda a=args: batch.batch_serial(*a))
+        if hasattr(batch, "batch_tasks"):
+            runs[run.name] = (lambda a=args: batch.batch_tasks(*a, 0, 1))
+        else:
+            runs[run.name] = (lambda a=args: batch.batch_serial(*a))
     one_set()
     batch64()
     for call in runs.values():

@@ -10,7 +10,7 @@ few seconds):
 
 * the log-likelihood of one parameter set on one core
   (``CampaignObjective.log_likelihood_batch``, parallel off), and the kernel
-  alone for that set (``batch_serial``) so that the Python around it shows;
+  alone for that set (``batch_tasks`` on one core) so that the Python around it shows;
 * the log-likelihood of 64 parameter sets over all cores, per set;
 * the cost of each run alone (one set, one core, kernel only) with its
   accepted steps and segments, so that it shows where the time goes;
@@ -41,7 +41,7 @@ from speciakin.demo import demo_dir  # noqa: E402
 from speciakin.pipeline import load_inputs, make_objective, resolve_inputs  # noqa: E402
 from speciakin.simulation import compile_runs  # noqa: E402
 from speciakin.simulation.api import N_INFO  # noqa: E402
-from speciakin.simulation.batch_kernel import batch_serial  # noqa: E402
+from speciakin.simulation.batch_kernel import batch_tasks  # noqa: E402
 
 ONE_SET_TARGET = 2e-3
 BATCH_TARGET = 1.2e-3
@@ -61,7 +61,7 @@ def demo_objective():
 
 
 def kernel_call(objective, theta, run_indices=None):
-    """A call of ``batch_serial`` on the objective's runs (or a subset) for one set."""
+    """A call of ``batch_tasks`` (one core) on the objective's runs (or a subset) for one set."""
     compiled = objective.compiled
     cruns = objective.compiled_runs
     if run_indices is not None:
@@ -77,7 +77,7 @@ def kernel_call(objective, theta, run_indices=None):
     args = (compiled.arrays, q, cruns.arrays, off, fac, objective.rtol, objective.atol, out, status, info)
 
     def call():
-        batch_serial(*args)
+        batch_tasks(*args, 0, 1)
 
     call()
     if np.any(status != 0):
@@ -102,7 +102,7 @@ def main() -> None:
     kern = bench_kernel.timed_blocks(kernel, 10, n_blocks)
     print(f"log-likelihood, one set, one core:   {like.min() * 1e3:8.3f} ms (median {np.median(like) * 1e3:.3f}; "
           f"blocks within {ONE_SET_TARGET * 1e3:g} ms: {np.mean(like <= ONE_SET_TARGET):.0%})")
-    print(f"  kernel alone (batch_serial):       {kern.min() * 1e3:8.3f} ms (median {np.median(kern) * 1e3:.3f}); "
+    print(f"  kernel alone (batch_tasks):        {kern.min() * 1e3:8.3f} ms (median {np.median(kern) * 1e3:.3f}); "
           f"Python around it {max(like.min() - kern.min(), 0.0) * 1e3:.3f} ms")
 
     # ---- 64 sets over all cores

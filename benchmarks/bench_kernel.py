@@ -24,7 +24,7 @@ sampling withdrawals, 1 logged-pH run, 1 free-pH run): one set of weighted
 residuals on one core, and the log-likelihood of 32 sets over all cores.
 
 Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_kernel.py [--cold]
-      (--cold: only the cold compile, into an empty temporary cache)
+      (--cold: only the cold compile, into an empty temporary cache: bench_compile.py)
 """
 
 from __future__ import annotations
@@ -34,6 +34,7 @@ import os
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -231,31 +232,8 @@ def fresh_process() -> None:
 
 
 def cold_compile() -> None:
-    """Time a fresh process with an empty compiled-code cache: launch to the first
-    simulation and to the first parallel likelihood (everything compiled)."""
-    import tempfile
-
-    code = ("import time; t=time.perf_counter(); import numpy as np; "
-            "from speciakin.simulation import simulate_batch, batch_log_likelihood, compile_model, compile_runs; "
-            "import sys; sys.path.insert(0, %r); import bench_kernel as b; m=b.build_model(); c=compile_model(m); "
-            "r=compile_runs(c, b.build_runs(), [b.TIMES]*6); simulate_batch(c, r, c.nominal[None,:], parallel=False); "
-            "t1=time.perf_counter()-t; c1=time.process_time(); res=simulate_batch(c, r, c.nominal[None,:], parallel=False); "
-            "d=np.where(np.isfinite(res.outputs[0]), res.outputs[0], np.nan); "
-            "batch_log_likelihood(c, r, np.repeat(c.nominal[None,:], 4, 0), d, np.ones_like(d), parallel=True); "
-            "print(t1, c1, time.perf_counter()-t, time.process_time())") % os.path.dirname(os.path.abspath(__file__))
-    with tempfile.TemporaryDirectory(prefix="speciakin_cold_") as tmp:
-        env = dict(os.environ, NUMBA_CACHE_DIR=tmp)
-        load = os.getloadavg()
-        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env)
-    fields = out.stdout.split()
-    if out.returncode != 0 or len(fields) < 4:
-        print(f"cold compile failed: {out.stderr.strip()[-300:]}")
-        return
-    first, first_cpu, parallel, parallel_cpu = (float(f) for f in fields[-4:])
-    # the CPU time of the process is the compile's own work, whatever else the host runs
-    print(f"cold compile (empty cache, load average {load[0]:.2f} on {os.cpu_count()} cores): first simulation "
-          f"{first:.0f} s ({first_cpu:.0f} s CPU), first parallel likelihood {parallel:.0f} s "
-          f"({parallel_cpu:.0f} s CPU) (target <= 60 s)")
+    """Time a fresh process with an empty compiled-code cache (``bench_compile.py``)."""
+    subprocess.run([sys.executable, str(Path(__file__).with_name("bench_compile.py"))], check=True)
 
 
 def main() -> None:

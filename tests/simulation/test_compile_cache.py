@@ -61,6 +61,15 @@ def test_every_compiled_module_is_hashed():
     assert compiled <= set(cache_guard.KERNEL_MODULES)
 
 
+def test_every_shared_chemistry_formula_file_is_hashed():
+    # a formula written once in chemistry/ and compiled into the kernel must be hashed with the kernel
+    # sources, or a change there would leave a stale compiled copy in the cache
+    package = Path(cache_guard.__file__).parents[1]
+    shared = {p.relative_to(package).as_posix() for p in (package / "chemistry").glob("*.py")
+              if "register_jitable" in p.read_text()}
+    assert shared and shared <= set(cache_guard.SHARED_SOURCES)
+
+
 def test_compile_notice_is_logged_once(monkeypatch, tmp_path, caplog):
     cold = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
         _index_path=str(tmp_path / "missing.nbi"))))
@@ -91,3 +100,31 @@ def test_water_formulas_are_the_same_in_chemistry_and_in_the_kernel():
         assert site_pka_at(9.5, 45.0, t, 298.15) == pytest.approx(water.vant_hoff_pka(9.5, 45.0, t), rel=1e-15)
     t = np.array([280.0, 300.0, 320.0])
     np.testing.assert_allclose(water.pkw(t), [pkw(x) for x in t], rtol=1e-15)
+
+
+def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
+    # chemistry.equilibrium runs microstate_formulas.solve_charge_balance as Python; the kernel compiles the
+    # same function: on the same arrays both give the same pH (to rounding of exp in libm and LLVM)
+    from numba import njit
+
+    from speciakin.chemistry import equilibrium as eq
+    from speciakin.simulation import speciation_kernel
+
+    assert speciation_kernel.solve_charge_balance is eq.solve_charge_balance
+    species = [eq.IonizableSpecies("amine", [9.6, 4.1], [[0.0, 0.8], [0.8, 0.0]], [1.0, 0.0], [0.0, -1.0]),
+               eq.IonizableSpecies("acid", [4.76], np.zeros((1, 1)), [0.0], [-1.0])]  # invented mixture
+    sites = eq._flat_sites(species, 0.0)
+    amounts = np.array([0.02, 0.05, -0.03])  # [mol/L]; the last is the net strong-ion charge
+    charges = np.array([0.0, 0.0, 1.0])
+    compiled = njit(lambda *a: speciation_kernel.solve_charge_balance(*a))
+    results = []
+    for solve in (eq.solve_charge_balance, compiled):
+        pops, zbar, var = np.empty(6), np.empty(2), np.empty(2)
+        ph, iterations = solve(amounts, charges, 2, 3, *sites, water.pkw(298.15), 7.0, pops, zbar, var)
+        results.append((ph, iterations, zbar.copy()))
+    (ph_py, it_py, zbar_py), (ph_jit, it_jit, zbar_jit) = results
+    assert 1.0 < ph_py < 13.0 and it_py == it_jit
+    assert ph_jit == pytest.approx(ph_py, abs=1e-13)
+    np.testing.assert_allclose(zbar_jit, zbar_py, rtol=1e-12)
+    # and solve_ph (the checked wrapper) returns that pH
+    assert eq.solve_ph(species, amounts[:2], amounts[2]).ph == pytest.approx(ph_py, abs=1e-13)

@@ -108,6 +108,22 @@ def test_batch_equals_single_and_serial_equals_parallel(batch_setup):
         assert np.all(np.isnan(par.outputs[3, r, n:]))
 
 
+def test_parallel_batches_from_several_threads_at_once(batch_setup):
+    # the one compiled entry point releases the GIL and keeps no state between calls: batches started
+    # from two threads at the same time (a web job beside a fit, say) give the serial results
+    from concurrent.futures import ThreadPoolExecutor
+
+    model, compiled, runs, times, cruns = batch_setup
+    rng = np.random.default_rng(11)
+    q_sets = [compiled.nominal + rng.normal(0.0, 0.2, size=(4, compiled.nominal.size)) for _ in range(2)]
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        results = list(pool.map(lambda qs: simulate_batch(compiled, cruns, qs, parallel=True), q_sets))
+    for qs, res in zip(q_sets, results):
+        ser = simulate_batch(compiled, cruns, qs, parallel=False)
+        np.testing.assert_array_equal(res.outputs, ser.outputs)
+        np.testing.assert_array_equal(res.status, ser.status)
+
+
 def test_batch_ph_offset_equals_shifted_setpoint(batch_setup):
     model, compiled, runs, times, cruns = batch_setup
     off = np.zeros((1, 3))

@@ -127,9 +127,9 @@ def test_free_ph_charge_balance_matches_brentq():
         conc = np.array([acid_c, base_c, na, cl])
         expected = brentq(balance, -2.0, 16.0, args=(conc,), xtol=1e-15, rtol=1e-15)
         for guess in (7.0, expected + 0.3, expected - 1e-4, expected + 2e-8):
-            ph = solve_charge_balance(conc, species_charge, 2, 4, pka, site_start, micro_start, inter_a, inter_b,
-                                      inter_w, inter_start, micro_charge, micro_protons, pkw_value, guess, pops,
-                                      zbar, var)
+            ph, _ = solve_charge_balance(conc, species_charge, 2, 4, pka, site_start, micro_start, inter_a, inter_b,
+                                         inter_w, inter_start, micro_charge, micro_protons, pkw_value, guess, pops,
+                                         zbar, var)
             assert abs(ph - expected) < 1e-11
             np.testing.assert_allclose(pops[:2], _direct_populations([4.76], [], [], ph), rtol=1e-11, atol=1e-300)
             np.testing.assert_allclose(pops[2:], _direct_populations([9.3, 4.6], [(0, 1)], [0.8], ph), rtol=1e-11,

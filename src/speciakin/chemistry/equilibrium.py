@@ -21,10 +21,15 @@ Because every bound proton adds +1 charge, ``d zbar/dp = -ln10 Var(m)``
     f'(p) = -ln10 ([H+] + [OH-] + sum_m c_m Var_m(p)) < 0
 
 ``f`` falls strictly from +inf to -inf: exactly one root.  It is found by
-Newton steps in ``p`` kept inside a bracket that shrinks at every step
-(bisection when a Newton step leaves the bracket or does not halve ``|f|``).
-With Davies activities the ionic strength is iterated to a fixed point
-around that solve.
+Newton steps in ``p`` kept inside a bracket [-3, 17] that shrinks at every
+step (bisection when a Newton step leaves it), over the microstates of every
+molecule: the one solve of
+:func:`speciakin.chemistry.microstate_formulas.solve_charge_balance`, which
+the simulation kernel compiles; here it runs as Python on the molecules laid
+out as flat arrays, after the checks.  The residual and its scale are then
+evaluated by :func:`charge_balance` (grouped by bound protons).  With Davies
+activities the ionic strength is iterated to a fixed point around that
+solve.
 
 References
 ----------
@@ -37,6 +42,7 @@ References
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Mapping, Sequence
 
@@ -44,13 +50,13 @@ import numpy as np
 
 from speciakin.chemistry import microstates as ms
 from speciakin.chemistry import water
+from speciakin.chemistry.microstate_formulas import PH_HIGH, PH_LOW, solve_charge_balance
 from speciakin.chemistry.model import ACTIVITY_MODELS, Model, Molecule
 from speciakin.errors import InputError, Location, SolverError
 
 __all__ = ["ACTIVITY_MODELS", "IonizableSpecies", "EquilibriumResult", "charge_balance", "solve_ph",
            "solve_model_ph"]
 
-_MAX_ITERATIONS = 200
 _MAX_IONIC_STRENGTH_ITERATIONS = 100
 
 
@@ -287,55 +293,65 @@ def charge_balance(ph, tables, concentrations, strong_ion_charge, pkw_value,
     return f, dfdp, scale
 
 
-def _solve_fixed_gamma(tables, conc, strong, pkw_value, lg1, offsets, start):
-    def fun(p):
-        return charge_balance(p, tables, conc, strong, pkw_value, lg1, offsets)
+def _flat_sites(species, lg1):
+    """The molecules laid out for :func:`~speciakin.chemistry.microstate_formulas.solve_charge_balance`,
+    with the activity coefficients of ``lg1`` folded in (see :func:`_solve_fixed_gamma`).
 
-    lo, hi = -3.0, 17.0
-    f_lo, _, _ = fun(lo)
-    while f_lo < 0 and lo > -20:
-        lo -= 4.0
-        f_lo, _, _ = fun(lo)
-    f_hi, _, _ = fun(hi)
-    while f_hi > 0 and hi < 40:
-        hi += 4.0
-        f_hi, _, _ = fun(hi)
-    if not (f_lo >= 0 >= f_hi):
-        raise SolverError(f"charge balance has no sign change between pH {lo} and {hi} "
+    Returns (pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
+    micro_charge, micro_protons): every site pair is listed (W = 0 where none is given).
+    """
+    k_davies = -lg1
+    pka, site_start, micro_start, pair_a, pair_b, pair_w, pair_start, charge, protons = \
+        [], [0], [0], [], [], [], [0], [], []
+    for sp in species:
+        n = sp.n_sites
+        z0 = float(sp.fixed_charge) + float(np.sum(sp.charge_deprotonated))
+        # Davies: -log10 gamma(z) = K z^2 with z = z0 + N; K (z0 + N)^2 = const + K (2 z0 + 1) N
+        # + 2 K (pairs of bound protons), so the activities shift every pKa and every pair's W
+        pka.extend(np.asarray(sp.pka, dtype=float) + (k_davies * (2.0 * z0 + 1.0) + lg1))
+        for i in range(n):
+            for j in range(i + 1, n):
+                pair_a.append(i)
+                pair_b.append(j)
+                pair_w.append(float(sp.interaction[i, j]) - 2.0 * k_davies)
+        charge.extend(ms.microstate_charges(sp.charge_protonated, sp.charge_deprotonated, sp.fixed_charge)
+                      if n else [z0])
+        protons.extend(ms.bound_protons(n))
+        site_start.append(len(pka))
+        micro_start.append(len(charge))
+        pair_start.append(len(pair_a))
+    as_int = lambda x: np.asarray(x, dtype=np.int64)  # noqa: E731
+    return (np.asarray(pka, dtype=float), as_int(site_start), as_int(micro_start), as_int(pair_a), as_int(pair_b),
+            np.asarray(pair_w, dtype=float), as_int(pair_start), np.asarray(charge, dtype=float),
+            np.asarray(protons, dtype=float))
+
+
+def _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets, start):
+    """pH of the charge balance at fixed activity coefficients: the one solve of
+    :func:`~speciakin.chemistry.microstate_formulas.solve_charge_balance` (run as
+    Python), then the residual and its scale from :func:`charge_balance`.
+
+    The solve works in p' = pH + log10 gamma1 with pKw' = pKw + 2 log10 gamma1
+    (so that its 10^-p' and Kw'/10^-p' are the concentrations [H+] and [OH-])
+    and with the Davies shifts folded into the site pKa and W (:func:`_flat_sites`).
+    """
+    sites = _flat_sites(species, lg1)
+    n_mol = len(species)
+    n_micro = int(sites[2][-1])
+    amounts = np.append(np.asarray(conc, dtype=float), strong)
+    charges = np.append(np.zeros(n_mol), 1.0)
+    pops, zbar, variance = np.empty(max(n_micro, 1)), np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1))
+    guess = math.nan if start is None else float(start) + lg1
+    shifted, iterations = solve_charge_balance(amounts, charges, n_mol, n_mol + 1, *sites,
+                                               pkw_value + 2.0 * lg1, guess, pops, zbar, variance)
+    if not math.isfinite(shifted):
+        f_lo, _, _ = charge_balance(PH_LOW, tables, conc, strong, pkw_value, lg1, offsets)
+        f_hi, _, _ = charge_balance(PH_HIGH, tables, conc, strong, pkw_value, lg1, offsets)
+        raise SolverError(f"charge balance has no root between pH {PH_LOW:g} and {PH_HIGH:g} "
                           f"(f = {f_lo:.3e}, {f_hi:.3e} mol/L)")
-    p = min(max(start, lo), hi) if start is not None else 0.5 * (lo + hi)
-    f, d, scale = fun(p)
-    iterations = 0
-    for iterations in range(1, _MAX_ITERATIONS + 1):
-        if f > 0:
-            lo = p
-        elif f < 0:
-            hi = p
-        else:
-            break
-        if abs(f) <= 1e-14 * scale or hi - lo < 1e-13:
-            break
-        step_ok = d < 0 and np.isfinite(d)
-        p_new = p - f / d if step_ok else 0.5 * (lo + hi)
-        if not (lo < p_new < hi):
-            p_new = 0.5 * (lo + hi)
-        f_new, d_new, scale_new = fun(p_new)
-        if abs(f_new) > 0.5 * abs(f) and p_new != 0.5 * (lo + hi):
-            # slow Newton progress: also bisect the (updated) bracket
-            if f_new > 0:
-                lo = p_new
-            elif f_new < 0:
-                hi = p_new
-            p_new = 0.5 * (lo + hi)
-            f_new, d_new, scale_new = fun(p_new)
-        step = abs(p_new - p)
-        p, f, d, scale = p_new, f_new, d_new, scale_new
-        if step < 1e-13:
-            break
-    else:
-        raise SolverError(f"charge balance did not converge in {_MAX_ITERATIONS} steps "
-                          f"(pH {p:.6f}, residual {f:.3e} mol/L)")
-    return p, f, scale, iterations
+    p = shifted - lg1
+    f, _, scale = charge_balance(p, tables, conc, strong, pkw_value, lg1, offsets)
+    return p, f, scale, int(iterations)
 
 
 def _check_amounts(names, conc, strong):
@@ -423,13 +439,14 @@ def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_cha
         return float(total)
 
     lg1, offsets = 0.0, None
-    p, f, scale, iterations = _solve_fixed_gamma(tables, conc, strong, pkw_value, lg1, offsets, initial_ph)
+    p, f, scale, iterations = _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets,
+                                                      initial_ph)
     strength = ionic(p, lg1, offsets)
     if activity == "davies":
         for _ in range(_MAX_IONIC_STRENGTH_ITERATIONS):
             lg1 = float(water.davies_log10_gamma(1.0, strength, temperature))
             offsets = [-water.davies_log10_gamma(z, strength, temperature) for (_, _, z) in tables]
-            p_new, f, scale, it = _solve_fixed_gamma(tables, conc, strong, pkw_value, lg1, offsets, p)
+            p_new, f, scale, it = _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets, p)
             iterations += it
             new_strength = ionic(p_new, lg1, offsets)
             converged = abs(new_strength - strength) <= 1e-12 * max(new_strength, 1e-30) \

@@ -4,21 +4,26 @@ from __future__ import annotations
 
 import logging
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
+from numba import config as numba_config
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_parallel, batch_serial, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_tasks, gaussian_loglik
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import microstate_amounts
-from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_TEXT, STATUS_TITRANT_SIGN
+from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
+                                         N_INFO)
+from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_OK, STATUS_TEXT, STATUS_TITRANT_SIGN
 from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
 from speciakin.simulation.results import SimulationResult
 
-_cache = getattr(batch_serial, "_cache", None)
+_cache = getattr(batch_tasks, "_cache", None)
 if _cache is not None and getattr(_cache, "_cache_path", None):
     refresh_kernel_cache(_cache._cache_path)
 
@@ -36,13 +41,41 @@ def notice_compile(kernel) -> None:
         LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
 
 
+#: Threads of a parallel batch (numba's thread count: NUMBA_NUM_THREADS, default the number of cores).
+N_THREADS = max(int(numba_config.NUMBA_NUM_THREADS), 1)
+_pool: ThreadPoolExecutor | None = None
+_pool_pid = -1
+
+
+def _threads() -> ThreadPoolExecutor:
+    """The worker threads of parallel batches (made again in a forked process)."""
+    global _pool, _pool_pid
+    if _pool is None or _pool_pid != os.getpid():
+        _pool = ThreadPoolExecutor(max_workers=max(N_THREADS - 1, 1), thread_name_prefix="speciakin-kernel")
+        _pool_pid = os.getpid()
+    return _pool
+
+
+def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel) -> None:
+    """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
+    on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
+    (this one and the pool's; the compiled code releases the GIL)."""
+    notice_compile(batch_tasks)
+    args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
+    threads = min(N_THREADS, off.size) if parallel else 1
+    if threads <= 1:
+        batch_tasks(*args, 0, 1)
+        return
+    shares = [_threads().submit(batch_tasks, *args, i, threads) for i in range(1, threads)]
+    batch_tasks(*args, 0, threads)
+    for share in shares:
+        share.result()
+
+
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
            "ph_control_error", "PH_CONTROL_STATUS"]
 
 DEFAULT_OUTPUTS = 201
-#: Entries of the kernel's per-run info: failure time, steps, initial titrant,
-#: initial opposite titrant, start adjustment.
-N_INFO = 5
 #: Status codes that mean the pH control cannot reach or hold its pH (bad input, not a solver failure).
 PH_CONTROL_STATUS = (STATUS_TITRANT_SIGN, STATUS_NO_ADJUSTING_ION)
 
@@ -110,15 +143,14 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
     out = np.full((1, 1, cruns.n_times_max, compiled.n_outputs), np.nan)
     status = np.zeros((1, 1), np.int64)
     info = np.zeros((1, 1, N_INFO))
-    notice_compile(batch_serial)
-    batch_serial(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :],
-                 cruns.amount_factor[None, :], float(rtol), float(atol), out, status, info)
+    run_kernel(compiled.arrays, qv[None, :], cruns.arrays, cruns.ph_offset[None, :], cruns.amount_factor[None, :],
+               rtol, atol, out, status, info, parallel=False)
     code = int(status[0, 0])
     if code in PH_CONTROL_STATUS:
-        raise ph_control_error(compiled, run, code, float(info[0, 0, 0]))
-    if code != 0:
-        raise SolverError(f"run '{run.name}': integration failed at t = {info[0, 0, 0]:.6g} s "
-                          f"({info[0, 0, 0] / 60:.4g} min): {STATUS_TEXT.get(code, 'unknown failure')} "
+        raise ph_control_error(compiled, run, code, float(info[0, 0, INFO_FAILED_AT]))
+    if code != STATUS_OK:
+        raise SolverError(f"run '{run.name}': integration failed at t = {info[0, 0, INFO_FAILED_AT]:.6g} s "
+                          f"({info[0, 0, INFO_FAILED_AT] / 60:.4g} min): {STATUS_TEXT.get(code, 'unknown failure')} "
                           f"(status {code})")
     o = out[0, 0, : len(t)]
     nsp = compiled.n_species
@@ -134,14 +166,14 @@ def simulate(model: Model | CompiledModel, run: Run, times: Sequence[float] | No
         run_name=run.name, times=t.copy(), species_names=list(compiled.species_names),
         molecule_names=list(compiled.species_names[:compiled.n_molecules]), amounts=amounts,
         concentrations=amounts / volume[:, None], volume=volume, ph=ph, titrant=o[:, nsp + 2].copy(),
-        initial_titrant=float(info[0, 0, 2]) if run.ph.controlled else None,
+        initial_titrant=float(info[0, 0, INFO_TITRANT]) if run.ph.controlled else None,
         temperature=temperature, ph_mode=run.ph.mode,
         microstate_names=list(compiled.microstate_names) if microstates else None,
         microstate_amounts=micro, moiety_names=list(compiled.moiety_names),
-        moiety_matrix=compiled.moiety_matrix.copy(), steps=int(info[0, 0, 1]),
+        moiety_matrix=compiled.moiety_matrix.copy(), steps=int(info[0, 0, INFO_STEPS]),
         opposite_titrant=o[:, nsp + 4].copy(),
-        initial_opposite_titrant=float(info[0, 0, 3]) if run.ph.controlled else None,
-        start_adjustment=float(info[0, 0, 4]) if run.ph.controlled else None)
+        initial_opposite_titrant=float(info[0, 0, INFO_OPPOSITE]) if run.ph.controlled else None,
+        start_adjustment=float(info[0, 0, INFO_START_ADJUST]) if run.ph.controlled else None)
 
 
 @dataclass
@@ -200,9 +232,9 @@ def _batch_buffers(compiled, compiled_runs, n_sets, n_runs):
 
 
 def _batch_result(out, status, info) -> BatchResult:
-    failure = np.where(status != 0, info[..., 0], np.nan)
-    return BatchResult(out, status, failure, info[..., 1].astype(np.int64), info[..., 2].copy(),
-                       info[..., 3].copy(), info[..., 4].copy())
+    failure = np.where(status != STATUS_OK, info[..., INFO_FAILED_AT], np.nan)
+    return BatchResult(out, status, failure, info[..., INFO_STEPS].astype(np.int64), info[..., INFO_TITRANT].copy(),
+                       info[..., INFO_OPPOSITE].copy(), info[..., INFO_START_ADJUST].copy())
 
 
 def ph_control_error(compiled: CompiledModel, run: Run, code: int, time: float,
@@ -243,7 +275,7 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     ph_offset, amount_factor
         (n_sets, n_runs) or broadcastable; default: each run's own values.
     parallel
-        Spread the (set, run) pairs over all cores (numba threads).
+        Spread the (set, run) pairs over all cores (:data:`N_THREADS` threads).
 
     Returns
     -------
@@ -253,9 +285,7 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     _check_tolerances(rtol, atol)
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
     out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
-    kernel = batch_parallel if parallel else batch_serial
-    notice_compile(kernel)
-    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
+    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
     return _batch_result(out, status, info)
 
 
@@ -284,9 +314,7 @@ def batch_log_likelihood(compiled: CompiledModel, compiled_runs: CompiledRuns, q
         raise InputError("data and sigma must match the outputs of one parameter set", Location(key="data"),
                          (data.shape, sigma.shape), str(expected))
     loglik = np.zeros(off.shape[0])
-    kernel = batch_parallel if parallel else batch_serial
-    notice_compile(kernel)
-    kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, float(rtol), float(atol), out, status, info)
+    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
     # the compiled sum also reports a sigma that is not positive where data are observed
     if not gaussian_loglik(out, status, data, sigma, compiled.n_species, bool(as_concentration), loglik):
         raise InputError("sigma must be positive where data are observed", Location(key="sigma"))

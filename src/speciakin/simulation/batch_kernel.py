@@ -1,17 +1,20 @@
-"""Batched evaluation: many parameter sets x many runs, spread over the cores.
+"""Batched evaluation: many parameter sets x many runs, one compiled entry point.
 
 Each (set, run) pair is one independent task with its own adaptive steps
-(a shared step size across parameter sets was measured to be slower).  The
-parallel version uses numba ``prange``; the serial one is the same loop.
+(a shared step size across parameter sets was measured to be slower).
+:func:`batch_tasks` runs every ``stride``-th task from ``first`` on and
+releases the GIL, so that one compiled function serves both uses: one
+core (``first`` 0, ``stride`` 1) and all cores (``api`` calls it from one
+thread per core, thread i taking tasks i, i + T, ...).  Every compiled entry
+point compiles and optimises the whole kernel again (numba links each
+callee's code into its caller), so the kernel has this one; a ``prange``
+variant beside a serial one doubled the cold compile.
 
 The Gaussian log-likelihood is computed inside compiled code:
 log L = -1/2 sum ((d - y) / sigma)^2 - sum log(sigma) - N/2 log(2 pi),
-over the finite entries of ``data`` (NaN = not observed).
-The likelihood is summed by its own small compiled function after
-:func:`batch_serial` or :func:`batch_parallel` (a second dispatch of a few
-microseconds): the whole kernel is compiled into these two entry points only,
-since every entry point that calls it compiles and optimises all of it again
-(a fused simulate-and-sum variant doubled the cold compile).
+over the finite entries of ``data`` (NaN = not observed), by its own small
+compiled function after :func:`batch_tasks` (a fused simulate-and-sum
+variant would be another entry point compiling the whole kernel).
 """
 
 from __future__ import annotations
@@ -19,37 +22,26 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from speciakin.simulation.integrator_kernel import run_one
+from speciakin.simulation.status import STATUS_OK
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
 
-@njit(cache=True)
-def _task(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, task, n_runs):
-    s = task // n_runs
-    r = task % n_runs
-    status[s, r] = run_one(model, q_all[s], runs, r, ph_offset[s, r], amount_factor[s, r], rtol, atol,
-                           out[s, r], info[s, r])
-
-
-@njit(cache=True, parallel=True)
-def batch_parallel(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info):
-    """Fill ``out`` (n_sets, n_runs, n_times, n_outputs), ``status``, ``info`` over all cores."""
+@njit(cache=True, nogil=True)
+def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, first, stride):
+    """Fill ``out`` (n_sets, n_runs, n_times, n_outputs), ``status``, ``info`` for the
+    tasks first, first + stride, ... (task = run * n_sets + set: with many sets, each
+    thread gets an equal share of every run, whose costs differ widely)."""
     n_sets = q_all.shape[0]
     n_runs = ph_offset.shape[1]
-    for task in prange(n_sets * n_runs):
-        _task(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, task, n_runs)
-
-
-@njit(cache=True)
-def batch_serial(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info):
-    """Same as :func:`batch_parallel` on one core."""
-    n_sets = q_all.shape[0]
-    n_runs = ph_offset.shape[1]
-    for task in range(n_sets * n_runs):
-        _task(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, task, n_runs)
+    for task in range(first, n_sets * n_runs, stride):
+        r = task // n_sets
+        s = task % n_sets
+        status[s, r] = run_one(model, q_all[s], runs, r, ph_offset[s, r], amount_factor[s, r], rtol, atol,
+                               out[s, r], info[s, r])
 
 
 @njit(cache=True)
@@ -72,7 +64,7 @@ def gaussian_loglik(out, status, data, sigma, n_species, as_concentration, logli
         total = 0.0
         ok = True
         for r in range(n_runs):
-            if status[s, r] != 0:
+            if status[s, r] != STATUS_OK:
                 ok = False
                 break
             for i in range(data.shape[1]):

@@ -30,10 +30,10 @@ from pathlib import Path
 
 #: Kernel modules of this folder (every module with compiled code and the constants it reads).
 KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation_kernel", "rhs_kernel",
-                  "rodas_tableau", "lu_kernel", "smooth_rhs_kernel", "segment_kernel", "integrator_kernel",
-                  "batch_kernel")
+                  "rodas_tableau", "lu_kernel", "smooth_rhs_kernel", "rosenbrock_kernel", "segment_kernel",
+                  "integrator_kernel", "batch_kernel")
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
-SHARED_SOURCES = ("chemistry/water.py",)
+SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
 #: Rough duration of a cold compile on a quiet two-core machine [s]: about 120 s of wall time
 #: (180 s of CPU time) to the first parallel likelihood (``benchmarks/bench_kernel.py --cold``).

@@ -1,4 +1,4 @@
-"""Compiled stiff integrator (Rodas5 Rosenbrock method) and the run driver.
+"""The run driver and the free-pH path of the compiled Rodas5 integrator.
 
 Rodas5: 8 stages, order 5 with an embedded order-4 estimate, L-stable and
 stiffly accurate (coefficients in ``rodas_tableau``).  Steps stop exactly at
@@ -11,7 +11,10 @@ segment goes to the mass-action path of ``segment_kernel``.  Free pH: the pH
 follows from the charge balance at every right-hand side call
 (:func:`integrate_segment`), with the analytic Jacobian of
 ``rhs_kernel.analytic_jacobian``; the time derivative under a temperature
-ramp is a forward difference.
+ramp is a forward difference.  Both paths take their steps in the one loop
+of ``rosenbrock_kernel``; this module gives it the free-pH problem
+(:func:`free_point`, :func:`free_stage`, :func:`free_jacobian`,
+:func:`free_output`).
 
 Status codes (0 = success) are named in ``status.py``; the layout of the
 model and runs tuples, the run context and the work arrays in ``layout.py``.
@@ -44,21 +47,18 @@ from speciakin.simulation.rhs_kernel import (
     make_workspace,
     rhs,
 )
-from speciakin.simulation.status import (STATUS_MAX_STEPS, STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK,
-                                         STATUS_SINGULAR, STATUS_STEP_UNDERFLOW, STATUS_TITRANT_SIGN,
-                                         STATUS_VOLUME)
+from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK, STATUS_TITRANT_SIGN, STATUS_VOLUME
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
-from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
-from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
+from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
+                                         CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
                                          CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT_CONC,
-                                         C_LAST_PH, C_PH_SLOPE, C_PKW,
+                                         C_LAST_PH, C_PH_SLOPE, C_PKW, C_STEP_PH,
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
-                                                dense_coefficients, dense_value, initial_step, land_step,
-                                                new_solution, stage_point, step_factor)
+from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
+from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
 
 #: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
 #: consumed so far), relative to the run's total amount (initial amounts + doses):
@@ -72,157 +72,95 @@ TITRANT_SIGN_RTOL = 1e-4
 #: neglects (it keeps the set point).
 CONTROL_BAND = 0.05
 
-_GAMMA = GAMMA
-_ALPHA = ALPHA
-_GAMMAS = GAMMAS
-MAX_STEPS = 100000
+
+
+@leaf_kernel(inline="always")
+def free_point(t, y, f, prob):
+    """f = dy/dt at a step point (free-pH problem of :func:`integrate_segment`); its pH is kept
+    (``cache[C_STEP_PH]``) as the start of the stages' charge-balance solves."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
+    ph = rhs(t, y, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+    ws[WS_CACHE][C_STEP_PH] = ph
+    return not math.isnan(ph)
+
+
+@leaf_kernel(inline="always")
+def free_stage(t, ytmp, y, f, prob):
+    """f = dy/dt at a stage point; free pH: the charge-balance Newton starts at the
+    linear prediction pH(y) + dpH/dy (ytmp - y), one iteration fewer than starting at
+    the last stage's pH."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
+    if ctx[CTX_MODE] == MODE_FREE:
+        cache = ws[WS_CACHE]
+        dph_dy = ws[WS_DPH_DY]
+        guess = cache[C_STEP_PH]
+        for i in range(y.shape[0] - 1):
+            guess += dph_dy[i] * (ytmp[i] - y[i])
+        cache[C_LAST_PH] = guess
+    ph = rhs(t, ytmp, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+    return not math.isnan(ph)
+
+
+@leaf_kernel(inline="always")
+def free_jacobian(t, y, f0, ft, jac_t, span, prob):
+    """Analytic Jacobian at (t, y) (every state active: J itself, not transposed, see
+    ``rosenbrock_kernel.make_step_loop``) and, when the problem is non-autonomous (a
+    temperature ramp), df/dt by a forward difference."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
+    n = y.shape[0]
+    analytic_jacobian(y, model, ws, ctx, jac_t, temperature_slope)
+    if nonautonomous:
+        dt = 1.5e-8 * max(abs(t), span)
+        ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+        if math.isnan(ph):
+            return False
+        for i in range(n):
+            ft[i] = (ft[i] - f0[i]) / dt
+    return True
+
+
+@leaf_kernel(inline="always")
+def free_output(t, y, f, out, i_out, prob):
+    """Output row at an interpolated state: the pH from the right-hand side there."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
+    ph = rhs(t, y, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
+    if math.isnan(ph):
+        return False
+    write_output(out, i_out, y, ph, interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], t))
+    return True
 
 
 @njit(cache=True)
 def integrate_segment(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
                       nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out):
-    """Advance ``y`` in place from t0 to exactly t1 with Rodas5 [1]_.
+    """Advance ``y`` in place from t0 to exactly t1 with Rodas5 (free pH).
 
-    Outputs at times strictly inside (t0, t1) from index ``i_out`` are written
-    to ``out`` from the continuous extension of each step (pH from the
-    right-hand side at the interpolated state).
+    The pH follows from the charge balance at every right-hand side call;
+    outputs at times strictly inside (t0, t1) from index ``i_out`` are
+    written to ``out`` from the continuous extension of each step (pH from
+    the right-hand side at the interpolated state).  The work arrays are
+    made here; the step loop (:data:`free_steps`) runs without reference
+    counting.
 
     Returns (status, next step size, next output index).  ``counters[0]``
-    counts accepted steps.  The work arrays are made here; the step loop
-    (:func:`rodas_general`) runs without reference counting.
+    counts accepted steps.
     """
-    n = y.shape[0]
-    return rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope,
-                         nonautonomous, rtol, atol, ws, counters, out, out_t, i_out, n_out, np.empty(n),
-                         np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((N_DENSE, n)),
-                         np.empty((N_STAGES, n)),
-                         np.zeros((n, n)), np.empty((n, n)), np.empty(n, dtype=np.int64))
-
-
-@leaf_kernel
-def rodas_general(t0, t1, y, h, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous,
-                  rtol, atol, ws, counters, out, out_t, i_out, n_out, f0, ft, fy, ytmp, ynew, dense, k, jac, g, piv):
-    """The step loop of :func:`integrate_segment` on work arrays it is given."""
-    n = y.shape[0]
-    temp_t = ctx[CTX_TEMP_T]
-    temp_v = ctx[CTX_TEMP_V]
-    temp_n = ctx[CTX_TEMP_N]
-    t = t0
-    span = t1 - t0
-    if span <= 0.0:
+    if t1 - t0 <= 0.0:
         return STATUS_OK, h, i_out
-    free = ctx[CTX_MODE] == MODE_FREE
-    cache = ws[WS_CACHE]
-    dph_dy = ws[WS_DPH_DY]
-    ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-    if math.isnan(ph):
-        return STATUS_NOT_FINITE, h, i_out
-    if h <= 0.0:
-        h = initial_step(y, f0, n, atol, rtol, span)
-    need_eval = False
-    while t < t1:
-        if need_eval:
-            ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-            if math.isnan(ph):
-                return STATUS_NOT_FINITE, h, i_out
-        need_eval = True
-        ph_at_y = ph
-        analytic_jacobian(y, model, ws, ctx, jac, temperature_slope)
-        if nonautonomous:
-            dt = 1.5e-8 * max(abs(t), span)
-            ph = rhs(t + dt, y, ft, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-            if math.isnan(ph):
-                return STATUS_NOT_FINITE, h, i_out
-            for i in range(n):
-                ft[i] = (ft[i] - f0[i]) / dt
-        while True:
-            wanted = h
-            h, last = land_step(t, h, t1)
-            if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-                return STATUS_STEP_UNDERFLOW, h, i_out
-            # G = I/(h*gamma) - J
-            diag = 1.0 / (h * _GAMMA)
-            for i in range(n):
-                for j in range(n):
-                    g[i, j] = -jac[i, j]
-                g[i, i] += diag
-            if not lu_factor(g, piv):
-                return STATUS_SINGULAR, h, i_out
-            failed = False
-            for st in range(N_STAGES):
-                if st == 0:
-                    for i in range(n):
-                        fy[i] = f0[i]
-                else:
-                    stage_point(y, k, st, ytmp)
-                    if free:
-                        # start the charge-balance Newton at the linear prediction pH(y) + dpH/dy (ytmp - y):
-                        # one iteration fewer than starting at the last stage's pH
-                        guess = ph_at_y
-                        for i in range(n - 1):
-                            guess += dph_dy[i] * (ytmp[i] - y[i])
-                        cache[C_LAST_PH] = guess
-                    ph = rhs(t + _ALPHA[st] * h, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate,
-                             temperature_slope, ws)
-                    if math.isnan(ph):
-                        failed = True
-                        break
-                    add_stage_history(fy, k, st, h)
-                if nonautonomous and _GAMMAS[st] != 0.0:
-                    for i in range(n):
-                        fy[i] += h * _GAMMAS[st] * ft[i]
-                lu_solve(g, piv, fy)
-                for i in range(n):
-                    k[st, i] = fy[i]
-            err = 0.0
-            if not failed:
-                err = new_solution(y, ytmp, k, ynew, rtol, atol)
-                if not math.isfinite(err):
-                    failed = True
-            if failed:
-                h *= 0.1
-                continue
-            if err <= 1.0:
-                t_new = t1 if last else t + h
-                if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                    # outputs inside this step: continuous extension; t1 itself is left to the caller
-                    dense_coefficients(k, dense)
-                    while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                        tout = out_t[i_out]
-                        theta = (tout - t) / h
-                        for i in range(n):
-                            ytmp[i] = dense_value(y, ynew, dense, theta, i)
-                        ph = rhs(tout, ytmp, fy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-                        if math.isnan(ph):
-                            return STATUS_NOT_FINITE, h, i_out
-                        write_output(out, i_out, ytmp, ph, interpolate(temp_t, temp_v, temp_n, tout))
-                        i_out += 1
-                for i in range(n):
-                    y[i] = ynew[i]
-                t = t_new
-                counters[0] += 1
-                if counters[0] > MAX_STEPS:
-                    return STATUS_MAX_STEPS, h, i_out
-                h = h * step_factor(err, True)
-                if last:
-                    # a step cut short to land on t1 says nothing against the larger step
-                    h = max(h, wanted)
-                break
-            h = h * step_factor(err, False)
-    return STATUS_OK, h, i_out
+    n = y.shape[0]
+    prob = (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws)
+    # the Jacobian's slot starts at zero: analytic_jacobian leaves entries that are always zero alone
+    work = (np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty((N_STAGES, n)),
+            np.empty((N_DENSE, n)), np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64), np.zeros((n, n)),
+            np.empty((n, n)), np.empty(0), np.empty(n, dtype=np.int64))
+    return free_steps(prob, nonautonomous, t0, t1, t1, t1 - t0, y, h, work, rtol, atol, out, out_t, i_out, n_out,
+                      counters, -1.0, np.zeros(1))
 
 
-@leaf_kernel
-def write_output(out, i_out, y, ph, temperature):
-    """Output row ``i_out``: amounts, volume, pH, titrant consumed, temperature,
-    opposite titrant consumed (state: amounts, volume, titrant, opposite titrant)."""
-    nsp = y.shape[0] - 3
-    for j in range(nsp + 1):
-        out[i_out, j] = y[j]
-    out[i_out, nsp + 1] = ph
-    out[i_out, nsp + 2] = y[nsp + 1]
-    out[i_out, nsp + 3] = temperature
-    out[i_out, nsp + 4] = y[nsp + 2]
+#: The step loop of :func:`integrate_segment`: every state active, f at a new step point
+#: evaluated when the next step starts (after the outputs inside the step: the order of
+#: the warm-started charge-balance solves is that of the results' reference).
+free_steps = make_step_loop(free_point, free_stage, free_jacobian, free_output, prefetch=False, all_active=True)
 
 
 @leaf_kernel
@@ -230,10 +168,10 @@ def adjust_start(y, model, ph, ws, start, titrant, titrant_conc, second, second_
     """Bring the start mixture to ``ph`` before t = 0; returns a status code.
 
     ``start`` 0: acid (ion ``acid``) or base (ion ``base``) inside the start
-    volume, amount from the charge balance at ``ph`` (recorded in ``info[4]``
+    volume, amount from the charge balance at ``ph`` (recorded in ``info[INFO_START_ADJUST]``
     as equivalents, + base, - acid); 1: nothing added (given in the initial
     amounts); 2: the titrant, or the opposite titrant, with its volume
-    (``info[2]``, ``info[3]`` [mol]).  Populations in ``ws`` must be at ``ph``.
+    (``info[INFO_TITRANT]``, ``info[INFO_OPPOSITE]`` [mol]).  Populations in ``ws`` must be at ``ph``.
     """
     n_species = model.n_species
     species_charge = model.species_charge
@@ -246,21 +184,21 @@ def adjust_start(y, model, ph, ws, start, titrant, titrant_conc, second, second_
             return STATUS_NO_ADJUSTING_ION
         delta = -imbalance / species_charge[ion]
         y[ion] += delta
-        info[4] = -imbalance
+        info[INFO_START_ADJUST] = -imbalance
         return STATUS_OK
     excess = exp10(-ph) - exp10(ph - ws[WS_CACHE][C_PKW])
     delta = -imbalance / (species_charge[titrant] + excess / titrant_conc)
     if delta >= 0.0:
         y[titrant] += delta
         y[n_species] += delta / titrant_conc
-        info[2] = delta
+        info[INFO_TITRANT] = delta
         return STATUS_OK
     if second < 0:
         return STATUS_TITRANT_SIGN
     delta = -imbalance / (species_charge[second] + excess / second_conc)
     y[second] += delta
     y[n_species] += delta / second_conc
-    info[3] = delta
+    info[INFO_OPPOSITE] = delta
     return STATUS_OK
 
 
@@ -312,11 +250,11 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         y[j] *= 1.0 + (amount_factor - 1.0) * model.substrate_mask[j]
     dy = np.empty(n_state)
     feed_rate = np.zeros(n_species)
-    info[0] = math.nan
-    info[1] = 0.0
-    info[2] = 0.0
-    info[3] = 0.0
-    info[4] = 0.0
+    info[INFO_FAILED_AT] = math.nan
+    info[INFO_STEPS] = 0.0
+    info[INFO_TITRANT] = 0.0
+    info[INFO_OPPOSITE] = 0.0
+    info[INFO_START_ADJUST] = 0.0
     # a one-sided titrant withdrawn by more than this: the pH cannot be held
     sign_tol = runs.scale[r, n_species + 1] * 1e6 * TITRANT_SIGN_RTOL
     step_tol = sign_tol if (controlled != 0 and second < 0) else -1.0
@@ -327,12 +265,12 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     if controlled != 0:
         ph0 = rhs(0.0, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
         if math.isnan(ph0):
-            info[0] = 0.0
+            info[INFO_FAILED_AT] = 0.0
             return STATUS_NOT_FINITE
         status = adjust_start(y, model, ph0, ws, runs.start[r], titrant, titrant_conc, second,
                               ctx[CTX_SECOND_CONC], runs.acid[r], runs.base[r], sign_tol * 1e-3, info)
         if status != STATUS_OK:
-            info[0] = 0.0
+            info[INFO_FAILED_AT] = 0.0
             return status
         if step_tol > 0.0:
             # buffer capacity of the start solution [mol per pH unit]: ln10 (sum n var(N) + V ([H+] + [OH-]))
@@ -355,7 +293,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
         while i_out < n_out and out_t[i_out] <= t:
             ph = rhs(t, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
             if math.isnan(ph):
-                info[0] = t
+                info[INFO_FAILED_AT] = t
                 return STATUS_NOT_FINITE
             write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
             i_out += 1
@@ -368,7 +306,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             else:
                 frac = runs.ev_volume[r, i_ev] / y[n_species]
                 if not (frac < 1.0):
-                    info[0] = t
+                    info[INFO_FAILED_AT] = t
                     return STATUS_VOLUME
                 for j in range(n_species + 1):
                     y[j] *= 1.0 - frac
@@ -412,16 +350,16 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,
                                                  i_out, n_out)
-        info[1] = counters[0]
+        info[INFO_STEPS] = counters[0]
         if status != STATUS_OK:
-            info[0] = t
+            info[INFO_FAILED_AT] = t
             return status
         t = t_next
-    info[1] = counters[0]
+    info[INFO_STEPS] = counters[0]
     for i in range(n_out):
         for j in range(out.shape[1]):
             if not math.isfinite(out[i, j]):
-                info[0] = out_t[i]
+                info[INFO_FAILED_AT] = out_t[i]
                 return STATUS_NOT_FINITE
     return STATUS_OK
 

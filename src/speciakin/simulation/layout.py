@@ -88,7 +88,16 @@ C_LAST_PH = 3         #: last pH (warm start of the charge balance)
 C_DOH_DT = 4          #: d[OH-]/dT at the held pH [mol/L/K]
 C_PH_SLOPE = 5        #: d pH/dt of the current segment (logged pH) [1/s]
 C_OPPOSITE = 6        #: 1 when the opposite titrant is dosed at the last rhs call
+C_STEP_PH = 7         #: pH at the current step point (free pH: start of the stages' charge-balance solves)
 N_CACHE = 8
+
+# info row of one (set, run) task, filled by integrator_kernel.run_one
+INFO_FAILED_AT = 0    #: time of a failure [s] (NaN when the run succeeded)
+INFO_STEPS = 1        #: accepted steps
+INFO_TITRANT = 2      #: titrant added at the start [mol]
+INFO_OPPOSITE = 3     #: opposite titrant added at the start [mol]
+INFO_START_ADJUST = 4  #: start adjustment inside the start volume [mol] (integrator_kernel.adjust_start)
+N_INFO = 5
 
 # ---- start adjustment codes (``KernelRuns.start``; ``integrator_kernel.adjust_start``)
 START_COMPUTED = 0    #: acid or base inside the start volume, from the charge balance

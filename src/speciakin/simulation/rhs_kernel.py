@@ -49,7 +49,7 @@ from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
-                                         C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_TEMPERATURE, PAR_ENTHALPY,
+                                         C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_STEP_PH, C_TEMPERATURE, N_CACHE, PAR_ENTHALPY,
                                          PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
                                          WS_VAR, WS_ZBAR)
 
@@ -81,7 +81,7 @@ def interpolate(times, values, n, t):
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
     rate, cache, pka2, dzbar_dT, state_scratch, dph_dy)."""
-    cache = np.empty(8)
+    cache = np.empty(N_CACHE)
     cache[C_TEMPERATURE] = math.nan  # temperature of the cached T-dependent values
     cache[C_PKW] = math.nan  # pKw at that temperature
     cache[C_PH] = math.nan  # pH of the cached populations
@@ -89,6 +89,7 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     cache[C_DOH_DT] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
     cache[C_PH_SLOPE] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
     cache[C_OPPOSITE] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
+    cache[C_STEP_PH] = math.nan   # pH at the current step point (free pH)
     return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
             np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
             np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
@@ -209,7 +210,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         set_temperature(interpolate(temp_t, temp_v, temp_n, t), model, par, ws)
         for j in range(n_species):
             conc[j] = y[j] / volume
-        ph = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
+        ph, _ = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
                                   mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
                                   micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar, variance)
         if math.isnan(ph):

@@ -66,17 +66,13 @@ from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SECOND, CTX_SECOND_CONC, CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T,
                                          CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, C_PH_SLOPE, WS_CACHE)
-from speciakin.simulation.lu_kernel import lu_factor, lu_solve
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, time_speciation
 from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
                                                     smooth_time_derivative, stoichiometry)
-from speciakin.simulation.status import (STATUS_MAX_STEPS, STATUS_NOT_FINITE, STATUS_OK, STATUS_SINGULAR,
-                                         STATUS_STEP_UNDERFLOW, STATUS_TITRANT_SIGN)
-from speciakin.simulation.rodas_tableau import (ALPHA, GAMMA, GAMMAS, N_DENSE, N_STAGES, add_stage_history,
-                                                dense_coefficients, dense_value, initial_step, land_step,
-                                                new_solution, stage_point, step_factor)
+from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
+from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
+from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
 
-MAX_STEPS = 100000
 #: Interpolation points of the coefficient cubic on [-1, 1] (Chebyshev points of the first kind).
 NODES = np.cos((2.0 * np.arange(4) + 1.0) * np.pi / 8.0)
 #: Inverse Vandermonde matrix: monomial coefficients (x^0..x^3) from the values at NODES.
@@ -91,146 +87,63 @@ COEFFICIENT_RTOL = 1e-9
 MAX_HALVINGS = 40
 
 
-@leaf_kernel
-def rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants, n_react, n_species,
-                 n_mol, held, titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, cst, dc,
-                 product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
-                 rtol, atol, out, out_t, i_out, n_out, ph_is_held, held_ph, ph_offset, log_t, log_v, log_n, temp_t,
-                 temp_v, temp_n, counters, sign_tol, peak):
-    """Rosenbrock steps of :func:`integrate_smooth` from ta to tb (coefficients ``poly``
-    on the sub-interval); returns (status, next step size, next output index).
-
-    With ``sign_tol`` > 0 (a one-sided titrant) the titrant consumed may not
-    fall more than ``sign_tol`` [mol] below its largest value so far
-    (``peak[0]``): a titrant cannot be withdrawn (status 6).
-
-    A leaf function: the work arrays come from the caller, so the step loop
-    runs without reference counting.
-    """
-    n = y.shape[0]
-    n_coef = poly.shape[0]
-    n_act = active.shape[0]
-    n_pas = n - n_act
-    sub_span = tb - ta
+@leaf_kernel(inline="always")
+def smooth_point(t, y, f, prob):
+    """f = dy/dt at a step point (held/logged-pH problem of :func:`integrate_smooth`):
+    the coefficients and their time derivatives at t, then the mass-action right-hand side."""
+    (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
+     titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
     if varying:
-        evaluate_cubic(poly, in_logs, (ta - mid) * inv_half, cst, dc)
-        for c in range(n_coef):
+        evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
+        for c in range(poly.shape[0]):
             dc[c] *= inv_half
-    if not smooth_rhs(y, f0, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                      second, second_conc, feed_rate, feed_volume_rate, product, v):
-        return STATUS_NOT_FINITE, h, i_out
-    if h <= 0.0:
-        h = initial_step(y, f0, n, atol, rtol, sub_span)
-    t = ta
-    jac_fresh = False
-    while t < tb:
-        if not jac_fresh:
-            # cst, dc, product and v are those of (t, y): the last evaluation was there
-            smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc,
-                            second, second_conc, v, active_of, jac_t)
-            if varying:
-                smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, second,
-                                       second_conc, product, v, ft)
-            jac_fresh = True
-        wanted = h
-        h, last = land_step(t, h, tb)
-        if h < 1e-13 * max(abs(t), span) or h <= 0.0:
-            return STATUS_STEP_UNDERFLOW, h, i_out
-        # W = I/(h gamma) - J on the active states only; passive states (zero
-        # Jacobian columns) follow by substitution, k_p = h gamma (f_p + sum_a J[p, a] k_a)
-        hg = h * GAMMA
-        diag = 1.0 / hg
-        for a in range(n_act):
-            ia = active[a]
-            for b in range(n_act):
-                g[a, b] = -jac_t[b, ia]
-            g[a, a] += diag
-        if not lu_factor(g, piv):
-            return STATUS_SINGULAR, h, i_out
-        failed = False
-        for st in range(N_STAGES):
-            if st == 0:
-                for i in range(n):
-                    fy[i] = f0[i]
-            else:
-                stage_point(y, k, st, ytmp)
-                if varying:
-                    evaluate_cubic(poly, in_logs, (t + ALPHA[st] * h - mid) * inv_half, cst, dc)
-                if not smooth_rhs(ytmp, fy, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                                  titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v):
-                    failed = True
-                    break
-                add_stage_history(fy, k, st, h)
-            if varying and GAMMAS[st] != 0.0:
-                gh = h * GAMMAS[st]
-                for i in range(n):
-                    fy[i] += gh * ft[i]
-            for a in range(n_act):
-                sub[a] = fy[active[a]]
-            lu_solve(g, piv, sub)
-            for a in range(n_act):
-                k[st, active[a]] = sub[a]
-            for p in range(n_pas):
-                ip = passive[p]
-                val = fy[ip]
-                for a in range(n_act):
-                    val += jac_t[a, ip] * sub[a]
-                k[st, ip] = hg * val
-        err = 0.0
-        if not failed:
-            err = new_solution(y, ytmp, k, ynew, rtol, atol)
-            if not math.isfinite(err):
-                failed = True
-        t_new = tb if last else t + h
-        if not failed and err <= 1.0:
-            if varying:
-                evaluate_cubic(poly, in_logs, (t_new - mid) * inv_half, cst, dc)
-                for c in range(n_coef):
-                    dc[c] *= inv_half
-            if not smooth_rhs(ynew, fnew, cst, nu, reactants, n_react, n_species, n_mol, held, titrant,
-                              titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v):
-                failed = True
-        if failed:
-            h *= 0.1
-            continue
-        if err <= 1.0:
-            # outputs strictly inside (t, t_new] and before t1: continuous extension; t1 itself is left to
-            # the caller
-            if i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                dense_coefficients(k, dense)
-            while i_out < n_out and out_t[i_out] < t1 and out_t[i_out] <= t_new:
-                tout = out_t[i_out]
-                theta = (tout - t) / h
-                for j in range(n_species + 1):
-                    out[i_out, j] = dense_value(y, ynew, dense, theta, j)
-                if ph_is_held:
-                    out[i_out, n_species + 1] = held_ph
-                else:
-                    out[i_out, n_species + 1] = interpolate(log_t, log_v, log_n, tout) + ph_offset
-                out[i_out, n_species + 2] = dense_value(y, ynew, dense, theta, n_species + 1)
-                out[i_out, n_species + 3] = interpolate(temp_t, temp_v, temp_n, tout)
-                out[i_out, n_species + 4] = dense_value(y, ynew, dense, theta, n_species + 2)
-                i_out += 1
-            for i in range(n):
-                y[i] = ynew[i]
-                f0[i] = fnew[i]
-            t = t_new
-            jac_fresh = False
-            if sign_tol > 0.0:
-                if y[n_species + 1] > peak[0]:
-                    peak[0] = y[n_species + 1]
-                elif y[n_species + 1] < peak[0] - sign_tol:
-                    return STATUS_TITRANT_SIGN, h, i_out
-            counters[0] += 1
-            if counters[0] > MAX_STEPS:
-                return STATUS_MAX_STEPS, h, i_out
-            h = h * step_factor(err, True)
-            if last:
-                # a step cut short to land on tb says nothing against the larger step
-                h = max(h, wanted)
-        else:
-            h = h * step_factor(err, False)
-    return STATUS_OK, h, i_out
+    return smooth_rhs(y, f, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
+                      second_conc, feed_rate, feed_volume_rate, product, v)
+
+
+@leaf_kernel(inline="always")
+def smooth_stage(t, ytmp, y, f, prob):
+    """f = dy/dt at a stage point (the coefficients' time derivatives are not needed there)."""
+    (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
+     titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+    if varying:
+        evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
+    return smooth_rhs(ytmp, f, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
+                      second_conc, feed_rate, feed_volume_rate, product, v)
+
+
+@leaf_kernel(inline="always")
+def smooth_jacobian_at(t, y, f0, ft, jac_t, span, prob):
+    """Exact Jacobian on the active states and, when the coefficients vary, the exact df/dt
+    (``cst``, ``dc``, ``product`` and ``v`` are those of (t, y): the last evaluation was there)."""
+    (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
+     titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+    smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
+                    second_conc, v, active_of, jac_t)
+    if varying:
+        smooth_time_derivative(y, cst, dc, nu, n_species, n_mol, held, titrant, titrant_conc, second, second_conc,
+                               product, v, ft)
+    return True
+
+
+@leaf_kernel(inline="always")
+def smooth_output(t, y, f, out, i_out, prob):
+    """Output row at an interpolated state: the held pH, or the logged pH at t."""
+    (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
+     titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+    ph = held_ph if ph_is_held else interpolate(log_t, log_v, log_n, t) + ph_offset
+    write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
+    return True
+
+
+#: The step loop of :func:`integrate_smooth`: Jacobian on the active states, f at a new
+#: step point evaluated before the step is accepted (cheap here).
+smooth_steps = make_step_loop(smooth_point, smooth_stage, smooth_jacobian_at, smooth_output, prefetch=True,
+                              all_active=False)
 
 
 @njit(cache=True)
@@ -273,7 +186,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     coefficients are then cubics in time, see the module notes).  Outputs at
     times strictly inside (t0, t1) from index ``i_out`` are written to
     ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
-    (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see :func:`rodas_smooth`.
+    (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see
+    :data:`smooth_steps` (``rosenbrock_kernel``).
 
     Returns
     -------
@@ -330,6 +244,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     g = g_all[:n_act * n_act].reshape((n_act, n_act))
     sub = sub_all[:n_act]
     piv = piv_all[:n_act]
+    work = (f0, fnew, ft, fy, ytmp, ynew, k, dense, active, passive, jac_t, g, sub, piv)
+    held_ph = ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET]
     ta = t0
     trial = span
     while ta < t1:
@@ -398,15 +314,13 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                     poly[c, a] = 0.0
             inv_half = 0.0
             mid = ta
-        sub_span = tb - ta
-        # ---- Rosenbrock steps on [ta, tb] (a leaf function: no reference counting in the step loop)
-        status, h, i_out = rodas_smooth(ta, tb, t1, span, y, h, poly, in_logs, mid, inv_half, varying, nu, reactants,
-                                        n_react, n_species, n_mol, held, titrant, titrant_conc, second,
-                                        second_conc, feed_rate, feed_volume_rate, cst, dc, product, v, f0, ft, fy,
-                                        ytmp, ynew, fnew, k, dense, active, passive, active_of, jac_t, g, sub, piv,
-                                        rtol, atol, out, out_t, i_out, n_out, ph_is_held, ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET], ctx[CTX_PH_OFFSET],
-                                        ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N], ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], counters, sign_tol,
-                                        peak)
+        # ---- Rosenbrock steps on [ta, tb] (the one step loop, specialised by this path's functions)
+        prob = (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held,
+                titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of,
+                ph_is_held, held_ph, ctx[CTX_PH_OFFSET], ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N],
+                ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
+        status, h, i_out = smooth_steps(prob, varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out,
+                                        n_out, counters, sign_tol, peak)
         if status != STATUS_OK:
             return status, h, i_out
         sub_span = tb - ta

@@ -1,7 +1,11 @@
 """Compiled microstate speciation: populations, mean charges, charge balance.
 
 Pure numba functions on the flat arrays of :class:`~speciakin.simulation.compile.CompiledModel`.
-Microstate index bit i = 1 when site i of the molecule is protonated.
+Microstate index bit i = 1 when site i of the molecule is protonated.  The
+populations, mean charges and the charge-balance solve are written once, in
+``chemistry.microstate_formulas`` (numba-compatible; the chemistry layer runs
+the same solve for :func:`~speciakin.chemistry.equilibrium.solve_ph`), and
+compiled in from there; this module adds the temperature dependence.
 
 References
 ----------
@@ -13,28 +17,15 @@ References
 
 from __future__ import annotations
 
-import math
-
+from speciakin.chemistry.microstate_formulas import (LN10, NEWTON_ACCEPT, NEWTON_LINEAR, all_populations, exp10,
+                                                     log_sum_populations, mean_charges, molecule_populations,
+                                                     shift_populations, solve_charge_balance)
 from speciakin.chemistry.water import GAS_CONSTANT, vant_hoff
 from speciakin.simulation.jit_options import leaf_kernel
 
-LN10 = math.log(10.0)
-
-
-@leaf_kernel(inline="always")
-def exp10(x):
-    """10**x through exp (a power costs several times more)."""
-    return math.exp(LN10 * x)
-
-
-#: Newton step [pH units] below which the charge balance counts as solved
-NEWTON_ACCEPT = 1e-13
-#: Newton step [pH units] below which the step is taken and the populations are
-#: carried to the new pH to first order, dp_s/dpH = ln10 p_s (<N> - N_s), instead
-#: of being evaluated again: Newton converges quadratically, so the new pH is within
-#: about |step|^2 of the root, and the populations' second-order error is about
-#: (ln10 |step|)^2 / 2 < 3e-14 relative (no larger than the error NEWTON_ACCEPT leaves).
-NEWTON_LINEAR = 1e-7
+__all__ = ["LN10", "NEWTON_ACCEPT", "NEWTON_LINEAR", "GAS_CONSTANT", "exp10", "site_pka_at", "molecule_populations",
+           "log_sum_populations", "all_populations", "mean_charges", "shift_populations", "solve_charge_balance",
+           "mean_charge_temperature_slopes"]
 
 
 @leaf_kernel
@@ -45,193 +36,6 @@ def site_pka_at(pka_ref, enthalpy, temperature, reference_temperature):
     (the formula is ``chemistry.water.vant_hoff``).
     """
     return vant_hoff(pka_ref, enthalpy, temperature, reference_temperature)
-
-
-@leaf_kernel
-def molecule_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
-                         inter_start, inter_end, ph, out, out_start):
-    """Microstate populations of one molecule at ``ph`` [1]_.
-
-    log10 w(s) = sum_i s_i (pKa_i - pH) - sum_{i<j} s_i s_j W_ij.
-    Writes 2**n_sites populations to ``out[out_start:]``; returns nothing.
-
-    The weights are built as products: relative to the favoured state f of the
-    sites alone (site i protonated when pKa_i > pH), a microstate s weighs
-    prod_(i: s_i != f_i) 10^-|pKa_i - pH| times 10^-W_ij for every interacting
-    pair it holds, so one exponential per site and one per interaction are
-    needed instead of one per microstate, and no weight exceeds the
-    interaction factors (no overflow).  When the sum of the weights leaves the
-    range of floating-point numbers (interactions of hundreds of pK units) the
-    log-sum-exp form is used instead.
-    """
-    n_micro = 1 << n_sites
-    favoured = 0
-    for i in range(n_sites):
-        a = pka[site_start + i] - ph
-        if a > 0.0:
-            favoured |= 1 << i
-    # flip pattern t (bits that differ from the favoured state) is stored at out_start + (favoured ^ t)
-    out[out_start + favoured] = 1.0
-    for i in range(n_sites):
-        out[out_start + (favoured ^ (1 << i))] = exp10(-abs(pka[site_start + i] - ph))
-    for t in range(3, n_micro):
-        high = 1
-        while high * 2 <= t:
-            high *= 2
-        if high != t:
-            out[out_start + (favoured ^ t)] = (out[out_start + (favoured ^ (t ^ high))]
-                                               * out[out_start + (favoured ^ high)])
-    for k in range(inter_start, inter_end):
-        factor = exp10(-inter_w[k])
-        both = (1 << inter_a[k]) | (1 << inter_b[k])
-        for s in range(n_micro):
-            if (s & both) == both:
-                out[out_start + s] *= factor
-    total = 0.0
-    for s in range(n_micro):
-        total += out[out_start + s]
-    if not (total > 1e-280 and total < 1e280):
-        log_sum_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w, inter_start, inter_end, ph, out,
-                            out_start)
-        return
-    inv_total = 1.0 / total
-    for s in range(n_micro):
-        out[out_start + s] *= inv_total
-
-
-@leaf_kernel
-def log_sum_populations(pka, site_start, n_sites, inter_a, inter_b, inter_w,
-                        inter_start, inter_end, ph, out, out_start):
-    """:func:`molecule_populations` by log-sum-exp (one exponential per microstate)."""
-    n_micro = 1 << n_sites
-    top = -1e300
-    for s in range(n_micro):
-        lw = 0.0
-        for i in range(n_sites):
-            if (s >> i) & 1:
-                lw += pka[site_start + i] - ph
-        for k in range(inter_start, inter_end):
-            if ((s >> inter_a[k]) & 1) and ((s >> inter_b[k]) & 1):
-                lw -= inter_w[k]
-        out[out_start + s] = lw
-        if lw > top:
-            top = lw
-    total = 0.0
-    for s in range(n_micro):
-        v = math.exp(LN10 * (out[out_start + s] - top))
-        out[out_start + s] = v
-        total += v
-    inv_total = 1.0 / total
-    for s in range(n_micro):
-        out[out_start + s] *= inv_total
-
-
-@leaf_kernel
-def all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                    mol_inter_start, n_mol, ph, pops):
-    """Populations of every molecule's microstates at ``ph`` into ``pops``."""
-    for m in range(n_mol):
-        s0 = mol_site_start[m]
-        ns = mol_site_start[m + 1] - s0
-        molecule_populations(pka, s0, ns, inter_a, inter_b, inter_w,
-                             mol_inter_start[m], mol_inter_start[m + 1], ph, pops, mol_micro_start[m])
-
-
-@leaf_kernel
-def mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance):
-    """Population-weighted mean charge of each molecule and the variance of its
-    number of bound protons (= -d zbar / d pH / ln 10)."""
-    for m in range(n_mol):
-        z = 0.0
-        p1 = 0.0
-        p2 = 0.0
-        for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
-            z += pops[s] * micro_charge[s]
-            p1 += pops[s] * micro_protons[s]
-            p2 += pops[s] * micro_protons[s] * micro_protons[s]
-        zbar[m] = z
-        proton_variance[m] = max(p2 - p1 * p1, 0.0)
-
-
-@leaf_kernel
-def shift_populations(pops, micro_protons, mol_micro_start, n_mol, ln_shift):
-    """Carry ``pops`` to a pH higher by ``ln_shift`` / ln10 to first order:
-    p_s <- p_s (1 + ln_shift (<N> - N_s)), N_s the protons of microstate s (the sum stays 1)."""
-    for m in range(n_mol):
-        mean_n = 0.0
-        for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
-            mean_n += pops[s] * micro_protons[s]
-        for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
-            pops[s] *= 1.0 + ln_shift * (mean_n - micro_protons[s])
-
-
-@leaf_kernel
-def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start, mol_micro_start,
-                         inter_a, inter_b, inter_w, mol_inter_start, micro_charge, micro_protons,
-                         pkw_value, ph_guess, pops, zbar, proton_variance):
-    """pH at which the solution is electroneutral (safeguarded Newton in pH).
-
-    g(pH) = sum_m c_m zbar_m(pH) + sum_ions z c + [H+] - Kw/[H+] is strictly
-    decreasing in pH; Newton steps are kept inside a bisection bracket.
-
-    Returns
-    -------
-    float
-        pH, or NaN when no root was found in [-3, 17]; ``pops``, ``zbar`` hold
-        the speciation at that pH.
-    """
-    ion_charge = 0.0
-    for j in range(n_mol, n_species):
-        ion_charge += species_charge[j] * conc[j]
-    kw = exp10(-pkw_value)
-    lo = -3.0
-    hi = 17.0
-    ph = ph_guess
-    if not (ph > lo and ph < hi):
-        ph = 7.0
-    for it in range(200):
-        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                        mol_inter_start, n_mol, ph, pops)
-        mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
-        h = exp10(-ph)
-        g = ion_charge + h - kw / h
-        dg = h + kw / h
-        for m in range(n_mol):
-            g += conc[m] * zbar[m]
-            dg += conc[m] * proton_variance[m]
-        dg *= -LN10
-        if g > 0.0:
-            lo = ph
-        else:
-            hi = ph
-        step = -g / dg
-        if abs(step) < NEWTON_ACCEPT:
-            # Newton converges quadratically: the root is within about |step| of ph,
-            # and pops, zbar are already those at ph
-            if ph <= -2.999 or ph >= 16.999:
-                return math.nan
-            return ph
-        if abs(step) < NEWTON_LINEAR and lo < ph + step < hi:
-            # the last step: populations carried to the root to first order (see NEWTON_LINEAR)
-            ph += step
-            shift_populations(pops, micro_protons, mol_micro_start, n_mol, LN10 * step)
-            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
-            if ph <= -2.999 or ph >= 16.999:
-                return math.nan
-            return ph
-        new = ph + step
-        if not (new > lo and new < hi):
-            new = 0.5 * (lo + hi)
-        if hi - lo < 1e-13:
-            ph = new
-            all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                            mol_inter_start, n_mol, ph, pops)
-            mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
-            if ph <= -2.999 or ph >= 16.999:
-                return math.nan
-            return ph
-        ph = new
-    return math.nan
 
 
 @leaf_kernel
