@@ -217,7 +217,17 @@ def _browser_cpu(cdp) -> float:
     return next(m["value"] for m in cdp.send("Performance.getMetrics")["metrics"] if m["name"] == "TaskDuration")
 
 
-def visit(page, url: str, pid: int) -> dict[str, dict]:
+def _chromium_cpu(browser_cdp) -> dict[int, float]:
+    """CPU time of every Chromium process [s] by process id (``SystemInfo.getProcessInfo``)."""
+    return {p["id"]: p["cpuTime"] for p in browser_cdp.send("SystemInfo.getProcessInfo")["processInfo"]}
+
+
+def _cpu_spent(before: dict[int, float], after: dict[int, float]) -> float:
+    """CPU time spent between two :func:`_chromium_cpu` readings (processes started in between count whole)."""
+    return sum(t - before.get(pid, 0.0) for pid, t in after.items())
+
+
+def visit(page, url: str, pid: int, browser_cdp) -> dict[str, dict]:
     """One visit of every view; {view: {"browser": {part: s}, "server": [callback times], "cpu": {...}}}."""
     urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()  # nothing left from an earlier visit
     cdp = page.context.new_cdp_session(page)
@@ -232,7 +242,7 @@ def visit(page, url: str, pid: int) -> dict[str, dict]:
             urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()
         if view == "page reload":
             cdp.detach()
-        cpu0 = (_cpu(pid), 0.0 if view == "page reload" else _browser_cpu(cdp))
+        cpu0 = (_cpu(pid), 0.0 if view == "page reload" else _browser_cpu(cdp), _chromium_cpu(browser_cdp))
         start = time.time()
         action()
         if view == "page reload":
@@ -249,7 +259,8 @@ def visit(page, url: str, pid: int) -> dict[str, dict]:
         page.wait_for_timeout(250)  # callbacks still running after the drawing (none expected) are counted
         log = json.loads(urllib.request.urlopen(url.rstrip("/") + TIMINGS).read())
         out[view] = {"browser": seen, "server": [e["seconds"] for e in log], "bytes": sum(e["bytes"] for e in log),
-                     "cpu": {"server": _cpu(pid) - cpu0[0], "browser": _browser_cpu(cdp) - cpu0[1]},
+                     "cpu": {"server": _cpu(pid) - cpu0[0], "browser": _browser_cpu(cdp) - cpu0[1],
+                             "chromium": _cpu_spent(cpu0[2], _chromium_cpu(browser_cdp))},
                      "slowest": max(log, key=lambda e: e["seconds"])["output"][:60] if log else ""}
     return out
 
@@ -283,7 +294,8 @@ def report(results: dict[str, list[dict]], labels: list[str]) -> None:
                  ("slowest", "server", lambda r, v=view: max(r[v]["server"], default=0.0)),
                  ("round trips", "server", lambda r, v=view: float(len(r[v]["server"]))),
                  ("cpu", "server", lambda r, v=view: r[v]["cpu"]["server"]),
-                 ("main thread", "browser", lambda r, v=view: r[v]["cpu"]["browser"])]
+                 ("main thread", "browser", lambda r, v=view: r[v]["cpu"]["browser"]),
+                 ("cpu", "browser", lambda r, v=view: r[v]["cpu"].get("chromium", float("nan")))]
         for part, where, get in rows:
             line = f"{view:<18}{part:<16}{where:<8}"
             medians = []
@@ -336,6 +348,7 @@ def main() -> int:
     starts: dict[str, list[float]] = {label: [] for label in versions}
     with sync_playwright() as p:
         browser = p.chromium.launch(executable_path=chromium, args=ARGS)
+        browser_cdp = browser.new_browser_cdp_session()
         for n in range(args.servers):
             for label, src in versions.items():
                 t = time.perf_counter()
@@ -346,7 +359,7 @@ def main() -> int:
                     for kind in ["cold"] + ["warm"] * args.warm:
                         # a new browser context each visit: nothing remembered in the browser's session
                         context = browser.new_context(viewport={"width": 1300, "height": 900})
-                        run[kind].append(visit(context.new_page(), url, proc.pid))
+                        run[kind].append(visit(context.new_page(), url, proc.pid, browser_cdp))
                         context.close()
                 finally:
                     proc.terminate()

@@ -184,7 +184,8 @@ def _loopback_only(server) -> None:
 
 def make_server(app: Dash, host: str, port: int, *, token: str | None):
     """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it); the code
-    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process).
+    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process), and the page a
+    first visitor gets is made once.
 
     Raises
     ------
@@ -197,4 +198,5 @@ def make_server(app: Dash, host: str, port: int, *, token: str | None):
         raise InputError("a host other than loopback needs a token", Location(key="--host"), host,
                          "127.0.0.1 (default), or --require-token so that only people given the token get in")
     warm.prepare()  # the code the first answers need, loaded before the first visitor asks
+    warm.first_page(app)  # and the data of the page a first visitor gets
     return werkzeug_server(host, port, app.server, threaded=True)
