@@ -50,7 +50,7 @@ def test_dash_plotly_address_sends_the_cartesian_bundle(tmp_path):
     client = _app(tmp_path).server.test_client()
     sent = client.get("/" + bundles.DASH_PLOTLY_PATH, headers=HOST)
     assert sent.status_code == 200
-    assert sent.get_data() == bundles.BUNDLE.read_bytes()
+    assert sent.get_data() == bundles.COMPILE_HINT + bundles.BUNDLE.read_bytes()
     assert sent.headers["Content-Type"].startswith("application/javascript")
     again = client.get("/" + bundles.DASH_PLOTLY_PATH, headers={**HOST, "If-None-Match": sent.headers["ETag"]})
     assert again.status_code == 304 and again.get_data() == b""
