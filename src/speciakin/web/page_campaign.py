@@ -195,7 +195,9 @@ def _raw_figure(state, name, run_name):
         return empty_figure(f"cannot plot: {exc}")
     from speciakin.palette import SpeciesColors
 
-    return raw_run_figure(run, SpeciesColors(sorted({c.molecule for c in campaign.compounds})))
+    # kept while the campaign's files are unchanged: every new page carries the first run's figure
+    return state.cached(f"raw-figure {run_name}", state.inputs_of(folder), lambda: raw_run_figure(
+        run, SpeciesColors(sorted({c.molecule for c in campaign.compounds}))))
 
 
 def _verdict(report) -> str:
