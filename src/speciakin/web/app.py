@@ -125,7 +125,8 @@ def _shown(visible: bool) -> dict:
 
 
 def _register_tab_switch(app: Dash, state: WebState) -> None:
-    """A tab's page is put into the page the first time the tab is opened, and stays: a tab only shows
+    """A tab's page is put into the page the first time the tab is opened, filled in for the chosen
+    campaign (:func:`_mounted`), and stays: a tab only shows
     or hides it, in the browser (no server round trip), so a tab opened again is shown as it was,
     without drawing its tables and figures anew, and the page loads only the first tab's page."""
     from dash import Input, Output, State, no_update
