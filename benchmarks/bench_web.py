@@ -9,14 +9,17 @@ in the order of a chemist's visit, every view:
                data of the first run
     raw run    the raw data of another run
     model      the model summary and the parameter table (tab 2)
+    parameter edit  a start value typed into the parameter table, until its diff is shown
     results    tab 4: parameter table, correlation, probability against pH, 2-D map, fitted curves
     curves     the fitted curves of another run
     history    tab 5: every result; then two results side by side (from the choice of B)
     results again  tab 4 opened a second time (from the click on it)
+    page reload    the page reloaded in the same browser (its cache holds the page's code)
 
 For each view it prints the server time (wall time of the Dash callbacks the view set off, summed,
-and the slowest one) and the browser time (from the click to the drawn figure or table), best and
-median over the repeats, "cold" (first visit after the server started: a new process, nothing cached
+the slowest one, and their number), the browser time (from the click to the drawn figure or table;
+for the page also its first paint), the CPU time of the server process and of every Chromium process,
+and the wall time of the page's main-thread tasks, best and median over the repeats, "cold" (first visit after the server started: a new process, nothing cached
 in memory) and "warm" (the same visit again in that server).  Each server serves one cold visit and
 ``--warm`` warm ones; ``--servers`` servers are started one after another.
 
