@@ -9,14 +9,17 @@ in the order of a chemist's visit, every view:
                data of the first run
     raw run    the raw data of another run
     model      the model summary and the parameter table (tab 2)
+    parameter edit  a start value typed into the parameter table, until its diff is shown
     results    tab 4: parameter table, correlation, probability against pH, 2-D map, fitted curves
     curves     the fitted curves of another run
     history    tab 5: every result; then two results side by side (from the choice of B)
     results again  tab 4 opened a second time (from the click on it)
+    page reload    the page reloaded in the same browser (its cache holds the page's code)
 
 For each view it prints the server time (wall time of the Dash callbacks the view set off, summed,
-and the slowest one) and the browser time (from the click to the drawn figure or table), best and
-median over the repeats, "cold" (first visit after the server started: a new process, nothing cached
+the slowest one, and their number), the browser time (from the click to the drawn figure or table;
+for the page also its first paint), the CPU time of the server process and of every Chromium process,
+and the wall time of the page's main-thread tasks, best and median over the repeats, "cold" (first visit after the server started: a new process, nothing cached
 in memory) and "warm" (the same visit again in that server).  Each server serves one cold visit and
 ``--warm`` warm ones; ``--servers`` servers are started one after another.
 
@@ -32,6 +35,7 @@ from __future__ import annotations
 import argparse
 import io
 import json
+import math
 import os
 import shutil
 import statistics
@@ -158,6 +162,7 @@ def _views(page, url: str):
         ("raw run", raw, {"raw data": lambda: f"#raw-figure .gtitle:has-text('run {raw.value}:')"}),
         ("model", lambda: page.click("text=2 Model"),
          {"summary": "#model-summary:has-text('Molecules')", "parameter table": "#param-table .ag-row"}),
+        ("parameter edit", lambda: _type_start(page, EDITED[1]), {"diff": f"#param-diff .diff-add:has-text('{EDITED[1]}')"}),
         ("results", lambda: page.click("text=4 Results"),
          {"parameters": "#parameter-table .ag-row", "correlation": "#correlation-figure .gtitle",
           "pH curve": "#window-figure .gtitle:has-text('probability')",
@@ -168,12 +173,31 @@ def _views(page, url: str):
         ("compare", lambda: _choose(page, "compare-b", index=1), {"side by side": "#compare-inputs-summary"}),
         ("results again", lambda: page.click("text=4 Results"),
          {"parameters": "#parameter-table .ag-row", "fitted curves": "#fit-figure .gtitle:has-text('fitted')"}),
+        # the same browser again: its cache holds the page's code (a chemist reloading the page)
+        ("page reload", lambda: page.reload(),
+         {"check": "#check-summary:has-text('Ready to fit')", "raw data": "#raw-figure .gtitle"}),
     ]
 
 
+#: The parameter table's cell edited (row, new start value) and how the edit is typed.
+EDITED = ("pKa[S.N_alkyl]", "9.65")
+
+
+def _start_cell(page):
+    return page.locator(f"#param-table [row-id='{EDITED[0]}'] [col-id='start']")
+
+
+def _type_start(page, value: str) -> None:
+    box = _start_cell(page).locator("input")
+    box.fill(value)
+    box.press("Enter")
+
+
 #: What is done before a view's clock starts: result A chosen, another tab shown.
-_BEFORE = {"compare": lambda page: _choose(page, "compare-a", index=0),
-           "results again": lambda page: page.click("text=1 Campaign and data")}
+_BEFORE = {"parameter edit": lambda page: _start_cell(page).click(),  # the cell's editor open
+           "compare": lambda page: _choose(page, "compare-a", index=0),
+           "results again": lambda page: page.click("text=1 Campaign and data"),
+           "page reload": lambda page: page.click("text=1 Campaign and data")}
 
 
 def _fresh(page) -> None:
@@ -182,9 +206,35 @@ def _fresh(page) -> None:
         const t = document.querySelector(`#${id} .gtitle`); if (t) t.textContent = ''; } }""")
 
 
-def visit(page, url: str) -> dict[str, dict]:
-    """One visit of every view; {view: {"browser": {part: s}, "server": [callback times]}}."""
+def _cpu(pid: int) -> float:
+    """User and system CPU time of process ``pid`` [s] (Linux ``/proc``; 0 elsewhere)."""
+    try:
+        fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    except OSError:
+        return 0.0
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
+def _browser_cpu(cdp) -> float:
+    """Main-thread task time of the page's renderer so far [s] (Chromium's ``Performance.getMetrics``)."""
+    return next(m["value"] for m in cdp.send("Performance.getMetrics")["metrics"] if m["name"] == "TaskDuration")
+
+
+def _chromium_cpu(browser_cdp) -> dict[int, float]:
+    """CPU time of every Chromium process [s] by process id (``SystemInfo.getProcessInfo``)."""
+    return {p["id"]: p["cpuTime"] for p in browser_cdp.send("SystemInfo.getProcessInfo")["processInfo"]}
+
+
+def _cpu_spent(before: dict[int, float], after: dict[int, float]) -> float:
+    """CPU time spent between two :func:`_chromium_cpu` readings (processes started in between count whole)."""
+    return sum(t - before.get(pid, 0.0) for pid, t in after.items())
+
+
+def visit(page, url: str, pid: int, browser_cdp) -> dict[str, dict]:
+    """One visit of every view; {view: {"browser": {part: s}, "server": [callback times], "cpu": {...}}}."""
     urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()  # nothing left from an earlier visit
+    cdp = page.context.new_cdp_session(page)
+    cdp.send("Performance.enable")
     out = {}
     for view, action, parts in _views(page, url):
         if view in ("raw run", "curves"):
@@ -193,15 +243,27 @@ def visit(page, url: str) -> dict[str, dict]:
             _BEFORE[view](page)
             page.wait_for_timeout(300)
             urllib.request.urlopen(url.rstrip("/") + TIMINGS).read()
+        if view == "page reload":
+            cdp.detach()
+        cpu0 = (_cpu(pid), 0.0 if view == "page reload" else _browser_cpu(cdp), _chromium_cpu(browser_cdp))
         start = time.time()
         action()
+        if view == "page reload":
+            cdp = page.context.new_cdp_session(page)  # the renderer's counters start again with the new page
+            cdp.send("Performance.enable")
         seen = {}
         for part, selector in parts.items():
             page.wait_for_selector(selector() if callable(selector) else selector, timeout=180_000)
             seen[part] = time.time() - start
+        if view.startswith("page"):
+            seen["first paint"] = page.evaluate(
+                "() => (performance.getEntriesByName('first-contentful-paint')[0] || {startTime: NaN}).startTime"
+            ) / 1000
         page.wait_for_timeout(250)  # callbacks still running after the drawing (none expected) are counted
         log = json.loads(urllib.request.urlopen(url.rstrip("/") + TIMINGS).read())
         out[view] = {"browser": seen, "server": [e["seconds"] for e in log], "bytes": sum(e["bytes"] for e in log),
+                     "cpu": {"server": _cpu(pid) - cpu0[0], "browser": _browser_cpu(cdp) - cpu0[1],
+                             "chromium": _cpu_spent(cpu0[2], _chromium_cpu(browser_cdp))},
                      "slowest": max(log, key=lambda e: e["seconds"])["output"][:60] if log else ""}
     return out
 
@@ -226,30 +288,34 @@ def report(results: dict[str, list[dict]], labels: list[str]) -> None:
     first = results[labels[0]][0]["cold"][0]
     views = list(first.keys())
     print("\nseconds, best and median (cold: first visit after the server started; warm: again)")
-    head = f"{'view':<14}{'part':<16}{'':<8}" + "".join(f"{'cold ' + l:>15}{'warm ' + l:>15}" for l in labels)
+    head = f"{'view':<18}{'part':<16}{'':<8}" + "".join(f"{'cold ' + l:>15}{'warm ' + l:>15}" for l in labels)
     print(head + ("   ratio warm/cold medians of the last to the first" if len(labels) > 1 else ""))
     for view in views:
         parts = list(first[view]["browser"].keys())
         rows = [(p, "browser", lambda r, v=view, p=p: r[v]["browser"].get(p)) for p in parts]
         rows += [("callbacks sum", "server", lambda r, v=view: sum(r[v]["server"])),
-                 ("slowest", "server", lambda r, v=view: max(r[v]["server"], default=0.0))]
+                 ("slowest", "server", lambda r, v=view: max(r[v]["server"], default=0.0)),
+                 ("round trips", "server", lambda r, v=view: float(len(r[v]["server"]))),
+                 ("cpu", "server", lambda r, v=view: r[v]["cpu"]["server"]),
+                 ("main thread", "browser", lambda r, v=view: r[v]["cpu"]["browser"]),
+                 ("cpu", "browser", lambda r, v=view: r[v]["cpu"].get("chromium", float("nan")))]
         for part, where, get in rows:
-            line = f"{view:<14}{part:<16}{where:<8}"
+            line = f"{view:<18}{part:<16}{where:<8}"
             medians = []
             for label in labels:
                 for kind in ("cold", "warm"):
                     values = [get(r) for s in results[label] for r in s[kind]]
-                    values = [v for v in values if v is not None]
+                    values = [v for v in values if v is not None and not math.isnan(v)]
                     line += f"{_summary(values):>15}"
                     medians.append(statistics.median(values) if values else float("nan"))
             if len(labels) > 1:
                 line += "   " + " ".join(f"{b / a:6.3f}" if a else "     -" for a, b in
                                          ((medians[0], medians[2]), (medians[1], medians[3])))
             print(line)
-        print(f"{'':<14}{'slowest callback':<24}" + " | ".join(
+        print(f"{'':<18}{'slowest callback':<24}" + " | ".join(
             results[l][0]["cold"][0][view]["slowest"] for l in labels))
-    worst = {l: max(max(r[v]["browser"].values()) for s in results[l] for k in ("cold", "warm") for r in s[k]
-                    for v in r) for l in labels}
+    worst = {l: max(x for s in results[l] for k in ("cold", "warm") for r in s[k] for v in r
+                    for x in r[v]["browser"].values() if not math.isnan(x)) for l in labels}
     for label in labels:
         print(f"slowest view in the browser ({label}): {worst[label]:.2f} s = {worst[label] / TARGET_S:.2f} x the "
               f"{TARGET_S:g} s target")
@@ -285,6 +351,7 @@ def main() -> int:
     starts: dict[str, list[float]] = {label: [] for label in versions}
     with sync_playwright() as p:
         browser = p.chromium.launch(executable_path=chromium, args=ARGS)
+        browser_cdp = browser.new_browser_cdp_session()
         for n in range(args.servers):
             for label, src in versions.items():
                 t = time.perf_counter()
@@ -295,7 +362,7 @@ def main() -> int:
                     for kind in ["cold"] + ["warm"] * args.warm:
                         # a new browser context each visit: nothing remembered in the browser's session
                         context = browser.new_context(viewport={"width": 1300, "height": 900})
-                        run[kind].append(visit(context.new_page(), url))
+                        run[kind].append(visit(context.new_page(), url, proc.pid, browser_cdp))
                         context.close()
                 finally:
                     proc.terminate()

@@ -20,7 +20,7 @@ pytestmark = pytest.mark.filterwarnings("ignore")
 def _callback(client, campaign: str) -> dict:
     """POST the page's check callback with ``campaign`` as the browser would send it."""
     outputs = [("check-summary", "children"), ("check-table", "rowData"), ("raw-run", "options"),
-               ("raw-run", "value")]
+               ("raw-run", "value"), ("raw-figure", "figure"), ("raw-drawn", "data")]
     body = {"output": ".." + "...".join(f"{i}.{p}" for i, p in outputs) + "..",
             "outputs": [{"id": i, "property": p} for i, p in outputs],
             "inputs": [{"id": "campaign-choice", "property": "value", "value": campaign},

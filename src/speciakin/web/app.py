@@ -16,7 +16,7 @@ from pathlib import Path
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import page_campaign, page_history, page_jobs, page_model, page_results, warm
+from speciakin.web import bundles, page_campaign, page_history, page_jobs, page_model, page_results, warm
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -86,18 +86,31 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
         _guard(app.server, token)
     else:
         _loopback_only(app.server)
+    bundles.serve_cartesian_plotly(app.server, app.config.requests_pathname_prefix)  # after the guards
     app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + _STYLE + "</style>")
     head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
             html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),
             dcc.Tabs(id="tabs", value=_FIRST, persistence=True, persistence_type="session",
                      children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS])]
-    app.layout = html.Div([*head, *[html.Div(module.layout() if key == _FIRST else [], id=f"tab-page-{key}",
-                                             className="tab-page", style=_shown(key == _FIRST))
-                                    for key, _, module in _TABS]])
-    # every callback is checked against the whole page, with every tab's page in it
+    # every callback is checked against the whole page, with every tab's page in it (set before the
+    # layout, so that Dash does not call the layout function to find it)
     app.validation_layout = html.Div([*head, *[html.Div(module.layout(), id=f"tab-page-{key}")
                                                for key, _, module in _TABS]])
-    _register_tab_switch(app)
+
+    def page() -> html.Div:
+        """The page as a new visit gets it: the first tab filled in for the campaign it opens on (its
+        check and raw data come with the page, not after round trips); the other tabs' pages are put in
+        when first opened."""
+        names, chosen = page_campaign.initial_choice(state)
+        first = page_campaign.layout(page_campaign.campaign_view(state, chosen), (names, chosen))
+        if chosen:
+            page_results.prefetch_newest(state, chosen)
+        return html.Div([*head, *[html.Div(first if key == _FIRST else [], id=f"tab-page-{key}",
+                                           className="tab-page", style=_shown(key == _FIRST))
+                                  for key, _, _ in _TABS]])
+
+    app.layout = page
+    _register_tab_switch(app, state)
     for _, _, module in _TABS:
         module.register(app, state)
     return app, state
@@ -111,8 +124,9 @@ def _shown(visible: bool) -> dict:
     return {"display": "block" if visible else "none"}
 
 
-def _register_tab_switch(app: Dash) -> None:
-    """A tab's page is put into the page the first time the tab is opened, and stays: a tab only shows
+def _register_tab_switch(app: Dash, state: WebState) -> None:
+    """A tab's page is put into the page the first time the tab is opened, filled in for the chosen
+    campaign (:func:`_mounted`), and stays: a tab only shows
     or hides it, in the browser (no server round trip), so a tab opened again is shown as it was,
     without drawing its tables and figures anew, and the page loads only the first tab's page."""
     from dash import Input, Output, State, no_update
@@ -125,12 +139,20 @@ def _register_tab_switch(app: Dash) -> None:
     later = [(key, module) for key, _, module in _TABS if key != _FIRST]
 
     @app.callback(*[Output(f"tab-page-{key}", "children") for key, _ in later], Output("tabs-mounted", "data"),
-                  Input("tabs", "value"), State("tabs-mounted", "data"))
-    def mount(tab, mounted):
+                  Input("tabs", "value"), State("tabs-mounted", "data"), State("campaign-choice", "value"))
+    def mount(tab, mounted, name):
         mounted = list(mounted or [])
         if tab in mounted or tab not in dict(later):
             return (no_update,) * (len(later) + 1)
-        return (*[module.layout() if key == tab else no_update for key, module in later], [*mounted, tab])
+        return (*[_mounted(module, state, name) if key == tab else no_update for key, module in later],
+                [*mounted, tab])
+
+
+def _mounted(module, state, name):
+    """A tab's page as it is put in: filled in for campaign ``name`` when the tab has a ``mounted``
+    (its content comes with it instead of after more round trips), else its empty ``layout()``."""
+    fill = getattr(module, "mounted", None)
+    return fill(state, name) if fill else module.layout()
 
 
 def _guard(server, token: str) -> None:
@@ -163,7 +185,8 @@ def _loopback_only(server) -> None:
 
 def make_server(app: Dash, host: str, port: int, *, token: str | None):
     """A threaded WSGI server for ``app`` (``serve_forever`` runs it, ``shutdown`` stops it); the code
-    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process).
+    the first answers need is loaded first (:mod:`speciakin.web.warm`, once per process), and the page a
+    first visitor gets is made once.
 
     Raises
     ------
@@ -176,4 +199,5 @@ def make_server(app: Dash, host: str, port: int, *, token: str | None):
         raise InputError("a host other than loopback needs a token", Location(key="--host"), host,
                          "127.0.0.1 (default), or --require-token so that only people given the token get in")
     warm.prepare()  # the code the first answers need, loaded before the first visitor asks
+    warm.first_page(app)  # and the data of the page a first visitor gets
     return werkzeug_server(host, port, app.server, threaded=True)

@@ -10,31 +10,38 @@ import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
-from speciakin.web.figures import raw_run_figure
+from speciakin.web.figures import empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
-__all__ = ["layout", "register", "check_rows", "folder_picker", "CHECK_COLUMNS"]
+__all__ = ["layout", "register", "check_rows", "folder_picker", "campaign_view", "initial_choice", "CHECK_COLUMNS"]
 
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
 _WRAPPED = ("message", "value", "expected")
 _FLEX = {"message": 4, "expected": 2, "column": 2}
+_GRAPH = {"displaylogo": False}
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
 
-def folder_picker(label: str, prefix: str, placeholder: str) -> html.Div:
-    """A labelled dropdown ``<prefix>-choice`` with a ``<prefix>-refresh`` button."""
+def folder_picker(label: str, prefix: str, placeholder: str, options=None, value=None) -> html.Div:
+    """A labelled dropdown ``<prefix>-choice`` (``options``, ``value`` given or empty) with a
+    ``<prefix>-refresh`` button."""
     return html.Div(className="row", children=[
         html.Label(label, htmlFor=f"{prefix}-choice"),
-        dcc.Dropdown(id=f"{prefix}-choice", placeholder=placeholder, clearable=False, style={"minWidth": "320px"}),
+        dcc.Dropdown(id=f"{prefix}-choice", options=options or [], value=value, placeholder=placeholder,
+                     clearable=False, style={"minWidth": "320px"}),
         html.Button("Refresh list", id=f"{prefix}-refresh", n_clicks=0),
     ])
 
 
-def layout() -> html.Div:
+def layout(view: tuple | None = None, choice: tuple = ((), None)) -> html.Div:
+    """The tab's page; ``view`` (:func:`campaign_view`) and ``choice`` (campaign names, the chosen one)
+    fill it in, so that a page opened on a campaign shows its check and raw data without a round trip."""
+    summary, rows, runs, run, figure, drawn = view or campaign_view(None, None)
+    names, chosen = choice
     return html.Div(className="page", children=[
-        folder_picker("Campaign folder", "campaign", "choose a campaign folder"),
+        folder_picker("Campaign folder", "campaign", "choose a campaign folder", _options(names), chosen),
         html.Details([
             html.Summary("Create a campaign or upload a filled workbook"),
             html.Div(className="row", children=[
@@ -49,16 +56,51 @@ def layout() -> html.Div:
         ]),
         html.Div(id="campaign-message", className="message", role="status"),
         html.H3("Check"),
-        html.Div(id="check-summary"),
+        html.Div(summary, id="check-summary"),
         dag.AgGrid(id="check-table", columnDefs=[{"field": f, "headerName": h, "flex": _FLEX.get(f, 1),
                                                   "wrapText": f in _WRAPPED, "autoHeight": f in _WRAPPED}
                                                  for f, h in CHECK_COLUMNS],
-                   rowData=[], defaultColDef={"sortable": True, "resizable": True, "filter": True},
+                   rowData=rows, defaultColDef={"sortable": True, "resizable": True, "filter": True},
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
         html.H3("Raw data per run"),
-        dcc.Dropdown(id="raw-run", placeholder="choose a run", clearable=False, style={"maxWidth": "320px"}),
-        html.Div(id="raw-figure-box", children=html.P("choose a campaign", className="message")),
+        dcc.Dropdown(id="raw-run", options=runs, value=run, placeholder="choose a run", clearable=False,
+                     style={"maxWidth": "320px"}),
+        # the graph is in the page from the start, so the browser loads the plotting library at once
+        html.Div(id="raw-figure-box", children=dcc.Graph(id="raw-figure", figure=figure, config=_GRAPH)),
+        dcc.Store(id="raw-drawn", data=drawn),
     ])
+
+
+def initial_choice(state) -> tuple[list[str], str | None]:
+    """(campaign names under the root, the one a new page opens: the only one, else none)."""
+    names = campaign_folders(state.root)
+    return names, names[0] if len(names) == 1 else None
+
+
+def _options(names) -> list[dict]:
+    return [{"label": n, "value": n} for n in names]
+
+
+def campaign_view(state, name) -> tuple:
+    """What the tab shows for campaign ``name``: (check summary, check rows, run options, chosen run,
+    raw figure of that run, ``[name, run]`` drawn)."""
+    if not name:
+        return "choose a campaign folder", [], [], None, empty_figure("choose a campaign"), None
+    try:
+        report, folder = _check(state, name)
+    except SpeciakinError as exc:
+        return f"error: {exc}", [], [], None, empty_figure("no raw data: the campaign cannot be read"), None
+    summary = (f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {report.runs} run(s), "
+               f"{report.hplc_values} HPLC values, {report.log_readings} log readings. " + _verdict(report))
+    runs = []
+    if report.ok:
+        try:
+            runs = [r.name for r in _campaign(state, folder).runs]
+        except SpeciakinError:
+            runs = []
+    run = runs[0] if runs else None
+    return (html.Span(summary, className="ok" if report.ok else "bad"), check_rows(report), _options(runs), run,
+            _raw_figure(state, name, run), [name, run])
 
 
 def check_rows(report) -> list[dict]:
@@ -97,7 +139,7 @@ def register(app, state) -> None:
                   Input("upload", "contents"), State("upload", "filename"), State("new-name", "value"),
                   State("campaign-choice", "value"), State("campaign", "data"))
     def choose(_refresh, create, contents, filename, new_name, shown, remembered):
-        from dash import ctx
+        from dash import ctx, no_update
 
         current = shown or remembered  # the store keeps the choice over a page reload
         message = ""
@@ -112,7 +154,9 @@ def register(app, state) -> None:
         names = campaign_folders(state.root)
         if chosen not in names:
             chosen = names[0] if len(names) == 1 else None
-        return [{"label": n, "value": n} for n in names], chosen, message
+        if ctx.triggered_id is None and chosen == shown:
+            return no_update, no_update, no_update  # the page came with this campaign filled in
+        return _options(names), chosen, message
 
     @app.callback(Output("campaign", "data"), Input("campaign-choice", "value"))
     def remember(value):
@@ -120,42 +164,40 @@ def register(app, state) -> None:
 
     @app.callback(Output("check-summary", "children"), Output("check-table", "rowData"),
                   Output("raw-run", "options"), Output("raw-run", "value"),
-                  Input("campaign-choice", "value"), Input("campaign-message", "children"))
+                  Output("raw-figure", "figure"), Output("raw-drawn", "data"),
+                  Input("campaign-choice", "value"), Input("campaign-message", "children"),
+                  prevent_initial_call=True)
     def check(name, _message):
-        if not name:
-            return "choose a campaign folder", [], [], None
-        try:
-            report, folder = _check(state, name)
-        except SpeciakinError as exc:
-            return f"error: {exc}", [], [], None
-        summary = (f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {report.runs} run(s), "
-                   f"{report.hplc_values} HPLC values, {report.log_readings} log readings. "
-                   + _verdict(report))
-        runs = []
-        if report.ok:
-            try:
-                runs = [r.name for r in _campaign(state, folder).runs]
-            except SpeciakinError:
-                runs = []
-        return (html.Span(summary, className="ok" if report.ok else "bad"), check_rows(report),
-                [{"label": r, "value": r} for r in runs], runs[0] if runs else None)
+        # the raw data of the first run come with the check: one round trip, not two
+        return campaign_view(state, name)
 
-    @app.callback(Output("raw-figure-box", "children"), Input("raw-run", "value"), State("campaign-choice", "value"))
-    def raw(run_name, name):
-        # the figure (and the plotting library with it) loads only when there is something to draw,
-        # so the check above shows first
-        if not name or not run_name:
-            return html.P("raw data are plotted once the campaign has no check errors", className="message")
-        try:
-            folder = state.folder(name)
-            campaign = _campaign(state, folder)
-            run = campaign.run(run_name)
-        except (SpeciakinError, KeyError) as exc:
-            return html.P(f"cannot plot: {exc}", className="message")
-        from speciakin.palette import SpeciesColors
+    @app.callback(Output("raw-figure", "figure", allow_duplicate=True),
+                  Output("raw-drawn", "data", allow_duplicate=True),
+                  Input("raw-run", "value"), State("campaign-choice", "value"), State("raw-drawn", "data"),
+                  prevent_initial_call=True)
+    def raw(run_name, name, drawn):
+        from dash.exceptions import PreventUpdate
 
-        figure = raw_run_figure(run, SpeciesColors(sorted({c.molecule for c in campaign.compounds})))
-        return dcc.Graph(id="raw-figure", figure=figure, config={"displaylogo": False})
+        if [name, run_name] == drawn:
+            raise PreventUpdate  # drawn with the check
+        return _raw_figure(state, name, run_name), [name, run_name]
+
+
+def _raw_figure(state, name, run_name):
+    """The raw data of run ``run_name`` of campaign ``name``, or a blank figure saying why there are none."""
+    if not name or not run_name:
+        return empty_figure("raw data are plotted once the campaign has no check errors")
+    try:
+        folder = state.folder(name)
+        campaign = _campaign(state, folder)
+        run = campaign.run(run_name)
+    except (SpeciakinError, KeyError) as exc:
+        return empty_figure(f"cannot plot: {exc}")
+    from speciakin.palette import SpeciesColors
+
+    # kept while the campaign's files are unchanged: every new page carries the first run's figure
+    return state.cached(f"raw-figure {run_name}", state.inputs_of(folder), lambda: raw_run_figure(
+        run, SpeciesColors(sorted({c.molecule for c in campaign.compounds}))))
 
 
 def _verdict(report) -> str:

@@ -20,7 +20,7 @@ from speciakin.chemistry.prior_families import PRIOR_FAMILIES
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web.params_table import DEFAULT_PRIOR, diff_lines, edited_overrides, parameter_rows, proposed_text
 
-__all__ = ["layout", "register", "HELP"]
+__all__ = ["layout", "loaded", "register", "HELP"]
 
 HELP = ("Tick 'fitted' to let the fit move a parameter, untick it to fix it at its start value. Bounds and prior "
         "numbers are on the fitted scale named in the column 'bounds and prior on' (a pKa: its shift; a rate constant: log10 k, "
@@ -48,25 +48,40 @@ def _columns() -> list[dict]:
     ]
 
 
-def layout() -> html.Div:
+def layout(filled: tuple | None = None) -> html.Div:
+    """The parameter section; ``filled`` (:func:`loaded`) fills it in for a campaign."""
+    rows, original, status, diff, disabled = filled or ([], None, None, None, True)
     return html.Div(id="parameter-section", children=[
         html.H3("Parameters"),
         html.P(HELP, className="message"),
-        dag.AgGrid(id="param-table", columnDefs=_columns(), rowData=[], getRowId="params.data.name",
+        dag.AgGrid(id="param-table", columnDefs=_columns(), rowData=rows, getRowId="params.data.name",
                    defaultColDef={"resizable": True, "sortable": False, "cellDataType": False,
                                   "wrapHeaderText": True, "autoHeaderHeight": True},
                    dashGridOptions={"domLayout": "autoHeight", "singleClickEdit": True,
                                     "stopEditingWhenCellsLoseFocus": True},
                    style={"width": "100%"}),
         html.Div(className="row", children=[
-            html.Button("Save to the model file", id="param-save", n_clicks=0, disabled=True),
+            html.Button("Save to the model file", id="param-save", n_clicks=0, disabled=disabled),
             html.Button("Discard changes", id="param-discard", n_clicks=0),
         ]),
-        html.Div(id="param-status", className="message", role="status"),
-        html.Pre(id="param-diff", className="summary diff"),
-        dcc.Store(id="param-original"),
+        html.Div(status, id="param-status", className="message", role="status"),
+        html.Pre(diff, id="param-diff", className="summary diff"),
+        dcc.Store(id="param-original", data=original),
         dcc.Store(id="param-version", data={"n": 0, "message": ""}),
     ])
+
+
+def loaded(state, name, said: str = "") -> tuple:
+    """(table rows, the table as read, status, diff, save disabled) for campaign ``name``'s model file;
+    ``said`` replaces the status."""
+    if not name:
+        return [], None, "choose a campaign folder first", [], True
+    try:
+        path, _, text, rows = _read(state, name)
+    except (SpeciakinError, OSError) as exc:
+        return [], None, f"error: {exc}", [], True
+    status = said or f"{len(rows)} parameters of {name}/model.toml; no change yet"
+    return [dict(r) for r in rows], {"campaign": name, "digest": _digest(text), "rows": rows}, status, [], True
 
 
 def _digest(text: str) -> str:
@@ -121,20 +136,12 @@ def register(app, state) -> None:
                   Output("param-status", "children"), Output("param-diff", "children"),
                   Output("param-save", "disabled"),
                   Input("campaign-choice", "value"), Input("param-discard", "n_clicks"),
-                  Input("param-version", "data"))
+                  Input("param-version", "data"), prevent_initial_call=True)  # the page comes filled in
     def load(name, _discard, version):
         from dash import ctx
 
-        if not name:
-            return [], None, "choose a campaign folder first", [], True
-        try:
-            path, _, text, rows = _read(state, name)
-        except (SpeciakinError, OSError) as exc:
-            return [], None, f"error: {exc}", [], True
         said = version.get("message", "") if ctx.triggered_id == "param-version" and version else ""
-        status = said or f"{len(rows)} parameters of {name}/model.toml; no change yet"
-        return ([dict(r) for r in rows], {"campaign": name, "digest": _digest(text), "rows": rows},
-                status, [], True)
+        return loaded(state, name, said)
 
     @app.callback(Output("param-status", "children", allow_duplicate=True), Output("param-diff", "children",
                                                                                    allow_duplicate=True),

@@ -22,7 +22,8 @@ from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
 from speciakin.web.state import file_stamp
 
-__all__ = ["layout", "register", "parameter_rows", "correlation_of", "PARAMETER_COLUMNS"]
+__all__ = ["layout", "mounted", "prefetch_newest", "register", "parameter_rows", "correlation_of",
+           "PARAMETER_COLUMNS"]
 
 HISTORY_HINT = "Every result of the campaign, and two results side by side: see tab 5 History."
 #: Columns of the parameter table: (field, header).
@@ -35,37 +36,71 @@ _GRAPH = {"displaylogo": False}
 TAB = "results"
 
 
-def layout() -> html.Div:
+def layout(filled: tuple | None = None) -> html.Div:
+    """The tab's page; ``filled`` (:func:`mounted`) fills it in for a result."""
+    choice, shown, runs, curves = filled or (([], None), _blank_show("choose a result"), ([], None, ""),
+                                            empty_figure("choose a result"))
+    rows, warnings, corr, status, reasons, window, drawn_map, message, drawn = shown
     return html.Div(className="page", children=[
-        folder_picker("Result folder", "result", "choose a result"),
-        html.Div(id="result-message", className="message"),
+        folder_picker("Result folder", "result", "choose a result", *choice),
+        html.Div(message, id="result-message", className="message"),
         html.H3("Fitted parameters"),
         dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
                                                       "flex": 2 if f in ("name", "note", "ci") else 1,
                                                       "minWidth": 190 if f == "name" else 90}
                                                      for f, h in PARAMETER_COLUMNS],
-                   rowData=[], defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
-                                              "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True,
-                                              "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px",
-                                                            "wordBreak": "break-word"}},
+                   rowData=rows, defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
+                                                "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True,
+                                                "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px",
+                                                              "wordBreak": "break-word"}},
                    dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
-        html.Ul(id="fit-warnings"),
+        html.Ul(warnings, id="fit-warnings"),
         html.H3("Parameter correlation"),
-        dcc.Graph(id="correlation-figure", figure=empty_figure("choose a result"), config=_GRAPH),
+        dcc.Graph(id="correlation-figure", figure=corr, config=_GRAPH),
         html.H3("pH window"),
-        html.Div(id="window-status", className="status"),
-        html.Ul(id="window-reasons"),
-        dcc.Graph(id="window-figure", figure=empty_figure("choose a result"), config=_GRAPH),
+        html.Div(status, id="window-status", className="status"),
+        html.Ul(reasons, id="window-reasons"),
+        dcc.Graph(id="window-figure", figure=window, config=_GRAPH),
         html.H3("Design space over pH and a second condition"),
-        dcc.Graph(id="map-figure", figure=empty_figure("choose a result"), config=_GRAPH),
+        dcc.Graph(id="map-figure", figure=drawn_map, config=_GRAPH),
         html.H3("Fitted curves over data"),
-        dcc.Dropdown(id="fit-run", placeholder="choose a run", clearable=False, style={"maxWidth": "320px"}),
-        html.Div(id="fit-message", className="message"),
-        dcc.Graph(id="fit-figure", figure=empty_figure("choose a result"), config=_GRAPH),
+        dcc.Dropdown(id="fit-run", options=runs[0], value=runs[1], placeholder="choose a run", clearable=False,
+                     style={"maxWidth": "320px"}),
+        html.Div(runs[2], id="fit-message", className="message"),
+        dcc.Graph(id="fit-figure", figure=curves, config=_GRAPH),
         html.H3("History"),
         html.P(HISTORY_HINT, id="history-hint", className="message"),
-        dcc.Store(id="results-drawn"),
+        dcc.Store(id="results-drawn", data=drawn),
     ])
+
+
+def mounted(state, name) -> html.Div:
+    """The tab's page as it is put into the page on first opening: filled in for the newest result of
+    campaign ``name`` (one round trip, instead of one for the list, then the views, then the curves)."""
+    choice = _listing(state, name, None)
+    result = choice[1]
+    try:
+        key = _drawn_key(state, name, result) if name and result else None
+    except SpeciakinError:
+        key = None
+    runs = _runs(state, name, result)
+    return layout((choice, _show(state, name, result, key), runs, _curves(state, name, result, runs[1])))
+
+
+def prefetch_newest(state, name) -> None:
+    """Start loading the newest result of campaign ``name`` in the background (:func:`_prefetch`)."""
+    try:
+        folder = state.folder(name)
+        names = result_folders(folder)
+        if names:
+            _prefetch(state, *_result_folder(state, name, names[0]))
+    except SpeciakinError:
+        pass  # the results tab says why when it is opened
+
+
+def _blank_show(text: str) -> tuple:
+    """The views of no result: (rows, warnings, correlation, status, reasons, window, map, message, key)."""
+    return [], [], empty_figure(text), "", [], empty_figure(text), empty_figure(text), "", None
 
 
 def _interval(pair) -> str:
@@ -218,22 +253,71 @@ def _window_views(window):
     return status, reasons, window_figure(window), drawn
 
 
+def _listing(state, name, current) -> tuple[list[dict], str | None]:
+    """(result options, the chosen one: ``current`` when listed, else the newest) of campaign ``name``;
+    the chosen one is loaded in the background."""
+    if not name:
+        return [], None
+    try:
+        folder = state.folder(name)
+        names = result_folders(folder)
+    except SpeciakinError:
+        return [], None
+    chosen = current if current in names else (names[0] if names else None)
+    if chosen:
+        _prefetch(state, *_result_folder(state, name, chosen))
+    return [{"label": n, "value": n} for n in names], chosen
+
+
+def _show(state, name, result, key) -> tuple:
+    """Every view but the curves of ``result`` (:func:`_views`), its message and drawn ``key``."""
+    if not name or not result:
+        return (*_blank_show("no result chosen")[:7], "no result yet: start a fit job on the Jobs tab", None)
+    try:
+        _, out = _result_folder(state, name, result)
+        views = _views(state, out)
+    except (SpeciakinError, OSError, ValueError) as exc:
+        return (*_blank_show("no result chosen")[:7], f"error: {exc}", None)
+    return *views, f"result {result}", key
+
+
+def _runs(state, name, result) -> tuple[list[dict], str | None, str]:
+    """(run options, first run, note on the curves' source) of ``result``."""
+    if not name or not result:
+        return [], None, ""
+    try:
+        folder, out = _result_folder(state, name, result)
+        predictions, _ = _results(state, folder, out)
+    except (SpeciakinError, OSError, ValueError) as exc:
+        return [], None, f"the fitted curves cannot be drawn: {exc}"
+    names = [r.name for r in predictions.runs] if predictions else []
+    note = f"curves: {predictions.source}" if predictions else ""
+    return [{"label": r, "value": r} for r in names], names[0] if names else None, note
+
+
+def _curves(state, name, result, run_name):
+    """The fitted curves of run ``run_name`` of ``result`` over its data."""
+    if not (run_name and result and name):
+        return empty_figure("choose a run")
+    try:
+        folder, out = _result_folder(state, name, result)
+        predictions, model = _results(state, folder, out)
+        prediction = predictions.run(run_name)
+    except (SpeciakinError, OSError, ValueError, StopIteration) as exc:
+        return empty_figure(f"cannot plot: {exc}")
+    from speciakin.palette import display_names, model_species_colors
+
+    observations = [o for o in predictions.observations if o.run == run_name]
+    return fit_run_figure(prediction, observations, model_species_colors(model), display_names(model))
+
+
 def register(app, state) -> None:
+    # none of these runs when the tab's page is put in: it comes filled in (:func:`mounted`)
     @app.callback(Output("result-choice", "options"), Output("result-choice", "value"),
                   Input("campaign-choice", "value"), Input("result-refresh", "n_clicks"),
-                  State("result-choice", "value"))
+                  State("result-choice", "value"), prevent_initial_call=True)
     def listing(name, _clicks, current):
-        if not name:
-            return [], None
-        try:
-            folder = state.folder(name)
-            names = result_folders(folder)
-        except SpeciakinError:
-            return [], None
-        chosen = current if current in names else (names[0] if names else None)
-        if chosen:
-            _prefetch(state, *_result_folder(state, name, chosen))
-        return [{"label": n, "value": n} for n in names], chosen
+        return _listing(state, name, current)
 
     @app.callback(Output("parameter-table", "rowData"), Output("fit-warnings", "children"),
                   Output("correlation-figure", "figure"),
@@ -241,51 +325,21 @@ def register(app, state) -> None:
                   Output("window-figure", "figure"), Output("map-figure", "figure"),
                   Output("result-message", "children"), Output("results-drawn", "data"),
                   Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"),
-                  State("results-drawn", "data"))
+                  State("results-drawn", "data"), prevent_initial_call=True)
     def show(result, tab, name, drawn):
-        key = _unchanged(state, tab, name, result, drawn)
-        blank = ([], [], empty_figure("no result chosen"), "", [], empty_figure("no result chosen"),
-                 empty_figure("no result chosen"))
-        if not name or not result:
-            return *blank, "no result yet: start a fit job on the Jobs tab", None
-        try:
-            _, out = _result_folder(state, name, result)
-            views = _views(state, out)
-        except (SpeciakinError, OSError, ValueError) as exc:
-            return *blank, f"error: {exc}", None
-        return *views, f"result {result}", key
+        return _show(state, name, result, _unchanged(state, tab, name, result, drawn))
 
     @app.callback(Output("fit-run", "options"), Output("fit-run", "value"), Output("fit-message", "children"),
                   Input("result-choice", "value"), Input("tabs", "value"), State("campaign-choice", "value"),
-                  State("results-drawn", "data"))
+                  State("results-drawn", "data"), prevent_initial_call=True)
     def runs(result, tab, name, drawn):
         _unchanged(state, tab, name, result, drawn)
-        if not name or not result:
-            return [], None, ""
-        try:
-            folder, out = _result_folder(state, name, result)
-            predictions, _ = _results(state, folder, out)
-        except (SpeciakinError, OSError, ValueError) as exc:
-            return [], None, f"the fitted curves cannot be drawn: {exc}"
-        names = [r.name for r in predictions.runs] if predictions else []
-        note = f"curves: {predictions.source}" if predictions else ""
-        return [{"label": r, "value": r} for r in names], names[0] if names else None, note
+        return _runs(state, name, result)
 
     @app.callback(Output("fit-figure", "figure"), Input("fit-run", "value"), State("result-choice", "value"),
-                  State("campaign-choice", "value"))
+                  State("campaign-choice", "value"), prevent_initial_call=True)
     def curves(run_name, result, name):
-        if not (run_name and result and name):
-            return empty_figure("choose a run")
-        try:
-            folder, out = _result_folder(state, name, result)
-            predictions, model = _results(state, folder, out)
-            prediction = predictions.run(run_name)
-        except (SpeciakinError, OSError, ValueError, StopIteration) as exc:
-            return empty_figure(f"cannot plot: {exc}")
-        from speciakin.palette import display_names, model_species_colors
-
-        observations = [o for o in predictions.observations if o.run == run_name]
-        return fit_run_figure(prediction, observations, model_species_colors(model), display_names(model))
+        return _curves(state, name, result, run_name)
 
 
 def _unchanged(state, tab, name, result, drawn) -> str | None:

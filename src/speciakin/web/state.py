@@ -16,7 +16,7 @@ from speciakin.web.paths import campaign_inputs, inside_root
 
 __all__ = ["WebState", "file_stamp"]
 
-_CACHE_SIZE = 16
+_CACHE_SIZE = 32  # a campaign's check, tables, model, result views and a figure per run
 
 
 def file_stamp(paths: list[Path]) -> tuple:

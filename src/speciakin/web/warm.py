@@ -17,7 +17,7 @@ from __future__ import annotations
 import logging
 import threading
 
-__all__ = ["prepare", "warm_up"]
+__all__ = ["prepare", "warm_up", "first_page"]
 
 log = logging.getLogger(__name__)
 _DONE = threading.Event()
@@ -57,3 +57,16 @@ def prepare() -> None:
         if not _DONE.is_set():
             warm_up()
             _DONE.set()
+
+
+def first_page(app) -> None:
+    """Make the page a first visitor gets once (the check and raw data of the campaign it opens on, kept in
+    the server's caches), so that the first visit waits for none of it."""
+    from speciakin.errors import SpeciakinError
+
+    layout = app.layout
+    if callable(layout):
+        try:
+            layout()
+        except (SpeciakinError, OSError, ValueError) as exc:  # only a head start: never fatal
+            log.debug("first page not made ahead: %s", exc)
