@@ -18,6 +18,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
+from speciakin.report.figures._memo import remembered
 from speciakin.report.figures._style import TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
 from speciakin.palette import NEUTRAL, OKABE_ITO
 
@@ -36,6 +37,7 @@ def _names(names: Sequence[str], count: int, key: str) -> list[str]:
     return names
 
 
+@remembered
 def profile_figure(
     values: Mapping[str, Sequence[float]],
     delta_chi_square: Mapping[str, Sequence[float]],
@@ -107,6 +109,7 @@ def profile_plot(values, delta_chi_square, best=None, threshold: float = PROFILE
     return fig
 
 
+@remembered
 def trace_figure(
     samples: Sequence,
     names: Sequence[str],
@@ -143,6 +146,7 @@ def trace_figure(
     return to_png(fig)
 
 
+@remembered
 def corner_figure(
     samples: Sequence,
     names: Sequence[str],
@@ -222,6 +226,7 @@ def corner_plot(samples, names, truths=None, bins: int = 30):
     return fig
 
 
+@remembered
 def correlation_figure(matrix: Sequence[Sequence[float]], names: Sequence[str], annotate: bool | None = None) -> bytes:
     """Heat map of a parameter correlation matrix (values -1 to 1).
 
