@@ -17,10 +17,13 @@ start and end of every step; with a load above the core count read CPU time rath
 Also: ``--startup`` times, in a fresh process, the import of the command line and the first
 likelihood from the warm cache (what ``speciakin run`` pays before the check step);
 ``--profile FILE`` writes a cProfile of the job and prints the 30 largest own times;
-``--steps N`` runs a fixed-length posterior instead.
+``--steps N`` runs a fixed-length posterior instead; ``--compare REV`` runs the job of git revision
+REV (exported with ``git archive``, its own compiled cache, reused with ``--export DIR``) and of this
+worktree alternately, each in a fresh process, and prints both tables side by side with the ratio of
+CPU times (the CPU time is the figure to read on a crowded host).
 
 Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_demo_job.py [--steps N]
-      [--profile job.prof] [--startup]
+      [--profile job.prof] [--startup] [--compare REV --export DIR --rounds N]
 """
 
 from __future__ import annotations
@@ -190,20 +193,11 @@ def startup() -> None:
               f"likelihood from the warm cache {c} s; load {l0} -> {load()}")
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--steps", type=int, default=None, help="fixed posterior steps (default: until converged)")
-    parser.add_argument("--profile", default=None, help="write a cProfile of the job to this file")
-    parser.add_argument("--startup", action="store_true", help="also time import and cache load in a fresh process")
-    parser.add_argument("--seed", type=int, default=1)
-    args = parser.parse_args()
-
+def run_job(args) -> dict:
+    """One instrumented demo job in this process; prints its table and returns its figures."""
     from speciakin import pipeline
     from speciakin.demo import demo_dir
 
-    print(f"machine: {os.cpu_count()} cores, load average (1/5/15 min) {load()}")
-    if args.startup:
-        startup()
     inputs = pipeline.resolve_inputs(demo_dir())
     model, campaign, _ = pipeline.load_inputs(inputs)
     warm = pipeline.make_objective(model, campaign)
@@ -241,16 +235,18 @@ def main() -> None:
     lk = "      likelihood (campaign simulations)"
     derived["      prior and bookkeeping of the log-posterior"] = (clock.wall(lp) - clock.wall(lk),
                                                                   clock.cpu(lp) - clock.cpu(lk))
-    steps_total = sum(clock.wall(k) for k in ("check", "load inputs", "objective", "fit",
-                                                "predictions (fit curves, posterior band)", "fit figures",
-                                                "posterior", "posterior figures", "window", "report"))
-    derived["rest of the job"] = (clock.wall("whole job (run_all)") - steps_total, 0.0)
+    steps_total = [sum(f(k) for k in ("check", "load inputs", "objective", "fit",
+                                      "predictions (fit curves, posterior band)", "fit figures", "posterior",
+                                      "posterior figures", "window", "report")) for f in (clock.wall, clock.cpu)]
+    derived["rest of the job"] = (clock.wall("whole job (run_all)") - steps_total[0],
+                                  clock.cpu("whole job (run_all)") - steps_total[1])
     print(clock.table(derived))
     n = post.n_steps
     print(f"posterior: {post.n_walkers} walkers x {n} steps, stopped: {post.stop_reason} "
           f"({len(post.stop_checks)} checks at steps {[c['step'] for c in post.stop_checks]}); "
           f"{post.n_likelihood_evaluations} likelihood evaluations, "
-          f"{clock.wall(lk) / max(post.n_likelihood_evaluations, 1) * 1e3:.2f} ms wall each, "
+          f"{clock.wall(lk) / max(post.n_likelihood_evaluations, 1) * 1e3:.2f} ms wall, "
+          f"{clock.cpu(lk) / max(post.n_likelihood_evaluations, 1) * 1e3:.2f} ms CPU each, "
           f"{clock.rows.get(lk, [0, 0, 0])[2]} batches")
     print(f"  stopped: {post.stop_message}")
     t_post, t_job = clock.wall("posterior"), clock.wall("whole job (run_all)")
@@ -263,6 +259,72 @@ def main() -> None:
         import pstats
 
         pstats.Stats(args.profile).sort_stats("tottime").print_stats(30)
+    rows = {label: clock.rows[label][:2] for label in clock.order}
+    rows.update({label: list(v) for label, v in derived.items()})
+    return {"rows": rows, "order": clock.order + list(derived), "steps": int(n)}
+
+
+def compare(args) -> None:
+    """The job of revision ``args.compare`` (A) and of this worktree (B), alternately, in fresh processes."""
+    import json
+
+    root = Path(__file__).resolve().parents[1]
+    export = Path(args.export or tempfile.mkdtemp(prefix="speciakin-rev-"))
+    if not (export / "src").is_dir():
+        archive = subprocess.run(["git", "archive", args.compare, "src"], cwd=root, capture_output=True, check=True)
+        subprocess.run(["tar", "-x", "-C", str(export)], input=archive.stdout, check=True)
+    versions = {"A": (export / "src", export / ".numba_cache"),
+                "B": (root / "src", Path(os.environ.get("NUMBA_CACHE_DIR", root / ".numba_cache")))}
+    found: dict[str, list] = {"A": [], "B": []}
+    order = ["A", "B", "B", "A"] * args.rounds
+    for label in order[: 2 * args.rounds]:
+        src, cache = versions[label]
+        with tempfile.NamedTemporaryFile(suffix=".json") as out:
+            env = dict(os.environ, PYTHONPATH=str(src), NUMBA_CACHE_DIR=str(cache), MPLBACKEND="Agg")
+            command = [sys.executable, __file__, "--worker", out.name, "--seed", str(args.seed)]
+            if args.steps:
+                command += ["--steps", str(args.steps)]
+            print(f"--- {label} ({args.compare if label == 'A' else 'worktree'}), load {load()}", flush=True)
+            subprocess.run(command, env=env, check=True)
+            found[label].append(json.loads(Path(out.name).read_text()))
+    labels = found["B"][0]["order"]
+    print(f"\nA = {args.compare}, B = this worktree; median over {args.rounds} run(s) each; load now {load()}")
+    print(f"{'part':<52}{'A wall':>8}{'A CPU':>8}{'B wall':>8}{'B CPU':>8}{'B/A CPU':>9}")
+    for label in labels:
+        a = [r["rows"].get(label, [np.nan, np.nan]) for r in found["A"]]
+        b = [r["rows"].get(label, [np.nan, np.nan]) for r in found["B"]]
+        aw, ac = np.median([x[0] for x in a]), np.median([x[1] for x in a])
+        bw, bc = np.median([x[0] for x in b]), np.median([x[1] for x in b])
+        ratio = bc / ac if ac > 0.05 else np.nan
+        print(f"{label:<52}{aw:>8.2f}{ac:>8.2f}{bw:>8.2f}{bc:>8.2f}{ratio:>9.2f}")
+    print("posterior steps: A " + ", ".join(str(r["steps"]) for r in found["A"])
+          + "; B " + ", ".join(str(r["steps"]) for r in found["B"]))
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--steps", type=int, default=None, help="fixed posterior steps (default: until converged)")
+    parser.add_argument("--profile", default=None, help="write a cProfile of the job to this file")
+    parser.add_argument("--startup", action="store_true", help="also time import and cache load in a fresh process")
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--compare", default=None, metavar="REV",
+                        help="also run the job of git revision REV, alternately, each in a fresh process")
+    parser.add_argument("--rounds", type=int, default=1, help="runs of each version with --compare")
+    parser.add_argument("--export", default=None, help="folder of REV's export (reused, with its compiled cache)")
+    parser.add_argument("--worker", default=None, help=argparse.SUPPRESS)
+    args = parser.parse_args()
+
+    print(f"machine: {os.cpu_count()} cores, load average (1/5/15 min) {load()}")
+    if args.startup:
+        startup()
+    if args.compare:
+        compare(args)
+        return
+    figures = run_job(args)
+    if args.worker:
+        import json
+
+        Path(args.worker).write_text(json.dumps(figures))
 
 
 if __name__ == "__main__":
