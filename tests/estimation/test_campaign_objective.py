@@ -173,6 +173,29 @@ def test_jacobian_matches_fine_central_difference(model, campaign):
         assert np.linalg.norm(jac[:, j] - fd[:, j]) / scale < 1e-3
 
 
+def test_jacobian_columns_and_the_remembered_point_equal_the_full_jacobian(model, campaign):
+    # A column of the central-difference Jacobian depends on the point and the column alone (each
+    # parameter set of a batch is simulated on its own), so columns computed alone, in another order,
+    # or remembered from the last point equal the full Jacobian's bit for bit.
+    obj = CampaignObjective(model, campaign, parallel=False)
+    theta = np.array([-0.1, 1.2, -0.2])
+    full = obj.jacobian(theta)
+    fresh = CampaignObjective(model, campaign, parallel=False)
+    assert np.array_equal(fresh.jacobian(theta, columns=[2, 0]), full[:, [2, 0]])
+    assert np.array_equal(fresh.jacobian(theta, columns=[1]), full[:, [1]])  # the missing column added
+    calls = []
+    fresh.residuals_batch = lambda *a, **k: calls.append(1)  # nothing may be simulated from here on
+    assert np.array_equal(fresh.jacobian(theta), full)  # every column remembered
+    assert np.array_equal(fresh.jacobian(theta.copy(), columns=np.array([1, 2])), full[:, [1, 2]])
+    assert not calls
+    remembered = fresh.jacobian(theta)
+    remembered[:] = 0.0  # a caller changing its copy does not change what is remembered
+    assert np.array_equal(fresh.jacobian(theta), full)
+    other = theta + np.array([0.0, 0.0, 1e-9])  # another point is computed anew
+    with pytest.raises(TypeError):
+        fresh.jacobian(other)
+
+
 # ------------------------------------------------------------------ bad input
 
 def test_compound_mapped_to_unknown_molecule(model, campaign):

@@ -74,6 +74,30 @@ def test_user_jacobian_and_fixed_parameter():
     assert fit.n_varying == 1 and fit.jacobian_method == "user"
 
 
+def test_user_jacobian_of_selected_columns_gives_the_same_fit():
+    # A Jacobian function with a ``columns`` keyword is asked only for the varying columns; the fit
+    # (values, covariance, evaluations) is the same as with a function returning every column.
+    y, sigma = make_data(2)
+    asked = []
+
+    def full(b):
+        return -np.column_stack([1 - np.exp(-b[1] * T), b[0] * T * np.exp(-b[1] * T)]) / sigma[:, None]
+
+    def selected(b, columns=None):
+        asked.append(list(columns))
+        return full(b)[:, columns]
+
+    specs = [ParameterSpec("A", 2.0, vary=False), ParameterSpec("k", 0.1, 0.0, 5.0)]
+    residual = lambda b: (y - first_order(b)) / sigma  # noqa: E731
+    a = fit_least_squares(residual, specs, jacobian=full, starts=2, seed=0)
+    b = fit_least_squares(residual, specs, jacobian=selected, starts=2, seed=0)
+    assert asked and all(c == [1] for c in asked)
+    assert np.array_equal(a.value_vector, b.value_vector) and np.array_equal(a.covariance, b.covariance)
+    assert a.n_evaluations == b.n_evaluations
+    with pytest.raises(InputError, match="one column per requested column"):
+        fit_least_squares(residual, specs, jacobian=lambda b, columns=None: full(b), starts=1, seed=0)
+
+
 def test_nan_at_a_start_fails_that_start_only():
     y, sigma = make_data(3)
 

@@ -7,6 +7,7 @@ columns listed in ``columns`` (indices into ``values``).
 
 from __future__ import annotations
 
+import inspect
 from types import MappingProxyType
 from typing import Callable
 
@@ -18,6 +19,7 @@ __all__ = [
     "central_difference_jacobian",
     "complex_step_jacobian",
     "user_jacobian",
+    "takes_columns",
     "JACOBIAN_METHODS",
     "evaluate_jacobian",
 ]
@@ -157,20 +159,39 @@ def complex_step_jacobian(residual: Callable, values: np.ndarray, columns: np.nd
     return np.column_stack(cols)
 
 
+def takes_columns(function: Callable) -> bool:
+    """True when a user Jacobian accepts a ``columns`` keyword (and then returns only those columns)."""
+    try:
+        return "columns" in inspect.signature(function).parameters
+    except (TypeError, ValueError):  # no signature to read
+        return False
+
+
 def user_jacobian(function: Callable, values: np.ndarray, columns: np.ndarray | None = None,
                   n_residuals: int | None = None) -> np.ndarray:
-    """Call a user Jacobian ``function(values) -> (n, n_parameters)`` and keep ``columns``."""
+    """Call a user Jacobian and keep ``columns``.
+
+    ``function(values) -> (n, n_parameters)``; a function with a ``columns``
+    keyword is called as ``function(values, columns=columns) -> (n,
+    len(columns))`` and computes only the columns needed (e.g. a profile,
+    where one parameter is fixed).
+    """
     values = np.asarray(values, dtype=float)
+    columns = np.arange(values.size) if columns is None else np.asarray(columns, dtype=int)
+    selective = takes_columns(function)
     with np.errstate(all="ignore"):
-        jac = np.asarray(function(values), dtype=float)
-    if jac.ndim != 2 or jac.shape[1] != values.size or (n_residuals is not None and jac.shape[0] != n_residuals):
+        jac = np.asarray(function(values, columns=columns) if selective else function(values), dtype=float)
+    width = columns.size if selective else values.size
+    if jac.ndim != 2 or jac.shape[1] != width or (n_residuals is not None and jac.shape[0] != n_residuals):
         raise InputError("the Jacobian function returned an array of the wrong shape", Location(key="jacobian"),
-                         jac.shape, f"({n_residuals}, {values.size}): one row per residual, "
-                                    "one column per parameter (fixed ones included)")
+                         jac.shape, f"({n_residuals}, {width}): one row per residual, " + (
+                             "one column per requested column" if selective
+                             else "one column per parameter (fixed ones included)"))
     if not np.all(np.isfinite(jac)):
         raise SolverError("the Jacobian function returned NaN or infinite values")
-    columns = np.arange(values.size) if columns is None else np.asarray(columns, dtype=int)
-    return jac[:, columns]
+    # column-major either way (what selecting columns of a row-major array gives): the solvers' linear
+    # algebra rounds differently on another memory layout, and a fit must not depend on the Jacobian's kind
+    return np.asfortranarray(jac) if selective else jac[:, columns]
 
 
 #: Registry of named Jacobian methods (a callable is accepted in their place).

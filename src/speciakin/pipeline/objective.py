@@ -51,6 +51,7 @@ from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
 from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier
+from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_model, compile_runs
 
@@ -136,6 +137,7 @@ class CampaignObjective:
                              key="fit = true"), expected="at least one pKa, rate constant or energy with fit = true")
         self._build_observations()
         self._gather: tuple | None = None  # flat output indices of the observations (predict_batch)
+        self._last_jacobian: tuple | None = None  # Jacobian columns at the last point (jacobian)
 
     # ------------------------------------------------------------ set-up
     def _check_mapping(self) -> None:
@@ -392,38 +394,26 @@ class CampaignObjective:
         """Weighted residual vector for one fitted vector (the least-squares objective)."""
         return self.residuals_batch(np.asarray(theta, float)[None, :])[0]
 
-    def jacobian(self, theta: np.ndarray) -> np.ndarray:
-        """Central-difference Jacobian of :meth:`residuals`, all 2p perturbed
-        parameter sets simulated in one batch (spread over the cores) at a
-        tighter integrator tolerance.
+    def jacobian(self, theta: np.ndarray, columns=None) -> np.ndarray:
+        """Central-difference Jacobian of :meth:`residuals`, (n_data, p) or only ``columns``.
 
-        Step h_j = 1e-3 * max(1, |theta_j|) (integrator noise at rtol 1e-8
-        divided by h stays near 1e-5; truncation error O(h^2) near 1e-6),
-        kept inside the bounds by one-sided steps where needed, and where the run
-        cannot be simulated on one side (a titrant that would have to be withdrawn
-        there, for example): then the difference is taken on the other side.
+        All perturbed parameter sets are simulated in one batch (spread over
+        the cores) at a tighter integrator tolerance.  Step h_j = 1e-3 *
+        max(1, |theta_j|) (integrator noise at rtol 1e-8 divided by h stays
+        near 1e-5; truncation error O(h^2) near 1e-6), kept inside the bounds
+        by one-sided steps where needed, and where the run cannot be simulated
+        on one side (a titrant that would have to be withdrawn there, for
+        example): then the difference is taken on the other side.  The columns
+        of the last point are remembered (:mod:`speciakin.pipeline.objective_jacobian`).
         """
         theta = np.asarray(theta, float)
-        p = theta.size
-        h = 1e-3 * np.maximum(1.0, np.abs(theta))
+        cols = list(range(theta.size)) if columns is None else [int(c) for c in columns]
+        rtol = min(self.rtol, 1e-8)
         lo = np.array([q.lower for q in self.parameters])
         hi = np.array([q.upper for q in self.parameters])
-        plus = np.minimum(theta + h, hi)
-        minus = np.maximum(theta - h, lo)
-        sets = np.repeat(theta[None, :], 2 * p, axis=0)
-        for j in range(p):
-            sets[2 * j, j] = plus[j]
-            sets[2 * j + 1, j] = minus[j]
-        r = self.residuals_batch(sets, rtol=min(self.rtol, 1e-8))
-        failed = ~np.all(np.isfinite(r), axis=1)
-        if failed.any():  # one-sided differences from theta where one side failed
-            r0 = self.residuals_batch(theta[None, :], rtol=min(self.rtol, 1e-8))[0]
-            up, down = np.where(failed[1::2], theta, minus), np.where(failed[0::2], theta, plus)
-            r[1::2][failed[1::2]], r[0::2][failed[0::2]] = r0, r0
-            plus, minus = down, up
-        jac = np.empty((r.shape[1], p))
-        for j in range(p):
-            jac[:, j] = (r[2 * j] - r[2 * j + 1]) / (plus[j] - minus[j])
+        jac, self._last_jacobian = remembered_columns(
+            getattr(self, "_last_jacobian", None), (theta.tobytes(), rtol), cols,
+            lambda missing: central_jacobian(self.residuals_batch, theta, lo, hi, rtol, missing))
         return jac
 
     def log_likelihood_batch(self, theta: np.ndarray) -> np.ndarray:

@@ -43,10 +43,17 @@ def process_outcome_function(objective, process) -> Callable:
     n_mol = compiled.n_molecules
     names = compiled.species_names[:n_mol]
 
+    last: dict = {}  # the runs of the last grid and factor: the batches of draws of one scan share them
+
     def outcome_fn(draws, ph_grid, factor=None):
         draws = np.atleast_2d(np.asarray(draws, float))
-        runs = process_runs(process, model, list(np.asarray(ph_grid, float)), factor)
-        cruns = compile_runs(compiled, runs, [np.array([0.0, float(r.end_time)]) for r in runs])
+        grid = np.asarray(ph_grid, float)
+        key = (grid.tobytes(), factor)
+        if last.get("key") != key:
+            runs = process_runs(process, model, list(grid), factor)
+            last.update(key=key, runs=runs, cruns=compile_runs(
+                compiled, runs, [np.array([0.0, float(r.end_time)]) for r in runs]))
+        runs, cruns = last["runs"], last["cruns"]
         q, _, _ = objective.kernel_inputs(draws)
         shape = (draws.shape[0], len(runs))
         res = simulate_batch(compiled, cruns, q, np.zeros(shape), np.ones(shape), objective.rtol,

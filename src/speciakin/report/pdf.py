@@ -189,7 +189,21 @@ def _key_values(block: KeyValues, styles, width: float):
     return table
 
 
-def _figure(block: Figure, styles, width: float, height: float):
+def _empty_box(width: float, height: float):
+    """A flowable that takes ``width`` x ``height`` [pt] on the page and draws nothing."""
+    from reportlab.platypus import Flowable
+
+    box = Flowable()
+    box.width, box.height = width, height
+    box.wrap = lambda available_width, available_height: (width, height)
+    box.draw = lambda: None
+    return box
+
+
+def _figure(block: Figure, styles, width: float, height: float, placeholder: bool = False):
+    """The figure scaled to the frame, with its caption; ``placeholder``: an empty box of the
+    image's size instead of the image (the page-counting pass lays out the same pages without
+    encoding any image)."""
     from reportlab.lib.utils import ImageReader
     from reportlab.platypus import Image, KeepTogether
 
@@ -204,14 +218,17 @@ def _figure(block: Figure, styles, width: float, height: float):
     if draw_height > height * 0.8:
         draw_height = height * 0.8
         draw_width = draw_height * pixel_width / pixel_height
-    image = Image(io.BytesIO(data), width=draw_width, height=draw_height)
+    if placeholder:
+        image = _empty_box(draw_width, draw_height)
+    else:
+        image = Image(io.BytesIO(data), width=draw_width, height=draw_height)
     parts = [image]
     if block.caption:
         parts.append(_p(block.caption, styles["caption"]))
     return KeepTogether(parts)
 
 
-def _block(block: Block, styles, width: float, height: float) -> list:
+def _block(block: Block, styles, width: float, height: float, placeholder: bool = False) -> list:
     from reportlab.platypus import ListFlowable, ListItem
 
     kind = block.block_kind
@@ -222,7 +239,7 @@ def _block(block: Block, styles, width: float, height: float) -> list:
     if kind == "table":
         return _table(block, styles, width)
     if kind == "figure":
-        return [_figure(block, styles, width, height)]
+        return [_figure(block, styles, width, height, placeholder)]
     if kind == "callout":
         return [_callout(block, styles, width)]
     if kind == "bullets":
@@ -253,15 +270,24 @@ def pdf_bytes(doc: ReportDocument) -> bytes:
     """The complete PDF of ``doc`` as bytes.
 
     The document is laid out twice: the first pass counts the pages so that
-    the second can print "page i of n" in every footer.
+    the second can print "page i of n" in every footer.  The first pass lays
+    out empty boxes of each figure's size (the same pages, no image encoded);
+    the second writes the images as binary Flate streams (not ASCII85 text,
+    whose pure-Python encoder took most of the rendering time).
     """
-    total = None
-    for _ in range(2):
-        data, total = _build(doc, total)
+    from reportlab import rl_config
+
+    _, total = _build(doc, None, placeholders=True)
+    saved = rl_config.useA85
+    rl_config.useA85 = 0
+    try:
+        data, _ = _build(doc, total)
+    finally:
+        rl_config.useA85 = saved
     return data
 
 
-def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
+def _build(doc: ReportDocument, total: int | None, placeholders: bool = False) -> tuple[bytes, int]:
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, SimpleDocTemplate
@@ -309,7 +335,7 @@ def _build(doc: ReportDocument, total: int | None) -> tuple[bytes, int]:
         for block in section.blocks:
             if getattr(block, "kind", None) == "decision":
                 continue  # decision callouts are shown once, in the summary on page 1
-            story.extend(_block(block, styles, width, height))
+            story.extend(_block(block, styles, width, height, placeholders))
     footer = _footer(doc.title, styles["regular"], total)
     template.build(story, onFirstPage=footer, onLaterPages=footer)
     return buffer.getvalue(), template.page

@@ -30,15 +30,20 @@ def fit_figures(model: Any, predictions: Any, fit: Any, out: Path) -> list[Path]
 
 
 def posterior_figures(posterior: Any, out: Path) -> list[Path]:
-    """Trace and corner plots of a posterior into ``out/figures``."""
+    """Trace and corner plots of a posterior into ``out/figures`` (the report's plots, drawn once:
+    :mod:`speciakin.report.figures._memo`)."""
+    import numpy as np
+
+    from speciakin.report.assemble.posterior import corner_samples
     from speciakin.report.figures import corner_figure, trace_figure
 
-    burn = min(int(posterior.burn_in), posterior.chain.shape[0] - 1)
-    paths = [atomic_write_bytes(_figures(out) / "posterior_trace.png",
-                                trace_figure(posterior.chain, posterior.parameter_names, burn_in=burn))]
+    names = list(posterior.parameter_names)
+    chain = np.asarray(posterior.chain, float)
+    burn = min(max(int(posterior.burn_in), 0), chain.shape[0] - 1)
+    paths = [atomic_write_bytes(_figures(out) / "posterior_trace.png", trace_figure(chain, names, burn_in=burn))]
     if posterior.samples.shape[0] > 2 * posterior.samples.shape[1]:
         paths.append(atomic_write_bytes(_figures(out) / "posterior_corner.png",
-                                        corner_figure(posterior.samples, posterior.parameter_names)))
+                                        corner_figure(corner_samples(posterior.samples), names)))
     return paths
 
 

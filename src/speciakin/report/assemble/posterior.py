@@ -30,10 +30,20 @@ __all__ = [
     "diagnostics_table",
     "profile_blocks",
     "CORNER_MAX_SAMPLES",
+    "corner_samples",
 ]
 
 #: Most samples drawn in the corner plot (thinned evenly beyond this).
 CORNER_MAX_SAMPLES = 4000
+
+
+def corner_samples(samples) -> np.ndarray:
+    """The posterior samples the corner plot draws: at most :data:`CORNER_MAX_SAMPLES`, evenly thinned
+    (the report and the figures folder draw the same plot, so it is drawn once per job)."""
+    samples = np.asarray(samples, float)
+    if samples.shape[0] > CORNER_MAX_SAMPLES:
+        samples = samples[np.linspace(0, samples.shape[0] - 1, CORNER_MAX_SAMPLES).astype(int)]
+    return samples
 
 
 #: Plain words for the sampler's stop reasons (estimation/stopping.py).
@@ -136,9 +146,7 @@ def convergence_section(fit: Any, posterior: Any) -> Section:
             blocks.append(Figure(trace_figure(chain, names, burn_in=burn_in),
                                  "Walker traces against stored step; the steps before the dashed "
                                  "burn-in line are discarded."))
-        samples = np.asarray(posterior.samples, float)
-        if samples.shape[0] > CORNER_MAX_SAMPLES:
-            samples = samples[np.linspace(0, samples.shape[0] - 1, CORNER_MAX_SAMPLES).astype(int)]
+        samples = corner_samples(posterior.samples)
         if samples.shape[0] >= 10:
             blocks.append(Figure(corner_figure(samples, names),
                                  "Posterior samples: pairwise densities and marginal histograms."))

@@ -18,6 +18,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
+from speciakin.report.figures._memo import remembered
 from speciakin.report.figures._style import TEXT_WIDTH_IN, as_array, new_figure, same_length, to_png
 from speciakin.palette import NEUTRAL, OKABE_ITO
 
@@ -36,6 +37,7 @@ def _names(names: Sequence[str], count: int, key: str) -> list[str]:
     return names
 
 
+@remembered
 def profile_figure(
     values: Mapping[str, Sequence[float]],
     delta_chi_square: Mapping[str, Sequence[float]],
@@ -59,7 +61,7 @@ def profile_figure(
     units
         Per parameter: unit shown in the axis label.
     """
-    return to_png(profile_plot(values, delta_chi_square, best, threshold, units, columns))
+    return to_png(profile_plot(values, delta_chi_square, best, threshold, units, columns, draw=False))
 
 
 def _wrap(text: str, width: int) -> str:
@@ -69,9 +71,10 @@ def _wrap(text: str, width: int) -> str:
 
 
 def profile_plot(values, delta_chi_square, best=None, threshold: float = PROFILE_THRESHOLD_95, units=None,
-                 columns: int = 2):
-    """The matplotlib figure of :func:`profile_figure` (drawn, not yet saved): one panel per
-    parameter, its name as the panel title (wrapped), few ticks so no label overlaps."""
+                 columns: int = 2, draw: bool = True):
+    """The matplotlib figure of :func:`profile_figure` (drawn when ``draw``, not yet saved): one panel
+    per parameter, its name as the panel title (wrapped), few ticks so no label overlaps.  Saving
+    draws it anyway, so :func:`profile_figure` skips the first drawing."""
     from matplotlib.ticker import MaxNLocator
 
     names = list(values)
@@ -103,10 +106,12 @@ def profile_plot(values, delta_chi_square, best=None, threshold: float = PROFILE
         ax.yaxis.set_major_locator(MaxNLocator(4))
     for ax in axes[len(names):]:
         ax.set_visible(False)
-    fig.canvas.draw()
+    if draw:
+        fig.canvas.draw()
     return fig
 
 
+@remembered
 def trace_figure(
     samples: Sequence,
     names: Sequence[str],
@@ -143,6 +148,7 @@ def trace_figure(
     return to_png(fig)
 
 
+@remembered
 def corner_figure(
     samples: Sequence,
     names: Sequence[str],
@@ -162,11 +168,12 @@ def corner_figure(
     bins
         Histogram bins per axis.
     """
-    return to_png(corner_plot(samples, names, truths, bins))
+    return to_png(corner_plot(samples, names, truths, bins, draw=False))
 
 
-def corner_plot(samples, names, truths=None, bins: int = 30):
-    """The matplotlib figure of :func:`corner_figure` (drawn, not yet saved).
+def corner_plot(samples, names, truths=None, bins: int = 30, draw: bool = True):
+    """The matplotlib figure of :func:`corner_figure` (drawn when ``draw``, not yet saved; saving
+    draws it anyway, so :func:`corner_figure` skips the first drawing).
 
     Axes are labelled by parameter number; the key (number = name) sits in
     the empty upper triangle, and each axis keeps at most three ticks, so no
@@ -218,10 +225,12 @@ def corner_plot(samples, names, truths=None, bins: int = 30):
         chars = max(12, int(0.9 * size * (n_par - 1) / n_par / (0.55 * (small + 1) / 72.0)) - 5)
         key = "\n".join(f"({i + 1}) {_wrap(n, chars)}" for i, n in enumerate(names))
         fig.text(0.98, 0.98, key, ha="right", va="top", fontsize=small + 1, linespacing=1.3, multialignment="left")
-    fig.canvas.draw()
+    if draw:
+        fig.canvas.draw()
     return fig
 
 
+@remembered
 def correlation_figure(matrix: Sequence[Sequence[float]], names: Sequence[str], annotate: bool | None = None) -> bytes:
     """Heat map of a parameter correlation matrix (values -1 to 1).
 
