@@ -108,12 +108,13 @@ def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
     from numba import njit
 
     from speciakin.chemistry import equilibrium as eq
+    from speciakin.chemistry.flat_layout import flat_sites
     from speciakin.simulation import speciation_kernel
 
     assert speciation_kernel.solve_charge_balance is eq.solve_charge_balance
     species = [eq.IonizableSpecies("amine", [9.6, 4.1], [[0.0, 0.8], [0.8, 0.0]], [1.0, 0.0], [0.0, -1.0]),
                eq.IonizableSpecies("acid", [4.76], np.zeros((1, 1)), [0.0], [-1.0])]  # invented mixture
-    sites = eq._flat_sites(species, 0.0)
+    sites = flat_sites(species, 0.0)
     amounts = np.array([0.02, 0.05, -0.03])  # [mol/L]; the last is the net strong-ion charge
     charges = np.array([0.0, 0.0, 1.0])
     compiled = njit(lambda *a: speciation_kernel.solve_charge_balance(*a))

@@ -50,6 +50,7 @@ import numpy as np
 
 from speciakin.chemistry import microstates as ms
 from speciakin.chemistry import water
+from speciakin.chemistry.flat_layout import flat_sites
 from speciakin.chemistry.microstate_formulas import PH_HIGH, PH_LOW, solve_charge_balance
 from speciakin.chemistry.model import ACTIVITY_MODELS, Model, Molecule
 from speciakin.errors import InputError, Location, SolverError
@@ -293,39 +294,6 @@ def charge_balance(ph, tables, concentrations, strong_ion_charge, pkw_value,
     return f, dfdp, scale
 
 
-def _flat_sites(species, lg1):
-    """The molecules laid out for :func:`~speciakin.chemistry.microstate_formulas.solve_charge_balance`,
-    with the activity coefficients of ``lg1`` folded in (see :func:`_solve_fixed_gamma`).
-
-    Returns (pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
-    micro_charge, micro_protons): every site pair is listed (W = 0 where none is given).
-    """
-    k_davies = -lg1
-    pka, site_start, micro_start, pair_a, pair_b, pair_w, pair_start, charge, protons = \
-        [], [0], [0], [], [], [], [0], [], []
-    for sp in species:
-        n = sp.n_sites
-        z0 = float(sp.fixed_charge) + float(np.sum(sp.charge_deprotonated))
-        # Davies: -log10 gamma(z) = K z^2 with z = z0 + N; K (z0 + N)^2 = const + K (2 z0 + 1) N
-        # + 2 K (pairs of bound protons), so the activities shift every pKa and every pair's W
-        pka.extend(np.asarray(sp.pka, dtype=float) + (k_davies * (2.0 * z0 + 1.0) + lg1))
-        for i in range(n):
-            for j in range(i + 1, n):
-                pair_a.append(i)
-                pair_b.append(j)
-                pair_w.append(float(sp.interaction[i, j]) - 2.0 * k_davies)
-        charge.extend(ms.microstate_charges(sp.charge_protonated, sp.charge_deprotonated, sp.fixed_charge)
-                      if n else [z0])
-        protons.extend(ms.bound_protons(n))
-        site_start.append(len(pka))
-        micro_start.append(len(charge))
-        pair_start.append(len(pair_a))
-    as_int = lambda x: np.asarray(x, dtype=np.int64)  # noqa: E731
-    return (np.asarray(pka, dtype=float), as_int(site_start), as_int(micro_start), as_int(pair_a), as_int(pair_b),
-            np.asarray(pair_w, dtype=float), as_int(pair_start), np.asarray(charge, dtype=float),
-            np.asarray(protons, dtype=float))
-
-
 def _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets, start):
     """pH of the charge balance at fixed activity coefficients: the one solve of
     :func:`~speciakin.chemistry.microstate_formulas.solve_charge_balance` (run as
@@ -333,9 +301,10 @@ def _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets, s
 
     The solve works in p' = pH + log10 gamma1 with pKw' = pKw + 2 log10 gamma1
     (so that its 10^-p' and Kw'/10^-p' are the concentrations [H+] and [OH-])
-    and with the Davies shifts folded into the site pKa and W (:func:`_flat_sites`).
+    and with the Davies shifts folded into the site pKa and W
+    (:func:`~speciakin.chemistry.flat_layout.flat_sites`).
     """
-    sites = _flat_sites(species, lg1)
+    sites = flat_sites(species, lg1)
     n_mol = len(species)
     n_micro = int(sites[2][-1])
     amounts = np.append(np.asarray(conc, dtype=float), strong)
