@@ -142,3 +142,13 @@ def test_the_report_only_renders():
             if isinstance(node, ast.Attribute) and node.attr in forbidden:
                 found.append(f"{path.name}:{node.lineno} .{node.attr}")
     assert not found, "\n".join(found)
+
+
+#: Longest module DEVELOPERS.md allows (its style rules: one concern per module).
+MAX_MODULE_LINES = 500
+
+
+def test_no_module_is_over_the_line_limit():
+    long = {module_name(p): n for p in (SRC / "speciakin").rglob("*.py")
+            if (n := len(p.read_text(encoding="utf-8").splitlines())) > MAX_MODULE_LINES}
+    assert long == {}
