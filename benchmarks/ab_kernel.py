@@ -17,7 +17,10 @@ Workloads (compiled and called once before any timing):
 ``demo1``
     the residuals of the bundled (invented) demo campaign, one set, one core;
 ``demo32``
-    the demo's log-likelihood of 32 sets over all cores.
+    the demo's log-likelihood of 32 sets over all cores;
+``like1``, ``like64`` (on request)
+    the demo's log-likelihood of one set on one core and of 64 sets over
+    all cores (the figures of issue 16; ``ab_demo_likelihood.py``).
 
 Why one process per version: loaded into one process (as earlier versions of
 this script did, each copy under a renamed package), two identical versions
@@ -66,6 +69,8 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
 WORKLOADS = ("bench", "demo1", "demo32")
+#: Further workloads, on request (``--workloads``; ``ab_demo_likelihood.py`` uses them).
+EXTRA_WORKLOADS = ("like1", "like64")
 
 
 # ---------------------------------------------------------------- the worker (one per version)
@@ -128,13 +133,28 @@ def demo1_workload():
     return _keeping_last(lambda: objective.residuals(theta))
 
 
-def demo32_workload():
+def _demo_likelihood(n_sets: int, parallel: bool):
+    """The demo's log-likelihood of ``n_sets`` sets (the start, then sets scattered 1 % around it)."""
     objective = demo_objective()
-    objective.parallel = True
+    objective.parallel = parallel
     theta = objective.start
     rng = np.random.default_rng(7)
-    sets = theta + 0.01 * rng.standard_normal((32, theta.size)) * np.maximum(np.abs(theta), 1e-3)
+    sets = theta + 0.01 * rng.standard_normal((n_sets, theta.size)) * np.maximum(np.abs(theta), 1e-3)
+    if n_sets == 1:
+        sets = theta[None, :]
     return _keeping_last(lambda: objective.log_likelihood_batch(sets))
+
+
+def demo32_workload():
+    return _demo_likelihood(32, True)
+
+
+def like1_workload():
+    return _demo_likelihood(1, False)
+
+
+def like64_workload():
+    return _demo_likelihood(64, True)
 
 
 def worker(workloads: list[str], result_file: str) -> None:
@@ -146,7 +166,8 @@ def worker(workloads: list[str], result_file: str) -> None:
 
     calls = {}
     saved = {}
-    builders = {"bench": bench_workload, "demo1": demo1_workload, "demo32": demo32_workload}
+    builders = {"bench": bench_workload, "demo1": demo1_workload, "demo32": demo32_workload,
+                "like1": like1_workload, "like64": like64_workload}
     for name in workloads:
         call, result = builders[name]()
         t0 = time.perf_counter()
@@ -289,9 +310,10 @@ def main() -> None:
                              "digest) and reuse them in later runs: no recompiling of an unchanged version")
     args = parser.parse_args()
     workloads = [w for w in args.workloads.split(",") if w]
-    unknown = sorted(set(workloads) - set(WORKLOADS))
+    unknown = sorted(set(workloads) - set(WORKLOADS + EXTRA_WORKLOADS))
     if unknown:
-        parser.error(f"unknown workload(s) {', '.join(unknown)}; expected some of {', '.join(WORKLOADS)}")
+        parser.error(f"unknown workload(s) {', '.join(unknown)}; expected some of "
+                     f"{', '.join(WORKLOADS + EXTRA_WORKLOADS)}")
     with tempfile.TemporaryDirectory(prefix="speciakin_ab_") as tmp:
         if args.keep:
             folders = [Path(args.keep).resolve() / f"{'ab'[i]}-{version_key(v)}" for i, v in enumerate((args.a, args.b))]
