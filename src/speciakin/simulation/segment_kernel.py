@@ -67,7 +67,7 @@ from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, C
                                          CTX_SECOND, CTX_SECOND_CONC, CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T,
                                          CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, C_PH_SLOPE, WS_CACHE)
 from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, time_speciation
-from speciakin.simulation.smooth_rhs_kernel import (cubic_slopes, cubic_values, evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
+from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
                                                     smooth_time_derivative, stoichiometry)
 from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
@@ -93,14 +93,9 @@ def smooth_point(t, y, f, prob):
     the coefficients and their time derivatives at t, then the mass-action right-hand side."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, at) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
     if varying:
-        if t == at[0]:
-            # the last stage of the step was at this time: its values are in cst
-            cubic_slopes(poly, in_logs, (t - mid) * inv_half, cst, dc)
-        else:
-            evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
-        at[0] = math.nan
+        evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
         for c in range(poly.shape[0]):
             dc[c] *= inv_half
     return smooth_rhs(y, f, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
@@ -109,17 +104,12 @@ def smooth_point(t, y, f, prob):
 
 @leaf_kernel(inline="always")
 def smooth_stage(t, ytmp, y, f, prob):
-    """f = dy/dt at a stage point (the coefficients' time derivatives are not needed there).
-
-    The coefficients are evaluated once per distinct time: Rodas5's last three
-    stages are all at t + h, the next step point (``at[0]`` = the time whose
-    values ``cst`` holds)."""
+    """f = dy/dt at a stage point (the coefficients' time derivatives are not needed there)."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, at) = prob
-    if varying and t != at[0]:
-        cubic_values(poly, in_logs, (t - mid) * inv_half, cst)
-        at[0] = t
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+    if varying:
+        evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
     return smooth_rhs(ytmp, f, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
                       second_conc, feed_rate, feed_volume_rate, product, v)
 
@@ -130,7 +120,7 @@ def smooth_jacobian_at(t, y, f0, ft, jac_t, span, prob):
     (``cst``, ``dc``, ``product`` and ``v`` are those of (t, y): the last evaluation was there)."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, at) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
     smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
                     second_conc, v, active_of, jac_t)
     if varying:
@@ -144,7 +134,7 @@ def smooth_output(t, y, f, out, i_out, prob):
     """Output row at an interpolated state: the held pH, or the logged pH at t."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, at) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
     ph = held_ph if ph_is_held else interpolate(log_t, log_v, log_n, t) + ph_offset
     write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
     return True
@@ -161,7 +151,7 @@ def make_smooth_workspace(model, n):
     """Work arrays of :func:`integrate_smooth` for one run (n = state size):
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
     product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, is_active, active, passive,
-    active_of, jac_t, g, sub, piv, at).  The stoichiometry is filled in here."""
+    active_of, jac_t, g, sub, piv).  The stoichiometry is filled in here."""
     n_mol = model.n_mol
     n_species = model.n_species
     n_steps = model.step_logk_q.shape[0]
@@ -184,7 +174,7 @@ def make_smooth_workspace(model, n):
             np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
             np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64),
             np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n),
-            np.empty(n, dtype=np.int64), np.full(1, np.nan))
+            np.empty(n, dtype=np.int64))
 
 
 @leaf_kernel
@@ -219,7 +209,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     if span <= 0.0:
         return STATUS_OK, h, i_out
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
-     k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all, at) = sw
+     k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
     n_coef = poly.shape[0]
     for i in range(n):
         ft[i] = 0.0
@@ -328,9 +318,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         prob = (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held,
                 titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of,
                 ph_is_held, held_ph, ctx[CTX_PH_OFFSET], ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N],
-                ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], at)
-        # new cubics: no coefficient values carried over
-        at[0] = math.nan
+                ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
         status, h, i_out = smooth_steps(prob, varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out,
                                         n_out, counters, sign_tol, peak)
         if status != STATUS_OK:

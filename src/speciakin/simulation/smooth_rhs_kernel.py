@@ -149,29 +149,6 @@ def evaluate_cubic(poly, in_logs, x, value, slope):
 
 
 @leaf_kernel(inline="always")
-def cubic_values(poly, in_logs, x, value):
-    """The values of :func:`evaluate_cubic` alone (the same arithmetic, so the same bits)."""
-    for c in range(poly.shape[0]):
-        p = poly[c, 0] + x * (poly[c, 1] + x * (poly[c, 2] + x * poly[c, 3]))
-        if in_logs[c]:
-            p = math.exp(p)
-        value[c] = p
-
-
-@leaf_kernel(inline="always")
-def cubic_slopes(poly, in_logs, x, value, slope):
-    """The d/dx of :func:`evaluate_cubic` when ``value`` already holds its values at x."""
-    for c in range(poly.shape[0]):
-        a1 = poly[c, 1]
-        a2 = poly[c, 2]
-        a3 = poly[c, 3]
-        dp = a1 + x * (2.0 * a2 + x * 3.0 * a3)
-        if in_logs[c]:
-            dp *= value[c]
-        slope[c] = dp
-
-
-@leaf_kernel(inline="always")
 def titrant_branch(y, coef, v, n_species, n_mol, n_steps, titrant, titrant_conc, second, second_conc):
     """(factor, dosed ion, its concentration, consumed-state row, titrant rate)
     at ``y`` with step rates ``v``: the titrant itself, or the opposite
