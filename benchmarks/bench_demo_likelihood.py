@@ -13,7 +13,9 @@ few seconds):
   alone for that set (``batch_tasks`` on one core) so that the Python around it shows;
 * the log-likelihood of 64 parameter sets over all cores, per set;
 * the cost of each run alone (one set, one core, kernel only) with its
-  accepted steps and segments, so that it shows where the time goes;
+  accepted steps and segments, and, for held and logged pH, the sub-segments
+  (segments after halving) and full speciation evaluations of the coefficient
+  cubics (:func:`coefficient_evaluations`), so that it shows where the time goes;
 * the scipy reference of ``bench_kernel.py`` measured in the same run
   (solve_ivp Radau with a Python right-hand side, six held-pH runs), as the
   ruler the issue asks for;
@@ -85,6 +87,50 @@ def kernel_call(objective, theta, run_indices=None):
     return call, info[0, :, 1].astype(int)
 
 
+def coefficient_evaluations(objective, theta, r):
+    """(sub-segments, full speciation evaluations) of the coefficient cubics of held or logged run ``r``.
+
+    Counted by running the Python copies (``py_func``) of the run driver and
+    of ``segment_kernel.integrate_smooth`` with the compiled speciation
+    wrapped by a counter and the step loop replaced by a stub that only
+    skips the outputs: where a segment is halved depends on the pH and the
+    temperature, never on the amounts, so the counts are those of the
+    compiled run.  The module globals are restored afterwards.
+    """
+    from speciakin.simulation import integrator_kernel, segment_kernel
+
+    counts = {"evaluations": 0, "sub_segments": 0}
+    speciation = segment_kernel.time_speciation
+    steps = segment_kernel.smooth_steps
+    smooth = integrator_kernel.integrate_smooth
+
+    def counted(*args):
+        counts["evaluations"] += 1
+        return speciation(*args)
+
+    def no_steps(prob, varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out, n_out, *rest):
+        counts["sub_segments"] += 1
+        while i_out < n_out and out_t[i_out] < tb:
+            out[i_out] = 0.0
+            i_out += 1
+        return 0, h, i_out
+
+    compiled = objective.compiled
+    q, off, fac = objective.kernel_inputs(theta[None, :])
+    out = np.full((objective.compiled_runs.n_times_max, compiled.n_outputs), np.nan)
+    try:
+        segment_kernel.time_speciation = counted
+        segment_kernel.smooth_steps = no_steps
+        integrator_kernel.integrate_smooth = segment_kernel.integrate_smooth.py_func
+        integrator_kernel.run_one.py_func(compiled.arrays, q[0], objective.compiled_runs.arrays, r, off[0, r],
+                                          fac[0, r], objective.rtol, objective.atol, out, np.zeros(N_INFO))
+    finally:
+        segment_kernel.time_speciation = speciation
+        segment_kernel.smooth_steps = steps
+        integrator_kernel.integrate_smooth = smooth
+    return counts["sub_segments"], counts["evaluations"]
+
+
 def main() -> None:
     quick = "--quick" in sys.argv[1:]
     objective, theta = demo_objective()
@@ -127,8 +173,12 @@ def main() -> None:
         ramp = "ramp" if len(run.temperature.times) > 1 else "flat T"
         # segments: the run's breakpoints as laid out for the kernel
         n_segments = int(objective.compiled_runs.arrays.n_bp[i])
+        cubics = ""
+        if run.ph.mode != "free":
+            subs, evaluations = coefficient_evaluations(objective, theta, i)
+            cubics = f"  sub-segments {subs:4d}  speciation evaluations {evaluations:4d}"
         print(f"  {name:<12} {run.ph.mode:<7} {ramp:<6} segments {n_segments:4d}  steps {run_steps[0]:4d}  "
-              f"{t.min() * 1e3:7.3f} ms (median {np.median(t) * 1e3:.3f})")
+              f"{t.min() * 1e3:7.3f} ms (median {np.median(t) * 1e3:.3f}){cubics}")
     print(f"  sum of the runs' bests: {total * 1e3:.3f} ms; accepted steps in the full call: "
           f"{', '.join(str(s) for s in steps)}")
 
