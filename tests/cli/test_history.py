@@ -13,6 +13,7 @@ import os
 import shutil
 import subprocess
 import sys
+import warnings
 import zipfile
 from pathlib import Path
 
@@ -35,6 +36,24 @@ def reduced(tmp_path_factory):
 @pytest.fixture
 def campaign(reduced, tmp_path):
     return Path(shutil.copytree(reduced, tmp_path / "lab" / "campaign"))
+
+
+@pytest.fixture(scope="module")
+def fitted(reduced, tmp_path_factory):
+    """The reduced demo with one ``speciakin fit`` result folder, made once for the module (read only)."""
+    folder = Path(shutil.copytree(reduced, tmp_path_factory.mktemp("fitted") / "lab" / "campaign"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        assert main(["fit", str(folder), *SHORT_FIT]) == 0
+    return folder
+
+
+@pytest.fixture
+def fitted_campaign(fitted, tmp_path):
+    """A copy of :func:`fitted` under ``tmp_path/lab/campaign`` and its one fit folder."""
+    campaign = Path(shutil.copytree(fitted, tmp_path / "lab" / "campaign"))
+    fit_folder, = _folders(campaign)
+    return campaign, fit_folder
 
 
 def _folders(campaign: Path) -> list[Path]:
@@ -103,9 +122,10 @@ def test_read_only_output_folder_is_a_clear_error_before_the_fit(campaign, tmp_p
 
 
 @pytest.mark.filterwarnings("ignore")
-def test_steps_alone_history_contrast_and_a_moved_folder(campaign, tmp_path, capsys, monkeypatch):
-    assert main(["fit", str(campaign), *SHORT_FIT]) == 0
+def test_steps_alone_history_contrast_and_a_moved_folder(fitted_campaign, fitted, tmp_path, capsys, monkeypatch):
+    campaign, fit_folder = fitted_campaign            # `speciakin fit` made its folder (module fixture)
     assert main(["window", str(campaign), "--quiet"]) == 0
+    assert _folders(campaign)[0] == fit_folder
     fit_folder, window_folder = _folders(campaign)
     status = folders.read_status(window_folder)
     assert status["built_on"] == "../" + fit_folder.name and status["status"] == "complete"
@@ -150,7 +170,7 @@ def test_steps_alone_history_contrast_and_a_moved_folder(campaign, tmp_path, cap
     assert folders.read_status(rendered)["built_on"] == "../" + window_folder.name
     assert not (moved / "results" / window_folder.name / "report.html").exists()
     html = (rendered / "report.html").read_text()
-    assert str(tmp_path) not in html
+    assert str(tmp_path) not in html and str(fitted.parents[1]) not in html  # nor where the fit was made
     assert any(word in html for word in ("Recommended", "Provisional", "Not established"))  # the decision callout
 
 
@@ -182,8 +202,8 @@ def test_run_names_give_distinct_figure_files(reduced, tmp_path):
 
 
 @pytest.mark.filterwarnings("ignore")
-def test_sample_resume_continues_the_interrupted_folder(campaign):
-    assert main(["fit", str(campaign), *SHORT_FIT]) == 0
+def test_sample_resume_continues_the_interrupted_folder(fitted_campaign):
+    campaign, _ = fitted_campaign                     # `speciakin fit` made its folder (module fixture)
     assert main(["sample", str(campaign), "--steps", "24", "--walkers", "20", "--quiet"]) == 0
     fit_folder, sampled = _folders(campaign)
     assert folders.read_status(sampled)["built_on"] == "../" + fit_folder.name

@@ -56,21 +56,39 @@ def strip_volatile(value):
     return value
 
 
-def produce(work: Path) -> dict[str, object]:
-    """Run fit and window on the reduced demo in ``work``; {file name: JSON without volatile entries}."""
+def fit_and_window(work: Path) -> Path:
+    """Run ``speciakin fit`` and ``speciakin window`` on the reduced demo in ``work/case``; the output folder.
+
+    The case is in ``work / "case"``, the output folder ``work / "out"`` (fit.json, window.json and the
+    files beside them, no report yet).
+    """
     from speciakin.cli.main import main
 
     case = build_reduced_demo(work / "case")
     out = work / "out"
     for argv in (["fit", str(case), "--out", str(out), "--starts", "2", "--seed", "3", "--quiet"],
-                 ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"],
-                 ["report", str(out), "--out", str(out), "--formats", "xlsx"]):
+                 ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"]):
         code = main(argv)
         if code != 0:
             raise RuntimeError(f"speciakin {argv[0]} failed with exit code {code}")
+    return out
+
+
+def read_results(out: Path) -> dict[str, object]:
+    """``speciakin report`` (xlsx) into ``out``; {file name: JSON without volatile entries}."""
+    from speciakin.cli.main import main
+
+    code = main(["report", str(out), "--out", str(out), "--formats", "xlsx"])
+    if code != 0:
+        raise RuntimeError(f"speciakin report failed with exit code {code}")
     found = {name: strip_volatile(json.loads((out / name).read_text())) for name in RESULT_FILES[:2]}
     found["report_tables.json"] = report_tables(out / "report.xlsx")
     return found
+
+
+def produce(work: Path) -> dict[str, object]:
+    """Run fit, window and report on the reduced demo in ``work``; {file name: JSON without volatile entries}."""
+    return read_results(fit_and_window(work))
 
 
 def report_tables(path: Path) -> dict[str, list[list[object]]]:

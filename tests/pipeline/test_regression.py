@@ -13,10 +13,11 @@ from __future__ import annotations
 
 import json
 import math
+import shutil
 
 import pytest
 
-from .regression_case import BASELINE, RESULT_FILES, produce
+from .regression_case import BASELINE, RESULT_FILES, read_results
 
 TOLERANCE = 1e-12
 
@@ -47,8 +48,10 @@ def test_differences_finds_a_change():
 
 
 @pytest.mark.filterwarnings("ignore")
-def test_fit_window_and_report_numbers_match_the_stored_copy(tmp_path):
-    results = produce(tmp_path)
+def test_fit_window_and_report_numbers_match_the_stored_copy(reduced_demo_fit_window, tmp_path):
+    # the session's fit and window of the regression case (tests/conftest.py); the report on a copy
+    shutil.copytree(reduced_demo_fit_window["work"], tmp_path / "work")
+    results = read_results(tmp_path / "work" / "out")
     for name in RESULT_FILES:
         stored = json.loads((BASELINE / name).read_text())
         found = differences(stored, json.loads(json.dumps(results[name])))

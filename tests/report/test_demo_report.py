@@ -10,6 +10,7 @@ callout once, the QA block.
 from __future__ import annotations
 
 import re
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -22,29 +23,28 @@ pytestmark = pytest.mark.filterwarnings("ignore")
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory):
-    """{'out': output folder, 'case': campaign folder, 'html', 'pdf_pages', 'xlsx_text', 'model'}."""
+def demo(tmp_path_factory, reduced_demo_fit_window):
+    """{'out': output folder, 'case': campaign folder, 'html', 'pdf_pages', 'xlsx_text', 'model'}.
+
+    The fit and window are the session's regression case (tests/conftest.py: two starts with profiles,
+    seeds 3 and 5), copied here; the report is rendered on the copy.
+    """
     from speciakin.chemistry.modelfile import load_model
     from speciakin.cli.main import main
 
-    from pipeline.regression_case import build_reduced_demo
-
     work = tmp_path_factory.mktemp("demo-report")
-    case = build_reduced_demo(work / "case")
+    shutil.copytree(reduced_demo_fit_window["work"], work, dirs_exist_ok=True)
+    case, out = work / "case", work / "out"
     with open(case / "process.toml", "a", encoding="utf-8") as fh:
         fh.write('\n[report]\nauthor = "A. Chemist (invented)"\nreviewer = "B. Reviewer (invented)"\n')
-    out = work / "out"
-    for argv in (["fit", str(case), "--out", str(out), "--starts", "2", "--seed", "3", "--quiet"],
-                 ["window", str(case), "--out", str(out), "--seed", "5", "--quiet"],
-                 ["report", str(out), "--out", str(out), "--formats", "html,pdf,xlsx",
-                  "--process", str(case / "process.toml")]):
-        assert main(argv) == 0, argv
+    argv = ["report", str(out), "--out", str(out), "--formats", "html,pdf,xlsx", "--process", str(case / "process.toml")]
+    assert main(argv) == 0, argv
     from openpyxl import load_workbook
 
     book = load_workbook(out / "report.xlsx", read_only=True)
     xlsx_text = "\n".join(str(c) for ws in book.worksheets for row in ws.iter_rows(values_only=True)
                           for c in row if c is not None)
-    return {"out": out, "case": case, "work": work, "model": load_model(case / "model.toml"),
+    return {"out": out, "case": case, "work": work, "made_in": reduced_demo_fit_window["work"], "model": load_model(case / "model.toml"),
             "html": (out / "report.html").read_text(encoding="utf-8"),
             "pdf_pages": [p.extract_text() or "" for p in pypdf.PdfReader(out / "report.pdf").pages],
             "xlsx_text": xlsx_text}
@@ -52,7 +52,8 @@ def demo(tmp_path_factory):
 
 def test_no_absolute_path_in_any_report_file(demo):
     texts = {"html": demo["html"], "pdf": "\n".join(demo["pdf_pages"]), "xlsx": demo["xlsx_text"]}
-    roots = {str(demo["work"]), str(Path(demo["work"]).resolve()), str(Path.home()), "/tmp/"}
+    roots = {str(demo["work"]), str(Path(demo["work"]).resolve()), str(Path.home()), "/tmp/",
+             str(demo["made_in"]), str(Path(demo["made_in"]).resolve())}  # where the fit and window were made
     for name, text in texts.items():
         for root in roots:
             assert root not in text, f"{root} in report.{name}"
@@ -87,7 +88,8 @@ def test_same_colour_for_a_species_in_every_figure(demo):
 
     def found(path: Path) -> set[str]:
         img = (mpimg.imread(path)[..., :3] * 255).round().astype(int).reshape(-1, 3)
-        hexes = {f"{r:02x}{g:02x}{b:02x}" for r, g, b in np.unique(img, axis=0)}
+        packed = np.unique((img[:, 0] << 16) | (img[:, 1] << 8) | img[:, 2])  # one integer per colour
+        hexes = {f"{int(c):06x}" for c in packed}
         return hexes & palette
 
     import json
