@@ -73,15 +73,3 @@ def test_the_runtime_is_behind_the_loopback_guard(tmp_path):
 
     app, _ = create_app(tmp_path)
     assert app.server.test_client().get("/" + scripts.RUNTIME_PATH, headers={"Host": "evil.example"}).status_code == 403
-
-
-def test_dash_scripts_are_sent_with_the_compile_hint_once(tmp_path):
-    from speciakin.web import bundles
-
-    html, client = _page(tmp_path)
-    listed = [s for s in re.findall(r'<script src="([^"]+)"', html) if "_dash-component-suites" in s]
-    assert listed
-    for address in listed + [f"/_dash-component-suites/{p}/{n}" for p, n in scripts.LATER]:
-        body = client.get(address, headers=HOST).get_data()
-        assert body.startswith(bundles.COMPILE_HINT) and not body[len(bundles.COMPILE_HINT):].startswith(
-            bundles.COMPILE_HINT), address

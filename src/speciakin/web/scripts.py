@@ -13,9 +13,7 @@ table out, and lets the browser fetch at once, while it evaluates the listed
 scripts, the ones that Dash's components load only when first drawn
 (:data:`LATER`: plotly.js, the graph, dropdown, upload and grid code of the
 first tab), instead of after the page's layout has arrived and been drawn
-(docs/web.md, Speed).  Dash's scripts are sent with V8's compile hint put first
-(:data:`speciakin.web.bundles.COMPILE_HINT`, as plotly.js is), so that they are compiled while they
-stream in rather than on the page's main thread when first called.
+(docs/web.md, Speed).
 """
 
 from __future__ import annotations
@@ -23,8 +21,6 @@ from __future__ import annotations
 import hashlib
 import re
 from pathlib import Path
-
-from speciakin.web.bundles import COMPILE_HINT
 
 __all__ = ["REGENERATOR", "RUNTIME_PATH", "LATER", "trim_scripts", "later_files"]
 
@@ -49,8 +45,7 @@ def later_files() -> list[Path]:
 
 def trim_scripts(app, server) -> None:
     """Make ``app`` (Dash) list the regenerator runtime in place of the polyfill, without the data table,
-    and with the scripts of :data:`LATER` preloaded; ``server`` (its Flask server) sends the runtime, and
-    Dash's scripts with the compile hint first.
+    and with the scripts of :data:`LATER` preloaded; ``server`` (its Flask server) sends the runtime.
 
     Call it after the request guards are set on ``server`` (the runtime is sent behind them).
     """
@@ -63,7 +58,6 @@ def trim_scripts(app, server) -> None:
     preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
                       for package, name in LATER)
     address = prefix + RUNTIME_PATH
-    suites = prefix + "_dash-component-suites/"
 
     @server.before_request
     def regenerator_runtime():
@@ -73,13 +67,6 @@ def trim_scripts(app, server) -> None:
         response.set_etag(tag)
         response.headers["Cache-Control"] = "public, max-age=31536000"  # its address names its content
         return response.make_conditional(request)
-
-    @server.after_request
-    def compile_hint(response):
-        if (response.status_code == 200 and request.path.startswith(suites) and request.path.endswith(".js")
-                and not response.direct_passthrough and not response.get_data().startswith(COMPILE_HINT)):
-            response.set_data(COMPILE_HINT + response.get_data())
-        return response
 
     interpolate = app.interpolate_index
 
