@@ -16,7 +16,7 @@ from pathlib import Path
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import bundles, page_campaign, page_history, page_jobs, page_model, page_results, warm
+from speciakin.web import bundles, page_campaign, page_history, page_jobs, page_model, page_results, scripts, warm
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -87,6 +87,7 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
     else:
         _loopback_only(app.server)
     bundles.serve_cartesian_plotly(app.server, app.config.requests_pathname_prefix)  # after the guards
+    scripts.trim_scripts(app, app.server)
     app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + _STYLE + "</style>")
     head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
             html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),

@@ -1,0 +1,79 @@
+"""The scripts the page's HTML lists, cut to what the page uses, and the ones it loads later fetched early.
+
+Dash's page lists, besides React and its own code, Babel's polyfill (core-js
+for old browsers, 0.1 MB, about 0.2 s of evaluation and more of wrapped calls
+on the main thread while the page is drawn) and the code of Dash's data table
+(a component this page never uses).  Of the polyfill, Dash's renderer and core
+components need only the regenerator runtime (their ``async`` functions are
+compiled to ``regeneratorRuntime`` state machines); every browser of the last
+years has the rest built in.  :func:`trim_scripts` makes the page list the
+regenerator runtime (npm ``regenerator-runtime``, MIT licence, kept in
+``static/`` beside its licence) in place of the polyfill, leaves the data
+table out, and lets the browser fetch at once, while it evaluates the listed
+scripts, the ones that Dash's components load only when first drawn
+(:data:`LATER`: plotly.js, the graph, dropdown, upload and grid code of the
+first tab), instead of after the page's layout has arrived and been drawn
+(docs/web.md, Speed).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from pathlib import Path
+
+__all__ = ["REGENERATOR", "RUNTIME_PATH", "LATER", "trim_scripts", "later_files"]
+
+#: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
+REGENERATOR = Path(__file__).resolve().parent / "static" / "regenerator-runtime.js"
+#: Where the page loads it from, after the path prefix.
+RUNTIME_PATH = "_speciakin/regenerator-runtime.js"
+#: Scripts Dash's components load when first drawn, all drawn on the first tab (the page opens on it),
+#: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
+LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
+         ("dash_ag_grid", "async-community.js"), ("plotly", "package_data/plotly.min.js"))
+_POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
+_DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
+
+
+def later_files() -> list[Path]:
+    """The files of :data:`LATER` in the installed packages (for checking that they exist)."""
+    import importlib
+
+    return [Path(importlib.import_module(package).__file__).resolve().parent / name for package, name in LATER]
+
+
+def trim_scripts(app, server) -> None:
+    """Make ``app`` (Dash) list the regenerator runtime in place of the polyfill, without the data table,
+    and with the scripts of :data:`LATER` preloaded; ``server`` (its Flask server) sends the runtime.
+
+    Call it after the request guards are set on ``server`` (the runtime is sent behind them).
+    """
+    from flask import Response, request
+
+    prefix = app.config.requests_pathname_prefix.rstrip("/") + "/"
+    body = REGENERATOR.read_bytes()
+    tag = hashlib.sha256(body).hexdigest()[:16]
+    runtime = f'<script src="{prefix}{RUNTIME_PATH}?v={tag}"></script>\n'
+    preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
+                      for package, name in LATER)
+    address = prefix + RUNTIME_PATH
+
+    @server.before_request
+    def regenerator_runtime():
+        if request.path != address:
+            return None
+        response = Response(body, mimetype="application/javascript")
+        response.set_etag(tag)
+        response.headers["Cache-Control"] = "public, max-age=31536000"  # its address names its content
+        return response.make_conditional(request)
+
+    interpolate = app.interpolate_index
+
+    def interpolate_index(**kwargs):
+        scripts, found = _POLYFILL.subn(runtime, kwargs["scripts"], count=1)
+        kwargs["scripts"] = _DATA_TABLE.sub("", scripts if found else runtime + scripts)
+        kwargs["css"] = preload + kwargs["css"]
+        return interpolate(**kwargs)
+
+    app.interpolate_index = interpolate_index
