@@ -21,7 +21,8 @@ import logging
 import re
 from pathlib import Path
 
-__all__ = ["BUNDLE", "bundle_traces", "bundle_version", "plotly_js_version", "serve_cartesian_plotly"]
+__all__ = ["BUNDLE", "bundle_traces", "bundle_version", "plotly_js_version", "serve_cartesian_plotly",
+           "serve_script"]
 
 log = logging.getLogger(__name__)
 
@@ -84,20 +85,37 @@ def serve_cartesian_plotly(server, prefix: str = "/") -> bool:
         log.warning("plotly.js cartesian bundle %s does not match plotly.js %s of the plotly package: "
                     "the full bundle is served", version, wanted)
         return False
+    body = COMPILE_HINT + BUNDLE.read_bytes()
+    # revalidated by its ETag on each load (a 304 when unchanged): the address is not versioned
+    serve_script(server, prefix.rstrip("/") + "/" + DASH_PLOTLY_PATH, body, hashlib.sha256(body).hexdigest()[:32],
+                 "no-cache")
+    return True
+
+
+def serve_script(server, address: str, body: bytes, tag: str, cache_control: str) -> None:
+    """Answer requests for ``address`` with the JavaScript ``body`` before Dash's own routes.
+
+    Parameters
+    ----------
+    server
+        The Flask server of the page (call after its request guards are set: the script is sent
+        behind them).
+    address
+        URL path answered.
+    body
+        The script's bytes.
+    tag
+        ETag of ``body``; a request naming it gets 304 Not Modified.
+    cache_control
+        The ``Cache-Control`` header sent with it.
+    """
     from flask import Response, request
 
-    address = prefix.rstrip("/") + "/" + DASH_PLOTLY_PATH
-    body = COMPILE_HINT + BUNDLE.read_bytes()
-    tag = hashlib.sha256(body).hexdigest()[:32]
-
     @server.before_request
-    def cartesian_plotly():
+    def send_script():
         if request.path != address:
             return None
         response = Response(body, mimetype="application/javascript")
-        # revalidated by its ETag on each load (a 304 when unchanged): the address is not versioned
         response.set_etag(tag)
-        response.headers["Cache-Control"] = "no-cache"
+        response.headers["Cache-Control"] = cache_control
         return response.make_conditional(request)
-
-    return True

@@ -22,6 +22,8 @@ import hashlib
 import re
 from pathlib import Path
 
+from speciakin.web.bundles import serve_script
+
 __all__ = ["REGENERATOR", "RUNTIME_PATH", "LATER", "trim_scripts", "later_files"]
 
 #: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
@@ -49,8 +51,6 @@ def trim_scripts(app, server) -> None:
 
     Call it after the request guards are set on ``server`` (the runtime is sent behind them).
     """
-    from flask import Response, request
-
     prefix = app.config.requests_pathname_prefix.rstrip("/") + "/"
     body = REGENERATOR.read_bytes()
     tag = hashlib.sha256(body).hexdigest()[:16]
@@ -59,14 +59,7 @@ def trim_scripts(app, server) -> None:
                       for package, name in LATER)
     address = prefix + RUNTIME_PATH
 
-    @server.before_request
-    def regenerator_runtime():
-        if request.path != address:
-            return None
-        response = Response(body, mimetype="application/javascript")
-        response.set_etag(tag)
-        response.headers["Cache-Control"] = "public, max-age=31536000"  # its address names its content
-        return response.make_conditional(request)
+    serve_script(server, address, body, tag, "public, max-age=31536000")  # its address names its content
 
     interpolate = app.interpolate_index
 
