@@ -74,8 +74,10 @@ def test_fit_job_runs_to_completion_with_progress_and_the_window_status_is_shown
     url, state = server
     open_campaign(page, url, "short")
     page.click("text=3 Jobs")
-    page.fill("#job-starts", "1")
-    page.click("#job-profiles input")  # profiles off: a short job
+    # profiles off and few window draws keep the job short; 12 starts keep its fit stage running for
+    # more than one poll of the job list (1 s), or a fast machine finishes before progress is shown
+    page.fill("#job-starts", "12")
+    page.click("#job-profiles input")
     page.fill("#job-draws", "8")
     page.click("#job-start")
     page.wait_for_selector("#job-message:has-text('started job')")
