@@ -219,6 +219,27 @@ def test_index_takes_writes_from_two_processes(tmp_path):
         assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
 
 
+def _record_at_once(root: str, run_id: str, barrier) -> None:
+    barrier.wait()
+    history.record_start(Path(root), run_id, Path(root) / run_id, step="run", command="c", started=folders.utc_now())
+
+
+def test_two_processes_that_create_the_index_at_once_are_both_recorded(tmp_path):
+    # Two `speciakin run` started together both create results/index.sqlite; switching the new file to
+    # WAL answered "database is locked" at once in 6 of 40 such pairs before open_index waited and retried.
+    ctx = multiprocessing.get_context("fork")
+    for trial in range(40):
+        root = tmp_path / f"trial{trial}"
+        barrier = ctx.Barrier(2)
+        procs = [ctx.Process(target=_record_at_once, args=(str(root), f"run{i}", barrier)) for i in range(2)]
+        for p in procs:
+            p.start()
+        for p in procs:
+            p.join(60)
+        assert [p.exitcode for p in procs] == [0, 0], trial
+        assert sorted(r["id"] for r in history.list_runs(root)) == ["run0", "run1"], trial
+
+
 def test_index_records_inputs_with_their_sha256(tmp_path):
     import hashlib
 

@@ -16,6 +16,7 @@ import hashlib
 import json
 import os
 import sqlite3
+import time
 from contextlib import closing
 from importlib import metadata
 from pathlib import Path
@@ -115,10 +116,23 @@ def open_index(root: str | os.PathLike) -> sqlite3.Connection:
     root = Path(root)
     root.mkdir(parents=True, exist_ok=True)
     con = sqlite3.connect(root / INDEX_FILE, timeout=BUSY_TIMEOUT_S, isolation_level=None)
-    con.execute("PRAGMA journal_mode=WAL")
     con.execute(f"PRAGMA busy_timeout={int(BUSY_TIMEOUT_S * 1000)}")
-    con.executescript("BEGIN IMMEDIATE;" + _SCHEMA + "COMMIT;")
-    return con
+    # Switching a new file to WAL takes an exclusive lock, and SQLite answers "database is locked"
+    # at once (without its busy wait) when another process opens the same new file at that moment:
+    # wait and try again, as the busy timeout would.
+    deadline = time.monotonic() + BUSY_TIMEOUT_S
+    while True:
+        try:
+            con.execute("PRAGMA journal_mode=WAL")
+            con.executescript("BEGIN IMMEDIATE;" + _SCHEMA + "COMMIT;")
+            return con
+        except sqlite3.OperationalError as exc:
+            if con.in_transaction:
+                con.execute("ROLLBACK")
+            if "locked" not in str(exc) or time.monotonic() > deadline:
+                con.close()
+                raise
+            time.sleep(0.02)
 
 
 def _write(root: Path, statements: Iterable[tuple[str, tuple]]) -> None:
