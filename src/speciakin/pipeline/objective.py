@@ -412,7 +412,7 @@ class CampaignObjective:
         lo = np.array([q.lower for q in self.parameters])
         hi = np.array([q.upper for q in self.parameters])
         jac, self._last_jacobian = remembered_columns(
-            getattr(self, "_last_jacobian", None), (theta.tobytes(), rtol), cols,
+            self._last_jacobian, (theta.tobytes(), rtol), cols,
             lambda missing: central_jacobian(self.residuals_batch, theta, lo, hi, rtol, missing))
         return jac
 
