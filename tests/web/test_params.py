@@ -61,7 +61,30 @@ def pick(page, row: str, column: str, value: str) -> None:
 
 
 def toggle(page, row: str) -> None:
-    cell(page, row, "fit").locator("input[type=checkbox]").click()
+    """Click the 'fitted' box of ``row`` and wait until the table holds the flipped value."""
+    box = cell(page, row, "fit").locator("input[type=checkbox]")
+    was = box.is_checked()
+    box.click()
+    page.wait_for_function(
+        "([r, v]) => dash_ag_grid.getApi('param-table').getRowNode(r).data.fit === v", arg=[row, not was],
+        timeout=5000)
+
+
+def settled(page, row: str, still: float = 0.6, timeout: float = 20.0) -> None:
+    """Wait until ``row`` of the table keeps its place for ``still`` seconds.
+
+    Rows grow to fit their wrapped text once the tab is shown; a click aimed
+    at a box before that lands where the box was.
+    """
+    where, since, end = None, time.monotonic(), time.monotonic() + timeout
+    while time.monotonic() < end:
+        now = cell(page, row, "fit").bounding_box()
+        if now != where:
+            where, since = now, time.monotonic()
+        elif time.monotonic() - since >= still:
+            return
+        time.sleep(0.1)
+    raise AssertionError(f"the row {row} of the parameter table still moves after {timeout} s")
 
 
 def status_after(page, text: str) -> str:
@@ -73,6 +96,7 @@ def open_table(page, url) -> None:
     open_campaign(page, url, CAMPAIGN)
     page.click("text=2 Model")
     page.wait_for_selector("#param-table [row-id='pKa[S.N_alkyl]']")
+    settled(page, "pKa[ACD.COOH]")
 
 
 def test_table_lists_every_parameter_as_the_file_writes_it(server, page, campaign, shot):
@@ -90,6 +114,28 @@ def test_table_lists_every_parameter_as_the_file_writes_it(server, page, campaig
     assert not cell(page, "pKa[S.OH]", "fit").locator("input").is_checked()
     assert "interaction energy" in cell(page, "W[S.N_alkyl~N_aryl]", "note").inner_text()
     shot(page, "20-parameter-table")
+
+
+def test_a_click_beside_the_fitted_box_changes_nothing_and_the_box_itself_toggles(server, page, campaign):
+    """The 'fitted' cell has no editor of its own: only its check box changes the value."""
+    url, _ = server
+    open_table(page, url)
+    row = "pKa[ACD.COOH]"
+    target = cell(page, row, "fit")
+    target.scroll_into_view_if_needed()
+    settled(page, row)
+    editing = "() => dash_ag_grid.getApi('param-table').getEditingCells().map(c => c.column.getColId())"
+    fitted = f"() => dash_ag_grid.getApi('param-table').getRowNode('{row}').data.fit"
+    before = page.evaluate(fitted)
+    edge = target.bounding_box()
+    page.mouse.click(edge["x"] + edge["width"] - 4, edge["y"] + edge["height"] / 2)  # inside the cell, off the box
+    time.sleep(0.3)
+    assert page.evaluate(editing) == [] and page.evaluate(fitted) is before
+    toggle(page, row)
+    assert page.evaluate(fitted) is (not before) and page.evaluate(editing) == []
+    assert target.locator("input").is_checked() is (not before)
+    page.click("#param-discard")
+    page.wait_for_function(f"() => dash_ag_grid.getApi('param-table').getRowNode('{row}').data.fit === {str(before).lower()}")
 
 
 def test_edit_diff_and_save_keep_the_comments(server, page, campaign, shot):

@@ -33,16 +33,20 @@ def _columns() -> list[dict]:
     families = [DEFAULT_PRIOR, *PRIOR_FAMILIES]
     wrapped = {"wrapText": True, "autoHeight": True,
                "cellStyle": {"lineHeight": "1.4em", "paddingTop": "10px", "paddingBottom": "10px"}}
+    # text and list cells open their editor on one click; the 'fitted' column has none of that: its
+    # check box toggles on the click itself, and a click beside the box does nothing (with a one-click
+    # editor there, a click that missed the box opened a second box and left the value unchanged)
+    typed = {"editable": _EDITABLE, "singleClickEdit": True}
     return [
         {"field": "name", "headerName": "parameter", "pinned": "left", "width": 250},
         {"field": "fit", "headerName": "fitted", "cellDataType": "boolean", "editable": _EDITABLE, "width": 80},
-        {"field": "start", "headerName": "start value", "editable": _EDITABLE, "flex": 1, "minWidth": 110},
-        {"field": "lower", "headerName": "lower bound", "editable": _EDITABLE, "width": 100},
-        {"field": "upper", "headerName": "upper bound", "editable": _EDITABLE, "width": 100},
+        {"field": "start", "headerName": "start value", **typed, "flex": 1, "minWidth": 110},
+        {"field": "lower", "headerName": "lower bound", **typed, "width": 100},
+        {"field": "upper", "headerName": "upper bound", **typed, "width": 100},
         {"field": "scale", "headerName": "bounds and prior on", "flex": 1, "minWidth": 140, **wrapped},
-        {"field": "prior", "headerName": "prior", "editable": _EDITABLE, "width": 105,
+        {"field": "prior", "headerName": "prior", **typed, "width": 105,
          "cellEditor": "agSelectCellEditor", "cellEditorParams": {"values": families}},
-        {"field": "prior_numbers", "headerName": "prior numbers", "editable": _EDITABLE, "flex": 1,
+        {"field": "prior_numbers", "headerName": "prior numbers", **typed, "flex": 1,
          "minWidth": 150, **wrapped},
         {"field": "note", "headerName": "note", "flex": 2, "minWidth": 160, **wrapped},
     ]
@@ -57,8 +61,10 @@ def layout(filled: tuple | None = None) -> html.Div:
         dag.AgGrid(id="param-table", columnDefs=_columns(), rowData=rows, getRowId="params.data.name",
                    defaultColDef={"resizable": True, "sortable": False, "cellDataType": False,
                                   "wrapHeaderText": True, "autoHeaderHeight": True},
-                   dashGridOptions={"domLayout": "autoHeight", "singleClickEdit": True,
-                                    "stopEditingWhenCellsLoseFocus": True},
+                   # rows measured to fit their wrapped text take their place at once (no sliding rows
+                   # under the pointer while the table settles)
+                   dashGridOptions={"domLayout": "autoHeight", "stopEditingWhenCellsLoseFocus": True,
+                                    "animateRows": False},
                    style={"width": "100%"}),
         html.Div(className="row", children=[
             html.Button("Save to the model file", id="param-save", n_clicks=0, disabled=disabled),
