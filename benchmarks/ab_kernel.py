@@ -13,7 +13,10 @@ Workloads (compiled and called once before any timing):
 
 ``bench``
     the workload of ``bench_kernel.py``: one parameter set, six held-pH runs,
-    the compiled batch on one core;
+    the compiled batch on one core, at the version's default tolerances; the
+    largest deviation of each version's observed outputs from an rtol-1e-11
+    reference is printed with the outputs' comparison (``bench_accuracy.py``'s
+    metric);
 ``demo1``
     the residuals of the bundled (invented) demo campaign, one set, one core;
 ``demo32``
