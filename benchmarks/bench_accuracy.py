@@ -14,11 +14,12 @@ metric).  The reference itself is checked against scipy's solve_ivp
 
 Cost: the time of one likelihood evaluation (the six runs on one core,
 ``batch_log_likelihood``) at each tolerance, measured in alternating blocks
-in one run (best and median of the blocks, load average beside); the
-accepted steps beside it.
+in one run (best and median of the blocks, wall and CPU time, median of the
+paired ratios to the first tolerance, load average beside); the accepted
+steps beside it.
 
-Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_accuracy.py [--rtol 1e-6,5e-7]
-      [--blocks 40]
+Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_accuracy.py
+      [--rtol 1e-6,6e-7,5e-7:1e-12] [--blocks 40] [--no-scipy]
 """
 
 from __future__ import annotations
@@ -125,19 +126,21 @@ def main() -> None:
         calls.append(call)
 
     load = os.getloadavg()
-    times = np.zeros((len(tolerances), args.blocks))
+    # wall and CPU time of this process per block (on a crowded host the wall time mostly measures waiting)
+    times = np.zeros((2, len(tolerances), args.blocks))
     for b in range(args.blocks):
         order = range(len(tolerances)) if b % 2 == 0 else reversed(range(len(tolerances)))
         for i in order:
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.process_time()
             for _ in range(20):
                 calls[i]()
-            times[i, b] = (time.perf_counter() - t0) / 20
+            times[:, i, b] = (time.perf_counter() - t0) / 20, (time.process_time() - c0) / 20
     load_after = os.getloadavg()
     for i, (rtol, atol) in enumerate(tolerances):
-        ratio = f"; median paired ratio to the first: {np.median(times[i] / times[0]):.3f}" if i else ""
-        print(f"rtol {rtol:g}, atol {atol:g}: time per evaluation best {times[i].min() * 1e3:.3f} ms, median "
-              f"{np.median(times[i]) * 1e3:.3f} ms ({args.blocks} blocks of 20, alternating){ratio}")
+        for kind, t in zip(("wall", "CPU"), times):
+            ratio = f"; median paired ratio to the first: {np.median(t[i] / t[0]):.3f}" if i else ""
+            print(f"rtol {rtol:g}, atol {atol:g}: time per evaluation ({kind}) best {t[i].min() * 1e3:.3f} ms, "
+                  f"median {np.median(t[i]) * 1e3:.3f} ms ({args.blocks} blocks of 20, alternating){ratio}")
     print(f"load average {load[0]:.2f} before, {load_after[0]:.2f} after timing ({os.cpu_count()} cores)")
 
 
