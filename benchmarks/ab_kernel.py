@@ -13,7 +13,10 @@ Workloads (compiled and called once before any timing):
 
 ``bench``
     the workload of ``bench_kernel.py``: one parameter set, six held-pH runs,
-    the compiled batch on one core;
+    the compiled batch on one core, at the version's default tolerances; the
+    largest deviation of each version's observed outputs from an rtol-1e-11
+    reference is printed with the outputs' comparison (``bench_accuracy.py``'s
+    metric);
 ``demo1``
     the residuals of the bundled (invented) demo campaign, one set, one core;
 ``demo32``
@@ -54,6 +57,7 @@ from __future__ import annotations
 
 import argparse
 import hashlib
+import inspect
 import io
 import json
 import os
@@ -76,10 +80,11 @@ EXTRA_WORKLOADS = ("like1", "like64")
 # ---------------------------------------------------------------- the worker (one per version)
 
 def bench_workload():
-    """(call, outputs) of the bench_kernel workload on one core, through the compiled entry point."""
+    """(call, outputs) of the bench_kernel workload on one core, through the compiled entry point, at the
+    version's default tolerances; ``call.reference`` gives the outputs at rtol 1e-11."""
     sys.path.insert(0, str(ROOT / "benchmarks"))
     import bench_kernel as b
-    from speciakin.simulation import compile_model, compile_runs
+    from speciakin.simulation import compile_model, compile_runs, simulate_batch
     from speciakin.simulation import batch_kernel as batch
 
     compiled = compile_model(b.build_model())
@@ -90,7 +95,10 @@ def bench_workload():
     off, fac = np.zeros((1, n_runs)), np.ones((1, n_runs))
     out = np.full((1, n_runs, len(b.TIMES), compiled.n_outputs), np.nan)
     status, info = np.zeros((1, n_runs), np.int64), np.zeros((1, n_runs, 8))  # room for every version's info
-    args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-6, 1e-10, out, status, info)
+    # the version's own default tolerances (those of simulate_batch)
+    defaults = inspect.signature(simulate_batch).parameters
+    args = (compiled.arrays, q, cruns.arrays, off, fac, defaults["rtol"].default, defaults["atol"].default, out,
+            status, info)
     if hasattr(batch, "batch_tasks"):
         def call():
             batch.batch_tasks(*args, 0, 1)
@@ -102,6 +110,24 @@ def bench_workload():
         if np.any(status != 0):
             raise SystemExit(f"bench: a run failed (status {status.tolist()})")
         return out.copy(), info[0, :, 1].astype(int)
+
+    def reference():
+        """The outputs at rtol 1e-11 (atol scaled by the same factor): what ``compare_outputs`` measures
+        the accuracy of the default tolerances against (bench_accuracy.py's metric)."""
+        tight = np.full_like(out, np.nan)
+        ref_status, ref_info = np.zeros_like(status), np.zeros_like(info)
+        tight_args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-11, 1e-15, tight, ref_status, ref_info)
+        if hasattr(batch, "batch_tasks"):
+            batch.batch_tasks(*tight_args, 0, 1)
+        else:
+            batch.batch_serial(*tight_args)
+        if np.any(ref_status != 0):
+            raise SystemExit(f"bench: a reference run failed (status {ref_status.tolist()})")
+        return tight
+    call.reference = reference
+    call.observed = [compiled.species_index(n) for n in b.OBSERVED]
+    call.volume = compiled.n_species
+    call.floor = 1e-5 * runs[0].charges["S"] / runs[0].volume
     return call, result
 
 
@@ -177,6 +203,11 @@ def worker(workloads: list[str], result_file: str) -> None:
         call()
         saved[name], saved[name + "_steps"] = result()
         saved[name + "_first"] = np.array([first, time.perf_counter() - t0])
+        if hasattr(call, "reference"):
+            # observed concentrations at the tolerances timed and at rtol 1e-11
+            for key, full in ((name + "_observed", saved[name]), (name + "_reference", call.reference())):
+                saved[key] = full[0][:, :, call.observed] / full[0][:, :, call.volume:call.volume + 1]
+            saved[name + "_floor"] = np.array(call.floor)
         calls[name] = call
     np.savez(result_file, **saved)
     from numba import config, threading_layer
@@ -287,6 +318,14 @@ def compare_outputs(workers, workloads) -> None:
             f"; accepted steps per run A {a[name + '_steps'].tolist()}, B {b[name + '_steps'].tolist()}")
         print(f"{name}: outputs B - A: largest difference {diff:.2e} (largest |A| {scale:.2e}); "
               f"{'same' if same_nan else 'DIFFERENT'} finite entries{steps}")
+        if name + "_reference" in a.files and name + "_reference" in b.files:
+            # issue 16's metric: |y - y_ref| / max(|y_ref|, 1e-5 of the substrate's start), y_ref at rtol 1e-11
+            ref, floor = a[name + "_reference"], float(a[name + "_floor"])
+            dev = [np.max(np.abs(v[name + "_observed"] - ref) / np.maximum(np.abs(ref), floor)) for v in (a, b)]
+            other = np.max(np.abs(b[name + "_reference"] - ref) / np.maximum(np.abs(ref), floor))
+            print(f"{name}: observed outputs against A's rtol-1e-11 reference (largest deviation relative to "
+                  f"max(|y_ref|, {floor:g})): A {dev[0]:.2e}, B {dev[1]:.2e} (B's own reference differs by "
+                  f"{other:.1e})")
         print(f"{name}: first call (compile or cache load) A {a[name + '_first'][0]:.1f} s, "
               f"B {b[name + '_first'][0]:.1f} s; second call A {a[name + '_first'][1] * 1e3:.2f} ms, "
               f"B {b[name + '_first'][1] * 1e3:.2f} ms")

@@ -9,7 +9,7 @@ import subprocess
 import sys
 from pathlib import Path
 
-SCRIPTS = ["bench_speciation.py", "bench_kernel.py", "bench_demo_likelihood.py", "bench_import.py",
+SCRIPTS = ["bench_speciation.py", "bench_kernel.py", "bench_accuracy.py", "bench_demo_likelihood.py", "bench_import.py",
            "bench_fit.py", "bench_posterior_window.py", "nist_table.py"]
 
 
