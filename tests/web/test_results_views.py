@@ -48,7 +48,8 @@ def plotted(page, graph: str) -> list[dict]:
         "(id) => { const plain = v => v == null ? v : ArrayBuffer.isView(v) ? Array.from(v) :"
         " Array.isArray(v) ? v.map(plain) : v;"
         " return document.querySelector(`#${id} .js-plotly-plot`)._fullData.map(t => ({type: t.type,"
-        " name: t.name, x: plain(t.x), y: plain(t.y), z: plain(t.z), color: t.line && t.line.color})); }", graph)
+        " name: t.name, x: plain(t.x), y: plain(t.y), z: plain(t.z), color: t.line && t.line.color,"
+        " marker: t.marker && t.marker.color})); }", graph)
 
 
 def test_results_show_correlation_window_with_status_map_and_curves(server, page, result, shot):
@@ -56,6 +57,9 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     fit = json.loads((result / "fit.json").read_text())
     window = json.loads((result / "window.json").read_text())
     open_campaign(page, url, CAMPAIGN)
+    page.wait_for_selector("#raw-figure .gtitle:has-text('data as imported')")
+    raw = plotted(page, "raw-figure")
+    shot(page, "29-raw-data-before-results")
     page.click("text=4 Results")
     page.wait_for_selector(f"#result-choice-value:has-text('{RESULT}')")
     page.wait_for_selector("#correlation-figure .gtitle:has-text('parameter correlation')")
@@ -98,6 +102,19 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     colors = model_species_colors(load_model(result.parent.parent / "model.toml"))
     line = next(t for t in plotted(page, "fit-figure") if t["name"] == "QX-2209 N-aryl amide (desired, invented) fitted")
     assert line["color"] == colors.color("P_aryl")
+    # one colour per compound: the raw data of the same (first) run as drawn on tab 1, the fitted curves and
+    # the observations over them, and the report's palette agree
+    from speciakin.data import load_campaign
+    from speciakin.palette import display_names
+
+    model = load_model(result.parent.parent / "model.toml")
+    labels, curves = display_names(model), {t["name"]: t for t in plotted(page, "fit-figure")}
+    compounds = {c.name: c.molecule for c in load_campaign(result.parent.parent).compounds}
+    drawn = {compounds[t["name"]]: t["marker"] for t in raw if t["name"] in compounds}
+    assert set(drawn) == set(compounds.values())
+    for molecule, color in drawn.items():
+        assert (color == curves[f"{labels[molecule]} fitted"]["color"] == curves[f"{labels[molecule]} observed"]["marker"]
+                == colors.color(molecule)), molecule
     # the parameter table lists the fit's parameters; no posterior in this result
     page.wait_for_selector("#parameter-table .ag-row")
     assert set(page.locator("#parameter-table [col-id='posterior'].ag-cell").all_inner_texts()) == {"not sampled"}

@@ -17,7 +17,8 @@ from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web import stored_predictions
-from speciakin.web.figures import correlation_figure, empty_figure, fit_run_figure, map_figure, window_figure
+from speciakin.web.figures import (compound_colors, correlation_figure, empty_figure, fit_run_figure, map_figure,
+                                  window_figure)
 from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
 from speciakin.web.state import file_stamp
@@ -177,7 +178,6 @@ def _results(state, folder, out):
     stale) and the campaign's model (colours, compound labels); cached in memory.  One load at a time
     per folder, so a page that asks while the prefetch still loads waits for it instead of loading twice."""
     from speciakin import pipeline
-    from speciakin.chemistry.modelfile import load_model
 
     with _LOCKS_GUARD:
         lock = _LOCKS.setdefault(str(out), threading.Lock())
@@ -190,8 +190,7 @@ def _results(state, folder, out):
     with lock:
         predictions = state.cached("predictions", files, lambda: stored_predictions.predictions_of(
             out, folder, compute))
-    model_file = folder / "model.toml"
-    return predictions, state.cached("model-object", [model_file], lambda: load_model(model_file))
+    return predictions, state.model(folder)
 
 
 def _prefetch(state, folder, out) -> None:
@@ -305,10 +304,10 @@ def _curves(state, name, result, run_name):
         prediction = predictions.run(run_name)
     except (SpeciakinError, OSError, ValueError, StopIteration) as exc:
         return empty_figure(f"cannot plot: {exc}")
-    from speciakin.palette import display_names, model_species_colors
+    from speciakin.palette import display_names
 
     observations = [o for o in predictions.observations if o.run == run_name]
-    return fit_run_figure(prediction, observations, model_species_colors(model), display_names(model))
+    return fit_run_figure(prediction, observations, compound_colors(model), display_names(model))
 
 
 def register(app, state) -> None:
