@@ -11,7 +11,7 @@ import time
 import numpy as np
 import pytest
 
-from .test_journey import choose, open_campaign
+from .test_journey import choose, open_campaign, show_view
 
 pytestmark = pytest.mark.filterwarnings("ignore")
 
@@ -62,17 +62,23 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     shot(page, "29-raw-data-before-results")
     page.click("text=4 Results")
     page.wait_for_selector(f"#result-choice-value:has-text('{RESULT}')")
+    page.wait_for_selector("#parameter-table .ag-row")
+    shot(page, "30-results-parameters")
+    # the tab opens on the parameter table; each figure is drawn when its view (sub-tab) is chosen
+    assert page.locator("#parameter-table").count() == 1
+    assert page.locator("#tab-page-results .js-plotly-plot").count() == 0
+    show_view(page, "correlation")
     page.wait_for_selector("#correlation-figure .gtitle:has-text('parameter correlation')")
-    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
-    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
-    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
-    shot(page, "30-results-views")
+    shot(page, "30-results-correlation")
 
     # correlation: the fit's own matrix, as fit.json holds it
     heat = plotted(page, "correlation-figure")[0]
     assert heat["type"] == "heatmap" and heat["x"] == fit["correlation"]["names"]
     np.testing.assert_array_equal(np.array(heat["z"], float), np.array(fit["correlation"]["matrix"], float))
     assert "least-squares covariance" in page.text_content("#correlation-figure .gtitle")
+    show_view(page, "window")
+    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
+    shot(page, "30-results-window")
 
     # probability against pH: the refined curve, the window and its trust status from window.json
     assert window["status"] in page.text_content("#window-figure .gtitle")
@@ -87,12 +93,18 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
         assert page.locator("#window-reasons li", has_text=reason[:40]).count() == 1
 
     # the 2-D map: the decision layer's probabilities over pH x equivalents, not recomputed
+    show_view(page, "map")
+    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    shot(page, "30-results-map")
     grid = next(t for t in plotted(page, "map-figure") if t["type"] == "heatmap")
     assert grid["x"] == window["ph"] and grid["y"] == window["factor_values"] == [1.1, 1.2]
     np.testing.assert_array_equal(np.array(grid["z"], float), np.array(window["map_probability"], float).T)
     assert "equivalents" in page.text_content("#map-figure .g-ytitle")
 
     # fitted curves: compound names (labels of the model file) in the legend, the report's colours
+    show_view(page, "curves")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    shot(page, "30-results-curves")
     names = [t["name"] for t in plotted(page, "fit-figure")]
     assert "QX-2209 N-aryl amide (desired, invented) fitted" in names
     assert "QX-2209 N-aryl amide (desired, invented) observed" in names
@@ -116,6 +128,7 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
         assert (color == curves[f"{labels[molecule]} fitted"]["color"] == curves[f"{labels[molecule]} observed"]["marker"]
                 == colors.color(molecule)), molecule
     # the parameter table lists the fit's parameters; no posterior in this result
+    show_view(page, "parameters")
     page.wait_for_selector("#parameter-table .ag-row")
     assert set(page.locator("#parameter-table [col-id='posterior'].ag-cell").all_inner_texts()) == {"not sampled"}
 
@@ -125,6 +138,7 @@ def test_zoom_is_interactive(server, page, result, shot):
     url, _ = server
     open_campaign(page, url, CAMPAIGN)
     page.click("text=4 Results")
+    show_view(page, "curves")
     page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
     before = page.evaluate("() => document.querySelector('#fit-figure .js-plotly-plot').layout.xaxis.range.slice()")
     drag = page.locator("#fit-figure .nsewdrag").first
@@ -181,9 +195,16 @@ def test_page_speed_on_the_demo(server, page, result, capsys):
     for attempt in ("first", "again"):
         figures[f"open the results tab ({attempt})"] = _answers(
             page, lambda: page.click("text=4 Results"),
-            # the tab's page comes filled in, with every view, in one answer
-            {"tab-page-results": ("#map-figure .gtitle:has-text('design space')",
-                                  "#fit-figure .gtitle:has-text('fitted')")}, answered=attempt == "first")
+            # the tab's page comes filled in, with every view, in one answer; it opens on the parameters
+            {"tab-page-results": ("#parameter-table .ag-row", "#window-status:has-text('window status')")},
+            answered=attempt == "first")
+        for view, drawn in (("correlation", "#correlation-figure .gtitle"), ("window", "#window-figure .gtitle"),
+                            ("map", "#map-figure .gtitle:has-text('design space')"),
+                            ("curves", "#fit-figure .gtitle:has-text('fitted')")):
+            # drawn in the browser from what the tab's answer brought: no round trip
+            figures[f"  its view {view} ({attempt})"] = _answers(page, lambda: show_view(page, view),
+                                                                 {view: drawn}, answered=False)
+        show_view(page, "parameters")
         page.click("text=1 Campaign and data")
     with capsys.disabled():
         print("\npage answers [s] (headless Chromium, server and browser on this machine, now):")
@@ -215,8 +236,10 @@ def test_a_second_open_of_the_results_tab_computes_and_sends_nothing_again(serve
     open_campaign(page, url, CAMPAIGN)
     page.click("text=4 Results")
     page.wait_for_selector(f"#result-choice-value:has-text('{again.name}')")
-    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    show_view(page, "map")
     page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    show_view(page, "curves")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
     assert [str(c) for c in calls] == [str(again.resolve())]  # computed once (the prefetch or the tab)
     assert (again / stored_predictions.STORE_NAME).is_file()
 
