@@ -33,6 +33,14 @@ PARAMETER_COLUMNS = (("name", "parameter"), ("unit", "unit"), ("value", "value")
                      ("posterior", "posterior median"), ("credible", "95 % credible interval"),
                      ("note", "note"))
 _GRAPH = {"displaylogo": False}
+#: Rows of the parameter table: two lines of text each, a fixed height (measuring every cell's height,
+#: ag-grid's ``autoHeight``, took a third of the tab's first open); columns are kept wide enough for two
+#: lines of their usual texts (a narrow window scrolls the table sideways) and a longer text (a long note)
+#: is shown whole in the cell's tooltip.
+_CELL = {"lineHeight": "1.4em", "paddingTop": "6px", "wordBreak": "break-word"}
+_ROW_HEIGHT = 52  # [px]: two lines of 1.4em at 14 px, the padding and the border
+_MIN_WIDTH = {"name": 180, "unit": 110, "ci": 140, "profile": 120, "posterior": 95, "credible": 140,
+              "note": 180}  # [px]
 _VIEW_TAB = {"padding": "4px 10px", "fontSize": "0.95em"}  # smaller than the page's own tabs
 #: Value of this page's tab (``app._TABS``).
 TAB = "results"
@@ -54,16 +62,16 @@ def layout(filled: tuple | None = None) -> html.Div:
     views = {
         "parameters": [
             html.H3("Fitted parameters"),
-            dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
+            dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h, "tooltipField": f,
                                                           "flex": 2 if f in ("name", "note", "ci") else 1,
-                                                          "minWidth": 190 if f == "name" else 90}
+                                                          "minWidth": _MIN_WIDTH.get(f, 100)}
                                                          for f, h in PARAMETER_COLUMNS],
                        rowData=rows, defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
-                                                    "autoHeight": True, "wrapHeaderText": True,
-                                                    "autoHeaderHeight": True,
-                                                    "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px",
-                                                                  "wordBreak": "break-word"}},
-                       dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
+                                                    "wrapHeaderText": True, "autoHeaderHeight": True,
+                                                    "cellStyle": _CELL},
+                       dashGridOptions={"domLayout": "autoHeight", "rowHeight": _ROW_HEIGHT,
+                                        "tooltipShowDelay": 300},
+                       style={"width": "100%"}),
             html.Ul(warnings, id="fit-warnings")],
         "correlation": [dcc.Graph(id="correlation-figure", figure=corr, config=_GRAPH)],
         "window": [dcc.Graph(id="window-figure", figure=window, config=_GRAPH)],
