@@ -131,6 +131,14 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     show_view(page, "parameters")
     page.wait_for_selector("#parameter-table .ag-row")
     assert set(page.locator("#parameter-table [col-id='posterior'].ag-cell").all_inner_texts()) == {"not sampled"}
+    # rows of a fixed height of two lines; a cell's whole text is its tooltip (a longer note is cut in the cell)
+    heights = page.evaluate("() => [...document.querySelectorAll('#parameter-table .ag-center-cols-container .ag-row')]"
+                            ".map(r => r.getBoundingClientRect().height)")
+    assert len(heights) == len(fit["parameters"]) and max(heights) - min(heights) < 1, heights
+    note = next(p for p in fit["parameters"] if p.get("shift_of") is not None)
+    page.hover(f"#parameter-table [row-id='{note['name']}'] [col-id='note'], "
+               f"#parameter-table .ag-row:has([col-id='name']:text-is('{note['name']}')) [col-id='note']")
+    page.wait_for_selector(f".ag-tooltip:has-text('shift of {note['shift_of']:g}')")
 
 
 def test_zoom_is_interactive(server, page, result, shot):

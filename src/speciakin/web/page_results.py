@@ -37,7 +37,9 @@ _GRAPH = {"displaylogo": False}
 #: ag-grid's ``autoHeight``, took a third of the tab's first open); columns are kept wide enough for two
 #: lines of their usual texts (a narrow window scrolls the table sideways) and a longer text (a long note)
 #: is shown whole in the cell's tooltip.
-_CELL = {"lineHeight": "1.4em", "paddingTop": "6px", "wordBreak": "break-word"}
+_CELL = {"lineHeight": "1.4em", "paddingTop": "6px", "wordBreak": "break-word",
+         # a text cut after two lines ends in an ellipsis
+         "display": "-webkit-box", "WebkitLineClamp": 2, "WebkitBoxOrient": "vertical", "overflow": "hidden"}
 _ROW_HEIGHT = 52  # [px]: two lines of 1.4em at 14 px, the padding and the border
 _MIN_WIDTH = {"name": 180, "unit": 110, "ci": 140, "profile": 120, "posterior": 95, "credible": 140,
               "note": 180}  # [px]
