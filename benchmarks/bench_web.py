@@ -10,7 +10,10 @@ in the order of a chemist's visit, every view:
     raw run    the raw data of another run
     model      the model summary and the parameter table (tab 2)
     parameter edit  a start value typed into the parameter table, until its diff is shown
-    results    tab 4: parameter table, correlation, probability against pH, 2-D map, fitted curves
+    results    tab 4 first opened: the window status, the parameter table and every figure the version
+               draws on opening (this one: none, each view has its sub-tab; older ones: all four)
+    correlation view, pH curve view, 2-D map view, fitted curves view
+               each view of tab 4 chosen (its sub-tab; nothing to do in a version without sub-tabs)
     curves     the fitted curves of another run
     history    tab 5: every result; then two results side by side (from the choice of B)
     results again  tab 4 opened a second time (from the click on it)
@@ -164,19 +167,41 @@ def _views(page, url: str):
          {"summary": "#model-summary:has-text('Molecules')", "parameter table": "#param-table .ag-row"}),
         ("parameter edit", lambda: _type_start(page, EDITED[1]), {"diff": f"#param-diff .diff-add:has-text('{EDITED[1]}')"}),
         ("results", lambda: page.click("text=4 Results"),
-         {"parameters": "#parameter-table .ag-row", "correlation": "#correlation-figure .gtitle",
-          "pH curve": "#window-figure .gtitle:has-text('probability')",
-          "2-D map": "#map-figure .gtitle:has-text('design space')",
-          "fitted curves": "#fit-figure .gtitle:has-text('fitted curves')"}),
+         {"parameters": "#parameter-table .ag-row", "window status": "#window-status:has-text('window status')",
+          "views shown": lambda: _shown_views_drawn(page)}),
+        *[(f"{label} view", lambda v=value: _show_view(page, v), {label: selector})
+          for value, label, selector in RESULT_VIEWS],
         ("curves", fit, {"fitted curves": lambda: f"#fit-figure .gtitle:has-text('run {fit.value}:')"}),
         ("history", lambda: page.click("text=5 History"), {"results index": "#history-table .ag-row"}),
         ("compare", lambda: _choose(page, "compare-b", index=1), {"side by side": "#compare-inputs-summary"}),
         ("results again", lambda: page.click("text=4 Results"),
-         {"parameters": "#parameter-table .ag-row", "fitted curves": "#fit-figure .gtitle:has-text('fitted')"}),
+         {"window status": "#window-status:has-text('window status')",
+          "fitted curves": "#fit-figure .gtitle:has-text('fitted')"}),
         # the same browser again: its cache holds the page's code (a chemist reloading the page)
         ("page reload", lambda: page.reload(),
          {"check": "#check-summary:has-text('Ready to fit')", "raw data": "#raw-figure .gtitle"}),
     ]
+
+
+#: The views of the results tab (sub-tab value, name, selector that shows it drawn), in the order visited.
+RESULT_VIEWS = (("correlation", "correlation", "#correlation-figure .gtitle"),
+                ("window", "pH curve", "#window-figure .gtitle:has-text('probability')"),
+                ("map", "2-D map", "#map-figure .gtitle:has-text('design space')"),
+                ("curves", "fitted curves", "#fit-figure .gtitle:has-text('fitted curves')"))
+
+
+def _show_view(page, value: str) -> None:
+    """Choose a view of the results tab (its sub-tab); a version without sub-tabs drew it on opening."""
+    if page.locator(f"#result-view-{value}").count():
+        page.click(f"#result-view-{value}")
+
+
+def _shown_views_drawn(page) -> str:
+    """Wait until every figure of the results tab that is in the page has been drawn (a version without
+    sub-tabs draws them all on opening, one with sub-tabs those of the view shown); a selector to return."""
+    page.wait_for_function("""() => ['correlation', 'window', 'map', 'fit'].every(k => {
+        const g = document.getElementById(`${k}-figure`); return !g || g.querySelector('.gtitle'); })""")
+    return "#window-status"
 
 
 #: The parameter table's cell edited (row, new start value) and how the edit is typed.

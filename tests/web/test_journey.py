@@ -22,6 +22,12 @@ def choose(page, dropdown: str, value: str) -> None:
     page.wait_for_selector(f"#{dropdown}-value:has-text('{value}')")
 
 
+def show_view(page, view: str) -> None:
+    """Choose a view of the results tab (its sub-tab: parameters, correlation, window, map, curves)."""
+    page.click(f"#result-view-{view}")
+    page.wait_for_selector(f"#result-view-{view}.tab--selected")
+
+
 def open_campaign(page, url: str, name: str) -> None:
     page.goto(url)
     page.wait_for_selector("#campaign-choice")
@@ -114,9 +120,15 @@ def test_fit_job_runs_to_completion_with_progress_and_the_window_status_is_shown
     assert names == [p["name"] for p in fit["parameters"]]
     # profiles were switched off for this job: the table says so instead of showing open intervals
     assert set(page.locator("#parameter-table [col-id='profile'].ag-cell").all_inner_texts()) == {"not computed"}
-    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
-    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
     shot(page, "06-results")
+    # each figure is drawn when its view is chosen
+    show_view(page, "curves")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    shot(page, "06b-results-fitted-curves")
+    show_view(page, "window")
+    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
+    assert page.locator("#fit-figure").count() == 0  # the view not shown is not in the page
+    shot(page, "06c-results-window")
 
 
 def test_a_running_job_can_be_cancelled(server, page, shot):

@@ -11,7 +11,7 @@ import time
 import numpy as np
 import pytest
 
-from .test_journey import choose, open_campaign
+from .test_journey import choose, open_campaign, show_view
 
 pytestmark = pytest.mark.filterwarnings("ignore")
 
@@ -48,7 +48,8 @@ def plotted(page, graph: str) -> list[dict]:
         "(id) => { const plain = v => v == null ? v : ArrayBuffer.isView(v) ? Array.from(v) :"
         " Array.isArray(v) ? v.map(plain) : v;"
         " return document.querySelector(`#${id} .js-plotly-plot`)._fullData.map(t => ({type: t.type,"
-        " name: t.name, x: plain(t.x), y: plain(t.y), z: plain(t.z), color: t.line && t.line.color})); }", graph)
+        " name: t.name, x: plain(t.x), y: plain(t.y), z: plain(t.z), color: t.line && t.line.color,"
+        " marker: t.marker && t.marker.color})); }", graph)
 
 
 def test_results_show_correlation_window_with_status_map_and_curves(server, page, result, shot):
@@ -56,19 +57,28 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     fit = json.loads((result / "fit.json").read_text())
     window = json.loads((result / "window.json").read_text())
     open_campaign(page, url, CAMPAIGN)
+    page.wait_for_selector("#raw-figure .gtitle:has-text('data as imported')")
+    raw = plotted(page, "raw-figure")
+    shot(page, "29-raw-data-before-results")
     page.click("text=4 Results")
     page.wait_for_selector(f"#result-choice-value:has-text('{RESULT}')")
+    page.wait_for_selector("#parameter-table .ag-row")
+    shot(page, "30-results-parameters")
+    # the tab opens on the parameter table; each figure is drawn when its view (sub-tab) is chosen
+    assert page.locator("#parameter-table").count() == 1
+    assert page.locator("#tab-page-results .js-plotly-plot").count() == 0
+    show_view(page, "correlation")
     page.wait_for_selector("#correlation-figure .gtitle:has-text('parameter correlation')")
-    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
-    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
-    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
-    shot(page, "30-results-views")
+    shot(page, "30-results-correlation")
 
     # correlation: the fit's own matrix, as fit.json holds it
     heat = plotted(page, "correlation-figure")[0]
     assert heat["type"] == "heatmap" and heat["x"] == fit["correlation"]["names"]
     np.testing.assert_array_equal(np.array(heat["z"], float), np.array(fit["correlation"]["matrix"], float))
     assert "least-squares covariance" in page.text_content("#correlation-figure .gtitle")
+    show_view(page, "window")
+    page.wait_for_selector("#window-figure .gtitle:has-text('probability of meeting spec')")
+    shot(page, "30-results-window")
 
     # probability against pH: the refined curve, the window and its trust status from window.json
     assert window["status"] in page.text_content("#window-figure .gtitle")
@@ -83,12 +93,18 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
         assert page.locator("#window-reasons li", has_text=reason[:40]).count() == 1
 
     # the 2-D map: the decision layer's probabilities over pH x equivalents, not recomputed
+    show_view(page, "map")
+    page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    shot(page, "30-results-map")
     grid = next(t for t in plotted(page, "map-figure") if t["type"] == "heatmap")
     assert grid["x"] == window["ph"] and grid["y"] == window["factor_values"] == [1.1, 1.2]
     np.testing.assert_array_equal(np.array(grid["z"], float), np.array(window["map_probability"], float).T)
     assert "equivalents" in page.text_content("#map-figure .g-ytitle")
 
     # fitted curves: compound names (labels of the model file) in the legend, the report's colours
+    show_view(page, "curves")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    shot(page, "30-results-curves")
     names = [t["name"] for t in plotted(page, "fit-figure")]
     assert "QX-2209 N-aryl amide (desired, invented) fitted" in names
     assert "QX-2209 N-aryl amide (desired, invented) observed" in names
@@ -98,9 +114,31 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     colors = model_species_colors(load_model(result.parent.parent / "model.toml"))
     line = next(t for t in plotted(page, "fit-figure") if t["name"] == "QX-2209 N-aryl amide (desired, invented) fitted")
     assert line["color"] == colors.color("P_aryl")
+    # one colour per compound: the raw data of the same (first) run as drawn on tab 1, the fitted curves and
+    # the observations over them, and the report's palette agree
+    from speciakin.data import load_campaign
+    from speciakin.palette import display_names
+
+    model = load_model(result.parent.parent / "model.toml")
+    labels, curves = display_names(model), {t["name"]: t for t in plotted(page, "fit-figure")}
+    compounds = {c.name: c.molecule for c in load_campaign(result.parent.parent).compounds}
+    drawn = {compounds[t["name"]]: t["marker"] for t in raw if t["name"] in compounds}
+    assert set(drawn) == set(compounds.values())
+    for molecule, color in drawn.items():
+        assert (color == curves[f"{labels[molecule]} fitted"]["color"] == curves[f"{labels[molecule]} observed"]["marker"]
+                == colors.color(molecule)), molecule
     # the parameter table lists the fit's parameters; no posterior in this result
+    show_view(page, "parameters")
     page.wait_for_selector("#parameter-table .ag-row")
     assert set(page.locator("#parameter-table [col-id='posterior'].ag-cell").all_inner_texts()) == {"not sampled"}
+    # rows of a fixed height of two lines; a cell's whole text is its tooltip (a longer note is cut in the cell)
+    heights = page.evaluate("() => [...document.querySelectorAll('#parameter-table .ag-center-cols-container .ag-row')]"
+                            ".map(r => r.getBoundingClientRect().height)")
+    assert len(heights) == len(fit["parameters"]) and max(heights) - min(heights) < 1, heights
+    note = next(p for p in fit["parameters"] if p.get("shift_of") is not None)
+    page.hover(f"#parameter-table [row-id='{note['name']}'] [col-id='note'], "
+               f"#parameter-table .ag-row:has([col-id='name']:text-is('{note['name']}')) [col-id='note']")
+    page.wait_for_selector(f".ag-tooltip:has-text('shift of {note['shift_of']:g}')")
 
 
 def test_zoom_is_interactive(server, page, result, shot):
@@ -108,6 +146,7 @@ def test_zoom_is_interactive(server, page, result, shot):
     url, _ = server
     open_campaign(page, url, CAMPAIGN)
     page.click("text=4 Results")
+    show_view(page, "curves")
     page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
     before = page.evaluate("() => document.querySelector('#fit-figure .js-plotly-plot').layout.xaxis.range.slice()")
     drag = page.locator("#fit-figure .nsewdrag").first
@@ -164,9 +203,16 @@ def test_page_speed_on_the_demo(server, page, result, capsys):
     for attempt in ("first", "again"):
         figures[f"open the results tab ({attempt})"] = _answers(
             page, lambda: page.click("text=4 Results"),
-            # the tab's page comes filled in, with every view, in one answer
-            {"tab-page-results": ("#map-figure .gtitle:has-text('design space')",
-                                  "#fit-figure .gtitle:has-text('fitted')")}, answered=attempt == "first")
+            # the tab's page comes filled in, with every view, in one answer; it opens on the parameters
+            {"tab-page-results": ("#parameter-table .ag-row", "#window-status:has-text('window status')")},
+            answered=attempt == "first")
+        for view, drawn in (("correlation", "#correlation-figure .gtitle"), ("window", "#window-figure .gtitle"),
+                            ("map", "#map-figure .gtitle:has-text('design space')"),
+                            ("curves", "#fit-figure .gtitle:has-text('fitted')")):
+            # drawn in the browser from what the tab's answer brought: no round trip
+            figures[f"  its view {view} ({attempt})"] = _answers(page, lambda: show_view(page, view),
+                                                                 {view: drawn}, answered=False)
+        show_view(page, "parameters")
         page.click("text=1 Campaign and data")
     with capsys.disabled():
         print("\npage answers [s] (headless Chromium, server and browser on this machine, now):")
@@ -198,8 +244,10 @@ def test_a_second_open_of_the_results_tab_computes_and_sends_nothing_again(serve
     open_campaign(page, url, CAMPAIGN)
     page.click("text=4 Results")
     page.wait_for_selector(f"#result-choice-value:has-text('{again.name}')")
-    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
+    show_view(page, "map")
     page.wait_for_selector("#map-figure .gtitle:has-text('design space')")
+    show_view(page, "curves")
+    page.wait_for_selector("#fit-figure .gtitle:has-text('fitted curves over data')")
     assert [str(c) for c in calls] == [str(again.resolve())]  # computed once (the prefetch or the tab)
     assert (again / stored_predictions.STORE_NAME).is_file()
 

@@ -19,9 +19,9 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
+from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors, model_species_colors
 
-__all__ = ["label", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure",
+__all__ = ["label", "compound_colors", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure",
            "correlation_figure", "map_figure"]
 
 #: Most points of one trace drawn on the page; longer logs are thinned.
@@ -42,6 +42,9 @@ def _page_template() -> go.layout.Template:
 
 #: Plotly template of every figure.
 TEMPLATE = _page_template()
+#: Colour of the logs (pH, temperature, titrant; each in its own panel): black, which the palette gives no
+#: compound before the eighth, so that every other colour of the figure stands for one compound.
+_LOG_COLOR = OKABE_ITO["black"]
 _S_PER_MIN = 60.0
 _KELVIN = 273.15
 
@@ -54,6 +57,16 @@ def thin(x: np.ndarray, y: np.ndarray, limit: int = MAX_POINTS) -> tuple[np.ndar
     k = int(np.ceil(n / limit))
     idx = np.unique(np.r_[np.arange(0, n, k), n - 1])
     return np.asarray(x)[idx], np.asarray(y)[idx], k
+
+
+def compound_colors(model=None, molecules=()) -> SpeciesColors:
+    """The colours of every figure of the page: the report's (:func:`speciakin.palette.model_species_colors`:
+    one colour per compound in the model's molecule order, compound labels and short names alike), so a
+    compound has the same colour in the raw data, the fitted curves and the report; without a model
+    (``None``), the ``molecules`` (short names) in the order given."""
+    if model is not None:
+        return model_species_colors(model)
+    return SpeciesColors(list(dict.fromkeys(molecules)))
 
 
 def label(text) -> str:
@@ -98,21 +111,21 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
                                      mode="markers", name=label(f"{name} below LOQ"), marker=marker), row=1, col=1)
     ph = run.recipe.ph
     if run.ph_log is not None and len(run.ph_log):
-        _log_trace(fig, run.ph_log, lambda v: v, "pH log", 1, 2, notes, "#000000")
+        _log_trace(fig, run.ph_log, lambda v: v, "pH log", 1, 2, notes, _LOG_COLOR)
     elif ph.mode == "held" and ph.setpoint is not None:
         fig.add_trace(go.Scatter(x=[0, run.recipe.end_time / _S_PER_MIN], y=[ph.setpoint] * 2, mode="lines",
-                                 name="pH set point", line=dict(dash="dash", color="#000000")), row=1, col=2)
+                                 name="pH set point", line=dict(dash="dash", color=_LOG_COLOR)), row=1, col=2)
     if run.temperature_log is not None and len(run.temperature_log):
-        _log_trace(fig, run.temperature_log, lambda v: v - _KELVIN, "temperature log", 2, 1, notes, "#D55E00")
+        _log_trace(fig, run.temperature_log, lambda v: v - _KELVIN, "temperature log", 2, 1, notes, _LOG_COLOR)
     else:
         temp = run.recipe.temperature
         times = list(temp.times) if len(temp.times) == len(temp.temperatures) else [0.0]
         fig.add_trace(go.Scatter(x=np.asarray(times) / _S_PER_MIN, y=np.asarray(temp.temperatures) - _KELVIN,
-                                 mode="lines+markers", name="temperature (recipe)", line=dict(color="#D55E00")),
+                                 mode="lines+markers", name="temperature (recipe)", line=dict(color=_LOG_COLOR)),
                       row=2, col=1)
     if run.titrant is not None and len(run.titrant.time):
         t, v, k = thin(run.titrant.time / _S_PER_MIN, run.titrant.amount * 1e3)
-        fig.add_trace(go.Scatter(x=t, y=v, mode="lines", name="titrant", line=dict(color="#0072B2")), row=2, col=2)
+        fig.add_trace(go.Scatter(x=t, y=v, mode="lines", name="titrant", line=dict(color=_LOG_COLOR)), row=2, col=2)
         if k > 1:
             notes.append(f"titrant: 1 in {k} of {len(run.titrant.time)} readings shown "
                          "(display only; the fit uses all)")

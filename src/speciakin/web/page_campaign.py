@@ -10,7 +10,7 @@ import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
-from speciakin.web.figures import empty_figure, raw_run_figure
+from speciakin.web.figures import compound_colors, empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
 __all__ = ["layout", "register", "check_rows", "folder_picker", "campaign_view", "initial_choice", "CHECK_COLUMNS"]
@@ -193,11 +193,13 @@ def _raw_figure(state, name, run_name):
         run = campaign.run(run_name)
     except (SpeciakinError, KeyError) as exc:
         return empty_figure(f"cannot plot: {exc}")
-    from speciakin.palette import SpeciesColors
-
+    try:
+        model = state.model(folder)
+    except (SpeciakinError, OSError):
+        model = None  # the check names what is wrong with the model file
+    colors = compound_colors(model, [c.molecule for c in campaign.compounds])
     # kept while the campaign's files are unchanged: every new page carries the first run's figure
-    return state.cached(f"raw-figure {run_name}", state.inputs_of(folder), lambda: raw_run_figure(
-        run, SpeciesColors(sorted({c.molecule for c in campaign.compounds}))))
+    return state.cached(f"raw-figure {run_name}", state.inputs_of(folder), lambda: raw_run_figure(run, colors))
 
 
 def _verdict(report) -> str:

@@ -17,13 +17,14 @@ from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web import stored_predictions
-from speciakin.web.figures import correlation_figure, empty_figure, fit_run_figure, map_figure, window_figure
+from speciakin.web.figures import (compound_colors, correlation_figure, empty_figure, fit_run_figure, map_figure,
+                                  window_figure)
 from speciakin.web.page_campaign import folder_picker
 from speciakin.web.paths import RESULTS_FOLDER, result_folders
 from speciakin.web.state import file_stamp
 
 __all__ = ["layout", "mounted", "prefetch_newest", "register", "parameter_rows", "correlation_of",
-           "PARAMETER_COLUMNS"]
+           "PARAMETER_COLUMNS", "VIEWS"]
 
 HISTORY_HINT = "Every result of the campaign, and two results side by side: see tab 5 History."
 #: Columns of the parameter table: (field, header).
@@ -32,8 +33,27 @@ PARAMETER_COLUMNS = (("name", "parameter"), ("unit", "unit"), ("value", "value")
                      ("posterior", "posterior median"), ("credible", "95 % credible interval"),
                      ("note", "note"))
 _GRAPH = {"displaylogo": False}
+#: Rows of the parameter table: two lines of text each, a fixed height (measuring every cell's height,
+#: ag-grid's ``autoHeight``, took a third of the tab's first open); columns are kept wide enough for two
+#: lines of their usual texts (a narrow window scrolls the table sideways) and a longer text (a long note)
+#: is shown whole in the cell's tooltip.
+_CELL = {"lineHeight": "1.4em", "paddingTop": "6px", "wordBreak": "break-word",
+         # a text cut after two lines ends in an ellipsis
+         "display": "-webkit-box", "WebkitLineClamp": 2, "WebkitBoxOrient": "vertical", "overflow": "hidden"}
+_ROW_HEIGHT = 52  # [px]: two lines of 1.4em at 14 px, the padding and the border
+_MIN_WIDTH = {"name": 180, "unit": 110, "ci": 140, "profile": 120, "posterior": 95, "credible": 140,
+              "note": 180}  # [px]
+_VIEW_TAB = {"padding": "4px 10px", "fontSize": "0.95em"}  # smaller than the page's own tabs
 #: Value of this page's tab (``app._TABS``).
 TAB = "results"
+
+
+#: The views of a result, one sub-tab each: (value, label). Only the shown one is drawn (``dcc.Tabs`` puts
+#: only the selected tab's content into the page): the tab opens on the parameter table, and each figure
+#: is drawn when its sub-tab is chosen (Plotly drawing the four figures at once took most of the first
+#: open of the tab; docs/web.md).
+VIEWS = (("parameters", "Parameters"), ("correlation", "Correlation"), ("window", "pH window"),
+         ("map", "Design space"), ("curves", "Fitted curves"))
 
 
 def layout(filled: tuple | None = None) -> html.Div:
@@ -41,34 +61,38 @@ def layout(filled: tuple | None = None) -> html.Div:
     choice, shown, runs, curves = filled or (([], None), _blank_show("choose a result"), ([], None, ""),
                                             empty_figure("choose a result"))
     rows, warnings, corr, status, reasons, window, drawn_map, message, drawn = shown
+    views = {
+        "parameters": [
+            html.H3("Fitted parameters"),
+            dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h, "tooltipField": f,
+                                                          "flex": 2 if f in ("name", "note", "ci") else 1,
+                                                          "minWidth": _MIN_WIDTH.get(f, 100)}
+                                                         for f, h in PARAMETER_COLUMNS],
+                       rowData=rows, defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
+                                                    "wrapHeaderText": True, "autoHeaderHeight": True,
+                                                    "cellStyle": _CELL},
+                       dashGridOptions={"domLayout": "autoHeight", "rowHeight": _ROW_HEIGHT,
+                                        "tooltipShowDelay": 300},
+                       style={"width": "100%"}),
+            html.Ul(warnings, id="fit-warnings")],
+        "correlation": [dcc.Graph(id="correlation-figure", figure=corr, config=_GRAPH)],
+        "window": [dcc.Graph(id="window-figure", figure=window, config=_GRAPH)],
+        "map": [html.P("Probability over pH and a second condition of the process file.", className="message"),
+                dcc.Graph(id="map-figure", figure=drawn_map, config=_GRAPH)],
+        "curves": [dcc.Dropdown(id="fit-run", options=runs[0], value=runs[1], placeholder="choose a run",
+                                clearable=False, style={"maxWidth": "320px", "marginTop": ".5em"}),
+                   html.Div(runs[2], id="fit-message", className="message"),
+                   dcc.Graph(id="fit-figure", figure=curves, config=_GRAPH)],
+    }
     return html.Div(className="page", children=[
         folder_picker("Result folder", "result", "choose a result", *choice),
         html.Div(message, id="result-message", className="message"),
-        html.H3("Fitted parameters"),
-        dag.AgGrid(id="parameter-table", columnDefs=[{"field": f, "headerName": h,
-                                                      "flex": 2 if f in ("name", "note", "ci") else 1,
-                                                      "minWidth": 190 if f == "name" else 90}
-                                                     for f, h in PARAMETER_COLUMNS],
-                   rowData=rows, defaultColDef={"sortable": True, "resizable": True, "wrapText": True,
-                                                "autoHeight": True, "wrapHeaderText": True, "autoHeaderHeight": True,
-                                                "cellStyle": {"lineHeight": "1.4em", "paddingTop": "6px",
-                                                              "wordBreak": "break-word"}},
-                   dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
-        html.Ul(warnings, id="fit-warnings"),
-        html.H3("Parameter correlation"),
-        dcc.Graph(id="correlation-figure", figure=corr, config=_GRAPH),
-        html.H3("pH window"),
+        # the window's trust status and its reasons stay above the views: the decision at a glance
         html.Div(status, id="window-status", className="status"),
         html.Ul(reasons, id="window-reasons"),
-        dcc.Graph(id="window-figure", figure=window, config=_GRAPH),
-        html.H3("Design space over pH and a second condition"),
-        dcc.Graph(id="map-figure", figure=drawn_map, config=_GRAPH),
-        html.H3("Fitted curves over data"),
-        dcc.Dropdown(id="fit-run", options=runs[0], value=runs[1], placeholder="choose a run", clearable=False,
-                     style={"maxWidth": "320px"}),
-        html.Div(runs[2], id="fit-message", className="message"),
-        dcc.Graph(id="fit-figure", figure=curves, config=_GRAPH),
-        html.H3("History"),
+        dcc.Tabs(id="result-view", value=VIEWS[0][0], style={"maxWidth": "760px"},
+                 children=[dcc.Tab(label=text, value=value, id=f"result-view-{value}", children=views[value],
+                                   style=_VIEW_TAB, selected_style=_VIEW_TAB) for value, text in VIEWS]),
         html.P(HISTORY_HINT, id="history-hint", className="message"),
         dcc.Store(id="results-drawn", data=drawn),
     ])
@@ -177,7 +201,6 @@ def _results(state, folder, out):
     stale) and the campaign's model (colours, compound labels); cached in memory.  One load at a time
     per folder, so a page that asks while the prefetch still loads waits for it instead of loading twice."""
     from speciakin import pipeline
-    from speciakin.chemistry.modelfile import load_model
 
     with _LOCKS_GUARD:
         lock = _LOCKS.setdefault(str(out), threading.Lock())
@@ -190,8 +213,7 @@ def _results(state, folder, out):
     with lock:
         predictions = state.cached("predictions", files, lambda: stored_predictions.predictions_of(
             out, folder, compute))
-    model_file = folder / "model.toml"
-    return predictions, state.cached("model-object", [model_file], lambda: load_model(model_file))
+    return predictions, state.model(folder)
 
 
 def _prefetch(state, folder, out) -> None:
@@ -305,10 +327,10 @@ def _curves(state, name, result, run_name):
         prediction = predictions.run(run_name)
     except (SpeciakinError, OSError, ValueError, StopIteration) as exc:
         return empty_figure(f"cannot plot: {exc}")
-    from speciakin.palette import display_names, model_species_colors
+    from speciakin.palette import display_names
 
     observations = [o for o in predictions.observations if o.run == run_name]
-    return fit_run_figure(prediction, observations, model_species_colors(model), display_names(model))
+    return fit_run_figure(prediction, observations, compound_colors(model), display_names(model))
 
 
 def register(app, state) -> None:

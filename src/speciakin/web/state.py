@@ -57,6 +57,14 @@ class WebState:
             self._cache[key] = value
         return value
 
+    def model(self, campaign: Path):
+        """The campaign's model file ``model.toml``, loaded (cached while the file is unchanged); raises
+        the model file's errors (:class:`~speciakin.errors.SpeciakinError`) and OSError."""
+        from speciakin.chemistry.modelfile import load_model
+
+        path = Path(campaign) / "model.toml"
+        return self.cached("model-object", [path], lambda: load_model(path))
+
     @staticmethod
     def inputs_of(campaign: Path) -> list[Path]:
         """The files a campaign's check depends on (workbook, CSV files, model and process files), and

@@ -33,15 +33,14 @@ def warm_up() -> None:
     from speciakin.data import check_campaign, load_campaign
     from speciakin.demo import demo_dir
     from speciakin.errors import SpeciakinError
-    from speciakin.palette import SpeciesColors
-    from speciakin.web.figures import correlation_figure, raw_run_figure
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.web.figures import compound_colors, correlation_figure, raw_run_figure
 
     demo = demo_dir()
     try:
         check_campaign(demo, model=demo / "model.toml")
         campaign = load_campaign(demo)
-        colors = SpeciesColors(sorted({c.molecule for c in campaign.compounds}))
-        raw_run_figure(campaign.runs[0], colors).to_plotly_json()
+        raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml"))).to_plotly_json()
         figure = correlation_figure(["a", "b"], [[1.0, 0.5], [0.5, 1.0]], "warm-up")
         figure.add_trace(go.Contour(z=[[0.0, 1.0], [1.0, 0.0]]))
         figure.add_vrect(x0=0, x1=1)
