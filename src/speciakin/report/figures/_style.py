@@ -81,12 +81,12 @@ def to_png(fig: Figure, dpi: int = DPI) -> bytes:
 
     fig.set_dpi(dpi)
     fig.canvas.draw()
-    rgba = np.asarray(fig.canvas.buffer_rgba())
+    rgba = fig.canvas.buffer_rgba()
+    image = Image.frombuffer("RGBA", (rgba.shape[1], rgba.shape[0]), rgba, "raw", "RGBA", 0, 1).convert("RGB")
     info = PngInfo()
     info.add_text("Software", "speciakin")
     buffer = io.BytesIO()
-    Image.fromarray(np.ascontiguousarray(rgba[..., :3])).save(
-        buffer, format="png", pnginfo=info, dpi=(dpi, dpi), compress_level=PNG_COMPRESS_LEVEL)
+    image.save(buffer, format="png", pnginfo=info, dpi=(dpi, dpi), compress_level=PNG_COMPRESS_LEVEL)
     return buffer.getvalue()
 
 
