@@ -68,3 +68,52 @@ def test_a_real_figure_gives_the_same_png():
     first = corner_figure(samples, ["a", "b"])
     assert first[:8] == b"\x89PNG\r\n\x1a\n"
     assert corner_figure(samples.copy(), ["a", "b"]) is first
+
+
+def test_dataclass_arguments_by_their_fields():
+    from speciakin.palette import SpeciesColors
+
+    draw, calls = counting()
+    draw([1.0], [], extra=SpeciesColors(["S", "P"]))
+    draw([1.0], [], extra=SpeciesColors(["S", "P"]))  # another object with equal fields
+    assert len(calls) == 1
+    draw([1.0], [], extra=SpeciesColors(["P", "S"]))  # other colours for the same names: another figure
+    draw([1.0], [], extra=SpeciesColors(["S", "P"], aliases={"s": "S"}))
+    assert len(calls) == 3
+
+
+def test_a_call_that_changes_its_arguments_is_not_remembered():
+    from speciakin.palette import SpeciesColors
+
+    calls = []
+
+    @_memo.remembered
+    def draw(names, colors):
+        calls.append(1)
+        return ",".join(colors.color(n) for n in names).encode()
+
+    first_colors = SpeciesColors(["S"])
+    first = draw(["S", "P"], first_colors)  # learns "P"
+    assert first_colors.species == ["S", "P"]
+    second_colors = SpeciesColors(["S"])
+    assert draw(["S", "P"], second_colors) == first and len(calls) == 2  # drawn again, not taken from memory
+    assert second_colors.species == ["S", "P"]  # so this palette learned "P" as well
+    known = SpeciesColors(["S", "P"])
+    draw(["S", "P"], known)
+    draw(["S", "P"], SpeciesColors(["S", "P"]))  # nothing learned: remembered
+    assert len(calls) == 3
+
+
+def test_time_courses_and_residuals_are_remembered():
+    from speciakin.palette import SpeciesColors
+    from speciakin.report.figures import residuals_figure, time_course_figure
+
+    grid = np.linspace(0.0, 60.0, 31)
+    args = ({"S": [0.0, 10.0]}, {"S": [1.0, 0.6]}, grid, {"S": np.exp(-0.05 * grid)})
+    time_course_figure.forget()
+    first = time_course_figure(*args, SpeciesColors(["S"]), title="Run 1")
+    assert time_course_figure(*args, SpeciesColors(["S"]), title="Run 1") is first
+    assert time_course_figure(*args, SpeciesColors(["S"]), title="Run 2") is not first
+    residuals_figure.forget()
+    values = ([0.0, 10.0], [1.0, 0.5], [0.1, -0.2], ["S", "S"])
+    assert residuals_figure(*values, SpeciesColors(["S"])) is residuals_figure(*values, SpeciesColors(["S"]))

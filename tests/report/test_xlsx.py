@@ -66,3 +66,12 @@ def test_sheet_names_are_valid_and_unique():
 ])
 def test_excel_number_format(spec, expected):
     assert excel_number_format(spec) == expected
+
+
+def test_every_row_of_a_table_gets_its_number_format():
+    rows = [[f"r{i}", 0.5 + i, i] for i in range(6)] + [["nan", math.nan, 7]]
+    doc = ReportDocument("T", [], tables_for_workbook=[Table("Values", ["name", "x", "n"], rows,
+                                                                 formats=[None, ".3f", None])])
+    sheet = openpyxl.load_workbook(__import__("io").BytesIO(xlsx_bytes(doc)))["Values"]
+    assert [sheet.cell(row=r, column=2).number_format for r in range(2, 8)] == ["0.000"] * 6
+    assert sheet.cell(row=8, column=2).value == "NaN"  # stored as text (docs/report.md)

@@ -83,11 +83,11 @@ def _write_table(ws, table: Table) -> None:
         cell.fill = PatternFill("solid", fgColor=_HEADER_FILL)
         cell.alignment = Alignment(wrap_text=True, vertical="top")
     formats = [excel_number_format(f) for f in table.formats]
-    for row in table.rows:
+    for number, row in enumerate(table.rows, start=2):  # the header is row 1 (ws.max_row scans every cell)
         ws.append([_value(c) for c in row])
         for i, value in enumerate(row):
             if isinstance(value, float) and math.isfinite(value):
-                ws.cell(row=ws.max_row, column=i + 1).number_format = formats[i]
+                ws.cell(row=number, column=i + 1).number_format = formats[i]
     texts = table.formatted_rows()
     for i, header in enumerate(headers):
         ws.column_dimensions[get_column_letter(i + 1)].width = _width([header] + [r[i] for r in texts])

@@ -1,18 +1,24 @@
 """Figures drawn once per content: PNG bytes remembered by the values of the arguments.
 
-A job draws some figures twice with the same numbers: the figures folder of a
-step (``report.results.posterior_figures``, ``fit_figures``) and the report
-built at the end (trace, corner and profile plots).  :func:`remembered` keeps
+A job draws some figures twice with the same numbers: the figures folder of
+a step (``report.results.posterior_figures``, ``fit_figures``) and the report
+built at the end (trace, corner and profile plots, the residuals), and a
+process that renders the report of the same results again (``speciakin
+web``, the test suite) draws every figure again.  :func:`remembered` keeps
 the PNG bytes of the last :data:`MAX_REMEMBERED` calls of a figure function,
 keyed by a SHA-256 digest of the function's name and the values (not the
 identity) of its arguments, so a second call with equal numbers returns the
-same bytes without drawing; arguments of a kind the digest does not know
-(anything but numbers, text, None, arrays, lists, tuples and mappings of
-them) are drawn every time.
+same bytes without drawing.  Arguments of a kind the digest does not know
+(anything but numbers, text, None, arrays, lists, tuples, mappings and
+dataclasses of them, such as :class:`speciakin.palette.SpeciesColors`) are
+drawn every time.  A call that changes its arguments (a
+:class:`~speciakin.palette.SpeciesColors` learning a new species) is not
+remembered, so returning remembered bytes never skips such a change.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import hashlib
 import threading
@@ -24,8 +30,9 @@ import numpy as np
 
 __all__ = ["remembered", "MAX_REMEMBERED"]
 
-#: Figures remembered per figure function (PNG bytes of a few hundred kB each).
-MAX_REMEMBERED = 8
+#: Figures remembered per figure function (PNG bytes of 50-300 kB each): enough for the runs of a
+#: campaign drawn without bands (fit) and with bands (report).
+MAX_REMEMBERED = 16
 
 
 class _Unknown(Exception):
@@ -50,6 +57,12 @@ def _feed(digest, value) -> None:
         for key, item in value.items():  # in order: the order of the entries is drawn
             _feed(digest, key)
             _feed(digest, item)
+        digest.update(b"}")
+    elif dataclasses.is_dataclass(value) and not isinstance(value, type):
+        digest.update(f"dataclass:{type(value).__module__}.{type(value).__qualname__}{{".encode())
+        for item in dataclasses.fields(value):
+            _feed(digest, item.name)
+            _feed(digest, getattr(value, item.name))
         digest.update(b"}")
     else:
         raise _Unknown
@@ -80,7 +93,7 @@ def remembered(function: Callable[..., bytes]) -> Callable[..., bytes]:
                     cache.move_to_end(key)
                     return cache[key]
         png = function(*args, **kwargs)
-        if key is not None:
+        if key is not None and _key(name, args, kwargs) == key:  # the call left its arguments as they were
             with lock:
                 cache[key] = png
                 while len(cache) > MAX_REMEMBERED:

@@ -14,6 +14,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
+from speciakin.report.figures._memo import remembered
 from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
                                              legend_below,
                                              new_figure, same_length, to_png)
@@ -31,6 +32,7 @@ def _interval(value: tuple[float, float] | None, name: str) -> tuple[float, floa
     return lo, hi
 
 
+@remembered
 def probability_vs_ph_figure(
     ph: Sequence[float],
     probability: Sequence[float],
@@ -100,6 +102,7 @@ def probability_vs_ph_figure(
     return to_png(fig)
 
 
+@remembered
 def outcomes_vs_ph_figure(
     ph: Sequence[float],
     median: Mapping[str, Sequence[float]],
@@ -146,6 +149,7 @@ def outcomes_vs_ph_figure(
                               "5-95 % band" if low and high else None)
 
 
+@remembered
 def probability_map_figure(
     x: Sequence[float],
     y: Sequence[float],

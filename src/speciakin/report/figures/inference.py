@@ -191,13 +191,10 @@ def corner_plot(samples, names, truths=None, bins: int = 30, draw: bool = True):
     size = min(TEXT_WIDTH_IN, 1.6 * n_par + 0.6) if n_par > 1 else 3.2
     fig = new_figure(size, size)
     small = 6 if n_par > 4 else 7
-    axes = fig.subplots(n_par, n_par, squeeze=False)
+    grid = fig.add_gridspec(n_par, n_par)  # the grid of fig.subplots; the upper triangle gets no axes
     for row in range(n_par):
-        for col in range(n_par):
-            ax = axes[row, col]
-            if col > row:
-                ax.set_visible(False)
-                continue
+        for col in range(row + 1):
+            ax = fig.add_subplot(grid[row, col])
             if row == col:
                 ax.hist(draws[:, col], bins=bins, color=OKABE_ITO["blue"], histtype="stepfilled", alpha=0.6)
                 ax.set_yticks([])

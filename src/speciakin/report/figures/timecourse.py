@@ -7,6 +7,7 @@ from typing import Mapping, Sequence
 import numpy as np
 
 from speciakin.errors import InputError, Location
+from speciakin.report.figures._memo import remembered
 from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
                                              legend_below,
                                              new_figure, same_length, to_png)
@@ -15,6 +16,7 @@ from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors
 __all__ = ["time_course_figure", "residuals_figure", "titrant_figure"]
 
 
+@remembered
 def time_course_figure(
     observed_time: Mapping[str, Sequence[float]],
     observed: Mapping[str, Sequence[float]],
@@ -111,6 +113,7 @@ def time_course_figure(
                               band_label if band_low and band_high else None, handles=handles)
 
 
+@remembered
 def residuals_figure(
     time: Sequence[float],
     predicted: Sequence[float],
@@ -160,6 +163,7 @@ def residuals_figure(
     return to_png(fig)
 
 
+@remembered
 def titrant_figure(
     observed_time: Sequence[float],
     observed: Sequence[float],
