@@ -274,3 +274,20 @@ def test_killed_process_leaves_an_interrupted_folder(tmp_path):
     from speciakin.pipeline.contrast import live_runs
 
     assert live_runs(inputs.campaign / "results")[0]["status"] == "interrupted"
+
+
+def test_the_demo_shipped_in_the_package_is_never_written_into(capsys):
+    """Results for the packaged demo are refused before any file is made (exit 2, the folder named)."""
+    from speciakin.cli.main import main
+    from speciakin.demo import demo_dir
+
+    demo = demo_dir()
+    before = sorted(p.relative_to(demo) for p in demo.rglob("*"))
+    with pytest.raises(InputError, match="inside the demo campaign shipped with the speciakin package"):
+        folders.new_result_folder(demo / folders.RESULTS_FOLDER)
+    with pytest.raises(InputError, match="stays as shipped"):
+        folders.check_writable(demo / "out" / "nested")
+    assert main(["fit", str(demo), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "demo campaign shipped with the speciakin package" in err and "Traceback" not in err
+    assert sorted(p.relative_to(demo) for p in demo.rglob("*")) == before

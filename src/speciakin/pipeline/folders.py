@@ -64,6 +64,10 @@ def results_root(campaign: str | os.PathLike) -> Path:
     return campaign_folder(campaign) / RESULTS_FOLDER
 
 
+#: The demo campaign inside the installed package (speciakin.demo.demo_dir): never written into.
+PACKAGED_DEMO = Path(__file__).resolve().parents[1] / "demo_data"
+
+
 def check_writable(folder: Path) -> None:
     """Create ``folder`` if needed and prove that a file can be written into it.
 
@@ -73,6 +77,11 @@ def check_writable(folder: Path) -> None:
         The folder cannot be created or written (exit code 2), before any work.
     """
     folder = Path(folder)
+    if folder.resolve().is_relative_to(PACKAGED_DEMO):
+        raise InputError("this folder is inside the demo campaign shipped with the speciakin package, which stays as "
+                         "shipped", Location(file=str(folder)),
+                         expected="a copy of the demo to work in: `speciakin demo --out DIR` (the whole demo job), "
+                                  "or the demo's files copied to a folder of your own")
     try:
         folder.mkdir(parents=True, exist_ok=True)
         fd, probe = tempfile.mkstemp(prefix=".probe-", dir=folder)
