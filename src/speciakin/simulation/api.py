@@ -239,12 +239,9 @@ def _batch_buffers(compiled, compiled_runs, n_sets, n_runs):
 
 
 def _batch_result(out, status, info) -> BatchResult:
-    # one copy with the info fields first: the per-field arrays are contiguous views of it
-    fields = np.moveaxis(info, -1, 0).copy()
-    failure = fields[INFO_FAILED_AT]
-    failure[status == STATUS_OK] = np.nan
-    return BatchResult(out, status, failure, fields[INFO_STEPS].astype(np.int64), fields[INFO_TITRANT],
-                       fields[INFO_OPPOSITE], fields[INFO_START_ADJUST])
+    failure = np.where(status != STATUS_OK, info[..., INFO_FAILED_AT], np.nan)
+    return BatchResult(out, status, failure, info[..., INFO_STEPS].astype(np.int64), info[..., INFO_TITRANT].copy(),
+                       info[..., INFO_OPPOSITE].copy(), info[..., INFO_START_ADJUST].copy())
 
 
 def ph_control_error(compiled: CompiledModel, run: Run, code: int, time: float,
