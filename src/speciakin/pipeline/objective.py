@@ -50,7 +50,7 @@ from speciakin.chemistry.model import Model, Prior, Quantity, TemperatureProfile
 from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
-from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier
+from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
 from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_model, compile_runs
@@ -329,7 +329,9 @@ class CampaignObjective:
         amount factors (n_sets, n_runs)."""
         theta = np.atleast_2d(np.asarray(theta, float))
         n = theta.shape[0]
-        plan = self._kernel_plan()
+        if self._plan is None or self._plan[0] is not self.parameters:
+            self._plan = (self.parameters,) + kernel_placement(self.parameters)
+        plan = self._plan
         q = np.empty((n, self.compiled.nominal.size))
         q[...] = self.compiled.nominal
         off = np.empty((n, self.base_ph_offset.size))
@@ -340,23 +342,6 @@ class CampaignObjective:
             if index.size:
                 target[:, index] = theta[:, column] if base is None else base + theta[:, column]
         return q, off, fac
-
-    def _kernel_plan(self) -> tuple:
-        """Where each fitted value goes in :meth:`kernel_inputs`, made once per parameter list:
-        (parameters, then (kernel index, column of theta, base or None) of the shifted
-        quantities, the other quantities, the pH offsets and the amount factors)."""
-        if self._plan is not None and self._plan[0] is self.parameters:
-            return self._plan
-        groups: list[tuple[list[int], list[int], list[float]]] = [([], [], []) for _ in range(4)]
-        for j, p in enumerate(self.parameters):
-            g = (0 if p.shift else 1) if p.kind == "quantity" else (2 if p.kind == "probe_offset" else 3)
-            groups[g][0].append(p.index)
-            groups[g][1].append(j)
-            groups[g][2].append(p.base)
-        self._plan = (self.parameters,) + tuple(
-            (np.array(i, np.int64), np.array(c, np.int64), np.array(b, float) if g == 0 else None)
-            for g, (i, c, b) in enumerate(groups))
-        return self._plan
 
     def quantity_vector(self, theta: np.ndarray) -> np.ndarray:
         """Full kernel parameter vector q for one fitted vector."""
