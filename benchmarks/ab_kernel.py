@@ -23,7 +23,14 @@ Workloads (compiled and called once before any timing):
     the demo's log-likelihood of 32 sets over all cores;
 ``like1``, ``like64`` (on request)
     the demo's log-likelihood of one set on one core and of 64 sets over
-    all cores (the figures of issue 16; ``ab_demo_likelihood.py``).
+    all cores (the figures of issue 16; ``ab_demo_likelihood.py``);
+``benchll`` (on request)
+    ``bench``'s evaluation through the public ``batch_log_likelihood`` (the
+    Python around the kernel included: ``bench_kernel.py``'s one-core figure),
+    at the version's default tolerances;
+``benchll_py``, ``like1_py``, ``demo1_py`` (on request)
+    the Python around the kernel alone: these workloads with the compiled
+    batch replayed (its outputs of the first call copied into the buffers).
 
 Why one process per version: loaded into one process (as earlier versions of
 this script did, each copy under a renamed package), two identical versions
@@ -74,7 +81,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 WORKLOADS = ("bench", "demo1", "demo32")
 #: Further workloads, on request (``--workloads``; ``ab_demo_likelihood.py`` uses them).
-EXTRA_WORKLOADS = ("like1", "like64")
+EXTRA_WORKLOADS = ("like1", "like64", "benchll", "benchll_py", "like1_py", "demo1_py")
 
 
 # ---------------------------------------------------------------- the worker (one per version)
@@ -129,6 +136,60 @@ def bench_workload():
     call.volume = compiled.n_species
     call.floor = 1e-5 * runs[0].charges["S"] / runs[0].volume
     return call, result
+
+
+def benchll_workload():
+    """``bench``'s evaluation through the public ``batch_log_likelihood`` (bench_kernel.py's "one core"
+    figure: the Python around the kernel included), at the version's own default tolerances."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    import bench_kernel as b
+    from speciakin.simulation import batch_log_likelihood, compile_model, compile_runs, simulate_batch
+
+    compiled = compile_model(b.build_model())
+    runs = b.build_runs()
+    cruns = compile_runs(compiled, runs, [b.TIMES] * len(runs))
+    q = compiled.nominal[None, :].copy()
+    nominal = simulate_batch(compiled, cruns, q, parallel=False).outputs[0]
+    # synthetic data: the nominal outputs 1 % off, sigma 1 % of their size (where finite)
+    data = np.where(np.isfinite(nominal), nominal * 1.01, np.nan)
+    sigma = np.where(np.isfinite(nominal), 0.01 * np.maximum(np.abs(nominal), 1e-12), 1.0)
+    return _keeping_last(lambda: batch_log_likelihood(compiled, cruns, q, data, sigma, parallel=False)[0])
+
+
+def python_only(build):
+    """A one-core workload with the compiled batch replayed: its outputs of the first call are
+    copied into the buffers of every later call, so that the time is the Python around the
+    kernel (plus the copy, the same for both versions)."""
+    def builder():
+        from speciakin.simulation import api
+
+        real = api.batch_tasks
+        call, result = build()
+        recorded = {}
+
+        def record(*args):
+            real(*args)
+            recorded["buffers"] = tuple(a.copy() for a in args[7:10])
+
+        def replay(*args):
+            for target, saved in zip(args[7:10], recorded["buffers"]):
+                target[...] = saved
+        # a version that asks the cache whether the kernel is compiled asks it for the replay too
+        replay._cache = getattr(real, "_cache", None)
+        api.batch_tasks = record
+        try:
+            call()
+        finally:
+            api.batch_tasks = real
+
+        def replayed():
+            api.batch_tasks = replay
+            try:
+                call()
+            finally:
+                api.batch_tasks = real
+        return replayed, result
+    return builder
 
 
 def demo_objective():
@@ -193,7 +254,8 @@ def worker(workloads: list[str], result_file: str) -> None:
     calls = {}
     saved = {}
     builders = {"bench": bench_workload, "demo1": demo1_workload, "demo32": demo32_workload,
-                "like1": like1_workload, "like64": like64_workload}
+                "like1": like1_workload, "like64": like64_workload, "benchll": benchll_workload}
+    builders.update({f"{n}_py": python_only(builders[n]) for n in ("benchll", "like1", "demo1")})
     for name in workloads:
         call, result = builders[name]()
         t0 = time.perf_counter()

@@ -13,10 +13,12 @@ import re
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from speciakin.chemistry.model import Prior
 from speciakin.estimation.parameters import ParameterSpec
 
-__all__ = ["FittedParameter", "ErrorModel", "identifier"]
+__all__ = ["FittedParameter", "ErrorModel", "identifier", "kernel_placement"]
 
 
 def identifier(name: str) -> str:
@@ -104,3 +106,18 @@ class ErrorModel:
 
     def to_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
+
+
+def kernel_placement(parameters: list[FittedParameter]) -> tuple:
+    """Where the fitted values go in the kernel's inputs, made once per parameter list
+    (``CampaignObjective.kernel_inputs``): for the shifted quantities, the other quantities,
+    the pH offsets and the amount factors, each (index into q or the runs, column of theta,
+    the shifted quantities' base values or None)."""
+    groups: list[tuple[list[int], list[int], list[float]]] = [([], [], []) for _ in range(4)]
+    for j, p in enumerate(parameters):
+        g = (0 if p.shift else 1) if p.kind == "quantity" else (2 if p.kind == "probe_offset" else 3)
+        groups[g][0].append(p.index)
+        groups[g][1].append(j)
+        groups[g][2].append(p.base)
+    return tuple((np.array(i, np.int64), np.array(c, np.int64), np.array(b, float) if g == 0 else None)
+                 for g, (i, c, b) in enumerate(groups))

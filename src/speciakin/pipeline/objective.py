@@ -50,7 +50,7 @@ from speciakin.chemistry.model import Model, Prior, Quantity, TemperatureProfile
 from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
-from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier
+from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
 from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_model, compile_runs
@@ -137,6 +137,7 @@ class CampaignObjective:
                              key="fit = true"), expected="at least one pKa, rate constant or energy with fit = true")
         self._build_observations()
         self._gather: tuple | None = None  # flat output indices of the observations (predict_batch)
+        self._plan: tuple | None = None  # where the fitted values go in the kernel's inputs (kernel_inputs)
         self._last_jacobian: tuple | None = None  # Jacobian columns at the last point (jacobian)
 
     # ------------------------------------------------------------ set-up
@@ -328,16 +329,18 @@ class CampaignObjective:
         amount factors (n_sets, n_runs)."""
         theta = np.atleast_2d(np.asarray(theta, float))
         n = theta.shape[0]
-        q = np.repeat(self.compiled.nominal[None, :], n, axis=0)
-        off = np.repeat(self.base_ph_offset[None, :], n, axis=0)
-        fac = np.repeat(self.base_amount_factor[None, :], n, axis=0)
-        for j, p in enumerate(self.parameters):
-            if p.kind == "quantity":
-                q[:, p.index] = p.base + theta[:, j] if p.shift else theta[:, j]
-            elif p.kind == "probe_offset":
-                off[:, p.index] = theta[:, j]
-            else:
-                fac[:, p.index] = theta[:, j]
+        if self._plan is None or self._plan[0] is not self.parameters:
+            self._plan = (self.parameters,) + kernel_placement(self.parameters)
+        plan = self._plan
+        q = np.empty((n, self.compiled.nominal.size))
+        q[...] = self.compiled.nominal
+        off = np.empty((n, self.base_ph_offset.size))
+        off[...] = self.base_ph_offset
+        fac = np.empty((n, self.base_amount_factor.size))
+        fac[...] = self.base_amount_factor
+        for target, (index, column, base) in zip((q, q, off, fac), plan[1:]):
+            if index.size:
+                target[:, index] = theta[:, column] if base is None else base + theta[:, column]
         return q, off, fac
 
     def quantity_vector(self, theta: np.ndarray) -> np.ndarray:
@@ -356,24 +359,29 @@ class CampaignObjective:
         flat = out.reshape(n_sets, -1)
         shape = out.shape[1:]
         if self._gather is None or self._gather[0] != shape:
+            # made once per output shape: the flat indices and which kinds of observation there are
             self._gather = (shape, np.ravel_multi_index((self.h_run, self.h_t, self.h_col), shape),
                             np.ravel_multi_index((self.h_run, self.h_t, np.full_like(self.h_t, self.vol_col)), shape),
-                            np.ravel_multi_index((self.t_run, self.t_t, np.full_like(self.t_t, self.tit_col)), shape))
-        _, at_amount, at_volume, at_titrant = self._gather
+                            np.ravel_multi_index((self.t_run, self.t_t, np.full_like(self.t_t, self.tit_col)), shape),
+                            bool(self.h_area.any()), bool((~self.h_area).any()), {})
+        _, at_amount, at_volume, at_titrant, any_area, any_concentration, bins_of = self._gather
         amount = flat.take(at_amount, axis=1)
         model = np.empty_like(amount)
-        if self.h_area.any():
-            num = amount * self.h_rrf[None, :]
+        if any_area:
+            num = amount * self.h_rrf
             # the samples' sums for every set in one bincount (each bin adds its terms in the same order)
-            bins = (np.arange(n_sets)[:, None] * self.n_samples + self.h_sample[None, :]).ravel()
+            bins = bins_of.get(n_sets)
+            if bins is None:
+                bins = bins_of[n_sets] = (np.arange(n_sets)[:, None] * self.n_samples
+                                          + self.h_sample[None, :]).ravel()
             denom = np.bincount(bins, weights=num.ravel(), minlength=n_sets * self.n_samples).reshape(
                 n_sets, self.n_samples)
             with np.errstate(invalid="ignore", divide="ignore"):
                 area = 100.0 * num / denom[:, self.h_sample]
-            model = np.where(self.h_area[None, :], area, model)
-        if (~self.h_area).any():
+            model = np.where(self.h_area, area, model) if any_concentration else area
+        if any_concentration:
             vol = flat.take(at_volume, axis=1)
-            model = np.where(self.h_area[None, :], model, amount / vol)
+            model = np.where(self.h_area, model, amount / vol) if any_area else amount / vol
         tit = flat.take(at_titrant, axis=1)
         failed = res.status.any(axis=1)
         model[failed] = np.nan
@@ -419,9 +427,10 @@ class CampaignObjective:
     def log_likelihood_batch(self, theta: np.ndarray) -> np.ndarray:
         """Log-likelihood of each row of ``theta`` (constants dropped; -inf on failure)."""
         pr = self.predict_batch(theta)
-        z = (pr.hplc_model - self.h_obs[None, :]) / self.h_sigma[None, :]
-        ll = -0.5 * np.sum(np.where(self.h_cens[None, :], 0.0, z * z), axis=1)
-        if self.h_cens.any():
+        z = (pr.hplc_model - self.h_obs) / self.h_sigma
+        any_censored = bool(self.h_cens.any())
+        ll = -0.5 * np.sum(np.where(self.h_cens, 0.0, z * z) if any_censored else z * z, axis=1)
+        if any_censored:
             zc = (self.h_loq[None, :] - pr.hplc_model) / self.h_sigma[None, :]
             ll = ll + np.sum(np.where(self.h_cens[None, :], log_ndtr(zc), 0.0), axis=1)
         zt = (pr.titrant_model - self.t_obs[None, :]) / self.t_sigma[None, :]

@@ -30,6 +30,7 @@ if _cache is not None and getattr(_cache, "_cache_path", None):
 #: Records of this layer (the command line shows them on stderr; a library user may attach a handler).
 LOG = logging.getLogger("speciakin.simulation")
 _compile_noticed = False
+_kernel_loaded = False  # batch_tasks has run in this process
 
 
 def notice_compile(kernel) -> None:
@@ -60,16 +61,22 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
     (this one and the pool's; the compiled code releases the GIL)."""
-    notice_compile(batch_tasks)
+    global _kernel_loaded
+    if not _kernel_loaded:
+        # the cache is looked at before the first call only: then the compiled code is in the process
+        # (a look is a file-system call, several microseconds per call)
+        notice_compile(batch_tasks)
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
     threads = min(N_THREADS, off.size) if parallel else 1
     if threads <= 1:
         batch_tasks(*args, 0, 1)
+        _kernel_loaded = True
         return
     shares = [_threads().submit(batch_tasks, *args, i, threads) for i in range(1, threads)]
     batch_tasks(*args, 0, threads)
     for share in shares:
         share.result()
+    _kernel_loaded = True
 
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",

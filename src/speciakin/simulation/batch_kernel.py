@@ -24,7 +24,7 @@ import math
 import numpy as np
 from numba import njit
 
-from speciakin.simulation.integrator_kernel import run_one
+from speciakin.simulation.integrator_kernel import run_one, run_workspaces
 from speciakin.simulation.status import STATUS_OK
 
 _LOG_2PI = math.log(2.0 * math.pi)
@@ -37,11 +37,15 @@ def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, s
     thread gets an equal share of every run, whose costs differ widely)."""
     n_sets = q_all.shape[0]
     n_runs = ph_offset.shape[1]
+    if first >= n_sets * n_runs:
+        return
+    # this thread's work arrays, made once for all its tasks
+    ws, sw = run_workspaces(model)
     for task in range(first, n_sets * n_runs, stride):
         r = task // n_sets
         s = task % n_sets
         status[s, r] = run_one(model, q_all[s], runs, r, ph_offset[s, r], amount_factor[s, r], rtol, atol,
-                               out[s, r], info[s, r])
+                               out[s, r], info[s, r], ws, sw)
 
 
 @njit(cache=True)

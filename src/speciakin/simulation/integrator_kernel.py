@@ -45,10 +45,11 @@ from speciakin.simulation.rhs_kernel import (
     charge_imbalance,
     interpolate,
     make_workspace,
+    reset_workspace,
     rhs,
 )
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK, STATUS_TITRANT_SIGN, STATUS_VOLUME
-from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace
+from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace, reset_smooth_workspace
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
@@ -218,7 +219,15 @@ def run_context(model, q, runs, r, ph_offset):
 
 
 @njit(cache=True)
-def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
+def run_workspaces(model):
+    """(ws, sw): the work arrays :func:`run_one` needs, made once for many runs of ``model``."""
+    ws = make_workspace(model.n_species, model.site_pka_q.shape[0], model.micro_charge.shape[0], model.n_mol,
+                        model.step_logk_q.shape[0])
+    return ws, make_smooth_workspace(model, model.n_species + 3)
+
+
+@njit(cache=True)
+def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
 
     ``out[i, :]`` = amounts of every species [mol], volume [L], pH, titrant
@@ -226,7 +235,9 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     output time i (state before instant events at that time).  ``info`` =
     [failure time [s], accepted steps, initial titrant [mol], initial
     opposite titrant [mol], start adjustment inside the volume [equivalents,
-    + base]].  Returns the status code.
+    + base]].  ``ws``, ``sw``: work arrays of ``make_workspace`` and
+    ``make_smooth_workspace`` (:func:`run_workspaces`), made once per batch and
+    brought here to the state a run starts from.  Returns the status code.
     """
     n_mol = model.n_mol
     n_species = model.n_species
@@ -239,10 +250,9 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info):
     temp_t = ctx[CTX_TEMP_T]
     temp_v = ctx[CTX_TEMP_V]
     temp_n = ctx[CTX_TEMP_N]
-    ws = make_workspace(n_species, model.site_pka_q.shape[0], model.micro_charge.shape[0], n_mol,
-                        model.step_logk_q.shape[0])
+    reset_workspace(ws)
+    reset_smooth_workspace(sw)
     n_state = n_species + 3
-    sw = make_smooth_workspace(model, n_state)
     cache = ws[WS_CACHE]
     cache[C_PH_SLOPE] = 0.0
     y = runs.y0[r].copy()

@@ -50,7 +50,7 @@ from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
                                          C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_STEP_PH, C_TEMPERATURE, N_CACHE, PAR_ENTHALPY,
-                                         PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
+                                         PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DPH_DY, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
                                          WS_VAR, WS_ZBAR)
 
 MODE_HELD = 0
@@ -80,8 +80,21 @@ def interpolate(times, values, n, t):
 @njit(cache=True)
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
-    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy)."""
-    cache = np.empty(N_CACHE)
+    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy), in the state of
+    :func:`reset_workspace`."""
+    ws = (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
+          np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
+          np.empty(max(n_steps, 1)), np.empty(N_CACHE), np.empty(max(n_sites, 1)), np.empty(max(n_mol, 1)),
+          np.empty(n_species + 3), np.empty(n_species + 3))
+    reset_workspace(ws)
+    return ws
+
+
+@leaf_kernel
+def reset_workspace(ws):
+    """Bring the work arrays of :func:`make_workspace` to the state a run starts from
+    (the arrays are made once per batch and serve its runs one after the other)."""
+    cache = ws[WS_CACHE]
     cache[C_TEMPERATURE] = math.nan  # temperature of the cached T-dependent values
     cache[C_PKW] = math.nan  # pKw at that temperature
     cache[C_PH] = math.nan  # pH of the cached populations
@@ -90,10 +103,9 @@ def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     cache[C_PH_SLOPE] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
     cache[C_OPPOSITE] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
     cache[C_STEP_PH] = math.nan   # pH at the current step point (free pH)
-    return (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
-            np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
-            np.empty(max(n_steps, 1)), cache, np.empty(max(n_sites, 1)), np.zeros(max(n_mol, 1)),
-            np.empty(n_species + 3), np.zeros(n_species + 3))
+    for arr in (ws[WS_DZBAR_DT], ws[WS_DPH_DY]):
+        for i in range(arr.shape[0]):
+            arr[i] = 0.0
 
 
 @leaf_kernel(inline="always")

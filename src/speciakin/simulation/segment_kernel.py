@@ -178,6 +178,26 @@ def make_smooth_workspace(model, n):
 
 
 @leaf_kernel
+def reset_smooth_workspace(sw):
+    """Bring the work arrays of :func:`make_smooth_workspace` back to the state they are made in
+    (zeros where made with zeros; the stoichiometry is the model's and stays): they are made
+    once per batch and serve its runs one after the other."""
+    poly = sw[4]
+    in_logs = sw[5]
+    dc = sw[9]
+    ft = sw[13]
+    is_active = sw[20]
+    for c in range(poly.shape[0]):
+        in_logs[c] = False
+        dc[c] = 0.0
+        for a in range(poly.shape[1]):
+            poly[c, a] = 0.0
+    for i in range(ft.shape[0]):
+        ft[i] = 0.0
+        is_active[i] = False
+
+
+@leaf_kernel
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
                      varying, rtol, atol, out, out_t, i_out, n_out, counters, sign_tol, peak):
     """Advance ``y`` from t0 to exactly t1 with Rodas5 [1]_ (held or logged pH).
