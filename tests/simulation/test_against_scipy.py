@@ -4,35 +4,15 @@ from __future__ import annotations
 
 import numpy as np
 from hypothesis import given, settings, strategies as st
-from scipy.integrate import solve_ivp
 
-from sim_models import logged_constant, radau_piecewise, two_site_model, two_site_run
+from sim_models import logged_constant, radau_piecewise, two_site_model, two_site_run, two_site_scipy_reference
 from speciakin.simulation import simulate
 
 
 def _reference(pka_alk, pka_ar, w, lk_alk, lk_ar, lk_w, lk_oh, ph, pkw, times):
-    """numpy right-hand side written here from the site-binding speciation and the
-    site-specific rate law r_i = k_i [S] f_i(pH) [E] (f_i: free fraction of site i), integrated with
+    """The numpy right-hand side of ``sim_models.two_site_scipy_reference``, integrated with
     scipy.integrate.solve_ivp (Radau, rtol 1e-10), the general-purpose reference."""
-    lw = np.array([0.0, pka_alk - ph, pka_ar - ph, pka_alk + pka_ar - 2 * ph - w])
-    pop = 10.0 ** (lw - lw.max())
-    pop /= pop.sum()
-    f_alk, f_ar = pop[0] + pop[2], pop[0] + pop[1]
-    free = lambda pka: 1.0 / (1.0 + 10.0 ** (pka - ph))  # noqa: E731
-    k = 10.0 ** np.array([lk_alk, lk_ar, lk_alk - 0.3, lk_ar - 0.3, lk_w, lk_oh])
-    oh = 10.0 ** (ph - pkw)
-
-    def rhs(t, c):
-        s, e, pa, pb, pab, ha = c
-        r = [k[0] * s * f_alk * e, k[1] * s * f_ar * e, k[2] * pb * free(pka_alk - 0.3) * e,
-             k[3] * pa * free(pka_ar - 0.5) * e, k[4] * e, k[5] * oh * e]
-        return [-r[0] - r[1], -sum(r), r[0] - r[3], r[1] - r[2], r[2] + r[3],
-                r[0] + r[1] + r[2] + r[3] + 2 * r[4] + 2 * r[5]]
-
-    sol = solve_ivp(rhs, (0, times[-1]), [0.1, 0.105, 0, 0, 0, 0], method="Radau", t_eval=times,
-                    rtol=1e-10, atol=1e-16)
-    assert sol.success
-    return sol.y.T
+    return two_site_scipy_reference(pka_alk, pka_ar, w, lk_alk, lk_ar, lk_w, lk_oh, ph, pkw, times)
 
 
 @settings(max_examples=6, deadline=None, derandomize=True)

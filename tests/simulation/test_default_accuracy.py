@@ -24,9 +24,8 @@ import inspect
 
 import numpy as np
 import pytest
-from scipy.integrate import solve_ivp
 
-from sim_models import held, logged_constant, two_site_model, two_site_run
+from sim_models import held, logged_constant, two_site_model, two_site_run, two_site_scipy_reference
 from speciakin.chemistry.model import PhControl, TemperatureProfile
 from speciakin.simulation import simulate
 
@@ -98,31 +97,13 @@ def test_held_ph_under_temperature_ramp_default_agrees_with_tight_reference():
 
 
 def _scipy_reference(method, ph, pkw, times, log10k):
-    """The held-constant-pH chemistry of ``two_site_model`` (site-binding speciation,
-    site-specific rate law r_i = k_i [S] f_i(pH) [E]) as a numpy right-hand side written
-    here, integrated with scipy.integrate.solve_ivp (``method``, rtol 1e-11), the
-    general-purpose reference; volume 1 L, all reagent present at t = 0."""
-    pka_alk, pka_ar, w = 9.3, 4.6, 0.8
-    lw = np.array([0.0, pka_alk - ph, pka_ar - ph, pka_alk + pka_ar - 2 * ph - w])
-    pop = 10.0 ** (lw - lw.max())
-    pop /= pop.sum()
-    f_alk, f_ar = pop[0] + pop[2], pop[0] + pop[1]
-    free = lambda pka: 1.0 / (1.0 + 10.0 ** (pka - ph))  # noqa: E731
+    """The held-constant-pH chemistry of ``two_site_model`` as the numpy right-hand side of
+    ``sim_models.two_site_scipy_reference``, integrated with scipy.integrate.solve_ivp (``method``,
+    rtol 1e-11), the general-purpose reference; the observed species S, the two monoamides and the diamide."""
     lk_alk, lk_ar, lk_w, lk_oh = log10k
-    k = 10.0 ** np.array([lk_alk, lk_ar, lk_alk - 0.3, lk_ar - 0.3, lk_w, lk_oh])
-    oh = 10.0 ** (ph - pkw)
-
-    def rhs(t, c):
-        s, e, pa, pb, pab, ha = c
-        r = [k[0] * s * f_alk * e, k[1] * s * f_ar * e, k[2] * pb * free(pka_alk - 0.3) * e,
-             k[3] * pa * free(pka_ar - 0.5) * e, k[4] * e, k[5] * oh * e]
-        return [-r[0] - r[1], -sum(r), r[0] - r[3], r[1] - r[2], r[2] + r[3],
-                r[0] + r[1] + r[2] + r[3] + 2 * r[4] + 2 * r[5]]
-
-    sol = solve_ivp(rhs, (0.0, times[-1]), [SUBSTRATE, 0.105, 0, 0, 0, 0], method=method, t_eval=times,
-                    rtol=1e-11, atol=1e-17)
-    assert sol.success
-    return sol.y.T[:, [0, 2, 3, 4]]
+    ref = two_site_scipy_reference(9.3, 4.6, 0.8, lk_alk, lk_ar, lk_w, lk_oh, ph, pkw, times, method=method,
+                                   rtol=1e-11, atol=1e-17, substrate=SUBSTRATE)
+    return ref[:, [0, 2, 3, 4]]
 
 
 def _against_scipy(method, ph):
