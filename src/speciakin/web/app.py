@@ -40,6 +40,11 @@ progress { width: 16em; }
 table.compare { border-collapse: collapse; margin: .2em 0 .6em; }
 table.compare td, table.compare th { border: 1px solid #ccc; padding: .2em .5em; text-align: left; }
 tr.differs td { background: #fff3d6; } a.download { margin-right: .8em; }
+table.check { border-collapse: collapse; width: 100%; margin: .2em 0 .6em; font-size: .95em; }
+table.check th, table.check td { border: 1px solid #ddd; padding: .3em .5em; text-align: left; vertical-align: top;
+  overflow-wrap: anywhere; }
+table.check th { background: #f4f4f4; } tr.problem.error td[data-col=severity] { color: #b00020; font-weight: 600; }
+table.check td[data-col=message] { width: 30%; }
 """
 
 
