@@ -13,6 +13,7 @@ import ipaddress
 import secrets
 from pathlib import Path
 
+import dash_ag_grid as dag
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
@@ -97,7 +98,11 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
     head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
             html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),
             dcc.Tabs(id="tabs", value=_FIRST, persistence=True, persistence_type="session",
-                     children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS])]
+                     children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS]),
+            # an empty, hidden grid, drawn in the browser's idle time after the first figure: the grid's
+            # first-time work is then done before its first real table is opened (web/static/grid-loader.js)
+            html.Div(dag.AgGrid(id="grid-warm-up", className="grid-warm-up", rowData=[], columnDefs=[{"field": "x"}]),
+                     style={"display": "none"}, **{"aria-hidden": "true"})]
     # every callback is checked against the whole page, with every tab's page in it (set before the
     # layout, so that Dash does not call the layout function to find it)
     app.validation_layout = html.Div([*head, *[html.Div(module.layout(), id=f"tab-page-{key}")

@@ -38,8 +38,6 @@ RUNTIME_PATH = "_speciakin/regenerator-runtime.js"
 GRID_LOADER = Path(__file__).resolve().parent / "static" / "grid-loader.js"
 #: Where the page loads it from, after the path prefix.
 GRID_LOADER_PATH = "_speciakin/grid-loader.js"
-#: The grid's chunk its bundle loads when the first table is drawn (fetched ahead by the stand-in).
-GRID_CHUNK = "_dash-component-suites/dash_ag_grid/async-community.js"
 #: Scripts Dash's components load when first drawn, all drawn on the first tab (the page opens on it),
 #: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
 LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
@@ -71,8 +69,7 @@ def trim_scripts(app, server) -> None:
                       for package, name in LATER)
 
     def grid(found: re.Match) -> str:
-        return (f'<script src="{loader}" data-grid="{found.group(1)}" data-chunk="{prefix}{GRID_CHUNK}">'
-                "</script>\n")
+        return f'<script src="{loader}" data-grid="{found.group(1)}"></script>\n'
 
     interpolate = app.interpolate_index
 

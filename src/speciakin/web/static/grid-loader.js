@@ -6,6 +6,10 @@
  * is idle, or at once when a table is to be drawn earlier; a table drawn before it has arrived shows
  * "loading the table" and is drawn as soon as it has.  The real bundle puts itself in this object's
  * place, so every later table is the library's own component.
+ *
+ * A grid with the class "grid-warm-up" (an empty, hidden one in the page) waits for that idle fetch
+ * instead of asking for the bundle: drawn then, it does the grid's first-time work (its chunk, its
+ * styles) in the idle time too, instead of when the first real table is opened.
  */
 (function () {
   "use strict";
@@ -22,19 +26,15 @@
     });
   }
 
-  var grid = me.getAttribute("data-grid"), chunk = me.getAttribute("data-chunk");
+  var grid = me.getAttribute("data-grid");
   var loading = null;
   var stand = {};
+  var idleDone;
+  var idle = new Promise(function (resolve) { idleDone = resolve; });
 
   function load() {
     if (!loading) {
-      loading = script(grid).then(function () {
-        if (chunk) {  // the grid's own code, which the bundle loads when the first table is drawn
-          var hint = document.createElement("link");
-          hint.rel = "prefetch"; hint.as = "script"; hint.href = chunk;
-          document.head.appendChild(hint);
-        }
-      }, function (error) {
+      loading = script(grid).catch(function (error) {
         loading = null;
         throw error;
       });
@@ -52,9 +52,10 @@
     var real = loaded();
     var failed = React.useState(null);
     var redraw = React.useState(0)[1];
+    var warmUp = String(props.className || "").split(" ").indexOf("grid-warm-up") >= 0;
     React.useEffect(function () {
       if (!real) {
-        load().then(function () { redraw(function (n) { return n + 1; }); }, failed[1]);
+        (warmUp ? idle : load()).then(function () { redraw(function (n) { return n + 1; }); }, failed[1]);
       }
     }, [real]);
     if (real) {
@@ -65,7 +66,7 @@
   }
 
   function prefetch() {
-    load().catch(function () { /* a table drawn later says so */ });
+    load().then(idleDone, function () { /* a table drawn later says so */ });
   }
 
   if (grid) {
