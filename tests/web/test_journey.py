@@ -58,11 +58,12 @@ def test_planted_check_error_is_shown_at_its_cell(server, page, shot):
     open_campaign(page, url, "planted")
     page.wait_for_selector("#check-summary:has-text('error(s)')")
     assert "Nothing can be fitted" in page.inner_text("#check-summary")
-    cell = page.locator("#check-table .ag-row", has_text=repr(value)).first
+    cell = page.locator("#check-table tr.problem", has_text=repr(value)).first
     cell.wait_for()
-    assert cell.locator("[col-id='sheet']").inner_text() == sheet
-    assert cell.locator("[col-id='row']").inner_text() == str(row)
-    assert cell.locator("[col-id='column']").inner_text().startswith(col)
+    assert cell.locator("[data-col='severity']").inner_text() == "error"
+    assert cell.locator("[data-col='sheet']").inner_text() == sheet
+    assert cell.locator("[data-col='row']").inner_text() == str(row)
+    assert cell.locator("[data-col='column']").inner_text().startswith(col)
     shot(page, "03-planted-error")
 
 
@@ -179,7 +180,7 @@ def test_a_campaign_is_created_from_the_templates_and_a_workbook_uploaded(server
     fake.write_text("run,pH\nR1,4\n")
     page.set_input_files("#upload input[type=file]", str(fake))
     page.wait_for_selector("#campaign-message:has-text('stored saved_as_text.xlsx in fresh-campaign')")
-    page.wait_for_selector("#check-table .ag-row:has-text('saved_as_text.xlsx')")
+    page.wait_for_selector("#check-table tr.problem:has-text('saved_as_text.xlsx')")
     assert "not a workbook" in page.inner_text("#check-table") or "not an XLSX" in page.inner_text("#check-table")
     shot(page, "12-malformed-upload")
     assert len(list((state.root / "fresh-campaign" / "previous-workbooks").iterdir())) == 2

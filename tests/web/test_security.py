@@ -17,9 +17,16 @@ from .conftest import SCRIPT_NAME
 pytestmark = pytest.mark.filterwarnings("ignore")
 
 
+def _problem_rows(table: list) -> list[dict]:
+    """The problems of the check table in a callback answer: {column: text} per body row."""
+    body = table[1]["props"]["children"]
+    return [{cell["props"]["data-col"]: cell["props"]["children"] for cell in row["props"]["children"]}
+            for row in body]
+
+
 def _callback(client, campaign: str) -> dict:
     """POST the page's check callback with ``campaign`` as the browser would send it."""
-    outputs = [("check-summary", "children"), ("check-table", "rowData"), ("raw-run", "options"),
+    outputs = [("check-summary", "children"), ("check-table", "children"), ("raw-run", "options"),
                ("raw-run", "value"), ("raw-figure", "figure"), ("raw-drawn", "data")]
     body = {"output": ".." + "...".join(f"{i}.{p}" for i, p in outputs) + "..",
             "outputs": [{"id": i, "property": p} for i, p in outputs],
@@ -37,12 +44,12 @@ def test_a_path_outside_the_root_is_refused_by_the_page(root, name):
     response = _callback(app.server.test_client(), name)
     summary = json.dumps(response["check-summary"]["children"])
     if name == "%2e%2e":  # a literal (odd) folder name inside the root, never URL-decoded: not found there
-        rows = response["check-table"]["rowData"]
+        rows = _problem_rows(response["check-table"]["children"])
         assert [r["message"] for r in rows] == ["campaign not found"]
         assert str(root) in rows[0]["where"] or rows[0]["where"] == "%2e%2e"
     else:
         assert "only folders inside the campaign root" in summary
-        assert response["check-table"]["rowData"] == []
+        assert _problem_rows(response["check-table"]["children"]) == []
 
 
 def test_inside_root_refuses_escapes_and_symbolic_links(tmp_path):
@@ -96,7 +103,7 @@ def test_a_script_in_a_compound_name_is_shown_as_text(server, page, shot):
 
     choose(page, "campaign-choice", "script-name")
     page.wait_for_selector("#check-summary:has-text('error(s)')")
-    page.wait_for_selector("#check-table .ag-row")
+    page.wait_for_selector("#check-table tr.problem")
     assert SCRIPT_NAME in page.inner_text("#check-table")
     assert page.evaluate("window.__injected") is None
     assert page.locator("#check-table script").count() == 0

@@ -13,6 +13,7 @@ import ipaddress
 import secrets
 from pathlib import Path
 
+import dash_ag_grid as dag
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
@@ -40,6 +41,11 @@ progress { width: 16em; }
 table.compare { border-collapse: collapse; margin: .2em 0 .6em; }
 table.compare td, table.compare th { border: 1px solid #ccc; padding: .2em .5em; text-align: left; }
 tr.differs td { background: #fff3d6; } a.download { margin-right: .8em; }
+table.check { border-collapse: collapse; width: 100%; margin: .2em 0 .6em; font-size: .95em; }
+table.check th, table.check td { border: 1px solid #ddd; padding: .3em .5em; text-align: left; vertical-align: top;
+  overflow-wrap: anywhere; }
+table.check th { background: #f4f4f4; } tr.problem.error td[data-col=severity] { color: #b00020; font-weight: 600; }
+table.check td[data-col=message] { width: 30%; }
 """
 
 
@@ -92,7 +98,11 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
     head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
             html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),
             dcc.Tabs(id="tabs", value=_FIRST, persistence=True, persistence_type="session",
-                     children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS])]
+                     children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS]),
+            # an empty, hidden grid, drawn in the browser's idle time after the first figure: the grid's
+            # first-time work is then done before its first real table is opened (web/static/grid-loader.js)
+            html.Div(dag.AgGrid(id="grid-warm-up", className="grid-warm-up", rowData=[], columnDefs=[{"field": "x"}]),
+                     style={"display": "none"}, **{"aria-hidden": "true"})]
     # every callback is checked against the whole page, with every tab's page in it (set before the
     # layout, so that Dash does not call the layout function to find it)
     app.validation_layout = html.Div([*head, *[html.Div(module.layout(), id=f"tab-page-{key}")

@@ -6,20 +6,18 @@ import base64
 import binascii
 import re
 
-import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web.figures import compound_colors, empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
-__all__ = ["layout", "register", "check_rows", "folder_picker", "campaign_view", "initial_choice", "CHECK_COLUMNS"]
+__all__ = ["layout", "register", "check_rows", "check_table", "folder_picker", "campaign_view", "initial_choice",
+           "CHECK_COLUMNS"]
 
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
-_WRAPPED = ("message", "value", "expected")
-_FLEX = {"message": 4, "expected": 2, "column": 2}
 _GRAPH = {"displaylogo": False}
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
@@ -57,11 +55,9 @@ def layout(view: tuple | None = None, choice: tuple = ((), None)) -> html.Div:
         html.Div(id="campaign-message", className="message", role="status"),
         html.H3("Check"),
         html.Div(summary, id="check-summary"),
-        dag.AgGrid(id="check-table", columnDefs=[{"field": f, "headerName": h, "flex": _FLEX.get(f, 1),
-                                                  "wrapText": f in _WRAPPED, "autoHeight": f in _WRAPPED}
-                                                 for f, h in CHECK_COLUMNS],
-                   rowData=rows, defaultColDef={"sortable": True, "resizable": True, "filter": True},
-                   dashGridOptions={"domLayout": "autoHeight"}, style={"width": "100%"}),
+        # a plain table, not the grid of the other tabs: the first view then needs no grid code at all
+        # (evaluating it was a fifth of opening the page; docs/web.md, Speed)
+        html.Table(check_table(rows), id="check-table", className="check"),
         html.H3("Raw data per run"),
         dcc.Dropdown(id="raw-run", options=runs, value=run, placeholder="choose a run", clearable=False,
                      style={"maxWidth": "320px"}),
@@ -101,6 +97,16 @@ def campaign_view(state, name) -> tuple:
     run = runs[0] if runs else None
     return (html.Span(summary, className="ok" if report.ok else "bad"), check_rows(report), _options(runs), run,
             _raw_figure(state, name, run), [name, run])
+
+
+def check_table(rows: list[dict]) -> list:
+    """The check table's header and one row per problem (:func:`check_rows`), errors first, then in the
+    order of the check; each cell names its column (``data-col``)."""
+    order = sorted(range(len(rows)), key=lambda i: (rows[i]["severity"] != "error", i))
+    head = html.Thead(html.Tr([html.Th(h, **{"data-col": f}) for f, h in CHECK_COLUMNS]))
+    body = [html.Tr([html.Td("" if rows[i][f] is None else str(rows[i][f]), **{"data-col": f})
+                     for f, _ in CHECK_COLUMNS], className=f"problem {rows[i]['severity']}") for i in order]
+    return [head, html.Tbody(body)]
 
 
 def check_rows(report) -> list[dict]:
@@ -162,14 +168,15 @@ def register(app, state) -> None:
     def remember(value):
         return value
 
-    @app.callback(Output("check-summary", "children"), Output("check-table", "rowData"),
+    @app.callback(Output("check-summary", "children"), Output("check-table", "children"),
                   Output("raw-run", "options"), Output("raw-run", "value"),
                   Output("raw-figure", "figure"), Output("raw-drawn", "data"),
                   Input("campaign-choice", "value"), Input("campaign-message", "children"),
                   prevent_initial_call=True)
     def check(name, _message):
         # the raw data of the first run come with the check: one round trip, not two
-        return campaign_view(state, name)
+        summary, rows, *rest = campaign_view(state, name)
+        return (summary, check_table(rows), *rest)
 
     @app.callback(Output("raw-figure", "figure", allow_duplicate=True),
                   Output("raw-drawn", "data", allow_duplicate=True),

@@ -2,16 +2,20 @@
 
 Dash's page lists, besides React and its own code, Babel's polyfill (core-js
 for old browsers, 0.1 MB, about 0.2 s of evaluation and more of wrapped calls
-on the main thread while the page is drawn) and the code of Dash's data table
-(a component this page never uses).  Of the polyfill, Dash's renderer and core
+on the main thread while the page is drawn), the code of Dash's data table
+(a component this page never uses) and the code of the grid (dash-ag-grid:
+1.3 MB, and 0.9 MB more it loads when the first table is drawn), which the
+first view does not draw.  Of the polyfill, Dash's renderer and core
 components need only the regenerator runtime (their ``async`` functions are
 compiled to ``regeneratorRuntime`` state machines); every browser of the last
 years has the rest built in.  :func:`trim_scripts` makes the page list the
 regenerator runtime (npm ``regenerator-runtime``, MIT licence, kept in
 ``static/`` beside its licence) in place of the polyfill, leaves the data
-table out, and lets the browser fetch at once, while it evaluates the listed
-scripts, the ones that Dash's components load only when first drawn
-(:data:`LATER`: plotly.js, the graph, dropdown, upload and grid code of the
+table out, lists our :data:`GRID_LOADER` in place of the grid's bundle (it
+fetches the bundle after the first view is drawn, or when a table is to be
+drawn earlier), and lets the browser fetch at once, while it evaluates the
+listed scripts, the ones that Dash's components load only when first drawn
+(:data:`LATER`: plotly.js, the graph, dropdown and upload code of the
 first tab), instead of after the page's layout has arrived and been drawn
 (docs/web.md, Speed).
 """
@@ -24,18 +28,23 @@ from pathlib import Path
 
 from speciakin.web.bundles import serve_script
 
-__all__ = ["REGENERATOR", "RUNTIME_PATH", "LATER", "trim_scripts", "later_files"]
+__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "trim_scripts", "later_files"]
 
 #: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
 REGENERATOR = Path(__file__).resolve().parent / "static" / "regenerator-runtime.js"
 #: Where the page loads it from, after the path prefix.
 RUNTIME_PATH = "_speciakin/regenerator-runtime.js"
+#: The grid's stand-in (our own code, in ``static/``): fetches dash-ag-grid's bundle after the first view.
+GRID_LOADER = Path(__file__).resolve().parent / "static" / "grid-loader.js"
+#: Where the page loads it from, after the path prefix.
+GRID_LOADER_PATH = "_speciakin/grid-loader.js"
 #: Scripts Dash's components load when first drawn, all drawn on the first tab (the page opens on it),
 #: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
 LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
-         ("dash_ag_grid", "async-community.js"), ("plotly", "package_data/plotly.min.js"))
+         ("plotly", "package_data/plotly.min.js"))
 _POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
 _DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
+_GRID = re.compile(r'<script src="([^"]*/dash_ag_grid/dash_ag_grid\.[^"]*)"></script>\n?')
 
 
 def later_files() -> list[Path]:
@@ -47,26 +56,37 @@ def later_files() -> list[Path]:
 
 def trim_scripts(app, server) -> None:
     """Make ``app`` (Dash) list the regenerator runtime in place of the polyfill, without the data table,
-    and with the scripts of :data:`LATER` preloaded; ``server`` (its Flask server) sends the runtime.
+    the grid's stand-in in place of its bundle, and with the scripts of :data:`LATER` preloaded; ``server``
+    (its Flask server) sends the runtime and the stand-in.
 
-    Call it after the request guards are set on ``server`` (the runtime is sent behind them).
+    Call it after the request guards are set on ``server`` (the scripts are sent behind them).
     """
     prefix = app.config.requests_pathname_prefix.rstrip("/") + "/"
-    body = REGENERATOR.read_bytes()
-    tag = hashlib.sha256(body).hexdigest()[:16]
+    tag = _serve(server, prefix + RUNTIME_PATH, REGENERATOR)
     runtime = f'<script src="{prefix}{RUNTIME_PATH}?v={tag}"></script>\n'
+    loader = f"{prefix}{GRID_LOADER_PATH}?v={_serve(server, prefix + GRID_LOADER_PATH, GRID_LOADER)}"
     preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
                       for package, name in LATER)
-    address = prefix + RUNTIME_PATH
 
-    serve_script(server, address, body, tag, "public, max-age=31536000")  # its address names its content
+    def grid(found: re.Match) -> str:
+        return f'<script src="{loader}" data-grid="{found.group(1)}"></script>\n'
 
     interpolate = app.interpolate_index
 
     def interpolate_index(**kwargs):
         scripts, found = _POLYFILL.subn(runtime, kwargs["scripts"], count=1)
-        kwargs["scripts"] = _DATA_TABLE.sub("", scripts if found else runtime + scripts)
+        scripts = _DATA_TABLE.sub("", scripts if found else runtime + scripts)
+        kwargs["scripts"] = _GRID.sub(grid, scripts, count=1)
         kwargs["css"] = preload + kwargs["css"]
         return interpolate(**kwargs)
 
     app.interpolate_index = interpolate_index
+
+
+def _serve(server, address: str, path: Path) -> str:
+    """Send the script ``path`` at ``address``; its content tag, which the page puts into the address it
+    lists (``?v=TAG``), so that it can be cached for a year."""
+    body = path.read_bytes()
+    tag = hashlib.sha256(body).hexdigest()[:16]
+    serve_script(server, address, body, tag, "public, max-age=31536000")
+    return tag
