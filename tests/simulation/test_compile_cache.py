@@ -129,3 +129,54 @@ def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
     np.testing.assert_allclose(zbar_jit, zbar_py, rtol=1e-12)
     # and solve_ph (the checked wrapper) returns that pH
     assert eq.solve_ph(species, amounts[:2], amounts[2]).ph == pytest.approx(ph_py, abs=1e-13)
+
+
+def _two_runs():
+    from sim_models import held, two_site_model, two_site_run
+    from speciakin.chemistry.model import PhControl
+    from speciakin.simulation import compile_model, compile_runs
+
+    compiled = compile_model(two_site_model())
+    runs = [two_site_run(held(8.0), name="held", end=3600.0),
+            two_site_run(PhControl("free"), name="free", end=3600.0, chloride=0.12, sodium=0.2)]
+    times = [np.linspace(0.0, 3600.0, 7)] * 2
+    return compiled, compile_runs(compiled, runs, times), compile_runs(compiled, runs[:1], times[:1])
+
+
+def test_kernel_variant_without_the_free_ph_path():
+    # runs without a free pH are given the variant compiled without the free-pH path: the same outputs
+    # to the last bit (the same held-pH code), and a free-pH run given to it says so instead of running
+    from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag
+    from speciakin.simulation.layout import N_INFO
+    from speciakin.simulation.status import STATUS_NOT_COMPILED, STATUS_OK
+
+    compiled, both, held_only = _two_runs()
+    assert free_ph_flag(both.arrays.mode) is True and free_ph_flag(held_only.arrays.mode) is None
+    results = {}
+    for free_ph in (True, None):
+        out = np.full((1, 2, both.n_times_max, compiled.n_outputs), np.nan)
+        status, info = np.zeros((1, 2), np.int64), np.zeros((1, 2, N_INFO))
+        batch_tasks(compiled.arrays, compiled.nominal[None, :], both.arrays, both.ph_offset[None, :],
+                    both.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, free_ph)
+        results[free_ph] = out, status
+    assert results[True][1].tolist() == [[STATUS_OK, STATUS_OK]]
+    assert results[None][1].tolist() == [[STATUS_OK, STATUS_NOT_COMPILED]]
+    np.testing.assert_array_equal(results[None][0][0, 0], results[True][0][0, 0])
+
+
+def test_the_batch_asks_for_the_free_ph_path_only_when_a_run_has_a_free_ph(monkeypatch):
+    from speciakin.simulation import simulate_batch
+
+    compiled, both, held_only = _two_runs()
+    asked = []
+    real = api.batch_tasks
+
+    def recording(*args):
+        asked.append(args[-1])
+        real(*args)
+
+    monkeypatch.setattr(api, "batch_tasks", recording)
+    for cruns in (held_only, both, held_only):
+        result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
+        assert np.all(result.status == 0)
+    assert asked == [None, True, None]

@@ -14,7 +14,7 @@ from numba import config as numba_config
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_tasks, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag, gaussian_loglik
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import microstate_amounts
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
@@ -57,6 +57,10 @@ def _threads() -> ThreadPoolExecutor:
     return _pool
 
 
+#: The runs of the last batch and their ``free_ph`` (a fitter calls with the same runs many times).
+_last_runs: list = [None, None]
+
+
 def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel) -> None:
     """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
@@ -67,13 +71,17 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
         # (a look is a file-system call, several microseconds per call)
         notice_compile(batch_tasks)
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
+    # the kernel variant without the free-pH path unless a run needs it (compiled only when needed)
+    if _last_runs[0] is not run_arrays:
+        _last_runs[:] = [run_arrays, free_ph_flag(run_arrays.mode)]
+    free_ph = _last_runs[1]
     threads = min(N_THREADS, off.size) if parallel else 1
     if threads <= 1:
-        batch_tasks(*args, 0, 1)
+        batch_tasks(*args, 0, 1, free_ph)
         _kernel_loaded = True
         return
-    shares = [_threads().submit(batch_tasks, *args, i, threads) for i in range(1, threads)]
-    batch_tasks(*args, 0, threads)
+    shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
+    batch_tasks(*args, 0, threads, free_ph)
     for share in shares:
         share.result()
     _kernel_loaded = True
