@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from speciakin.chemistry import water
-from speciakin.simulation import api, cache_guard
+from speciakin.simulation import api, cache_guard, simulate_batch
 
 
 @pytest.mark.skipif(sys.platform in ("win32", "darwin"), reason="the XDG folder applies to Linux and other Unix")
@@ -78,7 +78,7 @@ def test_compile_notice_is_logged_once(monkeypatch, tmp_path, caplog):
     warm = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
         _index_path=str(warm_index))))
     assert cache_guard.is_cached(warm) and not cache_guard.is_cached(cold)
-    monkeypatch.setattr(api, "_compile_noticed", False)
+    monkeypatch.setattr(api, "_compile_noticed", set())
     with caplog.at_level(logging.INFO, logger="speciakin.simulation"):
         api.notice_compile(warm)
         assert not caplog.records
@@ -131,6 +131,34 @@ def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
     assert eq.solve_ph(species, amounts[:2], amounts[2]).ph == pytest.approx(ph_py, abs=1e-13)
 
 
+def test_a_compiled_variant_is_found_in_the_index_by_its_last_argument(tmp_path):
+    from numba import types
+
+    index = tmp_path / "batch.nbi"
+    index.write_text("x")
+    entries = {((types.float64, types.none), ("cpu",), ("h", "h")): "batch.1.nbc"}
+    kernel = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
+        _index_path=str(index), _load_index=lambda: entries)))
+    assert cache_guard.is_cached(kernel) and cache_guard.is_cached(kernel, types.none)
+    assert not cache_guard.is_cached(kernel, types.boolean)
+    index.unlink()
+    assert not cache_guard.is_cached(kernel, types.none)
+
+
+def test_the_real_index_knows_the_variants_this_process_compiled_or_loaded():
+    from numba import types
+
+    from speciakin.simulation.batch_kernel import batch_tasks
+
+    compiled, both, held_only = _two_runs()
+    for cruns in (held_only, both):
+        simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
+    if getattr(batch_tasks, "_cache", None) is None or not batch_tasks._cache._enabled:
+        pytest.skip("numba caching is off")
+    assert cache_guard.is_cached(batch_tasks, types.none) and cache_guard.is_cached(batch_tasks, types.boolean)
+    assert not cache_guard.is_cached(batch_tasks, types.int32)
+
+
 def _two_runs():
     from sim_models import held, two_site_model, two_site_run
     from speciakin.chemistry.model import PhControl
@@ -165,8 +193,6 @@ def test_kernel_variant_without_the_free_ph_path():
 
 
 def test_the_batch_asks_for_the_free_ph_path_only_when_a_run_has_a_free_ph(monkeypatch):
-    from speciakin.simulation import simulate_batch
-
     compiled, both, held_only = _two_runs()
     asked = []
     real = api.batch_tasks

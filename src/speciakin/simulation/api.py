@@ -11,6 +11,7 @@ from typing import Sequence
 
 import numpy as np
 from numba import config as numba_config
+from numba import typeof as numba_typeof
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
@@ -29,16 +30,16 @@ if _cache is not None and getattr(_cache, "_cache_path", None):
 
 #: Records of this layer (the command line shows them on stderr; a library user may attach a handler).
 LOG = logging.getLogger("speciakin.simulation")
-_compile_noticed = False
-_kernel_loaded = False  # batch_tasks has run in this process
+_compile_noticed: set = set()  # the variants (numba type of the last argument) announced in this process
+_variants_loaded: set = set()  # the batch_tasks variants (free_ph) run in this process
 
 
-def notice_compile(kernel) -> None:
-    """Log once per process, before the first call of ``kernel``, that it compiles
-    (its compiled code is not in the cache yet)."""
-    global _compile_noticed
-    if not _compile_noticed and not is_cached(kernel):
-        _compile_noticed = True
+def notice_compile(kernel, variant=None) -> None:
+    """Log once per process and variant, before the first call of ``kernel``, that it
+    compiles (its compiled code, or that of the variant whose last argument has the
+    numba type ``variant``, is not in the cache yet)."""
+    if variant not in _compile_noticed and not is_cached(kernel, variant):
+        _compile_noticed.add(variant)
         LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
 
 
@@ -65,26 +66,24 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
     (this one and the pool's; the compiled code releases the GIL)."""
-    global _kernel_loaded
-    if not _kernel_loaded:
-        # the cache is looked at before the first call only: then the compiled code is in the process
-        # (a look is a file-system call, several microseconds per call)
-        notice_compile(batch_tasks)
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
     # the kernel variant without the free-pH path unless a run needs it (compiled only when needed)
     if _last_runs[0] is not run_arrays:
         _last_runs[:] = [run_arrays, free_ph_flag(run_arrays.mode)]
     free_ph = _last_runs[1]
+    if free_ph not in _variants_loaded:
+        # the cache is looked at before a variant's first call only: then its compiled code is in the
+        # process (a look is a file-system call, several microseconds per call)
+        notice_compile(batch_tasks, numba_typeof(free_ph))
     threads = min(N_THREADS, off.size) if parallel else 1
     if threads <= 1:
         batch_tasks(*args, 0, 1, free_ph)
-        _kernel_loaded = True
-        return
-    shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
-    batch_tasks(*args, 0, threads, free_ph)
-    for share in shares:
-        share.result()
-    _kernel_loaded = True
+    else:
+        shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
+        batch_tasks(*args, 0, threads, free_ph)
+        for share in shares:
+            share.result()
+    _variants_loaded.add(free_ph)
 
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
