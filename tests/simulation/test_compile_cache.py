@@ -192,7 +192,23 @@ def test_kernel_variant_without_the_free_ph_path():
     np.testing.assert_array_equal(results[None][0][0, 0], results[True][0][0, 0])
 
 
-def test_the_batch_asks_for_the_free_ph_path_only_when_a_run_has_a_free_ph(monkeypatch):
+def test_the_kernel_variant_leaves_the_free_ph_path_out_only_when_nothing_needs_it(monkeypatch):
+    compiled, both, held_only = _two_runs()
+    held, mixed = held_only.arrays.mode, both.arrays.mode
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [False])
+    assert api.kernel_variant(held) is None and api.kernel_variant(mixed) is True
+    assert api.kernel_variant(held, with_free_ph=True) is True  # free-pH runs follow: one compile for both
+    monkeypatch.setattr(api, "_variants_loaded", {True})
+    assert api.kernel_variant(held) is True  # the full kernel is in the process: nothing more to compile
+    monkeypatch.setattr(api, "_variants_loaded", {None, True})
+    assert api.kernel_variant(held) is None
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [True])
+    assert api.kernel_variant(held) is True  # only the full kernel on disk: loaded, not the other compiled
+
+
+def test_the_batch_runs_the_chosen_variant(monkeypatch):
     compiled, both, held_only = _two_runs()
     asked = []
     real = api.batch_tasks
@@ -202,7 +218,9 @@ def test_the_batch_asks_for_the_free_ph_path_only_when_a_run_has_a_free_ph(monke
         real(*args)
 
     monkeypatch.setattr(api, "batch_tasks", recording)
-    for cruns in (held_only, both, held_only):
-        result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [False])
+    for cruns, hint in ((held_only, False), (held_only, True), (both, False)):
+        result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False, with_free_ph=hint)
         assert np.all(result.status == 0)
-    assert asked == [None, True, None]
+    assert asked == [None, True, True]

@@ -58,19 +58,47 @@ def _threads() -> ThreadPoolExecutor:
     return _pool
 
 
-#: The runs of the last batch and their ``free_ph`` (a fitter calls with the same runs many times).
-_last_runs: list = [None, None]
+_only_full_cached: list = []  # [bool] once asked: the disk cache holds the full kernel and not the other
 
 
-def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel) -> None:
+def kernel_variant(run_modes, with_free_ph: bool = False):
+    """``free_ph`` of ``batch_kernel.batch_tasks`` for runs with these pH mode codes.
+
+    True (the kernel with every path) when a run has a free pH or the caller
+    says that free-pH runs follow in this process (``with_free_ph``), else
+    None (the kernel without the free-pH path: less to compile), unless the
+    full kernel alone is at hand (run in this process, or, before any run,
+    cached on disk while the other is not).  Both variants give the same
+    outputs for runs without a free pH (the same compiled held/logged path),
+    so the choice only decides what is compiled.
+    """
+    if with_free_ph or free_ph_flag(run_modes):
+        return True
+    if None in _variants_loaded:
+        return None
+    if True in _variants_loaded:
+        return True
+    if not _only_full_cached:
+        _only_full_cached.append(is_cached(batch_tasks, numba_typeof(True))
+                                 and not is_cached(batch_tasks, numba_typeof(None)))
+    return True if _only_full_cached[0] else None
+
+
+#: The runs of the last batch, the caller's ``with_free_ph`` and the variant chosen
+#: (a fitter calls with the same runs many times).
+_last_runs: list = [None, None, None]
+
+
+def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel,
+               with_free_ph: bool = False) -> None:
     """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
-    (this one and the pool's; the compiled code releases the GIL)."""
+    (this one and the pool's; the compiled code releases the GIL).  The kernel
+    variant is :func:`kernel_variant`'s."""
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
-    # the kernel variant without the free-pH path unless a run needs it (compiled only when needed)
-    if _last_runs[0] is not run_arrays:
-        _last_runs[:] = [run_arrays, free_ph_flag(run_arrays.mode)]
-    free_ph = _last_runs[1]
+    if _last_runs[0] is not run_arrays or _last_runs[1] != with_free_ph:
+        _last_runs[:] = [run_arrays, with_free_ph, kernel_variant(run_arrays.mode, with_free_ph)]
+    free_ph = _last_runs[2]
     if free_ph not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
@@ -279,7 +307,7 @@ def _ion_sign(compiled: CompiledModel, name: str) -> float:
 
 def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,
                    amount_factor=None, rtol: float = 1e-6, atol: float = 1e-10,
-                   parallel: bool = True) -> BatchResult:
+                   parallel: bool = True, with_free_ph: bool = False) -> BatchResult:
     """Simulate every parameter set on every run.
 
     Parameters
@@ -290,6 +318,10 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
         (n_sets, n_runs) or broadcastable; default: each run's own values.
     parallel
         Spread the (set, run) pairs over all cores (:data:`N_THREADS` threads).
+    with_free_ph
+        Run the kernel compiled with the free-pH path even if no run has a
+        free pH (free-pH runs follow in this process: one compile serves both;
+        the outputs are the same).
 
     Returns
     -------
@@ -299,7 +331,8 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     _check_tolerances(rtol, atol)
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
     out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
-    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
+    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel,
+               with_free_ph)
     return _batch_result(out, status, info)
 
 
