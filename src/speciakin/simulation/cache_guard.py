@@ -36,9 +36,10 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
-#: Rough duration of a cold compile on a quiet two-core machine [s]: about 120 s of wall time
-#: (180 s of CPU time) to the first parallel likelihood (``benchmarks/bench_kernel.py --cold``).
-COLD_COMPILE_SECONDS = 120
+#: Rough duration of a cold compile on a quiet two-core machine [s]: to the first parallel
+#: likelihood about 50 s of CPU time without the free-pH path, 70 s with it
+#: (``benchmarks/bench_compile.py [--demo]``).
+COLD_COMPILE_SECONDS = 70
 
 
 def default_cache_dir() -> Path:
