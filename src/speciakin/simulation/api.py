@@ -85,8 +85,9 @@ def kernel_variant(run_modes, with_free_ph: bool = False):
 
 
 #: The runs of the last batch, the caller's ``with_free_ph`` and the variant chosen
-#: (a fitter calls with the same runs many times).
-_last_runs: list = [None, None, None]
+#: (a fitter calls with the same runs many times); one tuple, replaced whole, so that
+#: batches started from several threads each read a consistent triple.
+_last_runs: tuple = (None, None, None)
 
 
 def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel,
@@ -95,10 +96,14 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
     (this one and the pool's; the compiled code releases the GIL).  The kernel
     variant is :func:`kernel_variant`'s."""
+    global _last_runs
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
-    if _last_runs[0] is not run_arrays or _last_runs[1] != with_free_ph:
-        _last_runs[:] = [run_arrays, with_free_ph, kernel_variant(run_arrays.mode, with_free_ph)]
-    free_ph = _last_runs[2]
+    last = _last_runs
+    if last[0] is run_arrays and last[1] == with_free_ph:
+        free_ph = last[2]
+    else:
+        free_ph = kernel_variant(run_arrays.mode, with_free_ph)
+        _last_runs = (run_arrays, with_free_ph, free_ph)
     if free_ph not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
