@@ -48,8 +48,7 @@ from speciakin.simulation.rhs_kernel import (
     reset_workspace,
     rhs,
 )
-from speciakin.simulation.status import (STATUS_NO_ADJUSTING_ION, STATUS_NOT_COMPILED, STATUS_NOT_FINITE, STATUS_OK,
-                                         STATUS_TITRANT_SIGN, STATUS_VOLUME)
+from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK, STATUS_TITRANT_SIGN, STATUS_VOLUME
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace, reset_smooth_workspace
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
@@ -61,6 +60,7 @@ from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_STA
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
 from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
+from speciakin.simulation.status import STATUS_NOT_COMPILED
 
 #: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
 #: consumed so far), relative to the run's total amount (initial amounts + doses):
