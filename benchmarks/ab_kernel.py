@@ -106,9 +106,11 @@ def bench_workload():
     defaults = inspect.signature(simulate_batch).parameters
     args = (compiled.arrays, q, cruns.arrays, off, fac, defaults["rtol"].default, defaults["atol"].default, out,
             status, info)
+    # the kernel variant the version's api runs for these runs (a version that compiles one per need)
+    variant = (batch.free_ph_flag(cruns.arrays.mode),) if hasattr(batch, "free_ph_flag") else ()
     if hasattr(batch, "batch_tasks"):
         def call():
-            batch.batch_tasks(*args, 0, 1)
+            batch.batch_tasks(*args, 0, 1, *variant)
     else:
         def call():
             batch.batch_serial(*args)
@@ -125,7 +127,7 @@ def bench_workload():
         ref_status, ref_info = np.zeros_like(status), np.zeros_like(info)
         tight_args = (compiled.arrays, q, cruns.arrays, off, fac, 1e-11, 1e-15, tight, ref_status, ref_info)
         if hasattr(batch, "batch_tasks"):
-            batch.batch_tasks(*tight_args, 0, 1)
+            batch.batch_tasks(*tight_args, 0, 1, *variant)
         else:
             batch.batch_serial(*tight_args)
         if np.any(ref_status != 0):

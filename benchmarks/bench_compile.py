@@ -2,8 +2,12 @@
 the first simulation and to the first parallel likelihood.
 
 A fresh Python process with an empty temporary ``NUMBA_CACHE_DIR`` builds the
-six-run benchmark of ``bench_kernel.py``, simulates it once on one core, then
-evaluates the Gaussian log-likelihood of four parameter sets over all cores.
+six-run benchmark of ``bench_kernel.py`` (held pH only), simulates it once on
+one core, then evaluates the Gaussian log-likelihood of four parameter sets
+over all cores.  With ``--demo`` it takes the bundled demo campaign instead
+(held, logged and free-pH runs, so the kernel with every path): the
+log-likelihood of its start values on one core, then of four sets over all
+cores.
 It reports, for each point, the wall time since its launch and its CPU time
 (user + system of that process: the compile's own work, whatever else the
 shared host runs), the load average before and after, and the same process
@@ -16,7 +20,7 @@ A version is ``WORKTREE`` (the files on disk, default) or a git revision,
 exported to a temporary folder, so that two versions can be measured by the
 same script one after the other.
 
-Run:  .venv/bin/python benchmarks/bench_compile.py [REV] [--by-function]
+Run:  .venv/bin/python benchmarks/bench_compile.py [REV] [--by-function] [--demo]
 """
 
 from __future__ import annotations
@@ -47,18 +51,29 @@ if os.environ.get("PROBE_BY_FUNCTION"):
         by_function.append((time.process_time() - c, self.name))
     codegen.CPUCodeLibrary.finalize = timed_finalize
 import numpy as np
-from speciakin.simulation import batch_log_likelihood, compile_model, compile_runs, simulate_batch
-sys.path.insert(0, os.environ["PROBE_BENCH"])
-import bench_kernel as b
-compiled = compile_model(b.build_model())
-runs = compile_runs(compiled, b.build_runs(), [b.TIMES] * 6)
-res = simulate_batch(compiled, runs, compiled.nominal[None, :], parallel=False)
-first = (time.perf_counter() - t0, sum(os.times()[:2]))
-data = np.where(np.isfinite(res.outputs[0]), res.outputs[0], np.nan)
-batch_log_likelihood(compiled, runs, np.repeat(compiled.nominal[None, :], 4, 0), data, np.ones_like(data),
-                     parallel=True)
+if os.environ.get("PROBE_DEMO"):
+    from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
+    model, campaign, _ = load_inputs(resolve_inputs(os.environ["PROBE_DEMO"]))
+    objective = make_objective(model, campaign)
+    objective.parallel = False
+    ok = bool(np.isfinite(objective.log_likelihood_batch(objective.start[None, :])[0]))
+    first = (time.perf_counter() - t0, sum(os.times()[:2]))
+    objective.parallel = True
+    objective.log_likelihood_batch(np.repeat(objective.start[None, :], 4, 0))
+else:
+    from speciakin.simulation import batch_log_likelihood, compile_model, compile_runs, simulate_batch
+    sys.path.insert(0, os.environ["PROBE_BENCH"])
+    import bench_kernel as b
+    compiled = compile_model(b.build_model())
+    runs = compile_runs(compiled, b.build_runs(), [b.TIMES] * 6)
+    res = simulate_batch(compiled, runs, compiled.nominal[None, :], parallel=False)
+    ok = bool(np.all(res.status == 0))
+    first = (time.perf_counter() - t0, sum(os.times()[:2]))
+    data = np.where(np.isfinite(res.outputs[0]), res.outputs[0], np.nan)
+    batch_log_likelihood(compiled, runs, np.repeat(compiled.nominal[None, :], 4, 0), data, np.ones_like(data),
+                         parallel=True)
 parallel = (time.perf_counter() - t0, sum(os.times()[:2]))
-print(json.dumps({"first": first, "parallel": parallel, "ok": bool(np.all(res.status == 0)),
+print(json.dumps({"first": first, "parallel": parallel, "ok": ok,
                   "by_function": sorted(by_function, reverse=True)[:12],
                   "finalize_total": sum(t for t, _ in by_function)}))
 """
@@ -77,10 +92,12 @@ def export(rev: str, into: Path) -> Path:
     return into / "src"
 
 
-def probe(src: Path, cache: Path, by_function: bool) -> dict:
+def probe(src: Path, cache: Path, by_function: bool, demo: bool = False) -> dict:
     env = dict(os.environ, PYTHONPATH=str(src), NUMBA_CACHE_DIR=str(cache), PROBE_BENCH=str(ROOT / "benchmarks"))
     if by_function:
         env["PROBE_BY_FUNCTION"] = "1"
+    if demo:
+        env["PROBE_DEMO"] = str(ROOT / "data_templates" / "demo")  # the same data for every version
     out = subprocess.run([sys.executable, "-c", PROBE], capture_output=True, text=True, env=env)
     if out.returncode != 0:
         raise SystemExit(f"the probe failed: {out.stderr.strip()[-800:]}")
@@ -92,16 +109,18 @@ def main() -> None:
     parser.add_argument("rev", nargs="?", default="WORKTREE",
                         help="a git revision, WORKTREE (default) or a folder holding src/speciakin")
     parser.add_argument("--by-function", action="store_true", help="list the longest LLVM finalisations")
+    parser.add_argument("--demo", action="store_true",
+                        help="the bundled demo campaign (held, logged and free-pH runs) instead of the six held runs")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory(prefix="speciakin_cold_") as tmp:
         tmp = Path(tmp)
         src = export(args.rev, tmp / "export")
         load = os.getloadavg()
-        cold = probe(src, tmp / "cache", args.by_function)
+        cold = probe(src, tmp / "cache", args.by_function, args.demo)
         load_after = os.getloadavg()
-        warm = probe(src, tmp / "cache", False)
+        warm = probe(src, tmp / "cache", False, args.demo)
     cores = os.cpu_count()
-    print(f"version {args.rev}; load average {load[0]:.2f} before, {load_after[0]:.2f} after, on {cores} cores")
+    print(f"version {args.rev}, {'the demo campaign' if args.demo else 'six held-pH runs'}; load average {load[0]:.2f} before, {load_after[0]:.2f} after, on {cores} cores")
     for label, key in (("first simulation", "first"), ("first parallel likelihood", "parallel")):
         print(f"cold, {label}: {cold[key][0]:.0f} s wall, {cold[key][1]:.0f} s CPU (user + sys); "
               f"cache filled: {warm[key][0]:.1f} s wall, {warm[key][1]:.1f} s CPU")

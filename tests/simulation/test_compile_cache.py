@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from speciakin.chemistry import water
-from speciakin.simulation import api, cache_guard
+from speciakin.simulation import api, cache_guard, simulate_batch
 
 
 @pytest.mark.skipif(sys.platform in ("win32", "darwin"), reason="the XDG folder applies to Linux and other Unix")
@@ -78,7 +78,7 @@ def test_compile_notice_is_logged_once(monkeypatch, tmp_path, caplog):
     warm = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
         _index_path=str(warm_index))))
     assert cache_guard.is_cached(warm) and not cache_guard.is_cached(cold)
-    monkeypatch.setattr(api, "_compile_noticed", False)
+    monkeypatch.setattr(api, "_compile_noticed", set())
     with caplog.at_level(logging.INFO, logger="speciakin.simulation"):
         api.notice_compile(warm)
         assert not caplog.records
@@ -129,3 +129,98 @@ def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
     np.testing.assert_allclose(zbar_jit, zbar_py, rtol=1e-12)
     # and solve_ph (the checked wrapper) returns that pH
     assert eq.solve_ph(species, amounts[:2], amounts[2]).ph == pytest.approx(ph_py, abs=1e-13)
+
+
+def test_a_compiled_variant_is_found_in_the_index_by_its_last_argument(tmp_path):
+    from numba import types
+
+    index = tmp_path / "batch.nbi"
+    index.write_text("x")
+    entries = {((types.float64, types.none), ("cpu",), ("h", "h")): "batch.1.nbc"}
+    kernel = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
+        _index_path=str(index), _load_index=lambda: entries)))
+    assert cache_guard.is_cached(kernel) and cache_guard.is_cached(kernel, types.none)
+    assert not cache_guard.is_cached(kernel, types.boolean)
+    index.unlink()
+    assert not cache_guard.is_cached(kernel, types.none)
+
+
+def test_the_real_index_knows_the_variants_this_process_compiled_or_loaded():
+    from numba import types
+
+    from speciakin.simulation.batch_kernel import batch_tasks
+
+    compiled, both, held_only = _two_runs()
+    for cruns in (held_only, both):
+        simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
+    if getattr(batch_tasks, "_cache", None) is None or not batch_tasks._cache._enabled:
+        pytest.skip("numba caching is off")
+    assert cache_guard.is_cached(batch_tasks, types.none) and cache_guard.is_cached(batch_tasks, types.boolean)
+    assert not cache_guard.is_cached(batch_tasks, types.int32)
+
+
+def _two_runs():
+    from sim_models import held, two_site_model, two_site_run
+    from speciakin.chemistry.model import PhControl
+    from speciakin.simulation import compile_model, compile_runs
+
+    compiled = compile_model(two_site_model())
+    runs = [two_site_run(held(8.0), name="held", end=3600.0),
+            two_site_run(PhControl("free"), name="free", end=3600.0, chloride=0.12, sodium=0.2)]
+    times = [np.linspace(0.0, 3600.0, 7)] * 2
+    return compiled, compile_runs(compiled, runs, times), compile_runs(compiled, runs[:1], times[:1])
+
+
+def test_kernel_variant_without_the_free_ph_path():
+    # runs without a free pH are given the variant compiled without the free-pH path: the same outputs
+    # to the last bit (the same held-pH code), and a free-pH run given to it says so instead of running
+    from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag
+    from speciakin.simulation.layout import N_INFO
+    from speciakin.simulation.status import STATUS_NOT_COMPILED, STATUS_OK
+
+    compiled, both, held_only = _two_runs()
+    assert free_ph_flag(both.arrays.mode) is True and free_ph_flag(held_only.arrays.mode) is None
+    results = {}
+    for free_ph in (True, None):
+        out = np.full((1, 2, both.n_times_max, compiled.n_outputs), np.nan)
+        status, info = np.zeros((1, 2), np.int64), np.zeros((1, 2, N_INFO))
+        batch_tasks(compiled.arrays, compiled.nominal[None, :], both.arrays, both.ph_offset[None, :],
+                    both.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, free_ph)
+        results[free_ph] = out, status
+    assert results[True][1].tolist() == [[STATUS_OK, STATUS_OK]]
+    assert results[None][1].tolist() == [[STATUS_OK, STATUS_NOT_COMPILED]]
+    np.testing.assert_array_equal(results[None][0][0, 0], results[True][0][0, 0])
+
+
+def test_the_kernel_variant_leaves_the_free_ph_path_out_only_when_nothing_needs_it(monkeypatch):
+    compiled, both, held_only = _two_runs()
+    held, mixed = held_only.arrays.mode, both.arrays.mode
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [False])
+    assert api.kernel_variant(held) is None and api.kernel_variant(mixed) is True
+    assert api.kernel_variant(held, with_free_ph=True) is True  # free-pH runs follow: one compile for both
+    monkeypatch.setattr(api, "_variants_loaded", {True})
+    assert api.kernel_variant(held) is True  # the full kernel is in the process: nothing more to compile
+    monkeypatch.setattr(api, "_variants_loaded", {None, True})
+    assert api.kernel_variant(held) is None
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [True])
+    assert api.kernel_variant(held) is True  # only the full kernel on disk: loaded, not the other compiled
+
+
+def test_the_batch_runs_the_chosen_variant(monkeypatch):
+    compiled, both, held_only = _two_runs()
+    asked = []
+    real = api.batch_tasks
+
+    def recording(*args):
+        asked.append(args[-1])
+        real(*args)
+
+    monkeypatch.setattr(api, "batch_tasks", recording)
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_only_full_cached", [False])
+    for cruns, hint in ((held_only, False), (held_only, True), (both, False)):
+        result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False, with_free_ph=hint)
+        assert np.all(result.status == 0)
+    assert asked == [None, True, True]

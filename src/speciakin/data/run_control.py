@@ -192,7 +192,9 @@ def _reach_problems(campaign, model, c: ProblemCollector) -> None:
                                      [default_times(run.recipe, 3) for run in runs])
     except InputError:  # the model's or the runs' own problems are reported by their checks
         return
-    res = simulate_batch(compiled, compiled_runs, compiled.nominal[None, :], parallel=False)
+    # free-pH runs of the campaign are simulated next (the fit): the kernel with that path serves both
+    free = any(run.recipe.ph.mode == "free" for run in campaign.runs)
+    res = simulate_batch(compiled, compiled_runs, compiled.nominal[None, :], parallel=False, with_free_ph=free)
     for j in np.flatnonzero(np.isin(res.status[0], PH_CONTROL_STATUS)):
         run, code = runs[j], int(res.status[0, j])
         ph, time = run.recipe.ph, float(res.failure_time[0, j])

@@ -11,10 +11,11 @@ from typing import Sequence
 
 import numpy as np
 from numba import config as numba_config
+from numba import typeof as numba_typeof
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_tasks, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag, gaussian_loglik
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import microstate_amounts
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
@@ -29,16 +30,16 @@ if _cache is not None and getattr(_cache, "_cache_path", None):
 
 #: Records of this layer (the command line shows them on stderr; a library user may attach a handler).
 LOG = logging.getLogger("speciakin.simulation")
-_compile_noticed = False
-_kernel_loaded = False  # batch_tasks has run in this process
+_compile_noticed: set = set()  # the variants (numba type of the last argument) announced in this process
+_variants_loaded: set = set()  # the batch_tasks variants (free_ph) run in this process
 
 
-def notice_compile(kernel) -> None:
-    """Log once per process, before the first call of ``kernel``, that it compiles
-    (its compiled code is not in the cache yet)."""
-    global _compile_noticed
-    if not _compile_noticed and not is_cached(kernel):
-        _compile_noticed = True
+def notice_compile(kernel, variant=None) -> None:
+    """Log once per process and variant, before the first call of ``kernel``, that it
+    compiles (its compiled code, or that of the variant whose last argument has the
+    numba type ``variant``, is not in the cache yet)."""
+    if variant not in _compile_noticed and not is_cached(kernel, variant):
+        _compile_noticed.add(variant)
         LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
 
 
@@ -57,26 +58,65 @@ def _threads() -> ThreadPoolExecutor:
     return _pool
 
 
-def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel) -> None:
+_only_full_cached: list = []  # [bool] once asked: the disk cache holds the full kernel and not the other
+
+
+def kernel_variant(run_modes, with_free_ph: bool = False):
+    """``free_ph`` of ``batch_kernel.batch_tasks`` for runs with these pH mode codes.
+
+    True (the kernel with every path) when a run has a free pH or the caller
+    says that free-pH runs follow in this process (``with_free_ph``), else
+    None (the kernel without the free-pH path: less to compile), unless the
+    full kernel alone is at hand (run in this process, or, before any run,
+    cached on disk while the other is not).  Both variants give the same
+    outputs for runs without a free pH (the same compiled held/logged path),
+    so the choice only decides what is compiled.
+    """
+    if with_free_ph or free_ph_flag(run_modes):
+        return True
+    if None in _variants_loaded:
+        return None
+    if True in _variants_loaded:
+        return True
+    if not _only_full_cached:
+        _only_full_cached.append(is_cached(batch_tasks, numba_typeof(True))
+                                 and not is_cached(batch_tasks, numba_typeof(None)))
+    return True if _only_full_cached[0] else None
+
+
+#: The runs of the last batch, the caller's ``with_free_ph`` and the variant chosen
+#: (a fitter calls with the same runs many times); one tuple, replaced whole, so that
+#: batches started from several threads each read a consistent triple.
+_last_runs: tuple = (None, None, None)
+
+
+def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, info, parallel,
+               with_free_ph: bool = False) -> None:
     """Run every (set, run) task of the compiled batch (``batch_kernel.batch_tasks``):
     on this thread, or, with ``parallel``, spread over :data:`N_THREADS` threads
-    (this one and the pool's; the compiled code releases the GIL)."""
-    global _kernel_loaded
-    if not _kernel_loaded:
-        # the cache is looked at before the first call only: then the compiled code is in the process
-        # (a look is a file-system call, several microseconds per call)
-        notice_compile(batch_tasks)
+    (this one and the pool's; the compiled code releases the GIL).  The kernel
+    variant is :func:`kernel_variant`'s."""
+    global _last_runs
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
+    last = _last_runs
+    if last[0] is run_arrays and last[1] == with_free_ph:
+        free_ph = last[2]
+    else:
+        free_ph = kernel_variant(run_arrays.mode, with_free_ph)
+        _last_runs = (run_arrays, with_free_ph, free_ph)
+    if free_ph not in _variants_loaded:
+        # the cache is looked at before a variant's first call only: then its compiled code is in the
+        # process (a look is a file-system call, several microseconds per call)
+        notice_compile(batch_tasks, numba_typeof(free_ph))
     threads = min(N_THREADS, off.size) if parallel else 1
     if threads <= 1:
-        batch_tasks(*args, 0, 1)
-        _kernel_loaded = True
-        return
-    shares = [_threads().submit(batch_tasks, *args, i, threads) for i in range(1, threads)]
-    batch_tasks(*args, 0, threads)
-    for share in shares:
-        share.result()
-    _kernel_loaded = True
+        batch_tasks(*args, 0, 1, free_ph)
+    else:
+        shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
+        batch_tasks(*args, 0, threads, free_ph)
+        for share in shares:
+            share.result()
+    _variants_loaded.add(free_ph)
 
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",
@@ -272,7 +312,7 @@ def _ion_sign(compiled: CompiledModel, name: str) -> float:
 
 def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets, ph_offset=None,
                    amount_factor=None, rtol: float = 1e-6, atol: float = 1e-10,
-                   parallel: bool = True) -> BatchResult:
+                   parallel: bool = True, with_free_ph: bool = False) -> BatchResult:
     """Simulate every parameter set on every run.
 
     Parameters
@@ -283,6 +323,10 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
         (n_sets, n_runs) or broadcastable; default: each run's own values.
     parallel
         Spread the (set, run) pairs over all cores (:data:`N_THREADS` threads).
+    with_free_ph
+        Run the kernel compiled with the free-pH path even if no run has a
+        free pH (free-pH runs follow in this process: one compile serves both;
+        the outputs are the same).
 
     Returns
     -------
@@ -292,7 +336,8 @@ def simulate_batch(compiled: CompiledModel, compiled_runs: CompiledRuns, q_sets,
     _check_tolerances(rtol, atol)
     q_sets, off, fac = _batch_inputs(compiled, compiled_runs, q_sets, ph_offset, amount_factor)
     out, status, info = _batch_buffers(compiled, compiled_runs, *off.shape)
-    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel)
+    run_kernel(compiled.arrays, q_sets, compiled_runs.arrays, off, fac, rtol, atol, out, status, info, parallel,
+               with_free_ph)
     return _batch_result(out, status, info)
 
 

@@ -17,8 +17,9 @@ clears this package's cache entries when the hash changes, before anything is
 loaded from the cache; other changes (the Python layers around the kernel)
 recompile nothing.
 
-**Cold start.**  :func:`is_cached` tells whether a compiled function has an
-entry on disk, so that the caller can say once that it compiles.
+**Cold start.**  :func:`is_cached` tells whether a compiled function (or one
+compiled variant of it) has an entry on disk, so that the caller can say once
+that it compiles.
 """
 
 from __future__ import annotations
@@ -35,9 +36,10 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
-#: Rough duration of a cold compile on a quiet two-core machine [s]: about 120 s of wall time
-#: (180 s of CPU time) to the first parallel likelihood (``benchmarks/bench_kernel.py --cold``).
-COLD_COMPILE_SECONDS = 120
+#: Rough duration of a cold compile on a quiet two-core machine [s]: to the first parallel
+#: likelihood about 50 s of CPU time without the free-pH path, 70 s with it
+#: (``benchmarks/bench_compile.py [--demo]``).
+COLD_COMPILE_SECONDS = 70
 
 
 def default_cache_dir() -> Path:
@@ -115,10 +117,25 @@ def refresh_kernel_cache(cache_path: str | os.PathLike) -> bool:
         return False
 
 
-def is_cached(dispatcher) -> bool:
-    """True when the compiled function ``dispatcher`` has an index on disk (or caching is off)."""
+def is_cached(dispatcher, last_arg_type=None) -> bool:
+    """True when the compiled function ``dispatcher`` has an index on disk (or caching is off).
+
+    With ``last_arg_type`` (a numba type), only when the index holds a compiled
+    variant whose last argument has that type (``batch_kernel.batch_tasks`` is
+    compiled per ``free_ph``: None or True).
+    """
     cache = getattr(dispatcher, "_cache", None)
-    index = getattr(getattr(cache, "_cache_file", None), "_index_path", None)
+    cache_file = getattr(cache, "_cache_file", None)
+    index = getattr(cache_file, "_index_path", None)
     if index is None or not getattr(cache, "_enabled", True):
         return True
-    return os.path.exists(index)
+    if not os.path.exists(index):
+        return False
+    if last_arg_type is None:
+        return True
+    try:
+        # numba's index: {(argument types, machine, source hashes): data file}
+        entries = cache_file._load_index()
+    except Exception:  # an index numba itself could not read: it recompiles and says nothing either
+        return True
+    return any(len(key[0]) > 0 and key[0][-1] == last_arg_type for key in entries)

@@ -60,6 +60,7 @@ from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_STA
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
 from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
+from speciakin.simulation.status import STATUS_NOT_COMPILED
 
 #: Largest withdrawal of a one-sided titrant tolerated (below the largest amount
 #: consumed so far), relative to the run's total amount (initial amounts + doses):
@@ -227,7 +228,7 @@ def run_workspaces(model):
 
 
 @njit(cache=True)
-def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw):
+def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw, free_ph=True):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
 
     ``out[i, :]`` = amounts of every species [mol], volume [L], pH, titrant
@@ -237,7 +238,11 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
     opposite titrant [mol], start adjustment inside the volume [equivalents,
     + base]].  ``ws``, ``sw``: work arrays of ``make_workspace`` and
     ``make_smooth_workspace`` (:func:`run_workspaces`), made once per batch and
-    brought here to the state a run starts from.  Returns the status code.
+    brought here to the state a run starts from.  ``free_ph``: None when no
+    run of the batch has a free pH; the free-pH path (:func:`integrate_segment`
+    and all it calls) is then left out of this compiled variant (numba drops
+    the branch on ``free_ph is None`` when compiling for a None argument), and a free-pH run
+    gets ``STATUS_NOT_COMPILED``.  Returns the status code.
     """
     n_mol = model.n_mol
     n_species = model.n_species
@@ -356,6 +361,8 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
             status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, sw, feed_rate,
                                                 feed_volume_rate, temp_slope, nonauto, rtol, atol, out, out_t, i_out,
                                                 n_out, counters, step_tol, peak)
+        elif free_ph is None:
+            status = STATUS_NOT_COMPILED
         else:
             status, h, i_out = integrate_segment(t, t_next, y, h, model, par, ctx, feed_rate, feed_volume_rate,
                                                  temp_slope, nonauto, rtol, atol, ws, counters, out, out_t,

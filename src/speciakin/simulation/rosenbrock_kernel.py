@@ -148,8 +148,11 @@ def make_step_loop(point, stage, jacobian, output, prefetch, all_active):
         need_eval = False
         while t < tb:
             if not jac_fresh:
-                if not prefetch and need_eval:
-                    # (prefetch: f at the new point is already in f0; the branch is compiled out)
+                if prefetch:
+                    # f at the new point is already in f0 (a branch on the constant alone: numba drops
+                    # the other one before typing, so this copy of ``point`` is not compiled)
+                    pass
+                elif need_eval:
                     if not point(t, y, f0, prob):
                         return STATUS_NOT_FINITE, h, i_out
                     need_eval = False

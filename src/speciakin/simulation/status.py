@@ -15,6 +15,7 @@ STATUS_SINGULAR = 4
 STATUS_VOLUME = 5
 STATUS_TITRANT_SIGN = 6
 STATUS_NO_ADJUSTING_ION = 7
+STATUS_NOT_COMPILED = 8
 
 #: Human-readable meaning of each status code.
 STATUS_TEXT = {
@@ -28,4 +29,6 @@ STATUS_TEXT = {
                          "reagent is needed: give an opposite titrant, or adjust the start solution)",
     STATUS_NO_ADJUSTING_ION: "the start solution needs acid or base to reach the pH, and no ion of that "
                              "sign is named for the start adjustment",
+    STATUS_NOT_COMPILED: "a free-pH run was given to the kernel variant compiled without the free-pH path "
+                         "(an error of the caller: simulation.api chooses the variant from the runs)",
 }
