@@ -43,7 +43,7 @@ from speciakin.simulation.speciation_kernel import (
     all_populations,
     mean_charges,
     site_pka_at,
-    solve_charge_balance,
+    solve_charge_balance_from,
 )
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.profile_kernel import interpolate, logged_ph
@@ -210,9 +210,12 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         set_temperature(interpolate(temp_t, temp_v, temp_n, t), model, par, ws)
         for j in range(n_species):
             conc[j] = y[j] / volume
-        ph, _ = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
-                                  mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
-                                  micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar, variance)
+        # the populations of the last solve are carried from its pH (cache[C_PH]; NaN when the
+        # temperature moved since, set_temperature)
+        ph, _ = solve_charge_balance_from(conc, species_charge, n_mol, n_species, pka, mol_site_start,
+                                          mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
+                                          micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar,
+                                          variance, cache[C_PH])
         if math.isnan(ph):
             for i in range(dy.shape[0]):
                 dy[i] = math.nan
