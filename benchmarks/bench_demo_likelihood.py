@@ -122,8 +122,9 @@ def coefficient_evaluations(objective, theta, r):
         segment_kernel.time_speciation = counted
         segment_kernel.smooth_steps = no_steps
         integrator_kernel.integrate_smooth = segment_kernel.integrate_smooth.py_func
+        ws, sw = integrator_kernel.run_workspaces(compiled.arrays)
         integrator_kernel.run_one.py_func(compiled.arrays, q[0], objective.compiled_runs.arrays, r, off[0, r],
-                                          fac[0, r], objective.rtol, objective.atol, out, np.zeros(N_INFO))
+                                          fac[0, r], objective.rtol, objective.atol, out, np.zeros(N_INFO), ws, sw)
     finally:
         segment_kernel.time_speciation = speciation
         segment_kernel.smooth_steps = steps

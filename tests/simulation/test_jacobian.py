@@ -36,7 +36,7 @@ def test_analytic_jacobian_matches_finite_differences(control, ph_slope, slope):
     par = (qv[a[5]], enthalpy, qv[a[9]], qv[a[13]], qv[a[14]], 0.0)
     r = cr.arrays
     ctx = (r[0][0], r[1][0], 0.0, max(r[2][0], 0), r[3][0], r[4][0], r[5][0], max(r[6][0], 1), r[7][0], r[8][0],
-           r[9][0], r[28][0], r[29][0], r[30][0])
+           r[9][0], r[28][0], r[29][0], r[30][0], r.log_c[0], r.log_smooth[0])
     nsp = compiled.n_species
     ws = make_workspace(nsp, len(a[5]), len(a[11]), compiled.n_molecules, len(a[13]))
     ws[7][5] = ph_slope

@@ -138,3 +138,30 @@ def test_one_sided_titrant_that_must_be_withdrawn_is_a_located_error():
     run = _run("one-sided", {"S": 1 * MMOL, "Cl-": 1 * MMOL, "E": 0.4 * MMOL}, ph, end=100 * MIN)
     with pytest.raises(InputError, match=r"key 'run\.one-sided\.ph'.*cannot be reached or held at t = "):
         simulate(_model(), run)
+
+
+def test_smoothed_log_followed_with_base_then_acid():
+    # the same rise and fall read every 2 min with noise (sd 0.02, invented): the log is
+    # smoothed (runs_layout.smooth_ph_log), and the titrants follow the spline's own slope.
+    # The reference takes the pH from scipy's smoothing spline of the same readings (FITPACK,
+    # UnivariateSpline, s = n sigma^2 with sigma the scatter of test_smoothed_ph_log) and
+    # keeps the charge balance at that pH by itself (no slope needed there)
+    from scipy.interpolate import UnivariateSpline
+    from test_smoothed_ph_log import _gsj_scatter
+
+    log_t = np.arange(0.0, 100 * MIN + 1.0, 2 * MIN)
+    smooth = np.interp(log_t, (0.0, 40 * MIN, 100 * MIN), (6.0, 7.5, 5.5))
+    smooth = np.convolve(np.pad(smooth, 5, mode="edge"), np.ones(11) / 11, mode="valid")  # no corners
+    log_ph = smooth + np.random.default_rng(2).normal(0.0, 0.02, log_t.size)
+    spline = UnivariateSpline(log_t, log_ph, k=3, s=log_t.size * _gsj_scatter(log_t, log_ph) ** 2)
+    ph = PhControl("logged", log_times=tuple(log_t), log_ph=tuple(log_ph), titrant="Na+", titrant_concentration=0.5,
+                   opposite_titrant="Cl-", opposite_titrant_concentration=0.5)
+    initial = {"S": 1 * MMOL, "Cl-": 1 * MMOL, "E": 0.4 * MMOL}
+    run = _run("smoothed", initial, ph, end=100 * MIN)
+    sc = Scenario(_species(), initial, 50 * ML, lambda t: float(spline(t)), [], 100 * MIN, K_COUPLING, K_WATER,
+                  base_conc=0.5, acid_conc=0.5)
+    grid = np.linspace(0, 100 * MIN, 26)
+    res, ref, _ = _compare(run, sc, grid)
+    np.testing.assert_allclose(res.ph, spline(grid), rtol=0, atol=1e-12)
+    # both titrants were used (base 0.83 mmol, acid 0.09 mmol)
+    assert res.titrant[-1] > 0.5 * MMOL and res.opposite_titrant[-1] > 0.05 * MMOL

@@ -31,7 +31,8 @@ import math
 from numba.extending import register_jitable
 
 __all__ = ["LN10", "PH_LOW", "PH_HIGH", "NEWTON_ACCEPT", "NEWTON_LINEAR", "exp10", "molecule_populations",
-           "log_sum_populations", "all_populations", "mean_charges", "shift_populations", "solve_charge_balance"]
+           "log_sum_populations", "all_populations", "mean_charges", "reweight_populations", "solve_charge_balance",
+           "solve_charge_balance_from", "REWEIGHT_MAX"]
 
 LN10 = math.log(10.0)
 #: Bracket of the charge-balance solve [pH]: a root outside it counts as none.
@@ -39,12 +40,15 @@ PH_LOW = -3.0
 PH_HIGH = 17.0
 #: Newton step [pH units] below which the charge balance counts as solved
 NEWTON_ACCEPT = 1e-13
-#: Newton step [pH units] below which the step is taken and the populations are
-#: carried to the new pH to first order, dp_s/dpH = ln10 p_s (<N> - N_s), instead
-#: of being evaluated again: Newton converges quadratically, so the new pH is within
-#: about |step|^2 of the root, and the populations' second-order error is about
-#: (ln10 |step|)^2 / 2 < 3e-14 relative (no larger than the error NEWTON_ACCEPT leaves).
+#: Newton step [pH units] below which the step is the last one: Newton converges
+#: quadratically, so the new pH is within about |step|^2 of the root; the populations
+#: are carried there (:func:`reweight_populations`) and the charge balance is not
+#: evaluated again.
 NEWTON_LINEAR = 1e-7
+#: Largest pH move [pH units] over which populations are carried by
+#: :func:`reweight_populations` instead of being evaluated again (a factor of at most
+#: 10^(REWEIGHT_MAX N) on a microstate with N protons: far from overflow).
+REWEIGHT_MAX = 1.0
 
 
 @register_jitable(inline="always", _nrt=False)
@@ -160,22 +164,46 @@ def mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar
 
 
 @register_jitable(_nrt=False)
-def shift_populations(pops, micro_protons, mol_micro_start, n_mol, ln_shift):
-    """Carry ``pops`` to a pH higher by ``ln_shift`` / ln10 to first order:
-    p_s <- p_s (1 + ln_shift (<N> - N_s)), N_s the protons of microstate s (the sum stays 1)."""
+def reweight_populations(pops, micro_protons, mol_micro_start, n_mol, shift):
+    """Carry ``pops`` exactly to a pH higher by ``shift``: a microstate's weight is 10^(-N_s pH)
+    times factors free of the pH [1]_, so p_s <- p_s 10^(-N_s shift) / sum_r p_r 10^(-N_r shift)
+    (one exponential for every molecule instead of one per site and interaction)."""
+    x = exp10(-shift)
     for m in range(n_mol):
-        mean_n = 0.0
+        total = 0.0
         for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
-            mean_n += pops[s] * micro_protons[s]
+            factor = 1.0
+            for _ in range(int(micro_protons[s])):
+                factor *= x
+            pops[s] *= factor
+            total += pops[s]
+        inv_total = 1.0 / total
         for s in range(mol_micro_start[m], mol_micro_start[m + 1]):
-            pops[s] *= 1.0 + ln_shift * (mean_n - micro_protons[s])
+            pops[s] *= inv_total
 
 
 @register_jitable(_nrt=False)
 def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start, mol_micro_start,
                          inter_a, inter_b, inter_w, mol_inter_start, micro_charge, micro_protons,
                          pkw_value, ph_guess, pops, zbar, proton_variance):
+    """pH at which the solution is electroneutral (:func:`solve_charge_balance_from`, nothing known
+    of ``pops``)."""
+    return solve_charge_balance_from(conc, species_charge, n_mol, n_species, pka, mol_site_start,
+                                     mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start, micro_charge,
+                                     micro_protons, pkw_value, ph_guess, pops, zbar, proton_variance, math.nan)
+
+
+@register_jitable(_nrt=False)
+def solve_charge_balance_from(conc, species_charge, n_mol, n_species, pka, mol_site_start, mol_micro_start,
+                              inter_a, inter_b, inter_w, mol_inter_start, micro_charge, micro_protons,
+                              pkw_value, ph_guess, pops, zbar, proton_variance, pops_ph):
     """pH at which the solution is electroneutral (safeguarded Newton in pH).
+
+    ``pops_ph``: the pH at which ``pops`` already hold the populations for
+    these ``pka`` (NaN: none).  Populations within :data:`REWEIGHT_MAX` of
+    a pH where they are known (that one, then each Newton iterate) are
+    carried there exactly (:func:`reweight_populations`); others are
+    evaluated in full.
 
     g(pH) = sum_m c_m zbar_m(pH) + sum_ions z c + [H+] - Kw/[H+] is strictly
     decreasing in pH; Newton steps are kept inside a bisection bracket.
@@ -196,9 +224,14 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
     ph = ph_guess
     if not (ph > lo and ph < hi):
         ph = 7.0
+    known = pops_ph
     for it in range(200):
-        all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
-                        mol_inter_start, n_mol, ph, pops)
+        if abs(ph - known) <= REWEIGHT_MAX:
+            reweight_populations(pops, micro_protons, mol_micro_start, n_mol, ph - known)
+        else:
+            all_populations(pka, mol_site_start, mol_micro_start, inter_a, inter_b, inter_w,
+                            mol_inter_start, n_mol, ph, pops)
+        known = ph
         mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
         h = exp10(-ph)
         g = ion_charge + h - kw / h
@@ -219,9 +252,9 @@ def solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_s
                 return math.nan, it + 1
             return ph, it + 1
         if abs(step) < NEWTON_LINEAR and lo < ph + step < hi:
-            # the last step: populations carried to the root to first order (see NEWTON_LINEAR)
+            # the last step: populations carried to the root (see NEWTON_LINEAR)
             ph += step
-            shift_populations(pops, micro_protons, mol_micro_start, n_mol, LN10 * step)
+            reweight_populations(pops, micro_protons, mol_micro_start, n_mol, step)
             mean_charges(pops, micro_charge, micro_protons, mol_micro_start, n_mol, zbar, proton_variance)
             if ph <= -2.999 or ph >= 16.999:
                 return math.nan, it + 1

@@ -30,7 +30,7 @@ import sys
 from pathlib import Path
 
 #: Kernel modules of this folder (every module with compiled code and the constants it reads).
-KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation_kernel", "rhs_kernel",
+KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation_kernel", "profile_kernel", "rhs_kernel",
                   "rodas_tableau", "lu_kernel", "smooth_rhs_kernel", "rosenbrock_kernel", "segment_kernel",
                   "integrator_kernel", "batch_kernel")
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).

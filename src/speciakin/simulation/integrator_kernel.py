@@ -49,12 +49,13 @@ from speciakin.simulation.rhs_kernel import (
     rhs,
 )
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_NOT_FINITE, STATUS_OK, STATUS_TITRANT_SIGN, STATUS_VOLUME
+from speciakin.simulation.profile_kernel import logged_ph
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace, reset_smooth_workspace
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
-                                         CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
+                                         CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_SMOOTH, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
                                          CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT_CONC,
                                          C_LAST_PH, C_PH_SLOPE, C_PKW, C_STEP_PH,
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
@@ -215,7 +216,7 @@ def run_context(model, q, runs, r, ph_offset):
            pkw_shift)
     ctx = (runs.mode[r], runs.setpoint[r], ph_offset, max(runs.titrant[r], 0), runs.titrant_conc[r],
            runs.log_t[r], runs.log_v[r], max(runs.log_n[r], 1), runs.temp_t[r], runs.temp_v[r], runs.temp_n[r],
-           runs.second[r], runs.second_conc[r], runs.controlled[r])
+           runs.second[r], runs.second_conc[r], runs.controlled[r], runs.log_c[r], runs.log_smooth[r])
     return par, ctx
 
 
@@ -350,10 +351,14 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
             log_t = ctx[CTX_LOG_T]
             log_v = ctx[CTX_LOG_V]
             log_n = ctx[CTX_LOG_N]
-            ph_rise = interpolate(log_t, log_v, log_n, t_end) - interpolate(log_t, log_v, log_n, t)
-            if ph_rise != 0.0:
+            log_c = ctx[CTX_LOG_C]
+            smoothed = ctx[CTX_LOG_SMOOTH]
+            ph_rise = (logged_ph(log_t, log_v, log_c, log_n, smoothed, t_end)[0]
+                       - logged_ph(log_t, log_v, log_c, log_n, smoothed, t)[0])
+            if ph_rise != 0.0 or smoothed:
                 nonauto = True
-            # the logged pH is linear inside the segment: its slope drives the titrant of a controlled run
+            # a straight piece of the log: its slope drives the titrant of a controlled run (a smoothed
+            # log's slope at each time is set where the pH is read, rhs_kernel.time_speciation)
             cache[C_PH_SLOPE] = ph_rise / (t_end - t)
         t_next = t_end
         if mode != MODE_FREE:

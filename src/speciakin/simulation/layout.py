@@ -35,12 +35,15 @@ KernelModel = namedtuple("KernelModel", (
 #: withdraw, species, amount, volume, count), break points (times, count),
 #: output times (times, count), absolute error scale of the state, opposite
 #: titrant (ion, concentration), controlled flag, start adjustment code
-#: (``runs_layout.START_CODES``), start acid and base ions.
+#: (``runs_layout.START_CODES``), start acid and base ions, the smoothed pH
+#: log (cubic coefficients per interval of ``log_t``, ``profile_kernel``) and
+#: its flag (1: ``log_t``/``log_v``/``log_c`` hold the smoothing spline's
+#: breakpoints, values and cubics; 0: the readings, joined by straight lines).
 KernelRuns = namedtuple("KernelRuns", (
     "mode", "setpoint", "titrant", "titrant_conc", "log_t", "log_v", "log_n", "temp_t", "temp_v", "temp_n", "y0",
     "feed_t0", "feed_t1", "feed_species", "feed_amount", "feed_volume", "n_feed", "ev_t", "ev_kind", "ev_species",
     "ev_amount", "ev_volume", "n_ev", "bp", "n_bp", "out_t", "n_out", "scale", "second", "second_conc",
-    "controlled", "start", "acid", "base"))
+    "controlled", "start", "acid", "base", "log_c", "log_smooth"))
 
 # ---- run context ``ctx`` (built by ``integrator_kernel.run_one`` for one run)
 CTX_MODE = 0          #: pH mode code (rhs_kernel.MODE_*)
@@ -57,6 +60,8 @@ CTX_TEMP_N = 10       #: number of temperature knots
 CTX_SECOND = 11       #: opposite titrant ion index (-1 when none)
 CTX_SECOND_CONC = 12  #: opposite titrant concentration [mol/L]
 CTX_CONTROLLED = 13   #: 1 when a titrant keeps the charge balance
+CTX_LOG_C = 14        #: cubic of each pH log interval (smoothed log), ``profile_kernel.spline_value``
+CTX_LOG_SMOOTH = 15   #: 1 when the pH log is smoothed (a spline), 0 when its readings are joined by lines
 
 # ---- parameter tuple ``par`` (values gathered from q for one run)
 PAR_PKA = 0           #: pKa of every site at the reference temperature
@@ -86,7 +91,7 @@ C_PKW = 1             #: pKw at that temperature
 C_PH = 2              #: pH of the cached populations
 C_LAST_PH = 3         #: last pH (warm start of the charge balance)
 C_DOH_DT = 4          #: d[OH-]/dT at the held pH [mol/L/K]
-C_PH_SLOPE = 5        #: d pH/dt of the current segment (logged pH) [1/s]
+C_PH_SLOPE = 5        #: d pH/dt of the current segment (logged pH; a smoothed log's at the last time) [1/s]
 C_OPPOSITE = 6        #: 1 when the opposite titrant is dosed at the last rhs call
 C_STEP_PH = 7         #: pH at the current step point (free pH: start of the stages' charge-balance solves)
 N_CACHE = 8

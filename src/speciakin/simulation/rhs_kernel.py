@@ -43,11 +43,13 @@ from speciakin.simulation.speciation_kernel import (
     all_populations,
     mean_charges,
     site_pka_at,
-    solve_charge_balance,
+    solve_charge_balance_from,
 )
 from speciakin.simulation.water_kernel import pkw
+from speciakin.simulation.profile_kernel import interpolate, logged_ph
 from speciakin.simulation.jit_options import leaf_kernel
-from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
+from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_N, CTX_LOG_SMOOTH, CTX_LOG_T, CTX_LOG_V,
+                                         CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
                                          C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_STEP_PH, C_TEMPERATURE, N_CACHE, PAR_ENTHALPY,
                                          PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DPH_DY, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
@@ -56,25 +58,6 @@ from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, C
 MODE_HELD = 0
 MODE_LOGGED = 1
 MODE_FREE = 2
-
-
-@leaf_kernel
-def interpolate(times, values, n, t):
-    """Piecewise-linear interpolation held constant outside the knots."""
-    if n == 1 or t <= times[0]:
-        return values[0]
-    if t >= times[n - 1]:
-        return values[n - 1]
-    lo = 0
-    hi = n - 1
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if times[mid] <= t:
-            lo = mid
-        else:
-            hi = mid
-    w = (t - times[lo]) / (times[hi] - times[lo])
-    return values[lo] + w * (values[hi] - values[lo])
 
 
 @njit(cache=True)
@@ -178,7 +161,12 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
     if ctx[CTX_MODE] == MODE_HELD:
         ph = ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET]
     else:
-        ph = interpolate(ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N], t) + ctx[CTX_PH_OFFSET]
+        ph, slope = logged_ph(ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_C], ctx[CTX_LOG_N], ctx[CTX_LOG_SMOOTH], t)
+        ph += ctx[CTX_PH_OFFSET]
+        if ctx[CTX_LOG_SMOOTH]:
+            # a smoothed log's slope changes inside a segment: the one at t (a straight
+            # piece's is the segment's, set by the run driver)
+            cache[C_PH_SLOPE] = slope
     if ph != cache[C_PH]:
         all_populations(ws[WS_PKA], model.mol_site_start, model.mol_micro_start, model.inter_a, model.inter_b,
                         par[PAR_W], model.mol_inter_start, n_mol, ph, pops)
@@ -210,7 +198,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
      prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
-     second, second_conc, controlled) = ctx
+     second, second_conc, controlled, log_c, log_smooth) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n_steps = log10_k.shape[0]
     volume = y[n_species]
@@ -222,9 +210,12 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         set_temperature(interpolate(temp_t, temp_v, temp_n, t), model, par, ws)
         for j in range(n_species):
             conc[j] = y[j] / volume
-        ph, _ = solve_charge_balance(conc, species_charge, n_mol, n_species, pka, mol_site_start,
-                                  mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
-                                  micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar, variance)
+        # the populations of the last solve are carried from its pH (cache[C_PH]; NaN when the
+        # temperature moved since, set_temperature)
+        ph, _ = solve_charge_balance_from(conc, species_charge, n_mol, n_species, pka, mol_site_start,
+                                          mol_micro_start, inter_a, inter_b, inter_w, mol_inter_start,
+                                          micro_charge, micro_protons, cache[C_PKW], cache[C_LAST_PH], pops, zbar,
+                                          variance, cache[C_PH])
         if math.isnan(ph):
             for i in range(dy.shape[0]):
                 dy[i] = math.nan
@@ -333,7 +324,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
-     second, second_conc, controlled) = ctx
+     second, second_conc, controlled, log_c, log_smooth) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]

@@ -112,6 +112,66 @@ def kinks(times: Sequence[float], values: Sequence[float]) -> list[float]:
     return [t[i] for i in range(n) if slopes[i] != slopes[i + 1]]
 
 
+#: Fewest readings of a pH log that is smoothed (a shorter log is joined by straight lines).
+SMOOTH_LOG_MIN_READINGS = 20
+
+
+def log_scatter(times: np.ndarray, values: np.ndarray) -> float:
+    """Scatter of a log's readings about a smooth curve [units of the readings].
+
+    The pseudo-residuals of Gasser, Sroka and Jennen-Steinmetz (Biometrika
+    1986, 73, 625-633) remove a straight line through each reading's two
+    neighbours, e_i = a_i v_(i-1) + b_i v_(i+1) - v_i with a_i = (t_(i+1) -
+    t_i) / (t_(i+1) - t_(i-1)), b_i = 1 - a_i, so that for a curve smooth on
+    the scale of the spacing var(e_i) = sigma^2 (a_i^2 + b_i^2 + 1).  Their
+    median size (x 1.4826, the normal consistency factor of the median
+    absolute deviation) is robust to a few real jumps of the pH.
+    """
+    t = np.asarray(times, float)
+    v = np.asarray(values, float)
+    if t.size < 3:
+        return 0.0
+    a = (t[2:] - t[1:-1]) / (t[2:] - t[:-2])
+    b = 1.0 - a
+    e = (a * v[:-2] + b * v[2:] - v[1:-1]) / np.sqrt(a * a + b * b + 1.0)
+    return float(1.4826 * np.median(np.abs(e)))
+
+
+def smooth_ph_log(times, values):
+    """The smoothed pH log of a logged run: (breakpoints [s], values, cubic coefficients), or
+    None when the readings stay joined by straight lines.
+
+    A log of at least :data:`SMOOTH_LOG_MIN_READINGS` readings with a scatter
+    (:func:`log_scatter`) above zero is replaced by the cubic smoothing spline
+    whose sum of squared deviations from the readings is n sigma^2 (FITPACK's
+    ``curfit``, Dierckx, "Curve and Surface Fitting with Splines", Oxford 1993,
+    ch. 5, through ``scipy.interpolate.UnivariateSpline``; the number of its
+    knots is the fewest that meet that sum): every reading enters it, and the
+    curve stays within the readings' own scatter of them on average.  The
+    spline is twice continuously differentiable, so a segment of the run runs
+    through its knots.  Coefficient ``[j, p]`` multiplies (t - breakpoint j)^p.
+    """
+    from scipy.interpolate import PPoly, UnivariateSpline
+
+    t = np.asarray(times, float)
+    v = np.asarray(values, float)
+    if t.size < SMOOTH_LOG_MIN_READINGS:
+        return None
+    sigma = log_scatter(t, v)
+    if not sigma > 0.0:
+        return None
+    spline = UnivariateSpline(t, v, k=3, s=t.size * sigma ** 2)
+    knots = spline.get_knots()
+    full = np.concatenate(([knots[0]] * 3, knots, [knots[-1]] * 3))
+    pieces = PPoly.from_spline((full, spline.get_coeffs(), 3))
+    keep = np.flatnonzero(np.diff(pieces.x) > 0.0)
+    breaks = np.append(pieces.x[keep], t[-1])
+    coef = np.zeros((breaks.size, 4))
+    coef[:-1] = pieces.c[::-1, keep].T
+    coef[-1, 0] = float(spline(t[-1]))
+    return breaks, spline(breaks), coef
+
+
 def _run_problems(compiled: CompiledModel, run: Run, times: np.ndarray, c: ProblemCollector) -> None:
     src = compiled.model.source or None
     key = f"run.{run.name}"
@@ -226,13 +286,14 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
         ev = [(d.start, 0, sidx[d.species], d.amount, d.volume) for d in r.doses if d.end == d.start]
         ev += [(w.time, 1, 0, 0.0, w.volume) for w in r.withdrawals]
         events.append(sorted(ev, key=lambda e: e[0]))
+    smoothed = [smooth_ph_log(r.ph.log_times, r.ph.log_ph) if r.ph.mode == "logged" else None for r in runs]
     bps = []
     for r, fl, ev in zip(runs, feeds, events):
         pts = {float(r.end_time)}
         pts.update(float(x) for d in fl for x in (d.start, d.end))
         pts.update(float(e[0]) for e in ev)
         pts.update(kinks(r.temperature.times, r.temperature.temperatures))
-        if r.ph.mode == "logged":
+        if r.ph.mode == "logged" and smoothed[len(bps)] is None:
             pts.update(kinks(r.ph.log_times, r.ph.log_ph))
         bps.append(np.array(sorted(p for p in pts if 0 < p <= r.end_time)))
     max_feed = max([len(f) for f in feeds] + [1])
@@ -247,6 +308,8 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
     log_t = np.zeros((n_runs, max_log))
     log_v = np.zeros((n_runs, max_log))
     log_n = np.zeros(n_runs, np.int64)
+    log_c = np.zeros((n_runs, max_log, 4))
+    log_smooth = np.zeros(n_runs, np.int64)
     temp_t = np.zeros((n_runs, max_temp))
     temp_v = np.zeros((n_runs, max_temp))
     temp_n = np.zeros(n_runs, np.int64)
@@ -288,7 +351,14 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
             start[i] = START_CODES[r.ph.start_adjustment]
             acid[i] = _adjusting_ion(compiled, r.ph, -1.0)
             base[i] = _adjusting_ion(compiled, r.ph, 1.0)
-        if r.ph.mode == "logged":
+        if smoothed[i] is not None:
+            log_smooth[i] = 1
+            breaks, values, coef = smoothed[i]
+            log_n[i] = breaks.size
+            log_t[i, :log_n[i]] = breaks
+            log_v[i, :log_n[i]] = values
+            log_c[i, :log_n[i]] = coef
+        elif r.ph.mode == "logged":
             log_n[i] = len(r.ph.log_times)
             log_t[i, :log_n[i]] = r.ph.log_times
             log_v[i, :log_n[i]] = r.ph.log_ph
@@ -319,6 +389,6 @@ def compile_runs(compiled: CompiledModel, runs: Sequence[Run],
     arrays = KernelRuns(mode, setpoint, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n, y0,
               feed_t0, feed_t1, feed_species, feed_amount, feed_volume, n_feed, ev_t, ev_kind, ev_species,
               ev_amount, ev_volume, n_ev, bp, n_bp, out_t, n_out, scale, second, second_conc, controlled, start,
-              acid, base)
+              acid, base, log_c, log_smooth)
     return CompiledRuns(runs, names, times, max_out, np.array([float(r.ph_offset) for r in runs]),
                         np.array([float(r.amount_factor) for r in runs]), arrays)

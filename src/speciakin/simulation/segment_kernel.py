@@ -65,8 +65,9 @@ from numba import njit
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SECOND, CTX_SECOND_CONC, CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T,
-                                         CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, C_PH_SLOPE, WS_CACHE)
-from speciakin.simulation.rhs_kernel import MODE_HELD, interpolate, time_speciation
+                                         CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, CTX_LOG_C, CTX_LOG_SMOOTH)
+from speciakin.simulation.profile_kernel import interpolate, logged_ph
+from speciakin.simulation.rhs_kernel import MODE_HELD, time_speciation
 from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
                                                     smooth_time_derivative, stoichiometry)
 from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
@@ -93,7 +94,7 @@ def smooth_point(t, y, f, prob):
     the coefficients and their time derivatives at t, then the mass-action right-hand side."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, log_c, log_smooth) = prob
     if varying:
         evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
         for c in range(poly.shape[0]):
@@ -107,7 +108,7 @@ def smooth_stage(t, ytmp, y, f, prob):
     """f = dy/dt at a stage point (the coefficients' time derivatives are not needed there)."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, log_c, log_smooth) = prob
     if varying:
         evaluate_cubic(poly, in_logs, (t - mid) * inv_half, cst, dc)
     return smooth_rhs(ytmp, f, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
@@ -120,7 +121,7 @@ def smooth_jacobian_at(t, y, f0, ft, jac_t, span, prob):
     (``cst``, ``dc``, ``product`` and ``v`` are those of (t, y): the last evaluation was there)."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, log_c, log_smooth) = prob
     smooth_jacobian(y, cst, nu, reactants, n_react, n_species, n_mol, held, titrant, titrant_conc, second,
                     second_conc, v, active_of, jac_t)
     if varying:
@@ -134,8 +135,8 @@ def smooth_output(t, y, f, out, i_out, prob):
     """Output row at an interpolated state: the held pH, or the logged pH at t."""
     (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held, titrant,
      titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of, ph_is_held, held_ph,
-     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n) = prob
-    ph = held_ph if ph_is_held else interpolate(log_t, log_v, log_n, t) + ph_offset
+     ph_offset, log_t, log_v, log_n, temp_t, temp_v, temp_n, log_c, log_smooth) = prob
+    ph = held_ph if ph_is_held else logged_ph(log_t, log_v, log_c, log_n, log_smooth, t)[0] + ph_offset
     write_output(out, i_out, y, ph, interpolate(temp_t, temp_v, temp_n, t))
     return True
 
@@ -236,7 +237,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     for c in range(n_coef):
         dc[c] = 0.0
     # states whose Jacobian column can be non-zero: concentration reactants, the
-    # volume and, under a held-pH temperature ramp, every molecule (gamma)
+    # volume and, for a controlled run whose temperature or logged pH changes, every molecule (gamma)
     for i in range(n):
         is_active[i] = False
         active_of[i] = -1
@@ -244,7 +245,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     for s in range(n_steps):
         for m in range(n_react[s]):
             is_active[reactants[s, m]] = True
-    if held and (temperature_slope != 0.0 or ws[WS_CACHE][C_PH_SLOPE] != 0.0):
+    if held and (temperature_slope != 0.0 or (varying and not ph_is_held)):
         for m in range(n_mol):
             is_active[m] = True
     n_act = 0
@@ -272,6 +273,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         tb = min(t1, ta + trial)
         if t1 - tb <= 1e-9 * span:
             tb = t1
+        halved = False
+        worst = 0.0
         # ---- coefficients on [ta, tb]
         if varying:
             smooth = False
@@ -300,7 +303,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                         poly[c, a] = 0.0
                         for node in range(4):
                             poly[c, a] += FROM_NODES[a, node] * nodes[node, c]
-                smooth = True
+                # worst: the largest coefficient error at the checks over what is allowed
+                worst = 0.0
                 for check in range(CHECKS.shape[0]):
                     ph = time_speciation(mid + half * CHECKS[check], model, par, ctx, temperature_slope, ws)
                     if math.isnan(ph):
@@ -309,13 +313,14 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                                          feed_rate, feed_volume_rate, temperature_slope, exact)
                     evaluate_cubic(poly, in_logs, CHECKS[check], cst, dc)
                     for c in range(n_coef):
-                        if abs(cst[c] - exact[c]) > COEFFICIENT_RTOL * (abs(exact[c]) if in_logs[c] else scale[c]):
-                            smooth = False
-                            break
-                    if not smooth:
-                        break
+                        error = abs(cst[c] - exact[c])
+                        if error > 0.0:
+                            worst = max(worst, error / (COEFFICIENT_RTOL * (abs(exact[c]) if in_logs[c]
+                                                                             else scale[c])))
+                smooth = worst <= 1.0
                 if smooth:
                     break
+                halved = True
                 tb = ta + 0.5 * (tb - ta)
             if not smooth:
                 return STATUS_STEP_UNDERFLOW, h, i_out
@@ -338,12 +343,19 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         prob = (poly, in_logs, mid, inv_half, varying, cst, dc, nu, reactants, n_react, n_species, n_mol, held,
                 titrant, titrant_conc, second, second_conc, feed_rate, feed_volume_rate, product, v, active_of,
                 ph_is_held, held_ph, ctx[CTX_PH_OFFSET], ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_N],
-                ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
+                ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], ctx[CTX_LOG_C], ctx[CTX_LOG_SMOOTH])
         status, h, i_out = smooth_steps(prob, varying, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out,
                                         n_out, counters, sign_tol, peak)
         if status != STATUS_OK:
             return status, h, i_out
         sub_span = tb - ta
-        trial = 2.0 * sub_span
+        # the next sub-segment: this one's length after a halving, else as long as the error of this
+        # one's cubics allows (it grows as the fourth power of the length), at most twice as long
+        if halved:
+            trial = sub_span
+        elif worst > 0.0:
+            trial = sub_span * min(2.0, 0.9 * worst ** -0.25)
+        else:
+            trial = 2.0 * sub_span
         ta = tb
     return STATUS_OK, h, i_out

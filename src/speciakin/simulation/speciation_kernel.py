@@ -19,13 +19,14 @@ from __future__ import annotations
 
 from speciakin.chemistry.microstate_formulas import (LN10, NEWTON_ACCEPT, NEWTON_LINEAR, all_populations, exp10,
                                                      log_sum_populations, mean_charges, molecule_populations,
-                                                     shift_populations, solve_charge_balance)
+                                                     solve_charge_balance,
+                                                     solve_charge_balance_from)
 from speciakin.chemistry.water import GAS_CONSTANT, vant_hoff
 from speciakin.simulation.jit_options import leaf_kernel
 
 __all__ = ["LN10", "NEWTON_ACCEPT", "NEWTON_LINEAR", "GAS_CONSTANT", "exp10", "site_pka_at", "molecule_populations",
-           "log_sum_populations", "all_populations", "mean_charges", "shift_populations", "solve_charge_balance",
-           "mean_charge_temperature_slopes"]
+           "log_sum_populations", "all_populations", "mean_charges", "solve_charge_balance",
+           "solve_charge_balance_from", "mean_charge_temperature_slopes"]
 
 
 @leaf_kernel
