@@ -64,12 +64,26 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _StderrHandler(logging.StreamHandler):
+    """A handler writing to the ``sys.stderr`` of the moment, not of its creation
+    (a notebook, a test or an embedding program may replace ``sys.stderr``; a
+    closed earlier stream must not turn a note into a logging error)."""
+
+    @property
+    def stream(self):
+        return sys.stderr
+
+    @stream.setter
+    def stream(self, value):  # StreamHandler.__init__ sets it; the live sys.stderr wins
+        pass
+
+
 def show_notes() -> None:
     """Show the library's notes (logger ``speciakin``, level INFO; e.g. that the
     kernel compiles) on stderr as ``speciakin: ...``."""
     notes = logging.getLogger("speciakin")
     if not notes.handlers:
-        handler = logging.StreamHandler(sys.stderr)
+        handler = _StderrHandler()
         handler.setFormatter(logging.Formatter("speciakin: %(message)s"))
         notes.addHandler(handler)
         notes.setLevel(logging.INFO)
