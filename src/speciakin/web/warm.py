@@ -69,3 +69,17 @@ def first_page(app) -> None:
             layout()
         except (SpeciakinError, OSError, ValueError) as exc:  # only a head start: never fatal
             log.debug("first page not made ahead: %s", exc)
+    _first_view(app)
+
+
+def _first_view(app) -> None:
+    """Ask for the page's HTML once (its first view's copy is made, web.first_view) and for that view's image
+    at one width (the code that draws it is loaded; another width is drawn when asked for)."""
+    import html
+    import re
+
+    client = app.server.test_client()
+    page = client.get(app.config.requests_pathname_prefix)  # a server with a token answers 403: no head start
+    found = re.search(r'data-src="([^"]+)"', page.get_data(as_text=True)) if page.status_code == 200 else None
+    if found:
+        client.get(html.unescape(found.group(1)) + "&w=1000")
