@@ -74,7 +74,9 @@ _SCRIPT = """(function () {
     var tab = sessionStorage.getItem("_dash_persistence.tabs.value.true");
     if (tab && JSON.parse(tab)[0] !== "%(first)s") { gone(); return; }
   } catch (e) { /* no session storage: the first tab */ }
-  img.src = img.getAttribute("data-src") + "&w=" + Math.round(img.parentNode.getBoundingClientRect().width);
+  var width = Math.round(img.parentNode.getBoundingClientRect().width);
+  if (!width) { gone(); return; }  /* not shown (a narrow window) */
+  img.src = img.getAttribute("data-src") + "&w=" + width;
   var since = Date.now();
   (function wait() {
     var drawn = document.querySelector("#react-entry-point #raw-figure .main-svg .annotation");
@@ -90,6 +92,7 @@ _SCRIPT = """(function () {
 #: expected to be), asked for with high priority; the copy's image then takes it from the browser's memory
 #: (a width guessed wrong only costs a second request).
 _EARLY = """(function () {
+  if (innerWidth <= 800) { return; }  /* no copy: the tabs are stacked (the copy's style) */
   var root = document.documentElement, em = parseFloat(getComputedStyle(root).fontSize) || 16;
   var probe = document.createElement("div"), bar;
   probe.style.cssText = "position:absolute;top:-100px;width:50px;height:50px;overflow:scroll";
