@@ -132,7 +132,7 @@ def overlay(state, head: tuple[str, str], tabs: list[str], prefix: str) -> tuple
     ``head`` is the page's heading and the line naming the root; ``tabs`` the tabs' labels (the first one
     shown); ``prefix`` the app's path prefix.
     """
-    names, chosen = page_campaign.initial_choice(state)
+    _, chosen = page_campaign.initial_choice(state)
     if not chosen:
         return "", ""
     try:

@@ -35,12 +35,15 @@ def warm_up() -> None:
     from speciakin.errors import SpeciakinError
     from speciakin.chemistry.modelfile import load_model
     from speciakin.web.figures import compound_colors, correlation_figure, raw_run_figure
+    from speciakin.web.first_svg import figure_svg
 
     demo = demo_dir()
     try:
         check_campaign(demo, model=demo / "model.toml")
         campaign = load_campaign(demo)
-        raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml"))).to_plotly_json()
+        raw = raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml")))
+        raw.to_plotly_json()
+        figure_svg(raw, 1000)  # the first view's still figure (web.first_view): its font code loaded
         figure = correlation_figure(["a", "b"], [[1.0, 0.5], [0.5, 1.0]], "warm-up")
         figure.add_trace(go.Contour(z=[[0.0, 1.0], [1.0, 0.0]]))
         figure.add_vrect(x0=0, x1=1)
@@ -74,7 +77,8 @@ def first_page(app) -> None:
 
 def _first_view(app) -> None:
     """Ask for the page's HTML once (its first view's copy is made, web.first_view) and for that view's image
-    at one width (the code that draws it is loaded; another width is drawn when asked for)."""
+    at one width (another width is drawn when asked for); a server with a token answers 403 here, and its
+    first visitor waits for these (the code they need is loaded by :func:`warm_up` all the same)."""
     import html
     import re
 
