@@ -17,7 +17,8 @@ import dash_ag_grid as dag
 from dash import Dash, dcc, html
 
 from speciakin.errors import InputError, Location
-from speciakin.web import bundles, page_campaign, page_history, page_jobs, page_model, page_results, scripts, warm
+from speciakin.web import (bundles, first_view, page_campaign, page_history, page_jobs, page_model, page_results,
+                           scripts, warm)
 from speciakin.web.paths import MAX_UPLOAD_BYTES
 from speciakin.web.state import WebState
 
@@ -93,10 +94,14 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
     else:
         _loopback_only(app.server)
     bundles.serve_cartesian_plotly(app.server, app.config.requests_pathname_prefix)  # after the guards
+    title = ("speciakin workbench", f"campaign root: {base}")
+    # the first view, drawn by the server, sent with the page's HTML until the app has drawn it (before the
+    # scripts are trimmed: its image is then asked for before the scripts' preloads)
+    first_view.install(app, state, title, [label for _, label, _ in _TABS])
     scripts.trim_scripts(app, app.server)
     app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + _STYLE + "</style>")
     head = [dcc.Store(id="campaign", storage_type="session"), dcc.Store(id="tabs-mounted", data=[_FIRST]),
-            html.H2("speciakin workbench"), html.P(f"campaign root: {base}", className="root"),
+            html.H2(title[0]), html.P(title[1], className="root"),
             dcc.Tabs(id="tabs", value=_FIRST, persistence=True, persistence_type="session",
                      children=[dcc.Tab(label=label, value=key) for key, label, _ in _TABS]),
             # an empty, hidden grid, drawn in the browser's idle time after the first figure: the grid's

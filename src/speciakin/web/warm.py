@@ -35,12 +35,15 @@ def warm_up() -> None:
     from speciakin.errors import SpeciakinError
     from speciakin.chemistry.modelfile import load_model
     from speciakin.web.figures import compound_colors, correlation_figure, raw_run_figure
+    from speciakin.web.first_svg import figure_svg
 
     demo = demo_dir()
     try:
         check_campaign(demo, model=demo / "model.toml")
         campaign = load_campaign(demo)
-        raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml"))).to_plotly_json()
+        raw = raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml")))
+        raw.to_plotly_json()
+        figure_svg(raw, 1000)  # the first view's still figure (web.first_view): its font code loaded
         figure = correlation_figure(["a", "b"], [[1.0, 0.5], [0.5, 1.0]], "warm-up")
         figure.add_trace(go.Contour(z=[[0.0, 1.0], [1.0, 0.0]]))
         figure.add_vrect(x0=0, x1=1)
@@ -69,3 +72,18 @@ def first_page(app) -> None:
             layout()
         except (SpeciakinError, OSError, ValueError) as exc:  # only a head start: never fatal
             log.debug("first page not made ahead: %s", exc)
+    _first_view(app)
+
+
+def _first_view(app) -> None:
+    """Ask for the page's HTML once (its first view's copy is made, web.first_view) and for that view's image
+    at one width (another width is drawn when asked for); a server with a token answers 403 here, and its
+    first visitor waits for these (the code they need is loaded by :func:`warm_up` all the same)."""
+    import html
+    import re
+
+    client = app.server.test_client()
+    page = client.get(app.config.requests_pathname_prefix)  # a server with a token answers 403: no head start
+    found = re.search(r'data-src="([^"]+)"', page.get_data(as_text=True)) if page.status_code == 200 else None
+    if found:
+        client.get(html.unescape(found.group(1)) + "&w=1000")
