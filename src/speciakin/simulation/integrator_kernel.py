@@ -55,7 +55,8 @@ from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
-                                         CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_SMOOTH, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_SECOND,
+                                         CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_SMOOTH, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE,
+                                         CTX_PH_OFFSET, CTX_SECOND, CTX_SETPOINT,
                                          CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT_CONC,
                                          C_LAST_PH, C_PH_SLOPE, C_PKW, C_STEP_PH,
                                          START_COMPUTED, START_GIVEN, WS_CACHE, WS_DPH_DY, WS_PKA, WS_POPS, WS_VAR)
@@ -220,6 +221,16 @@ def run_context(model, q, runs, r, ph_offset):
     return par, ctx
 
 
+@leaf_kernel
+def held_or_logged_ph(t, ctx):
+    """The pH of a held or logged run at time t (offset included), as ``rhs_kernel.time_speciation``
+    reads it."""
+    if ctx[CTX_MODE] == MODE_LOGGED:
+        return logged_ph(ctx[CTX_LOG_T], ctx[CTX_LOG_V], ctx[CTX_LOG_C], ctx[CTX_LOG_N], ctx[CTX_LOG_SMOOTH],
+                         t)[0] + ctx[CTX_PH_OFFSET]
+    return ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET]
+
+
 @njit(cache=True)
 def run_workspaces(model):
     """(ws, sw): the work arrays :func:`run_one` needs, made once for many runs of ``model``."""
@@ -307,7 +318,11 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
     h = 0.0
     while True:
         while i_out < n_out and out_t[i_out] <= t:
-            ph = rhs(t, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
+            if mode == MODE_FREE:
+                ph = rhs(t, y, dy, model, par, ctx, zero_feed, 0.0, 0.0, ws)
+            else:
+                # held or logged pH: the row needs the pH at t only, not the speciation there
+                ph = held_or_logged_ph(t, ctx) if y[n_species] > 0.0 else math.nan
             if math.isnan(ph):
                 info[INFO_FAILED_AT] = t
                 return STATUS_NOT_FINITE
