@@ -150,9 +150,16 @@ def test_the_real_index_knows_the_variants_this_process_compiled_or_loaded():
 
     from speciakin.simulation.batch_kernel import batch_tasks
 
+    from speciakin.simulation.layout import N_INFO
+
     compiled, both, held_only = _two_runs()
-    for cruns in (held_only, both):
-        simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
+    # each variant called by name: which one simulate_batch picks depends on what this process
+    # (earlier tests) and the disk cache hold already (api.kernel_variant)
+    for free_ph in (None, True):
+        out = np.full((1, 1, held_only.n_times_max, compiled.n_outputs), np.nan)
+        status, info = np.zeros((1, 1), np.int64), np.zeros((1, 1, N_INFO))
+        batch_tasks(compiled.arrays, compiled.nominal[None, :], held_only.arrays, held_only.ph_offset[None, :],
+                    held_only.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, free_ph)
     if getattr(batch_tasks, "_cache", None) is None or not batch_tasks._cache._enabled:
         pytest.skip("numba caching is off")
     assert cache_guard.is_cached(batch_tasks, types.none) and cache_guard.is_cached(batch_tasks, types.boolean)
