@@ -10,7 +10,8 @@ log-likelihood of its start values on one core, then of four sets over all
 cores.
 It reports, for each point, the wall time since its launch and its CPU time
 (user + system of that process: the compile's own work, whatever else the
-shared host runs), the load average before and after, and the same process
+shared host runs; and with its finished child processes, the second process
+of a split compile, ``simulation/split_compile.py``), the load average before and after, and the same process
 started again on the filled cache (loading instead of compiling).  With
 ``--by-function`` it also lists the compiled functions whose code numba's
 LLVM back end took longest to link, optimise and emit (each compiled

@@ -13,11 +13,13 @@ held/logged path here meanwhile, waits for the other process, and leaves the
 drivers (``run_one``, ``batch_tasks``) to the first call, which then loads
 the free-pH path from the cache instead of compiling it.
 
-Sound because numba's cache is made for it: an entry is written whole
-(data file first, then the index replaced in one rename), keyed by the
-argument types and the source file's stamp, and a function loaded from the
+Sound because numba's cache is made for it: each file of an entry (the
+index, keyed by the argument types and the source file's stamp, and the
+data) is written to a temporary name and renamed, a reader that finds an
+index entry without its data compiles instead, and a function loaded from the
 cache brings the code (LLVM bitcode) its callers link, exactly as one
-compiled in the process.  The compiled code is the same, so are the
+compiled in the process; the first call starts only after the second process
+has ended.  The compiled code is the same, so are the
 outputs.  The argument types of the two path drivers are worked out here
 from those of ``batch_tasks`` (:func:`path_signatures`), as ``run_one``
 passes them; ``tests/simulation/test_split_compile.py`` checks that a
@@ -103,7 +105,7 @@ def compile_paths_apart(model, q_all, runs, out, info) -> bool:
 
     Returns True when the free-pH path is in the cache afterwards (the first
     call loads it), False when nothing was split (one core, no writable
-    cache, the path cached already) or the second process failed.
+    cache, either path cached already) or the second process failed.
     """
     from numba.core import config
 
@@ -114,7 +116,8 @@ def compile_paths_apart(model, q_all, runs, out, info) -> bool:
     cache = getattr(integrate_segment, "_cache", None)
     cache_path = getattr(cache, "_cache_path", None)
     if (_cores() < 2 or not cache_path or not getattr(cache, "_enabled", False)
-            or not os.access(cache_path, os.W_OK) or is_cached(integrate_segment)):
+            or not os.access(cache_path, os.W_OK) or is_cached(integrate_segment) or is_cached(integrate_smooth)):
+        # nothing to gain: one path is at hand already (the other is compiled here as fast as elsewhere)
         return False
     smooth, segment = path_signatures(model, q_all, runs, out, info)
     env = dict(os.environ)
