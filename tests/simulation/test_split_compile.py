@@ -56,9 +56,11 @@ def test_the_path_signatures_are_those_run_one_compiles_its_paths_with():
     assert status.tolist() == [[0, 0]]
     if getattr(integrate_segment, "_cache", None) is None or not integrate_segment._cache._enabled:
         pytest.skip("numba caching is off")
-    smooth, segment = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info)
+    smooth, segment, shared = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info)
     assert _index_signatures(integrate_smooth) == {smooth}
     assert _index_signatures(integrate_segment) == {segment}
+    for name, function in split_compile._shared_functions().items():
+        assert shared[name] in _index_signatures(function), name  # write_output has a second variant
 
 
 def test_the_second_process_compiles_or_loads_the_free_ph_path(monkeypatch):
@@ -92,14 +94,15 @@ import json, sys
 import numpy as np
 sys.path.insert(0, sys.argv[1])
 from test_split_compile import _batch
-from speciakin.simulation import simulate_batch
+from speciakin.simulation import simulate_batch, split_compile
 from speciakin.simulation.integrator_kernel import integrate_segment
 from speciakin.simulation.segment_kernel import integrate_smooth
 compiled, cruns, out, status, info = _batch()
 result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
 stats = {name: (sum(d.stats.cache_hits.values()), sum(d.stats.cache_misses.values()))
          for name, d in (("segment", integrate_segment), ("smooth", integrate_smooth))}
-print(json.dumps({"outputs": result.outputs.tolist(), "status": result.status.tolist(), "stats": stats}))
+print(json.dumps({"outputs": result.outputs.tolist(), "status": result.status.tolist(), "stats": stats,
+                  "here": split_compile.kernel_compiles(), "there": split_compile.last_split_compiled}))
 """
 
 
@@ -119,6 +122,10 @@ def test_a_cold_compile_loads_the_free_ph_path_the_second_process_compiled(tmp_p
     cold = json.loads(done.stdout.strip().splitlines()[-1])
     assert cold["stats"]["segment"] == [1, 0]
     assert cold["stats"]["smooth"][1] == 1
+    # each function compiled in one process only (one copy in the drivers' code); the free-pH path there
+    assert "speciakin.simulation.integrator_kernel.integrate_segment" in cold["there"]
+    assert "speciakin.simulation.segment_kernel.integrate_smooth" in cold["here"]
+    assert not set(cold["here"]) & set(cold["there"])
     # the reference: the full kernel of this process (called directly: the variant bookkeeping of the
     # public functions stays as the other tests left it)
     compiled, cruns, out, status, info = _batch()

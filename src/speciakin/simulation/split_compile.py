@@ -35,6 +35,7 @@ from its standard input and compiles it.
 
 from __future__ import annotations
 
+import json
 import logging
 import operator
 import os
@@ -97,7 +98,47 @@ def path_signatures(model, q_all, runs, out, info):
               out_t, out_times_t, i64, n_out_t, counters_t, f64, vector)
     segment = (f64, f64, vector, f64, model_t, par_t, ctx_t, vector, f64, f64, types.boolean, f64, f64, ws_t,
                counters_t, out_t, out_times_t, i64, n_out_t)
-    return smooth, segment
+    # functions both paths call (with what they call): time_speciation(t, model, par, ctx, slope, ws),
+    # write_output(out, i_out, y, ph, temperature), initial_step(y, f0, n, atol, rtol, span)
+    shared = {"time_speciation": (f64, model_t, par_t, ctx_t, f64, ws_t),
+              "write_output": (out_t, i64, vector, f64, f64),
+              "initial_step": (vector, vector, i64, f64, f64, f64)}
+    return smooth, segment, shared
+
+
+def _shared_functions():
+    from speciakin.simulation.rhs_kernel import time_speciation
+    from speciakin.simulation.rodas_tableau import initial_step
+    from speciakin.simulation.rosenbrock_kernel import write_output
+
+    return {"time_speciation": time_speciation, "write_output": write_output, "initial_step": initial_step}
+
+
+def kernel_compiles() -> dict:
+    """{module.function: variants compiled in this process (not loaded from the cache)} of every
+    compiled function the kernel modules hold."""
+    import importlib
+
+    from numba.core.dispatcher import Dispatcher
+
+    from speciakin.simulation.cache_guard import KERNEL_MODULES
+
+    counts = {}
+    for name in KERNEL_MODULES:
+        module = f"speciakin.simulation.{name}"
+        for attr, value in vars(importlib.import_module(module)).items():
+            if isinstance(value, Dispatcher):
+                misses = sum(value.stats.cache_misses.values())
+                func = value.py_func
+                # a step loop made by make_step_loop is named by the module variable that holds it
+                label = f"{module}.{attr}" if "<locals>" in func.__qualname__ else f"{func.__module__}.{func.__qualname__}"
+                if misses:
+                    counts[label] = misses
+    return counts
+
+
+#: What the second process of the last split compiled (``kernel_compiles`` there), for the tests.
+last_split_compiled: dict = {}
 
 
 def compile_paths_apart(model, q_all, runs, out, info) -> bool:
@@ -119,7 +160,11 @@ def compile_paths_apart(model, q_all, runs, out, info) -> bool:
             or not os.access(cache_path, os.W_OK) or is_cached(integrate_segment) or is_cached(integrate_smooth)):
         # nothing to gain: one path is at hand already (the other is compiled here as fast as elsewhere)
         return False
-    smooth, segment = path_signatures(model, q_all, runs, out, info)
+    smooth, segment, shared = path_signatures(model, q_all, runs, out, info)
+    # compiled here first and loaded there: one copy of each in the drivers' code (a function compiled
+    # in each process would be two functions of other names, both linked into run_one)
+    for name, function in _shared_functions().items():
+        function.compile(shared[name])
     env = dict(os.environ)
     if config.CACHE_DIR:
         env["NUMBA_CACHE_DIR"] = config.CACHE_DIR  # the same cache folder, however this process chose it
@@ -129,9 +174,10 @@ def compile_paths_apart(model, q_all, runs, out, info) -> bool:
     try:
         message = pickle.dumps(segment)
         other = subprocess.Popen([sys.executable, "-m", "speciakin.simulation.split_compile"], stdin=subprocess.PIPE,
-                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
+                                 stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env)
         other.stdin.write(message)
         other.stdin.close()
+        other.stdin = None  # written whole: communicate() below only reads
     except (OSError, pickle.PicklingError) as exc:
         LOG.debug("compiling on one core: the second process did not start (%s)", exc)
         if other is not None:
@@ -142,11 +188,17 @@ def compile_paths_apart(model, q_all, runs, out, info) -> bool:
     integrate_smooth.compile(smooth)
     compiled_here = time.perf_counter()
     try:
-        code = other.wait(timeout=WAIT_SECONDS)
+        report = other.communicate(timeout=WAIT_SECONDS)[0]
+        code = other.returncode
     except subprocess.TimeoutExpired:
         other.kill()
-        other.wait()
-        code = None
+        other.communicate()
+        report, code = b"", None
+    last_split_compiled.clear()
+    try:
+        last_split_compiled.update(json.loads(report.decode().strip().splitlines()[-1]))
+    except (ValueError, IndexError):
+        pass
     LOG.debug("held/logged path compiled in %.1f s; then %.1f s waiting for the free-pH path (exit code %s)",
               compiled_here - start, time.perf_counter() - compiled_here, code)
     if code != 0:
@@ -162,6 +214,7 @@ def main() -> int:
     from speciakin.simulation.integrator_kernel import integrate_segment
 
     integrate_segment.compile(signature)
+    print(json.dumps(kernel_compiles()))
     return 0
 
 
