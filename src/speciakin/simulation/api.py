@@ -23,6 +23,7 @@ from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_STA
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_OK, STATUS_TEXT, STATUS_TITRANT_SIGN
 from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
 from speciakin.simulation.results import SimulationResult
+from speciakin.simulation.split_compile import compile_paths_apart
 
 _cache = getattr(batch_tasks, "_cache", None)
 if _cache is not None and getattr(_cache, "_cache_path", None):
@@ -34,13 +35,15 @@ _compile_noticed: set = set()  # the variants (numba type of the last argument) 
 _variants_loaded: set = set()  # the batch_tasks variants (free_ph) run in this process
 
 
-def notice_compile(kernel, variant=None) -> None:
+def notice_compile(kernel, variant=None) -> bool:
     """Log once per process and variant, before the first call of ``kernel``, that it
     compiles (its compiled code, or that of the variant whose last argument has the
-    numba type ``variant``, is not in the cache yet)."""
+    numba type ``variant``, is not in the cache yet); returns True when it logged."""
     if variant not in _compile_noticed and not is_cached(kernel, variant):
         _compile_noticed.add(variant)
         LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
+        return True
+    return False
 
 
 #: Threads of a parallel batch (numba's thread count: NUMBA_NUM_THREADS, default the number of cores).
@@ -107,7 +110,9 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     if free_ph not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
-        notice_compile(batch_tasks, numba_typeof(free_ph))
+        if notice_compile(batch_tasks, numba_typeof(free_ph)) and free_ph is True:
+            # a cold compile of the full kernel: its two paths on two cores (split_compile)
+            compile_paths_apart(arrays, q_sets, run_arrays, out, info)
     threads = min(N_THREADS, off.size) if parallel else 1
     if threads <= 1:
         batch_tasks(*args, 0, 1, free_ph)
