@@ -101,3 +101,25 @@ def test_a_process_at_22_kelvin_is_an_error():
     with pytest.raises(ModelFileError, match="not plausible"):
         parse_model(BASE.replace("PKA", "9.0").replace("k = K", 'k = "35 L/(mol*s)"')
                     .replace('reference_temperature = "25 C"', 'reference_temperature = "22 K"'), source="m.toml")
+
+
+@pytest.mark.parametrize("line, flagged", [('enthalpy = "45 kJ/mol"', False), ('enthalpy = -380', False),
+                                           ('enthalpy = 108188996995.0', True), ('enthalpy = "-500 kJ/mol"', True)])
+def test_an_ionization_enthalpy_beyond_400_kj_per_mol_is_an_error(line, flagged):
+    # ionization enthalpies in water lie within about -60..+60 kJ/mol (Goldberg et al., J. Phys. Chem.
+    # Ref. Data 31 (2002) 231; from memory); 1e11 kJ/mol moved a pKa by about 1e7 units per kelvin
+    # and the simulation divided by zero (a bare number is read in kJ/mol)
+    text = BASE.replace("PKA", f"9.0\n{line}").replace("k = K", 'k = "35 L/(mol*s)"')
+    if flagged:
+        with pytest.raises(ModelFileError, match="ionization enthalpy of S.N1 is not plausible") as info:
+            parse_model(text, source="m.toml")
+        assert info.value.location.key == "molecule.S.site[1].enthalpy"
+    else:
+        assert "implausible" not in _codes(parse_model(text, source="m.toml"))
+
+
+def test_an_activation_energy_beyond_400_kj_per_mol_is_an_error():
+    # activation energies of solution reactions are mostly 20-150 kJ/mol (common practice)
+    text = BASE.replace("PKA", "9.0").replace("k = K", 'k = "35 L/(mol*s)"\nactivation_energy = "2000 kJ/mol"')
+    with pytest.raises(ModelFileError, match="activation energy of attack is not plausible"):
+        parse_model(text, source="m.toml")

@@ -231,3 +231,19 @@ def test_the_batch_runs_the_chosen_variant(monkeypatch):
         result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False, with_free_ph=hint)
         assert np.all(result.status == 0)
     assert asked == [None, True, True]
+
+
+def test_a_division_by_zero_in_the_kernel_is_a_solver_error(monkeypatch):
+    # the compiled code keeps Python's division checks; a parameter set far outside chemistry that
+    # reaches one must end as the project's SolverError (a message, exit code 3), not a traceback
+    from speciakin.errors import SolverError
+
+    compiled, both, held_only = _two_runs()
+
+    def divides_by_zero(*args):
+        raise ZeroDivisionError("division by zero")
+
+    monkeypatch.setattr(api, "batch_tasks", divides_by_zero)
+    monkeypatch.setattr(api, "_last_runs", (None, None, None))
+    with pytest.raises(SolverError, match="divided by zero"):
+        simulate_batch(compiled, held_only, compiled.nominal[None, :], parallel=False)

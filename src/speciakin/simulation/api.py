@@ -114,13 +114,20 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
             # a cold compile of the full kernel: its two paths on two cores (split_compile)
             compile_paths_apart(arrays, q_sets, run_arrays, out, info)
     threads = min(N_THREADS, off.size) if parallel else 1
-    if threads <= 1:
-        batch_tasks(*args, 0, 1, free_ph)
-    else:
-        shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
-        batch_tasks(*args, 0, threads, free_ph)
-        for share in shares:
-            share.result()
+    try:
+        if threads <= 1:
+            batch_tasks(*args, 0, 1, free_ph)
+        else:
+            shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
+            batch_tasks(*args, 0, threads, free_ph)
+            for share in shares:
+                share.result()
+    except ZeroDivisionError as exc:
+        # the compiled code keeps Python's division checks: a parameter set far outside chemistry
+        # (an enthalpy of 1e11 kJ/mol underflows a pKa's 10^-pKa to zero) ends here, not in a traceback
+        raise SolverError("the simulation divided by zero: a parameter value (a pKa, an enthalpy, a rate "
+                          "constant or its activation energy) lies far outside what a solution can have; "
+                          "check the model file's values and bounds") from exc
     _variants_loaded.add(free_ph)
 
 

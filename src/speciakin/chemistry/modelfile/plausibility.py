@@ -15,7 +15,9 @@ and docs/model-file.md):
   molecule back to itself (fine for a reversible reaction written as two
   steps; otherwise a direction is wrong).
 * ``implausible`` (error): temperatures outside :data:`TEMPERATURE_LIMITS`,
-  volumes outside :data:`VOLUME_RANGE` in the model's runs;
+  volumes outside :data:`VOLUME_RANGE` in the model's runs; an ionization
+  enthalpy or activation energy beyond :data:`ENERGY_LIMIT` (such a value
+  moves a pKa or a rate constant by orders of magnitude per degree);
   ``implausible_concentration`` (warning): an initial concentration above
   :data:`CONCENTRATION_LIMIT` in a model-file run (the workbook check of
   the data layer makes it an error).
@@ -32,12 +34,18 @@ from speciakin.chemistry.model import Model, Quantity
 from speciakin.chemistry.modelfile.paths import format_path, sub_path
 from speciakin.errors import Location, Problem, ProblemCollector
 
-__all__ = ["PKA_RANGE", "TEMPERATURE_LIMITS", "VOLUME_RANGE", "CONCENTRATION_LIMIT", "prior_centre",
+__all__ = ["PKA_RANGE", "ENERGY_LIMIT", "TEMPERATURE_LIMITS", "VOLUME_RANGE", "CONCENTRATION_LIMIT", "prior_centre",
            "temperature_problem", "plausibility_problems"]
 
 #: [pK units] pKa values outside draw a warning (common practice: the pH scale in water
 #: with a margin of two units).
 PKA_RANGE = (-2.0, 16.0)
+#: [kJ/mol] largest plausible magnitude of an ionization enthalpy or an activation energy in
+#: solution: ionization enthalpies of acids and bases in water lie within about -60 to +60 kJ/mol
+#: (Goldberg, Kishore and Lennen, J. Phys. Chem. Ref. Data 31 (2002) 231; from memory), activation
+#: energies of solution reactions mostly 20-150 kJ/mol (common practice); 400 kJ/mol is about the
+#: energy of a C-C bond (from memory).
+ENERGY_LIMIT = 400.0
 #: [K] -100 C to 300 C: outside any liquid-phase solution chemistry with a pH probe (common practice).
 TEMPERATURE_LIMITS = (173.15, 573.15)
 #: [L] 1 uL to 100 m3 (common practice).
@@ -172,6 +180,15 @@ def _runs(model: Model, c: ProblemCollector) -> None:
                 break
 
 
+def _energy(q: Quantity, path: str, c: ProblemCollector, what: str) -> None:
+    """An error when the value of an enthalpy or activation energy [kJ/mol] exceeds :data:`ENERGY_LIMIT`."""
+    value = float(q.value)
+    if math.isfinite(value) and abs(value) > ENERGY_LIMIT:
+        c.error(f"{what} is not plausible", Location(key=path), f"{value:g} kJ/mol",
+                f"within +-{ENERGY_LIMIT:g} kJ/mol; check the unit (a bare number in a model file is read "
+                "in its default unit, kJ/mol)", code="implausible")
+
+
 def plausibility_problems(model: Model) -> list[Problem]:
     """Warnings and errors for implausible values of ``model`` (see the module notes)."""
     c = ProblemCollector()
@@ -188,12 +205,14 @@ def plausibility_problems(model: Model) -> list[Problem]:
                           f"about {PKA_RANGE[0]:g} to {PKA_RANGE[1]:g}", code="pka_range")
             _quantity(site.pka, sub_path(path, "pka"), c)
             _quantity(site.enthalpy, sub_path(path, "enthalpy"), c)
+            _energy(site.enthalpy, sub_path(path, "enthalpy"), c, f"ionization enthalpy of {m.name}.{site.name}")
         for i, inter in enumerate(m.interactions):
             _quantity(inter.w, sub_path(format_path("molecule", m.name), "interaction", i), c)
     for step in model.steps:
         path = format_path("step", step.name)
         _quantity(step.log10_k, sub_path(path, "log10_k"), c)
         _quantity(step.activation_energy, sub_path(path, "activation_energy"), c)
+        _energy(step.activation_energy, sub_path(path, "activation_energy"), c, f"activation energy of {step.name}")
     _steps(model, c)
     _runs(model, c)
     return c.problems
