@@ -126,6 +126,8 @@ def test_the_grid_code_is_fetched_after_the_first_figure(server, page):
     # and the hidden warm-up grid drawn: the grid's own code (its chunk) loaded before any table is opened
     page.wait_for_function("performance.getEntriesByType('resource').some(r => r.name.includes('async-community'))",
                            timeout=15_000)
+    # (the chunk's arrival comes before React has drawn the grid with it: wait for the drawing)
+    page.wait_for_selector("#grid-warm-up .ag-root", state="attached", timeout=15_000)
     assert page.locator("#grid-warm-up .ag-root").count() == 1
     from .test_journey import choose
 
