@@ -176,11 +176,10 @@ def _quote(name: str) -> str:
 def _check_table(rows: list[dict]) -> str:
     """The check's problems as :func:`speciakin.web.page_campaign.check_table` draws them, as HTML text."""
     cols = page_campaign.CHECK_COLUMNS
-    order = sorted(range(len(rows)), key=lambda i: (rows[i]["severity"] != "error", i))
     head = "".join(f'<th data-col="{f}">{_e(h)}</th>' for f, h in cols)
-    body = "".join(f'<tr class="problem {_e(rows[i]["severity"])}">' + "".join(
-        f'<td data-col="{f}">{_e("" if rows[i][f] is None else rows[i][f])}</td>' for f, _ in cols) + "</tr>"
-        for i in order)
+    body = "".join(f'<tr class="problem {_e(severity)}">' + "".join(
+        f'<td data-col="{f}">{_e(text)}</td>' for (f, _), text in zip(cols, cells)) + "</tr>"
+        for severity, cells in page_campaign.check_cells(rows))
     return f"<thead><tr>{head}</tr></thead><tbody>{body}</tbody>"
 
 

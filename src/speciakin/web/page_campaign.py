@@ -12,7 +12,7 @@ from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web.figures import compound_colors, empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
-__all__ = ["layout", "register", "check_rows", "check_table", "folder_picker", "campaign_view", "initial_choice",
+__all__ = ["layout", "register", "check_rows", "check_cells", "check_table", "folder_picker", "campaign_view", "initial_choice",
            "CHECK_COLUMNS"]
 
 #: Columns of the check table: (field, header).
@@ -99,13 +99,21 @@ def campaign_view(state, name) -> tuple:
             _raw_figure(state, name, run), [name, run])
 
 
-def check_table(rows: list[dict]) -> list:
-    """The check table's header and one row per problem (:func:`check_rows`), errors first, then in the
-    order of the check; each cell names its column (``data-col``)."""
+def check_cells(rows: list[dict]) -> list[tuple[str, list[str]]]:
+    """(severity, the texts of its cells in :data:`CHECK_COLUMNS` order) per problem (:func:`check_rows`),
+    errors first, then in the order of the check: the rows of the check table, as the app and the first
+    view's copy (``web.first_view``) draw them."""
     order = sorted(range(len(rows)), key=lambda i: (rows[i]["severity"] != "error", i))
+    return [(rows[i]["severity"], ["" if rows[i][f] is None else str(rows[i][f]) for f, _ in CHECK_COLUMNS])
+            for i in order]
+
+
+def check_table(rows: list[dict]) -> list:
+    """The check table's header and one row per problem (:func:`check_cells`); each cell names its
+    column (``data-col``)."""
     head = html.Thead(html.Tr([html.Th(h, **{"data-col": f}) for f, h in CHECK_COLUMNS]))
-    body = [html.Tr([html.Td("" if rows[i][f] is None else str(rows[i][f]), **{"data-col": f})
-                     for f, _ in CHECK_COLUMNS], className=f"problem {rows[i]['severity']}") for i in order]
+    body = [html.Tr([html.Td(text, **{"data-col": f}) for (f, _), text in zip(CHECK_COLUMNS, cells)],
+                    className=f"problem {severity}") for severity, cells in check_cells(rows)]
     return [head, html.Tbody(body)]
 
 
