@@ -7,6 +7,8 @@
 * The last Newton step of the free-pH charge balance carries the populations
   to the root to first order (``speciation_kernel.NEWTON_LINEAR``).
 * Rate constants k(T) from one exponential (``rhs_kernel.set_temperature``).
+* A held pH under a temperature ramp: the coefficients carried as cubics in the
+  temperature (``held_ramp_kernel``), or in time when the range is too wide.
 
 Every invented model and run here is invented for the tests.
 """
@@ -212,3 +214,29 @@ def test_free_ph_run_with_a_temperature_ramp_matches_radau():
     assert np.max(np.abs(res.concentrations[:, :6] - ref[:, :6])) / 0.105 < 1e-6
     assert np.max(np.abs(res.ph - ref_ph)) < 1e-5
     assert res.ph[-1] < res.ph[0] - 0.5  # the released acid moves the pH: the free path is exercised
+
+
+@pytest.mark.parametrize("temp_k", [
+    # a narrow range (2 K): the coefficients carried as cubics in the temperature on a few pieces
+    (296.15, 298.15, 297.15),
+    # a wide range (20 K): the pieces fail their check and the run takes the cubics in time
+    (288.15, 308.15, 298.15),
+])
+def test_held_ph_under_a_temperature_ramp_matches_radau(temp_k):
+    # held pH under a temperature ramp (held_ramp_kernel): the titrant (invented, 1e9 mol/L)
+    # adds no volume worth counting (below 1e-9 L here), so the amounts of the molecules follow
+    # the chemistry of a constant pH, the reference of test_against_scipy (scipy's Radau at
+    # rtol 1e-10 with pKa(T), k(T) and Kw(T) written there)
+    temp_t = np.array([0.0, 2400.0, 7200.0])
+    model = two_site_model(double=True, hydrolysis=(-4.5, 0.5), log10k_aryl=-2.0)
+    run = two_site_run(PhControl("held", setpoint=6.0, titrant="Na", titrant_concentration=1e9), end=7200.0,
+                       dose_minutes=0.0, temperature=TemperatureProfile(tuple(temp_t), temp_k))
+    times = np.linspace(0.0, 7200.0, 25)
+    res = simulate(model, run, times=times)
+    ref = _varying_reference(np.array([0.0, 7200.0]), np.array([6.0, 6.0]), temp_t, np.array(temp_k), times,
+                             lambda t: float(pkw(t)))
+    assert np.allclose(res.ph, 6.0, atol=1e-12)
+    assert np.max(np.abs(res.volume - 1.0)) < 1e-9
+    amounts = res.concentrations[:, :6] * res.volume[:, None]
+    # rtol 1e-6 per step: the global error stays within 1e-6 of the largest amount
+    assert np.max(np.abs(amounts - ref)) / 0.105 < 1e-6

@@ -153,11 +153,8 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
     and d[OH-]/dT (``cache[C_DOH_DT]``, a central difference of pKw).  Nothing here
     depends on the amounts.
     """
-    n_mol = model.n_mol
-    pops = ws[WS_POPS]
     cache = ws[WS_CACHE]
     temperature = interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], t)
-    set_temperature(temperature, model, par, ws)
     if ctx[CTX_MODE] == MODE_HELD:
         ph = ctx[CTX_SETPOINT] + ctx[CTX_PH_OFFSET]
     else:
@@ -167,13 +164,23 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
             # a smoothed log's slope changes inside a segment: the one at t (a straight
             # piece's is the segment's, set by the run driver)
             cache[C_PH_SLOPE] = slope
+    return speciation_at(temperature, ph, model, par, ctx[CTX_CONTROLLED], temperature_slope, ws)
+
+
+@leaf_kernel
+def speciation_at(temperature, ph, model, par, controlled, temperature_slope, ws):
+    """The speciation of :func:`time_speciation` at a given temperature [K] and pH; returns the pH."""
+    n_mol = model.n_mol
+    pops = ws[WS_POPS]
+    cache = ws[WS_CACHE]
+    set_temperature(temperature, model, par, ws)
     if ph != cache[C_PH]:
         all_populations(ws[WS_PKA], model.mol_site_start, model.mol_micro_start, model.inter_a, model.inter_b,
                         par[PAR_W], model.mol_inter_start, n_mol, ph, pops)
         mean_charges(pops, model.micro_charge, model.micro_protons, model.mol_micro_start, n_mol, ws[WS_ZBAR],
                      ws[WS_VAR])
         cache[C_PH] = ph
-    if ctx[CTX_CONTROLLED] and temperature_slope != 0.0:
+    if controlled and temperature_slope != 0.0:
         mean_charge_temperature_slopes(pops, par[PAR_ENTHALPY], temperature, model.mol_site_start,
                                        model.mol_micro_start, model.micro_charge, n_mol, ws[WS_PKA2],
                                        ws[WS_DZBAR_DT])

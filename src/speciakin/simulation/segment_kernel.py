@@ -66,10 +66,12 @@ from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SECOND, CTX_SECOND_CONC, CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T,
                                          CTX_TEMP_V, CTX_TITRANT, CTX_TITRANT_CONC, CTX_LOG_C, CTX_LOG_SMOOTH)
+from speciakin.simulation.held_ramp_kernel import (FIT_NONE, MAX_PIECES, basis_size, segment_cubics,
+                                                   temperature_piece, temperature_range)
 from speciakin.simulation.profile_kernel import interpolate, logged_ph
 from speciakin.simulation.rhs_kernel import MODE_HELD, time_speciation
-from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, segment_coefficients, smooth_jacobian, smooth_rhs,
-                                                    smooth_time_derivative, stoichiometry)
+from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, fit_cubics, segment_coefficients, smooth_jacobian,
+                                                    smooth_rhs, smooth_time_derivative, stoichiometry)
 from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
 from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
@@ -152,7 +154,8 @@ def make_smooth_workspace(model, n):
     """Work arrays of :func:`integrate_smooth` for one run (n = state size):
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
     product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, is_active, active, passive,
-    active_of, jac_t, g, sub, piv).  The stoichiometry is filled in here."""
+    active_of, jac_t, g, sub, piv, and the temperature cubics of a held-pH ramp: tpoly, tlogs,
+    tnodes, tscale, tstate; ``held_ramp_kernel``).  The stoichiometry is filled in here."""
     n_mol = model.n_mol
     n_species = model.n_species
     n_steps = model.step_logk_q.shape[0]
@@ -170,12 +173,14 @@ def make_smooth_workspace(model, n):
     n_react = np.zeros(n_steps, dtype=np.int64)
     stoichiometry(model, nu, reactants, n_react)
     n_coef = 2 * n_steps + n_mol + 3
+    n_b = basis_size(n_steps, n_mol)
     return (nu, reactants, n_react, np.empty((4, n_coef)), np.zeros((n_coef, 4)), np.zeros(n_coef, dtype=np.bool_),
             np.empty(n_coef), np.empty(n_coef), np.empty(n_coef), np.zeros(n_coef), np.empty(max(n_steps, 1)),
             np.empty(max(n_steps, 1)), np.empty(n), np.zeros(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n),
             np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64),
             np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n),
-            np.empty(n, dtype=np.int64))
+            np.empty(n, dtype=np.int64), np.zeros((MAX_PIECES, n_b, 4)), np.zeros((MAX_PIECES, n_b), dtype=np.bool_),
+            np.empty((4, n_b)), np.empty(n_b), np.zeros(3 + MAX_PIECES))
 
 
 @leaf_kernel
@@ -196,6 +201,11 @@ def reset_smooth_workspace(sw):
     for i in range(ft.shape[0]):
         ft[i] = 0.0
         is_active[i] = False
+    tstate = sw[32]  # the temperature cubics are the run's (held_ramp_kernel): none made yet
+    tstate[0] = 0.0
+    tstate[1] = math.nan
+    for p in range(3, tstate.shape[0]):
+        tstate[p] = FIT_NONE
 
 
 @leaf_kernel
@@ -230,7 +240,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     if span <= 0.0:
         return STATUS_OK, h, i_out
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
-     k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all) = sw
+     k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all, tpoly, tlogs, tnodes,
+     tscale, tstate) = sw
     n_coef = poly.shape[0]
     for i in range(n):
         ft[i] = 0.0
@@ -276,7 +287,31 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         halved = False
         worst = 0.0
         # ---- coefficients on [ta, tb]
-        if varying:
+        piece = -1
+        temp_a = 0.0
+        if varying and ph_is_held and temperature_slope != 0.0 and tstate[0] >= 0.0:
+            # held pH under a ramp: cubics in the temperature, made once per run (held_ramp_kernel)
+            if math.isnan(tstate[1]):
+                t_low, t_high = temperature_range(ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
+                tstate[1] = t_low
+                tstate[2] = t_high
+            temp_a = interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], ta)
+            fine, piece, t_b = temperature_piece(ta, t1, span, temp_a, temperature_slope, held_ph, model, par, ws,
+                                                 titrant, titrant_conc, second, second_conc, NODES, FROM_NODES,
+                                                 COEFFICIENT_RTOL, tpoly, tlogs, tnodes, tscale, tstate)
+            if not fine:
+                return STATUS_NOT_FINITE, h, i_out
+            if piece >= 0:
+                tb = t_b
+        if piece >= 0:
+            mid = 0.5 * (ta + tb)
+            half = 0.5 * (tb - ta)
+            width = (tstate[2] - tstate[1]) / (1 << int(tstate[0]))
+            segment_cubics(tpoly[piece], tlogs[piece], tstate[1] + (piece + 0.5) * width, 0.5 * width,
+                           temp_a + temperature_slope * half, temperature_slope, half, nu, n_mol,
+                           model.species_charge, feed_rate, feed_volume_rate, poly, in_logs)
+            inv_half = 1.0 / half
+        elif varying:
             smooth = False
             for halving in range(MAX_HALVINGS):
                 mid = 0.5 * (ta + tb)
@@ -287,22 +322,8 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                         return STATUS_NOT_FINITE, h, i_out
                     segment_coefficients(model, ws, nu, held, titrant, titrant_conc, second, second_conc,
                                          feed_rate, feed_volume_rate, temperature_slope, nodes[node])
-                for c in range(n_coef):
-                    big = 0.0
-                    positive = c < n_steps
-                    for node in range(4):
-                        big = max(big, abs(nodes[node, c]))
-                        positive = positive and nodes[node, c] > 0.0
-                    scale[c] = big
-                    # rate constants vary exponentially with 1/T and pH: carry their logarithms
-                    in_logs[c] = positive
-                    if positive:
-                        for node in range(4):
-                            nodes[node, c] = math.log(nodes[node, c])
-                    for a in range(4):
-                        poly[c, a] = 0.0
-                        for node in range(4):
-                            poly[c, a] += FROM_NODES[a, node] * nodes[node, c]
+                # rate constants vary exponentially with 1/T and pH: carry their logarithms
+                fit_cubics(nodes, n_steps, FROM_NODES, poly, in_logs, scale)
                 # worst: the largest coefficient error at the checks over what is allowed
                 worst = 0.0
                 for check in range(CHECKS.shape[0]):

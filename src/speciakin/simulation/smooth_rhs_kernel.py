@@ -130,6 +130,30 @@ def segment_coefficients(model, ws, nu, controlled, titrant, titrant_conc, secon
         coef[2 * n_steps + 1 + n_mol] += ph_slope * LN10 * (hydrogen + hydroxide) / denominator
 
 
+@leaf_kernel
+def fit_cubics(nodes, n_logged, from_nodes, poly, in_logs, scale):
+    """Cubics ``poly[c, :]`` (monomials) through the values ``nodes[:, c]`` at the four
+    interpolation points (``from_nodes``: the inverse Vandermonde matrix); the first
+    ``n_logged`` (rate constants, which vary exponentially with 1/T and pH) as the cubics of
+    their logarithms where positive at every point (``in_logs``); ``scale[c]`` = the largest
+    |value|.  ``nodes`` is overwritten (logarithms)."""
+    for c in range(poly.shape[0]):
+        big = 0.0
+        positive = c < n_logged
+        for node in range(4):
+            big = max(big, abs(nodes[node, c]))
+            positive = positive and nodes[node, c] > 0.0
+        scale[c] = big
+        in_logs[c] = positive
+        if positive:
+            for node in range(4):
+                nodes[node, c] = math.log(nodes[node, c])
+        for a in range(4):
+            poly[c, a] = 0.0
+            for node in range(4):
+                poly[c, a] += from_nodes[a, node] * nodes[node, c]
+
+
 @leaf_kernel(inline="always")
 def evaluate_cubic(poly, in_logs, x, value, slope):
     """Values and d/dx of the cubics ``poly[c, :]`` (monomials in x) at x;
