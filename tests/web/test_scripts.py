@@ -1,7 +1,6 @@
 """The scripts the page lists: the regenerator runtime in place of Babel's polyfill, no data table, the grid's
 stand-in in place of its bundle, and the scripts Dash loads later preloaded (without a browser); in the
-browser: the page's layout and callbacks asked for once, before the renderer is evaluated, the grid's code
-fetched after the first figure, and a table drawn before it has arrived."""
+browser: the grid's code fetched after the first figure, and a table drawn before it has arrived."""
 
 from __future__ import annotations
 
@@ -135,44 +134,6 @@ def test_the_grid_code_is_fetched_after_the_first_figure(server, page):
     choose(page, "campaign-choice", "demo")
     page.click("text=2 Model")
     page.wait_for_selector("#param-table .ag-row")
-
-
-#: Marks when Dash's renderer has been evaluated (it then defines DashRenderer) and what fetch() is then.
-_RENDERER_EVALUATED = """(() => {
-  let renderer;
-  Object.defineProperty(window, 'DashRenderer', {configurable: true, get() { return renderer; }, set(v) {
-    renderer = v; window.__rendererAt = performance.now(); }});
-})();"""
-
-
-def test_the_layout_and_callbacks_are_asked_for_once_before_the_renderer_is_evaluated(server, page):
-    url, _ = server
-    asked = []
-    page.on("request", lambda r: asked.append(r.url.rsplit("/", 1)[-1]) if "_dash-" in r.url else None)
-    page.add_init_script(_RENDERER_EVALUATED)
-    page.goto(url)
-    page.wait_for_selector(".js-plotly-plot .main-svg")  # the app drawn from the early answers
-    assert [a for a in asked if a in scripts.EARLY_REQUESTS] == list(scripts.EARLY_REQUESTS)  # once each
-    started = page.evaluate("""names => names.map(n => performance.getEntriesByType('resource')
-        .find(r => r.name.endsWith('/' + n)).startTime)""", list(scripts.EARLY_REQUESTS))
-    assert max(started) < page.evaluate("window.__rendererAt")  # asked for while the scripts load
-    assert page.evaluate("window.fetch.toString().includes('[native code]')")  # fetch is the browser's again
-
-
-def test_a_failed_early_request_is_made_again_by_the_renderer(server, page):
-    url, _ = server
-    refused = []
-
-    def refuse_once(route):
-        if not refused:
-            refused.append(route.request.url)
-            return route.fulfill(status=503, body="busy")
-        return route.continue_()
-
-    page.route("**/_dash-layout", refuse_once)
-    page.goto(url)
-    page.wait_for_selector(".js-plotly-plot .main-svg")
-    assert len(refused) == 1
 
 
 def test_a_table_drawn_before_the_grid_code_has_arrived_is_drawn_when_it_has(server, page, shot):

@@ -16,23 +16,19 @@ fetches the bundle after the first view is drawn, or when a table is to be
 drawn earlier), and lets the browser fetch at once, while it evaluates the
 listed scripts, the ones that Dash's components load only when first drawn
 (:data:`LATER`: plotly.js, the graph, dropdown and upload code of the
-first tab), instead of after the page's layout has arrived and been drawn,
-and asks at once for the page's layout and callbacks (:data:`EARLY_REQUESTS`),
-which the renderer would ask for only once its scripts have been evaluated
+first tab), instead of after the page's layout has arrived and been drawn
 (docs/web.md, Speed).
 """
 
 from __future__ import annotations
 
 import hashlib
-import json
 import re
 from pathlib import Path
 
 from speciakin.web.bundles import serve_script
 
-__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "EARLY_REQUESTS", "trim_scripts",
-           "later_files"]
+__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "trim_scripts", "later_files"]
 
 #: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
 REGENERATOR = Path(__file__).resolve().parent / "static" / "regenerator-runtime.js"
@@ -46,30 +42,6 @@ GRID_LOADER_PATH = "_speciakin/grid-loader.js"
 #: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
 LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
          ("plotly", "package_data/plotly.min.js"))
-#: What Dash's renderer asks the server for once its scripts have been evaluated (after the path prefix): the
-#: page's layout and its callbacks.
-EARLY_REQUESTS = ("_dash-layout", "_dash-dependencies")
-#: In the page's head: :data:`EARLY_REQUESTS` asked for at once, while the scripts load; the renderer's own
-#: requests for them (GET, the same address) get these answers, then ``fetch`` is Dash's again.  Should an
-#: early request fail, the renderer's goes to the server as usual.
-_EARLY_FETCH = """<script>(function () {
-  var real = window.fetch, early = {};
-  if (!real || !window.URL) { return; }
-  %(names)s.forEach(function (name) {
-    var url = new URL(%(prefix)s + name, location.href).href;
-    early[url] = real.call(window, url, {credentials: "same-origin"});
-  });
-  window.fetch = function (input, init) {
-    var url = null, got;
-    try { url = new URL(typeof input === "string" ? input : input.url, location.href).href; } catch (e) { /* not ours */ }
-    got = url && (!init || !init.method || init.method === "GET") ? early[url] : null;
-    if (!got) { return real.apply(this, arguments); }
-    delete early[url];
-    if (!Object.keys(early).length) { window.fetch = real; }
-    return got.then(function (answer) { return answer.ok ? answer : real.call(window, input, init); },
-                    function () { return real.call(window, input, init); });
-  };
-})();</script>"""
 _POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
 _DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
 _GRID = re.compile(r'<script src="([^"]*/dash_ag_grid/dash_ag_grid\.[^"]*)"></script>\n?')
@@ -84,8 +56,7 @@ def later_files() -> list[Path]:
 
 def trim_scripts(app, server) -> None:
     """Make ``app`` (Dash) list the regenerator runtime in place of the polyfill, without the data table,
-    the grid's stand-in in place of its bundle, with the scripts of :data:`LATER` preloaded and
-    :data:`EARLY_REQUESTS` asked for at once; ``server``
+    the grid's stand-in in place of its bundle, and with the scripts of :data:`LATER` preloaded; ``server``
     (its Flask server) sends the runtime and the stand-in.
 
     Call it after the request guards are set on ``server`` (the scripts are sent behind them).
@@ -96,7 +67,6 @@ def trim_scripts(app, server) -> None:
     loader = f"{prefix}{GRID_LOADER_PATH}?v={_serve(server, prefix + GRID_LOADER_PATH, GRID_LOADER)}"
     preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
                       for package, name in LATER)
-    preload += _EARLY_FETCH % {"names": json.dumps(list(EARLY_REQUESTS)), "prefix": json.dumps(prefix)}
 
     def grid(found: re.Match) -> str:
         return f'<script src="{loader}" data-grid="{found.group(1)}"></script>\n'
