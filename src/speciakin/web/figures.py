@@ -21,11 +21,16 @@ from plotly.subplots import make_subplots
 
 from speciakin.palette import NEUTRAL, OKABE_ITO, SpeciesColors, model_species_colors
 
-__all__ = ["label", "compound_colors", "MAX_POINTS", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure",
+__all__ = ["label", "compound_colors", "MAX_POINTS", "X_TITLE_MARGIN", "thin", "raw_run_figure", "fit_run_figure", "window_figure", "empty_figure",
            "correlation_figure", "map_figure"]
 
 #: Most points of one trace drawn on the page; longer logs are thinned.
 MAX_POINTS = 1500
+#: The bottom margin an x-axis title at the bottom pushes a figure's to [px] (Plotly's automargin: 12 px tick
+#: labels and a 14 px title of the white template, in the browser's fallback font DejaVu Sans); the raw data's
+#: figure takes it from the start (one drawing, not two), and the first view's still copy lays it out so
+#: (``web.first_svg``).
+X_TITLE_MARGIN = 53
 #: Trace kinds the page draws.
 _TRACE_KINDS = ("scatter", "heatmap", "contour")
 
@@ -131,7 +136,12 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
                          "(display only; the fit uses all)")
     for r, c in ((1, 1), (1, 2), (2, 1), (2, 2)):
         fig.update_xaxes(title_text="time [min]", row=r, col=c)
-    fig.update_layout(template=TEMPLATE, height=560, margin=dict(l=50, r=20, t=60, b=40),
+    # drawn in one pass (docs/web.md, Speed): numeric tick labels, which the axes' automargin keeps inside the
+    # figure, are not measured again for every label placed ("hide past div" does that), and the bottom margin
+    # is the one the x-axis titles push it to, so that Plotly need not draw the figure a second time to widen it
+    fig.update_xaxes(ticklabeloverflow="allow")
+    fig.update_yaxes(ticklabeloverflow="allow")
+    fig.update_layout(template=TEMPLATE, height=560, margin=dict(l=50, r=20, t=60, b=X_TITLE_MARGIN),
                       title=dict(text=f"run {label(run.name)}: data as imported", font=dict(size=15)))
     note = "; ".join(notes) if notes else "every reading shown"
     fig.add_annotation(text=note, showarrow=False, x=1, y=1.1, xref="paper", yref="paper", xanchor="right",

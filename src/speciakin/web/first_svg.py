@@ -25,6 +25,8 @@ from functools import lru_cache
 
 import numpy as np
 
+from speciakin.web.figures import X_TITLE_MARGIN
+
 __all__ = ["figure_svg", "layout", "check", "Unsupported", "FONT"]
 
 #: Plotly's font stack and text colour (the white template).
@@ -169,7 +171,7 @@ def layout(fig, width: int) -> dict:
     if shown:  # the legend, at 1.02 of the plot's width, pushes the right margin
         r = max(r, (0.02 * (width - l) + _legend_width(shown) + 12) / 1.02)
     if any(_bottom_title(fig, tr["axes"][0]) for tr in traces):
-        b = max(b, 53.0)  # an x-axis title at the bottom pushes the bottom margin
+        b = max(b, float(X_TITLE_MARGIN))  # an x-axis title at the bottom pushes the bottom margin
     l, r, t, b = (float(round(v)) for v in (l, r, t, b))  # Plotly rounds the margins to whole pixels
     pw, ph = max(width - l - r, 10.0), max(height - t - b, 10.0)
     return {"size": {"l": l, "r": r, "t": t, "b": b, "w": pw, "h": ph}, "height": height, "traces": traces,

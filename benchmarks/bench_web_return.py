@@ -1,0 +1,110 @@
+"""The page opened again by a returning visitor: a browser profile kept on disk, the page in a new tab.
+
+``bench_web.py`` measures first-ever visits (a new browser context each time: nothing cached) and a
+reload.  A chemist who comes back opens the page in a new tab of the same browser, or after restarting
+it, with the browser's disk cache holding the page's scripts and, from the third load of a script on,
+V8's code cache beside it (the compiled code: no compiling at all).  This benchmark starts a page server
+(``bench_web.py --serve``) for the bundled (INVENTED) demo, makes a new browser profile, and opens the page
+``--visits`` times, each in a new tab (the tab before is closed), then once more after restarting the
+browser with the same profile.  Per visit it prints, best and median over ``--servers`` servers (a new
+profile each), when the first view was shown (the still copy's image painted, as bench_web) and when the
+app's figure was drawn (interactive), with the load average.  ``--before SRC`` alternates servers of
+another version (a ``src`` folder) with this one and prints the ratios.  These are not the cold figures:
+the first visit of each profile is.
+
+Run: ``python benchmarks/bench_web_return.py --root DIR`` (DIR as made by ``bench_web.py --root DIR``,
+or a new folder: the demo result is made first).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+import bench_web  # noqa: E402  (the demo root, the server and the first view's timing)
+
+
+def _open(context, url: str) -> dict[str, float]:
+    """Open the page in a new tab of ``context``; seconds until the first view was shown and the figure drawn."""
+    page = context.new_page()
+    start = time.time()
+    page.goto(url)
+    page.wait_for_selector("#raw-figure .gtitle", timeout=180_000)
+    drawn = time.time() - start
+    shown = page.evaluate(bench_web._FIRST_VIEW_SHOWN)
+    page.wait_for_timeout(1500)  # the idle work after the figure (the grid's code) is done and cached too
+    page.close()
+    return {"figure interactive": drawn, "first view shown": drawn if shown is None else min(shown / 1000 - start,
+                                                                                             drawn)}
+
+
+def profile_visits(p, chromium: str, url: str, visits: int) -> list[dict[str, float]]:
+    """``visits`` visits in new tabs of one new profile, then one after restarting the browser on it."""
+    out = []
+    with tempfile.TemporaryDirectory(prefix="bench-web-profile-") as folder:
+        for restart in (False, True):
+            context = p.chromium.launch_persistent_context(folder, executable_path=chromium, args=bench_web.ARGS,
+                                                           viewport={"width": 1300, "height": 900})
+            try:
+                for _ in range(1 if restart else visits):
+                    out.append(_open(context, url))
+            finally:
+                context.close()
+    return out
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n", 1)[0])
+    parser.add_argument("--root", required=True, help="campaign root (made as bench_web.py makes it if needed)")
+    parser.add_argument("--servers", type=int, default=3, help="servers (and new profiles) per version")
+    parser.add_argument("--visits", type=int, default=4, help="visits in new tabs before the browser restart")
+    parser.add_argument("--before", help="the src folder of a version to compare with, servers alternated")
+    args = parser.parse_args()
+    from playwright.sync_api import sync_playwright
+
+    chromium = os.environ.get("SPECIAKIN_CHROMIUM", "/usr/bin/chromium")
+    here = Path(__file__).resolve().parent.parent / "src"
+    versions = {"this": here} if not args.before else {"before": Path(args.before).resolve(), "this": here}
+    root = Path(args.root)
+    root.mkdir(parents=True, exist_ok=True)
+    bench_web.build_root(root)
+    print("load before:", os.getloadavg(), flush=True)
+    results: dict[str, list[list[dict]]] = {label: [] for label in versions}
+    with sync_playwright() as p:
+        for n in range(args.servers):
+            for label, src in versions.items():
+                proc, url = bench_web._start_server(src, root)
+                try:
+                    results[label].append(profile_visits(p, chromium, url, args.visits))
+                finally:
+                    proc.terminate()
+                    proc.wait(timeout=30)
+                print(f"server {n + 1}/{args.servers} ({label}) done; load {os.getloadavg()}", flush=True)
+    names = [f"visit {i + 1}" + (" (first ever)" if i == 0 else " (new tab)") for i in range(args.visits)]
+    names.append(f"visit {args.visits + 1} (browser restarted)")
+    print("\nseconds, best and median over the profiles")
+    print(f"{'visit':<30}{'part':<20}" + "".join(f"{label:>16}" for label in versions)
+          + ("   ratio of medians" if len(versions) > 1 else ""))
+    for i, name in enumerate(names):
+        for part in ("first view shown", "figure interactive"):
+            medians = []
+            line = f"{name:<30}{part:<20}"
+            for label in versions:
+                values = [run[i][part] for run in results[label]]
+                medians.append(statistics.median(values))
+                line += f"{min(values):7.2f} {medians[-1]:7.2f} "
+            if len(medians) > 1:
+                line += f"  {medians[1] / medians[0]:6.3f}"
+            print(line)
+    print("load after:", os.getloadavg())
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
