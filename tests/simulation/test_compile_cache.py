@@ -247,3 +247,20 @@ def test_a_division_by_zero_in_the_kernel_is_a_solver_error(monkeypatch):
     monkeypatch.setattr(api, "_last_runs", (None, None, None))
     with pytest.raises(SolverError, match="divided by zero"):
         simulate_batch(compiled, held_only, compiled.nominal[None, :], parallel=False)
+
+
+def test_the_speciation_is_compiled_once_for_the_held_and_logged_path():
+    # the held-pH ramp's temperature functions (held_ramp_kernel) and time_speciation call speciation_at with
+    # the same argument types: one compiled variant, not a second one specialised on a literal flag (each
+    # variant is linked and optimised again in every caller up to batch_tasks)
+    from numba import types
+
+    from speciakin.simulation.rhs_kernel import speciation_at
+
+    compiled, both, held_only = _two_runs()
+    assert simulate_batch(compiled, held_only, compiled.nominal[None, :], parallel=False).status.tolist() == [[0]]
+    if getattr(speciation_at, "_cache", None) is None or not speciation_at._cache._enabled:
+        pytest.skip("numba caching is off")
+    entries = [key[0] for key in speciation_at._cache._cache_file._load_index()]
+    assert len(entries) == 1, entries
+    assert not any(isinstance(t, types.Literal) for t in entries[0]), entries

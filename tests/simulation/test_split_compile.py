@@ -20,19 +20,22 @@ from speciakin.simulation.layout import N_INFO
 HERE = Path(__file__).parent
 
 
-def _batch():
-    """The two-site model with a held-pH and a free-pH run, and the arrays of one batch call."""
+def _batch(held_only=False):
+    """The two-site model with a held-pH run under a temperature ramp and a free-pH run (or the held
+    one only), and the arrays of one batch call."""
     sys.path.insert(0, str(HERE))
-    from sim_models import held, two_site_model, two_site_run
-    from speciakin.chemistry.model import PhControl
+    from sim_models import T25, held, two_site_model, two_site_run
+    from speciakin.chemistry.model import PhControl, TemperatureProfile
     from speciakin.simulation import compile_model, compile_runs
 
     compiled = compile_model(two_site_model())
-    runs = [two_site_run(held(8.0), name="held", end=3600.0),
+    ramp = TemperatureProfile((0.0, 3600.0), (T25, T25 + 12.0))
+    runs = [two_site_run(held(8.0), name="held", end=3600.0, temperature=ramp),
             two_site_run(PhControl("free"), name="free", end=3600.0, chloride=0.12, sodium=0.2)]
-    cruns = compile_runs(compiled, runs, [np.linspace(0.0, 3600.0, 7)] * 2)
-    out = np.full((1, 2, cruns.n_times_max, compiled.n_outputs), np.nan)
-    status, info = np.zeros((1, 2), np.int64), np.zeros((1, 2, N_INFO))
+    runs = runs[:1] if held_only else runs
+    cruns = compile_runs(compiled, runs, [np.linspace(0.0, 3600.0, 7)] * len(runs))
+    out = np.full((1, len(runs), cruns.n_times_max, compiled.n_outputs), np.nan)
+    status, info = np.zeros((1, len(runs)), np.int64), np.zeros((1, len(runs), N_INFO))
     return compiled, cruns, out, status, info
 
 
@@ -56,11 +59,17 @@ def test_the_path_signatures_are_those_run_one_compiles_its_paths_with():
     assert status.tolist() == [[0, 0]]
     if getattr(integrate_segment, "_cache", None) is None or not integrate_segment._cache._enabled:
         pytest.skip("numba caching is off")
-    smooth, segment, shared = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info)
+    from speciakin.simulation.segment_kernel import smooth_steps
+
+    smooth, segment, shared, ramp, steps = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info)
     assert _index_signatures(integrate_smooth) == {smooth}
     assert _index_signatures(integrate_segment) == {segment}
+    # the step loop is not cached (made by a factory): its variants of this process, when it compiled them
+    assert set(smooth_steps.overloads) <= {steps}
     for name, function in split_compile._shared_functions().items():
         assert shared[name] in _index_signatures(function), name  # write_output has a second variant
+    for name, function in split_compile._ramp_functions().items():
+        assert _index_signatures(function) == {ramp[name]}, name
 
 
 def test_the_second_process_compiles_or_loads_the_free_ph_path(monkeypatch):
@@ -97,10 +106,13 @@ from test_split_compile import _batch
 from speciakin.simulation import simulate_batch, split_compile
 from speciakin.simulation.integrator_kernel import integrate_segment
 from speciakin.simulation.segment_kernel import integrate_smooth
-compiled, cruns, out, status, info = _batch()
+from speciakin.simulation.held_ramp_kernel import temperature_piece
+compiled, cruns, out, status, info = _batch(sys.argv[2] == "held")
 result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
 stats = {name: (sum(d.stats.cache_hits.values()), sum(d.stats.cache_misses.values()))
-         for name, d in (("segment", integrate_segment), ("smooth", integrate_smooth))}
+         for name, d in (("segment", integrate_segment), ("smooth", integrate_smooth), ("ramp", temperature_piece))}
+from speciakin.simulation.segment_kernel import smooth_steps
+stats["steps"] = [len(smooth_steps.overloads)]
 print(json.dumps({"outputs": result.outputs.tolist(), "status": result.status.tolist(), "stats": stats,
                   "here": split_compile.kernel_compiles(), "there": split_compile.last_split_compiled}))
 """
@@ -108,28 +120,36 @@ print(json.dumps({"outputs": result.outputs.tolist(), "status": result.status.to
 
 @pytest.mark.slow
 @pytest.mark.skipif(sys.platform == "win32", reason="a POSIX shell for the probe")
-def test_a_cold_compile_loads_the_free_ph_path_the_second_process_compiled(tmp_path):
-    # from an empty cache: this process compiles the held/logged path, loads the free-pH path from the cache
-    # (one hit, no miss) and gives the same outputs, to the last bit, as the kernel compiled in one process
+@pytest.mark.parametrize("runs", ["both", "held"])
+def test_a_cold_compile_loads_what_the_second_process_compiled(tmp_path, runs):
+    # from an empty cache: this process compiles the held/logged path, loads the held-pH ramp's functions
+    # and (with a free-pH run) the free-pH path from the cache (one hit, no miss) and gives the same
+    # outputs, to the last bit, as the kernel compiled in one process
     from speciakin.simulation.batch_kernel import batch_tasks
 
     env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path / "cache"),
                PYTHONPATH=os.pathsep.join([str(Path(split_compile.__file__).parents[2]),
                                            os.environ.get("PYTHONPATH", "")]))
-    done = subprocess.run([sys.executable, "-c", COLD, str(HERE)], capture_output=True, text=True, env=env,
+    done = subprocess.run([sys.executable, "-c", COLD, str(HERE), runs], capture_output=True, text=True, env=env,
                           timeout=1800)
     assert done.returncode == 0, done.stderr[-2000:]
     cold = json.loads(done.stdout.strip().splitlines()[-1])
-    assert cold["stats"]["segment"] == [1, 0]
+    assert cold["stats"]["segment"] == ([1, 0] if runs == "both" else [0, 0])
     assert cold["stats"]["smooth"][1] == 1
-    # each function compiled in one process only (one copy in the drivers' code); the free-pH path there
-    assert "speciakin.simulation.integrator_kernel.integrate_segment" in cold["there"]
+    assert cold["stats"]["ramp"] == ([0, 1] if runs == "both" else [1, 0])
+    assert cold["stats"]["steps"] == [1]  # compiled once (first, for the types integrate_smooth then uses)
+    # each function compiled in one process only (one copy in the drivers' code); the free-pH path there,
+    # without it the held-pH ramp
+    ramp = "speciakin.simulation.held_ramp_kernel.temperature_piece"
+    assert (ramp in cold["there"]) == (runs == "held") and (ramp in cold["here"]) == (runs == "both")
+    segment = "speciakin.simulation.integrator_kernel.integrate_segment"
+    assert (segment in cold["there"]) == (runs == "both")
     assert "speciakin.simulation.segment_kernel.integrate_smooth" in cold["here"]
     assert not set(cold["here"]) & set(cold["there"])
     # the reference: the full kernel of this process (called directly: the variant bookkeeping of the
     # public functions stays as the other tests left it)
-    compiled, cruns, out, status, info = _batch()
+    compiled, cruns, out, status, info = _batch(runs == "held")
     batch_tasks(compiled.arrays, compiled.nominal[None, :].copy(), cruns.arrays, cruns.ph_offset[None, :],
                 cruns.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, True)
-    assert cold["status"] == status.tolist() == [[0, 0]]
+    assert cold["status"] == status.tolist() == [[0] * len(cruns.ph_offset)]
     np.testing.assert_array_equal(np.array(cold["outputs"]), out)

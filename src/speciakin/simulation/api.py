@@ -110,9 +110,9 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     if free_ph not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
-        if notice_compile(batch_tasks, numba_typeof(free_ph)) and free_ph is True:
-            # a cold compile of the full kernel: its two paths on two cores (split_compile)
-            compile_paths_apart(arrays, q_sets, run_arrays, out, info)
+        if notice_compile(batch_tasks, numba_typeof(free_ph)):
+            # a cold compile: the held-pH ramp's functions (and the free-pH path) on the second core (split_compile)
+            compile_paths_apart(arrays, q_sets, run_arrays, out, info, free_ph is True)
     threads = min(N_THREADS, off.size) if parallel else 1
     try:
         if threads <= 1:

@@ -30,6 +30,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import C_DOH_DT, C_PH, C_PKW, WS_CACHE, WS_DZBAR_DT, WS_ZBAR
 from speciakin.simulation.rhs_kernel import speciation_at
@@ -57,8 +59,10 @@ def temperature_basis(temperature, ph, model, par, ws, titrant, titrant_conc, se
     (speciation in ``ws``); False on failure."""
     n_mol = model.n_mol
     n_steps = model.step_logk_q.shape[0]
-    # controlled, with a non-zero slope: d zbar/dT and d[OH-]/dT are wanted too
-    if math.isnan(speciation_at(temperature, ph, model, par, 1, 1.0, ws)):
+    # controlled, with a non-zero slope: d zbar/dT and d[OH-]/dT are wanted too.  The flag as a plain
+    # int64 (a literal 1 would be typed Literal[int](1) and compile a second variant of speciation_at,
+    # linked and optimised again in every caller up to batch_tasks, beside time_speciation's)
+    if math.isnan(speciation_at(temperature, ph, model, par, np.int64(1), 1.0, ws)):
         return False
     effective_constants(model, ws, out)
     cache = ws[WS_CACHE]
