@@ -37,10 +37,9 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
 #: Rough duration of a cold compile on a quiet two-core machine [s]: to the first parallel
-#: likelihood about 50 s without the free-pH path, and about 50 s with it on two cores
-#: (the two paths compiled side by side, ``split_compile``; 65-70 s on one core)
-#: (``benchmarks/bench_compile.py [--demo]``).
-COLD_COMPILE_SECONDS = 50
+#: likelihood about 62-67 s without the free-pH path and 64 s with it (the paths compiled side
+#: by side, ``split_compile``; docs/simulation.md) (``benchmarks/bench_compile.py [--demo]``).
+COLD_COMPILE_SECONDS = 65
 
 
 def default_cache_dir() -> Path:
