@@ -31,6 +31,19 @@ def test_new_templates_agree_with_each_other(tmp_path, capsys):
     assert "Process: " in text and "no runs yet" in text
 
 
+def test_fit_of_a_fresh_folder_names_what_is_missing(tmp_path, capsys):
+    # a new folder has no runs yet: fitting it stops before any work with a located error in
+    # the chemist's terms (how many data values for how many fitted parameters, and what to do),
+    # exit code 2, no traceback
+    assert main(["new", str(tmp_path / "c")]) == 0
+    capsys.readouterr()
+    assert main(["fit", str(tmp_path / "c")]) == 2
+    err = capsys.readouterr().err
+    assert "campaign.xlsx, sheet 'HPLC results'" in err
+    assert "0 data value(s) (0 HPLC, 0 titrant readings over 0 run(s)) for 3 fitted parameter(s)" in err
+    assert "add runs and their HPLC results" in err and "Traceback" not in err
+
+
 def test_check_reports_process_file_errors_with_their_key(tmp_path, capsys):
     assert main(["new", str(tmp_path / "c")]) == 0
     p = tmp_path / "c" / "process.toml"

@@ -25,7 +25,7 @@ from speciakin.pipeline.objective import CampaignObjective
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.status import STATUS_TEXT
 
-__all__ = ["CampaignFitResult", "fit_campaign", "check_start_values", "MISFIT_RMS"]
+__all__ = ["CampaignFitResult", "fit_campaign", "check_enough_data", "check_start_values", "MISFIT_RMS"]
 
 #: Per-run RMS of weighted residuals above which a misfit warning is given
 #: (residuals should scatter with unit standard deviation; common practice).
@@ -196,6 +196,32 @@ class CampaignFitResult:
         return dumps(self.to_dict())
 
 
+def check_enough_data(objective: CampaignObjective) -> None:
+    """Stop before fitting when the campaign holds no more data values than fitted parameters.
+
+    Least squares needs more residuals than varying parameters; the plain
+    statement of that (a campaign without runs, or a model that fits more
+    constants than the workbook has HPLC values) is a located error in the
+    chemist's terms: which sheets to fill, or which parameters to fix.
+
+    Raises
+    ------
+    InputError
+        Located at the HPLC sheet, with the counts (exit code 2, before any fitting).
+    """
+    n_fitted = sum(1 for s in objective.specs() if s.vary)
+    if objective.n_data > n_fitted:
+        return
+    runs = len(objective.campaign.runs)
+    raise InputError(
+        f"the campaign holds {objective.n_data} data value(s) ({objective.n_hplc} HPLC, "
+        f"{objective.n_titrant} titrant readings over {runs} run(s)) for {n_fitted} fitted parameter(s)",
+        objective.campaign.locate("hplc", None, None), objective.n_data,
+        f"more data values than fitted parameters: add runs and their HPLC results to the workbook, "
+        f"or fix parameters in the model file ({objective.model.source or 'model.toml'}: a bare value, "
+        f"not a table with fit = true, is fixed)")
+
+
 def check_start_values(objective: CampaignObjective) -> None:
     """Simulate every run once at the starting values; a run that does not integrate there stops the fit.
 
@@ -253,6 +279,7 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
     n_starts = starts if starts is not None else int(settings.get("starts", 6))
     seed = seed if seed is not None else int(settings.get("seed", 0))
     t0 = time.perf_counter()
+    check_enough_data(objective)
     check_start_values(objective)
 
     def on_start(done, total, best):
