@@ -167,3 +167,17 @@ def test_guard_narrows_the_window_to_where_the_lower_bound_reaches_the_level():
     inside = (x >= a) & (x <= b)
     assert np.all(p[inside] >= 0.95) and np.all(p[~inside] < 0.95)
     assert "196 of 200 draws pass" in guarded.report()
+
+
+def test_best_set_point_says_when_its_probability_is_the_guards_lower_bound():
+    # with the guard on, the best set point's number is the one-sided Clopper-Pearson bound
+    # (all 200 draws passing give 0.05^(1/200) = 0.985, closed form), not the share of draws (1.000),
+    # so the text must name it a lower bound; without the guard it is the share itself
+    theta = draws(n=200, seed=5)
+    guarded = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES)
+    plain = compute_window(outcome_fn, theta, COARSE, SPECS, 0.95, 0.3, outcome_names=NAMES, mc_confidence=None)
+    assert guarded.best_probability == pytest.approx(0.05 ** (1 / 200), rel=1e-9)
+    assert plain.best_probability == 1.0
+    assert "at least" in guarded.best_probability_text() and "0.95 Monte Carlo lower bound" in guarded.report()
+    assert plain.best_probability_text() == f"probability {plain.best_probability:.3f}"
+    assert "lower bound" not in plain.best_probability_text()

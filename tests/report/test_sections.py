@@ -81,7 +81,7 @@ def _window(status, reasons=()):
     return SimpleNamespace(status=status, status_reasons=list(reasons), gates=[
         {"name": "convergence", "verdict": "provisional", "reasons": list(reasons)}],
         primary_window=(7.6, 8.4), robust_windows=[(7.9, 8.1)], windows=[(7.6, 8.4)], best_ph=8.0,
-        best_probability=0.99, level=0.95, tolerance=0.3, outcome_names=[], uncertainty_source="posterior",
+        best_probability=0.99, mc_confidence=0.95, level=0.95, tolerance=0.3, outcome_names=[], uncertainty_source="posterior",
         n_draws=100, specifications=[], warnings=[], ph=[7.0, 8.0, 9.0])
 
 

@@ -13,7 +13,7 @@ import numpy as np
 from speciakin._json import json_ready, nan_from_null
 from speciakin.decision.specs import Specification
 
-__all__ = ["WindowResult", "REPORT_HEADINGS"]
+__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words"]
 
 #: Headings of :meth:`WindowResult.report`, always present and in this order.
 REPORT_HEADINGS = (
@@ -39,6 +39,21 @@ def _from_json_array(a: Any) -> np.ndarray | None:
 
 def _intervals(items: Any) -> list[tuple[float, float]]:
     return [(float(a), float(b)) for a, b in (items or [])]
+
+
+def best_probability_words(probability: float | None, mc_confidence: float | None) -> str:
+    """``probability 0.970``, or with the Monte Carlo guard on, what that number is: a lower bound.
+
+    With the guard the best set point's probability is the one-sided lower
+    bound of the share of passing draws (100 of 100 passing draws give 0.970
+    at confidence 0.95), so the text says so beside a table whose shares read
+    1.000.
+    """
+    if probability is None:
+        return ""
+    if mc_confidence is None:
+        return f"probability {probability:.3f}"
+    return f"probability at least {probability:.3f}, the one-sided {mc_confidence:g} Monte Carlo lower bound"
 
 
 @dataclass
@@ -166,6 +181,10 @@ class WindowResult:
     gates: list[dict[str, Any]] = field(default_factory=list)
 
     # ------------------------------------------------------------------ text
+    def best_probability_text(self) -> str:
+        """The best set point's probability in words (:func:`best_probability_words`)."""
+        return best_probability_words(self.best_probability, self.mc_confidence)
+
     def report(self) -> str:
         """Plain-text report with the fixed headings of :data:`REPORT_HEADINGS`."""
         lines = [f"== {REPORT_HEADINGS[0]} =="]
@@ -213,8 +232,7 @@ class WindowResult:
                      f"every pH within +/- {self.tolerance:g})")
         if self.best_ph is not None:
             what = "best set point      " if self.windows else "highest probability "
-            lines.append(f"  {what}   pH {self.best_ph:.2f} "
-                         f"(probability {self.best_probability:.3f})")
+            lines.append(f"  {what}   pH {self.best_ph:.2f} ({self.best_probability_text()})")
         lines.append(f"[{h[4]}]")
         lines.append("   pH     p      MC s.e.  worst(+/-tol)  robust (+/-tol)")
         for k, x in enumerate(self.ph):

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._json import finite_or_none
+from speciakin.decision.result import best_probability_words
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
@@ -159,7 +160,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         text = (f"{status_text}\n\nNo pH in the scanned range meets every specification with probability at "
                 f"least {window.level:g}. ")
         if window.best_ph is not None:
-            text += (f"The highest probability, {window.best_probability:.3f}, is at pH {window.best_ph:.2f}. ")
+            text += f"The highest probability is at pH {window.best_ph:.2f} ({best_probability_words(window.best_probability, window.mc_confidence)}). "
     if outcomes:
         parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
         text += f"Expected outcome at pH {centre_ph:.2f}, median (90 % band): " + "; ".join(parts) + ". "
@@ -172,8 +173,8 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             ("Candidate window" if not established else "Recommended window", format_interval(window.primary_window)),
             ("Robust set points", format_interval(robust)),
             ("All windows", ", ".join(format_interval(w) for w in window.windows) or "none"),
-            ("Best set point", None if window.best_ph is None else f"pH {window.best_ph:.2f} "
-             f"(probability {window.best_probability:.3f})"),
+            ("Best set point", None if window.best_ph is None else
+             f"pH {window.best_ph:.2f} ({best_probability_words(window.best_probability, window.mc_confidence)})"),
             ("Uncertainty source", window.uncertainty_source), ("Draws", window.n_draws)]
     blocks.append(KeyValues(rows, number_format=".3g"))
     gates = gate_table(window)
