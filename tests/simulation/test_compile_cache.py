@@ -334,3 +334,23 @@ def test_the_speciation_is_compiled_once_for_the_held_and_logged_path():
     entries = [key[0] for key in speciation_at._cache._cache_file._load_index()]
     assert len(entries) == 1, entries
     assert not any(isinstance(t, types.Literal) for t in entries[0]), entries
+
+
+def test_the_compile_notice_gives_the_estimate_of_the_variant(monkeypatch):
+    # the variant with neither path compiles in less time than one with a path (bench_compile.py figures
+    # in cache_guard): the notice says so
+    compiled, runs = _campaign(ramp=True)
+    said = []
+
+    def notice(kernel, variant=None, seconds=None):
+        said.append(seconds)
+        return False
+
+    monkeypatch.setattr(api, "notice_compile", notice)
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_cached_on_disk", {v: False for v in VARIANTS})
+    for subset in ([0], [0, 2]):
+        simulate_batch(compiled, _compiled(compiled, [runs[i] for i in subset]), compiled.nominal[None, :],
+                       parallel=False)
+    assert said == [cache_guard.COLD_COMPILE_SECONDS_NO_PATHS, cache_guard.COLD_COMPILE_SECONDS]
+    assert cache_guard.COLD_COMPILE_SECONDS_NO_PATHS < cache_guard.COLD_COMPILE_SECONDS

@@ -21,7 +21,8 @@ from speciakin.simulation.integrator_kernel import microstate_amounts
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
                                          N_INFO)
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_OK, STATUS_TEXT, STATUS_TITRANT_SIGN
-from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
+from speciakin.simulation.cache_guard import (COLD_COMPILE_SECONDS, COLD_COMPILE_SECONDS_NO_PATHS, is_cached,
+                                             refresh_kernel_cache)
 from speciakin.simulation.results import SimulationResult
 from speciakin.simulation.split_compile import compile_paths_apart
 
@@ -35,14 +36,14 @@ _compile_noticed: set = set()  # the variants (numba types of the last arguments
 _variants_loaded: set = set()  # the batch_tasks variants ((free_ph, held_ramp)) run in this process
 
 
-def notice_compile(kernel, variant=None) -> bool:
+def notice_compile(kernel, variant=None, seconds: int = COLD_COMPILE_SECONDS) -> bool:
     """Log once per process and variant, before the first call of ``kernel``, that it
     compiles (its compiled code, or that of the variant whose last arguments have the
-    numba types ``variant``, a type or a tuple of types, is not in the cache yet); returns
-    True when it logged."""
+    numba types ``variant``, a type or a tuple of types, is not in the cache yet) in about
+    ``seconds``; returns True when it logged."""
     if variant not in _compile_noticed and not is_cached(kernel, variant):
         _compile_noticed.add(variant)
-        LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
+        LOG.info("compiling the simulation kernel once (about %d s)", seconds)
         return True
     return False
 
@@ -132,7 +133,8 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     if variant not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
-        if notice_compile(batch_tasks, variant_types(variant)):
+        seconds = COLD_COMPILE_SECONDS if True in variant else COLD_COMPILE_SECONDS_NO_PATHS
+        if notice_compile(batch_tasks, variant_types(variant), seconds):
             # a cold compile: the free-pH path or the held-pH ramp's functions on the second core (split_compile)
             compile_paths_apart(arrays, q_sets, run_arrays, out, info, *variant)
     threads = min(N_THREADS, off.size) if parallel else 1

@@ -36,10 +36,13 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
-#: Rough duration of a cold compile on a quiet two-core machine [s]: to the first parallel
-#: likelihood about 62-67 s without the free-pH path and 64 s with it (the paths compiled side
-#: by side, ``split_compile``; docs/simulation.md) (``benchmarks/bench_compile.py [--demo]``).
+#: Rough duration of a cold compile on a quiet two-core machine [s], to the first parallel
+#: likelihood, of a kernel variant with the free-pH path or the held-pH ramp's (62-67 s, the
+#: paths compiled side by side, ``split_compile``), and of the variant with neither (held pH at
+#: one temperature, logged pH: 49-57 s, load 2-3.5); docs/simulation.md
+#: (``benchmarks/bench_compile.py [--demo]``).
 COLD_COMPILE_SECONDS = 65
+COLD_COMPILE_SECONDS_NO_PATHS = 55
 
 
 def default_cache_dir() -> Path:
