@@ -39,7 +39,7 @@ _STAMP = "speciakin_kernel_sources.sha256"
 #: Rough duration of a cold compile on a quiet two-core machine [s], to the first parallel
 #: likelihood, of a kernel variant with the free-pH path or the held-pH ramp's (62-67 s, the
 #: paths compiled side by side, ``split_compile``), and of the variant with neither (held pH at
-#: one temperature, logged pH: 49-57 s, load 2-3.5); docs/simulation.md
+#: one temperature, logged pH: 52-57 s in five runs of six, load 2-4.8); docs/simulation.md
 #: (``benchmarks/bench_compile.py [--demo]``).
 COLD_COMPILE_SECONDS = 65
 COLD_COMPILE_SECONDS_NO_PATHS = 55
