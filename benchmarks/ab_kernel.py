@@ -107,7 +107,10 @@ def bench_workload():
     args = (compiled.arrays, q, cruns.arrays, off, fac, defaults["rtol"].default, defaults["atol"].default, out,
             status, info)
     # the kernel variant the version's api runs for these runs (a version that compiles one per need)
-    variant = (batch.free_ph_flag(cruns.arrays.mode),) if hasattr(batch, "free_ph_flag") else ()
+    if hasattr(batch, "kernel_flags"):
+        variant = batch.kernel_flags(cruns.arrays)
+    else:
+        variant = (batch.free_ph_flag(cruns.arrays.mode),) if hasattr(batch, "free_ph_flag") else ()
     if hasattr(batch, "batch_tasks"):
         def call():
             batch.batch_tasks(*args, 0, 1, *variant)

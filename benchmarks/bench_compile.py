@@ -2,7 +2,9 @@
 the first simulation and to the first parallel likelihood.
 
 A fresh Python process with an empty temporary ``NUMBA_CACHE_DIR`` builds the
-six-run benchmark of ``bench_kernel.py`` (held pH only), simulates it once on
+six-run benchmark of ``bench_kernel.py`` (held pH only, each run at one
+temperature: no free-pH path and no held-pH ramp, so the kernel variant with
+neither where a version has variants), simulates it once on
 one core, then evaluates the Gaussian log-likelihood of four parameter sets
 over all cores.  With ``--demo`` it takes the bundled demo campaign instead
 (held, logged and free-pH runs, so the kernel with every path): the

@@ -131,18 +131,39 @@ def test_charge_balance_solve_is_one_function_for_chemistry_and_the_kernel():
     assert eq.solve_ph(species, amounts[:2], amounts[2]).ph == pytest.approx(ph_py, abs=1e-13)
 
 
-def test_a_compiled_variant_is_found_in_the_index_by_its_last_argument(tmp_path):
+def test_a_compiled_variant_is_found_in_the_index_by_its_last_arguments(tmp_path):
     from numba import types
 
     index = tmp_path / "batch.nbi"
     index.write_text("x")
-    entries = {((types.float64, types.none), ("cpu",), ("h", "h")): "batch.1.nbc"}
+    entries = {((types.float64, types.none, types.boolean), ("cpu",), ("h", "h")): "batch.1.nbc"}
     kernel = SimpleNamespace(_cache=SimpleNamespace(_enabled=True, _cache_file=SimpleNamespace(
         _index_path=str(index), _load_index=lambda: entries)))
-    assert cache_guard.is_cached(kernel) and cache_guard.is_cached(kernel, types.none)
-    assert not cache_guard.is_cached(kernel, types.boolean)
-    index.unlink()
+    assert cache_guard.is_cached(kernel) and cache_guard.is_cached(kernel, types.boolean)
     assert not cache_guard.is_cached(kernel, types.none)
+    assert cache_guard.is_cached(kernel, (types.none, types.boolean))
+    assert not cache_guard.is_cached(kernel, (types.boolean, types.boolean))
+    assert not cache_guard.is_cached(kernel, (types.none, types.none))
+    assert not cache_guard.is_cached(kernel, (types.int64,) * 4)  # longer than any entry
+    index.unlink()
+    assert not cache_guard.is_cached(kernel, (types.none, types.boolean))
+
+
+#: The four compiled variants of batch_tasks: (free_ph, held_ramp).
+VARIANTS = ((None, None), (None, True), (True, None), (True, True))
+
+
+def _batch_call(compiled, cruns, variant):
+    """batch_tasks of one parameter set (the nominal one) on ``cruns`` in ``variant``: (out, status, info)."""
+    from speciakin.simulation.batch_kernel import batch_tasks
+    from speciakin.simulation.layout import N_INFO
+
+    n = len(cruns.names)
+    out = np.full((1, n, cruns.n_times_max, compiled.n_outputs), np.nan)
+    status, info = np.zeros((1, n), np.int64), np.zeros((1, n, N_INFO))
+    batch_tasks(compiled.arrays, compiled.nominal[None, :], cruns.arrays, cruns.ph_offset[None, :],
+                cruns.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, *variant)
+    return out, status, info
 
 
 def test_the_real_index_knows_the_variants_this_process_compiled_or_loaded():
@@ -150,87 +171,136 @@ def test_the_real_index_knows_the_variants_this_process_compiled_or_loaded():
 
     from speciakin.simulation.batch_kernel import batch_tasks
 
-    from speciakin.simulation.layout import N_INFO
-
     compiled, both, held_only = _two_runs()
     # each variant called by name: which one simulate_batch picks depends on what this process
     # (earlier tests) and the disk cache hold already (api.kernel_variant)
-    for free_ph in (None, True):
-        out = np.full((1, 1, held_only.n_times_max, compiled.n_outputs), np.nan)
-        status, info = np.zeros((1, 1), np.int64), np.zeros((1, 1, N_INFO))
-        batch_tasks(compiled.arrays, compiled.nominal[None, :], held_only.arrays, held_only.ph_offset[None, :],
-                    held_only.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, free_ph)
+    for variant in VARIANTS:
+        _batch_call(compiled, held_only, variant)
     if getattr(batch_tasks, "_cache", None) is None or not batch_tasks._cache._enabled:
         pytest.skip("numba caching is off")
-    assert cache_guard.is_cached(batch_tasks, types.none) and cache_guard.is_cached(batch_tasks, types.boolean)
+    for variant in VARIANTS:
+        assert cache_guard.is_cached(batch_tasks, api.variant_types(variant)), variant
     assert not cache_guard.is_cached(batch_tasks, types.int32)
 
 
-def _two_runs():
-    from sim_models import held, two_site_model, two_site_run
-    from speciakin.chemistry.model import PhControl
-    from speciakin.simulation import compile_model, compile_runs
+def _two_runs(ramp=False):
+    """The two-site model; its runs: held pH, free pH (and with ``ramp`` a held pH and a logged pH
+    under a temperature ramp), all of them and the first alone, compiled."""
+    compiled, runs = _campaign(ramp)
+    return compiled, _compiled(compiled, runs), _compiled(compiled, runs[:1])
+
+
+def _campaign(ramp=False):
+    """The two-site model compiled and the runs of :func:`_two_runs`."""
+    from sim_models import T25, held, two_site_model, two_site_run
+    from speciakin.chemistry.model import PhControl, TemperatureProfile
+    from speciakin.simulation import compile_model
 
     compiled = compile_model(two_site_model())
     runs = [two_site_run(held(8.0), name="held", end=3600.0),
             two_site_run(PhControl("free"), name="free", end=3600.0, chloride=0.12, sodium=0.2)]
-    times = [np.linspace(0.0, 3600.0, 7)] * 2
-    return compiled, compile_runs(compiled, runs, times), compile_runs(compiled, runs[:1], times[:1])
+    if ramp:
+        warming = TemperatureProfile((0.0, 3600.0), (T25, T25 + 12.0))
+        logged = PhControl("logged", log_times=(0.0, 1800.0, 3600.0), log_ph=(7.4, 7.6, 8.0), titrant="Na",
+                           titrant_concentration=1.0)
+        runs += [two_site_run(held(8.0), name="held ramp", end=3600.0, temperature=warming),
+                 two_site_run(logged, name="logged ramp", end=3600.0, temperature=warming)]
+    return compiled, runs
 
 
-def test_kernel_variant_without_the_free_ph_path():
-    # runs without a free pH are given the variant compiled without the free-pH path: the same outputs
-    # to the last bit (the same held-pH code), and a free-pH run given to it says so instead of running
-    from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag
-    from speciakin.simulation.layout import N_INFO
-    from speciakin.simulation.status import STATUS_NOT_COMPILED, STATUS_OK
+def _compiled(compiled, runs):
+    from speciakin.simulation import compile_runs
 
-    compiled, both, held_only = _two_runs()
-    assert free_ph_flag(both.arrays.mode) is True and free_ph_flag(held_only.arrays.mode) is None
-    results = {}
-    for free_ph in (True, None):
-        out = np.full((1, 2, both.n_times_max, compiled.n_outputs), np.nan)
-        status, info = np.zeros((1, 2), np.int64), np.zeros((1, 2, N_INFO))
-        batch_tasks(compiled.arrays, compiled.nominal[None, :], both.arrays, both.ph_offset[None, :],
-                    both.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, free_ph)
-        results[free_ph] = out, status
-    assert results[True][1].tolist() == [[STATUS_OK, STATUS_OK]]
-    assert results[None][1].tolist() == [[STATUS_OK, STATUS_NOT_COMPILED]]
-    np.testing.assert_array_equal(results[None][0][0, 0], results[True][0][0, 0])
+    return compile_runs(compiled, runs, [np.linspace(0.0, 3600.0, 7)] * len(runs))
 
 
-def test_the_kernel_variant_leaves_the_free_ph_path_out_only_when_nothing_needs_it(monkeypatch):
-    compiled, both, held_only = _two_runs()
-    held, mixed = held_only.arrays.mode, both.arrays.mode
+def test_the_kernel_flags_follow_the_paths_the_runs_take():
+    from speciakin.simulation.batch_kernel import free_ph_flag, held_ramp_flag, kernel_flags
+
+    compiled, every, held_only = _two_runs(ramp=True)
+    runs = every.arrays
+    assert free_ph_flag(every.arrays.mode) is True and free_ph_flag(held_only.arrays.mode) is None
+    assert kernel_flags(held_only.arrays) == (None, None)
+    assert kernel_flags(runs) == (True, True)
+    # the held-pH ramp path is taken by a held pH whose temperature changes, not by a logged pH under a ramp
+    for subset, expected in (([0], None), ([2], True), ([3], None), ([1, 3], None), ([0, 3, 2], True)):
+        assert held_ramp_flag(runs.mode[subset], runs.temp_v[subset], runs.temp_n[subset]) is expected, subset
+    # a profile of several points at one temperature is no ramp
+    flat = runs.temp_v[[2]].copy()
+    flat[0, :runs.temp_n[2]] = flat[0, 0]
+    assert held_ramp_flag(runs.mode[[2]], flat, runs.temp_n[[2]]) is None
+
+
+def test_each_kernel_variant_gives_the_full_kernels_outputs_or_says_what_it_lacks():
+    # every variant runs the runs whose paths it has to the same outputs, to the last bit, as the kernel
+    # with every path (the same compiled code for them); a run whose path was left out gets its status
+    from speciakin.simulation.status import STATUS_NOT_COMPILED, STATUS_OK, STATUS_RAMP_NOT_COMPILED
+
+    compiled, every, held_only = _two_runs(ramp=True)
+    full, full_status, full_info = _batch_call(compiled, every, (True, True))
+    assert full_status.tolist() == [[STATUS_OK] * 4]
+    for free_ph, held_ramp in VARIANTS[:-1]:
+        out, status, info = _batch_call(compiled, every, (free_ph, held_ramp))
+        expected = [STATUS_OK, STATUS_OK if free_ph else STATUS_NOT_COMPILED,
+                    STATUS_OK if held_ramp else STATUS_RAMP_NOT_COMPILED, STATUS_OK]
+        assert status.tolist() == [expected], (free_ph, held_ramp)
+        for r in np.flatnonzero(np.array(expected) == STATUS_OK):
+            np.testing.assert_array_equal(out[0, r], full[0, r])
+            np.testing.assert_array_equal(info[0, r], full_info[0, r])
+    # the ramp run in the variant without its path fails at its first ramp segment, at t = 0
+    assert info[0, 2, 0] == 0.0
+
+
+def test_the_kernel_variant_has_only_the_paths_the_runs_need(monkeypatch):
+    compiled, runs = _campaign(ramp=True)
+    plain, free, held_ramp, every = (_compiled(compiled, [runs[i] for i in subset]).arrays
+                                     for subset in ([0, 3], [0, 1], [0, 2], [0, 1, 2, 3]))
     monkeypatch.setattr(api, "_variants_loaded", set())
-    monkeypatch.setattr(api, "_only_full_cached", [False])
-    assert api.kernel_variant(held) is None and api.kernel_variant(mixed) is True
-    assert api.kernel_variant(held, with_free_ph=True) is True  # free-pH runs follow: one compile for both
-    monkeypatch.setattr(api, "_variants_loaded", {True})
-    assert api.kernel_variant(held) is True  # the full kernel is in the process: nothing more to compile
-    monkeypatch.setattr(api, "_variants_loaded", {None, True})
-    assert api.kernel_variant(held) is None
+    monkeypatch.setattr(api, "_cached_on_disk", {v: False for v in VARIANTS})
+    assert api.kernel_variant(plain) == (None, None)
+    assert api.kernel_variant(held_ramp) == (None, True)
+    assert api.kernel_variant(free) == (True, None)
+    assert api.kernel_variant(every) == (True, True)
+    assert api.kernel_variant(plain, with_free_ph=True) == (True, None)  # free-pH runs follow: one compile
+    assert api.kernel_variant(held_ramp, with_free_ph=True) == (True, True)
+    # a variant in the process with every path needed: nothing more to compile (the fewest paths first)
+    monkeypatch.setattr(api, "_variants_loaded", {(True, True)})
+    assert api.kernel_variant(plain) == api.kernel_variant(held_ramp) == (True, True)
+    monkeypatch.setattr(api, "_variants_loaded", {(True, True), (None, True)})
+    assert api.kernel_variant(plain) == api.kernel_variant(held_ramp) == (None, True)
+    assert api.kernel_variant(free) == (True, True)
+    monkeypatch.setattr(api, "_variants_loaded", {(True, None), (None, True)})
+    assert api.kernel_variant(every) == (True, True)  # none has both: the full kernel is compiled
+    monkeypatch.setattr(api, "_variants_loaded", {(None, None)})
+    assert api.kernel_variant(plain) == (None, None)
+    # nothing in the process: the needed variant when on disk, else one with more paths on disk
     monkeypatch.setattr(api, "_variants_loaded", set())
-    monkeypatch.setattr(api, "_only_full_cached", [True])
-    assert api.kernel_variant(held) is True  # only the full kernel on disk: loaded, not the other compiled
+    monkeypatch.setattr(api, "_cached_on_disk", {(None, None): False, (None, True): False, (True, None): True,
+                                                 (True, True): True})
+    assert api.kernel_variant(plain) == (True, None) and api.kernel_variant(held_ramp) == (True, True)
+    monkeypatch.setattr(api, "_cached_on_disk", {(None, None): True, (None, True): False, (True, None): True,
+                                                 (True, True): True})
+    assert api.kernel_variant(plain) == (None, None)
 
 
 def test_the_batch_runs_the_chosen_variant(monkeypatch):
-    compiled, both, held_only = _two_runs()
+    compiled, runs = _campaign(ramp=True)
     asked = []
     real = api.batch_tasks
 
     def recording(*args):
-        asked.append(args[-1])
+        asked.append(args[-2:])
         real(*args)
 
     monkeypatch.setattr(api, "batch_tasks", recording)
     monkeypatch.setattr(api, "_variants_loaded", set())
-    monkeypatch.setattr(api, "_only_full_cached", [False])
-    for cruns, hint in ((held_only, False), (held_only, True), (both, False)):
+    monkeypatch.setattr(api, "_cached_on_disk", {v: False for v in VARIANTS})
+    for subset, hint in (([0], False), ([0], True), ([0, 2], False), ([0, 1, 2, 3], False)):
+        cruns = _compiled(compiled, [runs[i] for i in subset])
         result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False, with_free_ph=hint)
         assert np.all(result.status == 0)
-    assert asked == [None, True, True]
+    # (True, None) in the process serves the held runs asked with a hint; the ramp then needs another
+    assert asked == [(None, None), (True, None), (None, True), (True, True)]
 
 
 def test_a_division_by_zero_in_the_kernel_is_a_solver_error(monkeypatch):
@@ -264,3 +334,23 @@ def test_the_speciation_is_compiled_once_for_the_held_and_logged_path():
     entries = [key[0] for key in speciation_at._cache._cache_file._load_index()]
     assert len(entries) == 1, entries
     assert not any(isinstance(t, types.Literal) for t in entries[0]), entries
+
+
+def test_the_compile_notice_gives_the_estimate_of_the_variant(monkeypatch):
+    # the variant with neither path compiles in less time than one with a path (bench_compile.py figures
+    # in cache_guard): the notice says so
+    compiled, runs = _campaign(ramp=True)
+    said = []
+
+    def notice(kernel, variant=None, seconds=None):
+        said.append(seconds)
+        return False
+
+    monkeypatch.setattr(api, "notice_compile", notice)
+    monkeypatch.setattr(api, "_variants_loaded", set())
+    monkeypatch.setattr(api, "_cached_on_disk", {v: False for v in VARIANTS})
+    for subset in ([0], [0, 2]):
+        simulate_batch(compiled, _compiled(compiled, [runs[i] for i in subset]), compiled.nominal[None, :],
+                       parallel=False)
+    assert said == [cache_guard.COLD_COMPILE_SECONDS_NO_PATHS, cache_guard.COLD_COMPILE_SECONDS]
+    assert cache_guard.COLD_COMPILE_SECONDS_NO_PATHS < cache_guard.COLD_COMPILE_SECONDS

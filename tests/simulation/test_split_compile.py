@@ -20,17 +20,17 @@ from speciakin.simulation.layout import N_INFO
 HERE = Path(__file__).parent
 
 
-def _batch(held_only=False):
-    """The two-site model with a held-pH run under a temperature ramp and a free-pH run (or the held
-    one only), and the arrays of one batch call."""
+def _batch(held_only=False, ramp=True):
+    """The two-site model with a held-pH run under a temperature ramp (or, without ``ramp``, at one
+    temperature) and a free-pH run (or the held one only), and the arrays of one batch call."""
     sys.path.insert(0, str(HERE))
     from sim_models import T25, held, two_site_model, two_site_run
     from speciakin.chemistry.model import PhControl, TemperatureProfile
     from speciakin.simulation import compile_model, compile_runs
 
     compiled = compile_model(two_site_model())
-    ramp = TemperatureProfile((0.0, 3600.0), (T25, T25 + 12.0))
-    runs = [two_site_run(held(8.0), name="held", end=3600.0, temperature=ramp),
+    warming = TemperatureProfile((0.0, 3600.0), (T25, T25 + 12.0 if ramp else T25))
+    runs = [two_site_run(held(8.0), name="held", end=3600.0, temperature=warming),
             two_site_run(PhControl("free"), name="free", end=3600.0, chloride=0.12, sodium=0.2)]
     runs = runs[:1] if held_only else runs
     cruns = compile_runs(compiled, runs, [np.linspace(0.0, 3600.0, 7)] * len(runs))
@@ -55,14 +55,17 @@ def test_the_path_signatures_are_those_run_one_compiles_its_paths_with():
     compiled, cruns, out, status, info = _batch()
     q = compiled.nominal[None, :].copy()
     batch_tasks(compiled.arrays, q, cruns.arrays, cruns.ph_offset[None, :], cruns.amount_factor[None, :], 1e-6,
-                1e-10, out, status, info, 0, 1, True)
+                1e-10, out, status, info, 0, 1, True, True)
     assert status.tolist() == [[0, 0]]
     if getattr(integrate_segment, "_cache", None) is None or not integrate_segment._cache._enabled:
         pytest.skip("numba caching is off")
     from speciakin.simulation.segment_kernel import smooth_steps
 
     smooth, segment, shared, ramp, steps = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info)
-    assert _index_signatures(integrate_smooth) == {smooth}
+    # integrate_smooth: one entry per held_ramp flag (its last argument), as worked out here
+    without_ramp = split_compile.path_signatures(compiled.arrays, q, cruns.arrays, out, info, None)[0]
+    assert without_ramp[:-1] == smooth[:-1] and without_ramp[-1] != smooth[-1]
+    assert smooth in _index_signatures(integrate_smooth) <= {smooth, without_ramp}
     assert _index_signatures(integrate_segment) == {segment}
     # the step loop is not cached (made by a factory): its variants of this process, when it compiled them
     assert set(smooth_steps.overloads) <= {steps}
@@ -107,7 +110,7 @@ from speciakin.simulation import simulate_batch, split_compile
 from speciakin.simulation.integrator_kernel import integrate_segment
 from speciakin.simulation.segment_kernel import integrate_smooth
 from speciakin.simulation.held_ramp_kernel import temperature_piece
-compiled, cruns, out, status, info = _batch(sys.argv[2] == "held")
+compiled, cruns, out, status, info = _batch(sys.argv[2] != "both", sys.argv[2] != "plain")
 result = simulate_batch(compiled, cruns, compiled.nominal[None, :], parallel=False)
 stats = {name: (sum(d.stats.cache_hits.values()), sum(d.stats.cache_misses.values()))
          for name, d in (("segment", integrate_segment), ("smooth", integrate_smooth), ("ramp", temperature_piece))}
@@ -120,11 +123,12 @@ print(json.dumps({"outputs": result.outputs.tolist(), "status": result.status.to
 
 @pytest.mark.slow
 @pytest.mark.skipif(sys.platform == "win32", reason="a POSIX shell for the probe")
-@pytest.mark.parametrize("runs", ["both", "held"])
+@pytest.mark.parametrize("runs", ["both", "held", "plain"])
 def test_a_cold_compile_loads_what_the_second_process_compiled(tmp_path, runs):
     # from an empty cache: this process compiles the held/logged path, loads the held-pH ramp's functions
-    # and (with a free-pH run) the free-pH path from the cache (one hit, no miss) and gives the same
-    # outputs, to the last bit, as the kernel compiled in one process
+    # (with a held-pH run under a ramp and no free-pH run) or the free-pH path (with a free-pH run) from the
+    # cache (one hit, no miss) and gives the same outputs, to the last bit, as the kernel with every path
+    # compiled in one process; held-pH runs at one temperature compile neither path, in one process
     from speciakin.simulation.batch_kernel import batch_tasks
 
     env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path / "cache"),
@@ -136,20 +140,21 @@ def test_a_cold_compile_loads_what_the_second_process_compiled(tmp_path, runs):
     cold = json.loads(done.stdout.strip().splitlines()[-1])
     assert cold["stats"]["segment"] == ([1, 0] if runs == "both" else [0, 0])
     assert cold["stats"]["smooth"][1] == 1
-    assert cold["stats"]["ramp"] == ([0, 1] if runs == "both" else [1, 0])
+    assert cold["stats"]["ramp"] == {"both": [0, 1], "held": [1, 0], "plain": [0, 0]}[runs]
     assert cold["stats"]["steps"] == [1]  # compiled once (first, for the types integrate_smooth then uses)
     # each function compiled in one process only (one copy in the drivers' code); the free-pH path there,
-    # without it the held-pH ramp
+    # without it the held-pH ramp; with neither no second process
     ramp = "speciakin.simulation.held_ramp_kernel.temperature_piece"
     assert (ramp in cold["there"]) == (runs == "held") and (ramp in cold["here"]) == (runs == "both")
+    assert (cold["there"] == {}) == (runs == "plain")
     segment = "speciakin.simulation.integrator_kernel.integrate_segment"
     assert (segment in cold["there"]) == (runs == "both")
     assert "speciakin.simulation.segment_kernel.integrate_smooth" in cold["here"]
     assert not set(cold["here"]) & set(cold["there"])
     # the reference: the full kernel of this process (called directly: the variant bookkeeping of the
     # public functions stays as the other tests left it)
-    compiled, cruns, out, status, info = _batch(runs == "held")
+    compiled, cruns, out, status, info = _batch(runs != "both", runs != "plain")
     batch_tasks(compiled.arrays, compiled.nominal[None, :].copy(), cruns.arrays, cruns.ph_offset[None, :],
-                cruns.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, True)
+                cruns.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, True, True)
     assert cold["status"] == status.tolist() == [[0] * len(cruns.ph_offset)]
     np.testing.assert_array_equal(np.array(cold["outputs"]), out)

@@ -15,13 +15,14 @@ from numba import typeof as numba_typeof
 
 from speciakin.chemistry.model import Model, Run
 from speciakin.errors import InputError, Location, SolverError
-from speciakin.simulation.batch_kernel import batch_tasks, free_ph_flag, gaussian_loglik
+from speciakin.simulation.batch_kernel import batch_tasks, gaussian_loglik, kernel_flags
 from speciakin.simulation.compile import CompiledModel, CompiledRuns, compile_model, compile_runs
 from speciakin.simulation.integrator_kernel import microstate_amounts
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
                                          N_INFO)
 from speciakin.simulation.status import STATUS_NO_ADJUSTING_ION, STATUS_OK, STATUS_TEXT, STATUS_TITRANT_SIGN
-from speciakin.simulation.cache_guard import COLD_COMPILE_SECONDS, is_cached, refresh_kernel_cache
+from speciakin.simulation.cache_guard import (COLD_COMPILE_SECONDS, COLD_COMPILE_SECONDS_NO_PATHS, is_cached,
+                                             refresh_kernel_cache)
 from speciakin.simulation.results import SimulationResult
 from speciakin.simulation.split_compile import compile_paths_apart
 
@@ -31,19 +32,25 @@ if _cache is not None and getattr(_cache, "_cache_path", None):
 
 #: Records of this layer (the command line shows them on stderr; a library user may attach a handler).
 LOG = logging.getLogger("speciakin.simulation")
-_compile_noticed: set = set()  # the variants (numba type of the last argument) announced in this process
-_variants_loaded: set = set()  # the batch_tasks variants (free_ph) run in this process
+_compile_noticed: set = set()  # the variants (numba types of the last arguments) announced in this process
+_variants_loaded: set = set()  # the batch_tasks variants ((free_ph, held_ramp)) run in this process
 
 
-def notice_compile(kernel, variant=None) -> bool:
+def notice_compile(kernel, variant=None, seconds: int = COLD_COMPILE_SECONDS) -> bool:
     """Log once per process and variant, before the first call of ``kernel``, that it
-    compiles (its compiled code, or that of the variant whose last argument has the
-    numba type ``variant``, is not in the cache yet); returns True when it logged."""
+    compiles (its compiled code, or that of the variant whose last arguments have the
+    numba types ``variant``, a type or a tuple of types, is not in the cache yet) in about
+    ``seconds``; returns True when it logged."""
     if variant not in _compile_noticed and not is_cached(kernel, variant):
         _compile_noticed.add(variant)
-        LOG.info("compiling the simulation kernel once (about %d s)", COLD_COMPILE_SECONDS)
+        LOG.info("compiling the simulation kernel once (about %d s)", seconds)
         return True
     return False
+
+
+def variant_types(variant) -> tuple:
+    """The numba types of ``batch_tasks``'s last arguments for ``variant`` ((free_ph, held_ramp))."""
+    return tuple(numba_typeof(flag) for flag in variant)
 
 
 #: Threads of a parallel batch (numba's thread count: NUMBA_NUM_THREADS, default the number of cores).
@@ -61,30 +68,46 @@ def _threads() -> ThreadPoolExecutor:
     return _pool
 
 
-_only_full_cached: list = []  # [bool] once asked: the disk cache holds the full kernel and not the other
+_cached_on_disk: dict = {}  # {variant: bool} once asked: the disk cache holds that variant of batch_tasks
 
 
-def kernel_variant(run_modes, with_free_ph: bool = False):
-    """``free_ph`` of ``batch_kernel.batch_tasks`` for runs with these pH mode codes.
+def _covers(variant, needed) -> bool:
+    """True when the compiled ``variant`` has every path ``needed`` (each flag True or None)."""
+    return all(have is True or need is None for have, need in zip(variant, needed))
 
-    True (the kernel with every path) when a run has a free pH or the caller
-    says that free-pH runs follow in this process (``with_free_ph``), else
-    None (the kernel without the free-pH path: less to compile), unless the
-    full kernel alone is at hand (run in this process, or, before any run,
-    cached on disk while the other is not).  Both variants give the same
-    outputs for runs without a free pH (the same compiled held/logged path),
-    so the choice only decides what is compiled.
+
+def _paths(variant):
+    """Sort key: the variants with fewer paths first (then a fixed order)."""
+    return variant.count(True), str(variant)
+
+
+def kernel_variant(runs, with_free_ph: bool = False) -> tuple:
+    """(``free_ph``, ``held_ramp``) of ``batch_kernel.batch_tasks`` for the kernel's runs tuple
+    ``runs`` (``CompiledRuns.arrays``).
+
+    Each flag is True (the variant with that path) when a run needs the path
+    (a free pH; a held pH under a temperature ramp) or, for the free-pH path,
+    the caller says that free-pH runs follow in this process
+    (``with_free_ph``), else None (the path left out: less to compile).  A
+    variant that has every needed path and is at hand is taken instead of
+    compiling the one needed: one run in this process (the one with fewest
+    paths), or, when the needed one is not on disk, one on disk.  Every
+    variant gives the same outputs for the runs it can take (the same
+    compiled code for them), so the choice only decides what is compiled.
     """
-    if with_free_ph or free_ph_flag(run_modes):
-        return True
-    if None in _variants_loaded:
-        return None
-    if True in _variants_loaded:
-        return True
-    if not _only_full_cached:
-        _only_full_cached.append(is_cached(batch_tasks, numba_typeof(True))
-                                 and not is_cached(batch_tasks, numba_typeof(None)))
-    return True if _only_full_cached[0] else None
+    free_ph, held_ramp = kernel_flags(runs)
+    needed = (True if with_free_ph else free_ph, held_ramp)
+    loaded = sorted((v for v in _variants_loaded if _covers(v, needed)), key=_paths)
+    if loaded:
+        return loaded[0]
+    # the variants with every needed path, fewest paths first
+    wider = [v for v in ((a, b) for a in (None, True) for b in (None, True)) if v != needed and _covers(v, needed)]
+    for variant in [needed] + sorted(wider, key=_paths):
+        if variant not in _cached_on_disk:
+            _cached_on_disk[variant] = is_cached(batch_tasks, variant_types(variant))
+        if _cached_on_disk[variant]:
+            return variant
+    return needed
 
 
 #: The runs of the last batch, the caller's ``with_free_ph`` and the variant chosen
@@ -103,23 +126,24 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
     args = (arrays, q_sets, run_arrays, off, fac, float(rtol), float(atol), out, status, info)
     last = _last_runs
     if last[0] is run_arrays and last[1] == with_free_ph:
-        free_ph = last[2]
+        variant = last[2]
     else:
-        free_ph = kernel_variant(run_arrays.mode, with_free_ph)
-        _last_runs = (run_arrays, with_free_ph, free_ph)
-    if free_ph not in _variants_loaded:
+        variant = kernel_variant(run_arrays, with_free_ph)
+        _last_runs = (run_arrays, with_free_ph, variant)
+    if variant not in _variants_loaded:
         # the cache is looked at before a variant's first call only: then its compiled code is in the
         # process (a look is a file-system call, several microseconds per call)
-        if notice_compile(batch_tasks, numba_typeof(free_ph)):
-            # a cold compile: the held-pH ramp's functions (and the free-pH path) on the second core (split_compile)
-            compile_paths_apart(arrays, q_sets, run_arrays, out, info, free_ph is True)
+        seconds = COLD_COMPILE_SECONDS if True in variant else COLD_COMPILE_SECONDS_NO_PATHS
+        if notice_compile(batch_tasks, variant_types(variant), seconds):
+            # a cold compile: the free-pH path or the held-pH ramp's functions on the second core (split_compile)
+            compile_paths_apart(arrays, q_sets, run_arrays, out, info, *variant)
     threads = min(N_THREADS, off.size) if parallel else 1
     try:
         if threads <= 1:
-            batch_tasks(*args, 0, 1, free_ph)
+            batch_tasks(*args, 0, 1, *variant)
         else:
-            shares = [_threads().submit(batch_tasks, *args, i, threads, free_ph) for i in range(1, threads)]
-            batch_tasks(*args, 0, threads, free_ph)
+            shares = [_threads().submit(batch_tasks, *args, i, threads, *variant) for i in range(1, threads)]
+            batch_tasks(*args, 0, threads, *variant)
             for share in shares:
                 share.result()
     except ZeroDivisionError as exc:
@@ -128,7 +152,7 @@ def run_kernel(arrays, q_sets, run_arrays, off, fac, rtol, atol, out, status, in
         raise SolverError("the simulation divided by zero: a parameter value (a pKa, an enthalpy, a rate "
                           "constant or its activation energy) lies far outside what a solution can have; "
                           "check the model file's values and bounds") from exc
-    _variants_loaded.add(free_ph)
+    _variants_loaded.add(variant)
 
 
 __all__ = ["simulate", "simulate_batch", "BatchResult", "batch_log_likelihood", "default_times",

@@ -8,11 +8,13 @@ core (``first`` 0, ``stride`` 1) and all cores (``api`` calls it from one
 thread per core, thread i taking tasks i, i + T, ...).  Every compiled entry
 point compiles and optimises the whole kernel again (numba links each
 callee's code into its caller), so the kernel has this one; a ``prange``
-variant beside a serial one doubled the cold compile.  It is compiled in two
-variants, and a process compiles only those its runs need: ``free_ph`` None
+variant beside a serial one doubled the cold compile.  It is compiled in up to
+four variants, and a process compiles only those its runs need: ``free_ph`` None
 (no run has a free pH: the free-pH integrator, its Jacobian and step loop are
-not compiled) or True (every path); ``api`` chooses from the runs'
-pH modes (:func:`free_ph_flag`).
+not compiled) or True, and ``held_ramp`` None (no held-pH run under a
+temperature ramp: the cubics in the temperature of ``held_ramp_kernel`` are not
+compiled) or True; ``api`` chooses from the runs' pH modes and temperature
+profiles (:func:`kernel_flags`).
 
 The Gaussian log-likelihood is computed inside compiled code:
 log L = -1/2 sum ((d - y) / sigma)^2 - sum log(sigma) - N/2 log(2 pi),
@@ -29,7 +31,7 @@ import numpy as np
 from numba import njit
 
 from speciakin.simulation.integrator_kernel import run_one, run_workspaces
-from speciakin.simulation.rhs_kernel import MODE_FREE
+from speciakin.simulation.rhs_kernel import MODE_FREE, MODE_HELD
 from speciakin.simulation.status import STATUS_OK
 
 _LOG_2PI = math.log(2.0 * math.pi)
@@ -37,12 +39,13 @@ _LOG_2PI = math.log(2.0 * math.pi)
 
 @njit(cache=True, nogil=True)
 def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, first, stride,
-                free_ph=True):
+                free_ph=True, held_ramp=True):
     """Fill ``out`` (n_sets, n_runs, n_times, n_outputs), ``status``, ``info`` for the
     tasks first, first + stride, ... (task = run * n_sets + set: with many sets, each
     thread gets an equal share of every run, whose costs differ widely).  ``free_ph``:
     None when no run has a free pH (the variant compiled for None leaves the free-pH
-    path out, see ``integrator_kernel.run_one``), else True."""
+    path out, see ``integrator_kernel.run_one``), else True; ``held_ramp`` likewise for a held pH
+    under a temperature ramp (``held_ramp_kernel``)."""
     n_sets = q_all.shape[0]
     n_runs = ph_offset.shape[1]
     if first >= n_sets * n_runs:
@@ -53,12 +56,28 @@ def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, s
         r = task // n_sets
         s = task % n_sets
         status[s, r] = run_one(model, q_all[s], runs, r, ph_offset[s, r], amount_factor[s, r], rtol, atol,
-                               out[s, r], info[s, r], ws, sw, free_ph)
+                               out[s, r], info[s, r], ws, sw, free_ph, held_ramp)
 
 
 def free_ph_flag(run_modes):
     """``batch_tasks``'s ``free_ph`` for runs with these pH mode codes: True when one is free, else None."""
     return True if np.any(np.asarray(run_modes) == MODE_FREE) else None
+
+
+def held_ramp_flag(run_modes, temp_v, temp_n):
+    """``batch_tasks``'s ``held_ramp`` for runs with these pH mode codes and temperature profiles
+    (values ``temp_v[r, :temp_n[r]]``): True when a held-pH run's temperature changes, else None."""
+    for r in np.flatnonzero(np.asarray(run_modes) == MODE_HELD):
+        values = temp_v[r, :temp_n[r]]
+        if np.any(values != values[0]):
+            return True
+    return None
+
+
+def kernel_flags(runs):
+    """(``free_ph``, ``held_ramp``) of ``batch_tasks`` for the kernel's runs tuple ``runs``
+    (``CompiledRuns.arrays``): the compiled variant with only the paths these runs take."""
+    return free_ph_flag(runs.mode), held_ramp_flag(runs.mode, runs.temp_v, runs.temp_n)
 
 
 @njit(cache=True)

@@ -36,10 +36,13 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
-#: Rough duration of a cold compile on a quiet two-core machine [s]: to the first parallel
-#: likelihood about 62-67 s without the free-pH path and 64 s with it (the paths compiled side
-#: by side, ``split_compile``; docs/simulation.md) (``benchmarks/bench_compile.py [--demo]``).
+#: Rough duration of a cold compile on a quiet two-core machine [s], to the first parallel
+#: likelihood, of a kernel variant with the free-pH path or the held-pH ramp's (62-67 s, the
+#: paths compiled side by side, ``split_compile``), and of the variant with neither (held pH at
+#: one temperature, logged pH: 52-57 s in five runs of six, load 2-4.8); docs/simulation.md
+#: (``benchmarks/bench_compile.py [--demo]``).
 COLD_COMPILE_SECONDS = 65
+COLD_COMPILE_SECONDS_NO_PATHS = 55
 
 
 def default_cache_dir() -> Path:
@@ -120,9 +123,10 @@ def refresh_kernel_cache(cache_path: str | os.PathLike) -> bool:
 def is_cached(dispatcher, last_arg_type=None) -> bool:
     """True when the compiled function ``dispatcher`` has an index on disk (or caching is off).
 
-    With ``last_arg_type`` (a numba type), only when the index holds a compiled
-    variant whose last argument has that type (``batch_kernel.batch_tasks`` is
-    compiled per ``free_ph``: None or True).
+    With ``last_arg_type`` (a numba type, or a tuple of them for the last
+    arguments), only when the index holds a compiled variant whose last
+    argument(s) have that type (``batch_kernel.batch_tasks`` is compiled per
+    ``free_ph`` and ``held_ramp``: None or True each).
     """
     cache = getattr(dispatcher, "_cache", None)
     cache_file = getattr(cache, "_cache_file", None)
@@ -133,9 +137,10 @@ def is_cached(dispatcher, last_arg_type=None) -> bool:
         return False
     if last_arg_type is None:
         return True
+    last = tuple(last_arg_type) if isinstance(last_arg_type, tuple) else (last_arg_type,)
     try:
         # numba's index: {(argument types, machine, source hashes): data file}
         entries = cache_file._load_index()
     except Exception:  # an index numba itself could not read: it recompiles and says nothing either
         return True
-    return any(len(key[0]) > 0 and key[0][-1] == last_arg_type for key in entries)
+    return any(len(key[0]) >= len(last) and tuple(key[0][-len(last):]) == last for key in entries)

@@ -24,6 +24,10 @@ them); a segment ends a sub-segment where its temperature crosses into the
 next piece.  So a run pays a few speciations for its whole temperature range
 instead of five per sub-segment.  When 8 pieces still fail (a wide range), the
 run falls back to the cubics in time of ``segment_kernel``.
+
+Only the kernel variant for campaigns with such a run compiles this module's
+functions (``batch_kernel.batch_tasks`` with ``held_ramp`` True; the flag is
+chosen from the runs by ``simulation.api.kernel_variant``).
 """
 
 from __future__ import annotations

@@ -240,7 +240,8 @@ def run_workspaces(model):
 
 
 @njit(cache=True)
-def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw, free_ph=True):
+def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw, free_ph=True,
+            held_ramp=True):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
 
     ``out[i, :]`` = amounts of every species [mol], volume [L], pH, titrant
@@ -254,7 +255,10 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
     run of the batch has a free pH; the free-pH path (:func:`integrate_segment`
     and all it calls) is then left out of this compiled variant (numba drops
     the branch on ``free_ph is None`` when compiling for a None argument), and a free-pH run
-    gets ``STATUS_NOT_COMPILED``.  Returns the status code.
+    gets ``STATUS_NOT_COMPILED``.  ``held_ramp``: None when no run of the batch holds its pH
+    under a temperature ramp; the ramp's cubics in the temperature (``held_ramp_kernel``)
+    are then left out the same way (``segment_kernel.integrate_smooth``), and such a run gets
+    ``STATUS_RAMP_NOT_COMPILED``.  Returns the status code.
     """
     n_mol = model.n_mol
     n_species = model.n_species
@@ -380,7 +384,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
             # the acid-base state depends on time only: mass-action path (segment_kernel)
             status, h, i_out = integrate_smooth(t, t_next, y, h, model, par, ctx, ws, sw, feed_rate,
                                                 feed_volume_rate, temp_slope, nonauto, rtol, atol, out, out_t, i_out,
-                                                n_out, counters, step_tol, peak)
+                                                n_out, counters, step_tol, peak, held_ramp)
         elif free_ph is None:
             status = STATUS_NOT_COMPILED
         else:

@@ -72,7 +72,7 @@ from speciakin.simulation.profile_kernel import interpolate, logged_ph
 from speciakin.simulation.rhs_kernel import MODE_HELD, time_speciation
 from speciakin.simulation.smooth_rhs_kernel import (evaluate_cubic, fit_cubics, segment_coefficients, smooth_jacobian,
                                                     smooth_rhs, smooth_time_derivative, stoichiometry)
-from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_STEP_UNDERFLOW
+from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK, STATUS_RAMP_NOT_COMPILED, STATUS_STEP_UNDERFLOW
 from speciakin.simulation.rodas_tableau import N_DENSE, N_STAGES
 from speciakin.simulation.rosenbrock_kernel import make_step_loop, write_output
 
@@ -210,7 +210,7 @@ def reset_smooth_workspace(sw):
 
 @leaf_kernel
 def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volume_rate, temperature_slope,
-                     varying, rtol, atol, out, out_t, i_out, n_out, counters, sign_tol, peak):
+                     varying, rtol, atol, out, out_t, i_out, n_out, counters, sign_tol, peak, held_ramp=True):
     """Advance ``y`` from t0 to exactly t1 with Rodas5 [1]_ (held or logged pH).
 
     ``varying`` = the pH or the temperature changes inside the segment (the
@@ -218,7 +218,11 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
     times strictly inside (t0, t1) from index ``i_out`` are written to
     ``out`` from the continuous extension of each step.  ``sw``: the run's work arrays
     (:func:`make_smooth_workspace`).  ``sign_tol``, ``peak``: see
-    :data:`smooth_steps` (``rosenbrock_kernel``).
+    :data:`smooth_steps` (``rosenbrock_kernel``).  ``held_ramp``: None when no run of the
+    batch holds its pH under a temperature ramp; the ramp's cubics in the temperature
+    (``held_ramp_kernel``) are then left out of this compiled variant (numba drops the branch
+    on ``held_ramp is None`` when compiling for a None argument), and a segment that would
+    need them returns ``STATUS_RAMP_NOT_COMPILED``.
 
     Returns
     -------
@@ -290,27 +294,33 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         piece = -1
         temp_a = 0.0
         if varying and ph_is_held and temperature_slope != 0.0 and tstate[0] >= 0.0:
-            # held pH under a ramp: cubics in the temperature, made once per run (held_ramp_kernel)
-            if math.isnan(tstate[1]):
-                t_low, t_high = temperature_range(ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
-                tstate[1] = t_low
-                tstate[2] = t_high
-            temp_a = interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], ta)
-            fine, piece, t_b = temperature_piece(ta, t1, span, temp_a, temperature_slope, held_ph, model, par, ws,
-                                                 titrant, titrant_conc, second, second_conc, NODES, FROM_NODES,
-                                                 COEFFICIENT_RTOL, tpoly, tlogs, tnodes, tscale, tstate)
-            if not fine:
-                return STATUS_NOT_FINITE, h, i_out
-            if piece >= 0:
-                tb = t_b
+            # held pH under a ramp: cubics in the temperature, made once per run (held_ramp_kernel); the
+            # branch tests the flag alone, so that numba drops the one not taken before typing
+            if held_ramp is None:
+                return STATUS_RAMP_NOT_COMPILED, h, i_out
+            else:
+                if math.isnan(tstate[1]):
+                    t_low, t_high = temperature_range(ctx[CTX_TEMP_V], ctx[CTX_TEMP_N])
+                    tstate[1] = t_low
+                    tstate[2] = t_high
+                temp_a = interpolate(ctx[CTX_TEMP_T], ctx[CTX_TEMP_V], ctx[CTX_TEMP_N], ta)
+                fine, piece, t_b = temperature_piece(ta, t1, span, temp_a, temperature_slope, held_ph, model, par,
+                                                     ws, titrant, titrant_conc, second, second_conc, NODES,
+                                                     FROM_NODES, COEFFICIENT_RTOL, tpoly, tlogs, tnodes, tscale,
+                                                     tstate)
+                if not fine:
+                    return STATUS_NOT_FINITE, h, i_out
+                if piece >= 0:
+                    tb = t_b
+                    mid = 0.5 * (ta + tb)
+                    half = 0.5 * (tb - ta)
+                    width = (tstate[2] - tstate[1]) / (1 << int(tstate[0]))
+                    segment_cubics(tpoly[piece], tlogs[piece], tstate[1] + (piece + 0.5) * width, 0.5 * width,
+                                   temp_a + temperature_slope * half, temperature_slope, half, nu, n_mol,
+                                   model.species_charge, feed_rate, feed_volume_rate, poly, in_logs)
+                    inv_half = 1.0 / half
         if piece >= 0:
-            mid = 0.5 * (ta + tb)
-            half = 0.5 * (tb - ta)
-            width = (tstate[2] - tstate[1]) / (1 << int(tstate[0]))
-            segment_cubics(tpoly[piece], tlogs[piece], tstate[1] + (piece + 0.5) * width, 0.5 * width,
-                           temp_a + temperature_slope * half, temperature_slope, half, nu, n_mol,
-                           model.species_charge, feed_rate, feed_volume_rate, poly, in_logs)
-            inv_half = 1.0 / half
+            pass  # the cubics of the held-pH ramp, made above
         elif varying:
             smooth = False
             for halving in range(MAX_HALVINGS):

@@ -17,7 +17,10 @@ A cold compile without the free-pH path gives the second process the
 held-pH ramp's functions (``held_ramp_kernel.temperature_piece`` with what
 it calls, and ``segment_cubics``) instead: it compiles them and writes
 :data:`RAMP_READY` on its standard output (with the free-pH path, the longer
-share already, they stay in this process).
+share already, they stay in this process).  A variant with neither path
+(``batch_tasks``'s ``free_ph`` and ``held_ramp`` both None: held pH at one
+temperature, logged pH) leaves nothing to the second process and is compiled
+here alone.
 ``integrate_smooth`` types the ramp's functions at its start, so this
 process first compiles its step loop ``smooth_steps`` (not cached: made by a
 factory; compiled here for the argument types ``integrate_smooth`` gives it),
@@ -77,9 +80,10 @@ def _return_type(dispatcher, args):
     return dispatcher.overloads[tuple(args)].signature.return_type
 
 
-def path_signatures(model, q_all, runs, out, info):
+def path_signatures(model, q_all, runs, out, info, held_ramp=True):
     """The numba argument types of ``integrate_smooth`` and ``integrate_segment`` as
-    ``run_one`` calls them inside ``batch_tasks(model, q_all, runs, ..., out, ..., info, ...)``.
+    ``run_one`` calls them inside ``batch_tasks(model, q_all, runs, ..., out, ..., info, ...,
+    held_ramp)``.
 
     Compiles ``run_context`` and ``run_workspaces`` (the first call needs them
     too) for the types of the tuples they return.
@@ -110,7 +114,7 @@ def path_signatures(model, q_all, runs, out, info):
     out_times_t = item(runs_t.types[fields.index("out_t")], i64)  # runs.out_t[r]
     n_out_t = item(runs_t.types[fields.index("n_out")], i64)  # runs.n_out[r]
     smooth = (f64, f64, vector, f64, model_t, par_t, ctx_t, ws_t, sw_t, vector, f64, f64, types.boolean, f64, f64,
-              out_t, out_times_t, i64, n_out_t, counters_t, f64, vector)
+              out_t, out_times_t, i64, n_out_t, counters_t, f64, vector, typeof(held_ramp))
     segment = (f64, f64, vector, f64, model_t, par_t, ctx_t, vector, f64, f64, types.boolean, f64, f64, ws_t,
                counters_t, out_t, out_times_t, i64, n_out_t)
     # functions both paths (and the held-pH ramp) call, with what they call: time_speciation(t, model, par,
@@ -193,14 +197,15 @@ def kernel_compiles() -> dict:
 last_split_compiled: dict = {}
 
 
-def compile_paths_apart(model, q_all, runs, out, info, free_ph=True) -> bool:
-    """Compile the held-pH ramp's functions (and, with ``free_ph``, the free-pH path) in a second
-    process and the rest of the held/logged path here (module notes).
+def compile_paths_apart(model, q_all, runs, out, info, free_ph=True, held_ramp=True) -> bool:
+    """Compile the free-pH path (with ``free_ph``) or else the held-pH ramp's functions (with
+    ``held_ramp``) in a second process and the rest of the held/logged path here (module notes);
+    the flags are those of the ``batch_tasks`` variant to be run.
 
     Returns True when what the second process was given is in the cache
     afterwards (the first call loads it), False when nothing was split (one
-    core, no writable cache, the paths cached already) or the second process
-    failed.
+    core, no writable cache, the paths cached already, a variant with neither
+    path) or the second process failed.
     """
     from numba.core import config
 
@@ -209,14 +214,25 @@ def compile_paths_apart(model, q_all, runs, out, info, free_ph=True) -> bool:
     from speciakin.simulation.integrator_kernel import integrate_segment
     from speciakin.simulation.segment_kernel import integrate_smooth, smooth_steps
 
+    from numba import typeof
+
+    free_ph = free_ph is True
+    held_ramp = held_ramp is True
     cache = getattr(integrate_segment, "_cache", None)
     cache_path = getattr(cache, "_cache_path", None)
+    # the second process's share: the free-pH path, or else the held-pH ramp's functions
+    if free_ph:
+        share_cached = is_cached(integrate_segment)
+    else:
+        share_cached = not held_ramp or is_cached(temperature_piece)
     if (_cores() < 2 or not cache_path or not getattr(cache, "_enabled", False)
-            or not os.access(cache_path, os.W_OK) or is_cached(integrate_smooth) or is_cached(temperature_piece)
-            or (free_ph and is_cached(integrate_segment))):
-        # nothing to gain: a path is at hand already (the rest is compiled here as fast as elsewhere)
+            or not os.access(cache_path, os.W_OK) or share_cached
+            or is_cached(integrate_smooth, typeof(True if held_ramp else None))):
+        # nothing to gain: no share for the other process, or the held/logged path is at hand already
+        # (the rest is compiled here as fast as elsewhere)
         return False
-    smooth, segment, shared, ramp, steps = path_signatures(model, q_all, runs, out, info)
+    smooth, segment, shared, ramp, steps = path_signatures(model, q_all, runs, out, info,
+                                                           True if held_ramp else None)
     # compiled here first and loaded there: one copy of each in the drivers' code (a function compiled
     # in each process would be two functions of other names, both linked into run_one)
     for name, function in _shared_functions().items():

@@ -16,6 +16,7 @@ STATUS_VOLUME = 5
 STATUS_TITRANT_SIGN = 6
 STATUS_NO_ADJUSTING_ION = 7
 STATUS_NOT_COMPILED = 8
+STATUS_RAMP_NOT_COMPILED = 9
 
 #: Human-readable meaning of each status code.
 STATUS_TEXT = {
@@ -31,4 +32,7 @@ STATUS_TEXT = {
                              "sign is named for the start adjustment",
     STATUS_NOT_COMPILED: "a free-pH run was given to the kernel variant compiled without the free-pH path "
                          "(an error of the caller: simulation.api chooses the variant from the runs)",
+    STATUS_RAMP_NOT_COMPILED: "a held-pH run under a temperature ramp was given to the kernel variant compiled "
+                              "without the held-pH ramp's path (an error of the caller: simulation.api chooses "
+                              "the variant from the runs)",
 }
