@@ -100,3 +100,27 @@ def test_water_errors():
         water.pkw_iapws(300.0, float("nan"))
     with pytest.raises(InputError, match="not finite"):
         water.vant_hoff_pka(9.3, float("nan"), 300.0)
+
+
+@pytest.mark.parametrize("t_c", [0.0, 25.0, 37.0, 60.0, 95.0])
+def test_pkw_slope_is_the_derivative_of_the_formula(t_c):
+    # the chain-rule slope against a five-point central difference of the IAPWS formula at
+    # Kell's density (a general-purpose numerical derivative: truncation h^4, rounding
+    # about 1e-14 / h); the two agree to the difference's own rounding
+    t = t_c + 273.15
+
+    def f(x):
+        return water.iapws_pkw(x, water.kell_density(x))
+
+    h = 1e-2
+    numeric = (-f(t + 2 * h) + 8 * f(t + h) - 8 * f(t - h) + f(t - 2 * h)) / (12 * h)
+    assert water.iapws_pkw_temperature_slope(t) == pytest.approx(numeric, rel=1e-8)
+
+
+def test_pkw_slope_gives_the_ionization_enthalpy_of_water():
+    # van 't Hoff: dH = R ln10 T^2 (-dpKw/dT).  Calorimetric enthalpy of ionization of water at
+    # 25 C: 55.8 kJ/mol (Olofsson and Hepler, J. Solution Chem. 1975, 4, 127; from memory).
+    # The IAPWS formula is a fit to Kw, not to calorimetry: 56.4 kJ/mol here, within 1 kJ/mol
+    t = 298.15
+    enthalpy = water.GAS_CONSTANT * np.log(10.0) * t * t * -water.iapws_pkw_temperature_slope(t) / 1000.0
+    assert enthalpy == pytest.approx(55.8, abs=1.0)

@@ -37,6 +37,7 @@ __all__ = [
     "GAS_CONSTANT",
     "kell_density",
     "iapws_pkw",
+    "iapws_pkw_temperature_slope",
     "vant_hoff",
     "pkw_iapws",
     "water_density_kell",
@@ -107,6 +108,45 @@ def iapws_pkw(temperature, rho):
     # Eq. (1)
     return (-2.0 * _N * (np.log10(1.0 + z) - z / (z + 1.0) * rho * (_BETA[0] + _BETA[1] / t + _BETA[2] * rho))
             + pkw_gas + 2.0 * np.log10(_MW / 1000.0))
+
+
+@register_jitable
+def iapws_pkw_temperature_slope(temperature):
+    """d pKw / dT [1/K] of :func:`iapws_pkw` at the density of :func:`kell_density`, by the chain rule.
+
+    The derivative of eqs. (1)-(3) of IAPWS R11-07 [1]_ with the density's own
+    slope (Kell 1975 [2]_ eq. (16) differentiated), for the kernel's d[OH-]/dT
+    under a temperature ramp: exact to rounding, where a central difference of
+    pKw carries the rounding of pKw divided by its step (about 1e-9 relative
+    for a step of 1e-3 K).  ``temperature`` [K], a float (also compiled into
+    the kernel).
+    """
+    t = temperature
+    c = temperature - 273.15
+    # Kell: rho = num(c) / (1 + b c) / 1000 and its slope
+    b = 16.879850e-3
+    num = (999.83952 + 16.945176 * c - 7.9870401e-3 * c * c - 46.170461e-6 * c ** 3
+           + 105.56302e-9 * c ** 4 - 280.54253e-12 * c ** 5)
+    dnum = (16.945176 - 2.0 * 7.9870401e-3 * c - 3.0 * 46.170461e-6 * c * c
+            + 4.0 * 105.56302e-9 * c ** 3 - 5.0 * 280.54253e-12 * c ** 4)
+    rho = num / (1.0 + b * c) / 1000.0
+    drho = (dnum * (1.0 + b * c) - num * b) / ((1.0 + b * c) ** 2) / 1000.0
+    # Eq. (3): Z = rho exp(a), a = alpha0 + alpha1/T + alpha2/T^2 rho^(2/3)
+    r23 = rho ** (2.0 / 3.0)
+    expo = np.exp(_ALPHA[0] + _ALPHA[1] / t + _ALPHA[2] / (t * t) * r23)
+    da = (-_ALPHA[1] / (t * t) - 2.0 * _ALPHA[2] / (t * t * t) * r23
+          + _ALPHA[2] / (t * t) * (2.0 / 3.0) * r23 / rho * drho)
+    z = rho * expo
+    dz = drho * expo + z * da
+    # Eq. (1): pKw = -2n [log10(1 + Z) - Z/(Z + 1) rho B] + pKw^G + const, B = beta0 + beta1/T + beta2 rho
+    big_b = _BETA[0] + _BETA[1] / t + _BETA[2] * rho
+    dbig_b = -_BETA[1] / (t * t) + _BETA[2] * drho
+    frac = z / (z + 1.0)
+    dfrac = dz / ((z + 1.0) * (z + 1.0))
+    dbracket = dz / ((1.0 + z) * _LN10) - (dfrac * rho * big_b + frac * drho * big_b + frac * rho * dbig_b)
+    # Eq. (2)
+    dgas = -_GAMMA[1] / (t * t) - 2.0 * _GAMMA[2] / (t * t * t) - 3.0 * _GAMMA[3] / (t * t * t * t)
+    return -2.0 * _N * dbracket + dgas
 
 
 @register_jitable

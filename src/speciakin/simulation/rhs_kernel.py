@@ -45,14 +45,14 @@ from speciakin.simulation.speciation_kernel import (
     site_pka_at,
     solve_charge_balance_from,
 )
-from speciakin.simulation.water_kernel import pkw
+from speciakin.simulation.water_kernel import pkw, pkw_slope
 from speciakin.simulation.profile_kernel import interpolate, logged_ph
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_N, CTX_LOG_SMOOTH, CTX_LOG_T, CTX_LOG_V,
                                          CTX_MODE, CTX_PH_OFFSET,
                                          CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
                                          C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_STEP_PH, C_TEMPERATURE, N_CACHE, PAR_ENTHALPY,
-                                         PAR_PKW_SHIFT, PAR_W, WS_CACHE, WS_DPH_DY, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
+                                         PAR_W, WS_CACHE, WS_DPH_DY, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
                                          WS_VAR, WS_ZBAR)
 
 MODE_HELD = 0
@@ -150,7 +150,7 @@ def time_speciation(t, model, par, ctx, temperature_slope, ws):
 
     Fills ``ws``: temperature-dependent values, populations, mean charges
     and, for a held pH under a temperature ramp, d zbar/dT of every molecule
-    and d[OH-]/dT (``cache[C_DOH_DT]``, a central difference of pKw).  Nothing here
+    and d[OH-]/dT (``cache[C_DOH_DT]``, from the slope of pKw).  Nothing here
     depends on the amounts.
     """
     cache = ws[WS_CACHE]
@@ -184,11 +184,9 @@ def speciation_at(temperature, ph, model, par, controlled, temperature_slope, ws
         mean_charge_temperature_slopes(pops, par[PAR_ENTHALPY], temperature, model.mol_site_start,
                                        model.mol_micro_start, model.micro_charge, n_mol, ws[WS_PKA2],
                                        ws[WS_DZBAR_DT])
-        dtemp = 1e-3
-        # d[OH-]/dT at fixed pH [mol/(L*K)]
-        shift = par[PAR_PKW_SHIFT]
-        cache[C_DOH_DT] = (exp10(ph - pkw(temperature + dtemp) - shift)
-                           - exp10(ph - pkw(temperature - dtemp) - shift)) / (2.0 * dtemp)
+        # d[OH-]/dT at fixed pH [mol/(L*K)]: [OH-] ln10 (-dpKw/dT), the slope by the chain rule (a central
+        # difference of pKw carried its rounding: 1e-9 relative, more than the coefficient cubics allow)
+        cache[C_DOH_DT] = -exp10(ph - cache[C_PKW]) * LN10 * pkw_slope(temperature)
     return ph
 
 

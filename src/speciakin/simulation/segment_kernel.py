@@ -37,7 +37,9 @@ time under a temperature ramp and smooth in pH) [2]_.  The cubic is checked
 against a full evaluation at the midpoint, and the segment is halved until
 every coefficient agrees to :data:`COEFFICIENT_RTOL` of its size (a
 coefficient error of 1e-9 relative changes the solution far less than the
-integration tolerance).  At constant pH and temperature the coefficients are
+integration tolerance); the size of a coefficient not carried in logarithms
+is its largest |value| in the segment so far, so that one crossing zero is
+not halved down to the rounding noise of its terms.  At constant pH and temperature the coefficients are
 constants (one evaluation per segment).
 
 Outputs inside the segment are read from the continuous extension of each
@@ -84,7 +86,7 @@ FROM_NODES = np.linalg.inv(np.vander(NODES, 4, increasing=True))
 #: extremum of the node polynomial T_4(x)/8, where the error of a smooth
 #: function's cubic is largest).
 CHECKS = np.array([0.0])
-#: Largest coefficient error allowed, relative to the coefficient's size on the segment.
+#: Largest coefficient error allowed, relative to the coefficient's size on the segment (module notes).
 COEFFICIENT_RTOL = 1e-9
 #: Halvings of a segment before the coefficients are declared not smooth.
 MAX_HALVINGS = 40
@@ -155,7 +157,8 @@ def make_smooth_workspace(model, n):
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc,
     product, v, f0, ft, fy, ytmp, ynew, fnew, k, dense, is_active, active, passive,
     active_of, jac_t, g, sub, piv, and the temperature cubics of a held-pH ramp: tpoly, tlogs,
-    tnodes, tscale, tstate; ``held_ramp_kernel``).  The stoichiometry is filled in here."""
+    tnodes, tscale, tstate; ``held_ramp_kernel``; last, each coefficient's largest |value| in the
+    segment so far, ``seen``).  The stoichiometry is filled in here."""
     n_mol = model.n_mol
     n_species = model.n_species
     n_steps = model.step_logk_q.shape[0]
@@ -180,7 +183,7 @@ def make_smooth_workspace(model, n):
             np.empty((N_STAGES, n)), np.empty((N_DENSE, n)), np.zeros(n, dtype=np.bool_), np.empty(n, dtype=np.int64),
             np.empty(n, dtype=np.int64), np.empty(n, dtype=np.int64), np.empty((n, n)), np.empty(n * n), np.empty(n),
             np.empty(n, dtype=np.int64), np.zeros((MAX_PIECES, n_b, 4)), np.zeros((MAX_PIECES, n_b), dtype=np.bool_),
-            np.empty((4, n_b)), np.empty(n_b), np.zeros(3 + MAX_PIECES))
+            np.empty((4, n_b)), np.empty(n_b), np.zeros(3 + MAX_PIECES), np.zeros(n_coef))
 
 
 @leaf_kernel
@@ -245,8 +248,10 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
         return STATUS_OK, h, i_out
     (nu, reactants, n_react, nodes, poly, in_logs, exact, scale, cst, dc, product, v, f0, ft, fy, ytmp, ynew, fnew,
      k, dense, is_active, active_all, passive_all, active_of, jac_all, g_all, sub_all, piv_all, tpoly, tlogs, tnodes,
-     tscale, tstate) = sw
+     tscale, tstate, seen) = sw
     n_coef = poly.shape[0]
+    for c in range(n_coef):
+        seen[c] = 0.0
     for i in range(n):
         ft[i] = 0.0
     for c in range(n_coef):
@@ -334,6 +339,11 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                                          feed_rate, feed_volume_rate, temperature_slope, nodes[node])
                 # rate constants vary exponentially with 1/T and pH: carry their logarithms
                 fit_cubics(nodes, n_steps, FROM_NODES, poly, in_logs, scale)
+                # a coefficient that is not carried in logarithms is held to its largest size in the
+                # segment so far: near its zero crossing its size at the nodes of a short sub-segment
+                # falls to the rounding noise of the terms that cancel in it, which no cubic fits
+                for c in range(n_coef):
+                    seen[c] = max(seen[c], scale[c])
                 # worst: the largest coefficient error at the checks over what is allowed
                 worst = 0.0
                 for check in range(CHECKS.shape[0]):
@@ -347,7 +357,7 @@ def integrate_smooth(t0, t1, y, h, model, par, ctx, ws, sw, feed_rate, feed_volu
                         error = abs(cst[c] - exact[c])
                         if error > 0.0:
                             worst = max(worst, error / (COEFFICIENT_RTOL * (abs(exact[c]) if in_logs[c]
-                                                                             else scale[c])))
+                                                                             else seen[c])))
                 smooth = worst <= 1.0
                 if smooth:
                     break

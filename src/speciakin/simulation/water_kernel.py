@@ -15,10 +15,10 @@ References
 
 from __future__ import annotations
 
-from speciakin.chemistry.water import iapws_pkw, kell_density
+from speciakin.chemistry.water import iapws_pkw, iapws_pkw_temperature_slope, kell_density
 from speciakin.simulation.jit_options import leaf_kernel
 
-__all__ = ["water_density", "pkw", "pkw_at_density"]
+__all__ = ["water_density", "pkw", "pkw_slope", "pkw_at_density"]
 
 
 @leaf_kernel
@@ -38,6 +38,12 @@ def water_density(temperature):
 def pkw(temperature):
     """pKw at 0.1 MPa: :func:`pkw_at_density` with the density of :func:`water_density`."""
     return iapws_pkw(temperature, kell_density(temperature))
+
+
+@leaf_kernel
+def pkw_slope(temperature):
+    """d pKw / dT [1/K] of :func:`pkw` (``chemistry.water.iapws_pkw_temperature_slope``: the chain rule)."""
+    return iapws_pkw_temperature_slope(temperature)
 
 
 @leaf_kernel
