@@ -39,10 +39,9 @@ GRID_LOADER = Path(__file__).resolve().parent / "static" / "grid-loader.js"
 #: Where the page loads it from, after the path prefix.
 GRID_LOADER_PATH = "_speciakin/grid-loader.js"
 #: Scripts Dash's components load when first drawn, all drawn on the first tab (the page opens on it),
-#: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers; it is
-#: asked for first, as the first view's early figure (web.early_figure) waits for it and nothing else.
-LATER = (("plotly", "package_data/plotly.min.js"), ("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"),
-         ("dash", "dcc/async-upload.js"))
+#: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
+LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
+         ("plotly", "package_data/plotly.min.js"))
 _POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
 _DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
 _GRID = re.compile(r'<script src="([^"]*/dash_ag_grid/dash_ag_grid\.[^"]*)"></script>\n?')
