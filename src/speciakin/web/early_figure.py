@@ -22,7 +22,7 @@ plotly.js does not load or cannot draw the figure, the copy's image stays
 
 Measured (docs/web.md, "The figure interactive before the app"): on a
 first-ever visit the figure answers a zoom or a hover 0.3 to 0.6 s sooner in
-three runs of four (about 1.1 to 1.3 s on the shared 2-core machine), and the
+four runs of five (about 1.1 to 1.3 s on the shared 2-core machine), and the
 app itself is ready up to 0.2 s later (0.5 s in one run): the main thread
 now evaluates plotly.js and draws the figure before Dash's scripts.
 """
