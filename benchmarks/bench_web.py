@@ -6,9 +6,13 @@ process and a headless Chromium (Playwright, Debian's /usr/bin/chromium or SPECI
 in the order of a chemist's visit, every view:
 
     page       open the page (the root holds only the demo, so it opens it): the check and the raw
-               data of the first run; "raw data" is the app's interactive figure drawn, "first view
-               shown" when the check and the raw data were first on screen (the painting of the
-               server's still copy of the first view, when the version sends one; else the app's figure)
+               data of the first run; "raw data" is the app's figure drawn (Playwright waiting for its
+               title), "first view shown" when the check and the raw data were first on screen (the
+               painting of the server's still copy of the first view, when the version sends one, or a
+               figure drawn before it, the early one or the app's), "figure interactive" the first frame with a Plotly figure of the raw
+               data in the page with its event handlers, answering a hover or a zoom: the early figure
+               drawn over the copy (web.early_figure) or the app's, whichever comes first
+               (:data:`FIGURE_WATCH`), and "app's figure drawn" the first frame with the app's figure
     raw run    the raw data of another run
     model      the model summary and the parameter table (tab 2)
     parameter edit  a start value typed into the parameter table, until its diff is shown
@@ -243,6 +247,35 @@ _FIRST_VIEW_SHOWN = """() => new Promise(resolve => {
     setTimeout(() => resolve(null), 200); })"""
 
 
+#: Put into every page before its own scripts (an init script): per animation frame, the first frame in which
+#: the raw data's figure is INTERACTIVE, that is a Plotly figure of it is in the page with its event handlers,
+#: the one the early drawing makes over the first view's copy (``.first-view .fv-plot``, web.early_figure) or
+#: the app's graph (``#raw-figure``), recognised by its drag layer (``.nsewdrag``: the elements Plotly's zoom,
+#: pan and hover handlers are bound to, made at the end of a drawing) and its title drawn; and the first frame
+#: with the app's own figure drawn (its title; "app's figure drawn").  [ms since the epoch]
+FIGURE_WATCH = """window.__figureTimes = {};
+(function frame() {
+  const t = window.__figureTimes, now = performance.timeOrigin + performance.now();
+  if (!t.interactive) {
+    for (const g of document.querySelectorAll('.first-view .fv-plot, #react-entry-point #raw-figure .js-plotly-plot')) {
+      if (g.querySelector('.nsewdrag') && g.querySelector('.gtitle')) {
+        t.interactive = now; t.which = g.closest('.first-view') ? 'early' : 'app'; break; }
+    }
+  }
+  if (!t.app && document.querySelector('#react-entry-point #raw-figure .gtitle')) { t.app = now; }
+  if (!t.app || !t.interactive) { requestAnimationFrame(frame); }
+})();"""
+
+
+def figure_times(page, start: float) -> dict[str, float]:
+    """Seconds from ``start`` (``time.time()``) until the raw data's figure was interactive and until the app's
+    figure was drawn (:data:`FIGURE_WATCH`, put into the page before it was opened), once the app's figure is
+    drawn."""
+    page.wait_for_function("() => window.__figureTimes && window.__figureTimes.app", timeout=180_000)
+    t = page.evaluate("window.__figureTimes")
+    return {"figure interactive": t["interactive"] / 1000 - start, "app's figure drawn": t["app"] / 1000 - start}
+
+
 def _cpu(pid: int) -> float:
     """User and system CPU time of process ``pid`` [s] (Linux ``/proc``; 0 elsewhere)."""
     try:
@@ -298,8 +331,10 @@ def visit(page, url: str, pid: int, browser_cdp) -> dict[str, dict]:
             ) / 1000
             shown = page.evaluate(_FIRST_VIEW_SHOWN)
             # a version without the server's copy shows the first view when the app has drawn its figure
-            seen["first view shown"] = seen["raw data"] if shown is None else min(shown / 1000 - start,
-                                                                                   seen["raw data"])
+            seen.update(figure_times(page, start))
+            # the still copy's image painted, or a figure drawn before it (the early one or the app's)
+            seen["first view shown"] = min(seen["raw data"], seen["figure interactive"],
+                                           seen["raw data"] if shown is None else shown / 1000 - start)
         page.wait_for_timeout(250)  # callbacks still running after the drawing (none expected) are counted
         log = json.loads(urllib.request.urlopen(url.rstrip("/") + TIMINGS).read())
         out[view] = {"browser": seen, "server": [e["seconds"] for e in log], "bytes": sum(e["bytes"] for e in log),
@@ -403,6 +438,7 @@ def main() -> int:
                     for kind in ["cold"] + ["warm"] * args.warm:
                         # a new browser context each visit: nothing remembered in the browser's session
                         context = browser.new_context(viewport={"width": 1300, "height": 900})
+                        context.add_init_script(FIGURE_WATCH)
                         run[kind].append(visit(context.new_page(), url, proc.pid, browser_cdp))
                         context.close()
                 finally:

@@ -109,3 +109,18 @@ def shot():
         page.screenshot(path=str(path), full_page=True)
         return path
     return take
+
+
+def differing_pixels(first: Path, second: Path) -> tuple[int, int]:
+    """(pixels of screenshot ``first`` that differ from ``second``, pixels in all): a pixel differs when it is
+    darker or lighter by more than 64 of 255 than every pixel around its place in ``second`` (so text put a
+    fraction of a pixel elsewhere, with other anti-aliasing, does not count; a line, a marker or a text out
+    of place by more does).  The screenshots must have the same size."""
+    from PIL import Image, ImageChops, ImageFilter
+
+    a, b = Image.open(first).convert("L"), Image.open(second).convert("L")
+    assert a.size == b.size, (a.size, b.size)
+    lighter = ImageChops.subtract(a, b.filter(ImageFilter.MaxFilter(3)))
+    darker = ImageChops.subtract(b.filter(ImageFilter.MinFilter(3)), a)
+    differ = sum(ImageChops.lighter(lighter, darker).point(lambda v: 255 if v > 64 else 0).histogram()[255:])
+    return differ, a.size[0] * a.size[1]

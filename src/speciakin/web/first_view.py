@@ -33,7 +33,8 @@ import threading
 from collections import OrderedDict
 
 from speciakin.errors import SpeciakinError
-from speciakin.web import page_campaign
+from speciakin.web import early_figure, page_campaign
+from speciakin.web.bundles import DASH_PLOTLY_PATH
 from speciakin.web.first_svg import Unsupported, check, figure_svg
 
 __all__ = ["ROUTE", "install", "overlay", "inputs_sha256", "figure_image"]
@@ -66,7 +67,8 @@ STYLE = """
 @media (max-width: 800px) { .first-view { display: none; } }
 """
 #: Sets the image's address with the figure's width, then takes the copy away once the app's figure is
-#: drawn (its annotations are drawn last), or after 15 s, or at once when the session had another tab open.
+#: drawn (its annotations are drawn last) and the early figure's changes are carried over to it (not while it
+#: is being dragged), or after 15 s, or at once when the session had another tab open.
 _SCRIPT = """(function () {
   var view = document.currentScript.parentNode, img = view.querySelector(".fv-figure img");
   function gone() { if (view.parentNode) { view.parentNode.removeChild(view); } }
@@ -80,7 +82,13 @@ _SCRIPT = """(function () {
   var since = Date.now();
   (function wait() {
     var drawn = document.querySelector("#react-entry-point #raw-figure .main-svg .annotation");
-    if (drawn) { requestAnimationFrame(function () { requestAnimationFrame(gone); }); return; }
+    if (drawn && !document.querySelector(".dragcover")) {  /* not while the early figure is dragged */
+      var done = function () { requestAnimationFrame(function () { requestAnimationFrame(gone); }); };
+      var hand = view.speciakinHandOver;  /* the early figure's changes carried over (web.early_figure) */
+      if (hand) { hand(document.querySelector("#react-entry-point #raw-figure .js-plotly-plot"), done); }
+      else { done(); }
+      return;
+    }
     if (Date.now() - since > 15000) { gone(); return; }
     setTimeout(wait, 40);
   })();
@@ -164,7 +172,15 @@ def overlay(state, head: tuple[str, str], tabs: list[str], prefix: str) -> tuple
 <div class="fv-select" style="max-width:320px"><span>{_e(shown_run)}</span>{_DROP_ICON}</div>
 <div class="fv-figure" style="height:{height}px"><img alt="raw data of run {_e(run or '')}" elementtiming="first-view" fetchpriority="high"
  data-src="{source}" height="{height}"></div></div>
-<script>{_SCRIPT % {"first": _FIRST_TAB}}</script></div>"""
+<script>{_SCRIPT % {"first": _FIRST_TAB}}</script></div>
+{early_figure.early_html(_figure_text(state, chosen, run, figure), prefix + DASH_PLOTLY_PATH, page_campaign.GRAPH_CONFIG)}"""
+
+
+def _figure_text(state, name: str, run, figure) -> str:
+    """The first view's figure as the early figure's JSON (``web.early_figure``), kept while the campaign's
+    files are unchanged."""
+    folder = state.folder(name)
+    return state.cached(f"early-figure {run}", state.inputs_of(folder), lambda: early_figure.figure_json(figure))
 
 
 def _quote(name: str) -> str:
@@ -241,7 +257,8 @@ def install(app, state, head: tuple[str, str], tabs: list[str]) -> None:
         return response
 
     app.server.add_url_rule(prefix + ROUTE, "first_view_image", image)
-    app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + STYLE + "</style>")
+    app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + STYLE + early_figure.STYLE
+                                                + "</style>")
     interpolate = app.interpolate_index
 
     def interpolate_index(**kwargs):

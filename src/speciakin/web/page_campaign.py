@@ -13,12 +13,13 @@ from speciakin.web.figures import compound_colors, empty_figure, raw_run_figure
 from speciakin.web.paths import MAX_UPLOAD_BYTES, campaign_folders, store_workbook
 
 __all__ = ["layout", "register", "check_rows", "check_cells", "check_table", "folder_picker", "campaign_view", "initial_choice",
-           "CHECK_COLUMNS"]
+           "CHECK_COLUMNS", "GRAPH_CONFIG"]
 
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
-_GRAPH = {"displaylogo": False}
+#: The raw-data graph's Plotly config (the first view's early figure takes the same: web.early_figure).
+GRAPH_CONFIG = {"displaylogo": False}
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
 
@@ -62,7 +63,7 @@ def layout(view: tuple | None = None, choice: tuple = ((), None)) -> html.Div:
         dcc.Dropdown(id="raw-run", options=runs, value=run, placeholder="choose a run", clearable=False,
                      style={"maxWidth": "320px"}),
         # the graph is in the page from the start, so the browser loads the plotting library at once
-        html.Div(id="raw-figure-box", children=dcc.Graph(id="raw-figure", figure=figure, config=_GRAPH)),
+        html.Div(id="raw-figure-box", children=dcc.Graph(id="raw-figure", figure=figure, config=GRAPH_CONFIG)),
         dcc.Store(id="raw-drawn", data=drawn),
     ])
 
