@@ -1,4 +1,4 @@
-"""The plotting library the page sends: plotly.js's cartesian bundle in place of the full one (no browser).
+"""The plotting library the page sends: plotly.js of the page's trace types only in place of the full one (no browser).
 
 The bundle must be the plotly.js version the ``plotly`` package makes its
 figures for, hold every trace type the page draws, and be sent from the
@@ -27,13 +27,14 @@ def test_the_bundle_holds_every_trace_type_the_page_draws():
     import plotly.graph_objects as go
 
     import speciakin.web.figures as figures
+    import speciakin.web.warm as warm
 
-    source = Path(figures.__file__).read_text(encoding="utf-8")
+    source = "".join(Path(module.__file__).read_text(encoding="utf-8") for module in (figures, warm))
     made = {name for name in re.findall(r"go\.(\w+)\(", source) if name != "Figure"}
-    assert made, "no trace constructor found in web/figures.py"
+    assert made, "no trace constructor found in web/figures.py or web/warm.py"
     kinds = {getattr(go, name)().type for name in made}
     held = bundles.bundle_traces()
-    assert kinds <= held, f"traces the cartesian bundle lacks: {sorted(kinds - held)}"
+    assert kinds <= held, f"traces the bundle lacks: {sorted(kinds - held)}"
     # the same reading of the full bundle finds its many more trace types (the reading is not empty-handed)
     full = Path(go.__file__).resolve().parent.parent / "package_data" / "plotly.min.js"
     assert held < bundles.bundle_traces(full)
@@ -46,7 +47,7 @@ def _app(tmp_path, **kwargs):
     return app
 
 
-def test_dash_plotly_address_sends_the_cartesian_bundle(tmp_path):
+def test_dash_plotly_address_sends_the_small_bundle(tmp_path):
     client = _app(tmp_path).server.test_client()
     sent = client.get("/" + bundles.DASH_PLOTLY_PATH, headers=HOST)
     assert sent.status_code == 200

@@ -13,7 +13,7 @@ job_kinds      the kinds of job (fit, posterior, window, suggestion, report, who
 dask_jobs      the same jobs on a Dask cluster (local, or an existing scheduler)
 downloads      a result's files sent to the browser, every path checked inside the result folder
 figures        Plotly figures: raw data per run, fitted curves, window, correlation, 2-D map
-bundles        plotly.js's cartesian bundle (static/), sent in place of the full plotly.js
+bundles        plotly.js of the page's three trace types (static/), sent in place of the full plotly.js
 warm           the code and data the first answers need, loaded when the server is made
 page_campaign  step 1: open or create a campaign, upload, check table, raw data
 page_model     step 2: model summary and the parameter table (page_params, params_table)

@@ -93,7 +93,7 @@ def create_app(root: str | Path, *, token: str | None = None, board=None) -> tup
         _guard(app.server, token)
     else:
         _loopback_only(app.server)
-    bundles.serve_cartesian_plotly(app.server, app.config.requests_pathname_prefix)  # after the guards
+    bundles.serve_small_plotly(app.server, app.config.requests_pathname_prefix)  # after the guards
     title = ("speciakin workbench", f"campaign root: {base}")
     # the first view, drawn by the server, sent with the page's HTML until the app has drawn it (before the
     # scripts are trimmed: its image is then asked for before the scripts' preloads)

@@ -1,15 +1,16 @@
-"""The plotting library the browser loads: plotly.js's cartesian bundle in place of the full one.
+"""The plotting library the browser loads: a plotly.js of the page's three trace types in place of the full one.
 
-The page draws only scatter, heatmap and contour traces, all in plotly.js's
-"cartesian" bundle (npm ``plotly.js-cartesian-dist-min``, MIT licence, kept
-as ``static/plotly-cartesian.min.js`` beside its licence).  It is a third of
-the full bundle that Plotly's Python package ships (1.5 MB against 4.8 MB),
-and evaluating it takes the browser about half the time: the longest single
-step of opening the page (docs/web.md, Speed).  It is sent with V8's compile
+The page draws only scatter, heatmap and contour traces.  Its plotly.js is
+built from plotly.js's own modules (its core, which holds scatter, plus its
+heatmap and contour traces; ``scripts/build_plotly_bundle.sh``, MIT licence,
+kept as ``static/plotly-scatter-heatmap-contour.min.js`` beside its licence).
+It is a quarter of the full bundle that Plotly's Python package ships
+(1.2 MB against 4.8 MB), and evaluating it takes the browser a fraction of
+the time: the longest single step of opening the page (docs/web.md, Speed).  It is sent with V8's compile
 hint put first (:data:`COMPILE_HINT`), which cuts its evaluation again.
 Dash's graph component loads plotly.js from one fixed address the first time
 a figure is shown;
-:func:`serve_cartesian_plotly` answers that address with the cartesian bundle,
+:func:`serve_small_plotly` answers that address with the small bundle,
 when its version is the one the Python package's figures are made for, and
 otherwise leaves Dash's own (full) bundle in place.
 """
@@ -21,20 +22,20 @@ import logging
 import re
 from pathlib import Path
 
-__all__ = ["BUNDLE", "bundle_traces", "bundle_version", "plotly_js_version", "serve_cartesian_plotly",
+__all__ = ["BUNDLE", "bundle_traces", "bundle_version", "plotly_js_version", "serve_small_plotly",
            "serve_script"]
 
 log = logging.getLogger(__name__)
 
-#: The cartesian bundle of plotly.js, as published on npm (``plotly.js-cartesian-dist-min``).
-BUNDLE = Path(__file__).resolve().parent / "static" / "plotly-cartesian.min.js"
+#: plotly.js of the scatter, heatmap and contour traces only (built by ``scripts/build_plotly_bundle.sh``).
+BUNDLE = Path(__file__).resolve().parent / "static" / "plotly-scatter-heatmap-contour.min.js"
 #: Where Dash's graph component loads plotly.js from (served locally), after the path prefix.
 DASH_PLOTLY_PATH = "_dash-component-suites/plotly/package_data/plotly.min.js"
 #: Put before the bundle as it is sent: V8's explicit compile hint (Chromium 136 and later; other browsers
 #: read a comment), so that every function is compiled while the file streams in, off the page's main
 #: thread, instead of on first call (the page calls most of them while drawing its first figure).
 COMPILE_HINT = b"//# allFunctionsCalledOnLoad\n"
-_HEADER = re.compile(r"plotly\.js \(cartesian - minified\) v(\d+\.\d+\.\d+)")
+_HEADER = re.compile(r"plotly\.js \([\w ,]+ - minified\) v(\d+\.\d+\.\d+)")
 _TRACE = re.compile(r'moduleType:"trace",name:"(\w+)"')
 
 
@@ -64,8 +65,8 @@ def plotly_js_version() -> str:
     return get_plotlyjs_version()
 
 
-def serve_cartesian_plotly(server, prefix: str = "/") -> bool:
-    """Answer Dash's plotly.js address on ``server`` (Flask) with the cartesian bundle.
+def serve_small_plotly(server, prefix: str = "/") -> bool:
+    """Answer Dash's plotly.js address on ``server`` (Flask) with the small bundle.
 
     Parameters
     ----------
@@ -82,7 +83,7 @@ def serve_cartesian_plotly(server, prefix: str = "/") -> bool:
     """
     version, wanted = bundle_version(), plotly_js_version()
     if version != wanted:
-        log.warning("plotly.js cartesian bundle %s does not match plotly.js %s of the plotly package: "
+        log.warning("plotly.js bundle %s does not match plotly.js %s of the plotly package: "
                     "the full bundle is served", version, wanted)
         return False
     body = COMPILE_HINT + BUNDLE.read_bytes()
