@@ -66,6 +66,16 @@ _MW = 18.015268  # [g/mol]
 _ALPHA = (-0.864671, 8659.19, -22786.2)
 _BETA = (0.642044, -56.8534, -0.375754)
 _GAMMA = (0.61415, 48251.33, -67707.93, 10102100.0)
+# Kell 1975, eq. (16): rho = (sum KELL[i] t^i) / (1 + KELL_B t) / 1000, t in C
+_KELL = (999.83952, 16.945176, -7.9870401e-3, -46.170461e-6, 105.56302e-9, -280.54253e-12)
+_KELL_B = 16.879850e-3
+
+
+@register_jitable
+def _kell_numerator(t):
+    """The numerator polynomial of Kell's eq. (16) at ``t`` [C]."""
+    return (_KELL[0] + _KELL[1] * t + _KELL[2] * t * t + _KELL[3] * t ** 3
+            + _KELL[4] * t ** 4 + _KELL[5] * t ** 5)
 
 
 @register_jitable
@@ -79,9 +89,7 @@ def kell_density(temperature):
         [K], a float or an array (also compiled into the kernel).
     """
     t = temperature - 273.15
-    num = (999.83952 + 16.945176 * t - 7.9870401e-3 * t * t - 46.170461e-6 * t ** 3
-           + 105.56302e-9 * t ** 4 - 280.54253e-12 * t ** 5)
-    return num / (1.0 + 16.879850e-3 * t) / 1000.0
+    return _kell_numerator(t) / (1.0 + _KELL_B * t) / 1000.0
 
 
 @register_jitable
@@ -123,12 +131,11 @@ def iapws_pkw_temperature_slope(temperature):
     """
     t = temperature
     c = temperature - 273.15
-    # Kell: rho = num(c) / (1 + b c) / 1000 and its slope
-    b = 16.879850e-3
-    num = (999.83952 + 16.945176 * c - 7.9870401e-3 * c * c - 46.170461e-6 * c ** 3
-           + 105.56302e-9 * c ** 4 - 280.54253e-12 * c ** 5)
-    dnum = (16.945176 - 2.0 * 7.9870401e-3 * c - 3.0 * 46.170461e-6 * c * c
-            + 4.0 * 105.56302e-9 * c ** 3 - 5.0 * 280.54253e-12 * c ** 4)
+    # Kell: rho = num(c) / (1 + b c) / 1000 (:func:`kell_density`) and its slope
+    b = _KELL_B
+    num = _kell_numerator(c)
+    dnum = (_KELL[1] + 2.0 * _KELL[2] * c + 3.0 * _KELL[3] * c * c + 4.0 * _KELL[4] * c ** 3
+            + 5.0 * _KELL[5] * c ** 4)
     rho = num / (1.0 + b * c) / 1000.0
     drho = (dnum * (1.0 + b * c) - num * b) / ((1.0 + b * c) ** 2) / 1000.0
     # Eq. (3): Z = rho exp(a), a = alpha0 + alpha1/T + alpha2/T^2 rho^(2/3)
