@@ -24,7 +24,10 @@ Measured (docs/web.md, "The figure interactive before the app"): on a
 first-ever visit the figure answers a zoom or a hover 0.3 to 0.6 s sooner in
 four runs of five (about 1.1 to 1.3 s on the shared 2-core machine), and the
 app itself is ready up to 0.2 s later (0.5 s in one run): the main thread
-now evaluates plotly.js and draws the figure before Dash's scripts.
+now evaluates plotly.js and draws the figure before Dash's scripts.  With
+the smaller plotly.js of :mod:`speciakin.web.bundles` that came after, the
+early figure answers after 0.64 to 0.69 s (docs/web.md, "A plotly.js of the
+page's three trace types").
 """
 
 from __future__ import annotations
