@@ -65,8 +65,11 @@ class StageProgress:
                       "sample": "posterior (stored steps)", "window": "pH window (batches)"}
             bar = self.bars[stage] = tqdm(total=total, desc=labels.get(stage, stage), unit="step", leave=True)
         bar.total = total
-        bar.n = done
-        bar.refresh()
+        if done >= bar.n:
+            bar.update(done - bar.n)  # through update(), so tqdm's rate and time left follow the work
+        else:
+            bar.n = done
+            bar.refresh()
         if done >= total:
             bar.close()
 
