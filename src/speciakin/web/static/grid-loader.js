@@ -2,8 +2,8 @@
  *
  * The grid (dash-ag-grid, 2.2 MB with its chunk), which the first view (tab 1) does not draw, is not
  * listed by the page: this file stands in for it as the library the Dash renderer looks components up
- * in (window.dash_ag_grid).  The real bundle is fetched once the app's first figure is drawn (not the
- * early figure drawn over the first view's copy) and the browser is idle, or at once when a table is to be drawn earlier; a table drawn before it has arrived shows
+ * in (window.dash_ag_grid).  The real bundle is fetched once the first figure is drawn and the browser
+ * is idle, or at once when a table is to be drawn earlier; a table drawn before it has arrived shows
  * "loading the table" and is drawn as soon as it has.  The real bundle puts itself in this object's
  * place, so every later table is the library's own component.
  *
@@ -72,12 +72,12 @@
   if (grid) {
     stand.AgGrid = AgGrid;
     window.dash_ag_grid = stand;
-    // fetched once the app's first figure is drawn (or after 4 s) and the main thread is idle
+    // fetched once the first figure is drawn (or after 4 s) and the main thread is idle
     window.addEventListener("load", function () {
       var waited = 0;
       var timer = setInterval(function () {
         waited += 100;
-        if (document.querySelector("#react-entry-point .js-plotly-plot .main-svg") || waited >= 4000) {
+        if (document.querySelector(".js-plotly-plot .main-svg") || waited >= 4000) {
           clearInterval(timer);
           if (window.requestIdleCallback) {
             window.requestIdleCallback(prefetch, {timeout: 1000});
