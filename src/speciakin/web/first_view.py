@@ -10,9 +10,11 @@ campaign's check (its summary and the table of problems, as the app draws
 them) and the raw data of the first run as an SVG image drawn on the server
 (:mod:`speciakin.web.first_svg`) at the width the page gives the figure (a
 few lines of script in the HTML measure it before the image is asked for).
-The copy lies over the app in the same places and sizes, with the same styles,
-and is taken away once the app has drawn its interactive figure (or, should
-that never happen, after 15 s), so the view neither flashes nor moves.  It is
+The copy lies over the app in the same places and sizes, with the same styles;
+once the app has drawn its tabs and drop-downs it keeps only its figure (and
+lets every click through to the app's controls), and it is taken away once
+the app has drawn its interactive figure (or, should that never happen,
+after 15 s), so the view neither flashes nor moves.  It is
 left out when the page opens on no campaign, and taken away at once when the
 browser's session had another tab open (the tabs remember it).
 
