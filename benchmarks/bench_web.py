@@ -12,7 +12,9 @@ in the order of a chemist's visit, every view:
                figure drawn before it, the early one or the app's), "figure interactive" the first frame with a Plotly figure of the raw
                data in the page with its event handlers, answering a hover or a zoom: the early figure
                drawn over the copy (web.early_figure) or the app's, whichever comes first
-               (:data:`FIGURE_WATCH`), and "app's figure drawn" the first frame with the app's figure
+               (:data:`FIGURE_WATCH`), "app's figure drawn" the first frame with the app's figure,
+               and "controls answer" the first frame in which a click on the app's tabs and drop-downs
+               reaches the app (no copy over them)
     raw run    the raw data of another run
     model      the model summary and the parameter table (tab 2)
     parameter edit  a start value typed into the parameter table, until its diff is shown
@@ -251,8 +253,13 @@ _FIRST_VIEW_SHOWN = """() => new Promise(resolve => {
 #: the raw data's figure is INTERACTIVE, that is a Plotly figure of it is in the page with its event handlers,
 #: the one the early drawing makes over the first view's copy (``.first-view .fv-plot``, web.early_figure) or
 #: the app's graph (``#raw-figure``), recognised by its drag layer (``.nsewdrag``: the elements Plotly's zoom,
-#: pan and hover handlers are bound to, made at the end of a drawing) and its title drawn; and the first frame
-#: with the app's own figure drawn (its title; "app's figure drawn").  [ms since the epoch]
+#: pan and hover handlers are bound to, made at the end of a drawing) and its title drawn; the first frame
+#: with the app's own figure drawn (its title; "app's figure drawn"); and the first frame in which the app's
+#: CONTROLS ANSWER a click: its second tab and both drop-downs of the first tab are drawn by Dash (React
+#: binds their handlers when it puts them in) and are what a click at their centre hits
+#: (``elementFromPoint``: no copy of the first view lies over them).  A frame callback runs only when the
+#: page's main thread is free, so a click then is handled at the main thread's next task; a task then
+#: running delays it by its rest.  [ms since the epoch]
 FIGURE_WATCH = """window.__figureTimes = {};
 (function frame() {
   const t = window.__figureTimes, now = performance.timeOrigin + performance.now();
@@ -263,17 +270,28 @@ FIGURE_WATCH = """window.__figureTimes = {};
     }
   }
   if (!t.app && document.querySelector('#react-entry-point #raw-figure .gtitle')) { t.app = now; }
-  if (!t.app || !t.interactive) { requestAnimationFrame(frame); }
+  if (!t.controls) {
+    const hit = e => { const r = e.getBoundingClientRect(); if (!r.width || !r.height) { return false; }
+      const x = document.elementFromPoint(r.left + r.width / 2, r.top + r.height / 2); return !!x && e.contains(x); };
+    const tabs = document.querySelectorAll('#react-entry-point #tabs .tab');
+    const drops = document.querySelectorAll('#react-entry-point #tab-page-campaign .dash-dropdown');
+    if (tabs.length > 1 && drops.length >= 2 && hit(tabs[1]) && Array.from(drops).every(hit)) { t.controls = now; }
+  }
+  if (!t.app || !t.interactive || !t.controls) { requestAnimationFrame(frame); }
 })();"""
 
 
-def figure_times(page, start: float) -> dict[str, float]:
-    """Seconds from ``start`` (``time.time()``) until the raw data's figure was interactive and until the app's
-    figure was drawn (:data:`FIGURE_WATCH`, put into the page before it was opened), once the app's figure is
-    drawn."""
-    page.wait_for_function("() => window.__figureTimes && window.__figureTimes.app", timeout=180_000)
+def figure_times(page, start: float, controls: bool = True) -> dict[str, float]:
+    """Seconds from ``start`` (``time.time()``) until the raw data's figure was interactive, until the app's
+    figure was drawn and (with ``controls``: a page opened on the first tab) until the app's controls answered
+    a click (:data:`FIGURE_WATCH`, put into the page before it was opened), once these have happened."""
+    page.wait_for_function("() => window.__figureTimes && window.__figureTimes.app"
+                           + (" && window.__figureTimes.controls" if controls else ""), timeout=180_000)
     t = page.evaluate("window.__figureTimes")
-    return {"figure interactive": t["interactive"] / 1000 - start, "app's figure drawn": t["app"] / 1000 - start}
+    out = {"figure interactive": t["interactive"] / 1000 - start, "app's figure drawn": t["app"] / 1000 - start}
+    if controls:
+        out["controls answer"] = t["controls"] / 1000 - start
+    return out
 
 
 def _cpu(pid: int) -> float:
@@ -331,7 +349,7 @@ def visit(page, url: str, pid: int, browser_cdp) -> dict[str, dict]:
             ) / 1000
             shown = page.evaluate(_FIRST_VIEW_SHOWN)
             # a version without the server's copy shows the first view when the app has drawn its figure
-            seen.update(figure_times(page, start))
+            seen.update(figure_times(page, start, controls=view == "page"))
             # the still copy's image painted, or a figure drawn before it (the early one or the app's)
             seen["first view shown"] = min(seen["raw data"], seen["figure interactive"],
                                            seen["raw data"] if shown is None else shown / 1000 - start)

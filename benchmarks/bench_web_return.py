@@ -19,6 +19,11 @@ first view's copy before Dash's app has started (``web.early_figure``) or the ap
 comes first; it is recognised by its drag layer (``.nsewdrag``, the elements Plotly binds its zoom, pan and
 hover handlers to at the end of a drawing) and its title (``bench_web.FIGURE_WATCH``).  "App's figure drawn"
 is the first frame with the app's graph drawn; in a version without the early figure the two are the same.
+"Controls answer" is the first frame in which the app's second tab and the first tab's two drop-downs are
+Dash's own and a click at their centre reaches them (no copy of the first view over them; the frame runs
+when the main thread is free).  "A tab click answered" checks that with real clicks: per server one more
+first-ever visit, in a profile of its own, clicks the second tab every 25 ms from the moment the tabs are
+on the page until the tab shows itself chosen (its click handled by the app and painted).
 
 Run: ``python benchmarks/bench_web_return.py --root DIR`` (DIR as made by ``bench_web.py --root DIR``,
 or a new folder: the demo result is made first).
@@ -38,8 +43,18 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import bench_web  # noqa: E402  (the demo root, the server and the first view's timing)
 
 
-#: What is timed per visit.
-PARTS = ("first view shown", "figure interactive", "app's figure drawn")
+#: What is timed per visit ("a tab click answered": first-ever visits of a profile of their own, below).
+PARTS = ("first view shown", "figure interactive", "app's figure drawn", "controls answer", "a tab click answered")
+
+#: Per animation frame: the first frame in which the app's second tab shows itself chosen (its click handled
+#: and painted).  [ms since the epoch]
+CLICK_WATCH = """window.__clickTimes = {};
+(function frame() {
+  const tab = document.querySelectorAll('#react-entry-point #tabs .tab')[1];
+  if (tab && tab.classList.contains('tab--selected')) {
+    window.__clickTimes.answered = performance.timeOrigin + performance.now(); return; }
+  requestAnimationFrame(frame);
+})();"""
 
 
 def _open(context, url: str) -> dict[str, float]:
@@ -55,6 +70,30 @@ def _open(context, url: str) -> dict[str, float]:
     page.close()
     drawn = min(times.values())  # a figure drawn before the still copy's image was painted shows the view too
     return {**times, "first view shown": drawn if shown is None else min(shown / 1000 - start, drawn)}
+
+
+def click_visit(p, chromium: str, url: str) -> float:
+    """A first-ever visit (a new profile) in which the second tab is clicked every 25 ms from the moment the
+    first view's tabs are on the page (a click on the copy does nothing): seconds until a click was answered,
+    the tab shown chosen (:data:`CLICK_WATCH`)."""
+    with tempfile.TemporaryDirectory(prefix="bench-web-profile-") as folder:
+        context = p.chromium.launch_persistent_context(folder, executable_path=chromium, args=bench_web.ARGS,
+                                                       viewport={"width": 1300, "height": 900})
+        try:
+            page = context.new_page()
+            page.add_init_script(CLICK_WATCH)
+            start = time.time()
+            page.goto(url, wait_until="commit")
+            tab = page.wait_for_selector(".first-view .fv-tab:nth-child(2), #react-entry-point #tabs .tab:nth-child(2)",
+                                         timeout=180_000)
+            box = tab.bounding_box()
+            deadline = time.time() + 180
+            while not page.evaluate("!!window.__clickTimes.answered") and time.time() < deadline:
+                page.mouse.click(box["x"] + box["width"] / 2, box["y"] + box["height"] / 2)
+                page.wait_for_timeout(25)
+            return page.evaluate("window.__clickTimes.answered") / 1000 - start
+        finally:
+            context.close()
 
 
 def profile_visits(p, chromium: str, url: str, visits: int) -> list[dict[str, float]]:
@@ -95,6 +134,7 @@ def main() -> int:
                 proc, url = bench_web._start_server(src, root)
                 try:
                     results[label].append(profile_visits(p, chromium, url, args.visits))
+                    results[label][-1][0]["a tab click answered"] = click_visit(p, chromium, url)
                 finally:
                     proc.terminate()
                     proc.wait(timeout=30)
@@ -106,6 +146,8 @@ def main() -> int:
           + ("   ratio of medians" if len(versions) > 1 else ""))
     for i, name in enumerate(names):
         for part in PARTS:
+            if part not in results[list(versions)[0]][0][i]:
+                continue
             medians = []
             line = f"{name:<30}{part:<22}"
             for label in versions:

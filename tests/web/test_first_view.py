@@ -231,3 +231,84 @@ def test_a_narrow_window_gets_no_copy(one_server, page):
     assert page.evaluate("document.querySelector('.first-view')") is None
     page.wait_for_selector("#raw-figure .gtitle")
     assert asked == []
+
+
+#: Holds the app's first drawing of its graph (``Plotly.react`` into the app's part of the page) until
+#: ``window.__releaseApp()``: the moment between the app's controls and its figure, kept open for the test.
+HOLD_APP_FIGURE = """
+(function () {
+  let P, open, opened = new Promise(r => { open = r; });
+  window.__releaseApp = () => open();
+  Object.defineProperty(window, 'Plotly', {configurable: true, get() { return P; }, set(v) {
+    P = v;
+    if (v && v.react && !v.__held) {
+      const react = v.react;
+      v.react = function (gd, ...rest) {
+        if (gd && gd.closest && gd.closest('#react-entry-point')) { return opened.then(() => react.call(this, gd, ...rest)); }
+        return react.call(this, gd, ...rest);
+      };
+      v.__held = true;
+    }
+  }});
+})();
+"""
+
+
+def test_the_app_s_controls_answer_before_its_figure_is_drawn(one_server, page, shot):
+    """Once the app has drawn its tabs and drop-downs, the copy keeps only its figure (the early figure, over
+    the app's graph) and lets clicks through: the app's controls lie where the copy's were, the page looks as
+    it did, a drop-down opens and a tab is opened while the app's graph is not drawn yet; the app's figure
+    comes afterwards."""
+    url, _ = one_server
+    page.add_init_script(HOLD_APP_FIGURE)
+    page.add_init_script(SWAP_WATCH)
+    page.goto(url, wait_until="commit")
+    page.wait_for_selector(".first-view .fv-figure.fv-live")  # the early figure drawn
+    copy_shot = shot(page, "22-first-view-early-figure")
+    page.wait_for_selector(".first-view.fv-app", state="attached")
+    page.wait_for_timeout(300)
+    assert page.evaluate("document.querySelector('#react-entry-point #raw-figure .gtitle')") is None  # held
+    swap = page.evaluate("window.__swap")
+    for part in ("tabs", "campaign", "summary", "table", "run", "figure"):
+        copy, app = swap[part]
+        if part == "figure":  # the app's graph, not drawn yet, has no height: the copy's figure covers its place
+            copy, app = copy[:3], app[:3]
+        assert copy and app and max(abs(a - b) for a, b in zip(copy, app)) <= 1.0, (part, copy, app)
+    controls_shot = shot(page, "23-first-view-app-controls")
+    differ, total = differing_pixels(copy_shot, controls_shot)
+    assert differ < 0.0005 * total, differ
+    # a click on the app's tab or drop-down reaches the app, not the copy
+    hits = page.evaluate("""() => ['#tabs .tab:nth-child(2)', '#campaign-choice', '#raw-run'].map(s => {
+        const e = document.querySelector('#react-entry-point ' + s), r = e.getBoundingClientRect();
+        return e.contains(document.elementFromPoint(r.left + r.width / 2, r.top + r.height / 2)); })""")
+    assert hits == [True, True, True]
+    page.click("#react-entry-point #raw-run")
+    page.wait_for_selector("#react-entry-point #raw-run[aria-expanded=true]")
+    assert page.evaluate("document.querySelector('.first-view')") is None  # taken away by the click
+    page.keyboard.press("Escape")
+    page.click("#tabs >> text=2 Model")
+    page.wait_for_selector("#model-summary")
+    page.click("#tabs >> text=1 Campaign and data")
+    page.evaluate("window.__releaseApp()")
+    page.wait_for_selector("#react-entry-point #raw-figure .gtitle")
+    assert page.evaluate("document.querySelectorAll('#react-entry-point #raw-figure .scatterlayer .trace').length") == 9
+
+
+def test_a_click_in_the_early_figure_keeps_it_until_the_app_s_figure_is_drawn(one_server, page):
+    """A zoom in the early figure while the app's controls are there but its graph is not drawn yet: the copy's
+    figure stays, and the zoom reaches the app's graph when it is drawn."""
+    url, _ = one_server
+    page.add_init_script(HOLD_APP_FIGURE)
+    page.goto(url, wait_until="commit")
+    page.wait_for_selector(".first-view.fv-app .fv-figure.fv-live", state="attached")
+    plot = page.locator(".first-view .fv-plot .nsewdrag").first.bounding_box()
+    page.mouse.move(plot["x"] + plot["width"] * 0.3, plot["y"] + plot["height"] * 0.3)
+    page.mouse.down()
+    page.mouse.move(plot["x"] + plot["width"] * 0.6, plot["y"] + plot["height"] * 0.6, steps=5)
+    page.mouse.up()
+    assert page.evaluate("!!document.querySelector('.first-view .fv-plot')")
+    zoomed = page.evaluate("document.querySelector('.first-view .fv-plot')._fullLayout.xaxis.range")
+    page.evaluate("window.__releaseApp()")
+    page.wait_for_function("() => !document.querySelector('.first-view')")
+    assert page.evaluate("document.querySelector('#react-entry-point #raw-figure .js-plotly-plot')"
+                         "._fullLayout.xaxis.range") == zoomed

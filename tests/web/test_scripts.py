@@ -154,3 +154,18 @@ def test_a_table_drawn_before_the_grid_code_has_arrived_is_drawn_when_it_has(ser
         route.continue_()
     page.wait_for_selector("#param-table [row-id='pKa[S.N_aryl]']")
     assert page.locator(".grid-loading").count() == 0
+
+
+def test_the_core_components_chunks_are_listed_after_dash_s_scripts(tmp_path):
+    """The drop-down, graph and upload code of Dash's core components is evaluated before Dash's renderer
+    starts (after the components' bundle, before the renderer's start script), so the first drawing of the
+    layout does not wait for it."""
+    html, client = _page(tmp_path)
+    listed = re.findall(r'<script src="([^"]+)"', html)
+    chunks = [s for s in listed if "/dcc/async-" in s]
+    assert sorted(c.rsplit("/", 1)[1] for c in chunks) == ["async-dropdown.js", "async-graph.js", "async-upload.js"]
+    core = [i for i, s in enumerate(listed) if "dash_core_components" in s]
+    assert core and min(listed.index(c) for c in chunks) > max(core)
+    assert max(html.index(c) for c in chunks) < html.index('id="_dash-renderer"')
+    for address in chunks:
+        assert client.get(address, headers=HOST).status_code == 200, address

@@ -18,7 +18,13 @@ copy, with the early figure, is taken away as before; what the chemist did
 with the early figure is carried over first (:data:`HAND_OVER`: the axis
 ranges of a zoom or pan, the drag mode, traces hidden in the legend).  Where
 plotly.js does not load or cannot draw the figure, the copy's image stays
-(the still copy of before).
+(the still copy of before).  With the early figure drawn, the app's first
+drawing of its graph waits for the next frame and the browser's idle time
+(``Plotly.react`` wrapped until then, later calls queued after it): the
+frame that shows the app's tabs and drop-downs, which React puts in together
+with the graph, is painted first and the controls answer a click at once,
+while the early figure still covers the graph's place (the copy hands the
+controls over then: :mod:`speciakin.web.first_view`).
 
 Measured (docs/web.md, "The figure interactive before the app"): on a
 first-ever visit the figure answers a zoom or a hover 0.3 to 0.6 s sooner in
@@ -53,6 +59,27 @@ DRAW = """(function () {
   var div = document.createElement("div");
   div.className = "fv-plot";
   function failed() { box.classList.remove("fv-live"); if (div.parentNode) { div.parentNode.removeChild(div); } }
+  /* the app's first drawing waits for the next frame: the frame that shows the app's tabs and drop-downs (put
+     in with its graph, which the copy's figure box still covers) is painted first, then Plotly draws; later
+     drawings (of the same graph too) wait for that one, in their order */
+  function later() {
+    var react = Plotly.react, queue = null;
+    Plotly.react = function () {
+      var args = arguments, self = this;
+      if (!queue) {
+        queue = new Promise(function (go) {
+          requestAnimationFrame(function () {
+            if (window.requestIdleCallback) { requestIdleCallback(go, {timeout: 500}); } else { setTimeout(go, 0); }
+          });
+        });
+      }
+      var run = function () { return react.apply(self, args); };
+      queue = queue.then(run, run);
+      var mine = queue;
+      queue.then(function () { if (queue === mine) { Plotly.react = react; } }, function () { Plotly.react = react; });
+      return mine;
+    };
+  }
   try {
     fig = JSON.parse(data.textContent);
     box.appendChild(div);
@@ -60,6 +87,7 @@ DRAW = """(function () {
       if (!div.querySelector(".nsewdrag")) { failed(); return; }
       box.classList.add("fv-live");
       view.speciakinHandOver = %(hand_over)s;
+      later();
     }, failed);
   } catch (e) { failed(); }
 })();"""

@@ -10,9 +10,11 @@ campaign's check (its summary and the table of problems, as the app draws
 them) and the raw data of the first run as an SVG image drawn on the server
 (:mod:`speciakin.web.first_svg`) at the width the page gives the figure (a
 few lines of script in the HTML measure it before the image is asked for).
-The copy lies over the app in the same places and sizes, with the same styles,
-and is taken away once the app has drawn its interactive figure (or, should
-that never happen, after 15 s), so the view neither flashes nor moves.  It is
+The copy lies over the app in the same places and sizes, with the same styles;
+once the app has drawn its tabs and drop-downs it keeps only its figure (and
+lets every click through to the app's controls), and it is taken away once
+the app has drawn its interactive figure (or, should that never happen,
+after 15 s), so the view neither flashes nor moves.  It is
 left out when the page opens on no campaign, and taken away at once when the
 browser's session had another tab open (the tabs remember it).
 
@@ -64,14 +66,25 @@ STYLE = """
 .fv-select span { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
 .fv-select svg { color: rgba(0, 9, 38, .9); }
 .fv-figure img { display: block; }
+.first-view.fv-app { background: transparent; pointer-events: none; visibility: hidden; }
+.first-view.fv-app .fv-figure { visibility: visible; pointer-events: auto; }
 @media (max-width: 800px) { .first-view { display: none; } }
 """
-#: Sets the image's address with the figure's width, then takes the copy away once the app's figure is
-#: drawn (its annotations are drawn last) and the early figure's changes are carried over to it (not while it
-#: is being dragged), or after 15 s, or at once when the session had another tab open.
+#: Sets the image's address with the figure's width; hands the controls over to the app as soon as the app has
+#: drawn its tabs and drop-downs (the copy keeps only its figure box, over the app's graph, and lets every
+#: click through: ``fv-app``), then takes the copy away once the app's figure is drawn (its annotations are
+#: drawn last) and the early figure's changes are carried over to it (not while it is being dragged), or
+#: after 15 s, or at once when the session had another tab open.  A click or key pressed in the app beside
+#: the copy's figure box takes the copy away at once (a tab opened, a drop-down opened over the figure).
+#: Watched on every change of the app's part of the page (a mutation observer), not by polling.
 _SCRIPT = """(function () {
   var view = document.currentScript.parentNode, img = view.querySelector(".fv-figure img");
-  function gone() { if (view.parentNode) { view.parentNode.removeChild(view); } }
+  var box = view.querySelector(".fv-figure"), app = document.getElementById("react-entry-point"), seen, since;
+  function gone() {
+    if (view.parentNode) { view.parentNode.removeChild(view); }
+    document.removeEventListener("pointerdown", beside, true); document.removeEventListener("keydown", beside, true);
+  }
+  function beside(e) { if (!box.contains(e.target)) { gone(); } }
   try {
     var tab = sessionStorage.getItem("_dash_persistence.tabs.value.true");
     if (tab && JSON.parse(tab)[0] !== "%(first)s") { gone(); return; }
@@ -79,19 +92,33 @@ _SCRIPT = """(function () {
   var width = Math.round(img.parentNode.getBoundingClientRect().width);
   if (!width) { gone(); return; }  /* not shown (a narrow window) */
   img.src = img.getAttribute("data-src") + "&w=" + width;
-  var since = Date.now();
-  (function wait() {
-    var drawn = document.querySelector("#react-entry-point #raw-figure .main-svg .annotation");
+  function controls() {  /* the app's tabs and a drop-down for each of the copy's */
+    return app.querySelectorAll("#tabs .tab").length >= view.querySelectorAll(".fv-tab").length
+      && app.querySelectorAll(".dash-dropdown").length >= view.querySelectorAll(".fv-select").length;
+  }
+  function look() {
+    if (!view.parentNode) { return true; }
+    if (!seen && controls()) {
+      seen = true;
+      view.classList.add("fv-app");
+      document.addEventListener("pointerdown", beside, true); document.addEventListener("keydown", beside, true);
+    }
+    var drawn = app.querySelector("#raw-figure .main-svg .annotation");
     if (drawn && !document.querySelector(".dragcover")) {  /* not while the early figure is dragged */
       var done = function () { requestAnimationFrame(function () { requestAnimationFrame(gone); }); };
       var hand = view.speciakinHandOver;  /* the early figure's changes carried over (web.early_figure) */
-      if (hand) { hand(document.querySelector("#react-entry-point #raw-figure .js-plotly-plot"), done); }
+      if (hand) { hand(app.querySelector("#raw-figure .js-plotly-plot"), done); }
       else { done(); }
-      return;
+      return true;
     }
-    if (Date.now() - since > 15000) { gone(); return; }
-    setTimeout(wait, 40);
-  })();
+    if (Date.now() - since > 15000) { gone(); return true; }
+    return false;
+  }
+  since = Date.now();
+  if (!app || !window.MutationObserver) { gone(); return; }
+  var watch = new MutationObserver(function () { if (look()) { watch.disconnect(); } });
+  watch.observe(app, {childList: true, subtree: true});
+  (function late() { if (!look()) { setTimeout(late, 100); } else { watch.disconnect(); } })();  /* a drag's end */
 })();"""
 
 

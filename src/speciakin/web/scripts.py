@@ -17,7 +17,10 @@ drawn earlier), and lets the browser fetch at once, while it evaluates the
 listed scripts, the ones that Dash's components load only when first drawn
 (:data:`LATER`: plotly.js, the graph, dropdown and upload code of the
 first tab), instead of after the page's layout has arrived and been drawn
-(docs/web.md, Speed).
+(docs/web.md, Speed).  Those of Dash's core components (:data:`CHUNKS`) are
+also listed after Dash's scripts, so that they are evaluated before React
+draws the layout (webpack finds them already there): the drop-downs are then
+drawn without waiting for their code to be asked for and evaluated first.
 """
 
 from __future__ import annotations
@@ -28,7 +31,8 @@ from pathlib import Path
 
 from speciakin.web.bundles import serve_script
 
-__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "trim_scripts", "later_files"]
+__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "CHUNKS", "trim_scripts",
+           "later_files"]
 
 #: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
 REGENERATOR = Path(__file__).resolve().parent / "static" / "regenerator-runtime.js"
@@ -42,6 +46,8 @@ GRID_LOADER_PATH = "_speciakin/grid-loader.js"
 #: after the path prefix: (package, file in the package).  plotly.js is the address bundles.py answers.
 LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("dash", "dcc/async-upload.js"),
          ("plotly", "package_data/plotly.min.js"))
+#: Of :data:`LATER`, the code chunks of Dash's core components: listed after Dash's scripts as well.
+CHUNKS = tuple((package, name) for package, name in LATER if name.startswith("dcc/async-"))
 _POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
 _DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
 _GRID = re.compile(r'<script src="([^"]*/dash_ag_grid/dash_ag_grid\.[^"]*)"></script>\n?')
@@ -56,7 +62,8 @@ def later_files() -> list[Path]:
 
 def trim_scripts(app, server) -> None:
     """Make ``app`` (Dash) list the regenerator runtime in place of the polyfill, without the data table,
-    the grid's stand-in in place of its bundle, and with the scripts of :data:`LATER` preloaded; ``server``
+    the grid's stand-in in place of its bundle, with the scripts of :data:`LATER` preloaded and those of
+    :data:`CHUNKS` listed after Dash's scripts; ``server``
     (its Flask server) sends the runtime and the stand-in.
 
     Call it after the request guards are set on ``server`` (the scripts are sent behind them).
@@ -67,6 +74,8 @@ def trim_scripts(app, server) -> None:
     loader = f"{prefix}{GRID_LOADER_PATH}?v={_serve(server, prefix + GRID_LOADER_PATH, GRID_LOADER)}"
     preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
                       for package, name in LATER)
+    chunks = "".join(f'<script src="{prefix}_dash-component-suites/{package}/{name}"></script>\n'
+                     for package, name in CHUNKS)
 
     def grid(found: re.Match) -> str:
         return f'<script src="{loader}" data-grid="{found.group(1)}"></script>\n'
@@ -76,7 +85,7 @@ def trim_scripts(app, server) -> None:
     def interpolate_index(**kwargs):
         scripts, found = _POLYFILL.subn(runtime, kwargs["scripts"], count=1)
         scripts = _DATA_TABLE.sub("", scripts if found else runtime + scripts)
-        kwargs["scripts"] = _GRID.sub(grid, scripts, count=1)
+        kwargs["scripts"] = _GRID.sub(grid, scripts, count=1) + chunks  # before the renderer's start
         kwargs["css"] = preload + kwargs["css"]
         return interpolate(**kwargs)
 
