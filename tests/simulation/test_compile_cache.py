@@ -354,3 +354,35 @@ def test_the_compile_notice_gives_the_estimate_of_the_variant(monkeypatch):
                        parallel=False)
     assert said == [cache_guard.COLD_COMPILE_SECONDS_NO_PATHS, cache_guard.COLD_COMPILE_SECONDS]
     assert cache_guard.COLD_COMPILE_SECONDS_NO_PATHS < cache_guard.COLD_COMPILE_SECONDS
+
+
+def test_a_driver_library_skips_the_full_module_passes_and_computes_the_same(monkeypatch):
+    """``jit_options.driver_kernel``: the driver's library runs numba's cheap module passes
+    only, a callee's library the full ones; the driver's result is that of a plain njit."""
+    from numba import njit
+    from numba.core import codegen
+
+    from speciakin.simulation.jit_options import DRIVER_OPTIONS
+
+    optimised = []
+    full = codegen.CPUCodeLibrary._optimize_final_module
+    monkeypatch.setattr(codegen.CPUCodeLibrary, "_optimize_final_module",
+                        lambda library: (optimised.append(library.name), full(library))[1])
+
+    @njit
+    def callee_for_driver_test(x):
+        return np.sqrt(x) * 3.0 + 1.0 / 7.0
+
+    def body(a):
+        total = 0.0
+        for value in a:
+            total += callee_for_driver_test(value)
+        return total
+
+    driver = njit(**DRIVER_OPTIONS)(body)
+    plain = njit(body)
+    a = np.linspace(0.1, 9.0, 101)
+    assert driver(a) == plain(a)  # the same floating-point operations: equal to the last bit
+    names = [name.rsplit(".", 1)[-1] for name in optimised]  # libraries are named by the qualified name
+    assert "callee_for_driver_test" in names
+    assert names.count("body") == 1  # the plain njit's library only

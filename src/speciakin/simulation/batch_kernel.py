@@ -31,13 +31,14 @@ import numpy as np
 from numba import njit
 
 from speciakin.simulation.integrator_kernel import run_one, run_workspaces
+from speciakin.simulation.jit_options import driver_kernel
 from speciakin.simulation.rhs_kernel import MODE_FREE, MODE_HELD
 from speciakin.simulation.status import STATUS_OK
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
 
-@njit(cache=True, nogil=True)
+@driver_kernel(nogil=True)
 def batch_tasks(model, q_all, runs, ph_offset, amount_factor, rtol, atol, out, status, info, first, stride,
                 free_ph=True, held_ramp=True):
     """Fill ``out`` (n_sets, n_runs, n_times, n_outputs), ``status``, ``info`` for the

@@ -37,12 +37,12 @@ KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"
 #: Rough duration of a cold compile on a quiet two-core machine [s], to the first parallel
-#: likelihood, of a kernel variant with the free-pH path or the held-pH ramp's (62-67 s, the
-#: paths compiled side by side, ``split_compile``), and of the variant with neither (held pH at
-#: one temperature, logged pH: 52-57 s in five runs of six, load 2-4.8); docs/simulation.md
-#: (``benchmarks/bench_compile.py [--demo]``).
-COLD_COMPILE_SECONDS = 65
-COLD_COMPILE_SECONDS_NO_PATHS = 55
+#: likelihood, of a kernel variant with the free-pH path or the held-pH ramp's (the demo: 48-51 s,
+#: the paths compiled side by side, ``split_compile``, and the drivers not optimised again,
+#: ``jit_options.driver_kernel``), and of the variant with neither (held pH at one temperature,
+#: logged pH: 45-50 s), load 1.1-3; docs/simulation.md (``benchmarks/bench_compile.py [--demo]``).
+COLD_COMPILE_SECONDS = 55
+COLD_COMPILE_SECONDS_NO_PATHS = 50
 
 
 def default_cache_dir() -> Path:

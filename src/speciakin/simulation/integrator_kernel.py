@@ -53,7 +53,7 @@ from speciakin.simulation.profile_kernel import logged_ph
 from speciakin.simulation.segment_kernel import integrate_smooth, make_smooth_workspace, reset_smooth_workspace
 from speciakin.simulation.speciation_kernel import exp10, site_pka_at
 from speciakin.simulation.water_kernel import pkw
-from speciakin.simulation.jit_options import leaf_kernel
+from speciakin.simulation.jit_options import driver_kernel, leaf_kernel
 from speciakin.simulation.layout import (INFO_FAILED_AT, INFO_OPPOSITE, INFO_START_ADJUST, INFO_STEPS, INFO_TITRANT,
                                          CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_SMOOTH, CTX_LOG_N, CTX_LOG_T, CTX_LOG_V, CTX_MODE,
                                          CTX_PH_OFFSET, CTX_SECOND, CTX_SETPOINT,
@@ -239,7 +239,7 @@ def run_workspaces(model):
     return ws, make_smooth_workspace(model, model.n_species + 3)
 
 
-@njit(cache=True)
+@driver_kernel
 def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw, free_ph=True,
             held_ramp=True):
     """Simulate run ``r`` with parameter vector ``q``; outputs go to ``out``.
