@@ -202,6 +202,18 @@ def test_progress_reports_steps_against_the_cap():
     assert seen[-1] == (600, 600) and {t for _, t in seen} == {600}
 
 
+def test_progress_of_a_run_that_converges_before_the_cap_ends_complete():
+    # the last report of a converged run is (steps, steps, 0): a progress bar or a job ends at 100 %
+    # instead of at the converged step against the cap
+    seen = []
+    run = gaussian_run(progress=lambda done, total, left: seen.append((done, total, left)))
+    steps = run.chain.shape[0]
+    assert steps < DEFAULT_MAX_STEPS
+    assert seen[-1] == (steps, steps, 0.0)
+    assert seen[-2][:2] == (steps, DEFAULT_MAX_STEPS)
+    assert {t for _, t, _ in seen[:-1]} == {DEFAULT_MAX_STEPS}
+
+
 def test_resume_across_a_check_gives_the_same_chain_and_stop_step(tmp_path, converged_run):
     path = tmp_path / "ck.h5"
     with pytest.raises(KeyboardInterrupt):

@@ -175,23 +175,33 @@ def _check_resumable(cp: Checkpoint, settings: dict, path: Path) -> None:
 
 
 def _progress_reporter(progress, total: int, initial: int):
-    """(update(done), note(text), close()) for the chosen kind of progress report."""
+    """(update(done), note(text), close(), ended()) for the chosen kind of progress report.
+
+    ``ended()`` is called when the run has ended normally: a callable that was told steps against the cap
+    is then told ``(done, done, 0.0)`` when the run stopped before the cap (converged), so that a bar or a
+    job's progress shows the stage complete instead of stopping at, say, 1000 of 5000 steps."""
     if callable(progress):
         start_time, start_step = time.monotonic(), initial
+        last = {"done": initial}
 
         def report(done: int) -> None:
+            last["done"] = done
             elapsed = time.monotonic() - start_time
             rate = (done - start_step) / elapsed if elapsed > 0 else 0.0
             left = (total - done) / rate if rate > 0 else math.inf
             progress(done, total, left)
 
-        return report, (lambda text: None), (lambda: None)
+        def ended() -> None:
+            if last["done"] < total:
+                progress(last["done"], last["done"], 0.0)
+
+        return report, (lambda text: None), (lambda: None), ended
     if progress:
         from tqdm.auto import tqdm
 
         bar = tqdm(total=total, initial=initial, unit="step", desc="sampling", leave=False)
-        return (lambda done: bar.update(done - bar.n)), bar.set_postfix_str, bar.close
-    return (lambda done: None), (lambda text: None), (lambda: None)
+        return (lambda done: bar.update(done - bar.n)), bar.set_postfix_str, bar.close, (lambda: None)
+    return (lambda done: None), (lambda text: None), (lambda: None), (lambda: None)
 
 
 def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[str], priors: Sequence,
@@ -375,7 +385,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
                                               last["accepted"], last["random_state"], run_settings,
                                               stop_checks=[c.to_dict() for c in checks if c.step <= n * thin_by]))
 
-        update, note, close_bar = _progress_reporter(progress, n_stored, done)
+        update, note, close_bar, ended = _progress_reporter(progress, n_stored, done)
 
         def converged_now(iteration: int) -> bool:
             """Check the stored chain when ``iteration`` stored steps is a check point."""
@@ -419,6 +429,7 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
             raise SolverError(f"the ensemble sampler stopped: {exc}") from exc
         finally:
             close_bar()
+        ended()
         save()
         description = evaluator.description
     chain = backend.get_chain()
