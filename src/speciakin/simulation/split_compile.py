@@ -207,14 +207,13 @@ def compile_paths_apart(model, q_all, runs, out, info, free_ph=True, held_ramp=T
     core, no writable cache, the paths cached already, a variant with neither
     path) or the second process failed.
     """
+    from numba import typeof
     from numba.core import config
 
     from speciakin.simulation.cache_guard import is_cached
     from speciakin.simulation.held_ramp_kernel import temperature_piece
     from speciakin.simulation.integrator_kernel import integrate_segment
     from speciakin.simulation.segment_kernel import integrate_smooth, smooth_steps
-
-    from numba import typeof
 
     free_ph = free_ph is True
     held_ramp = held_ramp is True

@@ -137,6 +137,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         return Section("Decision summary", blocks, anchor="decision")
     status, status_text = status_words(window)
     established = status == "established"
+    best_words = best_probability_words(window.best_probability, window.mc_confidence)
     robust = _robust_for_primary(window)
     centre_ph, outcomes = window_centre_outcomes(window)
     outcomes = [[label_of(names, row[0]), *row[1:]] for row in outcomes]
@@ -160,7 +161,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         text = (f"{status_text}\n\nNo pH in the scanned range meets every specification with probability at "
                 f"least {window.level:g}. ")
         if window.best_ph is not None:
-            text += f"The highest probability is at pH {window.best_ph:.2f} ({best_probability_words(window.best_probability, window.mc_confidence)}). "
+            text += f"The highest probability is at pH {window.best_ph:.2f} ({best_words}). "
     if outcomes:
         parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
         text += f"Expected outcome at pH {centre_ph:.2f}, median (90 % band): " + "; ".join(parts) + ". "
@@ -174,7 +175,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             ("Robust set points", format_interval(robust)),
             ("All windows", ", ".join(format_interval(w) for w in window.windows) or "none"),
             ("Best set point", None if window.best_ph is None else
-             f"pH {window.best_ph:.2f} ({best_probability_words(window.best_probability, window.mc_confidence)})"),
+             f"pH {window.best_ph:.2f} ({best_words})"),
             ("Uncertainty source", window.uncertainty_source), ("Draws", window.n_draws)]
     blocks.append(KeyValues(rows, number_format=".3g"))
     gates = gate_table(window)
