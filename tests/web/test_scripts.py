@@ -1,6 +1,7 @@
 """The scripts the page lists: the regenerator runtime in place of Babel's polyfill, no data table, the grid's
 stand-in in place of its bundle, and the scripts Dash loads later preloaded (without a browser); in the
-browser: the grid's code fetched after the first figure, and a table drawn before it has arrived."""
+browser: the grid's code fetched after the first figure, a table drawn before it has arrived, and the
+drop-down's code ready before the layout (the drop-downs drawn with the tabs)."""
 
 from __future__ import annotations
 
@@ -169,3 +170,36 @@ def test_the_core_components_chunks_are_listed_after_dash_s_scripts(tmp_path):
     assert max(html.index(c) for c in chunks) < html.index('id="_dash-renderer"')
     for address in chunks:
         assert client.get(address, headers=HOST).status_code == 200, address
+
+
+#: Per animation frame until the app's tabs are there: how many of the app's drop-downs that frame holds.
+_DROPS_WITH_TABS = """
+(function frame() {
+  const app = document.getElementById('react-entry-point');
+  if (app && app.querySelector('#tabs .tab')) { window.__dropsWithTabs = app.querySelectorAll('.dash-dropdown').length; }
+  else { requestAnimationFrame(frame); }
+})();
+"""
+
+
+def test_the_drop_down_code_is_ready_before_the_layout_and_drawn_with_the_tabs(server, page):
+    """The drop-down's lazily loaded code is resolved before the layout arrives (:data:`scripts.READY`), so
+    React draws the drop-downs in the frame that shows the tabs, not in a later pass."""
+    url, _ = server
+    held = []
+    page.route("**/_dash-layout", lambda route, _request: held.append(route))
+    page.add_init_script(_DROPS_WITH_TABS)
+    page.goto(url)
+    page.wait_for_function("() => window.dash_core_components && document.getElementById('_dash-renderer')")
+    page.wait_for_timeout(300)  # the promise of the drop-down's code settled; the layout still held back
+    assert held and page.locator("#react-entry-point #tabs").count() == 0
+    # React's lazy component of the drop-down: 1 = resolved (0 pending, -1 not asked for)
+    status = page.evaluate("dash_core_components.Dropdown({}).props.children.type._payload._status")
+    assert status == 1
+    for route in held:
+        route.continue_()
+    page.wait_for_function("window.__dropsWithTabs !== undefined")
+    drops = page.evaluate("window.__dropsWithTabs")
+    page.wait_for_selector("#campaign-choice")
+    page.wait_for_timeout(500)  # every later pass of React done
+    assert drops >= 2 and drops == page.locator("#react-entry-point .dash-dropdown").count()  # campaign, run

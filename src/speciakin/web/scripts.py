@@ -20,7 +20,10 @@ first tab), instead of after the page's layout has arrived and been drawn
 (docs/web.md, Speed).  Those of Dash's core components (:data:`CHUNKS`) are
 also listed after Dash's scripts, so that they are evaluated before React
 draws the layout (webpack finds them already there): the drop-downs are then
-drawn without waiting for their code to be asked for and evaluated first.
+drawn without waiting for their code to be asked for and evaluated first; and
+:data:`READY` starts the drop-down's lazy component on that code before the
+renderer starts, so that React draws the drop-downs in the pass that draws
+the tabs.
 """
 
 from __future__ import annotations
@@ -31,8 +34,8 @@ from pathlib import Path
 
 from speciakin.web.bundles import serve_script
 
-__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "CHUNKS", "trim_scripts",
-           "later_files"]
+__all__ = ["REGENERATOR", "RUNTIME_PATH", "GRID_LOADER", "GRID_LOADER_PATH", "LATER", "CHUNKS", "READY",
+           "trim_scripts", "later_files"]
 
 #: The regenerator runtime of npm ``regenerator-runtime`` (0.13.11), as published.
 REGENERATOR = Path(__file__).resolve().parent / "static" / "regenerator-runtime.js"
@@ -48,6 +51,19 @@ LATER = (("dash", "dcc/async-graph.js"), ("dash", "dcc/async-dropdown.js"), ("da
          ("plotly", "package_data/plotly.min.js"))
 #: Of :data:`LATER`, the code chunks of Dash's core components: listed after Dash's scripts as well.
 CHUNKS = tuple((package, name) for package, name in LATER if name.startswith("dcc/async-"))
+#: After :data:`CHUNKS`, before the renderer starts: the drop-down's code made ready for React.  Dash's
+#: drop-down draws its code through ``React.lazy``, which on its first drawing suspends for one promise and
+#: draws it only in a later pass; started here (React 18's lazy component: ``_init(_payload)``, which throws
+#: the promise while pending), it is resolved when the layout arrives, and React draws the drop-downs with
+#: the tabs.  Any failure leaves the drop-downs as they were.
+READY = """<script>(function () {
+  try {
+    var make = window.dash_core_components && window.dash_core_components.Dropdown;
+    var lazy = make && make({}).props.children.type;
+    if (lazy && lazy._init && lazy._payload) { lazy._init(lazy._payload); }
+  } catch (e) { /* a lazy component not yet resolved throws its promise */ }
+})();</script>
+"""
 _POLYFILL = re.compile(r'<script src="[^"]*/deps/polyfill@[^"]*"></script>\n?')
 _DATA_TABLE = re.compile(r'<script src="[^"]*/dash/dash_table/[^"]*"></script>\n?')
 _GRID = re.compile(r'<script src="([^"]*/dash_ag_grid/dash_ag_grid\.[^"]*)"></script>\n?')
@@ -75,7 +91,7 @@ def trim_scripts(app, server) -> None:
     preload = "".join(f'<link rel="preload" as="script" href="{prefix}_dash-component-suites/{package}/{name}">'
                       for package, name in LATER)
     chunks = "".join(f'<script src="{prefix}_dash-component-suites/{package}/{name}"></script>\n'
-                     for package, name in CHUNKS)
+                     for package, name in CHUNKS) + READY
 
     def grid(found: re.Match) -> str:
         return f'<script src="{loader}" data-grid="{found.group(1)}"></script>\n'
