@@ -232,7 +232,13 @@ class ProblemCollector(ProblemList):
 
     def error(self, message: str, location: Location | None = None, value: Any = None,
               expected: str | None = None, code: str = "invalid") -> None:
-        self.problems.append(Problem(message, location or Location(), value, expected, "error", code))
+        """Record an error; a spreadsheet cell (row and column known) gets one error, the first
+        (the most specific: a later check that reads the same cell has nothing to add)."""
+        location = location or Location()
+        if location.row is not None and location.column is not None and any(
+                p.severity == "error" and p.location == location for p in self.problems):
+            return
+        self.problems.append(Problem(message, location, value, expected, "error", code))
 
     def warning(self, message: str, location: Location | None = None, value: Any = None,
                 expected: str | None = None, code: str = "suspicious") -> None:

@@ -59,7 +59,22 @@ def test_a_run_mixing_clock_times_and_numbers_is_a_located_error(tmp_path):
     edit(folder, "hplc_results.csv", 2, "time [min]", "10:00")
     report = check_campaign(folder)
     bad = [p for p in report.errors if "mixes clock times" in p.message]
-    assert len(bad) == 1 and bad[0].location.sheet is not None and bad[0].location.row is not None
+    # the one clock time is the slip: named at its own cell, and only once (no 'not a number' beside it)
+    assert len(bad) == 1 and bad[0].location.sheet is not None and bad[0].location.row == 2
+    assert bad[0].location.column.endswith("(time [min])") and bad[0].value == "10:00"
+    assert [p for p in report.errors if p.location == bad[0].location] == bad
+
+
+def test_a_number_among_clock_times_is_the_error_and_the_clock_times_are_read(tmp_path):
+    folder = csv_campaign(tmp_path)
+    run = read_csv(folder, "hplc_results.csv")[1][0]
+    _to_clock(folder, runs={run})
+    edit(folder, "hplc_results.csv", 2, "time [min]", "5")
+    report = check_campaign(folder)
+    bad = [p for p in report.errors if "mixes clock times" in p.message]
+    assert len(bad) == 1 and bad[0].location.row == 2 and bad[0].value == "5", report.report()
+    assert "a number among" in bad[0].message
+    assert not [p for p in report.errors if p.code == "not_numeric"], report.report()
 
 
 def test_excel_time_and_duration_cells(tmp_path):

@@ -96,6 +96,9 @@ def test_decimal_commas_read_the_same_way_in_every_sheet(folder):
     assert report.ok, report.report()
     notes = _codes(report, "decimal_comma")
     assert len(notes) == 6  # one per sheet, not one per cell
+    for note in notes:  # each names the first such cell's own text and the number it was read as
+        text = note.message.split("the first, '")[1].split("'")[0]
+        assert text.count(",") == 1 and note.message.endswith(f"as {text.replace(',', '.')})"), note.message
     back = load_campaign(folder)
     for a, b in zip(reference.runs, back.runs):
         np.testing.assert_array_equal(a.hplc.time, b.hplc.time)

@@ -46,3 +46,16 @@ def test_imported_sample_mole_fractions(tmp_path):
     assert h.censored.tolist() == [False, False, False, True]
     assert h.loq[3] == pytest.approx(0.05)   # LOQ from the Compounds sheet
     assert h.basis == "area_percent"
+
+
+@pytest.mark.parametrize("word", ["n.d.", "ND", " nd ", "not detected"])
+def test_not_detected_reads_as_below_the_loq(tmp_path, word):
+    # a peak not detected lies below the detection limit, so below the LOQ (common practice)
+    folder = csv_campaign(tmp_path)
+    rows = [["run", "time [min]", "kind", "compound", "value"],
+            ["R01", "0", "area%", "S-peak", "50"], ["R01", "0", "area%", "P12-peak", "<LOQ"],
+            ["R01", "5", "area%", "S-peak", "40"], ["R01", "5", "area%", "P12-peak", word]]
+    write_csv(folder, "hplc_results.csv", rows)
+    h = load_campaign(folder).run("R01").hplc
+    assert h.censored.tolist() == [False, True, False, True]
+    assert h.loq[3] == h.loq[1] == pytest.approx(0.05) and np.isnan(h.value[3])

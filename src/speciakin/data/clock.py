@@ -55,7 +55,7 @@ def convert_clock_cells(matched: dict[str, SheetColumns], c: ProblemCollector) -
     """Replace duration and clock-time cells of the time columns by elapsed
     time in the column's unit (in place); problems go to ``c``."""
     clocks: dict[str, list[tuple[float, str, SheetColumns, int, int]]] = {}
-    numbers: dict[str, tuple[SheetColumns, int, int]] = {}
+    numbers: dict[str, list[tuple[SheetColumns, int, int]]] = {}
     for sheet, key in TIME_COLUMNS:
         cols = matched.get(sheet)
         if cols is None or cols.index(key) is None or cols.index("run") is None:
@@ -71,15 +71,22 @@ def convert_clock_cells(matched: dict[str, SheetColumns], c: ProblemCollector) -
             seconds = clock_seconds(value)
             if seconds is not None:
                 clocks.setdefault(run, []).append((seconds, sheet, cols, i, j))
-            elif value not in (None, "") and run not in numbers:
-                numbers[run] = (cols, i, j)
+            elif value not in (None, ""):
+                numbers.setdefault(run, []).append((cols, i, j))
     for run, cells in clocks.items():
-        if run in numbers:
-            cols, i, j = numbers[run]
-            c.error(f"run {run} mixes clock times and elapsed times", cols.table.location(
-                int(cols.table.row_numbers[i]), j), cols.table.rows[i][j],
-                "either clock times (such as 10:35) or elapsed times (numbers) for every time of one run")
+        if run in numbers and len(cells) <= len(numbers[run]):
+            # the few clock times are the slip: each is named where it is (and read no further)
+            for _, _, cols, i, j in cells:
+                c.error(f"run {run} mixes clock times and elapsed times: a clock time among "
+                        f"{len(numbers[run])} elapsed time(s)", cols.table.location(int(cols.table.row_numbers[i]), j),
+                        cols.table.rows[i][j], "an elapsed time (a number), as the run's other times",
+                        code="mixed_times")
             continue
+        if run in numbers:  # the few numbers are the slip; the clock times are read as usual
+            for cols, i, j in numbers[run]:
+                c.error(f"run {run} mixes clock times and elapsed times: a number among {len(cells)} clock "
+                        "time(s)", cols.table.location(int(cols.table.row_numbers[i]), j), cols.table.rows[i][j],
+                        "a clock time (such as 10:35), as the run's other times", code="mixed_times")
         zero, sheet, cols, i, j = min(cells, key=lambda x: x[0])
         if sheet == "hplc":
             c.warning(f"time zero of run {run} is its first HPLC sample (the earliest clock time written)",

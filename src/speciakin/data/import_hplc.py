@@ -14,6 +14,10 @@ from speciakin.errors import Location, ProblemCollector
 __all__ = ["parse_signal", "read_hplc", "empty_hplc"]
 
 
+#: Words for a peak not detected, read as '<LOQ' (a peak below detection is below quantification too).
+NOT_DETECTED = frozenset({"n.d.", "n.d", "nd", "notdetected"})
+
+
 def parse_signal(raw, factor: float) -> tuple[float, bool, float, str | None]:
     """One HPLC cell -> (value, censored, loq from the cell, error text)."""
     if is_blank(raw):
@@ -24,6 +28,8 @@ def parse_signal(raw, factor: float) -> tuple[float, bool, float, str | None]:
         v = float(raw)
     else:
         s = str(raw).strip()
+        if s.lower().replace(" ", "") in NOT_DETECTED:  # below detection, so below the LOQ
+            return np.nan, True, np.nan, None
         if s.startswith("<"):
             rest = s[1:].strip()
             limit = to_float(rest)
@@ -110,10 +116,10 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
         f = factor if kinds[k] == "concentration" else 1.0
         value, censored, cell_loq, err = parse_signal(raw, f)
         if has_decimal_comma(raw):  # '7,5' and '<0,05' alike
-            t.comma_cells.append((row, col))
+            t.comma_cells.append((row, col, raw))
         if err is not None:
             c.error(f"HPLC value is {err}", t.location(row, col), raw,
-                    "a number >= 0, '<LOQ', '<' followed by the limit, or blank", code="not_numeric"
+                    "a number >= 0, '<LOQ', '<' followed by the limit, 'n.d.' or blank", code="not_numeric"
                     if "number" in err else "negative")
             continue
         loq = cell_loq

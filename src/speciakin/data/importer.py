@@ -231,9 +231,10 @@ def comma_note(table: RawTable, c: ProblemCollector) -> None:
     """One note per sheet for numbers written with a decimal comma."""
     if not table.comma_cells:
         return
-    row, col = min(table.comma_cells)
+    row, col, text = min(table.comma_cells, key=lambda cell: cell[:2])
     n = len(table.comma_cells)
-    c.warning(f"{n} number(s) written with a decimal comma were read as decimals ('7,5' = 7.5)",
+    first = f"the first, '{text.strip()}', as {text.strip().replace(',', '.')}"
+    c.warning(f"{n} number(s) written with a decimal comma were read as decimals ({first})",
               table.location(row, col), None, "decimal points, or decimal commas throughout", code="decimal_comma")
 
 

@@ -66,7 +66,7 @@ class RawTable:
     lists (row, 0-based column, formula) of formulas without a stored result
     (read as blank); ``notes`` holds (message, code) remarks about the whole
     file as (severity, message, code), severity "fatal" meaning the sheet's
-    columns cannot be trusted (cells shifted); ``comma_cells`` collects (row, column) of numbers
+    columns cannot be trusted (cells shifted); ``comma_cells`` collects (row, 0-based column, text) of numbers
     written with a decimal comma as they are converted.
     """
 
@@ -77,7 +77,7 @@ class RawTable:
     row_numbers: np.ndarray
     formula_cells: list[tuple[int, int, str]] = field(default_factory=list)
     notes: list[tuple[str, str, str]] = field(default_factory=list)
-    comma_cells: list[tuple[int, int]] = field(default_factory=list)
+    comma_cells: list[tuple[int, int, str]] = field(default_factory=list)
 
     def location(self, row: int | None = None, column: int | None = None) -> Location:
         col = None
@@ -374,7 +374,7 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
             continue
         f = to_float(v)
         if f is not None and has_decimal_comma(v):
-            table.comma_cells.append((int(table.row_numbers[i]), index))
+            table.comma_cells.append((int(table.row_numbers[i]), index, v))
         if f is None:
             collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
                             v, "a number", code="not_numeric")

@@ -59,8 +59,8 @@ def guide_lines() -> list[tuple[str, str]]:
         ("pH mode words", ", ".join(PH_MODE_WORDS)),
         ("Start adjustment words", ", ".join(START_ADJUSTMENT_WORDS)),
         ("HPLC kinds", ", ".join(HPLC_KINDS)),
-        ("Below the LOQ", "'<LOQ' uses the LOQ of the Compounds sheet; '<0.05' states the limit; a blank cell "
-                          "in a sampled row counts as below the LOQ. Such values are kept as censored "
+        ("Below the LOQ", "'<LOQ' uses the LOQ of the Compounds sheet; '<0.05' states the limit; 'n.d.' (not "
+                          "detected) and a blank cell in a sampled row count as below the LOQ. Such values are kept as censored "
                           "observations, never read as zero."),
         ("Area% and RRF", "mole fraction_i = (area_i / RRF_i) / sum_j (area_j / RRF_j) over one sample."),
         ("", ""),
