@@ -33,6 +33,15 @@ def test_toml_syntax_error_names_line_and_column():
     assert err.location.line == n
 
 
+def test_a_decimal_comma_is_named_at_its_line():
+    # TOML numbers take a decimal point (TOML 1.0 specification, "Float"); 9,0 is a syntax error there
+    text = BASE.replace("pka = 9.0", "pka = 9,0", 1)
+    n = line_of(text, "pka = 9,0")
+    err = check(text, rf"m\.toml, line {n}: TOML syntax error: a number written with a decimal comma")
+    assert err.problems[0].value == "pka = 9,0" and "9.5, not 9,5" in str(err)
+    check(BASE.replace('role = "reagent"', 'role = "reagent'), r"TOML syntax error: (?!a number)")
+
+
 def test_unknown_key_lists_allowed_ones():
     text = BASE.replace('kind = "base"\npka = 9.0', 'kind = "base"\npkaa = 9.0')
     n = line_of(text, "pkaa")

@@ -209,7 +209,10 @@ def test_file_and_syntax_errors(tmp_path):
         load_process(tmp_path / "missing.toml")
     with pytest.raises(ModelFileError, match="line 3") as info:
         load_process(write(tmp_path, "[process]\nname = 'x'\nvolume = \n"))
-    assert "not valid TOML" in str(info.value)
+    assert "TOML syntax error" in str(info.value)
+    with pytest.raises(ModelFileError, match="decimal comma") as info:  # pKa 9,9 typed the continental way
+        load_process(write(tmp_path, "[process]\nname = 'x'\nvolume = 2,5\n"))
+    assert info.value.location.line == 3 and "9.5, not 9,5" in str(info.value)
     with pytest.raises(ModelFileError, match="key 'process'"):
         load_process(write(tmp_path, "[scan]\nlevel = 0.9\n"))
     with pytest.raises(ModelFileError, match="key 'specification'"):

@@ -12,14 +12,13 @@ key path, line (best effort), the value and what was expected, as a
 from __future__ import annotations
 
 import math
-import re
-import tomllib
 from dataclasses import replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any, Mapping
 
 from speciakin.chemistry.model import START_ADJUSTMENTS, Model
+from speciakin.chemistry.modelfile.parse import read_toml
 from speciakin.decision.process_fields import (
     PROCESS_KEYS,
     RENAMED_PROCESS_KEYS,
@@ -224,13 +223,7 @@ def load_process(path: str | Path, model: Model | None = None) -> ProcessPlan:
                              expected="an existing TOML file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ModelFileError(f"cannot read the process file: {exc}", Location(file=str(path))) from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        m = re.search(r"line (\d+)", str(exc))
-        raise ModelFileError(f"not valid TOML: {exc}",
-                             Location(file=str(path), line=int(m.group(1)) if m else None),
-                             expected="TOML syntax (key = value, [table])") from None
+    data = read_toml(text, str(path))
     process = parse_process(data, str(path), text)
     if model is not None:
         process = validate_process(process, model, text)

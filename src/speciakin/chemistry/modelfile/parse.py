@@ -42,11 +42,36 @@ from speciakin.chemistry.modelfile.validate import (
 )
 from speciakin.errors import Location, ModelFileError, Problem
 
-__all__ = ["load_model", "parse_model"]
+__all__ = ["load_model", "parse_model", "read_toml"]
 
 
 _NAN = float("nan")
 _TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
+_DECIMAL_COMMA = re.compile(r"=\s*[-+]?\d+,\d+\s*(?:[,}\]#]|$)")
+
+
+def read_toml(text: str, source: str) -> dict[str, Any]:
+    """The tables of a TOML file (model or process file) read from ``text``.
+
+    Raises
+    ------
+    ModelFileError
+        A syntax error, at its line, with the line's text; a number written with a decimal comma
+        (``pka = 9,9``) is named as such.
+    """
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        message = str(exc)
+        m = _TOML_POSITION.search(message)
+        line = int(m.group(1)) if m else None
+        written = text.splitlines()[line - 1].strip() if line and line <= len(text.splitlines()) else None
+        expected = "valid TOML (https://toml.io)"
+        if written is not None and _DECIMAL_COMMA.search(written):
+            message = "a number written with a decimal comma; " + message
+            expected = "a decimal point in numbers (9.5, not 9,5)"
+        raise ModelFileError(f"TOML syntax error: {message}", Location(file=source, line=line), written,
+                             expected=expected) from None
 
 
 # ---------------------------------------------------------------------------
@@ -111,14 +136,7 @@ def parse_model(text: str, source: str = "<string>", base_dir: str | Path | None
     ModelFileError
         Every problem found, gathered in one message.
     """
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        message = str(exc)
-        m = _TOML_POSITION.search(message)
-        line = int(m.group(1)) if m else None
-        raise ModelFileError(f"TOML syntax error: {message}", Location(file=source, line=line),
-                             expected="valid TOML (https://toml.io)") from None
+    data = read_toml(text, source)
     builder = _Builder(TableReader(source, text), Path(base_dir) if base_dir is not None else Path("."))
     model = builder.build(data, "" if source == "<string>" else source)
     reader = builder.reader
