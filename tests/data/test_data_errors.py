@@ -188,3 +188,11 @@ def test_not_a_workbook(tmp_path):
 def test_missing_campaign_path(tmp_path):
     with pytest.raises(DataError, match="campaign not found"):
         load_campaign(tmp_path / "nothing-here")
+
+
+@pytest.mark.parametrize("written, told", [("25 °C", True), ("50 mL", True), ("1.5e-3 mol", True), ("abc", False)])
+def test_a_number_written_with_its_unit_is_told_the_header_gives_the_unit(folder, written, told):
+    edit(folder, "runs.csv", 2, "start volume [mL]", written)
+    problem = _only(check_campaign(folder), "not_numeric")
+    assert (problem.location.row, problem.location.column[1:]) == (2, " (start volume [mL])")
+    assert ("the unit is the column header's ('start volume [mL]')" in problem.expected) == told, problem.expected

@@ -302,3 +302,20 @@ def test_opposite_titrant_of_the_same_sign_is_located(tmp_path):
     rows = dict(RUNS_ROWS, W1="W1,held,7.0,Na+,0.5,Na+,1000,computed,Cl-,,25,50,120,1,1.1,")
     problem = _only(_errors(_folder(tmp_path, rows)), "invalid_choice")
     assert (problem.location.row, problem.location.column) == (2, "F (opposite titrant ion)")
+
+
+@pytest.mark.parametrize("written, hint", [("NaOH", "Na+ for NaOH"), ("HCl", "Cl- for HCl"), ("KOH", None)])
+def test_a_titrant_named_as_its_reagent_is_located_with_the_ion_it_brings(tmp_path, written, hint):
+    # the model's ions are Na+ and Cl-: NaOH brings Na+, HCl brings Cl- (hints); KOH brings no ion of the model
+    rows = dict(RUNS_ROWS, W2=f"W2,held,6.5,{written},0.5,,,given,Cl-,950,25,50,90,1,,")
+    problem = _only(_errors(_folder(tmp_path, rows)), "unknown_species")
+    assert (problem.location.row, problem.location.column) == (3, "D (titrant ion)") and problem.value == written
+    assert (hint in problem.expected) if hint else "brings" not in problem.expected, problem.expected
+
+
+def test_ph_stat_is_a_held_run(tmp_path):
+    # 'pH-stat' is the lab's word for a pH held by a dosing controller (common practice)
+    rows = dict(RUNS_ROWS, W1=RUNS_ROWS["W1"].replace(",held,", ",pH-stat,"))
+    (tmp_path / "b").mkdir()
+    assert load_campaign(_folder(tmp_path, rows)).run("W1").recipe.ph == load_campaign(
+        _folder(tmp_path / "b", RUNS_ROWS)).run("W1").recipe.ph

@@ -343,6 +343,17 @@ def to_float(value: Any) -> float | None:
     return None
 
 
+_NUMBER_AND_UNIT = re.compile(r"^\s*[-+]?(\d+([.,]\d*)?|[.,]\d+)([eE][-+]?\d+)?\s*[^\d\s.,].*$")
+
+
+def _expected_number(value: Any, header: str) -> str:
+    """What a numeric cell should hold; a number written with a unit ('25 °C') is told that the
+    header gives the unit."""
+    if isinstance(value, str) and _NUMBER_AND_UNIT.match(value):
+        return f"a number alone: the unit is the column header's ('{header.strip()}')" if header else "a number alone"
+    return "a number"
+
+
 def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
                    what: str, factor: float = 1.0, offset: float = 0.0,
                    minimum: float | None = None, maximum: float | None = None,
@@ -377,7 +388,8 @@ def numeric_column(table: RawTable, index: int, collector: ProblemCollector, *,
             table.comma_cells.append((int(table.row_numbers[i]), index, v))
         if f is None:
             collector.error(f"{what} is not a number", table.location(int(table.row_numbers[i]), index),
-                            v, "a number", code="not_numeric")
+                            v, _expected_number(v, table.headers[index] if index < len(table.headers) else ""),
+                            code="not_numeric")
         else:
             out[i] = f
     bad = ~np.isfinite(out)

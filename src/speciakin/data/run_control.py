@@ -159,7 +159,8 @@ def _ion_problems(campaign, model, c: ProblemCollector) -> None:
             ion = getattr(ph, key)
             if ion and not charges.get(ion):
                 c.error(f"{key.replace('_', ' ')} of run {run.name} is not a charged ion of the model",
-                        campaign.locate("runs", run.row, key), ion, "one of: " + listing, code="unknown_species")
+                        campaign.locate("runs", run.row, key), ion, "one of: " + listing + _ion_hint(ion, charges),
+                        code="unknown_species")
         a, b = charges.get(ph.titrant or ""), charges.get(ph.opposite_titrant or "")
         if a and b and a * b > 0:
             c.error(f"the opposite titrant of run {run.name} has the same charge sign as its titrant",
@@ -218,3 +219,11 @@ def control_model_problems(campaign, model, c: ProblemCollector) -> None:
     _ion_problems(campaign, model, c)
     if not c.has_errors:
         _reach_problems(campaign, model, c)
+
+
+def _ion_hint(written: str, charges: dict[str, int]) -> str:
+    """' (the ion the titrant brings: Na+ for NaOH)' when ``written`` names a reagent (NaOH, HCl,
+    KOH) holding exactly one of the model's charged ions, else ''."""
+    found = [ion for ion, z in charges.items() if z and (element := ion.rstrip("+-0123456789"))
+             and element in written and written != ion]
+    return f" (the ion the titrant brings: {found[0]} for {written})" if len(found) == 1 else ""

@@ -107,7 +107,7 @@ HPLC_KINDS: Mapping[str, str] = MappingProxyType({
 
 #: Accepted words for the pH mode of a run -> :data:`speciakin.chemistry.model.PH_MODES`.
 PH_MODE_WORDS: Mapping[str, str] = MappingProxyType({
-    "held": "held", "hold": "held", "controlled": "held",
+    "held": "held", "hold": "held", "controlled": "held", "ph-stat": "held", "ph stat": "held", "phstat": "held",
     "logged": "logged", "log": "logged", "measured": "logged",
     "free": "free", "none": "free", "uncontrolled": "free",
 })
