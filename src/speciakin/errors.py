@@ -229,15 +229,18 @@ class ProblemCollector(ProblemList):
 
     def __init__(self) -> None:
         self.problems: list[Problem] = []
+        self._cells: set[tuple] = set()  # the cells holding an error
 
     def error(self, message: str, location: Location | None = None, value: Any = None,
               expected: str | None = None, code: str = "invalid") -> None:
         """Record an error; a spreadsheet cell (row and column known) gets one error, the first
         (the most specific: a later check that reads the same cell has nothing to add)."""
         location = location or Location()
-        if location.row is not None and location.column is not None and any(
-                p.severity == "error" and p.location == location for p in self.problems):
-            return
+        if location.row is not None and location.column is not None:
+            cell = (location.file, location.sheet, location.row, location.column)
+            if cell in self._cells:
+                return
+            self._cells.add(cell)
         self.problems.append(Problem(message, location, value, expected, "error", code))
 
     def warning(self, message: str, location: Location | None = None, value: Any = None,

@@ -196,3 +196,19 @@ def test_a_number_written_with_its_unit_is_told_the_header_gives_the_unit(folder
     problem = _only(check_campaign(folder), "not_numeric")
     assert (problem.location.row, problem.location.column[1:]) == (2, " (start volume [mL])")
     assert ("the unit is the column header's ('start volume [mL]')" in problem.expected) == told, problem.expected
+
+
+def test_a_cell_gets_one_error_the_first():
+    from speciakin.errors import Location, ProblemCollector
+
+    c = ProblemCollector()
+    cell = Location(file="c.xlsx", sheet="Runs", row=3, column="C (pH setpoint)")
+    c.error("first, the specific finding", cell, "x")
+    c.error("second, a later check of the same cell", cell, "x")
+    c.error("another cell", Location(file="c.xlsx", sheet="Runs", row=4, column="C (pH setpoint)"), "y")
+    c.error("a key, not a cell", Location(file="m.toml", key="a.b"))
+    c.error("the same key again", Location(file="m.toml", key="a.b"))
+    c.warning("a warning at the cell is kept", cell)
+    assert [p.message for p in c.errors] == ["first, the specific finding", "another cell", "a key, not a cell",
+                                             "the same key again"]
+    assert len(c.warnings) == 1
