@@ -55,6 +55,19 @@ def test_check_reports_process_file_errors_with_their_key(tmp_path, capsys):
     assert len(bad) == 1 and bad[0]["location"]["key"] == "process.reagent" and bad[0]["value"] == "'NOPE'"  # values are shown quoted
 
 
+def test_a_spec_naming_the_hplc_compound_is_told_its_model_molecule(tmp_path, capsys):
+    # the example's Compounds sheet maps 'N-alkyl amide' to the model molecule ALKYL_AMIDE
+    assert main(["new", str(tmp_path / "c"), "--example"]) == 0
+    p = tmp_path / "c" / "process.toml"
+    p.write_text(p.read_text().replace('species = "ALKYL_AMIDE"', 'species = "N-alkyl amide"'))
+    capsys.readouterr()
+    assert main(["check", str(tmp_path / "c"), "--format", "json"]) == 1
+    bad = [q for q in json.loads(capsys.readouterr().out)["problems"] if q["severity"] == "error"]
+    assert len(bad) == 1 and bad[0]["location"]["key"].endswith(".species")
+    assert bad[0]["expected"].endswith("'N-alkyl amide' is the Compounds sheet's name of model molecule "
+                                       "ALKYL_AMIDE: write ALKYL_AMIDE")
+
+
 def test_example_checks_and_runs_quick(tmp_path, capsys):
     folder = tmp_path / "try-it"
     assert main(["new", str(folder), "--example"]) == 0

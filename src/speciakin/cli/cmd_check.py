@@ -43,7 +43,19 @@ def check_process(report, process: str, model) -> None:
     try:
         load_process(process, model)
     except InputError as exc:
-        report.problems.extend(exc.problems)
+        report.problems.extend(_named_in_workbook(p, report.compounds) for p in exc.problems)
+
+
+def _named_in_workbook(problem, compounds: dict[str, str]):
+    """``problem`` with a hint when its value is an HPLC compound's name (the Compounds sheet's) where the
+    process file wants the model molecule it maps to."""
+    from dataclasses import replace
+
+    molecule = compounds.get(problem.value) if isinstance(problem.value, str) else None
+    if not molecule or molecule == problem.value:
+        return problem
+    hint = f"'{problem.value}' is the Compounds sheet's name of model molecule {molecule}: write {molecule}"
+    return replace(problem, expected=f"{problem.expected}; {hint}" if problem.expected else hint)
 
 
 def run(args) -> int:

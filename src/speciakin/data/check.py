@@ -36,6 +36,8 @@ class CheckReport(ProblemList):
     runs, hplc_values, log_readings
         Counts of what was imported (0 when the import failed); log readings
         are pH, temperature and titrant readings together.
+    compounds
+        HPLC compound name -> model molecule, from the Compounds sheet (empty when the import failed).
     """
 
     source: str
@@ -45,6 +47,7 @@ class CheckReport(ProblemList):
     runs: int = 0
     hplc_values: int = 0
     log_readings: int = 0
+    compounds: dict[str, str] = field(default_factory=dict)
 
     @property
     def ok(self) -> bool:
@@ -121,6 +124,7 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         units_map = model_problems(campaign, model_obj, c) if model_obj is not None else None
         campaign_warnings(campaign, c, units_map)
         report.runs = len(campaign.runs)
+        report.compounds = {c.name: c.molecule for c in campaign.compounds}
         report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
         report.log_readings = sum(len(x.time) for r in campaign.runs
                                   for x in (r.ph_log, r.temperature_log, r.titrant) if x is not None)
