@@ -8,7 +8,7 @@ from pathlib import Path
 
 from speciakin.errors import InputError, Location
 
-__all__ = ["Inputs", "resolve_inputs", "load_inputs", "MODEL_FILE", "PROCESS_FILE"]
+__all__ = ["Inputs", "resolve_inputs", "load_inputs", "check_inputs", "MODEL_FILE", "PROCESS_FILE"]
 
 #: Default names of the model and process files inside a campaign folder (made by ``speciakin new``).
 MODEL_FILE = "model.toml"
@@ -70,3 +70,48 @@ def load_inputs(inputs: Inputs):
     campaign = load_campaign(inputs.campaign, model=model)  # names, titrants, reachable set points (docs/data.md)
     process = load_process(inputs.process, model) if inputs.process else None
     return model, campaign, process
+
+
+def check_inputs(campaign: str | os.PathLike, model: str | os.PathLike | None = None,
+                 process: str | os.PathLike | None = None):
+    """Every problem of a campaign's workbook, model file and process file, each where it is
+    (``speciakin check`` and the workbench page show this report).
+
+    Returns
+    -------
+    speciakin.data.CheckReport
+        The workbook's and model file's problems (``speciakin.data.check_campaign``), then the process
+        file's, checked against the model when it could be read; a process value that is an HPLC
+        compound's name where a model molecule is wanted is told the molecule.
+    """
+    from speciakin.chemistry.modelfile import load_model
+    from speciakin.data import check_campaign
+    from speciakin.decision import load_process
+
+    report = check_campaign(campaign, model=model)
+    if process is None:
+        return report
+    report.process = str(process)
+    model_obj = None
+    if model is not None:
+        try:
+            model_obj = load_model(model)
+        except InputError:  # its problems are in the report already
+            pass
+    try:
+        load_process(process, model_obj)
+    except InputError as exc:
+        report.problems.extend(_named_in_workbook(p, report.compounds) for p in exc.problems)
+    return report
+
+
+def _named_in_workbook(problem, compounds: dict[str, str]):
+    """``problem`` with a hint when its value is an HPLC compound's name (the Compounds sheet's) where the
+    process file wants the model molecule it maps to."""
+    from dataclasses import replace
+
+    molecule = compounds.get(problem.value) if isinstance(problem.value, str) else None
+    if not molecule or molecule == problem.value:
+        return problem
+    hint = f"'{problem.value}' is the Compounds sheet's name of model molecule {molecule}: write {molecule}"
+    return replace(problem, expected=f"{problem.expected}; {hint}" if problem.expected else hint)

@@ -133,12 +133,12 @@ def check_rows(report) -> list[dict]:
 
 
 def _check(state, name):
-    from speciakin.data import check_campaign
+    from speciakin.pipeline.inputs import MODEL_FILE, PROCESS_FILE, check_inputs
 
     folder = state.folder(name)
-    model = folder / "model.toml"
-    return state.cached("check", state.inputs_of(folder), lambda: check_campaign(
-        folder, model=model if model.is_file() else None)), folder
+    model, process = folder / MODEL_FILE, folder / PROCESS_FILE
+    return state.cached("check", state.inputs_of(folder), lambda: check_inputs(
+        folder, model if model.is_file() else None, process if process.is_file() else None)), folder
 
 
 def _campaign(state, folder):

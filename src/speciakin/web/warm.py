@@ -30,16 +30,17 @@ def warm_up() -> None:
     import plotly.graph_objects as go
 
     import speciakin.decision  # noqa: F401  (what reading a window.json imports)
-    from speciakin.data import check_campaign, load_campaign
+    from speciakin.data import load_campaign
     from speciakin.demo import demo_dir
     from speciakin.errors import SpeciakinError
+    from speciakin.pipeline.inputs import check_inputs
     from speciakin.chemistry.modelfile import load_model
     from speciakin.web.figures import compound_colors, correlation_figure, raw_run_figure
     from speciakin.web.first_svg import figure_svg
 
     demo = demo_dir()
     try:
-        check_campaign(demo, model=demo / "model.toml")
+        check_inputs(demo, demo / "model.toml", demo / "process.toml")  # the page's check (page_campaign)
         campaign = load_campaign(demo)
         raw = raw_run_figure(campaign.runs[0], compound_colors(load_model(demo / "model.toml")))
         raw.to_plotly_json()
@@ -65,6 +66,7 @@ def first_page(app) -> None:
     """Make the page a first visitor gets once (the check and raw data of the campaign it opens on, kept in
     the server's caches), so that the first visit waits for none of it."""
     from speciakin.errors import SpeciakinError
+    from speciakin.pipeline.inputs import check_inputs
 
     layout = app.layout
     if callable(layout):
