@@ -47,6 +47,9 @@ table.check th, table.check td { border: 1px solid #ddd; padding: .3em .5em; tex
   overflow-wrap: anywhere; }
 table.check th { background: #f4f4f4; } tr.problem.error td[data-col=severity] { color: #b00020; font-weight: 600; }
 table.check td[data-col=message] { width: 30%; }
+table.check [data-col=severity], table.check [data-col=sheet], table.check [data-col=row],
+table.check [data-col=column], table.check [data-col=value] { overflow-wrap: break-word; }
+table.check [data-col=severity], table.check [data-col=row] { white-space: nowrap; }
 """
 
 
