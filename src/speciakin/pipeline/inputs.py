@@ -88,16 +88,16 @@ def check_inputs(campaign: str | os.PathLike, model: str | os.PathLike | None = 
     from speciakin.data import check_campaign
     from speciakin.decision import load_process
 
-    report = check_campaign(campaign, model=model)
+    model_obj = None
+    if model is not None:
+        try:  # read once, for the workbook's check and the process file's
+            model_obj = load_model(model)
+        except InputError:  # the workbook's check reads the file again and reports its problems
+            pass
+    report = check_campaign(campaign, model=model if model_obj is None else model_obj)
     if process is None:
         return report
     report.process = str(process)
-    model_obj = None
-    if model is not None:
-        try:
-            model_obj = load_model(model)
-        except InputError:  # its problems are in the report already
-            pass
     try:
         load_process(process, model_obj)
     except InputError as exc:

@@ -65,7 +65,8 @@ def read_toml(text: str, source: str) -> dict[str, Any]:
         message = str(exc)
         m = _TOML_POSITION.search(message)
         line = int(m.group(1)) if m else None
-        written = text.splitlines()[line - 1].strip() if line and line <= len(text.splitlines()) else None
+        lines = text.splitlines()
+        written = lines[line - 1].strip() if line and line <= len(lines) else None
         expected = "valid TOML (https://toml.io)"
         if written is not None and _DECIMAL_COMMA.search(written):
             message = "a number written with a decimal comma; " + message
