@@ -55,6 +55,24 @@ def test_check_reports_process_file_errors_with_their_key(tmp_path, capsys):
     assert len(bad) == 1 and bad[0]["location"]["key"] == "process.reagent" and bad[0]["value"] == "'NOPE'"  # values are shown quoted
 
 
+def test_check_summary_says_what_an_error_stops(tmp_path, capsys):
+    # an error in the process file alone stops the pH window, not the fit (the fit reads the
+    # workbook and the model file only); an error in the model file stops everything
+    assert main(["new", str(tmp_path / "c"), "--example"]) == 0
+    p = tmp_path / "c" / "process.toml"
+    p.write_text(p.read_text().replace('reagent = "REA"', 'reagent = "NOPE"'))
+    capsys.readouterr()
+    assert main(["check", str(tmp_path / "c")]) == 1
+    text = capsys.readouterr().out
+    assert "1 error(s) in the process file; the fit can run, the pH window cannot" in text
+    assert "nothing can be fitted" not in text
+    m = tmp_path / "c" / "model.toml"
+    m.write_text(m.read_text() + "\n[nonsense_table]\nx = 1\n")
+    assert main(["check", str(tmp_path / "c")]) == 1
+    text = capsys.readouterr().out
+    assert "nothing can be fitted until they are fixed" in text and "the fit can run" not in text
+
+
 def test_a_spec_naming_the_hplc_compound_is_told_its_model_molecule(tmp_path, capsys):
     # the example's Compounds sheet maps 'N-alkyl amide' to the model molecule ALKYL_AMIDE
     assert main(["new", str(tmp_path / "c"), "--example"]) == 0

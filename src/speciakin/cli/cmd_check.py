@@ -20,7 +20,8 @@ def add_arguments(parser) -> None:
                         help="text for people (default) or json for machines")
     parser.epilog = ("example:\n  speciakin check my-campaign --model my-campaign/model.toml\n"
                      "exit code 0: no errors (warnings are listed with their text); "
-                     "1: errors, nothing can be fitted")
+                     "1: errors (in the workbook or model file: nothing can be fitted; "
+                     "in the process file alone: the fit can run, the pH window cannot)")
 
 
 def _beside(campaign: str, given: str | None, name: str) -> str | None:

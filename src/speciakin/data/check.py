@@ -54,6 +54,11 @@ class CheckReport(ProblemList):
         return not self.errors
 
     @property
+    def fit_errors(self) -> list[Problem]:
+        """The errors that stop a fit: all but the process file's (those stop only the pH window)."""
+        return [p for p in self.errors if not self.process or p.location.file != self.process]
+
+    @property
     def exit_code(self) -> int:
         """0 without errors, :data:`CHECK_FAILED` with errors (exit code of ``speciakin check``)."""
         return 0 if self.ok else CHECK_FAILED
@@ -70,7 +75,10 @@ class CheckReport(ProblemList):
         lines += ["", "Result", "------",
                   "OK: ready to fit" if self.ok and not self.warnings else
                   "OK with warnings: review them before fitting" if self.ok else
-                  f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"]
+                  f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"
+                  if self.fit_errors else
+                  f"FAILED: {len(self.errors)} error(s) in the process file; the fit can run, "
+                  "the pH window cannot until they are fixed"]
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, Any]:

@@ -90,7 +90,7 @@ def campaign_view(state, name) -> tuple:
     summary = (f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {report.runs} run(s), "
                f"{report.hplc_values} HPLC values, {report.log_readings} log readings. " + _verdict(report))
     runs = []
-    if not _data_errors(report):  # the raw data need a readable workbook and model, not the process file
+    if not report.fit_errors:  # the raw data need a readable workbook and model, not the process file
         try:
             runs = [r.name for r in _campaign(state, folder).runs]
         except SpeciakinError:
@@ -218,14 +218,8 @@ def _raw_figure(state, name, run_name):
     return state.cached(f"raw-figure {run_name}", state.inputs_of(folder), lambda: raw_run_figure(run, colors))
 
 
-def _data_errors(report) -> list:
-    """The check's errors other than the process file's (those stop the fit; the process file's only the
-    pH window)."""
-    return [p for p in report.errors if not report.process or p.location.file != report.process]
-
-
 def _verdict(report) -> str:
-    if _data_errors(report):
+    if report.fit_errors:
         return "Nothing can be fitted until the errors are fixed."
     if not report.ok:
         return "The fit can run; the pH window needs the process file's errors fixed first."
