@@ -291,3 +291,17 @@ def test_the_demo_shipped_in_the_package_is_never_written_into(capsys):
     err = capsys.readouterr().err
     assert "demo campaign shipped with the speciakin package" in err and "Traceback" not in err
     assert sorted(p.relative_to(demo) for p in demo.rglob("*")) == before
+
+
+def test_the_recorded_command_names_a_new_output_folder(tmp_path, monkeypatch):
+    # outputs never overwrite earlier results, so the command written into a result names its own
+    # folder, when it was given with --out, as a new folder to make; inputs stay relative paths
+    from speciakin.pipeline import outputs
+
+    out, campaign = tmp_path / "res", tmp_path / "camp"
+    out.mkdir()
+    campaign.mkdir()
+    monkeypatch.setattr("sys.argv", ["speciakin", "fit", str(campaign), "--out", str(out), "--starts", "2"])
+    assert outputs.command_line(out) == f"speciakin fit ../camp --out {outputs.NEW_FOLDER} --starts 2"
+    monkeypatch.setattr("sys.argv", ["speciakin", "report", str(out)])  # a folder read, not written
+    assert outputs.command_line(out) == "speciakin report ."

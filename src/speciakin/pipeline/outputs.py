@@ -106,12 +106,24 @@ def command_line(folder: str | os.PathLike | None = None) -> str:
     With ``folder``, every argument that names an existing file or folder is
     written relative to ``folder`` (the result folder), so that the command
     names no path of the machine; it then reproduces the result when started
-    from inside the result folder.
+    from inside the result folder. The result folder itself (``--out``) is
+    written as :data:`NEW_FOLDER`: outputs never overwrite earlier results, so
+    a rerun needs a new folder.
     """
     args = sys.argv[1:]
     if folder is not None:
-        args = [relative(a, folder) if a and not a.startswith("-") and os.path.exists(a) else a for a in args]
+        args = [_as_recorded(a, folder, before) if a and not a.startswith("-") and os.path.exists(a) else a
+                for before, a in zip(["", *args], args)]
     return " ".join(["speciakin", *(shlex.quote(a) for a in args)])
+
+
+#: How :func:`command_line` writes the output folder it was given (a rerun must name a new one).
+NEW_FOLDER = "NEW_FOLDER"
+
+
+def _as_recorded(arg: str, folder: str | os.PathLike, option: str) -> str:
+    rel = relative(arg, folder)
+    return NEW_FOLDER if option == "--out" and rel == "." else rel
 
 
 def write_text(path: str | os.PathLike, text: str) -> Path:
