@@ -103,7 +103,9 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     assert sorted(p.name for p in (folder / "look").glob("*.png")) == ["E01-pH4.5.png", "E02-pH6.0.png",
                                                                         "E03-pH7.5.png"]
     assert main(["run", str(folder), "--quick", "--quiet"]) == 0
-    assert QUICK_NOTE in capsys.readouterr().out
+    said = capsys.readouterr().out
+    assert QUICK_NOTE in said
+    assert "  next: Sample the posterior ('speciakin sample', or 'speciakin run' without --quick)" in said
     result = latest_result(folder / "results")     # the run's own new result folder
     fit = json.loads((result / "fit.json").read_text())
     window = json.loads((result / "window.json").read_text())

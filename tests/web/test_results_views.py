@@ -91,6 +91,10 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     assert f"pH {lo:.2f}-{hi:.2f}" in legend and f"required level {window['level']:.2f}" in legend
     for reason in window["status_reasons"]:
         assert page.locator("#window-reasons li", has_text=reason[:40]).count() == 1
+    # what would lift the failing gates, under the reasons
+    assert window["next_steps"]
+    for step in window["next_steps"]:
+        assert page.locator("#window-reasons li.next-step", has_text=step[:40]).count() == 1
 
     # the 2-D map: the decision layer's probabilities over pH x equivalents, not recomputed
     show_view(page, "map")

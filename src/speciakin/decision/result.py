@@ -137,6 +137,9 @@ class WindowResult:
         Why the status is not "established" (empty when it is).
     gates
         One dict per gate: name, verdict, reasons, figures.
+    next_steps
+        What would lift the failing gates, in plain words
+        (:func:`speciakin.decision.next_steps.next_steps`); empty when established.
     """
 
     level: float
@@ -179,6 +182,7 @@ class WindowResult:
     status: str | None = None
     status_reasons: list[str] = field(default_factory=list)
     gates: list[dict[str, Any]] = field(default_factory=list)
+    next_steps: list[str] = field(default_factory=list)
 
     # ------------------------------------------------------------------ text
     def best_probability_text(self) -> str:
@@ -196,6 +200,7 @@ class WindowResult:
             lines += [f"  - {r}" for r in self.status_reasons]
             checked = [g for g in self.gates if g.get("verdict") == "not checked"]
             lines += [f"  (not checked: {g['name']}: {'; '.join(g.get('reasons', []))})" for g in checked]
+            lines += [f"  next: {step}" for step in self.next_steps]
         h = REPORT_HEADINGS[1:]
         lines.append(f"[{h[1]}]")
         lines.append(f"  level                  {self.level:.3g}")
@@ -337,7 +342,16 @@ class WindowResult:
             status=data.get("status"),
             status_reasons=list(data.get("status_reasons", [])),
             gates=[dict(g) for g in data.get("gates", [])],
+            next_steps=list(data["next_steps"]) if "next_steps" in data else _steps_of(data),
         )
+
+
+def _steps_of(data: Mapping[str, Any]) -> list[str]:
+    """Next steps of a ``window.json`` written before they were recorded, from its gates."""
+    from speciakin.decision.next_steps import next_steps
+
+    best = data.get("best_ph") if data.get("windows") else None
+    return next_steps(data.get("gates") or [], None if best is None else float(best))
 
 
 def _fmt(x: float) -> str:

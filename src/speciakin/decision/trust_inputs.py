@@ -161,5 +161,8 @@ def campaign_gate_inputs(objective: Any, process: Any, result: Any, draws: np.nd
 
 def apply_gates(result: Any, inputs: GateInputs) -> Any:
     """Run the gates and write status, reasons and gate details into ``result``."""
+    from speciakin.decision.next_steps import next_steps
+
     result.status, result.status_reasons, result.gates = assess(inputs)
+    result.next_steps = next_steps(result.gates, result.best_ph if result.windows else None)
     return result

@@ -14,7 +14,7 @@ from typing import Callable
 
 from speciakin.pipeline.inputs import Inputs, load_inputs
 from speciakin.pipeline import outputs
-from speciakin.pipeline.steps import CancelFlag, Progress, make_objective, timed, window_step, window_text
+from speciakin.pipeline.steps import CancelFlag, Progress, make_objective, timed, window_lines, window_step
 
 __all__ = ["QUICK_NOTE", "QUICK_STARTS", "QUICK_DRAWS", "quick_run", "mark_provisional"]
 
@@ -78,7 +78,8 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
                                                               seed=seed, progress=progress, cancel=cancel))
         mark_provisional(window)
         outputs.save_window(out, window)
-        say(f"window: {window_text(window)} ({timings['window']:.1f} s)")
+        for line in window_lines(window, timings["window"]):
+            say(line)
     outputs.save_timings(out, timings)
     return {"check": check, "fit": fit, "window": window, "timings": timings, "objective": objective}
 

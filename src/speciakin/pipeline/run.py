@@ -29,8 +29,8 @@ from speciakin.pipeline.steps import (
     predict_step,
     sample_step,
     timed,
+    window_lines,
     window_step,
-    window_text,
 )
 
 if TYPE_CHECKING:
@@ -180,7 +180,8 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
         results.window = timed(timings, "window", lambda: window_step(
             objective, process, out, fit=fit, posterior=posterior, draws=draws, seed=seed, progress=progress,
             cancel=cancel))
-        say(f"window: {window_text(results.window)} ({timings['window']:.1f} s)")
+        for line in window_lines(results.window, timings["window"]):
+            say(line)
     else:
         say("window: skipped (no process file)")
 

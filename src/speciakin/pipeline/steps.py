@@ -168,6 +168,12 @@ def window_text(window) -> str:
             f"robust to +/- {window.tolerance:g} pH: {fmt(robust)}")
 
 
+def window_lines(window, seconds: float) -> list[str]:
+    """What a run says after its window step: :func:`window_text` and the window's next steps."""
+    return [f"window: {window_text(window)} ({seconds:.1f} s)",
+            *(f"  next: {step}" for step in getattr(window, "next_steps", None) or [])]
+
+
 # ------------------------------------------------------------------ figures of the steps
 def _figures(out: Path) -> Path:
     return Path(out) / outputs.FIGURES_FOLDER

@@ -268,6 +268,7 @@ def _window_views(window):
         return message, [], empty_figure("no window"), empty_figure("no window, so no map")
     status = f"window status: {window.status or 'not assessed'}; {_window_line(window)}"
     reasons = [html.Li(r) for r in window.status_reasons]
+    reasons += [html.Li("next: " + step, className="next-step") for step in window.next_steps]
     if window.map_probability is None or window.factor_values is None:
         drawn = empty_figure("no 2-D map: the process file has no [scan.second_factor]")
     else:

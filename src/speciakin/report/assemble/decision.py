@@ -168,6 +168,9 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     text += f"{_uncertainty_words(window.uncertainty_source)}; {window.n_draws} draws."
     if invented:
         text += " Based on invented demonstration data."
+    steps = list(getattr(window, "next_steps", None) or [])
+    if steps:
+        text += "\n\nWhat to do next: " + " ".join(steps)
     blocks.append(Callout("decision", title, text))
     rows = [("Status", status),
             ("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),

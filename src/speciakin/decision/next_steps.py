@@ -1,0 +1,119 @@
+"""What to do next when a pH window is not established: one action per failing trust gate.
+
+The trust gates (:mod:`speciakin.decision.gates`) say why a window cannot be
+presented as established; this module turns each failing gate's figures into
+the action that would lift it, in the chemist's terms and with the numbers
+(the run to do, the bound to review, the draws to use).  It reads only the
+gates' JSON-ready dicts (``WindowResult.gates``), so a ``window.json`` written
+earlier gives the same actions.
+
+Rules (each applies only when its gate is provisional or not established):
+
+* process envelope: a confirmation run in the lab at the process's own
+  conditions (equivalents, dosing time, end time, temperature, held pH) at the
+  best set point of the window; a model is only as good as the conditions
+  its runs covered.
+* pH coverage: a run at each window edge that lies beyond the runs' pH range.
+* identifiability: runs that inform the unidentified parameters; the ranked
+  candidates come from the next-run suggestion (``speciakin suggest``).
+* convergence: a posterior sampled (longer).
+* draws on a bound: the bounds reviewed.
+* error model: the data's errors stated, or the model's misfit looked for.
+* Monte Carlo error: more draws.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Mapping, Sequence
+
+from speciakin.decision.gates import BOUND_SHARE, NOT_ESTABLISHED, PH_MARGIN_PROVISIONAL, PROVISIONAL
+
+__all__ = ["next_steps"]
+
+_FAILING = (PROVISIONAL, NOT_ESTABLISHED)
+
+
+def _process_run(figures: Mapping[str, Any], best_ph: float | None) -> str | None:
+    if best_ph is None:
+        return None
+    parts = []
+    for key, label, unit in (("equivalents", "", "eq of reagent"), ("dosing_time", "dosed over ", "min"),
+                             ("end_time", "ended at ", "min"), ("temperature", "at ", "C")):
+        entry = figures.get(key)
+        if isinstance(entry, Mapping) and entry.get("process") is not None:
+            parts.append(f"{label}{float(entry['process']):g} {unit}")
+    return (f"Run the process as planned once in the lab: pH {best_ph:.2f} held (the best set point), "
+            + ", ".join(parts) + "; its conditions lie outside the runs the model was fitted to. Add the run "
+            "to the workbook and run the job again.")
+
+
+def _edges_beyond(figures: Mapping[str, Any]) -> list[float]:
+    covered = figures.get("run_ph_range")
+    if not covered:
+        return []
+    low, high = float(covered[0]), float(covered[1])
+    return [float(e) for w in figures.get("windows") or [] for e in w
+            if float(e) < low - PH_MARGIN_PROVISIONAL or float(e) > high + PH_MARGIN_PROVISIONAL]
+
+
+def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> list[str]:
+    """The actions that would lift the failing gates, in the gates' order.
+
+    Parameters
+    ----------
+    gates
+        ``WindowResult.gates``: dicts with ``name``, ``verdict``, ``reasons``, ``figures``.
+    best_ph
+        Best set point of the window [pH], or None when there is no window (no
+        confirmation run is proposed then).
+
+    Returns
+    -------
+    list of str
+        Empty when every gate passes.
+    """
+    steps: list[str] = []
+    for gate in gates:
+        if gate.get("verdict") not in _FAILING:
+            continue
+        name, figures = gate.get("name"), gate.get("figures") or {}
+        if name == "process envelope":
+            step = _process_run(figures, best_ph)
+            if step:
+                steps.append(step)
+        elif name == "pH coverage":
+            edges = _edges_beyond(figures)
+            if edges:
+                covered = figures["run_ph_range"]
+                steps.append("Add a run at pH " + " and at pH ".join(f"{e:.1f}" for e in edges)
+                             + f": the window's edge lies outside the pH {float(covered[0]):.2f} to "
+                             f"{float(covered[1]):.2f} the runs covered.")
+        elif name == "identifiability":
+            names = [n for n, f in figures.items() if isinstance(f, Mapping) and f.get("shifts")]
+            steps.append("Add runs that inform " + (", ".join(names) or "the unidentified parameters")
+                         + ": 'speciakin suggest' ranks candidate runs by how much each would firm up the "
+                         "window.")
+        elif name == "convergence":
+            if figures.get("r_hat") is None:
+                steps.append("Sample the posterior ('speciakin sample', or 'speciakin run' without --quick) "
+                             "before deciding.")
+            else:
+                steps.append("Sample the posterior longer ('speciakin sample' with more --steps) before "
+                             "deciding.")
+        elif name == "draws on a bound":
+            names = sorted({k.rsplit(" ", 1)[0] for k, share in figures.items()
+                            if isinstance(share, (int, float)) and math.isfinite(share) and share > BOUND_SHARE})
+            steps.append("Review the model-file bounds of " + (", ".join(names) or "the parameters")
+                         + ": widen them where the chemistry allows, or fix the parameter, and fit again.")
+        elif name == "error model":
+            steps.append("State the data's errors in the model file's [fit] error_model, or look at the "
+                         "residual plots for what the model misses, and fit again.")
+        elif name == "Monte Carlo error":
+            needed, drawn = figures.get("draws_needed"), figures.get("draws")
+            if needed and drawn is not None and drawn >= needed:
+                steps.append("Compute the window with its Monte Carlo guard on (the default).")
+            else:
+                steps.append("Compute the window with more draws"
+                             + (f" (--draws {int(needed)} or more)." if needed else "."))
+    return steps
