@@ -104,3 +104,24 @@ def test_data_noisier_than_stated_fire_the_error_model_gate():
     assert error_model["figures"]["reduced_chi_square"] > 4
     assert result.status == "not established"
     assert gate(result, "identifiability")["verdict"] == "not checked"        # fit without profiles
+
+
+def test_gates_that_runs_lift_name_their_runs_and_start_the_suggestion(below_pka, tmp_path):
+    # the same campaign: pKa[S.N_b] unidentified and the window above the runs' pH 2.0-2.5, so the
+    # window's next steps ask for runs, and the pipeline's suggestion step ranks candidate runs
+    from speciakin.pipeline.steps import suggest_step
+    from speciakin.pipeline.window import window_draws, window_for_campaign
+
+    objective, fit, process = below_pka
+    theta, source, _ = window_draws(fit, None, 40, 1)
+    result = window_for_campaign(objective, process, theta, source, fit=fit)
+    assert any(s.startswith("Add runs that inform pKa[S.N_b]") for s in result.next_steps)
+    assert any(s.startswith("Add a run at pH ") and "2.00 to 2.50 the runs covered" in s for s in result.next_steps)
+    suggestion = suggest_step(objective, process, result, tmp_path, fit=fit, seed=1)
+    assert suggestion is not None and suggestion.candidates
+    data = json.loads((tmp_path / "suggest.json").read_text())
+    assert data["candidates"][0]["conditions"]["setpoint_pH"] == suggestion.candidates[0].conditions["setpoint_pH"]
+    # a window whose failing gates runs do not lift (here: none fails) makes no suggestion and writes nothing
+    result.gates = [dict(g, verdict=PASS) for g in result.gates]
+    assert suggest_step(objective, process, result, tmp_path / "none", fit=fit, seed=1) is None
+    assert not (tmp_path / "none").exists()

@@ -101,6 +101,20 @@ def test_an_established_window_is_recommended():
     assert callout.title == "Recommended: pH 7.60 to 8.40" and "Status: established" in callout.text
 
 
+def test_page_one_says_what_to_do_next_and_what_the_suggestion_found():
+    window = _window("provisional", ["window edge pH 7.60 lies 0.60 pH above the highest run pH"])
+    window.next_steps = ["Add a run at pH 7.6: the window's edge lies outside the pH 6.00 to 7.00 the runs covered."]
+    text = decision_summary_section(window, None, None, suggestion=SUGGESTION).blocks[0].text
+    assert "What to do next: Add a run at pH 7.6:" in text
+    assert "Next-run suggestion (its own section below): Run next at pH 8.50" in text
+    # a suggestion that finds no run helping much does not contradict the run the gate asks for
+    text = decision_summary_section(window, None, None, suggestion=dict(SUGGESTION, helps=False)).blocks[0].text
+    assert "within the model, no candidate run narrows the window's uncertainty much. A run asked for above " \
+           "still tests the model where no run has been" in text
+    plain = decision_summary_section(_window("established"), None, None).blocks[0].text
+    assert "What to do next" not in plain and "Next-run suggestion" not in plain
+
+
 def test_document_id_follows_the_content_and_qa_names_people():
     a = document_id({"sections": [1, 2]})
     assert re.fullmatch(r"SK-[0-9A-F]{16}", a)

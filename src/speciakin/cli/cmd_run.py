@@ -71,6 +71,7 @@ def execute(inputs, out, args, invented: bool = False, raise_errors: bool = Fals
 
         renderer = types.SimpleNamespace(
             fit_figures=renderer.fit_figures, posterior_figures=renderer.posterior_figures,
+            suggest_figures=renderer.suggest_figures,
             write_report=functools.partial(renderer.write_report, author=args.author, reviewer=args.reviewer))
     step = {"name": "?"}
     progress = StageProgress(not args.quiet)
@@ -94,7 +95,8 @@ def execute(inputs, out, args, invented: bool = False, raise_errors: bool = Fals
 
 
 #: What a run writes (an explicit --out must hold none of it).
-WRITES = ("check", "fit", "fit_text", "posterior", "posterior_summary", "window", "window_text", "report", "timings")
+WRITES = ("check", "fit", "fit_text", "posterior", "posterior_summary", "window", "window_text", "suggest",
+          "suggest_text", "report", "timings")
 
 
 def run(args) -> int:

@@ -29,7 +29,7 @@ from typing import Any, Mapping, Sequence
 
 from speciakin.decision.gates import BOUND_SHARE, NOT_ESTABLISHED, PH_MARGIN_PROVISIONAL, PROVISIONAL
 
-__all__ = ["next_steps"]
+__all__ = ["next_steps", "runs_would_help", "DATA_GATES"]
 
 _FAILING = (PROVISIONAL, NOT_ESTABLISHED)
 
@@ -55,6 +55,15 @@ def _edges_beyond(figures: Mapping[str, Any]) -> list[float]:
     low, high = float(covered[0]), float(covered[1])
     return [float(e) for w in figures.get("windows") or [] for e in w
             if float(e) < low - PH_MARGIN_PROVISIONAL or float(e) > high + PH_MARGIN_PROVISIONAL]
+
+
+#: Gates that more lab runs lift (the next-run suggestion ranks candidates for them).
+DATA_GATES = ("identifiability", "pH coverage")
+
+
+def runs_would_help(gates: Sequence[Mapping[str, Any]]) -> bool:
+    """True when a gate of :data:`DATA_GATES` fails: a next-run suggestion is worth computing."""
+    return any(g.get("name") in DATA_GATES and g.get("verdict") in _FAILING for g in gates)
 
 
 def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> list[str]:

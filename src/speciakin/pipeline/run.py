@@ -28,6 +28,7 @@ from speciakin.pipeline.steps import (
     make_objective,
     predict_step,
     sample_step,
+    suggest_step,
     timed,
     window_lines,
     window_step,
@@ -77,6 +78,8 @@ class Results:
     fit: CampaignFitResult | None = None
     posterior: PosteriorResult | None = None
     window: WindowResult | None = None
+    #: The next-run suggestion, made when the window's failing gates are ones more runs lift.
+    suggestion: Any = None
     #: Curves, bands and fitted values for the report and figures.
     predictions: PredictionSet | None = None
     #: {format: path} of the rendered report, and the wall time of each step [s].
@@ -107,6 +110,10 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
             say: Callable[[str], None] = lambda s: None, on_step: Callable[[str], None] | None = None,
             sample_bar: bool = False, max_steps: int | None = None) -> Results:
     """check -> fit -> sample -> window -> report, each step's output kept in ``out``.
+
+    A window whose failing trust gates are ones more runs lift (an unidentified parameter, an edge
+    beyond the runs' pH) is followed by the next-run suggestion (``suggest.json``), which the
+    report then shows.
 
     Parameters
     ----------
@@ -182,6 +189,7 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
             cancel=cancel))
         for line in window_lines(results.window, timings["window"]):
             say(line)
+        _suggest(results, out, renderer, seed, progress, cancel, say, started)
     else:
         say("window: skipped (no process file)")
 
@@ -193,6 +201,28 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
         say("report: " + ", ".join(str(p) for p in results.report.values()))
     outputs.save_timings(out, timings)
     return results
+
+
+def _suggest(results: Results, out: Path, renderer, seed, progress, cancel, say, started) -> None:
+    """The next-run suggestion of a window that more runs would firm up (:func:`suggest_step`), its figure,
+    and a line saying what it found; a suggestion that cannot be made is said, not raised (the window and
+    the report stand without it)."""
+    from speciakin.decision.next_steps import runs_would_help
+
+    if results.window is None or not runs_would_help(results.window.gates):
+        return
+    started("suggest")
+    try:
+        results.suggestion = timed(results.timings, "suggest", lambda: suggest_step(
+            results.objective, results.process, results.window, out, fit=results.fit, posterior=results.posterior,
+            seed=seed, inputs=results.inputs, progress=progress, cancel=cancel))
+    except InputError as exc:
+        say(f"suggest: not made: {exc}")
+        return
+    figures = getattr(renderer, "suggest_figures", None)
+    if figures is not None:
+        figures(results.suggestion, out)
+    say(f"suggest: {results.suggestion.message} ({results.timings['suggest']:.1f} s)")
 
 
 class ShownPath(os.PathLike):

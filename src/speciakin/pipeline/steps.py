@@ -26,7 +26,7 @@ from speciakin.errors import InputError, Location
 from speciakin.pipeline import outputs
 
 __all__ = ["Cancelled", "Progress", "check_step", "make_objective", "fit_step", "sample_step", "window_step",
-           "predict_step", "window_figures", "window_text", "timed"]
+           "predict_step", "window_figures", "window_text", "window_lines", "suggest_step", "timed"]
 
 #: ``progress(stage, done, total)``.
 Progress = Callable[[str, int, int], None]
@@ -141,6 +141,24 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
         result.warnings.extend(notes)
     outputs.save_window(out, result)
     window_figures(result, out, objective.model)
+    return result
+
+
+def suggest_step(objective, process, window, out: Path, *, fit=None, posterior=None, seed: int | None = None,
+                 inputs=None, progress: Progress | None = None, cancel: CancelFlag | None = None):
+    """Next-run suggestion when the window's failing gates are ones more runs lift
+    (:func:`speciakin.decision.next_steps.runs_would_help`); writes ``suggest.json`` / ``suggest.txt``
+    and returns the SuggestResult, else writes nothing and returns None."""
+    from speciakin.decision.next_steps import runs_would_help
+    from speciakin.pipeline.suggest import suggest_for_campaign
+
+    if window is None or not runs_would_help(window.gates):
+        return None
+    result = suggest_for_campaign(objective, fit=fit, posterior=posterior, process=process,
+                                  seed=seed if seed is not None else process.seed,
+                                  progress=(lambda stage, done, total: tracker(stage, progress, cancel)(done, total))
+                                  if (progress or cancel) else None)
+    outputs.save_suggestion(out, result, inputs)
     return result
 
 

@@ -189,7 +189,8 @@ def build_report(inputs: ReportInputs) -> ReportDocument:
     created = datetime.now(timezone.utc).replace(microsecond=0).isoformat()
 
     sections: list[Section] = [
-        decision_summary_section(inputs.window, inputs.fit, inputs.posterior, inputs.invented, names),
+        decision_summary_section(inputs.window, inputs.fit, inputs.posterior, inputs.invented, names,
+                                 inputs.suggestion),
         inputs_section(inputs.campaign, inputs.extra_inputs, inputs.software_version, inputs.command,
                        inputs.check, inputs.invented, created),
         model_section(inputs.model, inputs.fit),

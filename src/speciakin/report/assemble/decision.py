@@ -125,7 +125,7 @@ def gate_table(window: Any) -> Table | None:
 
 
 def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bool = False,
-                             names: dict[str, str] | None = None) -> Section:
+                             names: dict[str, str] | None = None, suggestion: Any = None) -> Section:
     """The "Decision summary" section, opened by a decision callout that states the trust status."""
     blocks: list = []
     if window is None:
@@ -171,6 +171,13 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     steps = list(getattr(window, "next_steps", None) or [])
     if steps:
         text += "\n\nWhat to do next: " + " ".join(steps)
+    if suggestion and suggestion.get("helps") and suggestion.get("message"):
+        text += "\n\nNext-run suggestion (its own section below): " + str(suggestion["message"])
+    elif suggestion:
+        text += ("\n\nNext-run suggestion (its own section below): within the model, no candidate run narrows "
+                 "the window's uncertainty much." + (" A run asked for above still tests the model where no run "
+                                                    "has been, which the model's own uncertainty cannot."
+                                                    if steps else ""))
     blocks.append(Callout("decision", title, text))
     rows = [("Status", status),
             ("Probability level", window.level), ("pH tolerance (+/-)", window.tolerance),
