@@ -4,6 +4,7 @@ numbers of the gate's own figures; an established window gives none."""
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 
@@ -43,9 +44,14 @@ def test_window_edge_beyond_the_runs_asks_for_a_run_at_that_edge():
 
 def test_each_other_gate_names_its_action():
     shift = {"specification": "P >= 90 %", "ph": 5.0, "margin": 1.0, "change": 7.5}
-    out = steps(open_profiles=[{"name": "pKa[S.N]", "side": "below", "shifts": [shift]}])
+    small = dict(shift, change=0.4)                      # open, but moves the outcome less than its margin
+    out = steps(open_profiles=[{"name": "pKa[S.N]", "side": "below", "shifts": [shift]},
+                               {"name": "k_small", "side": "above", "shifts": [small]}])
     assert out == ["Add runs that inform pKa[S.N]: 'speciakin suggest' ranks candidate runs by how much each "
                    "would firm up the window."]
+    failed = dict(shift, change=math.inf)                # cannot be computed: null in window.json
+    gates = json.loads(json.dumps(assess(inputs(open_profiles=[{"name": "k", "side": "both", "shifts": [failed]}]))[2]))
+    assert next_steps(gates, 5.4)[0].startswith("Add runs that inform k:")
     assert steps(r_hat=[1.3, 1.0])[0].startswith("Sample the posterior longer")
     assert steps(source="least-squares covariance", r_hat=None, ess=None,
                  posterior_converged=None)[0].startswith("Sample the posterior ('speciakin sample'")

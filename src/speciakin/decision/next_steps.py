@@ -66,6 +66,12 @@ def runs_would_help(gates: Sequence[Mapping[str, Any]]) -> bool:
     return any(g.get("name") in DATA_GATES and g.get("verdict") in _FAILING for g in gates)
 
 
+def _beyond_margin(shift: Mapping[str, Any]) -> bool:
+    """An open profile's shift of an outcome above its margin (not finite, or None in JSON, counts)."""
+    change = shift.get("change")
+    return change is None or not math.isfinite(float(change)) or float(change) > float(shift.get("margin") or 0.0)
+
+
 def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> list[str]:
     """The actions that would lift the failing gates, in the gates' order.
 
@@ -99,7 +105,8 @@ def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> lis
                              + f": the window's edge lies outside the pH {float(covered[0]):.2f} to "
                              f"{float(covered[1]):.2f} the runs covered.")
         elif name == "identifiability":
-            names = [n for n, f in figures.items() if isinstance(f, Mapping) and f.get("shifts")]
+            names = [n for n, f in figures.items()
+                     if isinstance(f, Mapping) and any(_beyond_margin(x) for x in f.get("shifts") or [])]
             steps.append("Add runs that inform " + (", ".join(names) or "the unidentified parameters")
                          + ": 'speciakin suggest' ranks candidate runs by how much each would firm up the "
                          "window.")
