@@ -24,6 +24,13 @@ def test_an_established_window_has_no_next_step():
     assert steps() == []
 
 
+def test_every_gate_has_its_action():
+    from speciakin.decision.gates import GATES
+    from speciakin.decision.next_steps import ACTIONS
+
+    assert set(ACTIONS) == set(GATES)
+
+
 def test_process_outside_the_runs_asks_for_a_run_at_the_process_conditions():
     process = dict(CLEAN["process"], dosing_time=45.0)   # the runs dosed over 10 min
     out = steps(process=process)

@@ -25,11 +25,11 @@ Rules (each applies only when its gate is provisional or not established):
 from __future__ import annotations
 
 import math
-from typing import Any, Mapping, Sequence
+from typing import Any, Callable, Mapping, Sequence
 
 from speciakin.decision.gates import BOUND_SHARE, NOT_ESTABLISHED, PH_MARGIN_PROVISIONAL, PROVISIONAL
 
-__all__ = ["next_steps", "runs_would_help", "DATA_GATES"]
+__all__ = ["next_steps", "runs_would_help", "ACTIONS", "DATA_GATES"]
 
 _FAILING = (PROVISIONAL, NOT_ESTABLISHED)
 
@@ -48,14 +48,67 @@ def _process_run(figures: Mapping[str, Any], best_ph: float | None) -> str | Non
             "to the workbook and run the job again.")
 
 
-def _edges_beyond(figures: Mapping[str, Any]) -> list[float]:
+def _edge_runs(figures: Mapping[str, Any], best_ph: float | None) -> str | None:
     covered = figures.get("run_ph_range")
     if not covered:
-        return []
+        return None
     low, high = float(covered[0]), float(covered[1])
-    return [float(e) for w in figures.get("windows") or [] for e in w
-            if float(e) < low - PH_MARGIN_PROVISIONAL or float(e) > high + PH_MARGIN_PROVISIONAL]
+    edges = [float(e) for w in figures.get("windows") or [] for e in w
+             if float(e) < low - PH_MARGIN_PROVISIONAL or float(e) > high + PH_MARGIN_PROVISIONAL]
+    if not edges:
+        return None
+    return ("Add a run at pH " + " and at pH ".join(f"{e:.1f}" for e in edges)
+            + f": the window's edge lies outside the pH {low:.2f} to {high:.2f} the runs covered.")
 
+
+def _beyond_margin(shift: Mapping[str, Any]) -> bool:
+    """An open profile's shift of an outcome above its margin (not finite, or None in JSON, counts)."""
+    change = shift.get("change")
+    return change is None or not math.isfinite(float(change)) or float(change) > float(shift.get("margin") or 0.0)
+
+
+def _informing_runs(figures: Mapping[str, Any], best_ph: float | None) -> str:
+    names = [n for n, f in figures.items()
+             if isinstance(f, Mapping) and any(_beyond_margin(x) for x in f.get("shifts") or [])]
+    return ("Add runs that inform " + (", ".join(names) or "the unidentified parameters")
+            + ": 'speciakin suggest' ranks candidate runs by how much each would firm up the window.")
+
+
+def _sampling(figures: Mapping[str, Any], best_ph: float | None) -> str:
+    if figures.get("r_hat") is None:
+        return "Sample the posterior ('speciakin sample', or 'speciakin run' without --quick) before deciding."
+    return "Sample the posterior longer ('speciakin sample' with more --steps) before deciding."
+
+
+def _bounds(figures: Mapping[str, Any], best_ph: float | None) -> str:
+    names = sorted({k.rsplit(" ", 1)[0] for k, share in figures.items()
+                    if isinstance(share, (int, float)) and math.isfinite(share) and share > BOUND_SHARE})
+    return ("Review the model-file bounds of " + (", ".join(names) or "the parameters")
+            + ": widen them where the chemistry allows, or fix the parameter, and fit again.")
+
+
+def _errors(figures: Mapping[str, Any], best_ph: float | None) -> str:
+    return ("State the data's errors in the model file's [fit] error_model, or look at the residual plots for "
+            "what the model misses, and fit again.")
+
+
+def _draws(figures: Mapping[str, Any], best_ph: float | None) -> str:
+    needed, drawn = figures.get("draws_needed"), figures.get("draws")
+    if needed and drawn is not None and drawn >= needed:
+        return "Compute the window with its Monte Carlo guard on (the default)."
+    return "Compute the window with more draws" + (f" (--draws {int(needed)} or more)." if needed else ".")
+
+
+#: Gate name -> ``action(figures, best_ph) -> str | None``: what lifts that gate (one per gate of ``GATES``).
+ACTIONS: dict[str, Callable[[Mapping[str, Any], float | None], str | None]] = {
+    "convergence": _sampling,
+    "draws on a bound": _bounds,
+    "identifiability": _informing_runs,
+    "pH coverage": _edge_runs,
+    "process envelope": _process_run,
+    "error model": _errors,
+    "Monte Carlo error": _draws,
+}
 
 #: Gates that more lab runs lift (the next-run suggestion ranks candidates for them).
 DATA_GATES = ("identifiability", "pH coverage")
@@ -66,14 +119,8 @@ def runs_would_help(gates: Sequence[Mapping[str, Any]]) -> bool:
     return any(g.get("name") in DATA_GATES and g.get("verdict") in _FAILING for g in gates)
 
 
-def _beyond_margin(shift: Mapping[str, Any]) -> bool:
-    """An open profile's shift of an outcome above its margin (not finite, or None in JSON, counts)."""
-    change = shift.get("change")
-    return change is None or not math.isfinite(float(change)) or float(change) > float(shift.get("margin") or 0.0)
-
-
 def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> list[str]:
-    """The actions that would lift the failing gates, in the gates' order.
+    """The actions (:data:`ACTIONS`) that would lift the failing gates, in the gates' order.
 
     Parameters
     ----------
@@ -88,48 +135,6 @@ def next_steps(gates: Sequence[Mapping[str, Any]], best_ph: float | None) -> lis
     list of str
         Empty when every gate passes.
     """
-    steps: list[str] = []
-    for gate in gates:
-        if gate.get("verdict") not in _FAILING:
-            continue
-        name, figures = gate.get("name"), gate.get("figures") or {}
-        if name == "process envelope":
-            step = _process_run(figures, best_ph)
-            if step:
-                steps.append(step)
-        elif name == "pH coverage":
-            edges = _edges_beyond(figures)
-            if edges:
-                covered = figures["run_ph_range"]
-                steps.append("Add a run at pH " + " and at pH ".join(f"{e:.1f}" for e in edges)
-                             + f": the window's edge lies outside the pH {float(covered[0]):.2f} to "
-                             f"{float(covered[1]):.2f} the runs covered.")
-        elif name == "identifiability":
-            names = [n for n, f in figures.items()
-                     if isinstance(f, Mapping) and any(_beyond_margin(x) for x in f.get("shifts") or [])]
-            steps.append("Add runs that inform " + (", ".join(names) or "the unidentified parameters")
-                         + ": 'speciakin suggest' ranks candidate runs by how much each would firm up the "
-                         "window.")
-        elif name == "convergence":
-            if figures.get("r_hat") is None:
-                steps.append("Sample the posterior ('speciakin sample', or 'speciakin run' without --quick) "
-                             "before deciding.")
-            else:
-                steps.append("Sample the posterior longer ('speciakin sample' with more --steps) before "
-                             "deciding.")
-        elif name == "draws on a bound":
-            names = sorted({k.rsplit(" ", 1)[0] for k, share in figures.items()
-                            if isinstance(share, (int, float)) and math.isfinite(share) and share > BOUND_SHARE})
-            steps.append("Review the model-file bounds of " + (", ".join(names) or "the parameters")
-                         + ": widen them where the chemistry allows, or fix the parameter, and fit again.")
-        elif name == "error model":
-            steps.append("State the data's errors in the model file's [fit] error_model, or look at the "
-                         "residual plots for what the model misses, and fit again.")
-        elif name == "Monte Carlo error":
-            needed, drawn = figures.get("draws_needed"), figures.get("draws")
-            if needed and drawn is not None and drawn >= needed:
-                steps.append("Compute the window with its Monte Carlo guard on (the default).")
-            else:
-                steps.append("Compute the window with more draws"
-                             + (f" (--draws {int(needed)} or more)." if needed else "."))
-    return steps
+    steps = [ACTIONS[g["name"]](g.get("figures") or {}, best_ph) for g in gates
+             if g.get("verdict") in _FAILING and g.get("name") in ACTIONS]
+    return [s for s in steps if s]
