@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import base64
 from html.parser import HTMLParser
 
@@ -66,6 +68,9 @@ def test_contents_links_resolve_and_decision_comes_first(rendered, document, dec
     body = " ".join(" ".join(page.text).split())
     assert body.index(decision_text) < body.index("1. Decision") < body.index("5. Cautions")
     assert body.index("Contents") < body.index("1. Decision")
+    # the contents list the numbered sections once each, in order (the list's numbers are the headings')
+    nav = text[text.index('<nav class="contents"'):text.index("</nav>")]
+    assert re.findall(r'href="#([^"]+)"', nav) == [s.anchor for s in document.sections]
 
 
 def test_numbers_are_formatted_per_column(rendered):
