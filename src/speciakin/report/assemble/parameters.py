@@ -324,10 +324,10 @@ def correlation_section(fit: Any, posterior: Any, warnings: list[str]) -> Sectio
         blocks.append(Paragraph("Strongly correlated pairs (|r| >= "
                                 f"{STRONG_CORRELATION:g}): " + ("; ".join(strong) if strong else "none") + "."))
     if warnings:
-        blocks.append(Callout("warning", "What the data do not pin down", " ".join(
+        blocks.append(Callout("warning", "Warnings of the fit and the posterior", " ".join(
             w if w.endswith(".") else w + "." for w in warnings)))
     else:
-        blocks.append(Paragraph("No identifiability warning was raised."))
+        blocks.append(Paragraph("The fit and the posterior raised no warning."))
     return Section("Correlations and identifiability", blocks, anchor="correlations")
 
 
