@@ -26,11 +26,12 @@ place until the graph is drawn (the copy hands the controls over then:
 :mod:`speciakin.web.first_view`).  Should plotly.js fail to load, it is asked
 for once more, as Dash's graph would.
 
-Measured (docs/web.md, "The controls before the figure"): on a first-ever
-visit the controls answer after about 0.7 s instead of 0.9 s and a tab click
-after about 0.75 s instead of 1.0 s, the figure after about 0.9 s instead of
-0.65 s (the app's figure, which now draws first, after 0.9 s instead of
-1.0 s).
+Measured (docs/web.md, "The controls before the figure"; medians of
+first-ever visits, load average below 3.5): the controls answer after 0.70
+to 0.73 s instead of 0.91 to 0.96 s and a tab click after 0.80 to 0.81 s
+instead of 0.98 to 1.02 s; the figure answers a zoom after 0.90 to 0.95 s
+instead of 0.66 to 0.69 s (the early figure's), the app's figure, now the
+only one, is drawn then instead of after 1.05 to 1.10 s.
 """
 
 from __future__ import annotations
