@@ -11,7 +11,7 @@ in the order of a chemist's visit, every view:
                painting of the server's still copy of the first view, when the version sends one, or a
                figure drawn before it, the early one or the app's), "figure interactive" the first frame with a Plotly figure of the raw
                data in the page with its event handlers, answering a hover or a zoom: the early figure
-               drawn over the copy (web.early_figure) or the app's, whichever comes first
+               drawn over the copy (in a version that drew one) or the app's, whichever comes first
                (:data:`FIGURE_WATCH`), "app's figure drawn" the first frame with the app's figure,
                and "controls answer" the first frame in which a click on the app's tabs and drop-downs
                reaches the app (no copy over them)
@@ -251,7 +251,7 @@ _FIRST_VIEW_SHOWN = """() => new Promise(resolve => {
 
 #: Put into every page before its own scripts (an init script): per animation frame, the first frame in which
 #: the raw data's figure is INTERACTIVE, that is a Plotly figure of it is in the page with its event handlers,
-#: the one the early drawing makes over the first view's copy (``.first-view .fv-plot``, web.early_figure) or
+#: the one an early drawing made over the first view's copy (``.first-view .fv-plot``, in versions that drew one) or
 #: the app's graph (``#raw-figure``), recognised by its drag layer (``.nsewdrag``: the elements Plotly's zoom,
 #: pan and hover handlers are bound to, made at the end of a drawing) and its title drawn; the first frame
 #: with the app's own figure drawn (its title; "app's figure drawn"); and the first frame in which the app's

@@ -15,7 +15,7 @@ ratios.  These are not the cold figures: the first visit of each profile is.
 
 "Figure interactive" is the first animation frame in which a Plotly figure of the raw data is in the page
 with its event handlers, so that it answers a hover or a zoom: the early figure plotly.js draws over the
-first view's copy before Dash's app has started (``web.early_figure``) or the app's own graph, whichever
+first view's copy before Dash's app had started (in versions that drew one) or the app's own graph, whichever
 comes first; it is recognised by its drag layer (``.nsewdrag``, the elements Plotly binds its zoom, pan and
 hover handlers to at the end of a drawing) and its title (``bench_web.FIGURE_WATCH``).  "App's figure drawn"
 is the first frame with the app's graph drawn; in a version without the early figure the two are the same.

@@ -35,7 +35,7 @@ import threading
 from collections import OrderedDict
 
 from speciakin.errors import SpeciakinError
-from speciakin.web import early_figure, page_campaign
+from speciakin.web import graph_later, page_campaign
 from speciakin.web.bundles import DASH_PLOTLY_PATH
 from speciakin.web.first_svg import Unsupported, check, figure_svg
 
@@ -71,12 +71,13 @@ STYLE = """
 @media (max-width: 800px) { .first-view { display: none; } }
 """
 #: Sets the image's address with the figure's width; hands the controls over to the app as soon as the app has
-#: drawn its tabs and drop-downs (the copy keeps only its figure box, over the app's graph, and lets every
-#: click through: ``fv-app``), then takes the copy away once the app's figure is drawn (its annotations are
-#: drawn last) and the early figure's changes are carried over to it (not while it is being dragged), or
-#: after 15 s, or at once when the session had another tab open.  A click or key pressed in the app beside
-#: the copy's figure box takes the copy away at once (a tab opened, a drop-down opened over the figure).
-#: Watched on every change of the app's part of the page (a mutation observer), not by polling.
+#: drawn its tabs and drop-downs where the copy shows them (Dash's tabs are first drawn stacked, until they
+#: have measured the window; the copy keeps only its figure box, over the app's graph, and lets every click
+#: through: ``fv-app``), then takes the copy away once the app's figure is drawn (its annotations are drawn
+#: last), or after 15 s, or at once when the session had another tab open.  A click or key pressed in the app
+#: beside the copy's figure box takes the copy away at once (a tab opened, a drop-down opened over the
+#: figure).  Watched on every change of the app's part of the page (a mutation observer: elements and
+#: classes), and every 0.1 s for the 15 s.
 _SCRIPT = """(function () {
   var view = document.currentScript.parentNode, img = view.querySelector(".fv-figure img");
   var box = view.querySelector(".fv-figure"), app = document.getElementById("react-entry-point"), seen, since;
@@ -92,9 +93,16 @@ _SCRIPT = """(function () {
   var width = Math.round(img.parentNode.getBoundingClientRect().width);
   if (!width) { gone(); return; }  /* not shown (a narrow window) */
   img.src = img.getAttribute("data-src") + "&w=" + width;
-  function controls() {  /* the app's tabs and a drop-down for each of the copy's */
-    return app.querySelectorAll("#tabs .tab").length >= view.querySelectorAll(".fv-tab").length
-      && app.querySelectorAll(".dash-dropdown").length >= view.querySelectorAll(".fv-select").length;
+  function at(a, b) {  /* a lies where b does (not yet: the app's tabs drawn stacked before they are styled) */
+    var r = a.getBoundingClientRect(), c = b.getBoundingClientRect();
+    return Math.abs(r.left - c.left) <= 2 && Math.abs(r.top - c.top) <= 2 && Math.abs(r.width - c.width) <= 2;
+  }
+  function controls() {  /* the app's tabs and a drop-down for each of the copy's, in the copy's places */
+    var tabs = app.querySelectorAll("#tabs .tab"), mine = view.querySelectorAll(".fv-tab");
+    var drops = app.querySelectorAll(".dash-dropdown"), selects = view.querySelectorAll(".fv-select");
+    return tabs.length >= mine.length && drops.length >= selects.length && mine.length > 1 && selects.length > 0
+      && at(tabs[1], mine[1]) && Math.abs(drops[selects.length - 1].getBoundingClientRect().top
+                                          - selects[selects.length - 1].getBoundingClientRect().top) <= 2;
   }
   function look() {
     if (!view.parentNode) { return true; }
@@ -103,12 +111,8 @@ _SCRIPT = """(function () {
       view.classList.add("fv-app");
       document.addEventListener("pointerdown", beside, true); document.addEventListener("keydown", beside, true);
     }
-    var drawn = app.querySelector("#raw-figure .main-svg .annotation");
-    if (drawn && !document.querySelector(".dragcover")) {  /* not while the early figure is dragged */
-      var done = function () { requestAnimationFrame(function () { requestAnimationFrame(gone); }); };
-      var hand = view.speciakinHandOver;  /* the early figure's changes carried over (web.early_figure) */
-      if (hand) { hand(app.querySelector("#raw-figure .js-plotly-plot"), done); }
-      else { done(); }
+    if (app.querySelector("#raw-figure .main-svg .annotation")) {
+      requestAnimationFrame(function () { requestAnimationFrame(gone); });
       return true;
     }
     if (Date.now() - since > 15000) { gone(); return true; }
@@ -117,8 +121,8 @@ _SCRIPT = """(function () {
   since = Date.now();
   if (!app || !window.MutationObserver) { gone(); return; }
   var watch = new MutationObserver(function () { if (look()) { watch.disconnect(); } });
-  watch.observe(app, {childList: true, subtree: true});
-  (function late() { if (!look()) { setTimeout(late, 100); } else { watch.disconnect(); } })();  /* a drag's end */
+  watch.observe(app, {childList: true, subtree: true, attributes: true, attributeFilter: ["class"]});
+  (function late() { if (!look()) { setTimeout(late, 100); } else { watch.disconnect(); } })();  /* the 15 s limit */
 })();"""
 
 
@@ -200,14 +204,7 @@ def overlay(state, head: tuple[str, str], tabs: list[str], prefix: str) -> tuple
 <div class="fv-figure" style="height:{height}px"><img alt="raw data of run {_e(run or '')}" elementtiming="first-view" fetchpriority="high"
  data-src="{source}" height="{height}"></div></div>
 <script>{_SCRIPT % {"first": _FIRST_TAB}}</script></div>
-{early_figure.early_html(_figure_text(state, chosen, run, figure), prefix + DASH_PLOTLY_PATH, page_campaign.GRAPH_CONFIG)}"""
-
-
-def _figure_text(state, name: str, run, figure) -> str:
-    """The first view's figure as the early figure's JSON (``web.early_figure``), kept while the campaign's
-    files are unchanged."""
-    folder = state.folder(name)
-    return state.cached(f"early-figure {run}", state.inputs_of(folder), lambda: early_figure.figure_json(figure))
+{graph_later.script_html(prefix + DASH_PLOTLY_PATH)}"""
 
 
 def _quote(name: str) -> str:
@@ -284,8 +281,7 @@ def install(app, state, head: tuple[str, str], tabs: list[str]) -> None:
         return response
 
     app.server.add_url_rule(prefix + ROUTE, "first_view_image", image)
-    app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + STYLE + early_figure.STYLE
-                                                + "</style>")
+    app.index_string = app.index_string.replace("{%css%}", "{%css%}<style>" + STYLE + "</style>")
     interpolate = app.interpolate_index
 
     def interpolate_index(**kwargs):

@@ -18,7 +18,7 @@ __all__ = ["layout", "register", "check_rows", "check_cells", "check_table", "fo
 #: Columns of the check table: (field, header).
 CHECK_COLUMNS = (("severity", "severity"), ("sheet", "sheet"), ("row", "row"), ("column", "column"),
                  ("message", "problem"), ("value", "value"), ("expected", "expected"), ("where", "file / key"))
-#: The raw-data graph's Plotly config (the first view's early figure takes the same: web.early_figure).
+#: The raw-data graph's Plotly config.
 GRAPH_CONFIG = {"displaylogo": False}
 _NEW_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 
