@@ -51,7 +51,7 @@ def root(tmp_path_factory):
 
     base = tmp_path_factory.mktemp("campaigns")
     for name in ("demo", "planted", "script-name"):
-        shutil.copytree(demo_dir(), base / name)
+        shutil.copytree(demo_dir(), base / name, ignore=shutil.ignore_patterns("results"))
     sheet, row, col, value = PLANTED
     _edit_cell(base / "planted" / "campaign.xlsx", sheet, f"{col}{row}", value)
     _edit_cell(base / "script-name" / "campaign.xlsx", "HPLC results", "D2", SCRIPT_NAME)

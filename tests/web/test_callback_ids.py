@@ -29,7 +29,7 @@ def app(tmp_path):
     """The app for a root holding the demo (a new one per test: a test may add callbacks to it)."""
     from speciakin.demo import demo_dir
 
-    shutil.copytree(demo_dir(), tmp_path / "demo")
+    shutil.copytree(demo_dir(), tmp_path / "demo", ignore=shutil.ignore_patterns("results"))
     return create_app(tmp_path)[0]
 
 

@@ -33,7 +33,7 @@ def root(tmp_path_factory):
     from speciakin.demo import demo_dir
 
     base = tmp_path_factory.mktemp("colours")
-    shutil.copytree(demo_dir(), base / "demo")
+    shutil.copytree(demo_dir(), base / "demo", ignore=shutil.ignore_patterns("results"))
     case = build_reduced_demo(base / "short")
     out = case / "results" / RESULT
     out.mkdir(parents=True)

@@ -35,7 +35,7 @@ def two_runs(tmp_path):
     from speciakin.demo import demo_dir
 
     campaign = tmp_path / "c"
-    shutil.copytree(demo_dir(), campaign)
+    shutil.copytree(demo_dir(), campaign, ignore=shutil.ignore_patterns("results"))  # the package folder only
     inputs = pipeline.resolve_inputs(campaign)
     with pipeline.Recording(inputs, step="fit", command="speciakin web: fit and window (starts 1)") as first:
         _fit(first.folder, -2.5, [-2.6, -2.4])
