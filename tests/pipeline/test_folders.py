@@ -276,7 +276,7 @@ def test_killed_process_leaves_an_interrupted_folder(tmp_path):
     assert live_runs(inputs.campaign / "results")[0]["status"] == "interrupted"
 
 
-def test_the_demo_shipped_in_the_package_is_never_written_into(capsys):
+def test_the_demo_shipped_in_the_package_is_never_written_into(capsys, tmp_path):
     """Results for the packaged demo are refused before any file is made (exit 2, the folder named)."""
     from speciakin.cli.main import main
     from speciakin.demo import demo_dir
@@ -290,6 +290,10 @@ def test_the_demo_shipped_in_the_package_is_never_written_into(capsys):
     assert main(["fit", str(demo), "--quiet"]) == 2
     err = capsys.readouterr().err
     assert "demo campaign shipped with the speciakin package" in err and "Traceback" not in err
+    assert sorted(p.relative_to(demo) for p in demo.rglob("*")) == before
+    # with --out elsewhere the fit is made, and the package gets no run index either
+    assert main(["fit", str(demo), "--out", str(tmp_path / "out"), "--quiet", "--starts", "1", "--no-profiles"]) == 0
+    assert (tmp_path / "out" / "fit.json").is_file()
     assert sorted(p.relative_to(demo) for p in demo.rglob("*")) == before
 
 

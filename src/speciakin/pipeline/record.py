@@ -149,6 +149,8 @@ class Recording:
         return folder, folder.name
 
     def _index(self, call, *args, **kwargs) -> None:
+        if self.root.resolve().is_relative_to(folders.PACKAGED_DEMO):  # results given --out; the package stays
+            return                                                      # as shipped, so no index there
         try:
             call(*args, **kwargs)
         except (OSError, sqlite3.Error, InputError) as exc:
