@@ -268,7 +268,9 @@ def _window_views(window):
         return message, [], empty_figure("no window"), empty_figure("no window, so no map")
     status = f"window status: {window.status or 'not assessed'}; {_window_line(window)}"
     reasons = [html.Li(r) for r in window.status_reasons]
-    reasons += [html.Li("next: " + step, className="next-step") for step in window.next_steps]
+    if window.next_steps:  # what would lift the failing gates, under their reasons
+        reasons.append(html.Li([html.B("What to do next"), html.Ul(
+            [html.Li(step, className="next-step") for step in window.next_steps])], className="next-steps"))
     if window.map_probability is None or window.factor_values is None:
         drawn = empty_figure("no 2-D map: the process file has no [scan.second_factor]")
     else:
