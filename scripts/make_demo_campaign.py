@@ -25,6 +25,9 @@ What it does
    the output folder, and copies ``model.toml`` and ``process.toml`` there.
    Without ``--out`` it writes ``data_templates/demo/`` and mirrors the same
    files into ``src/speciakin/demo_data/`` (shipped with the package).
+   Run as a script it runs itself in the pinned instruction set of
+   ``tests/pinned_numbers.py``, so that the files are the same to the byte on
+   any x86-64 machine.
 
 Noise model
 -----------
@@ -537,4 +540,15 @@ def main(argv: list[str] | None = None) -> int:
 
 
 if __name__ == "__main__":
+    # the stored demo is of one instruction set (tests/pinned_numbers.py: compiled code differs in the last bits
+    # from one CPU to another): run in it, so that the files come out the same on any x86-64 machine
+    import os
+    import subprocess
+
+    sys.path.insert(0, str(ROOT / "tests"))
+    from pinned_numbers import PINNED_MARK, pinned_environment
+
+    pinned = pinned_environment()
+    if pinned is not None and not os.environ.get(PINNED_MARK):
+        raise SystemExit(subprocess.run([sys.executable, __file__, *sys.argv[1:]], env=pinned).returncode)
     raise SystemExit(main())

@@ -1,25 +1,24 @@
-"""Regenerate the stored fit.json / window.json of the pipeline regression test.
+"""Regenerate the stored fit.json / window.json / report_tables.json of the pipeline regression test.
 
 Run after an intended change of numbers (and say so in the commit)::
 
     python scripts/regenerate_pipeline_baseline.py
 
-Writes ``tests/pipeline/baseline/fit.json`` and ``window.json`` from the
-reduced demo case in ``tests/pipeline/regression_case.py``.
+Runs the reduced demo case of ``tests/pipeline/regression_case.py`` in a
+subprocess with the pinned instruction set of ``tests/pinned_numbers.py`` (the
+one the test compares in) and writes its results into ``tests/pipeline/baseline/``.
 """
 
 from __future__ import annotations
 
 import sys
-import tempfile
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
-sys.path.insert(0, str(ROOT / "tests" / "pipeline"))
+sys.path.insert(0, str(ROOT / "tests"))
 
-from regression_case import write_baseline  # noqa: E402
+from pinned_numbers import run_pinned  # noqa: E402
 
 if __name__ == "__main__":
-    with tempfile.TemporaryDirectory() as tmp:
-        for path in write_baseline(Path(tmp)):
-            sys.stdout.write(f"wrote {path}\n")
+    case = ROOT / "tests" / "pipeline" / "regression_case.py"
+    sys.stdout.write(run_pinned(case, str(ROOT / "tests" / "pipeline" / "baseline")).stdout)

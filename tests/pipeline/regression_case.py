@@ -12,6 +12,10 @@ The stored copy lives in ``tests/pipeline/baseline/``; regenerate it after an
 intended change of numbers with::
 
     python scripts/regenerate_pipeline_baseline.py
+
+The case runs in a subprocess whose instruction set is pinned
+(``tests/pinned_numbers.py``), so that the copy is compared to the last bit on
+any x86-64 machine.
 """
 
 from __future__ import annotations
@@ -100,12 +104,23 @@ def report_tables(path: Path) -> dict[str, list[list[object]]]:
             for name in workbook.sheetnames[1:]}
 
 
-def write_baseline(work: Path) -> list[Path]:
-    """Regenerate the stored copy from the current code."""
-    BASELINE.mkdir(parents=True, exist_ok=True)
+def write_results(work: Path, folder: Path = BASELINE) -> list[Path]:
+    """Run the case in ``work`` and write its results into ``folder`` (default: the stored copy)."""
+    folder.mkdir(parents=True, exist_ok=True)
     paths = []
     for name, data in produce(work).items():
-        path = BASELINE / name
+        path = folder / name
         path.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n")
         paths.append(path)
     return paths
+
+
+if __name__ == "__main__":
+    # python regression_case.py FOLDER: the case's results into FOLDER (run by the regression test and by
+    # scripts/regenerate_pipeline_baseline.py in the pinned environment of tests/pinned_numbers.py)
+    import sys
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as tmp:
+        for written in write_results(Path(tmp), Path(sys.argv[1])):
+            print(f"wrote {written}")
