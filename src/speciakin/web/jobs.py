@@ -55,6 +55,8 @@ class Job:
     cancel: threading.Event = field(default_factory=threading.Event, repr=False)
     #: Plain-words notes of the recording (the index could not be written, ...).
     notes: list[str] = field(default_factory=list)
+    #: Every stage the work has reported, in order (a stage shorter than the server's poll is kept too).
+    stages: list[str] = field(default_factory=list)
 
     def seconds_left(self, now: float | None = None) -> float | None:
         """Time left in the current stage [s], from its pace so far (None before the first step)."""
@@ -64,9 +66,11 @@ class Job:
         return spent / self.done * max(self.total - self.done, 0)
 
     def show(self, shown: dict[str, Any]) -> None:
-        """Take the progress a worker reported (stage, done, total, folder)."""
+        """Take the progress a worker reported (stage, done, total, folder, the stages so far)."""
         if shown.get("stage") and shown["stage"] != self.stage:
             self.stage, self.stage_started = shown["stage"], time.time()
+        if shown.get("stages"):
+            self.stages = list(shown["stages"])
         self.done, self.total = int(shown.get("done", 0)), int(shown.get("total", 0))
         if shown.get("folder"):
             self.folder = shown["folder"]
@@ -75,7 +79,7 @@ class Job:
         """Plain dict for the page."""
         return {"id": self.id, "kind": self.kind, "label": JOB_KINDS[self.kind].label if self.kind in JOB_KINDS
                 else self.kind, "campaign": self.campaign, "folder": self.folder, "state": self.state,
-                "stage": self.stage, "done": self.done, "total": self.total, "message": self.message,
+                "stage": self.stage, "stages": list(self.stages), "done": self.done, "total": self.total, "message": self.message,
                 "seconds_left": self.seconds_left(), "elapsed": (self.finished or time.time()) - self.created,
                 # a posterior until converged may stop before its cap: the time left is then an upper bound
                 "at_most": self.stage == "sample" and bool(self.settings.get("until_converged"))}
@@ -92,20 +96,23 @@ class Feedback:
         The job's cancel flag (``is_set()``); once set, the next call raises
         :class:`speciakin.pipeline.Cancelled`.
     publish
-        Receives ``{"stage", "done", "total", "folder"}`` after every change.
+        Receives ``{"stage", "done", "total", "folder", "stages"}`` after every change (``stages``: every
+        stage so far, in order, so that a reader polling less often than stages change misses none).
     """
 
     def __init__(self, campaign: Path, cancel, publish: Callable[[dict[str, Any]], None]) -> None:
         self.campaign = Path(campaign)
         self.cancel = cancel
         self.publish = publish
-        self.shown: dict[str, Any] = {"stage": "", "done": 0, "total": 0, "folder": ""}
+        self.shown: dict[str, Any] = {"stage": "", "done": 0, "total": 0, "folder": "", "stages": []}
 
     def __call__(self, stage: str, done: int, total: int) -> None:
         from speciakin.pipeline import Cancelled
 
         if self.cancel.is_set():
             raise Cancelled(f"step '{stage}' cancelled")
+        if stage != self.shown["stage"]:
+            self.shown["stages"] = [*self.shown["stages"], stage]
         self.shown.update(stage=stage, done=int(done), total=int(total))
         self.publish(dict(self.shown))
 
