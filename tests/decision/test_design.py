@@ -16,6 +16,7 @@ from speciakin.decision import (
     compute_window,
     evaluate_specs,
 )
+from speciakin.decision.result import outcomes_at_best
 from speciakin.errors import SolverError
 
 SPECS = [
@@ -82,6 +83,34 @@ def test_bands_contain_the_truth_curve_and_are_ordered():
         # the truth is the centre of the draws: it lies inside the 5-95 % band
         # at most grid points (common practice for a symmetric spread)
         assert np.mean((truth[:, i] >= lo - 1e-9) & (truth[:, i] <= hi + 1e-9)) > 0.9
+
+
+def test_outcomes_stated_at_the_best_set_point_are_simulated_there():
+    # The best set point lies between grid points (a 0.5 pH grid here); the outcomes stated beside it are
+    # the closed form's median and 5 / 95 % quantiles over the draws at that very pH (numpy's quantiles of
+    # the analytic outcomes), not those of the nearest scanned pH; they survive window.json and are what
+    # window.txt prints.
+    rng = np.random.default_rng(8)
+    draws = TRUTH + 0.05 * rng.standard_normal((200, TRUTH.size))
+    grid = np.round(np.arange(2.0, 12.0001, 0.5), 10)
+    result = compute_window(outcome_fn, draws, grid, SPECS, 0.95, 0.3, outcome_names=NAMES)
+    assert result.best_ph is not None and not np.any(np.isclose(grid, result.best_ph))
+    at = np.stack([closed_form(d, np.array([result.best_ph]))[0][0] for d in draws])   # (n_draws, n_out)
+    ph, rows = outcomes_at_best(result)
+    assert ph == result.best_ph
+    for i, (name, median, low, high) in enumerate(rows):
+        assert name == NAMES[i]
+        np.testing.assert_allclose([median, low, high], np.quantile(at[:, i], [0.5, 0.05, 0.95]), rtol=1e-12)
+    back = WindowResult.from_dict(json.loads(json.dumps(result.to_dict())))
+    assert outcomes_at_best(back) == (ph, rows)
+    assert f"at pH {result.best_ph:.2f}: median" in result.report()
+    # a window.json written before the outcomes at the best set point were recorded: the nearest scanned pH
+    old = result.to_dict()
+    del old["best_outcomes"]
+    ph_old, rows_old = outcomes_at_best(WindowResult.from_dict(old))
+    k = int(np.argmin(np.abs(grid - result.best_ph)))
+    assert ph_old == grid[k]
+    assert rows_old[0][1] == pytest.approx(result.outcome_median[NAMES[0]][k])
 
 
 def test_two_dimensional_map_slice_equals_one_dimensional_scan():

@@ -235,6 +235,15 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
     best_probability = float(curve_p[best]) if best is not None else None
     primary = interval_containing(windows, best_ph) or widest_interval(windows)
     bands = outcome_bands(outcomes[:, :, j, :])               # (3, n_ph, n_out)
+    best_outcomes = None
+    if best_ph is not None:
+        # simulated at the best set point itself (it lies between grid points), so that the outcome stated
+        # beside it is of that pH and not of the nearest scanned one
+        at_best = _simulate(outcome_fn, theta, np.array([best_ph]), [factors[j]], len(names),
+                            max(1, int(batch_size)), None)
+        best_bands = outcome_bands(at_best[:, 0, 0, :])       # (3, n_out)
+        best_outcomes = {n: [float(best_bands[1, i]), float(best_bands[0, i]), float(best_bands[2, i])]
+                         for i, n in enumerate(names)}
     warnings: list[str] = []
     if not windows:
         warnings.append(f"no pH meets every specification with probability >= {level:g}")
@@ -267,7 +276,7 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
         outcome_median={n: bands[1, :, i] for i, n in enumerate(names)},
         outcome_lower={n: bands[0, :, i] for i, n in enumerate(names)},
         outcome_upper={n: bands[2, :, i] for i, n in enumerate(names)},
-        n_failed_draws=n_failed, warnings=warnings, curve_ph=curve_ph,
+        best_outcomes=best_outcomes, n_failed_draws=n_failed, warnings=warnings, curve_ph=curve_ph,
         curve_probability=curve_p, curve_robust_probability=curve_r, resolution=float(resolution),
         n_refinement_simulations=int(refined[j][2]),
         mc_confidence=float(mc_confidence) if guarded else None, claim_count=int(need),

@@ -13,7 +13,7 @@ import numpy as np
 from speciakin._json import json_ready, nan_from_null
 from speciakin.decision.specs import Specification
 
-__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words"]
+__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best"]
 
 #: Headings of :meth:`WindowResult.report`, always present and in this order.
 REPORT_HEADINGS = (
@@ -102,6 +102,11 @@ class WindowResult:
         Molecules (or outcomes) in the bands.
     outcome_median, outcome_lower, outcome_upper
         Name -> (n_ph,) median and 5 % / 95 % quantiles over draws [%].
+    best_outcomes
+        Name -> [median, 5 %, 95 %] over draws [%] at ``best_ph`` itself (simulated
+        there); None when there is no best set point or the result was written
+        before they were recorded (:meth:`outcomes_at_best` then takes the
+        scanned pH nearest it).
     factor_name, factor_unit, factor_values
         Second factor of a 2-D scan (values in ``factor_unit``), else None.
     nominal_factor
@@ -162,6 +167,7 @@ class WindowResult:
     outcome_median: dict[str, np.ndarray]
     outcome_lower: dict[str, np.ndarray]
     outcome_upper: dict[str, np.ndarray]
+    best_outcomes: dict[str, list[float]] | None = None
     factor_name: str | None = None
     factor_unit: str | None = None
     factor_values: np.ndarray | None = None
@@ -245,12 +251,11 @@ class WindowResult:
                          f"   {_fmt(self.worst_case_probability[k])}          "
                          f"{_fmt(self.robust_probability_per_draw[k])}")
         lines.append(f"[{h[5]}]")
-        if self.best_ph is not None and self.outcome_names:
-            k = int(np.argmin(np.abs(self.ph - self.best_ph)))
-            lines.append(f"  at pH {self.ph[k]:.2f}: median [5 %, 95 %] mole % of substrate moiety")
-            for n in self.outcome_names:
-                lines.append(f"  {n:<20s} {self.outcome_median[n][k]:7.2f} "
-                             f"[{self.outcome_lower[n][k]:.2f}, {self.outcome_upper[n][k]:.2f}]")
+        at_ph, rows = outcomes_at_best(self)
+        if rows:
+            lines.append(f"  at pH {at_ph:.2f}: median [5 %, 95 %] mole % of substrate moiety")
+            for n, median, low, high in rows:
+                lines.append(f"  {n:<20s} {median:7.2f} [{low:.2f}, {high:.2f}]")
         else:
             lines.append("  (no outcomes)")
         lines.append(f"[{h[6]}]")
@@ -320,6 +325,8 @@ class WindowResult:
             outcome_median={k: _from_json_array(v) for k, v in data["outcome_median"].items()},
             outcome_lower={k: _from_json_array(v) for k, v in data["outcome_lower"].items()},
             outcome_upper={k: _from_json_array(v) for k, v in data["outcome_upper"].items()},
+            best_outcomes=None if not data.get("best_outcomes") else
+            {k: [np.nan if x is None else float(x) for x in v] for k, v in data["best_outcomes"].items()},
             factor_name=data.get("factor_name"),
             factor_unit=data.get("factor_unit"),
             factor_values=arr("factor_values"),
@@ -344,6 +351,21 @@ class WindowResult:
             gates=[dict(g) for g in data.get("gates", [])],
             next_steps=list(data["next_steps"]) if "next_steps" in data else _steps_of(data),
         )
+
+
+def outcomes_at_best(window: Any) -> tuple[float | None, list[list[Any]]]:
+    """The pH and, per outcome, ``[name, median, 5 %, 95 %]`` [%] of the expected outcomes at the best set
+    point of ``window`` (a :class:`WindowResult`): simulated there (``best_outcomes``), or, for a result
+    written before they were recorded, at the scanned pH nearest it; ``(None, [])`` without a best set
+    point or outcomes."""
+    if window.best_ph is None or not window.outcome_names:
+        return None, []
+    best = getattr(window, "best_outcomes", None)
+    if best:
+        return float(window.best_ph), [[n, *map(float, best[n])] for n in window.outcome_names]
+    k = int(np.argmin(np.abs(np.asarray(window.ph) - window.best_ph)))
+    return float(window.ph[k]), [[n, float(window.outcome_median[n][k]), float(window.outcome_lower[n][k]),
+                                  float(window.outcome_upper[n][k])] for n in window.outcome_names]
 
 
 def _steps_of(data: Mapping[str, Any]) -> list[str]:

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._json import finite_or_none
-from speciakin.decision.result import best_probability_words
+from speciakin.decision.result import best_probability_words, outcomes_at_best
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
@@ -31,7 +31,6 @@ __all__ = [
     "STATUS_MEANING",
     "window_section",
     "window_table",
-    "window_centre_outcomes",
     "format_interval",
     "specification_limits",
     "process_block",
@@ -45,22 +44,12 @@ def format_interval(interval: tuple[float, float] | None) -> str:
     return f"pH {interval[0]:.2f} to {interval[1]:.2f}"
 
 
-def _centre(window: Any) -> float | None:
-    if window.primary_window is not None:
-        return 0.5 * (window.primary_window[0] + window.primary_window[1])
-    return window.best_ph
-
-
-def window_centre_outcomes(window: Any) -> tuple[float | None, list[list[Any]]]:
-    """Grid pH nearest the centre of the recommended window and, per outcome,
-    [name, median, 5 %, 95 %] there [mol % of the substrate moiety]."""
-    centre = _centre(window)
-    if centre is None or not window.outcome_names:
-        return None, []
-    k = int(np.argmin(np.abs(np.asarray(window.ph) - centre)))
-    rows = [[n, float(window.outcome_median[n][k]), float(window.outcome_lower[n][k]),
-             float(window.outcome_upper[n][k])] for n in window.outcome_names]
-    return float(window.ph[k]), rows
+def _best_words(window: Any, ph: float) -> str:
+    """``pH 4.75 (the best set point)``, or ``pH 4.80`` for a result whose outcomes were taken at the
+    scanned pH nearest the best set point (written before outcomes were simulated at it)."""
+    if not window.windows:
+        return f"pH {ph:.2f} (the highest probability)" if ph == window.best_ph else f"pH {ph:.2f}"
+    return f"pH {ph:.2f} (the best set point)" if ph == window.best_ph else f"pH {ph:.2f}"
 
 
 def _robust_for_primary(window: Any) -> tuple[float, float] | None:
@@ -139,7 +128,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     established = status == "established"
     best_words = best_probability_words(window.best_probability, window.mc_confidence)
     robust = _robust_for_primary(window)
-    centre_ph, outcomes = window_centre_outcomes(window)
+    outcome_ph, outcomes = outcomes_at_best(window)
     outcomes = [[label_of(names, row[0]), *row[1:]] for row in outcomes]
     if window.primary_window is not None:
         if established:
@@ -164,7 +153,8 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             text += f"The highest probability is at pH {window.best_ph:.2f} ({best_words}). "
     if outcomes:
         parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
-        text += f"Expected outcome at pH {centre_ph:.2f}, median (90 % band): " + "; ".join(parts) + ". "
+        text += (f"Expected outcome at {_best_words(window, outcome_ph)}, median (90 % band): "
+                 + "; ".join(parts) + ". ")
     text += f"{_uncertainty_words(window.uncertainty_source)}; {window.n_draws} draws."
     if invented:
         text += " Based on invented demonstration data."
@@ -192,7 +182,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if gates is not None:
         blocks.append(gates)
     if outcomes:
-        blocks.append(Table(f"Expected outcomes at pH {centre_ph:.2f}", ["species", "median", "5 %", "95 %"],
+        blocks.append(Table(f"Expected outcomes at {_best_words(window, outcome_ph)}", ["species", "median", "5 %", "95 %"],
                             outcomes, units=[None, "mol%", "mol%", "mol%"], formats=[None, ".2f", ".2f", ".2f"],
                             note="Mole % of the substrate moiety at the end of the process; 5 % and 95 % "
                                  "quantiles over the parameter draws."))
