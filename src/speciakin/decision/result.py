@@ -105,7 +105,7 @@ class WindowResult:
     best_outcomes
         Name -> [median, 5 %, 95 %] over draws [%] at ``best_ph`` itself (simulated
         there); None when there is no best set point or the result was written
-        before they were recorded (:meth:`outcomes_at_best` then takes the
+        before they were recorded (:func:`outcomes_at_best` then takes the
         scanned pH nearest it).
     factor_name, factor_unit, factor_values
         Second factor of a 2-D scan (values in ``factor_unit``), else None.
