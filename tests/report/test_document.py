@@ -39,6 +39,34 @@ def test_decision_callouts_in_reading_order(document):
     assert [c.kind for c in document.callouts("warning")] == ["warning"]
 
 
+def test_first_page_alerts_say_each_sentence_once(tmp_path):
+    # the sampler's warnings are also among those of the fit and the posterior: page 1 says each once, the
+    # sections keep theirs whole
+    from speciakin.report.html import render_html
+    from speciakin.report.pdf import render_pdf
+
+    accept = "acceptance fraction 0.68 is outside 0.15-0.6 (common practice): the posterior may be badly scaled."
+    doc = ReportDocument("T", [
+        Section("Correlations", [Callout("warning", "Warnings of the fit and the posterior",
+                                         f"parameters a and b are strongly correlated (+0.981). {accept}")]),
+        Section("Posterior", [Callout("warning", "Sampler warnings", f"{accept} 2 walker(s) may be stuck."),
+                              Callout("warning", "Again", accept)]),
+        Section("Cautions", [Callout("caution", "A decision aid", "Defer to the process-safety assessment.")]),
+    ])
+    alerts = doc.alerts()
+    assert [a.title for a in alerts] == ["Warnings of the fit and the posterior", "Sampler warnings", "A decision aid"]
+    assert alerts[1].text == "2 walker(s) may be stuck."
+    assert [c.text for c in doc.callouts("warning")][1] == f"{accept} 2 walker(s) may be stuck."
+    page = render_html(doc, tmp_path / "r.html").read_text()
+    summary = page.split("Contents")[0]
+    assert summary.count("acceptance fraction 0.68") == 1
+    assert page.count("acceptance fraction 0.68") == 4            # page 1 once, the three sections their own
+    import pypdf
+
+    first = pypdf.PdfReader(render_pdf(doc, tmp_path / "r.pdf")).pages[0].extract_text()
+    assert first.split("Contents")[0].count("acceptance fraction 0.68") == 1
+
+
 def test_anchors_are_unique_and_avoid_reserved_names():
     doc = ReportDocument("T", [Section("Fit"), Section("Fit"), Section("Decision summary"), Section("Contents")])
     anchors = [s.anchor for s in doc.sections]

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -150,6 +151,22 @@ class ReportDocument:
             raise _fail("unknown callout kind", "callout.kind", kind, "one of " + ", ".join(CALLOUT_KINDS))
         return [b for _, b in self.blocks("callout") if b.kind == kind]
 
+    def alerts(self) -> list[Callout]:
+        """The warning and caution callouts as the first page gathers them, in reading order: a sentence an
+        earlier one already says is left out (the sampler's own warnings are also among those of the fit and
+        the posterior), and a callout with nothing left is dropped; the sections keep theirs whole."""
+        said: set[str] = set()
+        found: list[Callout] = []
+        for block in self.callouts("warning") + self.callouts("caution"):
+            sentences = _sentences(block.text)
+            new = [s for s in sentences if s not in said]
+            said.update(sentences)
+            if len(new) == len(sentences):
+                found.append(block)
+            elif new:
+                found.append(Callout(block.kind, block.title, " ".join(new)))
+        return found
+
     def outline(self) -> str:
         """Plain-text table of contents (stable headings), for logs and checks."""
         lines = [self.title, "=" * len(self.title)]
@@ -216,3 +233,8 @@ def load_document(path: str | os.PathLike) -> ReportDocument:
         raise InputError(f"cannot read report document: {getattr(exc, 'strerror', None) or exc}",
                          Location(file=str(source)), expected="a JSON file written by save_document") from None
     return ReportDocument.from_json(text, source=str(source))
+
+
+def _sentences(text: str) -> list[str]:
+    """The sentences of a callout's text (split after a full stop followed by white space)."""
+    return [part for part in re.split(r"(?<=[.!?])\s+", text.strip()) if part]

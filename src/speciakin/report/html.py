@@ -17,9 +17,11 @@ import jinja2
 from speciakin.report._io import atomic_write_text
 from speciakin.report.document import RESERVED_ANCHORS, Figure, ReportDocument, Table
 
-__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "html_text", "render_html"]
+__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "REPRODUCE_LABEL", "html_text", "render_html"]
 
 SUMMARY_TITLE = "Decision summary"
+#: Label of the recorded command (its paths are relative to the report's folder: no absolute path in a report).
+REPRODUCE_LABEL = "Reproduce with (paths from the folder of this report)"
 SUMMARY_ANCHOR = RESERVED_ANCHORS[0]
 _TEMPLATE = "report.html.j2"
 
@@ -55,12 +57,13 @@ def html_text(doc: ReportDocument) -> str:
     caution callouts, the table of contents and the sections in order.
     """
     template = _environment().get_template(_TEMPLATE)
-    alerts = doc.callouts("warning") + doc.callouts("caution")
+    alerts = doc.alerts()
     return template.render(
         doc=doc,
         decisions=doc.callouts("decision"),
         alerts=alerts,
         summary_title=SUMMARY_TITLE,
+        reproduce_label=REPRODUCE_LABEL,
         summary_anchor=SUMMARY_ANCHOR,
         data_uri=_data_uri,
         is_number=_is_number,
