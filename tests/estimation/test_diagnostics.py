@@ -106,6 +106,21 @@ def test_acceptance_fraction_warning(acceptance, expected):
     assert any("acceptance fraction" in w for w in d.warnings) == expected
 
 
+@pytest.mark.parametrize("proposal, acceptance, expected", [
+    ("stretch", 0.68, True), ("stretch", 0.10, True), ("adaptive", 0.68, False), ("adaptive", 0.97, False),
+    ("adaptive", 0.10, True), ("laplace", 0.68, False), ("laplace", 0.10, True)])
+def test_acceptance_is_judged_by_the_moves_range(proposal, acceptance, expected):
+    # the stretch move's 0.15-0.6 (common practice); a mixture with an independence proposal warns only below
+    # 0.15: an independence proposal equal to the posterior accepts every proposal (the Metropolis-Hastings
+    # ratio pi(y) q(x) / (pi(x) q(y)) is 1 when q = pi; Hastings 1970)
+    from speciakin.estimation.proposals import PROPOSALS
+
+    chain = np.random.default_rng(7).standard_normal((500, 8, 1))
+    d, _, _ = diagnose_chain(chain, np.full(8, acceptance), ["a"],
+                             acceptance_range=PROPOSALS[proposal].acceptance_range)
+    assert any("acceptance fraction" in w for w in d.warnings) == expected
+
+
 def test_stuck_walker_and_constant_parameter_are_reported():
     chain = np.random.default_rng(8).standard_normal((400, 8, 1))
     chain[:, 3, 0] = 2.0  # one walker never moves

@@ -57,7 +57,8 @@ __all__ = [
     "ESS_MINIMUM",
 ]
 
-#: Acceptance fractions outside this range are warned about (common practice).
+#: Acceptance fractions outside this range are warned about (common practice for the stretch move; a mixture
+#: with an independence proposal passes its own, :attr:`speciakin.estimation.proposals.ProposalSpec.acceptance_range`).
 ACCEPTANCE_RANGE = (0.15, 0.6)
 #: R-hat above this suggests non-convergence (Vehtari et al. 2021, section 4).
 R_HAT_LIMIT = 1.01
@@ -291,7 +292,8 @@ class ConvergenceDiagnostics:
 
 def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray | None, parameter_names,
                             burn_in: int, target_tau_multiple: float = 50.0,
-                            tau: np.ndarray | None = None) -> ConvergenceDiagnostics:
+                            tau: np.ndarray | None = None,
+                            acceptance_range: tuple[float, float] = ACCEPTANCE_RANGE) -> ConvergenceDiagnostics:
     """Compute every convergence figure of a chain and the plain-words warnings.
 
     Parameters
@@ -311,6 +313,9 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray |
     tau
         Autocorrelation times of ``chain`` when already computed
         (:func:`autocorrelation_time`); None = compute them.
+    acceptance_range
+        Mean acceptance fractions outside it are warned about (default
+        :data:`ACCEPTANCE_RANGE`).
 
     Returns
     -------
@@ -355,7 +360,7 @@ def convergence_diagnostics(chain: np.ndarray, acceptance_fraction: np.ndarray |
         else:
             found.append("not converged: the autocorrelation time cannot be estimated "
                          f"(parameter {worst} does not move); run longer or check the model")
-    lo, hi = ACCEPTANCE_RANGE
+    lo, hi = acceptance_range
     known = acceptance_fraction is not None and acceptance.size > 0
     mean_acc = float(acceptance.mean()) if acceptance.size else 0.0
     if known and not lo <= mean_acc <= hi:
@@ -392,7 +397,8 @@ _MIN_KEPT_AFTER_WARM_UP = 4
 
 
 def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, parameter_names,
-                   target_tau_multiple: float = 50.0, warm_up: int = 0) -> tuple[ConvergenceDiagnostics, int, int]:
+                   target_tau_multiple: float = 50.0, warm_up: int = 0,
+                   acceptance_range: tuple[float, float] = ACCEPTANCE_RANGE) -> tuple[ConvergenceDiagnostics, int, int]:
     """Burn-in, thinning and every convergence figure of a chain, from the chain alone.
 
     The burn-in and thinning follow :func:`choose_burn_in_and_thin` from the
@@ -417,6 +423,9 @@ def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, pa
         anything else (all but the last 4 stored steps of a shorter chain),
         so every figure, the 50-tau length included, is of the chain after
         it, and the burn-in counts from its end.
+    acceptance_range
+        Mean acceptance fractions outside it are warned about (the moves'
+        own range; default :data:`ACCEPTANCE_RANGE`).
 
     Returns
     -------
@@ -430,5 +439,5 @@ def diagnose_chain(chain: np.ndarray, acceptance_fraction: np.ndarray | None, pa
     tau = autocorrelation_time(chain)
     burn_in, thin = choose_burn_in_and_thin(tau, chain.shape[0])
     diagnostics = convergence_diagnostics(chain, acceptance_fraction, parameter_names, burn_in,
-                                          target_tau_multiple, tau=tau)
+                                          target_tau_multiple, tau=tau, acceptance_range=acceptance_range)
     return diagnostics, warm + burn_in, thin

@@ -303,6 +303,13 @@ class ProposalSpec:
         Steps after which the independence move is refitted to the chain
         (:func:`adapt_moves`); empty = never.  The steps up to the last one
         are warm-up (:func:`warm_up_iterations`).
+    acceptance_range
+        Mean acceptance fractions outside it are warned about.  The stretch
+        move: 0.15-0.6 (common practice).  A mixture with an independence
+        move: below 0.15 only, since an independence proposal close to the
+        posterior accepts most of what it proposes (acceptance near 1 for a
+        perfect one), so a high fraction means a good proposal, not a badly
+        scaled posterior.
     """
 
     name: str
@@ -310,6 +317,7 @@ class ProposalSpec:
     describe: str
     build: Callable | None
     adapt_at: tuple[int, ...] = ()
+    acceptance_range: tuple[float, float] = (0.15, 0.6)
 
 
 #: Weights of the "laplace" mixture, chosen by measuring the autocorrelation
@@ -341,7 +349,7 @@ PROPOSALS: dict[str, ProposalSpec] = {
          f"scale {DEFAULT_INFLATION:g} x the least-squares standard errors) "
          f"{LAPLACE_WEIGHTS['independence']:g} + differential evolution "
          f"{LAPLACE_WEIGHTS['differential_evolution']:g}"),
-        _laplace_moves),
+        _laplace_moves, acceptance_range=(0.15, 1.0)),
     "adaptive": ProposalSpec(
         "adaptive", True,
         (f"independence Student-t (nu = {DEFAULT_DEGREES_OF_FREEDOM:g}), first centred at the start point "
@@ -351,7 +359,7 @@ PROPOSALS: dict[str, ProposalSpec] = {
          + ", ".join(str(s) for s in ADAPT_AT_STEPS)
          + f" (warm-up, discarded) {ADAPTIVE_WEIGHTS['independence']:g} + differential evolution "
          f"{ADAPTIVE_WEIGHTS['differential_evolution']:g}"),
-        _adaptive_moves, ADAPT_AT_STEPS),
+        _adaptive_moves, ADAPT_AT_STEPS, acceptance_range=(0.15, 1.0)),
 }
 
 #: The move choice used when a covariance is given and no choice is named.

@@ -448,7 +448,8 @@ def sample_posterior(log_likelihood_batch: Callable, parameter_names: Sequence[s
 
 def _finish(names, priors, chain, log_prob, acceptance, settings, n_steps, thin_by, criteria,
             notes, evaluator, elapsed, log_posterior, resumed_from, stop) -> PosteriorResult:
-    diagnostics, burn_in, thin = diagnose_chain(chain, acceptance, names, *criteria)
+    diagnostics, burn_in, thin = diagnose_chain(chain, acceptance, names, *criteria,
+                                                acceptance_range=PROPOSALS[settings["proposal"]].acceptance_range)
     samples = chain[burn_in::thin].reshape(-1, chain.shape[2])
     warnings = list(notes) + list(diagnostics.warnings)
     if log_posterior.n_failures:
