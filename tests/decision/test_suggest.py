@@ -298,3 +298,15 @@ def test_shrinkage_figure_is_a_png():
     png = suggest_shrinkage_figure(curves["ph"], curves["edge_low"], curves["edge_high"], curves["undecided"],
                                    curves["d_gain"], min_gain=0.1, best_ph=0.0)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_a_reason_says_how_much_smaller_the_standard_deviation_gets():
+    # a shrinkage of 0.06 (sd after / before = 0.94) reads as "6 % smaller", not as a negative standard deviation
+    from speciakin.decision.suggest.rank import _reason
+    from speciakin.decision.suggest.result import CandidateScore
+
+    score = CandidateScore(0, {}, None, None, None, None, 0.0, 0.0, {"a": 0.06, "b": 0.01})
+    assert _reason(score, ["a", "b"], has_decision=False) == \
+        "expected to mostly inform a (its standard deviation 6 % smaller)"
+    quiet = CandidateScore(0, {}, None, None, None, None, 0.0, 0.0, {"a": 0.01})
+    assert _reason(quiet, ["a"], has_decision=False).startswith("expected to change little")

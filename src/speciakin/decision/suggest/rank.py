@@ -36,8 +36,8 @@ def _reason(score: CandidateScore, names: Sequence[str], has_decision: bool) -> 
                          f"{score.undecided_before:.2f} to {score.undecided_after:.2f} pH")
     best = max(range(len(names)), key=lambda k: score.sd_shrinkage[names[k]]) if names else None
     if best is not None and score.sd_shrinkage[names[best]] >= 0.05:
-        parts.append(f"mostly inform {names[best]} (standard deviation "
-                     f"-{100 * score.sd_shrinkage[names[best]]:.0f} %)")
+        parts.append(f"mostly inform {names[best]} (its standard deviation "
+                     f"{100 * score.sd_shrinkage[names[best]]:.0f} % smaller)")
     if not parts:
         return "expected to change little: the current runs already say what this run would"
     return "expected to " + "; ".join(parts)
