@@ -91,6 +91,13 @@ def test_results_show_correlation_window_with_status_map_and_curves(server, page
     assert f"pH {lo:.2f}-{hi:.2f}" in legend and f"required level {window['level']:.2f}" in legend
     for reason in window["status_reasons"]:
         assert page.locator("#window-reasons li", has_text=reason[:40]).count() == 1
+    # the expected outcome at the best set point, as window.json holds it (and the report's page 1 states it)
+    best = window["best_ph"]
+    assert page.locator("#window-reasons li.expected-outcomes b").inner_text() == \
+        f"Expected outcome at pH {best:.2f} (the best set point)"
+    shown = page.locator("#window-reasons li.expected-outcome").all_inner_texts()
+    assert shown == [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, (m, lo, hi) in
+                     ((n, window["best_outcomes"][n]) for n in window["outcome_names"])]
     # what would lift the failing gates, under the reasons
     assert window["next_steps"]
     for step in window["next_steps"]:

@@ -13,7 +13,7 @@ import numpy as np
 from speciakin._json import json_ready, nan_from_null
 from speciakin.decision.specs import Specification
 
-__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best"]
+__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best", "best_point_words"]
 
 #: Headings of :meth:`WindowResult.report`, always present and in this order.
 REPORT_HEADINGS = (
@@ -366,6 +366,15 @@ def outcomes_at_best(window: Any) -> tuple[float | None, list[list[Any]]]:
     k = int(np.argmin(np.abs(np.asarray(window.ph) - window.best_ph)))
     return float(window.ph[k]), [[n, float(window.outcome_median[n][k]), float(window.outcome_lower[n][k]),
                                   float(window.outcome_upper[n][k])] for n in window.outcome_names]
+
+
+def best_point_words(window: Any, ph: float) -> str:
+    """Where the outcomes of :func:`outcomes_at_best` are: ``pH 4.75 (the best set point)`` (``the highest
+    probability`` when no pH passes), or ``pH 4.80`` for a result whose outcomes are of the scanned pH nearest
+    the best set point."""
+    if ph != window.best_ph:
+        return f"pH {ph:.2f}"
+    return f"pH {ph:.2f} (the best set point)" if window.windows else f"pH {ph:.2f} (the highest probability)"
 
 
 def _steps_of(data: Mapping[str, Any]) -> list[str]:

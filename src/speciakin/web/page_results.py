@@ -15,6 +15,7 @@ import numpy as np
 import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
+from speciakin.decision.result import best_point_words, outcomes_at_best
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web import stored_predictions
 from speciakin.web.figures import (compound_colors, correlation_figure, empty_figure, fit_run_figure, map_figure,
@@ -268,6 +269,12 @@ def _window_views(window):
         return message, [], empty_figure("no window"), empty_figure("no window, so no map")
     status = f"window status: {window.status or 'not assessed'}; {_window_line(window)}"
     reasons = [html.Li(r) for r in window.status_reasons]
+    at_ph, outcomes = outcomes_at_best(window)
+    if outcomes:  # as the report's first page states it
+        reasons.append(html.Li([html.B(f"Expected outcome at {best_point_words(window, at_ph)}"),
+                                " (mol % of the substrate moiety, median and 90 % band)", html.Ul(
+            [html.Li(f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})", className="expected-outcome")
+             for n, m, lo, hi in outcomes])], className="expected-outcomes"))
     if window.next_steps:  # what would lift the failing gates, under their reasons
         reasons.append(html.Li([html.B("What to do next"), html.Ul(
             [html.Li(step, className="next-step") for step in window.next_steps])], className="next-steps"))

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._json import finite_or_none
-from speciakin.decision.result import best_probability_words, outcomes_at_best
+from speciakin.decision.result import best_point_words, best_probability_words, outcomes_at_best
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
@@ -42,14 +42,6 @@ def format_interval(interval: tuple[float, float] | None) -> str:
     if interval is None:
         return "none"
     return f"pH {interval[0]:.2f} to {interval[1]:.2f}"
-
-
-def _best_words(window: Any, ph: float) -> str:
-    """``pH 4.75 (the best set point)``, or ``pH 4.80`` for a result whose outcomes were taken at the
-    scanned pH nearest the best set point (written before outcomes were simulated at it)."""
-    if not window.windows:
-        return f"pH {ph:.2f} (the highest probability)" if ph == window.best_ph else f"pH {ph:.2f}"
-    return f"pH {ph:.2f} (the best set point)" if ph == window.best_ph else f"pH {ph:.2f}"
 
 
 def _robust_for_primary(window: Any) -> tuple[float, float] | None:
@@ -153,7 +145,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
             text += f"The highest probability is at pH {window.best_ph:.2f} ({best_words}). "
     if outcomes:
         parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
-        text += (f"Expected outcome at {_best_words(window, outcome_ph)}, median (90 % band): "
+        text += (f"Expected outcome at {best_point_words(window, outcome_ph)}, median (90 % band): "
                  + "; ".join(parts) + ". ")
     text += f"{_uncertainty_words(window.uncertainty_source)}; {window.n_draws} draws."
     if invented:
@@ -182,7 +174,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if gates is not None:
         blocks.append(gates)
     if outcomes:
-        blocks.append(Table(f"Expected outcomes at {_best_words(window, outcome_ph)}", ["species", "median", "5 %", "95 %"],
+        blocks.append(Table(f"Expected outcomes at {best_point_words(window, outcome_ph)}", ["species", "median", "5 %", "95 %"],
                             outcomes, units=[None, "mol%", "mol%", "mol%"], formats=[None, ".2f", ".2f", ".2f"],
                             note="Mole % of the substrate moiety at the end of the process; 5 % and 95 % "
                                  "quantiles over the parameter draws."))
