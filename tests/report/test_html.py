@@ -86,3 +86,13 @@ def test_text_is_escaped():
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in text
     assert "A &lt;b&gt;bold&lt;/b&gt; title" in text
     assert "This report states no decision." in text
+
+
+def test_the_recorded_command_has_a_short_label_and_its_note_beside_it():
+    # the header's labels float in a column 11rem wide: a long label ran over the decision box below it
+    doc = ReportDocument("T", [Section("S", [Paragraph("x")])], command="speciakin run ../..")
+    page = html_text(doc)
+    assert "<dt>Reproduce with</dt><dd><code>speciakin run ../..</code> (paths from the folder of this report)</dd>" \
+        in page
+    labels = re.findall(r"<dt>([^<]*)</dt>", page)
+    assert labels and max(len(t) for t in labels) <= 16, labels

@@ -17,11 +17,13 @@ import jinja2
 from speciakin.report._io import atomic_write_text
 from speciakin.report.document import RESERVED_ANCHORS, Figure, ReportDocument, Table
 
-__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "REPRODUCE_LABEL", "html_text", "render_html"]
+__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "REPRODUCE_LABEL", "REPRODUCE_NOTE", "html_text", "render_html"]
 
 SUMMARY_TITLE = "Decision summary"
-#: Label of the recorded command (its paths are relative to the report's folder: no absolute path in a report).
-REPRODUCE_LABEL = "Reproduce with (paths from the folder of this report)"
+#: Label of the recorded command, and the note beside it (its paths are relative to the report's folder: no
+#: absolute path in a report).
+REPRODUCE_LABEL = "Reproduce with"
+REPRODUCE_NOTE = "paths from the folder of this report"
 SUMMARY_ANCHOR = RESERVED_ANCHORS[0]
 _TEMPLATE = "report.html.j2"
 
@@ -64,6 +66,7 @@ def html_text(doc: ReportDocument) -> str:
         alerts=alerts,
         summary_title=SUMMARY_TITLE,
         reproduce_label=REPRODUCE_LABEL,
+        reproduce_note=REPRODUCE_NOTE,
         summary_anchor=SUMMARY_ANCHOR,
         data_uri=_data_uri,
         is_number=_is_number,

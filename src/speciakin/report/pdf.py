@@ -18,7 +18,7 @@ from speciakin.errors import InputError, Location
 from speciakin.palette import OKABE_ITO
 from speciakin.report._io import atomic_write_bytes
 from speciakin.report.document import CALLOUT_KINDS, RESERVED_ANCHORS, Block, Callout, Figure, KeyValues, ReportDocument, Table
-from speciakin.report.html import REPRODUCE_LABEL, SUMMARY_ANCHOR, SUMMARY_TITLE
+from speciakin.report.html import REPRODUCE_LABEL, REPRODUCE_NOTE, SUMMARY_ANCHOR, SUMMARY_TITLE
 from speciakin.report.pdf_fonts import markup as escape  # escapes; fallback fonts for any script
 from speciakin.report.pdf_fonts import register_fonts
 
@@ -317,7 +317,7 @@ def _build(doc: ReportDocument, total: int | None, placeholders: bool = False) -
         story.append(_p(doc.subtitle, styles["subtitle"]))
     story.append(_p(f"Created {doc.created} \u00b7 speciakin {doc.software_version}", styles["meta"]))
     if doc.command:
-        story += [_p(REPRODUCE_LABEL + ":", styles["meta"]), _p(doc.command, styles["code"])]
+        story += [_p(f"{REPRODUCE_LABEL} ({REPRODUCE_NOTE}):", styles["meta"]), _p(doc.command, styles["code"])]
     story.append(heading(SUMMARY_TITLE, SUMMARY_ANCHOR))
     decisions = doc.callouts("decision")
     for block in decisions:

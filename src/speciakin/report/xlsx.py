@@ -17,7 +17,7 @@ from pathlib import Path
 from speciakin._cells import guard_workbook
 from speciakin.report._io import atomic_write_bytes
 from speciakin.report.document import Cell, ReportDocument, Table, format_cell
-from speciakin.report.html import REPRODUCE_LABEL
+from speciakin.report.html import REPRODUCE_LABEL, REPRODUCE_NOTE
 
 __all__ = ["SUMMARY_SHEET", "render_xlsx", "xlsx_bytes", "excel_number_format", "sheet_names"]
 
@@ -113,7 +113,7 @@ def _write_summary(ws, doc: ReportDocument, names: list[str]) -> None:
     if doc.subtitle:
         ws.append([doc.subtitle])
     for label, value in (("Created", doc.created), ("Software", f"speciakin {doc.software_version}"),
-                         (REPRODUCE_LABEL, doc.command or None)):
+                         (f"{REPRODUCE_LABEL} ({REPRODUCE_NOTE})", doc.command or None)):
         if value:
             ws.append([label, value])
             ws.cell(row=ws.max_row, column=1).font = bold
