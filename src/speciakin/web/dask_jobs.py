@@ -29,9 +29,10 @@ def _names(job_id: str) -> tuple[str, str]:
     return f"speciakin-job-progress-{job_id}", f"speciakin-job-cancel-{job_id}"
 
 
-def remote_job(kind: str, campaign: str, settings: dict[str, Any], job_id: str) -> tuple[str, str, str]:
-    """Run one job on a worker; returns (state, message, folder) with state "done", "cancelled" or
-    "failed" and the result folder relative to the campaign ("" when none was made)."""
+def remote_job(kind: str, campaign: str, settings: dict[str, Any], job_id: str) -> tuple[str, str, str, list[str]]:
+    """Run one job on a worker; returns (state, message, folder, stages) with state "done", "cancelled" or
+    "failed", the result folder relative to the campaign ("" when none was made) and every stage the work
+    reported (the server's poll may have missed the last ones)."""
     from distributed import Event, Variable
 
     progress_name, cancel_name = _names(job_id)
@@ -39,7 +40,7 @@ def remote_job(kind: str, campaign: str, settings: dict[str, Any], job_id: str) 
     job = Job(job_id, kind, "", "", settings, cancel=cancel)
     feedback = Feedback(Path(campaign), cancel, shown.set)
     state, message = perform(job, Path(campaign), feedback)
-    return state, message, feedback.shown["folder"]
+    return state, message, feedback.shown["folder"], list(feedback.shown["stages"])
 
 
 class DaskJobBoard(JobBoard):
@@ -109,8 +110,9 @@ class DaskJobBoard(JobBoard):
                 except TimeoutError:
                     continue
                 time.sleep(_POLL_S)
-            job.state, job.message, folder = future.result()
+            job.state, job.message, folder, stages = future.result()
             job.folder = folder or job.folder
+            job.stages = stages or job.stages
             self._after(job)
             shown.delete()
         except SpeciakinError as exc:
