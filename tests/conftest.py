@@ -19,9 +19,9 @@ import pytest  # noqa: E402
 def reduced_demo_fit_window(tmp_path_factory):
     """The regression case's fit and window (tests/pipeline/regression_case.py), made once per session.
 
-    ``{"work": folder, "case": campaign folder, "out": output folder}``; the pipeline's regression
-    guard and the demo report's checks read the same fit and window.  Read it only: a test that
-    writes copies the folder first.
+    ``{"work": folder, "case": campaign folder, "out": output folder}``; the demo report's checks
+    read it (the regression guard runs the case itself, in the pinned instruction set of
+    ``tests/pinned_numbers.py``).  Read it only: a test that writes copies the folder first.
     """
     from pipeline.regression_case import fit_and_window
 

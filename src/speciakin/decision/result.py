@@ -13,7 +13,8 @@ import numpy as np
 from speciakin._json import json_ready, nan_from_null
 from speciakin.decision.specs import Specification
 
-__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best", "best_point_words"]
+__all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best", "best_point_words",
+           "outcome_words"]
 
 #: Headings of :meth:`WindowResult.report`, always present and in this order.
 REPORT_HEADINGS = (
@@ -375,6 +376,11 @@ def best_point_words(window: Any, ph: float) -> str:
     if ph != window.best_ph:
         return f"pH {ph:.2f}"
     return f"pH {ph:.2f} (the best set point)" if window.windows else f"pH {ph:.2f} (the highest probability)"
+
+
+def outcome_words(name: str, median: float, low: float, high: float) -> str:
+    """One row of :func:`outcomes_at_best` as the report and the page state it: ``P 99.6 % (99.5-99.6)``."""
+    return f"{name} {median:.1f} % ({low:.1f}-{high:.1f})"
 
 
 def _steps_of(data: Mapping[str, Any]) -> list[str]:

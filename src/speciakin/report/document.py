@@ -42,8 +42,13 @@ from speciakin.report.blocks import (
 )
 
 #: The document's own names, and the block names re-exported from :mod:`speciakin.report.blocks`.
-__all__ = ["Section", "ReportDocument", "save_document", "load_document",
+__all__ = ["Section", "ReportDocument", "save_document", "load_document", "REPRODUCE_LABEL", "REPRODUCE_NOTE",
            *(name for name in _blocks.__all__ if name != "Block")]
+
+#: Label of the recorded command, and the note beside it in every format (its paths are relative to the
+#: report's folder: no absolute path in a report).
+REPRODUCE_LABEL = "Reproduce with"
+REPRODUCE_NOTE = "paths from the folder of this report"
 
 
 @dataclass

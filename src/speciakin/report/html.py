@@ -15,15 +15,11 @@ from pathlib import Path
 import jinja2
 
 from speciakin.report._io import atomic_write_text
-from speciakin.report.document import RESERVED_ANCHORS, Figure, ReportDocument, Table
+from speciakin.report.document import REPRODUCE_LABEL, REPRODUCE_NOTE, RESERVED_ANCHORS, Figure, ReportDocument, Table
 
-__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "REPRODUCE_LABEL", "REPRODUCE_NOTE", "html_text", "render_html"]
+__all__ = ["SUMMARY_TITLE", "SUMMARY_ANCHOR", "html_text", "render_html"]
 
 SUMMARY_TITLE = "Decision summary"
-#: Label of the recorded command, and the note beside it (its paths are relative to the report's folder: no
-#: absolute path in a report).
-REPRODUCE_LABEL = "Reproduce with"
-REPRODUCE_NOTE = "paths from the folder of this report"
 SUMMARY_ANCHOR = RESERVED_ANCHORS[0]
 _TEMPLATE = "report.html.j2"
 

@@ -17,8 +17,9 @@ from pathlib import Path
 from speciakin.errors import InputError, Location
 from speciakin.palette import OKABE_ITO
 from speciakin.report._io import atomic_write_bytes
-from speciakin.report.document import CALLOUT_KINDS, RESERVED_ANCHORS, Block, Callout, Figure, KeyValues, ReportDocument, Table
-from speciakin.report.html import REPRODUCE_LABEL, REPRODUCE_NOTE, SUMMARY_ANCHOR, SUMMARY_TITLE
+from speciakin.report.document import (CALLOUT_KINDS, REPRODUCE_LABEL, REPRODUCE_NOTE, RESERVED_ANCHORS, Block, Callout,
+                                       Figure, KeyValues, ReportDocument, Table)
+from speciakin.report.html import SUMMARY_ANCHOR, SUMMARY_TITLE
 from speciakin.report.pdf_fonts import markup as escape  # escapes; fallback fonts for any script
 from speciakin.report.pdf_fonts import register_fonts
 

@@ -16,8 +16,7 @@ from pathlib import Path
 
 from speciakin._cells import guard_workbook
 from speciakin.report._io import atomic_write_bytes
-from speciakin.report.document import Cell, ReportDocument, Table, format_cell
-from speciakin.report.html import REPRODUCE_LABEL, REPRODUCE_NOTE
+from speciakin.report.document import REPRODUCE_LABEL, REPRODUCE_NOTE, Cell, ReportDocument, Table, format_cell
 
 __all__ = ["SUMMARY_SHEET", "render_xlsx", "xlsx_bytes", "excel_number_format", "sheet_names"]
 

@@ -79,7 +79,8 @@ class Job:
         """Plain dict for the page."""
         return {"id": self.id, "kind": self.kind, "label": JOB_KINDS[self.kind].label if self.kind in JOB_KINDS
                 else self.kind, "campaign": self.campaign, "folder": self.folder, "state": self.state,
-                "stage": self.stage, "stages": list(self.stages), "done": self.done, "total": self.total, "message": self.message,
+                "stage": self.stage, "stages": list(self.stages), "done": self.done, "total": self.total,
+                "message": self.message,
                 "seconds_left": self.seconds_left(), "elapsed": (self.finished or time.time()) - self.created,
                 # a posterior until converged may stop before its cap: the time left is then an upper bound
                 "at_most": self.stage == "sample" and bool(self.settings.get("until_converged"))}

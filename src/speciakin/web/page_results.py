@@ -15,7 +15,7 @@ import numpy as np
 import dash_ag_grid as dag
 from dash import Input, Output, State, dcc, html
 
-from speciakin.decision.result import best_point_words, outcomes_at_best
+from speciakin.decision.result import best_point_words, outcome_words, outcomes_at_best
 from speciakin.errors import InputError, Location, SpeciakinError
 from speciakin.web import stored_predictions
 from speciakin.web.figures import (compound_colors, correlation_figure, empty_figure, fit_run_figure, map_figure,
@@ -273,8 +273,8 @@ def _window_views(window):
     if outcomes:  # as the report's first page states it
         reasons.append(html.Li([html.B(f"Expected outcome at {best_point_words(window, at_ph)}"),
                                 " (mol % of the substrate moiety, median and 90 % band)", html.Ul(
-            [html.Li(f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})", className="expected-outcome")
-             for n, m, lo, hi in outcomes])], className="expected-outcomes"))
+            [html.Li(outcome_words(*row), className="expected-outcome") for row in outcomes])],
+            className="expected-outcomes"))
     if window.next_steps:  # what would lift the failing gates, under their reasons
         reasons.append(html.Li([html.B("What to do next"), html.Ul(
             [html.Li(step, className="next-step") for step in window.next_steps])], className="next-steps"))

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._json import finite_or_none
-from speciakin.decision.result import best_point_words, best_probability_words, outcomes_at_best
+from speciakin.decision.result import best_point_words, best_probability_words, outcome_words, outcomes_at_best
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
@@ -144,9 +144,8 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         if window.best_ph is not None:
             text += f"The highest probability is at pH {window.best_ph:.2f} ({best_words}). "
     if outcomes:
-        parts = [f"{n} {m:.1f} % ({lo:.1f}-{hi:.1f})" for n, m, lo, hi in outcomes]
         text += (f"Expected outcome at {best_point_words(window, outcome_ph)}, median (90 % band): "
-                 + "; ".join(parts) + ". ")
+                 + "; ".join(outcome_words(*row) for row in outcomes) + ". ")
     text += f"{_uncertainty_words(window.uncertainty_source)}; {window.n_draws} draws."
     if invented:
         text += " Based on invented demonstration data."
@@ -174,8 +173,9 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if gates is not None:
         blocks.append(gates)
     if outcomes:
-        blocks.append(Table(f"Expected outcomes at {best_point_words(window, outcome_ph)}", ["species", "median", "5 %", "95 %"],
-                            outcomes, units=[None, "mol%", "mol%", "mol%"], formats=[None, ".2f", ".2f", ".2f"],
+        blocks.append(Table(f"Expected outcomes at {best_point_words(window, outcome_ph)}",
+                            ["species", "median", "5 %", "95 %"], outcomes, units=[None, "mol%", "mol%", "mol%"],
+                            formats=[None, ".2f", ".2f", ".2f"],
                             note="Mole % of the substrate moiety at the end of the process; 5 % and 95 % "
                                  "quantiles over the parameter draws."))
     if window.specifications:
