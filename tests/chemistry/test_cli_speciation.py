@@ -118,3 +118,37 @@ def test_speciate_from_model_file(tmp_path, capsys):
     code = main(["speciate", "--model", str(path), "--molecule", "T"])
     assert code == 2
     assert "molecule not in the model" in capsys.readouterr().err
+
+
+def test_model_without_molecule_takes_the_substrate(tmp_path, capsys):
+    from speciakin.chemistry import modelfile
+    from speciakin.chemistry.model import Model, Molecule, Quantity, Site
+
+    sites = (Site("N1", "base", Quantity(9.3, "", "pKa.S.N1")),)
+    path = tmp_path / "model.toml"
+    path.write_text(modelfile.dump_model(Model("m", (Molecule("R", ()), Molecule("S", sites, role="substrate")))))
+    assert main(["speciate", "--model", str(path)]) == 0
+    said = capsys.readouterr().out
+    assert "molecule: S (the model's substrate" in said and "S: 1 site(s)" in said
+    # without a substrate the choice is not guessed: a located error naming the molecules
+    path.write_text(modelfile.dump_model(Model("m", (Molecule("R", ()), Molecule("S", sites)))))
+    assert main(["speciate", "--model", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "needs a model with one substrate" in err and "R, S" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("command", [["speciate", *SITES], ["titrate", *SITES, *TITRATION]])
+def test_an_existing_output_file_is_never_overwritten(command, tmp_path, capsys):
+    for option, name in (("--out", "table.csv"), ("--plot", "plot.png")):
+        earlier = tmp_path / name
+        earlier.write_bytes(b"an earlier result")
+        assert main([*command, option, str(earlier)]) == 2
+        err = capsys.readouterr().err
+        assert "already exists; nothing is overwritten" in err and str(earlier) in err
+        assert earlier.read_bytes() == b"an earlier result"
+        earlier.unlink()
+
+
+def test_no_output_asked_for_says_how(capsys):
+    assert main(["speciate", *SITES]) == 0
+    assert "no file written: add --plot FILE.png" in capsys.readouterr().out

@@ -100,8 +100,19 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     assert report["counts"]["errors"] == 0
     # raw-data plots before any fit: one PNG per run
     assert main(["look", str(folder)]) == 0
-    assert sorted(p.name for p in (folder / "look").glob("*.png")) == ["E01-pH4.5.png", "E02-pH6.0.png",
-                                                                        "E03-pH7.5.png"]
+    plots = ["E01-pH4.5.png", "E02-pH6.0.png", "E03-pH7.5.png"]
+    assert sorted(p.name for p in (folder / "look").glob("*.png")) == plots
+    # looked at again (after the data changed, say): a new folder; the earlier plots stay as they were
+    earlier = {p.name: p.read_bytes() for p in (folder / "look").glob("*.png")}
+    (folder / "look" / plots[0]).write_bytes(b"kept")
+    assert main(["look", str(folder)]) == 0
+    assert f"written to {folder / 'look-2'}" in capsys.readouterr().out
+    assert sorted(p.name for p in (folder / "look-2").glob("*.png")) == plots
+    assert (folder / "look" / plots[0]).read_bytes() == b"kept"
+    assert (folder / "look-2" / plots[1]).read_bytes() == earlier[plots[1]]
+    # an explicit folder holding files is refused
+    assert main(["look", str(folder), "--out", str(folder / "look")]) == 2
+    assert "not empty; nothing is overwritten" in capsys.readouterr().err
     assert main(["run", str(folder), "--quick", "--quiet"]) == 0
     said = capsys.readouterr().out
     assert QUICK_NOTE in said
@@ -132,3 +143,9 @@ def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, c
     assert main(["fit", str(folder), "--no-profiles", "--starts", "1", "--quiet",
                  "--fix", "log10k[acylation_alkyl]", "--save-overrides", str(saved)]) == 0
     assert "fit = false" in saved.read_text() and "INVENTED EXAMPLE" in saved.read_text()
+    # a FILE that exists (other than the model file itself) is never written over
+    earlier = saved.read_bytes()
+    assert main(["fit", str(folder), "--no-profiles", "--starts", "1", "--quiet",
+                 "--fix", "log10k[acylation_aryl]", "--save-overrides", str(saved)]) == 2
+    assert "already exists; nothing is overwritten" in capsys.readouterr().err
+    assert saved.read_bytes() == earlier

@@ -123,3 +123,12 @@ def test_renamed_model_file_keys_are_exit_2(tmp_path, capsys):
                     .replace("PH", HELD))
     assert main(["simulate", str(path), "--out", str(tmp_path)]) == 2
     assert "key 'charges' was renamed to 'initial'" in capsys.readouterr().err
+
+
+def test_a_folder_holding_files_is_never_written_into(example, tmp_path, capsys):
+    earlier = tmp_path / "simulation.csv"
+    earlier.write_text("an earlier result")
+    assert main(["simulate", str(example), "--run", "held_pH7", "--out", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    assert "not empty; nothing is overwritten" in err and str(tmp_path) in err and "Traceback" not in err
+    assert earlier.read_text() == "an earlier result"

@@ -19,6 +19,38 @@ def output_dir(path: str | os.PathLike) -> Path:
     return p
 
 
+def new_file(path: str | os.PathLike) -> Path:
+    """``path`` for a file the command is about to write; an existing file is refused (nothing is
+    overwritten)."""
+    p = Path(path)
+    if p.exists():
+        raise InputError("the file already exists; nothing is overwritten", Location(file=str(p)),
+                         expected="a file name not used yet (or move the old file away first)")
+    return p
+
+
+def new_or_empty_dir(path: str | os.PathLike) -> Path:
+    """Create (if needed) and return an output folder that holds no file yet (nothing is overwritten)."""
+    p = Path(path)
+    if p.exists() and not p.is_dir():
+        raise InputError("the output path is a file", Location(file=str(p)), expected="a new or empty folder")
+    if p.is_dir() and any(p.iterdir()):
+        raise InputError("the output folder is not empty; nothing is overwritten", Location(file=str(p)),
+                         expected="a new or empty folder for --out")
+    return output_dir(p)
+
+
+def next_free_dir(path: str | os.PathLike) -> Path:
+    """``path`` when it is new or empty, else the first of ``path-2``, ``path-3``, ... that is (a default
+    output folder of a command run again: the earlier files stay)."""
+    base = Path(path)
+    candidate, k = base, 1
+    while candidate.exists() and (not candidate.is_dir() or any(candidate.iterdir())):
+        k += 1
+        candidate = base.with_name(f"{base.name}-{k}")
+    return output_dir(candidate)
+
+
 def existing_file(path: str | os.PathLike, what: str) -> Path:
     p = Path(path)
     if not p.exists():

@@ -20,7 +20,8 @@ def add_override_options(parser) -> None:
     g.add_argument("--bounds", action="append", default=[], metavar="NAME=LOW:HIGH",
                    help="bounds on the model file's scale (pKa: shift; rate constant: log10 k)")
     g.add_argument("--save-overrides", nargs="?", const="", default=None, metavar="FILE",
-                   help="write the changes into the model file (or FILE), keeping its comments, then go on")
+                   help="write the changes into the model file (or into FILE, a new file), keeping its "
+                        "comments, then go on")
 
 
 def overrides_of(args) -> list:
@@ -38,13 +39,18 @@ def apply_overrides(inputs, args, out=None):
     with the overrides goes to ``out/model-with-overrides.toml`` and the
     returned inputs point at it.
     """
+    from pathlib import Path
+
     from speciakin.chemistry.modelfile.overrides import load_model_with_overrides, write_overrides
+    from speciakin.cli._common import new_file
 
     overrides = overrides_of(args)
     if not overrides:
         return inputs, overrides
     load_model_with_overrides(inputs.model, overrides)  # unknown names and bad values stop here
     if args.save_overrides is not None:
+        if args.save_overrides and Path(args.save_overrides).resolve() != Path(inputs.model).resolve():
+            new_file(args.save_overrides)  # another file than the model: never over an existing one
         written = write_overrides(inputs.model, overrides, args.save_overrides or None)
         print(f"model file with the changes written: {written}")
         return type(inputs)(inputs.campaign, written, inputs.process), []

@@ -25,7 +25,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--model", metavar="MODEL.toml", default=None,
                         help="model file for the compound labels and colours "
                              "(default: model.toml in the campaign folder, when there is one)")
-    parser.add_argument("--out", metavar="DIR", default=None, help="folder of the PNGs (default: <campaign folder>/look)")
+    parser.add_argument("--out", metavar="DIR", default=None,
+                        help="folder of the PNGs, new or empty (default: <campaign folder>/look, or look-2, "
+                             "look-3, ... when that one holds an earlier call's plots)")
 
 
 def _file_name(run: str) -> str:
@@ -131,7 +133,7 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
 def run(args) -> int:
     from pathlib import Path
 
-    from speciakin.cli._common import output_dir
+    from speciakin.cli._common import new_or_empty_dir, next_free_dir
     from speciakin.data import load_campaign
     from speciakin.palette import SpeciesColors
 
@@ -148,7 +150,9 @@ def run(args) -> int:
         labels = {m.name: m.label for m in model.molecules if getattr(m, "label", "")}
         order = [m.name for m in model.molecules]  # the report's order, hence its colours
     colors = SpeciesColors(order)
-    out = output_dir(args.out or folder / "look")
+    # nothing is overwritten: an explicit folder must be new or empty; the default is <campaign>/look,
+    # or look-2, look-3, ... when an earlier call filled it
+    out = new_or_empty_dir(args.out) if args.out else next_free_dir(folder / "look")
     written = []
     for r in campaign.runs:
         path = out / _file_name(r.name)

@@ -16,7 +16,7 @@ def add_arguments(parser) -> None:
                         help="simulate only this run (repeat for several; default: every run)")
     parser.add_argument("--times", metavar='"START:STOP:STEP UNIT"', default=None,
                         help='output times, e.g. "0:180:5 min" (default: 201 points over each run)')
-    parser.add_argument("--out", metavar="DIR", required=True, help="output folder")
+    parser.add_argument("--out", metavar="DIR", required=True, help="output folder, new or empty (nothing is overwritten)")
     parser.add_argument("--table", metavar="NAME", default="simulation.csv",
                         help="table file name; .csv or .xlsx (default simulation.csv)")
     parser.add_argument("--microstates", action="store_true", help="also write every protonation microstate")
@@ -55,7 +55,7 @@ def run(args) -> int:
 
     from speciakin._cells import frame_csv_text, frame_xlsx_bytes
     from speciakin.chemistry.modelfile import load_model
-    from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file, output_dir
+    from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file, new_or_empty_dir
     from speciakin.errors import InputError, Location
     from speciakin.simulation import compile_model, simulate
 
@@ -74,7 +74,7 @@ def run(args) -> int:
     table = Path(args.table).name
     if Path(table).suffix.lower() not in (".csv", ".xlsx"):
         raise InputError("table must be .csv or .xlsx", Location(key="--table"), args.table, "a .csv or .xlsx name")
-    out = output_dir(args.out)
+    out = new_or_empty_dir(args.out)
     compiled = compile_model(model)
     results = []
     for r in runs:

@@ -11,7 +11,7 @@ import io
 from pathlib import Path
 
 from speciakin._cells import frame_csv_text, frame_xlsx_bytes
-from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file
+from speciakin.cli._common import atomic_write_bytes, atomic_write_text, existing_file, new_file
 from speciakin.errors import InputError, Location
 
 NAME = "speciate"
@@ -46,7 +46,8 @@ def add_molecule_arguments(parser: argparse.ArgumentParser) -> None:
     g.add_argument("--interaction", action="append", default=[], metavar="SITE:SITE:W",
                    help="pairwise penalty W [pK units] between two sites; repeatable")
     g.add_argument("--model", metavar="FILE", help="model file (TOML) to read the molecule from")
-    g.add_argument("--molecule", metavar="NAME", help="molecule of the model file")
+    g.add_argument("--molecule", metavar="NAME",
+                   help="molecule of the model file (default: the model's substrate)")
     g.add_argument("--temperature", metavar="TEMP",
                    help="working temperature, e.g. '40 C' (pKa moved by van 't Hoff)")
     g.add_argument("--reference-temperature", metavar="TEMP", default=None,
@@ -164,11 +165,12 @@ def molecule_from_args(args) -> tuple:
         if args.site or args.interaction:
             raise InputError("give either --site options or --model, not both", Location(key="--model"),
                              args.model, "one source for the molecule")
-        if not args.molecule:
-            raise InputError("--model needs --molecule", Location(key="--molecule"), None, "a molecule name")
         from speciakin.chemistry.modelfile import load_model
 
         model = load_model(existing_file(args.model, "model file"))
+        if not args.molecule:
+            args.molecule = default_molecule(model, args.model)
+            print(f"molecule: {args.molecule} (the model's substrate; --molecule NAME for another)")
         try:
             molecule = model.molecule(args.molecule)
         except KeyError:
@@ -181,13 +183,33 @@ def molecule_from_args(args) -> tuple:
     return molecule, (298.15 if reference is None else reference), temperature
 
 
+def default_molecule(model, path) -> str:
+    """The model's one substrate (the molecule ``--model`` without ``--molecule`` means)."""
+    substrates = [m.name for m in model.molecules if getattr(m, "role", "") == "substrate"]
+    if len(substrates) != 1:
+        raise InputError("--model without --molecule needs a model with one substrate",
+                         Location(file=str(path), key="--molecule"),
+                         ", ".join(substrates) or "no substrate",
+                         "a molecule name: " + ", ".join(m.name for m in model.molecules))
+    return substrates[0]
+
+
 def check_output_paths(args) -> None:
-    """Check suffixes before any work is done."""
+    """Check suffixes, and that no file would be overwritten, before any work is done."""
     if args.out and Path(args.out).suffix.lower() not in TABLE_SUFFIXES:
         raise InputError("unknown table format", Location(file=args.out), Path(args.out).suffix,
                          " or ".join(TABLE_SUFFIXES))
     if args.plot and Path(args.plot).suffix.lower() != ".png":
         raise InputError("unknown plot format", Location(file=args.plot), Path(args.plot).suffix, ".png")
+    for path in (args.out, args.plot):
+        if path:
+            new_file(path)
+
+
+def print_output_hint(args) -> None:
+    """Say how to get the table and the plot when neither was asked for."""
+    if not args.out and not args.plot:
+        print("no file written: add --plot FILE.png for the curves, --out FILE.csv (or .xlsx) for the table")
 
 
 def write_table(frame, path: str) -> None:
@@ -273,4 +295,5 @@ def run(args) -> int:
     if args.plot:
         _plot(result, args.plot)
         print(f"plot written to {args.plot}")
+    print_output_hint(args)
     return 0

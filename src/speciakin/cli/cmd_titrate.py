@@ -136,4 +136,5 @@ def run(args) -> int:
     if args.plot:
         _plot(result, args.plot)
         print(f"plot written to {args.plot}")
+    shared.print_output_hint(args)
     return 0
