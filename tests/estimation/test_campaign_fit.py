@@ -9,6 +9,7 @@ import json
 
 import numpy as np
 import pytest
+from scipy import stats
 
 from speciakin.pipeline.fit import CampaignFitResult, fit_campaign
 from speciakin.estimation.comparison import compare_models
@@ -50,6 +51,7 @@ def test_recovery_truth_inside_both_intervals(recovery):
     # a 99.9 % range of about [0.57, 1.52] x 93 (scipy.stats.chi2))
     assert 0.5 < fit.fit.reduced_chisqr < 1.6
     assert not any("cannot determine" in w for w in fit.warnings)
+    assert not any("stated errors look too large" in w for w in fit.warnings)
 
 
 def test_recovery_precision_low_noise():
@@ -63,6 +65,24 @@ def test_recovery_precision_low_noise():
     np.testing.assert_allclose(result.theta, THETA_TRUE, rtol=0, atol=0.01)
     assert result.profiles == {}
     assert "not computed" in result.report()
+    # the data scatter about ten times less than the model file's error model says: chi-square far
+    # below the 0.1 % quantile of chi-square with its degrees of freedom (scipy.stats.chi2), so the
+    # fit says the stated errors look too large and what that does to the posterior and the window
+    dof = result.fit.n_residuals - result.fit.n_varying
+    assert result.fit.chisqr < stats.chi2.ppf(0.001, dof)
+    said = [w for w in result.warnings if "stated errors look too large" in w]
+    assert len(said) == 1
+    assert f"reduced chi-square {result.fit.reduced_chisqr:.3g}" in said[0] and "on the safe side" in said[0]
+
+
+def test_overstated_errors_warning_at_the_chi_square_quantile():
+    # the limit is the 0.1 % quantile of chi-square (scipy.stats.chi2.ppf), on either side of it
+    from speciakin.pipeline.fit import overstated_errors_warning
+
+    limit = stats.chi2.ppf(0.001, 93)
+    assert overstated_errors_warning(limit * 0.999, 93) is not None
+    assert overstated_errors_warning(limit * 1.001, 93) is None
+    assert overstated_errors_warning(0.0, 0) is None
 
 
 def test_undetermined_parameter_has_open_profile():

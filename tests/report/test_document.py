@@ -184,3 +184,13 @@ def test_save_and_load_document(tmp_path, document):
 def test_malformed_saved_documents(data, match):
     with pytest.raises(InputError, match=match):
         ReportDocument.from_dict(data)
+
+
+def test_notes_read_as_sentences():
+    from speciakin.report.blocks import as_sentences
+
+    text = as_sentences(["parameters a and b are strongly correlated (+0.981)", "log10k[acyl] is at its bound",
+                         "pKa[S.N1] is open.", "the data scatter 0.42 times the stated error: too large"])
+    assert text == ("Parameters a and b are strongly correlated (+0.981). log10k[acyl] is at its bound. "
+                    "pKa[S.N1] is open. The data scatter 0.42 times the stated error: too large.")
+    assert as_sentences([]) == ""

@@ -250,6 +250,34 @@ def check_start_values(objective: CampaignObjective) -> None:
         raise InputError(problems=problems)
 
 
+#: A fit's chi-square below this quantile of the chi-square distribution (with the fit's degrees of
+#: freedom) says the stated errors are too large (the same 0.1 % as the upper limit of the error-model
+#: gate, ``decision.gates.CHI_SQUARE_QUANTILE``, on the other side).
+LOW_CHI_SQUARE_QUANTILE = 0.001
+
+
+def overstated_errors_warning(chisqr: float, dof: int) -> str | None:
+    """The warning for data that scatter much less than the stated error model (None when they do not).
+
+    The covariance intervals of the fit are scaled to the observed scatter; the posterior uses the
+    stated errors, so its intervals (and a window drawn from it) come out wider than the data warrant.
+    """
+    from scipy import stats
+
+    if not (dof >= 1 and np.isfinite(chisqr)):
+        return None
+    limit = float(stats.chi2.ppf(LOW_CHI_SQUARE_QUANTILE, dof))
+    if chisqr >= limit:
+        return None
+    reduced = chisqr / dof
+    return (f"the data scatter {np.sqrt(reduced):.2g} times the stated measurement error (reduced chi-square "
+            f"{reduced:.3g}; chi-square {chisqr:.4g} is below the {LOW_CHI_SQUARE_QUANTILE:.1%} quantile {limit:.4g} "
+            f"for {dof} degrees of freedom): the stated errors look too large. The covariance intervals are "
+            "scaled to the observed scatter; the posterior uses the stated errors, so its credible intervals "
+            "and a pH window drawn from it are wider than the data warrant (on the safe side). If this "
+            "scatter is typical of the method, state smaller errors in the model file's [fit] error_model")
+
+
 def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = None, seed: int | None = None,
                  profiles: bool = True, profile_points: int = 12,
                  progress: Callable[[str, int, int], None] | None = None) -> CampaignFitResult:
@@ -297,6 +325,9 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         if stats["count"] >= 3 and stats["rms"] > MISFIT_RMS:
             warnings.append(f"{label}: residuals are {stats['rms']:.1f} times the stated measurement error; "
                             "the model (or the error model) does not describe these data well")
+    low = overstated_errors_warning(fit.chisqr, fit.n_residuals - fit.n_varying)
+    if low:
+        warnings.append(low)
     prof: dict[str, Profile] = {}
     t1 = time.perf_counter()
     if profiles and fit.success:

@@ -16,7 +16,7 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, ClassVar, Mapping, Union
+from typing import Any, ClassVar, Mapping, Sequence, Union
 
 from speciakin.errors import InputError, Location
 
@@ -312,6 +312,19 @@ class Figure:
         except (binascii.Error, TypeError, ValueError):
             raise _fail("figure data is not base64", "figure.png_base64", None, "base64 text") from None
         return cls(png, data.get("caption", ""), data.get("alt", ""), data.get("width_fraction", 1.0))
+
+
+def as_sentences(items: Sequence[str]) -> str:
+    """Plain-words notes as one text: each ends with a full stop, and one that opens with a plain
+    lower-case word starts with a capital (a note opening with a name, "pKa[...]" or "log10k[...]",
+    keeps it as written)."""
+    out = []
+    for item in items:
+        text = item.strip()
+        if re.match(r"[a-z]+\s", text):
+            text = text[0].upper() + text[1:]
+        out.append(text if text.endswith(".") else text + ".")
+    return " ".join(out)
 
 
 @dataclass

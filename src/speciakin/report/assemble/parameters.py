@@ -23,6 +23,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from speciakin.report.blocks import as_sentences
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
 __all__ = [
@@ -324,8 +325,7 @@ def correlation_section(fit: Any, posterior: Any, warnings: list[str]) -> Sectio
         blocks.append(Paragraph("Strongly correlated pairs (|r| >= "
                                 f"{STRONG_CORRELATION:g}): " + ("; ".join(strong) if strong else "none") + "."))
     if warnings:
-        blocks.append(Callout("warning", "Warnings of the fit and the posterior", " ".join(
-            w if w.endswith(".") else w + "." for w in warnings)))
+        blocks.append(Callout("warning", "Warnings of the fit and the posterior", as_sentences(warnings)))
     else:
         blocks.append(Paragraph("The fit and the posterior raised no warning."))
     return Section("Correlations and identifiability", blocks, anchor="correlations")

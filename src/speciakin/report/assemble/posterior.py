@@ -21,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from speciakin.report.blocks import as_sentences
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
 __all__ = [
@@ -137,8 +138,7 @@ def convergence_section(fit: Any, posterior: Any) -> Section:
         blocks.append(diagnostics_table(posterior))
         notes = list(d.warnings) + [w for w in posterior.warnings if w not in d.warnings]
         if notes:
-            blocks.append(Callout("warning", "Sampler warnings", " ".join(
-                w if w.endswith(".") else w + "." for w in notes)))
+            blocks.append(Callout("warning", "Sampler warnings", as_sentences(notes)))
         names = list(posterior.parameter_names)
         chain = np.asarray(posterior.chain, float)
         if chain.ndim == 3 and chain.shape[0] >= 2:
