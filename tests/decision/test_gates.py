@@ -122,8 +122,11 @@ def test_process_envelope_gate():
     assert verdict("process envelope", inputs()).verdict == PASS
     process["dosing_time"] = 45.0
     v = verdict("process envelope", inputs(process=process))
-    assert v.verdict == PROVISIONAL and "dosing time 45 min lies outside the runs' 10 to 10 min (by 35 min)" \
+    assert v.verdict == PROVISIONAL and "dosing time 45 min differs from every run's 10 min (by 35 min)" \
         in v.reasons[0]
+    runs = dict(CLEAN["runs"], dosing_time=[10.0, 20.0])
+    v = verdict("process envelope", inputs(process=process, runs=runs))
+    assert "dosing time 45 min lies outside the runs' 10 to 20 min (by 25 min)" in v.reasons[0]
     process = dict(CLEAN["process"], equivalents=1.4)           # 7.7 % above: inside the 10 % slack
     assert verdict("process envelope", inputs(process=process)).verdict == PASS
     process = dict(CLEAN["process"], temperature=28.0)          # 3 K above: outside the 2 K slack

@@ -334,8 +334,9 @@ def envelope_gate(x: GateInputs) -> GateVerdict:
         figures[key] = {"process": float(value), "runs": [lo, hi]}
         if value < lo - slack_lo or value > hi + slack_hi:
             by = lo - value if value < lo else value - hi
-            reasons.append(f"{label} {value:.4g} {unit} lies outside the runs' {lo:.4g} to {hi:.4g} {unit} "
-                           f"(by {by:.3g} {unit})")
+            where = (f"differs from every run's {lo:.4g} {unit}" if lo == hi
+                     else f"lies outside the runs' {lo:.4g} to {hi:.4g} {unit}")
+            reasons.append(f"{label} {value:.4g} {unit} {where} (by {by:.3g} {unit})")
     mode = x.process.get("ph_mode")
     modes = [m for m in (x.runs.get("ph_mode") or []) if m]
     if mode and modes and mode not in modes:
