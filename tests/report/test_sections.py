@@ -146,3 +146,34 @@ def test_process_file_report_table_names_author_and_reviewer():
         parse_process(tomllib.loads(bad), "process.toml", bad)
     message = str(err.value)
     assert "report.author" in message and "report.signed" in message
+
+
+def test_commit_says_uncommitted_changes_of_the_code_only(tmp_path):
+    # a checkout whose report folder changed (a report written into it) still runs the commit's code;
+    # a changed file of the package does not
+    import shutil
+    import subprocess
+
+    from speciakin.report.assemble.qa import tool_commit
+
+    if shutil.which("git") is None:
+        pytest.skip("git is not installed")
+    package = tmp_path / "src" / "speciakin"
+    package.mkdir(parents=True)
+    (package / "__init__.py").write_text("x = 1\n")
+    (tmp_path / "reports").mkdir()
+    (tmp_path / "reports" / "report.html").write_text("old\n")
+
+    def git(*args):
+        subprocess.run(["git", *args], cwd=tmp_path, check=True, capture_output=True)
+
+    git("init", "-q")
+    git("add", "-A")
+    git("-c", "user.name=t", "-c", "user.email=t@example.invalid", "commit", "-qm", "start")
+    head = subprocess.run(["git", "rev-parse", "HEAD"], cwd=tmp_path, capture_output=True, text=True).stdout.strip()
+    assert tool_commit(package) == head
+    (tmp_path / "reports" / "report.html").write_text("new\n")
+    assert tool_commit(package) == head
+    (package / "__init__.py").write_text("x = 2\n")
+    assert tool_commit(package) == head + " (with uncommitted changes)"
+    assert tool_commit(tmp_path / "elsewhere") == "unknown"

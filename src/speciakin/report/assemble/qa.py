@@ -45,11 +45,18 @@ def dependency_versions() -> list[tuple[str, str]]:
     return out
 
 
-def tool_commit() -> str:
-    """Commit of the speciakin checkout the code runs from (``git rev-parse HEAD``), else "unknown"."""
-    import speciakin
+def tool_commit(package: str | Path | None = None) -> str:
+    """Commit of the speciakin checkout the code runs from (``git rev-parse HEAD``), else "unknown";
+    "with uncommitted changes" when the package's own files (``src/speciakin``) differ from it (a
+    report written into the checkout, such as ``reports/example``, is not a change of the code).
 
-    here = Path(speciakin.__file__).resolve().parent
+    ``package``: the package folder (default: the one imported).
+    """
+    if package is None:
+        import speciakin
+
+        package = Path(speciakin.__file__).parent
+    here = Path(package).resolve()
     try:
         top = subprocess.run(["git", "rev-parse", "--show-toplevel"], cwd=here, capture_output=True, text=True,
                              timeout=10, check=False)
@@ -57,7 +64,7 @@ def tool_commit() -> str:
             return "unknown"
         head = subprocess.run(["git", "rev-parse", "HEAD"], cwd=here, capture_output=True, text=True,
                               timeout=10, check=False)
-        dirty = subprocess.run(["git", "status", "--porcelain", "--untracked-files=no"], cwd=here,
+        dirty = subprocess.run(["git", "status", "--porcelain", "--untracked-files=no", "--", "."], cwd=here,
                                capture_output=True, text=True, timeout=10, check=False)
     except (OSError, subprocess.SubprocessError):
         return "unknown"
