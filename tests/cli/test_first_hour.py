@@ -31,6 +31,23 @@ def test_new_templates_agree_with_each_other(tmp_path, capsys):
     assert "Process: " in text and "no runs yet" in text
 
 
+def test_new_folder_readme_names_real_commands(tmp_path):
+    # every command the README of a new folder (blank or example) tells the chemist to type exists,
+    # and each one names that folder
+    import re
+
+    from speciakin.cli.main import COMMANDS
+
+    for extra in ([], ["--example"]):
+        folder = tmp_path / f"c{len(extra)}"
+        assert main(["new", str(folder), *extra]) == 0
+        said = re.findall(r"`speciakin (\w+)([^`]*)`", (folder / "README.md").read_text())
+        assert {"check", "run"} <= {name for name, _ in said}
+        for name, rest in said:
+            assert name in COMMANDS
+            assert name == "web" or rest.split()[0] == str(folder)
+
+
 def test_fit_of_a_fresh_folder_names_what_is_missing(tmp_path, capsys):
     # a new folder has no runs yet: fitting it stops before any work with a located error in
     # the chemist's terms (how many data values for how many fitted parameters, and what to do),

@@ -159,6 +159,15 @@ def test_steps_alone_history_contrast_and_a_moved_folder(fitted_campaign, fitted
     changed = [line for line in text.splitlines() if "CHANGED" in line]
     assert len(changed) == 1 and "process.toml" in changed[0]
     assert main(["contrast", str(campaign), "nothing-like-this", third.name]) == 2
+    # without ids: the two newest complete runs, the older as A; with one id: it and the newest
+    capsys.readouterr()
+    assert main(["contrast", str(campaign)]) == 0
+    first_rows = capsys.readouterr().out.splitlines()[2].split()
+    assert first_rows == ["id", window_folder.name, third.name]
+    assert main(["contrast", str(campaign), fit_folder.name[-6:]]) == 0
+    assert capsys.readouterr().out.splitlines()[2].split() == ["id", fit_folder.name, third.name]
+    assert main(["contrast", str(campaign), third.name]) == 0     # the newest itself: beside the next one
+    assert capsys.readouterr().out.splitlines()[2].split() == ["id", third.name, window_folder.name]
 
     # move the campaign with its results elsewhere and render the window result again from another folder
     moved = Path(shutil.move(str(campaign), str(tmp_path / "elsewhere")))
@@ -229,3 +238,12 @@ def test_resume_without_an_interrupted_folder_is_a_clear_error(campaign, capsys)
         err = capsys.readouterr().err
         assert "interrupted" in err and "Traceback" not in err
     assert not (campaign / "results").exists() or not _folders(campaign)
+
+
+def test_contrast_without_two_complete_runs_is_a_clear_error(tmp_path, capsys):
+    folder = tmp_path / "fresh"
+    assert main(["new", str(folder)]) == 0
+    capsys.readouterr()
+    assert main(["contrast", str(folder)]) == 2
+    err = capsys.readouterr().err
+    assert "fewer than two complete runs recorded" in err and "index.sqlite" in err and "Traceback" not in err

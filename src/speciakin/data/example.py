@@ -116,8 +116,11 @@ measurements. Do not use these numbers for any real process.
 Try:
 
 1. `speciakin check {name}`
-2. `speciakin run {name} --quick` (a provisional first look in well under a minute
+2. `speciakin look {name}` (each run's raw data drawn into `look/`)
+3. `speciakin run {name} --quick` (a provisional first look in well under a minute
    once the simulation kernel is compiled), then `speciakin run {name}` for the full job.
+
+`speciakin web`, started in the folder that holds this one, does the same on a local page.
 """
 
 
@@ -141,5 +144,5 @@ def new_example(folder: str | Path) -> list[Path]:
         write_bytes_atomically(p / name, (example_source() / name).read_bytes())
         written.append(p / name)
     written += write_campaign(example_campaign(load_model(p / "model.toml")), p / WORKBOOK_NAME)
-    write_bytes_atomically(p / "README.md", _EXAMPLE_README.format(name=p.name).encode("utf-8"))
+    write_bytes_atomically(p / "README.md", _EXAMPLE_README.format(name=str(folder)).encode("utf-8"))
     return written + [p / "README.md"]

@@ -185,9 +185,15 @@ Files here:
 
 Then:
 
-1. `speciakin check {name}` lists every mistake with its sheet, row and column
-   (add `--model model.toml` to check the names against your model).
-2. `speciakin run {name}` fits the model and writes the report.
+1. `speciakin check {name}` lists every mistake with its sheet, row and column, and
+   checks the names against `model.toml` and `process.toml` when they are in this folder.
+2. `speciakin look {name}` draws each run's raw data (HPLC, pH and temperature, titrant)
+   into `look/`, before any fit.
+3. `speciakin run {name} --quick` gives a first, provisional fit and pH window (no
+   posterior); `speciakin run {name}` does the whole job (fit, posterior, pH window) and
+   writes the report into a new folder under `results/`, which it names when it ends.
+
+`speciakin web`, started in the folder that holds this one, does the same on a local page.
 {notes}"""
 
 

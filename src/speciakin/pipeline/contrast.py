@@ -15,7 +15,7 @@ from typing import Any
 from speciakin.errors import InputError, Location
 from speciakin.pipeline import folders, history, outputs
 
-__all__ = ["live_runs", "runs_listing", "contrast", "contrast_text", "window_label"]
+__all__ = ["live_runs", "runs_listing", "contrast", "contrast_text", "default_pair", "window_label"]
 
 
 def _folder(root: Path, run: dict[str, Any]) -> Path:
@@ -97,6 +97,24 @@ def _resolve(root: Path, key: str) -> dict[str, Any]:
         raise InputError("no single recorded run with this id", Location(file=str(root / history.INDEX_FILE)), key,
                          "an id (or its first or last characters) listed by 'speciakin history'")
     return run
+
+
+def default_pair(root: str | os.PathLike, a: str | None = None) -> tuple[str, str]:
+    """The ids to contrast when not all are named: without ``a`` the two newest complete runs (the
+    older as A); with ``a`` that run and the newest complete run other than it."""
+    root = Path(root)
+    complete = [r["id"] for r in live_runs(root) if r["status"] == "complete"]
+    if a is not None:
+        first = _resolve(root, a)["id"]
+        others = [i for i in complete if i != first]
+        if not others:
+            raise InputError("no other complete run recorded to set beside it", Location(
+                file=str(root / history.INDEX_FILE)), a, "a second complete run ('speciakin history' lists them)")
+        return first, others[0]
+    if len(complete) < 2:
+        raise InputError("fewer than two complete runs recorded", Location(file=str(root / history.INDEX_FILE)),
+                         len(complete), "two complete runs ('speciakin history' lists them), or name A and B")
+    return complete[1], complete[0]
 
 
 def contrast(root: str | os.PathLike, a: str, b: str) -> dict[str, Any]:
