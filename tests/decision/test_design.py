@@ -150,7 +150,7 @@ def test_warnings_no_window_and_edge():
     assert any("no pH meets every specification with probability >= 0.95" in w for w in result.warnings)
     loose = [Specification("percent", ("PB",), ">=", 50.0)]
     result = compute_window(outcome_fn, draws, GRID, loose, outcome_names=NAMES)
-    assert any("touches the edge of the scanned range" in w for w in result.warnings)
+    assert any("end of the scanned range" in w and "extend the pH grid" in w for w in result.warnings)
 
 
 def test_result_round_trip_report_and_json():

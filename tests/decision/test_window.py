@@ -14,6 +14,8 @@ from speciakin.decision.window import (
     per_draw_robust_probability,
     probability_curve,
     robust_window,
+    range_end_warning,
+    range_ends_reached,
     touches_range_edge,
     widest_interval,
     window_edges,
@@ -59,6 +61,16 @@ def test_window_reaching_grid_end_stops_there_and_is_flagged():
     assert low == GRID[0]
     assert touches_range_edge([(low, high)], GRID)
     assert not touches_range_edge([(5.0, 6.0)], GRID)
+    # the warning names the end, its pH and the process file's key that moves it
+    first, last = GRID[0], GRID[-1]
+    assert range_ends_reached([(low, high)], GRID) == ["lower"]
+    text = range_end_warning([(low, high)], GRID)
+    assert f"touches the lower end of the scanned range (pH {first:.2f})" in text and "ph_from under [scan]" in text
+    assert range_ends_reached([(first, 4.0), (5.0, last)], GRID) == ["lower", "upper"]
+    text = range_end_warning([(first, last)], GRID)
+    assert f"lower and upper ends of the scanned range (pH {first:.2f} and {last:.2f})" in text
+    assert "ph_from and ph_to" in text
+    assert range_end_warning([(5.0, 6.0)], GRID) is None
 
 
 def test_no_window():

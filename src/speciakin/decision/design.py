@@ -35,7 +35,7 @@ from speciakin.decision.specs import Specification, evaluate_specs
 from speciakin.decision.window import (
     interval_containing,
     probability_curve,
-    touches_range_edge,
+    range_end_warning,
     widest_interval,
     worst_case_probability,
 )
@@ -248,9 +248,9 @@ def compute_window(outcome_fn: OutcomeFunction, draws: np.ndarray, ph_grid: Sequ
     if not windows:
         warnings.append(f"no pH meets every specification with probability >= {level:g}")
     else:
-        if touches_range_edge(windows, ph):
-            warnings.append("window touches the edge of the scanned range; extend the pH grid "
-                            "to see where it ends")
+        edge = range_end_warning(windows, ph)
+        if edge:
+            warnings.append(edge)
         if not robust:
             warnings.append(f"no set point where a share >= {level:g} of the draws meets every "
                             f"specification at every pH within +/- {tolerance:g} (the window is "

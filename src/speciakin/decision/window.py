@@ -34,6 +34,8 @@ __all__ = [
     "robust_window",
     "worst_case_probability",
     "per_draw_robust_probability",
+    "range_end_warning",
+    "range_ends_reached",
     "touches_range_edge",
 ]
 
@@ -268,8 +270,32 @@ def per_draw_robust_probability(ph: Sequence[float], pass_matrix: np.ndarray,
 
 def touches_range_edge(intervals: Sequence[Interval], ph: Sequence[float]) -> bool:
     """True if an interval reaches the first or last scanned pH."""
+    return bool(range_ends_reached(intervals, ph))
+
+
+def range_ends_reached(intervals: Sequence[Interval], ph: Sequence[float]) -> list[str]:
+    """Which ends of the scanned pH range an interval reaches: ``"lower"``, ``"upper"``, both or none."""
     x = np.asarray(ph, dtype=float)
     if x.size == 0:
-        return False
+        return []
     eps = 1e-9 * max(1.0, float(np.ptp(x)))
-    return any(low <= x[0] + eps or high >= x[-1] - eps for low, high in intervals)
+    ends = []
+    if any(low <= x[0] + eps for low, _ in intervals):
+        ends.append("lower")
+    if any(high >= x[-1] - eps for _, high in intervals):
+        ends.append("upper")
+    return ends
+
+
+def range_end_warning(intervals: Sequence[Interval], ph: Sequence[float]) -> str | None:
+    """The warning for a window that reaches an end of the scanned range, naming the end, its pH and
+    the process file's key that moves it (None when it reaches neither)."""
+    ends = range_ends_reached(intervals, ph)
+    if not ends:
+        return None
+    x = np.asarray(ph, dtype=float)
+    at = {"lower": x[0], "upper": x[-1]}
+    keys = {"lower": "ph_from", "upper": "ph_to"}
+    return (f"window touches the {' and '.join(ends)} end{'s' if len(ends) > 1 else ''} of the scanned range "
+            f"(pH {' and '.join(f'{at[e]:.2f}' for e in ends)}): it may go on beyond; extend the pH grid "
+            f"({' and '.join(keys[e] for e in ends)} under [scan] in the process file) to see where it ends")
