@@ -101,6 +101,15 @@ def test_an_established_window_is_recommended():
     assert callout.title == "Recommended: pH 7.60 to 8.40" and "Status: established" in callout.text
 
 
+def test_window_warnings_read_as_sentences():
+    window = _window("established")
+    window.warnings = ["window touches the upper end of the scanned range (pH 9.00): it may go on beyond"]
+    warned = [b for b in decision_summary_section(window, None, None).blocks
+              if getattr(b, "kind", "") == "warning" and b.title == "pH window"]
+    assert [b.text for b in warned] == ["Window touches the upper end of the scanned range (pH 9.00): it may "
+                                        "go on beyond."]
+
+
 def test_page_one_says_what_to_do_next_and_what_the_suggestion_found():
     window = _window("provisional", ["window edge pH 7.60 lies 0.60 pH above the highest run pH"])
     window.next_steps = ["Add a run at pH 7.6: the window's edge lies outside the pH 6.00 to 7.00 the runs covered."]

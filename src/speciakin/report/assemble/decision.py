@@ -22,6 +22,7 @@ from speciakin._json import finite_or_none
 from speciakin.decision.result import best_point_words, best_probability_words, outcome_words, outcomes_at_best
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
+from speciakin.report.blocks import as_sentences
 from speciakin.report.document import BulletList, Callout, Figure, KeyValues, Paragraph, Section, Table
 
 __all__ = [
@@ -182,7 +183,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
         blocks.append(Paragraph("Specifications (all must be met):"))
         blocks.append(BulletList([s.describe() for s in window.specifications]))
     for w in window.warnings:
-        blocks.append(Callout("warning", "pH window", w))
+        blocks.append(Callout("warning", "pH window", as_sentences([w])))
     return Section("Decision summary", blocks, anchor="decision")
 
 
