@@ -29,15 +29,21 @@ def new_file(path: str | os.PathLike) -> Path:
     return p
 
 
-def new_or_empty_dir(path: str | os.PathLike) -> Path:
-    """Create (if needed) and return an output folder that holds no file yet (nothing is overwritten)."""
+def refuse_filled_dir(path: str | os.PathLike, expected: str = "a new or empty folder for --out") -> Path:
+    """``path`` when it is a new or an empty folder; a file, or a folder holding files, is refused
+    (nothing is overwritten; ``expected`` says what to give instead)."""
     p = Path(path)
     if p.exists() and not p.is_dir():
         raise InputError("the output path is a file", Location(file=str(p)), expected="a new or empty folder")
     if p.is_dir() and any(p.iterdir()):
         raise InputError("the output folder is not empty; nothing is overwritten", Location(file=str(p)),
-                         expected="a new or empty folder for --out")
-    return output_dir(p)
+                         expected=expected)
+    return p
+
+
+def new_or_empty_dir(path: str | os.PathLike) -> Path:
+    """Create (if needed) and return an output folder that holds no file yet (:func:`refuse_filled_dir`)."""
+    return output_dir(refuse_filled_dir(path))
 
 
 def next_free_dir(path: str | os.PathLike) -> Path:

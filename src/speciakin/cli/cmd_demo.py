@@ -43,6 +43,7 @@ def demo_folder(out, resume: bool):
     """
     from pathlib import Path
 
+    from speciakin.cli._common import refuse_filled_dir
     from speciakin.errors import InputError, Location
     from speciakin.pipeline import folders
 
@@ -56,13 +57,8 @@ def demo_folder(out, resume: bool):
         return found
     if out is None:
         return folders.new_result_folder(DEMO_ROOT)
-    folder = Path(out)
-    if folder.is_dir() and any(folder.iterdir()):
-        raise InputError("the output folder is not empty; nothing is overwritten", Location(file=str(folder)),
-                         expected=f"a new or empty folder for --out, or leave out --out (every call then writes a "
-                                  f"new folder under {DEMO_ROOT}/)")
-    if folder.exists() and not folder.is_dir():
-        raise InputError("the output path is a file", Location(file=str(folder)), expected="a new or empty folder")
+    folder = refuse_filled_dir(out, expected=f"a new or empty folder for --out, or leave out --out (every call "
+                                            f"then writes a new folder under {DEMO_ROOT}/)")
     folders.check_writable(folder)
     return folder
 
