@@ -29,6 +29,7 @@ def test_new_templates_agree_with_each_other(tmp_path, capsys):
     assert main(["check", str(tmp_path / "c")]) == 0
     text = capsys.readouterr().out
     assert "Process: " in text and "no runs yet" in text
+    assert "OK so far, but nothing to fit yet" in text and "ready to fit" not in text
 
 
 def test_new_folder_readme_names_real_commands(tmp_path):

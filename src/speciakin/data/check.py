@@ -18,6 +18,11 @@ __all__ = ["CHECK_FAILED", "CheckReport", "check_campaign"]
 CHECK_FAILED = 1
 
 
+#: Result line of a check without errors that found no data yet (a new campaign's blank workbook).
+NOTHING_TO_FIT = ("OK so far, but nothing to fit yet: fill in the workbook's runs and their HPLC results "
+                  "(or titrant log), then check again")
+
+
 @dataclass
 class CheckReport(ProblemList):
     """Outcome of :func:`check_campaign`.
@@ -73,6 +78,7 @@ class CheckReport(ProblemList):
         lines += ["", "Warnings", "--------"]
         lines += [f"  - {p.describe()}" for p in self.warnings] or ["  none"]
         lines += ["", "Result", "------",
+                  NOTHING_TO_FIT if self.ok and not (self.hplc_values or self.log_readings) else
                   "OK: ready to fit" if self.ok and not self.warnings else
                   "OK with warnings: review them before fitting" if self.ok else
                   f"FAILED: {len(self.errors)} error(s); nothing can be fitted until they are fixed"
