@@ -167,3 +167,19 @@ def test_quick_run_records_overrides_and_writes_them_back_when_asked(tmp_path, c
                  "--fix", "log10k[acylation_aryl]", "--save-overrides", str(saved)]) == 2
     assert "already exists; nothing is overwritten" in capsys.readouterr().err
     assert saved.read_bytes() == earlier
+
+
+def test_run_of_the_invented_example_labels_its_report(tmp_path, capsys):
+    # the model file says INVENTED; `run` labels the report as `report` and the page do
+    # (it did not: only `speciakin demo` asked for the label)
+    from speciakin.pipeline import says_invented
+
+    folder = tmp_path / "example"
+    assert main(["new", str(folder), "--example"]) == 0
+    assert main(["run", str(folder), "--quiet", "--steps", "60", "--starts", "1", "--no-profiles",
+                 "--draws", "60"]) == 0
+    html = (latest_result(folder / "results") / "report.html").read_text()
+    assert "Based on invented demonstration data" in html
+    assert says_invented(type("M", (), {"description": "  INVENTED demo"})())
+    assert not says_invented(type("M", (), {"description": "acylation of a real substrate"})())
+    assert not says_invented(type("M", (), {"description": None})())

@@ -111,7 +111,7 @@ def run(args) -> int:
     formats = _formats(args.formats)
     source = _source(args.outdir)
     results = pipeline.load_results(source, campaign=args.campaign, model=args.model, process=args.process)
-    invented = bool(args.invented) or results.model.description.lower().startswith("invented")
+    invented = bool(args.invented) or pipeline.says_invented(results.model)
     out = args.out
     if out is None and not (source / folders.STATUS_FILE).exists() \
             and not list(source.glob(outputs.RESULT_FILES["report"] + ".*")):

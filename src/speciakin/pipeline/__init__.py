@@ -41,7 +41,7 @@ from speciakin.pipeline.inputs import Inputs, load_inputs, resolve_inputs
 from speciakin.pipeline.folders import new_result_folder, read_status, results_root
 from speciakin.pipeline.outputs import RESULT_FILES
 from speciakin.pipeline.record import Recording, find_result
-from speciakin.pipeline.run import STEPS, Renderer, Results, for_report, load_results, run_all
+from speciakin.pipeline.run import STEPS, Renderer, Results, for_report, load_results, run_all, says_invented
 from speciakin.pipeline.steps import (Cancelled, Progress, check_step, fit_step, make_objective, predict_step,
                                       sample_step, window_step, window_text)
 
@@ -49,5 +49,5 @@ __all__ = [
     "Inputs", "resolve_inputs", "load_inputs", "RESULT_FILES", "STEPS", "Renderer", "Results", "run_all",
     "load_results", "Cancelled", "Progress", "check_step", "fit_step", "make_objective", "predict_step",
     "sample_step", "window_step", "window_text", "Recording", "find_result", "new_result_folder", "read_status",
-    "results_root", "for_report",
+    "results_root", "for_report", "says_invented",
 ]

@@ -197,7 +197,8 @@ def run_all(inputs: Inputs, out: Path, *, renderer: Renderer | None = None, star
     results.predictions = predict_step(objective, fit, posterior, previous=results.predictions)
     if renderer is not None:
         results.report = timed(timings, "report", lambda: renderer.write_report(
-            out, for_report(results, out), invented=invented, formats=formats, command=outputs.command_line(out)))
+            out, for_report(results, out), invented=invented or says_invented(model), formats=formats,
+            command=outputs.command_line(out)))
         say("report: " + ", ".join(str(p) for p in results.report.values()))
     outputs.save_timings(out, timings)
     return results
@@ -240,6 +241,12 @@ class ShownPath(os.PathLike):
 
     def __repr__(self) -> str:
         return self.shown
+
+
+def says_invented(model: Any) -> bool:
+    """True when the model file's description starts with "invented" (the demo, the ``new --example``
+    campaign): its report is labelled as based on invented data by every path that writes one."""
+    return str(getattr(model, "description", "") or "").strip().lower().startswith("invented")
 
 
 def for_report(results: Results, out: Path) -> Results:

@@ -221,11 +221,6 @@ def _store_curves(job, folder: Path, campaign: Path, feedback, *, objective=None
     feedback("curves", 1, 1)
 
 
-def _invented(model) -> bool:
-    """Label the report as invented when the model says so (the demo), as ``speciakin report`` does."""
-    return str(getattr(model, "description", "")).lower().startswith("invented")
-
-
 # ------------------------------------------------------------------ the kinds
 def fit_work(job, campaign: Path, feedback) -> str:
     """check -> fit (with its figures) -> window when the campaign has a process file."""
@@ -328,8 +323,9 @@ def report_work(job, campaign: Path, feedback) -> str:
                                     process=None if inputs.process is None else str(inputs.process))
     with _recorded(job, results.inputs, feedback, built_on=source) as rec:
         feedback("report", 0, 1)
-        paths = write_report(rec.folder, pipeline.for_report(results, rec.folder), invented=_invented(results.model),
-                             formats=job.settings["formats"], command=rec.command)
+        paths = write_report(rec.folder, pipeline.for_report(results, rec.folder),
+                             invented=pipeline.says_invented(results.model), formats=job.settings["formats"],
+                             command=rec.command)
         feedback("report", 1, 1)
         _store_curves(job, rec.folder, campaign, feedback, predictions=results.predictions)
     return "report: " + ", ".join(p.name for p in paths.values()) + (
@@ -339,16 +335,14 @@ def report_work(job, campaign: Path, feedback) -> str:
 def run_work(job, campaign: Path, feedback) -> str:
     """The whole chain: check -> fit -> posterior -> window -> report (:func:`speciakin.pipeline.run_all`)."""
     from speciakin import pipeline
-    from speciakin.chemistry.modelfile import load_model
     from speciakin.report import results as renderer
 
     s = job.settings
     inputs = pipeline.resolve_inputs(campaign)
-    invented = _invented(load_model(inputs.model))
     with _recorded(job, inputs, feedback) as rec:
         results = pipeline.run_all(inputs, rec.folder, renderer=renderer, starts=s["starts"], profiles=s["profiles"],
                                    n_steps=s["steps"], n_walkers=s["walkers"], max_steps=s["cap"], draws=s["draws"],
-                                   invented=invented, formats=s["formats"], progress=feedback, cancel=job.cancel,
+                                   formats=s["formats"], progress=feedback, cancel=job.cancel,
                                    on_step=lambda name: feedback(name, 0, 0))
         _store_curves(job, rec.folder, campaign, feedback, predictions=results.predictions,
                       objective=results.objective)
