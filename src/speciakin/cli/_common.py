@@ -29,13 +29,18 @@ def new_file(path: str | os.PathLike) -> Path:
     return p
 
 
+def _taken(p: Path) -> bool:
+    """True when ``p`` cannot serve as a new output folder: a file, or a folder holding files."""
+    return p.exists() and (not p.is_dir() or any(p.iterdir()))
+
+
 def refuse_filled_dir(path: str | os.PathLike, expected: str = "a new or empty folder for --out") -> Path:
     """``path`` when it is a new or an empty folder; a file, or a folder holding files, is refused
     (nothing is overwritten; ``expected`` says what to give instead)."""
     p = Path(path)
     if p.exists() and not p.is_dir():
         raise InputError("the output path is a file", Location(file=str(p)), expected="a new or empty folder")
-    if p.is_dir() and any(p.iterdir()):
+    if _taken(p):
         raise InputError("the output folder is not empty; nothing is overwritten", Location(file=str(p)),
                          expected=expected)
     return p
@@ -51,7 +56,7 @@ def next_free_dir(path: str | os.PathLike) -> Path:
     output folder of a command run again: the earlier files stay)."""
     base = Path(path)
     candidate, k = base, 1
-    while candidate.exists() and (not candidate.is_dir() or any(candidate.iterdir())):
+    while _taken(candidate):
         k += 1
         candidate = base.with_name(f"{base.name}-{k}")
     return output_dir(candidate)

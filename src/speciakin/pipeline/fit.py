@@ -17,6 +17,7 @@ from typing import Any, Callable
 import numpy as np
 
 from speciakin._json import dumps, format_tag
+from speciakin.decision.gates import CHI_SQUARE_QUANTILE
 from speciakin.errors import InputError, Problem
 from speciakin.estimation.leastsq import fit_least_squares
 from speciakin.estimation.profile import profile_all
@@ -251,9 +252,8 @@ def check_start_values(objective: CampaignObjective) -> None:
 
 
 #: A fit's chi-square below this quantile of the chi-square distribution (with the fit's degrees of
-#: freedom) says the stated errors are too large (the same 0.1 % as the upper limit of the error-model
-#: gate, ``decision.gates.CHI_SQUARE_QUANTILE``, on the other side).
-LOW_CHI_SQUARE_QUANTILE = 0.001
+#: freedom) says the stated errors are too large: the error-model gate's upper limit mirrored (0.1 %).
+LOW_CHI_SQUARE_QUANTILE = 1.0 - CHI_SQUARE_QUANTILE
 
 
 def overstated_errors_warning(chisqr: float, dof: int) -> str | None:
