@@ -30,7 +30,13 @@ _MIN, _ML, _MMOL = 60.0, 1e-3, 1e-3
 _COMPOUNDS = (("KV-5113", "SUB", 1.0), ("N-aryl amide", "ARYL_AMIDE", 1.2), ("N-alkyl amide", "ALKYL_AMIDE", 1.1))
 _SAMPLES_MIN = (5, 10, 20, 30, 45, 60)
 _SET_POINTS = (4.5, 6.0, 7.5)
-_HPLC_SD = (0.1, 0.02)  # absolute [area%], relative: common practice for main peaks (1-2 %)
+#: HPLC noise of each peak before the area% of an injection are closed to 100 %: absolute [area%]
+#: and relative (common practice for main peaks: 1-2 %), as the model file's error_model states it.
+_HPLC_SD = (0.1, 0.02)
+#: Titrant-log noise: absolute [mL of the 1 M titrant] and relative, as the model file's error_model
+#: states them (titrant_absolute = 3e-6 mol, titrant_relative = 0.005), so the fit finds the scatter
+#: it was told to expect.
+_TITRANT_SD = (0.003, 0.005)
 _LOQ = 0.05  # [area%]
 
 
@@ -98,7 +104,9 @@ def example_campaign(model, seed: int = SEED) -> Campaign:
         logs = simulate(compiled, run, times=log_t, q=q)
         rows = np.zeros(log_t.size, np.int64)
         ph = np.round(run.ph.setpoint + rng.normal(0.0, 0.015, log_t.size), 2)
-        volume_ml = np.maximum(np.round(logs.titrant / 1.0 / _ML + rng.normal(0.0, 0.003, log_t.size), 3), 0.0)
+        volume_ml = logs.titrant / 1.0 / _ML
+        volume_ml += rng.normal(0.0, 1.0, log_t.size) * np.hypot(_TITRANT_SD[0], _TITRANT_SD[1] * volume_ml)
+        volume_ml = np.maximum(np.round(volume_ml, 3), 0.0)
         temp = TimeSeries(log_t.copy(), np.full(log_t.size, 298.15), rows)  # 25.0 C throughout
         out.append(CampaignRun(run, hplc, TitrantLog(log_t.copy(), np.full(log_t.size, np.nan), rows,
                                                       volume_ml * _ML),

@@ -158,7 +158,7 @@ class GateInputs:
     process: Mapping[str, Any] | None = None
     runs: Mapping[str, Sequence[Any]] | None = None
     chi_square: float | None = None
-    degrees_of_freedom: int | None = None
+    degrees_of_freedom: float | None = None
     level: float | None = None
     mc_confidence: float | None = None
 
@@ -352,7 +352,7 @@ def error_model_gate(x: GateInputs) -> GateVerdict:
     name = "error model"
     if x.chi_square is None or not x.degrees_of_freedom or x.degrees_of_freedom < 1:
         return GateVerdict(name, NOT_CHECKED, ["no fit chi-square was given"])
-    chi2, dof = float(x.chi_square), int(x.degrees_of_freedom)
+    chi2, dof = float(x.chi_square), float(x.degrees_of_freedom)
     reduced = chi2 / dof
     limit = float(stats.chi2.ppf(CHI_SQUARE_QUANTILE, dof))
     figures = {"chi_square": chi2, "degrees_of_freedom": dof, "reduced_chi_square": reduced,

@@ -152,7 +152,7 @@ def campaign_gate_inputs(objective: Any, process: Any, result: Any, draws: np.nd
     core = getattr(fit, "fit", None)
     if core is not None and getattr(core, "chisqr", None) is not None:
         inputs.chi_square = float(core.chisqr)
-        inputs.degrees_of_freedom = int(core.degrees_of_freedom)
+        inputs.degrees_of_freedom = float(core.degrees_of_freedom)
     if fit is not None and outcome_fn is not None and list(getattr(fit, "names", [])) == inputs.parameter_names:
         inputs.open_profiles = open_profile_shifts(outcome_fn, fit, result.windows, result.specifications,
                                                    result.outcome_names)

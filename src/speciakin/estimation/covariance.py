@@ -43,7 +43,7 @@ class CovarianceEstimate:
 
 
 def covariance_from_jacobian(jacobian: np.ndarray, chisqr: float, n_residuals: int, *,
-                             scale_by_residual_variance: bool = True,
+                             scale_by_residual_variance: bool = True, dof_reduction: float = 0.0,
                              relative_rank_tolerance: float | None = None) -> CovarianceEstimate:
     """Asymptotic covariance ``s^2 (J^T J)^-1`` computed through an SVD.
 
@@ -66,6 +66,10 @@ def covariance_from_jacobian(jacobian: np.ndarray, chisqr: float, n_residuals: i
         Multiply by ``s^2 = chi2 / (n - p)`` (residuals with an unknown common
         scale, the usual case and NIST's convention).  Set False when the
         residuals are divided by known standard deviations.
+    dof_reduction
+        Degrees of freedom the data's structure takes beyond the parameters
+        (for example HPLC samples whose area% sum to 100; may be fractional):
+        ``s^2 = chi2 / (n - dof_reduction - p)``.
 
     References
     ----------
@@ -76,7 +80,7 @@ def covariance_from_jacobian(jacobian: np.ndarray, chisqr: float, n_residuals: i
     """
     jac = np.asarray(jacobian, dtype=float)
     n, p = jac.shape
-    dof = n - p
+    dof = n - dof_reduction - p
     s2 = chisqr / dof if (scale_by_residual_variance and dof > 0) else (np.nan if scale_by_residual_variance else 1.0)
     norms = np.linalg.norm(jac, axis=0)
     zero_column = norms == 0.0

@@ -105,7 +105,8 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
                       progress: Callable[[int, int, float], None] | None = None,
                       method: str = "least_squares", max_evaluations: int | None = None,
                       tolerance: float = 1e-12, groups: Sequence | None = None, level: float = 0.95,
-                      scale_by_residual_variance: bool = True) -> FitResult:
+                      scale_by_residual_variance: bool = True, dof_reduction: float = 0.0,
+                      one_sided: np.ndarray | None = None) -> FitResult:
     """Fit parameters by multistart nonlinear least squares.
 
     Parameters
@@ -141,6 +142,20 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
     scale_by_residual_variance
         Scale the covariance by ``s^2 = chi2/(n-p)`` (True) or treat the
         residuals as already divided by known standard deviations (False).
+    dof_reduction
+        Chi-square that ``n`` residuals would carry in expectation under the
+        stated errors but these data do not, beyond the ``p`` parameters (for
+        HPLC samples whose area% are closed to 100 %, the model's area% of a
+        sample also sum to 100, so its residuals sum to a constant the data fix;
+        ``pipeline.objective.closed_samples``); may be fractional.  ``dof = n -
+        dof_reduction - p`` in the reduced chi-square, the covariance scale,
+        the t intervals and the profiles' threshold.
+    one_sided
+        Mask of residuals that are zero while the model stays on the allowed
+        side (values reported below the LOQ: ``max(model - LOQ, 0) / sigma``).
+        Those that are zero at the optimum carry neither chi-square nor a
+        degree of freedom and are left out of ``n`` in ``dof`` (the count is
+        ``FitResult.n_inactive``).
 
     Returns
     -------
@@ -176,8 +191,16 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
     n, p = first.size, int(vary_mask.sum())
     if n <= p:
         raise InputError("fewer residuals than varying parameters", Location(key="residual"), n, f"more than {p}")
+    if not (dof_reduction < n - p):
+        raise InputError("the data's structure leaves no degree of freedom", Location(key="dof_reduction"),
+                         dof_reduction, f"below {n - p} ({n} residuals, {p} varying parameters)")
     if groups is not None and len(groups) != n:
         raise InputError("one group label per residual is needed", Location(key="groups"), len(groups), str(n))
+    if one_sided is not None:
+        one_sided = np.asarray(one_sided, dtype=bool)
+        if one_sided.shape != (n,):
+            raise InputError("one one-sided flag per residual is needed", Location(key="one_sided"),
+                             one_sided.size, str(n))
     start_matrix = _resolve_starts(starts, specs, rng)
 
     records: list[StartRecord] = []
@@ -211,7 +234,7 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
         # never as a success (a stationary point it reaches may be a wrong local minimum)
         best = min(ended, key=lambda k: fits[k].chisqr)
         result = _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, groups, level,
-                           scale_by_residual_variance)
+                           scale_by_residual_variance, dof_reduction, one_sided)
         text = (f"no start converged ({len(records)} tried): " + "; ".join(messages[:5])
                 + f"; the estimates are those of the lowest chi-square reached (start {best}) and are doubtful: "
                 "try more starts")
@@ -225,20 +248,22 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
     if isolated:
         best = min(isolated, key=lambda k: fits[k].chisqr)
     return _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, groups, level,
-                     scale_by_residual_variance)
+                     scale_by_residual_variance, dof_reduction, one_sided)
 
 
 def _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, groups, level,
-              scale_by_residual_variance) -> FitResult:
+              scale_by_residual_variance, dof_reduction=0.0, one_sided=None) -> FitResult:
     fit = polish(counted, specs, fits[best], vary_mask, jacobian, richardson=True,
                  iterations=FINAL_POLISH_ITERATIONS)
     x, r = fit.values, fit.residual
     n, p = r.size, int(vary_mask.sum())
-    dof = n - p
+    inactive = int(np.count_nonzero(one_sided & (r == 0.0))) if one_sided is not None else 0
+    dof = max(n - inactive - dof_reduction - p, 1.0)
     chisqr = fit.chisqr
     columns = np.flatnonzero(vary_mask)
     jac = evaluate_jacobian(jacobian, counted, x, columns, richardson=True, f0=r)
-    cov = covariance_from_jacobian(jac, chisqr, n, scale_by_residual_variance=scale_by_residual_variance)
+    cov = covariance_from_jacobian(jac, chisqr, n, scale_by_residual_variance=scale_by_residual_variance,
+                                   dof_reduction=n - p - dof)
     free = free_columns(specs, x, vary_mask)
     sel = np.isin(columns, free)
     cosine = gradient_cosine(jac[:, sel], r) if sel.any() else 0.0
@@ -325,7 +350,9 @@ def _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, 
         parameters=estimates, parameter_specs=list(specs), varying_names=names, chisqr=float(chisqr),
         reduced_chisqr=float(chisqr / dof), aic=akaike_information_criterion(chisqr, n, p) if chisqr > 0 else -math.inf,
         bic=bayesian_information_criterion(chisqr, n, p) if chisqr > 0 else -math.inf, n_residuals=n,
-        n_varying=p, degrees_of_freedom=dof, residual_standard_deviation=float(math.sqrt(chisqr / dof)),
+        n_varying=p, degrees_of_freedom=float(dof), dof_reduction=float(dof_reduction),
+        n_inactive=inactive,
+        residual_standard_deviation=float(math.sqrt(chisqr / dof)),
         group_residual_sd=group_residual_standard_deviation(r, groups), covariance=cov.covariance,
         correlation=cov.correlation, rank=cov.rank, condition_number=cov.condition_number, singular=cov.singular,
         gradient_cosine=cosine, success=success, message=message, method=method, jacobian_method=jac_name,

@@ -168,7 +168,7 @@ class FitResult:
     bic: float
     n_residuals: int
     n_varying: int
-    degrees_of_freedom: int
+    degrees_of_freedom: float
     residual_standard_deviation: float
     group_residual_sd: dict[str, dict[str, float]]
     covariance: np.ndarray
@@ -188,6 +188,10 @@ class FitResult:
     starts: list[StartRecord]
     residuals: np.ndarray
     warnings: list[str] = field(default_factory=list)
+    #: chi-square expectation the data's structure takes beyond the parameters (closed area% samples)
+    dof_reduction: float = 0.0
+    #: one-sided residuals (values below the LOQ) that are zero at the optimum
+    n_inactive: int = 0
 
     # -- convenience -------------------------------------------------------
     @property
@@ -231,7 +235,7 @@ class FitResult:
                  f"success: {'yes' if self.success else 'NO'} ({self.message})",
                  f"method: {self.method}; Jacobian: {self.jacobian_method}; evaluations: {self.n_evaluations}",
                  f"residuals n = {self.n_residuals}; varying parameters p = {self.n_varying}; "
-                 f"degrees of freedom = {self.degrees_of_freedom}",
+                 f"degrees of freedom = {self.degrees_of_freedom:.6g}",
                  f"chi-square = {_fmt(self.chisqr, 10)}; reduced chi-square = {_fmt(self.reduced_chisqr, 6)}",
                  f"residual standard deviation = {_fmt(self.residual_standard_deviation, 6)}",
                  f"AIC = n ln(chi2/n) + 2p = {_fmt(self.aic, 8)}; BIC = n ln(chi2/n) + ln(n) p = {_fmt(self.bic, 8)}",

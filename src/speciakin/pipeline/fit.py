@@ -122,7 +122,7 @@ class CampaignFitResult:
         f = self.fit
         lines += ["", "Fit statistics", "--------------",
                   f"observations: {f.n_residuals}   fitted parameters: {f.n_varying}   "
-                  f"degrees of freedom: {f.degrees_of_freedom}",
+                  f"degrees of freedom: {f.degrees_of_freedom:.6g}" + _closed_words(f, objective_closed(self)),
                   f"chi-square: {f.chisqr:.6g}   reduced chi-square: {f.reduced_chisqr:.4g}",
                   f"AIC: {f.aic:.6g}   BIC: {f.bic:.6g}   converged: {'yes' if f.success else 'NO'}", "",
                   "Parameters", "----------",
@@ -164,6 +164,8 @@ class CampaignFitResult:
             "statistics": {"chi_square": f.chisqr, "reduced_chi_square": f.reduced_chisqr, "aic": f.aic,
                            "bic": f.bic, "n_observations": f.n_residuals, "n_parameters": f.n_varying,
                            "degrees_of_freedom": f.degrees_of_freedom,
+                           "closed_samples": objective_closed(self), "closure_deficit": f.dof_reduction,
+                           "inactive_censored": f.n_inactive,
                            "residual_standard_deviation": f.residual_standard_deviation,
                            "converged": f.success, "message": f.message,
                            "jacobian": f.jacobian_method, "condition_number": f.condition_number},
@@ -256,6 +258,23 @@ def check_start_values(objective: CampaignObjective) -> None:
 LOW_CHI_SQUARE_QUANTILE = 1.0 - CHI_SQUARE_QUANTILE
 
 
+def objective_closed(result) -> int:
+    """Closed area% samples of a campaign fit's objective (0 without one)."""
+    return int((getattr(result, "objective", None) or {}).get("closed_samples", 0) or 0)
+
+
+def _closed_words(f: FitResult, closed: int) -> str:
+    """The note beside the degrees of freedom on what they leave out (closed samples, censored values)."""
+    parts = []
+    if closed:
+        parts.append(f"{closed} HPLC sample{'s' if closed != 1 else ''} with area% summing to 100: "
+                     f"{f.dof_reduction:.3g} fewer")
+    if f.n_inactive:
+        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} below the LOQ that the model "
+                     "also keeps below it: none")
+    return f" ({'; '.join(parts)})" if parts else ""
+
+
 def overstated_errors_warning(chisqr: float, dof: int) -> str | None:
     """The warning for data that scatter much less than the stated error model (None when they do not).
 
@@ -317,7 +336,8 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
     if progress is not None and isinstance(n_starts, int):
         progress("starts", 0, n_starts)
     fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=objective.jacobian,
-                            starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups))
+                            starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups),
+                            dof_reduction=objective.closure_deficit, one_sided=objective.one_sided)
     t_fit = time.perf_counter() - t0
     mapping = dict(zip(objective.keys, objective.names))
     warnings = [_rename(w, mapping) for w in fit.warnings]
@@ -325,7 +345,7 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         if stats["count"] >= 3 and stats["rms"] > MISFIT_RMS:
             warnings.append(f"{label}: residuals are {stats['rms']:.1f} times the stated measurement error; "
                             "the model (or the error model) does not describe these data well")
-    low = overstated_errors_warning(fit.chisqr, fit.n_residuals - fit.n_varying)
+    low = overstated_errors_warning(fit.chisqr, fit.degrees_of_freedom)
     if low:
         warnings.append(low)
     prof: dict[str, Profile] = {}

@@ -50,6 +50,7 @@ from speciakin.chemistry.model import Model, Prior, Quantity, TemperatureProfile
 from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
+from speciakin.pipeline.closure import closed_samples
 from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
 from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
@@ -301,6 +302,10 @@ class CampaignObjective:
         self.t_sigma = sig
         self.n_hplc = int(self.h_obs.size)
         self.n_titrant = int(self.t_obs.size)
+        self.closed_samples, self.closure_deficit = closed_samples(self.h_sample, self.n_samples, self.h_obs,
+                                                                   self.h_area, self.h_cens, self.h_sigma)
+        #: residuals that are zero while the model stays below the LOQ (the values reported below it)
+        self.one_sided = np.concatenate([self.h_cens, np.zeros(self.n_titrant, bool)])
         self.groups = np.array([f"HPLC {self.run_names[r]}" for r in self.h_run]
                                + [f"titrant {self.run_names[r]}" for r in self.t_run], dtype=object)
 
@@ -488,6 +493,8 @@ class CampaignObjective:
             "conversion": ("area% of each compound = 100 n_i RRF_i / sum_j n_j RRF_j over the compounds of "
                            "the sample" if self.campaign.basis in ("area_percent", "area", "mixed")
                            else "concentrations compared as n_i / V"),
+            "closed_samples": self.closed_samples, "closure_deficit": self.closure_deficit,
             "log_thinning": dict(self.thinning) or None, "log_readings": list(self.log_readings),
             "flat_temperature_band_K": FLAT_TEMPERATURE_BAND,
         }
+

@@ -1,0 +1,82 @@
+"""Area% samples closed to 100 %: their count and the chi-square they do not carry."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from speciakin.estimation.leastsq import fit_least_squares
+from speciakin.pipeline.closure import CLOSURE_TOLERANCE, closed_samples
+
+
+def _one_sample(y, sigma, area=True, censored=False):
+    k = len(y)
+    return closed_samples(np.zeros(k, np.int64), 1, np.asarray(y, float), np.full(k, area),
+                          np.full(k, censored), np.asarray(sigma, float))
+
+
+def test_equal_parts_and_errors_lose_one_degree_of_freedom():
+    # A composition of K parts has K - 1 degrees of freedom (Aitchison 1986, ch. 2); with equal
+    # fractions and equal errors the closing is an orthogonal projection of rank K - 1, whose
+    # weighted chi-square has expectation K - 1 (Cochran's theorem).
+    for k in (1, 2, 3, 5):
+        n, deficit = _one_sample(np.full(k, 100.0 / k), np.full(k, 0.7))
+        assert n == 1
+        assert deficit == pytest.approx(1.0, rel=1e-12)
+
+
+def test_only_complete_area_samples_summing_to_100_count():
+    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4])[0] == 1
+    # rounding of each value within the tolerance still counts; a missing peak's share does not
+    assert _one_sample([50.0, 30.0, 20.0 + 2.9 * CLOSURE_TOLERANCE], [1.0, 0.6, 0.4])[0] == 1
+    assert _one_sample([50.0, 30.0, 19.0], [1.0, 0.6, 0.4]) == (0, 0.0)
+    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], censored=True) == (0, 0.0)
+    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], area=False) == (0, 0.0)
+    # two samples: one closed, one with a value missing (NaN)
+    sample = np.array([0, 0, 1, 1])
+    y = np.array([60.0, 40.0, 60.0, np.nan])
+    n, _ = closed_samples(sample, 2, y, np.ones(4, bool), np.zeros(4, bool), np.ones(4))
+    assert n == 1
+
+
+@pytest.mark.parametrize("fractions", [(0.5, 0.3, 0.2), (0.9, 0.05, 0.05), (0.7, 0.2, 0.06, 0.04)])
+def test_expected_chi_square_of_a_closed_sample_matches_monte_carlo(fractions):
+    # E[e^T A e] = tr(A Sigma) for e ~ N(0, Sigma) (Searle, "Linear Models", Wiley 1971, ch. 2,
+    # theorem 1): sample the errors of each peak before closing, close to 100 %, weigh by the
+    # error model's sigma, and compare the mean chi-square with K - deficit.
+    c = np.array(fractions)
+    y = 100.0 * c
+    sigma = np.hypot(0.1, 0.02 * y)  # absolute + relative error model, as in a model file
+    rng = np.random.default_rng(20261205)
+    e = rng.standard_normal((200_000, c.size)) * sigma
+    noisy = y + e
+    closed = 100.0 * noisy / noisy.sum(axis=1, keepdims=True)
+    chi2 = np.sum(((closed - y) / sigma) ** 2, axis=1)
+    n, deficit = _one_sample(y, sigma)
+    assert n == 1
+    # the expectation is first order in the errors (1-2 % of the values here): agreement to 1 %
+    assert np.mean(chi2) == pytest.approx(c.size - deficit, rel=0.01)
+
+
+def test_least_squares_takes_the_reduction_and_inactive_one_sided_residuals_out():
+    # a straight line through 20 points plus two one-sided residuals (values below a limit)
+    # that stay zero at the optimum
+    x = np.linspace(0.0, 1.0, 20)
+    rng = np.random.default_rng(3)
+    y = 1.0 + 2.0 * x + 0.1 * rng.standard_normal(x.size)
+
+    def residual(v):
+        line = (y - v[0] - v[1] * x) / 0.1
+        return np.concatenate([line, np.maximum(v[0] - 10.0, 0.0) * np.ones(2)])
+
+    params = [{"name": "a", "value": 0.5}, {"name": "b", "value": 1.0}]
+    plain = fit_least_squares(residual, params, starts=1)
+    assert plain.degrees_of_freedom == 22 - 2
+    reduced = fit_least_squares(residual, params, starts=1, dof_reduction=3.5,
+                                one_sided=np.r_[np.zeros(20, bool), np.ones(2, bool)])
+    assert reduced.n_inactive == 2
+    assert reduced.degrees_of_freedom == pytest.approx(22 - 2 - 3.5 - 2)
+    assert reduced.reduced_chisqr == pytest.approx(reduced.chisqr / reduced.degrees_of_freedom)
+    # the covariance is scaled by chi2/dof: standard errors grow by sqrt(20 / 14.5)
+    assert reduced.parameters[0].standard_error == pytest.approx(
+        plain.parameters[0].standard_error * np.sqrt(20 / 14.5), rel=1e-6)
