@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+
+import pytest
 import tomllib
 
 from speciakin.cli.main import main
@@ -140,6 +142,14 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     window = json.loads((result / "window.json").read_text())
     assert QUICK_NOTE in fit["warnings"]
     assert window["status"] in ("provisional", "not established") and window["status_reasons"][0] == QUICK_NOTE
+    # the example's model file states the errors its data were simulated with, so its fit does not
+    # say they look too large; its closed area% samples and the values below the LOQ are taken out
+    # of the degrees of freedom (pipeline.closure)
+    assert not any("look too large" in w for w in fit["warnings"])
+    stats = fit["statistics"]
+    assert stats["closed_samples"] > 0 and stats["inactive_censored"] > 0
+    assert stats["degrees_of_freedom"] == pytest.approx(
+        stats["n_observations"] - stats["inactive_censored"] - stats["closure_deficit"] - stats["n_parameters"])
     assert "PROVISIONAL" in (result / "window.txt").read_text()
 
 

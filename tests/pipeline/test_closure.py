@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from speciakin.estimation.leastsq import fit_least_squares
-from speciakin.pipeline.closure import CLOSURE_TOLERANCE, closed_samples
+from speciakin.pipeline.closure import closed_samples
 
 
 def _one_sample(y, sigma, area=True, censored=False):
@@ -27,9 +27,18 @@ def test_equal_parts_and_errors_lose_one_degree_of_freedom():
 
 def test_only_complete_area_samples_summing_to_100_count():
     assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4])[0] == 1
-    # rounding of each value within the tolerance still counts; a missing peak's share does not
-    assert _one_sample([50.0, 30.0, 20.0 + 2.9 * CLOSURE_TOLERANCE], [1.0, 0.6, 0.4])[0] == 1
-    assert _one_sample([50.0, 30.0, 19.0], [1.0, 0.6, 0.4]) == (0, 0.0)
+    # values to two decimals may miss 100 by 0.005 each, to one decimal by 0.05 each
+    assert _one_sample([50.01, 30.0, 19.98], [1.0, 0.6, 0.4])[0] == 1
+    assert _one_sample([50.11, 30.0, 19.98], [1.0, 0.6, 0.4]) == (0, 0.0)
+    assert _one_sample([50.1, 30.1, 19.9], [1.0, 0.6, 0.4])[0] == 1
+    assert _one_sample([50.1, 30.2, 19.9], [1.0, 0.6, 0.4]) == (0, 0.0)
+    # unrounded values that only happen to sum to about 100 (independent noise, not closed)
+    assert _one_sample([50.0123456, 30.0054321, 19.9876543], [1.0, 0.6, 0.4]) == (0, 0.0)
+    # peak areas turned into area% by the objective sum to 100 up to rounding of the division
+    areas = np.array([123.4, 56.7, 8.9])
+    assert _one_sample(100.0 * areas / areas.sum(), [1.0, 0.6, 0.4])[0] == 1
+    # a missing peak's share, a value below the LOQ, a concentration: not closed
+    assert _one_sample([50.5, 30.25, 18.25], [1.0, 0.6, 0.4]) == (0, 0.0)
     assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], censored=True) == (0, 0.0)
     assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], area=False) == (0, 0.0)
     # two samples: one closed, one with a value missing (NaN)

@@ -497,3 +497,17 @@ def test_fit_figure_set_names_and_png(setup):
     expected = {f"run_{r}" for r in objective.run_names} | {f"titrant_{r}" for r in objective.run_names}
     assert expected | {"residuals", "profiles", "correlation"} == set(figures)
     assert all(png.startswith(b"\x89PNG\r\n\x1a\n") for png in figures.values())
+
+
+def test_parameters_state_the_degrees_of_freedom_and_what_they_leave_out(rendered, setup):
+    _, paths, _ = rendered
+    fit = setup[3]
+    flat = re.sub(r"\s+", " ", pdf_text(paths["pdf"]))
+    st = fit.fit
+    assert f"Degrees of freedom {st.degrees_of_freedom:.4g}" in flat
+    # the reduced chi-square a reader can redo from the two numbers beside it
+    assert st.reduced_chisqr == pytest.approx(st.chisqr / st.degrees_of_freedom)
+    said = "below the LOQ that the model also keeps below it" in flat
+    assert said == (st.n_inactive > 0)
+    if said:
+        assert f"less {st.n_inactive} value" in flat

@@ -12,18 +12,34 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["CLOSURE_TOLERANCE", "closed_samples"]
+__all__ = ["REPORTING_STEPS", "SUM_FLOOR", "reporting_step", "closed_samples"]
 
-#: Largest |sum - 100| [area% per value] for a sample's area% to count as closed to 100 %
-#: (values rounded to one decimal leave at most 0.05 each, to two decimals 0.005).
-CLOSURE_TOLERANCE = 0.05
+#: Decimal steps [area%] a reported value may be rounded to, coarsest first.
+REPORTING_STEPS = (1.0, 0.1, 0.01, 0.001, 0.0001)
+#: Smallest allowance for |sum - 100| [area%] (values not rounded at all, or areas turned into area%).
+SUM_FLOOR = 1e-7
+
+
+def reporting_step(values: np.ndarray) -> np.ndarray:
+    """The coarsest of :data:`REPORTING_STEPS` each value is a multiple of (0 when none)."""
+    step = np.zeros(values.shape)
+    for d in REPORTING_STEPS[::-1]:
+        q = values / d
+        step = np.where(np.abs(q - np.round(q)) <= 1e-6, d, step)
+    return step
+
+
 def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, area: np.ndarray,
                    censored: np.ndarray, sigma: np.ndarray) -> tuple[int, float]:
     """HPLC samples whose area% are closed to 100 %, and the chi-square they do not carry.
 
     A sample counts when every value of it is an area% (peak areas are turned
     into area% per sample before this), none is below the LOQ, and the values
-    sum to 100 within :data:`CLOSURE_TOLERANCE` per value.  The model's area%
+    sum to 100 within what their rounding allows: half the sample's reporting
+    step per value (the finest of :func:`reporting_step` over its values; values
+    given to two decimals: 0.005 each), at least :data:`SUM_FLOOR`.  So area%
+    reported as the lab's software closes them count, and values that only
+    happen to sum to about 100 do not.  The model's area%
     of such a sample also sum to 100 (the observation model above), so its
     residuals sum to a constant the data fix: a composition of K parts has
     K - 1 degrees of freedom (Aitchison, J., "The Statistical Analysis of
@@ -44,8 +60,12 @@ def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, are
     not_area = np.bincount(sample, weights=(~area | censored).astype(float), minlength=n_samples)
     y = np.where(np.isfinite(observed), observed, np.nan)
     total = np.bincount(sample, weights=y, minlength=n_samples)
+    step = np.full(n_samples, np.inf)
+    finite = np.isfinite(y)
+    np.minimum.at(step, sample[finite], reporting_step(y[finite]))
+    allowed = np.maximum(0.5 * step * n, SUM_FLOOR)
     with np.errstate(invalid="ignore"):
-        closed = (n > 0) & (not_area == 0) & (np.abs(total - 100.0) <= CLOSURE_TOLERANCE * n)
+        closed = (n > 0) & (not_area == 0) & (np.abs(total - 100.0) <= allowed)
     if not closed.any():
         return 0, 0.0
     d = sigma ** 2

@@ -122,7 +122,7 @@ class CampaignFitResult:
         f = self.fit
         lines += ["", "Fit statistics", "--------------",
                   f"observations: {f.n_residuals}   fitted parameters: {f.n_varying}   "
-                  f"degrees of freedom: {f.degrees_of_freedom:.6g}" + _closed_words(f, objective_closed(self)),
+                  f"degrees of freedom: {f.degrees_of_freedom:.6g}" + degrees_of_freedom_note(f, objective_closed(self)),
                   f"chi-square: {f.chisqr:.6g}   reduced chi-square: {f.reduced_chisqr:.4g}",
                   f"AIC: {f.aic:.6g}   BIC: {f.bic:.6g}   converged: {'yes' if f.success else 'NO'}", "",
                   "Parameters", "----------",
@@ -263,8 +263,9 @@ def objective_closed(result) -> int:
     return int((getattr(result, "objective", None) or {}).get("closed_samples", 0) or 0)
 
 
-def _closed_words(f: FitResult, closed: int) -> str:
-    """The note beside the degrees of freedom on what they leave out (closed samples, censored values)."""
+def degrees_of_freedom_note(f: FitResult, closed: int) -> str:
+    """The note beside the degrees of freedom on what they leave out (closed samples, censored values);
+    empty when nothing is left out."""
     parts = []
     if closed:
         parts.append(f"{closed} HPLC sample{'s' if closed != 1 else ''} with area% summing to 100: "

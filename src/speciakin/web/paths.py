@@ -16,7 +16,7 @@ from speciakin._io import atomic_write_bytes
 from speciakin.errors import InputError, Location
 
 __all__ = ["inside_root", "campaign_folders", "result_folders", "safe_upload_name", "store_workbook",
-           "new_result_folder", "campaign_inputs", "MAX_UPLOAD_BYTES", "RESULTS_FOLDER", "PREVIOUS_WORKBOOKS"]
+           "campaign_inputs", "MAX_UPLOAD_BYTES", "RESULTS_FOLDER", "PREVIOUS_WORKBOOKS"]
 
 #: Largest workbook accepted by the upload [bytes] (a campaign workbook is well under 1 MB).
 MAX_UPLOAD_BYTES = 20 * 1024 * 1024
@@ -88,21 +88,6 @@ def result_folders(campaign: Path) -> list[str]:
         return []
     names = [p.name for p in folder.iterdir() if p.is_dir() and (p / "fit.json").is_file()]
     return sorted(names, reverse=True)
-
-
-def new_result_folder(campaign: Path, job_id: str) -> Path:
-    """A fresh, empty folder ``results/<UTC stamp>-<job id>`` inside ``campaign``.
-
-    Raises
-    ------
-    FileExistsError
-        The folder exists already (two jobs never write into one folder).
-    """
-    stamp = time.strftime("%Y%m%d-%H%M%S", time.gmtime())
-    folder = campaign / RESULTS_FOLDER / f"{stamp}-{job_id}"
-    folder.parent.mkdir(parents=True, exist_ok=True)
-    folder.mkdir(exist_ok=False)
-    return folder
 
 
 def safe_upload_name(name: str | None) -> str:

@@ -23,6 +23,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from speciakin.pipeline.fit import objective_closed
 from speciakin.report.blocks import as_sentences
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
@@ -211,9 +212,21 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
     if fit is not None:
         st = fit.fit
         blocks.append(KeyValues([("Observations", st.n_residuals), ("Fitted parameters", st.n_varying),
+                                 ("Degrees of freedom", st.degrees_of_freedom),
                                  ("Chi-square", st.chisqr), ("Reduced chi-square", st.reduced_chisqr),
                                  ("AIC", st.aic), ("BIC", st.bic), ("Converged", bool(st.success))],
                                 number_format=".4g"))
+        closed = objective_closed(fit)
+        if closed or st.n_inactive:
+            less = []
+            if closed:
+                less.append(f"less {st.dof_reduction:.3g} for {closed} HPLC sample{'s' if closed != 1 else ''} "
+                            "whose area% sum to 100 (a closed composition has one value fewer that varies freely)")
+            if st.n_inactive:
+                less.append(f"less {st.n_inactive} value{'s' if st.n_inactive != 1 else ''} below the LOQ that "
+                            "the model also keeps below it (they add nothing to chi-square)")
+            blocks.append(Paragraph("Degrees of freedom: observations less fitted parameters, " + ", ".join(less)
+                                    + "."))
         logs = log_readings_table(fit)
         if logs is not None:
             blocks.append(logs)
