@@ -39,7 +39,7 @@ def _reason(score: CandidateScore, names: Sequence[str], has_decision: bool) -> 
         parts.append(f"mostly inform {names[best]} (its standard deviation "
                      f"{100 * score.sd_shrinkage[names[best]]:.0f} % smaller)")
     if not parts:
-        return "expected to change little: the current runs already say what this run would"
+        return "expected to change little: the current runs already tell what this run would show"
     return "expected to " + "; ".join(parts)
 
 
