@@ -89,3 +89,21 @@ def test_least_squares_takes_the_reduction_and_inactive_one_sided_residuals_out(
     # the covariance is scaled by chi2/dof: standard errors grow by sqrt(20 / 14.5)
     assert reduced.parameters[0].standard_error == pytest.approx(
         plain.parameters[0].standard_error * np.sqrt(20 / 14.5), rel=1e-6)
+
+
+def test_a_fit_saved_before_the_reduction_loads_with_nothing_left_out():
+    # fit.json of earlier versions has no dof_reduction / n_inactive in its fit_result
+    import json
+
+    from speciakin._json import json_ready
+    from speciakin.estimation.results import FitResult
+
+    x = np.linspace(0.0, 1.0, 10)
+    fit = fit_least_squares(lambda v: (1.0 + 2.0 * x + 0.01 * np.sin(7 * x) - v[0] - v[1] * x) / 0.1,
+                            [{"name": "a", "value": 0.0}, {"name": "b", "value": 0.0}], starts=1)
+    data = json.loads(json.dumps(json_ready(fit.to_dict())))
+    for key in ("dof_reduction", "n_inactive"):
+        del data[key]
+    old = FitResult.from_dict(data)
+    assert old.dof_reduction == 0.0 and old.n_inactive == 0
+    assert old.degrees_of_freedom == 8 and old.chisqr == pytest.approx(fit.chisqr)

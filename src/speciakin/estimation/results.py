@@ -12,7 +12,7 @@ array or table) reads back as NaN.  The strings ``"nan"``, ``"inf"`` and
 from __future__ import annotations
 
 import math
-from dataclasses import Field, dataclass, field, fields, replace
+from dataclasses import MISSING, Field, dataclass, field, fields, replace
 from typing import Any
 
 import numpy as np
@@ -139,11 +139,17 @@ class FitResult:
     varying_names
         Names of the varying parameters, the order of ``covariance`` rows.
     chisqr, reduced_chisqr
-        ``sum r^2`` and ``chi2 / (n - p)``.
+        ``sum r^2`` and ``chi2 / degrees_of_freedom``.
+    degrees_of_freedom, dof_reduction, n_inactive
+        ``n - n_inactive - dof_reduction - p`` (not always whole); what the
+        data's structure takes (closed area% samples) and the one-sided
+        residuals (values below the LOQ) that are zero at the optimum
+        (:func:`~speciakin.estimation.leastsq.fit_least_squares`).  A fit saved
+        before these existed loads with both 0 and its ``n - p``.
     aic, bic
         ``n ln(chi2/n) + 2p`` and ``n ln(chi2/n) + ln(n) p``.
     residual_standard_deviation
-        ``s = sqrt(chi2 / (n - p))``.
+        ``s = sqrt(chi2 / degrees_of_freedom)``.
     group_residual_sd
         ``{label: {"rms": .., "count": ..}}`` per residual group (empty if no groups).
     covariance, correlation
@@ -289,6 +295,8 @@ class FitResult:
     def from_dict(cls, data: dict[str, Any]) -> "FitResult":
         kw: dict[str, Any] = {}
         for f in fields(cls):
+            if f.name not in data and f.default is not MISSING:
+                continue  # a field added later with a default (an older fit.json)
             v = data[f.name]
             if f.name == "parameters":
                 kw[f.name] = [ParameterEstimate.from_dict(d) for d in v]
