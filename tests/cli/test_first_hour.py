@@ -147,9 +147,9 @@ def test_example_checks_and_runs_quick(tmp_path, capsys):
     # of the degrees of freedom (pipeline.closure)
     assert not any("look too large" in w for w in fit["warnings"])
     stats = fit["statistics"]
-    assert stats["closed_samples"] > 0 and stats["inactive_censored"] > 0
+    assert stats["closed_samples"] > 0 and stats["inactive_values"] > 0
     assert stats["degrees_of_freedom"] == pytest.approx(
-        stats["n_observations"] - stats["inactive_censored"] - stats["closure_deficit"] - stats["n_parameters"])
+        stats["n_observations"] - stats["inactive_values"] - stats["closure_deficit"] - stats["n_parameters"])
     assert "PROVISIONAL" in (result / "window.txt").read_text()
 
 

@@ -67,28 +67,32 @@ def test_expected_chi_square_of_a_closed_sample_matches_monte_carlo(fractions):
     assert np.mean(chi2) == pytest.approx(c.size - deficit, rel=0.01)
 
 
-def test_least_squares_takes_the_reduction_and_inactive_one_sided_residuals_out():
-    # a straight line through 20 points plus two one-sided residuals (values below a limit)
-    # that stay zero at the optimum
+def test_least_squares_takes_the_reduction_and_inactive_residuals_out():
+    # a straight line through 20 points, two one-sided residuals (values below a limit) that stay
+    # zero at the optimum, and one datum the model meets exactly whatever the parameters
     x = np.linspace(0.0, 1.0, 20)
     rng = np.random.default_rng(3)
     y = 1.0 + 2.0 * x + 0.1 * rng.standard_normal(x.size)
 
     def residual(v):
         line = (y - v[0] - v[1] * x) / 0.1
-        return np.concatenate([line, np.maximum(v[0] - 10.0, 0.0) * np.ones(2)])
+        return np.concatenate([line, np.maximum(v[0] - 10.0, 0.0) * np.ones(2), np.zeros(1)])
+
+    def plain_residual(v):
+        return (y - v[0] - v[1] * x) / 0.1
 
     params = [{"name": "a", "value": 0.5}, {"name": "b", "value": 1.0}]
-    plain = fit_least_squares(residual, params, starts=1)
-    assert plain.degrees_of_freedom == 22 - 2
+    plain = fit_least_squares(plain_residual, params, starts=1)
+    assert plain.degrees_of_freedom == 20 - 2 and plain.n_inactive == 0
     reduced = fit_least_squares(residual, params, starts=1, dof_reduction=3.5,
-                                one_sided=np.r_[np.zeros(20, bool), np.ones(2, bool)])
-    assert reduced.n_inactive == 2
-    assert reduced.degrees_of_freedom == pytest.approx(22 - 2 - 3.5 - 2)
+                                one_sided=np.r_[np.zeros(20, bool), np.ones(2, bool), False])
+    assert reduced.n_inactive == 3
+    assert reduced.degrees_of_freedom == pytest.approx(23 - 3 - 3.5 - 2)
+    assert reduced.chisqr == pytest.approx(plain.chisqr)
     assert reduced.reduced_chisqr == pytest.approx(reduced.chisqr / reduced.degrees_of_freedom)
-    # the covariance is scaled by chi2/dof: standard errors grow by sqrt(20 / 14.5)
+    # the covariance is scaled by chi2/dof: standard errors grow by sqrt(18 / 14.5)
     assert reduced.parameters[0].standard_error == pytest.approx(
-        plain.parameters[0].standard_error * np.sqrt(20 / 14.5), rel=1e-6)
+        plain.parameters[0].standard_error * np.sqrt(18 / 14.5), rel=1e-6)
 
 
 def test_a_fit_saved_before_the_reduction_loads_with_nothing_left_out():

@@ -507,7 +507,7 @@ def test_parameters_state_the_degrees_of_freedom_and_what_they_leave_out(rendere
     assert f"Degrees of freedom {st.degrees_of_freedom:.4g}" in flat
     # the reduced chi-square a reader can redo from the two numbers beside it
     assert st.reduced_chisqr == pytest.approx(st.chisqr / st.degrees_of_freedom)
-    said = "below the LOQ that the model also keeps below it" in flat
+    said = "that the model meets exactly and no parameter moves" in flat
     assert said == (st.n_inactive > 0)
     if said:
         assert f"less {st.n_inactive} value" in flat

@@ -154,8 +154,10 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
         Mask of residuals that are zero while the model stays on the allowed
         side (values reported below the LOQ: ``max(model - LOQ, 0) / sigma``).
         Those that are zero at the optimum carry neither chi-square nor a
-        degree of freedom and are left out of ``n`` in ``dof`` (the count is
-        ``FitResult.n_inactive``).
+        degree of freedom and are left out of ``n`` in ``dof``, as is every
+        residual that is zero with a zero Jacobian row (a datum the model
+        meets exactly whatever the parameters, such as a titrant reading of 0
+        before any dosing); the count is ``FitResult.n_inactive``.
 
     Returns
     -------
@@ -257,11 +259,17 @@ def _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, 
                  iterations=FINAL_POLISH_ITERATIONS)
     x, r = fit.values, fit.residual
     n, p = r.size, int(vary_mask.sum())
-    inactive = int(np.count_nonzero(one_sided & (r == 0.0))) if one_sided is not None else 0
-    dof = max(n - inactive - dof_reduction - p, 1.0)
     chisqr = fit.chisqr
     columns = np.flatnonzero(vary_mask)
     jac = evaluate_jacobian(jacobian, counted, x, columns, richardson=True, f0=r)
+    # residuals that are zero and that no parameter moves (a datum the model meets exactly by its
+    # construction, a one-sided residual on its allowed side) carry neither chi-square nor a degree
+    # of freedom
+    inactive_mask = (r == 0.0) & np.all(jac == 0.0, axis=1)
+    if one_sided is not None:
+        inactive_mask |= one_sided & (r == 0.0)
+    inactive = int(np.count_nonzero(inactive_mask))
+    dof = max(n - inactive - dof_reduction - p, 1.0)
     cov = covariance_from_jacobian(jac, chisqr, n, scale_by_residual_variance=scale_by_residual_variance,
                                    dof_reduction=n - p - dof)
     free = free_columns(specs, x, vary_mask)

@@ -165,7 +165,7 @@ class CampaignFitResult:
                            "bic": f.bic, "n_observations": f.n_residuals, "n_parameters": f.n_varying,
                            "degrees_of_freedom": f.degrees_of_freedom,
                            "closed_samples": objective_closed(self), "closure_deficit": f.dof_reduction,
-                           "inactive_censored": f.n_inactive,
+                           "inactive_values": f.n_inactive,
                            "residual_standard_deviation": f.residual_standard_deviation,
                            "converged": f.success, "message": f.message,
                            "jacobian": f.jacobian_method, "condition_number": f.condition_number},
@@ -271,8 +271,9 @@ def degrees_of_freedom_note(f: FitResult, closed: int) -> str:
         parts.append(f"{closed} HPLC sample{'s' if closed != 1 else ''} with area% summing to 100: "
                      f"{f.dof_reduction:.3g} fewer")
     if f.n_inactive:
-        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} below the LOQ that the model "
-                     "also keeps below it: none")
+        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} the model meets exactly and no "
+                     "parameter moves (below the LOQ in data and model, or a titrant reading of 0 before "
+                     "dosing): none")
     return f" ({'; '.join(parts)})" if parts else ""
 
 
