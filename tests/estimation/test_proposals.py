@@ -126,6 +126,28 @@ def test_proposal_covariance_from_fit_uses_bounds_for_open_profiles():
     assert cov is None and "stretch move" in note
 
 
+def test_proposal_covariance_has_the_width_of_the_stated_errors():
+    # the covariance and the profiles are scaled to the observed scatter (s^2 = reduced chi-square
+    # 0.25 here: the data scatter half as much as stated); the posterior uses the stated errors, so
+    # the proposal is twice as wide (Bates and Watts 1988, section 2.3: cov = s^2 (J^T J)^-1)
+    rows = [{"name": "a", "profile_interval": [-0.1, 0.1], "profile_open_below": False,
+             "profile_open_above": False, "bounds": [None, None]},
+            {"name": "b", "profile_interval": [None, 1.0], "profile_open_below": True,
+             "profile_open_above": False, "bounds": [-3.0, 4.0]}]
+    fit = _Fit(np.array([[0.04, 0.01], [0.01, 0.01]]), rows)
+    fit.fit.reduced_chisqr, fit.fit.scale_by_residual_variance = 0.25, True
+    cov, note = proposal_covariance_from_fit(fit)
+    assert note is None
+    z = stats.norm.ppf(0.975)
+    # a: the covariance's sd 0.2 / 0.5 = 0.4 beats the profile's 0.1 / z / 0.5; b: the bound's width
+    np.testing.assert_allclose(np.sqrt(np.diag(cov)), [0.4, 4.0 / (2 * z)], rtol=1e-12)
+    np.testing.assert_allclose(cov[0, 1] / np.sqrt(cov[0, 0] * cov[1, 1]), 0.5, rtol=1e-12)
+    # a closed profile wider than the covariance: its width divided by s
+    rows[0]["profile_interval"] = [-2.0, 2.0]
+    cov, _ = proposal_covariance_from_fit(fit)
+    assert np.sqrt(cov[0, 0]) == pytest.approx(2.0 / z / 0.5, rel=1e-12)
+
+
 def test_move_choice_errors():
     with pytest.raises(InputError, match="unknown proposal"):
         build_moves("hop", np.zeros(2), np.eye(2))

@@ -136,6 +136,12 @@ def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
     to the profile-likelihood intervals where the fit has them; an open
     profile end is replaced by the parameter's bound (the edge of its uniform
     prior).  Without profiles the covariance is used as it is.
+
+    The least-squares covariance and profiles are scaled to the observed
+    scatter (s^2 = the reduced chi-square), the posterior uses the stated
+    errors: so the covariance is divided by s^2 and each closed profile
+    interval's width by s, so that the proposal has the posterior's width
+    whatever the data's scatter (an open end's bound stays where it is).
     """
     try:
         raw = fit.covariance
@@ -144,17 +150,25 @@ def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
     covariance, note = usable_fit_covariance(raw, len(fit.keys))
     if covariance is None:
         return None, note
+    s2 = float(getattr(fit.fit, "reduced_chisqr", 1.0) or 1.0) if getattr(fit.fit, "scale_by_residual_variance",
+                                                                         True) else 1.0
+    if not (np.isfinite(s2) and s2 > 0.0):
+        s2 = 1.0
     lower, upper = np.full(len(fit.keys), np.nan), np.full(len(fit.keys), np.nan)
     for j, row in enumerate(fit.rows()):
         lo, hi = row["profile_interval"]
         bounds = row["bounds"]
+        closed = lo is not None and hi is not None and not row["profile_open_below"] and not row["profile_open_above"]
+        if closed:
+            centre, half = 0.5 * (lo + hi), 0.5 * (hi - lo) / np.sqrt(s2)
+            lo, hi = centre - half, centre + half
         if row["profile_open_below"]:
             lo = bounds[0]
         if row["profile_open_above"]:
             hi = bounds[1]
         lower[j] = np.nan if lo is None else lo
         upper[j] = np.nan if hi is None else hi
-    return widen_to_intervals(covariance, lower, upper, float(getattr(fit.fit, "level", 0.95) or 0.95)), None
+    return widen_to_intervals(covariance / s2, lower, upper, float(getattr(fit.fit, "level", 0.95) or 0.95)), None
 
 
 def sample_campaign(objective: CampaignObjective, start: np.ndarray, start_scale: np.ndarray, *,
