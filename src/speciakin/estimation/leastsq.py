@@ -147,7 +147,7 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
         stated errors but these data do not, beyond the ``p`` parameters (for
         HPLC samples whose area% are closed to 100 %, the model's area% of a
         sample also sum to 100, so its residuals sum to a constant the data fix;
-        ``pipeline.objective.closed_samples``); may be fractional.  ``dof = n -
+        ``pipeline.closure.closed_samples``); may be fractional.  ``dof = n -
         dof_reduction - p`` in the reduced chi-square, the covariance scale,
         the t intervals and the profiles' threshold.
     one_sided

@@ -22,15 +22,16 @@ MAX_CONSECUTIVE_FAILURES = 3
 MAX_REFINEMENTS = 6
 
 
-def profile_threshold(level: float, chisqr: float, degrees_of_freedom: int, scale: str) -> float:
+def profile_threshold(level: float, chisqr: float, degrees_of_freedom: float, scale: str) -> float:
     """Delta chi-square bounding a profile interval.
 
     ``scale="known"`` (residuals divided by known standard deviations):
     ``Delta = chi2_{1}(level)`` (3.84 at 95 %), the likelihood-ratio threshold of
     Raue et al.  ``scale="estimated"`` (common error scale estimated from the fit):
-    ``Delta = s^2 F_{1, n-p}(level)`` with ``s^2 = chi2 / (n - p)``; for a model
-    linear in its parameters this reproduces the t interval exactly
-    (``t_{n-p}^2 = F_{1, n-p}``).
+    ``Delta = s^2 F_{1, dof}(level)`` with ``s^2 = chi2 / dof`` (the fit's
+    degrees of freedom, ``n - p`` unless some residuals carry none); for a
+    model linear in its parameters this reproduces the t interval exactly
+    (``t_{dof}^2 = F_{1, dof}``).
 
     References
     ----------

@@ -142,9 +142,10 @@ class FitResult:
         ``sum r^2`` and ``chi2 / degrees_of_freedom``.
     degrees_of_freedom, dof_reduction, n_inactive
         ``n - n_inactive - dof_reduction - p`` (not always whole); what the
-        data's structure takes (closed area% samples) and the one-sided
-        residuals (values below the LOQ) that are zero at the optimum
-        (:func:`~speciakin.estimation.leastsq.fit_least_squares`).  A fit saved
+        data's structure takes (closed area% samples) and the residuals that
+        are zero at the optimum and that no parameter moves (values below the
+        LOQ that the model keeps below it, a titrant reading of 0 before
+        dosing; :func:`~speciakin.estimation.leastsq.fit_least_squares`).  A fit saved
         before these existed loads with both 0 and its ``n - p``.
     aic, bic
         ``n ln(chi2/n) + 2p`` and ``n ln(chi2/n) + ln(n) p``.
@@ -196,7 +197,7 @@ class FitResult:
     warnings: list[str] = field(default_factory=list)
     #: chi-square expectation the data's structure takes beyond the parameters (closed area% samples)
     dof_reduction: float = 0.0
-    #: one-sided residuals (values below the LOQ) that are zero at the optimum
+    #: residuals zero at the optimum that no parameter moves (they carry no degree of freedom)
     n_inactive: int = 0
 
     # -- convenience -------------------------------------------------------
