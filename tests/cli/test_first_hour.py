@@ -193,3 +193,31 @@ def test_run_of_the_invented_example_labels_its_report(tmp_path, capsys):
     assert says_invented(type("M", (), {"description": "  INVENTED demo"})())
     assert not says_invented(type("M", (), {"description": "acylation of a real substrate"})())
     assert not says_invented(type("M", (), {"description": None})())
+
+
+def test_check_counts_the_workbook_when_the_model_file_has_an_error(tmp_path, capsys):
+    # a typo in the model file used to hide the workbook's counts ("Runs: 0"); a workbook that
+    # does not import says its runs are not counted instead of 0
+    folder = tmp_path / "c"
+    assert main(["new", str(folder), "--example"]) == 0
+    model = folder / "model.toml"
+    text = model.read_text()
+    assert "products = { ALKYL_AMIDE = 1, ACID = 1 }" in text
+    model.write_text(text.replace("products = { ALKYL_AMIDE = 1, ACID = 1 }",
+                                  "products = { ALKYL_AMIDE = 1, ACIDD = 1 }"))
+    capsys.readouterr()
+    assert main(["check", str(folder)]) == 1
+    out = capsys.readouterr().out
+    assert "Runs: 3   HPLC values: 54   log readings: 279" in out
+    assert "unknown product (value 'ACIDD'" in out
+    model.write_text(text)
+    from openpyxl import load_workbook
+
+    book = load_workbook(folder / "campaign.xlsx")
+    book["HPLC results"].cell(row=6, column=2).value = -5  # a sampling time before the start
+    book.save(folder / "campaign.xlsx")
+    assert main(["check", str(folder), "--format", "json"]) == 1
+    report = json.loads(capsys.readouterr().out)
+    assert report["imported"] is False and report["counts"]["errors"] >= 1
+    assert main(["check", str(folder)]) == 1
+    assert "Runs: not counted (the workbook did not import: see the errors)" in capsys.readouterr().out

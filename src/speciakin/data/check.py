@@ -39,8 +39,8 @@ class CheckReport(ProblemList):
         Process file path, or None (the data layer does not read it; the
         command line adds its problems).
     runs, hplc_values, log_readings
-        Counts of what was imported (0 when the import failed); log readings
-        are pH, temperature and titrant readings together.
+        Counts of what was imported (0 when the import failed, ``imported``
+        False); log readings are pH, temperature and titrant readings together.
     compounds
         HPLC compound name -> model molecule, from the Compounds sheet (empty when the import failed).
     """
@@ -50,6 +50,8 @@ class CheckReport(ProblemList):
     process: str | None = None
     problems: list[Problem] = field(default_factory=list)
     runs: int = 0
+    #: True when the workbook imported (the counts are of what it holds)
+    imported: bool = False
     hplc_values: int = 0
     log_readings: int = 0
     compounds: dict[str, str] = field(default_factory=dict)
@@ -72,7 +74,8 @@ class CheckReport(ProblemList):
         lines = ["Campaign check", "==============", f"Campaign: {self.source}",
                  f"Model: {self.model or '(none)'}",
                  *([f"Process: {self.process}"] if self.process else []),
-                 f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}",
+                 (f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}"
+                  if self.imported else "Runs: not counted (the workbook did not import: see the errors)"),
                  "", "Errors", "------"]
         lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
         lines += ["", "Warnings", "--------"]
@@ -89,6 +92,7 @@ class CheckReport(ProblemList):
 
     def to_dict(self) -> dict[str, Any]:
         return {"source": self.source, "model": self.model, "process": self.process, "ok": self.ok,
+                "imported": self.imported,
                 "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
                            "hplc_values": self.hplc_values, "log_readings": self.log_readings},
                 "problems": [p.to_dict() for p in self.problems]}
@@ -110,7 +114,7 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
     CheckReport
         Every error and warning with its location.
     """
-    c = ProblemCollector()
+    c = ProblemCollector()  # the model file's problems; the workbook's are collected apart (below)
     report = CheckReport(source=str(path))
     model_obj = None
     if model is not None:
@@ -129,14 +133,19 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         else:
             model_obj = model
             report.model = getattr(model, "source", "") or getattr(model, "name", "model")
+    model_file_problems = list(c.problems)
+    # the workbook is imported on its own collector: a model file with errors does not stop it
+    c = ProblemCollector()
     try:
         campaign = import_campaign(path, c)
     except DataError as exc:
         c.problems.extend(exc.problems)
         campaign = None
+    c.problems[:0] = model_file_problems
     if campaign is not None:
         units_map = model_problems(campaign, model_obj, c) if model_obj is not None else None
         campaign_warnings(campaign, c, units_map)
+        report.imported = True
         report.runs = len(campaign.runs)
         report.compounds = {c.name: c.molecule for c in campaign.compounds}
         report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
