@@ -58,6 +58,8 @@ def test_planted_check_error_is_shown_at_its_cell(server, page, shot):
     open_campaign(page, url, "planted")
     page.wait_for_selector("#check-summary:has-text('error(s)')")
     assert "Nothing can be fitted" in page.inner_text("#check-summary")
+    # the workbook did not import: no "0 run(s)" for a workbook that holds runs
+    assert "runs not counted (the workbook did not import)" in page.inner_text("#check-summary")
     cell = page.locator("#check-table tr.problem", has_text=repr(value)).first
     cell.wait_for()
     assert cell.locator("[data-col='severity']").inner_text() == "error"

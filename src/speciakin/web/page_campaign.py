@@ -87,8 +87,9 @@ def campaign_view(state, name) -> tuple:
         report, folder = _check(state, name)
     except SpeciakinError as exc:
         return f"error: {exc}", [], [], None, empty_figure("no raw data: the campaign cannot be read"), None
-    summary = (f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {report.runs} run(s), "
-               f"{report.hplc_values} HPLC values, {report.log_readings} log readings. " + _verdict(report))
+    counts = (f"{report.runs} run(s), {report.hplc_values} HPLC values, {report.log_readings} log readings"
+              if report.imported else "runs not counted (the workbook did not import)")
+    summary = f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {counts}. " + _verdict(report)
     runs = []
     if not report.fit_errors:  # the raw data need a readable workbook and model, not the process file
         try:
