@@ -114,7 +114,7 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
     CheckReport
         Every error and warning with its location.
     """
-    c = ProblemCollector()  # the model file's problems; the workbook's are collected apart (below)
+    c = ProblemCollector()  # the model file's problems
     report = CheckReport(source=str(path))
     model_obj = None
     if model is not None:
@@ -133,9 +133,9 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         else:
             model_obj = model
             report.model = getattr(model, "source", "") or getattr(model, "name", "model")
-    model_file_problems = list(c.problems)
-    # the workbook is imported on its own collector: a model file with errors does not stop it
-    c = ProblemCollector()
+    # the workbook is imported on its own collector (a model file with errors must not stop it), after
+    # the model file's problems in the report
+    model_file_problems, c = c.problems, ProblemCollector()
     try:
         campaign = import_campaign(path, c)
     except DataError as exc:

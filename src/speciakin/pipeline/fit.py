@@ -258,6 +258,12 @@ def check_start_values(objective: CampaignObjective) -> None:
 LOW_CHI_SQUARE_QUANTILE = 1.0 - CHI_SQUARE_QUANTILE
 
 
+#: What the values a fit leaves out of its degrees of freedom are (``FitResult.n_inactive``), in words
+#: (fit.txt and the report's Parameters section; the parenthesis is closed by the caller).
+INACTIVE_WORDS = ("the model meets exactly and no parameter moves (below the LOQ in data and model, or a "
+                  "titrant reading of 0 before dosing")
+
+
 def objective_closed(result) -> int:
     """Closed area% samples of a campaign fit's objective (0 without one)."""
     return int((getattr(result, "objective", None) or {}).get("closed_samples", 0) or 0)
@@ -271,9 +277,7 @@ def degrees_of_freedom_note(f: FitResult, closed: int) -> str:
         parts.append(f"{closed} HPLC sample{'s' if closed != 1 else ''} with area% summing to 100: "
                      f"{f.dof_reduction:.3g} fewer")
     if f.n_inactive:
-        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} the model meets exactly and no "
-                     "parameter moves (below the LOQ in data and model, or a titrant reading of 0 before "
-                     "dosing): none")
+        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} {INACTIVE_WORDS}): none")
     return f" ({'; '.join(parts)})" if parts else ""
 
 

@@ -150,9 +150,8 @@ def proposal_covariance_from_fit(fit) -> tuple[np.ndarray | None, str | None]:
     covariance, note = usable_fit_covariance(raw, len(fit.keys))
     if covariance is None:
         return None, note
-    s2 = float(getattr(fit.fit, "reduced_chisqr", 1.0) or 1.0) if getattr(fit.fit, "scale_by_residual_variance",
-                                                                         True) else 1.0
-    if not (np.isfinite(s2) and s2 > 0.0):
+    s2 = float(getattr(fit.fit, "reduced_chisqr", 1.0) or 1.0)
+    if not (getattr(fit.fit, "scale_by_residual_variance", True) and np.isfinite(s2) and s2 > 0.0):
         s2 = 1.0
     lower, upper = np.full(len(fit.keys), np.nan), np.full(len(fit.keys), np.nan)
     for j, row in enumerate(fit.rows()):

@@ -23,7 +23,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from speciakin.pipeline.fit import objective_closed
+from speciakin.pipeline.fit import INACTIVE_WORDS, objective_closed
 from speciakin.report.blocks import as_sentences
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
@@ -223,9 +223,8 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
                 less.append(f"less {st.dof_reduction:.3g} for {closed} HPLC sample{'s' if closed != 1 else ''} "
                             "whose area% sum to 100 (a closed composition has one value fewer that varies freely)")
             if st.n_inactive:
-                less.append(f"less {st.n_inactive} value{'s' if st.n_inactive != 1 else ''} that the model meets "
-                            "exactly and no parameter moves (below the LOQ in data and model, or a titrant "
-                            "reading of 0 before dosing: they add nothing to chi-square)")
+                less.append(f"less {st.n_inactive} value{'s' if st.n_inactive != 1 else ''} that "
+                            f"{INACTIVE_WORDS}: they add nothing to chi-square)")
             blocks.append(Paragraph("Degrees of freedom: observations less fitted parameters, " + ", ".join(less)
                                     + "."))
         logs = log_readings_table(fit)
