@@ -1,4 +1,4 @@
-"""Area% samples closed to 100 %: their count and the chi-square they do not carry."""
+"""Area% samples closed to 100 %: which count, and the whitening of their residuals."""
 
 from __future__ import annotations
 
@@ -6,65 +6,160 @@ import numpy as np
 import pytest
 
 from speciakin.estimation.leastsq import fit_least_squares
-from speciakin.pipeline.closure import closed_samples
+from speciakin.pipeline.closure import closed_covariance, closed_samples, closure_whitening
 
 
 def _one_sample(y, sigma, area=True, censored=False):
     k = len(y)
-    return closed_samples(np.zeros(k, np.int64), 1, np.asarray(y, float), np.full(k, area),
-                          np.full(k, censored), np.asarray(sigma, float))
-
-
-def test_equal_parts_and_errors_lose_one_degree_of_freedom():
-    # A composition of K parts has K - 1 degrees of freedom (Aitchison 1986, ch. 2); with equal
-    # fractions and equal errors the closing is an orthogonal projection of rank K - 1, whose
-    # weighted chi-square has expectation K - 1 (Cochran's theorem).
-    for k in (1, 2, 3, 5):
-        n, deficit = _one_sample(np.full(k, 100.0 / k), np.full(k, 0.7))
-        assert n == 1
-        assert deficit == pytest.approx(1.0, rel=1e-12)
+    closed = closed_samples(np.zeros(k, np.int64), 1, np.asarray(y, float), np.full(k, area),
+                            np.full(k, censored), np.asarray(sigma, float))
+    assert closed.shape == (1,)
+    return bool(closed[0])
 
 
 def test_only_complete_area_samples_summing_to_100_count():
-    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4])[0] == 1
+    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4])
     # values to two decimals may miss 100 by 0.005 each, to one decimal by 0.05 each
-    assert _one_sample([50.01, 30.0, 19.98], [1.0, 0.6, 0.4])[0] == 1
-    assert _one_sample([50.11, 30.0, 19.98], [1.0, 0.6, 0.4]) == (0, 0.0)
-    assert _one_sample([50.1, 30.1, 19.9], [1.0, 0.6, 0.4])[0] == 1
-    assert _one_sample([50.1, 30.2, 19.9], [1.0, 0.6, 0.4]) == (0, 0.0)
+    assert _one_sample([50.01, 30.0, 19.98], [1.0, 0.6, 0.4])
+    assert not _one_sample([50.11, 30.0, 19.98], [1.0, 0.6, 0.4])
+    assert _one_sample([50.1, 30.1, 19.9], [1.0, 0.6, 0.4])
+    assert not _one_sample([50.1, 30.2, 19.9], [1.0, 0.6, 0.4])
     # unrounded values that only happen to sum to about 100 (independent noise, not closed)
-    assert _one_sample([50.0123456, 30.0054321, 19.9876543], [1.0, 0.6, 0.4]) == (0, 0.0)
+    assert not _one_sample([50.0123456, 30.0054321, 19.9876543], [1.0, 0.6, 0.4])
     # peak areas turned into area% by the objective sum to 100 up to rounding of the division
     areas = np.array([123.4, 56.7, 8.9])
-    assert _one_sample(100.0 * areas / areas.sum(), [1.0, 0.6, 0.4])[0] == 1
-    # a missing peak's share, a value below the LOQ, a concentration: not closed
-    assert _one_sample([50.5, 30.25, 18.25], [1.0, 0.6, 0.4]) == (0, 0.0)
-    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], censored=True) == (0, 0.0)
-    assert _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], area=False) == (0, 0.0)
+    assert _one_sample(100.0 * areas / areas.sum(), [1.0, 0.6, 0.4])
+    # a missing peak's share, a value below the LOQ, a concentration, a zero sd, a single peak: not closed
+    assert not _one_sample([50.5, 30.25, 18.25], [1.0, 0.6, 0.4])
+    assert not _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], censored=True)
+    assert not _one_sample([50.0, 30.0, 20.0], [1.0, 0.6, 0.4], area=False)
+    assert not _one_sample([50.0, 30.0, 20.0], [1.0, 0.0, 0.4])
+    assert not _one_sample([100.0], [1.0])
     # two samples: one closed, one with a value missing (NaN)
     sample = np.array([0, 0, 1, 1])
     y = np.array([60.0, 40.0, 60.0, np.nan])
-    n, _ = closed_samples(sample, 2, y, np.ones(4, bool), np.zeros(4, bool), np.ones(4))
-    assert n == 1
+    closed = closed_samples(sample, 2, y, np.ones(4, bool), np.zeros(4, bool), np.ones(4))
+    assert closed.tolist() == [True, False]
+
+
+def test_a_sample_with_a_value_below_the_loq_is_a_closed_sub_composition():
+    # the quantified values may miss 100 by the LOQ of each value below it (and their rounding)
+    sample, area = np.zeros(3, np.int64), np.ones(3, bool)
+    cens, loq, sigma = np.array([False, False, True]), np.array([np.nan, np.nan, 0.05]), np.array([1.9, 0.12, 0.1])
+
+    def closed(y):
+        # with a complete sample (none below the LOQ) that is closed, as the lab's software closes them
+        both = np.r_[y, 60.0, 40.0]
+        two = np.r_[sample, 1, 1]
+        out = closed_samples(two, 2, both, np.r_[area, True, True], np.r_[cens, False, False],
+                             np.r_[sigma, 1.2, 0.8], np.r_[loq, np.nan, np.nan])
+        assert out[1]
+        return bool(out[0])
+
+    assert closed([95.0, 4.97, np.nan]) and closed([95.0, 5.0, np.nan])
+    assert not closed([95.01, 4.89, np.nan]) and not closed([95.01, 5.02, np.nan])
+    assert not closed_samples(sample, 1, np.array([95.0, 4.97, np.nan]), area, cens, sigma, np.full(3, np.nan))[0]
+    # alone, or beside a complete sample that is not closed, it does not count: values that are not
+    # closed fall into the window of the LOQs by chance
+    assert not closed_samples(sample, 1, np.array([95.0, 4.97, np.nan]), area, cens, sigma, loq)[0]
+    assert not closed_samples(np.r_[sample, 1, 1], 2, np.array([95.0, 4.97, np.nan, 60.3, 40.1]),
+                              np.ones(5, bool), np.r_[cens, False, False], np.r_[sigma, 1.2, 0.8],
+                              np.r_[loq, np.nan, np.nan]).any()
+    rows, block, matrix = closure_whitening(sample, np.array([True]), np.array([95.0, 4.97, np.nan]), sigma, cens)
+    assert rows.tolist() == [0, 1] and matrix.shape == (2, 2) and np.all(matrix[-1] == 0.0)
+    # Monte Carlo: a third peak at 0.03 area% (reported below the LOQ); the sub-composition of the two
+    # others, closed to their observed sum, whitens to one residual of unit variance
+    y = np.array([94.97, 5.0, 0.03])
+    d = np.hypot(0.1, 0.02 * y)
+    rng = np.random.default_rng(7)
+    closed3 = _close(y + rng.standard_normal((200_000, 3)) * d)
+    quantified = closed3[:, :2]
+    observed_sum = quantified.sum(axis=1, keepdims=True)
+    r = y[:2] * observed_sum / y[:2].sum() - quantified   # the model closed to the observed sum
+    _, _, matrix = closure_whitening(sample, np.array([True]), y, d, cens)
+    w = r @ matrix.T
+    assert np.var(w[:, 0]) == pytest.approx(1.0, rel=0.02)
+
+
+def _close(noisy):
+    return 100.0 * noisy / noisy.sum(axis=1, keepdims=True)
 
 
 @pytest.mark.parametrize("fractions", [(0.5, 0.3, 0.2), (0.9, 0.05, 0.05), (0.7, 0.2, 0.06, 0.04)])
-def test_expected_chi_square_of_a_closed_sample_matches_monte_carlo(fractions):
-    # E[e^T A e] = tr(A Sigma) for e ~ N(0, Sigma) (Searle, "Linear Models", Wiley 1971, ch. 2,
-    # theorem 1): sample the errors of each peak before closing, close to 100 %, weigh by the
-    # error model's sigma, and compare the mean chi-square with K - deficit.
+def test_whitened_residuals_of_a_closed_sample_are_independent_with_unit_variance(fractions):
+    # Sample each peak's error before closing, close to 100 %, and whiten the residuals: their
+    # covariance must be I (K - 1 values) and the extra one exactly 0; the whitened chi-square must
+    # equal r^T Sigma^+ r with numpy's pseudo-inverse and have mean K - 1 (a composition of K parts
+    # has K - 1 degrees of freedom: Aitchison 1986, ch. 2).  The covariance is first order in the
+    # errors (1-2 % of the values here): agreement to 2 %.
     c = np.array(fractions)
+    k = c.size
     y = 100.0 * c
     sigma = np.hypot(0.1, 0.02 * y)  # absolute + relative error model, as in a model file
+    rows, block, matrix = closure_whitening(np.zeros(k, np.int64), np.array([True]), y, sigma)
+    assert rows.tolist() == list(range(k)) and block.tolist() == [0] * k and matrix.shape == (k, k)
+    assert np.all(matrix[-1] == 0.0)
     rng = np.random.default_rng(20261205)
-    e = rng.standard_normal((200_000, c.size)) * sigma
-    noisy = y + e
-    closed = 100.0 * noisy / noisy.sum(axis=1, keepdims=True)
-    chi2 = np.sum(((closed - y) / sigma) ** 2, axis=1)
-    n, deficit = _one_sample(y, sigma)
-    assert n == 1
-    # the expectation is first order in the errors (1-2 % of the values here): agreement to 1 %
-    assert np.mean(chi2) == pytest.approx(c.size - deficit, rel=0.01)
+    r = _close(y + rng.standard_normal((200_000, k)) * sigma) - y
+    w = r @ matrix.T
+    assert np.all(w[:, -1] == 0.0)
+    np.testing.assert_allclose(np.cov(w[:, :-1].T), np.eye(k - 1), atol=0.02)
+    pinv = np.linalg.pinv(closed_covariance(y, sigma))
+    np.testing.assert_allclose(np.sum(w * w, axis=1)[:100], np.einsum("ni,ij,nj->n", r[:100], pinv, r[:100]),
+                               rtol=1e-9)
+    assert np.mean(np.sum(w * w, axis=1)) == pytest.approx(k - 1, rel=0.02)
+    # each value weighed on its own as if independent: its chi-square has the expectation
+    # E[e^T A e] = tr(A Sigma) (Searle, "Linear Models", Wiley 1971, ch. 2, theorem 1), which is
+    # neither K nor K - 1 in general: such weights are not the likelihood of closed data
+    own = np.mean(np.sum((r / sigma) ** 2, axis=1))
+    assert own == pytest.approx(np.trace(closed_covariance(y, sigma) / sigma ** 2), rel=0.01)
+    assert abs(own - (k - 1)) > 0.05
+
+
+def _consecutive(k1, k2, t):
+    """A -> B -> C, first order, fractions of the start amount (Atkins, Physical Chemistry, consecutive
+    reactions: [B] = k1 / (k2 - k1) (exp(-k1 t) - exp(-k2 t)) [A]0)."""
+    a = np.exp(-k1 * t)
+    b = k1 / (k2 - k1) * (np.exp(-k1 * t) - np.exp(-k2 * t))
+    return np.column_stack([a, b, 1.0 - a - b])
+
+
+def test_weighing_closed_samples_with_their_covariance_calibrates_the_standard_errors():
+    # Area% of A, B and C (RRF 1) at 6 times, each peak with an error sd of 0.1 area% + 2 %, closed
+    # to 100 and rounded to 0.01 as an HPLC's software reports them; fitted for log10 k1, log10 k2 on
+    # 300 seeded copies.  Calibrated standard errors give z = (estimate - truth) / se with standard
+    # deviation 1 (its standard error here is about 1 / sqrt(2 * 300) = 0.04).  Weighed with the
+    # joint covariance (the objective's way) the standard deviation is within 0.1 of 1; each value
+    # weighed on its own gives a wider scatter than its standard errors say.
+    from scipy.optimize import least_squares
+
+    t = np.array([2.0, 5.0, 10.0, 20.0, 35.0, 60.0])
+    truth = np.log10([0.08, 0.03])
+    y_true = 100.0 * _consecutive(*10.0 ** truth, t)
+    rng = np.random.default_rng(4107)
+    sample = np.repeat(np.arange(t.size), 3)
+    z_joint, z_own = [], []
+    for _ in range(300):
+        noisy = y_true + rng.standard_normal(y_true.shape) * np.hypot(0.1, 0.02 * y_true)
+        obs = np.round(_close(noisy), 2).ravel()
+        sigma = np.hypot(0.1, 0.02 * obs)
+        closed = closed_samples(sample, t.size, obs, np.ones(obs.size, bool), np.zeros(obs.size, bool), sigma)
+        assert closed.all()
+        rows, _, matrix = closure_whitening(sample, closed, obs, sigma)
+
+        def own(v):
+            return (100.0 * _consecutive(*10.0 ** v, t).ravel() - obs) / sigma
+
+        def joint(v):
+            return matrix @ (100.0 * _consecutive(*10.0 ** v, t).ravel() - obs)[rows]
+
+        for residual, out in ((own, z_own), (joint, z_joint)):
+            fit = least_squares(residual, truth + 0.05, method="lm", xtol=1e-12, ftol=1e-12)
+            se = np.sqrt(np.diag(np.linalg.inv(fit.jac.T @ fit.jac)))  # stated errors: no rescaling
+            out.append((fit.x - truth) / se)
+    sd_joint, sd_own = np.std(z_joint, axis=0), np.std(z_own, axis=0)
+    assert np.all(np.abs(sd_joint - 1.0) < 0.1), sd_joint
+    assert np.all(sd_own > sd_joint), (sd_own, sd_joint)
 
 
 def test_least_squares_takes_the_reduction_and_inactive_residuals_out():
@@ -111,3 +206,22 @@ def test_a_fit_saved_before_the_reduction_loads_with_nothing_left_out():
     old = FitResult.from_dict(data)
     assert old.dof_reduction == 0.0 and old.n_inactive == 0
     assert old.degrees_of_freedom == 8 and old.chisqr == pytest.approx(fit.chisqr)
+
+
+def test_the_degrees_of_freedom_note_names_closed_samples_and_other_inactive_values():
+    # one zero residual per closed sample is among the inactive ones; a fit saved by the version
+    # before took a fractional reduction for the closed samples instead
+    from speciakin.pipeline.fit import degrees_of_freedom_note, left_out
+
+    x = np.linspace(0.0, 1.0, 12)
+    y = 1.0 + 2.0 * x + 0.1 * np.random.default_rng(5).standard_normal(x.size)
+    params = [{"name": "a", "value": 0.5}, {"name": "b", "value": 1.0}]
+    fit = fit_least_squares(lambda v: np.r_[(y - v[0] - v[1] * x) / 0.1, np.zeros(3)], params, starts=1)
+    assert fit.n_inactive == 3 and fit.degrees_of_freedom == 15 - 3 - 2
+    assert left_out(fit, 2) == (2.0, 1)
+    note = degrees_of_freedom_note(fit, 2)
+    assert "2 HPLC samples with area% summing to 100: one value fewer each" in note
+    assert "1 value the model meets exactly" in note
+    old = fit_least_squares(lambda v: (y - v[0] - v[1] * x) / 0.1, params, starts=1, dof_reduction=1.25)
+    assert left_out(old, 2) == (1.25, 0)
+    assert degrees_of_freedom_note(old, 2) == " (2 HPLC samples with area% summing to 100: 1.25 fewer)"

@@ -1,18 +1,46 @@
-"""Area% samples closed to 100 %: the degrees of freedom they do not carry.
+"""Area% samples closed to 100 %: weighed with the joint covariance of a composition.
 
 The campaign objective compares each sample's area% with the model's area%
-over the same compounds, and both sum to 100 when the lab reports every
-peak of the sample; so the residuals of such a sample sum to a constant the
-data fix, and its chi-square is expected to be smaller than one per value.
-The fit takes that out of its degrees of freedom
-(``estimation.leastsq.fit_least_squares(dof_reduction=...)``).
+over the same compounds.  When the lab reports every peak of a sample as
+area% (the software divides each area by the sum), the values sum to 100 and
+their errors are not independent: with each peak's error e_i ~ N(0, d_i^2)
+before closing (d_i the error model's sd of the value) and fractions
+c_i = y_i / 100, the closed errors are, to first order,
+
+    e' = P e,   P = I - c 1^T,   Cov(e') = Sigma = P D^2 P^T   (D = diag d),
+
+a covariance of rank K - 1 whose null vector is 1 (a composition of K parts
+has K - 1 degrees of freedom: Aitchison, J., "The Statistical Analysis of
+Compositional Data", Chapman and Hall 1986, ch. 2 and 5).  The model's area%
+of the sample also sum to 100, so the residual r = model - observed lies in
+that space (up to the values' rounding, which the null vector takes).  A
+sample with values below the LOQ is a closed sub-composition of its
+quantified values: both sides are closed to the observed sum over them, and
+the values below the LOQ keep their one-sided residuals.
+
+Weighing each value by 1 / d_i as if independent is not the likelihood of
+such data: its chi-square is expected below K, and the least-squares
+covariance (J^T J)^-1 understates the scatter of the estimates (the sandwich
+A J^T C J A with the closed covariance C exceeds A by a rank-one term in the
+direction J^T W c; on the invented example 10 % in the standard errors of an
+HPLC-only fit).  So the objective whitens each closed sample: with Sigma =
+U diag(lambda) U^T, the K - 1 residuals diag(lambda)^(-1/2) U^T r (over the
+eigenvalues that are not zero) replace the sample's K weighted residuals, and
+the K-th residual is 0 whatever the parameters.  Their chi-square is
+r^T Sigma^+ r, expected K - 1 (the generalised least-squares weighting,
+Seber, G. A. F. and Wild, C. J., "Nonlinear Regression", Wiley 1989,
+section 2.1.4), and the zero residual is left out of the degrees of freedom
+like any residual that carries nothing (``estimation.leastsq``).
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
-__all__ = ["REPORTING_STEPS", "SUM_FLOOR", "reporting_step", "closed_samples"]
+__all__ = ["REPORTING_STEPS", "SUM_FLOOR", "reporting_step", "closed_samples", "closure_whitening",
+           "closed_covariance", "ClosedSamples"]
 
 #: Decimal steps [area%] a reported value may be rounded to, coarsest first.
 REPORTING_STEPS = (1.0, 0.1, 0.01, 0.001, 0.0001)
@@ -30,48 +58,120 @@ def reporting_step(values: np.ndarray) -> np.ndarray:
 
 
 def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, area: np.ndarray,
-                   censored: np.ndarray, sigma: np.ndarray) -> tuple[int, float]:
-    """HPLC samples whose area% are closed to 100 %, and the chi-square they do not carry.
+                   censored: np.ndarray, sigma: np.ndarray, loq: np.ndarray | None = None) -> np.ndarray:
+    """Which HPLC samples are closed to 100 % (bool per sample).
 
     A sample counts when every value of it is an area% (peak areas are turned
-    into area% per sample before this), none is below the LOQ, and the values
-    sum to 100 within what their rounding allows: half the sample's reporting
-    step per value (the finest of :func:`reporting_step` over its values; values
-    given to two decimals: 0.005 each), at least :data:`SUM_FLOOR`.  So area%
-    reported as the lab's software closes them count, and values that only
-    happen to sum to about 100 do not.  The model's area%
-    of such a sample also sum to 100 (the observation model above), so its
-    residuals sum to a constant the data fix: a composition of K parts has
-    K - 1 degrees of freedom (Aitchison, J., "The Statistical Analysis of
-    Compositional Data", Chapman and Hall 1986, ch. 2).  With each peak's
-    error e_i ~ N(0, d_i) before closing (d_i = sigma_i^2 of the error model)
-    and fractions c_i = y_i / 100, the closed residuals are r = (I - c 1^T) e
-    to first order, and the weighted chi-square of the sample has expectation
-
-        E = tr(D^-1 (I - c 1^T) D (I - 1 c^T)) = K - 2 + (sum_j d_j)(sum_i c_i^2 / d_i)
-
-    (K - 1 for equal fractions and errors, more when one part dominates), not
-    K.  Returns the number of closed samples and the sum of K - E over them,
-    the chi-square expected from K values that these samples do not carry.
+    into area% per sample before this), at least two are quantified (not below
+    the LOQ) with a positive sd, and the quantified values sum to 100 within
+    what their rounding allows: half the sample's reporting step per value (the
+    finest of :func:`reporting_step` over its values; values given to two
+    decimals: 0.005 each), at least :data:`SUM_FLOOR`, and less by at most the
+    LOQ of each value reported below it.  So area% reported as the lab's
+    software closes them count, and values that only happen to sum to about 100
+    do not.  A sample with values below the LOQ counts only when the campaign
+    has complete samples (none below the LOQ) and every one of them is closed:
+    its window of LOQs is wide enough for independent values to fall in by
+    chance.  It is weighed as the closed sub-composition of its quantified
+    values (:func:`closure_whitening`).
     """
     if sample.size == 0:
-        return 0, 0.0
-    n = np.bincount(sample, minlength=n_samples)
-    not_area = np.bincount(sample, weights=(~area | censored).astype(float), minlength=n_samples)
-    y = np.where(np.isfinite(observed), observed, np.nan)
+        return np.zeros(n_samples, bool)
+    quantified = ~censored
+    n = np.bincount(sample, weights=quantified.astype(float), minlength=n_samples)
+    bad = ~area | (quantified & ~(sigma > 0.0)) | (quantified & ~np.isfinite(observed))
+    if loq is None:
+        loq = np.full(sample.size, np.nan)
+    bad |= censored & ~(loq >= 0.0)
+    n_bad = np.bincount(sample, weights=bad.astype(float), minlength=n_samples)
+    y = np.where(quantified & np.isfinite(observed), observed, 0.0)
     total = np.bincount(sample, weights=y, minlength=n_samples)
+    below = np.bincount(sample, weights=np.where(censored & (loq >= 0.0), loq, 0.0), minlength=n_samples)
     step = np.full(n_samples, np.inf)
-    finite = np.isfinite(y)
-    np.minimum.at(step, sample[finite], reporting_step(y[finite]))
-    allowed = np.maximum(0.5 * step * n, SUM_FLOOR)
+    finite = quantified & np.isfinite(observed)
+    np.minimum.at(step, sample[finite], reporting_step(observed[finite]))
+    n_censored = np.bincount(sample, weights=censored.astype(float), minlength=n_samples)
     with np.errstate(invalid="ignore"):
-        closed = (n > 0) & (not_area == 0) & (np.abs(total - 100.0) <= allowed)
-    if not closed.any():
-        return 0, 0.0
-    d = sigma ** 2
-    c = y / 100.0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        sum_d = np.bincount(sample, weights=d, minlength=n_samples)
-        sum_c2_d = np.bincount(sample, weights=c * c / d, minlength=n_samples)
-    expected = n - 2.0 + sum_d * sum_c2_d
-    return int(np.count_nonzero(closed)), float(np.sum((n - expected)[closed]))
+        allowed = np.maximum(0.5 * step * n, SUM_FLOOR)
+        usable = (n >= 2) & (n_bad == 0)
+        full = usable & (n_censored == 0)
+        closed = full & (np.abs(total - 100.0) <= allowed)
+        # values below the LOQ leave a window of their LOQs in which any sum could fall by chance: such a
+        # sample counts only where the lab is seen to close its area% (every complete sample closed)
+        if full.any() and np.all(closed[full]):
+            closed |= usable & (n_censored > 0) & (total <= 100.0 + allowed) & (total >= 100.0 - below - allowed)
+        return closed
+
+
+def closed_covariance(observed: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """Sigma = P D^2 P^T of one closed sample (K, K): the covariance of its values' errors."""
+    c = observed / np.sum(observed)
+    p = np.eye(c.size) - np.outer(c, np.ones(c.size))
+    return (p * sigma ** 2) @ p.T
+
+
+def closure_whitening(sample: np.ndarray, closed: np.ndarray, observed: np.ndarray, sigma: np.ndarray,
+                      censored: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The quantified values of the closed samples and the matrix that whitens their residuals.
+
+    Returns ``rows`` (m,), the indices of the quantified values of closed
+    samples, sample by sample; ``block`` (m,), the closed sample's number
+    (0, 1, ...) of each row; and ``matrix`` (m, m), block diagonal: for a
+    sample of K quantified values the first K - 1 rows of its block are
+    diag(lambda)^(-1/2) U^T of :func:`closed_covariance` (eigenvalues not zero),
+    the last row is zero.  The residual of a closed sample is taken over its
+    quantified values closed to the observed sum S_obs (the values below the
+    LOQ aside): ``model * S_obs / S_model - observed``, whitened by ``matrix``.
+    """
+    quantified = np.ones(sample.size, bool) if censored is None else ~censored
+    blocks = [np.flatnonzero((sample == s) & quantified) for s in np.flatnonzero(closed)]
+    if not blocks:
+        return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros((0, 0))
+    rows = np.concatenate(blocks).astype(np.int64)
+    block = np.repeat(np.arange(len(blocks)), [b.size for b in blocks]).astype(np.int64)
+    matrix = np.zeros((rows.size, rows.size))
+    at = 0
+    for idx in blocks:
+        k = idx.size
+        lam, u = np.linalg.eigh(closed_covariance(observed[idx], sigma[idx]))
+        # eigh sorts ascending: the first eigenvalue is the null direction (the vector of ones)
+        matrix[at:at + k - 1, at:at + k] = (u[:, 1:] / np.sqrt(lam[1:])).T
+        at += k
+    return rows, block, matrix
+
+
+@dataclass(frozen=True)
+class ClosedSamples:
+    """The closed samples of a campaign's HPLC values and the whitening of their residuals."""
+
+    #: number of closed samples
+    count: int
+    #: quantified values of the closed samples, each row's closed sample (0, 1, ...), the whitening
+    #: matrix (:func:`closure_whitening`) and each closed sample's observed sum
+    rows: np.ndarray
+    block: np.ndarray
+    matrix: np.ndarray
+    observed_sum: np.ndarray
+
+    @classmethod
+    def of(cls, sample: np.ndarray, n_samples: int, observed: np.ndarray, area: np.ndarray, censored: np.ndarray,
+           sigma: np.ndarray, loq: np.ndarray) -> "ClosedSamples":
+        closed = closed_samples(sample, n_samples, observed, area, censored, sigma, loq)
+        rows, block, matrix = closure_whitening(sample, closed, observed, sigma, censored)
+        count = int(np.count_nonzero(closed))
+        return cls(count, rows, block, matrix, np.bincount(block, weights=observed[rows], minlength=count))
+
+    def whiten(self, residual: np.ndarray, model: np.ndarray, observed: np.ndarray) -> np.ndarray:
+        """``residual`` (n_sets, n_hplc) with the rows of closed samples replaced (in place) by their
+        whitened residuals: ``matrix @ (model * S_obs / S_model - observed)`` over each sample's
+        quantified values; ``model`` (n_sets, n_hplc) the model's area%."""
+        if not self.rows.size:
+            return residual
+        m = model[:, self.rows]
+        n_sets = m.shape[0]
+        bins = (np.arange(n_sets)[:, None] * self.count + self.block[None, :]).ravel()
+        total = np.bincount(bins, weights=m.ravel(), minlength=n_sets * self.count).reshape(n_sets, self.count)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            closed = m * (self.observed_sum / total)[:, self.block]
+        residual[:, self.rows] = (closed - observed[self.rows]) @ self.matrix.T
+        return residual

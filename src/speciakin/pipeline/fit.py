@@ -164,8 +164,7 @@ class CampaignFitResult:
             "statistics": {"chi_square": f.chisqr, "reduced_chi_square": f.reduced_chisqr, "aic": f.aic,
                            "bic": f.bic, "n_observations": f.n_residuals, "n_parameters": f.n_varying,
                            "degrees_of_freedom": f.degrees_of_freedom,
-                           "closed_samples": objective_closed(self), "closure_deficit": f.dof_reduction,
-                           "inactive_values": f.n_inactive,
+                           "closed_samples": objective_closed(self), "inactive_values": f.n_inactive,
                            "residual_standard_deviation": f.residual_standard_deviation,
                            "converged": f.success, "message": f.message,
                            "jacobian": f.jacobian_method, "condition_number": f.condition_number},
@@ -269,15 +268,29 @@ def objective_closed(result) -> int:
     return int((getattr(result, "objective", None) or {}).get("closed_samples", 0) or 0)
 
 
+def left_out(f: FitResult, closed: int) -> tuple[float, int]:
+    """What the degrees of freedom leave out: (for the closed area% samples, other values that carry nothing).
+
+    A closed sample's residuals are whitened, and one of them is 0 whatever the parameters
+    (``pipeline.closure``): it is among ``f.n_inactive``, one per closed sample.  A fit saved by the
+    version before (2026-12-05) took a fractional ``dof_reduction`` for the closed samples instead.
+    """
+    if f.dof_reduction > 0.0:
+        return float(f.dof_reduction), int(f.n_inactive)
+    return float(min(closed, f.n_inactive)), int(max(f.n_inactive - closed, 0))
+
+
 def degrees_of_freedom_note(f: FitResult, closed: int) -> str:
     """The note beside the degrees of freedom on what they leave out (closed samples, censored values);
     empty when nothing is left out."""
     parts = []
+    for_closed, other = left_out(f, closed)
     if closed:
         parts.append(f"{closed} HPLC sample{'s' if closed != 1 else ''} with area% summing to 100: "
-                     f"{f.dof_reduction:.3g} fewer")
-    if f.n_inactive:
-        parts.append(f"{f.n_inactive} value{'s' if f.n_inactive != 1 else ''} {INACTIVE_WORDS}): none")
+                     + (f"{for_closed:.3g} fewer" if f.dof_reduction > 0.0 else
+                        "one value fewer each, weighed with their joint covariance"))
+    if other:
+        parts.append(f"{other} value{'s' if other != 1 else ''} {INACTIVE_WORDS}): none")
     return f" ({'; '.join(parts)})" if parts else ""
 
 
@@ -343,7 +356,7 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         progress("starts", 0, n_starts)
     fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=objective.jacobian,
                             starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups),
-                            dof_reduction=objective.closure_deficit, one_sided=objective.one_sided)
+                            one_sided=objective.one_sided)
     t_fit = time.perf_counter() - t0
     mapping = dict(zip(objective.keys, objective.names))
     warnings = [_rename(w, mapping) for w in fit.warnings]

@@ -26,8 +26,13 @@ relative part (weights are fixed by the data, so chi-square is an ordinary
 weighted sum of squares).  A value reported below the LOQ is censored: its
 least-squares residual is ``max(y_model - LOQ, 0) / sigma_LOQ`` (no penalty
 while the model stays below the LOQ); in the likelihood it contributes
-``log Phi((LOQ - y_model) / sigma_LOQ)``.  Titrant logs of held-pH runs are a
-second observable [mol] with their own absolute and relative error.
+``log Phi((LOQ - y_model) / sigma_LOQ)``.  The area% of a sample that sum to
+100 (the lab reports every peak) are not independent: their residuals are
+whitened with the joint covariance of a closed composition, one value fewer
+each (``pipeline.closure``); tables and plots show each value's own
+``(y_model - y_obs) / sigma`` (:meth:`CampaignObjective.value_residuals`).
+Titrant logs of held-pH runs are a second observable [mol] with their own
+absolute and relative error.
 
 References
 ----------
@@ -40,7 +45,7 @@ Econometrica 1958, 26, 24 (censored likelihood).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -50,7 +55,8 @@ from speciakin.chemistry.model import Model, Prior, Quantity, TemperatureProfile
 from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
-from speciakin.pipeline.closure import closed_samples
+from speciakin.pipeline.closure import ClosedSamples
+from speciakin.pipeline.objective_values import Predictions, resample_titrant
 from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
 from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
@@ -65,36 +71,6 @@ __all__ = ["FittedParameter", "ErrorModel", "CampaignObjective", "Predictions", 
 #: by its mean (the probe's scatter is not a temperature programme; a constant
 #: temperature also keeps the kernel on its fast analytic-Jacobian path).
 FLAT_TEMPERATURE_BAND = 0.5
-
-
-@dataclass
-class Predictions:
-    """Model values at the observations for one parameter vector.
-
-    ``hplc_model`` and ``hplc_observed`` are on the data's scale (area% or
-    [mol/L]); ``titrant_model`` / ``titrant_observed`` [mol].
-    """
-
-    hplc_model: np.ndarray
-    hplc_observed: np.ndarray
-    hplc_sigma: np.ndarray
-    hplc_censored: np.ndarray
-    titrant_model: np.ndarray
-    titrant_observed: np.ndarray
-    titrant_sigma: np.ndarray
-    outputs: np.ndarray
-    status: np.ndarray
-
-
-def _resample_titrant(times: np.ndarray, amounts: np.ndarray, end: float,
-                      limit: int | None = None) -> tuple[np.ndarray, np.ndarray]:
-    keep = np.isfinite(times) & np.isfinite(amounts) & (times <= end)
-    t, a = times[keep], amounts[keep]
-    if limit is not None and t.size > limit:
-        grid = np.linspace(t.min(), t.max(), limit)
-        a = np.interp(grid, t, a)
-        t = grid
-    return t, a
 
 
 class CampaignObjective:
@@ -215,7 +191,7 @@ class CampaignObjective:
             end = float(crun.recipe.end_time)
             tt, ta = (np.empty(0), np.empty(0))
             if crun.titrant is not None and crun.recipe.ph.controlled:
-                tt, ta = _resample_titrant(crun.titrant.time, crun.titrant.amount, end,
+                tt, ta = resample_titrant(crun.titrant.time, crun.titrant.amount, end,
                                            self.thinning.get("titrant"))
             source = self.campaign.runs[ri]
             self.log_readings.append({
@@ -302,8 +278,12 @@ class CampaignObjective:
         self.t_sigma = sig
         self.n_hplc = int(self.h_obs.size)
         self.n_titrant = int(self.t_obs.size)
-        self.closed_samples, self.closure_deficit = closed_samples(self.h_sample, self.n_samples, self.h_obs,
-                                                                   self.h_area, self.h_cens, self.h_sigma)
+        #: samples whose area% sum to 100: the residuals of their quantified values are whitened with the
+        #: joint covariance of a closed composition (``pipeline.closure``); one of each is 0 whatever the
+        #: parameters
+        self.closure = ClosedSamples.of(self.h_sample, self.n_samples, self.h_obs, self.h_area, self.h_cens,
+                                        self.h_sigma, self.h_loq)
+        self.closed_samples = self.closure.count
         #: residuals that are zero while the model stays below the LOQ (the values reported below it)
         self.one_sided = np.concatenate([self.h_cens, np.zeros(self.n_titrant, bool)])
         self.groups = np.array([f"HPLC {self.run_names[r]}" for r in self.h_run]
@@ -394,12 +374,18 @@ class CampaignObjective:
         return Predictions(model, self.h_obs, self.h_sigma, self.h_cens, tit, self.t_obs, self.t_sigma,
                            out, res.status)
 
+    def value_residuals(self, pr: Predictions) -> np.ndarray:
+        """Each HPLC value's own weighted residual (n_sets, n_hplc): (model - observed) / sigma, for a
+        value below the LOQ (model - LOQ) / sigma where the model is above it, else 0 (tables, plots)."""
+        return np.where(self.h_cens[None, :],
+                        np.maximum(pr.hplc_model - self.h_loq[None, :], 0.0),
+                        pr.hplc_model - self.h_obs[None, :]) / self.h_sigma[None, :]
+
     def residuals_batch(self, theta: np.ndarray, rtol: float | None = None) -> np.ndarray:
-        """Weighted residuals (n_sets, n_data); NaN rows where the simulation failed."""
+        """Weighted residuals (n_sets, n_data); NaN rows where the simulation failed.  The values of a
+        closed area% sample give its whitened residuals (``pipeline.closure``), not one each."""
         pr = self.predict_batch(theta, rtol)
-        r_h = np.where(self.h_cens[None, :],
-                       np.maximum(pr.hplc_model - self.h_loq[None, :], 0.0),
-                       pr.hplc_model - self.h_obs[None, :]) / self.h_sigma[None, :]
+        r_h = self.closure.whiten(self.value_residuals(pr), pr.hplc_model, self.h_obs)
         r_t = (pr.titrant_model - self.t_obs[None, :]) / self.t_sigma[None, :]
         return np.concatenate([r_h, r_t], axis=1)
 
@@ -432,7 +418,7 @@ class CampaignObjective:
     def log_likelihood_batch(self, theta: np.ndarray) -> np.ndarray:
         """Log-likelihood of each row of ``theta`` (constants dropped; -inf on failure)."""
         pr = self.predict_batch(theta)
-        z = (pr.hplc_model - self.h_obs) / self.h_sigma
+        z = self.closure.whiten((pr.hplc_model - self.h_obs) / self.h_sigma, pr.hplc_model, self.h_obs)
         any_censored = bool(self.h_cens.any())
         ll = -0.5 * np.sum(np.where(self.h_cens, 0.0, z * z) if any_censored else z * z, axis=1)
         if any_censored:
@@ -493,7 +479,9 @@ class CampaignObjective:
             "conversion": ("area% of each compound = 100 n_i RRF_i / sum_j n_j RRF_j over the compounds of "
                            "the sample" if self.campaign.basis in ("area_percent", "area", "mixed")
                            else "concentrations compared as n_i / V"),
-            "closed_samples": self.closed_samples, "closure_deficit": self.closure_deficit,
+            "closed_samples": self.closed_samples,
+            "closure": ("the area% of a sample that sum to 100 are weighed with their joint covariance (one "
+                        "value fewer each)" if self.closed_samples else None),
             "log_thinning": dict(self.thinning) or None, "log_readings": list(self.log_readings),
             "flat_temperature_band_K": FLAT_TEMPERATURE_BAND,
         }

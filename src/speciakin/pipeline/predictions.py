@@ -156,7 +156,9 @@ def _observations(objective: Any, theta: np.ndarray | None, keys: dict[str, str]
     else:
         pr = objective.predict_batch(theta[None, :])
         fitted = np.concatenate([pr.hplc_model[0], pr.titrant_model[0]])
-        residual = objective.residuals(theta)
+        # each value's own residual (a closed sample's whitened residuals belong to no one compound)
+        residual = np.concatenate([objective.value_residuals(pr)[0],
+                                   (pr.titrant_model[0] - objective.t_obs) / objective.t_sigma])
     rows = []
     for i in range(objective.n_hplc):
         ri = int(objective.h_run[i])

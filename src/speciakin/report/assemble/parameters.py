@@ -23,7 +23,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from speciakin.pipeline.fit import INACTIVE_WORDS, objective_closed
+from speciakin.pipeline.fit import INACTIVE_WORDS, left_out, objective_closed
 from speciakin.report.blocks import as_sentences
 from speciakin.report.document import Callout, Figure, KeyValues, Paragraph, Section, Table
 
@@ -217,13 +217,16 @@ def parameter_section(fit: Any, posterior: Any = None) -> Section:
                                  ("AIC", st.aic), ("BIC", st.bic), ("Converged", bool(st.success))],
                                 number_format=".4g"))
         closed = objective_closed(fit)
-        if closed or st.n_inactive:
+        for_closed, other = left_out(st, closed)
+        if closed or other:
             less = []
             if closed:
-                less.append(f"less {st.dof_reduction:.3g} for {closed} HPLC sample{'s' if closed != 1 else ''} "
-                            "whose area% sum to 100 (a closed composition has one value fewer that varies freely)")
-            if st.n_inactive:
-                less.append(f"less {st.n_inactive} value{'s' if st.n_inactive != 1 else ''} that "
+                less.append(f"less {for_closed:.3g} for {closed} HPLC sample{'s' if closed != 1 else ''} "
+                            "whose area% sum to 100 (a closed composition has one value fewer that varies freely"
+                            + ("; its values are weighed with their joint covariance)" if st.dof_reduction == 0.0
+                               else ")"))
+            if other:
+                less.append(f"less {other} value{'s' if other != 1 else ''} that "
                             f"{INACTIVE_WORDS}: they add nothing to chi-square)")
             blocks.append(Paragraph("Degrees of freedom: observations less fitted parameters, " + ", ".join(less)
                                     + "."))
