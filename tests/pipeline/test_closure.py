@@ -225,3 +225,38 @@ def test_the_degrees_of_freedom_note_names_closed_samples_and_other_inactive_val
     old = fit_least_squares(lambda v: (y - v[0] - v[1] * x) / 0.1, params, starts=1, dof_reduction=1.25)
     assert left_out(old, 2) == (1.25, 0)
     assert degrees_of_freedom_note(old, 2) == " (2 HPLC samples with area% summing to 100: 1.25 fewer)"
+
+
+def test_the_suggestion_weighs_a_candidates_closed_samples_like_the_campaigns(monkeypatch, tmp_path):
+    # The invented example's area% are closed (pipeline.closure), so a candidate run's samples carry
+    # the information J^T Sigma^+ J of a closed composition (generalised least squares, Seber and
+    # Wild 1989, section 2.1.4; numpy's pseudo-inverse as the reference), not that of K independent
+    # values; the titrant part stays value by value.
+    from speciakin.data import example
+    from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
+    from speciakin.pipeline.suggest import candidate_observables, candidate_runs, local_sensitivity
+
+    example.new_example(tmp_path / "example")
+    model, campaign, _ = load_inputs(resolve_inputs(tmp_path / "example"))
+    objective = make_objective(model, campaign)
+    assert objective.closed_samples > 0
+    theta = objective.start.copy()
+    for name, value in example.TRUTH.items():
+        theta[objective.names.index(name)] = value
+    draws = theta + 0.01 * np.random.default_rng(2).standard_normal((12, theta.size))
+    runs, times = candidate_runs(objective, [{"setpoint_pH": 6.5}], 0, np.array([300.0, 900.0, 1800.0]))
+    obs = candidate_observables(objective, draws, runs, times, 0)
+    joint = local_sensitivity(objective, obs, draws, runs, times, 0, n_local=2).candidates[0]
+    monkeypatch.setattr(objective, "closed_samples", 0)
+    own = local_sensitivity(objective, obs, draws, runs, times, 0, n_local=2).candidates[0]
+    k, n_hplc = len(obs.columns), obs.n_hplc[0]
+    assert k == 3 and n_hplc == 9
+    for i, row in enumerate(np.unique(np.linspace(0, 11, 2).round().astype(int))):
+        values = obs.values[0][row]
+        sd = obs.sd(0, values[None, :])[0]
+        for s in range(0, n_hplc, k):
+            raw = own[i, s:s + k] * sd[s:s + k, None]
+            want = raw.T @ np.linalg.pinv(closed_covariance(values[s:s + k], sd[s:s + k])) @ raw
+            got = joint[i, s:s + k].T @ joint[i, s:s + k]
+            np.testing.assert_allclose(got, want, rtol=1e-8, atol=1e-12 * np.abs(want).max())
+        np.testing.assert_array_equal(joint[i, n_hplc:], own[i, n_hplc:])

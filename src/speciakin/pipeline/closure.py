@@ -40,7 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["REPORTING_STEPS", "SUM_FLOOR", "reporting_step", "closed_samples", "closure_whitening",
-           "closed_covariance", "ClosedSamples"]
+           "closed_covariance", "whitening_matrix", "ClosedSamples"]
 
 #: Decimal steps [area%] a reported value may be rounded to, coarsest first.
 REPORTING_STEPS = (1.0, 0.1, 0.01, 0.001, 0.0001)
@@ -132,12 +132,21 @@ def closure_whitening(sample: np.ndarray, closed: np.ndarray, observed: np.ndarr
     matrix = np.zeros((rows.size, rows.size))
     at = 0
     for idx in blocks:
-        k = idx.size
-        lam, u = np.linalg.eigh(closed_covariance(observed[idx], sigma[idx]))
-        # eigh sorts ascending: the first eigenvalue is the null direction (the vector of ones)
-        matrix[at:at + k - 1, at:at + k] = (u[:, 1:] / np.sqrt(lam[1:])).T
-        at += k
+        matrix[at:at + idx.size, at:at + idx.size] = whitening_matrix(observed[idx], sigma[idx])
+        at += idx.size
     return rows, block, matrix
+
+
+def whitening_matrix(values: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """(K, K) for one closed sample of area% ``values`` with sds ``sigma``: its first K - 1 rows are
+    diag(lambda)^(-1/2) U^T of :func:`closed_covariance` (the eigenvalues that are not zero), the last
+    row is zero."""
+    k = values.size
+    out = np.zeros((k, k))
+    lam, u = np.linalg.eigh(closed_covariance(values, sigma))
+    # eigh sorts ascending: the first eigenvalue is the null direction (the vector of ones)
+    out[:k - 1] = (u[:, 1:] / np.sqrt(lam[1:])).T
+    return out
 
 
 @dataclass(frozen=True)

@@ -26,6 +26,7 @@ from speciakin.decision.outcomes import process_outcome_names
 from speciakin.decision.suggest import MIN_GAIN_PH, LocalSensitivity, SuggestResult, decision_draws, \
     draw_edges, rank_candidates
 from speciakin.errors import InputError, Location
+from speciakin.pipeline.closure import whitening_matrix
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_runs
 
@@ -306,7 +307,9 @@ def local_sensitivity(objective, obs: CandidateObservables, draws: np.ndarray, r
     information ``J^T J``), each candidate's observation Jacobian divided by
     the error model's sd, and, with a decision, the gradients of the draw's
     window edges (anchor kept) and spec margins.  Steps ``1e-3 max(1, |theta|)``
-    kept inside the bounds; failed simulations give zero sensitivity.
+    kept inside the bounds; failed simulations give zero sensitivity.  Where the campaign's area%
+    are closed (``pipeline.closure``), each candidate sample's rows are whitened with the joint
+    covariance of a closed composition, as the fit weighs the campaign's samples.
     """
     idx = np.unique(np.linspace(0, draws.shape[0] - 1, min(n_local, draws.shape[0])).round().astype(int))
     base = draws[idx]
@@ -332,9 +335,22 @@ def local_sensitivity(objective, obs: CandidateObservables, draws: np.ndarray, r
     moved = CandidateObservables(objective, template)
     moved.simulate(sets, runs, times, rtol=min(objective.rtol, FD_RTOL))
     cands = []
+    closed = obs.area and objective.closed_samples > 0
     for c, values in enumerate(moved.values):
-        sd = obs.sd(c, np.nan_to_num(obs.values[c][idx], nan=0.0))
-        cands.append(diff(values) / sd[:, :, None])
+        at = np.nan_to_num(obs.values[c][idx], nan=0.0)
+        sd = obs.sd(c, at)
+        jac_c = diff(values) / sd[:, :, None]
+        if closed:
+            # the lab closes its area% (pipeline.closure): a candidate's samples are weighed like the
+            # campaign's, with the joint covariance of a closed composition
+            k = len(obs.columns)
+            raw = diff(values)
+            for i in range(n):
+                for s0 in range(0, obs.n_hplc[c], k):
+                    y, d = at[i, s0:s0 + k], sd[i, s0:s0 + k]
+                    if k >= 2 and np.all(y > 0.0) and np.all(d > 0.0):
+                        jac_c[i, s0:s0 + k] = whitening_matrix(y, d) @ raw[i, s0:s0 + k]
+        cands.append(jac_c)
     edges = margins = None
     if decision is not None:
         moved_decision = replace(process_decision(objective, process, sets), anchor=decision.anchor)
