@@ -10,8 +10,9 @@ standard errors z has standard deviation 1.  Printed: the standard deviation
 of z per parameter with the covariance as reported (scaled by the observed
 scatter, s^2 = chi2 / dof) and with the stated errors (as the posterior uses
 them), the mean reduced chi-square, and how many fits warned that the stated
-errors look too large.  The figures of 2026-12-05 are in docs/estimation.md
-("Known limits").
+errors look too large.  The figures of 2026-12-05 (300 copies from seed 1001,
+before and after closed area% samples were weighed with their joint
+covariance) are in docs/estimation.md ("Closed area% samples").
 
 Run:  .venv/bin/python scripts/example_coverage.py [N] [FIRST_SEED]   (default 120 copies from seed 1;
 about 1 s per copy with a warm kernel cache)

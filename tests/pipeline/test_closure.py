@@ -180,8 +180,11 @@ def test_least_squares_takes_the_reduction_and_inactive_residuals_out():
     plain = fit_least_squares(plain_residual, params, starts=1)
     assert plain.degrees_of_freedom == 20 - 2 and plain.n_inactive == 0
     reduced = fit_least_squares(residual, params, starts=1, dof_reduction=3.5,
-                                one_sided=np.r_[np.zeros(20, bool), np.ones(2, bool), False])
+                                one_sided=np.r_[np.zeros(20, bool), np.ones(2, bool), False],
+                                groups=["line"] * 20 + ["limit"] * 2 + ["line"])
     assert reduced.n_inactive == 3
+    # the RMS per group leaves the inactive residuals out (a group of them only has no entry)
+    assert reduced.group_residual_sd == {"line": {"rms": pytest.approx(np.sqrt(plain.chisqr / 20)), "count": 20}}
     assert reduced.degrees_of_freedom == pytest.approx(23 - 3 - 3.5 - 2)
     assert reduced.chisqr == pytest.approx(plain.chisqr)
     assert reduced.reduced_chisqr == pytest.approx(reduced.chisqr / reduced.degrees_of_freedom)

@@ -134,5 +134,6 @@ def _residual_blocks(predictions: Any, fit: Any, colors: SpeciesColors,
         blocks.append(Table("Residuals by run and observable", ["group", "RMS weighted residual", "values"],
                             rows, formats=[None, ".3g", None],
                             note="An RMS far above 1 means the model or the error model does not describe "
-                                 "that run (common practice: above 3 is flagged by the fit)."))
+                                 "that run (common practice: above 3 is flagged by the fit). Values that carry "
+                                 "no residual (see the degrees of freedom) are not counted."))
     return blocks
