@@ -233,7 +233,7 @@ def test_the_degrees_of_freedom_note_names_closed_samples_and_other_inactive_val
 def test_the_suggestion_weighs_a_candidates_closed_samples_like_the_campaigns(monkeypatch, tmp_path):
     # The invented example's area% are closed (pipeline.closure), so a candidate run's samples carry
     # the information J^T Sigma^+ J of a closed composition (generalised least squares, Seber and
-    # Wild 1989, section 2.1.4; numpy's pseudo-inverse as the reference), not that of K independent
+    # Wild 1989, ch. 2; numpy's pseudo-inverse as the reference), not that of K independent
     # values; the titrant part stays value by value.
     from speciakin.data import example
     from speciakin.pipeline import load_inputs, make_objective, resolve_inputs

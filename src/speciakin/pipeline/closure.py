@@ -19,7 +19,8 @@ quantified values: both sides are closed to the observed sum over them, and
 the values below the LOQ keep their one-sided residuals.
 
 Weighing each value by 1 / d_i as if independent is not the likelihood of
-such data: its chi-square is expected below K, and the least-squares
+such data: its chi-square is expected at tr(D^-2 Sigma), neither K nor K - 1
+in general, and the least-squares
 covariance (J^T J)^-1 understates the scatter of the estimates (the sandwich
 A J^T C J A with the closed covariance C exceeds A by a rank-one term in the
 direction J^T W c; on the invented example 10 % in the standard errors of an
@@ -28,8 +29,8 @@ U diag(lambda) U^T, the K - 1 residuals diag(lambda)^(-1/2) U^T r (over the
 eigenvalues that are not zero) replace the sample's K weighted residuals, and
 the K-th residual is 0 whatever the parameters.  Their chi-square is
 r^T Sigma^+ r, expected K - 1 (the generalised least-squares weighting,
-Seber, G. A. F. and Wild, C. J., "Nonlinear Regression", Wiley 1989,
-section 2.1.4), and the zero residual is left out of the degrees of freedom
+Seber, G. A. F. and Wild, C. J., "Nonlinear Regression", Wiley 1989, ch. 2,
+from memory), and the zero residual is left out of the degrees of freedom
 like any residual that carries nothing (``estimation.leastsq``).
 """
 
