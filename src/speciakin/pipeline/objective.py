@@ -192,7 +192,7 @@ class CampaignObjective:
             tt, ta = (np.empty(0), np.empty(0))
             if crun.titrant is not None and crun.recipe.ph.controlled:
                 tt, ta = resample_titrant(crun.titrant.time, crun.titrant.amount, end,
-                                           self.thinning.get("titrant"))
+                                          self.thinning.get("titrant"))
             source = self.campaign.runs[ri]
             self.log_readings.append({
                 "run": crun.name,
