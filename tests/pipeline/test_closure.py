@@ -263,3 +263,53 @@ def test_the_suggestion_weighs_a_candidates_closed_samples_like_the_campaigns(mo
             got = joint[i, s:s + k].T @ joint[i, s:s + k]
             np.testing.assert_allclose(got, want, rtol=1e-8, atol=1e-12 * np.abs(want).max())
         np.testing.assert_array_equal(joint[i, n_hplc:], own[i, n_hplc:])
+
+
+def test_whitened_candidate_coordinates_have_unit_independent_noise():
+    # closed samples simulated around one composition (two samples of K = 3, then two titrant
+    # readings kept as they are): in the whitened coordinates their noise has covariance I, the
+    # K - 1 values per sample a ranking that treats observations as independent needs
+    from speciakin.pipeline.closure import whitened_candidates
+
+    y = np.array([70.0, 25.0, 5.0, 40.0, 45.0, 15.0])
+    rng = np.random.default_rng(11)
+
+    def sd_of(v):
+        return np.hypot(0.1, 0.02 * v)
+
+    noisy = np.concatenate([_close(y[:3] + rng.standard_normal((100_000, 3)) * sd_of(y[:3])),
+                            _close(y[3:] + rng.standard_normal((100_000, 3)) * sd_of(y[3:])),
+                            np.tile([1e-3, 2e-3], (100_000, 1))], axis=1)
+    z = whitened_candidates(noisy, 6, 3, sd_of)
+    assert z.shape == (100_000, 2 + 2 + 2)
+    np.testing.assert_allclose(np.cov(z[:, :4].T), np.eye(4), atol=0.03)
+    np.testing.assert_array_equal(z[:, 4:], noisy[:, 6:])
+    # a failed draw (NaN) stays NaN and is left out of the sample's mean
+    noisy[0, 1] = np.nan
+    z2 = whitened_candidates(noisy, 6, 3, sd_of)
+    assert np.all(np.isnan(z2[0, :2])) and np.allclose(z2[1:, :2], z[1:, :2], atol=1e-3)
+
+
+@pytest.mark.parametrize("method", ["linear", "preposterior"])
+def test_the_suggestion_ranks_a_closed_campaign_with_every_method(tmp_path, method):
+    # the linear and pre-posterior methods see each candidate sample in whitened coordinates
+    # (unit sd); the titrant readings keep the error model's sd
+    from speciakin.data import example
+    from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
+    from speciakin.pipeline.fit import fit_campaign
+    from speciakin.pipeline.suggest import candidate_observables, candidate_runs, suggest_for_campaign
+
+    example.new_example(tmp_path / "example")
+    model, campaign, _ = load_inputs(resolve_inputs(tmp_path / "example"))
+    objective = make_objective(model, campaign)
+    fit = fit_campaign(objective, profiles=False)
+    theta = np.array([r["value"] for r in fit.rows()])[None, :] + np.zeros((12, 1))
+    runs, times = candidate_runs(objective, [{"setpoint_pH": 6.5}], 0, np.array([300.0, 900.0, 1800.0]))
+    obs = candidate_observables(objective, theta, runs, times, 0)
+    values, sd = obs.ranked()
+    n_tit = obs.values[0].shape[1] - obs.n_hplc[0]
+    assert values[0].shape[1] == 3 * (3 - 1) + n_tit and n_tit == 3
+    np.testing.assert_array_equal(sd(0, values[0])[:, :6], 1.0)
+    np.testing.assert_allclose(sd(0, values[0])[:, 6:], obs.sd(0, obs.values[0])[:, 9:])
+    result = suggest_for_campaign(objective, fit=fit, n_draws=60, method=method, ph_step=1.0)
+    assert result.candidates and all(np.isfinite(c.d_gain) for c in result.candidates)

@@ -41,7 +41,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["REPORTING_STEPS", "SUM_FLOOR", "reporting_step", "closed_samples", "closure_whitening",
-           "closed_covariance", "whitening_matrix", "ClosedSamples"]
+           "closed_covariance", "whitening_matrix", "whitened_candidates", "ClosedSamples"]
 
 #: Decimal steps [area%] a reported value may be rounded to, coarsest first.
 REPORTING_STEPS = (1.0, 0.1, 0.01, 0.001, 0.0001)
@@ -185,3 +185,32 @@ class ClosedSamples:
             closed = m * (self.observed_sum / total)[:, self.block]
         residual[:, self.rows] = (closed - observed[self.rows]) @ self.matrix.T
         return residual
+
+
+def whitened_candidates(values: np.ndarray, n_hplc: int, k: int, sd_of_hplc) -> np.ndarray:
+    """A candidate run's predicted observations in the whitened coordinates of closed samples.
+
+    ``values`` (n_draws, m): the area% of ``k`` compounds per sample for the
+    first ``n_hplc`` columns (sample by sample), then other observations
+    (titrant readings), kept as they are.  Each sample's k area% become the
+    k - 1 coordinates ``W[:k-1] @ y`` of :func:`whitening_matrix`, built at the
+    sample's mean prediction over the draws (a part below 0 by the integrator's
+    error taken as 0) with the sds ``sd_of_hplc(mean)``:
+    their noise is independent with unit sd to first order, so a ranking that
+    treats observations as independent (the suggestion's linear and
+    pre-posterior methods) weighs a closed sample as the fit does.  A sample
+    without a finite mean or a positive sd is divided by its sd value by value
+    (NaN values, which the ranking leaves out with their draws, stay NaN).
+    """
+    n_samples = n_hplc // k
+    blocks = []
+    for s in range(n_samples):
+        y = values[:, s * k:(s + 1) * k]
+        finite = np.all(np.isfinite(y), axis=1)
+        mean = np.maximum(y[finite].mean(axis=0), 0.0) if finite.any() else np.full(k, np.nan)
+        sd = sd_of_hplc(mean)
+        if k >= 2 and np.all(np.isfinite(mean)) and mean.sum() > 0.0 and np.all(sd > 0.0):
+            blocks.append(y @ whitening_matrix(mean, sd)[:k - 1].T)
+        else:
+            blocks.append(y / sd)
+    return np.concatenate(blocks + [values[:, n_hplc:]], axis=1)

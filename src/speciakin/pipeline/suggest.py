@@ -26,7 +26,7 @@ from speciakin.decision.outcomes import process_outcome_names
 from speciakin.decision.suggest import MIN_GAIN_PH, LocalSensitivity, SuggestResult, decision_draws, \
     draw_edges, rank_candidates
 from speciakin.errors import InputError, Location
-from speciakin.pipeline.closure import whitening_matrix
+from speciakin.pipeline.closure import whitened_candidates, whitening_matrix
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_runs
 
@@ -251,11 +251,34 @@ class CandidateObservables:
         out = np.empty_like(v)
         out[:, :k] = np.sqrt(em.absolute ** 2 + (em.relative * v[:, :k]) ** 2)
         if v.shape[1] > k:
-            tit = v[:, k:]
-            absolute = (em.titrant_absolute if em.titrant_absolute is not None
-                        else 0.005 * np.maximum(np.nanmax(np.abs(tit), axis=1, keepdims=True), 1e-12))
-            out[:, k:] = np.sqrt(absolute ** 2 + (em.titrant_relative * tit) ** 2)
+            out[:, k:] = self.titrant_sd(v[:, k:])
         return out
+
+    def titrant_sd(self, tit: np.ndarray) -> np.ndarray:
+        """Standard deviation of titrant readings ``tit`` (k, n) [mol] by the error model."""
+        em = self.objective.error_model
+        absolute = (em.titrant_absolute if em.titrant_absolute is not None
+                    else 0.005 * np.maximum(np.nanmax(np.abs(tit), axis=1, keepdims=True), 1e-12))
+        return np.sqrt(absolute ** 2 + (em.titrant_relative * tit) ** 2)
+
+    def ranked(self) -> tuple[list[np.ndarray], Callable[[int, np.ndarray], np.ndarray]]:
+        """The predictions and sd function the ranking weighs as independent: where the campaign's
+        area% are closed (``pipeline.closure``), each sample in its whitened coordinates (unit sd)."""
+        if not (self.area and self.objective.closed_samples > 0):
+            return self.values, self.sd
+        em, k = self.objective.error_model, len(self.columns)
+        values = [whitened_candidates(v, self.n_hplc[c], k,
+                                      lambda y: np.sqrt(em.absolute ** 2 + (em.relative * y) ** 2))
+                  for c, v in enumerate(self.values)]
+        n_tit = [v.shape[1] - self.n_hplc[c] for c, v in enumerate(self.values)]
+
+        def sd(c: int, v: np.ndarray) -> np.ndarray:
+            v = np.asarray(v, float)
+            out = np.ones_like(v)
+            if n_tit[c]:
+                out[:, -n_tit[c]:] = self.titrant_sd(v[:, -n_tit[c]:])
+            return out
+        return values, sd
 
 
 def candidate_observables(objective, draws, runs, times, template, progress=None) -> CandidateObservables:
@@ -347,8 +370,8 @@ def local_sensitivity(objective, obs: CandidateObservables, draws: np.ndarray, r
             raw = diff(values)
             for i in range(n):
                 for s0 in range(0, obs.n_hplc[c], k):
-                    y, d = at[i, s0:s0 + k], sd[i, s0:s0 + k]
-                    if k >= 2 and np.all(y > 0.0) and np.all(d > 0.0):
+                    y, d = np.maximum(at[i, s0:s0 + k], 0.0), sd[i, s0:s0 + k]
+                    if k >= 2 and y.sum() > 0.0 and np.all(d > 0.0):
                         jac_c[i, s0:s0 + k] = whitening_matrix(y, d) @ raw[i, s0:s0 + k]
         cands.append(jac_c)
     edges = margins = None
@@ -431,7 +454,8 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         sensitivity = local_sensitivity(objective, obs, draws, runs, times, t_index, decision, process)
     kwargs = dict(parameter_names=objective.names, decision=decision, batch=batch, seed=seed,
                   min_gain=min_gain if min_gain is not None else MIN_GAIN_PH, sensitivity=sensitivity)
-    result = rank_candidates(draws, obs.values, obs.sd, conditions, method=method,
+    values, noise_sd = obs.ranked()
+    result = rank_candidates(draws, values, noise_sd, conditions, method=method,
                              progress=say("rank candidates"), **kwargs)
     pkas = {n: v for n, v in site_pkas(objective, theta_centre).items() if n in objective.names}
     for score in {id(s): s for s in result.candidates + result.batch}.values():
@@ -442,7 +466,7 @@ def suggest_for_campaign(objective, *, fit=None, posterior=None, process=None, n
         notes = notes + [f"fisher method: linearised at {sensitivity.information.shape[0]} of the draws"]
     result.notes[:0] = [f"parameter draws: {source} ({draws.shape[0]} draws)"] + notes
     if check:
-        alt = rank_candidates(draws, obs.values, obs.sd, conditions, method=other,
+        alt = rank_candidates(draws, values, noise_sd, conditions, method=other,
                               progress=say(f"check ({other})"), **kwargs)
         order = [c.index for c in alt.candidates]
         mine = alt.candidates[order.index(result.candidates[0].index)]
