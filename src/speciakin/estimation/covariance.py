@@ -68,7 +68,7 @@ def covariance_from_jacobian(jacobian: np.ndarray, chisqr: float, n_residuals: i
         residuals are divided by known standard deviations.
     dof_reduction
         Degrees of freedom the data's structure takes beyond the parameters
-        (for example HPLC samples whose area% sum to 100; may be fractional):
+        (residuals that carry none; may be fractional):
         ``s^2 = chi2 / (n - dof_reduction - p)``.
 
     References

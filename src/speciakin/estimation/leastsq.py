@@ -144,12 +144,12 @@ def fit_least_squares(residual: Callable[[np.ndarray], np.ndarray], parameters: 
         residuals as already divided by known standard deviations (False).
     dof_reduction
         Chi-square that ``n`` residuals would carry in expectation under the
-        stated errors but these data do not, beyond the ``p`` parameters (for
-        HPLC samples whose area% are closed to 100 %, the model's area% of a
-        sample also sum to 100, so its residuals sum to a constant the data fix;
-        ``pipeline.closure.closed_samples``); may be fractional.  ``dof = n -
-        dof_reduction - p`` in the reduced chi-square, the covariance scale,
-        the t intervals and the profiles' threshold.
+        stated errors but these data do not, beyond the ``p`` parameters, for
+        a caller whose residuals have such a structure (may be fractional;
+        the campaign fit passes none: it whitens closed area% samples,
+        ``pipeline.closure``).  ``dof = n - dof_reduction - p`` in the reduced
+        chi-square, the covariance scale, the t intervals and the profiles'
+        threshold.
     one_sided
         Mask of residuals that are zero while the model stays on the allowed
         side (values reported below the LOQ: ``max(model - LOQ, 0) / sigma``).

@@ -142,7 +142,7 @@ class FitResult:
         ``sum r^2`` and ``chi2 / degrees_of_freedom``.
     degrees_of_freedom, dof_reduction, n_inactive
         ``n - n_inactive - dof_reduction - p`` (not always whole); what the
-        data's structure takes (closed area% samples) and the residuals that
+        data's structure takes (a caller's ``dof_reduction``) and the residuals that
         are zero at the optimum and that no parameter moves (values below the
         LOQ that the model keeps below it, a titrant reading of 0 before
         dosing; :func:`~speciakin.estimation.leastsq.fit_least_squares`).  A fit saved
@@ -195,7 +195,8 @@ class FitResult:
     starts: list[StartRecord]
     residuals: np.ndarray
     warnings: list[str] = field(default_factory=list)
-    #: chi-square expectation the data's structure takes beyond the parameters (closed area% samples)
+    #: chi-square expectation the data's structure takes beyond the parameters (a caller's ``dof_reduction``;
+    #: campaign fits saved before 2026-12-05 took it for closed area% samples)
     dof_reduction: float = 0.0
     #: residuals zero at the optimum that no parameter moves (they carry no degree of freedom)
     n_inactive: int = 0

@@ -25,7 +25,7 @@ Modules
 inputs       the campaign's input files: find and load them
 objective    model + campaign -> weighted residuals and log-likelihood
 fitted       the fitted parameters and the error model of the observations
-closure      area% samples closed to 100 %: the degrees of freedom they do not carry
+closure      area% samples closed to 100 %: weighed with their joint covariance
 fit          multistart least squares of a campaign (CampaignFitResult, fit.json)
 posterior    priors from the model file and the sampler on the campaign objective
 window       pH window of the planned process from fit or posterior draws

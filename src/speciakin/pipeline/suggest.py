@@ -245,14 +245,18 @@ class CandidateObservables:
 
     def sd(self, c: int, values: np.ndarray) -> np.ndarray:
         """Standard deviation of candidate ``c``'s observations ``values`` (k, m_c)."""
-        em = self.objective.error_model
         v = np.asarray(values, float)
         k = self.n_hplc[c]
         out = np.empty_like(v)
-        out[:, :k] = np.sqrt(em.absolute ** 2 + (em.relative * v[:, :k]) ** 2)
+        out[:, :k] = self.hplc_sd(v[:, :k])
         if v.shape[1] > k:
             out[:, k:] = self.titrant_sd(v[:, k:])
         return out
+
+    def hplc_sd(self, values: np.ndarray) -> np.ndarray:
+        """Standard deviation of HPLC values (area% or [mol/L]) by the error model."""
+        em = self.objective.error_model
+        return np.sqrt(em.absolute ** 2 + (em.relative * values) ** 2)
 
     def titrant_sd(self, tit: np.ndarray) -> np.ndarray:
         """Standard deviation of titrant readings ``tit`` (k, n) [mol] by the error model."""
@@ -266,10 +270,8 @@ class CandidateObservables:
         area% are closed (``pipeline.closure``), each sample in its whitened coordinates (unit sd)."""
         if not (self.area and self.objective.closed_samples > 0):
             return self.values, self.sd
-        em, k = self.objective.error_model, len(self.columns)
-        values = [whitened_candidates(v, self.n_hplc[c], k,
-                                      lambda y: np.sqrt(em.absolute ** 2 + (em.relative * y) ** 2))
-                  for c, v in enumerate(self.values)]
+        k = len(self.columns)
+        values = [whitened_candidates(v, self.n_hplc[c], k, self.hplc_sd) for c, v in enumerate(self.values)]
         n_tit = [v.shape[1] - self.n_hplc[c] for c, v in enumerate(self.values)]
 
         def sd(c: int, v: np.ndarray) -> np.ndarray:
@@ -362,12 +364,12 @@ def local_sensitivity(objective, obs: CandidateObservables, draws: np.ndarray, r
     for c, values in enumerate(moved.values):
         at = np.nan_to_num(obs.values[c][idx], nan=0.0)
         sd = obs.sd(c, at)
-        jac_c = diff(values) / sd[:, :, None]
+        raw = diff(values)
+        jac_c = raw / sd[:, :, None]
         if closed:
             # the lab closes its area% (pipeline.closure): a candidate's samples are weighed like the
             # campaign's, with the joint covariance of a closed composition
             k = len(obs.columns)
-            raw = diff(values)
             for i in range(n):
                 for s0 in range(0, obs.n_hplc[c], k):
                     y, d = np.maximum(at[i, s0:s0 + k], 0.0), sd[i, s0:s0 + k]
