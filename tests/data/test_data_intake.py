@@ -215,3 +215,89 @@ def test_held_set_point_no_ph_stat_can_hold(folder, value):
 def test_held_set_point_within_the_range_passes(folder, value):
     edit(folder, "runs.csv", 2, "pH setpoint", value)
     assert not [p for p in check_campaign(folder).errors if p.code == "implausible"]
+
+
+# ---------------------------------------------------------------- cells formatted as percentages
+# Reference for the rule: ECMA-376 (Office Open XML), Part 1, 18.8.30-18.8.31: built-in number
+# formats 9 "0%" and 10 "0.00%", and a "%" in a format code multiplies the number shown by 100;
+# the cell stores the unscaled number.  openpyxl (general-purpose library) writes and reads them.
+
+def _first_numeric_hplc_row(ws):
+    for row in range(2, ws.max_row + 1):
+        if isinstance(ws.cell(row, 5).value, (int, float)) and 0 < ws.cell(row, 5).value < 100:
+            return row
+    raise AssertionError("no quantified area% value")
+
+
+@pytest.mark.parametrize("number_format", ["0.00%", "0%", "0.0%;[Red]-0.0%"])
+def test_area_percent_in_a_percent_formatted_cell_is_the_percentage_shown(workbook, number_format):
+    import openpyxl
+
+    reference = load_campaign(workbook)
+    wb = openpyxl.load_workbook(workbook)
+    ws = wb["HPLC results"]
+    row = _first_numeric_hplc_row(ws)
+    shown = ws.cell(row, 5).value
+    ws.cell(row, 5).value = shown / 100.0  # what the workbook stores for a cell shown as e.g. 40.59 %
+    ws.cell(row, 5).number_format = number_format
+    wb.save(workbook)
+    report = check_campaign(workbook)
+    assert report.ok, report.report()
+    (p,) = _codes(report, "percent_format")
+    assert (p.location.sheet, p.location.row, p.location.column) == ("HPLC results", row, "E (value)")
+    assert p.message.startswith("1 area% value(s) in cells formatted as percentages were read as the percentages")
+    back = load_campaign(workbook)
+    for a, b in zip(reference.runs, back.runs):
+        np.testing.assert_allclose(b.hplc.value, a.hplc.value, rtol=1e-12)
+
+
+def test_percent_formats_are_told_from_literal_percent_signs():
+    from speciakin.data.cell_formats import percent_format
+
+    assert percent_format("0%") and percent_format("0.00%") and percent_format("#,##0.0%")
+    # a quoted or escaped sign, or one inside a bracketed code, shows a sign without scaling
+    assert not percent_format('0.00"%"') and not percent_format("0.00\\%") and not percent_format("General")
+    assert not percent_format(None) and not percent_format("[$%-409]0.00")
+
+
+def test_other_numbers_in_percent_formatted_cells_are_read_as_stored_with_a_note(workbook):
+    import openpyxl
+
+    reference = load_campaign(workbook)
+    wb = openpyxl.load_workbook(workbook)
+    ws = wb["Titrant log"]
+    ws.cell(3, 3).number_format = "0.00%"
+    ws.cell(4, 3).number_format = "0.00%"
+    wb.save(workbook)
+    report = check_campaign(workbook)
+    assert report.ok, report.report()
+    (p,) = _codes(report, "percent_format")
+    assert (p.location.sheet, p.location.row) == ("Titrant log", 3)
+    assert p.message.startswith("2 number(s) in cells formatted as percentages were read as stored")
+    back = load_campaign(workbook)
+    for a, b in zip(reference.runs, back.runs):
+        np.testing.assert_array_equal(a.titrant.volume if a.titrant is not None else [],
+                                      b.titrant.volume if b.titrant is not None else [])
+
+
+def test_percent_cells_are_found_when_openpyxl_reads_the_sheet(workbook):
+    """A date-formatted cell sends the sheet to openpyxl's own reader: the percent cells are found there too."""
+    import openpyxl
+
+    wb = openpyxl.load_workbook(workbook)
+    ws = wb["HPLC results"]
+    row = _first_numeric_hplc_row(ws)
+    ws.cell(row, 5).value = ws.cell(row, 5).value / 100.0
+    ws.cell(row, 5).number_format = "0.00%"
+    ws.cell(1, 7).value = "my note"
+    ws.cell(2, 7).value = datetime.datetime(2026, 3, 4, 9, 30)  # an extra column of the user's (ignored)
+    wb.save(workbook)
+    from speciakin.data.cell_formats import percent_styles
+    from speciakin.data.reader import fast_sheet_rows, read_workbook
+
+    ro = openpyxl.load_workbook(workbook, read_only=True, data_only=True)
+    assert fast_sheet_rows(ro["HPLC results"], set(), percent_styles(ro)) is None
+    tables, _ = read_workbook(workbook)
+    assert tables["HPLC results"].percent_cells == {(row, 4)}
+    (p,) = _codes(check_campaign(workbook), "percent_format")
+    assert p.location.row == row and "area% value(s)" in p.message

@@ -114,6 +114,11 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
                         code="unmapped_compound")
             continue
         f = factor if kinds[k] == "concentration" else 1.0
+        if (kinds[k] == "area_percent" and (row, col) in t.percent_cells and isinstance(raw, (int, float))
+                and not isinstance(raw, bool)):
+            # a cell formatted as a percentage shows 40.59 % and stores 0.4059: area% is the number shown
+            t.percent_read.append((row, col, float(raw)))
+            raw = 100.0 * raw
         value, censored, cell_loq, err = parse_signal(raw, f)
         if has_decimal_comma(raw):  # '7,5' and '<0,05' alike
             t.comma_cells.append((row, col, raw))

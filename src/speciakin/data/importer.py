@@ -146,6 +146,7 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
             runs.append(built)
     for table in found.values():
         comma_note(table, c)
+        percent_note(table, c)
     if c.has_errors:
         return None
     sheets_info = {key: {"file": t.file, "sheet": t.sheet,
@@ -236,6 +237,29 @@ def comma_note(table: RawTable, c: ProblemCollector) -> None:
     first = f"the first, '{text.strip()}', as {text.strip().replace(',', '.')}"
     c.warning(f"{n} number(s) written with a decimal comma were read as decimals ({first})",
               table.location(row, col), None, "decimal points, or decimal commas throughout", code="decimal_comma")
+
+
+def percent_note(table: RawTable, c: ProblemCollector) -> None:
+    """One note per sheet for numbers in cells formatted as percentages: area% values are read as
+    the percentage shown (the workbook stores 40.59 % as 0.4059), any other number as stored."""
+    if table.percent_read:
+        row, col, stored = min(table.percent_read)
+        n = len(table.percent_read)
+        c.warning(f"{n} area% value(s) in cells formatted as percentages were read as the percentages shown "
+                  f"(the first, stored as {stored:g} and shown as {100.0 * stored:g} %, as {100.0 * stored:g} area%)",
+                  table.location(row, col), stored, "area% written as plain numbers (e.g. 40.59)",
+                  code="percent_format")
+    converted = {(row, col) for row, col, _ in table.percent_read}
+    others = sorted(cell for cell in table.percent_cells - converted
+                    if 1 < cell[0] and cell[1] < len(table.headers) and table.headers[cell[1]])
+    if others:
+        row, col = others[0]
+        stored = next((r[col] for r, number in zip(table.rows, table.row_numbers) if number == row), None)
+        shown = f", shown as {100.0 * stored:g} %" if isinstance(stored, (int, float)) else ""
+        c.warning(f"{len(others)} number(s) in cells formatted as percentages were read as stored (the first, "
+                  f"{stored!r}{shown}); only area% values are read as the percentage shown",
+                  table.location(row, col), stored, "numbers in cells with a number format, not a percentage",
+                  code="percent_format")
 
 
 # --------------------------------------------------------------------- sheets

@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from speciakin._cells import unguard_csv_text
+from speciakin.data.cell_formats import percent_styles, values_noting_percent
 from speciakin.data.file_kinds import column_index, decode_csv, formulas_without_result, workbook_kind_problem
 from speciakin.errors import DataError, Location, ProblemCollector
 
@@ -67,7 +68,10 @@ class RawTable:
     (read as blank); ``notes`` holds (message, code) remarks about the whole
     file as (severity, message, code), severity "fatal" meaning the sheet's
     columns cannot be trusted (cells shifted); ``comma_cells`` collects (row, 0-based column, text) of numbers
-    written with a decimal comma as they are converted.
+    written with a decimal comma as they are converted.  ``percent_cells`` holds (row, 0-based column)
+    of the numbers in cells formatted as percentages (the workbook stores 40.59 % as 0.4059), and
+    ``percent_read`` collects (row, 0-based column, stored number) of those a sheet reader took as
+    the percentage shown (area%; the rest are read as stored, :func:`percent_format`).
     """
 
     file: str
@@ -78,6 +82,8 @@ class RawTable:
     formula_cells: list[tuple[int, int, str]] = field(default_factory=list)
     notes: list[tuple[str, str, str]] = field(default_factory=list)
     comma_cells: list[tuple[int, int, str]] = field(default_factory=list)
+    percent_cells: set[tuple[int, int]] = field(default_factory=set)
+    percent_read: list[tuple[int, int, float]] = field(default_factory=list)
 
     def location(self, row: int | None = None, column: int | None = None) -> Location:
         col = None
@@ -138,8 +144,13 @@ _CELL_START = re.compile(rb"<c[ >/]")
 _TEXT = re.compile(rb"<t(?:\s[^>]*)?>(.*?)</t>", re.S)
 
 
-def fast_sheet_rows(ws) -> list[tuple] | None:
+def fast_sheet_rows(ws, percent: set[tuple[int, int]] | None = None,
+                    styles: set[int] | None = None) -> list[tuple] | None:
     """Cell values of a read-only openpyxl worksheet by scanning its XML once.
+
+    With ``percent`` and ``styles`` (:func:`percent_styles`), the (row,
+    0-based column) of every number in a cell of one of those styles is
+    added to ``percent``.
 
     openpyxl's streaming reader builds several Python objects per cell; for
     logs of 10^5 rows this scan is several times faster.  It returns None
@@ -169,6 +180,8 @@ def fast_sheet_rows(ws) -> list[tuple] | None:
             if style and int(style) in date_styles:
                 return None
             value: Any = float(raw)
+            if styles and style and int(style) in styles and percent is not None:
+                percent.add((int(row_text), column_index(letters)))
         elif kind == b"s":
             if not raw:
                 continue
@@ -230,10 +243,16 @@ def read_workbook(path: Path) -> tuple[dict[str, RawTable], SourceFile]:
         raise DataError("not a readable XLSX workbook (" + (str(exc) or type(exc).__name__) + ")",
                         Location(file=str(path)), expected="a workbook saved as .xlsx") from None
     tables: dict[str, RawTable] = {}
+    styles = percent_styles(wb)
     try:
         for ws in wb.worksheets:
-            rows = fast_sheet_rows(ws)
-            table = _table(str(path), ws.title, rows if rows is not None else ws.iter_rows(values_only=True))
+            percent: set[tuple[int, int]] = set()
+            rows = fast_sheet_rows(ws, percent, styles)
+            if rows is None:
+                percent.clear()
+                rows = values_noting_percent(ws, styles, percent) if styles else ws.iter_rows(values_only=True)
+            table = _table(str(path), ws.title, rows)
+            table.percent_cells = percent
             table.formula_cells = formulas_without_result(ws)
             tables[ws.title] = table
     finally:
