@@ -86,6 +86,12 @@ FROM_NODES = np.linalg.inv(np.vander(NODES, 4, increasing=True))
 #: extremum of the node polynomial T_4(x)/8, where the error of a smooth
 #: function's cubic is largest).
 CHECKS = np.array([0.0])
+# The constants are read-only, as numba types a global array inside compiled code: a Python-level caller
+# that passes them on (a benchmark running the drivers' Python copies) then uses the compiled variants
+# the kernel made, instead of compiling writable-array variants into the shared cache.
+for _constant in (NODES, FROM_NODES, CHECKS):
+    _constant.setflags(write=False)
+del _constant
 #: Largest coefficient error allowed, relative to the coefficient's size on the segment (module notes).
 COEFFICIENT_RTOL = 1e-9
 #: Halvings of a segment before the coefficients are declared not smooth.
