@@ -279,6 +279,10 @@ def test_moiety_imbalance_is_only_a_warning():
     problems = validate_model(m)
     assert [p.severity for p in problems] == ["warning"]
     assert problems[0].location.key == "step.attack"
+    assert problems[0].code == "moiety_balance" and "core: 1 in the reactants, 2 in the products" in problems[0].message
+    # the parsed model carries its file's warnings, located by key and line, for check to report
+    (w,) = m.warnings
+    assert (w.code, w.location.key) == ("moiety_balance", "step.attack") and w.location.line > 0
 
 
 def test_sample_outside_the_run():

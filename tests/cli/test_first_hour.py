@@ -222,3 +222,29 @@ def test_check_counts_the_workbook_when_the_model_file_has_an_error(tmp_path, ca
     assert report["imported"] is False and report["counts"]["errors"] >= 1
     assert main(["check", str(folder)]) == 1
     assert "Runs: not counted (the workbook did not import: see the errors)" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("edit, code, key", [
+    # a co-product left out: the acyl moiety of the anhydride (2) is not conserved (1 in the products)
+    (('products = { ALKYL_AMIDE = 1, ACID = 1 }', 'products = { ALKYL_AMIDE = 1 }'), "moiety_balance",
+     "step.acylation_alkyl"),
+    # a pKa no site in water has (range -2 to 16: common practice, docs/data.md)
+    (("pka = 9.9", "pka = 40"), "pka_range", "molecule.SUB.site[1].pka"),
+])
+def test_check_reports_the_model_files_warnings(tmp_path, capsys, edit, code, key):
+    # the model file's warnings reach check's report with their key and line, beside the workbook's
+    folder = tmp_path / "c"
+    assert main(["new", str(folder), "--example"]) == 0
+    p = folder / "model.toml"
+    text = p.read_text()
+    assert edit[0] in text
+    p.write_text(text.replace(edit[0], edit[1]))
+    capsys.readouterr()
+    assert main(["check", str(folder), "--format", "json"]) == 0
+    found = [q for q in json.loads(capsys.readouterr().out)["problems"] if q["code"] == code]
+    assert len(found) == 1 and found[0]["severity"] == "warning", found
+    assert found[0]["location"]["key"] == key and found[0]["location"]["line"] > 0
+    assert found[0]["location"]["file"].endswith("model.toml")
+    capsys.readouterr()
+    assert main(["check", str(folder)]) == 0
+    assert "OK with warnings" in capsys.readouterr().out

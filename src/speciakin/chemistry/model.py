@@ -414,6 +414,10 @@ class Model:
         Runs declared in the model file (for ``speciakin simulate``).
     source
         Path of the model file, or "" when built in code.
+    warnings
+        The model file's warnings (``errors.Problem``: key, line, value,
+        expected), left by ``modelfile.parse_model`` for ``speciakin check``
+        to report; not part of the model's identity (not compared).
     """
 
     name: str
@@ -428,6 +432,7 @@ class Model:
     extra: Mapping[str, Any] = field(default_factory=dict)
     pkw: Quantity | None = None
     medium: str = ""
+    warnings: tuple[Any, ...] = field(default=(), compare=False, repr=False)
 
     def molecule(self, name: str) -> Molecule:
         for m in self.molecules:

@@ -133,6 +133,8 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         else:
             model_obj = model
             report.model = getattr(model, "source", "") or getattr(model, "name", "model")
+        if model_obj is not None:  # the model file's warnings (pKa range, moiety balance, ...)
+            c.problems.extend(getattr(model_obj, "warnings", ()))
     # the workbook is imported on its own collector (a model file with errors must not stop it), after
     # the model file's problems in the report
     model_file_problems, c = c.problems, ProblemCollector()

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import re
 import tomllib
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -153,7 +154,8 @@ def parse_model(text: str, source: str = "<string>", base_dir: str | Path | None
             Problem(problem.message, location, problem.value, problem.expected, problem.severity,
                     problem.code))
     reader.collector.raise_if_errors(ModelFileError)
-    return model
+    # the warnings travel with the model (``Model.warnings``): check reports them with the workbook's
+    return replace(model, warnings=tuple(reader.collector.warnings))
 
 
 def _related(a: str, b: str) -> bool:

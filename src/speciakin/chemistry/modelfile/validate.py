@@ -114,7 +114,7 @@ def _molecule(ch: _Checker, m: Molecule) -> None:
             # Koper, J. Phys. Chem. 1992); a negative W means cooperative binding
             ch.c.warning("negative interaction W: protonating one site would raise the other's pKa",
                          Location(key=sub_path(ip, "w")), inter.w.value,
-                         "W >= 0 for charge repulsion (check the sign)")
+                         "W >= 0 for charge repulsion (check the sign)", code="negative_interaction")
 
 
 def _step(ch: _Checker, model: Model, step: Step, molecules: dict[str, Molecule]) -> None:
@@ -162,18 +162,21 @@ def _moiety_balance(ch: _Checker, step: Step, molecules: dict[str, Molecule], pa
         return
     if not all(p in molecules for p, _ in step.products):
         return
-    balance: Counter[str] = Counter()
+    before: Counter[str] = Counter()
+    after: Counter[str] = Counter()
     for r in step.reactants:
         if r.species in molecules:
             for moiety, count in molecules[r.species].moieties.items():
-                balance[moiety] -= r.coefficient * count
+                before[moiety] += r.coefficient * count
     for p, n in step.products:
         for moiety, count in molecules[p].moieties.items():
-            balance[moiety] += n * count
-    off = {k: v for k, v in balance.items() if abs(v) > 1e-9}
+            after[moiety] += n * count
+    off = {k: after[k] - before[k] for k in sorted(set(before) | set(after)) if abs(after[k] - before[k]) > 1e-9}
     if off and any(molecules[p].moieties for p, _ in step.products):
-        ch.c.warning("moieties are not conserved by this step", Location(key=path), off,
-                     "products carrying the same moieties as the reactants")
+        sides = "; ".join(f"{k}: {before[k]:g} in the reactants, {after[k]:g} in the products" for k in off)
+        ch.c.warning(f"moieties are not conserved by this step ({sides})", Location(key=path), off,
+                     "products carrying the same moieties as the reactants (a co-product left out?)",
+                     code="moiety_balance")
 
 
 def _run(ch: _Checker, model: Model, run: Run, species: set[str], ions: set[str]) -> None:
