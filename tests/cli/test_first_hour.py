@@ -248,3 +248,8 @@ def test_check_reports_the_model_files_warnings(tmp_path, capsys, edit, code, ke
     capsys.readouterr()
     assert main(["check", str(folder)]) == 0
     assert "OK with warnings" in capsys.readouterr().out
+    # a fit run without check says it too, first among the fit's warnings (fit.txt, fit.json, the report)
+    assert main(["fit", str(folder), "--starts", "1", "--no-profiles", "--quiet"]) == 0
+    fitted = json.loads((latest_result(folder / "results", having="fit") / "fit.json").read_text())
+    first = fitted["warnings"][0]
+    assert first.startswith("model file: ") and f"key '{key}'" in first, fitted["warnings"]

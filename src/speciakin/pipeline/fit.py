@@ -359,7 +359,9 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
                             one_sided=objective.one_sided)
     t_fit = time.perf_counter() - t0
     mapping = dict(zip(objective.keys, objective.names))
-    warnings = [_rename(w, mapping) for w in fit.warnings]
+    # the model file's own warnings first (a step that does not conserve its moieties, ...): they bear on the fit
+    warnings = [f"model file: {p.describe()}" for p in getattr(objective.model, "warnings", ())]
+    warnings += [_rename(w, mapping) for w in fit.warnings]
     for label, stats in fit.group_residual_sd.items():
         if stats["count"] >= 3 and stats["rms"] > MISFIT_RMS:
             warnings.append(f"{label}: residuals are {stats['rms']:.1f} times the stated measurement error; "
