@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import pytest
 
-from data_factory import csv_campaign, delete_rows, edit, read_csv
+from data_factory import csv_campaign, delete_rows, edit, read_csv, write_csv
 from speciakin.data import check_campaign, load_campaign
 from speciakin.data.validate import MASS_BALANCE_TOLERANCE
 
@@ -132,3 +132,21 @@ def test_every_sample_early_in_a_long_run(folder):
     p = _warning(folder, "sampling_span")
     assert (p.location.sheet, p.location.column) == ("hplc_results", "B (time [min])")
     assert p.value == pytest.approx(120.0) and "within the first 120 min of the run's 10000 min" in p.message
+
+
+@pytest.mark.parametrize("unit, factor", [("h", 1 / 60.0), ("s", 60.0)])
+def test_a_late_sample_is_told_in_the_unit_its_cell_is_written_in(folder, unit, factor):
+    """The value a message names is the one the cell shows: with the HPLC times in hours (or seconds),
+    a sample at 120 min reads 2 (or 7200), and the expected time names that unit."""
+    rows = read_csv(folder, "hplc_results.csv")
+    col = rows[0].index("time [min]")
+    rows[0][col] = f"time [{unit}]"
+    for row in rows[1:]:
+        row[col] = repr(float(row[col]) * factor)
+    write_csv(folder, "hplc_results.csv", rows)
+    edit(folder, "runs.csv", 2, "duration [min]", "60")
+    edit(folder, "runs.csv", 2, "sample volume [mL]", "")  # no liquid removed: the late sample is only noted
+    p = _warning(folder, "after_end")
+    _at(p, "hplc_results", 22, f"B (time [{unit}])")
+    assert p.value == pytest.approx(120.0 * factor)
+    assert f"[{unit}]" in p.expected

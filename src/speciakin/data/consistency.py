@@ -92,8 +92,10 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         has_duration = "duration" in campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {})
         c.error(f"run {run.name} lasts {end / 86400.0:.3g} days", loc("runs", run.row, "duration" if has_duration
                                                                           else "run"),
-                end / 60.0, f"at most {MAX_RUN_TIME / 86400.0:g} days [min]; check the time values and units "
-                "(the run ends at its duration or else at its last observation)", code="implausible")
+                _written(campaign, "runs", end, "duration")[0],
+                f"at most {MAX_RUN_TIME / 86400.0:g} days [{_written(campaign, 'runs', 0.0, 'duration')[1]}]; "
+                "check the time values and units (the run ends at its duration or else at its last observation)",
+                code="implausible")
         return
     _sampling_span(campaign, run, end, c)
     rows = run.dose_rows or (None,) * len(r.doses)
@@ -101,8 +103,9 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         if dose.end > end:
             col = "end" if dose.end != dose.start else "start"
             c.error(f"dose of {dose.species} in run {run.name} ends after the run ends ({end_min})",
-                    loc("dosing", row, col), dose.end / 60.0,
-                    "a time <= the run's duration [min]; check the time unit in the header", code="after_end")
+                    loc("dosing", row, col), _written(campaign, "dosing", dose.end, col)[0],
+                    f"a time <= the run's duration [{_written(campaign, 'dosing', 0.0, col)[1]}]; check the time unit "
+                    "in the header", code="after_end")
     if r.withdrawals:
         late = np.flatnonzero(run.hplc.time > end)
         if late.size:
@@ -110,27 +113,28 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
             more = f"; {late.size} values in all" if late.size > 1 else ""
             c.error(f"HPLC sample of run {run.name} taken after the run ends ({end_min}) while each sample "
                     f"removes {r.withdrawals[0].volume * 1e3:g} mL{more}",
-                    loc("hplc", int(run.hplc.rows[k]), "time"), float(run.hplc.time[k]) / 60.0,
-                    "a time within the run's duration [min]; check the time unit in the headers of the HPLC "
-                    "results and the Runs sheet", code="after_end")
+                    loc("hplc", int(run.hplc.rows[k]), "time"), _written(campaign, "hplc", run.hplc.time[k])[0],
+                    f"a time within the run's duration [{_written(campaign, 'hplc', 0.0)[1]}]; check the time unit "
+                    "in the headers of the HPLC results and the Runs sheet", code="after_end")
     for log, what in ((run.ph_log, "pH"), (run.temperature_log, "temperature")):
         if log is None or not len(log):
             continue
         k = _first_repeat(log.time)
         if k >= 0:
             c.error(f"two {what} readings of run {run.name} at the same time", loc("probe", int(log.rows[k]), "time"),
-                    float(log.time[k]) / 60.0, "one reading per time [min]", code="duplicate_time")
+                    _written(campaign, "probe", log.time[k])[0],
+                    f"one reading per time [{_written(campaign, 'probe', 0.0)[1]}]", code="duplicate_time")
     ph = r.ph
     if ph.mode == "logged" and run.ph_log is not None and len(run.ph_log):
         log = run.ph_log
         first, last = int(np.argmin(log.time)), int(np.argmax(log.time))
         if log.time[first] > 0:
             c.error(f"the pH log of logged run {run.name} starts after time zero",
-                    loc("probe", int(log.rows[first]), "time"), float(log.time[first]) / 60.0,
+                    loc("probe", int(log.rows[first]), "time"), _written(campaign, "probe", log.time[first])[0],
                     "a first reading at time 0 (the model needs the pH over the whole run)", code="log_coverage")
         if log.time[last] < end:
             c.error(f"the pH log of logged run {run.name} ends before the run ends ({end_min})",
-                    loc("probe", int(log.rows[last]), "time"), float(log.time[last]) / 60.0,
+                    loc("probe", int(log.rows[last]), "time"), _written(campaign, "probe", log.time[last])[0],
                     "readings up to the end of the run, or a shorter duration; check the time units",
                     code="log_coverage")
     if ph.mode == "held":
@@ -149,6 +153,11 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                     "the concentration of the titrant solution (> 0)", code="missing_value")
 
 
+def _written(campaign: Campaign, sheet: str, seconds: float, column: str = "time") -> tuple[float, str]:
+    """A time [s] as its cell shows it (the header's unit) and that unit: messages name the cell's own value."""
+    return campaign.time_as_written(sheet, seconds, column)
+
+
 def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemCollector) -> None:
     """Warning when every HPLC sample of a run with a stated duration falls in its first few percent."""
     times = np.unique(run.hplc.time[np.isfinite(run.hplc.time)])
@@ -158,7 +167,8 @@ def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemC
         k = int(np.argmax(run.hplc.time))
         c.warning(f"every HPLC sample of run {run.name} is taken within the first {times[-1] / 60.0:.3g} min of "
                   f"the run's {end / 60.0:g} min", campaign.locate("hplc", int(run.hplc.rows[k]), "time"),
-                  float(run.hplc.time[k]) / 60.0, f"samples spread over the run; check the time unit in the header "
+                  _written(campaign, "hplc", run.hplc.time[k])[0], f"samples spread over the run; check the time unit "
+                  "in the header "
                   "of the HPLC results (min, s or h)", code="sampling_span")
 
 

@@ -56,8 +56,8 @@ def _log_order(campaign: Campaign, run: CampaignRun, log: TimeSeries | None, she
     if k >= 0:
         more = f" ({n} readings in all)" if n > 1 else ""
         c.warning(f"{what} times of run {run.name} are not increasing{more}",
-                  _loc(campaign, sheet, int(log.rows[k]), "time"), log.time[k] / 60.0,
-                  "times in increasing order [min]", code="time_order")
+                  _loc(campaign, sheet, int(log.rows[k]), "time"), campaign.time_as_written(sheet, log.time[k])[0],
+                  f"times in increasing order [{campaign.time_as_written(sheet, 0.0)[1]}]", code="time_order")
 
 
 def mass_balance(run: CampaignRun, units_per_molecule: dict[str, float]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -128,8 +128,8 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
         if k >= 0:
             more = f" ({n} values in all)" if n > 1 else ""
             c.warning(f"HPLC sampling times of run {run.name} are not increasing{more}",
-                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / 60.0,
-                      "times in increasing order [min]", code="time_order")
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), campaign.time_as_written("hplc", h.time[k])[0],
+                      f"times in increasing order [{campaign.time_as_written('hplc', 0.0)[1]}]", code="time_order")
         seen: dict[tuple[float, str], int] = {}
         repeats: list[tuple[float, str, int, int]] = []
         for t, comp, row in zip(h.time.tolist(), h.compound.tolist(), h.rows.tolist()):
@@ -141,15 +141,17 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
             t, comp, row, first = repeats[0]
             more = f"; {len(repeats)} repeated values in all" if len(repeats) > 1 else ""
             c.warning(f"duplicate sample time for {comp} in run {run.name} (also row {first}){more}",
-                      _loc(campaign, "hplc", row, "time"), t / 60.0, "one value per compound and time [min]",
+                      _loc(campaign, "hplc", row, "time"), campaign.time_as_written("hplc", t)[0],
+                      f"one value per compound and time [{campaign.time_as_written('hplc', 0.0)[1]}]",
                       code="duplicate_time")
         late = np.flatnonzero(h.time > run.recipe.end_time)
         if late.size and not run.recipe.withdrawals:  # with withdrawals it is an error (consistency.py)
             k = int(late[0])
             c.warning(f"sample taken after the run ends ({run.recipe.end_time / 60.0:g} min)"
                       + (f"; {late.size} values in all" if late.size > 1 else ""),
-                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / 60.0,
-                      "a time within the run's duration [min]", code="after_end")
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), campaign.time_as_written("hplc", h.time[k])[0],
+                      f"a time within the run's duration [{campaign.time_as_written('hplc', 0.0)[1]}]",
+                      code="after_end")
         ap = h.kind == "area_percent"
         for t in np.unique(h.time[ap]):
             idx = np.flatnonzero(ap & (h.time == t))
@@ -190,7 +192,7 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
                 row = int(log.rows[np.flatnonzero(log.time == t[k + 1])[0]])
                 c.warning(f"gap of {dt[k] / 60.0:.3g} min in the pH log of run {run.name}"
                           + (f" ({gap.size} gaps in all)" if gap.size > 1 else ""),
-                          _loc(campaign, "probe", row, "time"), t[k + 1] / 60.0,
+                          _loc(campaign, "probe", row, "time"), campaign.time_as_written("probe", t[k + 1])[0],
                           f"readings at most {GAP_FACTOR:g} x the median interval "
                           f"({median:g} s) apart, or {GAP_MINIMUM / 60:g} min", code="log_gap")
         sp = run.recipe.ph.setpoint
