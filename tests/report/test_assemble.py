@@ -301,6 +301,8 @@ def test_nothing_but_model_and_campaign(setup, tmp_path):
     text = json.dumps(doc.to_dict())
     assert NOT_RUN in text
     assert doc.callouts("decision")[0].title == "pH window not computed"
+    # it says how to get the window: the command, and that the report is then written again
+    assert "'speciakin window'" in text and "write the report again" in text
     paths = render_all(doc, tmp_path, formats=("html", "xlsx"))
     assert paths["html"].exists()
 

@@ -125,5 +125,8 @@ def run(args) -> int:
         print(f"wrote {path}")
     if results.missing:
         print("not run (reported as such): " + ", ".join(results.missing))
+        if "window" in results.missing:
+            print("  next: compute the pH window ('speciakin window <campaign folder>'), then run "
+                  "'speciakin report' again")
     print_notes(rec)
     return 0

@@ -111,8 +111,10 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     """The "Decision summary" section, opened by a decision callout that states the trust status."""
     blocks: list = []
     if window is None:
-        text = ("pH window: not run. No process decision can be stated yet; run the window computation "
-                "on the fitted model and a process file.")
+        text = ("pH window: not run. No process decision can be stated yet; compute the pH window on the "
+                "fitted model and a process file ('speciakin window' with the campaign folder, which takes the newest "
+                "fit and posterior under its results folder, or the workbench's window job), then write the report "
+                "again.")
         if fit is None:
             text += " Least-squares fit: not run."
         blocks.append(Callout("decision", "pH window not computed", text))
