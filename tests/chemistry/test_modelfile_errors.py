@@ -45,12 +45,13 @@ def test_a_decimal_comma_is_named_at_its_line():
 def test_unknown_key_lists_allowed_ones():
     text = BASE.replace('kind = "base"\npka = 9.0', 'kind = "base"\npkaa = 9.0')
     n = line_of(text, "pkaa")
-    check(text, rf"line {n}, key 'molecule\.S\.site\[1\]\.pkaa': unknown key \(value 'pkaa'; "
+    check(text, rf"line {n}, key 'molecule\.S\.site\[1\]\.pkaa': unknown key: did you mean 'pka'\? \(value 'pkaa'; "
                 r"expected one of: name, kind, pka, enthalpy\)")
 
 
 def test_unknown_top_level_table():
-    check(BASE + "\n[moleculez.X]\n", r"key 'moleculez': unknown key .*expected one of: model, ions, molecule")
+    check(BASE + "\n[moleculez.X]\n", r"key 'moleculez': unknown key: did you mean 'molecule'\? "
+                                      r".*expected one of: model, ions, molecule")
 
 
 def test_wrong_type():
@@ -309,3 +310,20 @@ def test_interaction_with_unknown_site():
     n = line_of(text, '"N9"')
     check(text, rf"line {n}, key 'molecule\.S\.interaction\[1\]\.sites': unknown site of molecule 'S' "
                 r"\(value 'N9'; expected one of: N1, N2\)")
+
+
+def test_a_key_in_other_letter_case_is_told_its_spelling_once():
+    # 'pKa' is how the trade writes it; the model file's keys are lower case: one error that names the
+    # spelling, and no second 'missing key' error for the same site
+    text = BASE.replace("pka = 9.0", "pKa = 9.0", 1)
+    n = line_of(text, "pKa = 9.0")
+    err = check(text, rf"line {n}, key 'molecule\.S\.site\[\d\]\.pKa': unknown key: keys are written in lower case, "
+                      r"write 'pka'")
+    assert not [p for p in err.problems if p.code == "missing"], [p.describe() for p in err.problems]
+    # nor a later error of a step that names the site (the site keeps its name)
+    assert len(err.problems) == 1, [p.describe() for p in err.problems]
+
+
+def test_a_misspelt_key_is_told_the_close_one():
+    text = BASE.replace("pka = 9.0", "pka = 9.0\nenthalpie = 40", 1)
+    check(text, r"unknown key: did you mean 'enthalpy'\?")

@@ -192,6 +192,17 @@ def test_every_error_names_the_key(tmp_path, old, new, key, words):
     assert path.read_text(encoding="utf-8") == text     # input never modified
 
 
+def test_a_key_in_other_letter_case_or_misspelt_is_told_its_spelling(tmp_path):
+    # one error for 'Hold_time', naming the spelling (no second 'missing' error), and a close match named
+    text = BASE.replace('hold_time = "1 h"', 'Hold_time = "1 h"').replace("equivalents = 1.05", "equivalent = 1.05")
+    with pytest.raises(ModelFileError) as info:
+        load_process(write(tmp_path, text))
+    found = {p.location.key: p.message for p in info.value.problems}
+    assert found["process.Hold_time"] == "unknown key: keys are written in lower case, write 'hold_time'"
+    assert found["process.equivalent"] == "unknown key: did you mean 'equivalents'?"
+    assert "process.hold_time" not in found
+
+
 def test_line_numbers_and_several_problems_at_once(tmp_path):
     text = BASE.replace('volume = "500 mL"', 'volume = "500 apples"').replace(
         "equivalents = 1.05", "equivalents = -1")

@@ -11,6 +11,7 @@ import re
 from typing import Any, Mapping
 
 from speciakin.chemistry.model import START_ADJUSTMENTS
+from speciakin.chemistry.modelfile.reader import spelling_hint
 from speciakin.decision.process_plan import FACTOR_KINDS, SecondFactor
 from speciakin.decision.specs import OPERATORS, OUTCOME_KINDS, Specification
 from speciakin.errors import Location, ProblemCollector
@@ -108,7 +109,8 @@ class Reader:
                            self.where(f"{prefix}.{key}", table, key, index), key,
                            f"'{renamed[key]}' (same content)", code="unknown_key")
             elif key not in allowed:
-                self.error("unknown key", self.where(f"{prefix}.{key}", table, key, index), key,
+                self.error("unknown key" + spelling_hint(key, tuple(allowed)),
+                           self.where(f"{prefix}.{key}", table, key, index), key,
                            f"one of {', '.join(allowed)}", code="unknown_key")
 
     def quantity(self, data: Mapping[str, Any], key: str, dimension: str, prefix: str,
@@ -117,7 +119,8 @@ class Reader:
                  index: int | None = None) -> float | None:
         path = f"{prefix}.{key}"
         if key not in data:
-            if required:
+            # a key written in other letter case ('Dosing_time') has its unknown-key error, naming the spelling
+            if required and not any(str(k).lower() == key.lower() for k in data):
                 self.error("missing", self.where(path, table, None, index), None,
                            PROCESS_KEYS.get(key, dimension), code="missing")
             return default

@@ -295,9 +295,11 @@ class _Builder:
             return None
         name = r.string(table, "name", path)
         kind = r.string(table, "kind", path)
-        if name is None or kind is None or "pka" not in table:
+        if name is None or kind is None:
             return None
         owner = f"{molecule}.{name}"
+        if "pka" not in table:  # reported (missing, or written 'pKa'); the site keeps its name for the steps
+            return Site(name, kind, Quantity(_NAN, "", f"pKa[{owner}]", shift=True))
         pka = read_quantity(r, table["pka"], sub_path(path, "pka"), "pka", owner,
                             lambda raw, sub: r.number(raw, sub, what="a pKa value (number)"))
         enthalpy = Quantity(0.0, "kJ/mol", f"dH[{owner}]")

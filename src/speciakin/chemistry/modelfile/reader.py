@@ -8,6 +8,7 @@ on and every mistake of the file is reported at once.
 
 from __future__ import annotations
 
+import difflib
 import math
 from typing import Any, Iterable, Mapping
 
@@ -16,9 +17,19 @@ from speciakin.chemistry.modelfile.units import BARE_NUMBER_UNITS
 from speciakin.errors import Location, ProblemCollector
 from speciakin.units import DIMENSIONS, parse_quantity
 
-__all__ = ["TableReader"]
+__all__ = ["TableReader", "spelling_hint"]
 
 _TYPE_WORDS = {dict: "a table", list: "an array", str: "a text string", bool: "true or false"}
+
+
+def spelling_hint(key: str, allowed: tuple[str, ...]) -> str:
+    """'' or a hint naming the allowed key ``key`` was meant to be: the same letters in lower case
+    (keys are lower case: 'pKa' is written 'pka'), or a close spelling."""
+    same = [a for a in allowed if a.lower() == str(key).lower()]
+    if same:
+        return f": keys are written in lower case, write '{same[0]}'"
+    close = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.8)
+    return f": did you mean '{close[0]}'?" if close else ""
 
 
 class TableReader:
@@ -63,10 +74,11 @@ class TableReader:
                            f"key '{key}' was renamed to '{renamed[key]}'", key,
                            f"'{renamed[key]}' (same content)", code="unknown_key")
             elif key not in allowed:
-                self.error(sub_path(path, key) if path else format_path(key), "unknown key",
+                self.error(sub_path(path, key) if path else format_path(key), "unknown key" + spelling_hint(key, allowed),
                            key, "one of: " + ", ".join(allowed), code="unknown_key")
         for key in required:
-            if key not in table:
+            # a required key written in other letter case ('pKa') has its error above, which names the spelling
+            if key not in table and not any(str(k).lower() == key.lower() for k in table):
                 self.error(path, f"missing key '{key}'", expected=f"a value for '{key}'",
                            code="missing")
 
