@@ -167,9 +167,8 @@ def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemC
         k = int(np.argmax(run.hplc.time))
         c.warning(f"every HPLC sample of run {run.name} is taken within the first {times[-1] / 60.0:.3g} min of "
                   f"the run's {end / 60.0:g} min", campaign.locate("hplc", int(run.hplc.rows[k]), "time"),
-                  _written(campaign, "hplc", run.hplc.time[k])[0], f"samples spread over the run; check the time unit "
-                  "in the header "
-                  "of the HPLC results (min, s or h)", code="sampling_span")
+                  _written(campaign, "hplc", run.hplc.time[k])[0], "samples spread over the run; check the time unit "
+                  "in the header of the HPLC results (min, s or h)", code="sampling_span")
 
 
 def _plausibility(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> None:

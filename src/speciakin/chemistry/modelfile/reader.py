@@ -74,8 +74,9 @@ class TableReader:
                            f"key '{key}' was renamed to '{renamed[key]}'", key,
                            f"'{renamed[key]}' (same content)", code="unknown_key")
             elif key not in allowed:
-                self.error(sub_path(path, key) if path else format_path(key), "unknown key" + spelling_hint(key, allowed),
-                           key, "one of: " + ", ".join(allowed), code="unknown_key")
+                self.error(sub_path(path, key) if path else format_path(key),
+                           "unknown key" + spelling_hint(key, allowed), key, "one of: " + ", ".join(allowed),
+                           code="unknown_key")
         for key in required:
             # a required key written in other letter case ('pKa') has its error above, which names the spelling
             if key not in table and not any(str(k).lower() == key.lower() for k in table):
