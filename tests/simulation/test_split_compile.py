@@ -158,3 +158,16 @@ def test_a_cold_compile_loads_what_the_second_process_compiled(tmp_path, runs):
                 cruns.amount_factor[None, :], 1e-6, 1e-10, out, status, info, 0, 1, True, True)
     assert cold["status"] == status.tolist() == [[0] * len(cruns.ph_offset)]
     np.testing.assert_array_equal(np.array(cold["outputs"]), out)
+
+
+def test_the_node_constants_reach_compiled_code_with_the_types_run_one_gives_them():
+    # numba types a global array inside compiled code as read-only; the constants are read-only in Python
+    # too, so a Python-level caller that passes them on (the benchmark's copies of the drivers) uses the
+    # variants the kernel compiled instead of adding writable-array variants to the shared cache
+    from numba import typeof
+
+    from speciakin.simulation.segment_kernel import CHECKS, FROM_NODES, NODES
+
+    for constant in (NODES, FROM_NODES, CHECKS):
+        assert not constant.flags.writeable
+        assert typeof(constant) == typeof(constant).copy(readonly=True)
