@@ -393,21 +393,19 @@ class Campaign:
         label = info.get("columns", {}).get(column, column) if column else None
         return Location(file=info.get("file"), sheet=info.get("sheet"), row=row, column=label)
 
-    def time_as_written(self, sheet: str, seconds: float, column: str = "time") -> tuple[float, str]:
-        """A time [s] in the unit of its column's header, as the cell shows it: (value, unit symbol).
-
-        Minutes when the header names no time unit (clock times, a column made by hand).
-        """
+    def time_unit(self, sheet: str, column: str = "time"):
+        """The time unit (``units.Unit``) of a column's header, in which its cells are written; minutes
+        when the header names none (clock times, a column made by hand).  Messages name a time as the
+        cell shows it: ``seconds / unit.factor``, with ``unit.symbol``."""
         from speciakin import units
 
         label = self.extra.get("sheets", {}).get(sheet, {}).get("columns", {}).get(column, "")
         header = label.split(" (", 1)[1][:-1] if " (" in label and label.endswith(")") else label
         symbol = units.split_header(header)[1] if header else None
         try:
-            unit = units.lookup(symbol, "time") if symbol else units.lookup("min", "time")
+            return units.lookup(symbol or "min", "time")
         except KeyError:
-            unit = units.lookup("min", "time")
-        return float(seconds) / unit.factor, unit.symbol
+            return units.lookup("min", "time")
 
     def compound(self, name: str) -> Compound:
         for c in self.compounds:

@@ -78,6 +78,8 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
     loc = campaign.locate
     end = float(r.end_time)
     end_min = f"{end / 60.0:g} min"
+    # messages name a time as its cell shows it, in the unit of the column's header
+    hplc_unit, probe_unit = campaign.time_unit("hplc"), campaign.time_unit("probe")
     if r.volume is not None and r.volume <= 0:
         c.error(f"start volume of run {run.name} is zero", loc("runs", run.row, "start_volume"), 0.0,
                 "a volume > 0", code="out_of_range")
@@ -90,10 +92,10 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         return
     if end > MAX_RUN_TIME:
         has_duration = "duration" in campaign.extra.get("sheets", {}).get("runs", {}).get("columns", {})
+        duration_unit = campaign.time_unit("runs", "duration")
         c.error(f"run {run.name} lasts {end / 86400.0:.3g} days", loc("runs", run.row, "duration" if has_duration
                                                                           else "run"),
-                _written(campaign, "runs", end, "duration")[0],
-                f"at most {MAX_RUN_TIME / 86400.0:g} days [{_written(campaign, 'runs', 0.0, 'duration')[1]}]; "
+                end / duration_unit.factor, f"at most {MAX_RUN_TIME / 86400.0:g} days [{duration_unit.symbol}]; "
                 "check the time values and units (the run ends at its duration or else at its last observation)",
                 code="implausible")
         return
@@ -103,8 +105,8 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         if dose.end > end:
             col = "end" if dose.end != dose.start else "start"
             c.error(f"dose of {dose.species} in run {run.name} ends after the run ends ({end_min})",
-                    loc("dosing", row, col), _written(campaign, "dosing", dose.end, col)[0],
-                    f"a time <= the run's duration [{_written(campaign, 'dosing', 0.0, col)[1]}]; check the time unit "
+                    loc("dosing", row, col), dose.end / campaign.time_unit("dosing", col).factor,
+                    f"a time <= the run's duration [{campaign.time_unit('dosing', col).symbol}]; check the time unit "
                     "in the header", code="after_end")
     if r.withdrawals:
         late = np.flatnonzero(run.hplc.time > end)
@@ -113,8 +115,8 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
             more = f"; {late.size} values in all" if late.size > 1 else ""
             c.error(f"HPLC sample of run {run.name} taken after the run ends ({end_min}) while each sample "
                     f"removes {r.withdrawals[0].volume * 1e3:g} mL{more}",
-                    loc("hplc", int(run.hplc.rows[k]), "time"), _written(campaign, "hplc", run.hplc.time[k])[0],
-                    f"a time within the run's duration [{_written(campaign, 'hplc', 0.0)[1]}]; check the time unit "
+                    loc("hplc", int(run.hplc.rows[k]), "time"), float(run.hplc.time[k]) / hplc_unit.factor,
+                    f"a time within the run's duration [{hplc_unit.symbol}]; check the time unit "
                     "in the headers of the HPLC results and the Runs sheet", code="after_end")
     for log, what in ((run.ph_log, "pH"), (run.temperature_log, "temperature")):
         if log is None or not len(log):
@@ -122,19 +124,19 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
         k = _first_repeat(log.time)
         if k >= 0:
             c.error(f"two {what} readings of run {run.name} at the same time", loc("probe", int(log.rows[k]), "time"),
-                    _written(campaign, "probe", log.time[k])[0],
-                    f"one reading per time [{_written(campaign, 'probe', 0.0)[1]}]", code="duplicate_time")
+                    float(log.time[k]) / probe_unit.factor, f"one reading per time [{probe_unit.symbol}]",
+                    code="duplicate_time")
     ph = r.ph
     if ph.mode == "logged" and run.ph_log is not None and len(run.ph_log):
         log = run.ph_log
         first, last = int(np.argmin(log.time)), int(np.argmax(log.time))
         if log.time[first] > 0:
             c.error(f"the pH log of logged run {run.name} starts after time zero",
-                    loc("probe", int(log.rows[first]), "time"), _written(campaign, "probe", log.time[first])[0],
+                    loc("probe", int(log.rows[first]), "time"), float(log.time[first]) / probe_unit.factor,
                     "a first reading at time 0 (the model needs the pH over the whole run)", code="log_coverage")
         if log.time[last] < end:
             c.error(f"the pH log of logged run {run.name} ends before the run ends ({end_min})",
-                    loc("probe", int(log.rows[last]), "time"), _written(campaign, "probe", log.time[last])[0],
+                    loc("probe", int(log.rows[last]), "time"), float(log.time[last]) / probe_unit.factor,
                     "readings up to the end of the run, or a shorter duration; check the time units",
                     code="log_coverage")
     if ph.mode == "held":
@@ -153,11 +155,6 @@ def _consistency(campaign: Campaign, run: CampaignRun, c: ProblemCollector) -> N
                     "the concentration of the titrant solution (> 0)", code="missing_value")
 
 
-def _written(campaign: Campaign, sheet: str, seconds: float, column: str = "time") -> tuple[float, str]:
-    """A time [s] as its cell shows it (the header's unit) and that unit: messages name the cell's own value."""
-    return campaign.time_as_written(sheet, seconds, column)
-
-
 def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemCollector) -> None:
     """Warning when every HPLC sample of a run with a stated duration falls in its first few percent."""
     times = np.unique(run.hplc.time[np.isfinite(run.hplc.time)])
@@ -167,7 +164,8 @@ def _sampling_span(campaign: Campaign, run: CampaignRun, end: float, c: ProblemC
         k = int(np.argmax(run.hplc.time))
         c.warning(f"every HPLC sample of run {run.name} is taken within the first {times[-1] / 60.0:.3g} min of "
                   f"the run's {end / 60.0:g} min", campaign.locate("hplc", int(run.hplc.rows[k]), "time"),
-                  _written(campaign, "hplc", run.hplc.time[k])[0], "samples spread over the run; check the time unit "
+                  float(run.hplc.time[k]) / campaign.time_unit("hplc").factor, "samples spread over the run; "
+                  "check the time unit "
                   "in the header of the HPLC results (min, s or h)", code="sampling_span")
 
 

@@ -177,11 +177,13 @@ def fast_sheet_rows(ws, percent: set[tuple[int, int]] | None = None,
         if kind == b"" or kind == b"n":
             if not raw:
                 continue
-            if style and int(style) in date_styles:
-                return None
+            if style:
+                style_index = int(style)
+                if style_index in date_styles:
+                    return None
+                if styles and style_index in styles and percent is not None:
+                    percent.add((int(row_text), column_index(letters)))
             value: Any = float(raw)
-            if styles and style and int(style) in styles and percent is not None:
-                percent.add((int(row_text), column_index(letters)))
         elif kind == b"s":
             if not raw:
                 continue

@@ -55,9 +55,10 @@ def _log_order(campaign: Campaign, run: CampaignRun, log: TimeSeries | None, she
     k, n = _first_decrease(log.time)
     if k >= 0:
         more = f" ({n} readings in all)" if n > 1 else ""
+        unit = campaign.time_unit(sheet)
         c.warning(f"{what} times of run {run.name} are not increasing{more}",
-                  _loc(campaign, sheet, int(log.rows[k]), "time"), campaign.time_as_written(sheet, log.time[k])[0],
-                  f"times in increasing order [{campaign.time_as_written(sheet, 0.0)[1]}]", code="time_order")
+                  _loc(campaign, sheet, int(log.rows[k]), "time"), log.time[k] / unit.factor,
+                  f"times in increasing order [{unit.symbol}]", code="time_order")
 
 
 def mass_balance(run: CampaignRun, units_per_molecule: dict[str, float]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -118,6 +119,7 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
     if not campaign.runs:
         c.warning("the campaign has no runs yet", _loc(campaign, "runs", None, None), None,
                   "at least one row in the Runs sheet", code="no_runs")
+    hplc_unit = campaign.time_unit("hplc")  # messages name a time as its cell shows it
     for run in campaign.runs:
         h = run.hplc
         area_used |= {str(x) for x, k in zip(h.compound, h.kind) if k != "concentration"}
@@ -128,8 +130,8 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
         if k >= 0:
             more = f" ({n} values in all)" if n > 1 else ""
             c.warning(f"HPLC sampling times of run {run.name} are not increasing{more}",
-                      _loc(campaign, "hplc", int(h.rows[k]), "time"), campaign.time_as_written("hplc", h.time[k])[0],
-                      f"times in increasing order [{campaign.time_as_written('hplc', 0.0)[1]}]", code="time_order")
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / hplc_unit.factor,
+                      f"times in increasing order [{hplc_unit.symbol}]", code="time_order")
         seen: dict[tuple[float, str], int] = {}
         repeats: list[tuple[float, str, int, int]] = []
         for t, comp, row in zip(h.time.tolist(), h.compound.tolist(), h.rows.tolist()):
@@ -141,17 +143,16 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
             t, comp, row, first = repeats[0]
             more = f"; {len(repeats)} repeated values in all" if len(repeats) > 1 else ""
             c.warning(f"duplicate sample time for {comp} in run {run.name} (also row {first}){more}",
-                      _loc(campaign, "hplc", row, "time"), campaign.time_as_written("hplc", t)[0],
-                      f"one value per compound and time [{campaign.time_as_written('hplc', 0.0)[1]}]",
+                      _loc(campaign, "hplc", row, "time"), t / hplc_unit.factor,
+                      f"one value per compound and time [{hplc_unit.symbol}]",
                       code="duplicate_time")
         late = np.flatnonzero(h.time > run.recipe.end_time)
         if late.size and not run.recipe.withdrawals:  # with withdrawals it is an error (consistency.py)
             k = int(late[0])
             c.warning(f"sample taken after the run ends ({run.recipe.end_time / 60.0:g} min)"
                       + (f"; {late.size} values in all" if late.size > 1 else ""),
-                      _loc(campaign, "hplc", int(h.rows[k]), "time"), campaign.time_as_written("hplc", h.time[k])[0],
-                      f"a time within the run's duration [{campaign.time_as_written('hplc', 0.0)[1]}]",
-                      code="after_end")
+                      _loc(campaign, "hplc", int(h.rows[k]), "time"), h.time[k] / hplc_unit.factor,
+                      f"a time within the run's duration [{hplc_unit.symbol}]", code="after_end")
         ap = h.kind == "area_percent"
         for t in np.unique(h.time[ap]):
             idx = np.flatnonzero(ap & (h.time == t))
@@ -192,7 +193,7 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
                 row = int(log.rows[np.flatnonzero(log.time == t[k + 1])[0]])
                 c.warning(f"gap of {dt[k] / 60.0:.3g} min in the pH log of run {run.name}"
                           + (f" ({gap.size} gaps in all)" if gap.size > 1 else ""),
-                          _loc(campaign, "probe", row, "time"), campaign.time_as_written("probe", t[k + 1])[0],
+                          _loc(campaign, "probe", row, "time"), t[k + 1] / campaign.time_unit("probe").factor,
                           f"readings at most {GAP_FACTOR:g} x the median interval "
                           f"({median:g} s) apart, or {GAP_MINIMUM / 60:g} min", code="log_gap")
         sp = run.recipe.ph.setpoint
