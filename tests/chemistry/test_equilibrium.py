@@ -154,6 +154,10 @@ species_strategy = st.lists(
 # found by hypothesis: a fully dissociated acid balancing the strong ions leaves a nearly flat charge
 # balance, whose pH moved by 8e-11 between starting points while the activity coefficients repeated
 @example(spec=[([0.0], [(0.0, -1.0)] * 3, 0.5, 0.0)], strong=0.5, davies=True)
+# found by hypothesis: at I = 1.77 mol/L (beyond the Davies range) plain substitution of the ionic strength
+# oscillated without converging in 100 passes
+@example(spec=[([0.0, 0.0], [(1.0, 0.0)] * 3, 0.5, 0.0), ([0.0, 0.0, 0.0], [(0.0, -1.0)] * 3, 0.5, 0.0)],
+         strong=0.0, davies=True)
 def test_residual_small_and_root_matches_brentq(spec, strong, davies):
     species, conc = [], []
     for j, (pka, charges, c, w) in enumerate(spec):

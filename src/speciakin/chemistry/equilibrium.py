@@ -413,7 +413,9 @@ def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_cha
     strength = ionic(p, lg1, offsets)
     if activity == "davies":
         previous = None
-        for _ in range(_MAX_IONIC_STRENGTH_ITERATIONS):
+        # plain substitution first; where it oscillates (the pH's pull on I near -1 per pass, at ionic
+        # strengths beyond the Davies range) the second pass halves each step of I, which converges
+        for damping in [1.0] * _MAX_IONIC_STRENGTH_ITERATIONS + [0.5] * _MAX_IONIC_STRENGTH_ITERATIONS:
             lg1 = float(water.davies_log10_gamma(1.0, strength, temperature))
             offsets = [-water.davies_log10_gamma(z, strength, temperature) for (_, _, z) in tables]
             p_new, f, scale, it = _solve_fixed_gamma(species, tables, conc, strong, pkw_value, lg1, offsets, p)
@@ -427,7 +429,8 @@ def solve_ph(species: Sequence[IonizableSpecies], concentrations, strong_ion_cha
             converged = abs(new_strength - strength) <= 1e-12 * max(new_strength, 1e-30) \
                 and (abs(p_new - p) < 1e-12 or same_problem)
             previous = (lg1, [np.array(a, float) for a in offsets])
-            p, strength = p_new, new_strength
+            p, strength = p_new, (new_strength if damping == 1.0
+                                  else strength + damping * (new_strength - strength))
             if converged:
                 break
         else:
