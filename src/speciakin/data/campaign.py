@@ -27,7 +27,14 @@ __all__ = [
     "SourceFile",
     "mole_fractions_from_signals",
     "resample",
+    "NOT_MODELLED",
+    "NOT_MODELLED_WORDS",
 ]
+
+#: The Compounds sheet's ``model molecule`` of a peak the model does not describe; the words read as it.
+NOT_MODELLED = "not modelled"
+NOT_MODELLED_WORDS = frozenset({"not modelled", "not modeled", "unmodelled", "unmodeled", "none", "-",
+                                "not in model"})
 
 
 def mole_fractions_from_signals(signals: np.ndarray, rrf: np.ndarray) -> np.ndarray:
@@ -121,6 +128,8 @@ class Compound:
         Substrate cores per molecule for mass balances, or None.
     row
         Spreadsheet row in the compounds sheet.
+    modelled
+        False for a peak marked :data:`NOT_MODELLED` (``molecule`` ""): counted in its samples' totals.
     """
 
     name: str
@@ -130,6 +139,7 @@ class Compound:
     loq: float | None = None
     substrate_units: float | None = None
     row: int | None = None
+    modelled: bool = True
 
     def to_dict(self) -> dict[str, Any]:
         return dataclasses.asdict(self)
@@ -210,6 +220,9 @@ class HplcData:
     basis
         ``"area_percent"``, ``"area"``, ``"concentration"``, ``"mixed"`` or
         ``"none"`` (no values): what the numbers are, for reports.
+    other
+        The values of the peaks marked :data:`NOT_MODELLED` (``molecule`` ""),
+        or None: they count in their sample's total area (``pipeline.objective``).
     """
 
     time: np.ndarray
@@ -222,6 +235,7 @@ class HplcData:
     rrf: np.ndarray
     rows: np.ndarray
     basis: str = "none"
+    other: "HplcData | None" = None
 
     def __len__(self) -> int:
         return int(self.time.size)
@@ -270,7 +284,17 @@ class HplcData:
             "censored": self.censored.tolist(),
             "loq": [None if not np.isfinite(v) else float(v) for v in self.loq],
             "rrf": self.rrf.tolist(), "rows": self.rows.tolist(),
+            **({"not_modelled": self.other.to_dict()} if self.other is not None else {}),
         }
+
+    def other_share(self, time: float) -> tuple[float, np.ndarray]:
+        """(sum of the quantified not-modelled values, their indices into :attr:`other`) of the sample
+        taken at ``time`` [s]: area% or peak areas as given; (0, empty) when there are none."""
+        if self.other is None:
+            return 0.0, np.zeros(0, np.int64)
+        idx = np.flatnonzero(self.other.time == time)
+        o = self.other
+        return float(np.sum(np.where(o.censored[idx], 0.0, o.value[idx]))), idx
 
 
 def basis_of(kinds: np.ndarray) -> str:
@@ -360,6 +384,8 @@ class Campaign:
         Runs in sheet order.
     compounds
         The HPLC compounds and their model molecules.
+    other_compounds
+        The compounds marked :data:`NOT_MODELLED` in the Compounds sheet.
     provenance
         Every file read (path, sheets, SHA-256, size).
     problems
@@ -378,6 +404,7 @@ class Campaign:
     basis: str = "none"
     layout: str = "long"
     extra: dict[str, Any] = field(default_factory=dict)
+    other_compounds: tuple[Compound, ...] = ()
 
     def run(self, name: str) -> CampaignRun:
         for r in self.runs:
@@ -454,6 +481,7 @@ class Campaign:
         lines += ["", "Compounds", "---------"]
         lines += [f"  {c.name} -> {c.molecule}  RRF {c.rrf:g}" + (f"  LOQ {c.loq:g}" if c.loq is not None else "")
                   for c in self.compounds] or ["  none"]
+        lines += [f"  {c.name} -> {NOT_MODELLED} (counts in its samples' totals)" for c in self.other_compounds]
         lines += ["", "Warnings", "--------"]
         lines += [f"  - {p.describe()}" for p in self.problems] or ["  none"]
         return "\n".join(lines)
@@ -463,6 +491,7 @@ class Campaign:
             "source": self.source, "basis": self.basis, "layout": self.layout,
             "runs": [r.to_dict() for r in self.runs],
             "compounds": [c.to_dict() for c in self.compounds],
+            "other_compounds": [c.to_dict() for c in self.other_compounds],
             "provenance": [p.to_dict() for p in self.provenance],
             "problems": [p.to_dict() for p in self.problems],
         }

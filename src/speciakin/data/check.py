@@ -55,6 +55,9 @@ class CheckReport(ProblemList):
     hplc_values: int = 0
     log_readings: int = 0
     compounds: dict[str, str] = field(default_factory=dict)
+    #: compound name -> number of values, for the peaks marked not modelled (they count in their samples'
+    #: totals and are not fitted)
+    not_modelled: dict[str, int] = field(default_factory=dict)
 
     @property
     def ok(self) -> bool:
@@ -76,6 +79,9 @@ class CheckReport(ProblemList):
                  *([f"Process: {self.process}"] if self.process else []),
                  (f"Runs: {self.runs}   HPLC values: {self.hplc_values}   log readings: {self.log_readings}"
                   if self.imported else "Runs: not counted (the workbook did not import: see the errors)"),
+                 *([f"Not modelled (count in their samples' totals, not fitted): "
+                    + ", ".join(f"{name} ({n} values)" for name, n in self.not_modelled.items())]
+                   if self.not_modelled else []),
                  "", "Errors", "------"]
         lines += [f"  - {p.describe()}" for p in self.errors] or ["  none"]
         lines += ["", "Warnings", "--------"]
@@ -94,7 +100,8 @@ class CheckReport(ProblemList):
         return {"source": self.source, "model": self.model, "process": self.process, "ok": self.ok,
                 "imported": self.imported,
                 "counts": {"errors": len(self.errors), "warnings": len(self.warnings), "runs": self.runs,
-                           "hplc_values": self.hplc_values, "log_readings": self.log_readings},
+                           "hplc_values": self.hplc_values, "log_readings": self.log_readings,
+                           "not_modelled": dict(self.not_modelled)},
                 "problems": [p.to_dict() for p in self.problems]}
 
 
@@ -151,6 +158,8 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
         report.runs = len(campaign.runs)
         report.compounds = {c.name: c.molecule for c in campaign.compounds}
         report.hplc_values = sum(len(r.hplc) for r in campaign.runs)
+        others = [name for r in campaign.runs if r.hplc.other is not None for name in r.hplc.other.compound]
+        report.not_modelled = {c.name: others.count(c.name) for c in campaign.other_compounds}
         report.log_readings = sum(len(x.time) for r in campaign.runs
                                   for x in (r.ph_log, r.temperature_log, r.titrant) if x is not None)
     report.problems = list(c.problems)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from speciakin import units
@@ -95,6 +97,7 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
             cells += [(k, name, values[k], i, factor) for k in range(len(t.rows))]
     reported_unmapped: set[str] = set()
     rows_by_run: dict[str, list] = {}
+    other_by_run: dict[str, list] = {}  # the peaks marked not modelled (Compounds sheet)
     for k, name, raw, col, factor in cells:
         row = int(t.row_numbers[k])
         if runs[k] not in known or not np.isfinite(time[k]) or kinds[k] is None:
@@ -130,18 +133,26 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
         loq = cell_loq
         if not np.isfinite(loq) and comp.loq is not None:
             loq = comp.loq * f
-        rows_by_run.setdefault(runs[k], []).append(
+        (rows_by_run if comp.modelled else other_by_run).setdefault(runs[k], []).append(
             (time[k], name, comp.molecule, kinds[k], value, censored, loq, comp.rrf, row))
     out: dict[str, HplcData] = {}
-    for run, items in rows_by_run.items():
-        cols_ = list(zip(*items))
-        kind = np.array(cols_[3], dtype=object)
-        out[run] = HplcData(
-            time=np.array(cols_[0], float), compound=np.array(cols_[1], dtype=object),
-            molecule=np.array(cols_[2], dtype=object), kind=kind, value=np.array(cols_[4], float),
-            censored=np.array(cols_[5], bool), loq=np.array(cols_[6], float), rrf=np.array(cols_[7], float),
-            rows=np.array(cols_[8], np.int64), basis=basis_of(kind))
+    for run in rows_by_run.keys() | other_by_run.keys():
+        others = other_by_run.get(run)
+        out[run] = replace(_table(rows_by_run.get(run, [])), other=_table(others) if others else None)
     return out
+
+
+def _table(items: list[tuple]) -> HplcData:
+    """HplcData of (time, compound, molecule, kind, value, censored, loq, rrf, row) tuples."""
+    if not items:
+        return empty_hplc()
+    cols_ = list(zip(*items))
+    kind = np.array(cols_[3], dtype=object)
+    return HplcData(
+        time=np.array(cols_[0], float), compound=np.array(cols_[1], dtype=object),
+        molecule=np.array(cols_[2], dtype=object), kind=kind, value=np.array(cols_[4], float),
+        censored=np.array(cols_[5], bool), loq=np.array(cols_[6], float), rrf=np.array(cols_[7], float),
+        rows=np.array(cols_[8], np.int64), basis=basis_of(kind))
 
 
 def empty_hplc() -> HplcData:

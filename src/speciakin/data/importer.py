@@ -14,7 +14,8 @@ import numpy as np
 
 from speciakin import units
 from speciakin.chemistry.model import Dose, PhControl, Run, TemperatureProfile, Withdrawal
-from speciakin.data.campaign import Campaign, CampaignRun, Compound, HplcData, TitrantLog, basis_of
+from speciakin.data.campaign import (NOT_MODELLED, NOT_MODELLED_WORDS, Campaign, CampaignRun, Compound, HplcData,
+                                     TitrantLog, basis_of)
 from speciakin.data.consistency import run_problems
 from speciakin.data.validate import campaign_warnings, model_problems
 from speciakin.data.clock import convert_clock_cells
@@ -124,11 +125,12 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
         c.error(message, loc, value, expected, code=code)
     convert_clock_cells(matched, c)  # clock times and durations -> elapsed time (docs/data.md)
     runs_cols = matched["runs"]
-    compounds = _read_compounds(matched["compounds"], c)
+    listed = _read_compounds(matched["compounds"], c)
+    compounds = [x for x in listed if x.modelled]
     run_rows = _read_runs(runs_cols, c, {x.molecule: x.molar_mass for x in compounds if x.molar_mass})
     known = {r["name"]: r["row"] for r in run_rows}
     hplc_cols = matched["hplc"]
-    hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in compounds})
+    hplc = read_hplc(hplc_cols, c, known, {x.name: x for x in listed})
     molar_masses = {x.molecule: x.molar_mass for x in compounds if x.molar_mass}
     substrate = next((name.strip()[len(INITIAL_PREFIX):].strip() for _, name, _ in runs_cols.extra
                       if (normalise_name(name) + " ").startswith(INITIAL_PREFIX)), None) or None
@@ -157,7 +159,8 @@ def import_campaign(path: str | Path, collector: ProblemCollector) -> Campaign |
         {normalise_name(name): f"{column_letter(i)} ({runs_table.headers[i]})" for i, name, _ in runs_cols.extra})
     all_kinds = np.concatenate([r.hplc.kind for r in runs]) if runs else np.array([], dtype=object)
     campaign = Campaign(
-        runs=tuple(runs), compounds=tuple(compounds), provenance=tuple(sources), problems=(),
+        runs=tuple(runs), compounds=tuple(compounds), other_compounds=tuple(x for x in listed if not x.modelled),
+        provenance=tuple(sources), problems=(),
         source=str(path), basis=basis_of(all_kinds),
         layout="long" if hplc_cols.index("compound") is not None else "wide",
         extra={"sheets": sheets_info},
@@ -371,13 +374,16 @@ def _read_compounds(cols: SheetColumns, c: ProblemCollector) -> list[Compound]:
                     names[k], "each compound once", code="duplicate_compound")
             continue
         first[names[k]] = row
+        modelled = normalise_name(molecules[k]) not in NOT_MODELLED_WORDS
         if not molecules[k] and cols.index("molecule") is not None:
             c.error("compound is not mapped to a model molecule", t.location(row, cols.index("molecule")), None,
-                    "the name of a molecule of the model file", code="unmapped_compound")
+                    f"the name of a molecule of the model file, or '{NOT_MODELLED}' for a peak the model does not "
+                    "describe (it then counts in its samples' totals)", code="unmapped_compound")
         if rrf[k] == 0:
             c.error("RRF must be positive", t.location(row, cols.index("rrf")), 0, "a number > 0", code="out_of_range")
-        out.append(Compound(names[k], molecules[k], float(rrf[k]) if rrf[k] > 0 else 1.0,
-                            optional_float(mm[k]), optional_float(loq[k]), optional_float(su[k]), row))
+        out.append(Compound(names[k], molecules[k] if modelled else "", float(rrf[k]) if rrf[k] > 0 else 1.0,
+                            optional_float(mm[k]), optional_float(loq[k]), optional_float(su[k]), row,
+                            modelled=modelled))
     return out
 
 

@@ -199,7 +199,9 @@ _COMPOUNDS = SheetSpec(
         _c("compound", ["compound", "peak"], None, None, True,
            "Name as it appears in the HPLC results (e.g. the peak name)."),
         _c("molecule", ["model molecule", "molecule"], None, None, True,
-           "Name of the molecule in the model file that this compound is."),
+           "Name of the molecule in the model file that this compound is; 'not modelled' for a peak the "
+           "model does not describe (an impurity, an unknown): its area% count in the sample's total, "
+           "and the model's area% of the other compounds add up to the rest."),
         _c("rrf", ["RRF"], None, None, False,
            "Relative response factor at the detection wavelength (blank = 1). "
            "Mole fraction is proportional to area / RRF."),

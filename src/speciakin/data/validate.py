@@ -156,12 +156,15 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
         ap = h.kind == "area_percent"
         for t in np.unique(h.time[ap]):
             idx = np.flatnonzero(ap & (h.time == t))
-            total = float(np.sum(np.where(h.censored[idx], 0.0, h.value[idx])))
+            # every peak of the sample counts, those marked not modelled too
+            total = float(np.sum(np.where(h.censored[idx], 0.0, h.value[idx]))) + h.other_share(t)[0]
             if abs(total - 100.0) > AREA_PERCENT_TOLERANCE:
                 c.warning(f"area% of run {run.name} at {t / 60.0:g} min sum to {total:.4g}",
                           _loc(campaign, "hplc", int(h.rows[idx].min()),
                                "value" if campaign.layout == "long" else "time"),
-                          round(total, 4), f"100 +- {AREA_PERCENT_TOLERANCE:g} area%", code="area_sum")
+                          round(total, 4), f"100 +- {AREA_PERCENT_TOLERANCE:g} area%, every peak of the sample "
+                          "listed (one the model does not describe as 'not modelled' in the Compounds sheet)",
+                          code="area_sum")
         cens = np.flatnonzero(h.censored & ~np.isfinite(h.loq))
         if cens.size:
             k = int(cens[0])

@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from speciakin import units
-from speciakin.data.campaign import Campaign
+from speciakin.data.campaign import NOT_MODELLED, Campaign
 from speciakin.data.sheets import INITIAL_PREFIX, SHEETS
 from speciakin.data.templates import write_tables
 
@@ -69,14 +69,14 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
         for d in r.doses:
             dose_rows.append([r.name, d.species, _f(d.amount, "mmol", "amount"), _f(d.start, "min", "time"),
                              _f(d.end, "min", "time"), _f(d.volume, "mL", "volume")])
-        h = run.hplc
-        for k in range(len(h)):
-            if h.censored[k]:
-                cell = f"<{float(h.loq[k])!r}" if np.isfinite(h.loq[k]) else "<LOQ"
-            else:
-                cell = float(h.value[k])
-            hplc_rows.append([r.name, _f(h.time[k], "min", "time"), _KIND_WORD[str(h.kind[k])],
-                              str(h.compound[k]), cell])
+        for h in (run.hplc, run.hplc.other):  # the peaks marked not modelled after the others
+            for k in range(0 if h is None else len(h)):
+                if h.censored[k]:
+                    cell = f"<{float(h.loq[k])!r}" if np.isfinite(h.loq[k]) else "<LOQ"
+                else:
+                    cell = float(h.value[k])
+                hplc_rows.append([r.name, _f(h.time[k], "min", "time"), _KIND_WORD[str(h.kind[k])],
+                                  str(h.compound[k]), cell])
         ph_log, t_log = run.ph_log, run.temperature_log
         if ph_log is None and ph.mode == "logged" and ph.log_times:
             from speciakin.data.campaign import TimeSeries
@@ -102,7 +102,8 @@ def write_campaign(campaign: Campaign, path: str | Path) -> list[Path]:
                 titrant_rows.append([r.name, _f(tl.time[k], "min", "time"),
                                      None if tl.volume is None else _f(tl.volume[k], "mL", "volume"),
                                      _f(tl.amount[k], "mmol", "amount")])
-    compound_rows = [[c.name, c.molecule, c.rrf, c.molar_mass, c.loq, c.substrate_units] for c in campaign.compounds]
+    compound_rows = [[c.name, c.molecule if c.modelled else NOT_MODELLED, c.rrf, c.molar_mass, c.loq,
+                      c.substrate_units] for c in campaign.compounds + campaign.other_compounds]
     hplc_headers = ["run", "time [min]", "kind", "compound", "value"]  # concentrations in mol/L, the default
     tables = {
         "runs": (_headers("runs") + [f"{INITIAL_PREFIX}{s} [mmol]" for s in species], run_rows),

@@ -59,7 +59,8 @@ def reporting_step(values: np.ndarray) -> np.ndarray:
 
 
 def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, area: np.ndarray,
-                   censored: np.ndarray, sigma: np.ndarray, loq: np.ndarray | None = None) -> np.ndarray:
+                   censored: np.ndarray, sigma: np.ndarray, loq: np.ndarray | None = None,
+                   others: tuple[np.ndarray, ...] | None = None) -> np.ndarray:
     """Which HPLC samples are closed to 100 % (bool per sample).
 
     A sample counts when every value of it is an area% (peak areas are turned
@@ -75,16 +76,28 @@ def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, are
     its window of LOQs is wide enough for independent values to fall in by
     chance.  It is weighed as the closed sub-composition of its quantified
     values (:func:`closure_whitening`).
+
+    ``others`` (sample, observed, censored, loq): the area% of peaks that are
+    not modelled.  They count in their sample's sum, its reporting step and
+    its window of LOQs like the other values, and are not part of the closed
+    composition (the modelled values are its closed sub-composition).
     """
     if sample.size == 0:
         return np.zeros(n_samples, bool)
-    quantified = ~censored
-    n = np.bincount(sample, weights=quantified.astype(float), minlength=n_samples)
-    bad = ~area | (quantified & ~(sigma > 0.0)) | (quantified & ~np.isfinite(observed))
     if loq is None:
         loq = np.full(sample.size, np.nan)
-    bad |= censored & ~(loq >= 0.0)
+    bad = ~area | (~censored & ~(sigma > 0.0)) | (~censored & ~np.isfinite(observed)) | (censored & ~(loq >= 0.0))
     n_bad = np.bincount(sample, weights=bad.astype(float), minlength=n_samples)
+    # the modelled values need two quantified ones; the sums below take the peaks not modelled too
+    n_modelled = np.bincount(sample, weights=(~censored).astype(float), minlength=n_samples)
+    if others is not None and others[0].size:
+        o_sample, o_obs, o_cens, o_loq = others
+        n_bad += np.bincount(o_sample, weights=((~o_cens & ~np.isfinite(o_obs)) | (o_cens & ~(o_loq >= 0.0)))
+                             .astype(float), minlength=n_samples)
+        sample, observed = np.concatenate([sample, o_sample]), np.concatenate([observed, o_obs])
+        censored, loq = np.concatenate([censored, o_cens]), np.concatenate([loq, o_loq])
+    quantified = ~censored
+    n = np.bincount(sample, weights=quantified.astype(float), minlength=n_samples)
     y = np.where(quantified & np.isfinite(observed), observed, 0.0)
     total = np.bincount(sample, weights=y, minlength=n_samples)
     below = np.bincount(sample, weights=np.where(censored & (loq >= 0.0), loq, 0.0), minlength=n_samples)
@@ -94,7 +107,7 @@ def closed_samples(sample: np.ndarray, n_samples: int, observed: np.ndarray, are
     n_censored = np.bincount(sample, weights=censored.astype(float), minlength=n_samples)
     with np.errstate(invalid="ignore"):
         allowed = np.maximum(0.5 * step * n, SUM_FLOOR)
-        usable = (n >= 2) & (n_bad == 0)
+        usable = (n_modelled >= 2) & (n_bad == 0)
         full = usable & (n_censored == 0)
         closed = full & (np.abs(total - 100.0) <= allowed)
         # values below the LOQ leave a window of their LOQs in which any sum could fall by chance: such a
@@ -165,8 +178,8 @@ class ClosedSamples:
 
     @classmethod
     def of(cls, sample: np.ndarray, n_samples: int, observed: np.ndarray, area: np.ndarray, censored: np.ndarray,
-           sigma: np.ndarray, loq: np.ndarray) -> "ClosedSamples":
-        closed = closed_samples(sample, n_samples, observed, area, censored, sigma, loq)
+           sigma: np.ndarray, loq: np.ndarray, others: tuple[np.ndarray, ...] | None = None) -> "ClosedSamples":
+        closed = closed_samples(sample, n_samples, observed, area, censored, sigma, loq, others)
         rows, block, matrix = closure_whitening(sample, closed, observed, sigma, censored)
         count = int(np.count_nonzero(closed))
         return cls(count, rows, block, matrix, np.bincount(block, weights=observed[rows], minlength=count))

@@ -17,7 +17,9 @@ Observation model
 Area% of compound i in a sample (the RRF convention of
 :func:`speciakin.data.campaign.mole_fractions_from_signals`)::
 
-    y_i = 100 * n_i * RRF_i / sum_j n_j * RRF_j     (j: compounds of the sample)
+    y_i = (100 - U) * n_i * RRF_i / sum_j n_j * RRF_j     (j: compounds of the sample)
+
+with U the sample's area% of peaks marked not modelled (0 without them).
 
 Peak areas are first normalised to area% per sample; concentrations are
 compared as ``n_i / V`` [mol/L].  The standard deviation of an observation is
@@ -56,7 +58,7 @@ from speciakin.data.campaign import Campaign
 from speciakin.errors import InputError, Location
 from speciakin.estimation.parameters import ParameterSpec
 from speciakin.pipeline.closure import ClosedSamples
-from speciakin.pipeline.objective_values import Predictions, resample_titrant
+from speciakin.pipeline.objective_values import Predictions, resample_titrant, sample_values
 from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
 from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
 from speciakin.simulation.api import simulate_batch
@@ -185,6 +187,8 @@ class CampaignObjective:
         hplc_parts: dict[str, list] = {k: [] for k in ("run", "t", "col", "rrf", "sample", "obs", "cens", "loq",
                                                        "kind", "row", "compound")}
         tit_parts: dict[str, list] = {k: [] for k in ("run", "t", "obs")}
+        # the peaks marked not modelled: each sample's share [area%], and their values for the closure test
+        other_parts: dict[str, list] = {k: [] for k in ("share", "sample", "obs", "cens", "loq")}
         sample_id = 0
         for ri, crun in enumerate(self.runs):
             h = crun.hplc
@@ -204,15 +208,11 @@ class CampaignObjective:
             times = np.unique(np.concatenate([[0.0], h.time[keep], tt]))
             times_per_run.append(times)
             for t in np.unique(h.time[keep]):
-                idx = np.flatnonzero((h.time == t))
-                kinds = h.kind[idx]
-                values = h.value[idx].astype(float)
-                loq = h.loq[idx].astype(float)
-                if np.all(kinds == "area"):
-                    total = np.nansum(np.where(h.censored[idx], 0.0, values))
-                    scale = 100.0 / total if total > 0 else np.nan
-                    values, loq = values * scale, loq * scale
-                    kinds = np.full(idx.size, "area_percent")
+                idx, kinds, values, loq, share, other = sample_values(h, t)
+                other_parts["share"].append(share)
+                for key, part in zip(("obs", "cens", "loq"), other):
+                    other_parts[key] += part.tolist()
+                other_parts["sample"] += [sample_id] * other[0].size
                 for j, k in enumerate(idx):
                     hplc_parts["run"].append(ri)
                     hplc_parts["t"].append(int(np.searchsorted(times, t)))
@@ -250,6 +250,9 @@ class CampaignObjective:
         self.h_compound = p["compound"].astype(str)
         self.n_samples = sample_id
         self.h_area = self.h_kind == "area_percent"
+        #: each sample's area% of peaks marked not modelled: its modelled compounds' area% add up to the rest
+        self.other_share = np.asarray(other_parts["share"], float)
+        self.h_area_total = (100.0 - self.other_share)[self.h_sample] if self.h_sample.size else np.zeros(0)
         bad = self.h_cens & ~np.isfinite(self.h_loq)
         if np.any(bad):
             i = int(np.flatnonzero(bad)[0])
@@ -281,8 +284,9 @@ class CampaignObjective:
         #: samples whose area% sum to 100: the residuals of their quantified values are whitened with the
         #: joint covariance of a closed composition (``pipeline.closure``); one of each is 0 whatever the
         #: parameters
+        others = tuple(np.asarray(other_parts[k]) for k in ("sample", "obs", "cens", "loq"))
         self.closure = ClosedSamples.of(self.h_sample, self.n_samples, self.h_obs, self.h_area, self.h_cens,
-                                        self.h_sigma, self.h_loq)
+                                        self.h_sigma, self.h_loq, others=others)
         self.closed_samples = self.closure.count
         #: residuals that are zero while the model stays below the LOQ (the values reported below it)
         self.one_sided = np.concatenate([self.h_cens, np.zeros(self.n_titrant, bool)])
@@ -362,7 +366,7 @@ class CampaignObjective:
             denom = np.bincount(bins, weights=num.ravel(), minlength=n_sets * self.n_samples).reshape(
                 n_sets, self.n_samples)
             with np.errstate(invalid="ignore", divide="ignore"):
-                area = 100.0 * num / denom[:, self.h_sample]
+                area = self.h_area_total * num / denom[:, self.h_sample]
             model = np.where(self.h_area, area, model) if any_concentration else area
         if any_concentration:
             vol = flat.take(at_volume, axis=1)
@@ -453,10 +457,14 @@ class CampaignObjective:
             cols = [self.compiled.species_index(str(h.molecule[list(h.compound).index(c)])) for c in names]
             rrf = np.array([float(h.rrf[list(h.compound).index(c)]) for c in names])
             amounts = out[:, ri, :n_points, :][:, :, cols]
-            if np.any(self.h_area[self.h_run == ri]):
+            mine = self.h_run == ri
+            if np.any(self.h_area[mine]):
                 num = amounts * rrf[None, None, :]
+                # the share of the peaks marked not modelled, between the run's samples read linearly
+                t_sample, first = np.unique(self.output_times[ri][self.h_t[mine]], return_index=True)
+                total = 100.0 - np.interp(grids[ri], t_sample, self.other_share[self.h_sample[mine]][first])
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    vals = 100.0 * num / num.sum(axis=2, keepdims=True)
+                    vals = total[None, :, None] * num / num.sum(axis=2, keepdims=True)
             else:
                 vals = amounts / out[:, ri, :n_points, nsp][:, :, None]
             curves[crun.name] = {
@@ -476,7 +484,10 @@ class CampaignObjective:
             "n_hplc": self.n_hplc, "n_titrant": self.n_titrant,
             "n_censored": int(self.h_cens.sum()), "n_runs": len(self.runs),
             "basis": self.campaign.basis,
-            "conversion": ("area% of each compound = 100 n_i RRF_i / sum_j n_j RRF_j over the compounds of "
+            "conversion": ("area% of each compound = (100 - U) n_i RRF_i / sum_j n_j RRF_j over the compounds "
+                           "of the sample, U the sample's area% of peaks marked not modelled"
+                           if self.campaign.basis in ("area_percent", "area", "mixed") and np.any(self.other_share)
+                           else "area% of each compound = 100 n_i RRF_i / sum_j n_j RRF_j over the compounds of "
                            "the sample" if self.campaign.basis in ("area_percent", "area", "mixed")
                            else "concentrations compared as n_i / V"),
             "closed_samples": self.closed_samples,

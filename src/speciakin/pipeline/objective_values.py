@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Predictions", "resample_titrant"]
+__all__ = ["Predictions", "resample_titrant", "sample_values"]
 
 
 @dataclass
@@ -40,3 +40,28 @@ def resample_titrant(times: np.ndarray, amounts: np.ndarray, end: float,
         a = np.interp(grid, t, a)
         t = grid
     return t, a
+
+
+def sample_values(h, t: float) -> tuple:
+    """One HPLC sample of a run's :class:`~speciakin.data.campaign.HplcData` ``h`` taken at ``t`` [s]:
+    ``(idx, kinds, values, loq, other_share, other)``.
+
+    Peak areas become area% over every peak of the sample, the peaks marked not modelled included (area
+    normalisation).  ``other_share`` is the sample's area% of those peaks (0 for a sample without area%),
+    ``other`` their (values, censored, LOQs) on the same scale, empty for a sample without area%.
+    """
+    idx = np.flatnonzero(h.time == t)
+    kinds, values, loq = h.kind[idx], h.value[idx].astype(float), h.loq[idx].astype(float)
+    share, oidx = h.other_share(t)
+    o = h.other
+    other = ((o.value[oidx].astype(float), o.censored[oidx].astype(bool), o.loq[oidx].astype(float)) if oidx.size
+             else (np.zeros(0), np.zeros(0, bool), np.zeros(0)))
+    if np.all(kinds == "area"):
+        total = np.nansum(np.where(h.censored[idx], 0.0, values)) + share
+        scale = 100.0 / total if total > 0 else np.nan
+        values, loq, share = values * scale, loq * scale, share * scale
+        other = (other[0] * scale, other[1], other[2] * scale)
+        kinds = np.full(idx.size, "area_percent")
+    if not np.any(kinds == "area_percent"):
+        share, other = 0.0, (np.zeros(0), np.zeros(0, bool), np.zeros(0))
+    return idx, kinds, values, loq, share, other

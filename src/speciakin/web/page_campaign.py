@@ -88,6 +88,9 @@ def campaign_view(state, name) -> tuple:
     except SpeciakinError as exc:
         return f"error: {exc}", [], [], None, empty_figure("no raw data: the campaign cannot be read"), None
     counts = (f"{report.runs} run(s), {report.hplc_values} HPLC values, {report.log_readings} log readings"
+              + (f" (not modelled, counted in their samples' totals: "
+                 + ", ".join(f"{c} ({n} values)" for c, n in report.not_modelled.items()) + ")"
+                 if report.not_modelled else "")
               if report.imported else "runs not counted (the workbook did not import)")
     summary = f"{len(report.errors)} error(s), {len(report.warnings)} warning(s); {counts}. " + _verdict(report)
     runs = []
