@@ -190,3 +190,19 @@ def test_the_modelled_sub_composition_whitens_to_unit_variance():
     w = r @ matrix.T
     assert np.all(w[:, 1] == 0.0)
     assert np.var(w[:, 0]) == pytest.approx(1.0, rel=0.02)
+
+
+def test_the_raw_data_views_draw_the_peaks_not_modelled(folders, tmp_path):
+    # the web page's raw-data figure and `speciakin look` show the unknown beside the modelled compounds
+    from speciakin.cli.cmd_look import plot_run
+    from speciakin.palette import SpeciesColors
+    from speciakin.web.figures import raw_run_figure
+
+    campaign = load_campaign(folders["marked"])
+    run = campaign.runs[0]
+    colors = SpeciesColors([c.molecule for c in campaign.compounds])
+    traces = {t.name: t for t in raw_run_figure(run, colors).data}
+    unknown = traces[f"{UNKNOWN} (not modelled)"]
+    np.testing.assert_allclose(unknown.y, run.hplc.other.value)
+    plot_run(run, campaign.compounds, {}, colors, tmp_path / "look.png")
+    assert (tmp_path / "look.png").stat().st_size > 0

@@ -12,10 +12,11 @@ NAME = "titrate"
 HELP = "titration curve (pH and microstates against titrant volume)"
 
 EPILOG = """\
-example (invented compound, 10 mM in 50 mL, titrated with 0.1 M strong base):
+example (invented compound as its dihydrochloride, 10 mM in 50 mL, titrated with 0.1 M
+strong base: two steep steps, at 5 and 10 mL):
   speciakin titrate --site N1:base:9.3 --site N2:base:4.6 --concentration "10 mM" \\
-      --volume "50 mL" --titrant base:0.1 --to "20 mL" --points 201 \\
-      --out curve.csv --plot curve.png
+      --volume "50 mL" --start-charge "-20 mM" --titrant base:0.1 --to "15 mL" \\
+      --points 201 --out curve.csv --plot curve.png
 
   --titrant KIND:CONC   KIND base or acid, CONC [mol/L] (or with a unit: "acid:100 mM")
   --start-charge CONC   net charge of spectator ions at the start, e.g. "-20 mM" for

@@ -114,6 +114,12 @@ def raw_run_figure(run, colors: SpeciesColors) -> go.Figure:
             marker = dict(symbol="triangle-down-open", color=colors.color(str(h.molecule[pick][0])))
             fig.add_trace(go.Scatter(x=h.time[pick][low] / _S_PER_MIN, y=np.nan_to_num(h.loq[pick][low]),
                                      mode="markers", name=label(f"{name} below LOQ"), marker=marker), row=1, col=1)
+    other = h.other
+    for name in dict.fromkeys(other.compound.tolist() if other is not None else []):
+        pick = (other.compound == name) & ~other.censored
+        fig.add_trace(go.Scatter(x=other.time[pick] / _S_PER_MIN, y=other.value[pick], mode="markers",
+                                 name=label(f"{name} (not modelled)"), marker=dict(symbol="x", color=NEUTRAL)),
+                      row=1, col=1)
     ph = run.recipe.ph
     if run.ph_log is not None and len(run.ph_log):
         _log_trace(fig, run.ph_log, lambda v: v, "pH log", 1, 2, notes, _LOG_COLOR)
