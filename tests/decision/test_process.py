@@ -262,8 +262,11 @@ def test_documented_example_parses_and_validates():
     block = text.split("```toml\n", 1)[1].split("```", 1)[0]
     process = validate_process(parse_process(tomllib.loads(block), "docs", block), MODEL)
     assert process.extra_charges == {"Cl-": pytest.approx(0.005)}
-    assert [s.kind for s in process.specifications] == ["percent", "ratio"]
+    assert [s.kind for s in process.specifications] == ["percent", "area%", "ratio"]
     assert process.second_factor.values == (1.0, 1.1, 1.2)
+    # an area% limit is written back as read
+    again = parse_process(tomllib.loads(process_to_toml(process)))
+    assert again.specifications == process.specifications
 
 
 def test_titrants_and_start_adjustment_reach_the_runs(tmp_path):

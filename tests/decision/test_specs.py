@@ -67,7 +67,7 @@ def test_nan_outcome_fails_every_operator():
 
 
 def test_registry_and_describe():
-    assert set(OUTCOME_KINDS) == {"percent", "ratio", "conversion"}
+    assert set(OUTCOME_KINDS) == {"percent", "ratio", "conversion", "area%"}
     spec = Specification("percent", ("PB",), ">=", 90, label="desired product")
     assert spec.describe() == "desired product: mole % of PB >= 90 %"
     assert Specification.from_dict(spec.to_dict()) == spec

@@ -19,6 +19,7 @@ import numpy as np
 
 from speciakin.chemistry.model import Model
 from speciakin.decision.process import ProcessPlan
+from speciakin.decision.specs import AREA_PREFIX
 
 __all__ = [
     "moiety_counts",
@@ -28,6 +29,7 @@ __all__ = [
     "BAND_QUANTILES",
     "process_outcome_names",
     "process_outcomes",
+    "area_percent",
 ]
 
 #: Quantiles of the expected-outcome bands: lower, median, upper.
@@ -126,13 +128,39 @@ def _moiety_of(model: Model, process: ProcessPlan) -> str:
     return moiety
 
 
-def process_outcome_names(model: Model, process: ProcessPlan) -> list[str]:
-    """Molecules that carry the substrate moiety: the outcomes of a process, in model order."""
-    return list(moiety_counts(model, _moiety_of(model, process)))
+def area_percent(amounts: np.ndarray, rrf: Sequence[float]) -> np.ndarray:
+    """HPLC area% of each molecule: ``100 RRF_i n_i / sum_j RRF_j n_j`` over the last axis.
+
+    The relative response factor convention of the campaign's area%
+    (``pipeline.objective``; Snyder, Kirkland and Dolan, "Introduction to
+    Modern Liquid Chromatography", 3rd ed., Wiley 2010, ch. 11): a peak's area
+    is RRF times the amount.  NaN where every amount is 0.
+    """
+    signal = np.asarray(amounts, dtype=float) * np.asarray(rrf, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return 100.0 * signal / np.sum(signal, axis=-1, keepdims=True)
+
+
+def _area_molecules(process: ProcessPlan, rrf: Mapping[str, float] | None) -> list[str]:
+    """The molecules whose area% columns a process's specifications need: every HPLC molecule (all
+    make the total), when a specification of kind ``area%`` asks."""
+    if not rrf or not any(s.kind == "area%" for s in process.specifications):
+        return []
+    return list(rrf)
+
+
+def process_outcome_names(model: Model, process: ProcessPlan, rrf: Mapping[str, float] | None = None
+                          ) -> list[str]:
+    """Molecules that carry the substrate moiety: the outcomes of a process, in model order; then, when a
+    specification limits HPLC area% (``rrf``: the campaign's HPLC molecules and their RRFs), the
+    area% columns of every HPLC molecule (``AREA_PREFIX`` + name)."""
+    return (list(moiety_counts(model, _moiety_of(model, process)))
+            + [AREA_PREFIX + m for m in _area_molecules(process, rrf)])
 
 
 def process_outcomes(final_amounts: Mapping[str, np.ndarray], model: Model,
-                     process: ProcessPlan) -> tuple[list[str], np.ndarray]:
+                     process: ProcessPlan, rrf: Mapping[str, float] | None = None
+                     ) -> tuple[list[str], np.ndarray]:
     """Outcome table of a process from simulated amounts at its end.
 
     Parameters
@@ -140,20 +168,30 @@ def process_outcomes(final_amounts: Mapping[str, np.ndarray], model: Model,
     final_amounts
         Molecule name -> amount at the end of the process [mol] (arrays of
         one common shape, e.g. (n_draws, n_ph)); molecules that carry the
-        substrate moiety must all be present.
+        substrate moiety must all be present, and the HPLC molecules of
+        ``rrf`` when a specification limits area%.
     model, process
         The model and the (validated) process.
+    rrf
+        HPLC molecule -> relative response factor (the campaign's Compounds
+        sheet), for specifications of kind ``area%``.
 
     Returns
     -------
     names, outcomes
-        Outcome names and an array (..., n_outcomes) of mole % [%].
+        Outcome names and an array (..., n_outcomes) of mole % [%], then
+        the HPLC area% [%] the specifications need (:func:`area_percent`).
     """
     moiety = _moiety_of(model, process)
     counts = moiety_counts(model, moiety)
-    missing = [n for n in counts if n not in final_amounts]
+    hplc = _area_molecules(process, rrf)
+    missing = [n for n in list(counts) + hplc if n not in final_amounts]
     if missing:
         raise KeyError(f"no final amount for {', '.join(missing)}")
     charged = process.substrate_amount * float(model.molecule(process.substrate).moieties[moiety])
     amounts = np.stack([np.asarray(final_amounts[n], dtype=float) for n in counts], axis=-1)
-    return list(counts), moiety_percent(amounts, list(counts.values()), charged)
+    table = moiety_percent(amounts, list(counts.values()), charged)
+    if hplc:
+        seen = np.stack([np.asarray(final_amounts[n], dtype=float) for n in hplc], axis=-1)
+        table = np.concatenate([table, area_percent(seen, [rrf[n] for n in hplc])], axis=-1)
+    return process_outcome_names(model, process, rrf), table

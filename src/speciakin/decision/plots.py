@@ -17,6 +17,7 @@ import numpy as np
 
 from speciakin._io import atomic_write_bytes
 from speciakin.decision.result import WindowResult
+from speciakin.decision.specs import AREA_PREFIX
 from speciakin.palette import OKABE_ITO, cycle_style
 
 __all__ = ["plot_probability", "plot_outcomes", "plot_map"]
@@ -95,17 +96,22 @@ def plot_outcomes(result: WindowResult, path: str | os.PathLike, colors=None) ->
     the colour it has in every other figure."""
     fig = _figure()
     ax = fig.add_subplot()
+    area = False
     for k, name in enumerate(result.outcome_names):
-        colour = colors.color(name) if colors is not None else cycle_style(k)[0]
+        # an area% column (an area% specification asked for it) in its molecule's colour, dashed
+        molecule = name[len(AREA_PREFIX):] if name.startswith(AREA_PREFIX) else name
+        area |= molecule != name
+        colour = colors.color(molecule) if colors is not None else cycle_style(k)[0]
         ax.fill_between(result.ph, result.outcome_lower[name], result.outcome_upper[name],
-                        color=colour, alpha=0.25, lw=0)
-        label = colors.aliases.get(name, name) if colors is not None else name
-        ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6, label=label)
+                        color=colour, alpha=0.25 if molecule == name else 0.12, lw=0)
+        label = colors.aliases.get(molecule, molecule) if colors is not None else molecule
+        ax.plot(result.ph, result.outcome_median[name], color=colour, lw=1.6 if molecule == name else 1.2,
+                ls="-" if molecule == name else "--", label=label if molecule == name else f"{label}, HPLC area%")
     for a, b in result.windows:
         ax.axvline(a, color=OKABE_ITO["black"], lw=0.8, ls=":")
         ax.axvline(b, color=OKABE_ITO["black"], lw=0.8, ls=":")
     ax.set_xlabel("set-point pH [-]")
-    ax.set_ylabel("mole % of substrate moiety [%]")
+    ax.set_ylabel("mole % of substrate moiety [%]" + ("\n(dashed: HPLC area% [%])" if area else ""))
     ax.set_xlim(result.ph[0], result.ph[-1])
     ax.set_title("Expected outcome at the end of the process: median and 5-95 % band", fontsize=9)
     if result.outcome_names:

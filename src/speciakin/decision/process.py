@@ -40,6 +40,7 @@ __all__ = [
     "load_process",
     "parse_process",
     "validate_process",
+    "area_spec_problems",
     "process_to_toml",
     "parse_equivalents",
 ]
@@ -230,6 +231,23 @@ def load_process(path: str | Path, model: Model | None = None) -> ProcessPlan:
     return process
 
 
+def area_spec_problems(process: ProcessPlan, hplc: Mapping[str, str]) -> list:
+    """Errors for specifications of kind ``area%`` that name a molecule no HPLC compound is: their area%
+    are those of the campaign's Compounds sheet (``hplc``: compound name -> model molecule)."""
+    source = Path(process.source) if process.source else None
+    text = source.read_text(encoding="utf-8") if source is not None and source.is_file() else ""
+    r = Reader(process.source, text)
+    listed = sorted(set(hplc.values()))
+    for k, spec in enumerate(process.specifications):
+        for name in spec.species if spec.kind == "area%" else ():
+            if name not in listed:
+                r.error("an area% specification names a molecule the HPLC does not report",
+                        r.where(f"specification[{k + 1}].species", "specification", "species", k), name,
+                        f"a model molecule of the Compounds sheet: {', '.join(listed) or '(none listed)'}",
+                        code="not_in_hplc")
+    return list(r.problems.problems)
+
+
 def validate_process(process: ProcessPlan, model: Model, text: str = "") -> ProcessPlan:
     """Check every name of ``process`` against ``model``.
 
@@ -290,7 +308,8 @@ def validate_process(process: ProcessPlan, model: Model, text: str = "") -> Proc
             if name not in molecules:
                 r.error("unknown molecule", loc, name, f"one of {', '.join(molecules)}",
                         code="unknown_name")
-            elif moiety is not None and float(model.molecule(name).moieties.get(moiety, 0)) <= 0:
+            elif (spec.kind != "area%" and moiety is not None
+                  and float(model.molecule(name).moieties.get(moiety, 0)) <= 0):
                 r.error(f"molecule does not carry the substrate moiety '{moiety}' (its mole % "
                         f"would always be 0)", loc, name,
                         "a molecule made from the substrate", code="invalid")

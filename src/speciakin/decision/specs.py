@@ -6,7 +6,11 @@ A *specification* combines one outcome kind (registry :data:`OUTCOME_KINDS`)
 with one comparison operator (registry :data:`OPERATORS`) and a limit.
 
 Both registries drive the process-file parser, validation, evaluation and the
-docs; add an entry here and nowhere else.
+docs; add an entry here and nowhere else, unless the kind reads columns other
+than the molecules' mole %: ``area%`` reads each molecule's HPLC area%
+(:data:`AREA_PREFIX` columns, :meth:`Specification.outcome_keys`), which
+:func:`speciakin.decision.outcomes.process_outcomes` writes from the
+campaign's RRFs.
 """
 
 from __future__ import annotations
@@ -18,6 +22,8 @@ from typing import Any, Callable, Mapping, Sequence
 import numpy as np
 
 __all__ = [
+    "AREA_PREFIX",
+    "AREA_LABEL",
     "OutcomeKind",
     "OUTCOME_KINDS",
     "Operator",
@@ -40,6 +46,18 @@ def _ratio(outcomes: Mapping[str, np.ndarray], species: Sequence[str],
     bottom = _sum_percent(outcomes, per, ())
     with np.errstate(divide="ignore", invalid="ignore"):
         return top / bottom
+
+
+#: Outcome columns that hold a molecule's HPLC area% at the end of a process are named this + the molecule
+#: (``decision.outcomes.process_outcomes`` writes them when a specification of kind ``area%`` asks).
+AREA_PREFIX = "area% of "
+#: What report labels add to a molecule's label for its HPLC area% column.
+AREA_LABEL = ", HPLC area%"
+
+
+def _area_percent(outcomes: Mapping[str, np.ndarray], species: Sequence[str],
+                  per: Sequence[str]) -> np.ndarray:
+    return np.sum([np.asarray(outcomes[AREA_PREFIX + s], dtype=float) for s in species], axis=0)
 
 
 def _conversion(outcomes: Mapping[str, np.ndarray], species: Sequence[str],
@@ -79,6 +97,11 @@ OUTCOME_KINDS: Mapping[str, OutcomeKind] = MappingProxyType({
         "100 - mole % of the substrate moiety left in the listed molecules "
         "(normally the substrate itself)",
         _conversion),
+    "area%": OutcomeKind(
+        "area%", "%", False,
+        "HPLC area% of the listed molecules at the end (summed), as the lab's method reports them: "
+        "100 RRF_i n_i / sum_j RRF_j n_j over the molecules the campaign's Compounds sheet lists, with its RRFs",
+        _area_percent),
 })
 
 
@@ -150,6 +173,8 @@ class Specification:
             what = f"ratio ({names}) / ({' + '.join(self.per)})"
         elif self.kind == "conversion":
             what = f"conversion of {names}"
+        elif self.kind == "area%":
+            what = f"HPLC area% of {names}"
         else:
             what = f"mole % of {names}"
         text = f"{what} {self.operator} {self.limit:g}{unit_text}"
@@ -157,6 +182,10 @@ class Specification:
 
     def species_used(self) -> tuple[str, ...]:
         return tuple(self.species) + tuple(self.per)
+
+    def outcome_keys(self) -> tuple[str, ...]:
+        """The outcome columns the specification reads (an ``area%`` one reads the molecules' area%)."""
+        return tuple(AREA_PREFIX + s for s in self.species) if self.kind == "area%" else self.species_used()
 
     def to_dict(self) -> dict[str, Any]:
         return {"kind": self.kind, "species": list(self.species), "operator": self.operator,
@@ -200,7 +229,7 @@ def specification_value(outcomes: Mapping[str, np.ndarray] | np.ndarray, spec: S
         [%] or [-], shape of one outcome array.
     """
     table = _as_mapping(outcomes, names)
-    missing = [s for s in spec.species_used() if s not in table]
+    missing = [s for s in spec.outcome_keys() if s not in table]
     if missing:
         raise KeyError(f"no outcome for {', '.join(missing)}; known: {', '.join(table)}")
     return OUTCOME_KINDS[spec.kind].function(table, spec.species, spec.per)

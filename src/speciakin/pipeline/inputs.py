@@ -69,6 +69,13 @@ def load_inputs(inputs: Inputs):
     model = load_model(inputs.model)
     campaign = load_campaign(inputs.campaign, model=model)  # names, titrants, reachable set points (docs/data.md)
     process = load_process(inputs.process, model) if inputs.process else None
+    if process is not None:
+        from speciakin.decision.process import area_spec_problems
+        from speciakin.errors import ModelFileError
+
+        found = area_spec_problems(process, {c.name: c.molecule for c in campaign.compounds})
+        if found:
+            raise ModelFileError(problems=found)
     return model, campaign, process
 
 
@@ -99,9 +106,14 @@ def check_inputs(campaign: str | os.PathLike, model: str | os.PathLike | None = 
         return report
     report.process = str(process)
     try:
-        load_process(process, model_obj)
+        plan = load_process(process, model_obj)
     except InputError as exc:
         report.problems.extend(_named_in_workbook(p, report.compounds) for p in exc.problems)
+    else:
+        if report.imported:  # area% specifications name HPLC compounds of the workbook
+            from speciakin.decision.process import area_spec_problems
+
+            report.problems.extend(area_spec_problems(plan, report.compounds))
     return report
 
 

@@ -20,7 +20,7 @@ from typing import Any, Callable, Sequence
 import numpy as np
 
 from speciakin.chemistry.model import Run, TemperatureProfile
-from speciakin.pipeline.window import process_outcome_function, window_draws
+from speciakin.pipeline.window import hplc_rrf, process_outcome_function, window_draws
 from speciakin.decision.design import process_scan_arguments
 from speciakin.decision.outcomes import process_outcome_names
 from speciakin.decision.suggest import MIN_GAIN_PH, LocalSensitivity, SuggestResult, decision_draws, \
@@ -314,7 +314,8 @@ def process_decision(objective, process, draws: np.ndarray, chunk: int = 64):
     args = process_scan_arguments(process)
     fn = process_outcome_function(objective, process)
     outcomes = np.concatenate([fn(draws[i:i + chunk], args["ph_grid"]) for i in range(0, draws.shape[0], chunk)])
-    return decision_draws(args["ph_grid"], outcomes, args["specs"], process_outcome_names(objective.model, process))
+    names = process_outcome_names(objective.model, process, hplc_rrf(getattr(objective, "campaign", None)))
+    return decision_draws(args["ph_grid"], outcomes, args["specs"], names)
 
 
 #: Draws at which the fisher method linearises (evenly spread over the draws).

@@ -28,6 +28,16 @@ POSTERIOR = "posterior"
 COVARIANCE = "least-squares covariance (multivariate normal)"
 
 
+def hplc_rrf(campaign) -> dict[str, float]:
+    """Model molecule -> RRF of the campaign's HPLC compounds (the Compounds sheet; the first row of a
+    molecule listed twice): what an ``area%`` specification's area% are taken over; empty without a
+    campaign (an objective made for a model alone)."""
+    rrf: dict[str, float] = {}
+    for c in campaign.compounds if campaign is not None else ():
+        rrf.setdefault(c.molecule, float(c.rrf))
+    return rrf
+
+
 def process_outcome_function(objective, process) -> Callable:
     """``outcome_fn(draws, ph_grid, factor=None) -> (n_draws, n_ph, n_outcomes)``.
 
@@ -42,6 +52,7 @@ def process_outcome_function(objective, process) -> Callable:
     compiled = objective.compiled
     n_mol = compiled.n_molecules
     names = compiled.species_names[:n_mol]
+    rrf = hplc_rrf(getattr(objective, "campaign", None))
 
     last: dict = {}  # the runs of the last grid and factor: the batches of draws of one scan share them
 
@@ -67,7 +78,7 @@ def process_outcome_function(objective, process) -> Callable:
         final = res.outputs[:, :, 1, :n_mol].copy()
         final[res.status != 0] = np.nan
         amounts = {name: final[:, :, i] for i, name in enumerate(names)}
-        return process_outcomes(amounts, model, process)[1]
+        return process_outcomes(amounts, model, process, rrf)[1]
 
     return outcome_fn
 
@@ -122,7 +133,7 @@ def window_for_campaign(objective, process, draws, source: str, progress=None, *
     WindowResult
         With ``status``, ``status_reasons`` and ``gates`` set.
     """
-    names = process_outcome_names(objective.model, process)
+    names = process_outcome_names(objective.model, process, hplc_rrf(getattr(objective, "campaign", None)))
     outcome_fn = process_outcome_function(objective, process)
     result = compute_window(outcome_fn, np.asarray(draws, float),
                             outcome_names=names, uncertainty_source=source, progress=progress,

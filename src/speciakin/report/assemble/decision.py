@@ -20,6 +20,7 @@ import numpy as np
 
 from speciakin._json import finite_or_none
 from speciakin.decision.result import best_point_words, best_probability_words, outcome_words, outcomes_at_best
+from speciakin.decision.specs import AREA_PREFIX
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.blocks import as_sentences
@@ -176,11 +177,15 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if gates is not None:
         blocks.append(gates)
     if outcomes:
+        area = any(str(n).startswith(AREA_PREFIX) for n in window.outcome_names)
+        unit = "mol% or area%" if area else "mol%"
         blocks.append(Table(f"Expected outcomes at {best_point_words(window, outcome_ph)}",
-                            ["species", "median", "5 %", "95 %"], outcomes, units=[None, "mol%", "mol%", "mol%"],
+                            ["species", "median", "5 %", "95 %"], outcomes, units=[None, unit, unit, unit],
                             formats=[None, ".2f", ".2f", ".2f"],
-                            note="Mole % of the substrate moiety at the end of the process; 5 % and 95 % "
-                                 "quantiles over the parameter draws."))
+                            note="Mole % of the substrate moiety at the end of the process"
+                                 + ("; rows marked HPLC area%: the area% the campaign's HPLC method would "
+                                    "report (its RRFs)" if area else "")
+                                 + "; 5 % and 95 % quantiles over the parameter draws."))
     if window.specifications:
         blocks.append(Paragraph("Specifications (all must be met):"))
         blocks.append(BulletList([s.describe() for s in window.specifications]))
@@ -190,12 +195,12 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
 
 
 def specification_limits(window: Any) -> dict[str, tuple[float | None, float | None]]:
-    """Lower/upper limit per single-species mole % specification, for the outcome plot."""
+    """Lower/upper limit per single-species mole % or HPLC area% specification, for the outcome plot."""
     limits: dict[str, list[float | None]] = {}
     for s in window.specifications:
-        if len(s.species) != 1 or s.per or s.kind != "percent":
+        if len(s.species) != 1 or s.per or s.kind not in ("percent", "area%"):
             continue
-        entry = limits.setdefault(s.species[0], [None, None])
+        entry = limits.setdefault(s.outcome_keys()[0], [None, None])
         if s.operator in (">=", ">"):
             entry[0] = float(s.limit)
         elif s.operator in ("<=", "<"):
@@ -276,7 +281,9 @@ def window_section(window: Any, colors: SpeciesColors, process: Any = None,
         blocks.append(Figure(outcomes_vs_ph_figure(
             ph, relabel(window.outcome_median, names), relabel(window.outcome_lower, names),
             relabel(window.outcome_upper, names), relabel(specification_limits(window), names),
-            colors, value_label="end of process", value_unit="mol%"),
+            colors, value_label="end of process",
+            value_unit="mol%; dashed: area%" if any(n.startswith(AREA_PREFIX) for n in window.outcome_names)
+            else "mol%"),
             "Expected outcomes against pH: median (line) and 5-95 % band over the parameter draws; "
             "specification limits as dotted lines."))
     if window.map_probability is not None and window.factor_values is not None:

@@ -4,14 +4,19 @@ from __future__ import annotations
 
 from typing import Any, Mapping
 
+from speciakin.decision.specs import AREA_LABEL, AREA_PREFIX
+
 __all__ = ["relabel", "label_of"]
 
 
 def label_of(names: Mapping[str, str] | None, key: Any) -> Any:
-    """The compound label of ``key`` (``key`` itself when unknown or not text)."""
-    if not names or not isinstance(key, str):
+    """The compound label of ``key`` (``key`` itself when unknown or not text); an HPLC area% outcome
+    column (``AREA_PREFIX`` + molecule) is its molecule's label and ", HPLC area%"."""
+    if not isinstance(key, str):
         return key
-    return names.get(key, key)
+    if key.startswith(AREA_PREFIX):
+        return f"{label_of(names, key[len(AREA_PREFIX):])}{AREA_LABEL}"
+    return names.get(key, key) if names else key
 
 
 def relabel(mapping: Mapping[str, Any] | None, names: Mapping[str, str] | None) -> Any:

@@ -13,6 +13,7 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
+from speciakin.decision.specs import AREA_LABEL
 from speciakin.errors import InputError, Location
 from speciakin.report.figures._memo import remembered
 from speciakin.report.figures._style import (DEFAULT_HEIGHT_IN, TEXT_WIDTH_IN, as_array, finish_with_legend,
@@ -134,12 +135,15 @@ def outcomes_vs_ph_figure(
     for name, values in median.items():
         y = as_array(values, f"median['{name}']")
         same_length(ph=x, **{f"median['{name}']": y})
-        style = colors.style(name)
+        # a molecule's HPLC area% (an area% specification asked for it): its colour, dashed
+        area = name.endswith(AREA_LABEL)
+        style = colors.style(name[:-len(AREA_LABEL)] if area else name)
         if low and high and name in low and name in high:
             lo, hi = as_array(low[name], f"low['{name}']"), as_array(high[name], f"high['{name}']")
             same_length(ph=x, low=lo, high=hi)
-            ax.fill_between(x, lo, hi, color=style.color, alpha=0.18, linewidth=0)
-        ax.plot(x, y, color=style.color, linestyle=style.line_style, linewidth=1.6, label=name)
+            ax.fill_between(x, lo, hi, color=style.color, alpha=0.09 if area else 0.18, linewidth=0)
+        ax.plot(x, y, color=style.color, linestyle="--" if area else style.line_style, linewidth=1.2 if area else 1.6,
+                label=name)
         for bound in (limits or {}).get(name, (None, None)):
             if bound is not None:
                 ax.axhline(float(bound), color=style.color, linestyle=":", linewidth=1.2)
