@@ -264,8 +264,12 @@ def test_round_trip_of_a_varied_model():
 def test_skeleton_parses():
     text = resources.files("speciakin.chemistry").joinpath("templates/model_skeleton.toml").read_text()
     m = parse_model(text, source="model_skeleton.toml")
-    assert m.molecules and m.steps and m.runs
+    assert m.molecules and m.steps and not m.runs   # a campaign's runs are its workbook's
     assert [p for p in validate_model(m) if p.severity == "error"] == []
+    # the run sections it shows for `speciakin simulate`, switched on, parse and validate too
+    runs = parse_model(text.replace("#! ", ""), source="model_skeleton.toml")
+    assert [r.name for r in runs.runs] == ["pH8"] and runs.runs[0].doses and runs.runs[0].withdrawals
+    assert [p for p in validate_model(runs) if p.severity == "error"] == []
 
 
 def test_summary_shows_the_scheme():

@@ -253,3 +253,41 @@ def test_check_reports_the_model_files_warnings(tmp_path, capsys, edit, code, ke
     fitted = json.loads((latest_result(folder / "results", having="fit") / "fit.json").read_text())
     first = fitted["warnings"][0]
     assert first.startswith("model file: ") and f"key '{key}'" in first, fitted["warnings"]
+
+
+def test_check_says_the_model_files_runs_are_not_the_campaigns(tmp_path, capsys):
+    # the skeleton's [run] sections, switched on in a campaign folder: check says that a campaign's runs
+    # are its workbook's (fit and run would not read them), at the first run's key and line
+    from importlib import resources
+
+    folder = tmp_path / "c"
+    assert main(["new", str(folder), "--example"]) == 0
+    skeleton = resources.files("speciakin.chemistry").joinpath("templates/model_skeleton.toml").read_text()
+    block = skeleton[skeleton.index("#! [run.pH8]"):skeleton.index("# ---", skeleton.index("#! [run.pH8]"))]
+    model = folder / "model.toml"
+    text = model.read_text()
+    at = text.index("[fit]")
+    text = text[:at] + block.replace("#! ", "").replace('SUB = "20 mM"', 'SUB = "2 mmol"') + "\n" + text[at:]
+    model.write_text(text)
+    capsys.readouterr()
+    assert main(["check", str(folder), "--format", "json"]) == 0
+    (found,) = [q for q in json.loads(capsys.readouterr().out)["problems"] if q["code"] == "model_runs_unused"]
+    assert found["severity"] == "warning" and found["location"]["key"] == "run.pH8"
+    assert found["location"]["line"] == text.splitlines().index("[run.pH8]") + 1
+    # the skeleton of a new campaign carries none
+    assert main(["new", str(tmp_path / "blank")]) == 0
+    capsys.readouterr()
+    main(["check", str(tmp_path / "blank"), "--format", "json"])
+    assert "model_runs_unused" not in {q["code"] for q in json.loads(capsys.readouterr().out)["problems"]}
+
+
+def test_simulate_of_a_campaigns_model_file_says_where_the_runs_are(tmp_path, capsys):
+    # the example's model file has no runs (they are in its workbook): the error names the section
+    # syntax of the model file and the commands that work on the workbook's runs
+    folder = tmp_path / "c"
+    assert main(["new", str(folder), "--example"]) == 0
+    capsys.readouterr()
+    assert main(["simulate", str(folder / "model.toml"), "--out", str(tmp_path / "sim")]) == 2
+    err = capsys.readouterr().err
+    assert "declares no runs" in err and "[run.<name>]" in err and "speciakin look" in err
+    assert "Traceback" not in err

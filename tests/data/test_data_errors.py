@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import os
 
+import numpy as np
 import pytest
 
 from data_factory import (build_campaign, csv_campaign, drop_column, edit, rename_header)
@@ -212,3 +213,25 @@ def test_a_cell_gets_one_error_the_first():
     assert [p.message for p in c.errors] == ["first, the specific finding", "another cell", "a key, not a cell",
                                              "the same key again"]
     assert len(c.warnings) == 1
+
+
+def test_a_number_with_a_unit_in_a_column_without_one_is_told_to_write_it_alone(folder):
+    # the Compounds LOQ has no unit in its header (it is on the scale of the compound's values)
+    edit(folder, "compounds.csv", 2, "LOQ", "0.05 %")
+    problem = _only(check_campaign(folder), "not_numeric")
+    assert (problem.location.row, problem.location.column[1:]) == (2, " (LOQ)")
+    assert "a number alone, without a unit" in problem.expected and "header's" not in problem.expected
+
+
+def test_an_area_percent_value_may_end_in_a_percent_sign(folder):
+    # exports write '100.0 %' and '<0.04%': an area% value with its sign reads as the number; on a
+    # concentration the sign is still an error
+    edit(folder, "hplc_results.csv", 2, "value", "100.0 %")
+    edit(folder, "hplc_results.csv", 3, "value", "<0.04%")
+    before = load_campaign(csv_campaign(folder.parent / "plain"))
+    after = load_campaign(folder)
+    np.testing.assert_array_equal(after.runs[0].hplc.value, before.runs[0].hplc.value)
+    np.testing.assert_array_equal(after.runs[0].hplc.loq, before.runs[0].hplc.loq)
+    np.testing.assert_array_equal(after.runs[0].hplc.censored, before.runs[0].hplc.censored)
+    edit(folder, "hplc_results.csv", 2, "kind", "concentration")
+    assert _only(check_campaign(folder), "not_numeric").value == "100.0 %"

@@ -11,7 +11,7 @@ _TIMES = re.compile(r"^\s*([0-9.eE+-]+)\s*:\s*([0-9.eE+-]+)\s*:\s*([0-9.eE+-]+)\
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("model", metavar="MODEL.toml", help="model file with [[run]] sections")
+    parser.add_argument("model", metavar="MODEL.toml", help="model file with [run.<name>] sections")
     parser.add_argument("--run", dest="runs", action="append", metavar="NAME", default=None,
                         help="simulate only this run (repeat for several; default: every run)")
     parser.add_argument("--times", metavar='"START:STOP:STEP UNIT"', default=None,
@@ -63,7 +63,8 @@ def run(args) -> int:
     runs = list(model.runs)
     if not runs:
         raise InputError("the model file declares no runs", Location(file=str(args.model), key="run"),
-                         expected="at least one [[run]] section")
+                         expected="at least one [run.<name>] section (docs/model-file.md); a campaign's runs are "
+                         "in its workbook: 'speciakin look' draws them, 'speciakin fit' fits the model to them")
     if args.runs:
         known = [r.name for r in runs]
         missing = [n for n in args.runs if n not in known]

@@ -3,6 +3,7 @@ and gather every error and warning into a :class:`CheckReport`."""
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -142,6 +143,7 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
             report.model = getattr(model, "source", "") or getattr(model, "name", "model")
         if model_obj is not None:  # the model file's warnings (pKa range, moiety balance, ...)
             c.problems.extend(getattr(model_obj, "warnings", ()))
+            _model_runs_unused(model_obj, c)
     # the workbook is imported on its own collector (a model file with errors must not stop it), after
     # the model file's problems in the report
     model_file_problems, c = c.problems, ProblemCollector()
@@ -164,3 +166,24 @@ def check_campaign(path: str | Path, model=None) -> CheckReport:
                                   for x in (r.ph_log, r.temperature_log, r.titrant) if x is not None)
     report.problems = list(c.problems)
     return report
+
+
+def _model_runs_unused(model, c: ProblemCollector) -> None:
+    """A warning when the model file declares runs: a campaign's runs are its workbook's, so ``check``,
+    ``fit`` and ``run`` do not read them (``speciakin simulate MODEL.toml`` does)."""
+    runs = [r.name for r in getattr(model, "runs", ())]
+    if not runs:
+        return
+    source = getattr(model, "source", "") or ""
+    line = None
+    try:
+        text = Path(source).read_text(encoding="utf-8") if source else ""
+    except OSError:
+        text = ""
+    header = re.compile(r'^\s*\[\s*run\.("?)' + re.escape(runs[0]) + r'\1\s*\]')
+    line = next((i + 1 for i, t in enumerate(text.splitlines()) if header.match(t)), None)
+    c.warning(f"the model file declares {len(runs)} run(s) ({', '.join(runs)}); a campaign's runs come from "
+              "its workbook, so check, fit and run do not use them (speciakin simulate does)",
+              Location(file=source or None, key=f"run.{runs[0]}", line=line), runs[0],
+              "runs in the workbook's Runs sheet; delete the [run] sections or keep them for simulate",
+              code="model_runs_unused")

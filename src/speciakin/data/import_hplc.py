@@ -20,8 +20,11 @@ __all__ = ["parse_signal", "read_hplc", "empty_hplc"]
 NOT_DETECTED = frozenset({"n.d.", "n.d", "nd", "notdetected"})
 
 
-def parse_signal(raw, factor: float) -> tuple[float, bool, float, str | None]:
-    """One HPLC cell -> (value, censored, loq from the cell, error text)."""
+def parse_signal(raw, factor: float, percent: bool = False) -> tuple[float, bool, float, str | None]:
+    """One HPLC cell -> (value, censored, loq from the cell, error text).  With ``percent`` (an area%
+    value) a text may end in a '%' sign, as exports write it: '59.3 %', '<0.05%'."""
+    if percent and isinstance(raw, str) and raw.rstrip().endswith("%"):
+        raw = raw.rstrip()[:-1]
     if is_blank(raw):
         return np.nan, True, np.nan, None
     if isinstance(raw, bool):
@@ -122,7 +125,7 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
             # a cell formatted as a percentage shows 40.59 % and stores 0.4059: area% is the number shown
             t.percent_read.append((row, col, float(raw)))
             raw = 100.0 * raw
-        value, censored, cell_loq, err = parse_signal(raw, f)
+        value, censored, cell_loq, err = parse_signal(raw, f, percent=kinds[k] == "area_percent")
         if has_decimal_comma(raw):  # '7,5' and '<0,05' alike
             t.comma_cells.append((row, col, raw))
         if err is not None:

@@ -371,7 +371,10 @@ def _expected_number(value: Any, header: str) -> str:
     """What a numeric cell should hold; a number written with a unit ('25 °C') is told that the
     header gives the unit."""
     if isinstance(value, str) and _NUMBER_AND_UNIT.match(value):
-        return f"a number alone: the unit is the column header's ('{header.strip()}')" if header else "a number alone"
+        if header and ("[" in header or "(" in header or "/" in header):
+            return f"a number alone: the unit is the column header's ('{header.strip()}')"
+        return "a number alone, without a unit" + (f" (see the column '{header.strip()}' in the Read me sheet)"
+                                                  if header else "")
     return "a number"
 
 
