@@ -291,3 +291,22 @@ def test_simulate_of_a_campaigns_model_file_says_where_the_runs_are(tmp_path, ca
     err = capsys.readouterr().err
     assert "declares no runs" in err and "[run.<name>]" in err and "speciakin look" in err
     assert "Traceback" not in err
+
+
+def test_a_report_made_later_names_the_process_file_its_window_was_computed_for(tmp_path, capsys):
+    # `speciakin report` on a result with a window takes the process file the window recorded (path and
+    # SHA-256 in window.json), so the report's inputs list it and its planned process is described;
+    # after an edit of the file it is not taken for the window's
+    from speciakin import pipeline
+    from speciakin.pipeline import outputs
+
+    folder = tmp_path / "c"
+    assert main(["new", str(folder), "--example"]) == 0
+    assert main(["run", str(folder), "--quick", "--quiet"]) == 0
+    result = latest_result(folder / "results", having="window")
+    recorded = json.loads((result / "window.json").read_text())
+    assert (result / recorded["process"]).resolve() == (folder / "process.toml").resolve()
+    loaded = pipeline.load_results(result)
+    assert loaded.process is not None and loaded.inputs.process.resolve() == (folder / "process.toml").resolve()
+    (folder / "process.toml").write_text((folder / "process.toml").read_text() + "\n# edited\n")
+    assert outputs.window_process(result) is None and pipeline.load_results(result).process is None

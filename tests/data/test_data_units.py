@@ -13,6 +13,7 @@ import pytest
 
 from data_factory import csv_campaign, read_csv, write_csv
 from speciakin.data import load_campaign
+from speciakin.errors import DataError
 
 
 def _rescale(folder, name, header, new_header, factor, offset=0.0):
@@ -90,3 +91,28 @@ def test_wide_layout_equals_long(tmp_path):
         ka = sorted(zip(ha.time, ha.compound, np.nan_to_num(ha.value, nan=-1), ha.censored))
         kb = sorted(zip(hb.time, hb.compound, np.nan_to_num(hb.value, nan=-1), hb.censored))
         assert ka == kb
+
+
+def test_a_column_of_a_peak_not_modelled_in_the_wide_layout(tmp_path):
+    # a wide HPLC sheet with an extra column for an unknown peak, listed in Compounds as 'not modelled':
+    # its values are kept apart (HplcData.other), the modelled values are read as without the column
+    base = csv_campaign(tmp_path / "a")
+    rows = read_csv(base, "hplc_results.csv")
+    wide: dict[tuple, dict] = {}
+    for run, t, kind, comp, val in rows[1:]:
+        if kind == "area%":
+            wide.setdefault((run, t, kind), {})[comp] = val
+    names = ["S-peak", "P1-peak", "P2-peak", "P12-peak"]
+    out = [["run", "time [min]", "kind"] + names + ["RRT 1.3"]]
+    out += [[k[0], k[1], k[2]] + [v.get(n, "") for n in names] + ["0.42"] for k, v in wide.items()]
+    write_csv(base, "hplc_results.csv", out)
+    with pytest.raises(DataError, match="not listed in the Compounds sheet"):   # not listed yet
+        load_campaign(base)
+    compounds = read_csv(base, "compounds.csv")
+    write_csv(base, "compounds.csv", compounds + [["RRT 1.3", "not modelled", "", "", "0.05", ""]])
+    c = load_campaign(base)
+    assert [x.name for x in c.other_compounds] == ["RRT 1.3"]
+    for name in ("R01", "R02"):
+        h = c.run(name).hplc
+        assert set(h.other.compound) == {"RRT 1.3"} and np.all(h.other.value == 0.42)
+        assert "RRT 1.3" not in set(h.compound)

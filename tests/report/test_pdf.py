@@ -70,3 +70,21 @@ def test_long_cell_text_wraps_inside_its_column():
     raw = " ".join(_pages(pdf_bytes(doc)))
     assert _flat(sentence) in _flat(raw)
     assert sentence.strip() not in raw  # broken over several lines, not one overflowing line
+
+
+def test_a_short_word_stays_whole_beside_tokens_too_long_to_fit():
+    # The report's input files: a role word, a path and a SHA-256 (64 characters, one token) do not fit
+    # side by side on an A4 text width; the widest column gives way and the role keeps its width
+    from reportlab.pdfbase.pdfmetrics import stringWidth
+
+    from speciakin.report.pdf import _column_widths
+
+    sha = "9629af449f931a8456c141df8ad8b77bf642a7358342967df7d4cce2866efd87"
+    table = Table("Input files", ["role", "path", "SHA-256"],
+                  [["campaign", "../../campaign.xlsx", sha], ["model file", "../../model.toml", sha]])
+    width = 400.0
+    widths = _column_widths(table, width)
+    assert abs(sum(widths) - width) < 1e-6 or sum(widths) <= width
+    assert widths[0] >= stringWidth("campaign", "Helvetica", 8.5) + 13
+    assert widths[1] >= stringWidth("../../campaign.xlsx", "Helvetica", 8.5) + 13
+    assert widths[2] < stringWidth(sha, "Helvetica", 8.5)   # the hash wraps

@@ -263,9 +263,33 @@ def save_suggestion(folder: Path, suggestion: Any, inputs: Any = None, command: 
 
 
 # ------------------------------------------------------------------ window
-def save_window(folder: Path, window: Any, command: str | None = None) -> None:
-    """``window.json`` and ``window.txt`` of a WindowResult."""
-    _save_json_and_text(Path(folder), "window", "window_text", window, command)
+def save_window(folder: Path, window: Any, command: str | None = None, process: str | os.PathLike | None = None
+                ) -> None:
+    """``window.json`` and ``window.txt`` of a WindowResult; with ``process`` (the process file it was
+    computed for) its path relative to ``folder`` and its SHA-256, so that a later report names it."""
+    folder = Path(folder)
+    data = _provenance(window.to_dict(), command, folder)
+    if process and Path(process).is_file():
+        data["process"] = relative(process, folder)
+        data["process_sha256"] = hashlib.sha256(Path(process).read_bytes()).hexdigest()
+    write_json(result_path(folder, "window"), data)
+    write_text(result_path(folder, "window_text"), window.report() + "\n")
+
+
+def window_process(folder: Path) -> Path | None:
+    """The process file ``folder``'s ``window.json`` was computed for, when it is still there with the
+    same bytes (SHA-256); None otherwise (an older window.json, a moved or edited file)."""
+    path = result_path(Path(folder), "window")
+    if not path.is_file():
+        return None
+    data = read_json(path, "window result")
+    recorded, digest = data.get("process"), data.get("process_sha256")
+    if not recorded or not digest:
+        return None
+    found = Path(os.path.normpath(Path(folder) / recorded))
+    if found.is_file() and hashlib.sha256(found.read_bytes()).hexdigest() == digest:
+        return found
+    return None
 
 
 def load_window(folder: Path) -> Any | None:

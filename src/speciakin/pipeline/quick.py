@@ -77,7 +77,7 @@ def quick_run(inputs: Inputs, out: Path, *, starts: int | None = None, seed: int
         window = timed(timings, "window", lambda: window_step(objective, process, out, fit=fit, draws=n_draws,
                                                               seed=seed, progress=progress, cancel=cancel))
         mark_provisional(window)
-        outputs.save_window(out, window)
+        outputs.save_window(out, window, process=process.source)
         for line in window_lines(window, timings["window"]):
             say(line)
     outputs.save_timings(out, timings)

@@ -293,7 +293,9 @@ def load_results(folder: Path, *, campaign: str | None = None, model: str | None
     fit, fit_data = entry if entry is not None else (None, {})
     model_path = outputs.resolve_input(model, fit_data.get("model"), folder, "model file", "model")
     campaign_path = outputs.resolve_input(campaign, fit_data.get("campaign"), folder, "campaign", "campaign")
-    process_path = outputs.resolve_input(process, None, folder, "process file", "process") if process else None
+    # the process file: the one given, else the one the window was computed for (unchanged since)
+    process_path = (outputs.resolve_input(process, None, folder, "process file", "process") if process
+                    else outputs.window_process(folder))
     loaded_model = load_model(model_path)
     loaded_campaign = load_campaign(campaign_path)
     objective = make_objective(loaded_model, loaded_campaign)

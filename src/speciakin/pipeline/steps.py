@@ -139,7 +139,7 @@ def window_step(objective, process, out: Path, *, fit=None, posterior=None, draw
                                  fit=fit, posterior=posterior)
     if notes:
         result.warnings.extend(notes)
-    outputs.save_window(out, result)
+    outputs.save_window(out, result, process=getattr(process, "source", None))
     window_figures(result, out, objective.model)
     return result
 

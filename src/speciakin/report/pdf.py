@@ -130,7 +130,17 @@ def _column_widths(table: Table, width: float, cell_font: str = "Helvetica", hea
     if total_min <= width:
         share = (width - total_min) / (total_desired - total_min)
         return [m + (d - m) * share for d, m in zip(desired, minimum)]
-    return [width * m / total_min for m in minimum]
+    # the unbreakable tokens do not fit side by side (a SHA-256 beside a path): the widest columns give
+    # way first, each down to half its minimum (their long token wraps), so that a short word such as a
+    # file's role stays whole
+    widths, excess = list(minimum), total_min - width
+    for i in sorted(range(len(widths)), key=lambda k: -minimum[k]):
+        take = min(excess, 0.5 * widths[i])
+        widths[i] -= take
+        excess -= take
+        if excess <= 0.0:
+            return widths
+    return [width * w / sum(widths) for w in widths]
 
 
 def _table(block: Table, styles, width: float) -> list:
