@@ -175,7 +175,6 @@ def _model_runs_unused(model, c: ProblemCollector) -> None:
     if not runs:
         return
     source = getattr(model, "source", "") or ""
-    line = None
     try:
         text = Path(source).read_text(encoding="utf-8") if source else ""
     except OSError:

@@ -139,7 +139,7 @@ def read_hplc(cols: SheetColumns, c: ProblemCollector, known: dict[str, int],
         (rows_by_run if comp.modelled else other_by_run).setdefault(runs[k], []).append(
             (time[k], name, comp.molecule, kinds[k], value, censored, loq, comp.rrf, row))
     out: dict[str, HplcData] = {}
-    for run in rows_by_run.keys() | other_by_run.keys():
+    for run in dict.fromkeys([*rows_by_run, *other_by_run]):  # in sheet order
         others = other_by_run.get(run)
         out[run] = replace(_table(rows_by_run.get(run, [])), other=_table(others) if others else None)
     return out
