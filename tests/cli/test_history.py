@@ -181,6 +181,10 @@ def test_steps_alone_history_contrast_and_a_moved_folder(fitted_campaign, fitted
     html = (rendered / "report.html").read_text()
     assert str(tmp_path) not in html and str(fitted.parents[1]) not in html  # nor where the fit was made
     assert any(word in html for word in ("Recommended", "Provisional", "Not established"))  # the decision callout
+    # the report renders the window's result: without ids, contrast still sets the two newest analyses side by side
+    capsys.readouterr()
+    assert main(["contrast", str(moved)]) == 0
+    assert capsys.readouterr().out.splitlines()[2].split() == ["id", window_folder.name, third.name]
 
 
 def _renamed(reduced: Path, folder: Path, names: list[str]) -> Path:

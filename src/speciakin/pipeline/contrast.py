@@ -101,9 +101,13 @@ def _resolve(root: Path, key: str) -> dict[str, Any]:
 
 def default_pair(root: str | os.PathLike, a: str | None = None) -> tuple[str, str]:
     """The ids to contrast when not all are named: without ``a`` the two newest complete runs (the
-    older as A); with ``a`` that run and the newest complete run other than it."""
+    older as A); with ``a`` that run and the newest complete run other than it.  A ``report`` step
+    renders the result it is built on and adds no number of its own, so reports are passed over while
+    two other runs are there."""
     root = Path(root)
-    complete = [r["id"] for r in live_runs(root) if r["status"] == "complete"]
+    live = [r for r in live_runs(root) if r["status"] == "complete"]
+    analyses = [r["id"] for r in live if r.get("step") != "report"]
+    complete = analyses if len(analyses) >= 2 else [r["id"] for r in live]
     if a is not None:
         first = _resolve(root, a)["id"]
         others = [i for i in complete if i != first]
@@ -125,7 +129,8 @@ def contrast(root: str | os.PathLike, a: str, b: str) -> dict[str, Any]:
     general = [[key, *(live.get(r["id"], r["status"]) if key == "status" else r.get(key) for r in runs)]
                for key in ("id", "step", "status", "started", "command", "built_on")]
     general.insert(4, ["wall time [s]", *(_number(r.get("elapsed_s")) for r in runs)])
-    general.append(["seeds", *(", ".join(f"{k} {v}" for k, v in r["seeds"].items()) for r in runs)])
+    general.append(["seeds", *(", ".join(f"{k} {v}" for k, v in r["seeds"].items() if v is not None) or "-"
+                               for r in runs)])
     for package in history.PACKAGES:
         versions = [r["versions"].get(package) for r in runs]
         if versions[0] != versions[1]:
