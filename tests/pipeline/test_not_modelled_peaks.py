@@ -206,3 +206,20 @@ def test_the_raw_data_views_draw_the_peaks_not_modelled(folders, tmp_path):
     np.testing.assert_allclose(unknown.y, run.hplc.other.value)
     plot_run(run, campaign.compounds, {}, colors, tmp_path / "look.png")
     assert (tmp_path / "look.png").stat().st_size > 0
+
+
+def test_check_finds_a_value_not_modelled_that_belongs_to_no_sample_and_a_repeated_one(folders, tmp_path):
+    # an unknown's value at a time no modelled compound was sampled counts in no sample's total; a second
+    # value at the same time would count twice: both are warnings at their rows
+    folder = shutil.copytree(folders["marked"], tmp_path / "edited")
+    wb = openpyxl.load_workbook(folder / "campaign.xlsx")
+    ws = wb["HPLC results"]
+    unknown = [row for row in ws.iter_rows(min_row=2) if row[3].value == UNKNOWN]
+    unknown[0][1].value = 7            # no sample at 7 min
+    first = unknown[1]
+    ws.append([first[0].value, first[1].value, "area%", UNKNOWN, 0.2])
+    wb.save(folder / "campaign.xlsx")
+    warnings = {p.code: p for p in check_campaign(folder).warnings}
+    alone = warnings["not_modelled_alone"]
+    assert alone.location.row == unknown[0][0].row and alone.value == pytest.approx(7.0)
+    assert warnings["duplicate_time"].location.row == ws.max_row

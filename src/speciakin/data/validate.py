@@ -134,7 +134,19 @@ def campaign_warnings(campaign: Campaign, c: ProblemCollector,
                       f"times in increasing order [{hplc_unit.symbol}]", code="time_order")
         seen: dict[tuple[float, str], int] = {}
         repeats: list[tuple[float, str, int, int]] = []
-        for t, comp, row in zip(h.time.tolist(), h.compound.tolist(), h.rows.tolist()):
+        o = h.other
+        times, names, rows = h.time.tolist(), h.compound.tolist(), h.rows.tolist()
+        if o is not None:  # the peaks marked not modelled: one value per time too
+            times, names, rows = times + o.time.tolist(), names + o.compound.tolist(), rows + o.rows.tolist()
+            alone = np.flatnonzero(~np.isin(o.time, h.time))
+            if alone.size:
+                k = int(alone[0])
+                c.warning(f"{o.compound[k]} (not modelled) has a value in run {run.name} at a time no modelled "
+                          "compound was sampled: it counts in no sample"
+                          + (f"; {alone.size} values in all" if alone.size > 1 else ""),
+                          _loc(campaign, "hplc", int(o.rows[k]), "time"), o.time[k] / hplc_unit.factor,
+                          f"the time of one of the run's samples [{hplc_unit.symbol}]", code="not_modelled_alone")
+        for t, comp, row in zip(times, names, rows):
             if (t, comp) in seen:
                 repeats.append((t, comp, row, seen[(t, comp)]))
             else:
