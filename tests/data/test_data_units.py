@@ -69,19 +69,25 @@ def test_known_values(pair):
     assert r1.doses[0].end == pytest.approx(1800.0)   # 30 min
 
 
-def test_wide_layout_equals_long(tmp_path):
-    base = csv_campaign(tmp_path / "a")
-    rows = read_csv(base, "hplc_results.csv")
-    # long -> wide: one column per compound; only the area% runs (R01, R02)
+def _wide(rows: list[list[str]], extra: dict[str, str] | None = None) -> list[list[str]]:
+    """Long HPLC rows -> wide: one column per compound, only the area% runs (R01, R02); ``extra`` adds a
+    column with one value in every sample (header -> value)."""
     wide: dict[tuple, dict] = {}
     for run, t, kind, comp, val in rows[1:]:
         if kind == "area%":
             wide.setdefault((run, t, kind), {})[comp] = val
     names = ["S-peak", "P1-peak", "P2-peak", "P12-peak"]
-    out = [["run", "time [min]", "kind"] + names]
-    out += [[k[0], k[1], k[2]] + [v.get(n, "") for n in names] for k, v in wide.items()]
+    extra = extra or {}
+    out = [["run", "time [min]", "kind"] + names + list(extra)]
+    out += [[k[0], k[1], k[2]] + [v.get(n, "") for n in names] + list(extra.values()) for k, v in wide.items()]
+    return out
+
+
+def test_wide_layout_equals_long(tmp_path):
+    base = csv_campaign(tmp_path / "a")
+    rows = read_csv(base, "hplc_results.csv")
     other = csv_campaign(tmp_path / "b")
-    write_csv(other, "hplc_results.csv", out)
+    write_csv(other, "hplc_results.csv", _wide(rows))
     long_rows = [r for r in rows if r[2] != "concentration"]
     write_csv(base, "hplc_results.csv", long_rows)
     a, b = load_campaign(base), load_campaign(other)
@@ -97,15 +103,7 @@ def test_a_column_of_a_peak_not_modelled_in_the_wide_layout(tmp_path):
     # a wide HPLC sheet with an extra column for an unknown peak, listed in Compounds as 'not modelled':
     # its values are kept apart (HplcData.other), the modelled values are read as without the column
     base = csv_campaign(tmp_path / "a")
-    rows = read_csv(base, "hplc_results.csv")
-    wide: dict[tuple, dict] = {}
-    for run, t, kind, comp, val in rows[1:]:
-        if kind == "area%":
-            wide.setdefault((run, t, kind), {})[comp] = val
-    names = ["S-peak", "P1-peak", "P2-peak", "P12-peak"]
-    out = [["run", "time [min]", "kind"] + names + ["RRT 1.3"]]
-    out += [[k[0], k[1], k[2]] + [v.get(n, "") for n in names] + ["0.42"] for k, v in wide.items()]
-    write_csv(base, "hplc_results.csv", out)
+    write_csv(base, "hplc_results.csv", _wide(read_csv(base, "hplc_results.csv"), {"RRT 1.3": "0.42"}))
     with pytest.raises(DataError, match="not listed in the Compounds sheet"):   # not listed yet
         load_campaign(base)
     compounds = read_csv(base, "compounds.csv")

@@ -86,7 +86,7 @@ def plot_run(run, compounds, labels: dict, colors, path) -> None:
         if cens.any():
             ax_h.plot(t[cens], np.zeros(int(cens.sum())), linestyle="none", marker="v", mfc="none",
                       color=style.color, ms=5)
-    other = h.other if h.other is not None else None
+    other = h.other
     for name in dict.fromkeys(other.compound.tolist() if other is not None else []):
         sel = (other.compound == name) & ~other.censored
         ax_h.plot(other.time[sel] / 60.0, other.value[sel] * scale, marker="x", linestyle=":", color=NEUTRAL,

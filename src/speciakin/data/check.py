@@ -3,7 +3,6 @@ and gather every error and warning into a :class:`CheckReport`."""
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -174,13 +173,14 @@ def _model_runs_unused(model, c: ProblemCollector) -> None:
     runs = [r.name for r in getattr(model, "runs", ())]
     if not runs:
         return
+    from speciakin.chemistry.modelfile.paths import KeyLines, format_path
+
     source = getattr(model, "source", "") or ""
     try:
         text = Path(source).read_text(encoding="utf-8") if source else ""
     except OSError:
         text = ""
-    header = re.compile(r'^\s*\[\s*run\.("?)' + re.escape(runs[0]) + r'\1\s*\]')
-    line = next((i + 1 for i, t in enumerate(text.splitlines()) if header.match(t)), None)
+    line = KeyLines(text).line(format_path("run", runs[0]))
     c.warning(f"the model file declares {len(runs)} run(s) ({', '.join(runs)}); a campaign's runs come from "
               "its workbook, so check, fit and run do not use them (speciakin simulate does)",
               Location(file=source or None, key=f"run.{runs[0]}", line=line), runs[0],

@@ -17,7 +17,7 @@ import numpy as np
 
 from speciakin._io import atomic_write_bytes
 from speciakin.decision.result import WindowResult
-from speciakin.decision.specs import AREA_PREFIX
+from speciakin.decision.specs import area_molecule
 from speciakin.palette import OKABE_ITO, cycle_style
 
 __all__ = ["plot_probability", "plot_outcomes", "plot_map"]
@@ -99,7 +99,7 @@ def plot_outcomes(result: WindowResult, path: str | os.PathLike, colors=None) ->
     area = False
     for k, name in enumerate(result.outcome_names):
         # an area% column (an area% specification asked for it) in its molecule's colour, dashed
-        molecule = name[len(AREA_PREFIX):] if name.startswith(AREA_PREFIX) else name
+        molecule = area_molecule(name) or name
         area |= molecule != name
         colour = colors.color(molecule) if colors is not None else cycle_style(k)[0]
         ax.fill_between(result.ph, result.outcome_lower[name], result.outcome_upper[name],

@@ -11,7 +11,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from speciakin._json import json_ready, nan_from_null
-from speciakin.decision.specs import AREA_PREFIX, Specification
+from speciakin.decision.specs import AREA_PREFIX, Specification, area_molecule
 
 __all__ = ["WindowResult", "REPORT_HEADINGS", "best_probability_words", "outcomes_at_best", "best_point_words",
            "outcome_words"]
@@ -254,7 +254,7 @@ class WindowResult:
         lines.append(f"[{h[5]}]")
         at_ph, rows = outcomes_at_best(self)
         if rows:
-            area = any(n.startswith(AREA_PREFIX) for n in self.outcome_names)
+            area = any(area_molecule(n) for n in self.outcome_names)
             lines.append(f"  at pH {at_ph:.2f}: median [5 %, 95 %] mole % of substrate moiety"
                          + (f"; '{AREA_PREFIX.strip()}': HPLC area%" if area else ""))
             for n, median, low, high in rows:

@@ -24,6 +24,7 @@ import numpy as np
 __all__ = [
     "AREA_PREFIX",
     "AREA_LABEL",
+    "area_molecule",
     "OutcomeKind",
     "OUTCOME_KINDS",
     "Operator",
@@ -53,6 +54,11 @@ def _ratio(outcomes: Mapping[str, np.ndarray], species: Sequence[str],
 AREA_PREFIX = "area% of "
 #: What report labels add to a molecule's label for its HPLC area% column.
 AREA_LABEL = ", HPLC area%"
+
+
+def area_molecule(name: str) -> str | None:
+    """The molecule of an HPLC area% outcome column (:data:`AREA_PREFIX` + molecule), else None."""
+    return name[len(AREA_PREFIX):] if str(name).startswith(AREA_PREFIX) else None
 
 
 def _area_percent(outcomes: Mapping[str, np.ndarray], species: Sequence[str],

@@ -54,8 +54,9 @@ def sample_values(h, t: float) -> tuple:
     kinds, values, loq = h.kind[idx], h.value[idx].astype(float), h.loq[idx].astype(float)
     share, oidx = h.other_share(t)
     o = h.other
+    none = (np.zeros(0), np.zeros(0, bool), np.zeros(0))
     other = ((o.value[oidx].astype(float), o.censored[oidx].astype(bool), o.loq[oidx].astype(float)) if oidx.size
-             else (np.zeros(0), np.zeros(0, bool), np.zeros(0)))
+             else none)
     if np.all(kinds == "area"):
         total = np.nansum(np.where(h.censored[idx], 0.0, values)) + share
         scale = 100.0 / total if total > 0 else np.nan
@@ -63,5 +64,5 @@ def sample_values(h, t: float) -> tuple:
         other = (other[0] * scale, other[1], other[2] * scale)
         kinds = np.full(idx.size, "area_percent")
     if not np.any(kinds == "area_percent"):
-        share, other = 0.0, (np.zeros(0), np.zeros(0, bool), np.zeros(0))
+        share, other = 0.0, none
     return idx, kinds, values, loq, share, other

@@ -159,8 +159,9 @@ def _provenance(data: dict[str, Any], command: str | None, folder: Path | None =
     return data
 
 
-def _save_json_and_text(folder: Path, json_role: str, text_role: str, result: Any, command: str | None) -> None:
-    write_json(result_path(folder, json_role), _provenance(result.to_dict(), command, folder))
+def _save_json_and_text(folder: Path, json_role: str, text_role: str, result: Any, command: str | None,
+                        extra: Mapping[str, Any] | None = None) -> None:
+    write_json(result_path(folder, json_role), {**_provenance(result.to_dict(), command, folder), **(extra or {})})
     write_text(result_path(folder, text_role), result.report() + "\n")
 
 
@@ -268,12 +269,9 @@ def save_window(folder: Path, window: Any, command: str | None = None, process: 
     """``window.json`` and ``window.txt`` of a WindowResult; with ``process`` (the process file it was
     computed for) its path relative to ``folder`` and its SHA-256, so that a later report names it."""
     folder = Path(folder)
-    data = _provenance(window.to_dict(), command, folder)
-    if process and Path(process).is_file():
-        data["process"] = relative(process, folder)
-        data["process_sha256"] = hashlib.sha256(Path(process).read_bytes()).hexdigest()
-    write_json(result_path(folder, "window"), data)
-    write_text(result_path(folder, "window_text"), window.report() + "\n")
+    extra = ({"process": relative(process, folder), "process_sha256": _sha256(process)}
+             if process and Path(process).is_file() else None)
+    _save_json_and_text(folder, "window", "window_text", window, command, extra)
 
 
 def window_process(folder: Path) -> Path | None:
@@ -287,9 +285,11 @@ def window_process(folder: Path) -> Path | None:
     if not recorded or not digest:
         return None
     found = Path(os.path.normpath(Path(folder) / recorded))
-    if found.is_file() and hashlib.sha256(found.read_bytes()).hexdigest() == digest:
-        return found
-    return None
+    return found if found.is_file() and _sha256(found) == digest else None
+
+
+def _sha256(path: str | os.PathLike) -> str:
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
 
 
 def load_window(folder: Path) -> Any | None:

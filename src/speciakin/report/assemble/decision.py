@@ -20,7 +20,7 @@ import numpy as np
 
 from speciakin._json import finite_or_none
 from speciakin.decision.result import best_point_words, best_probability_words, outcome_words, outcomes_at_best
-from speciakin.decision.specs import AREA_PREFIX
+from speciakin.decision.specs import area_molecule
 from speciakin.palette import SpeciesColors
 from speciakin.report.assemble.names import label_of, relabel
 from speciakin.report.blocks import as_sentences
@@ -177,7 +177,7 @@ def decision_summary_section(window: Any, fit: Any, posterior: Any, invented: bo
     if gates is not None:
         blocks.append(gates)
     if outcomes:
-        area = any(str(n).startswith(AREA_PREFIX) for n in window.outcome_names)
+        area = any(area_molecule(n) for n in window.outcome_names)
         unit = "mol% or area%" if area else "mol%"
         blocks.append(Table(f"Expected outcomes at {best_point_words(window, outcome_ph)}",
                             ["species", "median", "5 %", "95 %"], outcomes, units=[None, unit, unit, unit],
@@ -282,7 +282,7 @@ def window_section(window: Any, colors: SpeciesColors, process: Any = None,
             ph, relabel(window.outcome_median, names), relabel(window.outcome_lower, names),
             relabel(window.outcome_upper, names), relabel(specification_limits(window), names),
             colors, value_label="end of process",
-            value_unit="mol%; dashed: area%" if any(n.startswith(AREA_PREFIX) for n in window.outcome_names)
+            value_unit="mol%; dashed: area%" if any(area_molecule(n) for n in window.outcome_names)
             else "mol%"),
             "Expected outcomes against pH: median (line) and 5-95 % band over the parameter draws; "
             "specification limits as dotted lines."))

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Mapping
 
-from speciakin.decision.specs import AREA_LABEL, AREA_PREFIX
+from speciakin.decision.specs import AREA_LABEL, area_molecule
 
 __all__ = ["relabel", "label_of"]
 
@@ -14,8 +14,8 @@ def label_of(names: Mapping[str, str] | None, key: Any) -> Any:
     column (``AREA_PREFIX`` + molecule) is its molecule's label and ", HPLC area%"."""
     if not isinstance(key, str):
         return key
-    if key.startswith(AREA_PREFIX):
-        return f"{label_of(names, key[len(AREA_PREFIX):])}{AREA_LABEL}"
+    if area_molecule(key):
+        return f"{label_of(names, area_molecule(key))}{AREA_LABEL}"
     return names.get(key, key) if names else key
 
 
