@@ -353,7 +353,8 @@ def _assemble(counted, specs, fits, records, best, vary_mask, jacobian, method, 
                   "chi-square unchanged); the estimates are not a unique solution"
     else:
         message = "converged"
-    jac_name = "user" if callable(jacobian) else (jacobian or "optimizer forward / central at optimum")
+    jac_name = (getattr(jacobian, "label", "user") if callable(jacobian)
+                else (jacobian or "optimizer forward / central at optimum"))
     return FitResult(
         parameters=estimates, parameter_specs=list(specs), varying_names=names, chisqr=float(chisqr),
         reduced_chisqr=float(chisqr / dof), aic=akaike_information_criterion(chisqr, n, p) if chisqr > 0 else -math.inf,

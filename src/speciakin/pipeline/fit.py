@@ -316,6 +316,21 @@ def overstated_errors_warning(chisqr: float, dof: int) -> str | None:
             "scatter is typical of the method, state smaller errors in the model file's [fit] error_model")
 
 
+class LabelledJacobian:
+    """The objective's Jacobian for the least-squares layer, with the label of how it was computed
+    (``FitResult.jacobian_method``, read when the fit is assembled)."""
+
+    def __init__(self, objective: CampaignObjective) -> None:
+        self.objective = objective
+
+    def __call__(self, theta, columns=None):
+        return self.objective.jacobian(theta, columns)
+
+    @property
+    def label(self) -> str:
+        return self.objective.jacobian_label
+
+
 def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = None, seed: int | None = None,
                  profiles: bool = True, profile_points: int = 12,
                  progress: Callable[[str, int, int], None] | None = None) -> CampaignFitResult:
@@ -354,7 +369,8 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
 
     if progress is not None and isinstance(n_starts, int):
         progress("starts", 0, n_starts)
-    fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=objective.jacobian,
+    jacobian = LabelledJacobian(objective)
+    fit = fit_least_squares(objective.residuals, objective.specs(), jacobian=jacobian,
                             starts=n_starts, seed=seed, progress=on_start, groups=list(objective.groups),
                             one_sided=objective.one_sided)
     t_fit = time.perf_counter() - t0
@@ -379,7 +395,7 @@ def fit_campaign(objective: CampaignObjective, *, starts: int | str | None = Non
         if progress is not None:
             progress("profiles", 0, len(fit.varying_names))
         prof = profile_all(objective.residuals, fit, progress=on_profile, points=profile_points,
-                           jacobian=objective.jacobian)
+                           jacobian=jacobian)
         fit = fit.with_profiles(prof)
         warnings += [_rename(w, mapping) for p in prof.values() for w in p.warnings
                      if _rename(w, mapping) not in warnings]

@@ -60,7 +60,7 @@ from speciakin.estimation.parameters import ParameterSpec
 from speciakin.pipeline.closure import ClosedSamples
 from speciakin.pipeline.objective_values import Predictions, resample_titrant, sample_values
 from speciakin.pipeline.fitted import ErrorModel, FittedParameter, identifier, kernel_placement
-from speciakin.pipeline.objective_jacobian import central_jacobian, remembered_columns
+from speciakin.pipeline.objective_jacobian import campaign_jacobian, jacobian_label
 from speciakin.simulation.api import simulate_batch
 from speciakin.simulation.compile import compile_model, compile_runs
 
@@ -118,6 +118,7 @@ class CampaignObjective:
         self._gather: tuple | None = None  # flat output indices of the observations (predict_batch)
         self._plan: tuple | None = None  # where the fitted values go in the kernel's inputs (kernel_inputs)
         self._last_jacobian: tuple | None = None  # Jacobian columns at the last point (jacobian)
+        self.jacobian_method, self.jacobian_fallbacks = "sensitivities", 0  # or "differences" (jacobian)
 
     # ------------------------------------------------------------ set-up
     def _check_mapping(self) -> None:
@@ -342,7 +343,11 @@ class CampaignObjective:
         q, off, fac = self.kernel_inputs(theta)
         res = simulate_batch(self.compiled, self.compiled_runs, q, off, fac, rtol or self.rtol, self.atol,
                              self.parallel)
-        out = res.outputs
+        return self.predictions_from(res.outputs, res.status)
+
+    def predictions_from(self, out: np.ndarray, status: np.ndarray) -> Predictions:
+        """Model values at every observation from kernel outputs (n_sets, n_runs, n_times, n_outputs)
+        and their status (n_sets, n_runs)."""
         n_sets = out.shape[0]
         # one flat gather per observable (cheaper than indexing with three index arrays per call)
         flat = out.reshape(n_sets, -1)
@@ -372,11 +377,11 @@ class CampaignObjective:
             vol = flat.take(at_volume, axis=1)
             model = np.where(self.h_area, model, amount / vol) if any_area else amount / vol
         tit = flat.take(at_titrant, axis=1)
-        failed = res.status.any(axis=1)
+        failed = status.any(axis=1)
         model[failed] = np.nan
         tit[failed] = np.nan
         return Predictions(model, self.h_obs, self.h_sigma, self.h_cens, tit, self.t_obs, self.t_sigma,
-                           out, res.status)
+                           out, status)
 
     def value_residuals(self, pr: Predictions) -> np.ndarray:
         """Each HPLC value's own weighted residual (n_sets, n_hplc): (model - observed) / sigma, for a
@@ -388,7 +393,10 @@ class CampaignObjective:
     def residuals_batch(self, theta: np.ndarray, rtol: float | None = None) -> np.ndarray:
         """Weighted residuals (n_sets, n_data); NaN rows where the simulation failed.  The values of a
         closed area% sample give its whitened residuals (``pipeline.closure``), not one each."""
-        pr = self.predict_batch(theta, rtol)
+        return self.residuals_of(self.predict_batch(theta, rtol))
+
+    def residuals_of(self, pr: Predictions) -> np.ndarray:
+        """The weighted residuals (n_sets, n_data) of model values (:meth:`residuals_batch`)."""
         r_h = self.closure.whiten(self.value_residuals(pr), pr.hplc_model, self.h_obs)
         r_t = (pr.titrant_model - self.t_obs[None, :]) / self.t_sigma[None, :]
         return np.concatenate([r_h, r_t], axis=1)
@@ -398,26 +406,15 @@ class CampaignObjective:
         return self.residuals_batch(np.asarray(theta, float)[None, :])[0]
 
     def jacobian(self, theta: np.ndarray, columns=None) -> np.ndarray:
-        """Central-difference Jacobian of :meth:`residuals`, (n_data, p) or only ``columns``.
+        """Jacobian of :meth:`residuals`, (n_data, p) or only ``columns``: forward sensitivities
+        (``jacobian_method`` "sensitivities", the default) or central differences ("differences", and where
+        a run cannot be simulated); :func:`speciakin.pipeline.objective_jacobian.campaign_jacobian`."""
+        return campaign_jacobian(self, theta, columns)
 
-        All perturbed parameter sets are simulated in one batch (spread over
-        the cores) at a tighter integrator tolerance.  Step h_j = 1e-3 *
-        max(1, |theta_j|) (integrator noise at rtol 1e-8 divided by h stays
-        near 1e-5; truncation error O(h^2) near 1e-6), kept inside the bounds
-        by one-sided steps where needed, and where the run cannot be simulated
-        on one side (a titrant that would have to be withdrawn there, for
-        example): then the difference is taken on the other side.  The columns
-        of the last point are remembered (:mod:`speciakin.pipeline.objective_jacobian`).
-        """
-        theta = np.asarray(theta, float)
-        cols = list(range(theta.size)) if columns is None else [int(c) for c in columns]
-        rtol = min(self.rtol, 1e-8)
-        lo = np.array([q.lower for q in self.parameters])
-        hi = np.array([q.upper for q in self.parameters])
-        jac, self._last_jacobian = remembered_columns(
-            self._last_jacobian, (theta.tobytes(), rtol), cols,
-            lambda missing: central_jacobian(self.residuals_batch, theta, lo, hi, rtol, missing))
-        return jac
+    @property
+    def jacobian_label(self) -> str:
+        """How :meth:`jacobian` was computed, for the fit's record."""
+        return jacobian_label(self.jacobian_method, self.jacobian_fallbacks)
 
     def log_likelihood_batch(self, theta: np.ndarray) -> np.ndarray:
         """Log-likelihood of each row of ``theta`` (constants dropped; -inf on failure)."""

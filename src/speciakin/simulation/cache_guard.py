@@ -32,7 +32,8 @@ from pathlib import Path
 #: Kernel modules of this folder (every module with compiled code and the constants it reads).
 KERNEL_MODULES = ("jit_options", "layout", "status", "water_kernel", "speciation_kernel", "profile_kernel", "rhs_kernel",
                   "rodas_tableau", "lu_kernel", "smooth_rhs_kernel", "rosenbrock_kernel", "held_ramp_kernel",
-                  "segment_kernel", "integrator_kernel", "batch_kernel")
+                  "segment_kernel", "integrator_kernel", "batch_kernel", "sensitivity_terms",
+                  "sensitivity_kernel")
 #: Sources outside this folder whose formulas the kernel compiles (paths relative to the package).
 SHARED_SOURCES = ("chemistry/water.py", "chemistry/microstate_formulas.py")
 _STAMP = "speciakin_kernel_sources.sha256"

@@ -239,6 +239,43 @@ def run_workspaces(model):
     return ws, make_smooth_workspace(model, model.n_species + 3)
 
 
+@leaf_kernel(inline="always")
+def segment_conditions(runs, r, ctx, t, t_end, feed_rate, cache):
+    """The conditions of run ``r``'s segment from t to t_end (constant or linear inside it): the feeds' rates
+    (written to ``feed_rate``), returned with their volume rate, the temperature's slope and whether the
+    right-hand side depends on t; a logged pH's straight piece leaves its slope in ``cache[C_PH_SLOPE]``."""
+    tm = 0.5 * (t + t_end)
+    feed_volume_rate = 0.0
+    for j in range(feed_rate.shape[0]):
+        feed_rate[j] = 0.0
+    for f in range(runs.n_feed[r]):
+        f0 = runs.feed_t0[r, f]
+        f1 = runs.feed_t1[r, f]
+        if f0 < tm < f1:
+            feed_rate[runs.feed_species[r, f]] += runs.feed_amount[r, f] / (f1 - f0)
+            feed_volume_rate += runs.feed_volume[r, f] / (f1 - f0)
+    temp_t = ctx[CTX_TEMP_T]
+    temp_v = ctx[CTX_TEMP_V]
+    temp_n = ctx[CTX_TEMP_N]
+    temp_here = interpolate(temp_t, temp_v, temp_n, t)
+    temp_slope = (interpolate(temp_t, temp_v, temp_n, t_end) - temp_here) / (t_end - t)
+    nonauto = temp_slope != 0.0
+    if ctx[CTX_MODE] == MODE_LOGGED:
+        log_t = ctx[CTX_LOG_T]
+        log_v = ctx[CTX_LOG_V]
+        log_n = ctx[CTX_LOG_N]
+        log_c = ctx[CTX_LOG_C]
+        smoothed = ctx[CTX_LOG_SMOOTH]
+        ph_rise = (logged_ph(log_t, log_v, log_c, log_n, smoothed, t_end)[0]
+                   - logged_ph(log_t, log_v, log_c, log_n, smoothed, t)[0])
+        if ph_rise != 0.0 or smoothed:
+            nonauto = True
+        # a straight piece of the log: its slope drives the titrant of a controlled run (a smoothed
+        # log's slope at each time is set where the pH is read, rhs_kernel.time_speciation)
+        cache[C_PH_SLOPE] = ph_rise / (t_end - t)
+    return feed_volume_rate, temp_slope, nonauto
+
+
 @driver_kernel
 def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, ws, sw, free_ph=True,
             held_ramp=True):
@@ -353,32 +390,7 @@ def run_one(model, q, runs, r, ph_offset, amount_factor, rtol, atol, out, info, 
         t_end = out_t[n_out - 1]
         if i_bp < n_bp and bp[i_bp] < t_end:
             t_end = bp[i_bp]
-        tm = 0.5 * (t + t_end)
-        feed_volume_rate = 0.0
-        for j in range(n_species):
-            feed_rate[j] = 0.0
-        for f in range(runs.n_feed[r]):
-            f0 = runs.feed_t0[r, f]
-            f1 = runs.feed_t1[r, f]
-            if f0 < tm < f1:
-                feed_rate[runs.feed_species[r, f]] += runs.feed_amount[r, f] / (f1 - f0)
-                feed_volume_rate += runs.feed_volume[r, f] / (f1 - f0)
-        temp_here = interpolate(temp_t, temp_v, temp_n, t)
-        temp_slope = (interpolate(temp_t, temp_v, temp_n, t_end) - temp_here) / (t_end - t)
-        nonauto = temp_slope != 0.0
-        if mode == MODE_LOGGED:
-            log_t = ctx[CTX_LOG_T]
-            log_v = ctx[CTX_LOG_V]
-            log_n = ctx[CTX_LOG_N]
-            log_c = ctx[CTX_LOG_C]
-            smoothed = ctx[CTX_LOG_SMOOTH]
-            ph_rise = (logged_ph(log_t, log_v, log_c, log_n, smoothed, t_end)[0]
-                       - logged_ph(log_t, log_v, log_c, log_n, smoothed, t)[0])
-            if ph_rise != 0.0 or smoothed:
-                nonauto = True
-            # a straight piece of the log: its slope drives the titrant of a controlled run (a smoothed
-            # log's slope at each time is set where the pH is read, rhs_kernel.time_speciation)
-            cache[C_PH_SLOPE] = ph_rise / (t_end - t)
+        feed_volume_rate, temp_slope, nonauto = segment_conditions(runs, r, ctx, t, t_end, feed_rate, cache)
         t_next = t_end
         if mode != MODE_FREE:
             # the acid-base state depends on time only: mass-action path (segment_kernel)

@@ -84,7 +84,7 @@ def write_output(out, i_out, y, ph, temperature):
     out[i_out, nsp + 4] = y[nsp + 2]
 
 
-def make_step_loop(point, stage, jacobian, output, prefetch, all_active):
+def make_step_loop(point, stage, jacobian, output, prefetch, all_active, after_step=None):
     """The step loop specialised for one problem: a compiled ``rosenbrock_steps``.
 
     ``point``, ``stage``, ``jacobian``, ``output`` (compiled functions, best
@@ -92,12 +92,20 @@ def make_step_loop(point, stage, jacobian, output, prefetch, all_active):
     notes); ``all_active``: every state is active (no passive substitution),
     and ``jacobian`` then stores J itself (``jac_t[i, j]`` = d f_i / d y_j)
     instead of its transpose.
+    ``after_step(t, h, t_new, y, ynew, k, g, piv, prob) -> float``, when given, is called
+    after each step y's error test accepts, before its outputs, with the factorised W
+    (every state active) and the stages, and returns its own error norm (NaN: not finite):
+    above 1 the step is rejected after all, and the next step size follows the larger of
+    the two norms.  The forward sensitivities ride on it (``sensitivity_kernel``); without
+    it the branch is dropped when compiling.
     They are compile-time constants of the loop made here (numba inlines the
     problem functions into it and drops the branches of the other problems),
     so each path gets a loop as fast as a hand-written copy while the source
     stays one.  The loop is a leaf function (no reference counting) and is
     not cached on its own: it is compiled into its cached caller.
     """
+
+    hooked = after_step is not None
 
     @njit(_nrt=False)
     def rosenbrock_steps(prob, nonautonomous, ta, tb, t1, span, y, h, work, rtol, atol, out, out_t, i_out, n_out,
@@ -223,6 +231,13 @@ def make_step_loop(point, stage, jacobian, output, prefetch, all_active):
             if failed:
                 h *= 0.1
                 continue
+            if hooked and err <= 1.0:
+                # a branch on the constant alone, dropped before typing when there is no hook: the hook's
+                # own error norm takes part in the step's acceptance and the next step size
+                hook_err = after_step(t, h, t_new, y, ynew, k, g, piv, prob)
+                if not (hook_err >= 0.0):
+                    return STATUS_NOT_FINITE, h, i_out
+                err = max(err, hook_err)
             if err <= 1.0:
                 # outputs strictly inside (t, t_new] and before t1: continuous extension; t1 itself is left to
                 # the caller
