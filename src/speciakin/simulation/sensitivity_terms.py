@@ -79,23 +79,6 @@ def perturbed_rhs(t, y, j, f, base, sp):
 
 
 @leaf_kernel
-def directional(t, y, s, d, out, base, sp):
-    """out = J(y) s + df/dD_d at (t, y) for the parameters other than rate constants: a central difference
-    along (s, D_d); returns dpH/dD_d there (held and logged pH: the offset's share)."""
-    eps, fa, fb, ya, yb = sp[0], sp[9], sp[10], sp[12], sp[13]
-    e = eps[d]
-    n = y.shape[0]
-    for i in range(n):
-        ya[i] = y[i] + e * s[i]
-        yb[i] = y[i] - e * s[i]
-    ph_a = perturbed_rhs(t, ya, 2 * d, fa, base, sp)
-    ph_b = perturbed_rhs(t, yb, 2 * d + 1, fb, base, sp)
-    for i in range(n):
-        out[i] = (fa[i] - fb[i]) / (2.0 * e)
-    return (ph_a - ph_b) / (2.0 * e)
-
-
-@leaf_kernel
 def rate_contributions(y, model, ctx, ws, contrib):
     """contrib[s] = d(dy/dt)/d(ln k_s) at the state of the last ``rhs`` call in ``ws``: step s's term of the
     right-hand side, with the response of a pH-stat's titrant to it (``rhs_kernel.rhs``: the titrant keeps the
@@ -237,7 +220,9 @@ def sens_row(t, y, s, d, i_out, base, sp):
     if base[2][CTX_MODE] == MODE_FREE:
         dph = free_ph_derivative(t, y, s, d, base, sp)
     else:
-        dph = directional(t, y, s, d, sp[18], base, sp)
+        # a held or logged pH is its set point or log plus the offset: it moves with the offset alone
+        eps, offs = sp[0], sp[2]
+        dph = (offs[2 * d] - offs[2 * d + 1]) / (2.0 * eps[d])
     for j in range(nsp + 1):
         sens[d, i_out, j] = s[j]
     sens[d, i_out, nsp + 1] = dph
