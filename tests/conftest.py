@@ -14,6 +14,48 @@ settings.load_profile("ci" if os.environ.get("CI") else "dev")
 
 import pytest  # noqa: E402
 
+import pinned_numbers  # noqa: E402
+
+
+def pytest_collection_finish(session):
+    # The comparisons to the last bit run scripts in a pinned subprocess (tests/pinned_numbers.py), about a
+    # minute each on a cold cache; queue the ones this session's tests need now, so that they run on the
+    # second core while the other tests run (most of them use one).
+    wanted = {name for item in session.items for name in getattr(item, "fixturenames", ())}
+    for fixture in pinned_numbers.PINNED_JOBS:
+        if fixture in wanted:
+            pinned_numbers.start_in_background(*_job(fixture))
+
+
+def pytest_sessionfinish(session, exitstatus):
+    pinned_numbers.stop_background()
+
+
+def _job(fixture):
+    name, script, args = pinned_numbers.job_of(fixture)
+    return (name, script, *args)
+
+
+def _finished(fixture):
+    """The output folder of the pinned job ``fixture`` waits for, once it has finished (skips where none can run)."""
+    if pinned_numbers.pinned_environment() is None:
+        pytest.skip(pinned_numbers.WHY_NOT_PINNED)
+    job = _job(fixture)
+    pinned_numbers.background_result(*job)
+    return pinned_numbers.job_folder(job[0])
+
+
+@pytest.fixture(scope="session")
+def pinned_regression():
+    """Output folder of the pipeline's regression case run in the pinned environment."""
+    return _finished("pinned_regression")
+
+
+@pytest.fixture(scope="session")
+def regenerated():
+    """Output folder of the demo generator run in the pinned environment."""
+    return _finished("regenerated")
+
 
 @pytest.fixture(scope="session")
 def reduced_demo_fit_window(tmp_path_factory):

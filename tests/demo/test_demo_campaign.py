@@ -15,7 +15,6 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from pinned_numbers import WHY_NOT_PINNED, pinned_environment, run_pinned
 from speciakin.chemistry.modelfile import load_model
 from speciakin.data import check_campaign, load_campaign, mole_fractions_from_signals
 from speciakin.demo import DEMO_FILES, demo_dir, demo_file
@@ -58,15 +57,9 @@ def truth(model):
     return gen.simulate_truth(model)
 
 
-@pytest.fixture(scope="module")
-def regenerated(tmp_path_factory):
-    # the generator run as a script: in the instruction set of the stored demo (tests/pinned_numbers.py; the
-    # noise-free curves of truth.json differ in the last bits from one CPU to another)
-    if pinned_environment() is None:
-        pytest.skip(WHY_NOT_PINNED)
-    out = tmp_path_factory.mktemp("demo")
-    run_pinned(ROOT / "scripts" / "make_demo_campaign.py", "--out", str(out))
-    return out
+# ``regenerated`` (tests/conftest.py): the generator run as a script, in the instruction set of the stored
+# demo (tests/pinned_numbers.py; the noise-free curves of truth.json differ in the last bits from one CPU to
+# another), beside the other tests.
 
 
 # ------------------------------------------------------------------ bundle

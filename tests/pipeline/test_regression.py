@@ -13,13 +13,7 @@ from __future__ import annotations
 
 import json
 import math
-from pathlib import Path
 
-import pytest
-
-from pinned_numbers import WHY_NOT_PINNED, pinned_environment, run_pinned
-
-from . import regression_case
 from .regression_case import BASELINE, RESULT_FILES
 
 TOLERANCE = 1e-12
@@ -50,13 +44,11 @@ def test_differences_finds_a_change():
     assert not differences({"a": [1.0, None]}, {"a": [1.0 + 1e-14, None]})
 
 
-def test_fit_window_and_report_numbers_match_the_stored_copy(tmp_path):
+def test_fit_window_and_report_numbers_match_the_stored_copy(pinned_regression):
     # the case in a subprocess with the instruction set of the stored copy (tests/pinned_numbers.py: compiled
-    # code differs in the last bits from one CPU to another, and the fit and the window carry that further)
-    if pinned_environment() is None:
-        pytest.skip(WHY_NOT_PINNED)
-    run_pinned(Path(regression_case.__file__), str(tmp_path / "results"))
+    # code differs in the last bits from one CPU to another, and the fit and the window carry that further),
+    # run beside the other tests (``pinned_regression``, tests/conftest.py)
     for name in RESULT_FILES:
         stored = json.loads((BASELINE / name).read_text())
-        found = differences(stored, json.loads((tmp_path / "results" / name).read_text()))
+        found = differences(stored, json.loads((pinned_regression / name).read_text()))
         assert not found, f"{name} differs from the stored copy:\n" + "\n".join(found[:20])
