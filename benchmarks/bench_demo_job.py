@@ -11,7 +11,8 @@ the moves' proposals, the adaptive refits, the convergence checks, checkpoint wr
 diagnostics and what is left (emcee's loop and Python overhead per step).
 
 Targets (issue "Speed where users wait"): the converged posterior <= 60 s warm on two cores,
-the whole job <= 2 min warm.  The machine is shared: the script prints the load average at the
+the whole job <= 2 min warm.  Beside them: the scipy Radau ruler of ``bench_kernel.py`` (six held-pH
+runs, one evaluation), measured in the same run.  The machine is shared: the script prints the load average at the
 start and end of every step; with a load above the core count read CPU time rather than wall time.
 
 Also: ``--startup`` times, in a fresh process, the import of the command line and the first
@@ -255,6 +256,14 @@ def run_job(args) -> dict:
     print(f"converged posterior {t_post:.1f} s wall against {POSTERIOR_TARGET_S:.0f} s: ratio "
           f"{t_post / POSTERIOR_TARGET_S:.2f}; whole job {t_job:.1f} s against {JOB_TARGET_S:.0f} s: ratio "
           f"{t_job / JOB_TARGET_S:.2f} (load at the end {load()})")
+    # the ruler of issue 16, measured in the same run
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    import bench_kernel
+
+    ruler = bench_kernel.radau_reference()
+    per_eval = clock.wall(lk) / max(post.n_likelihood_evaluations, 1)
+    print(bench_kernel.radau_line(ruler) + f"; the posterior's likelihood per evaluation is 1/"
+          f"{ruler.min() / per_eval:.0f} of it, the whole job {t_job / ruler.min():.0f} such evaluations")
     if profiler:
         import pstats
 

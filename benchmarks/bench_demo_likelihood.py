@@ -184,25 +184,7 @@ def main() -> None:
           f"{', '.join(str(s) for s in steps)}")
 
     # ---- scipy reference of bench_kernel.py, measured in the same run
-    model = bench_kernel.build_model()
-    compiled = bench_kernel.compile_model(model)
-    runs = bench_kernel.build_runs()
-    cruns = bench_kernel.compile_runs(compiled, runs, [bench_kernel.TIMES] * len(runs))
-    q0 = compiled.nominal
-    nominal = bench_kernel.simulate_batch(compiled, cruns, q0[None, :], parallel=False)
-    obs_idx = [compiled.species_index(n) for n in bench_kernel.OBSERVED]
-    vol = nominal.outputs[0, :, :, compiled.n_species]
-    truth = nominal.outputs[0][:, :, obs_idx] / vol[:, :, None]
-    sigma = 0.002 + 0.01 * truth
-    y0s = cruns.arrays.y0.copy()
-    for r in range(len(runs)):
-        y0s[r, compiled.species_index("Na")] += nominal.initial_titrant[0, r]
-        y0s[r, compiled.n_species] += nominal.initial_titrant[0, r] / 2.0
-    log10k = q0[np.asarray(compiled.arrays.step_logk_q)]
-    # the reference's state: amounts, volume, titrant consumed (the kernel's opposite titrant left out)
-    y0s = y0s[:, :compiled.n_species + 2]
-    ref = bench_kernel.timed_blocks(
-        lambda: bench_kernel.scipy_evaluation(compiled, y0s, log10k, 1e-6, 1e-10, truth, sigma), 1, 3)
+    ref = bench_kernel.radau_reference()
     print(f"scipy solve_ivp Radau, Python RHS (bench_kernel's six held runs): {ref.min() * 1e3:.1f} ms "
           f"(median {np.median(ref) * 1e3:.1f}); ratio to the demo likelihood one set: "
           f"{ref.min() / like.min():.0f} x, batch per set: {ref.min() / batch.min():.0f} x")

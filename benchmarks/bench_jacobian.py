@@ -14,6 +14,8 @@ fitted parameters):
   difference at rtol 1e-10 (step 1e-4, the residuals themselves);
 * the demo fit with its profiles by each method (one each; target of issue 16:
   <= 30 s warm), with the chi-square reached and the Jacobian calls;
+* the scipy Radau ruler of ``bench_kernel.py`` (six held-pH runs, one evaluation), measured in the
+  same run;
 * the load average before and after.
 
 Run:  NUMBA_CACHE_DIR=.numba_cache .venv/bin/python benchmarks/bench_jacobian.py [--blocks N] [--no-fit]
@@ -23,13 +25,18 @@ from __future__ import annotations
 
 import argparse
 import os
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
 from speciakin.demo import demo_dir
 from speciakin.pipeline import load_inputs, make_objective, resolve_inputs
 from speciakin.pipeline.fit import fit_campaign
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+import bench_kernel  # noqa: E402  (the scipy Radau ruler)
 
 FIT_TARGET_S = 30.0
 METHODS = ("sensitivities", "differences")
@@ -66,6 +73,10 @@ def main() -> None:
         print(f"  {method:14s} best {t.min():7.1f} ms   median {np.median(t):7.1f} ms")
     ratio = np.array(times["sensitivities"]) / np.array(times["differences"])
     print(f"  sensitivities / differences: median of the paired ratios {np.median(ratio):.2f}")
+    ruler = bench_kernel.radau_reference()
+    print(f"  {bench_kernel.radau_line(ruler)}; the Jacobian by sensitivities costs "
+          f"{min(times['sensitivities']) / ruler.min():.2f} of it, by differences "
+          f"{min(times['differences']) / ruler.min():.2f}")
 
     jac = {}
     for method in METHODS:

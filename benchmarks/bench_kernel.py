@@ -170,6 +170,42 @@ def scipy_evaluation(compiled, y0s, log10k, rtol, atol, data, sigma):
     return float(np.sum(-0.5 * z * z - np.log(sigma) - 0.5 * math.log(2 * math.pi))), outs
 
 
+def scipy_start_states(compiled, cruns, nominal) -> np.ndarray:
+    """Start states of the scipy route: the runs' amounts, volume and titrant consumed (the kernel's opposite
+    titrant left out), with the held mode's initial titrant as the kernel applies it (``nominal``: the kernel's
+    result at the nominal parameters)."""
+    y0s = cruns.arrays.y0.copy()
+    for r in range(y0s.shape[0]):
+        y0s[r, compiled.species_index("Na")] += nominal.initial_titrant[0, r]
+        y0s[r, compiled.n_species] += nominal.initial_titrant[0, r] / 2.0
+    return y0s[:, :compiled.n_species + 2]
+
+
+def radau_reference(blocks: int = 3) -> np.ndarray:
+    """Wall time [s] of one evaluation of the ruler issue 16 asks every speed figure to stand beside,
+    in each of ``blocks`` blocks: scipy's solve_ivp Radau with a Python right-hand side on this script's
+    six held-pH runs (rtol 1e-6, atol 1e-10; :func:`scipy_evaluation`), measured in the caller's run."""
+    model = build_model()
+    compiled = compile_model(model)
+    runs = build_runs()
+    cruns = compile_runs(compiled, runs, [TIMES] * len(runs))
+    q0 = compiled.nominal
+    nominal = simulate_batch(compiled, cruns, q0[None, :], parallel=False)
+    obs_idx = [compiled.species_index(n) for n in OBSERVED]
+    vol = nominal.outputs[0, :, :, compiled.n_species]
+    truth = nominal.outputs[0][:, :, obs_idx] / vol[:, :, None]
+    sigma = 0.002 + 0.01 * truth
+    y0s = scipy_start_states(compiled, cruns, nominal)
+    log10k = q0[np.asarray(compiled.arrays.step_logk_q)]
+    return timed_blocks(lambda: scipy_evaluation(compiled, y0s, log10k, 1e-6, 1e-10, truth, sigma), 1, blocks)
+
+
+def radau_line(ref: np.ndarray) -> str:
+    """The ruler's figure as printed beside the others."""
+    return (f"scipy solve_ivp Radau, Python right-hand side (bench_kernel's six held-pH runs, one evaluation): "
+            f"best {ref.min() * 1e3:.1f} ms, median {np.median(ref) * 1e3:.1f} ms")
+
+
 def demo_objective() -> None:
     """Time the campaign objective of the bundled (invented) demo campaign."""
     from pathlib import Path
@@ -291,14 +327,8 @@ def main() -> None:
           f"same batch on one core: {per_eval_serial_batch * 1e3:.3f} ms; failures: {int(np.sum(bres.status != 0))})")
 
     # plain scipy route
-    y0s = cruns.arrays.y0.copy()
+    y0s = scipy_start_states(compiled, cruns, nominal)
     log10k = q0[np.asarray(compiled.arrays.step_logk_q)]
-    # the initial titrant of the held mode, as the kernel applies it
-    for r in range(len(runs)):
-        y0s[r, compiled.species_index("Na")] += nominal.initial_titrant[0, r]
-        y0s[r, compiled.n_species] += nominal.initial_titrant[0, r] / 2.0
-    # the reference's state: amounts, volume, titrant consumed (the kernel's opposite titrant left out)
-    y0s = y0s[:, :compiled.n_species + 2]
     scipy_time, _ = timed(lambda: scipy_evaluation(compiled, y0s, log10k, 1e-6, 1e-10, data_obs, sigma_obs), 1,
                           blocks=3)
     ll_scipy, out_scipy = scipy_evaluation(compiled, y0s, log10k, 1e-6, 1e-10, data_obs, sigma_obs)
