@@ -49,7 +49,8 @@ from speciakin.simulation.water_kernel import pkw, pkw_slope
 from speciakin.simulation.profile_kernel import interpolate, logged_ph
 from speciakin.simulation.jit_options import leaf_kernel
 from speciakin.simulation.layout import (CTX_CONTROLLED, CTX_LOG_C, CTX_LOG_N, CTX_LOG_SMOOTH, CTX_LOG_T, CTX_LOG_V,
-                                         CTX_MODE, CTX_PH_OFFSET,
+                                         CTX_MODE, CTX_PH_OFFSET, CTX_SECOND, CTX_SECOND_CONC, CTX_TITRANT,
+                                         CTX_TITRANT_CONC,
                                          CTX_SETPOINT, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, C_DOH_DT, C_LAST_PH,
                                          C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_STEP_PH, C_TEMPERATURE, N_CACHE, PAR_ENTHALPY,
                                          PAR_W, WS_CACHE, WS_DPH_DY, WS_DZBAR_DT, WS_K, WS_PKA, WS_PKA2, WS_POPS,
@@ -205,7 +206,6 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled, log_c, log_smooth) = ctx
     (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
-    n_steps = log10_k.shape[0]
     volume = y[n_species]
     if not (volume > 0.0):
         for i in range(dy.shape[0]):
@@ -232,7 +232,25 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
         ph = time_speciation(t, model, par, ctx, temperature_slope, ws)
         for j in range(n_species):
             conc[j] = y[j] / volume
-    pkw_value = cache[C_PKW]
+    flux(y, dy, model, ctx, feed_rate, feed_volume_rate, temperature_slope, ph, cache[C_PKW], k_of_t, conc, pops,
+         zbar, variance, dzdt, rate, cache, cache)
+    return ph
+
+
+@leaf_kernel(inline="always")
+def flux(y, dy, model, ctx, feed_rate, feed_volume_rate, temperature_slope, ph, pkw_value, k_of_t, conc, pops, zbar,
+         variance, dzdt, rate, cache, opposite):
+    """dy/dt of :func:`rhs` at (y, ``conc``) with the speciation given (pH, populations, zbar, their variances and
+    T slopes; ``cache``: d[OH-]/dT, a log's slope); ``opposite[C_OPPOSITE]``, ``rate``: the titrant, the rates."""
+    md = model
+    n_mol, n_species, species_charge, mol_micro_start = md.n_mol, md.n_species, md.species_charge, md.mol_micro_start
+    react_start, react_kind, react_species, react_coef = md.react_start, md.react_kind, md.react_species, md.react_coef
+    react_mask, react_value, prod_start, prod_species, prod_coef = (md.react_mask, md.react_value, md.prod_start,
+                                                                    md.prod_species, md.prod_coef)
+    titrant, titrant_conc, second, second_conc = (ctx[CTX_TITRANT], ctx[CTX_TITRANT_CONC], ctx[CTX_SECOND],
+                                                  ctx[CTX_SECOND_CONC])
+    n_steps = model.step_logk_q.shape[0]  # the work arrays hold at least one step
+    volume = y[n_species]
     hydrogen = exp10(-ph)
     hydroxide = exp10(ph - pkw_value)
     # reaction rates [mol/(L*s)]
@@ -254,7 +272,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     dy[n_species] = feed_volume_rate
     dy[n_species + 1] = 0.0
     dy[n_species + 2] = 0.0
-    if controlled:
+    if ctx[CTX_CONTROLLED]:
         excess = hydrogen - hydroxide
         num = excess * dy[n_species]
         for m in range(n_mol):
@@ -268,25 +286,24 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
             for m in range(n_mol):
                 dcharge += y[m] * dzdt[m]
             num += temperature_slope * dcharge
-        if mode == MODE_LOGGED and cache[C_PH_SLOPE] != 0.0:
+        if ctx[CTX_MODE] == MODE_LOGGED and cache[C_PH_SLOPE] != 0.0:
             # d/dt through the logged pH: dzbar/dpH = -ln10 var(N), d([H+] - [OH-])/dpH = -ln10 ([H+] + [OH-])
             dcharge = volume * (hydrogen + hydroxide)
             for m in range(n_mol):
                 dcharge += y[m] * variance[m]
             num -= cache[C_PH_SLOPE] * LN10 * dcharge
         q = -num / (species_charge[titrant] + excess / titrant_conc)
-        cache[C_OPPOSITE] = 0.0
+        opposite[C_OPPOSITE] = 0.0
         if q < 0.0 and second >= 0:
             q = -num / (species_charge[second] + excess / second_conc)
             dy[second] += q
             dy[n_species] += q / second_conc
             dy[n_species + 2] = q
-            cache[C_OPPOSITE] = 1.0
+            opposite[C_OPPOSITE] = 1.0
         else:
             dy[titrant] += q
             dy[n_species] += q / titrant_conc
             dy[n_species + 1] = q
-    return ph
 
 
 @leaf_kernel

@@ -248,8 +248,8 @@ def run_sensitivities(model, q, runs, r, ph_offset, amount_factor, dirs, rtol, a
     for k in range(N_INFO):
         info[k] = 0.0
     info[INFO_FAILED_AT] = math.nan
-    eps, pars, offs, facs, rate_w, ea_w, has_other = parameter_sets(model, q, runs, r, ph_offset, amount_factor,
-                                                                     dirs)
+    eps, pars, offs, facs, rate_w, ea_w, has_other, pka_w, by_pops = parameter_sets(model, q, runs, r, ph_offset,
+                                                                                   amount_factor, dirs)
     y = np.empty(n)
     status = start_state(model, runs, r, y, par, ctx, amount_factor, ws, info)
     if status != STATUS_OK:
@@ -284,11 +284,12 @@ def run_sensitivities(model, q, runs, r, ph_offset, amount_factor, dirs, rtol, a
     #  15 wss: work arrays of the perturbed sets;  16 sens: the outputs' derivatives;  19 ws_a: work arrays of
     #  the terms;  20 jac (N_NODES, n, n), 25 ftheta (N_NODES, m, n): J and df/dD_d at each distinct stage
     #  point (point_terms);  21 contrib (n_steps, n): the rate constants' terms;  22 rate_w, 23 ea_w
-    #  (m, n_steps), 24 has_other (m,): how each direction enters (parameter_sets)
+    #  (m, n_steps), 24 has_other (m,), 26 pka_w (m, n_sites), 27 by_pops (m,): how each direction enters
+    #  (parameter_sets)
     sp = (eps, pars, offs, s_buf, np.empty((m, N_DENSE, n)), np.empty((m, N_STAGES, n)), np.empty((N_DENSE, n)),
           step, np.empty((m, n)), np.empty(n), np.empty(n), np.empty((m, n)), np.empty(n), np.empty(n), np.empty(n),
           wss, sens, np.empty(n), np.empty(n), ws_a, np.zeros((NODES.shape[0], n, n)), np.empty((n_steps, n)), rate_w,
-          ea_w, has_other, np.empty((NODES.shape[0], m, n)))
+          ea_w, has_other, np.empty((NODES.shape[0], m, n)), pka_w, by_pops)
     dy = np.empty(n)
     feed_rate = np.zeros(n_species)
     zero_feed = np.zeros(n_species)

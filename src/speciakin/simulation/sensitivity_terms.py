@@ -18,12 +18,14 @@ from numba import njit
 
 from speciakin.simulation.integrator_kernel import TITRANT_SIGN_RTOL, adjust_start, run_context
 from speciakin.simulation.jit_options import driver_kernel, leaf_kernel
-from speciakin.simulation.layout import (C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, CTX_CONTROLLED, CTX_MODE, CTX_SECOND,
-                                         CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT,
-                                         CTX_TITRANT_CONC, WS_CACHE, WS_RATE, WS_VAR, WS_ZBAR)
-from speciakin.simulation.rhs_kernel import (MODE_FREE, analytic_jacobian, charge_imbalance, interpolate,
+from speciakin.simulation.layout import (C_OPPOSITE, C_PH, C_PH_SLOPE, C_PKW, C_TEMPERATURE, CTX_CONTROLLED, CTX_MODE,
+                                         CTX_SECOND, CTX_SECOND_CONC, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, CTX_TITRANT,
+                                         CTX_TITRANT_CONC, PAR_ENTHALPY, WS_CACHE, WS_CONC, WS_DZBAR_DT, WS_K,
+                                         WS_PKA2, WS_POPS, WS_RATE, WS_VAR, WS_ZBAR)
+from speciakin.simulation.rhs_kernel import (MODE_FREE, analytic_jacobian, charge_imbalance, flux, interpolate,
                                              make_workspace, reset_workspace, rhs, speciation_at)
-from speciakin.simulation.speciation_kernel import GAS_CONSTANT, LN10, exp10
+from speciakin.simulation.speciation_kernel import (GAS_CONSTANT, LN10, exp10, mean_charge_temperature_slopes,
+                                                    mean_charges)
 from speciakin.simulation.status import STATUS_NOT_FINITE, STATUS_OK
 
 #: Size of the central differences in the parameters other than rate constants: the largest relative change
@@ -127,16 +129,103 @@ def rate_contributions(y, model, ctx, ws, contrib):
             c[row] = dq
 
 
+@leaf_kernel(inline="always")
+def site_shift(pka_w, d, s0, n_sites, st):
+    """sum of direction d's pKa moves over the protonated sites of microstate ``st`` of a molecule whose sites
+    start at ``s0``."""
+    total = 0.0
+    for i in range(n_sites):
+        if (st >> i) & 1:
+            total += pka_w[d, s0 + i]
+    return total
+
+
+@leaf_kernel
+def pka_difference(t, y, d, temperature, out, base, sp):
+    """out += df/dD_d at the fixed state for a direction that moves site pKa values alone (``pka_w[d]``), from
+    the speciation of :func:`point_terms`' right-hand side (``ws_a``) without solving anything again.
+
+    A move of the pKa values by e w carries the populations exactly: log10 p_s gains e sum_(i protonated) w_i
+    before normalising (the weights of ``microstate_formulas.molecule_populations``).  A free pH moves with
+    them to first order, dpH = sum_m c_m Cov_m(N, L) / ([H+] + [OH-] + sum_m c_m Var_m(N)), L_s the sum above
+    (the charge balance, implicit function theorem; d zbar/dpKa_i = ln10 Cov(z, N_i), z = z0 + N), which
+    changes the central difference by O(e^2) only.  The right-hand side at each side is ``rhs_kernel.flux``
+    with the moved speciation; the perturbed sets' work arrays serve as scratch and are marked stale."""
+    (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = base
+    eps, fa, fb, wss, ws_a, pka_w = sp[0], sp[9], sp[10], sp[15], sp[19], sp[26]
+    n_mol = model.n_mol
+    site_start, micro_start, protons = model.mol_site_start, model.mol_micro_start, model.micro_protons
+    cache_a = ws_a[WS_CACHE]
+    pops, conc = ws_a[WS_POPS], ws_a[WS_CONC]
+    ph = cache_a[C_PH]
+    dph = 0.0
+    if ctx[CTX_MODE] == MODE_FREE:
+        num = 0.0
+        slope = exp10(-ph) + exp10(ph - cache_a[C_PKW])
+        for m in range(n_mol):
+            s0 = site_start[m]
+            m0 = micro_start[m]
+            mean_n = 0.0
+            mean_l = 0.0
+            mean_nl = 0.0
+            for st in range(micro_start[m + 1] - m0):
+                shift = site_shift(pka_w, d, s0, site_start[m + 1] - s0, st)
+                w = pops[m0 + st]
+                mean_n += w * protons[m0 + st]
+                mean_l += w * shift
+                mean_nl += w * protons[m0 + st] * shift
+            num += conc[m] * (mean_nl - mean_n * mean_l)
+            slope += conc[m] * ws_a[WS_VAR][m]
+        dph = num / slope
+    e = eps[d]
+    controlled_ramp = ctx[CTX_CONTROLLED] != 0 and temperature_slope != 0.0
+    # the populations of both sides: one exponential per microstate serves both (10^(-x) = 1 / 10^x), none
+    # for a molecule the direction leaves alone
+    plus, minus = wss[2][2 * d], wss[2][2 * d + 1]
+    for m in range(n_mol):
+        s0 = site_start[m]
+        m0 = micro_start[m]
+        total_p = 0.0
+        total_m = 0.0
+        for st in range(micro_start[m + 1] - m0):
+            shift = site_shift(pka_w, d, s0, site_start[m + 1] - s0, st) - protons[m0 + st] * dph
+            x = exp10(e * shift) if shift != 0.0 else 1.0
+            plus[m0 + st] = pops[m0 + st] * x
+            minus[m0 + st] = pops[m0 + st] / x
+            total_p += plus[m0 + st]
+            total_m += minus[m0 + st]
+        for st in range(m0, micro_start[m + 1]):
+            plus[st] /= total_p
+            minus[st] /= total_m
+    for side in range(2):
+        sign = 1.0 if side == 0 else -1.0
+        ws_j = set_workspace(wss, 2 * d + side)
+        pops_j = ws_j[WS_POPS]
+        mean_charges(pops_j, model.micro_charge, protons, micro_start, n_mol, ws_j[WS_ZBAR], ws_j[WS_VAR])
+        if controlled_ramp:
+            mean_charge_temperature_slopes(pops_j, par[PAR_ENTHALPY], temperature, site_start, micro_start,
+                                           model.micro_charge, n_mol, ws_j[WS_PKA2], ws_j[WS_DZBAR_DT])
+        flux(y, fa if side == 0 else fb, model, ctx, feed_rate, feed_volume_rate, temperature_slope,
+             ph + sign * e * dph, cache_a[C_PKW], ws_a[WS_K], conc, pops_j, ws_j[WS_ZBAR], ws_j[WS_VAR],
+             ws_j[WS_DZBAR_DT], ws_j[WS_RATE], cache_a, ws_j[WS_CACHE])
+        # its populations no longer belong to its own inputs: the next speciation there starts afresh
+        ws_j[WS_CACHE][C_PH] = math.nan
+        ws_j[WS_CACHE][C_TEMPERATURE] = math.nan
+    for i in range(y.shape[0]):
+        out[i] += (fa[i] - fb[i]) / (2.0 * e)
+
+
 @leaf_kernel
 def point_terms(t, y, jac, ftheta, base, sp):
     """At (t, y): the right-hand side (own work arrays), its analytic Jacobian ``jac`` and each direction's
     df/dD_d at the fixed state (``ftheta[d]``), for :func:`direction_rhs`; False when not finite.
 
-    The rate constants' share comes from their steps' terms (d ln k = ln10 d log10 k - arrhenius d Ea),
-    the other parameters' from a central difference in them at the fixed state."""
+    The rate constants' share comes from their steps' terms (d ln k = ln10 d log10 k - arrhenius d Ea), site pKa
+    values' from the populations carried to them (:func:`pka_difference`), the other parameters' from a central
+    difference in them at the fixed state."""
     (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = base
     eps, fa, fb, f0, ws_a, contrib = sp[0], sp[9], sp[10], sp[14], sp[19], sp[21]
-    rate_w, ea_w, has_other = sp[22], sp[23], sp[24]
+    rate_w, ea_w, has_other, by_pops = sp[22], sp[23], sp[24], sp[27]
     # the slope of a straight piece of a pH log is the segment's, set by the run driver
     ws_a[WS_CACHE][C_PH_SLOPE] = ws[WS_CACHE][C_PH_SLOPE]
     ph = rhs(t, y, f0, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws_a)
@@ -156,7 +245,9 @@ def point_terms(t, y, jac, ftheta, base, sp):
             if w != 0.0:
                 for i in range(n):
                     out[i] += w * contrib[st, i]
-        if has_other[d]:
+        if by_pops[d]:
+            pka_difference(t, y, d, temperature, out, base, sp)
+        elif has_other[d]:
             perturbed_rhs(t, y, 2 * d, fa, base, sp)
             perturbed_rhs(t, y, 2 * d + 1, fb, base, sp)
             for i in range(n):
@@ -234,12 +325,14 @@ def sens_row(t, y, s, d, i_out, base, sp):
 
 @driver_kernel
 def parameter_sets(model, q, runs, r, ph_offset, amount_factor, dirs):
-    """How each direction enters the right-hand side: (eps, pars, offs, facs, rate_w, ea_w, has_other).
+    """How each direction enters the right-hand side: (eps, pars, offs, facs, rate_w, ea_w, has_other, pka_w,
+    by_pops).
 
     A direction's rate constants (log10 k and Ea of every step) enter through the steps' own terms
     (``rate_w[d, s]`` = ln10 dlog10 k_s, ``ea_w[d, s]`` = dEa_s); its other entries through the 2 m input sets
     q +- eps_d D_d of the central differences, gathered as ``integrator_kernel.run_context`` gathers q (row 2 d:
-    +, 2 d + 1: -); ``has_other[d]``: the direction has such entries among q and the pH offset."""
+    +, 2 d + 1: -); ``has_other[d]``: the direction has such entries among q and the pH offset;
+    ``by_pops[d]``: instead, its entries are site pKa values alone, ``pka_w[d]`` per site (:func:`pka_difference`)."""
     m = dirs.shape[0]
     n_q = q.shape[0]
     n_steps = model.step_logk_q.shape[0]
@@ -254,6 +347,17 @@ def parameter_sets(model, q, runs, r, ph_offset, amount_factor, dirs):
             other[d, model.step_logk_q[st]] = 0.0
             other[d, model.step_ea_q[st]] = 0.0
     has_other = np.zeros(m, dtype=np.bool_)
+    # q entries that enter through something else than a site's pKa
+    n_sites = model.site_pka_q.shape[0]
+    elsewhere = np.zeros(n_q, dtype=np.bool_)
+    for i in range(n_sites):
+        elsewhere[model.site_dh_q[i]] = True
+    for k in range(model.inter_q.shape[0]):
+        elsewhere[model.inter_q[k]] = True
+    if model.medium_q >= 0:
+        elsewhere[model.medium_q] = True
+    pka_w = np.zeros((m, n_sites))
+    by_pops = np.zeros(m, dtype=np.bool_)
     eps = np.empty(m)
     offs = np.empty(2 * m)
     facs = np.empty(2 * m)
@@ -267,6 +371,20 @@ def parameter_sets(model, q, runs, r, ph_offset, amount_factor, dirs):
         for i in range(n_q):
             size = max(size, abs(other[d, i]) / max(1.0, abs(q[i])))
         has_other[d] = size > 0.0
+        # pKa values alone (no offset, nothing else): carried through the populations (pka_difference)
+        alone = has_other[d] and other[d, n_q] == 0.0
+        for i in range(n_q):
+            if other[d, i] != 0.0 and elsewhere[i]:
+                alone = False
+        for i in range(n_sites):
+            pka_w[d, i] = other[d, model.site_pka_q[i]]
+        if alone:
+            moved = 0.0
+            for i in range(n_sites):
+                moved += abs(pka_w[d, i])
+            # every moved q entry is some site's pKa (a q entry of nothing at all moves nothing)
+            by_pops[d] = moved > 0.0
+            has_other[d] = not by_pops[d]
         size = max(size, abs(other[d, n_q + 1]))
         eps[d] = SENS_EPS / size if size > 0.0 else SENS_EPS
         for side in range(2):
@@ -283,7 +401,7 @@ def parameter_sets(model, q, runs, r, ph_offset, amount_factor, dirs):
             pars[3][j, :] = pj[3]
             pars[4][j, :] = pj[4]
             pars[5][j] = pj[5]
-    return eps, pars, offs, facs, rate_w, ea_w, has_other
+    return eps, pars, offs, facs, rate_w, ea_w, has_other, pka_w, by_pops
 
 
 @driver_kernel
