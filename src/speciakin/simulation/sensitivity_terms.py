@@ -1,8 +1,9 @@
 """The terms of the forward sensitivities at a point, and their set-up (``sensitivity_kernel``).
 
 At a state (t, y) of a run: the analytic Jacobian and each direction's df/dD_d (:func:`point_terms`: the
-rate constants' share from their steps' own terms, :func:`rate_contributions`; the other inputs' from a
-central difference at the fixed state, each perturbed input set in work arrays of its own,
+rate constants' share from their steps' own terms, :func:`rate_contributions`; site pKa values' from the
+point's populations carried to the moved values, :func:`pka_difference`; the other inputs' from a central
+difference at the fixed state, each perturbed input set in work arrays of its own,
 :func:`stacked_workspaces`), the output row of a direction's sensitivities (:func:`sens_row`; a free pH's
 from the charge balance at the fixed pH, :func:`free_ph_derivative`), how each direction enters
 (:func:`parameter_sets`) and the start state (:func:`start_state`).  The sensitivity problem ``sp`` these
