@@ -84,6 +84,7 @@ WS_PKA2 = 8           #: scratch of length n_sites
 WS_DZBAR_DT = 9       #: d zbar / dT of every molecule [1/K]
 WS_STATE = 10         #: scratch of the state's length
 WS_DPH_DY = 11        #: d pH / d y of the free-pH charge balance
+WS_SOLVED = 12        #: the state of the free-pH step loop's last charge-balance solve (a step or stage point)
 
 # ---- entries of the scalar cache ``ws[WS_CACHE]``
 C_TEMPERATURE = 0     #: temperature of the cached T-dependent values [K]
@@ -93,7 +94,8 @@ C_LAST_PH = 3         #: last pH (warm start of the charge balance)
 C_DOH_DT = 4          #: d[OH-]/dT at the held pH [mol/L/K]
 C_PH_SLOPE = 5        #: d pH/dt of the current segment (logged pH; a smoothed log's at the last time) [1/s]
 C_OPPOSITE = 6        #: 1 when the opposite titrant is dosed at the last rhs call
-C_STEP_PH = 7         #: pH at the current step point (free pH: start of the stages' charge-balance solves)
+C_STEP_PH = 7         #: pH of ``ws[WS_SOLVED]`` (free pH: the next solve starts at the linear prediction from there;
+                      #: NaN: none yet in this segment)
 N_CACHE = 8
 
 # info row of one (set, run) task, filled by integrator_kernel.run_one

@@ -64,12 +64,12 @@ MODE_FREE = 2
 @njit(cache=True)
 def make_workspace(n_species, n_sites, n_micro, n_mol, n_steps):
     """Scratch arrays of one run: (pka, k_of_t, pops, zbar, variance, conc,
-    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy), in the state of
-    :func:`reset_workspace`."""
+    rate, cache, pka2, dzbar_dT, state_scratch, dph_dy, solved_state), in the state
+    of :func:`reset_workspace`."""
     ws = (np.empty(max(n_sites, 1)), np.empty(max(n_steps, 1)), np.empty(max(n_micro, 1)),
           np.empty(max(n_mol, 1)), np.empty(max(n_mol, 1)), np.empty(n_species),
           np.empty(max(n_steps, 1)), np.empty(N_CACHE), np.empty(max(n_sites, 1)), np.empty(max(n_mol, 1)),
-          np.empty(n_species + 3), np.empty(n_species + 3))
+          np.empty(n_species + 3), np.empty(n_species + 3), np.empty(n_species + 3))
     reset_workspace(ws)
     return ws
 
@@ -86,7 +86,7 @@ def reset_workspace(ws):
     cache[C_DOH_DT] = 0.0       # d[OH-]/dT at the held pH (temperature ramps)
     cache[C_PH_SLOPE] = 0.0       # d pH/dt of the current segment (logged pH) [1/s]
     cache[C_OPPOSITE] = 0.0       # 1 when the opposite titrant is the one dosed at the last rhs call
-    cache[C_STEP_PH] = math.nan   # pH at the current step point (free pH)
+    cache[C_STEP_PH] = math.nan   # pH of ws[WS_SOLVED], the last solved step or stage point (free pH)
     for arr in (ws[WS_DZBAR_DT], ws[WS_DPH_DY]):
         for i in range(arr.shape[0]):
             arr[i] = 0.0
@@ -205,7 +205,7 @@ def rhs(t, y, dy, model, par, ctx, feed_rate, feed_volume_rate, temperature_slop
     (pka_ref, enthalpy, inter_w, log10_k, ea, pkw_shift) = par
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled, log_c, log_smooth) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy, solved) = ws
     volume = y[n_species]
     if not (volume > 0.0):
         for i in range(dy.shape[0]):
@@ -347,7 +347,7 @@ def analytic_jacobian(y, model, ws, ctx, jac, temperature_slope):
      prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
     (mode, ph_value, ph_offset, titrant, titrant_conc, log_t, log_v, log_n, temp_t, temp_v, temp_n,
      second, second_conc, controlled, log_c, log_smooth) = ctx
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy, solved) = ws
     n = y.shape[0]
     n_steps = step_logk_q.shape[0]
     volume = y[n_species]
@@ -435,7 +435,7 @@ def _free_ph_coupling(y, model, ws, jac, ph, hydroxide):
      inter_a, inter_b, inter_q, mol_inter_start, micro_charge, micro_protons, step_logk_q,
      step_ea_q, react_start, react_kind, react_species, react_coef, react_mask, react_value,
      prod_start, prod_species, prod_coef, t_ref, substrate_mask, medium_q) = model
-    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy) = ws
+    (pka, k_of_t, pops, zbar, variance, conc, rate, cache, pka2, dzdt, scratch, dph_dy, solved) = ws
     n = y.shape[0]
     volume = y[n_species]
     # dg/dpH [mol/L per pH unit]

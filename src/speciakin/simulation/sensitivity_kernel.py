@@ -55,7 +55,7 @@ from speciakin.simulation.integrator_kernel import (free_jacobian, free_output, 
                                                     run_workspaces, segment_conditions)
 from speciakin.simulation.jit_options import driver_kernel, leaf_kernel
 from speciakin.simulation.layout import (CTX_MODE, CTX_TEMP_N, CTX_TEMP_T, CTX_TEMP_V, INFO_FAILED_AT, INFO_STEPS,
-                                         N_INFO, WS_CACHE)
+                                         C_STEP_PH, N_INFO, WS_CACHE)
 from speciakin.simulation.lu_kernel import lu_solve
 from speciakin.simulation.rhs_kernel import interpolate, rhs
 from speciakin.simulation.rodas_tableau import (ALPHA, GAMMAS, LAST, N_DENSE, N_STAGES, add_stage_history,
@@ -354,6 +354,7 @@ def run_sensitivities(model, q, runs, r, ph_offset, amount_factor, dirs, rtol, a
             t_end = bp[i_bp]
         feed_volume_rate, temp_slope, nonauto = segment_conditions(runs, r, ctx, t, t_end, feed_rate, cache)
         base = (model, par, ctx, feed_rate, feed_volume_rate, temp_slope, nonauto, ws)
+        cache[C_STEP_PH] = math.nan  # as integrator_kernel.integrate_segment: no solved point yet
         status, h, i_out = _segment(t, t_end, y, h, base, sp, rtol, atol, counters, out, out_t, i_out, n_out)
         info[INFO_STEPS] = counters[0]
         if status != STATUS_OK:

@@ -46,7 +46,7 @@ def with_offset(ctx, offset):
 def set_workspace(wss, j):
     """The work arrays of perturbed input set ``j``: rows of the stacked arrays (:func:`stacked_workspaces`)."""
     return (wss[0][j], wss[1][j], wss[2][j], wss[3][j], wss[4][j], wss[5][j], wss[6][j], wss[7][j], wss[8][j],
-            wss[9][j], wss[10][j], wss[11][j])
+            wss[9][j], wss[10][j], wss[11][j], wss[12][j])
 
 
 @njit(cache=True)
@@ -61,7 +61,8 @@ def stacked_workspaces(model, count):
            np.empty((count, one[4].shape[0])), np.empty((count, one[5].shape[0])),
            np.empty((count, one[6].shape[0])), np.empty((count, one[7].shape[0])),
            np.empty((count, one[8].shape[0])), np.empty((count, one[9].shape[0])),
-           np.empty((count, one[10].shape[0])), np.empty((count, one[11].shape[0])))
+           np.empty((count, one[10].shape[0])), np.empty((count, one[11].shape[0])),
+           np.empty((count, one[12].shape[0])))
     for j in range(count):
         reset_workspace(set_workspace(wss, j))
     return wss
