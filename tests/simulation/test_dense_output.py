@@ -73,6 +73,29 @@ def test_held_ph_under_temperature_ramp_is_consistent_with_constant_temperature_
     np.testing.assert_allclose(b.titrant, a.titrant, atol=5e-6 * np.max(np.abs(a.titrant)))
 
 
+def test_mean_charge_temperature_slope_far_from_the_pka_values():
+    # two independent sites (no interaction) far below both pKa values, as a phenol and an amine at pH 1.5:
+    # d zbar/dT = sum_i ln10 theta_i (1 - theta_i) dpKa_i/dT, with 1 - theta_i = x / (1 + x), x = 10^(pH - pKa_i)
+    # written without cancellation (van 't Hoff, Atkins' Physical Chemistry).  The difference <zL> - <z><L>
+    # lost about 5e-9 of this covariance to rounding, which kept the coefficient cubics of a held pH under
+    # a temperature ramp from their 1e-9 check (docs/simulation.md, Known limitations).
+    from speciakin.simulation.speciation_kernel import all_populations, mean_charge_temperature_slopes
+
+    pka, dh, temp, ph = np.array([9.0, 10.5]), np.array([50.0, 25.0]), 295.15, 1.5  # invented sites
+    pops = np.empty(4)
+    all_populations(pka, np.array([0, 2]), np.array([0, 4]), np.zeros(0, np.int64), np.zeros(0, np.int64),
+                    np.zeros(0), np.array([0, 0]), 1, ph, pops)
+    out = np.empty(1)
+    # charge = bound protons - 1 (a phenolate and a free amine when nothing is bound)
+    mean_charge_temperature_slopes(pops, dh, temp, np.array([0, 2]), np.array([0, 4]),
+                                   np.array([-1.0, 0.0, 0.0, 1.0]), 1, np.empty(2), out)
+    x = 10.0 ** (ph - pka)
+    theta, free = 1.0 / (1.0 + x), x / (1.0 + x)
+    slopes = -dh * 1000.0 / (8.314462618 * math.log(10.0) * temp ** 2)
+    expected = float(np.sum(math.log(10.0) * theta * free * slopes))
+    assert out[0] == pytest.approx(expected, rel=1e-12)
+
+
 def test_mean_charge_temperature_slope_closed_form_single_base_site():
     # one base site: zbar = theta = 1 / (1 + 10^(pH - pKa)), so d zbar/dT = ln10 theta (1 - theta) dpKa/dT
     # with van 't Hoff dpKa/dT = -dH / (R ln10 T^2) (Atkins' Physical Chemistry, van 't Hoff equation)
