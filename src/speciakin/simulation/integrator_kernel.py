@@ -108,10 +108,12 @@ def free_point(t, y, f, prob):
     """f = dy/dt at a step point (free-pH problem of :func:`integrate_segment`), its
     charge-balance solve started at the prediction from the last stage point."""
     (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
-    if ctx[CTX_MODE] == MODE_FREE:
+    free = ctx[CTX_MODE] == MODE_FREE
+    if free:
         predict_ph(y, ws)
     ph = rhs(t, y, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
-    keep_solved(y, ph, ws)
+    if free:
+        keep_solved(y, ph, ws)
     return not math.isnan(ph)
 
 
@@ -122,12 +124,14 @@ def free_stage(t, ytmp, y, f, prob):
     the stage points draw together towards the step's end, and Newton iterations fell from
     1650 to 1375 on the demo's free run, against the prediction from the step point alone)."""
     (model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, nonautonomous, ws) = prob
-    if ctx[CTX_MODE] == MODE_FREE:
+    free = ctx[CTX_MODE] == MODE_FREE
+    if free:
         predict_ph(ytmp, ws)
     ph = rhs(t, ytmp, f, model, par, ctx, feed_rate, feed_volume_rate, temperature_slope, ws)
     if math.isnan(ph):
         return False
-    keep_solved(ytmp, ph, ws)
+    if free:
+        keep_solved(ytmp, ph, ws)
     return True
 
 
